@@ -1,0 +1,98 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"runtime/debug"
+)
+
+// Exit codes, one per class of failure. They are listed in the root
+// command's help text; keep the two in step.
+const (
+	exitOK          = 0
+	exitUsage       = 2  // bad command line: unknown command or flag, wrong arguments
+	exitInput       = 3  // bad input: a file that cannot be parsed or makes no sense
+	exitNumerical   = 4  // numerical failure: the problem cannot be solved as asked
+	exitIO          = 5  // input/output failure: a file cannot be read or written
+	exitBug         = 70 // an internal error (a panic): please report it
+	exitInterrupted = 130
+)
+
+const exitCodesHelp = `Exit status:
+  0    success
+  2    usage error (unknown command or flag, wrong arguments or flag values)
+  3    bad input (a file that cannot be parsed or is inconsistent; the message names file, line and field)
+  4    numerical failure (the problem cannot be solved as asked, e.g. a covariance too large for memory)
+  5    input/output failure (a file cannot be read or written)
+  70   internal error (a bug: please report it with the message)
+  130  interrupted (SIGINT or SIGTERM); no partial output is left behind`
+
+// classError attaches an exit class to an error.
+type classError struct {
+	code int
+	err  error
+}
+
+func (e *classError) Error() string { return e.err.Error() }
+func (e *classError) Unwrap() error { return e.err }
+
+func withClass(code int, err error) error {
+	if err == nil {
+		return nil
+	}
+	var ce *classError
+	if errors.As(err, &ce) {
+		return err
+	}
+	return &classError{code: code, err: err}
+}
+
+// usageErr, inputErr, numericalErr and ioErr classify an error for the exit code.
+func usageErr(err error) error     { return withClass(exitUsage, err) }
+func inputErr(err error) error     { return withClass(exitInput, err) }
+func numericalErr(err error) error { return withClass(exitNumerical, err) }
+func ioErr(err error) error        { return withClass(exitIO, err) }
+
+func usagef(format string, a ...any) error { return usageErr(fmt.Errorf(format, a...)) }
+
+// exitCode maps an error to the process exit status.
+func exitCode(ctx context.Context, err error) int {
+	if err == nil {
+		return exitOK
+	}
+	if errors.Is(err, context.Canceled) || ctx.Err() != nil {
+		return exitInterrupted
+	}
+	var ce *classError
+	if errors.As(err, &ce) {
+		return ce.code
+	}
+	// Errors that reach here unclassified come from cobra's own argument
+	// and flag parsing.
+	return exitUsage
+}
+
+// run executes the command line and returns the exit status. It is the
+// program's single error path: every error is printed once, here.
+func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) (code int) {
+	defer func() {
+		if r := recover(); r != nil {
+			fmt.Fprintf(stderr, "desmear: internal error: %v\n%s\nThis is a bug in desmear; please report it with the message above and the command you ran.\n", r, debug.Stack())
+			code = exitBug
+		}
+	}()
+	root := newRootCommand(stdin, stdout, stderr)
+	root.SetArgs(args)
+	err := root.ExecuteContext(ctx)
+	code = exitCode(ctx, err)
+	if err != nil {
+		if code == exitInterrupted {
+			fmt.Fprintln(stderr, "desmear: interrupted; no output was written")
+		} else {
+			fmt.Fprintf(stderr, "desmear: %v\n", err)
+		}
+	}
+	return code
+}

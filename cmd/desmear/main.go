@@ -1,0 +1,22 @@
+// Command desmear unfolds multidimensional detector-level spectra with
+// the D'Agostini iterative Bayesian method on sparse response matrices.
+//
+// Run "desmear help" for the commands and "desmear demo" for a worked
+// example. The physics and numerics live in the library packages
+// (binning, sparse, unfold and their sub-packages); this program parses,
+// loads, calls and prints.
+package main
+
+import (
+	"context"
+	"os"
+	"os/signal"
+	"syscall"
+)
+
+func main() {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	code := run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
+	stop()
+	os.Exit(code)
+}
