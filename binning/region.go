@@ -1,0 +1,395 @@
+package binning
+
+import (
+	"errors"
+	"fmt"
+	"sort"
+)
+
+// MaxAxes is the largest number of axes a region may have.
+const MaxAxes = 8
+
+// Special per-axis bin numbers in Bin.Index and for Scheme.Global.
+const (
+	UnderflowBin = -1 // the underflow bin of the axis
+	OverflowBin  = -2 // the overflow bin of the axis
+	AnyBin       = -3 // a nested axis collapsed under a flow of the axis before it: all values
+)
+
+// Region is a named grid of 1 to MaxAxes axes. Its in-range bins are
+// numbered row-major (last axis fastest); an edges-by-bin axis has as many
+// bins in each slice as its edge list for that slice gives. Its flow bins
+// are numbered in the same row-major order over the extended grid in which
+// every axis has the states underflow (if on), its bins, overflow (if on),
+// skipping the in-range cells; an edges-by-bin axis under a flow of the
+// axis before it has the single state AnyBin. A Region is immutable.
+type Region struct {
+	name    string
+	axes    []*Axis
+	lv      []level
+	nIn     int   // in-range cells
+	nExt    int   // extended cells (in-range and flow)
+	flowExt []int // extended index of each flow cell, increasing
+	ident   []int // 0..len(axes)-1
+}
+
+// level holds the layout of one axis of a region.
+type level struct {
+	nested bool
+	u      int       // 1 if the underflow is on
+	edges  []float64 // plain axis
+	n      int       // plain: bins
+	m      int       // plain: extended states n+u+o
+	// nested axis: cum[i] is the number of in-range bins in the slices
+	// before bin i of the axis before, cumExt[s] the number of extended
+	// states before extended state s of the axis before.
+	cum, cumExt []int
+}
+
+func (l *level) total() int    { return l.cum[len(l.cum)-1] }
+func (l *level) totalExt() int { return l.cumExt[len(l.cumExt)-1] }
+
+// NewRegion returns a region with the given axes, in order. It returns an
+// error if the name is empty, there are no axes or more than MaxAxes, two
+// axes share a name, the first axis has edges by bin, an edges-by-bin
+// axis follows another edges-by-bin axis, or the number of edge lists of
+// an edges-by-bin axis differs from the number of bins of the axis before.
+func NewRegion(name string, axes ...*Axis) (*Region, error) {
+	if name == "" {
+		return nil, errors.New("binning: region without a name")
+	}
+	if len(axes) == 0 {
+		return nil, fmt.Errorf("binning: region %q has no axes", name)
+	}
+	if len(axes) > MaxAxes {
+		return nil, fmt.Errorf("binning: region %q has %d axes; at most %d are supported", name, len(axes), MaxAxes)
+	}
+	for k, a := range axes {
+		if a == nil {
+			return nil, fmt.Errorf("binning: region %q: axis %d is nil", name, k)
+		}
+		for _, b := range axes[:k] {
+			if a.name == b.name {
+				return nil, fmt.Errorf("binning: region %q: axis name %q used twice", name, a.name)
+			}
+		}
+		if !a.ByBin() {
+			continue
+		}
+		if k == 0 {
+			return nil, fmt.Errorf("binning: region %q: the first axis %q cannot have edges by bin; there is no axis before it", name, a.name)
+		}
+		p := axes[k-1]
+		if p.ByBin() {
+			return nil, fmt.Errorf("binning: region %q: axis %q has edges by bin of %q, which itself has edges by bin; only an axis with plain edges may be followed by an edges-by-bin axis", name, a.name, p.name)
+		}
+		if len(a.byBin) != len(p.edges)-1 {
+			return nil, fmt.Errorf("binning: region %q: axis %q has %d edge lists but the axis before it (%q) has %d bins; give one list per bin", name, a.name, len(a.byBin), p.name, len(p.edges)-1)
+		}
+	}
+	r := &Region{name: name, axes: append([]*Axis(nil), axes...)}
+	r.layout()
+	return r, nil
+}
+
+// layout fills the level tables, the in-range and extended cell counts and
+// the list of flow cells.
+func (r *Region) layout() {
+	d := len(r.axes)
+	r.lv = make([]level, d)
+	r.ident = make([]int, d)
+	nIn, nExt := 1, 1
+	for k, a := range r.axes {
+		r.ident[k] = k
+		l := &r.lv[k]
+		if a.underflow {
+			l.u = 1
+		}
+		if !a.ByBin() {
+			l.edges = a.edges
+			l.n = len(a.edges) - 1
+			l.m = l.n + a.flows()
+			nIn *= l.n
+			nExt *= l.m
+			continue
+		}
+		l.nested = true
+		p := &r.lv[k-1]
+		l.cum = make([]int, p.n+1)
+		for i, e := range a.byBin {
+			l.cum[i+1] = l.cum[i] + len(e) - 1
+		}
+		l.cumExt = make([]int, p.m+1)
+		for s := 0; s < p.m; s++ {
+			cnt := 1 // a flow state of the axis before: this axis collapses to AnyBin
+			if i := s - p.u; i >= 0 && i < p.n {
+				cnt = len(a.byBin[i]) - 1 + a.flows()
+			}
+			l.cumExt[s+1] = l.cumExt[s] + cnt
+		}
+		nIn = nIn / p.n * l.total()
+		nExt = nExt / p.m * l.totalExt()
+	}
+	r.nIn, r.nExt = nIn, nExt
+	r.flowExt = make([]int, 0, nExt-nIn)
+	var st [MaxAxes]int
+	for e := 0; e < nExt; e++ {
+		r.extStates(e, &st)
+		for k := 0; k < d; k++ {
+			if st[k] < 0 {
+				r.flowExt = append(r.flowExt, e)
+				break
+			}
+		}
+	}
+}
+
+// Name returns the region name.
+func (r *Region) Name() string { return r.name }
+
+// Axes returns the axes of the region in order. The slice must not be
+// modified.
+func (r *Region) Axes() []*Axis { return r.axes }
+
+// Len returns the number of in-range bins of the region.
+func (r *Region) Len() int { return r.nIn }
+
+// Flows returns the number of switched-on flow bins of the region.
+func (r *Region) Flows() int { return len(r.flowExt) }
+
+// Rectangular reports whether no axis of the region has edges by bin, so
+// that its bins form a full grid (as a ROOT TH1D/TH2D/TH3D would).
+func (r *Region) Rectangular() bool {
+	for _, l := range r.lv {
+		if l.nested {
+			return false
+		}
+	}
+	return true
+}
+
+// find locates the point whose coordinate on axis k is x[pos[k]]. It
+// returns the in-range cell, or -1 and the position of the flow cell in
+// the region's flow list, or -1, -1 if the point needs a flow bin that is
+// switched off. No coordinate may be NaN.
+func (r *Region) find(x []float64, pos []int) (int, int) {
+	c, q, ip := 0, 0, 0
+	for k := range r.lv {
+		l := &r.lv[k]
+		v := x[pos[k]]
+		if l.nested {
+			edges := r.axes[k].byBin[ip]
+			i := search(edges, v)
+			if i < 0 || i >= len(edges)-1 {
+				return -1, r.findFlow(x, pos)
+			}
+			c = q*l.total() + l.cum[ip] + i
+			ip = i
+			continue
+		}
+		i := search(l.edges, v)
+		if i < 0 || i >= l.n {
+			return -1, r.findFlow(x, pos)
+		}
+		q = c
+		c = c*l.n + i
+		ip = i
+	}
+	return c, -1
+}
+
+// findFlow returns the position in the flow list of the point, known to
+// be outside the in-range bins, or -1 if its flow bin is switched off.
+func (r *Region) findFlow(x []float64, pos []int) int {
+	e, qe, sp := 0, 0, 0
+	for k := range r.lv {
+		l := &r.lv[k]
+		a := r.axes[k]
+		if l.nested {
+			p := &r.lv[k-1]
+			s := 0
+			if ip := sp - p.u; ip >= 0 && ip < p.n {
+				edges := a.byBin[ip]
+				i := search(edges, x[pos[k]])
+				var ok bool
+				if s, ok = flowState(i, len(edges)-1, a); !ok {
+					return -1
+				}
+			}
+			e = qe*l.totalExt() + l.cumExt[sp] + s
+			sp = s
+			continue
+		}
+		i := search(l.edges, x[pos[k]])
+		s, ok := flowState(i, l.n, a)
+		if !ok {
+			return -1
+		}
+		qe = e
+		e = e*l.m + s
+		sp = s
+	}
+	return r.flowPos(e)
+}
+
+// flowState converts the result i of search on an axis slice with n bins
+// to an extended state, reporting false if the flow bin needed is off.
+func flowState(i, n int, a *Axis) (int, bool) {
+	u := 0
+	if a.underflow {
+		u = 1
+	}
+	switch {
+	case i < 0:
+		return 0, a.underflow
+	case i >= n:
+		return n + u, a.overflow
+	}
+	return i + u, true
+}
+
+// flowPos returns the position of extended cell e in the flow list, or -1.
+func (r *Region) flowPos(e int) int {
+	p := sort.SearchInts(r.flowExt, e)
+	if p < len(r.flowExt) && r.flowExt[p] == e {
+		return p
+	}
+	return -1
+}
+
+// inStates writes the per-axis bin numbers of in-range cell c to st.
+func (r *Region) inStates(c int, st *[MaxAxes]int) {
+	for k := len(r.lv) - 1; k >= 0; k-- {
+		l := &r.lv[k]
+		if !l.nested {
+			st[k] = c % l.n
+			c /= l.n
+			continue
+		}
+		t := l.total()
+		q, rem := c/t, c%t
+		ip := sort.SearchInts(l.cum, rem+1) - 1
+		st[k] = rem - l.cum[ip]
+		c = q*r.lv[k-1].n + ip
+	}
+}
+
+// extStates writes the per-axis bin numbers (or UnderflowBin, OverflowBin,
+// AnyBin) of extended cell e to st.
+func (r *Region) extStates(e int, st *[MaxAxes]int) {
+	for k := len(r.lv) - 1; k >= 0; k-- {
+		l := &r.lv[k]
+		a := r.axes[k]
+		if !l.nested {
+			s := e % l.m
+			e /= l.m
+			st[k] = stateBin(s, l.u, l.n)
+			continue
+		}
+		t := l.totalExt()
+		q, rem := e/t, e%t
+		sp := sort.SearchInts(l.cumExt, rem+1) - 1
+		s := rem - l.cumExt[sp]
+		p := &r.lv[k-1]
+		if ip := sp - p.u; ip >= 0 && ip < p.n {
+			st[k] = stateBin(s, l.u, len(a.byBin[ip])-1)
+		} else {
+			st[k] = AnyBin
+		}
+		e = q*p.m + sp
+	}
+}
+
+// stateBin converts an extended state of an axis slice with n bins and
+// underflow flag u to a bin number.
+func stateBin(s, u, n int) int {
+	switch {
+	case s < u:
+		return UnderflowBin
+	case s-u >= n:
+		return OverflowBin
+	}
+	return s - u
+}
+
+// cell returns the in-range cell of per-axis bin numbers idx, or -1 and
+// the flow position, or -1, -1 if there is no such bin.
+func (r *Region) cell(idx []int) (int, int) {
+	if len(idx) != len(r.lv) {
+		return -1, -1
+	}
+	in := true
+	for _, i := range idx {
+		if i < 0 {
+			in = false
+		}
+	}
+	if in {
+		c, q, ip := 0, 0, 0
+		for k := range r.lv {
+			l := &r.lv[k]
+			i := idx[k]
+			if l.nested {
+				if i >= len(r.axes[k].byBin[ip])-1 {
+					return -1, -1
+				}
+				c = q*l.total() + l.cum[ip] + i
+			} else {
+				if i >= l.n {
+					return -1, -1
+				}
+				q = c
+				c = c*l.n + i
+			}
+			ip = i
+		}
+		return c, -1
+	}
+	e, qe, sp := 0, 0, 0
+	for k := range r.lv {
+		l := &r.lv[k]
+		a := r.axes[k]
+		i := idx[k]
+		if l.nested {
+			p := &r.lv[k-1]
+			s := 0
+			if ip := sp - p.u; ip >= 0 && ip < p.n {
+				var ok bool
+				if s, ok = binState(i, len(a.byBin[ip])-1, a); !ok {
+					return -1, -1
+				}
+			} else if i != AnyBin {
+				return -1, -1
+			}
+			e = qe*l.totalExt() + l.cumExt[sp] + s
+			sp = s
+			continue
+		}
+		s, ok := binState(i, l.n, a)
+		if !ok {
+			return -1, -1
+		}
+		qe = e
+		e = e*l.m + s
+		sp = s
+	}
+	return -1, r.flowPos(e)
+}
+
+// binState converts a bin number on an axis slice with n bins to an
+// extended state, reporting false if there is no such bin.
+func binState(i, n int, a *Axis) (int, bool) {
+	u := 0
+	if a.underflow {
+		u = 1
+	}
+	switch {
+	case i == UnderflowBin:
+		return 0, a.underflow
+	case i == OverflowBin:
+		return n + u, a.overflow
+	case i >= 0 && i < n:
+		return i + u, true
+	}
+	return 0, false
+}
