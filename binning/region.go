@@ -38,6 +38,8 @@ type level struct {
 	nested bool
 	u      int       // 1 if the underflow is on
 	edges  []float64 // plain axis
+	find   finder    // plain axis
+	finds  []finder  // nested axis: one per edge list
 	n      int       // plain: bins
 	m      int       // plain: extended states n+u+o
 	// nested axis: cum[i] is the number of in-range bins in the slices
@@ -107,6 +109,7 @@ func (r *Region) layout() {
 		}
 		if !a.ByBin() {
 			l.edges = a.edges
+			l.find = newFinder(a.edges)
 			l.n = len(a.edges) - 1
 			l.m = l.n + a.flows()
 			nIn *= l.n
@@ -116,7 +119,9 @@ func (r *Region) layout() {
 		l.nested = true
 		p := &r.lv[k-1]
 		l.cum = make([]int, p.n+1)
+		l.finds = make([]finder, len(a.byBin))
 		for i, e := range a.byBin {
+			l.finds[i] = newFinder(e)
 			l.cum[i+1] = l.cum[i] + len(e) - 1
 		}
 		l.cumExt = make([]int, p.m+1)
@@ -178,16 +183,16 @@ func (r *Region) find(x []float64, pos []int) (int, int) {
 		l := &r.lv[k]
 		v := x[pos[k]]
 		if l.nested {
-			edges := r.axes[k].byBin[ip]
-			i := search(edges, v)
-			if i < 0 || i >= len(edges)-1 {
+			f := &l.finds[ip]
+			i := f.find(v)
+			if i < 0 || i >= f.n {
 				return -1, r.findFlow(x, pos)
 			}
 			c = q*l.total() + l.cum[ip] + i
 			ip = i
 			continue
 		}
-		i := search(l.edges, v)
+		i := l.find.find(v)
 		if i < 0 || i >= l.n {
 			return -1, r.findFlow(x, pos)
 		}

@@ -1,0 +1,65 @@
+package binning
+
+import (
+	"math/rand/v2"
+	"testing"
+)
+
+// uniformEdges returns n+1 equally spaced edges from lo to hi.
+func uniformEdges(n int, lo, hi float64) []float64 {
+	e := make([]float64, n+1)
+	for i := range e {
+		e[i] = lo + (hi-lo)*float64(i)/float64(n)
+	}
+	return e
+}
+
+// grid3D is the 100x100x50 benchmark grid, with all flows on.
+func grid3D(tb testing.TB) *Scheme {
+	tb.Helper()
+	x, err := NewAxis("x", "", uniformEdges(100, 0, 1), true, true)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	y, err := NewAxis("y", "", uniformEdges(100, 0, 1), true, true)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	z, err := NewAxis("z", "", uniformEdges(50, 0, 1), true, true)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	reg, err := NewRegion("grid", x, y, z)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	s, err := NewScheme(reg)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return s
+}
+
+// BenchmarkLocate3D locates 10 million uniformly random points (about 2%
+// of them in flow bins) in a 100x100x50 grid per iteration and reports the
+// rate in points per second on one core.
+func BenchmarkLocate3D(b *testing.B) {
+	s := grid3D(b)
+	const n = 10_000_000
+	rng := rand.New(rand.NewPCG(1, 2))
+	pts := make([]float64, 3*n)
+	for i := range pts {
+		pts[i] = rng.Float64()*1.02 - 0.01
+	}
+	b.ResetTimer()
+	sum := 0
+	for b.Loop() {
+		for i := 0; i < n; i++ {
+			sum += s.Locate(pts[3*i : 3*i+3 : 3*i+3])
+		}
+	}
+	b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds(), "points/s")
+	if sum == 0 {
+		b.Fatal("no point located")
+	}
+}
