@@ -1,0 +1,636 @@
+package sparse
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/bits"
+	"sync"
+)
+
+// DefaultChunkEntries is the default number of entries an Accumulator
+// sorts together (see AccumulatorOptions.ChunkEntries).
+const DefaultChunkEntries = 1 << 21
+
+// DefaultWindow is the default number of batches an Accumulator holds
+// ahead of the next expected sequence number.
+const DefaultWindow = 64
+
+// MaxReportedCells is the largest number of cells listed individually in
+// a Report; beyond it cells are only counted.
+const MaxReportedCells = 1000
+
+// serialBatch is the number of entries Add collects before handing them
+// on as one batch.
+const serialBatch = 1 << 16
+
+// AccumulatorOptions tunes an Accumulator. The zero value selects the
+// defaults.
+type AccumulatorOptions struct {
+	// ChunkEntries is the number of consecutive entries of the ordered
+	// entry stream that are sorted and summed together before they are
+	// merged into the distinct cells. It bounds the memory of the chunk
+	// buffers (32 bytes per entry for each chunk being sorted) and it is
+	// part of the definition of the result: sums of the same stream cut
+	// into chunks of another size may differ in their last bits. Zero
+	// means DefaultChunkEntries.
+	ChunkEntries int
+	// Window is the number of batches that may be held ahead of the next
+	// expected sequence number; AddBatch blocks beyond it. It bounds the
+	// memory of batches that arrive out of order and does not change the
+	// result. Zero means DefaultWindow.
+	Window int
+}
+
+// Cell is one cell of an accumulated matrix.
+type Cell struct {
+	Row, Col int
+	SumW     float64 // sum of the weights
+	SumW2    float64 // sum of the squared weights
+}
+
+// Report describes what an Accumulator built.
+type Report struct {
+	Entries int64 // number of entries added
+	Cells   int   // number of distinct cells stored
+	// NegativeCount is the number of cells whose sum of weights is
+	// negative. They are stored in the matrix like every other cell.
+	NegativeCount int
+	// Negative lists the first MaxReportedCells of those cells in
+	// column-major order.
+	Negative []Cell
+	// ZeroCount is the number of cells whose weights cancelled exactly to
+	// a zero sum. They are stored (their SumW2 is positive).
+	ZeroCount int
+}
+
+// Accumulator sums weighted (row, column) entries into the distinct
+// cells of a rows×cols matrix, keeping for every cell the sum of the
+// weights and the sum of the squared weights. Its memory grows with the
+// number of distinct cells, not with the number of entries: entries are
+// sorted in bounded chunks (a stable radix sort of packed column-major
+// keys), summed within the chunk and merged into a sorted store of
+// distinct cells.
+//
+// # Determinism
+//
+// Entries arrive in batches numbered 0, 1, 2, ... (AddBatch), which may
+// be added from many goroutines in any order. The result is a function
+// of the ordered entry stream alone, that is the batches concatenated in
+// sequence order, and of AccumulatorOptions.ChunkEntries: each cell's
+// sums are formed in stream order within a chunk and chunk by chunk in
+// stream order. The same stream gives the same bits whatever the number
+// of goroutines, their scheduling and the way the stream is cut into
+// batches. A caller filling from events should number its batches by
+// event position (for example batch s holds events [s·B, (s+1)·B)), never
+// by worker.
+//
+// Add is a single-goroutine alternative that numbers batches itself; an
+// Accumulator is fed either by Add or by AddBatch, not both.
+//
+// AddBatch and Add may be called concurrently (AddBatch) until Matrix is
+// called; Matrix must be called once, after every AddBatch call has
+// returned.
+type Accumulator struct {
+	rows, cols int
+	rowBits    uint // row field width of a packed key
+	keyBits    uint // total width of a packed key
+	chunkCap   int
+	window     uint64
+
+	mu      sync.Mutex
+	cond    sync.Cond
+	err     error // first error, sticky
+	done    bool
+	mode    int // 0 none yet, modeSerial, modeBatch
+	next    uint64
+	held    map[uint64]*heldBatch
+	heldMax uint64 // largest sequence number seen, plus one
+	chunk   *chunkBuf
+	nClosed uint64 // chunks closed so far
+	entries int64
+	freeC   []*chunkBuf
+	freeH   []*heldBatch
+
+	// merge stage, also under mu
+	runs      map[uint64]*chunkBuf
+	nextMerge uint64
+	merging   bool
+	store     cellStore
+	spare     cellStore
+
+	// serial feed (Add)
+	ser    heldBatch
+	serSeq uint64
+}
+
+const (
+	modeSerial = 1
+	modeBatch  = 2
+)
+
+// heldBatch is a batch packed into keys, waiting for its turn.
+type heldBatch struct {
+	keys []uint64
+	w    []float64
+}
+
+// chunkBuf holds one chunk: the packed entries, sort scratch, and after
+// sorting the summed run (keys, sw, sw2 alias the buffers).
+type chunkBuf struct {
+	k0, k1 []uint64
+	w0, w1 []float64
+
+	keys     []uint64
+	sw, sw2  []float64
+	sorter   radixSorter
+	sequence uint64
+}
+
+// cellStore is the sorted set of distinct cells.
+type cellStore struct {
+	keys    []uint64
+	sw, sw2 []float64
+}
+
+// NewAccumulator returns an empty accumulator for a rows×cols matrix
+// (rows reco bins, cols truth bins). opt may be nil. Both dimensions must
+// be at most math.MaxInt32.
+func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, error) {
+	if rows < 0 || cols < 0 || rows > math.MaxInt32 || cols > math.MaxInt32 {
+		return nil, fmt.Errorf("sparse: accumulator dimensions %d×%d out of range [0,%d]", rows, cols, math.MaxInt32)
+	}
+	a := &Accumulator{rows: rows, cols: cols, chunkCap: DefaultChunkEntries, window: DefaultWindow}
+	if opt != nil {
+		if opt.ChunkEntries < 0 || opt.Window < 0 {
+			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d)", opt.ChunkEntries, opt.Window)
+		}
+		if opt.ChunkEntries > 0 {
+			a.chunkCap = opt.ChunkEntries
+		}
+		if opt.Window > 0 {
+			a.window = uint64(opt.Window)
+		}
+	}
+	if rows > 0 {
+		a.rowBits = uint(bits.Len(uint(rows - 1)))
+	}
+	colBits := uint(0)
+	if cols > 0 {
+		colBits = uint(bits.Len(uint(cols - 1)))
+	}
+	a.keyBits = a.rowBits + colBits
+	a.cond.L = &a.mu
+	a.held = make(map[uint64]*heldBatch)
+	a.runs = make(map[uint64]*chunkBuf)
+	return a, nil
+}
+
+// Dims returns the dimensions of the matrix being accumulated.
+func (a *Accumulator) Dims() (rows, cols int) { return a.rows, a.cols }
+
+// Add adds weight w to the cell (row, col). It is the single-goroutine
+// feed: Add must not be called concurrently, nor mixed with AddBatch. The
+// entries form the stream in call order. The first invalid entry (index
+// out of range, non-finite weight) is returned as an error and ends the
+// accumulation.
+func (a *Accumulator) Add(row, col int, w float64) error {
+	if a.mode != modeSerial {
+		a.mu.Lock()
+		if a.mode == modeBatch {
+			a.mu.Unlock()
+			return errors.New("sparse: Accumulator.Add called on an accumulator fed by AddBatch")
+		}
+		a.mode = modeSerial
+		a.mu.Unlock()
+	}
+	if uint(row) >= uint(a.rows) || uint(col) >= uint(a.cols) || w-w != 0 {
+		err := fmt.Errorf("sparse: entry %d: %w", a.entries+int64(len(a.ser.keys)), a.checkEntry(row, col, w))
+		a.fail(err)
+		return err
+	}
+	a.ser.keys = append(a.ser.keys, uint64(col)<<a.rowBits|uint64(row))
+	a.ser.w = append(a.ser.w, w)
+	if len(a.ser.keys) >= serialBatch {
+		return a.flushSerial()
+	}
+	return nil
+}
+
+func (a *Accumulator) flushSerial() error {
+	if len(a.ser.keys) == 0 {
+		return nil
+	}
+	h := a.getHeld(len(a.ser.keys))
+	h.keys = append(h.keys, a.ser.keys...)
+	h.w = append(h.w, a.ser.w...)
+	a.ser.keys, a.ser.w = a.ser.keys[:0], a.ser.w[:0]
+	seq := a.serSeq
+	a.serSeq++
+	return a.submit(seq, h)
+}
+
+func (a *Accumulator) checkEntry(row, col int, w float64) error {
+	switch {
+	case uint(row) >= uint(a.rows):
+		return fmt.Errorf("reco bin %d out of range [0,%d)", row, a.rows)
+	case uint(col) >= uint(a.cols):
+		return fmt.Errorf("truth bin %d out of range [0,%d)", col, a.cols)
+	default:
+		return fmt.Errorf("non-finite weight %v", w)
+	}
+}
+
+// AddBatch adds the entries (rows[i], cols[i], w[i]) as batch number seq
+// of the entry stream. Batches must be numbered 0, 1, 2, ... without gaps
+// or repeats; they may be added from many goroutines in any order.
+// AddBatch copies the entries, so the caller may reuse the slices on
+// return. It blocks while seq is more than the window ahead of the
+// earliest batch not yet added.
+//
+// An invalid entry (index out of range, non-finite weight, mismatched
+// slice lengths, repeated sequence number) is returned as an error naming
+// the batch and the entry; it ends the accumulation, and every later call
+// returns the same error.
+//
+// A batch may be empty. Batches of 10^5 to 10^6 entries amortise the
+// per-batch costs well.
+func (a *Accumulator) AddBatch(seq uint64, rows, cols []int32, w []float64) error {
+	if len(rows) != len(cols) || len(rows) != len(w) {
+		err := fmt.Errorf("sparse: batch %d: %d rows, %d columns and %d weights", seq, len(rows), len(cols), len(w))
+		a.fail(err)
+		return err
+	}
+	a.mu.Lock()
+	if a.mode == modeSerial {
+		a.mu.Unlock()
+		return errors.New("sparse: Accumulator.AddBatch called on an accumulator fed by Add")
+	}
+	a.mode = modeBatch
+	for a.err == nil && !a.done && seq >= a.next+a.window {
+		a.cond.Wait()
+	}
+	if err := a.stateErr(seq); err != nil {
+		a.mu.Unlock()
+		return err
+	}
+	h := a.popHeld(len(rows))
+	a.mu.Unlock()
+
+	rb := a.rowBits
+	nr, nc := uint32(a.rows), uint32(a.cols)
+	keys := h.keys[:len(rows)]
+	hw := h.w[:len(rows)]
+	cols = cols[:len(rows)]
+	w = w[:len(rows)]
+	for i, r := range rows {
+		c := cols[i]
+		wi := w[i]
+		if uint32(r) >= nr || uint32(c) >= nc || wi-wi != 0 {
+			err := fmt.Errorf("sparse: batch %d entry %d: %w", seq, i, a.checkEntry(int(r), int(c), wi))
+			a.fail(err)
+			return err
+		}
+		keys[i] = uint64(c)<<rb | uint64(r)
+		hw[i] = wi
+	}
+	h.keys, h.w = keys, hw
+	return a.submit(seq, h)
+}
+
+// stateErr reports, under a.mu, why batch seq cannot be added.
+func (a *Accumulator) stateErr(seq uint64) error {
+	switch {
+	case a.err != nil:
+		return a.err
+	case a.done:
+		return errors.New("sparse: Accumulator used after Matrix")
+	case seq < a.next || a.held[seq] != nil:
+		err := fmt.Errorf("sparse: batch %d added twice", seq)
+		a.err = err
+		a.cond.Broadcast()
+		return err
+	}
+	return nil
+}
+
+// fail records err as the accumulator's sticky error.
+func (a *Accumulator) fail(err error) {
+	a.mu.Lock()
+	if a.err == nil {
+		a.err = err
+	}
+	a.cond.Broadcast()
+	a.mu.Unlock()
+}
+
+func (a *Accumulator) popHeld(n int) *heldBatch {
+	var h *heldBatch
+	if k := len(a.freeH); k > 0 {
+		h = a.freeH[k-1]
+		a.freeH = a.freeH[:k-1]
+	} else {
+		h = new(heldBatch)
+	}
+	if cap(h.keys) < n || cap(h.w) < n {
+		h.keys = make([]uint64, n)
+		h.w = make([]float64, n)
+	}
+	h.keys, h.w = h.keys[:n], h.w[:n]
+	return h
+}
+
+func (a *Accumulator) getHeld(n int) *heldBatch {
+	a.mu.Lock()
+	h := a.popHeld(n)
+	a.mu.Unlock()
+	h.keys, h.w = h.keys[:0], h.w[:0]
+	return h
+}
+
+// submit hands the packed batch seq to the ordered stage: it is appended
+// to the stream when every earlier batch has been; full chunks are then
+// sorted and merged by the calling goroutine.
+func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
+	a.mu.Lock()
+	if err := a.stateErr(seq); err != nil {
+		a.mu.Unlock()
+		return err
+	}
+	a.held[seq] = h
+	if seq+1 > a.heldMax {
+		a.heldMax = seq + 1
+	}
+	var closed []*chunkBuf
+	for {
+		b := a.held[a.next]
+		if b == nil {
+			break
+		}
+		delete(a.held, a.next)
+		a.next++
+		closed = a.appendStream(b, closed)
+		b.keys, b.w = b.keys[:0], b.w[:0]
+		a.freeH = append(a.freeH, b)
+	}
+	a.cond.Broadcast()
+	a.mu.Unlock()
+	for _, c := range closed {
+		a.sortAndMerge(c)
+	}
+	return nil
+}
+
+// appendStream appends a batch to the stream (under a.mu), closing every
+// chunk that fills up.
+func (a *Accumulator) appendStream(b *heldBatch, closed []*chunkBuf) []*chunkBuf {
+	keys, w := b.keys, b.w
+	a.entries += int64(len(keys))
+	for len(keys) > 0 {
+		if a.chunk == nil {
+			a.chunk = a.popChunk()
+		}
+		c := a.chunk
+		room := a.chunkCap - len(c.k0)
+		n := min(room, len(keys))
+		if cap(c.k0)-len(c.k0) < n {
+			c.grow(len(c.k0)+n, a.chunkCap)
+		}
+		c.k0 = append(c.k0, keys[:n]...)
+		c.w0 = append(c.w0, w[:n]...)
+		keys, w = keys[n:], w[n:]
+		if len(c.k0) == a.chunkCap {
+			c.sequence = a.nClosed
+			a.nClosed++
+			closed = append(closed, c)
+			a.chunk = nil
+		}
+	}
+	return closed
+}
+
+func (c *chunkBuf) grow(n, limit int) {
+	nc := max(2*cap(c.k0), n, 1<<12)
+	nc = min(nc, limit)
+	k := make([]uint64, len(c.k0), nc)
+	copy(k, c.k0)
+	w := make([]float64, len(c.w0), nc)
+	copy(w, c.w0)
+	c.k0, c.w0 = k, w
+}
+
+func (a *Accumulator) popChunk() *chunkBuf {
+	if k := len(a.freeC); k > 0 {
+		c := a.freeC[k-1]
+		a.freeC = a.freeC[:k-1]
+		return c
+	}
+	return new(chunkBuf)
+}
+
+// sortAndMerge sorts a closed chunk, sums its equal keys into a run and
+// merges the runs that are due into the store, in chunk order.
+func (a *Accumulator) sortAndMerge(c *chunkBuf) {
+	c.sortRun(a.keyBits)
+	a.mu.Lock()
+	a.runs[c.sequence] = c
+	if a.merging {
+		a.mu.Unlock()
+		return
+	}
+	a.merging = true
+	for {
+		r := a.runs[a.nextMerge]
+		if r == nil {
+			break
+		}
+		delete(a.runs, a.nextMerge)
+		a.nextMerge++
+		a.mu.Unlock()
+		a.mergeRun(r)
+		a.mu.Lock()
+		r.keys, r.sw, r.sw2 = nil, nil, nil
+		r.k0, r.w0 = r.k0[:0], r.w0[:0]
+		a.freeC = append(a.freeC, r)
+	}
+	a.merging = false
+	a.mu.Unlock()
+}
+
+// sortRun sorts the chunk stably by key and sums equal keys in stream
+// order into (keys, sw, sw2).
+func (c *chunkBuf) sortRun(keyBits uint) {
+	n := len(c.k0)
+	if cap(c.k1) < n {
+		c.k1 = make([]uint64, n, cap(c.k0))
+		c.w1 = make([]float64, n, cap(c.k0))
+	}
+	c.k1, c.w1 = c.k1[:n], c.w1[:n]
+	k, w := c.sorter.sort(c.k0, c.w0, c.k1, c.w1, keyBits)
+	// The squared sums go to the weight buffer the sort did not return.
+	sw2 := c.w1
+	if &w[0] == &c.w1[0] {
+		sw2 = c.w0
+	}
+	sw2 = sw2[:n]
+	m := 0
+	for i := 0; i < n; {
+		key := k[i]
+		s, s2 := w[i], w[i]*w[i]
+		i++
+		for i < n && k[i] == key {
+			wi := w[i]
+			s += wi
+			s2 += wi * wi
+			i++
+		}
+		k[m], w[m], sw2[m] = key, s, s2
+		m++
+	}
+	c.keys, c.sw, c.sw2 = k[:m], w[:m], sw2[:m]
+}
+
+// mergeRun merges a summed run into the store (only one goroutine at a
+// time, in chunk order). For every cell present in both, the run's sums
+// are added to the store's.
+func (a *Accumulator) mergeRun(r *chunkBuf) {
+	st := &a.store
+	if len(st.keys) == 0 {
+		// The first run becomes the store (copied: its buffers are reused).
+		st.keys = append(st.keys[:0], r.keys...)
+		st.sw = append(st.sw[:0], r.sw...)
+		st.sw2 = append(st.sw2[:0], r.sw2...)
+		return
+	}
+	need := len(st.keys) + len(r.keys)
+	sp := &a.spare
+	if cap(sp.keys) < need {
+		// Drop the old spare before allocating the new one.
+		sp.keys, sp.sw, sp.sw2 = nil, nil, nil
+		nc := need + need/8
+		sp.keys = make([]uint64, nc)
+		sp.sw = make([]float64, nc)
+		sp.sw2 = make([]float64, nc)
+	}
+	ok, osw, osw2 := sp.keys[:need], sp.sw[:need], sp.sw2[:need]
+	sk, ssw, ssw2 := st.keys, st.sw, st.sw2
+	ssw, ssw2 = ssw[:len(sk)], ssw2[:len(sk)]
+	rk, rsw, rsw2 := r.keys, r.sw, r.sw2
+	rsw, rsw2 = rsw[:len(rk)], rsw2[:len(rk)]
+	i, j, m := 0, 0, 0
+	for i < len(sk) && j < len(rk) {
+		a, b := sk[i], rk[j]
+		switch {
+		case a < b:
+			ok[m], osw[m], osw2[m] = a, ssw[i], ssw2[i]
+			i++
+		case b < a:
+			ok[m], osw[m], osw2[m] = b, rsw[j], rsw2[j]
+			j++
+		default:
+			ok[m], osw[m], osw2[m] = a, ssw[i]+rsw[j], ssw2[i]+rsw2[j]
+			i++
+			j++
+		}
+		m++
+	}
+	ns := copy(ok[m:], sk[i:])
+	copy(osw[m:m+ns], ssw[i:])
+	copy(osw2[m:m+ns], ssw2[i:])
+	m += ns
+	nr := copy(ok[m:], rk[j:])
+	copy(osw[m:m+nr], rsw[j:])
+	copy(osw2[m:m+nr], rsw2[j:])
+	m += nr
+	a.spare = cellStore{keys: st.keys[:0], sw: st.sw[:0], sw2: st.sw2[:0]}
+	a.store = cellStore{keys: ok[:m], sw: osw[:m], sw2: osw2[:m]}
+}
+
+// Matrix finishes the accumulation and returns the matrix of the sums of
+// weights (with the sums of squared weights as its SumW2) and a report.
+// Call it once, after every AddBatch call has returned; the accumulator
+// cannot be used afterwards.
+//
+// It returns an error if the accumulation failed earlier (the first
+// error), if a batch number is missing from the sequence, or if a sum
+// overflowed to infinity. Cells with a negative sum of weights are kept
+// and listed in the report.
+func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
+	if a.mode == modeSerial {
+		if err := a.flushSerial(); err != nil {
+			return nil, nil, err
+		}
+	}
+	a.mu.Lock()
+	if a.err != nil {
+		a.mu.Unlock()
+		return nil, nil, a.err
+	}
+	if a.done {
+		a.mu.Unlock()
+		return nil, nil, errors.New("sparse: Accumulator.Matrix called twice")
+	}
+	a.done = true
+	a.cond.Broadcast()
+	if len(a.held) > 0 {
+		err := fmt.Errorf("sparse: batch %d was never added (batches up to %d were); every batch number from 0 must be added once", a.next, a.heldMax-1)
+		a.err = err
+		a.mu.Unlock()
+		return nil, nil, err
+	}
+	if a.merging || len(a.runs) > 0 {
+		a.mu.Unlock()
+		return nil, nil, errors.New("sparse: Accumulator.Matrix called while AddBatch calls are running")
+	}
+	var last *chunkBuf
+	if a.chunk != nil && len(a.chunk.k0) > 0 {
+		last = a.chunk
+		last.sequence = a.nClosed
+		a.nClosed++
+	}
+	a.chunk = nil
+	entries := a.entries
+	a.mu.Unlock()
+	if last != nil {
+		a.sortAndMerge(last)
+	}
+	// Release every buffer but the store.
+	a.freeC, a.freeH, a.spare, a.ser = nil, nil, cellStore{}, heldBatch{}
+	a.held, a.runs = nil, nil
+
+	st := a.store
+	a.store = cellStore{}
+	n := len(st.keys)
+	colPtr := make([]int, a.cols+1)
+	rowIdx := make([]int, n)
+	rowMask := uint64(1)<<a.rowBits - 1
+	rep := &Report{Entries: entries, Cells: n}
+	sw := st.sw[:n:n]
+	sw2 := st.sw2[:n:n]
+	for k, key := range st.keys {
+		r, c := int(key&rowMask), int(key>>a.rowBits)
+		rowIdx[k] = r
+		colPtr[c+1]++
+		s := sw[k]
+		switch {
+		case math.IsInf(s, 0) || math.IsInf(sw2[k], 0):
+			return nil, nil, fmt.Errorf("sparse: the sum of weights of cell (reco %d, truth %d) overflows", r, c)
+		case s < 0:
+			rep.NegativeCount++
+			if len(rep.Negative) < MaxReportedCells {
+				rep.Negative = append(rep.Negative, Cell{Row: r, Col: c, SumW: s, SumW2: sw2[k]})
+			}
+		case s == 0:
+			rep.ZeroCount++
+		}
+	}
+	for c := 0; c < a.cols; c++ {
+		colPtr[c+1] += colPtr[c]
+	}
+	st.keys = nil
+	m, err := NewMatrix(a.rows, a.cols, colPtr, rowIdx, sw, sw2)
+	if err != nil {
+		return nil, nil, fmt.Errorf("sparse: internal error building the accumulated matrix: %w", err)
+	}
+	return m, rep, nil
+}

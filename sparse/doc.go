@@ -1,0 +1,43 @@
+// Package sparse holds response matrices in compressed-column form and
+// the kernels that iterative unfolding needs.
+//
+// # Storage
+//
+// A Matrix is a rows×cols matrix (rows are reco bins, columns are truth
+// bins) stored once, as a github.com/james-bowman/sparse CSC whose arrays
+// this package builds itself: exactly deduplicated, with strictly
+// increasing row indices in every column. Beside each value it may hold
+// the sum of squared weights that produced it. This package never relies
+// on james-bowman's own construction or products: its COO to CSC
+// conversion leaves duplicates of the first entry of a column unmerged,
+// its MulVecTo adds into the destination instead of overwriting it, and
+// gonum's VecDense.MulVec falls back to At per element when given one of
+// its matrices. The kernels of this package work on the raw arrays.
+//
+// # Accumulation
+//
+// An Accumulator sums weighted (row, column) entries from many goroutines
+// into distinct cells, in memory that grows with the number of distinct
+// cells, and returns the Matrix. Its result depends only on the ordered
+// stream of entries (batches concatenated in sequence order), never on
+// the number of goroutines or their scheduling.
+//
+// # Kernels
+//
+// Fold (dst = A x), BackProject (dst = Aᵀ y), the fused Sweep (one pass
+// that gathers Aᵀ y column by column, lets the caller update the column's
+// unknown and scatters the column into the next fold), ColSums, RowSums
+// and ScaleCols write into caller-owned slices and do not allocate after
+// warm-up. Large matrices are processed in parallel over a fixed
+// partition of the columns decided from the matrix structure alone; the
+// partial sums are reduced in a fixed order, so every kernel returns the
+// same bits whatever GOMAXPROCS is.
+//
+// # Conventions
+//
+// Destination arguments come first. Dimension mismatches and aliasing
+// violations are programmer errors and panic. Problems with data (an
+// index out of range in an accumulated entry, a corrupted file, a matrix
+// too large to make dense) are returned as errors that say what and
+// where.
+package sparse
