@@ -1,0 +1,254 @@
+package unfold
+
+import (
+	"context"
+	"runtime"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// jacobian carries the dense Jacobian J(k) = dμ(k)/d(n, b) along the
+// iteration. Its columns are the data bins 0..nr-1 and, when the
+// background variance is propagated in the model, the background bins
+// nr..2nr-1. The recursion (see the package documentation) is
+//
+//	J(k+1) = diag(g/eps) J(k) + diag(μ/eps) [S − Rᵀ diag(n/ν²) R J(k)],
+//
+// with S = [Rᵀ diag(1/ν) | −Rᵀ diag(n/ν²)], and J(0) = p/Σ(eps p) [1ᵀ | −1ᵀ].
+type jacobian struct {
+	m    *model
+	cols int
+	j, w []float64 // two row-major nt×cols buffers
+
+	// structure of A = Rᵀ diag(n/ν²) R (symmetric, nt×nt, CSR)
+	aPtr []int
+	aIdx []int32
+	aVal []float64
+	loc  []int32 // scratch: position of column l in the current row, -1 otherwise
+
+	// rows of R: for reco bin i, the truth bins and values
+	rPtr []int
+	rCol []int32
+	rVal []float64
+}
+
+const jacobianBlock = 512 // columns per block of the dense update
+
+// denseBytes is the memory estimate of the dense Jacobian (two buffers)
+// plus, when full is set, the covariance.
+func denseBytes(nt, cols int, full bool) int64 {
+	b := 16 * int64(nt) * int64(cols)
+	if full {
+		b += 8 * int64(nt) * int64(nt)
+	}
+	return b
+}
+
+func jacobianCols(m *model) int {
+	if m.varB != nil {
+		return 2 * m.nr
+	}
+	return m.nr
+}
+
+func newJacobian(m *model) *jacobian {
+	nt, nr := m.nt, m.nr
+	jc := &jacobian{m: m, cols: jacobianCols(m)}
+	jc.j = make([]float64, nt*jc.cols)
+	jc.w = make([]float64, nt*jc.cols)
+
+	// Rows of R.
+	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	jc.rPtr = make([]int, nr+1)
+	for _, i := range rowIdx {
+		jc.rPtr[i+1]++
+	}
+	for i := 0; i < nr; i++ {
+		jc.rPtr[i+1] += jc.rPtr[i]
+	}
+	jc.rCol = make([]int32, len(rowIdx))
+	jc.rVal = make([]float64, len(rowIdx))
+	fill := append([]int(nil), jc.rPtr[:nr]...)
+	for c := 0; c < nt; c++ {
+		for k := colPtr[c]; k < colPtr[c+1]; k++ {
+			i := rowIdx[k]
+			jc.rCol[fill[i]] = int32(c)
+			jc.rVal[fill[i]] = val[k]
+			fill[i]++
+		}
+	}
+
+	// Pattern of A: l is in row j when columns j and l share a row of R.
+	jc.loc = make([]int32, nt)
+	for i := range jc.loc {
+		jc.loc[i] = -1
+	}
+	jc.aPtr = make([]int, nt+1)
+	var row []int32
+	for c := 0; c < nt; c++ {
+		row = row[:0]
+		for k := colPtr[c]; k < colPtr[c+1]; k++ {
+			i := rowIdx[k]
+			for q := jc.rPtr[i]; q < jc.rPtr[i+1]; q++ {
+				l := jc.rCol[q]
+				if jc.loc[l] < 0 {
+					jc.loc[l] = 0
+					row = append(row, l)
+				}
+			}
+		}
+		sortInt32(row)
+		for _, l := range row {
+			jc.loc[l] = -1
+		}
+		jc.aIdx = append(jc.aIdx, row...)
+		jc.aPtr[c+1] = len(jc.aIdx)
+	}
+	jc.aVal = make([]float64, len(jc.aIdx))
+	return jc
+}
+
+func sortInt32(s []int32) {
+	// insertion sort: rows of A are short
+	for i := 1; i < len(s); i++ {
+		for k := i; k > 0 && s[k] < s[k-1]; k-- {
+			s[k], s[k-1] = s[k-1], s[k]
+		}
+	}
+}
+
+func (jc *jacobian) init(ctx context.Context, it *iterator) error {
+	m := jc.m
+	for r := 0; r < m.nt; r++ {
+		c := m.prior[r] / m.sumEP
+		row := jc.j[r*jc.cols : (r+1)*jc.cols]
+		for q := 0; q < m.nr; q++ {
+			row[q] = c
+		}
+		for q := m.nr; q < jc.cols; q++ {
+			row[q] = -c
+		}
+	}
+	return nil
+}
+
+// values computes A = Rᵀ diag(n/ν²) R for the current ν.
+func (jc *jacobian) values(n, nu []float64) {
+	m := jc.m
+	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	for c := 0; c < m.nt; c++ {
+		lo, hi := jc.aPtr[c], jc.aPtr[c+1]
+		for q := lo; q < hi; q++ {
+			jc.loc[jc.aIdx[q]] = int32(q)
+			jc.aVal[q] = 0
+		}
+		for k := colPtr[c]; k < colPtr[c+1]; k++ {
+			i := rowIdx[k]
+			if nu[i] <= 0 {
+				continue
+			}
+			w := val[k] * n[i] / (nu[i] * nu[i])
+			for q := jc.rPtr[i]; q < jc.rPtr[i+1]; q++ {
+				jc.aVal[jc.loc[jc.rCol[q]]] += w * jc.rVal[q]
+			}
+		}
+		for q := lo; q < hi; q++ {
+			jc.loc[jc.aIdx[q]] = -1
+		}
+	}
+}
+
+func (jc *jacobian) step(ctx context.Context, it *iterator) error {
+	m := jc.m
+	jc.values(it.n, it.nu)
+	nb := (jc.cols + jacobianBlock - 1) / jacobianBlock
+	J, W := jc.j, jc.w
+	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	n, nu, mu, g, inv := it.n, it.nu, it.mu, it.g, m.invEps
+	cols := jc.cols
+	forEach(nb, runtime.GOMAXPROCS(0), func(b int) {
+		if ctx.Err() != nil {
+			return
+		}
+		c0 := b * jacobianBlock
+		c1 := min(cols, c0+jacobianBlock)
+		for r := 0; r < m.nt; r++ {
+			dst := W[r*cols+c0 : r*cols+c1]
+			if !m.det[r] || mu[r] == 0 {
+				clear(dst)
+				continue
+			}
+			f := g[r] * inv[r]
+			src := J[r*cols+c0 : r*cols+c1]
+			for q := range dst {
+				dst[q] = f * src[q]
+			}
+			h := mu[r] * inv[r]
+			for q := jc.aPtr[r]; q < jc.aPtr[r+1]; q++ {
+				l := int(jc.aIdx[q])
+				axpy(dst, -h*jc.aVal[q], J[l*cols+c0:l*cols+c1])
+			}
+			for k := colPtr[r]; k < colPtr[r+1]; k++ {
+				i := rowIdx[k]
+				if nu[i] <= 0 {
+					continue
+				}
+				if i >= c0 && i < c1 {
+					dst[i-c0] += h * val[k] / nu[i]
+				}
+				if ib := i + m.nr; cols > m.nr && ib >= c0 && ib < c1 {
+					dst[ib-c0] -= h * val[k] * n[i] / (nu[i] * nu[i])
+				}
+			}
+		}
+	})
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	if it.sm != nil {
+		// Smooth the rows of W along each axis, ping-ponging with J.
+		for a := 0; a < MaxAxes; a++ {
+			it.sm.applyAxisRows(J, W, cols, a)
+			J, W = W, J
+		}
+	}
+	jc.j, jc.w = W, J
+	return nil
+}
+
+// variances returns diag(J diag(v) Jᵀ) for the variances v of the
+// columns.
+func (jc *jacobian) variances(v []float64) []float64 {
+	out := make([]float64, jc.m.nt)
+	forEach(jc.m.nt, runtime.GOMAXPROCS(0), func(r int) {
+		row := jc.j[r*jc.cols : (r+1)*jc.cols]
+		var s float64
+		for q, x := range row {
+			s += x * x * v[q]
+		}
+		out[r] = s
+	})
+	return out
+}
+
+// covariance returns J diag(v) Jᵀ, computed with a general matrix
+// multiply (the scaled copy goes into the spare buffer).
+func (jc *jacobian) covariance(ctx context.Context, v []float64) (*mat.SymDense, error) {
+	nt, cols := jc.m.nt, jc.cols
+	for r := 0; r < nt; r++ {
+		src := jc.j[r*cols : (r+1)*cols]
+		dst := jc.w[r*cols : (r+1)*cols]
+		for q, x := range src {
+			dst[q] = x * v[q]
+		}
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	jd := mat.NewDense(nt, cols, jc.w)
+	j := mat.NewDense(nt, cols, jc.j)
+	out := mat.NewDense(nt, nt, nil)
+	out.Mul(jd, j.T())
+	jc.w = nil // the scaled copy is no longer needed
+	return mat.NewSymDense(nt, out.RawMatrix().Data), nil
+}

@@ -1,0 +1,198 @@
+package unfold
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"runtime"
+)
+
+// Stream offsets of the random generators: probe s uses the PCG stream
+// probeStream+s, toy t the stream toyStream+t, both seeded with
+// Settings.Seed.
+const (
+	probeStream uint64 = 1 << 32
+	toyStream   uint64 = 2 << 32
+)
+
+// probes carries random Jacobian-vector products along the iteration:
+// for probe s, the perturbation dn_i = ±σ(n_i), db_i = ±σ(b_i) (random
+// signs, Rademacher) is propagated through the same linearised recursion
+// as the dense Jacobian, one fold and one back-projection per probe and
+// iteration (a fused Sweep). E[(dμ_j)²] is the variance of μ_j.
+type probes struct {
+	m     *model
+	first int // index of the first probe of this batch
+	count int
+	seed  uint64
+	sdN   []float64 // σ(n_i)
+	sdB   []float64 // σ(b_i), nil when not propagated
+	dmu   [][]float64
+	tfold [][]float64 // R dμ
+	signN [][]uint64
+	signB [][]uint64
+	work  []probeWork
+}
+
+type probeWork struct {
+	y, spare, gt []float64
+	update       func(j int, g float64) float64
+	dmu          []float64
+	it           *iterator
+}
+
+func perProbeBytes(m *model) int64 {
+	b := 8*int64(m.nt) + 8*int64(m.nr) + int64(m.nr)/8 + 8
+	if m.varB != nil {
+		b += int64(m.nr)/8 + 8
+	}
+	return b
+}
+
+func newProbes(m *model, first, count int, seed uint64) *probes {
+	pr := &probes{m: m, first: first, count: count, seed: seed}
+	pr.sdN = make([]float64, m.nr)
+	for i, v := range m.varN {
+		pr.sdN[i] = math.Sqrt(v)
+	}
+	if m.varB != nil {
+		pr.sdB = make([]float64, m.nr)
+		for i, v := range m.varB {
+			pr.sdB[i] = math.Sqrt(v)
+		}
+	}
+	words := (m.nr + 63) / 64
+	for s := 0; s < count; s++ {
+		rng := rand.New(rand.NewPCG(seed, probeStream+uint64(first+s)))
+		bits := make([]uint64, words)
+		for w := range bits {
+			bits[w] = rng.Uint64()
+		}
+		pr.signN = append(pr.signN, bits)
+		if pr.sdB != nil {
+			bits := make([]uint64, words)
+			for w := range bits {
+				bits[w] = rng.Uint64()
+			}
+			pr.signB = append(pr.signB, bits)
+		}
+		pr.dmu = append(pr.dmu, make([]float64, m.nt))
+		pr.tfold = append(pr.tfold, make([]float64, m.nr))
+	}
+	workers := min(runtime.GOMAXPROCS(0), count)
+	pr.work = make([]probeWork, workers)
+	for w := range pr.work {
+		pw := &pr.work[w]
+		pw.y = make([]float64, m.nr)
+		pw.spare = make([]float64, m.nr)
+		pw.gt = make([]float64, m.nt)
+		pw.update = func(j int, gt float64) float64 {
+			it := pw.it
+			v := (it.g[j]*pw.dmu[j] + it.mu[j]*gt) * it.m.invEps[j]
+			pw.dmu[j] = v
+			return v
+		}
+	}
+	return pr
+}
+
+func sign(bits []uint64, i int) float64 {
+	if bits[i>>6]>>(uint(i)&63)&1 != 0 {
+		return 1
+	}
+	return -1
+}
+
+func (pr *probes) init(ctx context.Context, it *iterator) error {
+	m := pr.m
+	for s := 0; s < pr.count; s++ {
+		var d float64
+		for i, sd := range pr.sdN {
+			d += sign(pr.signN[s], i) * sd
+		}
+		for i, sd := range pr.sdB {
+			d -= sign(pr.signB[s], i) * sd
+		}
+		c := d / m.sumEP
+		for j, p := range m.prior {
+			pr.dmu[s][j] = c * p
+		}
+		for i, v := range it.rp {
+			pr.tfold[s][i] = c * v
+		}
+	}
+	return nil
+}
+
+func (pr *probes) step(ctx context.Context, it *iterator) error {
+	// Probes run on separate goroutines; each Sweep is itself
+	// deterministic, so the bits do not depend on the scheduling.
+	work := make(chan int, pr.count)
+	for s := 0; s < pr.count; s++ {
+		work <- s
+	}
+	close(work)
+	done := make(chan struct{}, len(pr.work))
+	for w := range pr.work {
+		go func(pw *probeWork) {
+			defer func() { done <- struct{}{} }()
+			pw.it = it
+			for s := range work {
+				if ctx.Err() != nil {
+					return
+				}
+				pr.one(pw, it, s)
+			}
+		}(&pr.work[w])
+	}
+	for range pr.work {
+		<-done
+	}
+	return ctx.Err()
+}
+
+// one advances probe s by one iteration.
+func (pr *probes) one(pw *probeWork, it *iterator, s int) {
+	m := pr.m
+	n, nu, tf, y := it.n, it.nu, pr.tfold[s], pw.y
+	sn := pr.signN[s]
+	var sb []uint64
+	if pr.sdB != nil {
+		sb = pr.signB[s]
+	}
+	for i := range y {
+		v := nu[i]
+		if v <= 0 {
+			y[i] = 0
+			continue
+		}
+		dnu := tf[i]
+		if sb != nil {
+			dnu += sign(sb, i) * pr.sdB[i]
+		}
+		y[i] = (sign(sn, i)*pr.sdN[i] - n[i]*dnu/v) / v
+	}
+	pw.dmu = pr.dmu[s]
+	next := pw.spare
+	if it.sm == nil {
+		m.r.Sweep(next, y, pw.update)
+	} else {
+		m.r.BackProject(pw.gt, y)
+		for j, gt := range pw.gt {
+			pw.dmu[j] = (it.g[j]*pw.dmu[j] + it.mu[j]*gt) * m.invEps[j]
+		}
+		// it.tmp is shared; use a private scratch
+		it.sm.apply(pw.dmu, pw.gt)
+		m.r.Fold(next, pw.dmu)
+	}
+	pr.tfold[s], pw.spare = next, tf
+}
+
+// accumulate adds Σ_s dμ_s² of this batch to sum, in probe order.
+func (pr *probes) accumulate(sum []float64) {
+	for s := 0; s < pr.count; s++ {
+		for j, x := range pr.dmu[s] {
+			sum[j] += x * x
+		}
+	}
+}

@@ -1,0 +1,223 @@
+package unfold
+
+import (
+	"math"
+
+	"github.com/desmear/desmear/sparse"
+)
+
+// Problem holds the inputs of an unfolding. Bins are global indices:
+// reco bins index the rows of Migrations and the data, truth bins its
+// columns and the generated counts.
+type Problem struct {
+	// Migrations A_ij is the weighted simulated count generated in truth
+	// bin j and reconstructed in reco bin i (rows: reco, columns: truth).
+	Migrations *sparse.Matrix
+	// Generated G_j is the weighted simulated count generated in truth
+	// bin j, whether reconstructed or not. Σ_i A_ij ≤ G_j.
+	Generated []float64
+
+	// Data n_i is the observed count in reco bin i.
+	Data []float64
+	// DataVariance is the variance of n_i; nil means Poisson (n_i), as
+	// for unweighted data.
+	DataVariance []float64
+
+	// Background b_i is the expected background (fakes, other
+	// processes) in reco bin i; nil means none.
+	Background []float64
+	// BackgroundVariance is the variance of b_i; nil means the
+	// background is known exactly.
+	BackgroundVariance []float64
+
+	// Prior p_j is the starting shape; nil means Generated. Only its
+	// shape matters, it is scaled to the data.
+	Prior []float64
+}
+
+// model is a validated problem ready for the iteration.
+type model struct {
+	nt, nr int
+	r      *sparse.Matrix // R_ij = A_ij / G_j
+	eps    []float64      // Σ_i R_ij
+	invEps []float64      // 1/eps_j, 0 where not determined
+	det    []bool         // eps_j > 0
+	n      []float64      // data used by the iteration (n − b clipped in Subtract mode)
+	b      []float64      // background inside ν (nil in Subtract mode or without background)
+	varN   []float64      // variance of n as used (in Subtract mode var n + var b, 0 where clipped)
+	varB   []float64      // variance of b inside ν; nil when not propagated
+	prior  []float64      // prior, 0 where not determined
+	sumEP  float64        // Σ_j eps_j p_j
+	clip   []int          // Subtract mode: reco bins where n − b < 0
+}
+
+// relative tolerance for Σ_i A_ij ≤ G_j.
+const efficiencyTolerance = 1e-9
+
+func checkVector(field string, v []float64, n int, reco bool, optional bool) error {
+	if v == nil && optional {
+		return nil
+	}
+	if len(v) != n {
+		kind := "truth"
+		if reco {
+			kind = "reco"
+		}
+		return inputErr(field, -1, -1, "has %d entries, want one per %s bin (%d)", len(v), kind, n)
+	}
+	for i, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) || x < 0 {
+			if reco {
+				return inputErr(field, i, -1, "value %v is not a finite number ≥ 0", x)
+			}
+			return inputErr(field, -1, i, "value %v is not a finite number ≥ 0", x)
+		}
+	}
+	return nil
+}
+
+func newModel(p *Problem, mode BackgroundMode) (*model, error) {
+	if p == nil || p.Migrations == nil {
+		return nil, inputErr("Migrations", -1, -1, "no response given")
+	}
+	a := p.Migrations
+	nr, nt := a.Dims()
+	if nr == 0 || nt == 0 || a.NNZ() == 0 {
+		return nil, inputErr("Migrations", -1, -1, "the response is empty (%d reco × %d truth bins, %d entries)", nr, nt, a.NNZ())
+	}
+	if err := checkVector("Generated", p.Generated, nt, false, false); err != nil {
+		return nil, err
+	}
+	if err := checkVector("Data", p.Data, nr, true, false); err != nil {
+		return nil, err
+	}
+	for _, c := range []struct {
+		f    string
+		v    []float64
+		reco bool
+	}{
+		{"DataVariance", p.DataVariance, true},
+		{"Background", p.Background, true},
+		{"BackgroundVariance", p.BackgroundVariance, true},
+		{"Prior", p.Prior, false},
+	} {
+		n := nr
+		if !c.reco {
+			n = nt
+		}
+		if err := checkVector(c.f, c.v, n, c.reco, true); err != nil {
+			return nil, err
+		}
+	}
+	if p.BackgroundVariance != nil && p.Background == nil {
+		return nil, inputErr("BackgroundVariance", -1, -1, "given without a background")
+	}
+
+	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()
+	rv := make([]float64, len(val))
+	m := &model{nt: nt, nr: nr, eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
+	for j := 0; j < nt; j++ {
+		g := p.Generated[j]
+		var sum float64
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			v := val[k]
+			if v < 0 {
+				return nil, inputErr("Migrations", rowIdx[k], j, "negative migration count %v (the iteration needs a non-negative response; merge or clip bins)", v)
+			}
+			sum += v
+		}
+		if sum == 0 {
+			continue // no migrations: not determined
+		}
+		if g == 0 {
+			return nil, inputErr("Generated", -1, j, "truth bin has migrations (Σ = %v) but no generated count", sum)
+		}
+		if sum > g*(1+efficiencyTolerance) {
+			return nil, inputErr("Generated", -1, j, "generated count %v is below the reconstructed count %v (efficiency > 1)", g, sum)
+		}
+		inv := 1 / g
+		var e float64
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			rv[k] = val[k] * inv
+			e += rv[k]
+		}
+		m.eps[j] = e
+		m.invEps[j] = 1 / e
+		m.det[j] = true
+	}
+	r, err := sparse.NewMatrix(nr, nt, colPtr, rowIdx, rv, nil)
+	if err != nil {
+		return nil, err // cannot happen: same structure as a valid matrix
+	}
+	m.r = r
+
+	// reach[i]: some determined truth bin can reach reco bin i.
+	reach := make([]bool, nr)
+	for k, i := range rowIdx {
+		if rv[k] > 0 {
+			reach[i] = true
+		}
+	}
+
+	n := p.Data
+	varN := p.DataVariance
+	if varN == nil {
+		varN = n
+	}
+	switch {
+	case mode == Subtract && p.Background != nil:
+		m.n = make([]float64, nr)
+		m.varN = make([]float64, nr)
+		for i := range n {
+			d := n[i] - p.Background[i]
+			if d < 0 {
+				m.clip = append(m.clip, i)
+				continue
+			}
+			m.n[i] = d
+			m.varN[i] = varN[i]
+			if p.BackgroundVariance != nil {
+				m.varN[i] += p.BackgroundVariance[i]
+			}
+		}
+	default:
+		m.n = n
+		m.varN = varN
+		m.b = p.Background
+		m.varB = p.BackgroundVariance
+	}
+	for i, x := range m.n {
+		if x > 0 && !reach[i] && (m.b == nil || m.b[i] == 0) {
+			return nil, inputErr("Data", i, -1, "count %v in a reco bin that no truth bin reaches and no background explains", x)
+		}
+	}
+
+	prior := p.Prior
+	if prior == nil {
+		prior = p.Generated
+	}
+	m.prior = make([]float64, nt)
+	for j, d := range m.det {
+		if d {
+			m.prior[j] = prior[j]
+			m.sumEP += m.eps[j] * prior[j]
+		}
+	}
+	if !(m.sumEP > 0) {
+		return nil, inputErr("Prior", -1, -1, "the prior is zero in every truth bin the response can measure")
+	}
+	return m, nil
+}
+
+// scale returns Σ_i (n_i − b_i) / Σ_j eps_j p_j, the factor mapping the
+// prior to μ(0), for data n (and the model's background).
+func (m *model) scale(n []float64) float64 {
+	var s float64
+	for _, x := range n {
+		s += x
+	}
+	for _, x := range m.b {
+		s -= x
+	}
+	return s / m.sumEP
+}

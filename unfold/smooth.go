@@ -1,0 +1,142 @@
+package unfold
+
+import "math"
+
+// MaxAxes is the largest number of axes a truth region may have for
+// smoothing: Smoothing visits axes 0..MaxAxes-1 of every bin.
+const MaxAxes = 3
+
+// Neighbourhood describes the neighbours of truth bins along the axes of
+// their regions. *binning.Scheme satisfies it.
+//
+// Len is the number of truth bins. Bins 0..InRange()-1 are in-range
+// bins; bins from InRange() on are flow bins and are never smoothed.
+// Neighbours returns the global indices of the previous and next bin of
+// g along axis of g's region, or -1 where there is none (at the edge of
+// the region, for flow bins, and for axis numbers the region does not
+// have). Regions are never neighbours of each other.
+type Neighbourhood interface {
+	Len() int
+	InRange() int
+	Neighbours(g, axis int) (prev, next int)
+}
+
+// Smoothing smooths the estimate after every iteration, before it is
+// used as the prior of the next one, as in the EMS algorithm of
+// B. W. Silverman, M. C. Jones, J. D. Wilson, D. W. Nychka, JRSS B 52
+// (1990) 271 (an EM step followed by a linear smoothing step).
+//
+// The smoothing is the binomial (1,2,1)/4 kernel applied along each axis
+// in turn, in mass-conserving form: every in-range, determined truth bin
+// keeps 1/2 of its content and gives 1/4 to each neighbour along the
+// axis; where a neighbour is missing (edge of the region, flow bin, bin
+// not determined) the bin keeps that quarter. Along a uniform axis with
+// reflecting ends this is the (1,2,1)/4 filter; it preserves the total
+// Σ_j μ_j exactly (up to rounding) and never moves content across
+// regions or into flow bins. Strength w blends the result with the
+// unsmoothed estimate, μ ← (1−w) μ + w S μ.
+type Smoothing struct {
+	// Neighbours gives the truth-bin neighbourhood (required).
+	Neighbours Neighbourhood
+	// Strength is w in (0, 1]; zero means 1.
+	Strength float64
+}
+
+func (s *Smoothing) check() error {
+	switch {
+	case s.Neighbours == nil:
+		return &SettingsError{"Smoothing", "no neighbourhood given"}
+	case s.Strength < 0 || s.Strength > 1 || math.IsNaN(s.Strength):
+		return &SettingsError{"Smoothing", "strength must be in (0, 1]"}
+	case s.Neighbours.InRange() < 0 || s.Neighbours.InRange() > s.Neighbours.Len():
+		return &SettingsError{"Smoothing", "neighbourhood reports more in-range bins than bins"}
+	}
+	return nil
+}
+
+// smoother is the smoothing operator bound to a problem: for every
+// in-range determined bin and axis, the neighbours that take part.
+type smoother struct {
+	n   int
+	w   float64
+	nbr [MaxAxes][][2]int32 // nbr[axis][j] = (prev, next), -1 when absent
+}
+
+func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
+	nb := s.Neighbours
+	if nb.Len() != len(det) {
+		return nil, &SettingsError{"Smoothing", "neighbourhood has a different number of bins than the truth binning"}
+	}
+	in := nb.InRange()
+	sm := &smoother{n: len(det), w: s.Strength}
+	if sm.w == 0 {
+		sm.w = 1
+	}
+	ok := func(g int) bool { return g >= 0 && g < in && det[g] }
+	for a := 0; a < MaxAxes; a++ {
+		t := make([][2]int32, len(det))
+		for j := range t {
+			t[j] = [2]int32{-1, -1}
+			if !ok(j) {
+				continue
+			}
+			p, q := nb.Neighbours(j, a)
+			if p >= len(det) || q >= len(det) {
+				return nil, &SettingsError{"Smoothing", "neighbourhood returned a bin beyond its length"}
+			}
+			if ok(p) {
+				t[j][0] = int32(p)
+			}
+			if ok(q) {
+				t[j][1] = int32(q)
+			}
+		}
+		sm.nbr[a] = t
+	}
+	return sm, nil
+}
+
+// apply smooths x in place along every axis; tmp has the length of x.
+// It is linear in x, so the same call smooths tangent vectors.
+func (sm *smoother) apply(x, tmp []float64) {
+	for a := 0; a < MaxAxes; a++ {
+		t := sm.nbr[a]
+		copy(tmp, x)
+		for j := range x {
+			x[j] *= 1 - sm.w/2
+		}
+		for j, pq := range t {
+			c := tmp[j] * sm.w / 4
+			for _, g := range pq {
+				if g >= 0 {
+					x[g] += c
+				} else {
+					x[j] += c
+				}
+			}
+		}
+	}
+}
+
+// applyAxisRows writes into dst the smoothing along axis a of the rows
+// of the row-major n×m matrix src (the Jacobian's columns are tangent
+// vectors, so its rows combine as the entries of x in apply). dst and
+// src must not overlap.
+func (sm *smoother) applyAxisRows(dst, src []float64, m, a int) {
+	t := sm.nbr[a]
+	f := 1 - sm.w/2
+	for i, v := range src {
+		dst[i] = f * v
+	}
+	c := sm.w / 4
+	for j, pq := range t {
+		s := src[j*m : (j+1)*m]
+		for _, g := range pq {
+			d := j
+			if g >= 0 {
+				d = int(g)
+			}
+			axpy(dst[d*m:(d+1)*m], c, s)
+		}
+	}
+}

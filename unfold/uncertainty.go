@@ -1,0 +1,138 @@
+package unfold
+
+import (
+	"context"
+	"fmt"
+	"math"
+)
+
+// plan is the uncertainty computation chosen for a problem.
+type plan struct {
+	m        *model
+	rs       *resolved
+	method   CovarianceMode
+	diag     DiagonalMethod // resolved: DiagonalExact, DiagonalProbes or DiagonalToys
+	weighted bool
+	batch    int // probes per batch
+}
+
+func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
+	pl := &plan{m: m, rs: rs, method: rs.Covariance, weighted: weighted}
+	cols := jacobianCols(m)
+	switch rs.Covariance {
+	case NoCovariance:
+		return pl, nil
+	case Full:
+		if b := denseBytes(m.nt, cols, true); b > rs.MemoryLimit {
+			return nil, &TooLargeError{
+				What: "the full covariance (dense Jacobian and covariance matrix)", TruthBins: m.nt, Columns: cols,
+				Bytes: b, Limit: rs.MemoryLimit,
+				Alternative: fmt.Sprintf("ask for per-bin variances only (diagonal covariance, %d random probes by default), or raise the memory limit", DefaultProbes),
+			}
+		}
+		return pl, nil
+	}
+	pl.diag = rs.DiagonalMethod
+	fits := denseBytes(m.nt, cols, false) <= rs.MemoryLimit
+	switch pl.diag {
+	case DiagonalAuto:
+		if fits {
+			pl.diag = DiagonalExact
+		} else {
+			pl.diag = DiagonalProbes
+		}
+	case DiagonalExact:
+		if !fits {
+			return nil, &TooLargeError{
+				What: "the exact per-bin variances (dense Jacobian)", TruthBins: m.nt, Columns: cols,
+				Bytes: denseBytes(m.nt, cols, false), Limit: rs.MemoryLimit,
+				Alternative: "use random probes or Poisson toys for the per-bin variances, or raise the memory limit",
+			}
+		}
+	}
+	if pl.diag == DiagonalProbes {
+		per := perProbeBytes(m)
+		pl.batch = int(min(int64(rs.Probes), max(1, rs.MemoryLimit/2/per)))
+	}
+	return pl, nil
+}
+
+// first returns the tangents carried along the nominal iteration.
+func (pl *plan) first(ctx context.Context) (tangents, error) {
+	switch {
+	case pl.method == Full || pl.method == Diagonal && pl.diag == DiagonalExact:
+		return newJacobian(pl.m), nil
+	case pl.method == Diagonal && pl.diag == DiagonalProbes:
+		return newProbes(pl.m, 0, pl.batch, pl.rs.Seed), nil
+	}
+	return nil, nil
+}
+
+// columnVariances returns the variances of the Jacobian's columns.
+func (pl *plan) columnVariances() []float64 {
+	v := append([]float64(nil), pl.m.varN...)
+	if pl.m.varB != nil {
+		v = append(v, pl.m.varB...)
+	}
+	return v
+}
+
+// finish completes the uncertainty computation into res.
+func (pl *plan) finish(ctx context.Context, it *iterator, res *Result, tan tangents) error {
+	m := pl.m
+	var variance []float64
+	switch {
+	case pl.method == NoCovariance:
+		return nil
+	case pl.method == Full:
+		jc := tan.(*jacobian)
+		cov, err := jc.covariance(ctx, pl.columnVariances())
+		if err != nil {
+			return err
+		}
+		res.Covariance = cov
+		variance = make([]float64, m.nt)
+		for j := range variance {
+			variance[j] = cov.At(j, j)
+		}
+		res.UncertaintyMethod = "linearised"
+	case pl.diag == DiagonalExact:
+		variance = tan.(*jacobian).variances(pl.columnVariances())
+		res.UncertaintyMethod = "linearised"
+	case pl.diag == DiagonalProbes:
+		sum := make([]float64, m.nt)
+		pr := tan.(*probes)
+		pr.accumulate(sum)
+		fixed := &resolved{fixed: true, maxIter: res.Iterations}
+		for first := pl.batch; first < pl.rs.Probes; first += pl.batch {
+			pr = newProbes(m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
+			if _, err := newIterator(m, it.sm).run(ctx, m.n, fixed, pr); err != nil {
+				return err
+			}
+			pr.accumulate(sum)
+		}
+		for j := range sum {
+			sum[j] /= float64(pl.rs.Probes)
+		}
+		variance = sum
+		res.UncertaintyMethod = "linearised-probes"
+		res.Samples = pl.rs.Probes
+		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
+	case pl.diag == DiagonalToys:
+		v, err := toyVariances(ctx, m, it.sm, pl.weighted, res.Iterations, pl.rs.Toys, pl.rs.Seed)
+		if err != nil {
+			return err
+		}
+		variance = v
+		res.UncertaintyMethod = "poisson-toys"
+		res.Samples = pl.rs.Toys
+		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))
+	}
+	res.Uncertainty = make([]float64, m.nt)
+	for j, v := range variance {
+		if m.det[j] && v > 0 {
+			res.Uncertainty[j] = math.Sqrt(v)
+		}
+	}
+	return nil
+}

@@ -1,0 +1,288 @@
+package unfold
+
+import (
+	"context"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// Step records one iteration. Iteration 0 is the start, μ(0).
+type Step struct {
+	Iteration int
+	// Chi2 is the χ² between μ(k) and μ(k−1) (0 for the start):
+	// Σ_j eps_j (μ_j(k) − μ_j(k−1))² / μ_j(k) over determined bins with
+	// μ_j(k) > 0.
+	Chi2 float64
+	// Change is the relative change Σ_j |μ_j(k) − μ_j(k−1)| / Σ_j μ_j(k)
+	// (0 for the start).
+	Change float64
+	// LogLikelihood is the Poisson log-likelihood of the data at μ(k),
+	// Σ_i (n_i ln ν_i − ν_i) over reco bins with ν_i > 0, without the
+	// constant −Σ ln n_i!.
+	LogLikelihood float64
+}
+
+// Result is the outcome of Unfold. Slices over truth bins have one entry
+// per truth bin, over reco bins one per reco bin.
+type Result struct {
+	// Estimate is μ, the unfolded expected count per truth bin; 0 where
+	// not determined.
+	Estimate []float64
+	// Determined reports the truth bins the response can measure
+	// (efficiency > 0). The others are excluded from the iteration.
+	Determined []bool
+	// Efficiency is eps_j = Σ_i A_ij / G_j.
+	Efficiency []float64
+	// Folded is ν = R μ + b, the expected reco spectrum of the estimate
+	// (with the background, in both background modes).
+	Folded []float64
+	// Clipped lists the reco bins where the data minus the background was
+	// negative and was set to zero (Subtract mode only).
+	Clipped []int
+
+	// Iterations is the number of iterations made.
+	Iterations int
+	// Converged reports that the StopChi2 criterion was met; it is false
+	// with a fixed number of iterations.
+	Converged bool
+	// History has one Step per iteration, History[0] being the start.
+	History []Step
+
+	// Uncertainty is the square root of the variance of each estimate
+	// (nil without an uncertainty computation; 0 where not determined).
+	Uncertainty []float64
+	// Covariance is the full linearised covariance (Full only).
+	Covariance *mat.SymDense
+	// UncertaintyMethod names the method that produced Uncertainty:
+	// "linearised" (exact first order), "linearised-probes" or
+	// "poisson-toys"; empty without an uncertainty computation.
+	UncertaintyMethod string
+	// UncertaintyPrecision is the relative statistical precision of each
+	// variance in Uncertainty (sqrt(2/S) for S probes, at most; sqrt(2/(T−1))
+	// for T toys); 0 for the exact propagation.
+	UncertaintyPrecision float64
+	// Samples is the number of probes or toys used (0 for exact).
+	Samples int
+}
+
+// Unfold unfolds p with settings s (nil means the defaults).
+//
+// Errors: *InputError for invalid or inconsistent inputs, *SettingsError
+// for invalid settings, *TooLargeError when a full covariance does not fit
+// under the memory limit, *NumericalError on overflow, and ctx.Err() when
+// the context is cancelled.
+func Unfold(ctx context.Context, p *Problem, s *Settings) (*Result, error) {
+	rs, err := resolve(s)
+	if err != nil {
+		return nil, err
+	}
+	m, err := newModel(p, rs.Background)
+	if err != nil {
+		return nil, err
+	}
+	if m.scale(m.n) <= 0 {
+		return nil, inputErr("Data", -1, -1, "the data minus the background sum to %v ≤ 0: there is nothing to unfold", m.scale(m.n)*m.sumEP)
+	}
+	var sm *smoother
+	if rs.Smoothing != nil {
+		if sm, err = newSmoother(rs.Smoothing, m.det); err != nil {
+			return nil, err
+		}
+	}
+	weighted := p.DataVariance != nil || rs.Background == Subtract && p.Background != nil
+	plan, err := planUncertainty(m, rs, weighted)
+	if err != nil {
+		return nil, err
+	}
+
+	it := newIterator(m, sm)
+	tan, err := plan.first(ctx)
+	if err != nil {
+		return nil, err
+	}
+	res, err := it.run(ctx, m.n, rs, tan)
+	if err != nil {
+		return nil, err
+	}
+	res.Determined = append([]bool(nil), m.det...)
+	res.Efficiency = append([]float64(nil), m.eps...)
+	res.Clipped = m.clip
+	if rs.Background == Subtract && p.Background != nil {
+		for i, b := range p.Background {
+			res.Folded[i] += b
+		}
+	}
+	if err := plan.finish(ctx, it, res, tan); err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+// tangents are linear perturbations carried along the nominal iteration.
+// init is called after μ(0), ν(0) are set; step after every iteration,
+// while the iterator still holds μ(k), ν(k) and g(k) = Rᵀ(n/ν(k)), with
+// μ(k+1) (smoothed) in it.next.
+type tangents interface {
+	init(ctx context.Context, it *iterator) error
+	step(ctx context.Context, it *iterator) error
+}
+
+// iterator holds the state of one iteration sequence.
+type iterator struct {
+	m  *model
+	sm *smoother
+	n  []float64 // data of this sequence
+
+	mu, next, g, tmp []float64 // truth-sized
+	fold, fnext, nu  []float64 // reco-sized: R μ(k), R μ(k+1), ν(k)
+	y                []float64 // n / ν(k)
+	rp               []float64 // R p (the folded prior), for the tangents' start
+	red              reducer
+	update           func(j int, g float64) float64
+}
+
+func newIterator(m *model, sm *smoother) *iterator {
+	it := &iterator{
+		m: m, sm: sm,
+		mu: make([]float64, m.nt), next: make([]float64, m.nt), g: make([]float64, m.nt),
+		fold: make([]float64, m.nr), fnext: make([]float64, m.nr), nu: make([]float64, m.nr),
+		y: make([]float64, m.nr), rp: make([]float64, m.nr),
+	}
+	if sm != nil {
+		it.tmp = make([]float64, m.nt)
+	}
+	m.r.Fold(it.rp, m.prior)
+	it.update = func(j int, g float64) float64 {
+		it.g[j] = g
+		v := it.mu[j] * g * it.m.invEps[j]
+		it.next[j] = v
+		return v
+	}
+	return it
+}
+
+// start sets μ(0) from the prior for data n and returns the start's
+// log-likelihood.
+func (it *iterator) start(n []float64) float64 {
+	it.n = n
+	c := it.m.scale(n)
+	if c < 0 {
+		c = 0 // only for pseudo-data: the estimate stays 0
+	}
+	for j, p := range it.m.prior {
+		it.mu[j] = c * p
+	}
+	for i, v := range it.rp {
+		it.fold[i] = c * v
+	}
+	return it.reco()
+}
+
+// reco computes ν = fold + b and y = n/ν from it.fold and returns the
+// log-likelihood.
+func (it *iterator) reco() float64 {
+	n, b, fold, nu, y := it.n, it.m.b, it.fold, it.nu, it.y
+	s := it.red.run(len(nu), func(lo, hi int, acc *[4]float64) {
+		var ll float64
+		for i := lo; i < hi; i++ {
+			v := fold[i]
+			if b != nil {
+				v += b[i]
+			}
+			nu[i] = v
+			if v > 0 {
+				y[i] = n[i] / v
+				if n[i] > 0 {
+					ll += n[i]*math.Log(v) - v
+				} else {
+					ll -= v
+				}
+			} else {
+				y[i] = 0
+			}
+		}
+		acc[0] = ll
+	})
+	return s[0]
+}
+
+// emStep computes μ(k+1) into it.next, g into it.g and R μ(k+1) into
+// it.fnext.
+func (it *iterator) emStep() {
+	if it.sm == nil {
+		it.m.r.Sweep(it.fnext, it.y, it.update)
+		return
+	}
+	it.m.r.BackProject(it.g, it.y)
+	for j, g := range it.g {
+		it.next[j] = it.mu[j] * g * it.m.invEps[j]
+	}
+	it.sm.apply(it.next, it.tmp)
+	it.m.r.Fold(it.fnext, it.next)
+}
+
+// compare returns the χ² and the relative change between it.next and
+// it.mu.
+func (it *iterator) compare() (chi2, change float64) {
+	mu, next, eps := it.mu, it.next, it.m.eps
+	s := it.red.run(len(mu), func(lo, hi int, acc *[4]float64) {
+		var c2, d, t float64
+		for j := lo; j < hi; j++ {
+			x := next[j]
+			dx := x - mu[j]
+			if x > 0 {
+				c2 += eps[j] * dx * dx / x
+			}
+			d += math.Abs(dx)
+			t += x
+		}
+		acc[0], acc[1], acc[2] = c2, d, t
+	})
+	chi2 = s[0]
+	if s[2] > 0 {
+		change = s[1] / s[2]
+	}
+	return chi2, change
+}
+
+// run iterates from the prior for data n under the stopping rule of rs,
+// carrying tan (may be nil) along.
+func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tangents) (*Result, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	res := &Result{History: []Step{{LogLikelihood: it.start(n)}}}
+	if tan != nil {
+		if err := tan.init(ctx, it); err != nil {
+			return nil, err
+		}
+	}
+	for k := 1; k <= rs.maxIter; k++ {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		it.emStep()
+		if tan != nil {
+			if err := tan.step(ctx, it); err != nil {
+				return nil, err
+			}
+		}
+		chi2, change := it.compare()
+		it.mu, it.next = it.next, it.mu
+		it.fold, it.fnext = it.fnext, it.fold
+		ll := it.reco()
+		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
+			return nil, &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow)"}
+		}
+		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
+		res.Iterations = k
+		if !rs.fixed && chi2 <= rs.StopChi2 {
+			res.Converged = true
+			break
+		}
+	}
+	res.Estimate = append([]float64(nil), it.mu...)
+	res.Folded = append([]float64(nil), it.nu...)
+	return res, nil
+}
