@@ -1,0 +1,209 @@
+package events
+
+import (
+	"bufio"
+	"context"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strconv"
+	"strings"
+)
+
+// CSV is an event sample in a CSV file with a header line.
+type CSV struct {
+	path   string
+	header []string
+}
+
+// OpenCSV opens a CSV file and reads its header line. Fields are separated by
+// commas; surrounding spaces in the header are ignored. Lines starting with #
+// are comments.
+func OpenCSV(path string) (*CSV, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	defer f.Close()
+	r := newCSVReader(f)
+	rec, err := r.Read()
+	if err == io.EOF {
+		return nil, fmt.Errorf("events: %s: empty file; expected a header line with the column names", path)
+	}
+	if err != nil {
+		return nil, csvError(path, err)
+	}
+	h := make([]string, len(rec))
+	seen := map[string]int{}
+	for i, s := range rec {
+		h[i] = strings.TrimSpace(s)
+		if i == 0 {
+			h[i] = strings.TrimPrefix(h[i], "\ufeff")
+		}
+		if h[i] == "" {
+			return nil, fmt.Errorf("events: %s:1: header field %d is empty", path, i+1)
+		}
+		if j, dup := seen[h[i]]; dup {
+			return nil, fmt.Errorf("events: %s:1: column %q appears twice in the header (fields %d and %d)", path, h[i], j+1, i+1)
+		}
+		seen[h[i]] = i
+	}
+	return &CSV{path: path, header: h}, nil
+}
+
+func newCSVReader(f io.Reader) *csv.Reader {
+	r := csv.NewReader(bufio.NewReaderSize(f, 1<<20))
+	r.ReuseRecord = true
+	r.Comment = '#'
+	return r
+}
+
+func csvError(path string, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return fmt.Errorf("events: %s:%d:%d: %w", path, pe.Line, pe.Column, pe.Err)
+	}
+	return fmt.Errorf("events: %s: %w", path, err)
+}
+
+// Columns returns the header's names.
+func (c *CSV) Columns() []string { return c.header }
+
+// Len returns -1: the number of lines is not known before reading.
+func (c *CSV) Len() int64 { return -1 }
+
+// Close does nothing; the file is opened by each Read.
+func (c *CSV) Close() error { return nil }
+
+// Read implements Source.
+func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error {
+	checkBatchSize(batchSize)
+	idx, err := checkRequest(c.path, c.header, columns, "column")
+	if err != nil {
+		return err
+	}
+	f, err := os.Open(c.path)
+	if err != nil {
+		return fmt.Errorf("events: %w", err)
+	}
+	defer f.Close()
+	r := newCSVReader(f)
+	r.FieldsPerRecord = len(c.header)
+	if _, err := r.Read(); err != nil {
+		return csvError(c.path, err)
+	}
+	b := newBatch(len(columns), batchSize)
+	full := b.Cols
+	var start int64
+	k := 0
+	flush := func() error {
+		if k == 0 {
+			return nil
+		}
+		for i := range b.Cols {
+			b.Cols[i] = full[i][:k]
+		}
+		b.Start, b.Len = start, k
+		if err := fn(b); err != nil {
+			return err
+		}
+		start += int64(k)
+		k = 0
+		return nil
+	}
+	for {
+		rec, err := r.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return csvError(c.path, err)
+		}
+		for i, j := range idx {
+			v, err := parseCSVFloat(rec[j])
+			if err != nil {
+				line, col := r.FieldPos(j)
+				return fmt.Errorf("events: %s:%d:%d: column %q: %q is not a number", c.path, line, col, c.header[j], rec[j])
+			}
+			full[i][k] = v
+		}
+		k++
+		if k == batchSize {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			if err := flush(); err != nil {
+				return err
+			}
+		}
+	}
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	return flush()
+}
+
+func parseCSVFloat(s string) (float64, error) {
+	v, err := strconv.ParseFloat(s, 64)
+	if err == nil {
+		return v, nil
+	}
+	t := strings.TrimSpace(s)
+	if t != s {
+		if v, err2 := strconv.ParseFloat(t, 64); err2 == nil {
+			return v, nil
+		}
+	}
+	switch strings.ToLower(t) {
+	case "true":
+		return 1, nil
+	case "false":
+		return 0, nil
+	}
+	var ne *strconv.NumError
+	if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
+		return v, nil // ±Inf or a denormal rounded to 0, as ParseFloat gives
+	}
+	return 0, err
+}
+
+// WriteCSV writes the columns to a CSV file with a header line, each value
+// in the shortest form that reads back to the same float64.
+func WriteCSV(path string, names []string, cols [][]float64) error {
+	if err := checkColumns(path, names, cols); err != nil {
+		return err
+	}
+	for _, n := range names {
+		if strings.ContainsAny(n, ",\"\r\n") || strings.TrimSpace(n) != n || strings.HasPrefix(n, "#") {
+			return fmt.Errorf("events: writing %s: column name %q cannot be written to a CSV header", path, n)
+		}
+	}
+	return atomicWrite(path, func(tmp string) error {
+		f, err := os.Create(tmp)
+		if err != nil {
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		w := bufio.NewWriterSize(f, 1<<20)
+		w.WriteString(strings.Join(names, ","))
+		w.WriteByte('\n')
+		buf := make([]byte, 0, 32*len(cols))
+		for k := range cols[0] {
+			buf = buf[:0]
+			for i := range cols {
+				if i > 0 {
+					buf = append(buf, ',')
+				}
+				buf = strconv.AppendFloat(buf, cols[i][k], 'g', -1, 64)
+			}
+			buf = append(buf, '\n')
+			w.Write(buf)
+		}
+		if err := w.Flush(); err != nil {
+			f.Close()
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		return syncClose(f, path)
+	})
+}

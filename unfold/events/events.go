@@ -1,0 +1,210 @@
+package events
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+)
+
+// Source is a readable event sample.
+type Source interface {
+	// Columns returns the names of the columns that Read can deliver, in
+	// file order.
+	Columns() []string
+
+	// Len returns the number of events, or -1 if it is not known without
+	// reading the whole file.
+	Len() int64
+
+	// Read streams the named columns in batches of at most batchSize rows,
+	// in file order. b.Start is the index of the batch's first event, b.Len
+	// its number of rows, and b.Cols[c] the values of columns[c], of length
+	// b.Len. The batch and its slices are reused: they are valid only until
+	// fn returns. Read stops at the first error returned by fn and returns
+	// it unchanged; it checks ctx between batches and returns ctx.Err() when
+	// the context is done. Read may be called more than once, each time
+	// from the first event. It panics if batchSize < 1.
+	Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error
+
+	// Close releases the file.
+	Close() error
+}
+
+// Batch is a block of consecutive events, column by column.
+type Batch struct {
+	Start int64       // index of the first event of the batch in the file
+	Len   int         // number of events in the batch
+	Cols  [][]float64 // Cols[c][k]: column c of event Start+k; len(Cols[c]) == Len
+}
+
+// Options configures Open.
+type Options struct {
+	// Tree is the path of the TTree inside a ROOT file ("events" or
+	// "dir/events"). If empty, the file must hold exactly one TTree at its
+	// top level.
+	Tree string
+}
+
+// Format is an input file format.
+type Format int
+
+// The formats Open knows.
+const (
+	FormatUnknown Format = iota
+	FormatROOT
+	FormatParquet
+	FormatCSV
+)
+
+func (f Format) String() string {
+	switch f {
+	case FormatROOT:
+		return "ROOT"
+	case FormatParquet:
+		return "Parquet"
+	case FormatCSV:
+		return "CSV"
+	}
+	return "unknown"
+}
+
+// FormatOf returns the format of a file from its extension: .root, .parquet
+// (.parq, .pq) or .csv, in any letter case.
+func FormatOf(path string) Format {
+	switch strings.ToLower(filepath.Ext(path)) {
+	case ".root":
+		return FormatROOT
+	case ".parquet", ".parq", ".pq":
+		return FormatParquet
+	case ".csv":
+		return FormatCSV
+	}
+	return FormatUnknown
+}
+
+// Open opens an event file, choosing the format by its extension.
+func Open(path string, opt Options) (Source, error) {
+	switch FormatOf(path) {
+	case FormatROOT:
+		return OpenROOT(path, opt.Tree)
+	case FormatParquet:
+		return OpenParquet(path)
+	case FormatCSV:
+		return OpenCSV(path)
+	}
+	return nil, fmt.Errorf("events: %s: unknown file type %q; use .root, .parquet or .csv", path, filepath.Ext(path))
+}
+
+// checkRequest validates a list of requested columns against the available
+// ones and returns their indices.
+func checkRequest(path string, have []string, want []string, what string) ([]int, error) {
+	idx := make(map[string]int, len(have))
+	for i, n := range have {
+		if _, dup := idx[n]; !dup {
+			idx[n] = i
+		}
+	}
+	out := make([]int, len(want))
+	for i, n := range want {
+		j, ok := idx[n]
+		if !ok {
+			return nil, fmt.Errorf("events: %s: no %s %q%s", path, what, n, listHint(have))
+		}
+		out[i] = j
+	}
+	return out, nil
+}
+
+func listHint(have []string) string {
+	if len(have) == 0 {
+		return " (the file has none)"
+	}
+	if len(have) <= 20 {
+		return fmt.Sprintf(" (have: %s)", strings.Join(have, ", "))
+	}
+	return fmt.Sprintf(" (%d available; first: %s, ...)", len(have), strings.Join(have[:20], ", "))
+}
+
+func checkBatchSize(n int) {
+	if n < 1 {
+		panic(fmt.Sprintf("events: batch size %d < 1", n))
+	}
+}
+
+// newBatch allocates a batch of nc columns with room for n rows each.
+func newBatch(nc, n int) *Batch {
+	b := &Batch{Cols: make([][]float64, nc)}
+	for c := range b.Cols {
+		b.Cols[c] = make([]float64, n)
+	}
+	return b
+}
+
+// checkColumns validates the arguments of the writers.
+func checkColumns(path string, names []string, cols [][]float64) error {
+	if len(names) != len(cols) {
+		return fmt.Errorf("events: writing %s: %d names for %d columns", path, len(names), len(cols))
+	}
+	if len(names) == 0 {
+		return fmt.Errorf("events: writing %s: no columns", path)
+	}
+	seen := map[string]bool{}
+	for i, n := range names {
+		if n == "" {
+			return fmt.Errorf("events: writing %s: column %d has an empty name", path, i)
+		}
+		if seen[n] {
+			return fmt.Errorf("events: writing %s: column name %q given twice", path, n)
+		}
+		seen[n] = true
+		if len(cols[i]) != len(cols[0]) {
+			return fmt.Errorf("events: writing %s: column %q has %d values, column %q has %d",
+				path, n, len(cols[i]), names[0], len(cols[0]))
+		}
+	}
+	return nil
+}
+
+// atomicWrite creates a temporary file next to path, lets write fill it
+// (given its name), and renames it to path if write succeeds.
+func atomicWrite(path string, write func(tmp string) error) (err error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".tmp-*"+filepath.Ext(base))
+	if err != nil {
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
+	tmp := f.Name()
+	f.Close()
+	defer func() {
+		if err != nil {
+			os.Remove(tmp)
+		}
+	}()
+	if err := write(tmp); err != nil {
+		return err
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
+	return nil
+}
+
+// syncClose flushes f to stable storage and closes it.
+func syncClose(f *os.File, path string) error {
+	if err := f.Sync(); err != nil {
+		f.Close()
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
+	if err := f.Close(); err != nil {
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
+	return nil
+}
+
+var _ = slices.Clone[[]string]

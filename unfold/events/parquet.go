@@ -1,0 +1,366 @@
+package events
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"os"
+
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/format"
+)
+
+// Parquet is an event sample in a Parquet file.
+type Parquet struct {
+	path  string
+	f     *os.File
+	pf    *parquet.File
+	cols  []string
+	leaf  map[string]pqColumn
+	bad   map[string]string
+	nrows int64
+}
+
+type pqColumn struct {
+	index    int // leaf column index in the row groups
+	kind     parquet.Kind
+	unsigned bool
+	optional bool
+}
+
+// OpenParquet opens a Parquet file and reads its footer.
+func OpenParquet(path string) (*Parquet, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	st, err := f.Stat()
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	pf, err := parquet.OpenFile(f, st.Size(), parquet.SkipBloomFilters(true), parquet.SkipPageIndex(true))
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("events: %s: not a readable Parquet file: %w", path, err)
+	}
+	p := &Parquet{path: path, f: f, pf: pf, leaf: map[string]pqColumn{}, bad: map[string]string{}, nrows: pf.NumRows()}
+	for _, c := range pf.Root().Columns() {
+		name := c.Name()
+		switch {
+		case !c.Leaf():
+			p.bad[name] = "it is a group of columns; only flat columns are supported"
+			continue
+		case c.Repeated():
+			p.bad[name] = "it is a repeated (list) column; only one value per event is supported"
+			continue
+		}
+		pc := pqColumn{index: c.Index(), kind: c.Type().Kind(), optional: c.Optional()}
+		switch pc.kind {
+		case parquet.Boolean, parquet.Int32, parquet.Int64, parquet.Float, parquet.Double:
+		default:
+			p.bad[name] = fmt.Sprintf("its type %s is not numeric", c.Type())
+			continue
+		}
+		if lt := c.Type().LogicalType(); lt != nil {
+			switch v := lt.Value.(type) {
+			case *format.IntType:
+				pc.unsigned = !v.IsSigned
+			case *format.DecimalType:
+				p.bad[name] = "decimal columns are not supported"
+				continue
+			}
+		}
+		p.cols = append(p.cols, name)
+		p.leaf[name] = pc
+	}
+	return p, nil
+}
+
+// Columns returns the names of the flat numeric columns, in schema order.
+func (p *Parquet) Columns() []string { return p.cols }
+
+// Len returns the number of rows in the file.
+func (p *Parquet) Len() int64 { return p.nrows }
+
+// Close closes the file.
+func (p *Parquet) Close() error { return p.f.Close() }
+
+// pqCursor reads the values of one column chunk page by page.
+type pqCursor struct {
+	name  string
+	col   pqColumn
+	pages parquet.Pages
+	page  parquet.Page
+	vr    parquet.ValueReader
+	f32   []float32
+	i32   []int32
+	i64   []int64
+	bools []bool
+	vals  []parquet.Value
+}
+
+func (c *pqCursor) close() {
+	if c.page != nil {
+		parquet.Release(c.page)
+		c.page = nil
+	}
+	if c.pages != nil {
+		c.pages.Close()
+		c.pages = nil
+	}
+	c.vr = nil
+}
+
+// fill decodes exactly len(dst) values into dst.
+func (c *pqCursor) fill(dst []float64) error {
+	for got := 0; got < len(dst); {
+		if c.vr == nil {
+			if c.page != nil {
+				parquet.Release(c.page)
+				c.page = nil
+			}
+			pg, err := c.pages.ReadPage()
+			if err == io.EOF {
+				return fmt.Errorf("column %q ends %d values early", c.name, len(dst)-got)
+			}
+			if err != nil {
+				return fmt.Errorf("column %q: %w", c.name, err)
+			}
+			if pg.NumNulls() > 0 {
+				parquet.Release(pg)
+				return fmt.Errorf("column %q has %d null values in a page; every event needs a value", c.name, pg.NumNulls())
+			}
+			c.page, c.vr = pg, pg.Values()
+		}
+		n, err := c.read(dst[got:])
+		got += n
+		if err == io.EOF {
+			c.vr = nil
+			continue
+		}
+		if err != nil {
+			return fmt.Errorf("column %q: %w", c.name, err)
+		}
+		if n == 0 {
+			return fmt.Errorf("column %q: page reader made no progress", c.name)
+		}
+	}
+	return nil
+}
+
+// read decodes up to len(dst) values of the current page.
+func (c *pqCursor) read(dst []float64) (int, error) {
+	switch c.col.kind {
+	case parquet.Double:
+		if r, ok := c.vr.(parquet.DoubleReader); ok {
+			return r.ReadDoubles(dst)
+		}
+	case parquet.Float:
+		if r, ok := c.vr.(parquet.FloatReader); ok {
+			buf := grow(&c.f32, len(dst))
+			n, err := r.ReadFloats(buf)
+			for i, v := range buf[:n] {
+				dst[i] = float64(v)
+			}
+			return n, err
+		}
+	case parquet.Int32:
+		if r, ok := c.vr.(parquet.Int32Reader); ok {
+			buf := grow(&c.i32, len(dst))
+			n, err := r.ReadInt32s(buf)
+			if c.col.unsigned {
+				for i, v := range buf[:n] {
+					dst[i] = float64(uint32(v))
+				}
+			} else {
+				for i, v := range buf[:n] {
+					dst[i] = float64(v)
+				}
+			}
+			return n, err
+		}
+	case parquet.Int64:
+		if r, ok := c.vr.(parquet.Int64Reader); ok {
+			buf := grow(&c.i64, len(dst))
+			n, err := r.ReadInt64s(buf)
+			if c.col.unsigned {
+				for i, v := range buf[:n] {
+					dst[i] = float64(uint64(v))
+				}
+			} else {
+				for i, v := range buf[:n] {
+					dst[i] = float64(v)
+				}
+			}
+			return n, err
+		}
+	case parquet.Boolean:
+		if r, ok := c.vr.(parquet.BooleanReader); ok {
+			buf := grow(&c.bools, len(dst))
+			n, err := r.ReadBooleans(buf)
+			for i, v := range buf[:n] {
+				dst[i] = b2f(v)
+			}
+			return n, err
+		}
+	}
+	// Generic path: dictionary-encoded pages and other readers.
+	buf := grow(&c.vals, len(dst))
+	n, err := c.vr.ReadValues(buf)
+	for i, v := range buf[:n] {
+		dst[i] = valueFloat(v, c.col)
+	}
+	return n, err
+}
+
+func valueFloat(v parquet.Value, col pqColumn) float64 {
+	switch v.Kind() {
+	case parquet.Double:
+		return v.Double()
+	case parquet.Float:
+		return float64(v.Float())
+	case parquet.Int32:
+		if col.unsigned {
+			return float64(v.Uint32())
+		}
+		return float64(v.Int32())
+	case parquet.Int64:
+		if col.unsigned {
+			return float64(v.Uint64())
+		}
+		return float64(v.Int64())
+	case parquet.Boolean:
+		return b2f(v.Boolean())
+	}
+	return 0
+}
+
+func b2f(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+func grow[T any](buf *[]T, n int) []T {
+	if cap(*buf) < n {
+		*buf = make([]T, n)
+	}
+	return (*buf)[:n]
+}
+
+// Read implements Source.
+func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) (err error) {
+	checkBatchSize(batchSize)
+	for _, name := range columns {
+		if _, ok := p.leaf[name]; !ok {
+			if why, isBad := p.bad[name]; isBad {
+				return fmt.Errorf("events: %s: column %q cannot be read: %s", p.path, name, why)
+			}
+			return fmt.Errorf("events: %s: no column %q%s", p.path, name, listHint(p.cols))
+		}
+	}
+	defer func() {
+		if r := recover(); r != nil {
+			err = fmt.Errorf("events: %s: damaged Parquet file: %v", p.path, r)
+		}
+	}()
+	b := newBatch(len(columns), batchSize)
+	full := b.Cols
+	curs := make([]pqCursor, len(columns))
+	for i, name := range columns {
+		curs[i] = pqCursor{name: name, col: p.leaf[name]}
+	}
+	defer func() {
+		for i := range curs {
+			curs[i].close()
+		}
+	}()
+	var start int64
+	for g, rg := range p.pf.RowGroups() {
+		chunks := rg.ColumnChunks()
+		for i := range curs {
+			curs[i].close()
+			curs[i].pages = chunks[curs[i].col.index].Pages()
+		}
+		nrg := rg.NumRows()
+		for off := int64(0); off < nrg; {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			m := int(min(int64(batchSize), nrg-off))
+			for i := range curs {
+				if err := curs[i].fill(full[i][:m]); err != nil {
+					return fmt.Errorf("events: %s: row group %d, row %d: %w", p.path, g, start, err)
+				}
+				b.Cols[i] = full[i][:m]
+			}
+			b.Start, b.Len = start, m
+			if err := fn(b); err != nil {
+				return err
+			}
+			start += int64(m)
+			off += int64(m)
+		}
+	}
+	return nil
+}
+
+// RowGroupRows is the number of rows per row group written by WriteParquet.
+const RowGroupRows = 1 << 20
+
+// WriteParquet writes the columns as required DOUBLE columns of a new
+// Parquet file, Snappy-compressed, in row groups of RowGroupRows rows.
+func WriteParquet(path string, names []string, cols [][]float64) error {
+	if err := checkColumns(path, names, cols); err != nil {
+		return err
+	}
+	group := parquet.Group{}
+	for _, n := range names {
+		group[n] = parquet.Leaf(parquet.DoubleType)
+	}
+	schema := parquet.NewSchema("events", group)
+	// Map schema leaf order (sorted by name) to our columns.
+	order := make([]int, len(names))
+	byName := map[string]int{}
+	for i, n := range names {
+		byName[n] = i
+	}
+	for j, path := range schema.Columns() {
+		order[j] = byName[path[0]]
+	}
+	return atomicWrite(path, func(tmp string) error {
+		f, err := os.Create(tmp)
+		if err != nil {
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		w := parquet.NewWriter(f, schema, parquet.Compression(&parquet.Snappy))
+		buf := parquet.NewBuffer(schema)
+		n := len(cols[0])
+		for lo := 0; lo < n; lo += RowGroupRows {
+			hi := min(lo+RowGroupRows, n)
+			buf.Reset()
+			for j, cb := range buf.ColumnBuffers() {
+				dw, ok := cb.(parquet.DoubleWriter)
+				if !ok {
+					f.Close()
+					return fmt.Errorf("events: writing %s: column buffer %T cannot take doubles", path, cb)
+				}
+				if _, err := dw.WriteDoubles(cols[order[j]][lo:hi]); err != nil {
+					f.Close()
+					return fmt.Errorf("events: writing %s: %w", path, err)
+				}
+			}
+			if _, err := w.WriteRowGroup(buf); err != nil {
+				f.Close()
+				return fmt.Errorf("events: writing %s: %w", path, err)
+			}
+		}
+		if err := w.Close(); err != nil {
+			f.Close()
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		return syncClose(f, path)
+	})
+}
