@@ -207,7 +207,7 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 	}
 	if it.sm != nil {
 		// Smooth the rows of W along each axis, ping-ponging with J.
-		for a := 0; a < MaxAxes; a++ {
+		for a := range it.sm.nbr {
 			it.sm.applyAxisRows(J, W, cols, a)
 			J, W = W, J
 		}

@@ -1,10 +1,14 @@
 package unfold
 
-import "math"
+import (
+	"math"
+
+	"github.com/desmear/desmear/binning"
+)
 
 // MaxAxes is the largest number of axes a truth region may have for
-// smoothing: Smoothing visits axes 0..MaxAxes-1 of every bin.
-const MaxAxes = 3
+// smoothing (that of package binning).
+const MaxAxes = binning.MaxAxes
 
 // Neighbourhood describes the neighbours of truth bins along the axes of
 // their regions. *binning.Scheme satisfies it.
@@ -13,12 +17,38 @@ const MaxAxes = 3
 // bins; bins from InRange() on are flow bins and are never smoothed.
 // Neighbours returns the global indices of the previous and next bin of
 // g along axis of g's region, or -1 where there is none (at the edge of
-// the region, for flow bins, and for axis numbers the region does not
-// have). Regions are never neighbours of each other.
+// the region and for flow bins). Regions are never neighbours of each
+// other.
+//
+// Smoothing asks Neighbours only about the axes g's region has: for a
+// *binning.Scheme it reads them from the scheme's regions; another
+// implementation may report them with a method NumAxes(g int) int, and
+// otherwise must answer (-1, -1) for every axis up to MaxAxes that g's
+// region lacks.
 type Neighbourhood interface {
 	Len() int
 	InRange() int
 	Neighbours(g, axis int) (prev, next int)
+}
+
+// numAxes returns a function giving the number of axes of bin g's
+// region, for in-range bins.
+func numAxes(nb Neighbourhood) func(g int) int {
+	switch s := nb.(type) {
+	case *binning.Scheme:
+		regs := s.Regions()
+		return func(g int) int {
+			for r := range regs {
+				if lo, hi := s.Span(r); g >= lo && g < hi {
+					return len(regs[r].Axes())
+				}
+			}
+			return 0
+		}
+	case interface{ NumAxes(g int) int }:
+		return s.NumAxes
+	}
+	return func(int) int { return MaxAxes }
 }
 
 // Smoothing smooths the estimate after every iteration, before it is
@@ -59,7 +89,7 @@ func (s *Smoothing) check() error {
 type smoother struct {
 	n   int
 	w   float64
-	nbr [MaxAxes][][2]int32 // nbr[axis][j] = (prev, next), -1 when absent
+	nbr [][][2]int32 // nbr[axis][j] = (prev, next), -1 when absent
 }
 
 func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
@@ -73,11 +103,20 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 		sm.w = 1
 	}
 	ok := func(g int) bool { return g >= 0 && g < in && det[g] }
-	for a := 0; a < MaxAxes; a++ {
+	axes := numAxes(nb)
+	dims := make([]int8, in)
+	for j := range dims {
+		dims[j] = int8(axes(j))
+	}
+	maxDim := 0
+	for _, d := range dims {
+		maxDim = max(maxDim, int(d))
+	}
+	for a := 0; a < maxDim; a++ {
 		t := make([][2]int32, len(det))
 		for j := range t {
 			t[j] = [2]int32{-1, -1}
-			if !ok(j) {
+			if !ok(j) || a >= int(dims[j]) {
 				continue
 			}
 			p, q := nb.Neighbours(j, a)
@@ -91,7 +130,7 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 				t[j][1] = int32(q)
 			}
 		}
-		sm.nbr[a] = t
+		sm.nbr = append(sm.nbr, t)
 	}
 	return sm, nil
 }
@@ -99,8 +138,7 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 // apply smooths x in place along every axis; tmp has the length of x.
 // It is linear in x, so the same call smooths tangent vectors.
 func (sm *smoother) apply(x, tmp []float64) {
-	for a := 0; a < MaxAxes; a++ {
-		t := sm.nbr[a]
+	for _, t := range sm.nbr {
 		copy(tmp, x)
 		for j := range x {
 			x[j] *= 1 - sm.w/2
