@@ -192,16 +192,20 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 	}
 	b.samples++
 	diagLevel := &Level{Observables: sim.RecoInTruth, Select: sim.Reco.Select}
-	work := func(sc *scratch, bt *batch) error {
-		if err := evalWeights(&sim.Sample, bt); err != nil {
-			return err
+	newWork := func() func(*scratch, *batch) error {
+		weight := instantiate(sim.Weight)
+		truth, reco, diag := sim.Truth.instantiate(), sim.Reco.instantiate(), diagLevel.instantiate()
+		return func(sc *scratch, bt *batch) error {
+			if err := evalWeights(&sim.Sample, weight, bt); err != nil {
+				return err
+			}
+			sc.locate(bt.truth, truth, b.truth, bt.cols, bt.n)
+			sc.locate(bt.reco, reco, b.reco, bt.cols, bt.n)
+			if withDiag {
+				sc.locate(bt.diag, diag, b.truth, bt.cols, bt.n)
+			}
+			return nil
 		}
-		sc.locate(bt.truth, &sim.Truth, b.truth, bt.cols, bt.n)
-		sc.locate(bt.reco, &sim.Reco, b.reco, bt.cols, bt.n)
-		if withDiag {
-			sc.locate(bt.diag, diagLevel, b.truth, bt.cols, bt.n)
-		}
-		return nil
 	}
 	var s Summary
 	consume := func(bt *batch) error {
@@ -242,7 +246,7 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 		}
 		return nil
 	}
-	n, err := stream(ctx, &sim.Sample, opt, work, consume)
+	n, err := stream(ctx, &sim.Sample, opt, newWork, consume)
 	s.Events = n
 	if err != nil {
 		return s, err
@@ -300,12 +304,15 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 	if scheme.Len() != len(h.Values) {
 		panic("fill: histogram and scheme sizes differ")
 	}
-	work := func(sc *scratch, bt *batch) error {
-		if err := evalWeights(s, bt); err != nil {
-			return err
+	newWork := func() func(*scratch, *batch) error {
+		weight, lv := instantiate(s.Weight), l.instantiate()
+		return func(sc *scratch, bt *batch) error {
+			if err := evalWeights(s, weight, bt); err != nil {
+				return err
+			}
+			sc.locate(bt.reco, lv, scheme, bt.cols, bt.n)
+			return nil
 		}
-		sc.locate(bt.reco, l, scheme, bt.cols, bt.n)
-		return nil
 	}
 	var sel, out int64
 	consume := func(bt *batch) error {
@@ -323,9 +330,16 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 		}
 		return nil
 	}
-	n, err := stream(ctx, s, opt, work, consume)
+	n, err := stream(ctx, s, opt, newWork, consume)
 	h.Events += n
 	h.Selected += sel
 	h.Outside += out
 	return err
+}
+
+func instantiate(e Expr) Evaluator {
+	if e == nil {
+		return nil
+	}
+	return e()
 }

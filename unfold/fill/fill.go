@@ -16,12 +16,24 @@ type Locator interface {
 	Locate(x []float64) int
 }
 
-// Expr evaluates one quantity (an observable, a weight or a selection)
-// for every event of a batch: dst[k] is the value for event k, computed
-// from cols, the batch's input columns in the order the sample's reader
-// delivers them. len(dst) is the batch length. An Expr must not keep
-// dst or cols and must be safe for concurrent use on distinct dst.
-type Expr func(dst []float64, cols [][]float64)
+// Evaluator computes one quantity (an observable, a weight or a
+// selection) for every event of a batch: dst[k] is the value for event
+// k, computed from cols, the batch's input columns in the order the
+// sample's reader delivers them. len(dst) is the batch length. An
+// Evaluator must not keep dst or cols.
+type Evaluator func(dst []float64, cols [][]float64)
+
+// Expr makes Evaluators. Each worker goroutine calls it once and uses
+// the Evaluator it returns on that goroutine only, so Evaluators need
+// not be safe for concurrent use (an *observable.Expr's Clone().Eval is
+// a suitable result).
+type Expr func() Evaluator
+
+// Func returns an Expr whose Evaluators are all f, which must then be
+// safe for concurrent use.
+func Func(f func(dst []float64, cols [][]float64)) Expr {
+	return func() Evaluator { return f }
+}
 
 // ReadFunc streams a sample's events: it calls fn for consecutive batches
 // of events in file order, start being the position of the batch's first
@@ -147,27 +159,47 @@ func (s *scratch) ensure(naxes, n int) {
 	s.point = s.point[:naxes]
 }
 
+// level is a Level with the Evaluators of one worker.
+type level struct {
+	obs []Evaluator
+	sel Evaluator
+}
+
+func (l *Level) instantiate() *level {
+	if l == nil || len(l.Observables) == 0 {
+		return nil
+	}
+	v := &level{obs: make([]Evaluator, len(l.Observables))}
+	for a, e := range l.Observables {
+		v.obs[a] = e()
+	}
+	if l.Select != nil {
+		v.sel = l.Select()
+	}
+	return v
+}
+
 // locate fills dst with the bin of every event of the batch at level l
 // (codeRejected for events failing the selection, codeOutside for
 // events outside the scheme). l may be nil: every event is rejected.
-func (s *scratch) locate(dst []int32, l *Level, scheme Locator, cols [][]float64, n int) {
-	if l == nil || scheme == nil || len(l.Observables) == 0 {
+func (s *scratch) locate(dst []int32, l *level, scheme Locator, cols [][]float64, n int) {
+	if l == nil || scheme == nil {
 		for k := range dst {
 			dst[k] = codeRejected
 		}
 		return
 	}
-	naxes := len(l.Observables)
+	naxes := len(l.obs)
 	s.ensure(naxes, n)
-	for a, e := range l.Observables {
+	for a, e := range l.obs {
 		e(s.obs[a], cols)
 	}
-	if l.Select != nil {
-		l.Select(s.sel, cols)
+	if l.sel != nil {
+		l.sel(s.sel, cols)
 	}
 	pt := s.point
 	for k := 0; k < n; k++ {
-		if l.Select != nil {
+		if l.sel != nil {
 			if v := s.sel[k]; v == 0 || v != v {
 				dst[k] = codeRejected
 				continue
@@ -185,11 +217,12 @@ func (s *scratch) locate(dst []int32, l *Level, scheme Locator, cols [][]float64
 }
 
 // stream runs the sample through the worker pipeline: the reader
-// goroutine copies batches, workers evaluate and locate them with work,
+// goroutine copies batches, workers evaluate and locate them with the
+// function newWork returns to each of them,
 // and consume receives every processed batch in event order, on the
 // calling goroutine. Memory is bounded by a fixed number of batches in
 // flight.
-func stream(ctx context.Context, s *Sample, opt *Options, work func(*scratch, *batch) error, consume func(*batch) error) (int64, error) {
+func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*scratch, *batch) error, consume func(*batch) error) (int64, error) {
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	nw := opt.workers()
@@ -207,6 +240,7 @@ func stream(ctx context.Context, s *Sample, opt *Options, work func(*scratch, *b
 		go func() {
 			defer wg.Done()
 			var sc scratch
+			work := newWork()
 			for b := range jobs {
 				b.err = work(&sc, b)
 				done <- b
@@ -295,15 +329,16 @@ func stream(ctx context.Context, s *Sample, opt *Options, work func(*scratch, *b
 	return events, nil
 }
 
-// evalWeights fills b.w with the sample's weights times its scale and
-// returns an error naming the first event whose weight is not finite.
-func evalWeights(s *Sample, b *batch) error {
-	if s.Weight == nil {
+// evalWeights fills b.w with the sample's weights (from weight, nil
+// meaning 1) times its scale and returns an error naming the first event
+// whose weight is not finite.
+func evalWeights(s *Sample, weight Evaluator, b *batch) error {
+	if weight == nil {
 		for k := range b.w {
 			b.w[k] = 1
 		}
 	} else {
-		s.Weight(b.w, b.cols)
+		weight(b.w, b.cols)
 	}
 	sc := s.scale()
 	for k, w := range b.w {

@@ -71,7 +71,7 @@ func (g grid2D) Locate(x []float64) int {
 }
 
 func col(i int) Expr {
-	return func(dst []float64, cols [][]float64) { copy(dst, cols[i]) }
+	return Func(func(dst []float64, cols [][]float64) { copy(dst, cols[i]) })
 }
 
 // memory streams in-memory columns in batches of the given size.

@@ -1,0 +1,495 @@
+package analysis
+
+import (
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+
+	"go.yaml.in/yaml/v3"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/events"
+)
+
+// Analysis is a decoded and checked analysis file. File names in it are
+// resolved against the folder of the analysis file.
+type Analysis struct {
+	// File is the analysis file's path as given; Dir its folder.
+	File, Dir string
+	Title     string
+
+	// Truth and Reco are the binning schemes; TruthFile and RecoFile
+	// their files ("" when given inline).
+	Truth, Reco         *binning.Scheme
+	TruthFile, RecoFile string
+
+	// TruthObservables and RecoObservables are the default expressions
+	// of each axis of the truth and reco schemes, in the schemes' axis
+	// order (AxisNames).
+	TruthObservables, RecoObservables []Expression
+
+	// Simulation lists the simulated samples.
+	Simulation []Sample
+	// ResponseFile, when not empty, names a saved response bundle to
+	// load instead of building the response from Simulation.
+	ResponseFile string
+
+	Data        Data
+	Backgrounds []Background
+	Unfolding   Unfolding
+	Uncertainty Uncertainty
+	Output      Output
+	Workers     int
+	BatchSize   int
+}
+
+// Expression is an expression text with its position in the analysis
+// file.
+type Expression struct {
+	Text  string
+	Line  int
+	Field string
+}
+
+// Sample is a simulated sample.
+type Sample struct {
+	File           string // resolved path
+	Tree           string
+	Weight         Expression // empty Text: weight 1
+	TruthSelection Expression // empty Text: every event passes
+	RecoSelection  Expression
+	Scale          float64 // 1 when not given
+	// Truth and Reco are the observables of this sample, per axis of
+	// the truth and reco schemes (the file-wide ones unless overridden).
+	Truth, Reco []Expression
+	Field       string // e.g. "simulation[0]", for messages
+	Line        int
+}
+
+// DataKind says where the data come from.
+type DataKind int
+
+const (
+	// DataEvents fills the reco scheme from an events file.
+	DataEvents DataKind = iota
+	// DataHistogram reads a ROOT TH1D/TH2D.
+	DataHistogram
+	// DataTable reads a plain table (reco,value[,variance]).
+	DataTable
+)
+
+// Data is the measured input.
+type Data struct {
+	Kind        DataKind
+	File        string // resolved path
+	Tree        string // DataEvents
+	Weight      Expression
+	Selection   Expression
+	Observables []Expression // DataEvents, per reco axis
+	Name        string       // DataHistogram: the histogram's name in the file
+	Line        int
+}
+
+// Background is one background sample: events filled in the reco
+// scheme, or a plain table, times Scale, with a relative uncertainty of
+// the scale.
+type Background struct {
+	Name             string
+	Kind             DataKind // DataEvents or DataTable
+	File             string
+	Tree             string
+	Weight           Expression
+	Selection        Expression
+	Observables      []Expression
+	Scale            float64 // 1 when not given
+	ScaleUncertainty float64 // relative
+	Field            string
+	Line             int
+}
+
+// Unfolding holds the settings of the iteration.
+type Unfolding struct {
+	Iterations    int
+	StopChi2      float64
+	MaxIterations int
+	// Prior is "simulation" (the generated spectrum), "flat" or "file".
+	Prior     string
+	PriorFile string // resolved, when Prior is "file"
+	// Smoothing is the smoothing strength in (0, 1]; 0 means none.
+	Smoothing float64
+	// Background is "model" (inside the folded expectation) or
+	// "subtract" (from the data first).
+	Background string
+	// Fakes is "background" (the simulation's fakes are part of the
+	// expected background, the default) or "ignore".
+	Fakes string
+	// MemoryLimit in bytes; 0 means the kernel's default.
+	MemoryLimit int64
+}
+
+// Uncertainty holds the uncertainty settings.
+type Uncertainty struct {
+	Covariance string // none, diag or full
+	Method     string // auto, exact, probes or toys (diag only)
+	Probes     int
+	Toys       int
+	Seed       uint64
+}
+
+// Output holds the output settings.
+type Output struct {
+	Folder         string // resolved
+	Formats        []string
+	Luminosity     float64
+	LuminosityUnit string
+}
+
+// Formats written by Run.
+var knownFormats = []string{"json", "csv", "regions", "root"}
+
+// Has reports whether the output includes format f.
+func (o *Output) Has(f string) bool { return slices.Contains(o.Formats, f) }
+
+// Load reads, decodes and checks the analysis file at path. Problems in
+// the file are *Error values (or Errors, several at once) naming the
+// file, the line and the field; problems inside a binning scheme are
+// *binning.Error values.
+func Load(path string) (*Analysis, error) {
+	src, err := os.ReadFile(path)
+	if err != nil {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("cannot read the analysis file: %v", unwrapPath(err)), Err: err}
+	}
+	return Decode(src, path)
+}
+
+// Decode decodes and checks an analysis file's content; path names it
+// in messages and its folder resolves relative file names.
+func Decode(src []byte, path string) (*Analysis, error) {
+	doc, root, err := parse(path, src)
+	if err != nil {
+		return nil, err
+	}
+	c := &checker{file: path, root: root}
+	a := &Analysis{File: path, Dir: filepath.Dir(path), Title: doc.Title}
+
+	// Binning.
+	a.Truth, a.TruthFile, err = schemeFrom(path, a.Dir, "binning.truth", src, doc.Binning.Truth.node)
+	if err != nil {
+		return nil, err
+	}
+	a.Reco, a.RecoFile, err = schemeFrom(path, a.Dir, "binning.reco", src, doc.Binning.Reco.node)
+	if err != nil {
+		return nil, err
+	}
+
+	// Observables.
+	a.TruthObservables = c.levelExprs("observables.truth", doc.Observables.Truth.node, a.Truth, nil, true)
+	a.RecoObservables = c.levelExprs("observables.reco", doc.Observables.Reco.node, a.Reco, nil, true)
+
+	// Simulation or saved response.
+	a.ResponseFile = resolve(a.Dir, doc.Response)
+	if len(doc.Simulation) == 0 && doc.Response == "" {
+		c.errf(c.line("simulation"), "simulation", "missing: list the simulated samples, or name a saved response with the key response")
+	}
+	for i, s := range doc.Simulation {
+		f := fmt.Sprintf("simulation[%d]", i)
+		sm := Sample{Field: f, Line: c.line("simulation", i), Tree: s.Tree, Scale: s.Scale}
+		sm.File = c.path(f+".file", s.File, c.line("simulation", i, "file"), sm.Line)
+		sm.Weight = c.expr(s.Weight, "simulation", i, "weight")
+		sm.TruthSelection = c.expr(s.TruthSelection, "simulation", i, "truth_selection")
+		sm.RecoSelection = c.expr(s.RecoSelection, "simulation", i, "reco_selection")
+		sm.Scale = c.scale(s.Scale, 1, "simulation", i, "scale")
+		sm.Truth = c.levelExprs(f+".truth_observables", s.Truth.node, a.Truth, a.TruthObservables, false)
+		sm.Reco = c.levelExprs(f+".reco_observables", s.Reco.node, a.Reco, a.RecoObservables, false)
+		a.Simulation = append(a.Simulation, sm)
+	}
+
+	// Data.
+	a.Data = c.data(doc.Data, a)
+
+	// Backgrounds.
+	for i, b := range doc.Backgrounds {
+		f := fmt.Sprintf("backgrounds[%d]", i)
+		bg := Background{Name: b.Name, Tree: b.Tree, Field: f, Line: c.line("backgrounds", i)}
+		if bg.Name == "" {
+			bg.Name = fmt.Sprintf("background %d", i)
+		}
+		switch {
+		case b.Events != "" && b.Table != "":
+			c.errf(bg.Line, f, "give either events or table, not both")
+		case b.Events != "":
+			bg.Kind = DataEvents
+			bg.File = c.path(f+".events", b.Events, c.line("backgrounds", i, "events"), bg.Line)
+			bg.Weight = c.expr(b.Weight, "backgrounds", i, "weight")
+			bg.Selection = c.expr(b.Selection, "backgrounds", i, "selection")
+			bg.Observables = c.levelExprs(f+".observables", b.Observables.node, a.Reco, a.RecoObservables, false)
+		case b.Table != "":
+			bg.Kind = DataTable
+			bg.File = c.path(f+".table", b.Table, c.line("backgrounds", i, "table"), bg.Line)
+			for _, k := range []string{"tree", "weight", "selection", "observables"} {
+				if n := nodeAt(root, "backgrounds", i, k); n != nil {
+					c.errf(n.Line, f+"."+k, "applies to an events file only, not to a table")
+				}
+			}
+		default:
+			c.errf(bg.Line, f, "missing: give events (an events file) or table (a plain-table background.csv)")
+		}
+		bg.Scale = c.scale(b.Scale, 1, "backgrounds", i, "scale")
+		if u := b.ScaleUncertainty; u < 0 || math.IsNaN(u) || math.IsInf(u, 0) {
+			c.errf(c.line("backgrounds", i, "scale_uncertainty"), f+".scale_uncertainty", "must be a finite relative uncertainty ≥ 0, e.g. 0.1 for 10%%")
+		}
+		bg.ScaleUncertainty = b.ScaleUncertainty
+		a.Backgrounds = append(a.Backgrounds, bg)
+	}
+
+	// Unfolding.
+	u := doc.Unfolding
+	a.Unfolding = Unfolding{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
+		Prior: u.Prior, Smoothing: u.Smoothing, Background: u.Background, Fakes: u.Fakes}
+	switch {
+	case u.Iterations < 0:
+		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "must be ≥ 1")
+	case u.Iterations > 0 && u.StopChi2 > 0:
+		c.errf(c.line("unfolding", "stop_chi2"), "unfolding.stop_chi2", "give either iterations or stop_chi2, not both")
+	case u.StopChi2 < 0 || math.IsNaN(u.StopChi2) || math.IsInf(u.StopChi2, 0):
+		c.errf(c.line("unfolding", "stop_chi2"), "unfolding.stop_chi2", "must be a finite number > 0")
+	case u.MaxIterations < 0:
+		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "must be ≥ 1")
+	case u.MaxIterations > 0 && u.StopChi2 == 0:
+		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "bounds the stopping rule: give stop_chi2 too, or use iterations")
+	}
+	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
+	if a.Unfolding.Prior == "file" {
+		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.line("unfolding", "prior_file"), c.line("unfolding", "prior"))
+	} else if u.PriorFile != "" {
+		c.errf(c.line("unfolding", "prior_file"), "unfolding.prior_file", "is used only with prior: file")
+	}
+	if s := u.Smoothing; s < 0 || s > 1 || math.IsNaN(s) {
+		c.errf(c.line("unfolding", "smoothing"), "unfolding.smoothing", "must be a strength in (0, 1], or 0 (no smoothing)")
+	}
+	c.oneOf(&a.Unfolding.Background, "model", []string{"model", "subtract"}, "unfolding", "background")
+	c.oneOf(&a.Unfolding.Fakes, "background", []string{"background", "ignore"}, "unfolding", "fakes")
+	if m := u.MemoryLimit; m < 0 || math.IsNaN(m) || math.IsInf(m, 0) {
+		c.errf(c.line("unfolding", "memory_limit_gib"), "unfolding.memory_limit_gib", "must be a positive number of GiB")
+	} else {
+		a.Unfolding.MemoryLimit = int64(m * (1 << 30))
+	}
+
+	// Uncertainty.
+	un := doc.Uncertainty
+	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
+	c.oneOf(&a.Uncertainty.Covariance, "diag", []string{"none", "diag", "full"}, "uncertainty", "covariance")
+	c.oneOf(&a.Uncertainty.Method, "auto", []string{"auto", "exact", "probes", "toys"}, "uncertainty", "method")
+	if un.Probes < 0 || un.Probes == 1 {
+		c.errf(c.line("uncertainty", "probes"), "uncertainty.probes", "must be at least 2")
+	}
+	if un.Toys < 0 || un.Toys == 1 {
+		c.errf(c.line("uncertainty", "toys"), "uncertainty.toys", "must be at least 2")
+	}
+
+	// Output.
+	o := doc.Output
+	a.Output = Output{Formats: o.Formats, Luminosity: o.Luminosity, LuminosityUnit: o.LuminosityUnit}
+	if o.Folder == "" {
+		c.errf(c.line("output"), "output.folder", "missing: name the result folder (relative to the analysis file)")
+	}
+	a.Output.Folder = resolve(a.Dir, o.Folder)
+	if a.Output.Formats == nil {
+		a.Output.Formats = slices.Clone(knownFormats)
+	}
+	for i, f := range a.Output.Formats {
+		if !slices.Contains(knownFormats, f) {
+			c.errf(c.line("output", "formats", i), fmt.Sprintf("output.formats[%d]", i), "unknown format %q (known: %s)", f, strings.Join(knownFormats, ", "))
+		}
+	}
+	if l := o.Luminosity; l < 0 || math.IsNaN(l) || math.IsInf(l, 0) {
+		c.errf(c.line("output", "luminosity"), "output.luminosity", "must be a positive integrated luminosity")
+	}
+
+	// Processing.
+	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize
+	if a.Workers < 0 {
+		c.errf(c.line("processing", "workers"), "processing.workers", "must be ≥ 0 (0: one per core)")
+	}
+	if a.BatchSize < 0 {
+		c.errf(c.line("processing", "batch_size"), "processing.batch_size", "must be ≥ 0 (0: the default)")
+	}
+	if a.BatchSize == 0 {
+		a.BatchSize = DefaultBatchSize
+	}
+
+	if len(c.errs) == 1 {
+		return nil, c.errs[0]
+	}
+	if len(c.errs) > 1 {
+		return nil, c.errs
+	}
+	return a, nil
+}
+
+// DefaultBatchSize is the number of events read and processed at once.
+const DefaultBatchSize = 1 << 14
+
+type checker struct {
+	file string
+	root *yaml.Node
+	errs Errors
+}
+
+func (c *checker) errf(line int, field, format string, args ...any) {
+	c.errs = append(c.errs, &Error{File: c.file, Line: line, Field: field, Msg: fmt.Sprintf(format, args...)})
+}
+
+func (c *checker) line(path ...any) int {
+	for len(path) > 0 {
+		if n := nodeAt(c.root, path...); n != nil {
+			return n.Line
+		}
+		path = path[:len(path)-1]
+	}
+	return 0
+}
+
+func fieldName(path ...any) string {
+	var b strings.Builder
+	for _, p := range path {
+		switch p := p.(type) {
+		case string:
+			if b.Len() > 0 {
+				b.WriteByte('.')
+			}
+			b.WriteString(p)
+		case int:
+			fmt.Fprintf(&b, "[%d]", p)
+		}
+	}
+	return b.String()
+}
+
+func (c *checker) expr(text string, path ...any) Expression {
+	return Expression{Text: strings.TrimSpace(text), Line: c.line(path...), Field: fieldName(path...)}
+}
+
+func (c *checker) path(field, name string, line, parentLine int) string {
+	if name == "" {
+		if line == 0 {
+			line = parentLine
+		}
+		c.errf(line, field, "missing file name")
+		return ""
+	}
+	return resolve(filepath.Dir(c.file), name)
+}
+
+func (c *checker) scale(v, def float64, path ...any) float64 {
+	if nodeAt(c.root, path...) == nil {
+		return def
+	}
+	if !(v > 0) || math.IsInf(v, 0) {
+		c.errf(c.line(path...), fieldName(path...), "must be a finite number > 0")
+	}
+	return v
+}
+
+func (c *checker) oneOf(v *string, def string, options []string, path ...any) {
+	if *v == "" {
+		*v = def
+		return
+	}
+	if !slices.Contains(options, *v) {
+		c.errf(c.line(path...), fieldName(path...), "unknown value %q (one of: %s)", *v, strings.Join(options, ", "))
+	}
+}
+
+// levelExprs reads a mapping axis name → expression for the axes of
+// scheme. With required, every axis must be given; otherwise missing
+// axes take the expression from defaults (and a nil node gives
+// defaults).
+func (c *checker) levelExprs(field string, n *yaml.Node, scheme *binning.Scheme, defaults []Expression, required bool) []Expression {
+	names := scheme.AxisNames()
+	out := make([]Expression, len(names))
+	copy(out, defaults)
+	if n == nil {
+		if required {
+			c.errf(0, field, "missing: give an expression for each axis (%s)", strings.Join(names, ", "))
+		}
+		return out
+	}
+	if n.Kind != yaml.MappingNode {
+		c.errf(n.Line, field, "want a mapping from axis name to expression, e.g. {%s: \"...\"}", names[0])
+		return out
+	}
+	seen := map[string]bool{}
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		k, v := n.Content[i], n.Content[i+1]
+		ax := scheme.AxisIndex(k.Value)
+		if ax < 0 {
+			c.errf(k.Line, field+"."+k.Value, "the binning has no axis %q (axes: %s)", k.Value, strings.Join(names, ", "))
+			continue
+		}
+		if v.Kind != yaml.ScalarNode || strings.TrimSpace(v.Value) == "" {
+			c.errf(v.Line, field+"."+k.Value, "want an expression over the input columns, e.g. \"abs(y_true)\"")
+			continue
+		}
+		seen[k.Value] = true
+		out[ax] = Expression{Text: strings.TrimSpace(v.Value), Line: v.Line, Field: field + "." + k.Value}
+	}
+	for ax, name := range names {
+		if out[ax].Text == "" && (required || !seen[name]) {
+			c.errf(n.Line, field, "no expression for axis %q", name)
+		}
+	}
+	return out
+}
+
+func (c *checker) data(d dataDoc, a *Analysis) Data {
+	out := Data{Tree: d.Tree, Name: d.Name, Line: c.line("data")}
+	given := 0
+	for _, s := range []string{d.Events, d.Histogram, d.Table} {
+		if s != "" {
+			given++
+		}
+	}
+	if given != 1 {
+		c.errf(out.Line, "data", "give exactly one of events (an events file), histogram (a ROOT file) or table (a plain-table n.csv)")
+		return out
+	}
+	only := func(keys ...string) {
+		for _, k := range []string{"tree", "weight", "selection", "observables", "name"} {
+			if n := nodeAt(c.root, "data", k); n != nil && !slices.Contains(keys, k) {
+				c.errf(n.Line, "data."+k, "does not apply to this kind of data")
+			}
+		}
+	}
+	switch {
+	case d.Events != "":
+		out.Kind = DataEvents
+		out.File = c.path("data.events", d.Events, c.line("data", "events"), out.Line)
+		out.Weight = c.expr(d.Weight, "data", "weight")
+		out.Selection = c.expr(d.Selection, "data", "selection")
+		out.Observables = c.levelExprs("data.observables", d.Observables.node, a.Reco, a.RecoObservables, false)
+		only("tree", "weight", "selection", "observables")
+	case d.Histogram != "":
+		out.Kind = DataHistogram
+		out.File = c.path("data.histogram", d.Histogram, c.line("data", "histogram"), out.Line)
+		only("name")
+		regs := a.Reco.Regions()
+		if len(regs) != 1 || !regs[0].Rectangular() || len(regs[0].Axes()) > 2 {
+			c.errf(c.line("data", "histogram"), "data.histogram", "a ROOT histogram needs a reco binning of one rectangular region with one or two axes; use events or a table for this binning")
+		}
+		if out.Name == "" {
+			c.errf(out.Line, "data.name", "missing: the name of the TH1D/TH2D in the file")
+		}
+	case d.Table != "":
+		out.Kind = DataTable
+		out.File = c.path("data.table", d.Table, c.line("data", "table"), out.Line)
+		only()
+	}
+	if out.Kind == DataEvents && events.FormatOf(out.File) == events.FormatUnknown {
+		c.errf(c.line("data", "events"), "data.events", "unknown events format of %q (use .root, .parquet or .csv)", d.Events)
+	}
+	return out
+}

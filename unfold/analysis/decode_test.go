@@ -1,0 +1,111 @@
+package analysis
+
+import (
+	"errors"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/desmear/desmear/binning"
+)
+
+func TestLoadGood(t *testing.T) {
+	a, err := Load("testdata/good.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Truth.Len() != 4 || a.Reco.Len() != 6 {
+		t.Errorf("schemes of %d and %d bins, want 4 and 6", a.Truth.Len(), a.Reco.Len())
+	}
+	if a.RecoFile != filepath.Join("testdata", "reco-bins.yaml") {
+		t.Errorf("reco file %q", a.RecoFile)
+	}
+	s := a.Simulation[0]
+	if s.File != filepath.Join("testdata", "sim.csv") || s.Weight.Text != "w" || s.Weight.Line != 14 || s.Truth[0].Text != "xt" || s.Reco[0].Text != "xr" || s.Scale != 1 {
+		t.Errorf("simulation %+v", s)
+	}
+	if a.Data.Kind != DataEvents || a.Data.Observables[0].Text != "xr" {
+		t.Errorf("data %+v", a.Data)
+	}
+	b := a.Backgrounds[0]
+	if b.Kind != DataTable || b.Scale != 2 || b.ScaleUncertainty != 0.1 {
+		t.Errorf("background %+v", b)
+	}
+	if a.Unfolding.Iterations != 3 || a.Unfolding.Prior != "simulation" || a.Unfolding.Background != "model" {
+		t.Errorf("unfolding %+v", a.Unfolding)
+	}
+	if a.Uncertainty.Covariance != "full" || a.Uncertainty.Seed != 7 {
+		t.Errorf("uncertainty %+v", a.Uncertainty)
+	}
+	if a.Output.Folder != filepath.Join("testdata", "out") || len(a.Output.Formats) != 4 || a.Output.Luminosity != 2.5 {
+		t.Errorf("output %+v", a.Output)
+	}
+}
+
+// decodeErr decodes a variant of testdata/good.yaml with old replaced by
+// new and returns the error.
+func decodeErr(t *testing.T, old, new string) error {
+	t.Helper()
+	src := strings.Replace(goodText(t), old, new, 1)
+	if !strings.Contains(src, new) {
+		t.Fatalf("replacement %q not applied", old)
+	}
+	_, err := Decode([]byte(src), "testdata/bad.yaml")
+	if err == nil {
+		t.Fatalf("no error for %q → %q", old, new)
+	}
+	return err
+}
+
+func TestDecodeErrors(t *testing.T) {
+	cases := []struct {
+		old, new string
+		want     string // substring of the message
+	}{
+		{"  iterations: 3", "  iteratons: 3", `testdata/bad.yaml:26: iteratons: unknown key in unfolding (known keys: iterations,`},
+		{"title: test analysis", "titel: x", `testdata/bad.yaml:1: titel: unknown key in the top level`},
+		{"    weight: w\n    truth_selection", "    wieght: w\n    truth_selection", `testdata/bad.yaml:14: wieght: unknown key in a simulation sample`},
+		{"  iterations: 3", "  iterations: three", `testdata/bad.yaml:26: value three is a str, want a whole number`},
+		{"  covariance: full", "  covariance: some", `testdata/bad.yaml:28: uncertainty.covariance: unknown value "some" (one of: none, diag, full)`},
+		{`  reco: {x: "xr"}`, `  reco: {z: "xr"}`, `testdata/bad.yaml:11: observables.reco.z: the binning has no axis "z"`},
+		{"  folder: out", "  folder: ''", `output.folder: missing`},
+		{"    scale: 2\n", "    scale: -2\n", `testdata/bad.yaml:23: backgrounds[0].scale: must be a finite number > 0`},
+		{"  iterations: 3", "  iterations: 3\n  stop_chi2: 0.1", `unfolding.stop_chi2: give either iterations or stop_chi2`},
+		{"  events: data.csv", "  events: data.csv\n  table: n.csv", `data: give exactly one of`},
+	}
+	for _, c := range cases {
+		err := decodeErr(t, c.old, c.new)
+		if !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%q → %q:\n got %v\nwant %s", c.old, c.new, err, c.want)
+		}
+	}
+}
+
+// An error inside an inline binning scheme keeps the analysis file's
+// line numbers and names the field below binning.truth.
+func TestInlineSchemeError(t *testing.T) {
+	err := decodeErr(t, "edges: [0, 1, 2, 3]", "edges: [0, 2, 1, 3]")
+	var be *binning.Error
+	if !errors.As(err, &be) {
+		t.Fatalf("got %T %v, want a *binning.Error", err, err)
+	}
+	if be.Line != 7 || be.File != "testdata/bad.yaml" || !strings.HasPrefix(be.Field, "binning.truth.regions[0].axes[0]") {
+		t.Errorf("got %v (line %d, field %q)", err, be.Line, be.Field)
+	}
+}
+
+func TestMissingSchemeFile(t *testing.T) {
+	err := decodeErr(t, "reco: reco-bins.yaml", "reco: nowhere.yaml")
+	if !strings.Contains(err.Error(), `testdata/bad.yaml:8: binning.reco: cannot read the binning scheme "nowhere.yaml"`) {
+		t.Errorf("got %v", err)
+	}
+}
+
+func goodText(t *testing.T) string {
+	t.Helper()
+	b, err := readFile("testdata/good.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	return string(b)
+}

@@ -1,0 +1,5 @@
+package analysis
+
+import "os"
+
+var readFile = os.ReadFile
