@@ -1,0 +1,34 @@
+// Package rootio reads and writes one- and two-dimensional histograms (TH1D,
+// TH2D) in ROOT files through their raw bin arrays.
+//
+// [Hist1D] and [Hist2D] keep ROOT's own cell layout, flow cells included:
+// for a 1-D histogram with n bins, cell 0 is the underflow, cells 1..n the
+// bins and cell n+1 the overflow; for a 2-D histogram with nx×ny bins, cell
+// (ix, iy), 0 <= ix <= nx+1 and 0 <= iy <= ny+1, is at the global index
+// ix + (nx+2)*iy, so row iy = 0 holds the y underflow and column ix = 0 the x
+// underflow.
+//
+// The cells are copied to and from the arrays of go-hep's rhist types
+// directly. The package deliberately does not go through hbook.H2D: in
+// go-hep v0.36.0 the conversion between hbook.H2D and rhist.H2D places the
+// eight under/overflow regions in the wrong ROOT cells (and collapses each
+// flow row to one value), so a TH2D written or read that way loses its flows.
+//
+// Reading accepts TH1D, TH1F and TH1I (any rhist.H1 with bin accessors) and
+// TH2D, TH2F and TH2I; values are converted to float64. A histogram stored
+// without per-bin sums of squared weights (no Sumw2) reads with SumW2 equal
+// to |SumW|, the Poisson variance of unweighted counts, and Hist.HasSumW2
+// false.
+//
+// Writing sets ROOT's statistics members as TH1::ResetStats would recompute
+// them from the bins (common practice in ROOT): fTsumw, fTsumw2 and the
+// first and second moments from in-range bins at the bin centres, fEntries
+// from the Entries field. Output files are written to a temporary file and
+// renamed into place.
+//
+// # Errors and panics
+//
+// Missing files or keys, objects of another class, damaged files and
+// inconsistent histograms given to WriteFile are errors. Nothing panics on
+// user input.
+package rootio

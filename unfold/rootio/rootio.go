@@ -1,0 +1,506 @@
+package rootio
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"go-hep.org/x/hep/groot"
+	"go-hep.org/x/hep/groot/rbytes"
+	"go-hep.org/x/hep/groot/rhist"
+	"go-hep.org/x/hep/groot/riofs"
+	"go-hep.org/x/hep/groot/root"
+	"go-hep.org/x/hep/hbook"
+)
+
+// Hist1D is a one-dimensional histogram in ROOT's cell layout.
+type Hist1D struct {
+	Name, Title string
+	Edges       []float64 // nbins+1 increasing bin edges
+	SumW        []float64 // nbins+2 cells: underflow, bins, overflow
+	SumW2       []float64 // nbins+2 cells: sums of squared weights
+	Entries     float64   // number of fills; 0 on writing: the effective entries (ΣW)²/ΣW²
+	HasSumW2    bool      // on reading: whether the file stored per-bin sums of squared weights
+}
+
+// Hist2D is a two-dimensional histogram in ROOT's cell layout.
+type Hist2D struct {
+	Name, Title    string
+	XEdges, YEdges []float64 // nx+1 and ny+1 increasing bin edges
+	SumW           []float64 // (nx+2)*(ny+2) cells, cell (ix,iy) at ix + (nx+2)*iy
+	SumW2          []float64 // same layout
+	Entries        float64
+	HasSumW2       bool
+}
+
+// NewHist1D returns an empty histogram with the given edges.
+func NewHist1D(name string, edges []float64) *Hist1D {
+	n := len(edges) + 1
+	return &Hist1D{Name: name, Edges: append([]float64(nil), edges...), SumW: make([]float64, n), SumW2: make([]float64, n), HasSumW2: true}
+}
+
+// NewHist2D returns an empty histogram with the given edges.
+func NewHist2D(name string, xedges, yedges []float64) *Hist2D {
+	n := (len(xedges) + 1) * (len(yedges) + 1)
+	return &Hist2D{Name: name, XEdges: append([]float64(nil), xedges...), YEdges: append([]float64(nil), yedges...),
+		SumW: make([]float64, n), SumW2: make([]float64, n), HasSumW2: true}
+}
+
+// NBins returns the number of bins, flows excluded.
+func (h *Hist1D) NBins() int { return len(h.Edges) - 1 }
+
+// NBins returns the numbers of bins along x and y, flows excluded.
+func (h *Hist2D) NBins() (nx, ny int) { return len(h.XEdges) - 1, len(h.YEdges) - 1 }
+
+// Index returns the global cell index of cell (ix, iy), 0 <= ix <= nx+1,
+// 0 <= iy <= ny+1.
+func (h *Hist2D) Index(ix, iy int) int { return ix + (len(h.XEdges)+1)*iy }
+
+// Fill adds weight w at x, in the cell ROOT would choose: a value equal to an
+// inner edge goes to the bin above it, x < first edge to the underflow, x >=
+// last edge to the overflow; NaN is ignored.
+func (h *Hist1D) Fill(x, w float64) {
+	i, ok := cellOf(h.Edges, x)
+	if !ok {
+		return
+	}
+	h.SumW[i] += w
+	h.SumW2[i] += w * w
+	h.Entries++
+}
+
+// Fill adds weight w at (x, y) as Hist1D.Fill does along each axis.
+func (h *Hist2D) Fill(x, y, w float64) {
+	ix, okx := cellOf(h.XEdges, x)
+	iy, oky := cellOf(h.YEdges, y)
+	if !okx || !oky {
+		return
+	}
+	i := h.Index(ix, iy)
+	h.SumW[i] += w
+	h.SumW2[i] += w * w
+	h.Entries++
+}
+
+func cellOf(edges []float64, x float64) (int, bool) {
+	if x != x {
+		return 0, false
+	}
+	n := len(edges) - 1
+	if x < edges[0] {
+		return 0, true
+	}
+	if x >= edges[n] {
+		return n + 1, true
+	}
+	lo, hi := 0, n // edges[lo] <= x < edges[hi]
+	for hi-lo > 1 {
+		m := (lo + hi) / 2
+		if x >= edges[m] {
+			lo = m
+		} else {
+			hi = m
+		}
+	}
+	return lo + 1, true
+}
+
+// h1Reader is what ReadHist1D needs from a ROOT 1-D histogram.
+type h1Reader interface {
+	rhist.H1
+	NbinsX() int
+	XAxis() rhist.Axis
+	XBinContent(i int) float64
+}
+
+// h2Reader is what ReadHist2D needs from a ROOT 2-D histogram.
+type h2Reader interface {
+	rhist.H2
+	NbinsX() int
+	NbinsY() int
+	XAxis() rhist.Axis
+	YAxis() rhist.Axis
+	XBinContent(i int) float64
+}
+
+// ReadHist1D reads the 1-D histogram at key ("h" or "dir/sub/h") of a ROOT file.
+func ReadHist1D(path, key string) (h *Hist1D, err error) {
+	obj, closeFn, err := get(path, key)
+	if err != nil {
+		return nil, err
+	}
+	defer closeFn()
+	defer recoverDamaged(path, key, &err)
+	r, ok := obj.(h1Reader)
+	if !ok {
+		return nil, fmt.Errorf("rootio: %s: %q is a %s, not a 1-D histogram (TH1D, TH1F, TH1I)", path, key, obj.Class())
+	}
+	n := r.NbinsX()
+	edges, err := axisEdges(r.XAxis(), n)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: %q: x axis: %w", path, key, err)
+	}
+	h = &Hist1D{Name: r.Name(), Title: r.Title(), Edges: edges, SumW: make([]float64, n+2), Entries: r.Entries()}
+	for i := range h.SumW {
+		h.SumW[i] = r.XBinContent(i)
+	}
+	h.SumW2, h.HasSumW2, err = sumw2(r.SumW2s(), h.SumW)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: %q: %w", path, key, err)
+	}
+	return h, nil
+}
+
+// ReadHist2D reads the 2-D histogram at key of a ROOT file.
+func ReadHist2D(path, key string) (h *Hist2D, err error) {
+	obj, closeFn, err := get(path, key)
+	if err != nil {
+		return nil, err
+	}
+	defer closeFn()
+	defer recoverDamaged(path, key, &err)
+	r, ok := obj.(h2Reader)
+	if !ok {
+		return nil, fmt.Errorf("rootio: %s: %q is a %s, not a 2-D histogram (TH2D, TH2F, TH2I)", path, key, obj.Class())
+	}
+	nx, ny := r.NbinsX(), r.NbinsY()
+	xe, err := axisEdges(r.XAxis(), nx)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: %q: x axis: %w", path, key, err)
+	}
+	ye, err := axisEdges(r.YAxis(), ny)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: %q: y axis: %w", path, key, err)
+	}
+	h = &Hist2D{Name: r.Name(), Title: r.Title(), XEdges: xe, YEdges: ye, SumW: make([]float64, (nx+2)*(ny+2)), Entries: r.Entries()}
+	for i := range h.SumW {
+		h.SumW[i] = r.XBinContent(i)
+	}
+	h.SumW2, h.HasSumW2, err = sumw2(r.SumW2s(), h.SumW)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: %q: %w", path, key, err)
+	}
+	return h, nil
+}
+
+func sumw2(stored, sumw []float64) ([]float64, bool, error) {
+	out := make([]float64, len(sumw))
+	switch len(stored) {
+	case 0:
+		for i, v := range sumw {
+			out[i] = math.Abs(v)
+		}
+		return out, false, nil
+	case len(sumw):
+		copy(out, stored)
+		return out, true, nil
+	}
+	return nil, false, fmt.Errorf("fSumw2 has %d cells, fArray has %d", len(stored), len(sumw))
+}
+
+// axisEdges returns the n+1 edges of an axis: fXbins if set, else n uniform
+// bins from fXmin to fXmax computed as ROOT's TAxis::GetBinLowEdge does,
+// xmin + i*((xmax-xmin)/n) (from memory of ROOT's TAxis source).
+func axisEdges(a rhist.Axis, n int) ([]float64, error) {
+	if n < 1 {
+		return nil, fmt.Errorf("%d bins", n)
+	}
+	if xb := a.XBins(); len(xb) > 0 {
+		if len(xb) != n+1 {
+			return nil, fmt.Errorf("%d edges for %d bins", len(xb), n)
+		}
+		e := append([]float64(nil), xb...)
+		return e, checkEdges(e)
+	}
+	lo, hi := a.XMin(), a.XMax()
+	w := (hi - lo) / float64(n)
+	e := make([]float64, n+1)
+	for i := range n {
+		e[i] = lo + float64(i)*w
+	}
+	e[n] = hi
+	return e, checkEdges(e)
+}
+
+func checkEdges(e []float64) error {
+	for i := 1; i < len(e); i++ {
+		if !(e[i] > e[i-1]) {
+			return fmt.Errorf("edges not increasing at %d: %g, %g", i, e[i-1], e[i])
+		}
+	}
+	if math.IsInf(e[0], 0) || math.IsInf(e[len(e)-1], 0) || e[0] != e[0] {
+		return errors.New("edges must be finite")
+	}
+	return nil
+}
+
+func get(path, key string) (root.Object, func(), error) {
+	f, err := openFile(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	obj, err := func() (obj root.Object, err error) {
+		defer recoverDamaged(path, key, &err)
+		return riofs.Dir(f).Get(key)
+	}()
+	if err != nil {
+		f.Close()
+		return nil, nil, fmt.Errorf("rootio: %s: no object %q: %w", path, key, err)
+	}
+	return obj, func() { f.Close() }, nil
+}
+
+func openFile(path string) (f *riofs.File, err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			f, err = nil, fmt.Errorf("rootio: %s: damaged ROOT file: %v", path, p)
+		}
+	}()
+	f, err = groot.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %s: cannot open as a ROOT file: %w", path, err)
+	}
+	return f, nil
+}
+
+func recoverDamaged(path, key string, err *error) {
+	if p := recover(); p != nil {
+		*err = fmt.Errorf("rootio: %s: %q: damaged ROOT file: %v", path, key, p)
+	}
+}
+
+// Key describes an object stored in a ROOT file.
+type Key struct {
+	Path  string // "h" or "dir/sub/h"
+	Class string // "TH1D", "TTree", ...
+}
+
+// Keys lists the objects of a ROOT file, directories descended, in file order.
+func Keys(path string) (keys []Key, err error) {
+	f, err := openFile(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	defer recoverDamaged(path, "", &err)
+	var walk func(d riofs.Directory, prefix string) error
+	walk = func(d riofs.Directory, prefix string) error {
+		for _, k := range d.Keys() {
+			p := prefix + k.Name()
+			if k.ClassName() == "TDirectoryFile" || k.ClassName() == "TDirectory" {
+				obj, err := k.Object()
+				if err != nil {
+					return err
+				}
+				if sub, ok := obj.(riofs.Directory); ok {
+					if err := walk(sub, p+"/"); err != nil {
+						return err
+					}
+					continue
+				}
+			}
+			keys = append(keys, Key{Path: p, Class: k.ClassName()})
+		}
+		return nil
+	}
+	if err := walk(f, ""); err != nil {
+		return nil, fmt.Errorf("rootio: %s: %w", path, err)
+	}
+	return keys, nil
+}
+
+func (h *Hist1D) check() error {
+	n := len(h.Edges) - 1
+	if n < 1 {
+		return fmt.Errorf("histogram %q: %d edges; need at least 2", h.Name, len(h.Edges))
+	}
+	if err := checkEdges(h.Edges); err != nil {
+		return fmt.Errorf("histogram %q: %w", h.Name, err)
+	}
+	if len(h.SumW) != n+2 || len(h.SumW2) != n+2 {
+		return fmt.Errorf("histogram %q: %d bins need %d cells with flows; SumW has %d, SumW2 %d", h.Name, n, n+2, len(h.SumW), len(h.SumW2))
+	}
+	return nil
+}
+
+func (h *Hist2D) check() error {
+	nx, ny := h.NBins()
+	if nx < 1 || ny < 1 {
+		return fmt.Errorf("histogram %q: need at least 2 edges per axis, have %d and %d", h.Name, len(h.XEdges), len(h.YEdges))
+	}
+	if err := checkEdges(h.XEdges); err != nil {
+		return fmt.Errorf("histogram %q: x: %w", h.Name, err)
+	}
+	if err := checkEdges(h.YEdges); err != nil {
+		return fmt.Errorf("histogram %q: y: %w", h.Name, err)
+	}
+	n := (nx + 2) * (ny + 2)
+	if len(h.SumW) != n || len(h.SumW2) != n {
+		return fmt.Errorf("histogram %q: %dx%d bins need %d cells with flows; SumW has %d, SumW2 %d", h.Name, nx, ny, n, len(h.SumW), len(h.SumW2))
+	}
+	return nil
+}
+
+// WriteFile writes the histograms to a new ROOT file at path, as TH1D and
+// TH2D objects keyed by their names; a name "dir/h" puts h in directory dir.
+// The file is written under a temporary name and renamed into place.
+func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
+	seen := map[string]bool{}
+	for _, h := range h1 {
+		if err := h.check(); err != nil {
+			return fmt.Errorf("rootio: writing %s: %w", path, err)
+		}
+		if err := checkName(h.Name, seen); err != nil {
+			return fmt.Errorf("rootio: writing %s: %w", path, err)
+		}
+	}
+	for _, h := range h2 {
+		if err := h.check(); err != nil {
+			return fmt.Errorf("rootio: writing %s: %w", path, err)
+		}
+		if err := checkName(h.Name, seen); err != nil {
+			return fmt.Errorf("rootio: writing %s: %w", path, err)
+		}
+	}
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	tf, err := os.CreateTemp(dir, "."+base+".tmp-*.root")
+	if err != nil {
+		return fmt.Errorf("rootio: writing %s: %w", path, err)
+	}
+	tmp := tf.Name()
+	tf.Close()
+	ok := false
+	defer func() {
+		if !ok {
+			os.Remove(tmp)
+		}
+	}()
+	f, err := groot.Create(tmp)
+	if err != nil {
+		return fmt.Errorf("rootio: writing %s: %w", path, err)
+	}
+	d := riofs.Dir(f)
+	for _, h := range h1 {
+		if err := d.Put(h.Name, toTH1D(h)); err != nil {
+			f.Close()
+			return fmt.Errorf("rootio: writing %s: %q: %w", path, h.Name, err)
+		}
+	}
+	for _, h := range h2 {
+		if err := d.Put(h.Name, toTH2D(h)); err != nil {
+			f.Close()
+			return fmt.Errorf("rootio: writing %s: %q: %w", path, h.Name, err)
+		}
+	}
+	if err := f.Close(); err != nil {
+		return fmt.Errorf("rootio: writing %s: %w", path, err)
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		return fmt.Errorf("rootio: writing %s: %w", path, err)
+	}
+	ok = true
+	return nil
+}
+
+func checkName(name string, seen map[string]bool) error {
+	if name == "" || strings.HasPrefix(name, "/") || strings.HasSuffix(name, "/") || strings.Contains(name, "//") || strings.ContainsAny(name, ";") {
+		return fmt.Errorf("bad histogram name %q", name)
+	}
+	if seen[name] {
+		return fmt.Errorf("histogram name %q used twice", name)
+	}
+	seen[name] = true
+	return nil
+}
+
+// setMember sets the float64 member name of a ROOT object.
+func setMember(obj rbytes.RSlicer, name string, v float64) {
+	for _, m := range obj.RMembers() {
+		if m.Name == name {
+			*m.Value.(*float64) = v
+			return
+		}
+	}
+	panic("rootio: no member " + name) // the member list is fixed by go-hep's TH1 streamer
+}
+
+func entries(given float64, sumw, sumw2 []float64) float64 {
+	if given != 0 {
+		return given
+	}
+	var s, s2 float64
+	for i := range sumw {
+		s += sumw[i]
+		s2 += sumw2[i]
+	}
+	if s2 == 0 {
+		return 0
+	}
+	return s * s / s2
+}
+
+func toTH1D(h *Hist1D) *rhist.H1D {
+	hb := hbook.NewH1DFromEdges(h.Edges) // axes only; the cells are copied below
+	hb.Annotation()["name"] = h.Name[strings.LastIndexByte(h.Name, '/')+1:]
+	hb.Annotation()["title"] = h.Title
+	r := rhist.NewH1DFrom(hb)
+	copy(r.Array().Data, h.SumW)
+	copy(r.SumW2s(), h.SumW2)
+	n := h.NBins()
+	var sw, sw2, swx, swx2 float64
+	for i := 1; i <= n; i++ {
+		x := 0.5 * (h.Edges[i-1] + h.Edges[i])
+		w := h.SumW[i]
+		sw += w
+		sw2 += h.SumW2[i]
+		swx += w * x
+		swx2 += w * x * x
+	}
+	setMember(r, "fEntries", entries(h.Entries, h.SumW, h.SumW2))
+	setMember(r, "fTsumw", sw)
+	setMember(r, "fTsumw2", sw2)
+	setMember(r, "fTsumwx", swx)
+	setMember(r, "fTsumwx2", swx2)
+	return r
+}
+
+func toTH2D(h *Hist2D) *rhist.H2D {
+	hb := hbook.NewH2DFromEdges(h.XEdges, h.YEdges) // axes only
+	hb.Annotation()["name"] = h.Name[strings.LastIndexByte(h.Name, '/')+1:]
+	hb.Annotation()["title"] = h.Title
+	r := rhist.NewH2DFrom(hb)
+	copy(r.Array().Data, h.SumW)
+	copy(r.SumW2s(), h.SumW2)
+	nx, ny := h.NBins()
+	var sw, sw2, swx, swx2, swy, swy2, swxy float64
+	for iy := 1; iy <= ny; iy++ {
+		y := 0.5 * (h.YEdges[iy-1] + h.YEdges[iy])
+		for ix := 1; ix <= nx; ix++ {
+			x := 0.5 * (h.XEdges[ix-1] + h.XEdges[ix])
+			i := h.Index(ix, iy)
+			w := h.SumW[i]
+			sw += w
+			sw2 += h.SumW2[i]
+			swx += w * x
+			swx2 += w * x * x
+			swy += w * y
+			swy2 += w * y * y
+			swxy += w * x * y
+		}
+	}
+	setMember(r, "fEntries", entries(h.Entries, h.SumW, h.SumW2))
+	setMember(r, "fTsumw", sw)
+	setMember(r, "fTsumw2", sw2)
+	setMember(r, "fTsumwx", swx)
+	setMember(r, "fTsumwx2", swx2)
+	setMember(r, "fTsumwy", swy)
+	setMember(r, "fTsumwy2", swy2)
+	setMember(r, "fTsumwxy", swxy)
+	return r
+}
