@@ -45,9 +45,11 @@ type Summary struct {
 	// that fall outside the reco scheme. Those located in a truth bin
 	// are counted among the misses as well.
 	OutsideReco int64 `json:"outside_reco"`
-	// NegativeCells lists the migration cells whose weight sum is
-	// negative (possible with negative event weights).
-	NegativeCells []Cell `json:"negative_cells,omitempty"`
+	// NegativeCellCount is the number of migration cells whose weight
+	// sum is negative (possible with negative event weights), and
+	// NegativeCells lists the first sparse.MaxReportedCells of them.
+	NegativeCellCount int    `json:"negative_cell_count"`
+	NegativeCells     []Cell `json:"negative_cells,omitempty"`
 	// NegativeGenerated lists the truth bins whose generated sum is
 	// negative.
 	NegativeGenerated []int `json:"negative_generated,omitempty"`
@@ -156,7 +158,8 @@ func ratio(a, b float64) float64 {
 // the samples and their order, never on the number of workers.
 type Builder struct {
 	truth, reco Locator
-	cells       *cells
+	acc         *sparse.Accumulator
+	seq         uint64 // batches fed to acc so far
 	gen, gen2   []float64
 	fake, fake2 []float64
 	diag, rit   []float64
@@ -171,10 +174,13 @@ func NewBuilder(truth, reco Locator) *Builder {
 	if nt >= math.MaxInt32 || nr >= math.MaxInt32 {
 		panic("fill: scheme too large")
 	}
+	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	if err != nil {
+		panic(err)
+	}
 	return &Builder{
-		truth: truth, reco: reco,
-		cells: newCells(),
-		gen:   make([]float64, nt), gen2: make([]float64, nt),
+		truth: truth, reco: reco, acc: acc,
+		gen: make([]float64, nt), gen2: make([]float64, nt),
 		fake: make([]float64, nr), fake2: make([]float64, nr),
 		diag: make([]float64, nt), rit: make([]float64, nt),
 	}
@@ -192,6 +198,7 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 	}
 	b.samples++
 	diagLevel := &Level{Observables: sim.RecoInTruth, Select: sim.Reco.Select}
+	seq0 := b.seq
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
 		truth, reco, diag := sim.Truth.instantiate(), sim.Reco.instantiate(), diagLevel.instantiate()
@@ -204,7 +211,18 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 			if withDiag {
 				sc.locate(bt.diag, diag, b.truth, bt.cols, bt.n)
 			}
-			return nil
+			// Migration entries of the batch, in event order, as batch
+			// number seq0+bt.seq of the accumulator's entry stream.
+			rows, cols, w := sc.rows[:0], sc.cols[:0], sc.w[:0]
+			for k, t := range bt.truth {
+				if r := bt.reco[k]; t >= 0 && r >= 0 {
+					rows = append(rows, r)
+					cols = append(cols, t)
+					w = append(w, bt.w[k])
+				}
+			}
+			sc.rows, sc.cols, sc.w = rows, cols, w
+			return b.acc.AddBatch(seq0+uint64(bt.seq), rows, cols, w)
 		}
 	}
 	var s Summary
@@ -220,7 +238,6 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 				b.gen[t] += w
 				b.gen2[t] += w * w
 				if r >= 0 {
-					b.cells.add(r, t, w)
 					s.Entries++
 				} else {
 					s.Misses++
@@ -246,7 +263,8 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 		}
 		return nil
 	}
-	n, err := stream(ctx, &sim.Sample, opt, newWork, consume)
+	n, batches, err := stream(ctx, &sim.Sample, opt, newWork, consume)
+	b.seq += uint64(batches)
 	s.Events = n
 	if err != nil {
 		return s, err
@@ -258,7 +276,8 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 // Response returns the built response. The Builder must not be used
 // afterwards.
 func (b *Builder) Response() (*Response, error) {
-	m, neg, err := b.cells.matrix(b.reco.Len(), b.truth.Len())
+	m, rep, err := b.acc.Matrix()
+	b.acc = nil
 	if err != nil {
 		return nil, err
 	}
@@ -268,7 +287,10 @@ func (b *Builder) Response() (*Response, error) {
 		Fakes: b.fake, FakesSumW2: b.fake2,
 		Summary: b.sum,
 	}
-	r.Summary.NegativeCells = neg
+	r.Summary.NegativeCellCount = rep.NegativeCount
+	for _, c := range rep.Negative {
+		r.Summary.NegativeCells = append(r.Summary.NegativeCells, Cell{Reco: c.Row, Truth: c.Col, Value: c.SumW})
+	}
 	for j, g := range b.gen {
 		if g < 0 {
 			r.Summary.NegativeGenerated = append(r.Summary.NegativeGenerated, j)
@@ -277,7 +299,6 @@ func (b *Builder) Response() (*Response, error) {
 	if b.withDiag {
 		r.Diagonal, r.RecoInTruth = b.diag, b.rit
 	}
-	b.cells = nil
 	return r, nil
 }
 
@@ -330,7 +351,7 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 		}
 		return nil
 	}
-	n, err := stream(ctx, s, opt, newWork, consume)
+	n, _, err := stream(ctx, s, opt, newWork, consume)
 	h.Events += n
 	h.Selected += sel
 	h.Outside += out

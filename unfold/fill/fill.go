@@ -134,9 +134,11 @@ func (b *batch) ensure(ncols, n int) {
 
 // scratch is a worker's evaluation space.
 type scratch struct {
-	sel   []float64
-	obs   [][]float64 // per axis values
-	point []float64
+	rows, cols []int32
+	w          []float64
+	sel        []float64
+	obs        [][]float64 // per axis values
+	point      []float64
 }
 
 func (s *scratch) ensure(naxes, n int) {
@@ -222,7 +224,7 @@ func (s *scratch) locate(dst []int32, l *level, scheme Locator, cols [][]float64
 // and consume receives every processed batch in event order, on the
 // calling goroutine. Memory is bounded by a fixed number of batches in
 // flight.
-func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*scratch, *batch) error, consume func(*batch) error) (int64, error) {
+func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*scratch, *batch) error, consume func(*batch) error) (events, batches int64, err error) {
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	nw := opt.workers()
@@ -285,7 +287,7 @@ func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*s
 
 	// Consume in sequence order.
 	pending := make(map[int64]*batch)
-	var next, events int64
+	var next int64
 	var firstErr error
 	for b := range done {
 		if firstErr != nil {
@@ -318,15 +320,15 @@ func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*s
 	}
 	<-readDone
 	if firstErr != nil {
-		return events, firstErr
+		return events, next, firstErr
 	}
 	if readErr != nil {
-		return events, readErr
+		return events, next, readErr
 	}
 	if err := ctx.Err(); err != nil {
-		return events, err
+		return events, next, err
 	}
-	return events, nil
+	return events, next, nil
 }
 
 // evalWeights fills b.w with the sample's weights (from weight, nil
