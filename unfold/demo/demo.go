@@ -1,0 +1,374 @@
+package demo
+
+import (
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+
+	"github.com/desmear/desmear/binning"
+)
+
+// File names inside a demo folder.
+const (
+	AnalysisFile       = "analysis.yaml"
+	TruthBinningFile   = "truth-binning.yaml"
+	RecoBinningFile    = "reco-binning.yaml"
+	SimulationROOT     = "simulation.root"
+	SimulationParquet  = "simulation.parquet"
+	DataROOT           = "data.root"
+	DataParquet        = "data.parquet"
+	TruthFile          = "truth.csv"
+	ScenarioFile       = "scenario.json"
+	ResultFolder       = "result"
+	temporaryDirPrefix = ".desmear-demo-"
+)
+
+// Inputs describes a generated demo folder.
+type Inputs struct {
+	Dir    string // the folder
+	Config Config // size and seed it was made with
+
+	SimulatedEvents int // events in the simulation files
+	DataEvents      int // events in the pseudo-data files
+
+	// Truth is the known truth of the pseudo-data, per truth bin.
+	Truth *Truth
+}
+
+// Path returns the path of the named file of the folder.
+func (in *Inputs) Path(name string) string { return filepath.Join(in.Dir, name) }
+
+// Truth is the known truth-level spectrum of the pseudo-data, indexed by
+// the global bins of the demo's truth binning.
+type Truth struct {
+	Scheme *binning.Scheme
+	// Expected is the expected number of generated zetons in each bin:
+	// the generator's densities integrated in closed form over the bin,
+	// times the expected yield. It is what the unfolded spectrum
+	// estimates, and what the demo compares it with.
+	Expected []float64
+	// Generated is the number of zetons the pseudo-data actually hold in
+	// each bin. It fluctuates around Expected with the Poisson
+	// uncertainty of the generation, which is correlated with the data,
+	// so the data-statistical covariance of the unfolded spectrum does
+	// not apply to unfolded − Generated; it is kept for reference.
+	Generated []float64
+}
+
+// TruthScheme returns the demo's truth binning.
+func TruthScheme() *binning.Scheme { return mustScheme(truthBinningYAML, TruthBinningFile) }
+
+// RecoScheme returns the demo's reco binning.
+func RecoScheme() *binning.Scheme { return mustScheme(recoBinningYAML, RecoBinningFile) }
+
+func mustScheme(text, name string) *binning.Scheme {
+	s, err := binning.Decode(strings.NewReader(text), name)
+	if err != nil {
+		panic(fmt.Sprintf("demo: built-in %s does not decode: %v", name, err))
+	}
+	return s
+}
+
+// ExpectedTruth returns the expected number of generated zetons of the
+// pseudo-data of cfg in each global bin of the truth scheme s, whose axes
+// must be named "y" (absolute rapidity) and "pt" (GeV). Flow bins get the
+// expectation over their open range, clipped to the generated and
+// fiducial region.
+func ExpectedTruth(s *binning.Scheme, cfg Config) []float64 {
+	out := make([]float64, s.Len())
+	lz := cfg.dataZetons()
+	for g := range out {
+		b := s.Bin(g)
+		ptLo, ptHi := math.Inf(-1), math.Inf(1)
+		yLo, yHi := math.Inf(-1), math.Inf(1)
+		for k, name := range b.Axes {
+			switch name {
+			case "pt":
+				ptLo, ptHi = b.Low[k], b.High[k]
+			case "y":
+				yLo, yHi = b.Low[k], b.High[k]
+			default:
+				panic(fmt.Sprintf("demo: truth scheme axis %q is neither y nor pt", name))
+			}
+		}
+		out[g] = lz * dataModel.fraction(ptLo, ptHi, yLo, yHi)
+	}
+	return out
+}
+
+// Generate makes the demo's inputs with cfg and writes them into the
+// folder dir: the simulation and the pseudo-data as ROOT and Parquet
+// files, the truth and reco binnings, the analysis file, the known truth
+// of the pseudo-data (truth.csv) and a description of the scenario
+// (scenario.json). The folder is written under a temporary name beside
+// dir and renamed into place, so a failed or cancelled run leaves nothing
+// behind. If dir exists Generate returns an error wrapping fs.ErrExist,
+// unless replace is true and dir is empty or a previous demo folder (it
+// holds scenario.json): then it is replaced. Whatever the number of
+// cores, the same cfg gives the same bytes.
+func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Inputs, error) {
+	if err := cfg.check(); err != nil {
+		return nil, err
+	}
+	if cfg.Events == 0 {
+		cfg.Events = DefaultEvents
+	}
+	if err := checkTarget(dir, replace); err != nil {
+		return nil, err
+	}
+	sim, data, dataTruth, err := generate(ctx, cfg)
+	if err != nil {
+		return nil, err
+	}
+	parent := filepath.Dir(filepath.Clean(dir))
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return nil, err
+	}
+	tmp, err := os.MkdirTemp(parent, temporaryDirPrefix)
+	if err != nil {
+		return nil, err
+	}
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		os.RemoveAll(tmp)
+		return nil, err
+	}
+	ok := false
+	defer func() {
+		if !ok {
+			os.RemoveAll(tmp)
+		}
+	}()
+	in := &Inputs{Dir: tmp, Config: cfg, SimulatedEvents: sim.len(), DataEvents: data.len()}
+	if err := writeInputs(ctx, in, sim, data, dataTruth); err != nil {
+		return nil, err
+	}
+	if err := moveIntoPlace(tmp, dir, replace); err != nil {
+		return nil, err
+	}
+	ok = true
+	in.Dir = dir
+	return in, nil
+}
+
+// checkTarget refuses an existing dir unless it may be replaced.
+func checkTarget(dir string, replace bool) error {
+	st, err := os.Stat(dir)
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil
+	}
+	if err != nil {
+		return err
+	}
+	if !replace {
+		return fmt.Errorf("demo: %s already exists (replace it with --force): %w", dir, fs.ErrExist)
+	}
+	if !st.IsDir() {
+		return fmt.Errorf("demo: %s exists and is not a folder; choose another output folder", dir)
+	}
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return err
+	}
+	if len(entries) == 0 {
+		return nil
+	}
+	if _, err := os.Stat(filepath.Join(dir, ScenarioFile)); err != nil {
+		return fmt.Errorf("demo: %s is not empty and holds no %s, so it is not a demo folder; it is left alone: choose another output folder", dir, ScenarioFile)
+	}
+	return nil
+}
+
+// moveIntoPlace renames tmp to dir, replacing an existing dir if allowed
+// (checked again, in case it appeared meanwhile).
+func moveIntoPlace(tmp, dir string, replace bool) error {
+	if err := checkTarget(dir, replace); err != nil {
+		return err
+	}
+	if _, err := os.Stat(dir); err == nil {
+		old := tmp + ".old"
+		if err := os.Rename(dir, old); err != nil {
+			return err
+		}
+		if err := os.Rename(tmp, dir); err != nil {
+			os.Rename(old, dir)
+			return err
+		}
+		return os.RemoveAll(old)
+	}
+	return os.Rename(tmp, dir)
+}
+
+// writeInputs writes every file of the folder in.Dir.
+func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) error {
+	truthScheme, err := writeScheme(in.Path(TruthBinningFile), truthBinningYAML)
+	if err != nil {
+		return err
+	}
+	if _, err := writeScheme(in.Path(RecoBinningFile), recoBinningYAML); err != nil {
+		return err
+	}
+	in.Truth = &Truth{
+		Scheme:    truthScheme,
+		Expected:  ExpectedTruth(truthScheme, in.Config),
+		Generated: histogramTruth(truthScheme, dataTruth),
+	}
+	if err := writeTruth(in.Path(TruthFile), in.Truth); err != nil {
+		return err
+	}
+	if err := os.WriteFile(in.Path(AnalysisFile), []byte(analysisYAML(in.Config)), 0o644); err != nil {
+		return err
+	}
+	if err := writeScenario(in.Path(ScenarioFile), in); err != nil {
+		return err
+	}
+	writers := []func() error{
+		func() error { return writeSimulationROOT(ctx, in.Path(SimulationROOT), sim) },
+		func() error { return writeSimulationParquet(ctx, in.Path(SimulationParquet), sim) },
+		func() error { return writeDataROOT(ctx, in.Path(DataROOT), data) },
+		func() error { return writeDataParquet(ctx, in.Path(DataParquet), data) },
+	}
+	errs := make([]error, len(writers))
+	var wg sync.WaitGroup
+	for k, w := range writers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			errs[k] = w()
+		}()
+	}
+	wg.Wait()
+	return errors.Join(errs...)
+}
+
+func writeScheme(path, text string) (*binning.Scheme, error) {
+	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+		return nil, err
+	}
+	return binning.ReadFile(path)
+}
+
+// histogramTruth counts the fiducial zetons of s in the truth scheme t.
+func histogramTruth(t *binning.Scheme, s *sample) []float64 {
+	h := make([]float64, t.Len())
+	x := make([]float64, len(t.AxisNames()))
+	iy, ipt := t.AxisIndex("y"), t.AxisIndex("pt")
+	for i := range s.len() {
+		if !s.passTruth[i] {
+			continue
+		}
+		x[iy], x[ipt] = math.Abs(s.yTrue[i]), s.ptTrue[i]
+		if g := t.Locate(x); g >= 0 {
+			h[g]++
+		}
+	}
+	return h
+}
+
+// TruthHeader is the header of truth.csv.
+var TruthHeader = []string{"index", "label", "flow", "expected", "generated"}
+
+func writeTruth(path string, t *Truth) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	w := csv.NewWriter(f)
+	w.Write(TruthHeader)
+	for g := range t.Expected {
+		b := t.Scheme.Bin(g)
+		w.Write([]string{
+			strconv.Itoa(g), t.Scheme.Label(g), strconv.FormatBool(b.Flow),
+			strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
+			strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
+		})
+	}
+	w.Flush()
+	if err := w.Error(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// ReadTruth reads the known truth (truth.csv) of the demo folder dir.
+func ReadTruth(dir string) (*Truth, error) {
+	s, err := binning.ReadFile(filepath.Join(dir, TruthBinningFile))
+	if err != nil {
+		return nil, err
+	}
+	path := filepath.Join(dir, TruthFile)
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	r := csv.NewReader(f)
+	r.FieldsPerRecord = len(TruthHeader)
+	rows, err := r.ReadAll()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if len(rows) != s.Len()+1 || strings.Join(rows[0], ",") != strings.Join(TruthHeader, ",") {
+		return nil, fmt.Errorf("%s: want the header %q and %d rows, one per truth bin", path, strings.Join(TruthHeader, ","), s.Len())
+	}
+	t := &Truth{Scheme: s, Expected: make([]float64, s.Len()), Generated: make([]float64, s.Len())}
+	for k, row := range rows[1:] {
+		g, err := strconv.Atoi(row[0])
+		if err != nil || g != k {
+			return nil, fmt.Errorf("%s:%d: index %q, want %d", path, k+2, row[0], k)
+		}
+		if t.Expected[k], err = strconv.ParseFloat(row[3], 64); err != nil {
+			return nil, fmt.Errorf("%s:%d: expected: %w", path, k+2, err)
+		}
+		if t.Generated[k], err = strconv.ParseFloat(row[4], 64); err != nil {
+			return nil, fmt.Errorf("%s:%d: generated: %w", path, k+2, err)
+		}
+	}
+	return t, nil
+}
+
+// scenario is the content of scenario.json: what the folder is and how
+// it was made, for people and for Generate's replace check.
+type scenario struct {
+	Description     string             `json:"description"`
+	Events          int                `json:"events"`
+	Seed            uint64             `json:"seed"`
+	SimulatedEvents int                `json:"simulated_events"`
+	DataEvents      int                `json:"data_events"`
+	Parameters      map[string]float64 `json:"parameters"`
+}
+
+func writeScenario(path string, in *Inputs) error {
+	sc := scenario{
+		Description: "desmear demo: an invented measurement of the made-up zeton particle in the imaginary " +
+			"\"demo run\", double-differential in pt (GeV) and |y|. The simulation and the pseudo-data differ in shape " +
+			"(harder pt slope and narrower |y| shape in the pseudo-data). No number comes from a real experiment.",
+		Events: in.Config.Events, Seed: in.Config.Seed,
+		SimulatedEvents: in.SimulatedEvents, DataEvents: in.DataEvents,
+		Parameters: map[string]float64{
+			"pt_min_GeV": ptMin, "abs_y_max": yMax, "abs_y_fiducial": yFiducial,
+			"sim_pt_slope": simSlope, "data_pt_slope": dataSlope, "generation_pt_slope": genSlope,
+			"sim_y_width": simYWidth, "data_y_width": dataYWidth,
+			"efficiency_plateau": effPlateau, "efficiency_y_drop": effYDrop,
+			"efficiency_turn_on": effTurnOn, "efficiency_turn_on_GeV": effTurnPt,
+			"resolution_constant": resA, "resolution_per_GeV": resB, "pt_scale": ptScale, "y_resolution": resY,
+			"fake_pt_min_GeV": fakePtMin, "fake_pt_mean_GeV": fakePtMean,
+			"data_zetons_expected": in.Config.dataZetons(), "data_fakes_expected": in.Config.dataFakes(),
+			"sim_cross_section_ratio": simNormalRatio, "sim_fake_fraction": simFakeFraction,
+		},
+	}
+	b, err := json.MarshalIndent(sc, "", "  ")
+	if err != nil {
+		return err
+	}
+	return os.WriteFile(path, append(b, '\n'), 0o644)
+}

@@ -1,0 +1,53 @@
+package demo_test
+
+import (
+	"context"
+	"fmt"
+	"log"
+	"os"
+	"path/filepath"
+
+	"github.com/desmear/desmear/unfold/demo"
+)
+
+func ExampleGenerate() {
+	base, err := os.MkdirTemp("", "demo-example-")
+	if err != nil {
+		log.Fatal(err)
+	}
+	defer os.RemoveAll(base)
+	in, err := demo.Generate(context.Background(), filepath.Join(base, "demo"), demo.Config{Events: 20_000, Seed: 1}, false)
+	if err != nil {
+		log.Fatal(err)
+	}
+	entries, _ := os.ReadDir(in.Dir)
+	for _, e := range entries {
+		fmt.Println(e.Name())
+	}
+	fmt.Println("simulated events:", in.SimulatedEvents)
+	// Output:
+	// analysis.yaml
+	// data.parquet
+	// data.root
+	// reco-binning.yaml
+	// scenario.json
+	// simulation.parquet
+	// simulation.root
+	// truth-binning.yaml
+	// truth.csv
+	// simulated events: 20000
+}
+
+func ExampleExpectedTruth() {
+	s := demo.TruthScheme()
+	want := demo.ExpectedTruth(s, demo.DefaultConfig())
+	for _, g := range []int{0, 7, 15} {
+		fmt.Printf("%-30s %8.1f\n", s.Label(g), want[g])
+	}
+	fmt.Println("truth bins:", s.Len(), "in range:", s.InRange())
+	// Output:
+	// central y[0,0.8) pt[20,25)      18392.3
+	// central y[0,0.8) pt[110,160)      259.2
+	// forward y[1.6,2.5) pt[20,25)    13293.8
+	// truth bins: 26 in range: 20
+}

@@ -1,0 +1,192 @@
+package demo
+
+import (
+	"bufio"
+	"context"
+	"fmt"
+	"os"
+
+	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/compress/snappy"
+	"go-hep.org/x/hep/groot"
+	"go-hep.org/x/hep/groot/rtree"
+)
+
+// TreeName is the name of the TTree in the demo's ROOT files.
+const TreeName = "events"
+
+// The demo's event files are written with go-hep's groot and with
+// parquet-go directly (not through desmear's own readers' package), so
+// that reading them back exercises desmear's readers against files of an
+// independent writer. In the ROOT files the kinematic branches are
+// float32 (Float_t, as in many analysis ntuples), the weight float64 and
+// the flags bool (Bool_t). The Parquet files hold the same values as
+// DOUBLE and BOOLEAN columns.
+
+// simRow is one row of simulation.parquet.
+type simRow struct {
+	PtTrue    float64 `parquet:"pt_true"`
+	YTrue     float64 `parquet:"y_true"`
+	PtReco    float64 `parquet:"pt_reco"`
+	YReco     float64 `parquet:"y_reco"`
+	Weight    float64 `parquet:"weight"`
+	PassTruth bool    `parquet:"pass_truth"`
+	PassReco  bool    `parquet:"pass_reco"`
+}
+
+// dataRow is one row of data.parquet.
+type dataRow struct {
+	Pt float64 `parquet:"pt"`
+	Y  float64 `parquet:"y"`
+}
+
+// ctxEvery is how often the writers look at the context.
+const ctxEvery = 1 << 16
+
+// writeSimulationROOT writes the simulation as a TTree.
+func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
+	f, err := groot.Create(path)
+	if err != nil {
+		return err
+	}
+	var (
+		ptTrue, yTrue, ptReco, yReco float32
+		weight                       float64
+		passTruth, passReco          bool
+	)
+	vars := []rtree.WriteVar{
+		{Name: "pt_true", Value: &ptTrue},
+		{Name: "y_true", Value: &yTrue},
+		{Name: "pt_reco", Value: &ptReco},
+		{Name: "y_reco", Value: &yReco},
+		{Name: "weight", Value: &weight},
+		{Name: "pass_truth", Value: &passTruth},
+		{Name: "pass_reco", Value: &passReco},
+	}
+	w, err := rtree.NewWriter(f, TreeName, vars, rtree.WithZlib(1), rtree.WithTitle("demo run: simulated zetons and fakes"))
+	if err != nil {
+		f.Close()
+		return err
+	}
+	for i := range s.len() {
+		if i%ctxEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				w.Close()
+				f.Close()
+				return err
+			}
+		}
+		ptTrue, yTrue = float32(s.ptTrue[i]), float32(s.yTrue[i])
+		ptReco, yReco = float32(s.ptReco[i]), float32(s.yReco[i])
+		weight = s.weight[i]
+		passTruth, passReco = s.passTruth[i], s.passReco[i]
+		if _, err := w.Write(); err != nil {
+			w.Close()
+			f.Close()
+			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// writeDataROOT writes the pseudo-data (reco-level pt and y) as a TTree.
+func writeDataROOT(ctx context.Context, path string, s *sample) error {
+	f, err := groot.Create(path)
+	if err != nil {
+		return err
+	}
+	var pt, y float32
+	vars := []rtree.WriteVar{{Name: "pt", Value: &pt}, {Name: "y", Value: &y}}
+	w, err := rtree.NewWriter(f, TreeName, vars, rtree.WithZlib(1), rtree.WithTitle("demo run: pseudo-data"))
+	if err != nil {
+		f.Close()
+		return err
+	}
+	for i := range s.len() {
+		if i%ctxEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				w.Close()
+				f.Close()
+				return err
+			}
+		}
+		pt, y = float32(s.ptReco[i]), float32(s.yReco[i])
+		if _, err := w.Write(); err != nil {
+			w.Close()
+			f.Close()
+			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// writeParquet writes rows built by row(i) for i < n, in row groups of
+// rowGroup rows, snappy-compressed.
+func writeParquet[T any](ctx context.Context, path string, n int, row func(i int) T) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	bw := bufio.NewWriterSize(f, 1<<20)
+	w := parquet.NewGenericWriter[T](bw, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
+	const batch = 4096
+	buf := make([]T, 0, batch)
+	flush := func() error {
+		if _, err := w.Write(buf); err != nil {
+			return fmt.Errorf("writing %s: %w", path, err)
+		}
+		buf = buf[:0]
+		return nil
+	}
+	for i := range n {
+		if i%ctxEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				f.Close()
+				return err
+			}
+		}
+		buf = append(buf, row(i))
+		if len(buf) == batch {
+			if err := flush(); err != nil {
+				f.Close()
+				return err
+			}
+		}
+	}
+	if err := flush(); err != nil {
+		f.Close()
+		return err
+	}
+	if err := w.Close(); err != nil {
+		f.Close()
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
+	if err := bw.Flush(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+func writeSimulationParquet(ctx context.Context, path string, s *sample) error {
+	return writeParquet(ctx, path, s.len(), func(i int) simRow {
+		return simRow{
+			PtTrue: s.ptTrue[i], YTrue: s.yTrue[i], PtReco: s.ptReco[i], YReco: s.yReco[i],
+			Weight: s.weight[i], PassTruth: s.passTruth[i], PassReco: s.passReco[i],
+		}
+	})
+}
+
+func writeDataParquet(ctx context.Context, path string, s *sample) error {
+	return writeParquet(ctx, path, s.len(), func(i int) dataRow {
+		return dataRow{Pt: s.ptReco[i], Y: s.yReco[i]}
+	})
+}
