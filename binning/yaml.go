@@ -380,3 +380,56 @@ func (d *decoder) edges(n *yaml.Node, field string) ([]float64, error) {
 	}
 	return e, nil
 }
+
+// WriteYAML writes the scheme in the format Decode reads, with every edge
+// in the shortest form that reads back exactly.
+func (s *Scheme) WriteYAML(w io.Writer) error {
+	var b bytes.Buffer
+	b.WriteString("regions:\n")
+	for _, reg := range s.regions {
+		fmt.Fprintf(&b, "  - name: %s\n    axes:\n", yamlString(reg.name))
+		for _, a := range reg.axes {
+			fmt.Fprintf(&b, "      - name: %s\n", yamlString(a.name))
+			if a.unit != "" {
+				fmt.Fprintf(&b, "        unit: %s\n", yamlString(a.unit))
+			}
+			if a.underflow {
+				b.WriteString("        underflow: true\n")
+			}
+			if a.overflow {
+				b.WriteString("        overflow: true\n")
+			}
+			if a.byBin == nil {
+				fmt.Fprintf(&b, "        edges: %s\n", yamlEdges(a.edges))
+				continue
+			}
+			b.WriteString("        edges_by_bin:\n")
+			for _, e := range a.byBin {
+				fmt.Fprintf(&b, "          - %s\n", yamlEdges(e))
+			}
+		}
+	}
+	_, err := w.Write(b.Bytes())
+	return err
+}
+
+func yamlString(s string) string {
+	out, err := yaml.Marshal(s)
+	if err != nil {
+		return strconv.Quote(s)
+	}
+	return string(bytes.TrimRight(out, "\n"))
+}
+
+func yamlEdges(e []float64) string {
+	var b bytes.Buffer
+	b.WriteByte('[')
+	for i, v := range e {
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		b.WriteString(strconv.FormatFloat(v, 'g', -1, 64))
+	}
+	b.WriteByte(']')
+	return b.String()
+}
