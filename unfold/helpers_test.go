@@ -112,6 +112,7 @@ func jacobianOf(t testing.TB, p *Problem, s *Settings) (*jacobian, *Result) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	res.Efficiency = m.eps
 	return jc, res
 }
 
