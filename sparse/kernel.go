@@ -1,15 +1,396 @@
 package sparse
 
-// partition is a fixed split of the columns into blocks, decided from the
-// matrix structure alone (never from the number of cores), so that every
-// kernel sums in the same order whatever the scheduling.
+import (
+	"runtime"
+	"sync"
+	"sync/atomic"
+)
+
+// Partition parameters. They depend on nothing but constants and the
+// matrix structure, so the summation order of every kernel is fixed.
+const (
+	minBlockNNZ   = 1 << 15 // smallest block worth a buffer
+	maxBlockNNZ   = 1 << 20 // largest block (about 16 MB of matrix data)
+	targetBlocks  = 16      // blocks aimed for between the two limits
+	parallelNNZ   = 1 << 16 // below this many non-zeros kernels run on one goroutine
+	reduceRows    = 1 << 14 // rows per reduction task
+	bufferPerRows = 4       // bound on scatter buffer length, in multiples of rows
+)
+
+// partition is a fixed split of the columns into contiguous blocks,
+// decided from the matrix structure alone (never from the number of
+// cores), so that every kernel sums in the same order whatever the
+// scheduling. A scattering kernel accumulates block b into its own buffer
+// covering the rows lo[b]..hi[b]-1 that the block touches; the buffers
+// are then reduced into the destination row by row in block order. With
+// a single block the destination itself is the buffer.
 type partition struct {
-	bounds []int // block b holds columns bounds[b]..bounds[b+1]-1
+	rows, cols int
+	nnz        int
+	bounds     []int // block b holds columns bounds[b]..bounds[b+1]-1
+	lo, hi     []int // rows touched by block b: [lo[b], hi[b])
+	off        []int // offset of block b's buffer in the workspace; len = blocks+1
+	tasks      []reduceTask
+	covers     []int32 // the blocks of each reduction task, in block order
+	parallel   bool    // large enough for several goroutines
+
+	mu   sync.Mutex
+	free []*workspace
 }
 
-func newPartition(colPtr []int) *partition {
+// reduceTask reduces rows [start, end), covered by the blocks
+// covers[first : first+n].
+type reduceTask struct {
+	start, end int
+	first, n   int32
+}
+
+func newPartition(rows int, colPtr, rowIdx []int) *partition {
+	return newPartitionMin(rows, colPtr, rowIdx, minBlockNNZ)
+}
+
+// newPartitionMin is newPartition with another smallest block size (tests
+// use it to cut small matrices into many blocks).
+func newPartitionMin(rows int, colPtr, rowIdx []int, minBlock int) *partition {
 	cols := len(colPtr) - 1
-	return &partition{bounds: []int{0, cols}}
+	nnz := colPtr[cols]
+	p := &partition{rows: rows, cols: cols, nnz: nnz, parallel: nnz >= parallelNNZ}
+	target := min(max(nnz/targetBlocks, minBlock), maxBlockNNZ)
+	for {
+		p.split(target, colPtr, rowIdx)
+		if len(p.lo) <= 1 || p.off[len(p.lo)] <= bufferPerRows*rows+minBlock {
+			break
+		}
+		target *= 2 // spread-out columns: fewer, larger blocks
+	}
+	p.plan()
+	return p
+}
+
+// split cuts the columns into blocks of about target non-zeros.
+func (p *partition) split(target int, colPtr, rowIdx []int) {
+	p.bounds = append(p.bounds[:0], 0)
+	p.lo, p.hi, p.off = p.lo[:0], p.hi[:0], append(p.off[:0], 0)
+	if p.nnz < 2*target || p.cols < 2 {
+		p.bounds = append(p.bounds, p.cols)
+		p.lo, p.hi = append(p.lo, 0), append(p.hi, p.rows)
+		p.off = append(p.off, p.rows)
+		return
+	}
+	start := 0
+	for j := 0; j < p.cols; j++ {
+		if colPtr[j+1]-colPtr[start] >= target || j == p.cols-1 {
+			lo, hi := p.rows, 0
+			for c := start; c <= j; c++ {
+				if a, b := colPtr[c], colPtr[c+1]; a < b {
+					lo = min(lo, rowIdx[a])
+					hi = max(hi, rowIdx[b-1]+1)
+				}
+			}
+			if hi < lo {
+				lo, hi = 0, 0
+			}
+			p.bounds = append(p.bounds, j+1)
+			p.lo, p.hi = append(p.lo, lo), append(p.hi, hi)
+			p.off = append(p.off, p.off[len(p.off)-1]+hi-lo)
+			start = j + 1
+		}
+	}
+}
+
+// plan builds the reduction tasks: the rows are cut where a block's range
+// starts or ends, and every piece lists the blocks covering it.
+func (p *partition) plan() {
+	nb := len(p.lo)
+	if nb == 1 {
+		return
+	}
+	cuts := []int{0, p.rows}
+	for b := 0; b < nb; b++ {
+		cuts = append(cuts, p.lo[b], p.hi[b])
+	}
+	sortInts(cuts)
+	for k := 0; k+1 < len(cuts); k++ {
+		s, e := cuts[k], cuts[k+1]
+		if s == e {
+			continue
+		}
+		first := int32(len(p.covers))
+		for b := 0; b < nb; b++ {
+			if p.lo[b] <= s && e <= p.hi[b] {
+				p.covers = append(p.covers, int32(b))
+			}
+		}
+		n := int32(len(p.covers)) - first
+		for r := s; r < e; r += reduceRows {
+			p.tasks = append(p.tasks, reduceTask{start: r, end: min(r+reduceRows, e), first: first, n: n})
+		}
+	}
+}
+
+func sortInts(a []int) {
+	for i := 1; i < len(a); i++ {
+		for k := i; k > 0 && a[k] < a[k-1]; k-- {
+			a[k], a[k-1] = a[k-1], a[k]
+		}
+	}
+}
+
+func (p *partition) blocks() int { return len(p.lo) }
+
+// kernel kinds
+const (
+	kFold = iota
+	kSweep
+	kRowSums
+	kBackProject
+	kColSums
+	kScale
+)
+
+// workspace is the state of one kernel call in flight: the scatter
+// buffers of the blocks and the call's arguments. Workspaces are kept on
+// the partition's free list, so that calls allocate nothing after
+// warm-up and concurrent calls each get their own.
+type workspace struct {
+	p      *partition
+	m      *Matrix
+	buf    []float64
+	kind   int
+	dst    []float64
+	x      []float64
+	update func(j int, g float64) float64
+	ntask  int64
+	next   atomic.Int64
+	wg     sync.WaitGroup
+}
+
+func (p *partition) get(m *Matrix) *workspace {
+	p.mu.Lock()
+	var ws *workspace
+	if k := len(p.free); k > 0 {
+		ws = p.free[k-1]
+		p.free = p.free[:k-1]
+	}
+	p.mu.Unlock()
+	if ws == nil {
+		ws = &workspace{p: p}
+	}
+	ws.m = m
+	return ws
+}
+
+func (p *partition) put(ws *workspace) {
+	ws.m, ws.dst, ws.x, ws.update = nil, nil, nil, nil
+	p.mu.Lock()
+	p.free = append(p.free, ws)
+	p.mu.Unlock()
+}
+
+// job is one helper's share of a phase of a kernel call.
+type job struct {
+	ws    *workspace
+	phase int
+}
+
+// helpers is the package's pool of helper goroutines. They are started
+// on first need and live for the rest of the process, idle on the
+// channel between calls, so that kernel calls start no goroutines.
+var helpers struct {
+	mu sync.Mutex
+	n  int
+	ch chan job
+}
+
+func startHelpers(n int) {
+	helpers.mu.Lock()
+	if helpers.ch == nil {
+		helpers.ch = make(chan job, 256)
+	}
+	for helpers.n < n {
+		helpers.n++
+		go func(ch chan job) {
+			for j := range ch {
+				j.ws.run(j.phase)
+				j.ws.wg.Done()
+			}
+		}(helpers.ch)
+	}
+	helpers.mu.Unlock()
+}
+
+// exec runs a kernel call: phase 1 over the blocks, then (for scattering
+// kernels with several blocks) phase 2 over the reduction tasks. Both
+// phases compute exactly the same operations in the same order whether
+// one goroutine or many run them.
+func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) float64) {
+	p := m.part
+	nb := p.blocks()
+	scatter := kind == kFold || kind == kSweep || kind == kRowSums
+	if nb == 1 {
+		// One block: the destination is the buffer.
+		ws := workspace{p: p, m: m, kind: kind, dst: dst, x: x, update: update}
+		ws.block(0)
+		return
+	}
+	ws := p.get(m)
+	ws.kind, ws.dst, ws.x, ws.update = kind, dst, x, update
+	if scatter && len(ws.buf) < p.off[nb] {
+		ws.buf = make([]float64, p.off[nb])
+	}
+	workers := 1
+	if p.parallel {
+		workers = min(runtime.GOMAXPROCS(0), nb)
+	}
+	ws.phase(1, int64(nb), workers)
+	if scatter {
+		ws.phase(2, int64(len(p.tasks)), workers)
+	}
+	p.put(ws)
+}
+
+func (ws *workspace) phase(ph int, ntask int64, workers int) {
+	ws.ntask = ntask
+	ws.next.Store(0)
+	if h := workers - 1; h > 0 {
+		startHelpers(h)
+		ws.wg.Add(h)
+		for k := 0; k < h; k++ {
+			helpers.ch <- job{ws: ws, phase: ph}
+		}
+	}
+	ws.run(ph)
+	ws.wg.Wait()
+}
+
+// run takes tasks of the phase until none is left.
+func (ws *workspace) run(ph int) {
+	for {
+		t := ws.next.Add(1) - 1
+		if t >= ws.ntask {
+			return
+		}
+		if ph == 1 {
+			ws.block(int(t))
+		} else {
+			ws.reduce(int(t))
+		}
+	}
+}
+
+// block runs phase 1 for block b.
+func (ws *workspace) block(b int) {
+	p, m := ws.p, ws.m
+	c0, c1 := p.bounds[b], p.bounds[b+1]
+	var buf []float64
+	lo := 0
+	switch ws.kind {
+	case kFold, kSweep, kRowSums:
+		if p.blocks() == 1 {
+			buf = ws.dst
+		} else {
+			lo = p.lo[b]
+			buf = ws.buf[p.off[b]:p.off[b+1]]
+		}
+		clear(buf)
+	}
+	colPtr := m.colPtr[c0 : c1+1]
+	rowIdx, val := m.rowIdx, m.val
+	switch ws.kind {
+	case kFold:
+		x := ws.x[c0:c1]
+		for jj, xj := range x {
+			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
+			v := val[colPtr[jj]:colPtr[jj+1]]
+			v = v[:len(ri)]
+			for k, i := range ri {
+				buf[i-lo] += v[k] * xj
+			}
+		}
+	case kSweep:
+		y, update := ws.x, ws.update
+		for jj := 0; jj < c1-c0; jj++ {
+			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
+			v := val[colPtr[jj]:colPtr[jj+1]]
+			v = v[:len(ri)]
+			var g float64
+			for k, i := range ri {
+				g += v[k] * y[i]
+			}
+			xj := update(c0+jj, g)
+			for k, i := range ri {
+				buf[i-lo] += v[k] * xj
+			}
+		}
+	case kRowSums:
+		ri := rowIdx[colPtr[0]:colPtr[c1-c0]]
+		v := val[colPtr[0]:colPtr[c1-c0]]
+		v = v[:len(ri)]
+		for k, i := range ri {
+			buf[i-lo] += v[k]
+		}
+	case kBackProject:
+		y, dst := ws.x, ws.dst[c0:c1]
+		for jj := range dst {
+			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
+			v := val[colPtr[jj]:colPtr[jj+1]]
+			v = v[:len(ri)]
+			var g float64
+			for k, i := range ri {
+				g += v[k] * y[i]
+			}
+			dst[jj] = g
+		}
+	case kColSums:
+		dst := ws.dst[c0:c1]
+		for jj := range dst {
+			var s float64
+			for _, vk := range val[colPtr[jj]:colPtr[jj+1]] {
+				s += vk
+			}
+			dst[jj] = s
+		}
+	case kScale:
+		f := ws.x[c0:c1]
+		for jj, fj := range f {
+			v := val[colPtr[jj]:colPtr[jj+1]]
+			for k := range v {
+				v[k] *= fj
+			}
+			if m.sumw2 != nil {
+				w2 := m.sumw2[colPtr[jj]:colPtr[jj+1]]
+				f2 := fj * fj
+				for k := range w2 {
+					w2[k] *= f2
+				}
+			}
+		}
+	}
+}
+
+// reduce runs phase 2 task t: the destination rows are the sums of the
+// covering blocks' buffers, taken in block order.
+func (ws *workspace) reduce(t int) {
+	p := ws.p
+	task := p.tasks[t]
+	dst := ws.dst[task.start:task.end]
+	cov := p.covers[task.first : task.first+task.n]
+	if len(cov) == 0 {
+		clear(dst)
+		return
+	}
+	b := int(cov[0])
+	base := p.off[b] - p.lo[b]
+	copy(dst, ws.buf[base+task.start:base+task.end])
+	for _, c := range cov[1:] {
+		b := int(c)
+		base := p.off[b] - p.lo[b]
+		src := ws.buf[base+task.start : base+task.end]
+		src = src[:len(dst)]
+		for i, v := range src {
+			dst[i] += v
+		}
+	}
 }
 
 // Fold computes dst = A x, overwriting dst. len(dst) must be the number
@@ -19,13 +400,7 @@ func (m *Matrix) Fold(dst, x []float64) {
 	if len(dst) != m.rows || len(x) != m.cols {
 		panic("sparse: Fold dimension mismatch")
 	}
-	clear(dst)
-	for j := 0; j < m.cols; j++ {
-		xj := x[j]
-		for k := m.colPtr[j]; k < m.colPtr[j+1]; k++ {
-			dst[m.rowIdx[k]] += m.val[k] * xj
-		}
-	}
+	m.exec(kFold, dst, x, nil)
 }
 
 // BackProject computes dst = Aᵀ y, overwriting dst. len(dst) must be the
@@ -35,63 +410,60 @@ func (m *Matrix) BackProject(dst, y []float64) {
 	if len(dst) != m.cols || len(y) != m.rows {
 		panic("sparse: BackProject dimension mismatch")
 	}
-	for j := 0; j < m.cols; j++ {
-		var s float64
-		for k := m.colPtr[j]; k < m.colPtr[j+1]; k++ {
-			s += m.val[k] * y[m.rowIdx[k]]
-		}
-		dst[j] = s
-	}
+	m.exec(kBackProject, dst, y, nil)
 }
 
 // Sweep makes one fused pass over the matrix. For every column j it
 // gathers g = (Aᵀ y)_j, calls x := update(j, g), and scatters column j
 // times x into next, so that on return next = A x' where x'_j is the value
-// update returned for column j. next is overwritten; len(next) must be the
-// number of rows and len(y) too. next must not alias y.
+// update returned for column j. next is overwritten; len(next) and
+// len(y) must be the number of rows, otherwise Sweep panics. next must
+// not alias y.
 //
-// update is called exactly once per column, possibly concurrently from
-// several goroutines for different columns; it must only touch state
-// belonging to column j.
+// update is called exactly once per column, in increasing column order
+// within each block of the fixed partition but concurrently from several
+// goroutines for columns of different blocks; it must only touch state
+// belonging to column j (typically x[j] and per-column arrays) and must
+// not call back into this Matrix with the same next or y.
 func (m *Matrix) Sweep(next, y []float64, update func(j int, g float64) float64) {
 	if len(next) != m.rows || len(y) != m.rows {
 		panic("sparse: Sweep dimension mismatch")
 	}
-	clear(next)
-	for j := 0; j < m.cols; j++ {
-		lo, hi := m.colPtr[j], m.colPtr[j+1]
-		var g float64
-		for k := lo; k < hi; k++ {
-			g += m.val[k] * y[m.rowIdx[k]]
-		}
-		x := update(j, g)
-		for k := lo; k < hi; k++ {
-			next[m.rowIdx[k]] += m.val[k] * x
-		}
-	}
+	m.exec(kSweep, next, y, update)
 }
 
-// ColSums writes the sum of each column into dst (length cols).
+// ColSums writes the sum of each column into dst (length cols),
+// overwriting it.
 func (m *Matrix) ColSums(dst []float64) {
 	if len(dst) != m.cols {
 		panic("sparse: ColSums dimension mismatch")
 	}
-	for j := 0; j < m.cols; j++ {
-		var s float64
-		for k := m.colPtr[j]; k < m.colPtr[j+1]; k++ {
-			s += m.val[k]
-		}
-		dst[j] = s
-	}
+	m.exec(kColSums, dst, nil, nil)
 }
 
-// RowSums writes the sum of each row into dst (length rows).
+// RowSums writes the sum of each row into dst (length rows), overwriting
+// it.
 func (m *Matrix) RowSums(dst []float64) {
 	if len(dst) != m.rows {
 		panic("sparse: RowSums dimension mismatch")
 	}
-	clear(dst)
-	for k, i := range m.rowIdx {
-		dst[i] += m.val[k]
+	m.exec(kRowSums, dst, nil, nil)
+}
+
+// ScaleCols multiplies column j by f[j] in place, and its sums of
+// squared weights (if any) by f[j]². len(f) must be the number of
+// columns and every f[j] finite, otherwise ScaleCols panics. ScaleCols
+// changes the matrix: it must not run concurrently
+// with any other use of the matrix or of matrices sharing its values
+// (Clone first to keep the original).
+func (m *Matrix) ScaleCols(f []float64) {
+	if len(f) != m.cols {
+		panic("sparse: ScaleCols dimension mismatch")
 	}
+	for _, v := range f {
+		if v-v != 0 {
+			panic("sparse: ScaleCols with a non-finite factor")
+		}
+	}
+	m.exec(kScale, nil, f, nil)
 }

@@ -15,7 +15,9 @@ import (
 // weights that produced it (nil when not known).
 //
 // A Matrix is immutable after construction except through the documented
-// in-place methods (ScaleCols). Its kernels may be called concurrently.
+// in-place method ScaleCols. All its other methods, the kernels included,
+// may be called concurrently from many goroutines: each kernel call takes
+// its own scatter buffers from a free list kept with the matrix structure.
 type Matrix struct {
 	rows, cols int
 	csc        *jb.CSC
@@ -75,7 +77,7 @@ func NewMatrix(rows, cols int, colPtr, rowIdx []int, val, sumw2 []float64) (*Mat
 	}
 	m := &Matrix{rows: rows, cols: cols, colPtr: colPtr, rowIdx: rowIdx, val: val, sumw2: sumw2}
 	m.csc = jb.NewCSC(rows, cols, colPtr, rowIdx, val)
-	m.part = newPartition(colPtr)
+	m.part = newPartition(rows, colPtr, rowIdx)
 	return m, nil
 }
 
@@ -130,3 +132,69 @@ func (m *Matrix) At(i, j int) float64 {
 // Set or MulVecTo: Set would break the sharing and MulVecTo adds into its
 // destination rather than overwriting it.
 func (m *Matrix) CSC() *jb.CSC { return m.csc }
+
+// MaxDenseElements is the largest number of elements (rows×cols) that
+// ToDense converts: 2^26 elements, 512 MiB of float64.
+const MaxDenseElements = 1 << 26
+
+// ToDense returns the matrix as a gonum dense matrix, for tests and small
+// problems. It returns an error if rows×cols exceeds MaxDenseElements or
+// if the matrix has no rows or no columns (gonum has no empty dense
+// matrices).
+func (m *Matrix) ToDense() (*mat.Dense, error) {
+	if m.rows == 0 || m.cols == 0 {
+		return nil, fmt.Errorf("sparse: cannot make a dense copy of a %d×%d matrix", m.rows, m.cols)
+	}
+	if m.rows > MaxDenseElements/m.cols {
+		return nil, fmt.Errorf("sparse: a dense copy of the %d×%d matrix would hold %d elements, more than the limit %d; use the sparse kernels instead",
+			m.rows, m.cols, int64(m.rows)*int64(m.cols), MaxDenseElements)
+	}
+	d := mat.NewDense(m.rows, m.cols, nil)
+	raw := d.RawMatrix()
+	for j := 0; j < m.cols; j++ {
+		for k := m.colPtr[j]; k < m.colPtr[j+1]; k++ {
+			raw.Data[m.rowIdx[k]*raw.Stride+j] = m.val[k]
+		}
+	}
+	return d, nil
+}
+
+// WithValues returns a matrix with the structure (dimensions, column
+// pointers, row indices, partition) of m and the values val, parallel to
+// Values, and squared-weight sums sumw2 (may be nil). The structure is
+// shared, not copied; val and sumw2 become the new matrix's storage. This
+// is the cheap way to hold many matrices of one pattern, for example
+// resampled responses. It returns an error if the lengths do not match or
+// a value is not finite.
+func (m *Matrix) WithValues(val, sumw2 []float64) (*Matrix, error) {
+	if len(val) != len(m.val) {
+		return nil, fmt.Errorf("sparse: %d values for a matrix with %d non-zeros", len(val), len(m.val))
+	}
+	if sumw2 != nil && len(sumw2) != len(m.val) {
+		return nil, fmt.Errorf("sparse: %d squared-weight sums for a matrix with %d non-zeros", len(sumw2), len(m.val))
+	}
+	for k, v := range val {
+		if v-v != 0 {
+			return nil, fmt.Errorf("sparse: non-finite value %v at entry %d", v, k)
+		}
+	}
+	n := *m
+	n.val, n.sumw2 = val, sumw2
+	n.csc = jb.NewCSC(m.rows, m.cols, m.colPtr, m.rowIdx, val)
+	return &n, nil
+}
+
+// Clone returns a copy of m whose values and squared-weight sums are its
+// own (so that ScaleCols on one does not change the other); the
+// structure is shared.
+func (m *Matrix) Clone() *Matrix {
+	var w2 []float64
+	if m.sumw2 != nil {
+		w2 = append([]float64(nil), m.sumw2...)
+	}
+	n, err := m.WithValues(append([]float64(nil), m.val...), w2)
+	if err != nil {
+		panic(err) // the values of m are finite by construction
+	}
+	return n
+}
