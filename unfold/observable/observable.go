@@ -445,6 +445,8 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		return nil, c.errf(x.Pos(), "selectors (a.b) are not supported; column names must be identifiers")
 	case *ast.IndexExpr, *ast.IndexListExpr, *ast.SliceExpr:
 		return nil, c.errf(x.Pos(), "indexing is not supported")
+	case *ast.StarExpr:
+		return nil, c.errf(x.Pos(), "unexpected *: a product needs two operands")
 	case *ast.BadExpr:
 		return nil, c.errf(x.Pos(), "syntax error")
 	}
