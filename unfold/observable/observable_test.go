@@ -104,7 +104,7 @@ func randomColumns(n int, seed uint64) [][]float64 {
 		cols[3][k] = math.Sqrt(px*px+py*py+pz*pz+rng.Float64()*100) + 0.1
 		cols[4][k] = rng.Float64()*10 - 5
 		cols[5][k] = math.Floor(rng.Float64() * 40) // many values equal to 20 exactly
-		cols[6][k] = float64(rng.IntN(3)) / 2      // 0, 0.5, 1
+		cols[6][k] = float64(rng.IntN(3)) / 2       // 0, 0.5, 1
 		cols[7][k] = rng.NormFloat64()
 		switch rng.IntN(40) {
 		case 0:
