@@ -53,12 +53,11 @@ func randomProblem(t testing.TB, seed uint64, nt, nr, perCol int, bkg bool) *Pro
 		truth[j] = 200 + 800*math.Exp(-3*x)
 	}
 	fold := make([]float64, nr)
-	r := denseR(a, gen)
-	for i := 0; i < nr; i++ {
-		for j := 0; j < nt; j++ {
-			fold[i] += r.At(i, j) * truth[j]
-		}
+	scaled := make([]float64, nt)
+	for j := range scaled {
+		scaled[j] = truth[j] / gen[j]
 	}
+	a.Fold(fold, scaled)
 	p := &Problem{Migrations: a, Generated: gen, Data: make([]float64, nr)}
 	if bkg {
 		p.Background = make([]float64, nr)
