@@ -63,3 +63,42 @@ func BenchmarkLocate3D(b *testing.B) {
 		b.Fatal("no point located")
 	}
 }
+
+// BenchmarkLocateByBin locates 1 million random points in a 2-D region of
+// 100 rapidity slices, each with its own 100 irregular pt bins.
+func BenchmarkLocateByBin(b *testing.B) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	by := make([][]float64, 100)
+	for i := range by {
+		by[i] = randomEdges(rng, 100, 0)
+	}
+	y, _ := NewAxis("y", "", uniformEdges(100, 0, 1), false, true)
+	pt, err := NewAxisByBin("pt", "", by, true, true)
+	if err != nil {
+		b.Fatal(err)
+	}
+	reg, err := NewRegion("r", y, pt)
+	if err != nil {
+		b.Fatal(err)
+	}
+	s, err := NewScheme(reg)
+	if err != nil {
+		b.Fatal(err)
+	}
+	const n = 1_000_000
+	pts := make([]float64, 2*n)
+	for i := 0; i < n; i++ {
+		pts[2*i] = rng.Float64() * 1.01
+		pts[2*i+1] = rng.Float64() * 40
+	}
+	sum := 0
+	for b.Loop() {
+		for i := 0; i < n; i++ {
+			sum += s.Locate(pts[2*i : 2*i+2 : 2*i+2])
+		}
+	}
+	b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds(), "points/s")
+	if sum == 0 {
+		b.Fatal("no point located")
+	}
+}

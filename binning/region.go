@@ -31,6 +31,7 @@ type Region struct {
 	nExt    int   // extended cells (in-range and flow)
 	flowExt []int // extended index of each flow cell, increasing
 	ident   []int // 0..len(axes)-1
+	rect    bool  // no edges-by-bin axis
 }
 
 // level holds the layout of one axis of a region.
@@ -136,6 +137,7 @@ func (r *Region) layout() {
 		nExt = nExt / p.m * l.totalExt()
 	}
 	r.nIn, r.nExt = nIn, nExt
+	r.rect = r.Rectangular()
 	r.flowExt = make([]int, 0, nExt-nIn)
 	var st [MaxAxes]int
 	for e := 0; e < nExt; e++ {
@@ -178,6 +180,18 @@ func (r *Region) Rectangular() bool {
 // the region's flow list, or -1, -1 if the point needs a flow bin that is
 // switched off. No coordinate may be NaN.
 func (r *Region) find(x []float64, pos []int) (int, int) {
+	if r.rect {
+		c := 0
+		for k := range r.lv {
+			l := &r.lv[k]
+			i := l.find.find(x[pos[k]])
+			if uint(i) >= uint(l.n) {
+				return -1, r.findFlow(x, pos)
+			}
+			c = c*l.n + i
+		}
+		return c, -1
+	}
 	c, q, ip := 0, 0, 0
 	for k := range r.lv {
 		l := &r.lv[k]
