@@ -47,9 +47,19 @@
 //
 //	(y0,pt under), (y0,pt over), (y1,pt under), (y1,pt over), ..., (y over, pt any)
 //
+// The flow bins of one region are contiguous (Scheme.FlowSpan), as are
+// its in-range bins (Scheme.Span). With a plain axis after the y axis
+// (say mass, flows on) the nested order repeats for every mass state,
+// mass running fastest.
+//
 // Reverse lookup (Scheme.Bin) gives the region, the per-axis bin numbers
-// (or UnderflowBin, OverflowBin, AnyBin), the edges (±Inf on the open side
-// of a flow bin) and the volume (product of widths; +Inf for a flow bin).
+// (or UnderflowBin, OverflowBin, AnyBin; the bin number of an edges-by-bin
+// axis counts within its slice), the edges (±Inf on the open side of a
+// flow bin) and the volume (product of widths; +Inf for a flow bin).
+// Scheme.Global is its inverse, from per-axis bin numbers to the global
+// bin, for writing per-region tables and histograms; Region.Rectangular
+// tells whether a region is a full grid (no edges-by-bin axis), and
+// Axis.Edges, Axis.EdgesByBin and Axis.EdgesIn give the edges.
 //
 // # Neighbours, projections and slices
 //

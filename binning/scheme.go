@@ -355,3 +355,14 @@ func (s *Scheme) neighbour(r, k int, st *[MaxAxes]int, x *[MaxAxes]float64, dir 
 	}
 	return s.inOff[r] + c
 }
+
+// RegionOf returns the region of global bin g. It panics if g is out of
+// range.
+func (s *Scheme) RegionOf(g int) int {
+	r, _, _ := s.locateBin(g)
+	return r
+}
+
+// NumAxes returns the number of axes of the region of global bin g (the
+// valid axis arguments of Neighbours). It panics if g is out of range.
+func (s *Scheme) NumAxes(g int) int { return len(s.regions[s.RegionOf(g)].axes) }

@@ -433,3 +433,13 @@ func TestLocateNoAlloc(t *testing.T) {
 		t.Errorf("Locate allocates %v times", n)
 	}
 }
+
+func TestRegionOf(t *testing.T) {
+	s := readTestdata(t, "scheme3d.yaml")
+	for g := 0; g < s.Len(); g++ {
+		b := s.Bin(g)
+		if s.RegionOf(g) != b.Region || s.NumAxes(g) != len(b.Axes) {
+			t.Errorf("bin %d: RegionOf %d NumAxes %d, want %d and %d", g, s.RegionOf(g), s.NumAxes(g), b.Region, len(b.Axes))
+		}
+	}
+}
