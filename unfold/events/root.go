@@ -94,6 +94,9 @@ func contains(s []string, x string) bool {
 // leafProblem says why a leaf cannot be read as one number per event, or
 // returns "".
 func leafProblem(leaf rtree.Leaf) string {
+	if leaf.Kind() == reflect.String {
+		return fmt.Sprintf("its type %s (a string) is not numeric", leaf.TypeName())
+	}
 	if leaf.LeafCount() != nil {
 		return fmt.Sprintf("it is a variable-length array (%s[%s])", leaf.TypeName(), leaf.LeafCount().Name())
 	}

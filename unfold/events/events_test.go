@@ -1,0 +1,522 @@
+package events
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"github.com/parquet-go/parquet-go"
+	"go-hep.org/x/hep/groot"
+	"go-hep.org/x/hep/groot/rtree"
+)
+
+// TestROOTSmallFlatTree reads groot/testdata/small-flat-tree.root, a file
+// written by ROOT 6.08 (file version 60806). Entry i holds the value i in
+// its scalar branches Int32, Int64, UInt32, UInt64, Float32 and Float64, as
+// listed by go-hep's dump of the same file (groot/rcmd/testdata/
+// small-flat-tree.root.txt).
+func TestROOTSmallFlatTree(t *testing.T) {
+	path := filepath.Join(hepDir(t), "groot", "testdata", "small-flat-tree.root")
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	if src.Len() != 100 {
+		t.Errorf("Len = %d, want 100", src.Len())
+	}
+	want := []string{"Int32", "Int64", "UInt32", "UInt64", "Float32", "Float64", "N"}
+	if !reflect.DeepEqual(src.Columns(), want) {
+		t.Errorf("Columns = %v, want %v", src.Columns(), want)
+	}
+	cols := []string{"Float32", "Float64", "Int32", "Int64", "UInt32", "UInt64", "Float32"}
+	for _, bs := range []int{1, 7, 100, 1000} {
+		got := readAll(t, src, cols, bs)
+		for c, name := range cols {
+			if len(got[c]) != 100 {
+				t.Fatalf("batch %d: %s: %d values", bs, name, len(got[c]))
+			}
+			for i, v := range got[c] {
+				if v != float64(i) {
+					t.Fatalf("batch %d: %s[%d] = %v, want %d", bs, name, i, v, i)
+				}
+			}
+		}
+	}
+	for _, tc := range []struct{ branch, msg string }{
+		{"ArrayFloat32", "fixed-size array of 10 values"},
+		{"SliceFloat64", "variable-length array"},
+		{"Str", "not numeric"},
+		{"Float128", `no branch "Float128"`},
+	} {
+		err := src.Read(context.Background(), []string{"Float64", tc.branch}, 10, func(*Batch) error { return nil })
+		if err == nil || !strings.Contains(err.Error(), tc.msg) || !strings.Contains(err.Error(), path) ||
+			!strings.Contains(err.Error(), tc.branch) {
+			t.Errorf("branch %s: error %v, want one naming the file, the branch and %q", tc.branch, err, tc.msg)
+		}
+	}
+}
+
+// TestROOTLeavesAllTypes reads groot/testdata/leaves.root, written by ROOT
+// from the C++ macro in go-hep's groot/riofs/gendata/gen-flat-tree.go: 10
+// entries, entry i has B = (i%2 == 0), I8..I64 and G64 = -i, U8..U64 and
+// UGG = i, F32, F64, D16 (Float16_t) and D32 (Double32_t) = i.
+func TestROOTLeavesAllTypes(t *testing.T) {
+	path := filepath.Join(hepDir(t), "groot", "testdata", "leaves.root")
+	src, err := OpenROOT(path, "tree")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	names := []string{"B", "I8", "I16", "I32", "I64", "G64", "U8", "U16", "U32", "U64", "UGG", "F32", "F64", "D16", "D32"}
+	got := readAll(t, src, names, 4)
+	for c, name := range names {
+		if len(got[c]) != 10 {
+			t.Fatalf("%s: %d entries, want 10", name, len(got[c]))
+		}
+		for i, v := range got[c] {
+			var want float64
+			switch name[0] {
+			case 'B':
+				want = b2f(i%2 == 0)
+			case 'I', 'G':
+				want = -float64(i)
+			default:
+				want = float64(i)
+			}
+			if v != want {
+				t.Errorf("%s[%d] = %v, want %v", name, i, v, want)
+			}
+		}
+	}
+}
+
+// TestROOTBranchTypesRoundTrip writes a tree with one branch of every
+// supported scalar type through go-hep's writer and reads it back as
+// float64, which must equal Go's own conversion of each value.
+func TestROOTBranchTypesRoundTrip(t *testing.T) {
+	const n = 300
+	var (
+		vb   bool
+		vi8  int8
+		vi16 int16
+		vi32 int32
+		vi64 int64
+		vu8  uint8
+		vu16 uint16
+		vu32 uint32
+		vu64 uint64
+		vf32 float32
+		vf64 float64
+	)
+	wvars := []rtree.WriteVar{
+		{Name: "b", Value: &vb}, {Name: "i8", Value: &vi8}, {Name: "i16", Value: &vi16},
+		{Name: "i32", Value: &vi32}, {Name: "i64", Value: &vi64}, {Name: "u8", Value: &vu8},
+		{Name: "u16", Value: &vu16}, {Name: "u32", Value: &vu32}, {Name: "u64", Value: &vu64},
+		{Name: "f32", Value: &vf32}, {Name: "f64", Value: &vf64},
+	}
+	rng := rand.New(rand.NewPCG(3, 4))
+	want := make([][]float64, len(wvars))
+	path := filepath.Join(t.TempDir(), "types.root")
+	f, err := groot.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := rtree.NewWriter(f, "t", wvars)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for k := range n {
+		u := rng.Uint64()
+		vb = u&1 == 1
+		vi8, vi16, vi32, vi64 = int8(u), int16(u), int32(u), int64(u)
+		vu8, vu16, vu32, vu64 = uint8(u), uint16(u), uint32(u), u
+		vf32 = float32(rng.NormFloat64() * 1e3)
+		vf64 = rng.NormFloat64() * 1e-3
+		if k == 0 {
+			vf32, vf64 = float32(math.Inf(-1)), math.MaxFloat64
+		}
+		row := []float64{b2f(vb), float64(vi8), float64(vi16), float64(vi32), float64(vi64),
+			float64(vu8), float64(vu16), float64(vu32), float64(vu64), float64(vf32), vf64}
+		for c := range row {
+			want[c] = append(want[c], row[c])
+		}
+		if _, err := w.Write(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
+		t.Fatal(err)
+	}
+	src, err := Open(path, Options{Tree: "t"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	names := make([]string, len(wvars))
+	for i, v := range wvars {
+		names[i] = v.Name
+	}
+	got := readAll(t, src, names, 64)
+	for c := range names {
+		if i, ok := sameBits(got[c], want[c]); !ok {
+			t.Errorf("branch %s: entry %d: got %v, want %v", names[c], i, got[c][i], want[c][i])
+		}
+	}
+}
+
+// sampleColumns returns events with awkward values: signed zeros,
+// subnormals, extremes, infinities and NaN.
+func sampleColumns(n int) ([]string, [][]float64) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	names := []string{"pt_true", "pt_reco", "y_true", "weight", "pass_reco"}
+	cols := make([][]float64, len(names))
+	for c := range cols {
+		cols[c] = make([]float64, n)
+	}
+	special := []float64{0, math.Copysign(0, -1), 5e-324, -math.MaxFloat64, math.Inf(1), math.NaN(), 1.0 / 3, 123456789012345678}
+	for k := range n {
+		cols[0][k] = math.Exp(rng.Float64() * 8)
+		cols[1][k] = cols[0][k] * (1 + 0.1*rng.NormFloat64())
+		cols[2][k] = rng.NormFloat64() * 2
+		cols[3][k] = rng.Float64()
+		cols[4][k] = float64(rng.IntN(2))
+		if k < len(special) {
+			cols[1][k] = special[k]
+		}
+	}
+	return names, cols
+}
+
+// TestFormatsAgree writes the same events as ROOT, Parquet and CSV and reads
+// them back: every format must return the written float64 values bit for
+// bit, in the same order, for several batch sizes.
+func TestFormatsAgree(t *testing.T) {
+	dir := t.TempDir()
+	names, cols := sampleColumns(2500)
+	files := map[string]func(string) error{
+		"ev.root":    func(p string) error { return WriteROOT(p, "events", names, cols) },
+		"ev.parquet": func(p string) error { return WriteParquet(p, names, cols) },
+		"ev.csv":     func(p string) error { return WriteCSV(p, names, cols) },
+	}
+	order := []string{"weight", "pt_reco", "pass_reco", "pt_true", "y_true", "pt_reco"}
+	idx := map[string]int{}
+	for i, n := range names {
+		idx[n] = i
+	}
+	for file, write := range files {
+		p := filepath.Join(dir, file)
+		if err := write(p); err != nil {
+			t.Fatal(err)
+		}
+		src, err := Open(p, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := src.Columns(); len(got) != len(names) {
+			t.Errorf("%s: columns %v", file, got)
+		}
+		for _, bs := range []int{1, 999, 4096} {
+			got := readAll(t, src, order, bs)
+			for c, name := range order {
+				if i, ok := sameBits(got[c], cols[idx[name]]); !ok {
+					t.Fatalf("%s batch %d: column %s differs at %d", file, bs, name, i)
+				}
+			}
+		}
+		src.Close()
+	}
+	if tmp := tempFiles(t, dir); len(tmp) > 0 {
+		t.Errorf("temporary files left behind: %v", tmp)
+	}
+}
+
+// TestParquetTypes reads the Parquet physical types other writers use:
+// FLOAT, INT32, INT64, unsigned INT32, BOOLEAN, an optional DOUBLE without
+// nulls and a dictionary-encoded DOUBLE, over several row groups and pages.
+func TestParquetTypes(t *testing.T) {
+	type row struct {
+		F32  float32  `parquet:"f32"`
+		I32  int32    `parquet:"i32"`
+		I64  int64    `parquet:"i64"`
+		U32  uint32   `parquet:"u32"`
+		B    bool     `parquet:"b"`
+		Opt  *float64 `parquet:"opt,optional"`
+		Dict float64  `parquet:"dict,dict"`
+		Name string   `parquet:"name"`
+	}
+	const n = 5000
+	rows := make([]row, n)
+	want := make([][]float64, 7)
+	for k := range rows {
+		v := float64(k) - 2000
+		r := row{F32: float32(v) / 8, I32: int32(-k * 1000), I64: int64(k) << 40, U32: math.MaxUint32 - uint32(k),
+			B: k%3 == 0, Dict: float64(k % 7), Name: "x"}
+		o := v * 1.5
+		r.Opt = &o
+		rows[k] = r
+		for c, x := range []float64{float64(r.F32), float64(r.I32), float64(r.I64), float64(r.U32), b2f(r.B), o, r.Dict} {
+			want[c] = append(want[c], x)
+		}
+	}
+	path := filepath.Join(t.TempDir(), "types.parquet")
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := parquet.NewGenericWriter[row](f, parquet.MaxRowsPerRowGroup(1500), parquet.PageBufferSize(1024))
+	if _, err := w.Write(rows); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	if src.Len() != n {
+		t.Errorf("Len = %d, want %d", src.Len(), n)
+	}
+	names := []string{"f32", "i32", "i64", "u32", "b", "opt", "dict"}
+	got := readAll(t, src, names, 1000)
+	for c, name := range names {
+		if i, ok := sameBits(got[c], want[c]); !ok {
+			t.Errorf("column %s: row %d: got %v, want %v", name, i, got[c][i], want[c][i])
+		}
+	}
+	err = src.Read(context.Background(), []string{"name"}, 10, func(*Batch) error { return nil })
+	if err == nil || !strings.Contains(err.Error(), "not numeric") {
+		t.Errorf("string column: error %v", err)
+	}
+}
+
+func TestParquetNulls(t *testing.T) {
+	type row struct {
+		X *float64 `parquet:"x,optional"`
+	}
+	rows := make([]row, 10)
+	for k := range rows {
+		if k != 6 {
+			v := float64(k)
+			rows[k].X = &v
+		}
+	}
+	path := filepath.Join(t.TempDir(), "nulls.parquet")
+	f, _ := os.Create(path)
+	w := parquet.NewGenericWriter[row](f)
+	w.Write(rows)
+	w.Close()
+	f.Close()
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	err = src.Read(context.Background(), []string{"x"}, 4, func(*Batch) error { return nil })
+	if err == nil || !strings.Contains(err.Error(), "null") || !strings.Contains(err.Error(), `"x"`) {
+		t.Errorf("nulls: error %v", err)
+	}
+}
+
+func TestCSVErrors(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, body string) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, []byte(body), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	for _, tc := range []struct {
+		name, body string
+		cols       []string
+		want       string // substring of the error; "" means no error
+	}{
+		{"ok.csv", "a, b\n1,2\n# comment\n3,true\n", []string{"b", "a"}, ""},
+		{"bad.csv", "a,b\n1,2\n3,x7\n", []string{"a", "b"}, `bad.csv:3:3: column "b": "x7" is not a number`},
+		{"short.csv", "a,b\n1,2\n3\n", []string{"a"}, "short.csv:3:1: wrong number of fields"},
+		{"empty.csv", "", nil, "empty file"},
+		{"dup.csv", "a,b,a\n1,2,3\n", nil, `column "a" appears twice`},
+		{"nohead.csv", " ,b\n", nil, "header field 1 is empty"},
+		{"missing.csv", "a,b\n1,2\n", []string{"c"}, `no column "c" (have: a, b)`},
+		{"emptyfield.csv", "a,b\n1,\n", []string{"b"}, `emptyfield.csv:2:3: column "b": "" is not a number`},
+	} {
+		p := write(tc.name, tc.body)
+		src, err := Open(p, Options{})
+		if err == nil {
+			err = src.Read(context.Background(), tc.cols, 2, func(*Batch) error { return nil })
+		}
+		switch {
+		case tc.want == "" && err != nil:
+			t.Errorf("%s: %v", tc.name, err)
+		case tc.want != "" && (err == nil || !strings.Contains(err.Error(), tc.want)):
+			t.Errorf("%s: error %v, want %q", tc.name, err, tc.want)
+		}
+	}
+	src, _ := Open(filepath.Join(dir, "ok.csv"), Options{})
+	got := readAll(t, src, []string{"b", "a"}, 5)
+	if !reflect.DeepEqual(got, [][]float64{{2, 1}, {1, 3}}) {
+		t.Errorf("ok.csv read %v", got)
+	}
+}
+
+// TestTruncated cuts valid files short: opening or reading them must fail
+// with an error naming the file, never panic or return short data silently.
+func TestTruncated(t *testing.T) {
+	dir := t.TempDir()
+	names, cols := sampleColumns(20000)
+	for _, file := range []string{"t.root", "t.parquet"} {
+		full := filepath.Join(dir, file)
+		var err error
+		if strings.HasSuffix(file, ".root") {
+			err = WriteROOT(full, "events", names, cols)
+		} else {
+			err = WriteParquet(full, names, cols)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		data, _ := os.ReadFile(full)
+		for _, frac := range []float64{0.02, 0.5, 0.97} {
+			cut := filepath.Join(dir, fmt.Sprintf("cut-%g-%s", frac, file))
+			os.WriteFile(cut, data[:int(float64(len(data))*frac)], 0o644)
+			src, err := Open(cut, Options{})
+			if err == nil {
+				var n int64
+				err = src.Read(context.Background(), names, 1000, func(b *Batch) error { n += int64(b.Len); return nil })
+				src.Close()
+				if err == nil {
+					t.Errorf("%s cut at %g: read %d rows without error", file, frac, n)
+					continue
+				}
+			}
+			if !strings.Contains(err.Error(), cut) {
+				t.Errorf("%s cut at %g: error does not name the file: %v", file, frac, err)
+			}
+		}
+	}
+}
+
+func TestReadStopsOnError(t *testing.T) {
+	dir := t.TempDir()
+	names, cols := sampleColumns(1000)
+	stop := errors.New("stop here")
+	for _, file := range []string{"s.root", "s.parquet", "s.csv"} {
+		p := filepath.Join(dir, file)
+		var err error
+		switch filepath.Ext(file) {
+		case ".root":
+			err = WriteROOT(p, "events", names, cols)
+		case ".parquet":
+			err = WriteParquet(p, names, cols)
+		default:
+			err = WriteCSV(p, names, cols)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		src, err := Open(p, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		calls := 0
+		err = src.Read(context.Background(), names[:2], 100, func(*Batch) error {
+			calls++
+			if calls == 3 {
+				return stop
+			}
+			return nil
+		})
+		if err != stop || calls != 3 {
+			t.Errorf("%s: error %v after %d calls, want the callback's error after 3", file, err, calls)
+		}
+		ctx, cancel := context.WithCancel(context.Background())
+		calls = 0
+		err = src.Read(ctx, names[:2], 100, func(*Batch) error {
+			calls++
+			if calls == 2 {
+				cancel()
+			}
+			return nil
+		})
+		if !errors.Is(err, context.Canceled) || calls != 2 {
+			t.Errorf("%s: cancelled read: error %v after %d calls", file, err, calls)
+		}
+		src.Close()
+	}
+}
+
+func TestOpenErrors(t *testing.T) {
+	dir := t.TempDir()
+	if _, err := Open(filepath.Join(dir, "x.txt"), Options{}); err == nil || !strings.Contains(err.Error(), "unknown file type") {
+		t.Errorf("unknown extension: %v", err)
+	}
+	for _, f := range []string{"none.root", "none.parquet", "none.csv"} {
+		if _, err := Open(filepath.Join(dir, f), Options{}); err == nil || !strings.Contains(err.Error(), f) {
+			t.Errorf("missing %s: %v", f, err)
+		}
+	}
+	p := filepath.Join(dir, "two.root")
+	names, cols := sampleColumns(10)
+	if err := WriteROOT(p, "events", names, cols); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := Open(p, Options{Tree: "other"}); err == nil || !strings.Contains(err.Error(), `no tree "other"`) {
+		t.Errorf("wrong tree: %v", err)
+	}
+	junk := filepath.Join(dir, "junk.parquet")
+	os.WriteFile(junk, []byte("this is not parquet at all"), 0o644)
+	if _, err := Open(junk, Options{}); err == nil || !strings.Contains(err.Error(), junk) {
+		t.Errorf("junk parquet: %v", err)
+	}
+}
+
+func TestWriteErrors(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "w.csv")
+	for _, tc := range []struct {
+		names []string
+		cols  [][]float64
+		want  string
+	}{
+		{[]string{"a"}, [][]float64{{1}, {2}}, "1 names for 2 columns"},
+		{[]string{"a", "b"}, [][]float64{{1}, {2, 3}}, `column "b" has 2 values`},
+		{[]string{"a", "a"}, [][]float64{{1}, {2}}, "given twice"},
+		{[]string{"a,b"}, [][]float64{{1}}, "cannot be written to a CSV header"},
+	} {
+		if err := WriteCSV(p, tc.names, tc.cols); err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%v: error %v, want %q", tc.names, err, tc.want)
+		}
+	}
+	if _, err := os.Stat(p); !os.IsNotExist(err) {
+		t.Errorf("failed writes left %s", p)
+	}
+	if err := WriteParquet(filepath.Join(dir, "no", "such", "dir.parquet"), []string{"a"}, [][]float64{{1}}); err == nil {
+		t.Error("write into a missing folder succeeded")
+	}
+	if tmp := tempFiles(t, dir); len(tmp) > 0 {
+		t.Errorf("temporary files left behind: %v", tmp)
+	}
+}
+
+func TestFormatOf(t *testing.T) {
+	for p, want := range map[string]Format{"a.root": FormatROOT, "B.ROOT": FormatROOT, "c.parquet": FormatParquet,
+		"d.pq": FormatParquet, "e.csv": FormatCSV, "f.txt": FormatUnknown, "root": FormatUnknown} {
+		if got := FormatOf(p); got != want {
+			t.Errorf("FormatOf(%q) = %v, want %v", p, got, want)
+		}
+	}
+}
