@@ -26,6 +26,8 @@ type jacobian struct {
 	aVal []float64
 	loc  []int32 // scratch: position of column l in the current row, -1 otherwise
 
+	cVal []float64 // values of R in the order of A's entries
+
 	// rows of R: for reco bin i, the truth bins and values
 	rPtr []int
 	rCol []int32
@@ -58,7 +60,8 @@ func newJacobian(m *model) *jacobian {
 	jc.w = make([]float64, nt*jc.cols)
 
 	// Rows of R.
-	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	jc.cVal = m.rValues()
+	colPtr, rowIdx, val := m.a.ColPtr(), m.a.RowIdx(), jc.cVal
 	jc.rPtr = make([]int, nr+1)
 	for _, i := range rowIdx {
 		jc.rPtr[i+1]++
@@ -135,7 +138,7 @@ func (jc *jacobian) init(ctx context.Context, it *iterator) error {
 // values computes A = Rᵀ diag(n/ν²) R for the current ν.
 func (jc *jacobian) values(n, nu []float64) {
 	m := jc.m
-	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	colPtr, rowIdx, val := m.a.ColPtr(), m.a.RowIdx(), jc.cVal
 	for c := 0; c < m.nt; c++ {
 		lo, hi := jc.aPtr[c], jc.aPtr[c+1]
 		for q := lo; q < hi; q++ {
@@ -163,7 +166,7 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 	jc.values(it.n, it.nu)
 	nb := (jc.cols + jacobianBlock - 1) / jacobianBlock
 	J, W := jc.j, jc.w
-	colPtr, rowIdx, val := m.r.ColPtr(), m.r.RowIdx(), m.r.Values()
+	colPtr, rowIdx, val := m.a.ColPtr(), m.a.RowIdx(), jc.cVal
 	n, nu, mu, g, inv := it.n, it.nu, it.mu, it.g, m.invEps
 	cols := jc.cols
 	forEach(nb, runtime.GOMAXPROCS(0), func(b int) {

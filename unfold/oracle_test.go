@@ -299,7 +299,7 @@ func TestOracleKBackground(t *testing.T) {
 	for j := range it.mu {
 		it.mu[j] = 1
 	}
-	m.r.Fold(it.fold, it.mu)
+	m.fold(it.fold, it.mu, make([]float64, 3))
 	it.reco()
 	it.emStep()
 	var s float64

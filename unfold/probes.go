@@ -86,11 +86,11 @@ func newProbes(m *model, first, count int, seed uint64) *probes {
 		pw.y = make([]float64, m.nr)
 		pw.spare = make([]float64, m.nr)
 		pw.gt = make([]float64, m.nt)
-		pw.update = func(j int, gt float64) float64 {
+		pw.update = func(j int, ga float64) float64 {
 			it := pw.it
-			v := (it.g[j]*pw.dmu[j] + it.mu[j]*gt) * it.m.invEps[j]
+			v := (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
 			pw.dmu[j] = v
-			return v
+			return v * m.invG[j]
 		}
 	}
 	return pr
@@ -175,15 +175,15 @@ func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 	pw.dmu = pr.dmu[s]
 	next := pw.spare
 	if it.sm == nil {
-		m.r.Sweep(next, y, pw.update)
+		m.a.Sweep(next, y, pw.update)
 	} else {
-		m.r.BackProject(pw.gt, y)
-		for j, gt := range pw.gt {
-			pw.dmu[j] = (it.g[j]*pw.dmu[j] + it.mu[j]*gt) * m.invEps[j]
+		m.a.BackProject(pw.gt, y)
+		for j, ga := range pw.gt {
+			pw.dmu[j] = (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
 		}
-		// it.tmp is shared; use a private scratch
+		// it.tmp is shared between probes; use the private scratch
 		it.sm.apply(pw.dmu, pw.gt)
-		m.r.Fold(next, pw.dmu)
+		m.fold(next, pw.dmu, pw.gt)
 	}
 	pr.tfold[s], pw.spare = next, tf
 }

@@ -2,6 +2,7 @@ package unfold
 
 import (
 	"math"
+	"runtime"
 
 	"github.com/desmear/desmear/sparse"
 )
@@ -38,7 +39,8 @@ type Problem struct {
 // model is a validated problem ready for the iteration.
 type model struct {
 	nt, nr int
-	r      *sparse.Matrix // R_ij = A_ij / G_j
+	a      *sparse.Matrix // A_ij; the response is R_ij = A_ij invG_j (never stored)
+	invG   []float64      // 1/G_j, 0 where not determined
 	eps    []float64      // Σ_i R_ij
 	invEps []float64      // 1/eps_j, 0 where not determined
 	det    []bool         // eps_j > 0
@@ -114,50 +116,55 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 	}
 
 	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()
-	rv := make([]float64, len(val))
-	m := &model{nt: nt, nr: nr, eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
-	for j := 0; j < nt; j++ {
-		g := p.Generated[j]
-		var sum float64
-		for k := colPtr[j]; k < colPtr[j+1]; k++ {
-			v := val[k]
-			if v < 0 {
-				return nil, inputErr("Migrations", rowIdx[k], j, "negative migration count %v (the iteration needs a non-negative response; merge or clip bins)", v)
+	m := &model{nt: nt, nr: nr, a: a, invG: make([]float64, nt), eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
+	// Columns in fixed blocks on several goroutines; each column is
+	// summed serially, so the result does not depend on the scheduling.
+	const colBlock = 4096
+	nb := (nt + colBlock - 1) / colBlock
+	errs := make([]error, nb)
+	forEach(nb, runtime.GOMAXPROCS(0), func(b int) {
+		for j := b * colBlock; j < min(nt, (b+1)*colBlock); j++ {
+			g := p.Generated[j]
+			var sum float64
+			for k := colPtr[j]; k < colPtr[j+1]; k++ {
+				v := val[k]
+				if v < 0 {
+					errs[b] = inputErr("Migrations", rowIdx[k], j, "negative migration count %v (the iteration needs a non-negative response; merge or clip bins)", v)
+					return
+				}
+				sum += v
 			}
-			sum += v
+			if sum == 0 {
+				continue // no migrations: not determined
+			}
+			if g == 0 {
+				errs[b] = inputErr("Generated", -1, j, "truth bin has migrations (Σ = %v) but no generated count", sum)
+				return
+			}
+			if sum > g*(1+efficiencyTolerance) {
+				errs[b] = inputErr("Generated", -1, j, "generated count %v is below the reconstructed count %v (efficiency > 1)", g, sum)
+				return
+			}
+			inv := 1 / g
+			var e float64
+			for k := colPtr[j]; k < colPtr[j+1]; k++ {
+				e += val[k] * inv
+			}
+			m.invG[j] = inv
+			m.eps[j] = e
+			m.invEps[j] = 1 / e
+			m.det[j] = true
 		}
-		if sum == 0 {
-			continue // no migrations: not determined
-		}
-		if g == 0 {
-			return nil, inputErr("Generated", -1, j, "truth bin has migrations (Σ = %v) but no generated count", sum)
-		}
-		if sum > g*(1+efficiencyTolerance) {
-			return nil, inputErr("Generated", -1, j, "generated count %v is below the reconstructed count %v (efficiency > 1)", g, sum)
-		}
-		inv := 1 / g
-		var e float64
-		for k := colPtr[j]; k < colPtr[j+1]; k++ {
-			rv[k] = val[k] * inv
-			e += rv[k]
-		}
-		m.eps[j] = e
-		m.invEps[j] = 1 / e
-		m.det[j] = true
-	}
-	r, err := sparse.NewMatrix(nr, nt, colPtr, rowIdx, rv, nil)
-	if err != nil {
-		return nil, err // cannot happen: same structure as a valid matrix
-	}
-	m.r = r
-
-	// reach[i]: some determined truth bin can reach reco bin i.
-	reach := make([]bool, nr)
-	for k, i := range rowIdx {
-		if rv[k] > 0 {
-			reach[i] = true
+	})
+	for _, err := range errs {
+		if err != nil {
+			return nil, err
 		}
 	}
+	// Some determined truth bin reaches reco bin i when row i of R has a
+	// positive sum (all entries are ≥ 0; undetermined columns are zero).
+	reach := make([]float64, nr)
+	m.fold(reach, m.det2float(), make([]float64, nt))
 
 	n := p.Data
 	varN := p.DataVariance
@@ -187,7 +194,7 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 		m.varB = p.BackgroundVariance
 	}
 	for i, x := range m.n {
-		if x > 0 && !reach[i] && (m.b == nil || m.b[i] == 0) {
+		if x > 0 && !(reach[i] > 0) && (m.b == nil || m.b[i] == 0) {
 			return nil, inputErr("Data", i, -1, "count %v in a reco bin that no truth bin reaches and no background explains", x)
 		}
 	}
@@ -220,4 +227,36 @@ func (m *model) scale(n []float64) float64 {
 		s -= x
 	}
 	return s / m.sumEP
+}
+
+// fold computes dst = R x = A (x ∘ invG), using tmp (truth-sized) as
+// scratch.
+func (m *model) fold(dst, x, tmp []float64) {
+	for j, v := range x {
+		tmp[j] = v * m.invG[j]
+	}
+	m.a.Fold(dst, tmp)
+}
+
+// det2float returns 1 for determined truth bins, 0 otherwise.
+func (m *model) det2float() []float64 {
+	f := make([]float64, m.nt)
+	for j, d := range m.det {
+		if d {
+			f[j] = 1
+		}
+	}
+	return f
+}
+
+// rValues returns the values of R = A/G in the order of A's entries.
+func (m *model) rValues() []float64 {
+	colPtr, val := m.a.ColPtr(), m.a.Values()
+	rv := make([]float64, len(val))
+	for j := 0; j < m.nt; j++ {
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			rv[k] = val[k] * m.invG[j]
+		}
+	}
+	return rv
 }

@@ -149,15 +149,14 @@ func newIterator(m *model, sm *smoother) *iterator {
 		fold: make([]float64, m.nr), fnext: make([]float64, m.nr), nu: make([]float64, m.nr),
 		y: make([]float64, m.nr), rp: make([]float64, m.nr),
 	}
-	if sm != nil {
-		it.tmp = make([]float64, m.nt)
-	}
-	m.r.Fold(it.rp, m.prior)
-	it.update = func(j int, g float64) float64 {
+	it.tmp = make([]float64, m.nt)
+	m.fold(it.rp, m.prior, it.tmp)
+	it.update = func(j int, ga float64) float64 {
+		g := ga * it.m.invG[j] // (Rᵀ y)_j from (Aᵀ y)_j
 		it.g[j] = g
 		v := it.mu[j] * g * it.m.invEps[j]
 		it.next[j] = v
-		return v
+		return v * it.m.invG[j] // scatter A (μ'/G) = R μ'
 	}
 	return it
 }
@@ -210,16 +209,19 @@ func (it *iterator) reco() float64 {
 // emStep computes μ(k+1) into it.next, g into it.g and R μ(k+1) into
 // it.fnext.
 func (it *iterator) emStep() {
+	m := it.m
 	if it.sm == nil {
-		it.m.r.Sweep(it.fnext, it.y, it.update)
+		m.a.Sweep(it.fnext, it.y, it.update)
 		return
 	}
-	it.m.r.BackProject(it.g, it.y)
+	m.a.BackProject(it.g, it.y)
 	for j, g := range it.g {
-		it.next[j] = it.mu[j] * g * it.m.invEps[j]
+		g *= m.invG[j]
+		it.g[j] = g
+		it.next[j] = it.mu[j] * g * m.invEps[j]
 	}
 	it.sm.apply(it.next, it.tmp)
-	it.m.r.Fold(it.fnext, it.next)
+	m.fold(it.fnext, it.next, it.tmp)
 }
 
 // compare returns the χ² and the relative change between it.next and
