@@ -1,0 +1,124 @@
+package analysis
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"slices"
+	"strings"
+
+	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/observable"
+)
+
+// compiler compiles the expressions of one events file: first against
+// every column of the file (so that an unknown column is reported with
+// the file's columns), then, once all are known, against the columns
+// they use, which are the only ones read.
+type compiler struct {
+	a         *Analysis
+	file      string   // events file, for messages
+	available []string // the file's columns
+	used      []string // columns used, in order of first use
+	pending   []*compiled
+}
+
+type compiled struct {
+	e     Expression
+	final *observable.Expr
+}
+
+func newCompiler(a *Analysis, file string, src events.Source) *compiler {
+	return &compiler{a: a, file: file, available: src.Columns()}
+}
+
+// add compiles e; it returns nil for an empty expression.
+func (c *compiler) add(e Expression) (fill.Expr, error) {
+	if e.Text == "" {
+		return nil, nil
+	}
+	x, err := observable.Compile(e.Text, c.available)
+	if err != nil {
+		return nil, c.exprError(e, err)
+	}
+	for _, name := range x.ColumnNames() {
+		if !slices.Contains(c.used, name) {
+			c.used = append(c.used, name)
+		}
+	}
+	p := &compiled{e: e}
+	c.pending = append(c.pending, p)
+	return func() fill.Evaluator {
+		if p.final == nil {
+			panic("analysis: expression used before its columns were fixed")
+		}
+		return p.final.Clone().Eval
+	}, nil
+}
+
+func (c *compiler) addAll(es []Expression) ([]fill.Expr, error) {
+	out := make([]fill.Expr, len(es))
+	for i, e := range es {
+		x, err := c.add(e)
+		if err != nil {
+			return nil, err
+		}
+		out[i] = x
+	}
+	return out, nil
+}
+
+// finish recompiles every expression against the used columns and
+// returns them, in the order the reader must deliver them.
+func (c *compiler) finish() ([]string, error) {
+	if len(c.used) == 0 {
+		// Read needs at least one column to count the events.
+		if len(c.available) == 0 {
+			return nil, fmt.Errorf("%s: the file has no numeric columns", c.file)
+		}
+		c.used = []string{c.available[0]}
+	}
+	for _, p := range c.pending {
+		x, err := observable.Compile(p.e.Text, c.used)
+		if err != nil {
+			return nil, c.exprError(p.e, err)
+		}
+		p.final = x
+	}
+	return c.used, nil
+}
+
+func (c *compiler) exprError(e Expression, err error) error {
+	msg := fmt.Sprintf("in %q: %v", e.Text, err)
+	var oe *observable.Error
+	if errors.As(err, &oe) {
+		msg = fmt.Sprintf("%s (at column %d of %q)", oe.Msg, oe.Column(), e.Text)
+		if strings.Contains(oe.Msg, "column") || strings.Contains(oe.Msg, "unknown") {
+			cols := c.available
+			more := ""
+			if len(cols) > 20 {
+				cols, more = cols[:20], ", ..."
+			}
+			msg += fmt.Sprintf("; %s has the columns %s%s", c.file, strings.Join(cols, ", "), more)
+		}
+	}
+	return &Error{File: c.a.File, Line: e.Line, Field: e.Field, Msg: msg, Err: err}
+}
+
+// openEvents opens an events file named in field at line.
+func (a *Analysis) openEvents(path, tree, field string, line int) (events.Source, error) {
+	src, err := events.Open(path, events.Options{Tree: tree})
+	if err != nil {
+		return nil, &Error{File: a.File, Line: line, Field: field, Msg: fmt.Sprintf("cannot open the events file: %v", err), Err: err}
+	}
+	return src, nil
+}
+
+func readFunc(src events.Source, cols []string, batch int) fill.ReadFunc {
+	return func(ctx context.Context, fn func(int64, int, [][]float64) error) error {
+		return src.Read(ctx, cols, batch, func(b *events.Batch) error {
+			return fn(b.Start, b.Len, b.Cols)
+		})
+	}
+}

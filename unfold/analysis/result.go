@@ -1,0 +1,335 @@
+package analysis
+
+import (
+	"context"
+	"encoding/csv"
+	"math"
+	"path/filepath"
+	"strconv"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/rootio"
+)
+
+// RootFile is the name of the ROOT file in a result folder.
+const RootFile = "result.root"
+
+// Outcome is everything a run produced.
+type Outcome struct {
+	Response     *fill.Response
+	ResponseInfo *fill.BundleInfo
+	Data         *Measured
+	Background   *Expected
+	Result       *unfold.Result
+	// Folder is the result folder written.
+	Folder string
+	// Files lists the files written in it.
+	Files []string
+}
+
+// Document is the content of result.json for an analysis run: the
+// plain-table result fields plus the analysis's own.
+type Document struct {
+	output.Result
+	Analysis AnalysisInfo `json:"analysis"`
+	// Purity and Stability per truth bin (on the truth binning; see the
+	// fill package); null where not defined.
+	Purity    []*float64 `json:"purity,omitempty"`
+	Stability []*float64 `json:"stability,omitempty"`
+	// Density is the estimate divided by the bin volume (and by the
+	// integrated luminosity when given), per truth bin; 0 for flow bins.
+	Density            []float64 `json:"density"`
+	DensityUncertainty []float64 `json:"density_uncertainty,omitempty"`
+	Luminosity         float64   `json:"luminosity,omitempty"`
+	LuminosityUnit     string    `json:"luminosity_unit,omitempty"`
+	// ResponseSummary counts the simulated events.
+	ResponseSummary fill.Summary `json:"response_summary"`
+	// DataEvents, DataSelected and DataOutside count the data events
+	// (events files only).
+	DataEvents   int64 `json:"data_events,omitempty"`
+	DataSelected int64 `json:"data_selected,omitempty"`
+	DataOutside  int64 `json:"data_outside,omitempty"`
+}
+
+// AnalysisInfo names the analysis file.
+type AnalysisInfo struct {
+	File  string `json:"file"`
+	Title string `json:"title,omitempty"`
+}
+
+func hashFile(role, path string) (fill.Input, error) {
+	in, err := output.HashFile(role, path)
+	if err != nil {
+		return fill.Input{}, err
+	}
+	return fill.Input(in), nil
+}
+
+// CheckOutput reports early whether the result folder could be written.
+func (a *Analysis) CheckOutput(replace bool) error {
+	return output.Check(a.Output.Folder, replace)
+}
+
+// Run builds (or loads) the response, fills the data and the
+// background, unfolds and writes the result folder atomically. replace
+// allows replacing an earlier result folder.
+func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcome, error) {
+	if err := a.CheckOutput(replace); err != nil {
+		return nil, err
+	}
+	out := &Outcome{}
+	var err error
+	if a.ResponseFile != "" {
+		out.Response, out.ResponseInfo, err = a.LoadResponse()
+	} else {
+		out.Response, out.ResponseInfo, err = a.BuildResponse(ctx, opt)
+	}
+	if err != nil {
+		return nil, err
+	}
+	if out.Data, err = a.FillData(ctx, opt); err != nil {
+		return nil, err
+	}
+	if out.Background, err = a.Background(ctx, out.Response, opt); err != nil {
+		return nil, err
+	}
+	p, err := a.Problem(out.Response, out.Data, out.Background)
+	if err != nil {
+		return nil, err
+	}
+	s, err := a.Settings()
+	if err != nil {
+		return nil, err
+	}
+	if out.Result, err = unfold.Unfold(ctx, p, s); err != nil {
+		return nil, err
+	}
+	if err := a.write(out, s, replace, opt); err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (a *Analysis) inputs(out *Outcome) ([]output.Input, error) {
+	var ins []output.Input
+	add := func(role, path string) error {
+		if path == "" {
+			return nil
+		}
+		in, err := output.HashFile(role, path)
+		if err != nil {
+			return err
+		}
+		ins = append(ins, in)
+		return nil
+	}
+	if err := add("analysis", a.File); err != nil {
+		return nil, err
+	}
+	if err := add("truth-binning", a.TruthFile); err != nil {
+		return nil, err
+	}
+	if err := add("reco-binning", a.RecoFile); err != nil {
+		return nil, err
+	}
+	if a.ResponseFile != "" {
+		if err := add("response", filepath.Join(a.ResponseFile, "response.json")); err != nil {
+			return nil, err
+		}
+	}
+	if out.ResponseInfo != nil {
+		for _, in := range out.ResponseInfo.Inputs {
+			ins = append(ins, output.Input(in))
+		}
+	}
+	if err := add("data", a.Data.File); err != nil {
+		return nil, err
+	}
+	for _, b := range a.Backgrounds {
+		if err := add("background", b.File); err != nil {
+			return nil, err
+		}
+	}
+	if err := add("prior", a.Unfolding.PriorFile); err != nil {
+		return nil, err
+	}
+	return ins, nil
+}
+
+func finitePtrs(v []float64) []*float64 {
+	if v == nil {
+		return nil
+	}
+	out := make([]*float64, len(v))
+	for i, x := range v {
+		if !math.IsNaN(x) && !math.IsInf(x, 0) {
+			x := x
+			out[i] = &x
+		}
+	}
+	return out
+}
+
+// densities returns the estimate and its uncertainty divided by the bin
+// volume and the luminosity (1 when not given); 0 for flow bins.
+func (a *Analysis) densities(est, unc []float64) (dens, densUnc []float64) {
+	lumi := a.Output.Luminosity
+	if lumi == 0 {
+		lumi = 1
+	}
+	dens = make([]float64, len(est))
+	if unc != nil {
+		densUnc = make([]float64, len(est))
+	}
+	for g := range est {
+		b := a.Truth.Bin(g)
+		if b.Flow || !(b.Volume > 0) || math.IsInf(b.Volume, 0) {
+			continue
+		}
+		dens[g] = est[g] / b.Volume / lumi
+		if unc != nil {
+			densUnc[g] = unc[g] / b.Volume / lumi
+		}
+	}
+	return dens, densUnc
+}
+
+func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Options) (err error) {
+	res, err := output.FromUnfold(out.Result)
+	if err != nil {
+		return err
+	}
+	doc := &Document{Result: *res}
+	doc.Program = output.Program{Name: "desmear"}
+	if opt != nil {
+		doc.Program.Version = opt.Version
+	}
+	if doc.Inputs, err = a.inputs(out); err != nil {
+		return err
+	}
+	prior := "generated"
+	if a.Unfolding.Prior != "simulation" {
+		prior = a.Unfolding.Prior
+	}
+	doc.Settings = output.DescribeSettings(s, prior, out.Background != nil)
+	doc.TruthBinning = output.DescribeBinning(a.Truth, a.TruthFile)
+	doc.RecoBinning = output.DescribeBinning(a.Reco, a.RecoFile)
+	doc.Analysis = AnalysisInfo{File: a.File, Title: a.Title}
+	doc.Purity = finitePtrs(out.Response.Purity(nil))
+	doc.Stability = finitePtrs(out.Response.Stability(nil))
+	doc.Density, doc.DensityUncertainty = a.densities(doc.Estimate, doc.Uncertainty)
+	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
+	doc.ResponseSummary = out.Response.Summary
+	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+
+	f, err := output.New(a.Output.Folder, replace)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if err != nil {
+			f.Abort()
+		}
+	}()
+	if err := f.WriteJSON(output.JSONFile, doc); err != nil {
+		return err
+	}
+	out.Files = append(out.Files, output.JSONFile)
+	if a.Output.Has("csv") {
+		w, err := f.Create(output.CSVFile)
+		if err != nil {
+			return err
+		}
+		if err := output.WriteCSV(w, &doc.Result, a.Truth); err != nil {
+			return err
+		}
+		if err := w.Close(); err != nil {
+			return err
+		}
+		out.Files = append(out.Files, output.CSVFile)
+	}
+	if a.Output.Has("regions") {
+		pur, stab := out.Response.Purity(nil), out.Response.Stability(nil)
+		for r, reg := range a.Truth.Regions() {
+			name := "region-" + reg.Name() + ".csv"
+			w, err := f.Create(name)
+			if err != nil {
+				return err
+			}
+			if err := writeRegion(w, a.Truth, r, doc, pur, stab); err != nil {
+				return err
+			}
+			if err := w.Close(); err != nil {
+				return err
+			}
+			out.Files = append(out.Files, name)
+		}
+	}
+	if a.Output.Has("root") {
+		path, err := f.Reserve(RootFile)
+		if err != nil {
+			return err
+		}
+		h1, h2 := rootHistograms(a.Truth, doc.Estimate, doc.Uncertainty, doc.Density, doc.DensityUncertainty)
+		if err := rootio.WriteFile(path, h1, h2); err != nil {
+			return err
+		}
+		out.Files = append(out.Files, RootFile)
+	}
+	if err := f.Commit(); err != nil {
+		return err
+	}
+	out.Folder = a.Output.Folder
+	return nil
+}
+
+type csvWriter interface {
+	Write(p []byte) (int, error)
+}
+
+// writeRegion writes the in-range bins of region r: global index, the
+// edges of each axis of the region, the volume, the estimate and its
+// uncertainty as counts and as a density, the efficiency, purity and
+// stability.
+func writeRegion(w csvWriter, s *binning.Scheme, r int, doc *Document, pur, stab []float64) error {
+	cw := csv.NewWriter(w)
+	reg := s.Regions()[r]
+	header := []string{"index"}
+	for _, ax := range reg.Axes() {
+		header = append(header, ax.Name()+"_low", ax.Name()+"_high")
+	}
+	header = append(header, "volume", "estimate", "uncertainty", "density", "density_uncertainty", "efficiency", "purity", "stability", "determined")
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	f := func(v float64) string {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return ""
+		}
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	at := func(v []float64, g int) float64 {
+		if v == nil {
+			return math.NaN()
+		}
+		return v[g]
+	}
+	lo, hi := s.Span(r)
+	for g := lo; g < hi; g++ {
+		b := s.Bin(g)
+		rec := []string{strconv.Itoa(g)}
+		for k := range b.Axes {
+			rec = append(rec, f(b.Low[k]), f(b.High[k]))
+		}
+		rec = append(rec, f(b.Volume), f(doc.Estimate[g]), f(at(doc.Uncertainty, g)), f(doc.Density[g]), f(at(doc.DensityUncertainty, g)),
+			f(doc.Efficiency[g]), f(at(pur, g)), f(at(stab, g)), strconv.FormatBool(doc.Determined[g]))
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}

@@ -1,0 +1,367 @@
+package analysis
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/tables"
+)
+
+// Options control how an analysis runs. The zero value is usable.
+type Options struct {
+	// Workers overrides the analysis file's processing.workers when > 0.
+	Workers int
+	// Progress, when not nil, is called with a stage name ("simulation
+	// FILE", "data FILE", ...) and the events done and expected (a
+	// negative total when not known). The library never draws anything.
+	Progress func(stage string, done, total int64)
+	// Version is the program version recorded in the outputs.
+	Version string
+}
+
+func (a *Analysis) fillOptions(opt *Options, stage string) *fill.Options {
+	o := &fill.Options{Workers: a.Workers}
+	if opt != nil {
+		if opt.Workers > 0 {
+			o.Workers = opt.Workers
+		}
+		if opt.Progress != nil {
+			o.Progress = func(done, total int64) { opt.Progress(stage, done, total) }
+		}
+	}
+	return o
+}
+
+// Fingerprint identifies a binning scheme by the SHA-256 of its bin
+// labels and flow flags, so that a saved response is only used with the
+// schemes it was built for.
+func Fingerprint(s *binning.Scheme) string {
+	h := sha256.New()
+	for g := 0; g < s.Len(); g++ {
+		fmt.Fprintf(h, "%s|%v\n", s.Label(g), s.Bin(g).Flow)
+	}
+	return hex.EncodeToString(h.Sum(nil))
+}
+
+// BuildResponse streams the simulated samples into a response. It
+// returns the response and the provenance of its inputs.
+func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
+	if len(a.Simulation) == 0 {
+		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
+	}
+	info := &fill.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
+	if opt != nil {
+		info.Program = opt.Version
+	}
+	b := fill.NewBuilder(a.Truth, a.Reco)
+	for _, s := range a.Simulation {
+		sim, src, err := a.simulation(&s)
+		if err != nil {
+			return nil, nil, err
+		}
+		_, err = b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
+		src.Close()
+		if err != nil {
+			return nil, nil, a.eventsErr(s.Field, s.Line, err)
+		}
+		in, err := hashFile("simulation", s.File)
+		if err != nil {
+			return nil, nil, err
+		}
+		info.Inputs = append(info.Inputs, in)
+	}
+	r, err := b.Response()
+	if err != nil {
+		return nil, nil, err
+	}
+	return r, info, nil
+}
+
+// LoadResponse loads the saved response bundle named by the analysis
+// file and checks it against the schemes.
+func (a *Analysis) LoadResponse() (*fill.Response, *fill.BundleInfo, error) {
+	r, info, err := fill.LoadResponse(a.ResponseFile)
+	if err != nil {
+		return nil, nil, &Error{File: a.File, Field: "response", Msg: fmt.Sprintf("cannot load the saved response: %v", err), Err: err}
+	}
+	if info.TruthScheme != Fingerprint(a.Truth) || info.RecoScheme != Fingerprint(a.Reco) {
+		return nil, nil, &Error{File: a.File, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for other binning schemes; rebuild it with desmear response", a.ResponseFile)}
+	}
+	return r, info, nil
+}
+
+// eventsErr places an error from reading events.
+func (a *Analysis) eventsErr(field string, line int, err error) error {
+	var ae *Error
+	if errors.As(err, &ae) || errors.Is(err, context.Canceled) || errors.Is(err, context.DeadlineExceeded) {
+		return err
+	}
+	return &Error{File: a.File, Line: line, Field: field, Msg: err.Error(), Err: err}
+}
+
+func (a *Analysis) simulation(s *Sample) (*fill.Simulation, closer, error) {
+	src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
+	if err != nil {
+		return nil, nil, err
+	}
+	ok := false
+	defer func() {
+		if !ok {
+			src.Close()
+		}
+	}()
+	c := newCompiler(a, s.File, src)
+	sim := &fill.Simulation{Sample: fill.Sample{Name: s.File, Events: src.Len(), Scale: s.Scale}}
+	if sim.Weight, err = c.add(s.Weight); err != nil {
+		return nil, nil, err
+	}
+	if sim.Truth.Select, err = c.add(s.TruthSelection); err != nil {
+		return nil, nil, err
+	}
+	if sim.Reco.Select, err = c.add(s.RecoSelection); err != nil {
+		return nil, nil, err
+	}
+	if sim.Truth.Observables, err = c.addAll(s.Truth); err != nil {
+		return nil, nil, err
+	}
+	if sim.Reco.Observables, err = c.addAll(s.Reco); err != nil {
+		return nil, nil, err
+	}
+	// Purity and stability on the truth binning need the reco
+	// observables of the truth axes: available when every truth axis
+	// has a reco observable of the same name.
+	var rit []fill.Expr
+	for _, name := range a.Truth.AxisNames() {
+		ax := a.Reco.AxisIndex(name)
+		if ax < 0 {
+			rit = nil
+			break
+		}
+		rit = append(rit, sim.Reco.Observables[ax])
+	}
+	sim.RecoInTruth = rit
+	cols, err := c.finish()
+	if err != nil {
+		return nil, nil, err
+	}
+	sim.Read = readFunc(src, cols, a.BatchSize)
+	ok = true
+	return sim, src, nil
+}
+
+type closer interface{ Close() error }
+
+// recoHistogram fills the reco scheme from an events file.
+func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file, tree, field string, line int, weight, sel Expression, obs []Expression, scale float64) (*fill.Histogram, error) {
+	src, err := a.openEvents(file, tree, field, line)
+	if err != nil {
+		return nil, err
+	}
+	defer src.Close()
+	c := newCompiler(a, file, src)
+	s := &fill.Sample{Name: file, Events: src.Len(), Scale: scale}
+	l := &fill.Level{}
+	if s.Weight, err = c.add(weight); err != nil {
+		return nil, err
+	}
+	if l.Select, err = c.add(sel); err != nil {
+		return nil, err
+	}
+	if l.Observables, err = c.addAll(obs); err != nil {
+		return nil, err
+	}
+	cols, err := c.finish()
+	if err != nil {
+		return nil, err
+	}
+	s.Read = readFunc(src, cols, a.BatchSize)
+	h := fill.NewHistogram(a.Reco.Len())
+	if err := h.Add(ctx, s, l, a.Reco, a.fillOptions(opt, stage)); err != nil {
+		return nil, a.eventsErr(field, line, err)
+	}
+	return h, nil
+}
+
+// Measured is the data as filled or read.
+type Measured struct {
+	Values   []float64
+	Variance []float64 // nil: Poisson (unweighted data)
+	// Events, Selected and Outside count the data events (events files).
+	Events, Selected, Outside int64
+}
+
+// FillData fills or reads the data into the reco scheme.
+func (a *Analysis) FillData(ctx context.Context, opt *Options) (*Measured, error) {
+	d := &a.Data
+	nr := a.Reco.Len()
+	switch d.Kind {
+	case DataEvents:
+		h, err := a.recoHistogram(ctx, opt, "data "+d.File, d.File, d.Tree, "data.events", d.Line, d.Weight, d.Selection, d.Observables, 1)
+		if err != nil {
+			return nil, err
+		}
+		m := &Measured{Values: h.Values, Events: h.Events, Selected: h.Selected, Outside: h.Outside}
+		if d.Weight.Text != "" {
+			m.Variance = h.SumW2
+		}
+		return m, nil
+	case DataTable:
+		v, err := tables.LoadVector(d.File, tables.Data)
+		if err != nil {
+			return nil, err
+		}
+		val, vr, err := v.Dense(nr, "the reco binning")
+		if err != nil {
+			return nil, err
+		}
+		return &Measured{Values: val, Variance: vr}, nil
+	case DataHistogram:
+		return a.readHistogram()
+	}
+	return nil, fmt.Errorf("analysis: unknown data kind %d", d.Kind)
+}
+
+// Expected is the expected background in the reco scheme.
+type Expected struct {
+	Values, Variance []float64
+}
+
+// Background returns the expected background: the simulation's fakes
+// (unless unfolding.fakes is "ignore") plus every background sample
+// times its scale. Its variance is the sum of the squared weights plus,
+// per sample, (scale uncertainty × its contribution)² bin by bin (the
+// scale uncertainty is fully correlated across bins; only its diagonal
+// enters here). It returns nil when there is no background at all.
+func (a *Analysis) Background(ctx context.Context, r *fill.Response, opt *Options) (*Expected, error) {
+	nr := a.Reco.Len()
+	e := &Expected{Values: make([]float64, nr), Variance: make([]float64, nr)}
+	any := false
+	if a.Unfolding.Fakes == "background" {
+		for i := range e.Values {
+			e.Values[i] += r.Fakes[i]
+			e.Variance[i] += r.FakesSumW2[i]
+			any = any || r.Fakes[i] != 0
+		}
+	}
+	for _, b := range a.Backgrounds {
+		var val, vr []float64
+		switch b.Kind {
+		case DataEvents:
+			h, err := a.recoHistogram(ctx, opt, "background "+b.File, b.File, b.Tree, b.Field+".events", b.Line, b.Weight, b.Selection, b.Observables, b.Scale)
+			if err != nil {
+				return nil, err
+			}
+			val, vr = h.Values, h.SumW2 // the sample's scale is in the weights
+		case DataTable:
+			v, err := tables.LoadVector(b.File, tables.Background)
+			if err != nil {
+				return nil, err
+			}
+			if val, vr, err = v.Dense(nr, "the reco binning"); err != nil {
+				return nil, err
+			}
+			for i := range val {
+				val[i] *= b.Scale
+				if vr != nil {
+					vr[i] *= b.Scale * b.Scale
+				}
+			}
+		}
+		for i := range val {
+			e.Values[i] += val[i]
+			if vr != nil {
+				e.Variance[i] += vr[i]
+			}
+			u := b.ScaleUncertainty * val[i]
+			e.Variance[i] += u * u
+			any = any || val[i] != 0
+		}
+	}
+	if !any {
+		return nil, nil
+	}
+	for i, v := range e.Values {
+		if v < 0 {
+			return nil, &Error{File: a.File, Field: "backgrounds", Msg: fmt.Sprintf("the expected background in reco bin %d (%s) is negative (%v); check negative weights in the fakes or background samples", i, a.Reco.Label(i), v)}
+		}
+	}
+	return e, nil
+}
+
+// Settings returns the kernel settings of the analysis file.
+func (a *Analysis) Settings() (*unfold.Settings, error) {
+	u, un := a.Unfolding, a.Uncertainty
+	s := &unfold.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
+		Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	if u.Background == "subtract" {
+		s.Background = unfold.Subtract
+	}
+	if u.Smoothing > 0 {
+		s.Smoothing = &unfold.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
+	}
+	switch un.Covariance {
+	case "none":
+		s.Covariance = unfold.NoCovariance
+	case "diag":
+		s.Covariance = unfold.Diagonal
+	case "full":
+		s.Covariance = unfold.Full
+	}
+	switch un.Method {
+	case "exact":
+		s.DiagonalMethod = unfold.DiagonalExact
+	case "probes":
+		s.DiagonalMethod = unfold.DiagonalProbes
+	case "toys":
+		s.DiagonalMethod = unfold.DiagonalToys
+	}
+	return s, nil
+}
+
+// Prior returns the prior of the iteration: nil for the simulation's
+// generated spectrum, ones for "flat", or the prior table.
+func (a *Analysis) Prior() ([]float64, error) {
+	nt := a.Truth.Len()
+	switch a.Unfolding.Prior {
+	case "flat":
+		p := make([]float64, nt)
+		for j := range p {
+			p[j] = 1
+		}
+		return p, nil
+	case "file":
+		v, err := tables.LoadVector(a.Unfolding.PriorFile, tables.Prior)
+		if err != nil {
+			return nil, err
+		}
+		p, _, err := v.Dense(nt, "the truth binning")
+		return p, err
+	}
+	return nil, nil
+}
+
+// Problem assembles the unfolding problem.
+func (a *Analysis) Problem(r *fill.Response, data *Measured, bkg *Expected) (*unfold.Problem, error) {
+	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, Data: data.Values, DataVariance: data.Variance}
+	if bkg != nil {
+		p.Background, p.BackgroundVariance = bkg.Values, bkg.Variance
+	}
+	prior, err := a.Prior()
+	if err != nil {
+		return nil, err
+	}
+	p.Prior = prior
+	for j, g := range r.Generated {
+		if g < 0 || math.IsNaN(g) {
+			return nil, &Error{File: a.File, Field: "simulation", Msg: fmt.Sprintf("the generated count of truth bin %d (%s) is %v; negative event weights left it below zero: merge bins or use more simulated events", j, a.Truth.Label(j), g)}
+		}
+	}
+	return p, nil
+}

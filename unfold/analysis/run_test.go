@@ -1,0 +1,328 @@
+package analysis
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/rootio"
+	"github.com/desmear/desmear/unfold/tables"
+)
+
+var simColumns = []string{"x_true", "x_reco", "w", "ok_true", "ok_reco"}
+
+// simEvents returns n simulated events: x_true falling exponentially
+// over [0, 3.5), x_reco smeared, about 90% of events reconstructed and
+// 97% passing the truth selection, weights around 1.
+func simEvents(n int, seed uint64) [][]float64 {
+	rng := rand.New(rand.NewPCG(seed, 2))
+	cols := make([][]float64, len(simColumns))
+	for c := range cols {
+		cols[c] = make([]float64, n)
+	}
+	for k := 0; k < n; k++ {
+		xt := rng.ExpFloat64() * 1.2
+		cols[0][k] = xt
+		cols[1][k] = xt + 0.25*rng.NormFloat64()
+		cols[2][k] = 0.5 + rng.Float64()
+		cols[3][k] = b2f(rng.Float64() < 0.97)
+		cols[4][k] = b2f(rng.Float64() < 0.9)
+	}
+	return cols
+}
+
+func b2f(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// writeSample writes the columns in the format of name's extension.
+func writeSample(t *testing.T, path string, names []string, cols [][]float64) {
+	t.Helper()
+	var err error
+	switch filepath.Ext(path) {
+	case ".csv":
+		err = events.WriteCSV(path, names, cols)
+	case ".parquet":
+		err = events.WriteParquet(path, names, cols)
+	case ".root":
+		err = events.WriteROOT(path, "events", names, cols)
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+}
+
+const analysisTemplate = `title: closure of a falling spectrum
+binning:
+  truth:
+    regions:
+      - name: all
+        axes:
+          - {name: x, edges: [0, 0.5, 1, 1.5, 2, 3], overflow: true}
+  reco:
+    regions:
+      - name: all
+        axes:
+          - {name: x, edges: [0, 0.25, 0.5, 0.75, 1, 1.25, 1.5, 2, 2.5, 3], underflow: true, overflow: true}
+observables:
+  truth: {x: x_true}
+  reco: {x: x_reco}
+simulation:
+  - file: SIM
+    tree: events
+    weight: w
+    truth_selection: ok_true
+    reco_selection: ok_reco > 0.5
+data:
+  events: DATA
+  tree: events
+  observables: {x: x}
+unfolding:
+  iterations: 4
+uncertainty:
+  covariance: full
+output:
+  folder: result
+  luminosity: 2
+`
+
+func writeAnalysis(t *testing.T, dir, sim, data string) string {
+	t.Helper()
+	src := strings.NewReplacer("SIM", sim, "DATA", data).Replace(analysisTemplate)
+	p := filepath.Join(dir, "analysis.yaml")
+	if err := os.WriteFile(p, []byte(src), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// The same events in ROOT, Parquet and CSV files give the same response,
+// bit for bit, with 1 and 2 workers.
+func TestSameResponseFromEveryFormat(t *testing.T) {
+	dir := t.TempDir()
+	sim := simEvents(20000, 1)
+	data := [][]float64{simEvents(3000, 9)[1]}
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, data)
+	var ref *fill.Response
+	for _, ext := range []string{".csv", ".parquet", ".root"} {
+		writeSample(t, filepath.Join(dir, "sim"+ext), simColumns, sim)
+		a, err := Decode([]byte(strings.NewReplacer("SIM", "sim"+ext, "DATA", "data.csv").Replace(analysisTemplate)), filepath.Join(dir, "a.yaml"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		a.BatchSize = 1000
+		for _, workers := range []int{1, 2} {
+			r, info, err := a.BuildResponse(context.Background(), &Options{Workers: workers})
+			if err != nil {
+				t.Fatalf("%s: %v", ext, err)
+			}
+			if len(info.Inputs) != 1 || info.Inputs[0].Bytes == 0 {
+				t.Errorf("%s: inputs %+v", ext, info.Inputs)
+			}
+			if ref == nil {
+				ref = r
+				if r.Summary.Entries == 0 || r.Summary.Misses == 0 || r.Summary.OutsideTruth != 0 {
+					t.Fatalf("unexpected summary %+v", r.Summary)
+				}
+				continue
+			}
+			m, g := ref.Migrations, r.Migrations
+			if !slices.Equal(m.ColPtr(), g.ColPtr()) || !slices.Equal(m.RowIdx(), g.RowIdx()) ||
+				!slices.Equal(m.Values(), g.Values()) || !slices.Equal(m.SumW2(), g.SumW2()) ||
+				!slices.Equal(ref.Generated, r.Generated) || !slices.Equal(ref.Fakes, r.Fakes) ||
+				!slices.Equal(ref.Diagonal, r.Diagonal) || ref.Summary.Events != r.Summary.Events {
+				t.Errorf("%s with %d workers: response differs from the CSV one", ext, workers)
+			}
+		}
+	}
+}
+
+// Closure (common practice): unfolding the simulation's own reco
+// spectrum, with the simulation's truth as prior, returns that truth at
+// every iteration. With n = A·1 + fakes and the fakes as background, the
+// truth G is a fixed point of the EM update (D'Agostini, NIM A362 (1995)
+// 487, eq. 4: with the prior equal to the truth, the posterior shares out
+// n exactly back to it).
+func TestClosure(t *testing.T) {
+	dir := t.TempDir()
+	sim := simEvents(20000, 3)
+	writeSample(t, filepath.Join(dir, "sim.parquet"), simColumns, sim)
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{{1}})
+	a, err := Load(writeAnalysis(t, dir, "sim.parquet", "data.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, _, err := a.BuildResponse(context.Background(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := make([]float64, a.Reco.Len())
+	r.Migrations.RowSums(n)
+	for i := range n {
+		n[i] += r.Fakes[i]
+	}
+	bkg, err := a.Background(context.Background(), r, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := a.Problem(r, &Measured{Values: n}, bkg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for k := 1; k <= 5; k++ {
+		res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Iterations: k})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for j, g := range r.Generated {
+			if math.Abs(res.Estimate[j]-g) > 1e-6*g {
+				t.Errorf("iteration %d, bin %d: %v, truth %v", k, j, res.Estimate[j], g)
+			}
+		}
+	}
+}
+
+// The whole job: result folder with every format; the result agrees
+// bit for bit with the plain-table path on the tables of the same
+// response (the two paths interoperate).
+func TestRunAndTables(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.root"), simColumns, simEvents(20000, 5))
+	writeSample(t, filepath.Join(dir, "data.parquet"), []string{"x"}, [][]float64{simEvents(4000, 6)[1]})
+	path := writeAnalysis(t, dir, "sim.root", "data.parquet")
+	a, err := Load(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var stages []string
+	opt := &Options{Version: "test", Progress: func(stage string, done, total int64) {
+		if len(stages) == 0 || stages[len(stages)-1] != stage {
+			stages = append(stages, stage)
+		}
+	}}
+	out, err := a.Run(context.Background(), opt, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(stages) != 2 || !strings.HasPrefix(stages[0], "simulation ") || !strings.HasPrefix(stages[1], "data ") {
+		t.Errorf("progress stages %q", stages)
+	}
+	for _, f := range []string{"result.json", "result.csv", "region-all.csv", "result.root"} {
+		if _, err := os.Stat(filepath.Join(out.Folder, f)); err != nil {
+			t.Errorf("missing %s: %v", f, err)
+		}
+	}
+	if _, err := a.Run(context.Background(), nil, false); err == nil {
+		t.Error("an existing result folder was replaced without asking")
+	}
+
+	var doc map[string]any
+	b, _ := os.ReadFile(filepath.Join(out.Folder, "result.json"))
+	if err := json.Unmarshal(b, &doc); err != nil {
+		t.Fatal(err)
+	}
+	for _, k := range []string{"estimate", "uncertainty", "covariance", "efficiency", "purity", "stability", "density", "inputs", "program", "settings", "truth_binning", "response_summary"} {
+		if _, ok := doc[k]; !ok {
+			t.Errorf("result.json has no %q", k)
+		}
+	}
+	ins := doc["inputs"].([]any)
+	roles := map[string]bool{}
+	for _, in := range ins {
+		m := in.(map[string]any)
+		roles[m["role"].(string)] = true
+		if len(m["sha256"].(string)) != 64 {
+			t.Errorf("input %v without a SHA-256", m)
+		}
+	}
+	if !roles["analysis"] || !roles["simulation"] || !roles["data"] {
+		t.Errorf("input roles %v", roles)
+	}
+
+	// Density = estimate / width / luminosity for an in-range bin.
+	dens := doc["density"].([]any)
+	if got, want := dens[1].(float64), out.Result.Estimate[1]/0.5/2; math.Abs(got-want) > 1e-12*want {
+		t.Errorf("density of bin 1: %v, want %v", got, want)
+	}
+
+	// The ROOT file holds the counts slice with its overflow cell.
+	h, err := rootio.ReadHist1D(filepath.Join(out.Folder, "result.root"), "all/counts_all")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if h.NBins() != 5 || h.SumW[2] != out.Result.Estimate[1] || h.SumW[6] != out.Result.Estimate[5] || h.SumW[0] != 0 {
+		t.Errorf("ROOT counts %v, estimate %v", h.SumW, out.Result.Estimate)
+	}
+	if want := out.Result.Uncertainty[1] * out.Result.Uncertainty[1]; h.SumW2[2] != want {
+		t.Errorf("ROOT sumw2 %v, want %v", h.SumW2[2], want)
+	}
+
+	// The plain-table path on the same response gives the same bits.
+	var rb, gb, bb, nb bytes.Buffer
+	r := out.Response
+	if err := tables.WriteResponse(&rb, r.Migrations); err != nil {
+		t.Fatal(err)
+	}
+	tables.WriteVector(&gb, tables.Generated, r.Generated, r.GeneratedSumW2)
+	tables.WriteVector(&bb, tables.Background, out.Background.Values, out.Background.Variance)
+	tables.WriteVector(&nb, tables.Data, out.Data.Values, nil)
+	var set tables.Set
+	if set.Response, err = tables.ReadResponse(&rb, "response.csv"); err != nil {
+		t.Fatal(err)
+	}
+	set.Generated, _ = tables.ReadVector(&gb, "generated.csv", tables.Generated)
+	set.Background, _ = tables.ReadVector(&bb, "background.csv", tables.Background)
+	set.Data, _ = tables.ReadVector(&nb, "data.csv", tables.Data)
+	p, err := set.Assemble(tables.Sizes{Reco: a.Reco.Len(), Truth: a.Truth.Len()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, _ := a.Settings()
+	res, err := unfold.Unfold(context.Background(), p, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(res.Estimate, out.Result.Estimate) || !slices.Equal(res.Uncertainty, out.Result.Uncertainty) {
+		t.Errorf("plain tables give %v ± %v, the analysis %v ± %v", res.Estimate, res.Uncertainty, out.Result.Estimate, out.Result.Uncertainty)
+	}
+}
+
+func TestExpressionErrors(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(10, 1))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{{1}})
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "weight: w", "weight: 2*wt").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, _, err = a.BuildResponse(context.Background(), nil)
+	want := filepath.Join(dir, "a.yaml") + ":19: simulation[0].weight: "
+	if err == nil || !strings.HasPrefix(err.Error(), want) || !strings.Contains(err.Error(), "wt") || !strings.Contains(err.Error(), "x_true, x_reco, w, ok_true, ok_reco") {
+		t.Errorf("got %v, want an error starting %q naming the column and listing the file's columns", err, want)
+	}
+
+	// A missing events file names the analysis file, line and field.
+	src = strings.NewReplacer("SIM", "nowhere.csv", "DATA", "data.csv").Replace(analysisTemplate)
+	a, err = Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, _, err = a.BuildResponse(context.Background(), nil)
+	if err == nil || !strings.Contains(err.Error(), "a.yaml:17: simulation[0].file: cannot open the events file") {
+		t.Errorf("missing file: got %v", err)
+	}
+}
