@@ -131,13 +131,13 @@ func checkAgainstDense(t *testing.T, m *Matrix, sw, sw2 *mat.Dense, tol float64)
 	for i := 0; i < rows; i++ {
 		for j := 0; j < cols; j++ {
 			want := sw.At(i, j)
-			if got := m.At(i, j); !close(got, want, tol) {
+			if got := m.At(i, j); !near(got, want, tol) {
 				t.Fatalf("At(%d,%d) = %v, want %v (gonum dense sum)", i, j, got, want)
 			}
-			if got := csc.At(i, j); !close(got, want, tol) {
+			if got := csc.At(i, j); !near(got, want, tol) {
 				t.Fatalf("CSC().At(%d,%d) = %v, want %v (gonum dense sum)", i, j, got, want)
 			}
-			if got, want := w2[i*cols+j], sw2.At(i, j); !close(got, want, tol) {
+			if got, want := w2[i*cols+j], sw2.At(i, j); !near(got, want, tol) {
 				t.Fatalf("SumW2 at (%d,%d) = %v, want %v (gonum dense sum of squares)", i, j, got, want)
 			}
 		}
@@ -156,7 +156,7 @@ func sumW2Dense(m *Matrix) []float64 {
 	return d
 }
 
-func close(got, want, tol float64) bool {
+func near(got, want, tol float64) bool {
 	if got == want {
 		return true
 	}

@@ -37,7 +37,7 @@ type Matrix struct {
 // NewMatrix returns an error if the arrays are not a valid, exactly
 // deduplicated compressed-column matrix (lengths, monotone column
 // pointers, row indices in range and strictly increasing in each column,
-// finite values).
+// finite values, finite non-negative squared-weight sums).
 func NewMatrix(rows, cols int, colPtr, rowIdx []int, val, sumw2 []float64) (*Matrix, error) {
 	if rows < 0 || cols < 0 {
 		return nil, fmt.Errorf("sparse: negative dimensions %d×%d", rows, cols)
@@ -72,6 +72,11 @@ func NewMatrix(rows, cols int, colPtr, rowIdx []int, val, sumw2 []float64) (*Mat
 			prev = i
 			if v := val[k]; v-v != 0 {
 				return nil, fmt.Errorf("sparse: non-finite value %v at (%d,%d)", v, i, j)
+			}
+			if sumw2 != nil {
+				if v := sumw2[k]; v-v != 0 || v < 0 {
+					return nil, fmt.Errorf("sparse: squared-weight sum %v at (%d,%d) is not a finite non-negative number", v, i, j)
+				}
 			}
 		}
 	}

@@ -1,0 +1,312 @@
+package sparse
+
+import (
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"runtime/metrics"
+	"slices"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+)
+
+// The fine grid of the benchmarks: 500,000 truth × 1,000,000 reco bins,
+// 20 non-zeros per column in a 3x3x4 neighbourhood (about 10^7 non-zeros).
+var (
+	fineOnce sync.Once
+	fine     *Matrix
+	fineErr  error
+)
+
+func fineMatrix(b *testing.B) *Matrix {
+	fineOnce.Do(func() {
+		fine, fineErr = Banded3D([3]int{100, 100, 50}, [3]int{100, 100, 100}, [3]int{3, 3, 4}, 20, 1)
+	})
+	if fineErr != nil {
+		b.Fatal(fineErr)
+	}
+	return fine
+}
+
+// triad is a STREAM-like triad a = b + s c over three arrays of n float64
+// on GOMAXPROCS goroutines, returning the bandwidth in bytes per second by
+// STREAM's counting (24 bytes per element, write-allocate not counted):
+// the median of reps repetitions.
+type triad struct {
+	a, b, c []float64
+}
+
+func newTriad(n int) *triad {
+	t := &triad{make([]float64, n), make([]float64, n), make([]float64, n)}
+	for i := range t.b {
+		t.a[i], t.b[i], t.c[i] = 1, 2, 3 // touch every page
+	}
+	return t
+}
+
+func (t *triad) bandwidth(reps int) float64 {
+	g := runtime.GOMAXPROCS(0)
+	n := len(t.a)
+	times := make([]float64, reps)
+	for r := range times {
+		start := time.Now()
+		var wg sync.WaitGroup
+		for k := 0; k < g; k++ {
+			lo, hi := k*n/g, (k+1)*n/g
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				a, b, c := t.a[lo:hi], t.b[lo:hi], t.c[lo:hi]
+				b, c = b[:len(a)], c[:len(a)]
+				for i := range a {
+					a[i] = b[i] + 3*c[i]
+				}
+			}()
+		}
+		wg.Wait()
+		times[r] = time.Since(start).Seconds()
+	}
+	slices.Sort(times)
+	return 24 * float64(n) / times[reps/2]
+}
+
+var (
+	triadOnce sync.Once
+	triadBuf  *triad
+)
+
+// sameRunTriad measures the triad bandwidth over arrays as large as the
+// matrix (each of nnz float64, 3×8 bytes per non-zero in all).
+func sameRunTriad(b *testing.B, m *Matrix) float64 {
+	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
+	return triadBuf.bandwidth(5)
+}
+
+// kernelBench runs one kernel per benchmark iteration and reports its
+// time per non-zero, the bytes it must move (model), and the ratio of its
+// time to the bandwidth floor: model bytes / same-run triad bandwidth.
+func kernelBench(b *testing.B, modelBytes func(m *Matrix) float64, call func(m *Matrix)) {
+	m := fineMatrix(b)
+	call(m) // warm-up: workspaces and helper goroutines
+	bwBefore := sameRunTriad(b, m)
+	b.ResetTimer()
+	for b.Loop() {
+		call(m)
+	}
+	b.StopTimer()
+	bw := (bwBefore + sameRunTriad(b, m)) / 2
+	sec := b.Elapsed().Seconds() / float64(b.N)
+	bytes := modelBytes(m)
+	floor := bytes / bw
+	b.ReportMetric(sec*1e9/float64(m.NNZ()), "ns/nnz")
+	b.ReportMetric(bytes/1e6, "MB-model/op")
+	b.ReportMetric(bw/1e9, "triad-GB/s")
+	b.ReportMetric(sec/floor, "x-floor")
+	b.ReportMetric(float64(16*m.NNZ()+8*(m.cols+1))/float64(m.NNZ()), "matrix-B/nnz")
+}
+
+// matrixBytes is one pass over the matrix: row indices and values (8
+// bytes each per non-zero) and column pointers.
+func matrixBytes(m *Matrix) float64 { return float64(16*m.NNZ() + 8*(m.cols+1)) }
+
+// BenchmarkSweep is one iteration of D'Agostini/EM in fused form: gather
+// g_j = (Aᵀ y)_j, x_j ← x_j g_j / ε_j, scatter into the next fold. Model
+// bytes: one matrix pass, y read, next written, x read and written, ε
+// read.
+func BenchmarkSweep(b *testing.B) {
+	m := fineMatrix(b)
+	x, eps := make([]float64, m.cols), make([]float64, m.cols)
+	m.ColSums(eps)
+	for j := range x {
+		x[j] = 1
+	}
+	y, next := make([]float64, m.rows), make([]float64, m.rows)
+	for i := range y {
+		y[i] = 1
+	}
+	update := func(j int, g float64) float64 {
+		v := x[j] * g / eps[j]
+		x[j] = v
+		return v
+	}
+	kernelBench(b, func(m *Matrix) float64 {
+		return matrixBytes(m) + 16*float64(m.rows) + 24*float64(m.cols)
+	}, func(m *Matrix) { m.Sweep(next, y, update) })
+}
+
+// BenchmarkFold is dst = A x. Model bytes: one matrix pass, x read, dst
+// written.
+func BenchmarkFold(b *testing.B) {
+	m := fineMatrix(b)
+	x, dst := make([]float64, m.cols), make([]float64, m.rows)
+	for j := range x {
+		x[j] = 1
+	}
+	kernelBench(b, func(m *Matrix) float64 {
+		return matrixBytes(m) + 8*float64(m.rows) + 8*float64(m.cols)
+	}, func(m *Matrix) { m.Fold(dst, x) })
+}
+
+// BenchmarkBackProject is dst = Aᵀ y. Model bytes: one matrix pass, y
+// read, dst written.
+func BenchmarkBackProject(b *testing.B) {
+	m := fineMatrix(b)
+	y, dst := make([]float64, m.rows), make([]float64, m.cols)
+	for i := range y {
+		y[i] = 1
+	}
+	kernelBench(b, func(m *Matrix) float64 {
+		return matrixBytes(m) + 8*float64(m.rows) + 8*float64(m.cols)
+	}, func(m *Matrix) { m.BackProject(dst, y) })
+}
+
+// BenchmarkTriad reports the STREAM-like triad alone, for reference.
+func BenchmarkTriad(b *testing.B) {
+	m := fineMatrix(b)
+	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
+	var bw float64
+	for b.Loop() {
+		bw = triadBuf.bandwidth(1)
+	}
+	b.ReportMetric(bw/1e9, "GB/s")
+}
+
+// eventBatch generates batch s of a fictional detector simulation on the
+// fine grid: events are drawn on the 100x100x50 truth grid (the third
+// coordinate falling off as exp(-z/15)), 10% are lost (inefficiency), the
+// others are smeared by up to ±2 bins per axis onto the 100x100x100 reco
+// grid (lost if they leave it). Weights are 0.8-1.2, 2% of them negative.
+// Only reconstructed events become entries. The batch depends only on s.
+func eventBatch(s uint64, events int, rows, cols []int32, w []float64) ([]int32, []int32, []float64) {
+	rng := rand.New(rand.NewPCG(0x5eed, s))
+	rows, cols, w = rows[:0], cols[:0], w[:0]
+	zNorm := 1 - math.Exp(-50.0/15)
+	for e := 0; e < events; e++ {
+		u := rng.Uint64()
+		ix, iy := int(u%100), int((u>>8)%100)
+		iz := int(-15 * math.Log(1-rng.Float64()*zNorm))
+		if iz > 49 {
+			iz = 49
+		}
+		if (u>>16)%10 == 0 {
+			continue
+		}
+		rx := ix + int((u>>24)%5) - 2
+		ry := iy + int((u>>32)%5) - 2
+		rz := 2*iz + int((u>>40)%6) - 2
+		if rx < 0 || rx >= 100 || ry < 0 || ry >= 100 || rz < 0 || rz >= 100 {
+			continue
+		}
+		wt := 0.8 + 0.4*float64((u>>48)&0xff)/255
+		if (u>>56)%50 == 0 {
+			wt = -wt
+		}
+		rows = append(rows, int32(rx+100*(ry+100*rz)))
+		cols = append(cols, int32(ix+100*(iy+100*iz)))
+		w = append(w, wt)
+	}
+	return rows, cols, w
+}
+
+// heapInUse returns the bytes of heap spans in use (objects and the
+// unused part of in-use spans), HeapInuse of runtime.MemStats, read
+// through runtime/metrics without stopping the world.
+func heapInUse(s []metrics.Sample) uint64 {
+	metrics.Read(s)
+	return s[0].Value.Uint64() + s[1].Value.Uint64()
+}
+
+// BenchmarkAccumulate fills the fine grid from generated events on
+// GOMAXPROCS goroutines (batches of 2^18 events numbered by position) and
+// builds the matrix. The event generation is included in the time. It
+// reports entries per second and the peak heap in use above the
+// starting point, per distinct cell, sampled every millisecond.
+func BenchmarkAccumulate(b *testing.B) {
+	for _, events := range []int{16 << 20, 48 << 20} {
+		b.Run(map[int]string{16 << 20: "events=16M", 48 << 20: "events=48M"}[events], func(b *testing.B) {
+			const batchEvents = 1 << 18
+			nb := uint64((events + batchEvents - 1) / batchEvents)
+			var entries int64
+			var cells int
+			var peakPerCell float64
+			samples := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}, {Name: "/memory/classes/heap/unused:bytes"}}
+			for b.Loop() {
+				b.StopTimer()
+				runtime.GC()
+				base := heapInUse(samples)
+				var peak atomic.Uint64
+				stop := make(chan struct{})
+				sampled := make(chan struct{})
+				go func() {
+					defer close(sampled)
+					s := []metrics.Sample{{Name: samples[0].Name}, {Name: samples[1].Name}}
+					tick := time.NewTicker(time.Millisecond)
+					defer tick.Stop()
+					for {
+						if h := heapInUse(s); h > peak.Load() {
+							peak.Store(h)
+						}
+						select {
+						case <-stop:
+							return
+						case <-tick.C:
+						}
+					}
+				}()
+				b.StartTimer()
+
+				acc, err := NewAccumulator(1000000, 500000, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				var next atomic.Uint64
+				var wg sync.WaitGroup
+				var failed atomic.Value
+				for g := 0; g < runtime.GOMAXPROCS(0); g++ {
+					wg.Add(1)
+					go func() {
+						defer wg.Done()
+						var rows, cols []int32
+						var w []float64
+						for {
+							s := next.Add(1) - 1
+							if s >= nb {
+								return
+							}
+							rows, cols, w = eventBatch(s, batchEvents, rows, cols, w)
+							if err := acc.AddBatch(s, rows, cols, w); err != nil {
+								failed.Store(err)
+								return
+							}
+						}
+					}()
+				}
+				wg.Wait()
+				if err, ok := failed.Load().(error); ok {
+					b.Fatal(err)
+				}
+				m, rep, err := acc.Matrix()
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.StopTimer()
+				if h := heapInUse(samples); h > peak.Load() {
+					peak.Store(h)
+				}
+				close(stop)
+				<-sampled
+				entries, cells = rep.Entries, m.NNZ()
+				peakPerCell = float64(peak.Load()-base) / float64(cells)
+				runtime.KeepAlive(m)
+				b.StartTimer()
+			}
+			sec := b.Elapsed().Seconds() / float64(b.N)
+			b.ReportMetric(float64(entries)/sec/1e6, "Mentries/s")
+			b.ReportMetric(float64(cells), "cells")
+			b.ReportMetric(float64(entries), "entries")
+			b.ReportMetric(peakPerCell, "peak-B/cell")
+		})
+	}
+}
