@@ -1,18 +1,238 @@
 package main
 
 import (
-	"errors"
+	"bufio"
+	"context"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"text/tabwriter"
 
 	"github.com/spf13/cobra"
+
+	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/tables"
 )
 
-// newResponseCommand is a placeholder until the command lands.
+type responseOptions struct {
+	out    string
+	tables string
+	force  bool
+}
+
 func newResponseCommand(g *globalOptions) *cobra.Command {
-	return &cobra.Command{
-		Use:   "response",
-		Short: "(not yet available)",
+	o := &responseOptions{}
+	cmd := &cobra.Command{
+		Use:   "response ANALYSIS.yaml",
+		Short: "Build the response from the simulated events of an analysis file and save it",
+		Long: `Build the response of an analysis from its simulated samples: every event
+is located in the truth binning (if it passes the truth selection) and in
+the reco binning (if it passes the reco selection). Located at both levels
+it is a migration, at truth level only a miss, at reco level only a fake
+(expected background). Events outside a binning whose flow is switched off
+are counted and reported.
+
+The response is saved as a bundle folder (--out; by default the analysis
+file's "response" key, or "response" beside the analysis file), which
+"desmear unfold ANALYSIS.yaml" loads when the analysis file names it. With
+--tables DIR the response is also written as the plain tables response.csv,
+generated.csv and background.csv that "desmear unfold --response ..." reads.
+
+The summary (events, migrations, misses, fakes, outside counts, negative
+cells, and per truth bin the efficiency, purity and stability) goes to
+standard output.`,
+		Example: `  desmear response analysis.yaml
+  desmear response analysis.yaml --out sim.response --tables tables/`,
+		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			return usageErr(errors.New("response: not yet available"))
+			return runResponse(cmd.Context(), g, o, args[0])
 		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.out, "out", "", "response bundle folder to write (default: the analysis file's response key, else \"response\" beside it)")
+	f.StringVar(&o.tables, "tables", "", "also write response.csv, generated.csv and background.csv into this folder")
+	f.BoolVar(&o.force, "force", false, "replace an earlier response bundle or tables folder")
+	return cmd
+}
+
+func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path string) error {
+	a, err := analysis.Load(path)
+	if err != nil {
+		return classifyAnalysisErr(err)
+	}
+	out := o.out
+	if out == "" {
+		out = a.ResponseFile
+		if out == "" {
+			out = filepath.Join(a.Dir, "response")
+		}
+	}
+	if err := checkTarget(out, o.force, "response.json"); err != nil {
+		return err
+	}
+	if o.tables != "" {
+		if err := checkTarget(o.tables, o.force, "response.csv"); err != nil {
+			return err
+		}
+	}
+	p := newProgress(g)
+	defer p.finish()
+	r, info, err := a.BuildResponse(ctx, &analysis.Options{Progress: p.report, Version: version})
+	p.finish()
+	if err != nil {
+		return classifyAnalysisErr(err)
+	}
+	if err := r.Save(out, *info, o.force); err != nil {
+		return ioErr(err)
+	}
+	if o.tables != "" {
+		bkg, err := a.Background(ctx, r, &analysis.Options{Progress: p.report})
+		p.finish()
+		if err != nil {
+			return classifyAnalysisErr(err)
+		}
+		if err := writeTables(o.tables, r, bkg, o.force); err != nil {
+			return ioErr(err)
+		}
+	}
+	w := bufio.NewWriter(g.stdout)
+	fmt.Fprintf(w, "response: %s\n", out)
+	if o.tables != "" {
+		fmt.Fprintf(w, "tables:   %s (response.csv, generated.csv, background.csv)\n", o.tables)
+	}
+	printResponseSummary(w, a, r)
+	if err := w.Flush(); err != nil {
+		return ioErr(err)
+	}
+	return nil
+}
+
+// checkTarget refuses an existing path unless force is set and it holds
+// marker (an earlier output of the same kind).
+func checkTarget(path string, force bool, marker string) error {
+	fi, err := os.Lstat(path)
+	if err != nil {
+		return nil
+	}
+	if !force {
+		return usagef("%s exists (use --force to replace it)", path)
+	}
+	if _, err := os.Stat(filepath.Join(path, marker)); !fi.IsDir() || err != nil {
+		return usagef("%s exists and does not hold a %s; not replacing it", path, marker)
+	}
+	return nil
+}
+
+// writeTables writes the plain tables of the response into dir,
+// atomically (a temporary sibling folder renamed into place).
+func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace bool) (err error) {
+	parent := filepath.Dir(dir)
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return err
+	}
+	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".partial-")
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if err != nil {
+			os.RemoveAll(tmp)
+		}
+	}()
+	write := func(name string, fn func(io.Writer) error) error {
+		f, err := os.Create(filepath.Join(tmp, name))
+		if err != nil {
+			return err
+		}
+		bw := bufio.NewWriter(f)
+		if err := fn(bw); err != nil {
+			f.Close()
+			return err
+		}
+		if err := bw.Flush(); err != nil {
+			f.Close()
+			return err
+		}
+		if err := f.Sync(); err != nil {
+			f.Close()
+			return err
+		}
+		return f.Close()
+	}
+	if err := write("response.csv", func(w io.Writer) error { return tables.WriteResponse(w, r.Migrations) }); err != nil {
+		return err
+	}
+	if err := write("generated.csv", func(w io.Writer) error {
+		return tables.WriteVector(w, tables.Generated, r.Generated, r.GeneratedSumW2)
+	}); err != nil {
+		return err
+	}
+	val, vr := make([]float64, r.RecoBins()), make([]float64, r.RecoBins())
+	if bkg != nil {
+		val, vr = bkg.Values, bkg.Variance
+	}
+	if err := write("background.csv", func(w io.Writer) error { return tables.WriteVector(w, tables.Background, val, vr) }); err != nil {
+		return err
+	}
+	if _, err := os.Lstat(dir); err == nil {
+		old := tmp + ".old"
+		if err := os.Rename(dir, old); err != nil {
+			return err
+		}
+		if err := os.Rename(tmp, dir); err != nil {
+			os.Rename(old, dir)
+			return err
+		}
+		return os.RemoveAll(old)
+	}
+	return os.Rename(tmp, dir)
+}
+
+// printSummary prints the event counts and the per-truth-bin quality of
+// a response.
+func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response) {
+	s := r.Summary
+	fmt.Fprintf(w, "events read:        %d\n", s.Events)
+	fmt.Fprintf(w, "migration entries:  %d (%d distinct cells)\n", s.Entries, r.Migrations.NNZ())
+	fmt.Fprintf(w, "misses:             %d (truth only)\n", s.Misses)
+	fmt.Fprintf(w, "fakes:              %d (reco only)\n", s.Fakes)
+	fmt.Fprintf(w, "outside truth:      %d (passed the truth selection, no truth bin; counted as fakes when reconstructed)\n", s.OutsideTruth)
+	fmt.Fprintf(w, "outside reco:       %d (passed the reco selection, no reco bin; counted as misses when generated in a truth bin)\n", s.OutsideReco)
+	fmt.Fprintf(w, "negative cells:     %d", s.NegativeCellCount)
+	if len(s.NegativeCells) > 0 {
+		var parts []string
+		for i, c := range s.NegativeCells {
+			if i == 5 {
+				parts = append(parts, "...")
+				break
+			}
+			parts = append(parts, fmt.Sprintf("(reco %d, truth %d) = %.4g", c.Reco, c.Truth, c.Value))
+		}
+		fmt.Fprintf(w, ": %s", strings.Join(parts, ", "))
+	}
+	fmt.Fprintln(w)
+	if len(s.NegativeGenerated) > 0 {
+		fmt.Fprintf(w, "negative generated: truth bins %v\n", s.NegativeGenerated)
+	}
+	eff, pur, stab := r.Efficiency(nil), r.Purity(nil), r.Stability(nil)
+	num := func(v []float64, j int) string {
+		if v == nil || math.IsNaN(v[j]) {
+			return "-"
+		}
+		return fmt.Sprintf("%.3f", v[j])
+	}
+	fmt.Fprintln(w)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "truth bin\tlabel\tgenerated\tefficiency\tpurity\tstability\t\n")
+	for j := 0; j < a.Truth.Len(); j++ {
+		fmt.Fprintf(tw, "%d\t%s\t%.6g\t%s\t%s\t%s\t\n", j, a.Truth.Label(j), r.Generated[j], num(eff, j), num(pur, j), num(stab, j))
+	}
+	tw.Flush()
+	if pur == nil {
+		fmt.Fprintln(w, "(purity and stability need a reco observable for every truth axis name)")
 	}
 }

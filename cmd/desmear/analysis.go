@@ -1,0 +1,204 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"sync"
+	"text/tabwriter"
+	"time"
+
+	"github.com/schollz/progressbar/v3"
+	"github.com/spf13/cobra"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/observable"
+	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/tables"
+)
+
+// runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from
+// an analysis file. It honours the unfold command's --force (replace an
+// earlier result folder) when that flag exists.
+func runAnalysisUnfold(ctx context.Context, g *globalOptions, cmd *cobra.Command, path string) error {
+	replace := boolFlag(cmd, "force")
+	a, out, err := runAnalysis(ctx, g, path, replace)
+	if err != nil {
+		return err
+	}
+	w := bufio.NewWriter(g.stdout)
+	printOutcome(w, a, out)
+	if err := w.Flush(); err != nil {
+		return ioErr(err)
+	}
+	return nil
+}
+
+// runAnalysis loads the analysis file at path and runs it, with a
+// progress bar on stderr when it is a terminal. It returns the analysis
+// and what the run produced.
+func runAnalysis(ctx context.Context, g *globalOptions, path string, replace bool) (*analysis.Analysis, *analysis.Outcome, error) {
+	a, err := analysis.Load(path)
+	if err != nil {
+		return nil, nil, classifyAnalysisErr(err)
+	}
+	if err := a.CheckOutput(replace); err != nil {
+		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+			return nil, nil, usagef("%v (use --force to replace an earlier result)", err)
+		}
+		return nil, nil, ioErr(err)
+	}
+	p := newProgress(g)
+	defer p.finish()
+	start := time.Now()
+	out, err := a.Run(ctx, &analysis.Options{Progress: p.report, Version: version}, replace)
+	p.finish()
+	if err != nil {
+		return nil, nil, classifyAnalysisErr(err)
+	}
+	if !g.quiet {
+		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", path, time.Since(start).Seconds())
+	}
+	return a, out, nil
+}
+
+func boolFlag(cmd *cobra.Command, name string) bool {
+	if cmd == nil {
+		return false
+	}
+	f := cmd.Flags().Lookup(name)
+	if f == nil {
+		return false
+	}
+	v, _ := cmd.Flags().GetBool(name)
+	return v
+}
+
+// classifyAnalysisErr attaches the exit class to an error of an
+// analysis run.
+func classifyAnalysisErr(err error) error {
+	var (
+		ae  *analysis.Error
+		aes analysis.Errors
+		be  *binning.Error
+		te  *tables.Error
+		oe  *observable.Error
+		ue  *unfold.InputError
+		se  *unfold.SettingsError
+		tl  *unfold.TooLargeError
+		ne  *unfold.NumericalError
+		ee  *fill.EventError
+		pe  *fs.PathError
+	)
+	switch {
+	case errors.Is(err, context.Canceled), errors.Is(err, context.DeadlineExceeded):
+		return err
+	case errors.As(err, &tl), errors.As(err, &ne):
+		return numericalErr(err)
+	case errors.As(err, &ae) && ae.Err != nil && errors.As(ae.Err, &pe):
+		return ioErr(err)
+	case errors.As(err, &ae), errors.As(err, &aes), errors.As(err, &be), errors.As(err, &te), errors.As(err, &oe),
+		errors.As(err, &ue), errors.As(err, &se), errors.As(err, &ee):
+		return inputErr(err)
+	case errors.Is(err, output.ErrExists), errors.Is(err, output.ErrNotResult):
+		return usageErr(err)
+	case errors.As(err, &pe):
+		return ioErr(err)
+	}
+	return inputErr(err)
+}
+
+// progress draws one bar per stage on stderr, only when stderr is a
+// terminal (and not switched off).
+type progress struct {
+	mu    sync.Mutex
+	on    bool
+	w     io.Writer
+	stage string
+	bar   *progressbar.ProgressBar
+}
+
+func newProgress(g *globalOptions) *progress {
+	return &progress{on: g.progress(), w: g.stderr}
+}
+
+func (p *progress) report(stage string, done, total int64) {
+	if !p.on {
+		return
+	}
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if stage != p.stage || p.bar == nil {
+		if p.bar != nil {
+			p.bar.Finish()
+		}
+		p.stage = stage
+		max := total
+		if max <= 0 {
+			max = -1
+		}
+		p.bar = progressbar.NewOptions64(max,
+			progressbar.OptionSetWriter(p.w),
+			progressbar.OptionSetDescription(stage),
+			progressbar.OptionShowCount(),
+			progressbar.OptionSetItsString("events"),
+			progressbar.OptionShowIts(),
+			progressbar.OptionThrottle(100*time.Millisecond),
+			progressbar.OptionClearOnFinish(),
+		)
+	}
+	p.bar.Set64(done)
+}
+
+func (p *progress) finish() {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.bar != nil {
+		p.bar.Finish()
+		p.bar = nil
+	}
+}
+
+// printOutcome prints where the result is and a short table of the
+// estimate per in-range truth bin.
+func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
+	res := out.Result
+	fmt.Fprintf(w, "result: %s (", out.Folder)
+	for i, f := range out.Files {
+		if i > 0 {
+			fmt.Fprint(w, ", ")
+		}
+		fmt.Fprint(w, f)
+	}
+	fmt.Fprintln(w, ")")
+	conv := ""
+	if a.Unfolding.StopChi2 > 0 {
+		conv = fmt.Sprintf(", converged: %v", res.Converged)
+	}
+	fmt.Fprintf(w, "iterations: %d%s\n", res.Iterations, conv)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "bin\tlabel\testimate\tuncertainty\tefficiency\t\n")
+	for j := 0; j < a.Truth.InRange(); j++ {
+		u := "-"
+		if res.Uncertainty != nil {
+			u = fmt.Sprintf("%.4g", res.Uncertainty[j])
+		}
+		e := "-"
+		if !math.IsNaN(res.Efficiency[j]) {
+			e = fmt.Sprintf("%.3f", res.Efficiency[j])
+		}
+		est := fmt.Sprintf("%.6g", res.Estimate[j])
+		if !res.Determined[j] {
+			est = "not determined"
+		}
+		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t\n", j, a.Truth.Label(j), est, u, e)
+	}
+	tw.Flush()
+}
