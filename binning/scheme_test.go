@@ -362,6 +362,7 @@ func TestNeighbours2D(t *testing.T) {
 		{5, 0, 1, 8},   // pt[30,50), centre 40: pt[30,45) of slice 0, pt[40,80) of slice 2
 		{3, 0, -1, -1}, // pt[70,110), centre 90: on the last edge of slice 1, outside its bins
 		{4, 1, -1, 5},  // along pt: the underflow is not a neighbour
+		{6, 0, 3, 8},   // centre 70: pt[70,110) of slice 0 (not symmetric: bin 3 has no next)
 		{8, 1, 7, -1},
 		{8, 0, 6, -1}, // no y slice 3 in the central region; forward is another region
 		{9, 0, -1, 11},
