@@ -2,8 +2,10 @@ package fill
 
 import (
 	"encoding/json"
+
 	"errors"
 	"fmt"
+	"github.com/desmear/desmear/sparse"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -14,8 +16,9 @@ import (
 //	response.json    format, sizes, the generated and fakes vectors with
 //	                 their sums of squared weights, the purity histograms,
 //	                 the summary and provenance (BundleInfo)
-//	migrations.bin   the migration matrix, compressed-column, with its
-//	                 sums of squared weights (see writeMatrix)
+//	migrations.dsm   the migration matrix with its sums of squared
+//	                 weights, in the sparse package's checksummed file
+//	                 format (sparse.Matrix.WriteTo, sparse.Load)
 //
 // It is written atomically: into a hidden temporary sibling folder that
 // is renamed into place.
@@ -23,7 +26,7 @@ const (
 	BundleFormat  = "desmear-response"
 	BundleVersion = 1
 	bundleJSON    = "response.json"
-	bundleMatrix  = "migrations.bin"
+	bundleMatrix  = "migrations.dsm"
 )
 
 // BundleInfo is the provenance stored with a response bundle.
@@ -98,7 +101,7 @@ func (r *Response) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err := writeSync(filepath.Join(tmp, bundleJSON), func(f *os.File) error { _, err := f.Write(b); return err }); err != nil {
 		return err
 	}
-	if err := writeSync(filepath.Join(tmp, bundleMatrix), func(f *os.File) error { return writeMatrix(f, r.Migrations) }); err != nil {
+	if err := writeSync(filepath.Join(tmp, bundleMatrix), func(f *os.File) error { _, err := r.Migrations.WriteTo(f); return err }); err != nil {
 		return err
 	}
 	if _, err := os.Lstat(dir); err == nil {
@@ -154,7 +157,7 @@ func LoadResponse(dir string) (*Response, *BundleInfo, error) {
 	if bad {
 		return nil, nil, fmt.Errorf("%s: vector lengths do not match %d truth and %d reco bins", filepath.Join(dir, bundleJSON), nt, nr)
 	}
-	m, err := readMatrix(filepath.Join(dir, bundleMatrix))
+	m, err := sparse.Load(filepath.Join(dir, bundleMatrix))
 	if err != nil {
 		return nil, nil, err
 	}
