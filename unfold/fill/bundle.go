@@ -2,13 +2,13 @@ package fill
 
 import (
 	"encoding/json"
-
 	"errors"
 	"fmt"
-	"github.com/desmear/desmear/sparse"
 	"io/fs"
 	"os"
 	"path/filepath"
+
+	"github.com/desmear/desmear/sparse"
 )
 
 // A response bundle is a folder holding a built response:
