@@ -1,18 +1,504 @@
 package main
 
 import (
+	"context"
 	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"strings"
+	"text/tabwriter"
 
 	"github.com/spf13/cobra"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/tables"
 )
 
-// newUnfoldCommand is a placeholder until the command lands.
+// unfoldOptions are the options of "desmear unfold" in plain-table mode.
+type unfoldOptions struct {
+	response, generated, data, background, prior string
+	truthBinning, recoBinning                    string
+
+	iterations    int
+	stopChi2      float64
+	maxIterations int
+	bgMode        unfold.BackgroundMode
+	smooth        float64
+	covariance    unfold.CovarianceMode
+	diagonal      unfold.DiagonalMethod
+	probes, toys  int
+	seed          uint64
+	memoryLimit   int64
+
+	out   string
+	force bool
+}
+
+// tableFlags are the flags that name plain-table inputs; they cannot be
+// combined with an analysis file.
+var tableFlags = []string{"response", "generated", "data", "background", "prior", "truth-binning", "reco-binning"}
+
+// testHook, when set by a test, is called at named stages of the
+// plain-table run ("loaded", "unfolded", "written").
+var testHook func(ctx context.Context, stage string)
+
+func hook(ctx context.Context, stage string) {
+	if testHook != nil {
+		testHook(ctx, stage)
+	}
+}
+
 func newUnfoldCommand(g *globalOptions) *cobra.Command {
-	return &cobra.Command{
-		Use:   "unfold",
-		Short: "(not yet available)",
+	var o unfoldOptions
+	cmd := &cobra.Command{
+		Use:   "unfold (ANALYSIS.yaml | --response A.csv --generated G.csv --data n.csv --out DIR [flags])",
+		Short: "Unfold measured data with the iterative Bayesian method",
+		Long: `unfold corrects a measured (reco-level) spectrum for resolution, acceptance
+and efficiency with the D'Agostini iterative Bayesian method (EM for Poisson
+data), on a sparse response matrix over global bin indices, and writes a
+result folder.
+
+It runs in one of two modes:
+
+  desmear unfold ANALYSIS.yaml
+      the whole job from an analysis file (simulated events, data, binning).
+
+  desmear unfold --response A.csv --generated G.csv --data n.csv --out DIR
+      from plain tables that another framework produced. Each table is a CSV
+      file with a header row; lines starting with # are comments; indices are
+      0-based global bin indices:
+        A.csv  reco,truth,value[,sumw2]   response: weighted count generated in
+                                          truth bin j and reconstructed in reco bin i
+        G.csv  truth,value[,sumw2]        generated count per truth bin,
+                                          reconstructed or not
+        n.csv  reco,value[,variance]      data (variance defaults to the count)
+        b.csv  reco,value[,variance]      expected background (--background)
+        p.csv  truth,value                prior shape (--prior; default: G)
+      Without binning files the numbers of bins are 1 + the largest index in
+      the tables; with --truth-binning/--reco-binning they are the schemes'
+      sizes, and larger indices are errors.
+
+The result folder DIR holds result.json (estimate, uncertainty, covariance with
+--covariance full, efficiency, iteration history, settings, input files with
+their SHA-256) and result.csv (one row per truth bin). It is written to a
+temporary folder and renamed into place, so a failed or interrupted run leaves
+nothing behind; an existing DIR is refused unless --force is given (and even
+then only an earlier result folder or an empty folder is replaced).
+
+The iteration stops after --iterations K (default 4), or at the first
+iteration whose chi-square between successive estimates,
+  chi2(k) = sum_j eps_j (mu_j(k) - mu_j(k-1))^2 / mu_j(k),
+is at most --stop-chi2, within --max-iterations.`,
+		Example: `  desmear unfold --response A.csv --generated G.csv --data n.csv --out result
+  desmear unfold --response A.csv --generated G.csv --data n.csv --background b.csv \
+      --iterations 6 --covariance full --out result --force
+  desmear unfold --response A.csv --generated G.csv --data n.csv \
+      --truth-binning truth.yaml --reco-binning reco.yaml --stop-chi2 0.5 --out result
+  desmear unfold analysis.yaml`,
+		Args: cobra.MaximumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			return usageErr(errors.New("unfold: not yet available"))
+			if len(args) == 1 {
+				var mixed []string
+				for _, name := range tableFlags {
+					if cmd.Flags().Changed(name) {
+						mixed = append(mixed, "--"+name)
+					}
+				}
+				if len(mixed) > 0 {
+					return usagef("give either an analysis file or the plain tables, not both: %s cannot be combined with %s", strings.Join(mixed, ", "), args[0])
+				}
+				return runAnalysisUnfold(cmd.Context(), g, cmd, args[0])
+			}
+			if err := o.check(cmd); err != nil {
+				return err
+			}
+			return runUnfold(cmd.Context(), g, &o)
 		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.response, "response", "", "response table `A.csv` (reco,truth,value[,sumw2])")
+	f.StringVar(&o.generated, "generated", "", "generated-count table `G.csv` (truth,value[,sumw2])")
+	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
+	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
+	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
+	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
+	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
+	f.IntVar(&o.iterations, "iterations", 0, "fixed number of iterations `K` (default 4 unless --stop-chi2 is given)")
+	f.Float64Var(&o.stopChi2, "stop-chi2", 0, "stop at the first iteration whose chi-square between successive estimates is at most `X`")
+	f.IntVar(&o.maxIterations, "max-iterations", 0, "with --stop-chi2: at most `K` iterations (default 100)")
+	f.Var(flagval.NewChoice(&o.bgMode, unfold.InModel, []string{"model", "subtract"}, []unfold.BackgroundMode{unfold.InModel, unfold.Subtract}),
+		"background-mode", "model: the background stays in the folded expectation (estimates stay non-negative); subtract: data minus background is unfolded (negative differences set to 0)")
+	f.Float64Var(&o.smooth, "smooth", 0, "smooth the estimate between iterations with strength `W` in (0,1] along each axis of the truth binning, within regions (needs --truth-binning; default: no smoothing)")
+	f.Var(flagval.NewChoice(&o.covariance, unfold.Diagonal, []string{"none", "diag", "full"}, []unfold.CovarianceMode{unfold.NoCovariance, unfold.Diagonal, unfold.Full}),
+		"covariance", "data-statistical uncertainty: none; diag (per-bin uncertainties); full (also the covariance matrix, linearised through every iteration)")
+	f.Var(flagval.NewChoice(&o.diagonal, unfold.DiagonalAuto, []string{"auto", "exact", "probes", "toys"}, []unfold.DiagonalMethod{unfold.DiagonalAuto, unfold.DiagonalExact, unfold.DiagonalProbes, unfold.DiagonalToys}),
+		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
+	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
+	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
+	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
+	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the uncertainty computation, e.g. 8GiB or 500MB; a full covariance above it is refused")
+	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
+	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
+	return cmd
+}
+
+// check validates the plain-table options.
+func (o *unfoldOptions) check(cmd *cobra.Command) error {
+	var missing []string
+	for _, req := range []struct{ flag, val string }{{"response", o.response}, {"generated", o.generated}, {"data", o.data}, {"out", o.out}} {
+		if req.val == "" {
+			missing = append(missing, "--"+req.flag)
+		}
+	}
+	if len(missing) > 0 {
+		return usagef("unfold needs %s (or an analysis file as the only argument); see \"desmear unfold --help\"", strings.Join(missing, ", "))
+	}
+	changed := cmd.Flags().Changed
+	switch {
+	case o.iterations < 0:
+		return usagef("--iterations %d: give a positive number", o.iterations)
+	case changed("iterations") && o.iterations == 0:
+		return usagef("--iterations 0: give at least 1 iteration")
+	case changed("iterations") && changed("stop-chi2"):
+		return usagef("give either --iterations or --stop-chi2, not both")
+	case !(o.stopChi2 >= 0) || o.stopChi2 > 1e300:
+		return usagef("--stop-chi2 %v: give a finite number > 0", o.stopChi2)
+	case changed("stop-chi2") && o.stopChi2 == 0:
+		return usagef("--stop-chi2 0: give a threshold > 0 (or a fixed number with --iterations)")
+	case changed("max-iterations") && !changed("stop-chi2"):
+		return usagef("--max-iterations applies only with --stop-chi2 (use --iterations for a fixed number)")
+	case o.maxIterations < 0 || changed("max-iterations") && o.maxIterations == 0:
+		return usagef("--max-iterations %d: give a positive number", o.maxIterations)
+	case changed("smooth") && !(o.smooth > 0 && o.smooth <= 1):
+		return usagef("--smooth %v: give a strength in (0, 1]", o.smooth)
+	case o.smooth > 0 && o.truthBinning == "":
+		return usagef("--smooth needs --truth-binning (smoothing follows the axes and regions of the truth binning)")
+	case changed("background-mode") && o.background == "":
+		return usagef("--background-mode needs --background")
+	case changed("diagonal-method") && o.covariance != unfold.Diagonal:
+		return usagef("--diagonal-method applies only to --covariance diag")
+	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys):
+		return usagef("--probes applies only to --covariance diag with --diagonal-method probes or auto")
+	case changed("probes") && o.probes < 2:
+		return usagef("--probes %d: give at least 2", o.probes)
+	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys):
+		return usagef("--toys applies only to --covariance diag --diagonal-method toys")
+	case changed("toys") && o.toys < 2:
+		return usagef("--toys %d: give at least 2", o.toys)
+	}
+	return nil
+}
+
+// settings returns the kernel settings of the options.
+func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
+	s := &unfold.Settings{
+		Iterations:     o.iterations,
+		StopChi2:       o.stopChi2,
+		MaxIterations:  o.maxIterations,
+		Background:     o.bgMode,
+		Covariance:     o.covariance,
+		DiagonalMethod: o.diagonal,
+		Probes:         o.probes,
+		Toys:           o.toys,
+		Seed:           o.seed,
+		MemoryLimit:    o.memoryLimit,
+	}
+	if o.smooth > 0 {
+		s.Smoothing = &unfold.Smoothing{Neighbours: truth, Strength: o.smooth}
+	}
+	return s
+}
+
+// checkOutFolder refuses an output folder that exists (unless force) or
+// that cannot be replaced, before any long work.
+func checkOutFolder(dir string, force bool) error {
+	err := output.Check(dir, force)
+	switch {
+	case err == nil:
+		return nil
+	case errors.Is(err, output.ErrExists):
+		return usagef("output folder %s exists; give --force to replace it, or choose another folder", dir)
+	case errors.Is(err, output.ErrNotResult):
+		return usagef("output folder %s exists and is not an earlier result folder (no %s in it); refusing to replace it even with --force: choose another folder", dir, output.JSONFile)
+	}
+	return ioErr(fmt.Errorf("output folder: %w", err))
+}
+
+// openInput opens an input file, classifying a missing file as bad input
+// and any other failure as an I/O error.
+func openInput(what, path string) (*os.File, error) {
+	f, err := os.Open(path)
+	switch {
+	case err == nil:
+		return f, nil
+	case errors.Is(err, fs.ErrNotExist):
+		return nil, inputErr(fmt.Errorf("%s %s does not exist", what, path))
+	case errors.Is(err, fs.ErrPermission):
+		return nil, inputErr(fmt.Errorf("%s %s cannot be read: permission denied", what, path))
+	}
+	return nil, ioErr(fmt.Errorf("%s: %w", what, err))
+}
+
+// readHashed opens path, lets read parse it through a hashing reader and
+// returns the input record. Errors from read that are not *tables.Error
+// or *binning.Error are I/O errors.
+func readHashed(role, what, path string, read func(r io.Reader) error) (output.Input, error) {
+	f, err := openInput(what, path)
+	if err != nil {
+		return output.Input{}, err
+	}
+	defer f.Close()
+	h := output.NewHashingReader(f)
+	if err := read(h); err != nil {
+		var te *tables.Error
+		var be *binning.Error
+		if errors.As(err, &te) || errors.As(err, &be) {
+			return output.Input{}, inputErr(err)
+		}
+		return output.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+	}
+	in, err := h.Input(role, path)
+	if err != nil {
+		return output.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+	}
+	return in, nil
+}
+
+// plainInputs is everything read for a plain-table run.
+type plainInputs struct {
+	set         tables.Set
+	truth, reco *binning.Scheme
+	inputs      []output.Input
+}
+
+func loadPlain(o *unfoldOptions) (*plainInputs, error) {
+	var pi plainInputs
+	add := func(in output.Input, err error) error {
+		if err == nil {
+			pi.inputs = append(pi.inputs, in)
+		}
+		return err
+	}
+	scheme := func(role, path string, dst **binning.Scheme) error {
+		if path == "" {
+			return nil
+		}
+		return add(readHashed(role, role, path, func(r io.Reader) (err error) {
+			*dst, err = binning.Decode(r, path)
+			return err
+		}))
+	}
+	if err := scheme("truth-binning", o.truthBinning, &pi.truth); err != nil {
+		return nil, err
+	}
+	if err := scheme("reco-binning", o.recoBinning, &pi.reco); err != nil {
+		return nil, err
+	}
+	if err := add(readHashed("response", "response table", o.response, func(r io.Reader) (err error) {
+		pi.set.Response, err = tables.ReadResponse(r, o.response)
+		return err
+	})); err != nil {
+		return nil, err
+	}
+	for _, t := range []struct {
+		path string
+		kind tables.Kind
+		dst  **tables.Vector
+	}{
+		{o.generated, tables.Generated, &pi.set.Generated},
+		{o.data, tables.Data, &pi.set.Data},
+		{o.background, tables.Background, &pi.set.Background},
+		{o.prior, tables.Prior, &pi.set.Prior},
+	} {
+		if t.path == "" {
+			continue
+		}
+		if err := add(readHashed(t.kind.String(), t.kind.String()+" table", t.path, func(r io.Reader) (err error) {
+			*t.dst, err = tables.ReadVector(r, t.path, t.kind)
+			return err
+		})); err != nil {
+			return nil, err
+		}
+	}
+	return &pi, nil
+}
+
+// sizes returns the problem sizes: the schemes' when given, else those
+// found in the tables.
+func (pi *plainInputs) sizes(o *unfoldOptions) tables.Sizes {
+	z := pi.set.Sizes()
+	if pi.truth != nil {
+		z.Truth, z.TruthOrigin = pi.truth.Len(), "the truth binning "+o.truthBinning
+	}
+	if pi.reco != nil {
+		z.Reco, z.RecoOrigin = pi.reco.Len(), "the reco binning "+o.recoBinning
+	}
+	return z
+}
+
+// kernelErr classifies an error of unfold.Unfold.
+func kernelErr(ctx context.Context, set *tables.Set, err error) error {
+	var ie *unfold.InputError
+	var se *unfold.SettingsError
+	switch {
+	case ctx.Err() != nil || errors.Is(err, context.Canceled):
+		return err
+	case errors.As(err, &ie):
+		return inputErr(set.Locate(err))
+	case errors.As(err, &se):
+		return usageErr(err)
+	}
+	// *unfold.TooLargeError, *unfold.NumericalError and anything else.
+	return numericalErr(err)
+}
+
+func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
+	if err := checkOutFolder(o.out, o.force); err != nil {
+		return err
+	}
+	pi, err := loadPlain(o)
+	if err != nil {
+		return err
+	}
+	z := pi.sizes(o)
+	prob, err := pi.set.Assemble(z)
+	if err != nil {
+		return inputErr(err)
+	}
+	hook(ctx, "loaded")
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+
+	settings := o.settings(pi.truth)
+	res, err := unfold.Unfold(ctx, prob, settings)
+	if err != nil {
+		return kernelErr(ctx, &pi.set, err)
+	}
+	hook(ctx, "unfolded")
+
+	r, err := output.FromUnfold(res)
+	if err != nil {
+		return numericalErr(err)
+	}
+	r.Program = output.Program{Name: "desmear", Version: version}
+	r.Inputs = pi.inputs
+	prior := "generated"
+	if o.prior != "" {
+		prior = "table"
+	}
+	r.Settings = output.DescribeSettings(settings, prior, o.background != "")
+	if pi.truth != nil {
+		r.TruthBinning = output.DescribeBinning(pi.truth, o.truthBinning)
+	}
+	if pi.reco != nil {
+		r.RecoBinning = output.DescribeBinning(pi.reco, o.recoBinning)
+	}
+
+	if err := writeResultFolder(ctx, o.out, o.force, func(f *output.Folder) error {
+		return f.WriteResult(r, pi.truth)
+	}); err != nil {
+		return err
+	}
+	printSummary(g, o.out, r, pi.truth)
+	return nil
+}
+
+// writeResultFolder writes a result folder atomically: it creates the
+// folder, calls write to add the files, and commits unless write fails
+// or ctx is cancelled, in which case nothing is left behind. Errors are
+// classified for the exit code.
+func writeResultFolder(ctx context.Context, dir string, force bool, write func(f *output.Folder) error) error {
+	f, err := output.New(dir, force)
+	if err != nil {
+		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+			return checkOutFolder(dir, force)
+		}
+		return ioErr(fmt.Errorf("output folder: %w", err))
+	}
+	defer f.Abort()
+	if err := write(f); err != nil {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		return ioErr(fmt.Errorf("writing %s: %w", dir, err))
+	}
+	hook(ctx, "written")
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	if err := f.Commit(); err != nil {
+		if errors.Is(err, output.ErrExists) {
+			return usagef("output folder %s appeared while the result was being written; nothing was replaced", dir)
+		}
+		return ioErr(fmt.Errorf("writing %s: %w", dir, err))
+	}
+	return nil
+}
+
+// printSummary prints what was done to stdout, with a per-bin table for
+// small problems, and notes to stderr.
+func printSummary(g *globalOptions, dir string, r *output.Result, truth *binning.Scheme) {
+	det := 0
+	for _, d := range r.Determined {
+		if d {
+			det++
+		}
+	}
+	stop := fmt.Sprintf("%d iterations", r.Iterations)
+	if r.Settings.StopChi2 > 0 {
+		if r.Converged {
+			stop += fmt.Sprintf(" (chi-square below %g)", r.Settings.StopChi2)
+		} else {
+			stop += fmt.Sprintf(" (maximum reached; chi-square still above %g)", r.Settings.StopChi2)
+		}
+	}
+	w := g.stdout
+	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) in %s\n", r.RecoBins, r.TruthBins, det, stop)
+	const maxRows = 30
+	if r.TruthBins <= maxRows {
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		head := "bin\testimate\t"
+		if r.Uncertainty != nil {
+			head += "uncertainty\t"
+		}
+		if truth != nil {
+			head += "  label"
+		}
+		fmt.Fprintln(tw, head)
+		for j := range r.Estimate {
+			line := fmt.Sprintf("%d\t%.6g\t", j, r.Estimate[j])
+			if !r.Determined[j] {
+				line = fmt.Sprintf("%d\t(not determined)\t", j)
+				if r.Uncertainty != nil {
+					line += "\t"
+				}
+			} else if r.Uncertainty != nil {
+				line += fmt.Sprintf("%.3g\t", r.Uncertainty[j])
+			}
+			if truth != nil {
+				line += "  " + truth.Label(j)
+			}
+			fmt.Fprintln(tw, line)
+		}
+		tw.Flush()
+	}
+	fmt.Fprintf(w, "result: %s/%s, %s/%s\n", dir, output.JSONFile, dir, output.CSVFile)
+	if g.quiet {
+		return
+	}
+	if r.TruthBins > det {
+		fmt.Fprintf(g.stderr, "note: %d truth bins have no response entries (efficiency 0) and are not determined; they are flagged in result.json and hold 0\n", r.TruthBins-det)
+	}
+	if len(r.ClippedRecoBins) > 0 {
+		fmt.Fprintf(g.stderr, "note: in %d reco bins the data minus the background was negative and was set to 0 (listed in result.json)\n", len(r.ClippedRecoBins))
+	}
+	if r.UncertaintyPrecision > 0 {
+		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, map[bool]string{true: "probes", false: "toys"}[strings.Contains(r.UncertaintyMethod, "probes")], 100*r.UncertaintyPrecision)
 	}
 }

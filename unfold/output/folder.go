@@ -2,7 +2,6 @@ package output
 
 import (
 	"bufio"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -228,15 +227,16 @@ func (f *Folder) WriteFile(name string, data []byte) error {
 	return w.Close()
 }
 
-// WriteJSON writes v as indented JSON to the file name of the folder. It
-// fails, writing nothing, if v holds a NaN or an infinity, which JSON
-// cannot represent.
+// WriteJSON writes v as JSON to the file name of the folder: objects one
+// member per line, indented by two spaces, and arrays of plain values
+// (numbers, strings, booleans) on one line each. It fails, writing
+// nothing, if v holds a NaN or an infinity, which JSON cannot represent.
 func (f *Folder) WriteJSON(name string, v any) error {
-	data, err := json.MarshalIndent(v, "", "  ")
+	data, err := marshal(v)
 	if err != nil {
 		return fmt.Errorf("output: %s: %w", name, err)
 	}
-	return f.WriteFile(name, append(data, '\n'))
+	return f.WriteFile(name, data)
 }
 
 // Reserve reserves the file name for a writer that needs a file path

@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"slices"
 	"strings"
 	"testing"
@@ -336,3 +337,34 @@ func TestWriteCSV(t *testing.T) {
 		t.Errorf("DescribeBinning = %+v", b)
 	}
 }
+
+// The layout of WriteJSON is still JSON: it decodes to the same value as
+// the standard library's own encoding (encoding/json as the reference).
+func TestJSONLayout(t *testing.T) {
+	v := map[string]any{
+		"a":     []float64{1, 2.5, -3e-7},
+		"empty": []int{},
+		"obj":   map[string]any{},
+		"s":     `tricky "[{,:}]" \ string`,
+		"rows":  [][]float64{{1, 2}, {3, 4}},
+		"list":  []map[string]int{{"x": 1}, {"y": 2}},
+		"names": []string{"a,b", "c]"},
+	}
+	got, err := marshal(v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var back, want any
+	if err := json.Unmarshal(got, &back); err != nil {
+		t.Fatalf("layout is not JSON: %v\n%s", err, got)
+	}
+	ref, _ := json.Marshal(v)
+	json.Unmarshal(ref, &want)
+	if !reflect.DeepEqual(back, want) {
+		t.Errorf("layout changed the value:\n%s", got)
+	}
+	if !strings.Contains(string(got), `"a": [1, 2.5, -3e-7]`) || !strings.Contains(string(got), "\n    [1, 2],\n    [3, 4]\n") {
+		t.Errorf("unexpected layout:\n%s", got)
+	}
+}
+

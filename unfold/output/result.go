@@ -103,7 +103,7 @@ type Settings struct {
 	MaxIterations int     `json:"max_iterations,omitempty"`
 	// Prior is "generated" (the generated spectrum) or "table" (given).
 	Prior string `json:"prior"`
-	// Background is "in-model" or "subtract"; absent without background.
+	// Background is "model" or "subtract"; absent without background.
 	Background string `json:"background_mode,omitempty"`
 	// Smoothing is the smoothing strength; absent without smoothing.
 	Smoothing float64 `json:"smoothing,omitempty"`
@@ -194,7 +194,7 @@ func DescribeSettings(s *unfold.Settings, prior string, withBackground bool) Set
 		}
 	}
 	if withBackground {
-		d.Background = z.Background.String()
+		d.Background = map[unfold.BackgroundMode]string{unfold.InModel: "model", unfold.Subtract: "subtract"}[z.Background]
 	}
 	if z.Smoothing != nil {
 		d.Smoothing = z.Smoothing.Strength

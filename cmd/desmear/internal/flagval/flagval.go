@@ -1,0 +1,110 @@
+// Package flagval holds pflag.Value types for the command line: a choice
+// among named values and a byte size with units. Set returns an error
+// for a value that does not parse, which cobra reports as a usage error;
+// nothing here panics on user input.
+package flagval
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// Choice is a flag whose value is one of a fixed list of names, each
+// standing for a value of type T.
+type Choice[T comparable] struct {
+	p     *T
+	names []string
+	vals  []T
+}
+
+// NewChoice returns a Choice that stores into p, with def as the
+// default. names and vals are parallel; names are matched exactly.
+func NewChoice[T comparable](p *T, def T, names []string, vals []T) *Choice[T] {
+	if len(names) != len(vals) || len(names) == 0 {
+		panic("flagval: names and values differ in length")
+	}
+	*p = def
+	return &Choice[T]{p: p, names: names, vals: vals}
+}
+
+// String returns the name of the current value.
+func (c *Choice[T]) String() string {
+	for i, v := range c.vals {
+		if v == *c.p {
+			return c.names[i]
+		}
+	}
+	return ""
+}
+
+// Set sets the value by name.
+func (c *Choice[T]) Set(s string) error {
+	for i, n := range c.names {
+		if n == s {
+			*c.p = c.vals[i]
+			return nil
+		}
+	}
+	return fmt.Errorf("unknown value %q: use %s", s, strings.Join(c.names, ", "))
+}
+
+// Type returns the choices for the help text, e.g. "none|diag|full".
+func (c *Choice[T]) Type() string { return strings.Join(c.names, "|") }
+
+// ByteSize is a flag holding a number of bytes, written as a number with
+// an optional unit: B, kB, MB, GB, TB (powers of 1000) or KiB, MiB, GiB,
+// TiB (powers of 1024), case-insensitive, e.g. "8GiB", "500MB", "1e9".
+type ByteSize struct{ p *int64 }
+
+// NewByteSize returns a ByteSize storing into p with default def.
+func NewByteSize(p *int64, def int64) *ByteSize {
+	*p = def
+	return &ByteSize{p: p}
+}
+
+var units = []struct {
+	suffix string
+	factor float64
+}{
+	{"kib", 1 << 10}, {"mib", 1 << 20}, {"gib", 1 << 30}, {"tib", 1 << 40},
+	{"kb", 1e3}, {"mb", 1e6}, {"gb", 1e9}, {"tb", 1e12},
+	{"k", 1 << 10}, {"m", 1 << 20}, {"g", 1 << 30}, {"t", 1 << 40},
+	{"b", 1},
+}
+
+// String returns the size in the largest binary unit that divides it.
+func (b *ByteSize) String() string {
+	n := *b.p
+	for _, u := range []struct {
+		s string
+		f int64
+	}{{"TiB", 1 << 40}, {"GiB", 1 << 30}, {"MiB", 1 << 20}, {"KiB", 1 << 10}} {
+		if n != 0 && n%u.f == 0 {
+			return strconv.FormatInt(n/u.f, 10) + u.s
+		}
+	}
+	return strconv.FormatInt(n, 10)
+}
+
+// Set parses a size.
+func (b *ByteSize) Set(s string) error {
+	t := strings.ToLower(strings.TrimSpace(s))
+	factor := 1.0
+	for _, u := range units {
+		if strings.HasSuffix(t, u.suffix) {
+			t, factor = strings.TrimSpace(strings.TrimSuffix(t, u.suffix)), u.factor
+			break
+		}
+	}
+	v, err := strconv.ParseFloat(t, 64)
+	if err != nil || math.IsNaN(v) || v <= 0 || math.IsInf(v, 0) || v*factor >= math.MaxInt64 {
+		return fmt.Errorf("%q is not a positive size (e.g. 8GiB, 500MB, 1e9)", s)
+	}
+	*b.p = int64(v * factor)
+	return nil
+}
+
+// Type returns "size".
+func (b *ByteSize) Type() string { return "size" }

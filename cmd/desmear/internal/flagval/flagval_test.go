@@ -1,0 +1,37 @@
+package flagval
+
+import "testing"
+
+func TestChoice(t *testing.T) {
+	var v int
+	c := NewChoice(&v, 2, []string{"a", "b", "c"}, []int{1, 2, 3})
+	if c.String() != "b" || c.Type() != "a|b|c" {
+		t.Errorf("default %q type %q", c.String(), c.Type())
+	}
+	if err := c.Set("c"); err != nil || v != 3 {
+		t.Errorf("Set(c): %v, v = %d", err, v)
+	}
+	if err := c.Set("C"); err == nil || v != 3 {
+		t.Errorf("Set(C) = %v, v = %d; want an error and no change", err, v)
+	}
+}
+
+// Units: kB/MB/GB are SI powers of 1000 and KiB/MiB/GiB binary powers of
+// 1024 (IEC 80000-13:2008).
+func TestByteSize(t *testing.T) {
+	var n int64
+	b := NewByteSize(&n, 4<<30)
+	if b.String() != "4GiB" {
+		t.Errorf("default %q", b.String())
+	}
+	for in, want := range map[string]int64{"8GiB": 8 << 30, "500MB": 500e6, "1e9": 1e9, " 2 kib ": 2048, "3g": 3 << 30, "10B": 10, "1.5KiB": 1536} {
+		if err := b.Set(in); err != nil || n != want {
+			t.Errorf("Set(%q): %v, n = %d, want %d", in, err, n, want)
+		}
+	}
+	for _, bad := range []string{"", "GiB", "-1GiB", "0", "NaN", "1e30TiB", "x"} {
+		if err := b.Set(bad); err == nil {
+			t.Errorf("Set(%q) succeeded", bad)
+		}
+	}
+}
