@@ -367,4 +367,3 @@ func TestJSONLayout(t *testing.T) {
 		t.Errorf("unexpected layout:\n%s", got)
 	}
 }
-
