@@ -7,10 +7,12 @@ import (
 	"io"
 	"io/fs"
 	"os"
+	"slices"
 	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
@@ -103,14 +105,8 @@ is at most --stop-chi2, within --max-iterations.`,
 		Args: cobra.MaximumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if len(args) == 1 {
-				var mixed []string
-				for _, name := range tableFlags {
-					if cmd.Flags().Changed(name) {
-						mixed = append(mixed, "--"+name)
-					}
-				}
-				if len(mixed) > 0 {
-					return usagef("give either an analysis file or the plain tables, not both: %s cannot be combined with %s", strings.Join(mixed, ", "), args[0])
+				if err := checkAnalysisFlags(cmd, args[0]); err != nil {
+					return err
 				}
 				return runAnalysisUnfold(cmd.Context(), g, cmd, args[0])
 			}
@@ -145,6 +141,33 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	return cmd
+}
+
+// analysisFlags are the unfold flags that apply with an analysis file;
+// every other setting comes from the file.
+var analysisFlags = []string{"force"}
+
+// checkAnalysisFlags refuses the plain-table flags with an analysis file:
+// the table inputs because they contradict it, and the settings because
+// the analysis file holds them (a flag silently ignored would mislead).
+func checkAnalysisFlags(cmd *cobra.Command, path string) error {
+	var tablesGiven, settingsGiven []string
+	cmd.LocalNonPersistentFlags().VisitAll(func(f *pflag.Flag) {
+		switch {
+		case !f.Changed, slices.Contains(analysisFlags, f.Name):
+		case slices.Contains(tableFlags, f.Name):
+			tablesGiven = append(tablesGiven, "--"+f.Name)
+		default:
+			settingsGiven = append(settingsGiven, "--"+f.Name)
+		}
+	})
+	if len(tablesGiven) > 0 {
+		return usagef("give either an analysis file or the plain tables, not both: %s cannot be combined with %s", strings.Join(tablesGiven, ", "), path)
+	}
+	if len(settingsGiven) > 0 {
+		return usagef("%s cannot be combined with an analysis file: the settings come from %s (only %s applies)", strings.Join(settingsGiven, ", "), path, "--"+strings.Join(analysisFlags, ", --"))
+	}
+	return nil
 }
 
 // check validates the plain-table options.

@@ -463,6 +463,7 @@ func TestUnfoldArguments(t *testing.T) {
 		frags []string
 	}{
 		{"mixed", []string{"unfold", "analysis.yaml", "--response", filepath.Join(dir, "A.csv")}, []string{"not both", "--response"}},
+		{"settings with analysis file", []string{"unfold", "analysis.yaml", "--iterations", "3", "--force"}, []string{"--iterations cannot be combined with an analysis file"}},
 		{"two files", []string{"unfold", "a.yaml", "b.yaml"}, []string{"accepts at most 1 arg"}},
 		{"missing required", []string{"unfold", "--response", filepath.Join(dir, "A.csv"), "--out", out}, []string{"--generated", "--data"}},
 	} {
