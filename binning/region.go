@@ -3,11 +3,16 @@ package binning
 import (
 	"errors"
 	"fmt"
+	"slices"
 	"sort"
 )
 
 // MaxAxes is the largest number of axes a region may have.
 const MaxAxes = 8
+
+// MaxBins is the largest number of bins, flow bins included, that a
+// region or a scheme may have.
+const MaxBins = 1 << 27
 
 // Special per-axis bin numbers in Bin.Index and for Scheme.Global.
 const (
@@ -29,7 +34,7 @@ type Region struct {
 	lv      []level
 	nIn     int   // in-range cells
 	nExt    int   // extended cells (in-range and flow)
-	flowExt []int // extended index of each flow cell, increasing
+	flowExt []int32 // extended index of each flow cell, increasing
 	ident   []int // 0..len(axes)-1
 	rect    bool  // no edges-by-bin axis
 }
@@ -90,9 +95,32 @@ func NewRegion(name string, axes ...*Axis) (*Region, error) {
 			return nil, fmt.Errorf("binning: region %q: axis %q has %d edge lists but the axis before it (%q) has %d bins; give one list per bin", name, a.name, len(a.byBin), p.name, len(p.edges)-1)
 		}
 	}
+	if n := extendedCells(axes); n > MaxBins {
+		return nil, fmt.Errorf("binning: region %q has %.4g bins (flow bins included); at most %d are supported", name, n, MaxBins)
+	}
 	r := &Region{name: name, axes: append([]*Axis(nil), axes...)}
 	r.layout()
 	return r, nil
+}
+
+// extendedCells returns the number of in-range and flow cells of a
+// region with the given (valid) axes, as a float64 so that it cannot
+// overflow.
+func extendedCells(axes []*Axis) float64 {
+	n := 1.0
+	for k, a := range axes {
+		if !a.ByBin() {
+			n *= float64(len(a.edges) - 1 + a.flows())
+			continue
+		}
+		p := axes[k-1]
+		t := float64(p.flows()) // collapsed under the flows of the axis before
+		for _, e := range a.byBin {
+			t += float64(len(e) - 1 + a.flows())
+		}
+		n = n / float64(len(p.edges)-1+p.flows()) * t
+	}
+	return n
 }
 
 // layout fills the level tables, the in-range and extended cell counts and
@@ -138,16 +166,39 @@ func (r *Region) layout() {
 	}
 	r.nIn, r.nExt = nIn, nExt
 	r.rect = r.Rectangular()
-	r.flowExt = make([]int, 0, nExt-nIn)
-	var st [MaxAxes]int
-	for e := 0; e < nExt; e++ {
-		r.extStates(e, &st)
-		for k := 0; k < d; k++ {
-			if st[k] < 0 {
-				r.flowExt = append(r.flowExt, e)
-				break
-			}
+	r.flowExt = make([]int32, 0, nExt-nIn)
+	r.listFlows(0, 0, 0, 0, false)
+}
+
+// listFlows appends the extended indices of the flow cells below the
+// extended cell e of level k-1 (e2 is its parent cell, sp its state on
+// axis k-1) to r.flowExt, in increasing order. flow says whether an axis
+// before k is already in a flow state. It visits the cells of all levels
+// but the last, so it costs about the number of cells divided by the bins
+// of the last axis.
+func (r *Region) listFlows(k, e, e2, sp int, flow bool) {
+	l := &r.lv[k]
+	var base, cnt, u, n int
+	if l.nested {
+		p := &r.lv[k-1]
+		base = e2*l.totalExt() + l.cumExt[sp]
+		cnt = l.cumExt[sp+1] - l.cumExt[sp]
+		u, n = 0, -1 // collapsed under a flow of the axis before: AnyBin
+		if ip := sp - p.u; ip >= 0 && ip < p.n {
+			u, n = l.u, len(r.axes[k].byBin[ip])-1
 		}
+	} else {
+		base, cnt, u, n = e*l.m, l.m, l.u, l.n
+	}
+	for s := 0; s < cnt; s++ {
+		f := flow || s < u || s-u >= n
+		if k == len(r.lv)-1 {
+			if f {
+				r.flowExt = append(r.flowExt, int32(base+s))
+			}
+			continue
+		}
+		r.listFlows(k+1, base+s, e, s, f)
 	}
 }
 
@@ -269,8 +320,7 @@ func flowState(i, n int, a *Axis) (int, bool) {
 
 // flowPos returns the position of extended cell e in the flow list, or -1.
 func (r *Region) flowPos(e int) int {
-	p := sort.SearchInts(r.flowExt, e)
-	if p < len(r.flowExt) && r.flowExt[p] == e {
+	if p, ok := slices.BinarySearch(r.flowExt, int32(e)); ok {
 		return p
 	}
 	return -1

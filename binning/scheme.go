@@ -68,6 +68,9 @@ func NewScheme(regions ...*Region) (*Scheme, error) {
 	}
 	s.nIn = s.inOff[len(regions)]
 	s.n = s.nIn + s.flowOff[len(regions)]
+	if s.n > MaxBins {
+		return nil, fmt.Errorf("binning: the scheme has %d bins (flow bins included); at most %d are supported", s.n, MaxBins)
+	}
 	return s, nil
 }
 
@@ -203,7 +206,7 @@ func (s *Scheme) states(g int, st *[MaxAxes]int) (int, bool) {
 		reg.inStates(c, st)
 		return r, false
 	}
-	reg.extStates(reg.flowExt[p], st)
+	reg.extStates(int(reg.flowExt[p]), st)
 	return r, true
 }
 

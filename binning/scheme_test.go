@@ -414,6 +414,12 @@ func TestConstructionErrors(t *testing.T) {
 			t.Errorf("NewRegion %s gave no error", c.name)
 		}
 	}
+	big, _ := NewAxis("big", "", uniformEdges(1000, 0, 1), true, true)
+	big2, _ := NewAxis("big2", "", uniformEdges(1000, 0, 1), false, false)
+	big3, _ := NewAxis("big3", "", uniformEdges(1000, 0, 1), false, false)
+	if _, err := NewRegion("huge", big, big2, big3); err == nil {
+		t.Error("a region of 1e9 bins gave no error")
+	}
 	r1, _ := NewRegion("r", x)
 	r2, _ := NewRegion("s", x2)
 	if _, err := NewScheme(r1, r1); err == nil {

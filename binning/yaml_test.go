@@ -1,8 +1,10 @@
 package binning
 
 import (
+	"bytes"
 	"errors"
 	"io/fs"
+	"os"
 	"math"
 	"slices"
 	"strings"
@@ -232,4 +234,48 @@ func TestEncodeRoundTrip(t *testing.T) {
 	if got := s2.Regions()[0].Axes()[0].Edges(); !slices.Equal(got, ax.Edges()) {
 		t.Errorf("edges %v after the round trip, want %v", got, ax.Edges())
 	}
+}
+
+// FuzzDecode: no input makes Decode panic, every failure is an *Error or
+// a read error, and every scheme it accepts survives WriteYAML and Decode
+// with the same bins.
+func FuzzDecode(f *testing.F) {
+	for _, name := range []string{"scheme2d.yaml", "scheme3d.yaml"} {
+		data, err := os.ReadFile("../testdata/" + name)
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(data)
+	}
+	f.Add([]byte("regions: [{name: a, axes: [{name: x, edges: [0, 1], overflow: true}]}]"))
+	f.Add([]byte("regions: [{name: a, axes: [{name: x, edges: [0, 1]}, {name: y, edges_by_bin: [[0, 1, 2]]}]}]"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		s, err := Decode(bytes.NewReader(data), "fuzz.yaml")
+		if err != nil {
+			var e *Error
+			if !errors.As(err, &e) {
+				t.Fatalf("error %v is not an *Error", err)
+			}
+			return
+		}
+		if s.Len() > 1e6 {
+			return
+		}
+		var b bytes.Buffer
+		if err := s.WriteYAML(&b); err != nil {
+			t.Fatal(err)
+		}
+		s2, err := Decode(&b, "again.yaml")
+		if err != nil {
+			t.Fatalf("re-decoding: %v\n%s", err, b.String())
+		}
+		if s2.Len() != s.Len() || s2.InRange() != s.InRange() {
+			t.Fatalf("%d/%d bins after the round trip, want %d/%d", s2.Len(), s2.InRange(), s.Len(), s.InRange())
+		}
+		for g := 0; g < s.Len(); g++ {
+			if s.Label(g) != s2.Label(g) {
+				t.Fatalf("bin %d: %q after the round trip, want %q", g, s2.Label(g), s.Label(g))
+			}
+		}
+	})
 }
