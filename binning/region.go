@@ -32,11 +32,11 @@ type Region struct {
 	name    string
 	axes    []*Axis
 	lv      []level
-	nIn     int   // in-range cells
-	nExt    int   // extended cells (in-range and flow)
+	nIn     int     // in-range cells
+	nExt    int     // extended cells (in-range and flow)
 	flowExt []int32 // extended index of each flow cell, increasing
-	ident   []int // 0..len(axes)-1
-	rect    bool  // no edges-by-bin axis
+	ident   []int   // 0..len(axes)-1
+	rect    bool    // no edges-by-bin axis
 }
 
 // level holds the layout of one axis of a region.
