@@ -5,6 +5,8 @@ import (
 	"errors"
 	"math"
 	"testing"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // finiteJacobian returns dμ(K)/dv by central differences of the whole
@@ -257,5 +259,29 @@ func TestMemoryLimit(t *testing.T) {
 	res = unfoldOrFail(t, p, &Settings{Covariance: Diagonal})
 	if res.UncertaintyMethod != "linearised" || res.UncertaintyPrecision != 0 {
 		t.Errorf("automatic diagonal under the default limit used %q", res.UncertaintyMethod)
+	}
+}
+
+// The blocked upper-triangle covariance product equals the plain gonum
+// product J diag(var n) Jᵀ (gonum as the reference library), for a size
+// spanning several row blocks.
+func TestBlockedCovarianceProduct(t *testing.T) {
+	p := randomProblem(t, 6, 700, 1500, 9, false)
+	jc, _ := jacobianOf(t, p, &Settings{Iterations: 2})
+	jd := mat.NewDense(700, 1500, nil)
+	for r := 0; r < 700; r++ {
+		for q := 0; q < 1500; q++ {
+			jd.Set(r, q, jc.at(r, q)*p.Data[q])
+		}
+	}
+	var want mat.Dense
+	want.Mul(jd, mat.NewDense(700, 1500, append([]float64(nil), jc.j...)).T())
+	res := unfoldOrFail(t, p, &Settings{Iterations: 2, Covariance: Full})
+	for a := 0; a < 700; a++ {
+		for b := 0; b < 700; b++ {
+			if got, w := res.Covariance.At(a, b), want.At(a, b); math.Abs(got-w) > 1e-12*math.Max(1, math.Abs(w)) {
+				t.Fatalf("V[%d][%d] = %v, gonum product %v", a, b, got, w)
+			}
+		}
 	}
 }

@@ -234,24 +234,37 @@ func (jc *jacobian) variances(v []float64) []float64 {
 	return out
 }
 
-// covariance returns J diag(v) Jᵀ, computed with a general matrix
-// multiply (the scaled copy goes into the spare buffer).
+// covarianceBlock is the row block of the covariance product.
+const covarianceBlock = 512
+
+// covariance returns J diag(v) Jᵀ. The scaled copy J diag(v) goes into
+// the spare buffer; the upper triangle of blocks is computed with general
+// matrix multiplies (gonum Dgemm, faster here than a symmetric rank-k
+// update), about half the work of the full product.
 func (jc *jacobian) covariance(ctx context.Context, v []float64) (*mat.SymDense, error) {
 	nt, cols := jc.m.nt, jc.cols
-	for r := 0; r < nt; r++ {
+	forEach(nt, runtime.GOMAXPROCS(0), func(r int) {
 		src := jc.j[r*cols : (r+1)*cols]
 		dst := jc.w[r*cols : (r+1)*cols]
 		for q, x := range src {
 			dst[q] = x * v[q]
 		}
-	}
-	if err := ctx.Err(); err != nil {
-		return nil, err
-	}
+	})
 	jd := mat.NewDense(nt, cols, jc.w)
 	j := mat.NewDense(nt, cols, jc.j)
 	out := mat.NewDense(nt, nt, nil)
-	out.Mul(jd, j.T())
+	for i0 := 0; i0 < nt; i0 += covarianceBlock {
+		i1 := min(nt, i0+covarianceBlock)
+		a := jd.Slice(i0, i1, 0, cols)
+		for k0 := i0; k0 < nt; k0 += covarianceBlock {
+			if err := ctx.Err(); err != nil {
+				return nil, err
+			}
+			k1 := min(nt, k0+covarianceBlock)
+			dst := out.Slice(i0, i1, k0, k1).(*mat.Dense)
+			dst.Mul(a, j.Slice(k0, k1, 0, cols).T())
+		}
+	}
 	jc.w = nil // the scaled copy is no longer needed
 	return mat.NewSymDense(nt, out.RawMatrix().Data), nil
 }

@@ -135,7 +135,7 @@ type iterator struct {
 	n  []float64 // data of this sequence
 
 	mu, next, g, tmp []float64 // truth-sized
-	fold, fnext, nu  []float64 // reco-sized: R μ(k), R μ(k+1), ν(k)
+	fold, fnext, nu  []float64 // reco-sized: R μ(k), R μ(k+1), ν(k) (ν aliases fold without background)
 	y                []float64 // n / ν(k)
 	rp               []float64 // R p (the folded prior), for the tangents' start
 	red              reducer
@@ -146,8 +146,11 @@ func newIterator(m *model, sm *smoother) *iterator {
 	it := &iterator{
 		m: m, sm: sm,
 		mu: make([]float64, m.nt), next: make([]float64, m.nt), g: make([]float64, m.nt),
-		fold: make([]float64, m.nr), fnext: make([]float64, m.nr), nu: make([]float64, m.nr),
+		fold: make([]float64, m.nr), fnext: make([]float64, m.nr),
 		y: make([]float64, m.nr), rp: make([]float64, m.nr),
+	}
+	if m.b != nil {
+		it.nu = make([]float64, m.nr)
 	}
 	it.tmp = make([]float64, m.nt)
 	m.fold(it.rp, m.prior, it.tmp)
@@ -181,15 +184,19 @@ func (it *iterator) start(n []float64) float64 {
 // reco computes ν = fold + b and y = n/ν from it.fold and returns the
 // log-likelihood.
 func (it *iterator) reco() float64 {
-	n, b, fold, nu, y := it.n, it.m.b, it.fold, it.nu, it.y
+	n, b, fold, y := it.n, it.m.b, it.fold, it.y
+	if b == nil {
+		it.nu = fold // ν = R μ: no copy
+	}
+	nu := it.nu
 	s := it.red.run(len(nu), func(lo, hi int, acc *[4]float64) {
 		var ll float64
 		for i := lo; i < hi; i++ {
 			v := fold[i]
 			if b != nil {
 				v += b[i]
+				nu[i] = v
 			}
-			nu[i] = v
 			if v > 0 {
 				y[i] = n[i] / v
 				if n[i] > 0 {
