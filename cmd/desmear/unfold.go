@@ -429,7 +429,21 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		return err
 	}
 	printSummary(g, o.out, r, pi.truth)
+	if zeros := zeroPrior(prob.Prior, r.Determined); zeros > 0 && !g.quiet {
+		fmt.Fprintf(g.stderr, "note: the prior %s is 0 in %d truth bins the response can measure; the iteration keeps a zero, so their estimates are 0 (give every such bin a positive prior)\n", o.prior, zeros)
+	}
 	return nil
+}
+
+// zeroPrior counts the determined truth bins with a zero prior.
+func zeroPrior(prior []float64, det []bool) int {
+	n := 0
+	for j, p := range prior {
+		if p == 0 && det[j] {
+			n++
+		}
+	}
+	return n
 }
 
 // writeResultFolder writes a result folder atomically: it creates the

@@ -268,6 +268,21 @@ func TestUnfoldWithBinning(t *testing.T) {
 	}
 }
 
+// A prior with a zero in a measurable bin is reported: EM keeps zeros
+// (the update multiplies the previous estimate), so that bin stays 0.
+func TestUnfoldZeroPriorNote(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), maps(oracleD, map[string]string{"p.csv": "truth,value\n0,1\n2,1\n"}))
+	out := filepath.Join(t.TempDir(), "result")
+	code, _, stderr := runCLI(t, context.Background(), oracleDArgs(dir, out)...)
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	r, _ := readResult(t, out)
+	if r.Estimate[1] != 0 || !strings.Contains(stderr, "is 0 in 1 truth bins") {
+		t.Errorf("estimate %v; the zero prior is not reported:\n%s", r.Estimate, stderr)
+	}
+}
+
 func maps(ms ...map[string]string) map[string]string {
 	out := map[string]string{}
 	for _, m := range ms {
