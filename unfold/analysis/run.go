@@ -66,16 +66,27 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 		if err != nil {
 			return nil, nil, err
 		}
+		// Hash the file for the provenance while the events are read:
+		// on a machine with a spare core this costs no time.
+		type hashed struct {
+			in  fill.Input
+			err error
+		}
+		hc := make(chan hashed, 1)
+		go func() {
+			in, err := hashFile("simulation", s.File)
+			hc <- hashed{in, err}
+		}()
 		_, err = b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
 		src.Close()
+		h := <-hc
 		if err != nil {
 			return nil, nil, a.eventsErr(s.Field, s.Line, err)
 		}
-		in, err := hashFile("simulation", s.File)
-		if err != nil {
-			return nil, nil, err
+		if h.err != nil {
+			return nil, nil, h.err
 		}
-		info.Inputs = append(info.Inputs, in)
+		info.Inputs = append(info.Inputs, h.in)
 	}
 	r, err := b.Response()
 	if err != nil {
