@@ -161,10 +161,11 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 			return nil, err
 		}
 	}
-	// Some determined truth bin reaches reco bin i when row i of R has a
-	// positive sum (all entries are ≥ 0; undetermined columns are zero).
+	// Some determined truth bin reaches reco bin i when row i of A has a
+	// positive sum (all entries are ≥ 0, and a column with a positive
+	// entry is determined).
 	reach := make([]float64, nr)
-	m.fold(reach, m.det2float(), make([]float64, nt))
+	a.RowSums(reach)
 
 	n := p.Data
 	varN := p.DataVariance
@@ -236,17 +237,6 @@ func (m *model) fold(dst, x, tmp []float64) {
 		tmp[j] = v * m.invG[j]
 	}
 	m.a.Fold(dst, tmp)
-}
-
-// det2float returns 1 for determined truth bins, 0 otherwise.
-func (m *model) det2float() []float64 {
-	f := make([]float64, m.nt)
-	for j, d := range m.det {
-		if d {
-			f[j] = 1
-		}
-	}
-	return f
 }
 
 // rValues returns the values of R = A/G in the order of A's entries.
