@@ -96,14 +96,17 @@ func classifyAnalysisErr(err error) error {
 		ne  *unfold.NumericalError
 		ee  *fill.EventError
 		pe  *fs.PathError
+		we  *analysis.OutputError
 	)
 	switch {
 	case errors.Is(err, context.Canceled), errors.Is(err, context.DeadlineExceeded):
 		return err
 	case errors.As(err, &tl), errors.As(err, &ne):
 		return numericalErr(err)
-	case errors.As(err, &ae) && ae.Err != nil && errors.As(ae.Err, &pe):
+	case errors.As(err, &we):
 		return ioErr(err)
+	case errors.Is(err, fs.ErrNotExist), errors.Is(err, fs.ErrPermission):
+		return inputErr(err) // a missing or unreadable input file
 	case errors.As(err, &ae), errors.As(err, &aes), errors.As(err, &be), errors.As(err, &te), errors.As(err, &oe),
 		errors.As(err, &ue), errors.As(err, &se), errors.As(err, &ee):
 		return inputErr(err)

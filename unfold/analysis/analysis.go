@@ -281,6 +281,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	// Uncertainty.
 	un := doc.Uncertainty
 	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
+	if nodeAt(root, "uncertainty", "seed") == nil {
+		a.Uncertainty.Seed = DefaultSeed
+	}
 	c.oneOf(&a.Uncertainty.Covariance, "diag", []string{"none", "diag", "full"}, "uncertainty", "covariance")
 	c.oneOf(&a.Uncertainty.Method, "auto", []string{"auto", "exact", "probes", "toys"}, "uncertainty", "method")
 	if un.Probes < 0 || un.Probes == 1 {
@@ -329,6 +332,10 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	return a, nil
 }
+
+// DefaultSeed seeds the probes and toys when the file gives no seed
+// (the same default as the plain-table unfold command).
+const DefaultSeed = 1
 
 // DefaultBatchSize is the number of events read and processed at once.
 const DefaultBatchSize = 1 << 14

@@ -3,6 +3,8 @@ package analysis
 import (
 	"context"
 	"encoding/csv"
+	"errors"
+	"fmt"
 	"math"
 	"path/filepath"
 	"strconv"
@@ -13,6 +15,16 @@ import (
 	"github.com/desmear/desmear/unfold/output"
 	"github.com/desmear/desmear/unfold/rootio"
 )
+
+// OutputError is a failure to write the result folder (the inputs were
+// fine).
+type OutputError struct {
+	Folder string
+	Err    error
+}
+
+func (e *OutputError) Error() string { return fmt.Sprintf("writing %s: %v", e.Folder, e.Err) }
+func (e *OutputError) Unwrap() error { return e.Err }
 
 // RootFile is the name of the ROOT file in a result folder.
 const RootFile = "result.root"
@@ -108,7 +120,10 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		return nil, err
 	}
 	if err := a.write(out, s, replace, opt); err != nil {
-		return nil, err
+		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+			return nil, err
+		}
+		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
 	}
 	return out, nil
 }

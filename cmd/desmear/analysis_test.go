@@ -1,0 +1,220 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+
+	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/tables"
+)
+
+// runAnalysisCLI runs the program with args and returns the exit code, stdout
+// and stderr.
+func runAnalysisCLI(t *testing.T, args ...string) (int, string, string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code := run(context.Background(), args, strings.NewReader(""), &out, &errb)
+	return code, out.String(), errb.String()
+}
+
+const cliAnalysis = `title: two-dimensional test analysis
+binning:
+  truth:
+    regions:
+      - name: central
+        axes:
+          - {name: y, edges: [0, 1, 2]}
+          - {name: pt, edges: [0, 1, 2, 4], overflow: true}
+  reco: reco.yaml
+observables:
+  truth: {y: abs(y_t), pt: pt_t}
+  reco: {y: abs(y_r), pt: pt_r}
+simulation:
+  - file: sim.parquet
+    weight: w
+    truth_selection: pass_t
+    reco_selection: pass_r && pt_r > 0.2
+data:
+  table: n.csv
+backgrounds:
+  - name: flat
+    table: b.csv
+    scale: 0.5
+    scale_uncertainty: 0.2
+unfolding:
+  iterations: 3
+uncertainty:
+  covariance: full
+output:
+  folder: result
+`
+
+const cliReco = `regions:
+  - name: central
+    axes:
+      - {name: y, edges: [0, 0.5, 1, 1.5, 2]}
+      - {name: pt, edges: [0, 0.5, 1, 1.5, 2, 3, 4], overflow: true}
+`
+
+// writeCLIAnalysis writes a small 2-D analysis: simulated events in
+// Parquet, the data and a background as plain tables.
+func writeCLIAnalysis(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	rng := rand.New(rand.NewPCG(4, 4))
+	const n = 20000
+	names := []string{"y_t", "pt_t", "y_r", "pt_r", "w", "pass_t", "pass_r"}
+	cols := make([][]float64, len(names))
+	for c := range cols {
+		cols[c] = make([]float64, n)
+	}
+	for k := 0; k < n; k++ {
+		y, pt := 4*rng.Float64()-2, rng.ExpFloat64()*1.5
+		cols[0][k], cols[1][k] = y, pt
+		cols[2][k], cols[3][k] = y+0.2*rng.NormFloat64(), pt*(1+0.1*rng.NormFloat64())
+		cols[4][k] = 1
+		cols[5][k] = boolFloat(rng.Float64() < 0.98)
+		cols[6][k] = boolFloat(rng.Float64() < 0.9)
+	}
+	if err := events.WriteParquet(filepath.Join(dir, "sim.parquet"), names, cols); err != nil {
+		t.Fatal(err)
+	}
+	// 4 × 7 reco bins: 24 in range, then the 4 pt overflows.
+	var nb, bb strings.Builder
+	nb.WriteString("reco,value\n")
+	bb.WriteString("reco,value,variance\n")
+	for i := 0; i < 28; i++ {
+		nb.WriteString(strconv.Itoa(i) + "," + strconv.Itoa(100+7*i) + "\n")
+		bb.WriteString(strconv.Itoa(i) + ",4,1" + "\n")
+	}
+	for name, content := range map[string]string{"analysis.yaml": cliAnalysis, "reco.yaml": cliReco, "n.csv": nb.String(), "b.csv": bb.String()} {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return filepath.Join(dir, "analysis.yaml")
+}
+
+func boolFloat(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// The whole job through the command line: desmear response with
+// --tables, then desmear unfold ANALYSIS.yaml, then the plain-table
+// desmear unfold on the tables written by the first step, which must
+// give the same result bit for bit (the two paths interoperate).
+func TestAnalysisEndToEnd(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	tdir := filepath.Join(dir, "tables")
+	code, stdout, stderr := runAnalysisCLI(t, "response", path, "--tables", tdir)
+	if code != 0 {
+		t.Fatalf("response: exit %d\n%s", code, stderr)
+	}
+	for _, want := range []string{"events read:        20000", "misses:", "fakes:", "outside truth:", "negative cells:     0", "efficiency", "purity", "stability"} {
+		if !strings.Contains(stdout, want) {
+			t.Errorf("response summary lacks %q:\n%s", want, stdout)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(dir, "response", "response.json")); err != nil {
+		t.Errorf("no response bundle: %v", err)
+	}
+	if code, _, _ := runAnalysisCLI(t, "response", path); code != exitUsage {
+		t.Errorf("an existing bundle was replaced without --force (exit %d)", code)
+	}
+
+	code, stdout, stderr = runAnalysisCLI(t, "unfold", path)
+	if code != 0 {
+		t.Fatalf("unfold analysis: exit %d\n%s", code, stderr)
+	}
+	if !strings.Contains(stdout, "result: "+filepath.Join(dir, "result")) || !strings.Contains(stdout, "iterations: 3") {
+		t.Errorf("unfold output:\n%s", stdout)
+	}
+	for _, f := range []string{"result.json", "result.csv", "region-central.csv", "result.root"} {
+		if _, err := os.Stat(filepath.Join(dir, "result", f)); err != nil {
+			t.Errorf("result folder lacks %s", f)
+		}
+	}
+
+	plain := filepath.Join(dir, "plain")
+	code, _, stderr = runAnalysisCLI(t, "unfold", "--response", filepath.Join(tdir, "response.csv"), "--generated", filepath.Join(tdir, "generated.csv"),
+		"--background", filepath.Join(tdir, "background.csv"), "--data", filepath.Join(dir, "n.csv"),
+		"--iterations", "3", "--covariance", "full", "--out", plain)
+	if code != 0 {
+		t.Fatalf("plain unfold: exit %d\n%s", code, stderr)
+	}
+	a, b := readAnalysisResult(t, filepath.Join(dir, "result")), readAnalysisResult(t, plain)
+	if !slices.Equal(a.Estimate, b.Estimate) || !slices.Equal(a.Uncertainty, b.Uncertainty) || len(a.Estimate) != 8 {
+		t.Errorf("analysis %v ± %v\nplain    %v ± %v", a.Estimate, a.Uncertainty, b.Estimate, b.Uncertainty)
+	}
+
+	// The background table holds the fakes plus 0.5 × b.csv, with
+	// variance sumw2(fakes) + 0.25 × 1 + (0.2 × 0.5 × 4)².
+	bg, err := tables.LoadVector(filepath.Join(tdir, "background.csv"), tables.Background)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(bg.Value) != 28 || bg.Value[0] < 2 || bg.Err2[0] < 0.25+0.16 {
+		t.Errorf("background table %v %v", bg.Value, bg.Err2)
+	}
+}
+
+type analysisResultJSON struct {
+	Estimate    []float64 `json:"estimate"`
+	Uncertainty []float64 `json:"uncertainty"`
+}
+
+func readAnalysisResult(t *testing.T, dir string) analysisResultJSON {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(dir, "result.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var r analysisResultJSON
+	if err := json.Unmarshal(b, &r); err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+func TestAnalysisErrors(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	nbad := 0
+	bad := func(old, new string) string {
+		nbad++
+		p := filepath.Join(filepath.Dir(path), "bad"+strconv.Itoa(nbad)+".yaml")
+		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
+		return p
+	}
+	cases := []struct {
+		args []string
+		code int
+		want string
+	}{
+		{[]string{"unfold", bad("  iterations: 3", "  iterations: 3\n  iteratoins: 4")}, exitInput, "bad1.yaml:27: iteratoins: unknown key in unfolding"},
+		{[]string{"response", bad("weight: w", "weight: wgt")}, exitInput, `bad2.yaml:15: simulation[0].weight: unknown column "wgt"`},
+		{[]string{"response", bad("file: sim.parquet", "file: nowhere.parquet")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
+		{[]string{"unfold", filepath.Join(filepath.Dir(path), "missing.yaml")}, exitInput, "missing.yaml: cannot read the analysis file"},
+	}
+	for _, c := range cases {
+		code, _, stderr := runAnalysisCLI(t, c.args...)
+		if code != c.code || !strings.Contains(stderr, c.want) {
+			t.Errorf("%v: exit %d, stderr %q; want exit %d and %q", c.args, code, stderr, c.code, c.want)
+		}
+		if _, err := os.Stat(filepath.Join(filepath.Dir(path), "result")); err == nil {
+			t.Errorf("%v: a result folder was left behind", c.args)
+		}
+	}
+}
