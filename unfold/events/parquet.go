@@ -278,7 +278,19 @@ func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn 
 		}
 	}()
 	var start int64
+	meta := p.pf.Metadata()
 	for g, rg := range p.pf.RowGroups() {
+		if g < len(meta.RowGroups) {
+			mcols := meta.RowGroups[g].Columns
+			for i := range curs {
+				if j := curs[i].col.index; j < len(mcols) {
+					if c := mcols[j].MetaData.Codec; c == format.Lz4Raw || c == format.Lz4 {
+						return fmt.Errorf("events: %s: row group %d: column %q is %s-compressed, which parquet-go v0.32.0 does not decode reliably; rewrite the file with Snappy or Zstd compression",
+							p.path, g, curs[i].name, c)
+					}
+				}
+			}
+		}
 		chunks := rg.ColumnChunks()
 		for i := range curs {
 			curs[i].close()
