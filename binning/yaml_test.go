@@ -143,6 +143,12 @@ regions:
   - name: b
     axes: [{name: pt, unit: MeV, edges: [0, 1]}]
 `, 6, "regions[1].axes[0].unit", "one unit"},
+		{"key twice", `
+regions:
+  - name: a
+    axes:
+      - {name: x, edges: [0, 1], edges: [0, 2]}
+`, 5, "regions[0].axes[0].edges", "twice"},
 		{"no regions", `
 description: nothing
 `, 2, "regions", "missing"},
