@@ -326,3 +326,45 @@ func TestExpressionErrors(t *testing.T) {
 		t.Errorf("missing file: got %v", err)
 	}
 }
+
+// A saved response bundle, named by the analysis file's response key,
+// gives the same result as building the response again; a bundle built
+// for other schemes is refused.
+func TestSavedResponse(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(5000, 8))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(1000, 9)[1]})
+	a, err := Load(writeAnalysis(t, dir, "sim.csv", "data.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	built, err := a.Run(context.Background(), nil, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := built.Response.Save(filepath.Join(dir, "saved"), *built.ResponseInfo, false); err != nil {
+		t.Fatal(err)
+	}
+	src, _ := os.ReadFile(filepath.Join(dir, "analysis.yaml"))
+	with := strings.Replace(string(src), "simulation:", "response: saved\nsimulation:", 1)
+	with = strings.Replace(with, "folder: result", "folder: result2", 1)
+	b, err := Decode([]byte(with), filepath.Join(dir, "analysis.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	loaded, err := b.Run(context.Background(), nil, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(loaded.Result.Estimate, built.Result.Estimate) || !slices.Equal(loaded.Result.Uncertainty, built.Result.Uncertainty) {
+		t.Errorf("loaded response gives %v, built %v", loaded.Result.Estimate, built.Result.Estimate)
+	}
+	other := strings.Replace(with, "edges: [0, 0.5, 1, 1.5, 2, 3]", "edges: [0, 0.5, 1, 2, 3]", 1)
+	c, err := Decode([]byte(other), filepath.Join(dir, "analysis.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, _, err := c.LoadResponse(); err == nil || !strings.Contains(err.Error(), "other binning schemes") {
+		t.Errorf("a bundle of other schemes: got %v", err)
+	}
+}
