@@ -58,7 +58,9 @@ func (s *Set) Sizes() Sizes {
 // Every problem found is an *Error naming a file, line and column (see
 // the package documentation for the checks). Background and Prior of the
 // problem are nil when the set has no such table; DataVariance is nil
-// when the data table has no variance column (Poisson data).
+// when the data table has no variance column (Poisson data). It panics
+// if Response, Generated or Data is nil (a programming error: those
+// tables are required).
 func (s *Set) Assemble(z Sizes) (*unfold.Problem, error) {
 	if s.Response == nil || s.Generated == nil || s.Data == nil {
 		panic("tables: Assemble needs the response, generated and data tables")
