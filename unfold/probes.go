@@ -32,6 +32,9 @@ type probes struct {
 	signN [][]uint64
 	signB [][]uint64
 	work  []probeWork
+	inv   []float64 // 1/ν of the current iteration (0 where ν = 0)
+	w     []float64 // n/ν² of the current iteration
+	red   reducer
 }
 
 type probeWork struct {
@@ -79,6 +82,8 @@ func newProbes(m *model, first, count int, seed uint64) *probes {
 		pr.dmu = append(pr.dmu, make([]float64, m.nt))
 		pr.tfold = append(pr.tfold, make([]float64, m.nr))
 	}
+	pr.inv = make([]float64, m.nr)
+	pr.w = make([]float64, m.nr)
 	workers := min(runtime.GOMAXPROCS(0), count)
 	pr.work = make([]probeWork, workers)
 	for w := range pr.work {
@@ -125,6 +130,17 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 }
 
 func (pr *probes) step(ctx context.Context, it *iterator) error {
+	n, nu, inv, w := it.n, it.nu, pr.inv, pr.w
+	pr.red.run(len(nu), func(lo, hi int, _ *[4]float64) {
+		for i := lo; i < hi; i++ {
+			if v := nu[i]; v > 0 {
+				inv[i] = 1 / v
+				w[i] = n[i] * inv[i] * inv[i]
+			} else {
+				inv[i], w[i] = 0, 0
+			}
+		}
+	})
 	// Probes run on separate goroutines; each Sweep is itself
 	// deterministic, so the bits do not depend on the scheduling.
 	work := make(chan int, pr.count)
@@ -154,23 +170,17 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 // one advances probe s by one iteration.
 func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 	m := pr.m
-	n, nu, tf, y := it.n, it.nu, pr.tfold[s], pw.y
+	inv, w, tf, y, sdN := pr.inv, pr.w, pr.tfold[s], pw.y, pr.sdN
 	sn := pr.signN[s]
-	var sb []uint64
-	if pr.sdB != nil {
-		sb = pr.signB[s]
-	}
-	for i := range y {
-		v := nu[i]
-		if v <= 0 {
-			y[i] = 0
-			continue
+	if pr.sdB == nil {
+		for i := range y {
+			y[i] = sign(sn, i)*sdN[i]*inv[i] - w[i]*tf[i]
 		}
-		dnu := tf[i]
-		if sb != nil {
-			dnu += sign(sb, i) * pr.sdB[i]
+	} else {
+		sb, sdB := pr.signB[s], pr.sdB
+		for i := range y {
+			y[i] = sign(sn, i)*sdN[i]*inv[i] - w[i]*(tf[i]+sign(sb, i)*sdB[i])
 		}
-		y[i] = (sign(sn, i)*pr.sdN[i] - n[i]*dnu/v) / v
 	}
 	pw.dmu = pr.dmu[s]
 	next := pw.spare
