@@ -5,12 +5,14 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+	"runtime"
 	"sync"
+	"sync/atomic"
 )
 
 // DefaultChunkEntries is the default number of entries an Accumulator
 // sorts together (see AccumulatorOptions.ChunkEntries).
-const DefaultChunkEntries = 1 << 21
+const DefaultChunkEntries = 1 << 20
 
 // DefaultWindow is the default number of batches an Accumulator holds
 // ahead of the next expected sequence number.
@@ -40,6 +42,8 @@ type AccumulatorOptions struct {
 	// memory of batches that arrive out of order and does not change the
 	// result. Zero means DefaultWindow.
 	Window int
+
+	segmentCells int // store segment size (tests); zero means maxSegment
 }
 
 // Cell is one cell of an accumulated matrix.
@@ -97,6 +101,7 @@ type Accumulator struct {
 	keyBits    uint // total width of a packed key
 	chunkCap   int
 	window     uint64
+	maxSeg     int
 
 	mu      sync.Mutex
 	cond    sync.Cond
@@ -113,11 +118,13 @@ type Accumulator struct {
 	freeH   []*heldBatch
 
 	// merge stage, also under mu
-	runs      map[uint64]*chunkBuf
-	nextMerge uint64
-	merging   bool
-	store     cellStore
-	spare     cellStore
+	runs       map[uint64]*chunkBuf // sorted runs waiting for earlier ones
+	ready      []*chunkBuf          // consecutive runs due for merging
+	readyCells int
+	nextMerge  uint64
+	merging    bool
+	segs       []*segment // the distinct cells, split by key range
+	cells      int        // number of distinct cells in segs
 
 	// serial feed (Add)
 	ser    heldBatch
@@ -160,7 +167,7 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 	if rows < 0 || cols < 0 || rows > math.MaxInt32 || cols > math.MaxInt32 {
 		return nil, fmt.Errorf("sparse: accumulator dimensions %d×%d out of range [0,%d]", rows, cols, math.MaxInt32)
 	}
-	a := &Accumulator{rows: rows, cols: cols, chunkCap: DefaultChunkEntries, window: DefaultWindow}
+	a := &Accumulator{rows: rows, cols: cols, chunkCap: DefaultChunkEntries, window: DefaultWindow, maxSeg: maxSegment}
 	if opt != nil {
 		if opt.ChunkEntries < 0 || opt.Window < 0 {
 			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d)", opt.ChunkEntries, opt.Window)
@@ -170,6 +177,9 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 		}
 		if opt.Window > 0 {
 			a.window = uint64(opt.Window)
+		}
+		if opt.segmentCells > 1 {
+			a.maxSeg = opt.segmentCells
 		}
 	}
 	if rows > 0 {
@@ -376,7 +386,7 @@ func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
 	a.cond.Broadcast()
 	a.mu.Unlock()
 	for _, c := range closed {
-		a.sortAndMerge(c)
+		a.sortAndMerge(c, false)
 	}
 	return nil
 }
@@ -428,32 +438,50 @@ func (a *Accumulator) popChunk() *chunkBuf {
 	return new(chunkBuf)
 }
 
-// sortAndMerge sorts a closed chunk, sums its equal keys into a run and
-// merges the runs that are due into the store, in chunk order.
-func (a *Accumulator) sortAndMerge(c *chunkBuf) {
-	c.sortRun(a.keyBits)
-	a.mu.Lock()
-	a.runs[c.sequence] = c
-	if a.merging {
-		a.mu.Unlock()
-		return
+// maxGroup is the largest number of runs merged into the store at once.
+const maxGroup = 8
+
+// sortAndMerge sorts a closed chunk and sums its equal keys into a run,
+// then merges the runs that are due into the store. Runs are merged
+// strictly in chunk order, several at a time once they hold a quarter of
+// the store's cells (so the store is rewritten rarely); force merges all
+// that are ready. For every cell the sums are added chunk by chunk in
+// chunk order, so how the runs are grouped does not change the result.
+func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
+	if c != nil {
+		c.sortRun(a.keyBits)
 	}
-	a.merging = true
+	a.mu.Lock()
+	if c != nil {
+		a.runs[c.sequence] = c
+	}
 	for {
-		r := a.runs[a.nextMerge]
-		if r == nil {
+		for r := a.runs[a.nextMerge]; r != nil; r = a.runs[a.nextMerge] {
+			delete(a.runs, a.nextMerge)
+			a.nextMerge++
+			a.ready = append(a.ready, r)
+			a.readyCells += len(r.keys)
+		}
+		if a.merging || len(a.ready) == 0 ||
+			!force && len(a.ready) < maxGroup && 4*a.readyCells < a.cells {
 			break
 		}
-		delete(a.runs, a.nextMerge)
-		a.nextMerge++
+		group := a.ready[:min(len(a.ready), maxGroup)]
+		a.merging = true
 		a.mu.Unlock()
-		a.mergeRun(r)
+		a.mergeGroup(group)
 		a.mu.Lock()
-		r.keys, r.sw, r.sw2 = nil, nil, nil
-		r.k0, r.w0 = r.k0[:0], r.w0[:0]
-		a.freeC = append(a.freeC, r)
+		a.merging = false
+		for _, r := range group {
+			a.readyCells -= len(r.keys)
+			r.keys, r.sw, r.sw2 = nil, nil, nil
+			r.k0, r.w0 = r.k0[:0], r.w0[:0]
+			a.freeC = append(a.freeC, r)
+		}
+		n := copy(a.ready, a.ready[len(group):])
+		clear(a.ready[n:])
+		a.ready = a.ready[:n]
 	}
-	a.merging = false
 	a.mu.Unlock()
 }
 
@@ -490,60 +518,255 @@ func (c *chunkBuf) sortRun(keyBits uint) {
 	c.keys, c.sw, c.sw2 = k[:m], w[:m], sw2[:m]
 }
 
-// mergeRun merges a summed run into the store (only one goroutine at a
-// time, in chunk order). For every cell present in both, the run's sums
-// are added to the store's.
-func (a *Accumulator) mergeRun(r *chunkBuf) {
-	st := &a.store
-	if len(st.keys) == 0 {
-		// The first run becomes the store (copied: its buffers are reused).
-		st.keys = append(st.keys[:0], r.keys...)
-		st.sw = append(st.sw[:0], r.sw...)
-		st.sw2 = append(st.sw2[:0], r.sw2...)
+// maxSegment is the largest number of cells a store segment holds
+// before it is split (6 MiB of cells: a segment being merged stays in
+// cache).
+const maxSegment = 1 << 18
+
+// segment is the part of the store with keys below hi (and at or above
+// the previous segment's hi): sorted distinct cells in backing arrays of
+// some spare capacity, placed at their start or at their end.
+type segment struct {
+	hi        uint64
+	cellStore // the cells, a window of the backing arrays
+	backK     []uint64
+	backW     []float64
+	backW2    []float64
+	runs      []cellStore // the parts of the runs being merged
+}
+
+// mergeGroup merges consecutive summed runs into the store, one group at
+// a time. For a cell in several places the sums are the store's, then
+// each run's in chunk order, added left to right; the store's split into
+// segments and the goroutines that merge them do not change any sum.
+func (a *Accumulator) mergeGroup(rs []*chunkBuf) {
+	if len(a.segs) == 0 {
+		a.segs = []*segment{{hi: math.MaxUint64}}
+	}
+	// Cut every run at the segment bounds.
+	for q, r := range rs {
+		lo := 0
+		for _, sg := range a.segs {
+			if q == 0 {
+				sg.runs = sg.runs[:0]
+			}
+			hi := lo + sortSearch(r.keys[lo:], sg.hi)
+			sg.runs = append(sg.runs, cellStore{keys: r.keys[lo:hi], sw: r.sw[lo:hi], sw2: r.sw2[lo:hi]})
+			lo = hi
+		}
+	}
+	var next atomic.Int64
+	work := func() {
+		for {
+			i := int(next.Add(1) - 1)
+			if i >= len(a.segs) {
+				return
+			}
+			a.segs[i].merge()
+		}
+	}
+	if g := min(runtime.GOMAXPROCS(0), len(a.segs)); g > 1 {
+		var wg sync.WaitGroup
+		for k := 1; k < g; k++ {
+			wg.Add(1)
+			go func() { defer wg.Done(); work() }()
+		}
+		work()
+		wg.Wait()
+	} else {
+		work()
+	}
+	// Split the segments that grew too large.
+	segs := a.segs[:0:0]
+	a.cells = 0
+	for _, sg := range a.segs {
+		sg.runs = sg.runs[:0]
+		a.cells += len(sg.keys)
+		if len(sg.keys) <= a.maxSeg {
+			segs = append(segs, sg)
+			continue
+		}
+		n := len(sg.keys)
+		pieces := (n + a.maxSeg/2 - 1) / (a.maxSeg / 2)
+		for p := 0; p < pieces; p++ {
+			lo, hi := p*n/pieces, (p+1)*n/pieces
+			m := hi - lo
+			c := m + m/4
+			ns := &segment{hi: sg.hi, backK: make([]uint64, c), backW: make([]float64, c), backW2: make([]float64, c)}
+			if p+1 < pieces {
+				ns.hi = sg.keys[hi]
+			}
+			copy(ns.backK, sg.keys[lo:hi])
+			copy(ns.backW, sg.sw[lo:hi])
+			copy(ns.backW2, sg.sw2[lo:hi])
+			ns.cellStore = cellStore{keys: ns.backK[:m], sw: ns.backW[:m], sw2: ns.backW2[:m]}
+			segs = append(segs, ns)
+		}
+	}
+	a.segs = segs
+}
+
+// sortSearch returns the number of keys below bound.
+func sortSearch(keys []uint64, bound uint64) int {
+	lo, hi := 0, len(keys)
+	for lo < hi {
+		m := int(uint(lo+hi) >> 1)
+		if keys[m] < bound {
+			lo = m + 1
+		} else {
+			hi = m
+		}
+	}
+	return lo
+}
+
+// merge merges the segment's run parts into it, in place when the
+// backing arrays have room: a store at their start is merged backwards,
+// from the last cell, writing from the end of the arrays; a store at
+// their end is merged forwards, writing from the start. Either way no
+// write overtakes a store cell not yet read.
+func (sg *segment) merge() {
+	ns := len(sg.keys)
+	need := ns
+	for _, r := range sg.runs {
+		need += len(r.keys)
+	}
+	if need == ns {
 		return
 	}
-	need := len(st.keys) + len(r.keys)
-	sp := &a.spare
-	if cap(sp.keys) < need {
-		// Drop the old spare before allocating the new one.
-		sp.keys, sp.sw, sp.sw2 = nil, nil, nil
-		nc := need + need/8
-		sp.keys = make([]uint64, nc)
-		sp.sw = make([]float64, nc)
-		sp.sw2 = make([]float64, nc)
+	off := cap(sg.backK) - cap(sg.keys)
+	if ns == 0 {
+		off = 0
 	}
-	ok, osw, osw2 := sp.keys[:need], sp.sw[:need], sp.sw2[:need]
-	sk, ssw, ssw2 := st.keys, st.sw, st.sw2
+	switch {
+	case cap(sg.backK) < need:
+		c := max(need+need/4, 1<<10)
+		dk, dsw, dsw2 := make([]uint64, c), make([]float64, c), make([]float64, c)
+		sg.cellStore = mergeBackward(dk, dsw, dsw2, sg.cellStore, sg.runs)
+		sg.backK, sg.backW, sg.backW2 = dk, dsw, dsw2
+	case off == 0:
+		sg.cellStore = mergeBackward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
+	case off+ns == cap(sg.backK):
+		sg.cellStore = mergeForward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
+	default:
+		// In the middle (cannot happen with the placements above, but
+		// cheap to handle): move to the start first.
+		copy(sg.backK, sg.keys)
+		copy(sg.backW, sg.sw)
+		copy(sg.backW2, sg.sw2)
+		sg.cellStore = cellStore{keys: sg.backK[:ns], sw: sg.backW[:ns], sw2: sg.backW2[:ns]}
+		sg.cellStore = mergeBackward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
+	}
+}
+
+// mergeBackward merges src and the runs rs into the end of (dk, dsw,
+// dsw2), which may be src's own arrays with src at their start.
+func mergeBackward(dk []uint64, dsw, dsw2 []float64, src cellStore, rs []cellStore) cellStore {
+	var pos [maxGroup]int
+	for q, r := range rs {
+		pos[q] = len(r.keys) - 1
+	}
+	sk, ssw, ssw2 := src.keys, src.sw, src.sw2
 	ssw, ssw2 = ssw[:len(sk)], ssw2[:len(sk)]
-	rk, rsw, rsw2 := r.keys, r.sw, r.sw2
-	rsw, rsw2 = rsw[:len(rk)], rsw2[:len(rk)]
-	i, j, m := 0, 0, 0
-	for i < len(sk) && j < len(rk) {
-		a, b := sk[i], rk[j]
-		switch {
-		case a < b:
-			ok[m], osw[m], osw2[m] = a, ssw[i], ssw2[i]
-			i++
-		case b < a:
-			ok[m], osw[m], osw2[m] = b, rsw[j], rsw2[j]
-			j++
-		default:
-			ok[m], osw[m], osw2[m] = a, ssw[i]+rsw[j], ssw2[i]+rsw2[j]
-			i++
-			j++
+	s, w := len(sk)-1, len(dk)-1
+	for {
+		var key uint64
+		have := false
+		for q, r := range rs {
+			if p := pos[q]; p >= 0 && (!have || r.keys[p] > key) {
+				key, have = r.keys[p], true
+			}
 		}
-		m++
+		if !have {
+			break
+		}
+		for s >= 0 && sk[s] > key {
+			dk[w], dsw[w], dsw2[w] = sk[s], ssw[s], ssw2[s]
+			s--
+			w--
+		}
+		var v, v2 float64
+		started := false
+		if s >= 0 && sk[s] == key {
+			v, v2 = ssw[s], ssw2[s]
+			started = true
+			s--
+		}
+		for q, r := range rs {
+			if p := pos[q]; p >= 0 && r.keys[p] == key {
+				if started {
+					v += r.sw[p]
+					v2 += r.sw2[p]
+				} else {
+					v, v2 = r.sw[p], r.sw2[p]
+					started = true
+				}
+				pos[q] = p - 1
+			}
+		}
+		dk[w], dsw[w], dsw2[w] = key, v, v2
+		w--
 	}
-	ns := copy(ok[m:], sk[i:])
-	copy(osw[m:m+ns], ssw[i:])
-	copy(osw2[m:m+ns], ssw2[i:])
-	m += ns
-	nr := copy(ok[m:], rk[j:])
-	copy(osw[m:m+nr], rsw[j:])
-	copy(osw2[m:m+nr], rsw2[j:])
-	m += nr
-	a.spare = cellStore{keys: st.keys[:0], sw: st.sw[:0], sw2: st.sw2[:0]}
-	a.store = cellStore{keys: ok[:m], sw: osw[:m], sw2: osw2[:m]}
+	// The store cells below every run key: copied unless already in place.
+	if n := s + 1; n > 0 && &dk[w-s] != &sk[0] {
+		copy(dk[w-s:w+1], sk[:n])
+		copy(dsw[w-s:w+1], ssw[:n])
+		copy(dsw2[w-s:w+1], ssw2[:n])
+	}
+	lo := w - s
+	return cellStore{keys: dk[lo:], sw: dsw[lo:], sw2: dsw2[lo:]}
+}
+
+// mergeForward merges src, which sits at the end of (dk, dsw, dsw2), and
+// the runs rs into the start of those arrays.
+func mergeForward(dk []uint64, dsw, dsw2 []float64, src cellStore, rs []cellStore) cellStore {
+	var pos [maxGroup]int
+	sk, ssw, ssw2 := src.keys, src.sw, src.sw2
+	ssw, ssw2 = ssw[:len(sk)], ssw2[:len(sk)]
+	s, w := 0, 0
+	for {
+		var key uint64
+		have := false
+		for q, r := range rs {
+			if p := pos[q]; p < len(r.keys) && (!have || r.keys[p] < key) {
+				key, have = r.keys[p], true
+			}
+		}
+		if !have {
+			break
+		}
+		for s < len(sk) && sk[s] < key {
+			dk[w], dsw[w], dsw2[w] = sk[s], ssw[s], ssw2[s]
+			s++
+			w++
+		}
+		var v, v2 float64
+		started := false
+		if s < len(sk) && sk[s] == key {
+			v, v2 = ssw[s], ssw2[s]
+			started = true
+			s++
+		}
+		for q, r := range rs {
+			if p := pos[q]; p < len(r.keys) && r.keys[p] == key {
+				if started {
+					v += r.sw[p]
+					v2 += r.sw2[p]
+				} else {
+					v, v2 = r.sw[p], r.sw2[p]
+					started = true
+				}
+				pos[q] = p + 1
+			}
+		}
+		dk[w], dsw[w], dsw2[w] = key, v, v2
+		w++
+	}
+	n := copy(dk[w:], sk[s:])
+	copy(dsw[w:w+n], ssw[s:])
+	copy(dsw2[w:w+n], ssw2[s:])
+	w += n
+	return cellStore{keys: dk[:w], sw: dsw[:w], sw2: dsw2[:w]}
 }
 
 // Matrix finishes the accumulation and returns the matrix of the sums of
@@ -591,43 +814,59 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	a.chunk = nil
 	entries := a.entries
 	a.mu.Unlock()
-	if last != nil {
-		a.sortAndMerge(last)
-	}
+	a.sortAndMerge(last, true)
 	// Release every buffer but the store.
-	a.freeC, a.freeH, a.spare, a.ser = nil, nil, cellStore{}, heldBatch{}
+	a.freeH, a.ser, a.ready = nil, heldBatch{}, nil
 	a.held, a.runs = nil, nil
 
-	st := a.store
-	a.store = cellStore{}
-	n := len(st.keys)
+	// The chunk buffers are garbage now; when they are large, collect them
+	// before the matrix arrays are allocated, which bounds the peak memory.
+	var chunkBytes int
+	for _, c := range a.freeC {
+		chunkBytes += 8 * (cap(c.k0) + cap(c.k1) + cap(c.w0) + cap(c.w1))
+	}
+	a.freeC = nil
+	if chunkBytes > 64<<20 {
+		runtime.GC()
+	}
+	n := a.cells
 	colPtr := make([]int, a.cols+1)
-	rowIdx := make([]int, n)
+	rowIdx := make([]int, 0, n)
+	sw := make([]float64, 0, n)
+	sw2 := make([]float64, 0, n)
 	rowMask := uint64(1)<<a.rowBits - 1
 	rep := &Report{Entries: entries, Cells: n}
-	sw := st.sw[:n:n]
-	sw2 := st.sw2[:n:n]
-	for k, key := range st.keys {
-		r, c := int(key&rowMask), int(key>>a.rowBits)
-		rowIdx[k] = r
-		colPtr[c+1]++
-		s := sw[k]
-		switch {
-		case math.IsInf(s, 0) || math.IsInf(sw2[k], 0):
-			return nil, nil, fmt.Errorf("sparse: the sum of weights of cell (reco %d, truth %d) overflows", r, c)
-		case s < 0:
-			rep.NegativeCount++
-			if len(rep.Negative) < MaxReportedCells {
-				rep.Negative = append(rep.Negative, Cell{Row: r, Col: c, SumW: s, SumW2: sw2[k]})
-			}
-		case s == 0:
-			rep.ZeroCount++
+	for q, sg := range a.segs {
+		base := len(rowIdx)
+		sw = append(sw, sg.sw...)
+		sw2 = append(sw2, sg.sw2...)
+		for _, key := range sg.keys {
+			r, c := int(key&rowMask), int(key>>a.rowBits)
+			rowIdx = append(rowIdx, r)
+			colPtr[c+1]++
 		}
+		for k := base; k < len(rowIdx); k++ {
+			s := sw[k]
+			switch {
+			case math.IsInf(s, 0) || math.IsInf(sw2[k], 0):
+				r, c := rowIdx[k], int(sg.keys[k-base]>>a.rowBits)
+				return nil, nil, fmt.Errorf("sparse: the sum of weights of cell (reco %d, truth %d) overflows", r, c)
+			case s < 0:
+				rep.NegativeCount++
+				if len(rep.Negative) < MaxReportedCells {
+					c := int(sg.keys[k-base] >> a.rowBits)
+					rep.Negative = append(rep.Negative, Cell{Row: rowIdx[k], Col: c, SumW: s, SumW2: sw2[k]})
+				}
+			case s == 0:
+				rep.ZeroCount++
+			}
+		}
+		a.segs[q] = nil
 	}
+	a.segs = nil
 	for c := 0; c < a.cols; c++ {
 		colPtr[c+1] += colPtr[c]
 	}
-	st.keys = nil
 	m, err := NewMatrix(a.rows, a.cols, colPtr, rowIdx, sw, sw2)
 	if err != nil {
 		return nil, nil, fmt.Errorf("sparse: internal error building the accumulated matrix: %w", err)

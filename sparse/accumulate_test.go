@@ -238,6 +238,9 @@ func TestAccumulateMatchesDense(t *testing.T) {
 			checkAgainstDense(t, m, sw, sw2, 1e-12)
 			mb, _ := accumulateBatches(t, sh.rows, sh.cols, es, 13, 3, &AccumulatorOptions{ChunkEntries: chunk})
 			sameBits(t, "batches vs Add", m, mb)
+			// Small store segments: many splits and segment merges.
+			ms, _ := accumulateBatches(t, sh.rows, sh.cols, es, 13, 3, &AccumulatorOptions{ChunkEntries: chunk, segmentCells: 4})
+			sameBits(t, "small segments", m, ms)
 		}
 	}
 }
@@ -297,7 +300,7 @@ func TestAccumulateGoroutinesBitIdentical(t *testing.T) {
 	for k := range es {
 		es[k].w *= 1 + 1e-3*rng.NormFloat64() // non-representable sums
 	}
-	opt := &AccumulatorOptions{ChunkEntries: 4096, Window: 4}
+	opt := &AccumulatorOptions{ChunkEntries: 4096, Window: 4, segmentCells: 100}
 	ref, _ := accumulateSerial(t, 300, 200, es, opt)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
 	for _, procs := range []int{1, 2, 7} {
