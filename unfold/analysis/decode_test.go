@@ -109,3 +109,21 @@ func goodText(t *testing.T) string {
 	}
 	return string(b)
 }
+
+// The reference example of the documentation decodes, with every key.
+func TestReferenceExample(t *testing.T) {
+	a, err := Load("testdata/reference/analysis.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(a.Simulation) != 2 || a.Simulation[1].Truth[a.Truth.AxisIndex("pt")].Text != "pt_true" ||
+		a.Simulation[1].Truth[a.Truth.AxisIndex("y")].Text != "abs(y_true)" {
+		t.Errorf("simulation %+v", a.Simulation)
+	}
+	if a.Backgrounds[0].Observables[a.Reco.AxisIndex("y")].Text != "abs(y_reco)" || a.Backgrounds[0].ScaleUncertainty != 0.1 {
+		t.Errorf("background %+v", a.Backgrounds[0])
+	}
+	if a.Unfolding.MemoryLimit != 4<<30 || a.Output.LuminosityUnit != "fb^-1" || a.BatchSize != 16384 {
+		t.Errorf("settings %+v %+v", a.Unfolding, a.Output)
+	}
+}

@@ -148,14 +148,14 @@ func (a *Analysis) simulation(s *Sample) (*fill.Simulation, closer, error) {
 	// Purity and stability on the truth binning need the reco
 	// observables of the truth axes: available when every truth axis
 	// has a reco observable of the same name.
-	var rit []fill.Expr
+	var rit []int
 	for _, name := range a.Truth.AxisNames() {
 		ax := a.Reco.AxisIndex(name)
 		if ax < 0 {
 			rit = nil
 			break
 		}
-		rit = append(rit, sim.Reco.Observables[ax])
+		rit = append(rit, ax)
 	}
 	sim.RecoInTruth = rit
 	cols, err := c.finish()

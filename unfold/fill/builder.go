@@ -14,12 +14,13 @@ type Simulation struct {
 	Sample
 	Truth Level
 	Reco  Level
-	// RecoInTruth, when not nil, holds reco-level observables for each
-	// axis of the TRUTH scheme (in its axis order). Each event passing
-	// the reco selection is then also located in the truth scheme with
-	// these values, which defines purity and stability on the truth
-	// binning even when the reco binning differs from it.
-	RecoInTruth []Expr
+	// RecoInTruth, when not nil, gives for each axis of the TRUTH scheme
+	// (in its axis order) the index, into Reco.Observables, of the reco
+	// observable that measures it. Each event passing the reco selection
+	// is then also located in the truth scheme with its reco values,
+	// which defines purity and stability on the truth binning even when
+	// the reco binning differs from it.
+	RecoInTruth []int
 }
 
 // Summary counts what happened to the events of the samples.
@@ -197,11 +198,19 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 		return Summary{}, fmt.Errorf("%s: every simulated sample must give reco observables for the truth axes, or none", sim.Name)
 	}
 	b.samples++
-	diagLevel := &Level{Observables: sim.RecoInTruth, Select: sim.Reco.Select}
+	var dg *diagMap
+	if withDiag {
+		for _, ax := range sim.RecoInTruth {
+			if ax < 0 || ax >= len(sim.Reco.Observables) {
+				panic("fill: RecoInTruth names a reco observable that does not exist")
+			}
+		}
+		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
+	}
 	seq0 := b.seq
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
-		truth, reco, diag := sim.Truth.instantiate(), sim.Reco.instantiate(), diagLevel.instantiate()
+		truth, reco := sim.Truth.instantiate(), sim.Reco.instantiate()
 		return func(sc *scratch, bt *batch) error {
 			if err := evalWeights(&sim.Sample, weight, bt); err != nil {
 				return err
@@ -209,7 +218,7 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 			sc.locate(bt.truth, truth, b.truth, bt.cols, bt.n)
 			sc.locate(bt.reco, reco, b.reco, bt.cols, bt.n)
 			if withDiag {
-				sc.locate(bt.diag, diag, b.truth, bt.cols, bt.n)
+				sc.locateDiag(bt.diag, bt.reco, dg, reco != nil)
 			}
 			// Migration entries of the batch, in event order, as batch
 			// number seq0+bt.seq of the accumulator's entry stream.

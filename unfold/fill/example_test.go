@@ -32,7 +32,7 @@ func ExampleBuilder() {
 		}},
 		Truth:       fill.Level{Observables: []fill.Expr{column(0)}, Select: column(2)},
 		Reco:        fill.Level{Observables: []fill.Expr{column(1)}, Select: column(3)},
-		RecoInTruth: []fill.Expr{column(1)},
+		RecoInTruth: []int{0},
 	}
 	b := fill.NewBuilder(scheme, scheme)
 	if _, err := b.Add(context.Background(), sim, nil); err != nil {

@@ -134,6 +134,7 @@ func (b *batch) ensure(ncols, n int) {
 
 // scratch is a worker's evaluation space.
 type scratch struct {
+	diagPoint  []float64
 	rows, cols []int32
 	w          []float64
 	sel        []float64
@@ -364,3 +365,40 @@ func (e *EventError) Error() string {
 }
 
 func (e *EventError) Unwrap() error { return e.Err }
+
+// locateDiag fills dst with the truth bin of each event's reco
+// observables, which s.obs still holds from locating the reco level
+// into reco (codeRejected where the reco selection failed). A reco bin
+// that lies entirely inside one truth bin gives that bin directly;
+// other events are located in the truth scheme.
+func (s *scratch) locateDiag(dst, reco []int32, m *diagMap, haveReco bool) {
+	if !haveReco {
+		for k := range dst {
+			dst[k] = codeRejected
+		}
+		return
+	}
+	pt := s.diagPoint[:0]
+	for range m.axes {
+		pt = append(pt, 0)
+	}
+	s.diagPoint = pt
+	for k, r := range reco {
+		switch {
+		case r == codeRejected:
+			dst[k] = codeRejected
+			continue
+		case r >= 0 && m.direct[r] >= 0:
+			dst[k] = m.direct[r]
+			continue
+		}
+		for a, ax := range m.axes {
+			pt[a] = s.obs[ax][k]
+		}
+		if i := m.truth.Locate(pt); i >= 0 {
+			dst[k] = int32(i)
+		} else {
+			dst[k] = codeOutside
+		}
+	}
+}

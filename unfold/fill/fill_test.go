@@ -7,7 +7,10 @@ import (
 	"math/rand/v2"
 	"slices"
 	"sort"
+	"strings"
 	"testing"
+
+	"github.com/desmear/desmear/binning"
 )
 
 // edges1D is a 1-D scheme for tests, with the flattening convention of
@@ -123,7 +126,7 @@ func handSimulation(batch int) *Simulation {
 		Sample:      Sample{Name: "hand", Read: memory(cols, batch), Events: int64(len(handEvents)), Weight: col(2)},
 		Truth:       Level{Observables: []Expr{col(0)}, Select: col(3)},
 		Reco:        Level{Observables: []Expr{col(1)}, Select: col(4)},
-		RecoInTruth: []Expr{col(1)},
+		RecoInTruth: []int{0},
 	}
 }
 
@@ -229,7 +232,7 @@ func randomSimulation(cols [][]float64, batch int) *Simulation {
 		Sample:      Sample{Name: "random", Read: memory(cols, batch), Events: int64(len(cols[0])), Weight: col(4)},
 		Truth:       Level{Observables: []Expr{col(0), col(1)}, Select: col(5)},
 		Reco:        Level{Observables: []Expr{col(2), col(3)}, Select: col(6)},
-		RecoInTruth: []Expr{col(2), col(3)},
+		RecoInTruth: []int{0, 1},
 	}
 }
 
@@ -393,4 +396,74 @@ func TestCancel(t *testing.T) {
 	if !errors.Is(err, context.Canceled) {
 		t.Fatalf("got %v, want context.Canceled", err)
 	}
+}
+
+// Purity histograms with binning schemes, where reco bins inside one
+// truth bin are mapped directly and the others located: the result must
+// equal locating every event's reco values in the truth scheme.
+func TestRecoInTruthDirectMap(t *testing.T) {
+	truth := mustScheme(t, `regions:
+  - name: r
+    axes:
+      - {name: x, edges: [0, 0.3, 0.6, 1], overflow: true}
+      - {name: y, edges: [0, 0.5, 1], underflow: true}
+`)
+	// Reco bins: some inside one truth bin, some straddling (0.25-0.35,
+	// 0.45-0.55), flows on.
+	reco := mustScheme(t, `regions:
+  - name: r
+    axes:
+      - {name: x, edges: [0, 0.15, 0.25, 0.35, 0.6, 0.8, 1], underflow: true, overflow: true}
+      - {name: y, edges: [0, 0.25, 0.45, 0.55, 1], underflow: true, overflow: true}
+`)
+	cols := randomEvents(20000, 11)
+	b := NewBuilder(truth, reco)
+	if _, err := b.Add(context.Background(), randomSimulation(cols, 999), &Options{Workers: 2}); err != nil {
+		t.Fatal(err)
+	}
+	r, err := b.Response()
+	if err != nil {
+		t.Fatal(err)
+	}
+	diag, rit := make([]float64, truth.Len()), make([]float64, truth.Len())
+	for k := range cols[0] {
+		w := cols[4][k]
+		ti := -1
+		if cols[5][k] != 0 {
+			ti = truth.Locate([]float64{cols[0][k], cols[1][k]})
+		}
+		if cols[6][k] == 0 {
+			continue
+		}
+		if d := truth.Locate([]float64{cols[2][k], cols[3][k]}); d >= 0 {
+			rit[d] += w
+			if d == ti {
+				diag[d] += w
+			}
+		}
+	}
+	if !slices.Equal(r.Diagonal, diag) || !slices.Equal(r.RecoInTruth, rit) {
+		t.Errorf("diagonal %v\nwant     %v\nreco in truth %v\nwant          %v", r.Diagonal, diag, r.RecoInTruth, rit)
+	}
+	m := newDiagMap(truth, reco, []int{0, 1})
+	direct := 0
+	for _, d := range m.direct {
+		if d >= 0 {
+			direct++
+		}
+	}
+	// 6×4 in-range reco bins; x bin [0.25,0.35) and y bin [0.45,0.55)
+	// straddle truth edges: 5×3 = 15 lie inside one truth bin.
+	if direct != 15 {
+		t.Errorf("%d reco bins mapped directly, want 15", direct)
+	}
+}
+
+func mustScheme(t *testing.T, src string) *binning.Scheme {
+	t.Helper()
+	s, err := binning.Decode(strings.NewReader(src), "test.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
 }
