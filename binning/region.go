@@ -73,8 +73,8 @@ func NewRegion(name string, axes ...*Axis) (*Region, error) {
 		return nil, fmt.Errorf("binning: region %q has %d axes; at most %d are supported", name, len(axes), MaxAxes)
 	}
 	for k, a := range axes {
-		if a == nil {
-			return nil, fmt.Errorf("binning: region %q: axis %d is nil", name, k)
+		if a == nil || a.byBin == nil && len(a.edges) < 2 {
+			return nil, fmt.Errorf("binning: region %q: axis %d is nil or was not made by NewAxis or NewAxisByBin", name, k)
 		}
 		for _, b := range axes[:k] {
 			if a.name == b.name {
@@ -228,16 +228,17 @@ func (r *Region) Rectangular() bool {
 
 // find locates the point whose coordinate on axis k is x[pos[k]]. It
 // returns the in-range cell, or -1 and the position of the flow cell in
-// the region's flow list, or -1, -1 if the point needs a flow bin that is
-// switched off. No coordinate may be NaN.
-func (r *Region) find(x []float64, pos []int) (int, int) {
+// the region's flow list (only if flows is true; -1 otherwise), or -1, -1
+// if the point needs a flow bin that is switched off. No coordinate may
+// be NaN.
+func (r *Region) find(x []float64, pos []int, flows bool) (int, int) {
 	if r.rect {
 		c := 0
 		for k := range r.lv {
 			l := &r.lv[k]
 			i := l.find.find(x[pos[k]])
 			if uint(i) >= uint(l.n) {
-				return -1, r.findFlow(x, pos)
+				return -1, r.flowIf(flows, x, pos)
 			}
 			c = c*l.n + i
 		}
@@ -251,7 +252,7 @@ func (r *Region) find(x []float64, pos []int) (int, int) {
 			f := &l.finds[ip]
 			i := f.find(v)
 			if i < 0 || i >= f.n {
-				return -1, r.findFlow(x, pos)
+				return -1, r.flowIf(flows, x, pos)
 			}
 			c = q*l.total() + l.cum[ip] + i
 			ip = i
@@ -259,13 +260,20 @@ func (r *Region) find(x []float64, pos []int) (int, int) {
 		}
 		i := l.find.find(v)
 		if i < 0 || i >= l.n {
-			return -1, r.findFlow(x, pos)
+			return -1, r.flowIf(flows, x, pos)
 		}
 		q = c
 		c = c*l.n + i
 		ip = i
 	}
 	return c, -1
+}
+
+func (r *Region) flowIf(flows bool, x []float64, pos []int) int {
+	if !flows || len(r.flowExt) == 0 {
+		return -1
+	}
+	return r.findFlow(x, pos)
 }
 
 // findFlow returns the position in the flow list of the point, known to

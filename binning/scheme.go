@@ -151,7 +151,7 @@ func (s *Scheme) Locate(x []float64) int {
 	}
 	fr, fp := -1, -1
 	for r, reg := range s.regions {
-		c, p := reg.find(x, s.pos[r])
+		c, p := reg.find(x, s.pos[r], fr < 0)
 		if c >= 0 {
 			return s.inOff[r] + c
 		}
@@ -352,7 +352,7 @@ func (s *Scheme) neighbour(r, k int, st *[MaxAxes]int, x *[MaxAxes]float64, dir 
 	}
 	y := *x
 	y[k] = 0.5 * (e[i] + e[i+1])
-	c, _ := reg.find(y[:len(reg.axes)], reg.ident)
+	c, _ := reg.find(y[:len(reg.axes)], reg.ident, false)
 	if c < 0 {
 		return -1
 	}

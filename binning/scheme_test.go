@@ -409,6 +409,7 @@ func TestConstructionErrors(t *testing.T) {
 		{"by-bin length", []*Axis{x, y3}},
 		{"by-bin chain", []*Axis{x, y2, z2}},
 		{"nil axis", []*Axis{x, nil}},
+		{"zero axis", []*Axis{x, new(Axis)}},
 	} {
 		if _, err := NewRegion("r", c.axes...); err == nil {
 			t.Errorf("NewRegion %s gave no error", c.name)
