@@ -2,6 +2,7 @@ package events
 
 import (
 	"context"
+	"fmt"
 	"math/rand/v2"
 	"path/filepath"
 	"sync"
@@ -55,9 +56,11 @@ func benchInputs(b *testing.B) (dir string, names []string) {
 	return benchFiles.dir, benchFiles.names
 }
 
-func benchRead(b *testing.B, file string, rows int64) {
+func benchRead(b *testing.B, file string, rows int64) { benchReadOpt(b, file, rows, Options{}) }
+
+func benchReadOpt(b *testing.B, file string, rows int64, opt Options) {
 	dir, names := benchInputs(b)
-	src, err := Open(filepath.Join(dir, file), Options{})
+	src, err := Open(filepath.Join(dir, file), opt)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -87,8 +90,12 @@ func benchRead(b *testing.B, file string, rows int64) {
 func BenchmarkParquetRead(b *testing.B) { benchRead(b, "bench.parquet", benchRows) }
 
 // BenchmarkROOTRead reads 5 float64 branches of an LZ4-compressed TTree
-// written by WriteROOT.
-func BenchmarkROOTRead(b *testing.B) { benchRead(b, "bench.root", benchRows) }
+// written by WriteROOT, with 1 and 2 decoding goroutines.
+func BenchmarkROOTRead(b *testing.B) {
+	for _, w := range []int{1, 2} {
+		b.Run(fmt.Sprintf("workers=%d", w), func(b *testing.B) { benchReadOpt(b, "bench.root", benchRows, Options{Workers: w}) })
+	}
+}
 
 // BenchmarkCSVRead parses 5 columns of a CSV file written by WriteCSV.
 func BenchmarkCSVRead(b *testing.B) { benchRead(b, "bench.csv", benchRows/10) }

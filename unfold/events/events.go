@@ -46,6 +46,12 @@ type Options struct {
 	// "dir/events"). If empty, the file must hold exactly one TTree at its
 	// top level.
 	Tree string
+
+	// Workers is the number of goroutines that decode a ROOT file in
+	// parallel, each on its own range of entries; batches still arrive in
+	// file order and hold the same values. 0 means runtime.GOMAXPROCS(0).
+	// Parquet and CSV files are decoded in the calling goroutine.
+	Workers int
 }
 
 // Format is an input file format.
@@ -89,7 +95,12 @@ func FormatOf(path string) Format {
 func Open(path string, opt Options) (Source, error) {
 	switch FormatOf(path) {
 	case FormatROOT:
-		return OpenROOT(path, opt.Tree)
+		r, err := OpenROOT(path, opt.Tree)
+		if err != nil {
+			return nil, err
+		}
+		r.SetWorkers(opt.Workers)
+		return r, nil
 	case FormatParquet:
 		return OpenParquet(path)
 	case FormatCSV:

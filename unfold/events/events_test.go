@@ -572,3 +572,68 @@ func TestParquetCodecs(t *testing.T) {
 		}
 	}
 }
+
+// TestROOTParallel checks that parallel decoding, in chunks that do not
+// line up with baskets or batches, delivers exactly what the sequential
+// reader delivers, and that errors, cancellation and damaged files behave
+// the same.
+func TestROOTParallel(t *testing.T) {
+	defer func(c int64) { rootChunk = c }(rootChunk)
+	rootChunk = 777
+	dir := t.TempDir()
+	names, cols := sampleColumns(20000)
+	path := filepath.Join(dir, "par.root")
+	if err := WriteROOT(path, "events", names, cols); err != nil {
+		t.Fatal(err)
+	}
+	order := []string{"y_true", "pt_reco", "y_true", "weight"}
+	want := [][]float64{cols[2], cols[1], cols[2], cols[3]}
+	for _, workers := range []int{1, 2, 3, 8} {
+		src, err := Open(path, Options{Workers: workers})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, bs := range []int{1000, 4096, 100000} {
+			got := readAll(t, src, order, bs)
+			for c := range order {
+				if i, ok := sameBits(got[c], want[c]); !ok {
+					t.Fatalf("workers %d batch %d: column %s differs at %d", workers, bs, order[c], i)
+				}
+			}
+		}
+		stop := errors.New("stop")
+		calls := 0
+		err = src.Read(context.Background(), order, 500, func(*Batch) error {
+			if calls++; calls == 7 {
+				return stop
+			}
+			return nil
+		})
+		if err != stop || calls != 7 {
+			t.Errorf("workers %d: error %v after %d calls", workers, err, calls)
+		}
+		ctx, cancel := context.WithCancel(context.Background())
+		calls = 0
+		err = src.Read(ctx, order, 500, func(*Batch) error {
+			if calls++; calls == 5 {
+				cancel()
+			}
+			return nil
+		})
+		if !errors.Is(err, context.Canceled) || calls != 5 {
+			t.Errorf("workers %d: cancelled: error %v after %d calls", workers, err, calls)
+		}
+		src.Close()
+	}
+	data, _ := os.ReadFile(path)
+	cut := filepath.Join(dir, "cut.root")
+	os.WriteFile(cut, data[:len(data)*3/5], 0o644)
+	src, err := Open(cut, Options{Workers: 3})
+	if err == nil {
+		err = src.Read(context.Background(), names, 1000, func(*Batch) error { return nil })
+		src.Close()
+	}
+	if err == nil || !strings.Contains(err.Error(), cut) {
+		t.Errorf("truncated file, parallel read: %v", err)
+	}
+}

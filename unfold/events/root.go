@@ -5,7 +5,9 @@ import (
 	"errors"
 	"fmt"
 	"reflect"
+	"runtime"
 	"strings"
+	"sync"
 
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/riofs"
@@ -15,13 +17,14 @@ import (
 
 // ROOT is an event sample in a TTree of a ROOT file.
 type ROOT struct {
-	path   string
-	name   string // tree path in the file
-	f      *riofs.File
-	tree   rtree.Tree
-	cols   []string          // supported scalar branches, in tree order
-	bad    map[string]string // unsupported branch -> reason
-	byName map[string]rtree.Leaf
+	path    string
+	name    string // tree path in the file
+	f       *riofs.File
+	tree    rtree.Tree
+	cols    []string          // supported scalar branches, in tree order
+	bad     map[string]string // unsupported branch -> reason
+	byName  map[string]rtree.Leaf
+	workers int
 }
 
 // OpenROOT opens the TTree at treePath (empty: the only TTree at the top
@@ -128,94 +131,312 @@ type rootConv struct {
 	ptr  any
 }
 
-// Read implements Source.
-func (r *ROOT) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) (err error) {
-	checkBatchSize(batchSize)
-	where := fmt.Sprintf("%s: tree %q", r.path, r.name)
-	rvars := make([]rtree.ReadVar, 0, len(columns))
-	convs := make([]rootConv, 0, len(columns))
+// binding is a set of branches bound to typed variables for one reader.
+type binding struct {
+	rvars []rtree.ReadVar
+	convs []rootConv
+	dupOf []int // dupOf[i] >= 0: column i repeats column dupOf[i]
+}
+
+// bind checks the requested branches and binds each to a variable of its
+// exact type.
+func (r *ROOT) bind(columns []string) (*binding, error) {
+	bd := &binding{dupOf: make([]int, len(columns))}
 	bound := map[string]int{}
-	// Columns asked twice are read once and copied.
-	dupOf := make([]int, len(columns))
 	for i, name := range columns {
-		dupOf[i] = -1
+		bd.dupOf[i] = -1
 		if j, ok := bound[name]; ok {
-			dupOf[i] = j
+			bd.dupOf[i] = j
 			continue
 		}
 		leaf, ok := r.byName[name]
 		if !ok {
 			if why, isBad := r.bad[name]; isBad {
-				return fmt.Errorf("events: %s: branch %q cannot be read: %s", where, name, why)
+				return nil, fmt.Errorf("events: %s: branch %q cannot be read: %s", r.where(), name, why)
 			}
-			return fmt.Errorf("events: %s: no branch %q%s", where, name, listHint(r.cols))
+			return nil, fmt.Errorf("events: %s: no branch %q%s", r.where(), name, listHint(r.cols))
 		}
 		ptr, kind := newScalar(leaf)
-		rvars = append(rvars, rtree.ReadVar{Name: name, Leaf: leaf.Name(), Value: ptr})
-		convs = append(convs, rootConv{dst: i, kind: kind, ptr: ptr})
+		bd.rvars = append(bd.rvars, rtree.ReadVar{Name: name, Leaf: leaf.Name(), Value: ptr})
+		bd.convs = append(bd.convs, rootConv{dst: i, kind: kind, ptr: ptr})
 		bound[name] = i
+	}
+	return bd, nil
+}
+
+func (r *ROOT) where() string { return fmt.Sprintf("%s: tree %q", r.path, r.name) }
+
+var errStop = errors.New("stop")
+
+// scan reads the entries of rd's range into full, column by column. Each
+// time len(full[0]) rows are filled, and at the end if rows remain, it
+// calls flush with the number of rows; flush returning an error stops the
+// scan, and scan then returns errStop.
+func (bd *binding) scan(rd *rtree.Reader, full [][]float64, flush func(k int) error) error {
+	var f64 []f64conv
+	var f32 []f32conv
+	var other []rootConv
+	// Grouped by type so that the per-entry loop has no type switch for the
+	// common float64 and float32 branches.
+	for _, c := range bd.convs {
+		switch c.kind {
+		case reflect.Float64:
+			f64 = append(f64, f64conv{dst: full[c.dst], p: c.ptr.(*float64)})
+		case reflect.Float32:
+			f32 = append(f32, f32conv{dst: full[c.dst], p: c.ptr.(*float32)})
+		default:
+			other = append(other, c)
+		}
+	}
+	size := len(full[0])
+	k := 0
+	done := func() error {
+		for i, j := range bd.dupOf {
+			if j >= 0 {
+				copy(full[i][:k], full[j][:k])
+			}
+		}
+		if err := flush(k); err != nil {
+			return errStop
+		}
+		k = 0
+		return nil
+	}
+	err := rd.Read(func(rtree.RCtx) error {
+		for _, c := range f64 {
+			c.dst[k] = *c.p
+		}
+		for _, c := range f32 {
+			c.dst[k] = float64(*c.p)
+		}
+		for i := range other {
+			full[other[i].dst][k] = other[i].value()
+		}
+		k++
+		if k == size {
+			return done()
+		}
+		return nil
+	})
+	if err != nil {
+		if errors.Is(err, errStop) {
+			return errStop
+		}
+		return err
+	}
+	if k > 0 {
+		return done()
+	}
+	return nil
+}
+
+// rootChunk is the number of entries each worker of a parallel read
+// decodes at a time.
+var rootChunk int64 = 1 << 16
+
+// SetWorkers sets the number of goroutines that decode the tree in
+// parallel in Read, each with its own handle on the file and its own range
+// of entries; batches are still delivered in file order. n <= 0 means
+// runtime.GOMAXPROCS(0); 1 reads in the calling goroutine.
+func (r *ROOT) SetWorkers(n int) { r.workers = n }
+
+// Read implements Source.
+func (r *ROOT) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) (err error) {
+	checkBatchSize(batchSize)
+	bd, err := r.bind(columns)
+	if err != nil {
+		return err
+	}
+	workers := r.workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	n := r.tree.Entries()
+	if nchunks := (n + rootChunk - 1) / rootChunk; int64(workers) > nchunks {
+		workers = int(nchunks)
+	}
+	if workers > 1 {
+		return r.readParallel(ctx, columns, batchSize, fn, workers)
 	}
 	defer func() {
 		if p := recover(); p != nil {
-			err = fmt.Errorf("events: %s: damaged file: %v", where, p)
+			err = fmt.Errorf("events: %s: damaged file: %v", r.where(), p)
 		}
 	}()
-	rd, err := rtree.NewReader(r.tree, rvars)
+	rd, err := rtree.NewReader(r.tree, bd.rvars)
 	if err != nil {
-		return fmt.Errorf("events: %s: %w", where, err)
+		return fmt.Errorf("events: %s: %w", r.where(), err)
 	}
 	defer rd.Close()
 
 	b := newBatch(len(columns), batchSize)
 	full := b.Cols
-	k := 0
-	var start int64
 	var userErr error
-	flush := func() error {
+	err = bd.scan(rd, full, func(k int) error {
+		if err := ctx.Err(); err != nil {
+			userErr = err
+			return err
+		}
 		for i := range b.Cols {
-			if dupOf[i] >= 0 {
-				copy(full[i][:k], full[dupOf[i]][:k])
-			}
 			b.Cols[i] = full[i][:k]
 		}
-		b.Start, b.Len = start, k
+		b.Len = k
 		if err := fn(b); err != nil {
 			userErr = err
 			return err
 		}
-		start += int64(k)
-		k = 0
-		return nil
-	}
-	errCtx := errors.New("cancelled")
-	err = rd.Read(func(rctx rtree.RCtx) error {
-		for _, c := range convs {
-			full[c.dst][k] = c.value()
-		}
-		k++
-		if k == batchSize {
-			if ctx.Err() != nil {
-				return errCtx
-			}
-			return flush()
-		}
+		b.Start += int64(k)
 		return nil
 	})
 	switch {
 	case userErr != nil:
 		return userErr
-	case errors.Is(err, errCtx):
-		return ctx.Err()
 	case err != nil:
-		return fmt.Errorf("events: %s: entry %d: %w", where, start+int64(k), err)
-	}
-	if err := ctx.Err(); err != nil {
-		return err
-	}
-	if k > 0 {
-		return flush()
+		return fmt.Errorf("events: %s: entry %d: %w", r.where(), b.Start, err)
 	}
 	return nil
+}
+
+// rootPart is a range of entries decoded by a worker.
+type rootPart struct {
+	lo   int64
+	m    int
+	cols [][]float64
+	err  error
+}
+
+// readParallel decodes chunks of rootChunk entries on several goroutines:
+// worker w decodes chunks w, w+workers, ..., each through its own file
+// handle, and hands them over in a channel of its own; the calling
+// goroutine takes chunk j from worker j%workers, so batches arrive in file
+// order.
+func (r *ROOT) readParallel(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error, workers int) error {
+	n := r.tree.Entries()
+	nchunks := (n + rootChunk - 1) / rootChunk
+	results := make([]chan *rootPart, workers)
+	free := make([]chan *rootPart, workers)
+	quit := make(chan struct{})
+	var wg sync.WaitGroup
+	for w := range workers {
+		results[w] = make(chan *rootPart, 1)
+		free[w] = make(chan *rootPart, 2)
+		for range 2 {
+			free[w] <- &rootPart{cols: newBatch(len(columns), int(rootChunk)).Cols}
+		}
+		wg.Add(1)
+		go func(w int) {
+			defer wg.Done()
+			r.worker(columns, w, workers, nchunks, free[w], results[w], quit)
+		}(w)
+	}
+	defer func() {
+		close(quit)
+		wg.Wait()
+	}()
+	b := &Batch{Cols: make([][]float64, len(columns))}
+	for j := range nchunks {
+		w := int(j % int64(workers))
+		var part *rootPart
+		select {
+		case part = <-results[w]:
+		case <-ctx.Done():
+			return ctx.Err()
+		}
+		if part.err != nil {
+			return part.err
+		}
+		for off := 0; off < part.m; off += batchSize {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			m := min(batchSize, part.m-off)
+			for i := range b.Cols {
+				b.Cols[i] = part.cols[i][off : off+m]
+			}
+			b.Start, b.Len = part.lo+int64(off), m
+			if err := fn(b); err != nil {
+				return err
+			}
+		}
+		free[w] <- part
+	}
+	return nil
+}
+
+// worker decodes every workers-th chunk of entries, starting at chunk w.
+func (r *ROOT) worker(columns []string, w, workers int, nchunks int64, free <-chan *rootPart, out chan<- *rootPart, quit <-chan struct{}) {
+	fail := func(err error) {
+		select {
+		case out <- &rootPart{err: err}:
+		case <-quit:
+		}
+	}
+	defer func() {
+		if p := recover(); p != nil {
+			fail(fmt.Errorf("events: %s: damaged file: %v", r.where(), p))
+		}
+	}()
+	src, err := OpenROOT(r.path, r.name)
+	if err != nil {
+		fail(err)
+		return
+	}
+	defer src.Close()
+	bd, err := src.bind(columns)
+	if err != nil {
+		fail(err)
+		return
+	}
+	n := src.tree.Entries()
+	var rd *rtree.Reader
+	defer func() {
+		if rd != nil {
+			rd.Close()
+		}
+	}()
+	for j := int64(w); j < nchunks; j += int64(workers) {
+		var part *rootPart
+		select {
+		case part = <-free:
+		case <-quit:
+			return
+		}
+		lo, hi := j*rootChunk, min((j+1)*rootChunk, n)
+		if rd == nil {
+			rd, err = rtree.NewReader(src.tree, bd.rvars, rtree.WithRange(lo, hi))
+		} else {
+			err = rd.Reset(rtree.WithRange(lo, hi))
+		}
+		if err == nil {
+			got := 0
+			err = bd.scan(rd, part.cols, func(k int) error { got += k; return nil })
+			if err == nil && int64(got) != hi-lo {
+				err = fmt.Errorf("read %d entries, want %d", got, hi-lo)
+			}
+		}
+		if err != nil {
+			err = fmt.Errorf("events: %s: entries %d to %d: %w", r.where(), lo, hi, err)
+		}
+		part.lo, part.m, part.err = lo, int(hi-lo), err
+		select {
+		case out <- part:
+		case <-quit:
+			return
+		}
+		if err != nil {
+			return
+		}
+	}
+}
+
+type f64conv struct {
+	dst []float64
+	p   *float64
+}
+
+type f32conv struct {
+	dst []float64
+	p   *float32
 }
 
 // newScalar allocates a value of the exact Go type groot expects for leaf.
