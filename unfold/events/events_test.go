@@ -254,19 +254,21 @@ func TestParquetTypes(t *testing.T) {
 		B    bool     `parquet:"b"`
 		Opt  *float64 `parquet:"opt,optional"`
 		Dict float64  `parquet:"dict,dict"`
+		DicI int32    `parquet:"dicti,dict"`
+		DicB bool     `parquet:"dictb,dict"`
 		Name string   `parquet:"name"`
 	}
 	const n = 5000
 	rows := make([]row, n)
-	want := make([][]float64, 7)
+	want := make([][]float64, 9)
 	for k := range rows {
 		v := float64(k) - 2000
 		r := row{F32: float32(v) / 8, I32: int32(-k * 1000), I64: int64(k) << 40, U32: math.MaxUint32 - uint32(k),
-			B: k%3 == 0, Dict: float64(k % 7), Name: "x"}
+			B: k%3 == 0, Dict: float64(k % 7), DicI: int32(k%5) - 2, DicB: k%4 == 1, Name: "x"}
 		o := v * 1.5
 		r.Opt = &o
 		rows[k] = r
-		for c, x := range []float64{float64(r.F32), float64(r.I32), float64(r.I64), float64(r.U32), b2f(r.B), o, r.Dict} {
+		for c, x := range []float64{float64(r.F32), float64(r.I32), float64(r.I64), float64(r.U32), b2f(r.B), o, r.Dict, float64(r.DicI), b2f(r.DicB)} {
 			want[c] = append(want[c], x)
 		}
 	}
@@ -291,7 +293,7 @@ func TestParquetTypes(t *testing.T) {
 	if src.Len() != n {
 		t.Errorf("Len = %d, want %d", src.Len(), n)
 	}
-	names := []string{"f32", "i32", "i64", "u32", "b", "opt", "dict"}
+	names := []string{"f32", "i32", "i64", "u32", "b", "opt", "dict", "dicti", "dictb"}
 	got := readAll(t, src, names, 1000)
 	for c, name := range names {
 		if i, ok := sameBits(got[c], want[c]); !ok {

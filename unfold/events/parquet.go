@@ -98,9 +98,16 @@ type pqCursor struct {
 	i64   []int64
 	bools []bool
 	vals  []parquet.Value
+
+	// Dictionary-encoded page: values dictVals[idx[pos:]].
+	dict     parquet.Dictionary
+	dictVals []float64
+	idx      []int32
+	pos      int
 }
 
 func (c *pqCursor) close() {
+	c.idx = nil
 	if c.page != nil {
 		parquet.Release(c.page)
 		c.page = nil
@@ -132,6 +139,21 @@ func (c *pqCursor) fill(dst []float64) error {
 				return fmt.Errorf("column %q has %d null values in a page; every event needs a value", c.name, pg.NumNulls())
 			}
 			c.page, c.vr = pg, pg.Values()
+			c.idx = nil
+			if d := pg.Dictionary(); d != nil {
+				c.useDictionary(d, pg)
+			}
+		}
+		if c.idx != nil {
+			n, err := c.readIndexed(dst[got:])
+			if err != nil {
+				return err
+			}
+			got += n
+			if c.pos == len(c.idx) {
+				c.vr, c.idx = nil, nil
+			}
+			continue
 		}
 		n, err := c.read(dst[got:])
 		got += n
@@ -147,6 +169,38 @@ func (c *pqCursor) fill(dst []float64) error {
 		}
 	}
 	return nil
+}
+
+// useDictionary prepares the fast path for a dictionary-encoded page: the
+// dictionary is converted to float64 once, then each value is a lookup.
+func (c *pqCursor) useDictionary(d parquet.Dictionary, pg parquet.Page) {
+	data := pg.Data()
+	idx := data.Int32()
+	if int64(len(idx)) != pg.NumValues() {
+		return // not the layout expected: leave it to the generic path
+	}
+	if d != c.dict {
+		c.dict = d
+		c.dictVals = c.dictVals[:0]
+		for i := range d.Len() {
+			c.dictVals = append(c.dictVals, valueFloat(d.Index(int32(i)), c.col))
+		}
+	}
+	c.idx, c.pos = idx, 0
+}
+
+func (c *pqCursor) readIndexed(dst []float64) (int, error) {
+	idx := c.idx[c.pos:]
+	n := min(len(dst), len(idx))
+	vals := c.dictVals
+	for i, j := range idx[:n] {
+		if uint32(j) >= uint32(len(vals)) {
+			return 0, fmt.Errorf("column %q: dictionary index %d out of range [0,%d)", c.name, j, len(vals))
+		}
+		dst[i] = vals[j]
+	}
+	c.pos += n
+	return n, nil
 }
 
 // read decodes up to len(dst) values of the current page.
