@@ -9,7 +9,8 @@
 // Every value is a float64; integer literals are floats (1/2 is 0.5).
 //
 //   - numeric literals: 20, 1.5, 2e-3, 0x10, 1_000
-//   - column names: any Go identifier among the columns given to Compile
+//   - column names: any Go identifier among the columns given to Compile;
+//     col("jet.pt") names any other column
 //   - the constant pi (a column named pi takes precedence)
 //   - arithmetic: + - * / and % (math.Mod: the result has the sign of the
 //     dividend), unary - and +, parentheses

@@ -9,6 +9,7 @@ import (
 	"go/token"
 	"math"
 	"slices"
+	"strconv"
 	"strings"
 )
 
@@ -356,7 +357,11 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 			f, _ := constant.Float64Val(constant.ToFloat(v))
 			return &term{op: opConst, val: f}, nil
 		default:
-			return nil, c.errf(x.Pos(), "%s literals are not supported; only numbers", strings.ToLower(x.Kind.String()))
+			hint := ""
+			if x.Kind == token.STRING {
+				hint = fmt.Sprintf(`; for a column whose name is not an identifier write col(%s)`, x.Value)
+			}
+			return nil, c.errf(x.Pos(), "%s literals are not supported; only numbers%s", strings.ToLower(x.Kind.String()), hint)
 		}
 	case *ast.Ident:
 		if i, ok := c.index[x.Name]; ok {
@@ -411,6 +416,9 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		if !ok {
 			return nil, c.errf(x.Fun.Pos(), "only calls of named functions are supported")
 		}
+		if id.Name == "col" {
+			return c.quotedColumn(x)
+		}
 		f, ok := funcs[id.Name]
 		if !ok {
 			return nil, c.errf(id.Pos(), "unknown function %q (known: %s)", id.Name, funcNames())
@@ -442,7 +450,7 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		}
 		return fold(&term{op: f.op, f1: f.f1, f2: f.f2, args: args}), nil
 	case *ast.SelectorExpr:
-		return nil, c.errf(x.Pos(), "selectors (a.b) are not supported; column names must be identifiers")
+		return nil, c.errf(x.Pos(), `selectors (a.b) are not supported; for a column named "a.b" write col("a.b")`)
 	case *ast.IndexExpr, *ast.IndexListExpr, *ast.SliceExpr:
 		return nil, c.errf(x.Pos(), "indexing is not supported")
 	case *ast.StarExpr:
@@ -451,6 +459,28 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		return nil, c.errf(x.Pos(), "syntax error")
 	}
 	return nil, c.errf(x.Pos(), "unsupported construct %T", x)
+}
+
+// quotedColumn compiles col("name"), the way to use a column whose name
+// is not a Go identifier.
+func (c *compiler) quotedColumn(x *ast.CallExpr) (*term, error) {
+	if len(x.Args) != 1 {
+		return nil, c.errf(x.Fun.Pos(), "col takes 1 argument (a quoted column name), got %d", len(x.Args))
+	}
+	lit, ok := x.Args[0].(*ast.BasicLit)
+	if !ok || lit.Kind != token.STRING {
+		return nil, c.errf(x.Args[0].Pos(), `col needs a quoted column name, as in col("jet.pt")`)
+	}
+	name, err := strconv.Unquote(lit.Value)
+	if err != nil {
+		return nil, c.errf(lit.Pos(), "bad quoted name %s", lit.Value)
+	}
+	i, ok := c.index[name]
+	if !ok {
+		return nil, c.errf(lit.Pos(), "unknown column %q%s", name, c.suggest(name))
+	}
+	c.used[i] = true
+	return &term{op: opCol, col: i}, nil
 }
 
 func plural(n int) string {

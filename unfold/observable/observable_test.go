@@ -8,7 +8,7 @@ import (
 	"testing"
 )
 
-var testCols = []string{"px", "py", "pz", "e", "y", "pt", "pass_reco", "w"}
+var testCols = []string{"px", "py", "pz", "e", "y", "pt", "pass_reco", "w", "jet.pt", "p T"}
 
 // ref are expressions with their reference: the same formula written in
 // plain Go with the standard library's math package.
@@ -165,6 +165,7 @@ func TestColumnsUsed(t *testing.T) {
 		{"sqrt(py*py+px*px)", []string{"px", "py"}},
 		{"pass_reco && pt > 20", []string{"pt", "pass_reco"}},
 		{"2*pi", nil},
+		{`col("jet.pt") * 2 + col("p T") + px`, []string{"px", "jet.pt", "p T"}},
 		{"w*w*w", []string{"w"}},
 	} {
 		e := MustCompile(tc.src, testCols)
@@ -294,6 +295,10 @@ func TestErrors(t *testing.T) {
 		{"px[0]", "px", "indexing is not supported"},
 		{"sqrt + 1", "sqrt", "sqrt is a function"},
 		{"math.Sqrt(px)", "math", "only calls of named functions"},
+		{`col("jet.eta")`, `"jet.eta"`, `unknown column "jet.eta"; did you mean "jet.pt"?`},
+		{"col(px)", "px", "col needs a quoted column name"},
+		{`col("a", "b")`, "col", "col takes 1 argument"},
+		{`col("a\q")`, `"a`, "bad quoted name"},
 		{"2i * px", "2i", "imag literals are not supported"},
 		{"&px", "&", "operator & is not supported"},
 		{"   ", "", "empty expression"},
