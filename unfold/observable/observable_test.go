@@ -298,7 +298,6 @@ func TestErrors(t *testing.T) {
 		{`col("jet.eta")`, `"jet.eta"`, `unknown column "jet.eta"; did you mean "jet.pt"?`},
 		{"col(px)", "px", "col needs a quoted column name"},
 		{`col("a", "b")`, "col", "col takes 1 argument"},
-		{`col("a\q")`, `"a`, "bad quoted name"},
 		{"2i * px", "2i", "imag literals are not supported"},
 		{"&px", "&", "operator & is not supported"},
 		{"   ", "", "empty expression"},
