@@ -190,22 +190,31 @@ func (it *iterator) reco() float64 {
 	}
 	nu := it.nu
 	s := it.red.run(len(nu), func(lo, hi int, acc *[4]float64) {
+		f := fold[lo:hi]
+		nn, yy := n[lo:hi:hi], y[lo:hi:hi]
+		nn, yy = nn[:len(f)], yy[:len(f)]
 		var ll float64
-		for i := lo; i < hi; i++ {
-			v := fold[i]
-			if b != nil {
-				v += b[i]
-				nu[i] = v
-			}
-			if v > 0 {
-				y[i] = n[i] / v
-				if n[i] > 0 {
-					ll += n[i]*math.Log(v) - v
+		if b != nil {
+			bb, vv := b[lo:hi], nu[lo:hi]
+			bb, vv = bb[:len(f)], vv[:len(f)]
+			for i, v := range f {
+				v += bb[i]
+				vv[i] = v
+				if x := nn[i]; v > 0 {
+					yy[i] = x / v
+					ll += x*fastLog(v) - v
 				} else {
-					ll -= v
+					yy[i] = 0
 				}
-			} else {
-				y[i] = 0
+			}
+		} else {
+			for i, v := range f {
+				if x := nn[i]; v > 0 {
+					yy[i] = x / v
+					ll += x*fastLog(v) - v
+				} else {
+					yy[i] = 0
+				}
 			}
 		}
 		acc[0] = ll
