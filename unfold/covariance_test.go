@@ -285,3 +285,36 @@ func TestBlockedCovarianceProduct(t *testing.T) {
 		}
 	}
 }
+
+// Each probe is the Jacobian-vector product J z of its own random z, also
+// with smoothing and a propagated background variance (the dense Jacobian
+// being checked against finite differences above).
+func TestProbesAreJacobianVectorProducts(t *testing.T) {
+	p := randomProblem(t, 12, 25, 60, 7, true)
+	p.BackgroundVariance = p.Background
+	s := &Settings{Iterations: 5, Smoothing: &Smoothing{Neighbours: chainScheme(t, 25), Strength: 0.7}}
+	jc, _ := jacobianOf(t, p, s)
+	rs, _ := resolve(s)
+	m := mustModel(t, p)
+	sm, err := newSmoother(s.Smoothing, m.det)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pr := newProbes(m, 0, 4, 3)
+	if _, err := newIterator(m, sm).run(context.Background(), m.n, rs, pr); err != nil {
+		t.Fatal(err)
+	}
+	nr := len(p.Data)
+	for k := 0; k < 4; k++ {
+		for j := 0; j < 25; j++ {
+			var want float64
+			for q := 0; q < nr; q++ {
+				want += jc.at(j, q) * sign(pr.signN[k], q) * math.Sqrt(p.Data[q])
+				want += jc.at(j, nr+q) * sign(pr.signB[k], q) * math.Sqrt(p.Background[q])
+			}
+			if math.Abs(pr.dmu[k][j]-want) > 1e-11*math.Max(1, math.Abs(want)) {
+				t.Errorf("probe %d bin %d: %.15g, J z = %.15g", k, j, pr.dmu[k][j], want)
+			}
+		}
+	}
+}
