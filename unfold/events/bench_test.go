@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"sync"
 	"testing"
+
+	"github.com/desmear/desmear/unfold/observable"
 )
 
 const benchRows = 4 << 20
@@ -99,3 +101,33 @@ func BenchmarkROOTRead(b *testing.B) {
 
 // BenchmarkCSVRead parses 5 columns of a CSV file written by WriteCSV.
 func BenchmarkCSVRead(b *testing.B) { benchRead(b, "bench.csv", benchRows/10) }
+
+// BenchmarkParquetObservables decodes the Parquet sample and evaluates
+// four observables per event on it, the per-event work of a response fill
+// before the bins are located: an upper bound for the fill rate.
+func BenchmarkParquetObservables(b *testing.B) {
+	dir, names := benchInputs(b)
+	src, err := Open(filepath.Join(dir, "bench.parquet"), Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer src.Close()
+	var exprs []*observable.Expr
+	for _, s := range []string{"abs(y_true)", "abs(y_reco)", "pt_reco > 0 && abs(y_reco) < 2.5", "weight * 1.5"} {
+		exprs = append(exprs, observable.MustCompile(s, names))
+	}
+	out := make([]float64, 4096)
+	b.ResetTimer()
+	for range b.N {
+		err := src.Read(context.Background(), names, 4096, func(bt *Batch) error {
+			for _, e := range exprs {
+				e.Eval(out[:bt.Len], bt.Cols)
+			}
+			return nil
+		})
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(benchRows)*float64(b.N)/b.Elapsed().Seconds()/1e6, "Mrows/s")
+}
