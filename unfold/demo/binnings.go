@@ -1,7 +1,8 @@
 package demo
 
 // The truth binning: a central region whose momentum binning differs in
-// each rapidity slice (edges by bin) and a forward region, both with
+// each rapidity slice (edges by bin) and a rectangular forward region of
+// two rapidity slices with one momentum binning, both with
 // momentum under- and overflow (the underflow holds the generated zetons
 // between ptMin and 20 GeV, which migrate into the measured range). The
 // fiducial selection |y| < 2.5 keeps every truth-level zeton inside the
@@ -20,7 +21,7 @@ regions:
           - [20, 25, 30, 40, 55, 75, 100, 140]
   - name: forward
     axes:
-      - {name: y, edges: [1.6, 2.5]}
+      - {name: y, edges: [1.6, 2.0, 2.5]}
       - {name: pt, unit: GeV, underflow: true, overflow: true, edges: [20, 25, 32, 45, 65, 100]}
 `
 
@@ -42,6 +43,6 @@ regions:
           - [20, 22.5, 25, 27.5, 30, 35, 40, 47.5, 55, 65, 75, 87.5, 100, 120, 140]
   - name: forward
     axes:
-      - {name: y, edges: [1.6, 2.5]}
+      - {name: y, edges: [1.6, 2.0, 2.5]}
       - {name: pt, unit: GeV, underflow: true, overflow: true, edges: [20, 22.5, 25, 28.5, 32, 38.5, 45, 55, 65, 82.5, 100]}
 `

@@ -29,6 +29,8 @@ const (
 	TruthFile          = "truth.csv"
 	ScenarioFile       = "scenario.json"
 	ResultFolder       = "result"
+	StressFile         = "stress-test.yaml"
+	StressResultFolder = "result-reweighted"
 	temporaryDirPrefix = ".desmear-demo-"
 )
 
@@ -225,6 +227,9 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 		return err
 	}
 	if err := os.WriteFile(in.Path(AnalysisFile), []byte(analysisYAML(in.Config)), 0o644); err != nil {
+		return err
+	}
+	if err := os.WriteFile(in.Path(StressFile), []byte(stressYAML(in.Config)), 0o644); err != nil {
 		return err
 	}
 	if err := writeScenario(in.Path(ScenarioFile), in); err != nil {

@@ -33,6 +33,7 @@ func ExampleGenerate() {
 	// scenario.json
 	// simulation.parquet
 	// simulation.root
+	// stress-test.yaml
 	// truth-binning.yaml
 	// truth.csv
 	// simulated events: 20000
@@ -46,8 +47,8 @@ func ExampleExpectedTruth() {
 	}
 	fmt.Println("truth bins:", s.Len(), "in range:", s.InRange())
 	// Output:
-	// central y[0,0.8) pt[20,25)      18392.3
-	// central y[0,0.8) pt[110,160)      259.2
-	// forward y[1.6,2.5) pt[20,25)    13293.8
-	// truth bins: 26 in range: 20
+	// central y[0,0.8) pt[20,25)      17213.4
+	// central y[0,0.8) pt[110,160)      203.5
+	// forward y[1.6,2) pt[20,25)       6767.6
+	// truth bins: 33 in range: 25
 }

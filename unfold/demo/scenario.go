@@ -32,17 +32,17 @@ const (
 	yFiducial = 2.5  // truth and reco acceptance in |y|
 
 	simSlope   = 4.0 // power-law index of the simulation's pt spectrum
-	dataSlope  = 3.7 // the pseudo-data's, harder
+	dataSlope  = 3.8 // the pseudo-data's, harder
 	genSlope   = 3.2 // the simulation is generated harder and reweighted to simSlope
 	simYWidth  = 4.5 // c of the simulation's |y| shape
-	dataYWidth = 3.4 // c of the pseudo-data's |y| shape, falling faster
+	dataYWidth = 3.8 // c of the pseudo-data's |y| shape, falling faster
 
 	effPlateau = 0.93 // efficiency at high pt and y = 0
 	effYDrop   = 0.35 // relative efficiency loss at |y| = yFiducial (quadratic in |y|)
 	effTurnOn  = 0.45 // relative efficiency loss at pt = ptMin (exponential turn-on)
 	effTurnPt  = 10.0 // GeV, turn-on length
 
-	resA    = 0.04   // constant term of σ(pt)/pt
+	resA    = 0.03   // constant term of σ(pt)/pt
 	resB    = 0.0004 // 1/GeV, term of σ(pt)/pt growing with pt
 	ptScale = 0.985  // mean reco/true momentum ratio
 	resY    = 0.03   // rapidity resolution
