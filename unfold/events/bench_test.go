@@ -23,7 +23,9 @@ var benchFiles struct {
 // benchInputs writes the benchmark sample once per process: benchRows
 // events of 5 float64 columns of random normals, as Parquet, ROOT and CSV
 // (CSV with a tenth of the rows).
-func benchInputs(b *testing.B) (dir string, names []string) {
+func benchInputs(b *testing.B) (dir string, names []string) { return benchInputsT(b) }
+
+func benchInputsT(b testing.TB) (dir string, names []string) {
 	benchFiles.once.Do(func() {
 		benchFiles.dir, benchFiles.err = osMkdirTemp()
 		if benchFiles.err != nil {
