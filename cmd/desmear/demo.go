@@ -24,7 +24,7 @@ type demoOptions struct {
 }
 
 func newDemoCommand(g *globalOptions) *cobra.Command {
-	o := demoOptions{out: "desmear-demo", events: demo.DefaultEvents, seed: demo.DefaultSeed}
+	o := demoOptions{out: "demo-out", events: demo.DefaultEvents, seed: demo.DefaultSeed}
 	cmd := &cobra.Command{
 		Use:   "demo",
 		Short: "Generate an invented double-differential measurement and unfold it end to end",
@@ -134,4 +134,5 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the full covariance of the in-range bins\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
 	}
 	fmt.Fprintf(w, "pull = (unfolded - truth) / uncertainty: data-statistical uncertainty only; neighbouring bins are correlated.\n")
+	fmt.Fprintf(w, "stress test (simulation reweighted to the true spectrum): desmear unfold %s\n", in.Path(demo.StressFile))
 }

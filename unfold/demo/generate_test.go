@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strconv"
 	"testing"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -276,5 +277,21 @@ func TestGenerateFolderRules(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(base, "cancelled")); !errors.Is(err, fs.ErrNotExist) {
 		t.Error("a cancelled Generate left its folder")
+	}
+}
+
+// BenchmarkGenerateDefault measures Generate at the default size (the
+// part of "desmear demo" before the analysis runs):
+// go test ./unfold/demo -run '^$' -bench GenerateDefault -benchtime 3x
+func BenchmarkGenerateDefault(b *testing.B) {
+	base := b.TempDir()
+	for i := 0; b.Loop(); i++ {
+		dir := filepath.Join(base, strconv.Itoa(i))
+		if _, err := Generate(context.Background(), dir, DefaultConfig(), false); err != nil {
+			b.Fatal(err)
+		}
+		b.StopTimer()
+		os.RemoveAll(dir)
+		b.StartTimer()
 	}
 }
