@@ -2,6 +2,7 @@ package fill
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 
@@ -21,6 +22,14 @@ type Simulation struct {
 	// which defines purity and stability on the truth binning even when
 	// the reco binning differs from it.
 	RecoInTruth []int
+}
+
+// entries are the migration entries of one batch on their way to the
+// accumulator.
+type entries struct {
+	seq        uint64
+	rows, cols []int32
+	w          []float64
 }
 
 // Summary counts what happened to the events of the samples.
@@ -220,9 +229,8 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 			if withDiag {
 				sc.locateDiag(bt.diag, bt.reco, dg, reco != nil)
 			}
-			// Migration entries of the batch, in event order, as batch
-			// number seq0+bt.seq of the accumulator's entry stream.
-			rows, cols, w := sc.rows[:0], sc.cols[:0], sc.w[:0]
+			// Migration entries of the batch, in event order.
+			rows, cols, w := bt.erows[:0], bt.ecols[:0], bt.ew[:0]
 			for k, t := range bt.truth {
 				if r := bt.reco[k]; t >= 0 && r >= 0 {
 					rows = append(rows, r)
@@ -230,12 +238,42 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 					w = append(w, bt.w[k])
 				}
 			}
-			sc.rows, sc.cols, sc.w = rows, cols, w
-			return b.acc.AddBatch(seq0+uint64(bt.seq), rows, cols, w)
+			bt.erows, bt.ecols, bt.ew = rows, cols, w
+			return nil
 		}
 	}
+	// The entries go to the accumulator from a goroutine of their own, in
+	// batch order (batch number seq0+bt.seq of its entry stream), so that
+	// its chunk sorting overlaps with reading and locating.
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	const queued = 64
+	epool := make(chan *entries, queued)
+	for i := 0; i < queued; i++ {
+		epool <- &entries{}
+	}
+	ech := make(chan *entries, queued)
+	accDone := make(chan error, 1)
+	go func() {
+		var err error
+		for e := range ech {
+			if err == nil {
+				if err = b.acc.AddBatch(e.seq, e.rows, e.cols, e.w); err != nil {
+					cancel()
+				}
+			}
+			epool <- e
+		}
+		accDone <- err
+	}()
 	var s Summary
 	consume := func(bt *batch) error {
+		e := <-epool
+		e.seq = seq0 + uint64(bt.seq)
+		e.rows, bt.erows = bt.erows, e.rows[:0]
+		e.cols, bt.ecols = bt.ecols, e.cols[:0]
+		e.w, bt.ew = bt.ew, e.w[:0]
+		ech <- e
 		for k := 0; k < bt.n; k++ {
 			w := bt.w[k]
 			t, r := bt.truth[k], bt.reco[k]
@@ -273,6 +311,10 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 		return nil
 	}
 	n, batches, err := stream(ctx, &sim.Sample, opt, newWork, consume)
+	close(ech)
+	if aerr := <-accDone; aerr != nil && err == nil || errors.Is(err, context.Canceled) && aerr != nil {
+		err = aerr
+	}
 	b.seq += uint64(batches)
 	s.Events = n
 	if err != nil {

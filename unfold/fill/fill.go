@@ -102,15 +102,17 @@ const (
 // batch is one unit of work: a copy of the input columns and, after
 // processing, the located bins and weights of its events.
 type batch struct {
-	seq   int64
-	start int64
-	n     int
-	cols  [][]float64
-	truth []int32 // truth bin or code
-	reco  []int32 // reco bin or code
-	diag  []int32 // reco observables located in the truth scheme, or code
-	w     []float64
-	err   error
+	erows, ecols []int32   // migration entries (Builder)
+	ew           []float64 //
+	seq          int64
+	start        int64
+	n            int
+	cols         [][]float64
+	truth        []int32 // truth bin or code
+	reco         []int32 // reco bin or code
+	diag         []int32 // reco observables located in the truth scheme, or code
+	w            []float64
+	err          error
 }
 
 func (b *batch) ensure(ncols, n int) {
@@ -134,12 +136,10 @@ func (b *batch) ensure(ncols, n int) {
 
 // scratch is a worker's evaluation space.
 type scratch struct {
-	diagPoint  []float64
-	rows, cols []int32
-	w          []float64
-	sel        []float64
-	obs        [][]float64 // per axis values
-	point      []float64
+	diagPoint []float64
+	sel       []float64
+	obs       [][]float64 // per axis values
+	point     []float64
 }
 
 func (s *scratch) ensure(naxes, n int) {
@@ -229,7 +229,7 @@ func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*s
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	nw := opt.workers()
-	inflight := 2*nw + 2
+	inflight := 4*nw + 8
 	free := make(chan *batch, inflight)
 	for i := 0; i < inflight; i++ {
 		free <- &batch{}
