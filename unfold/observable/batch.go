@@ -64,7 +64,7 @@ func (n *bnode) eval(out []float64, in [][]float64) {
 		}
 	case opNot:
 		for i := range out {
-			out[i] = b2f(a[i] == 0)
+			out[i] = b2f(!truth(a[i]))
 		}
 	case opAbs:
 		for i := range out {
@@ -192,11 +192,11 @@ func (n *bnode) eval2(out, a []float64, in [][]float64) {
 		}
 	case opAnd:
 		for i := range out {
-			out[i] = b2f(a[i] != 0 && b[i] != 0)
+			out[i] = b2f(truth(a[i]) && truth(b[i]))
 		}
 	case opOr:
 		for i := range out {
-			out[i] = b2f(a[i] != 0 || b[i] != 0)
+			out[i] = b2f(truth(a[i]) || truth(b[i]))
 		}
 	case opMin:
 		for i := range out {
@@ -215,7 +215,7 @@ func (n *bnode) eval2(out, a []float64, in [][]float64) {
 		c := n.args[2].value(in, m)
 		c = c[:len(out)]
 		for i := range out {
-			if a[i] != 0 {
+			if truth(a[i]) {
 				out[i] = b[i]
 			} else {
 				out[i] = c[i]

@@ -16,9 +16,10 @@
 //     dividend), unary - and +, parentheses
 //   - comparisons: == != < <= > >=, giving 1 or 0 (IEEE rules: any comparison
 //     with NaN is false except !=)
-//   - logic: && || !, where a value is true when it is not zero (NaN is true,
-//     as in C); the result is 1 or 0. Both operands are always evaluated
-//     (there are no side effects to skip).
+//   - logic: && || !, where a value is true when it is neither zero nor NaN
+//     (so a missing value marked NaN fails a selection); the result is 1 or
+//     0. Both operands are always evaluated (there are no side effects to
+//     skip).
 //   - functions: see [Functions].
 //
 // Operator precedence is Go's: * / % bind tighter than + -, which bind tighter

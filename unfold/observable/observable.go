@@ -298,7 +298,7 @@ var funcs = map[string]funcDef{
 	"mod":   {nargs: 2, op: opMod, f2: math.Mod, doc: "mod(x, y): remainder of x/y with the sign of x (same as x % y)"},
 	"min":   {nargs: -2, op: opMin, f2: fmin, doc: "min(x, y, ...): smallest argument (NaN if any is NaN)"},
 	"max":   {nargs: -2, op: opMax, f2: fmax, doc: "max(x, y, ...): largest argument (NaN if any is NaN)"},
-	"where": {nargs: 3, op: opWhere, doc: "where(c, a, b): a where c is true (non-zero), else b"},
+	"where": {nargs: 3, op: opWhere, doc: "where(c, a, b): a where c is true (neither 0 nor NaN), else b"},
 }
 
 func sign(x float64) float64 {
@@ -319,6 +319,9 @@ func fmin(a, b float64) float64 {
 func fmax(a, b float64) float64 {
 	return max(a, b)
 }
+
+// truth is the logical value of x: true when x is neither 0 nor NaN.
+func truth(x float64) bool { return math.Abs(x) > 0 }
 
 func b2f(b bool) float64 {
 	if b {
@@ -606,7 +609,7 @@ func (t *term) closure() func([]float64) float64 {
 	case opNeg:
 		return func(r []float64) float64 { return -a(r) }
 	case opNot:
-		return func(r []float64) float64 { return b2f(a(r) == 0) }
+		return func(r []float64) float64 { return b2f(!truth(a(r))) }
 	case opAbs:
 		return func(r []float64) float64 { return math.Abs(a(r)) }
 	case opSqrt:
@@ -641,9 +644,9 @@ func (t *term) closure() func([]float64) float64 {
 	case opGe:
 		return func(r []float64) float64 { return b2f(a(r) >= b(r)) }
 	case opAnd:
-		return func(r []float64) float64 { x, y := a(r), b(r); return b2f(x != 0 && y != 0) }
+		return func(r []float64) float64 { x, y := a(r), b(r); return b2f(truth(x) && truth(y)) }
 	case opOr:
-		return func(r []float64) float64 { x, y := a(r), b(r); return b2f(x != 0 || y != 0) }
+		return func(r []float64) float64 { x, y := a(r), b(r); return b2f(truth(x) || truth(y)) }
 	case opMin:
 		return func(r []float64) float64 { return min(a(r), b(r)) }
 	case opMax:
@@ -678,7 +681,7 @@ func (t *term) closure() func([]float64) float64 {
 	case opWhere:
 		return func(r []float64) float64 {
 			x, y, z := a(r), b(r), c(r)
-			if x != 0 {
+			if truth(x) {
 				return y
 			}
 			return z

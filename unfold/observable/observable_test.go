@@ -23,6 +23,18 @@ var ref = []struct {
 	{"3 / px", func(px, py, pz, e, y, pt, pass, w float64) float64 { return 3 / px }},
 	{"px / 3", func(px, py, pz, e, y, pt, pass, w float64) float64 { return px / 3 }},
 	{"pass_reco && pt > 20", func(px, py, pz, e, y, pt, pass, w float64) float64 { return b2f(pass != 0 && pt > 20) }},
+	{"w && px", func(px, py, pz, e, y, pt, pass, w float64) float64 {
+		return b2f(w != 0 && !math.IsNaN(w) && px != 0 && !math.IsNaN(px))
+	}},
+	{"w || !px", func(px, py, pz, e, y, pt, pass, w float64) float64 {
+		return b2f((w != 0 && !math.IsNaN(w)) || !(px != 0 && !math.IsNaN(px)))
+	}},
+	{"where(w, 1, 2)", func(px, py, pz, e, y, pt, pass, w float64) float64 {
+		if w != 0 && !math.IsNaN(w) {
+			return 1
+		}
+		return 2
+	}},
 	{"pass_reco > 0.5 && (pt >= 20 || abs(y) < 1)", func(px, py, pz, e, y, pt, pass, w float64) float64 {
 		return b2f(pass > 0.5 && (pt >= 20 || math.Abs(y) < 1))
 	}},
