@@ -32,8 +32,9 @@ type probes struct {
 	signN [][]uint64
 	signB [][]uint64
 	work  []probeWork
-	inv   []float64 // 1/ν of the current iteration (0 where ν = 0)
+	a     []float64 // σ(n)/ν of the current iteration (0 where ν = 0)
 	w     []float64 // n/ν² of the current iteration
+	c     []float64 // σ(b) n/ν² (nil when the background variance is not propagated)
 	red   reducer
 }
 
@@ -82,8 +83,11 @@ func newProbes(m *model, first, count int, seed uint64) *probes {
 		pr.dmu = append(pr.dmu, make([]float64, m.nt))
 		pr.tfold = append(pr.tfold, make([]float64, m.nr))
 	}
-	pr.inv = make([]float64, m.nr)
+	pr.a = make([]float64, m.nr)
 	pr.w = make([]float64, m.nr)
+	if pr.sdB != nil {
+		pr.c = make([]float64, m.nr)
+	}
 	workers := min(runtime.GOMAXPROCS(0), count)
 	pr.work = make([]probeWork, workers)
 	for w := range pr.work {
@@ -110,7 +114,7 @@ func sign(bits []uint64, i int) float64 {
 
 func (pr *probes) init(ctx context.Context, it *iterator) error {
 	m := pr.m
-	for s := 0; s < pr.count; s++ {
+	forEach(pr.count, runtime.GOMAXPROCS(0), func(s int) {
 		var d float64
 		for i, sd := range pr.sdN {
 			d += sign(pr.signN[s], i) * sd
@@ -125,19 +129,23 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 		for i, v := range it.rp {
 			pr.tfold[s][i] = c * v
 		}
-	}
-	return nil
+	})
+	return ctx.Err()
 }
 
 func (pr *probes) step(ctx context.Context, it *iterator) error {
-	n, nu, inv, w := it.n, it.nu, pr.inv, pr.w
+	n, nu, a, w, c := it.n, it.nu, pr.a, pr.w, pr.c
 	pr.red.run(len(nu), func(lo, hi int, _ *[4]float64) {
 		for i := lo; i < hi; i++ {
 			if v := nu[i]; v > 0 {
-				inv[i] = 1 / v
-				w[i] = n[i] * inv[i] * inv[i]
+				inv := 1 / v
+				a[i] = pr.sdN[i] * inv
+				w[i] = n[i] * inv * inv
 			} else {
-				inv[i], w[i] = 0, 0
+				a[i], w[i] = 0, 0
+			}
+			if c != nil {
+				c[i] = w[i] * pr.sdB[i]
 			}
 		}
 	})
@@ -170,16 +178,33 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 // one advances probe s by one iteration.
 func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 	m := pr.m
-	inv, w, tf, y, sdN := pr.inv, pr.w, pr.tfold[s], pw.y, pr.sdN
+	// y = dn/ν − n (R dμ + db)/ν² with dn = ±σ(n), db = ±σ(b): the sign
+	// of a_i (and c_i) is flipped through its sign bit where the probe's
+	// bit is 0.
+	a, w, c, tf, y := pr.a, pr.w, pr.c, pr.tfold[s], pw.y
 	sn := pr.signN[s]
-	if pr.sdB == nil {
-		for i := range y {
-			y[i] = sign(sn, i)*sdN[i]*inv[i] - w[i]*tf[i]
+	var sb []uint64
+	if c != nil {
+		sb = pr.signB[s]
+	}
+	for wi, word := range sn {
+		lo := wi * 64
+		hi := min(lo+64, len(y))
+		aa, ww, tt, yy := a[lo:hi], w[lo:hi], tf[lo:hi], y[lo:hi]
+		aa, ww, tt = aa[:len(yy)], ww[:len(yy)], tt[:len(yy)]
+		nw := ^word
+		for k := range yy {
+			flip := (nw >> uint(k) & 1) << 63
+			yy[k] = math.Float64frombits(math.Float64bits(aa[k])^flip) - ww[k]*tt[k]
 		}
-	} else {
-		sb, sdB := pr.signB[s], pr.sdB
-		for i := range y {
-			y[i] = sign(sn, i)*sdN[i]*inv[i] - w[i]*(tf[i]+sign(sb, i)*sdB[i])
+		if sb != nil {
+			cc := c[lo:hi]
+			cc = cc[:len(yy)]
+			nb := ^sb[wi]
+			for k := range yy {
+				flip := (nb >> uint(k) & 1) << 63
+				yy[k] -= math.Float64frombits(math.Float64bits(cc[k]) ^ flip)
+			}
 		}
 	}
 	pw.dmu = pr.dmu[s]
