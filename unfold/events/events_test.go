@@ -639,3 +639,21 @@ func TestROOTParallel(t *testing.T) {
 		t.Errorf("truncated file, parallel read: %v", err)
 	}
 }
+
+// TestROOTNtuple reads groot/testdata/tntuple.root, written by ROOT from
+// go-hep's gen-tntuple.go macro: TNtuple("ntup", ..., "x:y") filled with
+// (i, i+0.5) for i = 0..9, float branches.
+func TestROOTNtuple(t *testing.T) {
+	path := filepath.Join(hepDir(t), "groot", "testdata", "tntuple.root")
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	got := readAll(t, src, []string{"y", "x"}, 3)
+	for i := range 10 {
+		if got[0][i] != float64(i)+0.5 || got[1][i] != float64(i) {
+			t.Fatalf("entry %d: x %v y %v", i, got[1][i], got[0][i])
+		}
+	}
+}

@@ -46,7 +46,7 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 	if treePath == "" {
 		var trees []string
 		for _, k := range f.Keys() {
-			if k.ClassName() == "TTree" && !contains(trees, k.Name()) {
+			if isTreeClass(k.ClassName()) && !contains(trees, k.Name()) {
 				trees = append(trees, k.Name())
 			}
 		}
@@ -84,6 +84,8 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 	}
 	return r, nil
 }
+
+func isTreeClass(c string) bool { return c == "TTree" || c == "TNtuple" || c == "TNtupleD" }
 
 func contains(s []string, x string) bool {
 	for _, v := range s {
