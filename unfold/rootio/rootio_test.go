@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
 
 	"go-hep.org/x/hep/groot"
@@ -20,16 +21,25 @@ import (
 // itself; the test is skipped when the module is not in the module cache.
 func hepDir(t *testing.T) string {
 	t.Helper()
-	out, err := exec.Command("go", "list", "-m", "-f", "{{.Dir}}", "go-hep.org/x/hep").Output()
-	dir := strings.TrimSpace(string(out))
-	if err != nil || dir == "" {
-		t.Skipf("go-hep module not found in the module cache (run go mod download): %v", err)
+	hepOnce.Do(func() {
+		out, err := exec.Command("go", "list", "-m", "-f", "{{.Dir}}", "go-hep.org/x/hep").Output()
+		hepPath, hepErr = strings.TrimSpace(string(out)), err
+		if err == nil && hepPath != "" {
+			_, hepErr = os.Stat(hepPath)
+		}
+	})
+	if hepErr != nil || hepPath == "" {
+		t.Skipf("go-hep module not found in the module cache (run go mod download): %v", hepErr)
 	}
-	if _, err := os.Stat(dir); err != nil {
-		t.Skipf("go-hep module directory %s missing (run go mod download)", dir)
-	}
+	dir := hepPath
 	return filepath.Join(dir, "hbook", "rootcnv", "testdata")
 }
+
+var (
+	hepOnce sync.Once
+	hepPath string
+	hepErr  error
+)
 
 // readData reads the whitespace-separated numbers of a go-hep data file,
 // one event per line.
