@@ -440,3 +440,33 @@ func TestReadErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestReadProfileRefused checks that a TProfile (groot/testdata/
+// tprofile.root), whose cells hold sums of w*y rather than counts, is not
+// read as a histogram.
+func TestReadProfileRefused(t *testing.T) {
+	path := filepath.Join(hepDir(t), "..", "..", "..", "groot", "testdata", "tprofile.root")
+	keys, err := Keys(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, k := range keys {
+		var err error
+		switch k.Class {
+		case "TProfile":
+			_, err = ReadHist1D(path, k.Path)
+		case "TProfile2D":
+			_, err = ReadHist2D(path, k.Path)
+		default:
+			continue
+		}
+		n++
+		if err == nil || !strings.Contains(err.Error(), "is a "+k.Class+", not a") {
+			t.Errorf("%s %s: error %v", k.Class, k.Path, err)
+		}
+	}
+	if n == 0 {
+		t.Errorf("no profiles found in %s: %v", path, keys)
+	}
+}
