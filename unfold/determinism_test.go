@@ -12,7 +12,7 @@ import (
 func TestDeterministicAcrossCores(t *testing.T) {
 	big := randomProblem(t, 3, 30000, 70000, 8, true)
 	big.BackgroundVariance = big.Background
-	mid := randomProblem(t, 5, 300, 1300, 9, true)
+	mid := randomProblem(t, 5, 600, 1300, 9, true)
 	runs := []struct {
 		p *Problem
 		s Settings
