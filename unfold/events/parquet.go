@@ -104,10 +104,19 @@ type pqCursor struct {
 	dictVals []float64
 	idx      []int32
 	pos      int
+
+	// Page decoded in place (no nulls): one of these holds its values,
+	// read from position pos on.
+	arrN int
+	a64  []float64
+	a32  []float32
+	ai32 []int32
+	ai64 []int64
 }
 
 func (c *pqCursor) close() {
-	c.idx = nil
+	c.idx, c.arrN = nil, 0
+	c.a64, c.a32, c.ai32, c.ai64 = nil, nil, nil, nil
 	if c.page != nil {
 		parquet.Release(c.page)
 		c.page = nil
@@ -139,10 +148,19 @@ func (c *pqCursor) fill(dst []float64) error {
 				return fmt.Errorf("column %q has %d null values in a page; every event needs a value", c.name, pg.NumNulls())
 			}
 			c.page, c.vr = pg, pg.Values()
-			c.idx = nil
+			c.idx, c.arrN = nil, 0
 			if d := pg.Dictionary(); d != nil {
 				c.useDictionary(d, pg)
+			} else {
+				c.useArray(pg)
 			}
+		}
+		if c.arrN > 0 {
+			got += c.readArray(dst[got:])
+			if c.pos == c.arrN {
+				c.vr, c.arrN = nil, 0
+			}
+			continue
 		}
 		if c.idx != nil {
 			n, err := c.readIndexed(dst[got:])
@@ -169,6 +187,70 @@ func (c *pqCursor) fill(dst []float64) error {
 		}
 	}
 	return nil
+}
+
+// useArray prepares the fast path for a page without nulls whose values
+// are held decoded in an array: they are converted straight from it.
+func (c *pqCursor) useArray(pg parquet.Page) {
+	if pg.Type().Kind() != c.col.kind {
+		return
+	}
+	data := pg.Data()
+	n := int(pg.NumValues())
+	ok := false
+	switch c.col.kind {
+	case parquet.Double:
+		c.a64 = data.Double()
+		ok = len(c.a64) == n
+	case parquet.Float:
+		c.a32 = data.Float()
+		ok = len(c.a32) == n
+	case parquet.Int32:
+		c.ai32 = data.Int32()
+		ok = len(c.ai32) == n
+	case parquet.Int64:
+		c.ai64 = data.Int64()
+		ok = len(c.ai64) == n
+	}
+	if ok && n > 0 {
+		c.arrN, c.pos = n, 0
+	}
+}
+
+func (c *pqCursor) readArray(dst []float64) int {
+	n := min(len(dst), c.arrN-c.pos)
+	lo, hi := c.pos, c.pos+n
+	dst = dst[:n]
+	switch c.col.kind {
+	case parquet.Double:
+		copy(dst, c.a64[lo:hi])
+	case parquet.Float:
+		for i, v := range c.a32[lo:hi] {
+			dst[i] = float64(v)
+		}
+	case parquet.Int32:
+		if c.col.unsigned {
+			for i, v := range c.ai32[lo:hi] {
+				dst[i] = float64(uint32(v))
+			}
+		} else {
+			for i, v := range c.ai32[lo:hi] {
+				dst[i] = float64(v)
+			}
+		}
+	case parquet.Int64:
+		if c.col.unsigned {
+			for i, v := range c.ai64[lo:hi] {
+				dst[i] = float64(uint64(v))
+			}
+		} else {
+			for i, v := range c.ai64[lo:hi] {
+				dst[i] = float64(v)
+			}
+		}
+	}
+	c.pos = hi
+	return n
 }
 
 // useDictionary prepares the fast path for a dictionary-encoded page: the
