@@ -20,10 +20,13 @@ const (
 // partition is a fixed split of the columns into contiguous blocks,
 // decided from the matrix structure alone (never from the number of
 // cores), so that every kernel sums in the same order whatever the
-// scheduling. A scattering kernel accumulates block b into its own buffer
-// covering the rows lo[b]..hi[b]-1 that the block touches; the buffers
-// are then reduced into the destination row by row in block order. With
-// a single block the destination itself is the buffer.
+// scheduling. Gathering kernels handle each column on its own. A
+// scattering kernel either (banded matrices, see colored) scatters the
+// even blocks and then the odd blocks straight into the destination, or
+// accumulates block b into its own buffer covering the rows
+// lo[b]..hi[b]-1 that the block touches and then reduces the buffers into
+// the destination row by row in block order. With a single block the
+// destination itself is the buffer.
 type partition struct {
 	rows, cols int
 	nnz        int
@@ -33,6 +36,13 @@ type partition struct {
 	tasks      []reduceTask
 	covers     []int32 // the blocks of each reduction task, in block order
 	parallel   bool    // large enough for several goroutines
+	// colored is set when no block's rows meet those of the block two
+	// further on (hi[b] <= lo[b+2], as in banded matrices). The blocks
+	// then scatter straight into the destination without buffers: first
+	// the even blocks, which touch disjoint rows, each clearing the rows
+	// clr[b]..clr[b+1]-1 first; then the odd blocks, adding on top.
+	colored bool
+	clr     []int
 
 	mu   sync.Mutex
 	free []*workspace
@@ -56,15 +66,39 @@ func newPartitionMin(rows int, colPtr, rowIdx []int, minBlock int) *partition {
 	nnz := colPtr[cols]
 	p := &partition{rows: rows, cols: cols, nnz: nnz, parallel: nnz >= parallelNNZ}
 	target := min(max(nnz/targetBlocks, minBlock), maxBlockNNZ)
-	for {
-		p.split(target, colPtr, rowIdx)
-		if len(p.lo) <= 1 || p.off[len(p.lo)] <= bufferPerRows*rows+minBlock {
-			break
-		}
+	p.split(target, colPtr, rowIdx)
+	if p.color() {
+		return p
+	}
+	for len(p.lo) > 1 && p.off[len(p.lo)] > bufferPerRows*rows+minBlock {
 		target *= 2 // spread-out columns: fewer, larger blocks
+		p.split(target, colPtr, rowIdx)
 	}
 	p.plan()
 	return p
+}
+
+// color reports whether the blocks can scatter in two phases without
+// buffers, and prepares the clearing ranges of the even blocks.
+func (p *partition) color() bool {
+	nb := len(p.lo)
+	if nb < 3 {
+		return false
+	}
+	for b := 0; b+2 < nb; b++ {
+		if p.lo[b] >= p.hi[b] || p.hi[b] > p.lo[b+2] {
+			return false
+		}
+	}
+	// Even block b clears [clr[b], clr[b+2]), covering all rows.
+	p.clr = make([]int, nb+2)
+	for b := 2; b < nb; b += 2 {
+		p.clr[b] = p.lo[b]
+	}
+	last := (nb - 1) &^ 1
+	p.clr[last+2] = p.rows
+	p.colored = true
+	return true
 }
 
 // split cuts the columns into blocks of about target non-zeros.
@@ -137,6 +171,14 @@ func sortInts(a []int) {
 }
 
 func (p *partition) blocks() int { return len(p.lo) }
+
+// phases of a kernel call
+const (
+	phaseBlocks = iota // every block, scattering into its buffer
+	phaseReduce        // buffers into the destination
+	phaseEven          // colored: even blocks into the destination
+	phaseOdd           // colored: odd blocks into the destination
+)
 
 // kernel kinds
 const (
@@ -235,16 +277,22 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 	}
 	ws := p.get(m)
 	ws.kind, ws.dst, ws.x, ws.update = kind, dst, x, update
-	if scatter && len(ws.buf) < p.off[nb] {
-		ws.buf = make([]float64, p.off[nb])
-	}
 	workers := 1
 	if p.parallel {
 		workers = min(runtime.GOMAXPROCS(0), nb)
 	}
-	ws.phase(1, int64(nb), workers)
-	if scatter {
-		ws.phase(2, int64(len(p.tasks)), workers)
+	switch {
+	case scatter && p.colored:
+		ws.phase(phaseEven, int64((nb+1)/2), workers)
+		ws.phase(phaseOdd, int64(nb/2), workers)
+	case scatter:
+		if len(ws.buf) < p.off[nb] {
+			ws.buf = make([]float64, p.off[nb])
+		}
+		ws.phase(phaseBlocks, int64(nb), workers)
+		ws.phase(phaseReduce, int64(len(p.tasks)), workers)
+	default:
+		ws.phase(phaseBlocks, int64(nb), workers)
 	}
 	p.put(ws)
 }
@@ -270,10 +318,15 @@ func (ws *workspace) run(ph int) {
 		if t >= ws.ntask {
 			return
 		}
-		if ph == 1 {
+		switch ph {
+		case phaseBlocks:
 			ws.block(int(t))
-		} else {
+		case phaseReduce:
 			ws.reduce(int(t))
+		case phaseEven:
+			ws.block(2 * int(t))
+		case phaseOdd:
+			ws.block(2*int(t) + 1)
 		}
 	}
 }
@@ -286,13 +339,20 @@ func (ws *workspace) block(b int) {
 	lo := 0
 	switch ws.kind {
 	case kFold, kSweep, kRowSums:
-		if p.blocks() == 1 {
+		switch {
+		case p.blocks() == 1:
 			buf = ws.dst
-		} else {
+			clear(buf)
+		case p.colored:
+			buf = ws.dst
+			if b%2 == 0 {
+				clear(buf[p.clr[b]:p.clr[b+2]])
+			}
+		default:
 			lo = p.lo[b]
 			buf = ws.buf[p.off[b]:p.off[b+1]]
+			clear(buf)
 		}
-		clear(buf)
 	}
 	colPtr := m.colPtr[c0 : c1+1]
 	rowIdx, val := m.rowIdx, m.val
@@ -313,11 +373,7 @@ func (ws *workspace) block(b int) {
 			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
 			v := val[colPtr[jj]:colPtr[jj+1]]
 			v = v[:len(ri)]
-			var g float64
-			for k, i := range ri {
-				g += v[k] * y[i]
-			}
-			xj := update(c0+jj, g)
+			xj := update(c0+jj, gather(ri, v, y))
 			for k, i := range ri {
 				buf[i-lo] += v[k] * xj
 			}
@@ -335,11 +391,7 @@ func (ws *workspace) block(b int) {
 			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
 			v := val[colPtr[jj]:colPtr[jj+1]]
 			v = v[:len(ri)]
-			var g float64
-			for k, i := range ri {
-				g += v[k] * y[i]
-			}
-			dst[jj] = g
+			dst[jj] = gather(ri, v, y)
 		}
 	case kColSums:
 		dst := ws.dst[c0:c1]
@@ -366,6 +418,26 @@ func (ws *workspace) block(b int) {
 			}
 		}
 	}
+}
+
+// gather returns Σ_k v[k] y[ri[k]], summed in four interleaved partial
+// sums (k mod 4) that are then added as (s0+s1)+(s2+s3): the four
+// independent chains hide the latency of the additions. The order is
+// fixed, so the bits depend only on the column.
+func gather(ri []int, v, y []float64) float64 {
+	v = v[:len(ri)]
+	var s0, s1, s2, s3 float64
+	k := 0
+	for ; k+4 <= len(ri); k += 4 {
+		s0 += v[k] * y[ri[k]]
+		s1 += v[k+1] * y[ri[k+1]]
+		s2 += v[k+2] * y[ri[k+2]]
+		s3 += v[k+3] * y[ri[k+3]]
+	}
+	for ; k < len(ri); k++ {
+		s0 += v[k] * y[ri[k]]
+	}
+	return (s0 + s1) + (s2 + s3)
 }
 
 // reduce runs phase 2 task t: the destination rows are the sums of the

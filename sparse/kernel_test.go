@@ -123,33 +123,49 @@ func kernelMatrices(t *testing.T) []*Matrix {
 	}
 	ms = append(ms, b)
 	// The last two are cut into many small blocks and run on the
-	// parallel path, as large matrices are.
+	// parallel path, as large matrices are; their blocks' rows overlap
+	// several others, so they scatter into buffers.
 	for _, m := range ms[len(ms)-2:] {
-		smallBlocks(m)
+		smallBlocks(m, 1000)
 	}
-	return ms
+	// A banded matrix whose blocks only meet their neighbours: it
+	// scatters in two phases straight into the destination.
+	c, err := Banded3D([3]int{8, 8, 24}, [3]int{8, 8, 48}, [3]int{3, 3, 4}, 20, 5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	smallBlocks(c, 4000)
+	if !c.part.colored || c.part.blocks() < 5 || ms[len(ms)-1].part.colored {
+		t.Fatalf("test partitions: colored %v with %d blocks, banded colored %v", c.part.colored, c.part.blocks(), ms[len(ms)-1].part.colored)
+	}
+	return append(ms, c)
 }
 
-// smallBlocks repartitions m into blocks of about 1000 non-zeros and
+// smallBlocks repartitions m into blocks of about minBlock non-zeros and
 // lets it use several goroutines.
-func smallBlocks(m *Matrix) {
-	m.part = newPartitionMin(m.rows, m.colPtr, m.rowIdx, 1000)
+func smallBlocks(m *Matrix, minBlock int) {
+	m.part = newPartitionMin(m.rows, m.colPtr, m.rowIdx, minBlock)
 	m.part.parallel = true
 }
 
 func TestKernelsMatchDense(t *testing.T) {
 	rng := rand.New(rand.NewPCG(13, 14))
 	ms := kernelMatrices(t)
-	if nb := ms[len(ms)-2].part.blocks(); nb < 4 {
+	if nb := ms[len(ms)-3].part.blocks(); nb < 4 {
 		t.Fatalf("multi-block test matrix has %d block", nb)
 	}
-	if nb := ms[len(ms)-1].part.blocks(); nb < 16 {
+	if nb := ms[len(ms)-2].part.blocks(); nb < 16 {
 		t.Fatalf("banded test matrix has %d block", nb)
 	}
 	for k, m := range ms {
-		name := "banded"
-		if k < len(kernelShapes) {
+		var name string
+		switch {
+		case k < len(kernelShapes):
 			name = kernelShapes[k].name
+		case k == len(kernelShapes):
+			name = "banded, buffers"
+		default:
+			name = "banded, two phases"
 		}
 		t.Run(name, func(t *testing.T) {
 			rows, cols := m.Dims()
@@ -257,14 +273,17 @@ func TestKernelsBitIdentical(t *testing.T) {
 	rng := rand.New(rand.NewPCG(15, 16))
 	ms := kernelMatrices(t)
 	// A larger matrix with the default partition.
-	big, err := Banded3D([3]int{40, 40, 20}, [3]int{40, 40, 40}, [3]int{3, 3, 4}, 20, 4)
+	big, err := Banded3D([3]int{40, 40, 40}, [3]int{40, 40, 80}, [3]int{3, 3, 4}, 20, 4)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if !big.part.parallel || big.part.blocks() < 8 {
 		t.Fatalf("%d non-zeros gave %d blocks, parallel %v", big.NNZ(), big.part.blocks(), big.part.parallel)
 	}
-	for _, m := range append(ms[len(ms)-2:], big) {
+	if !big.part.colored {
+		t.Fatal("the default partition of a banded matrix is not two-phase")
+	}
+	for _, m := range append(ms[len(ms)-3:], big) {
 		rows, cols := m.Dims()
 		x, y := randomVec(rng, cols), randomVec(rng, rows)
 		run := func() [][]float64 {
