@@ -142,13 +142,21 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 				prev = o[len(o)-1]
 			}
 			edges := last.EdgesIn(prev)
-			name := reg.Name()
-			for _, i := range o {
-				name += fmt.Sprintf("_%d", i)
+			// Names: REGION/counts for a 1-D region, REGION/counts_y0 for
+			// outer bin 0 of axis y, REGION/counts_y0_x2 in 3-D.
+			suffix := ""
+			for k, i := range o {
+				if k > 0 {
+					suffix += "_"
+				}
+				suffix += fmt.Sprintf("%s%d", axes[k].Name(), i)
+			}
+			if suffix != "" {
+				suffix = "_" + suffix
 			}
 			n := len(edges) - 1
-			hc := rootio.NewHist1D(reg.Name()+"/counts_"+name, edges)
-			hd := rootio.NewHist1D(reg.Name()+"/density_"+name, edges)
+			hc := rootio.NewHist1D(reg.Name()+"/counts"+suffix, edges)
+			hd := rootio.NewHist1D(reg.Name()+"/density"+suffix, edges)
 			hc.Title, hd.Title = title(s, r, o, "counts"), title(s, r, o, "density")
 			for c := 0; c < n+2; c++ {
 				g := s.Global(r, append(append([]int(nil), o...), rootCell(c, n))...)
@@ -161,8 +169,8 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 		}
 		if len(axes) == 2 && reg.Rectangular() {
 			xe, ye := axes[0].Edges(), axes[1].Edges()
-			hc := rootio.NewHist2D(reg.Name()+"/counts", xe, ye)
-			hd := rootio.NewHist2D(reg.Name()+"/density", xe, ye)
+			hc := rootio.NewHist2D(reg.Name()+"/counts2d", xe, ye)
+			hd := rootio.NewHist2D(reg.Name()+"/density2d", xe, ye)
 			hc.Title, hd.Title = reg.Name()+" counts", reg.Name()+" density"
 			nx, ny := len(xe)-1, len(ye)-1
 			for iy := 0; iy < ny+2; iy++ {

@@ -259,7 +259,7 @@ func TestRunAndTables(t *testing.T) {
 	}
 
 	// The ROOT file holds the counts slice with its overflow cell.
-	h, err := rootio.ReadHist1D(filepath.Join(out.Folder, "result.root"), "all/counts_all")
+	h, err := rootio.ReadHist1D(filepath.Join(out.Folder, "result.root"), "all/counts")
 	if err != nil {
 		t.Fatal(err)
 	}
