@@ -7,8 +7,6 @@ import (
 	"slices"
 	"sync"
 	"sync/atomic"
-	"syscall"
-	"unsafe"
 	"testing"
 	"time"
 )
@@ -47,13 +45,11 @@ func newTriad(n int) *triad {
 	return t
 }
 
-func (t *triad) bandwidth(reps int) (wall, cpu float64) {
+func (t *triad) bandwidth(reps int) float64 {
 	g := runtime.GOMAXPROCS(0)
 	n := len(t.a)
 	times := make([]float64, reps)
-	cpus := make([]float64, reps)
 	for r := range times {
-		c0 := cpuSeconds()
 		start := time.Now()
 		var wg sync.WaitGroup
 		for k := 0; k < g; k++ {
@@ -70,11 +66,9 @@ func (t *triad) bandwidth(reps int) (wall, cpu float64) {
 		}
 		wg.Wait()
 		times[r] = time.Since(start).Seconds()
-		cpus[r] = (cpuSeconds() - c0) / float64(g)
 	}
 	slices.Sort(times)
-	slices.Sort(cpus)
-	return 24 * float64(n) / times[reps/2], 24 * float64(n) / cpus[reps/2]
+	return 24 * float64(n) / times[reps/2]
 }
 
 var (
@@ -83,46 +77,33 @@ var (
 )
 
 // sameRunTriad measures the triad bandwidth over arrays as large as the
-// matrix (each of nnz float64, 3×8 bytes per non-zero in all), by wall
-// time and by CPU time per goroutine.
-func sameRunTriad(b *testing.B, m *Matrix) (wall, cpu float64) {
+// matrix (each of nnz float64, 3×8 bytes per non-zero in all).
+func sameRunTriad(b *testing.B, m *Matrix) float64 {
 	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
 	return triadBuf.bandwidth(5)
 }
 
 // kernelBench runs one kernel per benchmark iteration and reports its
-// time per non-zero, the bytes it must move (model), and the ratio of its
-// time to the bandwidth floor: model bytes / same-run triad bandwidth.
-//
-// On a shared host other processes take CPU time from the benchmark; the
-// cpu- metrics divide the process's CPU time by GOMAXPROCS instead of
-// using the wall time, for the kernel and for the triad alike, which
-// estimates what the figures would be with the cores to ourselves (it
-// counts the scheduler's brief spinning as work, so it errs on the slow
-// side).
+// time per non-zero, the bytes it must move (model), the same-run triad
+// bandwidth (measured before and after the timed loop) and the ratio of
+// the kernel's time to the bandwidth floor, model bytes / triad
+// bandwidth.
 func kernelBench(b *testing.B, modelBytes func(m *Matrix) float64, call func(m *Matrix)) {
 	m := fineMatrix(b)
 	call(m) // warm-up: workspaces and helper goroutines
-	bw1, cbw1 := sameRunTriad(b, m)
+	bw1 := sameRunTriad(b, m)
 	b.ResetTimer()
-	c0 := cpuSeconds()
 	for b.Loop() {
 		call(m)
 	}
-	cpu := cpuSeconds() - c0
 	b.StopTimer()
-	bw2, cbw2 := sameRunTriad(b, m)
-	bw, cbw := (bw1+bw2)/2, (cbw1+cbw2)/2
+	bw := (bw1 + sameRunTriad(b, m)) / 2
 	sec := b.Elapsed().Seconds() / float64(b.N)
-	csec := cpu / float64(b.N) / float64(runtime.GOMAXPROCS(0))
 	bytes := modelBytes(m)
 	b.ReportMetric(sec*1e9/float64(m.NNZ()), "ns/nnz")
 	b.ReportMetric(bytes/1e6, "MB-model/op")
 	b.ReportMetric(bw/1e9, "triad-GB/s")
 	b.ReportMetric(sec/(bytes/bw), "x-floor")
-	b.ReportMetric(csec*1e3, "cpu-ms/op")
-	b.ReportMetric(cbw/1e9, "cpu-triad-GB/s")
-	b.ReportMetric(csec/(bytes/cbw), "cpu-x-floor")
 	b.ReportMetric(float64(16*m.NNZ()+8*(m.cols+1))/float64(m.NNZ()), "matrix-B/nnz")
 }
 
@@ -185,12 +166,11 @@ func BenchmarkBackProject(b *testing.B) {
 func BenchmarkTriad(b *testing.B) {
 	m := fineMatrix(b)
 	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
-	var bw, cbw float64
+	var bw float64
 	for b.Loop() {
-		bw, cbw = triadBuf.bandwidth(1)
+		bw = triadBuf.bandwidth(1)
 	}
 	b.ReportMetric(bw/1e9, "GB/s")
-	b.ReportMetric(cbw/1e9, "cpu-GB/s")
 }
 
 // eventBatch generates batch s of a fictional detector simulation on the
@@ -248,7 +228,7 @@ func BenchmarkAccumulate(b *testing.B) {
 			nb := uint64((events + batchEvents - 1) / batchEvents)
 			var entries int64
 			var cells int
-			var peakPerCell, cpu float64
+			var peakPerCell float64
 			samples := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}, {Name: "/memory/classes/heap/unused:bytes"}}
 			for b.Loop() {
 				b.StopTimer()
@@ -274,7 +254,6 @@ func BenchmarkAccumulate(b *testing.B) {
 					}
 				}()
 				b.StartTimer()
-				cpu0 := cpuSeconds()
 
 				acc, err := NewAccumulator(1000000, 500000, nil)
 				if err != nil {
@@ -311,7 +290,6 @@ func BenchmarkAccumulate(b *testing.B) {
 					b.Fatal(err)
 				}
 				b.StopTimer()
-				cpu += cpuSeconds() - cpu0
 				if h := heapInUse(samples); h > peak.Load() {
 					peak.Store(h)
 				}
@@ -324,23 +302,9 @@ func BenchmarkAccumulate(b *testing.B) {
 			}
 			sec := b.Elapsed().Seconds() / float64(b.N)
 			b.ReportMetric(float64(entries)/sec/1e6, "Mentries/s")
-			b.ReportMetric(float64(entries)*float64(b.N)/cpu/1e6, "Mentries/cpu-s")
 			b.ReportMetric(float64(cells), "cells")
 			b.ReportMetric(float64(entries), "entries")
 			b.ReportMetric(peakPerCell, "peak-B/cell")
 		})
 	}
-}
-
-// cpuSeconds is the CPU time of the process so far (all threads), read
-// from CLOCK_PROCESS_CPUTIME_ID, which the kernel keeps to the
-// nanosecond. On a shared host, rates per CPU second show the cost of the
-// code apart from time spent waiting for a core.
-func cpuSeconds() float64 {
-	var ts syscall.Timespec
-	const clockProcessCPUTimeID = 2
-	if _, _, e := syscall.Syscall(syscall.SYS_CLOCK_GETTIME, clockProcessCPUTimeID, uintptr(unsafe.Pointer(&ts)), 0); e != 0 {
-		return 0
-	}
-	return float64(ts.Sec) + 1e-9*float64(ts.Nsec)
 }
