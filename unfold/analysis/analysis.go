@@ -198,6 +198,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		f := fmt.Sprintf("simulation[%d]", i)
 		sm := Sample{Field: f, Line: c.line("simulation", i), Tree: s.Tree, Scale: s.Scale}
 		sm.File = c.path(f+".file", s.File, c.line("simulation", i, "file"), sm.Line)
+		if sm.File != "" && events.FormatOf(sm.File) == events.FormatUnknown {
+			c.errf(c.line("simulation", i, "file"), f+".file", "unknown events format of %q (use .root, .parquet or .csv)", s.File)
+		}
 		sm.Weight = c.expr(s.Weight, "simulation", i, "weight")
 		sm.TruthSelection = c.expr(s.TruthSelection, "simulation", i, "truth_selection")
 		sm.RecoSelection = c.expr(s.RecoSelection, "simulation", i, "reco_selection")
@@ -223,6 +226,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		case b.Events != "":
 			bg.Kind = DataEvents
 			bg.File = c.path(f+".events", b.Events, c.line("backgrounds", i, "events"), bg.Line)
+			if events.FormatOf(bg.File) == events.FormatUnknown {
+				c.errf(c.line("backgrounds", i, "events"), f+".events", "unknown events format of %q (use .root, .parquet or .csv)", b.Events)
+			}
 			bg.Weight = c.expr(b.Weight, "backgrounds", i, "weight")
 			bg.Selection = c.expr(b.Selection, "backgrounds", i, "selection")
 			bg.Observables = c.levelExprs(f+".observables", b.Observables.node, a.Reco, a.RecoObservables, false)

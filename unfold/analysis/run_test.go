@@ -368,3 +368,86 @@ func TestSavedResponse(t *testing.T) {
 		t.Errorf("a bundle of other schemes: got %v", err)
 	}
 }
+
+// Backgrounds from events (scaled, with a scale uncertainty), data from
+// a TH1D, and the prior and smoothing settings reach the kernel.
+func TestBackgroundPriorAndTH1D(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.parquet"), simColumns, simEvents(8000, 12))
+	// Background events: x uniform in [0, 3), weight 2.
+	rng := rand.New(rand.NewPCG(1, 1))
+	bx, bw := make([]float64, 500), make([]float64, 500)
+	for k := range bx {
+		bx[k], bw[k] = 3*rng.Float64(), 2
+	}
+	writeSample(t, filepath.Join(dir, "bkg.csv"), []string{"xb", "wb"}, [][]float64{bx, bw})
+	os.WriteFile(filepath.Join(dir, "prior.csv"), []byte("truth,value\n0,5\n1,4\n2,3\n3,2\n4,1\n5,1\n"), 0o644)
+
+	// The data: a TH1D with the reco edges (flows included).
+	edges := []float64{0, 0.25, 0.5, 0.75, 1, 1.25, 1.5, 2, 2.5, 3}
+	h := rootio.NewHist1D("hx", edges)
+	for c := range h.SumW {
+		h.SumW[c] = float64(200 - 10*c)
+		h.SumW2[c] = h.SumW[c]
+	}
+	if err := rootio.WriteFile(filepath.Join(dir, "data.root"), []*rootio.Hist1D{h}, nil); err != nil {
+		t.Fatal(err)
+	}
+	src := strings.NewReplacer("SIM", "sim.parquet",
+		"data:\n  events: DATA\n  tree: events\n  observables: {x: x}\n",
+		"data:\n  histogram: data.root\n  name: hx\nbackgrounds:\n  - {name: flat, events: bkg.csv, weight: wb, observables: {x: xb}, scale: 0.5, scale_uncertainty: 0.2}\n",
+		"iterations: 4", "iterations: 4\n  prior: file\n  prior_file: prior.csv\n  smoothing: 0.5").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	r, _, err := a.BuildResponse(ctx, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := a.FillData(ctx, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Reco bins: 9 in range, then the underflow and the overflow
+	// (ROOT cells 0 and 10).
+	if data.Values[0] != 190 || data.Values[8] != 110 || data.Values[9] != 200 || data.Values[10] != 100 || data.Outside != 0 {
+		t.Errorf("data from the TH1D: %v (outside %d)", data.Values, data.Outside)
+	}
+	bkg, err := a.Background(ctx, r, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Expected: fakes + 0.5 × 2 per background event; variance: fakes'
+	// Σw² + Σ(0.5·2)² + (0.2 × contribution)².
+	count := make([]float64, a.Reco.Len())
+	for _, x := range bx {
+		count[a.Reco.Locate([]float64{x})]++
+	}
+	for i := range count {
+		want := r.Fakes[i] + count[i]
+		wantVar := r.FakesSumW2[i] + count[i] + 0.04*count[i]*count[i]
+		if math.Abs(bkg.Values[i]-want) > 1e-9 || math.Abs(bkg.Variance[i]-wantVar) > 1e-9 {
+			t.Errorf("reco bin %d: background %v ± %v, want %v ± %v", i, bkg.Values[i], bkg.Variance[i], want, wantVar)
+		}
+	}
+	p, err := a.Problem(r, data, bkg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(p.Prior, []float64{5, 4, 3, 2, 1, 1}) {
+		t.Errorf("prior %v", p.Prior)
+	}
+	s, _ := a.Settings()
+	if s.Smoothing == nil || s.Smoothing.Strength != 0.5 || s.Covariance != unfold.Full || s.Iterations != 4 {
+		t.Errorf("settings %+v", s)
+	}
+	if _, err := unfold.Unfold(ctx, p, s); err != nil {
+		t.Fatal(err)
+	}
+	a.Unfolding.Prior = "flat"
+	if p, _ := a.Prior(); !slices.Equal(p, []float64{1, 1, 1, 1, 1, 1}) {
+		t.Errorf("flat prior %v", p)
+	}
+}
