@@ -36,6 +36,7 @@ type Analysis struct {
 	// ResponseFile, when not empty, names a saved response bundle to
 	// load instead of building the response from Simulation.
 	ResponseFile string
+	responseLine int
 
 	Data        Data
 	Backgrounds []Background
@@ -191,6 +192,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Simulation or saved response.
 	a.ResponseFile = resolve(a.Dir, doc.Response)
+	a.responseLine = c.line("response")
 	if len(doc.Simulation) == 0 && doc.Response == "" {
 		c.errf(c.line("simulation"), "simulation", "missing: list the simulated samples, or name a saved response with the key response")
 	}

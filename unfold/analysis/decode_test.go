@@ -128,3 +128,28 @@ func TestReferenceExample(t *testing.T) {
 		t.Errorf("settings %+v %+v", a.Unfolding, a.Output)
 	}
 }
+
+// An inline scheme in flow style on one line decodes, and its errors
+// point at that line.
+func TestInlineFlowScheme(t *testing.T) {
+	old := `  truth:
+    regions:
+      - name: all
+        axes:
+          - {name: x, edges: [0, 1, 2, 3], overflow: true}
+`
+	src := strings.Replace(goodText(t), old, "  truth: {regions: [{name: all, axes: [{name: x, edges: [0, 1, 2, 3], overflow: true}]}]}\n", 1)
+	a, err := Decode([]byte(src), "testdata/flow.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Truth.Len() != 4 {
+		t.Errorf("%d truth bins, want 4", a.Truth.Len())
+	}
+	bad := strings.Replace(src, "edges: [0, 1, 2, 3]", "edges: [0, 1, 1, 3]", 1)
+	_, err = Decode([]byte(bad), "testdata/flow.yaml")
+	var be *binning.Error
+	if !errors.As(err, &be) || be.Line != 3 {
+		t.Errorf("got %v, want a binning error on line 3", err)
+	}
+}

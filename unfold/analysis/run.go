@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"os"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -100,7 +101,11 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 func (a *Analysis) LoadResponse() (*fill.Response, *fill.BundleInfo, error) {
 	r, info, err := fill.LoadResponse(a.ResponseFile)
 	if err != nil {
-		return nil, nil, &Error{File: a.File, Field: "response", Msg: fmt.Sprintf("cannot load the saved response: %v", err), Err: err}
+		msg := fmt.Sprintf("cannot load the saved response: %v", err)
+		if _, serr := os.Stat(a.ResponseFile); serr != nil && len(a.Simulation) > 0 {
+			msg = fmt.Sprintf("the saved response %s does not exist yet; build it from the simulation with \"desmear response %s\"", a.ResponseFile, a.File)
+		}
+		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: msg, Err: err}
 	}
 	if info.TruthScheme != Fingerprint(a.Truth) || info.RecoScheme != Fingerprint(a.Reco) {
 		return nil, nil, &Error{File: a.File, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for other binning schemes; rebuild it with desmear response", a.ResponseFile)}
