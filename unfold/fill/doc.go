@@ -33,9 +33,12 @@
 // Events are streamed: the memory used is independent of the number of
 // events (a fixed number of batches in flight, plus the distinct cells
 // of the matrix). A fixed number of worker goroutines evaluate the
-// observables and locate the events of whole batches; the sums are then
-// formed on one goroutine in event order, so every result is the same
-// bits whatever the number of workers or the batch size.
+// observables and locate the events of whole batches. The generated
+// spectrum, the fakes and the purity histograms are then summed on one
+// goroutine in event order, and the migration entries go, batch by batch
+// in event order, to a sparse.Accumulator, whose result depends only on
+// that ordered stream. So every result is the same bits whatever the
+// number of workers or the batch size.
 //
 // The package never draws anything: a progress callback reports the
 // events done. Problems with the input (a non-finite weight, a read
