@@ -2,6 +2,7 @@ package events
 
 import (
 	"bufio"
+	"bytes"
 	"context"
 	"encoding/csv"
 	"errors"
@@ -10,6 +11,7 @@ import (
 	"os"
 	"strconv"
 	"strings"
+	"unsafe"
 )
 
 // CSV is an event sample in a CSV file with a header line.
@@ -89,10 +91,9 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		return fmt.Errorf("events: %w", err)
 	}
 	defer f.Close()
-	r := newCSVReader(f)
-	r.FieldsPerRecord = len(c.header)
-	if _, err := r.Read(); err != nil {
-		return csvError(c.path, err)
+	lines := &csvLines{br: bufio.NewReaderSize(f, 1<<20)}
+	if _, err := lines.next(); err != nil { // the header, read by OpenCSV
+		return c.lineError(lines, err)
 	}
 	b := newBatch(len(columns), batchSize)
 	full := b.Cols
@@ -114,18 +115,21 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		return nil
 	}
 	for {
-		rec, err := r.Read()
-		if err == io.EOF {
+		ok, err := lines.next()
+		if err != nil {
+			return c.lineError(lines, err)
+		}
+		if !ok {
 			break
 		}
-		if err != nil {
-			return csvError(c.path, err)
+		if len(lines.fields) != len(c.header) {
+			return fmt.Errorf("events: %s:%d:1: wrong number of fields: %d, the header has %d", c.path, lines.line, len(lines.fields), len(c.header))
 		}
 		for i, j := range idx {
-			v, err := parseCSVFloat(rec[j])
+			fb := lines.fields[j]
+			v, err := parseCSVFloat(unsafe.String(unsafe.SliceData(fb), len(fb)))
 			if err != nil {
-				line, col := r.FieldPos(j)
-				return fmt.Errorf("events: %s:%d:%d: column %q: %q is not a number", c.path, line, col, c.header[j], rec[j])
+				return fmt.Errorf("events: %s:%d:%d: column %q: %q is not a number", c.path, lines.line, lines.starts[j]+1, c.header[j], string(fb))
 			}
 			full[i][k] = v
 		}
@@ -143,6 +147,100 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		return err
 	}
 	return flush()
+}
+
+func (c *CSV) lineError(l *csvLines, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		return fmt.Errorf("events: %s:%d:%d: %w", c.path, l.line, pe.Column, pe.Err)
+	}
+	return fmt.Errorf("events: %s:%d: %w", c.path, l.line, err)
+}
+
+// csvLines splits a CSV file into fields line by line without copying:
+// lines without a double quote are cut at commas, the rare others are
+// parsed by encoding/csv. Empty lines and lines starting with # are
+// skipped, as encoding/csv does with Comment = '#'.
+type csvLines struct {
+	br     *bufio.Reader
+	line   int      // number of the current line, from 1
+	fields [][]byte // fields of the current line; valid until the next call
+	starts []int    // byte offset of each field in the line
+	long   []byte   // a line longer than the read buffer
+	quoted []string
+}
+
+// next moves to the next record; it returns false at the end of the file.
+func (s *csvLines) next() (bool, error) {
+	for {
+		raw, err := s.br.ReadSlice('\n')
+		if err == bufio.ErrBufferFull {
+			s.long = append(s.long[:0], raw...)
+			for err == bufio.ErrBufferFull {
+				raw, err = s.br.ReadSlice('\n')
+				s.long = append(s.long, raw...)
+			}
+			raw = s.long
+		}
+		if err != nil && err != io.EOF {
+			return false, err
+		}
+		if len(raw) == 0 && err == io.EOF {
+			return false, nil
+		}
+		s.line++
+		line := raw
+		if n := len(line); n > 0 && line[n-1] == '\n' {
+			line = line[:n-1]
+		}
+		if n := len(line); n > 0 && line[n-1] == '\r' {
+			line = line[:n-1]
+		}
+		if len(line) == 0 || line[0] == '#' {
+			if err == io.EOF {
+				return false, nil
+			}
+			continue
+		}
+		s.fields, s.starts = s.fields[:0], s.starts[:0]
+		if bytes.IndexByte(line, '"') >= 0 {
+			return true, s.splitQuoted(line)
+		}
+		off := 0
+		for {
+			i := bytes.IndexByte(line[off:], ',')
+			if i < 0 {
+				s.fields = append(s.fields, line[off:])
+				s.starts = append(s.starts, off)
+				break
+			}
+			s.fields = append(s.fields, line[off:off+i])
+			s.starts = append(s.starts, off)
+			off += i + 1
+		}
+		return true, nil
+	}
+}
+
+// splitQuoted parses one line with quoted fields. A quoted field must not
+// span lines.
+func (s *csvLines) splitQuoted(line []byte) error {
+	r := csv.NewReader(bytes.NewReader(line))
+	r.FieldsPerRecord = -1
+	rec, err := r.Read()
+	if err != nil {
+		return err
+	}
+	s.quoted = append(s.quoted[:0], rec...)
+	for i, f := range s.quoted {
+		_, col := r.FieldPos(i)
+		s.fields = append(s.fields, []byte(f))
+		s.starts = append(s.starts, col-1)
+	}
+	if _, err := r.Read(); err != io.EOF {
+		return errors.New("a quoted field spans lines")
+	}
+	return nil
 }
 
 func parseCSVFloat(s string) (float64, error) {

@@ -356,6 +356,9 @@ func TestCSVErrors(t *testing.T) {
 		{"nohead.csv", " ,b\n", nil, "header field 1 is empty"},
 		{"missing.csv", "a,b\n1,2\n", []string{"c"}, `no column "c" (have: a, b)`},
 		{"emptyfield.csv", "a,b\n1,\n", []string{"b"}, `emptyfield.csv:2:3: column "b": "" is not a number`},
+		{"quoted.csv", "a,\"b\"\n\"1\",\" 2\"\n\n#c\n\"3\",x\n", []string{"b"}, `quoted.csv:5:5: column "b": "x" is not a number`},
+		{"multiline.csv", "a,b\n1,\"2\n3\"\n", []string{"b"}, "multiline.csv:2:"},
+		{"crlf.csv", "a,b\r\n1,2\r\n3,4", []string{"b"}, ""},
 	} {
 		p := write(tc.name, tc.body)
 		src, err := Open(p, Options{})
@@ -369,10 +372,54 @@ func TestCSVErrors(t *testing.T) {
 			t.Errorf("%s: error %v, want %q", tc.name, err, tc.want)
 		}
 	}
-	src, _ := Open(filepath.Join(dir, "ok.csv"), Options{})
-	got := readAll(t, src, []string{"b", "a"}, 5)
-	if !reflect.DeepEqual(got, [][]float64{{2, 1}, {1, 3}}) {
-		t.Errorf("ok.csv read %v", got)
+	for file, want := range map[string][][]float64{
+		"ok.csv":     {{2, 1}, {1, 3}},
+		"crlf.csv":   {{2, 4}, {1, 3}},
+		"quoted.csv": {{2}, {1}},
+	} {
+		src, _ := Open(filepath.Join(dir, file), Options{})
+		var got [][]float64
+		if file == "quoted.csv" {
+			// only the first event: the second has a bad value
+			src.Read(context.Background(), []string{"b", "a"}, 1, func(b *Batch) error {
+				if got == nil {
+					got = [][]float64{{b.Cols[0][0]}, {b.Cols[1][0]}}
+				}
+				return nil
+			})
+		} else {
+			got = readAll(t, src, []string{"b", "a"}, 5)
+		}
+		if !reflect.DeepEqual(got, want) {
+			t.Errorf("%s read %v, want %v", file, got, want)
+		}
+	}
+	// A line longer than the read buffer.
+	const wide = 400000
+	var sb strings.Builder
+	for i := range wide {
+		if i > 0 {
+			sb.WriteByte(',')
+		}
+		fmt.Fprintf(&sb, "c%d", i)
+	}
+	sb.WriteByte('\n')
+	for range 2 {
+		for i := range wide {
+			if i > 0 {
+				sb.WriteByte(',')
+			}
+			fmt.Fprintf(&sb, "%d", i%97)
+		}
+		sb.WriteByte('\n')
+	}
+	src, err := Open(write("wide.csv", sb.String()), Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := readAll(t, src, []string{"c399999", "c5"}, 10)
+	if !reflect.DeepEqual(got, [][]float64{{399999 % 97, 399999 % 97}, {5, 5}}) {
+		t.Errorf("wide.csv read %v", got)
 	}
 }
 
