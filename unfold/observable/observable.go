@@ -1,6 +1,7 @@
 package observable
 
 import (
+	"errors"
 	"fmt"
 	"go/ast"
 	"go/constant"
@@ -69,10 +70,8 @@ func Compile(src string, columns []string) (*Expr, error) {
 	x, err := parser.ParseExprFrom(fset, "", src, 0)
 	if err != nil {
 		var el scanner.ErrorList
-		if errorsAs(err, &el) && len(el) > 0 {
-			p := el[0].Pos
-			off := p.Offset
-			return nil, &Error{Expr: src, Offset: off, Msg: "syntax error: " + el[0].Msg}
+		if errors.As(err, &el) && len(el) > 0 {
+			return nil, &Error{Expr: src, Offset: el[0].Pos.Offset, Msg: "syntax error: " + el[0].Msg}
 		}
 		return nil, &Error{Expr: src, Msg: "syntax error: " + err.Error()}
 	}
@@ -89,14 +88,6 @@ func Compile(src string, columns []string) (*Expr, error) {
 	e.row = t.closure()
 	e.build()
 	return e, nil
-}
-
-func errorsAs(err error, el *scanner.ErrorList) bool {
-	l, ok := err.(scanner.ErrorList)
-	if ok {
-		*el = l
-	}
-	return ok
 }
 
 // MustCompile is like Compile but panics on error. It is meant for
