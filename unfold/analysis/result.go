@@ -92,6 +92,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
+	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
+		return nil, err
+	}
 	out := &Outcome{}
 	var err error
 	if a.ResponseFile != "" {

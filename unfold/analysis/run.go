@@ -51,11 +51,59 @@ func Fingerprint(s *binning.Scheme) string {
 	return hex.EncodeToString(h.Sum(nil))
 }
 
+// CheckInputs opens every events file of the analysis (simulation,
+// data, backgrounds; only the simulation with sim) and compiles its
+// expressions against the file's columns, so that a missing file or a
+// misspelt column is reported before any event is read.
+func (a *Analysis) CheckInputs(sim, rest bool) error {
+	check := func(path, tree, field string, line int, exprs ...[]Expression) error {
+		src, err := a.openEvents(path, tree, field, line)
+		if err != nil {
+			return err
+		}
+		defer src.Close()
+		c := newCompiler(a, path, src)
+		for _, es := range exprs {
+			if _, err := c.addAll(es); err != nil {
+				return err
+			}
+		}
+		_, err = c.finish()
+		return err
+	}
+	if sim {
+		for _, s := range a.Simulation {
+			if err := check(s.File, s.Tree, s.Field+".file", s.Line, []Expression{s.Weight, s.TruthSelection, s.RecoSelection}, s.Truth, s.Reco); err != nil {
+				return err
+			}
+		}
+	}
+	if !rest {
+		return nil
+	}
+	if d := a.Data; d.Kind == DataEvents {
+		if err := check(d.File, d.Tree, "data.events", d.Line, []Expression{d.Weight, d.Selection}, d.Observables); err != nil {
+			return err
+		}
+	}
+	for _, b := range a.Backgrounds {
+		if b.Kind == DataEvents {
+			if err := check(b.File, b.Tree, b.Field+".events", b.Line, []Expression{b.Weight, b.Selection}, b.Observables); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
 // BuildResponse streams the simulated samples into a response. It
 // returns the response and the provenance of its inputs.
 func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
 	if len(a.Simulation) == 0 {
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
+	}
+	if err := a.CheckInputs(true, false); err != nil {
+		return nil, nil, err
 	}
 	info := &fill.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
 	if opt != nil {

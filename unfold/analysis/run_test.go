@@ -451,3 +451,24 @@ func TestBackgroundPriorAndTH1D(t *testing.T) {
 		t.Errorf("flat prior %v", p)
 	}
 }
+
+// A misspelt column in the data is reported before any simulated event
+// is read.
+func TestInputsCheckedFirst(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(1000, 1))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{{1}})
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "observables: {x: x}", "observables: {x: xx}").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	read := false
+	_, err = a.Run(context.Background(), &Options{Progress: func(string, int64, int64) { read = true }}, false)
+	if err == nil || !strings.Contains(err.Error(), `data.observables.x: unknown column "xx"`) {
+		t.Errorf("got %v", err)
+	}
+	if read {
+		t.Error("events were read before the inputs were checked")
+	}
+}
