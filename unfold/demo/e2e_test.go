@@ -64,7 +64,7 @@ type pipeline struct {
 	problem  *unfold.Problem
 }
 
-func load(t *testing.T, path string) *pipeline {
+func load(t testing.TB, path string) *pipeline {
 	t.Helper()
 	ctx := context.Background()
 	a, err := analysis.Load(path)
@@ -90,7 +90,7 @@ func load(t *testing.T, path string) *pipeline {
 	return &pipeline{a: a, response: r, problem: p}
 }
 
-func (p *pipeline) unfold(t *testing.T, mutate func(*unfold.Settings)) *unfold.Result {
+func (p *pipeline) unfold(t testing.TB, mutate func(*unfold.Settings)) *unfold.Result {
 	t.Helper()
 	s, err := p.a.Settings()
 	if err != nil {
@@ -314,4 +314,46 @@ func TestDemoStressReweighted(t *testing.T) {
 		}
 	}
 	t.Logf("largest shift: %.2f of the uncertainty; reweighted truth vs known truth chi2 %.1f/%d", worst, chi2G, len(in.Truth.Expected))
+}
+
+// BenchmarkEnsemble runs the demo's analysis for 40 seeds at the default
+// size and reports the mean chi-square per degree of freedom against the
+// known truth with its standard error (chi2/ndf, chi2/ndf-se), and the
+// mean of the largest per-bin shift of the stress test in units of the
+// uncertainty (stress-shift):
+// go test ./unfold/demo -run '^$' -bench Ensemble -benchtime 1x
+func BenchmarkEnsemble(b *testing.B) {
+	const seeds = 40
+	for b.Loop() {
+		var sum, sum2, shift float64
+		for seed := uint64(1000); seed < 1000+seeds; seed++ {
+			dir, err := os.MkdirTemp(testRoot, "ensemble-")
+			if err != nil {
+				b.Fatal(err)
+			}
+			in, err := demo.Generate(context.Background(), filepath.Join(dir, "demo"), demo.Config{Events: demo.DefaultEvents, Seed: seed}, false)
+			if err != nil {
+				b.Fatal(err)
+			}
+			nominal := load(b, in.Path(demo.AnalysisFile)).unfold(b, nil)
+			stress := load(b, in.Path(demo.StressFile)).unfold(b, nil)
+			c, err := demo.Compare(in.Truth, nominal.Estimate, nominal.Uncertainty, nominal.Covariance)
+			if err != nil {
+				b.Fatal(err)
+			}
+			r := c.Chi2 / float64(c.NDF)
+			sum += r
+			sum2 += r * r
+			worst := 0.0
+			for g := range c.NDF {
+				worst = max(worst, math.Abs(nominal.Estimate[g]-stress.Estimate[g])/nominal.Uncertainty[g])
+			}
+			shift += worst
+			os.RemoveAll(dir)
+		}
+		m := sum / seeds
+		b.ReportMetric(m, "chi2/ndf")
+		b.ReportMetric(math.Sqrt((sum2/seeds-m*m)/(seeds-1)), "chi2/ndf-se")
+		b.ReportMetric(shift/seeds, "stress-shift")
+	}
 }
