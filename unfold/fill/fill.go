@@ -102,8 +102,8 @@ const (
 // batch is one unit of work: a copy of the input columns and, after
 // processing, the located bins and weights of its events.
 type batch struct {
-	erows, ecols []int32   // migration entries (Builder)
-	ew           []float64 //
+	erows, ecols []int32   // migration entries: reco and truth bins (Builder)
+	ew           []float64 // and their weights
 	seq          int64
 	start        int64
 	n            int
