@@ -192,7 +192,7 @@ func (n *bnode) eval2(out, a []float64, in [][]float64) {
 		}
 	case opAnd:
 		for i := range out {
-			out[i] = b2f(truth(a[i]) && truth(b[i]))
+			out[i] = b2f(min(math.Abs(a[i]), math.Abs(b[i])) > 0) // truth(a) && truth(b); min propagates NaN
 		}
 	case opOr:
 		for i := range out {
