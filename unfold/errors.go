@@ -55,11 +55,13 @@ func (e *SettingsError) Error() string {
 
 // TooLargeError reports that an uncertainty computation was refused
 // because its memory estimate exceeds Settings.MemoryLimit. Bytes is the
-// estimate, Limit the limit in force; Alternative says what to ask for
-// instead.
+// estimate, Limit the limit in force; Columns is the number of Jacobian
+// columns (the reco bins, twice when a background variance is
+// propagated); Alternative says what to ask for instead.
 type TooLargeError struct {
 	What        string
 	TruthBins   int
+	RecoBins    int
 	Columns     int
 	Bytes       int64
 	Limit       int64
@@ -67,8 +69,12 @@ type TooLargeError struct {
 }
 
 func (e *TooLargeError) Error() string {
-	return fmt.Sprintf("unfold: %s for %d truth bins × %d data columns needs about %s, above the memory limit of %s; %s",
-		e.What, e.TruthBins, e.Columns, byteSize(e.Bytes), byteSize(e.Limit), e.Alternative)
+	size := fmt.Sprintf("%d truth × %d reco bins", e.TruthBins, e.RecoBins)
+	if e.Columns != e.RecoBins {
+		size += fmt.Sprintf(" (data and background: %d Jacobian columns)", e.Columns)
+	}
+	return fmt.Sprintf("unfold: %s for %s needs about %s, above the memory limit of %s; %s",
+		e.What, size, byteSize(e.Bytes), byteSize(e.Limit), e.Alternative)
 }
 
 // NumericalError reports a numerical failure during the iteration (a

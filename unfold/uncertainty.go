@@ -25,7 +25,7 @@ func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
 	case Full:
 		if b := denseBytes(m.nt, cols, true); b > rs.MemoryLimit {
 			return nil, &TooLargeError{
-				What: "the full covariance (dense Jacobian and covariance matrix)", TruthBins: m.nt, Columns: cols,
+				What: "the full covariance (dense Jacobian and covariance matrix)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
 				Bytes: b, Limit: rs.MemoryLimit,
 				Alternative: fmt.Sprintf("ask for per-bin variances only (diagonal covariance, %d random probes by default), or raise the memory limit", DefaultProbes),
 			}
@@ -44,7 +44,7 @@ func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
 	case DiagonalExact:
 		if !fits {
 			return nil, &TooLargeError{
-				What: "the exact per-bin variances (dense Jacobian)", TruthBins: m.nt, Columns: cols,
+				What: "the exact per-bin variances (dense Jacobian)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
 				Bytes: denseBytes(m.nt, cols, false), Limit: rs.MemoryLimit,
 				Alternative: "use random probes or Poisson toys for the per-bin variances, or raise the memory limit",
 			}
