@@ -82,8 +82,8 @@ func TestDemoCommand(t *testing.T) {
 	os.Mkdir(foreign, 0o755)
 	os.WriteFile(filepath.Join(foreign, "chapter1.tex"), []byte("keep"), 0o644)
 	code, _, stderr = runCLI(t, ctx, "demo", "--out", foreign, "--events", demoTestEvents, "--force")
-	if code == 0 {
-		t.Error("--force replaced a folder that is not a demo folder")
+	if code != exitUsage || !strings.Contains(stderr, "left alone") {
+		t.Errorf("--force on a folder that is not a demo folder: exit %d, stderr %q", code, stderr)
 	}
 	if b, err := os.ReadFile(filepath.Join(foreign, "chapter1.tex")); err != nil || string(b) != "keep" {
 		t.Error("the foreign folder was touched")

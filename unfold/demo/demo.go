@@ -34,6 +34,10 @@ const (
 	temporaryDirPrefix = ".desmear-demo-"
 )
 
+// ErrNotDemoFolder is wrapped by Generate's error when the output folder
+// exists and is not one Generate may replace.
+var ErrNotDemoFolder = errors.New("not a demo folder")
+
 // Inputs describes a generated demo folder.
 type Inputs struct {
 	Dir    string // the folder
@@ -115,7 +119,8 @@ func ExpectedTruth(s *binning.Scheme, cfg Config) []float64 {
 // dir and renamed into place, so a failed or cancelled run leaves nothing
 // behind. If dir exists Generate returns an error wrapping fs.ErrExist,
 // unless replace is true and dir is empty or a previous demo folder (it
-// holds scenario.json): then it is replaced. Whatever the number of
+// holds scenario.json): then it is replaced; any other existing path is
+// refused with an error wrapping ErrNotDemoFolder. Whatever the number of
 // cores, the same cfg gives the same bytes.
 func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Inputs, error) {
 	if err := cfg.check(); err != nil {
@@ -174,7 +179,7 @@ func checkTarget(dir string, replace bool) error {
 		return fmt.Errorf("demo: %s already exists (replace it with --force): %w", dir, fs.ErrExist)
 	}
 	if !st.IsDir() {
-		return fmt.Errorf("demo: %s exists and is not a folder; choose another output folder", dir)
+		return fmt.Errorf("demo: %s exists and is not a folder; choose another output folder: %w", dir, ErrNotDemoFolder)
 	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
@@ -184,7 +189,7 @@ func checkTarget(dir string, replace bool) error {
 		return nil
 	}
 	if _, err := os.Stat(filepath.Join(dir, ScenarioFile)); err != nil {
-		return fmt.Errorf("demo: %s is not empty and holds no %s, so it is not a demo folder; it is left alone: choose another output folder", dir, ScenarioFile)
+		return fmt.Errorf("demo: %s is not empty and holds no %s, so it is left alone (%w): choose another output folder", dir, ScenarioFile, ErrNotDemoFolder)
 	}
 	return nil
 }

@@ -255,8 +255,8 @@ func TestGenerateFolderRules(t *testing.T) {
 	foreign := filepath.Join(base, "foreign")
 	os.Mkdir(foreign, 0o755)
 	os.WriteFile(filepath.Join(foreign, "thesis.tex"), []byte("keep me"), 0o644)
-	if _, err := Generate(context.Background(), foreign, cfg, true); err == nil {
-		t.Error("Generate replaced a folder that is not a demo folder")
+	if _, err := Generate(context.Background(), foreign, cfg, true); !errors.Is(err, ErrNotDemoFolder) {
+		t.Errorf("Generate on a folder that is not a demo folder: %v, want ErrNotDemoFolder", err)
 	}
 	if b, err := os.ReadFile(filepath.Join(foreign, "thesis.tex")); err != nil || string(b) != "keep me" {
 		t.Error("the foreign folder was touched")
