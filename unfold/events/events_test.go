@@ -54,7 +54,7 @@ func TestROOTSmallFlatTree(t *testing.T) {
 	for _, tc := range []struct{ branch, msg string }{
 		{"ArrayFloat32", "fixed-size array of 10 values"},
 		{"SliceFloat64", "variable-length array"},
-		{"Str", "not numeric"},
+		{"Str", "it holds text, not numbers"},
 		{"Float128", `no branch "Float128"`},
 	} {
 		err := src.Read(context.Background(), []string{"Float64", tc.branch}, 10, func(*Batch) error { return nil })

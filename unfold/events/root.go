@@ -100,13 +100,13 @@ func contains(s []string, x string) bool {
 // returns "".
 func leafProblem(leaf rtree.Leaf) string {
 	if leaf.Kind() == reflect.String {
-		return fmt.Sprintf("its type %s (a string) is not numeric", leaf.TypeName())
+		return "it holds text, not numbers"
 	}
 	if leaf.LeafCount() != nil {
-		return fmt.Sprintf("it is a variable-length array (%s[%s])", leaf.TypeName(), leaf.LeafCount().Name())
+		return fmt.Sprintf("it is a variable-length array (%s[%s]); only branches with one number per event can be read", leaf.TypeName(), leaf.LeafCount().Name())
 	}
 	if leaf.Len() != 1 {
-		return fmt.Sprintf("it is a fixed-size array of %d values", leaf.Len())
+		return fmt.Sprintf("it is a fixed-size array of %d values; only branches with one number per event can be read", leaf.Len())
 	}
 	switch leaf.Type().Kind() {
 	case reflect.Bool, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64,
