@@ -83,7 +83,7 @@ output:
 // no generated zeton, pt_true = -999). Multiplying the event weight by it
 // turns the simulation into a simulation of the pseudo-data's truth.
 func ReweightExpression() string {
-	f := func(x float64) string { return strconv.FormatFloat(x, 'g', 17, 64) }
+	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 	zs := yMax - yMax*yMax*yMax/(3*simYWidth*simYWidth)
 	zd := yMax - yMax*yMax*yMax/(3*dataYWidth*dataYWidth)
 	c := (dataSlope - 1) / (simSlope - 1) * zs / zd / simNormalRatio
