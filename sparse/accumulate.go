@@ -154,7 +154,7 @@ type chunkBuf struct {
 	sequence uint64
 }
 
-// cellStore is the sorted set of distinct cells.
+// cellStore is a sorted set of distinct cells: a run or a store segment.
 type cellStore struct {
 	keys    []uint64
 	sw, sw2 []float64

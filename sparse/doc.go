@@ -33,6 +33,25 @@
 // partial sums are reduced in a fixed order, so every kernel returns the
 // same bits whatever GOMAXPROCS is.
 //
+// Partitions of banded matrices (the usual response: migrations stay near
+// the diagonal in every axis) scatter in two phases straight into the
+// destination; other matrices use per-block buffers and a reduction pass.
+// Every Matrix method may be called from many goroutines at once, except
+// ScaleCols, which changes the matrix.
+//
+// # Files
+//
+// Save writes a matrix (values, squared-weight sums, dimensions) in a
+// compact checksummed binary format of this package, atomically; Load and
+// Read return an error wrapping ErrFormat for a truncated or corrupted
+// file. The layout is documented in format.go.
+//
+// # Test matrices
+//
+// Banded3D builds a synthetic response with the structure of a fine
+// three-dimensional analysis, used by the benchmarks of this and other
+// packages.
+//
 // # Conventions
 //
 // Destination arguments come first. Dimension mismatches and aliasing
