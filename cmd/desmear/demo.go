@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/spf13/cobra"
+	"gonum.org/v1/gonum/mat"
 
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
@@ -55,7 +56,7 @@ of cores (the ROOT files differ only in the write times they record).`,
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.out, "out", o.out, "output folder: the generated inputs, and the result in its sub-folder "+demo.ResultFolder)
-	f.IntVar(&o.events, "events", o.events, fmt.Sprintf("number of simulated events, %d to %d; the pseudo-data get about a ninth as many", demo.MinEvents, demo.MaxEvents))
+	f.IntVar(&o.events, "events", o.events, fmt.Sprintf("number of simulated events, %d to %d; the pseudo-data get about a tenth as many reconstructed events", demo.MinEvents, demo.MaxEvents))
 	f.Uint64Var(&o.seed, "seed", o.seed, "seed of the generator")
 	f.BoolVar(&o.force, "force", false, "replace the output folder if it holds an earlier demo (never any other folder)")
 	return cmd
@@ -93,7 +94,11 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	}
 	fmt.Fprintf(diag, "desmear demo: analysis done in %.1f s (total %.1f s)\n", time.Since(t1).Seconds(), time.Since(start).Seconds())
 	res := out.Result
-	cmp, err := demo.Compare(in.Truth, res.Estimate, res.Uncertainty, res.Covariance)
+	var cov mat.Symmetric // nil unless the analysis computed the full covariance
+	if res.Covariance != nil {
+		cov = res.Covariance
+	}
+	cmp, err := demo.Compare(in.Truth, res.Estimate, res.Uncertainty, cov)
 	if err != nil {
 		return numericalErr(err)
 	}
