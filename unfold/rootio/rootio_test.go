@@ -245,6 +245,15 @@ func TestReadDirs(t *testing.T) {
 	if h.Entries != 5 || sum != 5 {
 		t.Errorf("entries %v, sum of cells %v; want 5 and 5", h.Entries, sum)
 	}
+	// The macro does not call Sumw2(): the variances are the counts.
+	if h.HasSumW2 {
+		t.Errorf("HasSumW2 true for a histogram filled without Sumw2")
+	}
+	for i := range h.SumW {
+		if h.SumW2[i] != h.SumW[i] {
+			t.Errorf("cell %d: sumw2 %v, want the count %v", i, h.SumW2[i], h.SumW[i])
+		}
+	}
 	if _, err := ReadHist2D(path, "dir1/dir11/h1"); err == nil || !strings.Contains(err.Error(), "not a 2-D histogram") {
 		t.Errorf("TH1F read as 2-D: %v", err)
 	}
