@@ -1,0 +1,41 @@
+package events
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"testing"
+)
+
+// FuzzCSV reads arbitrary bytes as a CSV file: opening and reading must
+// return values or an error naming the file, never panic.
+func FuzzCSV(f *testing.F) {
+	for _, s := range []string{
+		"a,b\n1,2\n", "a,b\r\n1,2", "a\n\"1\"\n", "a,b\n1,\"2\n3\"\n", "#x\na\n1\n\n2\n",
+		"a,a\n1,1\n", "\ufeffa\n1e400\n", "a,b\n1\n", "a\n\"\n", "a\nNaN\n-Inf\ntrue\n",
+	} {
+		f.Add([]byte(s))
+	}
+	dir := f.TempDir()
+	f.Fuzz(func(t *testing.T, data []byte) {
+		path := filepath.Join(dir, "f.csv")
+		if err := os.WriteFile(path, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		src, err := OpenCSV(path)
+		if err != nil {
+			return
+		}
+		n := 0
+		err = src.Read(context.Background(), src.Columns(), 3, func(b *Batch) error {
+			n += b.Len
+			for _, c := range b.Cols {
+				if len(c) != b.Len {
+					t.Fatalf("column of %d values in a batch of %d", len(c), b.Len)
+				}
+			}
+			return nil
+		})
+		_ = err
+	})
+}
