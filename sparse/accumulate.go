@@ -118,8 +118,9 @@ type Accumulator struct {
 	freeH   []*heldBatch
 
 	// merge stage, also under mu
-	runs       map[uint64]*chunkBuf // sorted runs waiting for earlier ones
-	ready      []*chunkBuf          // consecutive runs due for merging
+	runs       map[uint64]*run // sorted runs waiting for earlier ones
+	ready      []*run          // consecutive runs due for merging
+	freeR      [][]cell        // run buffers for reuse
 	readyCells int
 	nextMerge  uint64
 	merging    bool
@@ -142,22 +143,12 @@ type heldBatch struct {
 	w    []float64
 }
 
-// chunkBuf holds one chunk: the packed entries, sort scratch, and after
-// sorting the summed run (keys, sw, sw2 alias the buffers).
+// chunkBuf holds one chunk: the packed entries and the sort scratch.
 type chunkBuf struct {
-	k0, k1 []uint64
-	w0, w1 []float64
-
-	keys     []uint64
-	sw, sw2  []float64
+	k0, k1   []uint64
+	w0, w1   []float64
 	sorter   radixSorter
 	sequence uint64
-}
-
-// cellStore is a sorted set of distinct cells: a run or a store segment.
-type cellStore struct {
-	keys    []uint64
-	sw, sw2 []float64
 }
 
 // NewAccumulator returns an empty accumulator for a rows×cols matrix
@@ -192,7 +183,7 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 	a.keyBits = a.rowBits + colBits
 	a.cond.L = &a.mu
 	a.held = make(map[uint64]*heldBatch)
-	a.runs = make(map[uint64]*chunkBuf)
+	a.runs = make(map[uint64]*run)
 	return a, nil
 }
 
@@ -441,6 +432,18 @@ func (a *Accumulator) popChunk() *chunkBuf {
 // maxGroup is the largest number of runs merged into the store at once.
 const maxGroup = 8
 
+// cell is one distinct cell: its packed key and sums.
+type cell struct {
+	key     uint64
+	sw, sw2 float64
+}
+
+// run is a sorted chunk with its equal keys summed.
+type run struct {
+	cells    []cell
+	sequence uint64
+}
+
 // sortAndMerge sorts a closed chunk and sums its equal keys into a run,
 // then merges the runs that are due into the store. Runs are merged
 // strictly in chunk order, several at a time once they hold a quarter of
@@ -448,19 +451,29 @@ const maxGroup = 8
 // that are ready. For every cell the sums are added chunk by chunk in
 // chunk order, so how the runs are grouped does not change the result.
 func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
-	if c != nil {
-		c.sortRun(a.keyBits)
-	}
 	a.mu.Lock()
 	if c != nil {
-		a.runs[c.sequence] = c
+		var out []cell
+		if k := len(a.freeR); k > 0 && cap(a.freeR[k-1]) >= len(c.k0) {
+			out = a.freeR[k-1]
+			a.freeR = a.freeR[:k-1]
+		}
+		a.mu.Unlock()
+		if out == nil {
+			out = make([]cell, 0, len(c.k0))
+		}
+		r := &run{cells: c.sortRun(a.keyBits, out[:0]), sequence: c.sequence}
+		a.mu.Lock()
+		c.k0, c.w0 = c.k0[:0], c.w0[:0]
+		a.freeC = append(a.freeC, c)
+		a.runs[r.sequence] = r
 	}
 	for {
 		for r := a.runs[a.nextMerge]; r != nil; r = a.runs[a.nextMerge] {
 			delete(a.runs, a.nextMerge)
 			a.nextMerge++
 			a.ready = append(a.ready, r)
-			a.readyCells += len(r.keys)
+			a.readyCells += len(r.cells)
 		}
 		if a.merging || len(a.ready) == 0 ||
 			!force && len(a.ready) < maxGroup && 4*a.readyCells < a.cells {
@@ -473,10 +486,9 @@ func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
 		a.mu.Lock()
 		a.merging = false
 		for _, r := range group {
-			a.readyCells -= len(r.keys)
-			r.keys, r.sw, r.sw2 = nil, nil, nil
-			r.k0, r.w0 = r.k0[:0], r.w0[:0]
-			a.freeC = append(a.freeC, r)
+			a.readyCells -= len(r.cells)
+			a.freeR = append(a.freeR, r.cells[:0])
+			r.cells = nil
 		}
 		n := copy(a.ready, a.ready[len(group):])
 		clear(a.ready[n:])
@@ -486,8 +498,8 @@ func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
 }
 
 // sortRun sorts the chunk stably by key and sums equal keys in stream
-// order into (keys, sw, sw2).
-func (c *chunkBuf) sortRun(keyBits uint) {
+// order, appending the cells to out.
+func (c *chunkBuf) sortRun(keyBits uint, out []cell) []cell {
 	n := len(c.k0)
 	if cap(c.k1) < n {
 		c.k1 = make([]uint64, n, cap(c.k0))
@@ -495,13 +507,7 @@ func (c *chunkBuf) sortRun(keyBits uint) {
 	}
 	c.k1, c.w1 = c.k1[:n], c.w1[:n]
 	k, w := c.sorter.sort(c.k0, c.w0, c.k1, c.w1, keyBits)
-	// The squared sums go to the weight buffer the sort did not return.
-	sw2 := c.w1
-	if &w[0] == &c.w1[0] {
-		sw2 = c.w0
-	}
-	sw2 = sw2[:n]
-	m := 0
+	w = w[:len(k)]
 	for i := 0; i < n; {
 		key := k[i]
 		s, s2 := w[i], w[i]*w[i]
@@ -512,10 +518,9 @@ func (c *chunkBuf) sortRun(keyBits uint) {
 			s2 += wi * wi
 			i++
 		}
-		k[m], w[m], sw2[m] = key, s, s2
-		m++
+		out = append(out, cell{key, s, s2})
 	}
-	c.keys, c.sw, c.sw2 = k[:m], w[:m], sw2[:m]
+	return out
 }
 
 // maxSegment is the largest number of cells a store segment holds
@@ -524,22 +529,20 @@ func (c *chunkBuf) sortRun(keyBits uint) {
 const maxSegment = 1 << 18
 
 // segment is the part of the store with keys below hi (and at or above
-// the previous segment's hi): sorted distinct cells in backing arrays of
-// some spare capacity, placed at their start or at their end.
+// the previous segment's hi): sorted distinct cells, a window of a backing
+// array with some spare capacity, placed at its start or at its end.
 type segment struct {
-	hi        uint64
-	cellStore // the cells, a window of the backing arrays
-	backK     []uint64
-	backW     []float64
-	backW2    []float64
-	runs      []cellStore // the parts of the runs being merged
+	hi    uint64
+	cells []cell
+	back  []cell
+	runs  [][]cell // the parts of the runs being merged
 }
 
 // mergeGroup merges consecutive summed runs into the store, one group at
 // a time. For a cell in several places the sums are the store's, then
 // each run's in chunk order, added left to right; the store's split into
 // segments and the goroutines that merge them do not change any sum.
-func (a *Accumulator) mergeGroup(rs []*chunkBuf) {
+func (a *Accumulator) mergeGroup(rs []*run) {
 	if len(a.segs) == 0 {
 		a.segs = []*segment{{hi: math.MaxUint64}}
 	}
@@ -550,8 +553,8 @@ func (a *Accumulator) mergeGroup(rs []*chunkBuf) {
 			if q == 0 {
 				sg.runs = sg.runs[:0]
 			}
-			hi := lo + sortSearch(r.keys[lo:], sg.hi)
-			sg.runs = append(sg.runs, cellStore{keys: r.keys[lo:hi], sw: r.sw[lo:hi], sw2: r.sw2[lo:hi]})
+			hi := lo + searchCells(r.cells[lo:], sg.hi)
+			sg.runs = append(sg.runs, r.cells[lo:hi])
 			lo = hi
 		}
 	}
@@ -580,38 +583,36 @@ func (a *Accumulator) mergeGroup(rs []*chunkBuf) {
 	segs := a.segs[:0:0]
 	a.cells = 0
 	for _, sg := range a.segs {
+		clear(sg.runs)
 		sg.runs = sg.runs[:0]
-		a.cells += len(sg.keys)
-		if len(sg.keys) <= a.maxSeg {
+		a.cells += len(sg.cells)
+		if len(sg.cells) <= a.maxSeg {
 			segs = append(segs, sg)
 			continue
 		}
-		n := len(sg.keys)
+		n := len(sg.cells)
 		pieces := (n + a.maxSeg/2 - 1) / (a.maxSeg / 2)
 		for p := 0; p < pieces; p++ {
 			lo, hi := p*n/pieces, (p+1)*n/pieces
 			m := hi - lo
-			c := m + m/4
-			ns := &segment{hi: sg.hi, backK: make([]uint64, c), backW: make([]float64, c), backW2: make([]float64, c)}
+			ns := &segment{hi: sg.hi, back: make([]cell, m+m/4)}
 			if p+1 < pieces {
-				ns.hi = sg.keys[hi]
+				ns.hi = sg.cells[hi].key
 			}
-			copy(ns.backK, sg.keys[lo:hi])
-			copy(ns.backW, sg.sw[lo:hi])
-			copy(ns.backW2, sg.sw2[lo:hi])
-			ns.cellStore = cellStore{keys: ns.backK[:m], sw: ns.backW[:m], sw2: ns.backW2[:m]}
+			copy(ns.back, sg.cells[lo:hi])
+			ns.cells = ns.back[:m]
 			segs = append(segs, ns)
 		}
 	}
 	a.segs = segs
 }
 
-// sortSearch returns the number of keys below bound.
-func sortSearch(keys []uint64, bound uint64) int {
-	lo, hi := 0, len(keys)
+// searchCells returns the number of cells with keys below bound.
+func searchCells(cs []cell, bound uint64) int {
+	lo, hi := 0, len(cs)
 	for lo < hi {
 		m := int(uint(lo+hi) >> 1)
-		if keys[m] < bound {
+		if cs[m].key < bound {
 			lo = m + 1
 		} else {
 			hi = m
@@ -621,152 +622,174 @@ func sortSearch(keys []uint64, bound uint64) int {
 }
 
 // merge merges the segment's run parts into it, in place when the
-// backing arrays have room: a store at their start is merged backwards,
-// from the last cell, writing from the end of the arrays; a store at
-// their end is merged forwards, writing from the start. Either way no
-// write overtakes a store cell not yet read.
+// backing array has room: a store at its start is merged backwards, from
+// the last cell, writing from the end of the array; a store at its end is
+// merged forwards, writing from the start. Either way no write overtakes
+// a store cell not yet read.
 func (sg *segment) merge() {
-	ns := len(sg.keys)
+	ns := len(sg.cells)
 	need := ns
 	for _, r := range sg.runs {
-		need += len(r.keys)
+		need += len(r)
 	}
 	if need == ns {
 		return
 	}
-	off := cap(sg.backK) - cap(sg.keys)
+	off := cap(sg.back) - cap(sg.cells)
 	if ns == 0 {
 		off = 0
 	}
 	switch {
-	case cap(sg.backK) < need:
-		c := max(need+need/4, 1<<10)
-		dk, dsw, dsw2 := make([]uint64, c), make([]float64, c), make([]float64, c)
-		sg.cellStore = mergeBackward(dk, dsw, dsw2, sg.cellStore, sg.runs)
-		sg.backK, sg.backW, sg.backW2 = dk, dsw, dsw2
+	case cap(sg.back) < need:
+		back := make([]cell, max(need+need/4, 1<<10))
+		sg.cells = mergeBackward(back, sg.cells, sg.runs)
+		sg.back = back
 	case off == 0:
-		sg.cellStore = mergeBackward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
-	case off+ns == cap(sg.backK):
-		sg.cellStore = mergeForward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
+		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
+	case off+ns == cap(sg.back):
+		sg.cells = mergeForward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
 	default:
 		// In the middle (cannot happen with the placements above, but
 		// cheap to handle): move to the start first.
-		copy(sg.backK, sg.keys)
-		copy(sg.backW, sg.sw)
-		copy(sg.backW2, sg.sw2)
-		sg.cellStore = cellStore{keys: sg.backK[:ns], sw: sg.backW[:ns], sw2: sg.backW2[:ns]}
-		sg.cellStore = mergeBackward(sg.backK, sg.backW, sg.backW2, sg.cellStore, sg.runs)
+		sg.cells = sg.back[:copy(sg.back, sg.cells)]
+		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
 	}
 }
 
-// mergeBackward merges src and the runs rs into the end of (dk, dsw,
-// dsw2), which may be src's own arrays with src at their start.
-func mergeBackward(dk []uint64, dsw, dsw2 []float64, src cellStore, rs []cellStore) cellStore {
-	var pos [maxGroup]int
-	for q, r := range rs {
-		pos[q] = len(r.keys) - 1
-	}
-	sk, ssw, ssw2 := src.keys, src.sw, src.sw2
-	ssw, ssw2 = ssw[:len(sk)], ssw2[:len(sk)]
-	s, w := len(sk)-1, len(dk)-1
-	for {
-		var key uint64
-		have := false
-		for q, r := range rs {
-			if p := pos[q]; p >= 0 && (!have || r.keys[p] > key) {
-				key, have = r.keys[p], true
+// mergeBackward merges src and the runs rs into the end of dst, which may
+// be src's own array with src at its start, and returns the merged cells.
+func mergeBackward(dst, src []cell, rs [][]cell) []cell {
+	s, w := len(src)-1, len(dst)-1
+	if len(rs) == 1 {
+		r := rs[0]
+		for p := len(r) - 1; p >= 0; p-- {
+			c := r[p]
+			for s >= 0 && src[s].key > c.key {
+				dst[w] = src[s]
+				s--
+				w--
 			}
-		}
-		if !have {
-			break
-		}
-		for s >= 0 && sk[s] > key {
-			dk[w], dsw[w], dsw2[w] = sk[s], ssw[s], ssw2[s]
-			s--
+			if s >= 0 && src[s].key == c.key {
+				c.sw = src[s].sw + c.sw
+				c.sw2 = src[s].sw2 + c.sw2
+				s--
+			}
+			dst[w] = c
 			w--
 		}
-		var v, v2 float64
-		started := false
-		if s >= 0 && sk[s] == key {
-			v, v2 = ssw[s], ssw2[s]
-			started = true
-			s--
-		}
+	} else {
+		var pos [maxGroup]int
 		for q, r := range rs {
-			if p := pos[q]; p >= 0 && r.keys[p] == key {
-				if started {
-					v += r.sw[p]
-					v2 += r.sw2[p]
-				} else {
-					v, v2 = r.sw[p], r.sw2[p]
-					started = true
-				}
-				pos[q] = p - 1
-			}
+			pos[q] = len(r) - 1
 		}
-		dk[w], dsw[w], dsw2[w] = key, v, v2
-		w--
+		for {
+			var key uint64
+			have := false
+			for q, r := range rs {
+				if p := pos[q]; p >= 0 && (!have || r[p].key > key) {
+					key, have = r[p].key, true
+				}
+			}
+			if !have {
+				break
+			}
+			for s >= 0 && src[s].key > key {
+				dst[w] = src[s]
+				s--
+				w--
+			}
+			c := cell{key: key}
+			started := false
+			if s >= 0 && src[s].key == key {
+				c = src[s]
+				started = true
+				s--
+			}
+			for q, r := range rs {
+				if p := pos[q]; p >= 0 && r[p].key == key {
+					if started {
+						c.sw += r[p].sw
+						c.sw2 += r[p].sw2
+					} else {
+						c = r[p]
+						started = true
+					}
+					pos[q] = p - 1
+				}
+			}
+			dst[w] = c
+			w--
+		}
 	}
 	// The store cells below every run key: copied unless already in place.
-	if n := s + 1; n > 0 && &dk[w-s] != &sk[0] {
-		copy(dk[w-s:w+1], sk[:n])
-		copy(dsw[w-s:w+1], ssw[:n])
-		copy(dsw2[w-s:w+1], ssw2[:n])
+	if n := s + 1; n > 0 && &dst[w-s] != &src[0] {
+		copy(dst[w-s:w+1], src[:n])
 	}
-	lo := w - s
-	return cellStore{keys: dk[lo:], sw: dsw[lo:], sw2: dsw2[lo:]}
+	return dst[w-s:]
 }
 
-// mergeForward merges src, which sits at the end of (dk, dsw, dsw2), and
-// the runs rs into the start of those arrays.
-func mergeForward(dk []uint64, dsw, dsw2 []float64, src cellStore, rs []cellStore) cellStore {
-	var pos [maxGroup]int
-	sk, ssw, ssw2 := src.keys, src.sw, src.sw2
-	ssw, ssw2 = ssw[:len(sk)], ssw2[:len(sk)]
+// mergeForward merges src, which sits at the end of dst, and the runs rs
+// into the start of dst, and returns the merged cells.
+func mergeForward(dst, src []cell, rs [][]cell) []cell {
 	s, w := 0, 0
-	for {
-		var key uint64
-		have := false
-		for q, r := range rs {
-			if p := pos[q]; p < len(r.keys) && (!have || r.keys[p] < key) {
-				key, have = r.keys[p], true
+	if len(rs) == 1 {
+		for _, c := range rs[0] {
+			for s < len(src) && src[s].key < c.key {
+				dst[w] = src[s]
+				s++
+				w++
 			}
-		}
-		if !have {
-			break
-		}
-		for s < len(sk) && sk[s] < key {
-			dk[w], dsw[w], dsw2[w] = sk[s], ssw[s], ssw2[s]
-			s++
+			if s < len(src) && src[s].key == c.key {
+				c.sw = src[s].sw + c.sw
+				c.sw2 = src[s].sw2 + c.sw2
+				s++
+			}
+			dst[w] = c
 			w++
 		}
-		var v, v2 float64
-		started := false
-		if s < len(sk) && sk[s] == key {
-			v, v2 = ssw[s], ssw2[s]
-			started = true
-			s++
-		}
-		for q, r := range rs {
-			if p := pos[q]; p < len(r.keys) && r.keys[p] == key {
-				if started {
-					v += r.sw[p]
-					v2 += r.sw2[p]
-				} else {
-					v, v2 = r.sw[p], r.sw2[p]
-					started = true
+	} else {
+		var pos [maxGroup]int
+		for {
+			var key uint64
+			have := false
+			for q, r := range rs {
+				if p := pos[q]; p < len(r) && (!have || r[p].key < key) {
+					key, have = r[p].key, true
 				}
-				pos[q] = p + 1
 			}
+			if !have {
+				break
+			}
+			for s < len(src) && src[s].key < key {
+				dst[w] = src[s]
+				s++
+				w++
+			}
+			c := cell{key: key}
+			started := false
+			if s < len(src) && src[s].key == key {
+				c = src[s]
+				started = true
+				s++
+			}
+			for q, r := range rs {
+				if p := pos[q]; p < len(r) && r[p].key == key {
+					if started {
+						c.sw += r[p].sw
+						c.sw2 += r[p].sw2
+					} else {
+						c = r[p]
+						started = true
+					}
+					pos[q] = p + 1
+				}
+			}
+			dst[w] = c
+			w++
 		}
-		dk[w], dsw[w], dsw2[w] = key, v, v2
-		w++
 	}
-	n := copy(dk[w:], sk[s:])
-	copy(dsw[w:w+n], ssw[s:])
-	copy(dsw2[w:w+n], ssw2[s:])
-	w += n
-	return cellStore{keys: dk[:w], sw: dsw[:w], sw2: dsw2[:w]}
+	w += copy(dst[w:], src[s:])
+	return dst[:w]
 }
 
 // Matrix finishes the accumulation and returns the matrix of the sums of
@@ -825,7 +848,10 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	for _, c := range a.freeC {
 		chunkBytes += 8 * (cap(c.k0) + cap(c.k1) + cap(c.w0) + cap(c.w1))
 	}
-	a.freeC = nil
+	for _, r := range a.freeR {
+		chunkBytes += 24 * cap(r)
+	}
+	a.freeC, a.freeR = nil, nil
 	if chunkBytes > 64<<20 {
 		runtime.GC()
 	}
@@ -837,27 +863,21 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	rowMask := uint64(1)<<a.rowBits - 1
 	rep := &Report{Entries: entries, Cells: n}
 	for q, sg := range a.segs {
-		base := len(rowIdx)
-		sw = append(sw, sg.sw...)
-		sw2 = append(sw2, sg.sw2...)
-		for _, key := range sg.keys {
-			r, c := int(key&rowMask), int(key>>a.rowBits)
+		for _, cl := range sg.cells {
+			r, c := int(cl.key&rowMask), int(cl.key>>a.rowBits)
 			rowIdx = append(rowIdx, r)
+			sw = append(sw, cl.sw)
+			sw2 = append(sw2, cl.sw2)
 			colPtr[c+1]++
-		}
-		for k := base; k < len(rowIdx); k++ {
-			s := sw[k]
 			switch {
-			case math.IsInf(s, 0) || math.IsInf(sw2[k], 0):
-				r, c := rowIdx[k], int(sg.keys[k-base]>>a.rowBits)
+			case math.IsInf(cl.sw, 0) || math.IsInf(cl.sw2, 0):
 				return nil, nil, fmt.Errorf("sparse: the sum of weights of cell (reco %d, truth %d) overflows", r, c)
-			case s < 0:
+			case cl.sw < 0:
 				rep.NegativeCount++
 				if len(rep.Negative) < MaxReportedCells {
-					c := int(sg.keys[k-base] >> a.rowBits)
-					rep.Negative = append(rep.Negative, Cell{Row: rowIdx[k], Col: c, SumW: s, SumW2: sw2[k]})
+					rep.Negative = append(rep.Negative, Cell{Row: r, Col: c, SumW: cl.sw, SumW2: cl.sw2})
 				}
-			case s == 0:
+			case cl.sw == 0:
 				rep.ZeroCount++
 			}
 		}
