@@ -30,19 +30,19 @@ type ROOT struct {
 // OpenROOT opens the TTree at treePath (empty: the only TTree at the top
 // level) of a ROOT file.
 func OpenROOT(path, treePath string) (src *ROOT, err error) {
-	f, err := groot.Open(path)
+	var f *riofs.File
+	defer func() {
+		if p := recover(); p != nil {
+			src, err = nil, fmt.Errorf("events: %s: damaged ROOT file: %v", path, p)
+		}
+		if err != nil && f != nil {
+			f.Close()
+		}
+	}()
+	f, err = groot.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
 	}
-	defer func() {
-		if err != nil {
-			f.Close()
-		}
-		if p := recover(); p != nil {
-			f.Close()
-			src, err = nil, fmt.Errorf("events: %s: damaged ROOT file: %v", path, p)
-		}
-	}()
 	if treePath == "" {
 		var trees []string
 		for _, k := range f.Keys() {
