@@ -153,3 +153,21 @@ func TestInlineFlowScheme(t *testing.T) {
 		t.Errorf("got %v, want a binning error on line 3", err)
 	}
 }
+
+// Decoding never panics, whatever the bytes: every problem is an error.
+func FuzzDecode(f *testing.F) {
+	for _, p := range []string{"testdata/good.yaml", "testdata/reference/analysis.yaml"} {
+		b, err := readFile(p)
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(b)
+	}
+	f.Add([]byte("binning: {truth: {regions: [{name: a, axes: [{name: x, edges: [0, 1]}]}]}}\n"))
+	f.Fuzz(func(t *testing.T, src []byte) {
+		a, err := Decode(src, "testdata/fuzz.yaml")
+		if err == nil && (a.Truth == nil || a.Reco == nil) {
+			t.Fatal("no error but no binning")
+		}
+	})
+}

@@ -143,3 +143,37 @@ func TestResultHistograms(t *testing.T) {
 		t.Error("a density in a flow cell")
 	}
 }
+
+// A 3-D region gets one TH1D per (outer, middle) bin pair along its last
+// axis, with the last axis's flows in ROOT's flow cells.
+func TestResultHistograms3D(t *testing.T) {
+	s, err := binning.ReadFile("../../testdata/scheme3d.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	est := make([]float64, s.Len())
+	for g := range est {
+		est[g] = float64(g + 1)
+	}
+	h1, h2 := rootHistograms(s, est, nil, est, nil)
+	names := map[string]*rootio.Hist1D{}
+	for _, h := range h1 {
+		names[h.Name] = h
+	}
+	// signal: y0 has 3 pt bins, y1 has 2: 5 slices; sideband (mass, y):
+	// 2 slices; each of counts and density.
+	if len(h1) != 14 || len(h2) != 2 {
+		t.Fatalf("%d TH1D and %d TH2D, want 14 and 2", len(h1), len(h2))
+	}
+	h := names["signal/counts_y1_pt0"]
+	if h == nil {
+		t.Fatal("no signal/counts_y1_pt0")
+	}
+	under, over := s.Global(0, 1, 0, binning.UnderflowBin), s.Global(0, 1, 0, binning.OverflowBin)
+	if h.SumW[0] != est[under] || h.SumW[3] != est[over] || h.SumW[1] != est[s.Global(0, 1, 0, 0)] || h.SumW[2] != est[s.Global(0, 1, 0, 1)] {
+		t.Errorf("signal/counts_y1_pt0 = %v", h.SumW)
+	}
+	if h2[0].Name != "sideband/counts2d" {
+		t.Errorf("TH2D %s", h2[0].Name)
+	}
+}
