@@ -129,6 +129,9 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if cfg.Events == 0 {
 		cfg.Events = DefaultEvents
 	}
+	if base := filepath.Base(filepath.Clean(dir)); dir == "" || base == "." || base == ".." || base == string(filepath.Separator) {
+		return nil, fmt.Errorf("demo: %q cannot be the demo folder; name a folder to create: %w", dir, ErrNotDemoFolder)
+	}
 	if err := checkTarget(dir, replace); err != nil {
 		return nil, err
 	}

@@ -267,6 +267,11 @@ func TestGenerateFolderRules(t *testing.T) {
 			t.Errorf("left behind: %s", e.Name())
 		}
 	}
+	for _, bad := range []string{"", ".", base + "/..", "/"} {
+		if _, err := Generate(context.Background(), bad, cfg, true); !errors.Is(err, ErrNotDemoFolder) {
+			t.Errorf("Generate into %q: %v, want ErrNotDemoFolder", bad, err)
+		}
+	}
 	if _, err := Generate(context.Background(), filepath.Join(base, "small"), Config{Events: MinEvents - 1}, false); err == nil {
 		t.Error("a simulation below MinEvents was accepted")
 	}
