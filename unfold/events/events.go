@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"slices"
 	"strings"
 )
 
@@ -217,5 +216,3 @@ func syncClose(f *os.File, path string) error {
 	}
 	return nil
 }
-
-var _ = slices.Clone[[]string]
