@@ -65,13 +65,14 @@ func TestDecodeErrors(t *testing.T) {
 		{"  iterations: 3", "  iteratons: 3", `testdata/bad.yaml:26: iteratons: unknown key in unfolding (known keys: iterations,`},
 		{"title: test analysis", "titel: x", `testdata/bad.yaml:1: titel: unknown key in the top level`},
 		{"    weight: w\n    truth_selection", "    wieght: w\n    truth_selection", `testdata/bad.yaml:14: wieght: unknown key in a simulation sample`},
-		{"  iterations: 3", "  iterations: three", `testdata/bad.yaml:26: value three is a str, want a whole number`},
+		{"  iterations: 3", "  iterations: three", `testdata/bad.yaml:26: unfolding.iterations: value three is a string, want a whole number`},
 		{"  covariance: full", "  covariance: some", `testdata/bad.yaml:28: uncertainty.covariance: unknown value "some" (one of: none, diag, full)`},
 		{`  reco: {x: "xr"}`, `  reco: {z: "xr"}`, `testdata/bad.yaml:11: observables.reco.z: the binning has no axis "z"`},
 		{"  folder: out", "  folder: ''", `output.folder: missing`},
 		{"    scale: 2\n", "    scale: -2\n", `testdata/bad.yaml:23: backgrounds[0].scale: must be a finite number > 0`},
 		{"  iterations: 3", "  iterations: 3\n  stop_chi2: 0.1", `unfolding.stop_chi2: give either iterations or stop_chi2`},
 		{"  events: data.csv", "  events: data.csv\n  table: n.csv", `data: give exactly one of`},
+		{"  - file: sim.csv\n    weight: w", "  file: sim.csv\n  weight: w", `testdata/bad.yaml:13: simulation: the value is a mapping, want a list of simulated samples`},
 		{"  - file: sim.csv", "  - file: sim.txt", `testdata/bad.yaml:13: simulation[0].file: unknown events format of "sim.txt"`},
 	}
 	for _, c := range cases {

@@ -178,7 +178,7 @@ func (es Errors) Unwrap() []error {
 var (
 	lineRe    = regexp.MustCompile(`^line (\d+): (.*)$`)
 	unknownRe = regexp.MustCompile(`^field (\S+) not found in type (\S+)$`)
-	typeRe    = regexp.MustCompile(`^cannot unmarshal (\S+) (.*) into (\S+)$`)
+	typeRe    = regexp.MustCompile(`^cannot unmarshal (\S+)(?: (.*))? into (\S+)$`)
 )
 
 // allowed lists the keys of each section type, for unknown-key messages.
@@ -228,8 +228,10 @@ func sectionName(typ string) string {
 	return typ
 }
 
-// translate turns the YAML library's messages into Errors of file.
-func translate(file string, err error) error {
+// translate turns the YAML library's messages into Errors of file; root,
+// when not nil, is the document's node tree, used to name the field of
+// a type error.
+func translate(file string, err error, root *yaml.Node) error {
 	var te *yaml.TypeError
 	if errors.As(err, &te) {
 		var es Errors
@@ -247,7 +249,23 @@ func translate(file string, err error) error {
 					e.Msg = "unknown key"
 				}
 			} else if sm := typeRe.FindStringSubmatch(e.Msg); sm != nil {
-				e.Msg = fmt.Sprintf("value %s is a %s, want %s", strings.Trim(sm[2], "`"), strings.TrimPrefix(sm[1], "!!"), goTypeName(sm[3]))
+				kind := strings.TrimPrefix(sm[1], "!!")
+				switch kind {
+				case "map":
+					kind = "mapping"
+				case "seq":
+					kind = "list"
+				case "str":
+					kind = "string"
+				}
+				if v := strings.Trim(sm[2], "`"); v != "" {
+					e.Msg = fmt.Sprintf("value %s is a %s, want %s", v, kind, goTypeName(sm[3]))
+				} else {
+					e.Msg = fmt.Sprintf("the value is a %s, want %s", kind, goTypeName(sm[3]))
+				}
+				if root != nil {
+					e.Field = fieldAtLine(root, e.Line, sm[1])
+				}
 			}
 			es = append(es, e)
 		}
@@ -270,6 +288,10 @@ func goTypeName(t string) string {
 		return "a number"
 	case t == "string":
 		return "a string"
+	case t == "[]analysis.sampleDoc":
+		return "a list of simulated samples (- file: ...)"
+	case t == "[]analysis.bkgDoc":
+		return "a list of backgrounds (- name: ...)"
 	case strings.HasPrefix(t, "[]"):
 		return "a list"
 	case strings.HasPrefix(t, "analysis."):
@@ -281,6 +303,10 @@ func goTypeName(t string) string {
 // parse decodes src strictly into the document structure and the node
 // tree (kept for positions).
 func parse(file string, src []byte) (*fileDoc, *yaml.Node, error) {
+	var root yaml.Node
+	if err := yaml.Unmarshal(src, &root); err != nil {
+		return nil, nil, translate(file, err, nil)
+	}
 	var doc fileDoc
 	dec := yaml.NewDecoder(bytes.NewReader(src))
 	dec.KnownFields(true)
@@ -288,11 +314,7 @@ func parse(file string, src []byte) (*fileDoc, *yaml.Node, error) {
 		if errors.Is(err, io.EOF) {
 			return nil, nil, &Error{File: file, Msg: "the file is empty"}
 		}
-		return nil, nil, translate(file, err)
-	}
-	var root yaml.Node
-	if err := yaml.Unmarshal(src, &root); err != nil {
-		return nil, nil, translate(file, err)
+		return nil, nil, translate(file, err, &root)
 	}
 	var extra yaml.Node
 	if err := dec.Decode(&extra); err == nil {
@@ -435,4 +457,48 @@ func unwrapPath(err error) error {
 		return pe.Err
 	}
 	return err
+}
+
+// fieldAtLine returns the path of the value of the given YAML kind
+// (the tag in the library's message: !!map, !!seq, or a scalar tag) that
+// starts on line, for messages ("" if none).
+func fieldAtLine(root *yaml.Node, line int, tag string) string {
+	want := yaml.ScalarNode
+	switch tag {
+	case "!!map":
+		want = yaml.MappingNode
+	case "!!seq":
+		want = yaml.SequenceNode
+	}
+	found := ""
+	var walk func(n *yaml.Node, path string)
+	walk = func(n *yaml.Node, path string) {
+		if n == nil || found != "" {
+			return
+		}
+		if n.Line == line && n.Kind == want && path != "" {
+			found = path
+			return
+		}
+		switch n.Kind {
+		case yaml.DocumentNode:
+			for _, c := range n.Content {
+				walk(c, path)
+			}
+		case yaml.MappingNode:
+			for i := 0; i+1 < len(n.Content); i += 2 {
+				p := n.Content[i].Value
+				if path != "" {
+					p = path + "." + p
+				}
+				walk(n.Content[i+1], p)
+			}
+		case yaml.SequenceNode:
+			for i, c := range n.Content {
+				walk(c, fmt.Sprintf("%s[%d]", path, i))
+			}
+		}
+	}
+	walk(root, "")
+	return found
 }
