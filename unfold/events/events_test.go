@@ -15,6 +15,7 @@ import (
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/compress"
 	"go-hep.org/x/hep/groot"
+	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/rtree"
 )
 
@@ -702,5 +703,53 @@ func TestROOTNtuple(t *testing.T) {
 		if got[0][i] != float64(i)+0.5 || got[1][i] != float64(i) {
 			t.Fatalf("entry %d: x %v y %v", i, got[1][i], got[0][i])
 		}
+	}
+}
+
+// TestROOTTreeChoice: a file with two trees needs the tree named; a tree in
+// a directory is reached by its path.
+func TestROOTTreeChoice(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "two.root")
+	f, err := groot.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var x float64
+	for _, name := range []string{"sim", "data"} {
+		w, err := rtree.NewWriter(f, name, []rtree.WriteVar{{Name: "x", Value: &x}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range 3 {
+			x = float64(i) + b2f(name == "data")*10
+			w.Write()
+		}
+		w.Close()
+	}
+	dir, err := riofs.Dir(f).Mkdir("sub")
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := rtree.NewWriter(dir, "deep", []rtree.WriteVar{{Name: "x", Value: &x}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	x = 42
+	w.Write()
+	w.Close()
+	f.Close()
+
+	if _, err := Open(path, Options{}); err == nil || !strings.Contains(err.Error(), "2 trees (sim, data); say which one to read") {
+		t.Errorf("two trees, none named: %v", err)
+	}
+	for tree, want := range map[string][]float64{"data": {10, 11, 12}, "sim": {0, 1, 2}, "sub/deep": {42}} {
+		src, err := Open(path, Options{Tree: tree})
+		if err != nil {
+			t.Fatalf("tree %s: %v", tree, err)
+		}
+		if got := readAll(t, src, []string{"x"}, 2); !reflect.DeepEqual(got[0], want) {
+			t.Errorf("tree %s: %v, want %v", tree, got[0], want)
+		}
+		src.Close()
 	}
 }
