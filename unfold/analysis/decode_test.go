@@ -72,7 +72,7 @@ func TestDecodeErrors(t *testing.T) {
 		{"    scale: 2\n", "    scale: -2\n", `testdata/bad.yaml:23: backgrounds[0].scale: must be a finite number > 0`},
 		{"  iterations: 3", "  iterations: 3\n  stop_chi2: 0.1", `unfolding.stop_chi2: give either iterations or stop_chi2`},
 		{"  events: data.csv", "  events: data.csv\n  table: n.csv", `data: give exactly one of`},
-		{"  - file: sim.csv\n    weight: w", "  file: sim.csv\n  weight: w", `testdata/bad.yaml:13: simulation: the value is a mapping, want a list of simulated samples`},
+		{"  - file: sim.csv\n    weight: w\n    truth_selection: pt\n    reco_selection: pr", "  file: sim.csv\n  weight: w\n  truth_selection: pt\n  reco_selection: pr", `testdata/bad.yaml:13: simulation: the value is a mapping, want a list of simulated samples`},
 		{"  - file: sim.csv", "  - file: sim.txt", `testdata/bad.yaml:13: simulation[0].file: unknown events format of "sim.txt"`},
 	}
 	for _, c := range cases {
