@@ -44,6 +44,12 @@ type partition struct {
 	colored bool
 	clr     []int
 
+	// rowBounds is the fixed partition of the rows handed to the rows
+	// hook of SweepRows; odd block b of a colored partition finishes the
+	// ranges rFirst[b]..rFirst[b+1]-1.
+	rowBounds []int
+	rFirst    []int
+
 	mu   sync.Mutex
 	free []*workspace
 }
@@ -67,15 +73,54 @@ func newPartitionMin(rows int, colPtr, rowIdx []int, minBlock int) *partition {
 	p := &partition{rows: rows, cols: cols, nnz: nnz, parallel: nnz >= parallelNNZ}
 	target := min(max(nnz/targetBlocks, minBlock), maxBlockNNZ)
 	p.split(target, colPtr, rowIdx)
-	if p.color() {
-		return p
+	if !p.color() {
+		for len(p.lo) > 1 && p.off[len(p.lo)] > bufferPerRows*rows+minBlock {
+			target *= 2 // spread-out columns: fewer, larger blocks
+			p.split(target, colPtr, rowIdx)
+		}
+		p.plan()
 	}
-	for len(p.lo) > 1 && p.off[len(p.lo)] > bufferPerRows*rows+minBlock {
-		target *= 2 // spread-out columns: fewer, larger blocks
-		p.split(target, colPtr, rowIdx)
-	}
-	p.plan()
+	p.ranges()
 	return p
+}
+
+// ranges fixes the row ranges of SweepRows: for a colored partition, the
+// rows finished by each odd block (from its first row, or 0, to the first
+// row of the next odd block, or the end), cut into pieces of at most
+// reduceRows; with buffers, the reduction tasks; with one block, pieces
+// of reduceRows.
+func (p *partition) ranges() {
+	p.rowBounds = append(p.rowBounds[:0], 0)
+	cut := func(start, end int) {
+		for r := start + reduceRows; r < end; r += reduceRows {
+			p.rowBounds = append(p.rowBounds, r)
+		}
+		if end > start {
+			p.rowBounds = append(p.rowBounds, end)
+		}
+	}
+	switch nb := len(p.lo); {
+	case p.colored:
+		p.rFirst = make([]int, nb+1)
+		for b := 1; b < nb; b += 2 {
+			start, end := 0, p.rows
+			if b > 1 {
+				start = p.lo[b]
+			}
+			if b+2 < nb {
+				end = p.lo[b+2]
+			}
+			p.rFirst[b] = len(p.rowBounds) - 1
+			cut(start, end)
+			p.rFirst[b+1] = len(p.rowBounds) - 1
+		}
+	case len(p.tasks) > 0:
+		for _, t := range p.tasks {
+			p.rowBounds = append(p.rowBounds, t.end)
+		}
+	default:
+		cut(0, p.rows)
+	}
 }
 
 // color reports whether the blocks can scatter in two phases without
@@ -202,6 +247,7 @@ type workspace struct {
 	dst    []float64
 	x      []float64
 	update func(j int, g float64) float64
+	rows   func(r, lo, hi int)
 	ntask  int64
 	next   atomic.Int64
 	wg     sync.WaitGroup
@@ -223,7 +269,7 @@ func (p *partition) get(m *Matrix) *workspace {
 }
 
 func (p *partition) put(ws *workspace) {
-	ws.m, ws.dst, ws.x, ws.update = nil, nil, nil, nil
+	ws.m, ws.dst, ws.x, ws.update, ws.rows = nil, nil, nil, nil, nil
 	p.mu.Lock()
 	p.free = append(p.free, ws)
 	p.mu.Unlock()
@@ -265,7 +311,7 @@ func startHelpers(n int) {
 // kernels with several blocks) phase 2 over the reduction tasks. Both
 // phases compute exactly the same operations in the same order whether
 // one goroutine or many run them.
-func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) float64) {
+func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) float64, rows func(r, lo, hi int)) {
 	p := m.part
 	nb := p.blocks()
 	scatter := kind == kFold || kind == kSweep || kind == kRowSums
@@ -273,10 +319,15 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 		// One block: the destination is the buffer.
 		ws := workspace{p: p, m: m, kind: kind, dst: dst, x: x, update: update}
 		ws.block(0)
+		if rows != nil {
+			for r := 0; r+1 < len(p.rowBounds); r++ {
+				rows(r, p.rowBounds[r], p.rowBounds[r+1])
+			}
+		}
 		return
 	}
 	ws := p.get(m)
-	ws.kind, ws.dst, ws.x, ws.update = kind, dst, x, update
+	ws.kind, ws.dst, ws.x, ws.update, ws.rows = kind, dst, x, update, rows
 	workers := 1
 	if p.parallel {
 		workers = min(runtime.GOMAXPROCS(0), nb)
@@ -323,10 +374,20 @@ func (ws *workspace) run(ph int) {
 			ws.block(int(t))
 		case phaseReduce:
 			ws.reduce(int(t))
+			if ws.rows != nil {
+				ws.rows(int(t), ws.p.rowBounds[t], ws.p.rowBounds[t+1])
+			}
 		case phaseEven:
 			ws.block(2 * int(t))
 		case phaseOdd:
-			ws.block(2*int(t) + 1)
+			b := 2*int(t) + 1
+			ws.block(b)
+			if ws.rows != nil {
+				rb := ws.p.rowBounds
+				for r := ws.p.rFirst[b]; r < ws.p.rFirst[b+1]; r++ {
+					ws.rows(r, rb[r], rb[r+1])
+				}
+			}
 		}
 	}
 }
@@ -472,7 +533,7 @@ func (m *Matrix) Fold(dst, x []float64) {
 	if len(dst) != m.rows || len(x) != m.cols {
 		panic("sparse: Fold dimension mismatch")
 	}
-	m.exec(kFold, dst, x, nil)
+	m.exec(kFold, dst, x, nil, nil)
 }
 
 // BackProject computes dst = Aᵀ y, overwriting dst. len(dst) must be the
@@ -482,7 +543,7 @@ func (m *Matrix) BackProject(dst, y []float64) {
 	if len(dst) != m.cols || len(y) != m.rows {
 		panic("sparse: BackProject dimension mismatch")
 	}
-	m.exec(kBackProject, dst, y, nil)
+	m.exec(kBackProject, dst, y, nil, nil)
 }
 
 // Sweep makes one fused pass over the matrix. For every column j it
@@ -501,7 +562,34 @@ func (m *Matrix) Sweep(next, y []float64, update func(j int, g float64) float64)
 	if len(next) != m.rows || len(y) != m.rows {
 		panic("sparse: Sweep dimension mismatch")
 	}
-	m.exec(kSweep, next, y, update)
+	m.exec(kSweep, next, y, update, nil)
+}
+
+// RowRanges returns the fixed partition of the rows used by SweepRows:
+// range r covers the rows b[r]..b[r+1]-1 of the returned b (len(b)-1
+// ranges, at most 2^14 rows each, in increasing order, covering all
+// rows). It depends only on the matrix structure. The slice must not be
+// modified.
+func (m *Matrix) RowRanges() []int { return m.part.rowBounds }
+
+// SweepRows is Sweep with a hook on finished rows: for every range r of
+// RowRanges it calls rows(r, lo, hi) exactly once, as soon as next[lo:hi]
+// holds its final values, which is while the scatter still runs over
+// other rows and usually while next[lo:hi] is still in cache. It lets the
+// caller fold its per-row work (for example the ratio of data to the new
+// folded spectrum and a likelihood) into the same pass.
+//
+// rows may be called concurrently for different ranges, and concurrently
+// with update. It may read and write next[lo:hi] and state belonging to
+// range r; it must not touch next outside [lo, hi) nor modify y (other
+// columns may still be gathering from it). Per-range partial sums
+// combined in range order give results independent of the scheduling.
+// The other rules of Sweep apply.
+func (m *Matrix) SweepRows(next, y []float64, update func(j int, g float64) float64, rows func(r, lo, hi int)) {
+	if len(next) != m.rows || len(y) != m.rows {
+		panic("sparse: SweepRows dimension mismatch")
+	}
+	m.exec(kSweep, next, y, update, rows)
 }
 
 // ColSums writes the sum of each column into dst (length cols),
@@ -510,7 +598,7 @@ func (m *Matrix) ColSums(dst []float64) {
 	if len(dst) != m.cols {
 		panic("sparse: ColSums dimension mismatch")
 	}
-	m.exec(kColSums, dst, nil, nil)
+	m.exec(kColSums, dst, nil, nil, nil)
 }
 
 // RowSums writes the sum of each row into dst (length rows), overwriting
@@ -519,7 +607,7 @@ func (m *Matrix) RowSums(dst []float64) {
 	if len(dst) != m.rows {
 		panic("sparse: RowSums dimension mismatch")
 	}
-	m.exec(kRowSums, dst, nil, nil)
+	m.exec(kRowSums, dst, nil, nil, nil)
 }
 
 // ScaleCols multiplies column j by f[j] in place, and its sums of
@@ -537,5 +625,5 @@ func (m *Matrix) ScaleCols(f []float64) {
 			panic("sparse: ScaleCols with a non-finite factor")
 		}
 	}
-	m.exec(kScale, nil, f, nil)
+	m.exec(kScale, nil, f, nil, nil)
 }

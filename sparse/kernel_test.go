@@ -212,6 +212,34 @@ func TestKernelsMatchDense(t *testing.T) {
 			wantN, scaleN := mulRef(d, abs, xs, false)
 			checkVec(t, "Sweep scatter", next, wantN, scaleN)
 
+			// SweepRows: each fixed row range is handed over once, already
+			// holding the final values of next.
+			rb := m.RowRanges()
+			if rb[0] != 0 || rb[len(rb)-1] != rows && rows > 0 {
+				t.Fatalf("RowRanges %v do not cover %d rows", rb, rows)
+			}
+			nextR := nanVec(rows)
+			hits := make([]atomic.Int32, len(rb))
+			m.SweepRows(nextR, y, func(j int, g float64) float64 { return 0.5*g + x[j] },
+				func(r, lo, hi int) {
+					hits[r].Add(1)
+					if lo != rb[r] || hi != rb[r+1] || hi-lo > 1<<14 {
+						t.Errorf("rows(%d, %d, %d), RowRanges gives [%d, %d)", r, lo, hi, rb[r], rb[r+1])
+						return
+					}
+					for i := lo; i < hi; i++ {
+						if math.Float64bits(nextR[i]) != math.Float64bits(next[i]) {
+							t.Errorf("rows(%d): next[%d] = %v when handed over, final %v", r, i, nextR[i], next[i])
+							return
+						}
+					}
+				})
+			for r := 0; r+1 < len(rb); r++ {
+				if n := hits[r].Load(); n != 1 {
+					t.Fatalf("SweepRows handed range %d over %d times", r, n)
+				}
+			}
+
 			ones := func(n int) []float64 {
 				v := make([]float64, n)
 				for i := range v {
@@ -326,11 +354,15 @@ func TestKernelsNoAllocation(t *testing.T) {
 		rows, cols := m.Dims()
 		x, y, dst, back := randomVec(rng, cols), randomVec(rng, rows), make([]float64, rows), make([]float64, cols)
 		update := func(j int, g float64) float64 { return g * x[j] }
+		part := make([]float64, len(m.RowRanges()))
+		hook := func(r, lo, hi int) { part[r] += dst[lo] }
 		m.Sweep(dst, y, update) // warm-up
+		m.SweepRows(dst, y, update, hook)
 		if a := testing.AllocsPerRun(20, func() {
 			m.Fold(dst, x)
 			m.BackProject(back, y)
 			m.Sweep(dst, y, update)
+			m.SweepRows(dst, y, update, hook)
 			m.RowSums(dst)
 			m.ColSums(back)
 		}); a != 0 {
