@@ -136,6 +136,42 @@ func BenchmarkSweep(b *testing.B) {
 	}, func(m *Matrix) { m.Sweep(next, y, update) })
 }
 
+// BenchmarkSweepRows is BenchmarkSweep with the per-row work of an EM
+// iteration folded into the pass through the row hook: the ratio of data
+// to the new fold, y' = n / next, into a second array. Model bytes: those
+// of the sweep plus n read and y' written.
+func BenchmarkSweepRows(b *testing.B) {
+	m := fineMatrix(b)
+	x, eps := make([]float64, m.cols), make([]float64, m.cols)
+	m.ColSums(eps)
+	for j := range x {
+		x[j] = 1
+	}
+	y, next, data, y2 := make([]float64, m.rows), make([]float64, m.rows), make([]float64, m.rows), make([]float64, m.rows)
+	for i := range y {
+		y[i], data[i] = 1, 1
+	}
+	update := func(j int, g float64) float64 {
+		v := x[j] * g / eps[j]
+		x[j] = v
+		return v
+	}
+	rows := func(r, lo, hi int) {
+		nu, d, out := next[lo:hi], data[lo:hi], y2[lo:hi]
+		d, out = d[:len(nu)], out[:len(nu)]
+		for i, v := range nu {
+			if v > 0 {
+				out[i] = d[i] / v
+			} else {
+				out[i] = 0
+			}
+		}
+	}
+	kernelBench(b, func(m *Matrix) float64 {
+		return matrixBytes(m) + 32*float64(m.rows) + 24*float64(m.cols)
+	}, func(m *Matrix) { m.SweepRows(next, y, update, rows) })
+}
+
 // BenchmarkFold is dst = A x. Model bytes: one matrix pass, x read, dst
 // written.
 func BenchmarkFold(b *testing.B) {
