@@ -122,6 +122,10 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("response: exit %d\n%s", code, stderr)
 	}
+	// stderr is not a terminal here: no progress bar.
+	if strings.Contains(stderr, "%") || strings.Contains(stderr, "events/s") {
+		t.Errorf("progress output on a non-terminal stderr: %q", stderr)
+	}
 	for _, want := range []string{"events read:        20000", "misses:", "fakes:", "outside truth:", "negative cells:     0", "efficiency", "purity", "stability"} {
 		if !strings.Contains(stdout, want) {
 			t.Errorf("response summary lacks %q:\n%s", want, stdout)
