@@ -365,3 +365,35 @@ func TestAccumulateErrors(t *testing.T) {
 		t.Error("AddBatch after Matrix accepted")
 	}
 }
+
+// TestAccumulateErrorReleasesWaiters makes one batch invalid while other
+// goroutines wait for their turn beyond a small window: every call must
+// return (with the error), none may stay blocked.
+func TestAccumulateErrorReleasesWaiters(t *testing.T) {
+	a, _ := NewAccumulator(10, 10, &AccumulatorOptions{Window: 2})
+	var wg sync.WaitGroup
+	errs := make([]error, 16)
+	for s := 15; s >= 0; s-- { // later batches first: they block
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			row := int32(1)
+			if s == 3 {
+				row = 10 // out of range
+			}
+			errs[s] = a.AddBatch(uint64(s), []int32{row}, []int32{1}, []float64{1})
+		}()
+	}
+	wg.Wait()
+	if errs[3] == nil {
+		t.Fatal("invalid batch 3 accepted")
+	}
+	for s := 4; s < 16; s++ {
+		if errs[s] == nil && uint64(s) >= 3+2 {
+			t.Errorf("batch %d beyond the window of the failed batch returned no error", s)
+		}
+	}
+	if _, _, err := a.Matrix(); err == nil {
+		t.Error("Matrix after a failed batch returned no error")
+	}
+}
