@@ -753,3 +753,40 @@ func TestROOTTreeChoice(t *testing.T) {
 		src.Close()
 	}
 }
+
+// TestNoColumns: reading no column still delivers the events' count.
+func TestNoColumns(t *testing.T) {
+	dir := t.TempDir()
+	names, cols := sampleColumns(2345)
+	for _, file := range []string{"n.root", "n.parquet", "n.csv"} {
+		p := filepath.Join(dir, file)
+		var err error
+		switch filepath.Ext(file) {
+		case ".root":
+			err = WriteROOT(p, "events", names, cols)
+		case ".parquet":
+			err = WriteParquet(p, names, cols)
+		default:
+			err = WriteCSV(p, names, cols)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		src, err := Open(p, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var n int64
+		err = src.Read(context.Background(), nil, 1000, func(b *Batch) error {
+			if b.Start != n || len(b.Cols) != 0 {
+				t.Fatalf("%s: batch at %d with %d columns, want %d and 0", file, b.Start, len(b.Cols), n)
+			}
+			n += int64(b.Len)
+			return nil
+		})
+		if err != nil || n != 2345 {
+			t.Errorf("%s: %d events, error %v", file, n, err)
+		}
+		src.Close()
+	}
+}

@@ -249,6 +249,20 @@ func (r *ROOT) Read(ctx context.Context, columns []string, batchSize int, fn fun
 	if err != nil {
 		return err
 	}
+	if len(columns) == 0 {
+		// Nothing to decode: batches of the right lengths only.
+		b := &Batch{}
+		for b.Start = 0; b.Start < r.tree.Entries(); b.Start += int64(b.Len) {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			b.Len = int(min(int64(batchSize), r.tree.Entries()-b.Start))
+			if err := fn(b); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
 	workers := r.workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
