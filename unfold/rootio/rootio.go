@@ -59,14 +59,12 @@ func (h *Hist2D) NBins() (nx, ny int) { return len(h.XEdges) - 1, len(h.YEdges) 
 // 0 <= iy <= ny+1.
 func (h *Hist2D) Index(ix, iy int) int { return ix + (len(h.XEdges)+1)*iy }
 
-// Fill adds weight w at x, in the cell ROOT would choose: a value equal to an
-// inner edge goes to the bin above it, x < first edge to the underflow, x >=
-// last edge to the overflow; NaN is ignored.
+// Fill adds weight w at x, in the cell ROOT's TAxis::FindBin chooses: a
+// value equal to an inner edge goes to the bin above it, x < first edge to
+// the underflow, x >= last edge and NaN to the overflow (from memory of
+// ROOT's TAxis source: the test is !(x < xmax)).
 func (h *Hist1D) Fill(x, w float64) {
-	i, ok := cellOf(h.Edges, x)
-	if !ok {
-		return
-	}
+	i := cellOf(h.Edges, x)
 	h.SumW[i] += w
 	h.SumW2[i] += w * w
 	h.Entries++
@@ -74,27 +72,19 @@ func (h *Hist1D) Fill(x, w float64) {
 
 // Fill adds weight w at (x, y) as Hist1D.Fill does along each axis.
 func (h *Hist2D) Fill(x, y, w float64) {
-	ix, okx := cellOf(h.XEdges, x)
-	iy, oky := cellOf(h.YEdges, y)
-	if !okx || !oky {
-		return
-	}
-	i := h.Index(ix, iy)
+	i := h.Index(cellOf(h.XEdges, x), cellOf(h.YEdges, y))
 	h.SumW[i] += w
 	h.SumW2[i] += w * w
 	h.Entries++
 }
 
-func cellOf(edges []float64, x float64) (int, bool) {
-	if x != x {
-		return 0, false
-	}
+func cellOf(edges []float64, x float64) int {
 	n := len(edges) - 1
 	if x < edges[0] {
-		return 0, true
+		return 0
 	}
-	if x >= edges[n] {
-		return n + 1, true
+	if !(x < edges[n]) {
+		return n + 1
 	}
 	lo, hi := 0, n // edges[lo] <= x < edges[hi]
 	for hi-lo > 1 {
@@ -105,7 +95,7 @@ func cellOf(edges []float64, x float64) (int, bool) {
 			hi = m
 		}
 	}
-	return lo + 1, true
+	return lo + 1
 }
 
 // h1Reader is what ReadHist1D needs from a ROOT 1-D histogram.

@@ -109,9 +109,7 @@ func TestReadGaussH2(t *testing.T) {
 		sum32 := make([]float32, len(ref.SumW))
 		fill := func(x, y, w float64) {
 			ref.Fill(x, y, w)
-			ix, _ := cellOf(tc.edges, x)
-			iy, _ := cellOf(tc.edges, y)
-			sum32[ref.Index(ix, iy)] += float32(w)
+			sum32[ref.Index(cellOf(tc.edges, x), cellOf(tc.edges, y))] += float32(w)
 		}
 		for _, ev := range data {
 			fill(ev[0], ev[1], ev[2])
@@ -187,8 +185,7 @@ func TestReadGaussH1(t *testing.T) {
 		sum32 := make([]float32, len(ref.SumW))
 		for _, ev := range data {
 			ref.Fill(ev[0], ev[1])
-			i, _ := cellOf(h.Edges, ev[0])
-			sum32[i] += float32(ev[1])
+			sum32[cellOf(h.Edges, ev[0])] += float32(ev[1])
 		}
 		if h.Entries != 10004 {
 			t.Errorf("%s: entries %v, want 10004", tc.key, h.Entries)
@@ -477,5 +474,16 @@ func TestReadProfileRefused(t *testing.T) {
 	}
 	if n == 0 {
 		t.Errorf("no profiles found in %s: %v", path, keys)
+	}
+}
+
+func TestFillCells(t *testing.T) {
+	h := NewHist1D("h", []float64{0, 1, 2})
+	for _, x := range []float64{-1, 0, 0.5, 1, 2, 3, math.NaN(), math.Inf(-1), math.Inf(1)} {
+		h.Fill(x, 1)
+	}
+	// underflow: -1, -Inf; bin 1: 0, 0.5; bin 2: 1; overflow: 2, 3, NaN, +Inf
+	if fmt.Sprint(h.SumW) != "[2 2 1 4]" || h.Entries != 9 {
+		t.Errorf("cells %v entries %v", h.SumW, h.Entries)
 	}
 }
