@@ -331,3 +331,28 @@ func TestOracleKBackground(t *testing.T) {
 		}
 	}
 }
+
+// Oracle G of the methods notes §6/§7 (closed form of matrix inversion):
+// for the symmetric 2×2 response R = [[1−p, p], [p, 1−p]] and n = (1000,
+// 1000), many iterations reach the inverse, whose covariance
+// R⁻¹ diag(n) R⁻ᵀ has Var = [(1−p)² n_1 + p² n_2]/(1−2p)² and correlation
+// −2p(1−p)/((1−p)² + p²): p = 0.1 gives 1281.25 and −0.219512, p = 0.3
+// gives 3625 and −0.724138.
+func TestOracleGInversionLimit(t *testing.T) {
+	for _, c := range []struct{ p, v, rho float64 }{{0.1, 1281.25, -0.219512}, {0.3, 3625, -0.724138}} {
+		pr := denseProblem(t, [][]float64{{1 - c.p, c.p}, {c.p, 1 - c.p}}, []float64{1000, 1000})
+		pr.Prior = []float64{1, 2} // away from the solution, which is (1000, 1000)
+		res := unfoldOrFail(t, pr, &Settings{Iterations: 4000, Covariance: Full})
+		for j := 0; j < 2; j++ {
+			if !near(res.Estimate[j], 1000, 1e-9) {
+				t.Errorf("p=%g μ_%d = %.10g, want 1000", c.p, j, res.Estimate[j])
+			}
+			if v := res.Covariance.At(j, j); !near(v, c.v, 1e-8) {
+				t.Errorf("p=%g Var_%d = %.8g, want %g", c.p, j, v, c.v)
+			}
+		}
+		if rho := res.Covariance.At(0, 1) / (res.Uncertainty[0] * res.Uncertainty[1]); math.Abs(rho-c.rho) > 1e-6 {
+			t.Errorf("p=%g correlation %.6f, want %.6f", c.p, rho, c.rho)
+		}
+	}
+}
