@@ -56,6 +56,7 @@ func toyVariances(ctx context.Context, m *model, sm *smoother, weighted bool, it
 		mod model
 		n   []float64
 		b   []float64
+		res Result
 		err error
 	}
 	slots := make([]slot, workers)
@@ -81,7 +82,7 @@ func toyVariances(ctx context.Context, m *model, sm *smoother, weighted bool, it
 		forEach(batch, batch, func(w int) {
 			sl := &slots[w]
 			toyData(m, weighted, seed, t0+w, sl.n, sl.b)
-			_, sl.err = sl.it.run(ctx, sl.n, rs, nil)
+			sl.err = sl.it.iterate(ctx, sl.n, rs, nil, &sl.res)
 		})
 		for w := 0; w < batch; w++ {
 			if err := slots[w].err; err != nil {

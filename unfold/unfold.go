@@ -265,25 +265,40 @@ func (it *iterator) compare() (chi2, change float64) {
 }
 
 // run iterates from the prior for data n under the stopping rule of rs,
-// carrying tan (may be nil) along.
+// carrying tan (may be nil) along, and returns the result with copies of
+// the final estimate and fold.
 func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tangents) (*Result, error) {
-	if err := ctx.Err(); err != nil {
+	res := &Result{}
+	if err := it.iterate(ctx, n, rs, tan, res); err != nil {
 		return nil, err
 	}
-	res := &Result{History: []Step{{LogLikelihood: it.start(n)}}}
+	res.Estimate = append([]float64(nil), it.mu...)
+	res.Folded = append([]float64(nil), it.nu...)
+	return res, nil
+}
+
+// iterate runs the iteration, recording History, Iterations and
+// Converged into res; the final estimate stays in it.mu and its fold in
+// it.nu.
+func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan tangents, res *Result) error {
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	res.History = append(res.History[:0], Step{LogLikelihood: it.start(n)})
+	res.Iterations, res.Converged = 0, false
 	if tan != nil {
 		if err := tan.init(ctx, it); err != nil {
-			return nil, err
+			return err
 		}
 	}
 	for k := 1; k <= rs.maxIter; k++ {
 		if err := ctx.Err(); err != nil {
-			return nil, err
+			return err
 		}
 		it.emStep()
 		if tan != nil {
 			if err := tan.step(ctx, it); err != nil {
-				return nil, err
+				return err
 			}
 		}
 		chi2, change := it.compare()
@@ -291,7 +306,7 @@ func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tang
 		it.fold, it.fnext = it.fnext, it.fold
 		ll := it.reco()
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
-			return nil, &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow)"}
+			return &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow)"}
 		}
 		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
 		res.Iterations = k
@@ -300,7 +315,5 @@ func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tang
 			break
 		}
 	}
-	res.Estimate = append([]float64(nil), it.mu...)
-	res.Folded = append([]float64(nil), it.nu...)
-	return res, nil
+	return nil
 }
