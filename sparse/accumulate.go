@@ -12,7 +12,7 @@ import (
 
 // DefaultChunkEntries is the default number of entries an Accumulator
 // sorts together (see AccumulatorOptions.ChunkEntries).
-const DefaultChunkEntries = 1 << 20
+const DefaultChunkEntries = 1 << 19
 
 // DefaultWindow is the default number of batches an Accumulator holds
 // ahead of the next expected sequence number.
@@ -124,8 +124,9 @@ type Accumulator struct {
 	readyCells int
 	nextMerge  uint64
 	merging    bool
-	segs       []*segment // the distinct cells, split by key range
-	cells      int        // number of distinct cells in segs
+	segs       []*segment   // the distinct cells, split by key range
+	tmp        []*[2][]cell // per merging goroutine, for combining run parts
+	cells      int          // number of distinct cells in segs
 
 	// serial feed (Add)
 	ser    heldBatch
@@ -430,7 +431,7 @@ func (a *Accumulator) popChunk() *chunkBuf {
 }
 
 // maxGroup is the largest number of runs merged into the store at once.
-const maxGroup = 8
+const maxGroup = 16
 
 // cell is one distinct cell: its packed key and sums.
 type cell struct {
@@ -559,25 +560,29 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 		}
 	}
 	var next atomic.Int64
-	work := func() {
+	g := min(runtime.GOMAXPROCS(0), len(a.segs))
+	for len(a.tmp) < g {
+		a.tmp = append(a.tmp, new([2][]cell))
+	}
+	work := func(tmp *[2][]cell) {
 		for {
 			i := int(next.Add(1) - 1)
 			if i >= len(a.segs) {
 				return
 			}
-			a.segs[i].merge()
+			a.segs[i].merge(tmp)
 		}
 	}
-	if g := min(runtime.GOMAXPROCS(0), len(a.segs)); g > 1 {
+	if g > 1 {
 		var wg sync.WaitGroup
 		for k := 1; k < g; k++ {
 			wg.Add(1)
-			go func() { defer wg.Done(); work() }()
+			go func() { defer wg.Done(); work(a.tmp[k]) }()
 		}
-		work()
+		work(a.tmp[0])
 		wg.Wait()
 	} else {
-		work()
+		work(a.tmp[0])
 	}
 	// Split the segments that grew too large.
 	segs := a.segs[:0:0]
@@ -621,12 +626,15 @@ func searchCells(cs []cell, bound uint64) int {
 	return lo
 }
 
-// merge merges the segment's run parts into it, in place when the
-// backing array has room: a store at its start is merged backwards, from
-// the last cell, writing from the end of the array; a store at its end is
-// merged forwards, writing from the start. Either way no write overtakes
-// a store cell not yet read.
-func (sg *segment) merge() {
+// merge merges the segment's run parts into it. Several parts are first
+// combined into one sequence sorted by key in which equal keys keep the
+// run order (pairwise stable merges in tmp, which is cache-sized since a
+// segment is small). The sequence is then merged into the store in place
+// when the backing array has room: a store at its start is merged
+// backwards, from the last cell, writing from the end of the array; a
+// store at its end is merged forwards, writing from the start. Either way
+// no write overtakes a store cell not yet read.
+func (sg *segment) merge(tmp *[2][]cell) {
 	ns := len(sg.cells)
 	need := ns
 	for _, r := range sg.runs {
@@ -635,91 +643,117 @@ func (sg *segment) merge() {
 	if need == ns {
 		return
 	}
+	seq := combine(sg.runs, tmp)
 	off := cap(sg.back) - cap(sg.cells)
 	if ns == 0 {
 		off = 0
 	}
 	switch {
 	case cap(sg.back) < need:
-		back := make([]cell, max(need+need/4, 1<<10))
-		sg.cells = mergeBackward(back, sg.cells, sg.runs)
+		back := make([]cell, max(need+need/8, 1<<10))
+		sg.cells = mergeBackward(back, sg.cells, seq)
 		sg.back = back
 	case off == 0:
-		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
+		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, seq)
 	case off+ns == cap(sg.back):
-		sg.cells = mergeForward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
+		sg.cells = mergeForward(sg.back[:cap(sg.back)], sg.cells, seq)
 	default:
 		// In the middle (cannot happen with the placements above, but
 		// cheap to handle): move to the start first.
 		sg.cells = sg.back[:copy(sg.back, sg.cells)]
-		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, sg.runs)
+		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, seq)
 	}
 }
 
-// mergeBackward merges src and the runs rs into the end of dst, which may
-// be src's own array with src at its start, and returns the merged cells.
-func mergeBackward(dst, src []cell, rs [][]cell) []cell {
+// combine returns the parts merged into one key-sorted sequence in which
+// equal keys appear in part order. A single part is returned as it is.
+func combine(parts [][]cell, tmp *[2][]cell) []cell {
+	var n int
+	live := parts[:0:0]
+	for _, p := range parts {
+		if len(p) > 0 {
+			live = append(live, p)
+			n += len(p)
+		}
+	}
+	if len(live) == 1 {
+		return live[0]
+	}
+	for k := range tmp {
+		if cap(tmp[k]) < n {
+			tmp[k] = make([]cell, n+n/4)
+		}
+	}
+	buf := 0
+	for len(live) > 1 {
+		out := tmp[buf][:0]
+		next := live[:0:0]
+		for i := 0; i < len(live); i += 2 {
+			start := len(out)
+			if i+1 == len(live) {
+				out = append(out, live[i]...)
+			} else {
+				out = mergeStable(out, live[i], live[i+1])
+			}
+			next = append(next, out[start:])
+		}
+		live = next
+		buf ^= 1
+	}
+	return live[0]
+}
+
+// mergeStable appends the merge of the key-sorted a and b to out; on equal
+// keys the cells of a come first.
+func mergeStable(out, a, b []cell) []cell {
+	i, j := 0, 0
+	for i < len(a) && j < len(b) {
+		if b[j].key < a[i].key {
+			out = append(out, b[j])
+			j++
+		} else {
+			out = append(out, a[i])
+			i++
+		}
+	}
+	out = append(out, a[i:]...)
+	return append(out, b[j:]...)
+}
+
+// mergeBackward merges src (distinct keys) and seq (sorted, equal keys in
+// run order) into the end of dst, which may be src's own array with src
+// at its start, and returns the merged cells. A cell's sums are the
+// store's, then those of its entries in seq in order, added left to
+// right.
+func mergeBackward(dst, src, seq []cell) []cell {
 	s, w := len(src)-1, len(dst)-1
-	if len(rs) == 1 {
-		r := rs[0]
-		for p := len(r) - 1; p >= 0; p-- {
-			c := r[p]
-			for s >= 0 && src[s].key > c.key {
-				dst[w] = src[s]
-				s--
-				w--
-			}
-			if s >= 0 && src[s].key == c.key {
-				c.sw = src[s].sw + c.sw
-				c.sw2 = src[s].sw2 + c.sw2
-				s--
-			}
-			dst[w] = c
+	for p := len(seq) - 1; p >= 0; {
+		key := seq[p].key
+		q := p
+		for q > 0 && seq[q-1].key == key {
+			q--
+		}
+		for s >= 0 && src[s].key > key {
+			dst[w] = src[s]
+			s--
 			w--
 		}
-	} else {
-		var pos [maxGroup]int
-		for q, r := range rs {
-			pos[q] = len(r) - 1
+		var c cell
+		first := q
+		if s >= 0 && src[s].key == key {
+			c = src[s]
+			s--
+		} else {
+			c = seq[q]
+			first = q + 1
 		}
-		for {
-			var key uint64
-			have := false
-			for q, r := range rs {
-				if p := pos[q]; p >= 0 && (!have || r[p].key > key) {
-					key, have = r[p].key, true
-				}
-			}
-			if !have {
-				break
-			}
-			for s >= 0 && src[s].key > key {
-				dst[w] = src[s]
-				s--
-				w--
-			}
-			c := cell{key: key}
-			started := false
-			if s >= 0 && src[s].key == key {
-				c = src[s]
-				started = true
-				s--
-			}
-			for q, r := range rs {
-				if p := pos[q]; p >= 0 && r[p].key == key {
-					if started {
-						c.sw += r[p].sw
-						c.sw2 += r[p].sw2
-					} else {
-						c = r[p]
-						started = true
-					}
-					pos[q] = p - 1
-				}
-			}
-			dst[w] = c
-			w--
+		for i := first; i <= p; i++ {
+			c.sw += seq[i].sw
+			c.sw2 += seq[i].sw2
 		}
+		dst[w] = c
+		w--
+		p = q - 1
 	}
 	// The store cells below every run key: copied unless already in place.
 	if n := s + 1; n > 0 && &dst[w-s] != &src[0] {
@@ -728,65 +762,38 @@ func mergeBackward(dst, src []cell, rs [][]cell) []cell {
 	return dst[w-s:]
 }
 
-// mergeForward merges src, which sits at the end of dst, and the runs rs
-// into the start of dst, and returns the merged cells.
-func mergeForward(dst, src []cell, rs [][]cell) []cell {
+// mergeForward merges src, which sits at the end of dst, and seq into
+// the start of dst, and returns the merged cells (sums as in
+// mergeBackward).
+func mergeForward(dst, src, seq []cell) []cell {
 	s, w := 0, 0
-	if len(rs) == 1 {
-		for _, c := range rs[0] {
-			for s < len(src) && src[s].key < c.key {
-				dst[w] = src[s]
-				s++
-				w++
-			}
-			if s < len(src) && src[s].key == c.key {
-				c.sw = src[s].sw + c.sw
-				c.sw2 = src[s].sw2 + c.sw2
-				s++
-			}
-			dst[w] = c
+	for p := 0; p < len(seq); {
+		key := seq[p].key
+		q := p + 1
+		for q < len(seq) && seq[q].key == key {
+			q++
+		}
+		for s < len(src) && src[s].key < key {
+			dst[w] = src[s]
+			s++
 			w++
 		}
-	} else {
-		var pos [maxGroup]int
-		for {
-			var key uint64
-			have := false
-			for q, r := range rs {
-				if p := pos[q]; p < len(r) && (!have || r[p].key < key) {
-					key, have = r[p].key, true
-				}
-			}
-			if !have {
-				break
-			}
-			for s < len(src) && src[s].key < key {
-				dst[w] = src[s]
-				s++
-				w++
-			}
-			c := cell{key: key}
-			started := false
-			if s < len(src) && src[s].key == key {
-				c = src[s]
-				started = true
-				s++
-			}
-			for q, r := range rs {
-				if p := pos[q]; p < len(r) && r[p].key == key {
-					if started {
-						c.sw += r[p].sw
-						c.sw2 += r[p].sw2
-					} else {
-						c = r[p]
-						started = true
-					}
-					pos[q] = p + 1
-				}
-			}
-			dst[w] = c
-			w++
+		var c cell
+		first := p
+		if s < len(src) && src[s].key == key {
+			c = src[s]
+			s++
+		} else {
+			c = seq[p]
+			first = p + 1
 		}
+		for i := first; i < q; i++ {
+			c.sw += seq[i].sw
+			c.sw2 += seq[i].sw2
+		}
+		dst[w] = c
+		w++
+		p = q
 	}
 	w += copy(dst[w:], src[s:])
 	return dst[:w]
@@ -837,22 +844,25 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	a.chunk = nil
 	entries := a.entries
 	a.mu.Unlock()
-	a.sortAndMerge(last, true)
-	// Release every buffer but the store.
-	a.freeH, a.ser, a.ready = nil, heldBatch{}, nil
-	a.held, a.runs = nil, nil
-
-	// The chunk buffers are garbage now; when they are large, collect them
-	// before the matrix arrays are allocated, which bounds the peak memory.
-	var chunkBytes int
+	a.sortAndMerge(last, false)
+	// The chunk and spare run buffers are garbage now; when they are
+	// large, collect them before the last merge and before the matrix
+	// arrays are allocated, which bounds the peak memory.
+	var spare int
 	for _, c := range a.freeC {
-		chunkBytes += 8 * (cap(c.k0) + cap(c.k1) + cap(c.w0) + cap(c.w1))
+		spare += 8 * (cap(c.k0) + cap(c.k1) + cap(c.w0) + cap(c.w1))
 	}
 	for _, r := range a.freeR {
-		chunkBytes += 24 * cap(r)
+		spare += 24 * cap(r)
 	}
-	a.freeC, a.freeR = nil, nil
-	if chunkBytes > 64<<20 {
+	a.freeC, a.freeR, a.freeH, a.ser = nil, nil, nil, heldBatch{}
+	if spare > 64<<20 {
+		runtime.GC()
+	}
+	pending := 24 * a.readyCells
+	a.sortAndMerge(nil, true)
+	a.freeR, a.ready, a.tmp, a.held, a.runs = nil, nil, nil, nil, nil
+	if pending > 64<<20 {
 		runtime.GC()
 	}
 	n := a.cells
