@@ -40,7 +40,9 @@ The response is saved as a bundle folder (--out; by default the analysis
 file's "response" key, or "response" beside the analysis file), which
 "desmear unfold ANALYSIS.yaml" loads when the analysis file names it. With
 --tables DIR the response is also written as the plain tables response.csv,
-generated.csv and background.csv that "desmear unfold --response ..." reads.
+generated.csv and background.csv (the simulation's fakes plus the scaled
+background samples) that "desmear unfold --response ..." reads; with the
+same data and settings both paths give the same result.
 
 The summary (events, migrations, misses, fakes, outside counts, negative
 cells, and per truth bin the efficiency, purity and stability) goes to
@@ -53,8 +55,8 @@ standard output.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.out, "out", "", "response bundle folder to write (default: the analysis file's response key, else \"response\" beside it)")
-	f.StringVar(&o.tables, "tables", "", "also write response.csv, generated.csv and background.csv into this folder")
+	f.StringVar(&o.out, "out", "", "response bundle folder `DIR` to write (default: the analysis file's response key, else \"response\" beside it)")
+	f.StringVar(&o.tables, "tables", "", "also write response.csv, generated.csv and background.csv into folder `DIR`")
 	f.BoolVar(&o.force, "force", false, "replace an earlier response bundle or tables folder")
 	return cmd
 }
