@@ -33,8 +33,8 @@
 // Global bins 0..InRange()-1 are the in-range bins of all regions: the
 // regions in order, and within a region row-major, the last axis fastest.
 // Along an edges-by-bin axis a slice has as many bins as its edge list
-// gives, so the bins of the (y, pt) region above are (y0,pt0), (y0,pt1),
-// ..., (y0,pt_last of slice 0), (y1,pt0), ...
+// gives, so a region with axes y and pt (edges by y bin) has the bins
+// (y0,pt0), (y0,pt1), ..., (y0,last pt bin of slice 0), (y1,pt0), ...
 //
 // Global bins InRange()..Len()-1 are the flow bins, regions in order. Within
 // a region the flow bins follow the row-major order of the extended grid
@@ -48,9 +48,10 @@
 //	(y0,pt under), (y0,pt over), (y1,pt under), (y1,pt over), ..., (y over, pt any)
 //
 // The flow bins of one region are contiguous (Scheme.FlowSpan), as are
-// its in-range bins (Scheme.Span). With a plain axis after the y axis
-// (say mass, flows on) the nested order repeats for every mass state,
-// mass running fastest.
+// its in-range bins (Scheme.Span). With a third, plain axis after pt
+// (say mass) every cell above is followed through the mass states, mass
+// running fastest, and cells with only mass in a flow state are flow bins
+// too.
 //
 // Reverse lookup (Scheme.Bin) gives the region, the per-axis bin numbers
 // (or UnderflowBin, OverflowBin, AnyBin; the bin number of an edges-by-bin
@@ -82,5 +83,6 @@
 // user supplied. Methods taking a global bin or region number panic if it
 // is out of range, and Locate panics if the number of coordinates is
 // wrong: those are programmer errors. All types are immutable after
-// construction and safe for concurrent use.
+// construction and safe for concurrent use. A region has at most MaxAxes
+// axes and a scheme at most MaxBins bins.
 package binning
