@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
 	"strconv"
 	"strings"
@@ -96,8 +97,9 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 	return nil
 }
 
-// readScheme reads a scheme file, classifying a file that cannot be read
-// as an input/output failure and bad content as bad input.
+// readScheme reads a scheme file, classifying bad content and a missing or
+// unreadable file as bad input (as every command does) and any other
+// failure to read as an input/output failure.
 func readScheme(path string) (*binning.Scheme, error) {
 	s, err := binning.ReadFile(path)
 	var be *binning.Error
@@ -106,6 +108,10 @@ func readScheme(path string) (*binning.Scheme, error) {
 		return s, nil
 	case errors.As(err, &be):
 		return nil, inputErr(err)
+	case errors.Is(err, fs.ErrNotExist):
+		return nil, inputErr(fmt.Errorf("binning scheme %s does not exist", path))
+	case errors.Is(err, fs.ErrPermission):
+		return nil, inputErr(fmt.Errorf("binning scheme %s cannot be read: permission denied", path))
 	}
 	return nil, ioErr(fmt.Errorf("binning scheme: %w", err))
 }
