@@ -126,6 +126,7 @@ type Accumulator struct {
 	merging    bool
 	segs       []*segment   // the distinct cells, split by key range
 	tmp        []*[2][]cell // per merging goroutine, for combining run parts
+	pool       backPool     // segment arrays given up, for reuse
 	cells      int          // number of distinct cells in segs
 
 	// serial feed (Add)
@@ -570,7 +571,7 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 			if i >= len(a.segs) {
 				return
 			}
-			a.segs[i].merge(tmp)
+			a.segs[i].merge(tmp, &a.pool)
 		}
 	}
 	if g > 1 {
@@ -600,7 +601,7 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 		for p := 0; p < pieces; p++ {
 			lo, hi := p*n/pieces, (p+1)*n/pieces
 			m := hi - lo
-			ns := &segment{hi: sg.hi, back: make([]cell, m+m/4)}
+			ns := &segment{hi: sg.hi, back: a.pool.get(m+m/8, m+m/4)}
 			if p+1 < pieces {
 				ns.hi = sg.cells[hi].key
 			}
@@ -608,8 +609,58 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 			ns.cells = ns.back[:m]
 			segs = append(segs, ns)
 		}
+		a.pool.put(sg.back)
+		sg.back, sg.cells = nil, nil
 	}
+	a.pool.limit = a.cells/8 + a.maxSeg
 	a.segs = segs
+}
+
+// backPool keeps the arrays that segments gave up (when they grew or
+// split) for other segments, so that the store's growth creates little
+// garbage: with GOGC=100 garbage lets the heap reach twice the live data.
+// It holds at most limit cells.
+type backPool struct {
+	mu    sync.Mutex
+	free  [][]cell
+	cells int
+	limit int
+}
+
+// get returns an array of at least need cells from the pool, or a new one
+// of size cells.
+func (p *backPool) get(need, cells int) []cell {
+	p.mu.Lock()
+	best := -1
+	for i, b := range p.free {
+		if cap(b) >= need && (best < 0 || cap(b) < cap(p.free[best])) {
+			best = i
+		}
+	}
+	if best >= 0 {
+		b := p.free[best]
+		p.free[best] = p.free[len(p.free)-1]
+		p.free[len(p.free)-1] = nil
+		p.free = p.free[:len(p.free)-1]
+		p.cells -= cap(b)
+		p.mu.Unlock()
+		return b[:cap(b)]
+	}
+	p.mu.Unlock()
+	return make([]cell, cells)
+}
+
+// put gives an array back, unless the pool is full.
+func (p *backPool) put(b []cell) {
+	if cap(b) == 0 {
+		return
+	}
+	p.mu.Lock()
+	if p.cells+cap(b) <= p.limit {
+		p.free = append(p.free, b)
+		p.cells += cap(b)
+	}
+	p.mu.Unlock()
 }
 
 // searchCells returns the number of cells with keys below bound.
@@ -634,7 +685,7 @@ func searchCells(cs []cell, bound uint64) int {
 // backwards, from the last cell, writing from the end of the array; a
 // store at its end is merged forwards, writing from the start. Either way
 // no write overtakes a store cell not yet read.
-func (sg *segment) merge(tmp *[2][]cell) {
+func (sg *segment) merge(tmp *[2][]cell, pool *backPool) {
 	ns := len(sg.cells)
 	need := ns
 	for _, r := range sg.runs {
@@ -650,8 +701,9 @@ func (sg *segment) merge(tmp *[2][]cell) {
 	}
 	switch {
 	case cap(sg.back) < need:
-		back := make([]cell, max(need+need/8, 1<<10))
+		back := pool.get(need, max(need+need/8, 1<<10))
 		sg.cells = mergeBackward(back, sg.cells, seq)
+		pool.put(sg.back)
 		sg.back = back
 	case off == 0:
 		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, seq)
@@ -862,6 +914,7 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	pending := 24 * a.readyCells
 	a.sortAndMerge(nil, true)
 	a.freeR, a.ready, a.tmp, a.held, a.runs = nil, nil, nil, nil, nil
+	a.pool = backPool{}
 	if pending > 64<<20 {
 		runtime.GC()
 	}
