@@ -107,6 +107,16 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		fmt.Fprintf(w, "tables:   %s (response.csv, generated.csv, background.csv)\n", o.tables)
 	}
 	printResponseSummary(w, a, r)
+	if len(info.Samples) > 1 {
+		fmt.Fprintln(w)
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		fmt.Fprintf(tw, "sample\tevents\tmigrations\tmisses\tfakes\toutside truth\toutside reco\t\n")
+		for _, s := range info.Samples {
+			c := s.Summary
+			fmt.Fprintf(tw, "%s\t%d\t%d\t%d\t%d\t%d\t%d\t\n", s.File, c.Events, c.Entries, c.Misses, c.Fakes, c.OutsideTruth, c.OutsideReco)
+		}
+		tw.Flush()
+	}
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}

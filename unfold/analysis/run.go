@@ -126,7 +126,7 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 			in, err := hashFile("simulation", s.File)
 			hc <- hashed{in, err}
 		}()
-		_, err = b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
+		sum, err := b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
 		src.Close()
 		h := <-hc
 		if err != nil {
@@ -136,6 +136,7 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 			return nil, nil, h.err
 		}
 		info.Inputs = append(info.Inputs, h.in)
+		info.Samples = append(info.Samples, fill.SampleSummary{File: s.File, Summary: sum})
 	}
 	r, err := b.Response()
 	if err != nil {

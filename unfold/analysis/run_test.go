@@ -132,6 +132,9 @@ func TestSameResponseFromEveryFormat(t *testing.T) {
 			if len(info.Inputs) != 1 || info.Inputs[0].Bytes == 0 {
 				t.Errorf("%s: inputs %+v", ext, info.Inputs)
 			}
+			if len(info.Samples) != 1 || info.Samples[0].Summary.Events != 20000 || info.Samples[0].Summary.Misses != r.Summary.Misses {
+				t.Errorf("%s: per-sample summary %+v", ext, info.Samples)
+			}
 			if ref == nil {
 				ref = r
 				if r.Summary.Entries == 0 || r.Summary.Misses == 0 || r.Summary.OutsideTruth != 0 {

@@ -40,6 +40,14 @@ type BundleInfo struct {
 	Inputs []Input `json:"inputs"`
 	// Program is the program version that built it.
 	Program string `json:"program"`
+	// Samples holds the counts of each simulated sample, in order.
+	Samples []SampleSummary `json:"samples,omitempty"`
+}
+
+// SampleSummary is the Summary of one sample (without cell lists).
+type SampleSummary struct {
+	File    string  `json:"file"`
+	Summary Summary `json:"summary"`
 }
 
 // Input is one input file: its role, path, size and SHA-256 (the same
