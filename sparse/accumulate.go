@@ -489,7 +489,9 @@ func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
 		a.merging = false
 		for _, r := range group {
 			a.readyCells -= len(r.cells)
-			a.freeR = append(a.freeR, r.cells[:0])
+			if len(a.freeR) < 4 {
+				a.freeR = append(a.freeR, r.cells[:0])
+			}
 			r.cells = nil
 		}
 		n := copy(a.ready, a.ready[len(group):])
