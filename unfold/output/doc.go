@@ -24,6 +24,12 @@
 // killed (not interrupted) while writing can leave a hidden
 // ".NAME.partial-XXXX" folder beside the result; it is safe to delete.
 //
+// Folders that are not result folders (a response bundle, a demo
+// folder) are installed the same way with Temp and Install: the caller
+// writes its files into the folder Temp makes, decides itself which
+// existing folder it may replace, and Install renames the folder into
+// place with the same atomic steps as Commit.
+//
 // Result is the documented schema of result.json (see its fields);
 // FromUnfold fills it from the kernel's result and guarantees that no
 // number is NaN or infinite (JSON has no such values; bins the response

@@ -121,7 +121,7 @@ func New(path string, replace bool) (*Folder, error) {
 			return nil, err
 		}
 	}
-	tmp, err := os.MkdirTemp(parent, "."+base+".partial-")
+	tmp, err := os.MkdirTemp(parent, partialPattern(base))
 	if err != nil {
 		f.removeCreated()
 		return nil, err
@@ -305,53 +305,19 @@ func (f *Folder) Commit() error {
 		return err
 	}
 	f.st = committed
-	// Make the rename durable. The result is in place; a failing sync of
-	// the parent is not worth failing the run for.
-	_ = syncPath(filepath.Dir(f.path), true)
 	return nil
 }
 
-// noExchange makes install take the fallback path (for tests).
-var noExchange = false
-
-// install puts the temporary folder at the final path.
+// install puts the temporary folder at the final path, checking again
+// that an existing path may be replaced.
 func (f *Folder) install() error {
 	if _, err := os.Lstat(f.path); err == nil && f.replace {
 		if err := Check(f.path, true); err != nil {
 			return err
 		}
-		ok, err := false, error(nil)
-		if !noExchange {
-			ok, err = exchange(f.tmp, f.path)
-		}
-		if err != nil {
-			return err
-		}
-		if ok {
-			// The old result now sits at the temporary path.
-			_ = os.RemoveAll(f.tmp)
-			return nil
-		}
-		// Fallback: move the old folder aside, then put the new one in.
-		aside, err := os.MkdirTemp(filepath.Dir(f.path), "."+filepath.Base(f.path)+".old-")
-		if err != nil {
-			return err
-		}
-		if err := os.Remove(aside); err != nil {
-			return err
-		}
-		if err := os.Rename(f.path, aside); err != nil {
-			return err
-		}
-		if err := renameNoReplace(f.tmp, f.path); err != nil {
-			_ = os.Rename(aside, f.path)
-			return err
-		}
-		_ = os.RemoveAll(aside)
-		return nil
 	}
-	err := renameNoReplace(f.tmp, f.path)
-	if errors.Is(err, fs.ErrExist) {
+	err := Install(f.tmp, f.path, f.replace)
+	if errors.Is(err, ErrExists) {
 		return fmt.Errorf("%w: %s (it appeared while the result was being written)", ErrExists, f.path)
 	}
 	return err
