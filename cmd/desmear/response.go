@@ -15,6 +15,7 @@ import (
 
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/output"
 	"github.com/desmear/desmear/unfold/tables"
 )
 
@@ -140,13 +141,10 @@ func checkTarget(path string, force bool, marker string) error {
 }
 
 // writeTables writes the plain tables of the response into dir,
-// atomically (a temporary sibling folder renamed into place).
+// atomically (a temporary sibling folder renamed into place). runResponse
+// has checked that an existing dir may be replaced.
 func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace bool) (err error) {
-	parent := filepath.Dir(dir)
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".partial-")
+	tmp, err := output.Temp(dir)
 	if err != nil {
 		return err
 	}
@@ -190,18 +188,7 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 	if err := write("background.csv", func(w io.Writer) error { return tables.WriteVector(w, tables.Background, val, vr) }); err != nil {
 		return err
 	}
-	if _, err := os.Lstat(dir); err == nil {
-		old := tmp + ".old"
-		if err := os.Rename(dir, old); err != nil {
-			return err
-		}
-		if err := os.Rename(tmp, dir); err != nil {
-			os.Rename(old, dir)
-			return err
-		}
-		return os.RemoveAll(old)
-	}
-	return os.Rename(tmp, dir)
+	return output.Install(tmp, dir, replace)
 }
 
 // printSummary prints the event counts and the per-truth-bin quality of

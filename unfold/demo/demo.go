@@ -15,6 +15,7 @@ import (
 	"sync"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/output"
 )
 
 // File names inside a demo folder.
@@ -31,7 +32,6 @@ const (
 	ResultFolder       = "result"
 	StressFile         = "stress-test.yaml"
 	StressResultFolder = "result-reweighted"
-	temporaryDirPrefix = ".desmear-demo-"
 )
 
 // ErrNotDemoFolder is wrapped by Generate's error when the output folder
@@ -139,11 +139,7 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if err != nil {
 		return nil, err
 	}
-	parent := filepath.Dir(filepath.Clean(dir))
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return nil, err
-	}
-	tmp, err := os.MkdirTemp(parent, temporaryDirPrefix)
+	tmp, err := output.Temp(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -203,18 +199,11 @@ func moveIntoPlace(tmp, dir string, replace bool) error {
 	if err := checkTarget(dir, replace); err != nil {
 		return err
 	}
-	if _, err := os.Stat(dir); err == nil {
-		old := tmp + ".old"
-		if err := os.Rename(dir, old); err != nil {
-			return err
-		}
-		if err := os.Rename(tmp, dir); err != nil {
-			os.Rename(old, dir)
-			return err
-		}
-		return os.RemoveAll(old)
+	err := output.Install(tmp, dir, replace)
+	if errors.Is(err, output.ErrExists) {
+		return fmt.Errorf("demo: %s appeared while the demo was being written (replace it with --force): %w", dir, fs.ErrExist)
 	}
-	return os.Rename(tmp, dir)
+	return err
 }
 
 // writeInputs writes every file of the folder in.Dir.

@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/output"
 )
 
 // A response bundle is a folder holding a built response:
@@ -21,7 +22,7 @@ import (
 //	                 format (sparse.Matrix.WriteTo, sparse.Load)
 //
 // It is written atomically: into a hidden temporary sibling folder that
-// is renamed into place.
+// is renamed into place (output.Temp, output.Install).
 const (
 	BundleFormat  = "desmear-response"
 	BundleVersion = 1
@@ -85,11 +86,7 @@ func (r *Response) Save(dir string, info BundleInfo, replace bool) (err error) {
 			return fmt.Errorf("%s exists and is not a response bundle; not replacing it", dir)
 		}
 	}
-	parent := filepath.Dir(dir)
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".partial-")
+	tmp, err := output.Temp(dir)
 	if err != nil {
 		return err
 	}
@@ -112,18 +109,7 @@ func (r *Response) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err := writeSync(filepath.Join(tmp, bundleMatrix), func(f *os.File) error { _, err := r.Migrations.WriteTo(f); return err }); err != nil {
 		return err
 	}
-	if _, err := os.Lstat(dir); err == nil {
-		old := tmp + ".old"
-		if err := os.Rename(dir, old); err != nil {
-			return err
-		}
-		if err := os.Rename(tmp, dir); err != nil {
-			os.Rename(old, dir)
-			return err
-		}
-		return os.RemoveAll(old)
-	}
-	return os.Rename(tmp, dir)
+	return output.Install(tmp, dir, replace)
 }
 
 func writeSync(path string, write func(*os.File) error) error {
