@@ -198,6 +198,33 @@ func BenchmarkBackProject(b *testing.B) {
 	}, func(m *Matrix) { m.BackProject(dst, y) })
 }
 
+// BenchmarkJamesBowmanTwoProducts is the baseline the fused sweep
+// replaces: one EM iteration as two separate single-threaded
+// james-bowman products on the same storage (CSC().MulVecTo, which adds
+// into its destination, so the destinations are cleared first): a
+// back-projection and a fold. Model bytes: two matrix passes and the
+// vectors.
+func BenchmarkJamesBowmanTwoProducts(b *testing.B) {
+	m := fineMatrix(b)
+	csc := m.CSC()
+	x, g := make([]float64, m.cols), make([]float64, m.cols)
+	y, next := make([]float64, m.rows), make([]float64, m.rows)
+	for i := range y {
+		y[i] = 1
+	}
+	for j := range x {
+		x[j] = 1
+	}
+	kernelBench(b, func(m *Matrix) float64 {
+		return 2*matrixBytes(m) + 16*float64(m.rows) + 24*float64(m.cols)
+	}, func(m *Matrix) {
+		clear(g)
+		csc.MulVecTo(g, true, y)
+		clear(next)
+		csc.MulVecTo(next, false, x)
+	})
+}
+
 // BenchmarkTriad reports the STREAM-like triad alone, for reference.
 func BenchmarkTriad(b *testing.B) {
 	m := fineMatrix(b)

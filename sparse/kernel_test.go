@@ -436,3 +436,28 @@ func TestWithValues(t *testing.T) {
 		t.Error("WithValues accepted an infinite value")
 	}
 }
+
+// TestCSCViewMulVecToAdds documents why the kernels never call
+// james-bowman's MulVecTo: it adds into its destination. Our Fold of the
+// same matrix overwrites (checked against gonum dense above); here the
+// CSC view's product into a destination holding ones must come out as
+// ones plus A x, computed with gonum dense as the reference.
+func TestCSCViewMulVecToAdds(t *testing.T) {
+	m := randomMatrix(t, rand.New(rand.NewPCG(41, 42)), 6, 5, 0.5, 0)
+	x := []float64{1, 2, 3, 4, 5}
+	d, _ := m.ToDense()
+	want := mat.NewVecDense(6, nil)
+	want.MulVec(d, mat.NewVecDense(5, x))
+	got := []float64{1, 1, 1, 1, 1, 1}
+	m.CSC().MulVecTo(got, false, x)
+	ours := []float64{1, 1, 1, 1, 1, 1}
+	m.Fold(ours, x)
+	for i := range got {
+		if math.Abs(got[i]-(1+want.AtVec(i))) > 1e-12 {
+			t.Logf("james-bowman MulVecTo no longer adds into dst (row %d: %v)", i, got[i])
+		}
+		if math.Abs(ours[i]-want.AtVec(i)) > 1e-12 {
+			t.Errorf("Fold row %d = %v, want %v: it must overwrite dst", i, ours[i], want.AtVec(i))
+		}
+	}
+}
