@@ -154,24 +154,7 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 		}
 	}()
 	write := func(name string, fn func(io.Writer) error) error {
-		f, err := os.Create(filepath.Join(tmp, name))
-		if err != nil {
-			return err
-		}
-		bw := bufio.NewWriter(f)
-		if err := fn(bw); err != nil {
-			f.Close()
-			return err
-		}
-		if err := bw.Flush(); err != nil {
-			f.Close()
-			return err
-		}
-		if err := f.Sync(); err != nil {
-			f.Close()
-			return err
-		}
-		return f.Close()
+		return output.WriteSynced(filepath.Join(tmp, name), fn)
 	}
 	if err := write("response.csv", func(w io.Writer) error { return tables.WriteResponse(w, r.Migrations) }); err != nil {
 		return err

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -103,29 +104,13 @@ func (r *Response) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err != nil {
 		return err
 	}
-	if err := writeSync(filepath.Join(tmp, bundleJSON), func(f *os.File) error { _, err := f.Write(b); return err }); err != nil {
+	if err := output.WriteSynced(filepath.Join(tmp, bundleJSON), func(w io.Writer) error { _, err := w.Write(b); return err }); err != nil {
 		return err
 	}
-	if err := writeSync(filepath.Join(tmp, bundleMatrix), func(f *os.File) error { _, err := r.Migrations.WriteTo(f); return err }); err != nil {
+	if err := output.WriteSynced(filepath.Join(tmp, bundleMatrix), func(w io.Writer) error { _, err := r.Migrations.WriteTo(w); return err }); err != nil {
 		return err
 	}
 	return output.Install(tmp, dir, replace)
-}
-
-func writeSync(path string, write func(*os.File) error) error {
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	if err := write(f); err != nil {
-		f.Close()
-		return err
-	}
-	if err := f.Sync(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
 }
 
 // LoadResponse reads the response bundle at dir.

@@ -1,8 +1,10 @@
 package output
 
 import (
+	"bufio"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -24,6 +26,29 @@ func Temp(dir string) (string, error) {
 		return "", err
 	}
 	return os.MkdirTemp(parent, partialPattern(filepath.Base(filepath.Clean(dir))))
+}
+
+// WriteSynced creates (or truncates) the file path, writes it through
+// write with a buffer, then flushes it, syncs it to disk and closes it:
+// a file of a folder made by Temp, before Install. On error the file may
+// hold part of its content; the caller removes the temporary folder.
+func WriteSynced(path string, write func(io.Writer) error) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	bw := bufio.NewWriterSize(f, 1<<16)
+	err = write(bw)
+	if err == nil {
+		err = bw.Flush()
+	}
+	if err == nil {
+		err = f.Sync()
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	return err
 }
 
 // noExchange makes Install take the fallback path (for tests).

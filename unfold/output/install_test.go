@@ -2,6 +2,7 @@ package output
 
 import (
 	"errors"
+	"io"
 	"os"
 	"path/filepath"
 	"slices"
@@ -93,5 +94,26 @@ func testInstall(t *testing.T) {
 		if got := entries(t, parent); !slices.Equal(got, []string{"bundle"}) {
 			t.Errorf("parent holds %v after a failed Install(replace=%v), want only bundle", got, replace)
 		}
+	}
+}
+
+func TestWriteSynced(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "a.csv")
+	long := strings.Repeat("x", 1<<17) // more than the buffer holds
+	if err := WriteSynced(path, func(w io.Writer) error {
+		_, err := io.WriteString(w, "head\n"+long)
+		return err
+	}); err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := os.ReadFile(path); string(got) != "head\n"+long {
+		t.Errorf("file holds %d bytes, want %d", len(got), len("head\n"+long))
+	}
+	bad := errors.New("no more rows")
+	if err := WriteSynced(path, func(io.Writer) error { return bad }); !errors.Is(err, bad) {
+		t.Errorf("the writer's error came back as %v", err)
+	}
+	if err := WriteSynced(filepath.Join(path, "sub"), func(io.Writer) error { return nil }); err == nil {
+		t.Error("a file below a file was created")
 	}
 }
