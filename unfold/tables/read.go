@@ -186,24 +186,8 @@ func ReadResponse(r io.Reader, name string) (*Response, error) {
 	if err != nil {
 		return nil, err
 	}
-	if sc.hasErr2 {
-		resp.SumW2 = []float64{}
-	}
-	for {
-		ok, err := sc.next()
-		if err != nil {
-			return nil, err
-		}
-		if !ok {
-			break
-		}
-		resp.Reco = append(resp.Reco, sc.idx[0])
-		resp.Truth = append(resp.Truth, sc.idx[1])
-		resp.Value = append(resp.Value, sc.val)
-		if sc.hasErr2 {
-			resp.SumW2 = append(resp.SumW2, sc.err2)
-		}
-		resp.Line = append(resp.Line, sc.line)
+	if err := sc.readAll([]*[]int{&resp.Reco, &resp.Truth}, &resp.Value, &resp.SumW2, &resp.Line); err != nil {
+		return nil, err
 	}
 	return resp, nil
 }
@@ -219,23 +203,8 @@ func ReadVector(r io.Reader, name string, kind Kind) (*Vector, error) {
 	if err != nil {
 		return nil, err
 	}
-	if sc.hasErr2 {
-		v.Err2 = []float64{}
-	}
-	for {
-		ok, err := sc.next()
-		if err != nil {
-			return nil, err
-		}
-		if !ok {
-			break
-		}
-		v.Index = append(v.Index, sc.idx[0])
-		v.Value = append(v.Value, sc.val)
-		if sc.hasErr2 {
-			v.Err2 = append(v.Err2, sc.err2)
-		}
-		v.Line = append(v.Line, sc.line)
+	if err := sc.readAll([]*[]int{&v.Index}, &v.Value, &v.Err2, &v.Line); err != nil {
+		return nil, err
 	}
 	return v, nil
 }
@@ -390,6 +359,30 @@ func (sc *scanner) next() (bool, error) {
 		}
 	}
 	return true, nil
+}
+
+// readAll reads the remaining data rows, appending to idx (one slice per
+// index column, in the scanner's order), value, err2 and line. err2 is
+// set to an empty slice when the table has the optional column and left
+// nil otherwise.
+func (sc *scanner) readAll(idx []*[]int, value, err2 *[]float64, line *[]int) error {
+	if sc.hasErr2 {
+		*err2 = []float64{}
+	}
+	for {
+		ok, err := sc.next()
+		if err != nil || !ok {
+			return err
+		}
+		for k, col := range idx {
+			*col = append(*col, sc.idx[k])
+		}
+		*value = append(*value, sc.val)
+		if sc.hasErr2 {
+			*err2 = append(*err2, sc.err2)
+		}
+		*line = append(*line, sc.line)
+	}
 }
 
 func (sc *scanner) parseIndex(s, col string) (int, error) {
