@@ -26,9 +26,10 @@
 //
 // Fold (dst = A x), BackProject (dst = Aᵀ y), the fused Sweep (one pass
 // that gathers Aᵀ y column by column, lets the caller update the column's
-// unknown and scatters the column into the next fold), ColSums, RowSums
-// and ScaleCols write into caller-owned slices and do not allocate after
-// warm-up. Large matrices are processed in parallel over a fixed
+// unknown and scatters the column into the next fold), SweepRows (Sweep
+// that also hands each fixed range of rows to the caller once final),
+// ColSums, RowSums and ScaleCols write into caller-owned slices and do not
+// allocate after warm-up. Large matrices are processed in parallel over a fixed
 // partition of the columns decided from the matrix structure alone; the
 // partial sums are reduced in a fixed order, so every kernel returns the
 // same bits whatever GOMAXPROCS is.
