@@ -118,27 +118,19 @@ type h2Reader interface {
 
 // ReadHist1D reads the 1-D histogram at key ("h" or "dir/sub/h") of a ROOT file.
 func ReadHist1D(path, key string) (h *Hist1D, err error) {
-	obj, closeFn, err := get(path, key)
+	r, closeFn, err := getAs[h1Reader](path, key, "a 1-D histogram (TH1D, TH1F, TH1I)")
 	if err != nil {
 		return nil, err
 	}
 	defer closeFn()
 	defer recoverDamaged(path, key, &err)
-	r, ok := obj.(h1Reader)
-	if !ok {
-		return nil, fmt.Errorf("rootio: %s: %q is a %s, not a 1-D histogram (TH1D, TH1F, TH1I)", path, key, obj.Class())
-	}
 	n := r.NbinsX()
 	edges, err := axisEdges(r.XAxis(), n)
 	if err != nil {
 		return nil, fmt.Errorf("rootio: %s: %q: x axis: %w", path, key, err)
 	}
-	h = &Hist1D{Name: r.Name(), Title: r.Title(), Edges: edges, SumW: make([]float64, n+2), Entries: r.Entries()}
-	for i := range h.SumW {
-		h.SumW[i] = r.XBinContent(i)
-	}
-	h.SumW2, h.HasSumW2, err = sumw2(r.SumW2s(), h.SumW)
-	if err != nil {
+	h = &Hist1D{Name: r.Name(), Title: r.Title(), Edges: edges, Entries: r.Entries()}
+	if h.SumW, h.SumW2, h.HasSumW2, err = cells(r, n+2); err != nil {
 		return nil, fmt.Errorf("rootio: %s: %q: %w", path, key, err)
 	}
 	return h, nil
@@ -146,16 +138,12 @@ func ReadHist1D(path, key string) (h *Hist1D, err error) {
 
 // ReadHist2D reads the 2-D histogram at key of a ROOT file.
 func ReadHist2D(path, key string) (h *Hist2D, err error) {
-	obj, closeFn, err := get(path, key)
+	r, closeFn, err := getAs[h2Reader](path, key, "a 2-D histogram (TH2D, TH2F, TH2I)")
 	if err != nil {
 		return nil, err
 	}
 	defer closeFn()
 	defer recoverDamaged(path, key, &err)
-	r, ok := obj.(h2Reader)
-	if !ok {
-		return nil, fmt.Errorf("rootio: %s: %q is a %s, not a 2-D histogram (TH2D, TH2F, TH2I)", path, key, obj.Class())
-	}
 	nx, ny := r.NbinsX(), r.NbinsY()
 	xe, err := axisEdges(r.XAxis(), nx)
 	if err != nil {
@@ -165,30 +153,41 @@ func ReadHist2D(path, key string) (h *Hist2D, err error) {
 	if err != nil {
 		return nil, fmt.Errorf("rootio: %s: %q: y axis: %w", path, key, err)
 	}
-	h = &Hist2D{Name: r.Name(), Title: r.Title(), XEdges: xe, YEdges: ye, SumW: make([]float64, (nx+2)*(ny+2)), Entries: r.Entries()}
-	for i := range h.SumW {
-		h.SumW[i] = r.XBinContent(i)
-	}
-	h.SumW2, h.HasSumW2, err = sumw2(r.SumW2s(), h.SumW)
-	if err != nil {
+	h = &Hist2D{Name: r.Name(), Title: r.Title(), XEdges: xe, YEdges: ye, Entries: r.Entries()}
+	if h.SumW, h.SumW2, h.HasSumW2, err = cells(r, (nx+2)*(ny+2)); err != nil {
 		return nil, fmt.Errorf("rootio: %s: %q: %w", path, key, err)
 	}
 	return h, nil
 }
 
-func sumw2(stored, sumw []float64) ([]float64, bool, error) {
-	out := make([]float64, len(sumw))
-	switch len(stored) {
+// cellReader is what cells needs from a ROOT histogram.
+type cellReader interface {
+	XBinContent(i int) float64
+	SumW2s() []float64
+}
+
+// cells reads the n cells (flow cells included, in ROOT's order) of a
+// histogram: the sums of weights (fArray) and the sums of squared
+// weights, which are fSumw2 when the histogram stores it (stored true)
+// and |fArray| otherwise.
+func cells(r cellReader, n int) (sumw, sumw2 []float64, stored bool, err error) {
+	sumw = make([]float64, n)
+	for i := range sumw {
+		sumw[i] = r.XBinContent(i)
+	}
+	sumw2 = make([]float64, n)
+	switch s := r.SumW2s(); len(s) {
 	case 0:
 		for i, v := range sumw {
-			out[i] = math.Abs(v)
+			sumw2[i] = math.Abs(v)
 		}
-		return out, false, nil
-	case len(sumw):
-		copy(out, stored)
-		return out, true, nil
+		return sumw, sumw2, false, nil
+	case n:
+		copy(sumw2, s)
+		return sumw, sumw2, true, nil
+	default:
+		return nil, nil, false, fmt.Errorf("fSumw2 has %d cells, fArray has %d", len(s), n)
 	}
-	return nil, false, fmt.Errorf("fSumw2 has %d cells, fArray has %d", len(stored), len(sumw))
 }
 
 // axisEdges returns the n+1 edges of an axis: fXbins if set, else n uniform
@@ -241,6 +240,23 @@ func get(path, key string) (root.Object, func(), error) {
 		return nil, nil, fmt.Errorf("rootio: %s: no object %q: %w", path, key, err)
 	}
 	return obj, func() { f.Close() }, nil
+}
+
+// getAs returns the object at key of the ROOT file at path as a T, and
+// the function that closes the file; what names T in the message when
+// the object is something else.
+func getAs[T root.Object](path, key, what string) (T, func(), error) {
+	var zero T
+	obj, closeFn, err := get(path, key)
+	if err != nil {
+		return zero, nil, err
+	}
+	r, ok := obj.(T)
+	if !ok {
+		closeFn()
+		return zero, nil, fmt.Errorf("rootio: %s: %q is a %s, not %s", path, key, obj.Class(), what)
+	}
+	return r, closeFn, nil
 }
 
 func openFile(path string) (f *riofs.File, err error) {
