@@ -1,0 +1,48 @@
+package sparse
+
+import (
+	"math"
+	"testing"
+)
+
+// TestBanded3DStructure checks the synthetic response against its
+// definition: every row of column j lies in the hood of j's mapped reco
+// cell, columns keep min(perCol, candidates) entries, and each column sums
+// to an efficiency in [0.6, 0.95].
+func TestBanded3DStructure(t *testing.T) {
+	truth, reco, hood := [3]int{5, 4, 3}, [3]int{5, 8, 6}, [3]int{3, 3, 4}
+	m, err := Banded3D(truth, reco, hood, 20, 7)
+	if err != nil {
+		t.Fatal(err)
+	}
+	eff := make([]float64, m.cols)
+	m.ColSums(eff)
+	cp, ri := m.ColPtr(), m.RowIdx()
+	for j := 0; j < m.cols; j++ {
+		tc := [3]int{j % truth[0], (j / truth[0]) % truth[1], j / (truth[0] * truth[1])}
+		cand := 1
+		var lo, hi [3]int
+		for a := 0; a < 3; a++ {
+			c := int((float64(tc[a]) + 0.5) * float64(reco[a]) / float64(truth[a]))
+			lo[a], hi[a] = max(c-hood[a]/2, 0), min(c-hood[a]/2+hood[a], reco[a])
+			cand *= hi[a] - lo[a]
+		}
+		if n := cp[j+1] - cp[j]; n != min(20, cand) {
+			t.Fatalf("column %d has %d entries, want min(20, %d)", j, n, cand)
+		}
+		for k := cp[j]; k < cp[j+1]; k++ {
+			r := [3]int{ri[k] % reco[0], (ri[k] / reco[0]) % reco[1], ri[k] / (reco[0] * reco[1])}
+			for a := 0; a < 3; a++ {
+				if r[a] < lo[a] || r[a] >= hi[a] {
+					t.Fatalf("column %d: row %d (cell %v) outside the hood [%v, %v)", j, ri[k], r, lo, hi)
+				}
+			}
+		}
+		if eff[j] < 0.6-1e-12 || eff[j] > 0.95+1e-12 || math.IsNaN(eff[j]) {
+			t.Fatalf("column %d sums to %v, outside [0.6, 0.95]", j, eff[j])
+		}
+	}
+	if _, err := Banded3D([3]int{0, 1, 1}, reco, hood, 20, 1); err == nil {
+		t.Error("zero-sized truth grid accepted")
+	}
+}
