@@ -27,31 +27,10 @@ func (r *reducer) run(n int, f func(lo, hi int, acc *[4]float64)) [4]float64 {
 		r.parts = make([][4]float64, nc)
 	}
 	parts := r.parts[:nc]
-	workers := min(runtime.GOMAXPROCS(0), nc)
-	if workers <= 1 {
-		for c := range parts {
-			parts[c] = [4]float64{}
-			f(c*chunkLen, min(n, (c+1)*chunkLen), &parts[c])
-		}
-	} else {
-		var next atomic.Int64
-		var wg sync.WaitGroup
-		for w := 0; w < workers; w++ {
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				for {
-					c := int(next.Add(1) - 1)
-					if c >= nc {
-						return
-					}
-					parts[c] = [4]float64{}
-					f(c*chunkLen, min(n, (c+1)*chunkLen), &parts[c])
-				}
-			}()
-		}
-		wg.Wait()
-	}
+	forEach(nc, runtime.GOMAXPROCS(0), func(c int) {
+		parts[c] = [4]float64{}
+		f(c*chunkLen, min(n, (c+1)*chunkLen), &parts[c])
+	})
 	var s [4]float64
 	for _, p := range parts {
 		for k := range s {
