@@ -250,7 +250,10 @@ type workspace struct {
 	rows   func(r, lo, hi int)
 	ntask  int64
 	next   atomic.Int64
-	wg     sync.WaitGroup
+	// pending counts the helper jobs of the current phase not finished;
+	// the helper that finishes the last one signals done.
+	pending atomic.Int64
+	done    chan struct{}
 }
 
 func (p *partition) get(m *Matrix) *workspace {
@@ -299,12 +302,19 @@ func startHelpers(n int) {
 		helpers.n++
 		go func(ch chan job) {
 			for j := range ch {
-				j.ws.run(j.phase)
-				j.ws.wg.Done()
+				j.run()
 			}
 		}(helpers.ch)
 	}
 	helpers.mu.Unlock()
+}
+
+// run does a helper's share of a phase and reports it finished.
+func (j job) run() {
+	j.ws.run(j.phase)
+	if j.ws.pending.Add(-1) == 0 {
+		j.ws.done <- struct{}{}
+	}
 }
 
 // exec runs a kernel call: phase 1 over the blocks, then (for scattering
@@ -351,15 +361,40 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 func (ws *workspace) phase(ph int, ntask int64, workers int) {
 	ws.ntask = ntask
 	ws.next.Store(0)
-	if h := workers - 1; h > 0 {
-		startHelpers(h)
-		ws.wg.Add(h)
-		for k := 0; k < h; k++ {
-			helpers.ch <- job{ws: ws, phase: ph}
+	h := workers - 1
+	if h <= 0 {
+		ws.run(ph)
+		return
+	}
+	startHelpers(h)
+	if ws.done == nil {
+		ws.done = make(chan struct{}, 1)
+	}
+	ws.pending.Store(int64(h))
+	sent := 0
+	for k := 0; k < h; k++ {
+		select {
+		case helpers.ch <- job{ws: ws, phase: ph}:
+			sent++
+		default: // the queue is full: this goroutine does the work
 		}
 	}
 	ws.run(ph)
-	ws.wg.Wait()
+	if ws.pending.Add(int64(sent-h)) == 0 && sent < h {
+		return // every job sent has finished (or none was sent)
+	}
+	// Wait for the helpers that took a job, running queued jobs meanwhile
+	// (ours or other calls'): a waiting goroutine never idles on work
+	// that no one else could pick up, so nested or concurrent calls
+	// cannot deadlock the pool.
+	for {
+		select {
+		case <-ws.done:
+			return
+		case j := <-helpers.ch:
+			j.run()
+		}
+	}
 }
 
 // run takes tasks of the phase until none is left.
@@ -556,8 +591,8 @@ func (m *Matrix) BackProject(dst, y []float64) {
 // update is called exactly once per column, in increasing column order
 // within each block of the fixed partition but concurrently from several
 // goroutines for columns of different blocks; it must only touch state
-// belonging to column j (typically x[j] and per-column arrays) and must
-// not call back into this Matrix with the same next or y.
+// belonging to column j (typically x[j] and per-column arrays). It may
+// call kernels (of this or other matrices) on other destination slices.
 func (m *Matrix) Sweep(next, y []float64, update func(j int, g float64) float64) {
 	if len(next) != m.rows || len(y) != m.rows {
 		panic("sparse: Sweep dimension mismatch")

@@ -7,6 +7,7 @@ import (
 	"sync"
 	"sync/atomic"
 	"testing"
+	"time"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -459,5 +460,48 @@ func TestCSCViewMulVecToAdds(t *testing.T) {
 		if math.Abs(ours[i]-want.AtVec(i)) > 1e-12 {
 			t.Errorf("Fold row %d = %v, want %v: it must overwrite dst", i, ours[i], want.AtVec(i))
 		}
+	}
+}
+
+// TestNestedKernelCalls calls kernels of another matrix from inside
+// Sweep's update, on every goroutine, with one helper goroutine: waiting
+// calls must run queued work instead of blocking the helper pool.
+func TestNestedKernelCalls(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(2))
+	ms := kernelMatrices(t)
+	outer, inner := ms[len(ms)-1], ms[len(ms)-2]
+	ir, ic := inner.Dims()
+	or, oc := outer.Dims()
+	y, next := make([]float64, or), make([]float64, or)
+	for i := range y {
+		y[i] = 1
+	}
+	iy := make([]float64, ir)
+	for i := range iy {
+		iy[i] = 1
+	}
+	want := make([]float64, ic)
+	inner.BackProject(want, iy)
+	finished := make(chan struct{})
+	go func() {
+		defer close(finished)
+		outer.Sweep(next, y, func(j int, g float64) float64 {
+			if j%97 == 0 {
+				got := make([]float64, ic)
+				inner.BackProject(got, iy)
+				for k := range got {
+					if got[k] != want[k] {
+						t.Errorf("nested BackProject element %d = %v, want %v", k, got[k], want[k])
+						break
+					}
+				}
+			}
+			return g
+		})
+	}()
+	select {
+	case <-finished:
+	case <-time.After(60 * time.Second):
+		t.Fatalf("Sweep of a %d×%d matrix with nested kernel calls did not finish", or, oc)
 	}
 }
