@@ -43,12 +43,42 @@ type dataRow struct {
 // ctxEvery is how often the writers look at the context.
 const ctxEvery = 1 << 16
 
-// writeSimulationROOT writes the simulation as a TTree.
-func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
+// writeTree writes a TTree of n entries with the branches vars: set(i)
+// puts entry i into the variables the branches point at.
+func writeTree(ctx context.Context, path, title string, vars []rtree.WriteVar, n int, set func(i int)) error {
 	f, err := groot.Create(path)
 	if err != nil {
 		return err
 	}
+	w, err := rtree.NewWriter(f, TreeName, vars, rtree.WithZlib(1), rtree.WithTitle(title))
+	if err != nil {
+		f.Close()
+		return err
+	}
+	for i := range n {
+		if i%ctxEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				w.Close()
+				f.Close()
+				return err
+			}
+		}
+		set(i)
+		if _, err := w.Write(); err != nil {
+			w.Close()
+			f.Close()
+			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// writeSimulationROOT writes the simulation as a TTree.
+func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
 	var (
 		ptTrue, yTrue, ptReco, yReco float32
 		weight                       float64
@@ -63,69 +93,21 @@ func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
 		{Name: "pass_truth", Value: &passTruth},
 		{Name: "pass_reco", Value: &passReco},
 	}
-	w, err := rtree.NewWriter(f, TreeName, vars, rtree.WithZlib(1), rtree.WithTitle("demo run: simulated zetons and fakes"))
-	if err != nil {
-		f.Close()
-		return err
-	}
-	for i := range s.len() {
-		if i%ctxEvery == 0 {
-			if err := ctx.Err(); err != nil {
-				w.Close()
-				f.Close()
-				return err
-			}
-		}
+	return writeTree(ctx, path, "demo run: simulated zetons and fakes", vars, s.len(), func(i int) {
 		ptTrue, yTrue = float32(s.ptTrue[i]), float32(s.yTrue[i])
 		ptReco, yReco = float32(s.ptReco[i]), float32(s.yReco[i])
 		weight = s.weight[i]
 		passTruth, passReco = s.passTruth[i], s.passReco[i]
-		if _, err := w.Write(); err != nil {
-			w.Close()
-			f.Close()
-			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
-		}
-	}
-	if err := w.Close(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	})
 }
 
 // writeDataROOT writes the pseudo-data (reco-level pt and y) as a TTree.
 func writeDataROOT(ctx context.Context, path string, s *sample) error {
-	f, err := groot.Create(path)
-	if err != nil {
-		return err
-	}
 	var pt, y float32
 	vars := []rtree.WriteVar{{Name: "pt", Value: &pt}, {Name: "y", Value: &y}}
-	w, err := rtree.NewWriter(f, TreeName, vars, rtree.WithZlib(1), rtree.WithTitle("demo run: pseudo-data"))
-	if err != nil {
-		f.Close()
-		return err
-	}
-	for i := range s.len() {
-		if i%ctxEvery == 0 {
-			if err := ctx.Err(); err != nil {
-				w.Close()
-				f.Close()
-				return err
-			}
-		}
+	return writeTree(ctx, path, "demo run: pseudo-data", vars, s.len(), func(i int) {
 		pt, y = float32(s.ptReco[i]), float32(s.yReco[i])
-		if _, err := w.Write(); err != nil {
-			w.Close()
-			f.Close()
-			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
-		}
-	}
-	if err := w.Close(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	})
 }
 
 // writeParquet writes rows built by row(i) for i < n, in row groups of
