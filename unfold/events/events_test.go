@@ -200,6 +200,29 @@ func sampleColumns(n int) ([]string, [][]float64) {
 	return names, cols
 }
 
+// writeOpen writes the columns to the file p in the format its extension
+// names (.root, .parquet, otherwise CSV) and opens it.
+func writeOpen(t *testing.T, p string, names []string, cols [][]float64) Source {
+	t.Helper()
+	var err error
+	switch filepath.Ext(p) {
+	case ".root":
+		err = WriteROOT(p, "events", names, cols)
+	case ".parquet":
+		err = WriteParquet(p, names, cols)
+	default:
+		err = WriteCSV(p, names, cols)
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+	src, err := Open(p, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return src
+}
+
 // TestFormatsAgree writes the same events as ROOT, Parquet and CSV and reads
 // them back: every format must return the written float64 values bit for
 // bit, in the same order, for several batch sizes.
@@ -466,25 +489,9 @@ func TestReadStopsOnError(t *testing.T) {
 	names, cols := sampleColumns(1000)
 	stop := errors.New("stop here")
 	for _, file := range []string{"s.root", "s.parquet", "s.csv"} {
-		p := filepath.Join(dir, file)
-		var err error
-		switch filepath.Ext(file) {
-		case ".root":
-			err = WriteROOT(p, "events", names, cols)
-		case ".parquet":
-			err = WriteParquet(p, names, cols)
-		default:
-			err = WriteCSV(p, names, cols)
-		}
-		if err != nil {
-			t.Fatal(err)
-		}
-		src, err := Open(p, Options{})
-		if err != nil {
-			t.Fatal(err)
-		}
+		src := writeOpen(t, filepath.Join(dir, file), names, cols)
 		calls := 0
-		err = src.Read(context.Background(), names[:2], 100, func(*Batch) error {
+		err := src.Read(context.Background(), names[:2], 100, func(*Batch) error {
 			calls++
 			if calls == 3 {
 				return stop
@@ -759,25 +766,9 @@ func TestNoColumns(t *testing.T) {
 	dir := t.TempDir()
 	names, cols := sampleColumns(2345)
 	for _, file := range []string{"n.root", "n.parquet", "n.csv"} {
-		p := filepath.Join(dir, file)
-		var err error
-		switch filepath.Ext(file) {
-		case ".root":
-			err = WriteROOT(p, "events", names, cols)
-		case ".parquet":
-			err = WriteParquet(p, names, cols)
-		default:
-			err = WriteCSV(p, names, cols)
-		}
-		if err != nil {
-			t.Fatal(err)
-		}
-		src, err := Open(p, Options{})
-		if err != nil {
-			t.Fatal(err)
-		}
+		src := writeOpen(t, filepath.Join(dir, file), names, cols)
 		var n int64
-		err = src.Read(context.Background(), nil, 1000, func(b *Batch) error {
+		err := src.Read(context.Background(), nil, 1000, func(b *Batch) error {
 			if b.Start != n || len(b.Cols) != 0 {
 				t.Fatalf("%s: batch at %d with %d columns, want %d and 0", file, b.Start, len(b.Cols), n)
 			}
