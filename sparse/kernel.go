@@ -40,7 +40,7 @@ type partition struct {
 	// further on (hi[b] <= lo[b+2], as in banded matrices). The blocks
 	// then scatter straight into the destination without buffers: first
 	// the even blocks, which touch disjoint rows, each clearing the rows
-	// clr[b]..clr[b+1]-1 first; then the odd blocks, adding on top.
+	// clr[b]..clr[b+2]-1 first; then the odd blocks, adding on top.
 	colored bool
 	clr     []int
 

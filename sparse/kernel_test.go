@@ -351,7 +351,7 @@ func TestKernelsBitIdentical(t *testing.T) {
 func TestKernelsNoAllocation(t *testing.T) {
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(2))
 	rng := rand.New(rand.NewPCG(17, 18))
-	for _, m := range kernelMatrices(t)[len(kernelShapes)-1:] {
+	for _, m := range kernelMatrices(t)[len(kernelShapes)-3:] { // one single-block matrix too
 		rows, cols := m.Dims()
 		x, y, dst, back := randomVec(rng, cols), randomVec(rng, rows), make([]float64, rows), make([]float64, cols)
 		update := func(j int, g float64) float64 { return g * x[j] }
