@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"math/rand/v2"
@@ -15,15 +14,6 @@ import (
 	"github.com/desmear/desmear/unfold/events"
 	"github.com/desmear/desmear/unfold/tables"
 )
-
-// runAnalysisCLI runs the program with args and returns the exit code, stdout
-// and stderr.
-func runAnalysisCLI(t *testing.T, args ...string) (int, string, string) {
-	t.Helper()
-	var out, errb bytes.Buffer
-	code := run(context.Background(), args, strings.NewReader(""), &out, &errb)
-	return code, out.String(), errb.String()
-}
 
 const cliAnalysis = `title: two-dimensional test analysis
 binning:
@@ -118,7 +108,7 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
 	tdir := filepath.Join(dir, "tables")
-	code, stdout, stderr := runAnalysisCLI(t, "response", path, "--tables", tdir)
+	code, stdout, stderr := runCLI(t, context.Background(), "response", path, "--tables", tdir)
 	if code != 0 {
 		t.Fatalf("response: exit %d\n%s", code, stderr)
 	}
@@ -134,11 +124,11 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(dir, "response", "response.json")); err != nil {
 		t.Errorf("no response bundle: %v", err)
 	}
-	if code, _, _ := runAnalysisCLI(t, "response", path); code != exitUsage {
+	if code, _, _ := runCLI(t, context.Background(), "response", path); code != exitUsage {
 		t.Errorf("an existing bundle was replaced without --force (exit %d)", code)
 	}
 
-	code, stdout, stderr = runAnalysisCLI(t, "unfold", path)
+	code, stdout, stderr = runCLI(t, context.Background(), "unfold", path)
 	if code != 0 {
 		t.Fatalf("unfold analysis: exit %d\n%s", code, stderr)
 	}
@@ -152,7 +142,7 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	}
 
 	plain := filepath.Join(dir, "plain")
-	code, _, stderr = runAnalysisCLI(t, "unfold", "--response", filepath.Join(tdir, "response.csv"), "--generated", filepath.Join(tdir, "generated.csv"),
+	code, _, stderr = runCLI(t, context.Background(), "unfold", "--response", filepath.Join(tdir, "response.csv"), "--generated", filepath.Join(tdir, "generated.csv"),
 		"--background", filepath.Join(tdir, "background.csv"), "--data", filepath.Join(dir, "n.csv"),
 		"--iterations", "3", "--covariance", "full", "--out", plain)
 	if code != 0 {
@@ -213,7 +203,7 @@ func TestAnalysisErrors(t *testing.T) {
 		{[]string{"unfold", filepath.Join(filepath.Dir(path), "missing.yaml")}, exitInput, "missing.yaml: cannot read the analysis file"},
 	}
 	for _, c := range cases {
-		code, _, stderr := runAnalysisCLI(t, c.args...)
+		code, _, stderr := runCLI(t, context.Background(), c.args...)
 		if code != c.code || !strings.Contains(stderr, c.want) {
 			t.Errorf("%v: exit %d, stderr %q; want exit %d and %q", c.args, code, stderr, c.code, c.want)
 		}

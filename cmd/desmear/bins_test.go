@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/csv"
 	"os"
@@ -11,11 +10,10 @@ import (
 	"testing"
 )
 
+// runBinsCLI runs desmear bins with args (see runCLI).
 func runBinsCLI(t *testing.T, args ...string) (code int, stdout, stderr string) {
 	t.Helper()
-	var out, errb bytes.Buffer
-	code = run(context.Background(), append([]string{"bins"}, args...), strings.NewReader(""), &out, &errb)
-	return code, out.String(), errb.String()
+	return runCLI(t, context.Background(), append([]string{"bins"}, args...)...)
 }
 
 const scheme2d = "../../testdata/scheme2d.yaml"
