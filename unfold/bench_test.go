@@ -111,16 +111,8 @@ func BenchmarkFineIterations(b *testing.B) {
 func BenchmarkFineProbes(b *testing.B) {
 	p := fineProblem(b)
 	s := &Settings{Iterations: 4, Covariance: Diagonal, DiagonalMethod: DiagonalProbes, Probes: 100, Seed: 1}
-	var d []time.Duration
 	b.ResetTimer()
-	for range b.N {
-		t0 := time.Now()
-		if _, err := Unfold(context.Background(), p, s); err != nil {
-			b.Fatal(err)
-		}
-		d = append(d, time.Since(t0))
-	}
-	b.ReportMetric(median(d).Seconds(), "s/op-median")
+	benchUnfold(b, p, s)
 }
 
 // BenchmarkFullCovariance: the full linearised covariance at 5,000 truth ×
@@ -129,16 +121,21 @@ func BenchmarkFullCovariance(b *testing.B) {
 	p := benchProblem(b, [3]int{25, 20, 10}, [3]int{25, 20, 20})
 	for _, k := range []int{4, 10} {
 		b.Run(map[int]string{4: "K=4", 10: "K=10"}[k], func(b *testing.B) {
-			s := &Settings{Iterations: k, Covariance: Full}
-			var d []time.Duration
-			for range b.N {
-				t0 := time.Now()
-				if _, err := Unfold(context.Background(), p, s); err != nil {
-					b.Fatal(err)
-				}
-				d = append(d, time.Since(t0))
-			}
-			b.ReportMetric(median(d).Seconds(), "s/op-median")
+			benchUnfold(b, p, &Settings{Iterations: k, Covariance: Full})
 		})
 	}
+}
+
+// benchUnfold runs Unfold b.N times and reports the median time of a
+// call as s/op-median.
+func benchUnfold(b *testing.B, p *Problem, s *Settings) {
+	var d []time.Duration
+	for range b.N {
+		t0 := time.Now()
+		if _, err := Unfold(context.Background(), p, s); err != nil {
+			b.Fatal(err)
+		}
+		d = append(d, time.Since(t0))
+	}
+	b.ReportMetric(median(d).Seconds(), "s/op-median")
 }
