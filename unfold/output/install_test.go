@@ -10,14 +10,7 @@ import (
 	"testing"
 )
 
-func TestInstall(t *testing.T) {
-	t.Run("exchange", testInstall)
-	t.Run("fallback", func(t *testing.T) {
-		noExchange = true
-		defer func() { noExchange = false }()
-		testInstall(t)
-	})
-}
+func TestInstall(t *testing.T) { bothWays(t, testInstall) }
 
 // tempWith makes a temporary sibling of dir holding the file name with
 // content.

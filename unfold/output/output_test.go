@@ -150,12 +150,16 @@ func TestExisting(t *testing.T) {
 	}
 }
 
-func TestReplace(t *testing.T) {
-	t.Run("exchange", testReplace)
+func TestReplace(t *testing.T) { bothWays(t, testReplace) }
+
+// bothWays runs test with the atomic exchange of folders and again with
+// the fallback (rename aside) used where the system has none.
+func bothWays(t *testing.T, test func(*testing.T)) {
+	t.Run("exchange", test)
 	t.Run("fallback", func(t *testing.T) {
 		noExchange = true
 		defer func() { noExchange = false }()
-		testReplace(t)
+		test(t)
 	})
 }
 
