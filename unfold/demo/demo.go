@@ -121,7 +121,8 @@ func ExpectedTruth(s *binning.Scheme, cfg Config) []float64 {
 // unless replace is true and dir is empty or a previous demo folder (it
 // holds scenario.json): then it is replaced; any other existing path is
 // refused with an error wrapping ErrNotDemoFolder. Whatever the number of
-// cores, the same cfg gives the same bytes.
+// cores, the same cfg gives the same events and the same bytes in every
+// file except the ROOT files, whose keys carry their write time and path.
 func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Inputs, error) {
 	if err := cfg.check(); err != nil {
 		return nil, err

@@ -19,13 +19,22 @@ func partialPattern(base string) string { return "." + base + ".partial-" }
 // at dir, creating dir's parent folders if they are missing. It is for
 // folders that are not result folders (a Folder does all of this
 // itself); the caller removes the temporary folder when the writing
-// fails. Like os.MkdirTemp it makes the folder private (mode 0700).
+// fails. The folder gets mode 0755, as a result folder does, so the
+// installed folder is not private.
 func Temp(dir string) (string, error) {
 	parent := filepath.Dir(filepath.Clean(dir))
 	if err := os.MkdirAll(parent, 0o755); err != nil {
 		return "", err
 	}
-	return os.MkdirTemp(parent, partialPattern(filepath.Base(filepath.Clean(dir))))
+	tmp, err := os.MkdirTemp(parent, partialPattern(filepath.Base(filepath.Clean(dir))))
+	if err != nil {
+		return "", err
+	}
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		os.Remove(tmp)
+		return "", err
+	}
+	return tmp, nil
 }
 
 // WriteSynced creates (or truncates) the file path, writes it through
