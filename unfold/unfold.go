@@ -3,6 +3,7 @@ package unfold
 import (
 	"context"
 	"math"
+	"runtime"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -121,25 +122,37 @@ func Unfold(ctx context.Context, p *Problem, s *Settings) (*Result, error) {
 
 // tangents are linear perturbations carried along the nominal iteration.
 // init is called after μ(0), ν(0) are set; step after every iteration,
-// while the iterator still holds μ(k), ν(k) and g(k) = Rᵀ(n/ν(k)), with
-// μ(k+1) (smoothed) in it.next.
+// while the iterator still holds μ(k), ν(k) and g(k) = Rᵀ(n/ν(k)) (it.mu,
+// it.nu, it.g), with μ(k+1) (smoothed) in it.next and R μ(k+1), ν(k+1),
+// n/ν(k+1) already in it.fnext, it.nunext, it.ynext.
 type tangents interface {
 	init(ctx context.Context, it *iterator) error
 	step(ctx context.Context, it *iterator) error
 }
 
 // iterator holds the state of one iteration sequence.
+//
+// Each iteration is one SweepRows call: the sweep gathers from y(k) and
+// scatters R μ(k+1) into fnext, and its rows hook forms ν(k+1), y(k+1)
+// and the log-likelihood partial sum of each fixed row range as soon as
+// the range of fnext is final. The hook writes the second buffers
+// (nunext, ynext), so the sweep never reads what the hook writes, and
+// μ(k), ν(k), g(k) stay available to the tangents until the swap.
 type iterator struct {
 	m  *model
 	sm *smoother
 	n  []float64 // data of this sequence
 
 	mu, next, g, tmp []float64 // truth-sized
-	fold, fnext, nu  []float64 // reco-sized: R μ(k), R μ(k+1), ν(k) (ν aliases fold without background)
-	y                []float64 // n / ν(k)
+	fold, fnext      []float64 // reco-sized: R μ(k), R μ(k+1)
+	nu, nunext       []float64 // ν(k), ν(k+1); without background they alias fold, fnext
+	y, ynext         []float64 // n / ν(k), n / ν(k+1)
 	rp               []float64 // R p (the folded prior), for the tangents' start
+	ranges           []int     // the matrix's fixed row ranges (RowRanges)
+	ll               []float64 // log-likelihood partial sum per row range
 	red              reducer
 	update           func(j int, g float64) float64
+	rows             func(r, lo, hi int)
 }
 
 func newIterator(m *model, sm *smoother) *iterator {
@@ -147,10 +160,14 @@ func newIterator(m *model, sm *smoother) *iterator {
 		m: m, sm: sm,
 		mu: make([]float64, m.nt), next: make([]float64, m.nt), g: make([]float64, m.nt),
 		fold: make([]float64, m.nr), fnext: make([]float64, m.nr),
-		y: make([]float64, m.nr), rp: make([]float64, m.nr),
+		y: make([]float64, m.nr), ynext: make([]float64, m.nr), rp: make([]float64, m.nr),
+		ranges: m.a.RowRanges(),
 	}
+	it.ll = make([]float64, len(it.ranges)-1)
 	if m.b != nil {
-		it.nu = make([]float64, m.nr)
+		it.nu, it.nunext = make([]float64, m.nr), make([]float64, m.nr)
+	} else {
+		it.nu, it.nunext = it.fold, it.fnext // ν = R μ: no copy; swapped together
 	}
 	it.tmp = make([]float64, m.nt)
 	m.fold(it.rp, m.prior, it.tmp)
@@ -160,6 +177,9 @@ func newIterator(m *model, sm *smoother) *iterator {
 		v := it.mu[j] * g * it.m.invEps[j]
 		it.next[j] = v
 		return v * it.m.invG[j] // scatter A (μ'/G) = R μ'
+	}
+	it.rows = func(r, lo, hi int) {
+		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.ynext, lo, hi)
 	}
 	return it
 }
@@ -181,54 +201,77 @@ func (it *iterator) start(n []float64) float64 {
 	return it.reco()
 }
 
-// reco computes ν = fold + b and y = n/ν from it.fold and returns the
-// log-likelihood.
+// reco computes ν(k) = fold + b and y(k) = n/ν(k) from it.fold and
+// returns the log-likelihood.
 func (it *iterator) reco() float64 {
-	n, b, fold, y := it.n, it.m.b, it.fold, it.y
-	if b == nil {
-		it.nu = fold // ν = R μ: no copy
-	}
-	nu := it.nu
-	s := it.red.run(len(nu), func(lo, hi int, acc *[4]float64) {
-		f := fold[lo:hi]
-		nn, yy := n[lo:hi:hi], y[lo:hi:hi]
-		nn, yy = nn[:len(f)], yy[:len(f)]
-		var ll float64
-		if b != nil {
-			bb, vv := b[lo:hi], nu[lo:hi]
-			bb, vv = bb[:len(f)], vv[:len(f)]
-			for i, v := range f {
-				v += bb[i]
-				vv[i] = v
-				if x := nn[i]; v > 0 {
-					yy[i] = x / v
-					ll += x*fastLog(v) - v
-				} else {
-					yy[i] = 0
-				}
-			}
-		} else {
-			for i, v := range f {
-				if x := nn[i]; v > 0 {
-					yy[i] = x / v
-					ll += x*fastLog(v) - v
-				} else {
-					yy[i] = 0
-				}
-			}
-		}
-		acc[0] = ll
-	})
-	return s[0]
+	return it.recoAll(it.fold, it.nu, it.y)
 }
 
-// emStep computes μ(k+1) into it.next, g into it.g and R μ(k+1) into
-// it.fnext.
-func (it *iterator) emStep() {
+// recoAll runs recoRange over all row ranges (in parallel) and returns
+// the log-likelihood, summed like the SweepRows path: per range, then the
+// ranges in order.
+func (it *iterator) recoAll(fold, nu, y []float64) float64 {
+	rb := it.ranges
+	forEach(len(it.ll), runtime.GOMAXPROCS(0), func(r int) {
+		it.ll[r] = it.recoRange(fold, nu, y, rb[r], rb[r+1])
+	})
+	return it.sumLL()
+}
+
+// sumLL adds the per-range log-likelihood partial sums in range order.
+func (it *iterator) sumLL() float64 {
+	var s float64
+	for _, v := range it.ll {
+		s += v
+	}
+	return s
+}
+
+// recoRange sets nu = fold + b (only with a background; otherwise nu
+// aliases fold) and y = n/nu over the rows [lo, hi) and returns the
+// partial log-likelihood Σ (n_i ln ν_i − ν_i) of those rows, summed in
+// row order. It touches nothing outside [lo, hi).
+func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
+	n, b := it.n, it.m.b
+	f := fold[lo:hi]
+	nn, yy := n[lo:hi:hi], y[lo:hi:hi]
+	nn, yy = nn[:len(f)], yy[:len(f)]
+	var ll float64
+	if b != nil {
+		bb, vv := b[lo:hi], nu[lo:hi]
+		bb, vv = bb[:len(f)], vv[:len(f)]
+		for i, v := range f {
+			v += bb[i]
+			vv[i] = v
+			if x := nn[i]; v > 0 {
+				yy[i] = x / v
+				ll += x*fastLog(v) - v
+			} else {
+				yy[i] = 0
+			}
+		}
+	} else {
+		for i, v := range f {
+			if x := nn[i]; v > 0 {
+				yy[i] = x / v
+				ll += x*fastLog(v) - v
+			} else {
+				yy[i] = 0
+			}
+		}
+	}
+	return ll
+}
+
+// emStep computes μ(k+1) into it.next, g(k) into it.g, R μ(k+1) into
+// it.fnext, and ν(k+1), y(k+1) into it.nunext, it.ynext; it returns the
+// log-likelihood at μ(k+1). it.mu, it.fold, it.nu and it.y are left as
+// they were.
+func (it *iterator) emStep() float64 {
 	m := it.m
 	if it.sm == nil {
-		m.a.Sweep(it.fnext, it.y, it.update)
-		return
+		m.a.SweepRows(it.fnext, it.y, it.update, it.rows)
+		return it.sumLL()
 	}
 	m.a.BackProject(it.g, it.y)
 	for j, g := range it.g {
@@ -238,6 +281,7 @@ func (it *iterator) emStep() {
 	}
 	it.sm.apply(it.next, it.tmp)
 	m.fold(it.fnext, it.next, it.tmp)
+	return it.recoAll(it.fnext, it.nunext, it.ynext)
 }
 
 // compare returns the χ² and the relative change between it.next and
@@ -295,7 +339,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		it.emStep()
+		ll := it.emStep()
 		if tan != nil {
 			if err := tan.step(ctx, it); err != nil {
 				return err
@@ -304,7 +348,8 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		chi2, change := it.compare()
 		it.mu, it.next = it.next, it.mu
 		it.fold, it.fnext = it.fnext, it.fold
-		ll := it.reco()
+		it.nu, it.nunext = it.nunext, it.nu
+		it.y, it.ynext = it.ynext, it.y
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
 			return &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow)"}
 		}
