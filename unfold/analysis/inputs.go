@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"slices"
+	"strconv"
 	"strings"
 
 	"github.com/desmear/desmear/unfold/events"
@@ -93,7 +94,7 @@ func (c *compiler) exprError(e Expression, err error) error {
 	msg := fmt.Sprintf("in %q: %v", e.Text, err)
 	var oe *observable.Error
 	if errors.As(err, &oe) {
-		msg = fmt.Sprintf("%s (at column %d of %q)", oe.Msg, oe.Column(), e.Text)
+		msg = fmt.Sprintf("%s (at column %d of %q)", withoutColumnList(oe.Msg), oe.Column(), e.Text)
 		if strings.Contains(oe.Msg, "column") || strings.Contains(oe.Msg, "unknown") {
 			cols := c.available
 			more := ""
@@ -104,6 +105,26 @@ func (c *compiler) exprError(e Expression, err error) error {
 		}
 	}
 	return &Error{File: c.a.File, Line: e.Line, Field: e.Field, Msg: msg, Err: err}
+}
+
+// withoutColumnList drops the list of columns that the expression compiler
+// appends to an unknown-column message when it has no close suggestion:
+// exprError lists the file's columns itself, with the file name. A "did you
+// mean" suggestion is kept.
+func withoutColumnList(msg string) string {
+	const prefix = "unknown column "
+	if !strings.HasPrefix(msg, prefix) {
+		return msg
+	}
+	q, err := strconv.QuotedPrefix(msg[len(prefix):])
+	if err != nil {
+		return msg
+	}
+	head := msg[:len(prefix)+len(q)]
+	if rest := msg[len(head):]; strings.HasPrefix(rest, "; did you mean") {
+		return msg
+	}
+	return head
 }
 
 // openEvents opens an events file named in field at line.

@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -156,8 +157,15 @@ func (a *Analysis) LoadResponse() (*fill.Response, *fill.BundleInfo, error) {
 		}
 		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: msg, Err: err}
 	}
-	if info.TruthScheme != Fingerprint(a.Truth) || info.RecoScheme != Fingerprint(a.Reco) {
-		return nil, nil, &Error{File: a.File, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for other binning schemes; rebuild it with desmear response", a.ResponseFile)}
+	var differ []string
+	if info.TruthScheme != Fingerprint(a.Truth) {
+		differ = append(differ, "truth")
+	}
+	if info.RecoScheme != Fingerprint(a.Reco) {
+		differ = append(differ, "reco")
+	}
+	if len(differ) > 0 {
+		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for another %s binning than this file's; rebuild it with \"desmear response %s\"", a.ResponseFile, strings.Join(differ, " and "), a.File)}
 	}
 	return r, info, nil
 }

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -367,8 +368,12 @@ func TestSavedResponse(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, _, err := c.LoadResponse(); err == nil || !strings.Contains(err.Error(), "other binning schemes") {
-		t.Errorf("a bundle of other schemes: got %v", err)
+	// The message names the analysis file's line of the response key and
+	// the level whose binning differs.
+	line := 1 + strings.Count(other[:strings.Index(other, "response: saved")], "\n")
+	want := fmt.Sprintf("analysis.yaml:%d: response: the saved response %s was built for another truth binning", line, filepath.Join(dir, "saved"))
+	if _, _, err := c.LoadResponse(); err == nil || !strings.Contains(err.Error(), want) {
+		t.Errorf("a bundle of other schemes: got %v, want %q", err, want)
 	}
 }
 
@@ -473,5 +478,41 @@ func TestInputsCheckedFirst(t *testing.T) {
 	}
 	if read {
 		t.Error("events were read before the inputs were checked")
+	}
+}
+
+// An unknown column with no close name lists the file's columns once,
+// after the position in the expression, not a second time from the
+// expression compiler.
+func TestUnknownColumnListedOnce(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(100, 1))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{{1}})
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "observables: {x: x}", "observables: {x: zzzz}").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	if err == nil {
+		t.Fatal("no error for an unknown column")
+	}
+	msg := err.Error()
+	want := `data.observables.x: unknown column "zzzz" (at column 1 of "zzzz"); `
+	if !strings.Contains(msg, want) || !strings.HasSuffix(msg, "data.csv has the columns x") || strings.Contains(msg, "(columns:") {
+		t.Errorf("got %q, want it to contain %q and no second column list", msg, want)
+	}
+}
+
+func TestWithoutColumnList(t *testing.T) {
+	for _, c := range []struct{ in, want string }{
+		{`unknown column "wgt" (columns: pt, weight)`, `unknown column "wgt"`},
+		{`unknown column "a (columns: b)" (12 columns; first: a, b, ...)`, `unknown column "a (columns: b)"`},
+		{`unknown column "weigh"; did you mean "weight"?`, `unknown column "weigh"; did you mean "weight"?`},
+		{`hypot takes 2 arguments, got 1`, `hypot takes 2 arguments, got 1`},
+	} {
+		if got := withoutColumnList(c.in); got != c.want {
+			t.Errorf("withoutColumnList(%q) = %q, want %q", c.in, got, c.want)
+		}
 	}
 }
