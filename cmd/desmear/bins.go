@@ -18,8 +18,9 @@ import (
 )
 
 type binsOptions struct {
-	format string
-	locate string
+	format    string
+	locate    string
+	locateSet bool // --locate was given, even if empty
 }
 
 func newBinsCommand(g *globalOptions) *cobra.Command {
@@ -41,6 +42,7 @@ bin.`,
   desmear bins testdata/scheme2d.yaml --locate y=1.2,pt=35`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			o.locateSet = cmd.Flags().Changed("locate")
 			return runBins(g, &o, args[0])
 		},
 	}
@@ -59,7 +61,7 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 	if err != nil {
 		return err
 	}
-	if o.locate != "" {
+	if o.locateSet || o.locate != "" {
 		if x, err = parsePoint(s, o.locate); err != nil {
 			return err
 		}

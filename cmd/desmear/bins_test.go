@@ -119,6 +119,9 @@ func TestBinsErrors(t *testing.T) {
 		{[]string{scheme2d, "--locate", "y=1,pt=x"}, exitUsage, "not a number"},
 		{[]string{scheme2d, "--locate", "y=1,y=2,pt=3"}, exitUsage, "twice"},
 		{[]string{scheme2d, "--locate", "y"}, exitUsage, "axis=value"},
+		// An empty point (e.g. from an unset shell variable) is an error,
+		// not a request for the whole table.
+		{[]string{scheme2d, "--locate", ""}, exitUsage, "axis=value"},
 		{[]string{filepath.Join(dir, "missing.yaml")}, exitInput, "missing.yaml"}, // a missing input file is bad input, as for every command
 		{[]string{bad}, exitInput, bad + ":4:"},
 	}
