@@ -176,7 +176,7 @@ func checkTarget(dir string, replace bool) error {
 		return err
 	}
 	if !replace {
-		return fmt.Errorf("demo: %s already exists (replace it with --force): %w", dir, fs.ErrExist)
+		return existsError{dir}
 	}
 	if !st.IsDir() {
 		return fmt.Errorf("demo: %s exists and is not a folder; choose another output folder: %w", dir, ErrNotDemoFolder)
@@ -193,6 +193,16 @@ func checkTarget(dir string, replace bool) error {
 	}
 	return nil
 }
+
+// existsError reports an existing output folder. It matches fs.ErrExist
+// with errors.Is without repeating that error's text.
+type existsError struct{ dir string }
+
+func (e existsError) Error() string {
+	return fmt.Sprintf("demo: %s already exists (replace it with --force)", e.dir)
+}
+
+func (e existsError) Is(target error) bool { return target == fs.ErrExist }
 
 // moveIntoPlace renames tmp to dir, replacing an existing dir if allowed
 // (checked again, in case it appeared meanwhile).
