@@ -407,6 +407,11 @@ func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
 	if err := f.Close(); err != nil {
 		return fmt.Errorf("rootio: writing %s: %w", path, err)
 	}
+	// os.CreateTemp makes the file private (0600); a result file gets the
+	// same permissions as the other files written beside it.
+	if err := os.Chmod(tmp, 0o644); err != nil {
+		return fmt.Errorf("rootio: writing %s: %w", path, err)
+	}
 	if err := os.Rename(tmp, path); err != nil {
 		return fmt.Errorf("rootio: writing %s: %w", path, err)
 	}

@@ -286,6 +286,13 @@ func TestWriteReadRoundTrip(t *testing.T) {
 	if err := WriteFile(path, []*Hist1D{h1}, []*Hist2D{h2u, h2v}); err != nil {
 		t.Fatal(err)
 	}
+	// Readable by others, like any other result file (not the 0600 of
+	// the temporary file it was written as).
+	if st, err := os.Stat(path); err != nil {
+		t.Fatal(err)
+	} else if st.Mode().Perm() != 0o644 {
+		t.Errorf("written file has mode %v; want -rw-r--r--", st.Mode())
+	}
 	keys, err := Keys(path)
 	if err != nil {
 		t.Fatal(err)
