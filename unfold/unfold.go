@@ -151,7 +151,9 @@ type iterator struct {
 	ranges           []int     // the matrix's fixed row ranges (RowRanges)
 	ll               []float64 // log-likelihood partial sum per row range
 	red              reducer
+	keepG            bool // tangents read g: the sweep stores it
 	update           func(j int, g float64) float64
+	updateNoG        func(j int, g float64) float64
 	rows             func(r, lo, hi int)
 }
 
@@ -171,12 +173,21 @@ func newIterator(m *model, sm *smoother) *iterator {
 	}
 	it.tmp = make([]float64, m.nt)
 	m.fold(it.rp, m.prior, it.tmp)
+	invG, invEps, gk := m.invG, m.invEps, it.g
 	it.update = func(j int, ga float64) float64 {
-		g := ga * it.m.invG[j] // (Rᵀ y)_j from (Aᵀ y)_j
-		it.g[j] = g
-		v := it.mu[j] * g * it.m.invEps[j]
+		ig := invG[j]
+		g := ga * ig // (Rᵀ y)_j from (Aᵀ y)_j
+		gk[j] = g
+		v := it.mu[j] * g * invEps[j]
 		it.next[j] = v
-		return v * it.m.invG[j] // scatter A (μ'/G) = R μ'
+		return v * ig // scatter A (μ'/G) = R μ'
+	}
+	// the same without storing g, when no tangents read it
+	it.updateNoG = func(j int, ga float64) float64 {
+		ig := invG[j]
+		v := it.mu[j] * (ga * ig) * invEps[j]
+		it.next[j] = v
+		return v * ig
 	}
 	it.rows = func(r, lo, hi int) {
 		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.ynext, lo, hi)
@@ -263,14 +274,19 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	return ll
 }
 
-// emStep computes μ(k+1) into it.next, g(k) into it.g, R μ(k+1) into
+// emStep computes μ(k+1) into it.next, g(k) into it.g (when it.keepG or
+// with smoothing), R μ(k+1) into
 // it.fnext, and ν(k+1), y(k+1) into it.nunext, it.ynext; it returns the
 // log-likelihood at μ(k+1). it.mu, it.fold, it.nu and it.y are left as
 // they were.
 func (it *iterator) emStep() float64 {
 	m := it.m
 	if it.sm == nil {
-		m.a.SweepRows(it.fnext, it.y, it.update, it.rows)
+		upd := it.update
+		if !it.keepG {
+			upd = it.updateNoG
+		}
+		m.a.SweepRows(it.fnext, it.y, upd, it.rows)
 		return it.sumLL()
 	}
 	m.a.BackProject(it.g, it.y)
@@ -330,6 +346,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 	}
 	res.History = append(res.History[:0], Step{LogLikelihood: it.start(n)})
 	res.Iterations, res.Converged = 0, false
+	it.keepG = tan != nil
 	if tan != nil {
 		if err := tan.init(ctx, it); err != nil {
 			return err
