@@ -50,8 +50,11 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace boo
 		return nil, nil, classifyAnalysisErr(err)
 	}
 	if err := a.CheckOutput(replace); err != nil {
-		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+		switch {
+		case errors.Is(err, output.ErrExists):
 			return nil, nil, usagef("%v (use --force to replace an earlier result)", err)
+		case errors.Is(err, output.ErrNotResult):
+			return nil, nil, usagef("%v; it is not replaced even with --force: choose another output.folder", err)
 		}
 		return nil, nil, ioErr(err)
 	}

@@ -212,3 +212,28 @@ func TestAnalysisErrors(t *testing.T) {
 		}
 	}
 }
+
+// An existing result folder is refused without --force with a hint to
+// use it; a folder that is not an earlier result is refused even with
+// --force, and the message does not suggest --force.
+func TestAnalysisOutputFolderRefused(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	res := filepath.Join(filepath.Dir(path), "result")
+	if err := os.Mkdir(res, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(res, "thesis.tex"), []byte("keep"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	if code != exitUsage || !strings.Contains(stderr, "use --force") {
+		t.Errorf("without --force: exit %d, %q; want %d and a hint to use --force", code, stderr, exitUsage)
+	}
+	code, _, stderr = runCLI(t, context.Background(), "unfold", path, "--force")
+	if code != exitUsage || strings.Contains(stderr, "use --force") || !strings.Contains(stderr, "not replaced even with --force") {
+		t.Errorf("with --force: exit %d, %q; want %d and no hint to use --force", code, stderr, exitUsage)
+	}
+	if b, err := os.ReadFile(filepath.Join(res, "thesis.tex")); err != nil || string(b) != "keep" {
+		t.Errorf("the folder was touched: %v %q", err, b)
+	}
+}
