@@ -21,10 +21,13 @@
 //     μ_j ← (μ_j / eps_j) Σ_i R_ij n_i / ν_i.
 //     A reco bin with ν_i = 0 contributes nothing.
 //
-// Each iteration is one fused pass over the matrix (sparse.Matrix.Sweep):
-// y = n/ν is formed from the previous fold, the sweep gathers
-// g_j = (Rᵀ y)_j, forms μ_j' = μ_j g_j / eps_j and scatters R μ' into
-// the next fold.
+// Each iteration is one fused pass over the matrix
+// (sparse.Matrix.SweepRows): the sweep gathers g_j = (Rᵀ y)_j with
+// y = n/ν, forms μ_j' = μ_j g_j / eps_j and scatters R μ' into the next
+// fold; as each fixed row range of that fold is final, the sweep's rows
+// hook forms the next ν, n/ν and the range's share of the
+// log-likelihood. The log-likelihood is summed within each row range of
+// the matrix (sparse.Matrix.RowRanges) and the ranges in order.
 //
 // With Settings.Background = Subtract the background is removed from the
 // data first, n' = max(n − b, 0), and the iteration runs with b = 0 in ν;
