@@ -123,7 +123,10 @@ regions:
 regions:
   - name: a
     axes: []
-`, 4, "regions[0].axes", "non-empty"},
+`, 4, "regions[0].axes", "expected a non-empty list of axes, found an empty list"},
+		{"no regions", `
+regions: []
+`, 2, "regions", "expected a non-empty list of regions, found an empty list"},
 		{"edge not a number", `
 regions:
   - name: a
