@@ -135,3 +135,22 @@ func TestBinsErrors(t *testing.T) {
 		}
 	}
 }
+
+// A wrong number of arguments is a usage error that shows how the
+// command is called, as a flag error does.
+func TestArgumentErrorsSayUsage(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"bins"}, `usage: desmear bins FILE.yaml [flags] (see "desmear bins --help")`},
+		{[]string{"response", "a.yaml", "b.yaml"}, `usage: desmear response ANALYSIS.yaml [flags] (see "desmear response --help")`},
+		{[]string{"demo", "extra"}, `(see "desmear demo --help")`},
+		{[]string{"unfold", "a.yaml", "b.yaml"}, `(see "desmear unfold --help")`},
+	} {
+		code, out, errs := runCLI(t, context.Background(), c.args...)
+		if code != exitUsage || !strings.Contains(errs, c.want) || out != "" {
+			t.Errorf("desmear %v: exit %d, stdout %q, stderr %q; want exit %d and %q", c.args, code, out, errs, exitUsage, c.want)
+		}
+	}
+}

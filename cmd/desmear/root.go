@@ -66,5 +66,23 @@ measurement from simulated events and unfolds it.
 		newResponseCommand(g),
 		newDemoCommand(g),
 	)
+	for _, c := range root.Commands() {
+		withUsageHint(c)
+	}
 	return root
+}
+
+// withUsageHint makes an error of c's argument check (cobra's "accepts 1
+// arg(s), received 0") say how the command is called, as flag errors do.
+func withUsageHint(c *cobra.Command) {
+	check := c.Args
+	if check == nil {
+		return
+	}
+	c.Args = func(cmd *cobra.Command, args []string) error {
+		if err := check(cmd, args); err != nil {
+			return usagef("%v; usage: %s (see %q)", err, cmd.UseLine(), cmd.CommandPath()+" --help")
+		}
+		return nil
+	}
 }
