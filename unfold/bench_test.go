@@ -139,3 +139,52 @@ func benchUnfold(b *testing.B, p *Problem, s *Settings) {
 	}
 	b.ReportMetric(median(d).Seconds(), "s/op-median")
 }
+
+// BenchmarkFineIterationParts times the pieces of an iteration at the
+// fine grid, 10 times each per round, interleaved: the bare fused sweep,
+// the sweep with the iteration's update, the same with the row hook that
+// forms ν, n/ν and the log-likelihood (one iteration's sweep), the reco
+// work alone as a separate parallel pass, and the χ² pass. Reports the
+// medians over the rounds.
+func BenchmarkFineIterationParts(b *testing.B) {
+	p := fineProblem(b)
+	m, err := newModel(p, InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	it := newIterator(m, nil)
+	it.start(m.n)
+	nr, nt := p.Migrations.Dims()
+	x := make([]float64, nt)
+	y := make([]float64, nr)
+	next := make([]float64, nr)
+	for i := range y {
+		y[i] = 1
+	}
+	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	parts := []struct {
+		name string
+		f    func()
+	}{
+		{"ms/10sweeps", func() { p.Migrations.Sweep(next, y, upd) }},
+		{"ms/10sweeps-update", func() { p.Migrations.Sweep(it.fnext, it.y, it.updateNoG) }},
+		{"ms/10sweeps-update-hook", func() { p.Migrations.SweepRows(it.fnext, it.y, it.updateNoG, it.rows) }},
+		{"ms/10reco-passes", func() { it.recoAll(it.fnext, it.nunext, it.ynext) }},
+		{"ms/10chi2-passes", func() { it.compare() }},
+	}
+	d := make([][]time.Duration, len(parts))
+	b.ResetTimer()
+	for range b.N {
+		for k, pt := range parts {
+			t0 := time.Now()
+			for range 10 {
+				pt.f()
+			}
+			d[k] = append(d[k], time.Since(t0))
+		}
+	}
+	b.StopTimer()
+	for k, pt := range parts {
+		b.ReportMetric(median(d[k]).Seconds()*1e3, pt.name)
+	}
+}
