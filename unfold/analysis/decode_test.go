@@ -74,6 +74,10 @@ func TestDecodeErrors(t *testing.T) {
 		{"  events: data.csv", "  events: data.csv\n  table: n.csv", `data: give exactly one of`},
 		{"  - file: sim.csv\n    weight: w\n    truth_selection: pt\n    reco_selection: pr", "  file: sim.csv\n  weight: w\n  truth_selection: pt\n  reco_selection: pr", `testdata/bad.yaml:13: simulation: the value is a mapping, want a list of simulated samples`},
 		{"  - file: sim.csv", "  - file: sim.txt", `testdata/bad.yaml:13: simulation[0].file: unknown events format of "sim.txt"`},
+		// A scalar of the wrong type is named with its YAML kind and the
+		// right article.
+		{"  iterations: 3", "  iterations: [3]", `testdata/bad.yaml:26: unfolding.iterations: the value is a list, want a whole number`},
+		{"  folder: out", "  folder: out\n  formats: 5", `value 5 is an integer, want a list`},
 	}
 	for _, c := range cases {
 		err := decodeErr(t, c.old, c.new)

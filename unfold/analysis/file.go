@@ -252,16 +252,26 @@ func translate(file string, err error, root *yaml.Node) error {
 				kind := strings.TrimPrefix(sm[1], "!!")
 				switch kind {
 				case "map":
-					kind = "mapping"
+					kind = "a mapping"
 				case "seq":
-					kind = "list"
+					kind = "a list"
 				case "str":
-					kind = "string"
+					kind = "a string"
+				case "int":
+					kind = "an integer"
+				case "float":
+					kind = "a number"
+				case "bool":
+					kind = "true or false"
+				case "null":
+					kind = "empty (null)"
+				default:
+					kind = "a " + kind
 				}
 				if v := strings.Trim(sm[2], "`"); v != "" {
-					e.Msg = fmt.Sprintf("value %s is a %s, want %s", v, kind, goTypeName(sm[3]))
+					e.Msg = fmt.Sprintf("value %s is %s, want %s", v, kind, goTypeName(sm[3]))
 				} else {
-					e.Msg = fmt.Sprintf("the value is a %s, want %s", kind, goTypeName(sm[3]))
+					e.Msg = fmt.Sprintf("the value is %s, want %s", kind, goTypeName(sm[3]))
 				}
 				if root != nil {
 					e.Field = fieldAtLine(root, e.Line, sm[1])

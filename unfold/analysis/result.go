@@ -8,6 +8,7 @@ import (
 	"math"
 	"path/filepath"
 	"strconv"
+	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -120,7 +121,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		return nil, err
 	}
 	if out.Result, err = unfold.Unfold(ctx, p, s); err != nil {
-		return nil, err
+		return nil, a.placeKernelError(err)
 	}
 	if err := a.write(out, s, replace, opt); err != nil {
 		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
@@ -350,4 +351,53 @@ func writeRegion(w csvWriter, s *binning.Scheme, r int, doc *Document, pur, stab
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// placeKernelError puts an input error of the unfolding kernel at the key
+// of the analysis file whose input it concerns, with the labels of the
+// bins concerned, so that the message names the file and what to look at.
+// Other errors are returned unchanged.
+func (a *Analysis) placeKernelError(err error) error {
+	var ue *unfold.InputError
+	if !errors.As(err, &ue) {
+		return err
+	}
+	e := &Error{File: a.File, Err: err}
+	what := ""
+	switch ue.Field {
+	case "Migrations", "Generated":
+		switch {
+		case a.ResponseFile != "":
+			e.Field, e.Line = "response", a.responseLine
+		case len(a.Simulation) > 0:
+			e.Field, e.Line = "simulation", a.Simulation[0].Line
+		}
+	case "Data", "DataVariance":
+		e.Field, e.Line = "data", a.Data.Line
+	case "Background", "BackgroundVariance":
+		// The expected background holds the simulation's fakes and the
+		// background samples.
+		what = "the expected background (the simulation's fakes and the backgrounds): "
+		e.Field = "backgrounds"
+		if len(a.Backgrounds) == 0 {
+			what = "the expected background (the simulation's fakes): "
+			e.Field = "simulation"
+		}
+	case "Prior":
+		e.Field = "unfolding.prior_file"
+	default:
+		e.Field = ue.Field
+	}
+	var where []string
+	if ue.Reco >= 0 && ue.Reco < a.Reco.Len() {
+		where = append(where, fmt.Sprintf("reco bin %d (%s)", ue.Reco, a.Reco.Label(ue.Reco)))
+	}
+	if ue.Truth >= 0 && ue.Truth < a.Truth.Len() {
+		where = append(where, fmt.Sprintf("truth bin %d (%s)", ue.Truth, a.Truth.Label(ue.Truth)))
+	}
+	e.Msg = what + ue.Reason
+	if len(where) > 0 {
+		e.Msg = strings.Join(where, ", ") + ": " + e.Msg
+	}
+	return e
 }

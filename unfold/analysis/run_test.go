@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -513,6 +514,39 @@ func TestWithoutColumnList(t *testing.T) {
 	} {
 		if got := withoutColumnList(c.in); got != c.want {
 			t.Errorf("withoutColumnList(%q) = %q, want %q", c.in, got, c.want)
+		}
+	}
+}
+
+// An input problem found by the unfolding kernel (here negative data from
+// negative data weights, and an empty response from a selection no event
+// passes) is reported at the analysis file's key, with the bin's label.
+func TestKernelErrorsPlaced(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(2000, 3))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(500, 4)[1]})
+	for _, c := range []struct {
+		old, new string
+		want     string
+	}{
+		{"  observables: {x: x}\n", "  observables: {x: x}\n  weight: \"-1\"\n",
+			`a.yaml:23: data: reco bin 0 (all x[0,0.25)): value -`},
+		{"    truth_selection: ok_true\n    reco_selection: ok_reco > 0.5\n", "    truth_selection: \"0\"\n    reco_selection: \"0\"\n",
+			`a.yaml:17: simulation: the response is empty`},
+	} {
+		src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv").Replace(analysisTemplate)
+		if !strings.Contains(src, c.old) {
+			t.Fatalf("template lacks %q", c.old)
+		}
+		a, err := Decode([]byte(strings.Replace(src, c.old, c.new, 1)), filepath.Join(dir, "a.yaml"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		_, err = a.Run(context.Background(), nil, false)
+		var ae *Error
+		var ue *unfold.InputError
+		if !errors.As(err, &ae) || !errors.As(err, &ue) || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("got %v (%T), want an *Error wrapping an *unfold.InputError, containing %q", err, err, c.want)
 		}
 	}
 }
