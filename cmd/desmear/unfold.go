@@ -7,6 +7,7 @@ import (
 	"io"
 	"io/fs"
 	"os"
+	"path/filepath"
 	"slices"
 	"strings"
 	"text/tabwriter"
@@ -166,6 +167,9 @@ func checkAnalysisFlags(cmd *cobra.Command, path string) error {
 	}
 	if len(settingsGiven) > 0 {
 		return usagef("%s cannot be combined with an analysis file: the settings come from %s (only %s applies)", strings.Join(settingsGiven, ", "), path, "--"+strings.Join(analysisFlags, ", --"))
+	}
+	if strings.EqualFold(filepath.Ext(path), ".csv") {
+		return usagef("%s looks like a plain table, not an analysis file (YAML); to unfold from plain tables give them with flags: desmear unfold --response A.csv --generated G.csv --data n.csv --out DIR", path)
 	}
 	return nil
 }

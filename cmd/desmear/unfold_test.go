@@ -480,6 +480,8 @@ func TestUnfoldArguments(t *testing.T) {
 		{"mixed", []string{"unfold", "analysis.yaml", "--response", filepath.Join(dir, "A.csv")}, []string{"not both", "--response"}},
 		{"settings with analysis file", []string{"unfold", "analysis.yaml", "--iterations", "3", "--force"}, []string{"--iterations cannot be combined with an analysis file"}},
 		{"two files", []string{"unfold", "a.yaml", "b.yaml"}, []string{"accepts at most 1 arg"}},
+		// A table given where the analysis file goes is pointed to the flags.
+		{"table as analysis file", []string{"unfold", filepath.Join(dir, "A.csv")}, []string{"looks like a plain table", "--response A.csv"}},
 		{"missing required", []string{"unfold", "--response", filepath.Join(dir, "A.csv"), "--out", out}, []string{"--generated", "--data"}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
