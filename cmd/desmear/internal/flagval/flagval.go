@@ -95,8 +95,16 @@ func (b *ByteSize) Set(s string) error {
 		}
 	}
 	v, err := strconv.ParseFloat(t, 64)
-	if err != nil || math.IsNaN(v) || v <= 0 || math.IsInf(v, 0) || v*factor >= math.MaxInt64 {
+	if err != nil || math.IsNaN(v) || v <= 0 || math.IsInf(v, 0) {
 		return fmt.Errorf("%q is not a positive size (e.g. 8GiB, 500MB, 1e9)", s)
+	}
+	if v*factor >= math.MaxInt64 {
+		return fmt.Errorf("%q is too large a size (at most 8EiB)", s)
+	}
+	// A size below one byte would truncate to 0, which callers read as
+	// "the default": refuse it rather than silently use the default.
+	if v*factor < 1 {
+		return fmt.Errorf("%q is less than one byte; give a size such as 8GiB, 500MB or 1e9", s)
 	}
 	*b.p = int64(v * factor)
 	return nil

@@ -29,7 +29,9 @@ func TestByteSize(t *testing.T) {
 			t.Errorf("Set(%q): %v, n = %d, want %d", in, err, n, want)
 		}
 	}
-	for _, bad := range []string{"", "GiB", "-1GiB", "0", "NaN", "1e30TiB", "x"} {
+	// "0.5" would truncate to 0 bytes, which means the default limit to
+	// the kernel: it must be refused, not silently replaced.
+	for _, bad := range []string{"", "GiB", "-1GiB", "0", "NaN", "1e30TiB", "x", "0.5", "0.9B", "1e-4kB"} {
 		if err := b.Set(bad); err == nil {
 			t.Errorf("Set(%q) succeeded", bad)
 		}
