@@ -280,8 +280,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	c.oneOf(&a.Unfolding.Background, "model", []string{"model", "subtract"}, "unfolding", "background")
 	c.oneOf(&a.Unfolding.Fakes, "background", []string{"background", "ignore"}, "unfolding", "fakes")
-	if m := u.MemoryLimit; m < 0 || math.IsNaN(m) || math.IsInf(m, 0) {
-		c.errf(c.line("unfolding", "memory_limit_gib"), "unfolding.memory_limit_gib", "must be a positive number of GiB")
+	// A limit below one byte would truncate to 0, the kernel's default:
+	// refuse it (and an explicit 0) rather than silently use the default.
+	if m := u.MemoryLimit; m < 0 || math.IsNaN(m) || math.IsInf(m, 0) || m*(1<<30) >= math.MaxInt64 ||
+		(nodeAt(root, "unfolding", "memory_limit_gib") != nil && m*(1<<30) < 1) {
+		c.errf(c.line("unfolding", "memory_limit_gib"), "unfolding.memory_limit_gib", "must be a positive number of GiB, e.g. 4 or 0.5")
 	} else {
 		a.Unfolding.MemoryLimit = int64(m * (1 << 30))
 	}

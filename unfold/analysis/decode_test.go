@@ -78,6 +78,10 @@ func TestDecodeErrors(t *testing.T) {
 		// right article.
 		{"  iterations: 3", "  iterations: [3]", `testdata/bad.yaml:26: unfolding.iterations: the value is a list, want a whole number`},
 		{"  folder: out", "  folder: out\n  formats: 5", `value 5 is an integer, want a list`},
+		// A limit that truncates to 0 bytes (the kernel's default) is refused.
+		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 1e-12", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
+		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 0", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
+		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 1e300", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
 	}
 	for _, c := range cases {
 		err := decodeErr(t, c.old, c.new)
