@@ -362,7 +362,16 @@ func (a *Analysis) Background(ctx context.Context, r *fill.Response, opt *Option
 	}
 	for i, v := range e.Values {
 		if v < 0 {
-			return nil, &Error{File: a.File, Field: "backgrounds", Msg: fmt.Sprintf("the expected background in reco bin %d (%s) is negative (%v); check negative weights in the fakes or background samples", i, a.Reco.Label(i), v)}
+			// Without background samples the negative sum comes from the
+			// simulation's fakes: point there.
+			field, line, what := "backgrounds", 0, "the fakes or background samples"
+			switch {
+			case len(a.Backgrounds) == 0 && len(a.Simulation) > 0:
+				field, line, what = "simulation", a.Simulation[0].Line, "the simulated fakes"
+			case len(a.Backgrounds) > 0:
+				line = a.Backgrounds[0].Line
+			}
+			return nil, &Error{File: a.File, Line: line, Field: field, Msg: fmt.Sprintf("the expected background in reco bin %d (%s) is negative (%.6g); check negative weights in %s", i, a.Reco.Label(i), v, what)}
 		}
 	}
 	return e, nil

@@ -550,3 +550,22 @@ func TestKernelErrorsPlaced(t *testing.T) {
 		}
 	}
 }
+
+// A negative expected background made by negative fake weights alone
+// points to the simulation, at its line, not to backgrounds the file does
+// not have.
+func TestNegativeFakesPlaced(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(2000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(500, 6)[1]})
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "    weight: w\n", "    weight: \"where(ok_true, w, -w)\"\n").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	want := "a.yaml:17: simulation: the expected background in reco bin "
+	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), "check negative weights in the simulated fakes") {
+		t.Errorf("got %v, want a message containing %q", err, want)
+	}
+}
