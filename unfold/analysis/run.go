@@ -442,7 +442,14 @@ func (a *Analysis) Problem(r *fill.Response, data *Measured, bkg *Expected) (*un
 	p.Prior = prior
 	for j, g := range r.Generated {
 		if g < 0 || math.IsNaN(g) {
-			return nil, &Error{File: a.File, Field: "simulation", Msg: fmt.Sprintf("the generated count of truth bin %d (%s) is %v; negative event weights left it below zero: merge bins or use more simulated events", j, a.Truth.Label(j), g)}
+			field, line := "simulation", 0
+			switch {
+			case a.ResponseFile != "":
+				field, line = "response", a.responseLine
+			case len(a.Simulation) > 0:
+				line = a.Simulation[0].Line
+			}
+			return nil, &Error{File: a.File, Line: line, Field: field, Msg: fmt.Sprintf("the generated count of truth bin %d (%s) is %.6g; negative event weights left it below zero: merge bins or use more simulated events", j, a.Truth.Label(j), g)}
 		}
 	}
 	return p, nil

@@ -569,3 +569,21 @@ func TestNegativeFakesPlaced(t *testing.T) {
 		t.Errorf("got %v, want a message containing %q", err, want)
 	}
 }
+
+// A generated count left negative by negative event weights is reported
+// at the simulation's line.
+func TestNegativeGeneratedPlaced(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(2000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(500, 6)[1]})
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "    weight: w\n", "    weight: \"where(ok_true && x_true > 2, -w, w)\"\n").Replace(analysisTemplate)
+	a, err := Decode([]byte(src), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	want := "a.yaml:17: simulation: the generated count of truth bin "
+	if err == nil || !strings.Contains(err.Error(), want) {
+		t.Errorf("got %v, want a message containing %q", err, want)
+	}
+}
