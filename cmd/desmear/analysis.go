@@ -8,6 +8,8 @@ import (
 	"io"
 	"io/fs"
 	"math"
+	"path/filepath"
+	"slices"
 	"sync"
 	"text/tabwriter"
 	"time"
@@ -189,6 +191,17 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		conv = fmt.Sprintf(", converged: %v", res.Converged)
 	}
 	fmt.Fprintf(w, "iterations: %d%s\n", res.Iterations, conv)
+	// As in plain-table mode, the per-bin table is printed for small
+	// problems only; the result folder holds every bin.
+	const maxRows = 30
+	if n := a.Truth.InRange(); n > maxRows {
+		file := output.JSONFile
+		if slices.Contains(out.Files, output.CSVFile) {
+			file = output.CSVFile
+		}
+		fmt.Fprintf(w, "%d in-range truth bins: the estimates are in %s\n", n, filepath.Join(out.Folder, file))
+		return
+	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "bin\tlabel\testimate\tuncertainty\tefficiency\t\n")
 	for j := 0; j < a.Truth.InRange(); j++ {

@@ -11,6 +11,9 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/events"
 	"github.com/desmear/desmear/unfold/tables"
 )
@@ -235,5 +238,52 @@ func TestAnalysisOutputFolderRefused(t *testing.T) {
 	}
 	if b, err := os.ReadFile(filepath.Join(res, "thesis.tex")); err != nil || string(b) != "keep" {
 		t.Errorf("the folder was touched: %v %q", err, b)
+	}
+}
+
+// The per-bin table of an analysis is printed for up to 30 in-range truth
+// bins, as in plain-table mode; beyond that the output names the file
+// that holds the estimates instead of printing every bin.
+func TestPrintOutcomeLimitsTable(t *testing.T) {
+	for _, c := range []struct {
+		bins  int
+		files []string
+		want  string
+	}{
+		{30, []string{"result.json", "result.csv"}, "   29  "},
+		{31, []string{"result.json", "result.csv"}, "31 in-range truth bins: the estimates are in " + filepath.Join("out", "result.csv")},
+		{31, []string{"result.json"}, "31 in-range truth bins: the estimates are in " + filepath.Join("out", "result.json")},
+	} {
+		edges := make([]float64, c.bins+1)
+		for i := range edges {
+			edges[i] = float64(i)
+		}
+		ax, err := binning.NewAxis("x", "", edges, false, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		reg, err := binning.NewRegion("all", ax)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s, err := binning.NewScheme(reg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res := &unfold.Result{
+			Estimate:   make([]float64, c.bins),
+			Determined: make([]bool, c.bins),
+			Efficiency: make([]float64, c.bins),
+			Iterations: 4,
+		}
+		var b strings.Builder
+		printOutcome(&b, &analysis.Analysis{Truth: s}, &analysis.Outcome{Result: res, Folder: "out", Files: c.files})
+		got := b.String()
+		if !strings.Contains(got, c.want) {
+			t.Errorf("%d bins, files %v: output lacks %q:\n%s", c.bins, c.files, c.want, got)
+		}
+		if lines := strings.Count(got, "\n"); c.bins > 30 && lines != 3 {
+			t.Errorf("%d bins: %d lines printed, want 3:\n%s", c.bins, lines, got)
+		}
 	}
 }
