@@ -44,12 +44,7 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
 	}
 	if treePath == "" {
-		var trees []string
-		for _, k := range f.Keys() {
-			if isTreeClass(k.ClassName()) && !contains(trees, k.Name()) {
-				trees = append(trees, k.Name())
-			}
-		}
+		trees := treeNames(f)
 		switch len(trees) {
 		case 0:
 			return nil, fmt.Errorf("events: %s: no TTree at the top level of the file; give the tree's path", path)
@@ -61,7 +56,10 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 	}
 	obj, err := riofs.Dir(f).Get(treePath)
 	if err != nil {
-		return nil, fmt.Errorf("events: %s: no tree %q: %w", path, treePath, err)
+		// groot's message names the file by the path it was written
+		// under, which may be a temporary name: list what the file holds
+		// instead.
+		return nil, fmt.Errorf("events: %s: no tree %q; %s", path, treePath, topLevelTrees(f))
 	}
 	t, ok := obj.(rtree.Tree)
 	if !ok {
@@ -83,6 +81,26 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 		r.byName[b.Name()] = leaf
 	}
 	return r, nil
+}
+
+// treeNames returns the names of the trees at the top level of f.
+func treeNames(f *groot.File) []string {
+	var trees []string
+	for _, k := range f.Keys() {
+		if isTreeClass(k.ClassName()) && !contains(trees, k.Name()) {
+			trees = append(trees, k.Name())
+		}
+	}
+	return trees
+}
+
+// topLevelTrees describes the trees at the top level of f, for messages.
+func topLevelTrees(f *groot.File) string {
+	trees := treeNames(f)
+	if len(trees) == 0 {
+		return "the file has no TTree at its top level"
+	}
+	return "the file's top level has the trees " + strings.Join(trees, ", ")
 }
 
 func isTreeClass(c string) bool { return c == "TTree" || c == "TNtuple" || c == "TNtupleD" }
