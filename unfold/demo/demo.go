@@ -131,7 +131,7 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 		cfg.Events = DefaultEvents
 	}
 	if base := filepath.Base(filepath.Clean(dir)); dir == "" || base == "." || base == ".." || base == string(filepath.Separator) {
-		return nil, fmt.Errorf("demo: %q cannot be the demo folder; name a folder to create: %w", dir, ErrNotDemoFolder)
+		return nil, fmt.Errorf("demo: %q cannot be the demo folder (%w); name a folder to create", dir, ErrNotDemoFolder)
 	}
 	if err := checkTarget(dir, replace); err != nil {
 		return nil, err
@@ -179,7 +179,7 @@ func checkTarget(dir string, replace bool) error {
 		return existsError{dir}
 	}
 	if !st.IsDir() {
-		return fmt.Errorf("demo: %s exists and is not a folder; choose another output folder: %w", dir, ErrNotDemoFolder)
+		return fmt.Errorf("demo: %s exists and is not a folder (%w); choose another output folder", dir, ErrNotDemoFolder)
 	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {

@@ -10,6 +10,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"strconv"
+	"strings"
 	"testing"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -272,6 +273,9 @@ func TestGenerateFolderRules(t *testing.T) {
 	for _, bad := range []string{"", ".", base + "/..", "/"} {
 		if _, err := Generate(context.Background(), bad, cfg, true); !errors.Is(err, ErrNotDemoFolder) {
 			t.Errorf("Generate into %q: %v, want ErrNotDemoFolder", bad, err)
+		} else if strings.HasSuffix(err.Error(), ErrNotDemoFolder.Error()) {
+			// The message ends with what to do, not with the sentinel's text.
+			t.Errorf("Generate into %q: message %q does not end with what to do", bad, err)
 		}
 	}
 	if _, err := Generate(context.Background(), filepath.Join(base, "small"), Config{Events: MinEvents - 1}, false); err == nil {
