@@ -106,7 +106,9 @@ func classifyAnalysisErr(err error) error {
 	switch {
 	case errors.Is(err, context.Canceled), errors.Is(err, context.DeadlineExceeded):
 		return err
-	case errors.As(err, &tl), errors.As(err, &ne):
+	case errors.As(err, &tl):
+		return numericalErr(fmt.Errorf("%w (in the analysis file: uncertainty.covariance: diag, or a larger unfolding.memory_limit_gib)", err))
+	case errors.As(err, &ne):
 		return numericalErr(err)
 	case errors.As(err, &we):
 		return ioErr(err)

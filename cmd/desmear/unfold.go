@@ -380,7 +380,11 @@ func kernelErr(ctx context.Context, set *tables.Set, err error) error {
 	case errors.As(err, &se):
 		return usageErr(err)
 	}
-	// *unfold.TooLargeError, *unfold.NumericalError and anything else.
+	var tl *unfold.TooLargeError
+	if errors.As(err, &tl) {
+		return numericalErr(fmt.Errorf("%w (on the command line: --covariance diag, or a larger --memory-limit)", err))
+	}
+	// *unfold.NumericalError and anything else.
 	return numericalErr(err)
 }
 

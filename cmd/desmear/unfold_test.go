@@ -340,7 +340,7 @@ func TestUnfoldBadInput(t *testing.T) {
 		{"max without stop", nil, []string{"--max-iterations", "3"}, exitUsage, []string{"only with --stop-chi2"}},
 		{"probes with full", nil, []string{"--covariance", "full", "--probes", "10"}, exitUsage, []string{"--probes applies only"}},
 		{"smooth without binning", nil, []string{"--smooth", "0.5"}, exitUsage, []string{"--smooth needs --truth-binning"}},
-		{"covariance too large", nil, []string{"--covariance", "full", "--memory-limit", "10B"}, exitNumerical, []string{"memory limit"}},
+		{"covariance too large", nil, []string{"--covariance", "full", "--memory-limit", "10B"}, exitNumerical, []string{"memory limit", "--covariance diag"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
