@@ -260,6 +260,12 @@ func TestMemoryLimit(t *testing.T) {
 	if res.UncertaintyMethod != "linearised" || res.UncertaintyPrecision != 0 {
 		t.Errorf("automatic diagonal under the default limit used %q", res.UncertaintyMethod)
 	}
+	// A limit below what one probe needs (probes run in batches within half
+	// the limit) is refused too, rather than silently exceeded.
+	_, err = Unfold(context.Background(), p, &Settings{Covariance: Diagonal, DiagonalMethod: DiagonalProbes, MemoryLimit: 10})
+	if !errors.As(err, &tl) {
+		t.Fatalf("probes under a 10-byte limit: got %v, want a *TooLargeError", err)
+	}
 }
 
 // The blocked upper-triangle covariance product equals the plain gonum

@@ -52,7 +52,14 @@ func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
 	}
 	if pl.diag == DiagonalProbes {
 		per := perProbeBytes(m)
-		pl.batch = int(min(int64(rs.Probes), max(1, rs.MemoryLimit/2/per)))
+		if per > rs.MemoryLimit/2 {
+			return nil, &TooLargeError{
+				What: "one random probe (probes run in batches within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
+				Bytes: 2 * per, Limit: rs.MemoryLimit,
+				Alternative: "use Poisson toys for the per-bin variances, or raise the memory limit",
+			}
+		}
+		pl.batch = int(min(int64(rs.Probes), rs.MemoryLimit/2/per))
 	}
 	return pl, nil
 }
