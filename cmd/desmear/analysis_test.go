@@ -130,6 +130,15 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	if code, _, _ := runCLI(t, context.Background(), "response", path); code != exitUsage {
 		t.Errorf("an existing bundle was replaced without --force (exit %d)", code)
 	}
+	// A fine binning does not flood standard output: above --max-bins the
+	// per-bin table is left out, and a negative limit is a usage error.
+	code, stdout, stderr = runCLI(t, context.Background(), "response", path, "--force", "--max-bins", "1")
+	if code != 0 || strings.Contains(stdout, "stability") || !strings.Contains(stdout, "per-bin table left out") {
+		t.Errorf("response --max-bins 1: exit %d\n%s%s", code, stdout, stderr)
+	}
+	if code, _, _ := runCLI(t, context.Background(), "response", path, "--force", "--max-bins", "-1"); code != exitUsage {
+		t.Errorf("response --max-bins -1: exit %d, want %d", code, exitUsage)
+	}
 
 	code, stdout, stderr = runCLI(t, context.Background(), "unfold", path)
 	if code != 0 {

@@ -20,9 +20,10 @@ import (
 )
 
 type responseOptions struct {
-	out    string
-	tables string
-	force  bool
+	out     string
+	tables  string
+	force   bool
+	maxBins int
 }
 
 func newResponseCommand(g *globalOptions) *cobra.Command {
@@ -47,7 +48,10 @@ same data and settings both paths give the same result.
 
 The summary (events, migrations, misses, fakes, outside counts, negative
 cells, and per truth bin the efficiency, purity and stability) goes to
-standard output.`,
+standard output; for more than --max-bins truth bins the per-bin table is
+left out (the bundle's response.json holds the generated counts and the
+purity histograms, and "desmear unfold" writes efficiency, purity and
+stability per bin into its result folder).`,
 		Example: `  desmear response analysis.yaml
   desmear response analysis.yaml --out sim.response --tables tables/`,
 		Args: cobra.ExactArgs(1),
@@ -59,10 +63,14 @@ standard output.`,
 	f.StringVar(&o.out, "out", "", "response bundle folder `DIR` to write (default: the analysis file's response key, else \"response\" beside it)")
 	f.StringVar(&o.tables, "tables", "", "also write response.csv, generated.csv and background.csv into folder `DIR`")
 	f.BoolVar(&o.force, "force", false, "replace an earlier response bundle or tables folder")
+	f.IntVar(&o.maxBins, "max-bins", 1000, "print the per-truth-bin table only up to `N` truth bins (0: always)")
 	return cmd
 }
 
 func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path string) error {
+	if o.maxBins < 0 {
+		return usagef("--max-bins %d: give a number of truth bins, or 0 to always print the per-bin table", o.maxBins)
+	}
 	a, err := analysis.Load(path)
 	if err != nil {
 		return classifyAnalysisErr(err)
@@ -107,7 +115,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	if o.tables != "" {
 		fmt.Fprintf(w, "tables:   %s (response.csv, generated.csv, background.csv)\n", o.tables)
 	}
-	printResponseSummary(w, a, r)
+	printResponseSummary(w, a, r, o.maxBins)
 	if len(info.Samples) > 1 {
 		fmt.Fprintln(w)
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
@@ -176,7 +184,7 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 
 // printSummary prints the event counts and the per-truth-bin quality of
 // a response.
-func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response) {
+func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response, maxBins int) {
 	s := r.Summary
 	fmt.Fprintf(w, "events read:        %d\n", s.Events)
 	fmt.Fprintf(w, "migration entries:  %d (%d distinct cells)\n", s.Entries, r.Migrations.NNZ())
@@ -208,6 +216,10 @@ func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response) {
 		return fmt.Sprintf("%.3f", v[j])
 	}
 	fmt.Fprintln(w)
+	if n := a.Truth.Len(); maxBins > 0 && n > maxBins {
+		fmt.Fprintf(w, "%d truth bins: per-bin table left out (more than --max-bins %d)\n", n, maxBins)
+		return
+	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "truth bin\tlabel\tgenerated\tefficiency\tpurity\tstability\t\n")
 	for j := 0; j < a.Truth.Len(); j++ {
