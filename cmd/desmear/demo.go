@@ -7,6 +7,7 @@ import (
 	"io"
 	"io/fs"
 	"math"
+	"os"
 	"strings"
 	"time"
 
@@ -90,6 +91,12 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	t1 := time.Now()
 	_, out, err := runAnalysis(ctx, g, in.Path(demo.AnalysisFile), false)
 	if err != nil {
+		if ctx.Err() != nil {
+			// Interrupted while unfolding: the inputs this run generated are
+			// removed too, so that an interrupted demo leaves no output.
+			os.RemoveAll(in.Dir)
+			return ctx.Err()
+		}
 		return err
 	}
 	fmt.Fprintf(diag, "desmear demo: analysis done in %.1f s (total %.1f s)\n", time.Since(t1).Seconds(), time.Since(start).Seconds())
