@@ -138,7 +138,7 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
 	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
 	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
-	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the uncertainty computation, e.g. 8GiB or 500MB; a full covariance above it is refused")
+	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	return cmd
@@ -368,6 +368,30 @@ func (pi *plainInputs) sizes(o *unfoldOptions) tables.Sizes {
 	return z
 }
 
+// bytesPerBin is a generous estimate of the memory one truth or reco bin
+// costs a plain-table run (the kernel's vectors, the probes' share, the
+// result and its files), measured at about 110 bytes with no uncertainty.
+const bytesPerBin = 256
+
+// checkSizes refuses sizes whose vectors alone would not fit in the
+// memory limit, before anything that large is allocated: a mistyped
+// index in a tiny table (1000000000 for 1000) would otherwise make the
+// run exhaust the machine's memory.
+func checkSizes(z tables.Sizes, limit int64) error {
+	need := int64(z.Truth+z.Reco) * bytesPerBin
+	if need <= limit || need <= 64<<20 {
+		return nil // fits, or small enough for any machine
+	}
+	origin := func(o string) string {
+		if o == "" {
+			return "1 + the largest index in the tables"
+		}
+		return o
+	}
+	return numericalErr(fmt.Errorf("%d truth bins (%s) and %d reco bins (%s) need about %d MB, above the memory limit of %d MB; check the indices of the tables, or raise --memory-limit",
+		z.Truth, origin(z.TruthOrigin), z.Reco, origin(z.RecoOrigin), need>>20, limit>>20))
+}
+
 // kernelErr classifies an error of unfold.Unfold.
 func kernelErr(ctx context.Context, set *tables.Set, err error) error {
 	var ie *unfold.InputError
@@ -397,6 +421,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		return err
 	}
 	z := pi.sizes(o)
+	if err := checkSizes(z, o.memoryLimit); err != nil {
+		return err
+	}
 	prob, err := pi.set.Assemble(z)
 	if err != nil {
 		return inputErr(err)

@@ -528,3 +528,26 @@ func TestUnfoldDeterministic(t *testing.T) {
 		t.Error("two runs with the same seed differ")
 	}
 }
+
+// A mistyped index in a tiny table (here 900000000) would make a problem
+// of a billion bins; it is refused before anything that large is
+// allocated, naming the sizes and what to do, with no folder left.
+func TestUnfoldSizesBeyondMemoryLimit(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), map[string]string{
+		"A.csv": "reco,truth,value\n0,0,5\n900000000,1,5\n",
+		"G.csv": "truth,value\n0,10\n1,10\n",
+		"n.csv": "reco,value\n0,4\n",
+	})
+	out := filepath.Join(dir, "out")
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", "--response", filepath.Join(dir, "A.csv"),
+		"--generated", filepath.Join(dir, "G.csv"), "--data", filepath.Join(dir, "n.csv"), "--out", out)
+	if code != exitNumerical || !strings.Contains(stderr, "900000001 reco bins") || !strings.Contains(stderr, "--memory-limit") {
+		t.Errorf("exit %d, stderr %q; want %d naming the sizes and --memory-limit", code, stderr, exitNumerical)
+	}
+	if stdout != "" {
+		t.Errorf("stdout %q", stdout)
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Errorf("output folder %s left behind", out)
+	}
+}
