@@ -318,6 +318,11 @@ func (it *iterator) compare() (chi2, change float64) {
 		acc[0], acc[1], acc[2] = c2, d, t
 	})
 	chi2 = s[0]
+	if t := s[2]; t-t != 0 {
+		// A non-finite estimate (overflow or 0·∞ from inputs spanning
+		// too many orders of magnitude) makes the iteration fail.
+		return math.NaN(), math.NaN()
+	}
 	if s[2] > 0 {
 		change = s[1] / s[2]
 	}
@@ -368,7 +373,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		it.nu, it.nunext = it.nunext, it.nu
 		it.y, it.ynext = it.ynext, it.y
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
-			return &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow)"}
+			return &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
 		}
 		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
 		res.Iterations = k
