@@ -505,3 +505,43 @@ func TestNestedKernelCalls(t *testing.T) {
 		t.Fatalf("Sweep of a %d×%d matrix with nested kernel calls did not finish", or, oc)
 	}
 }
+
+// TestNewMatrixRejects feeds NewMatrix and WithValues one broken array
+// at a time; each must be refused.
+func TestNewMatrixRejects(t *testing.T) {
+	inf, nan := math.Inf(1), math.NaN()
+	for _, c := range []struct {
+		name       string
+		rows, cols int
+		colPtr, ri []int
+		val, sumw2 []float64
+	}{
+		{"negative rows", -1, 1, []int{0, 0}, nil, nil, nil},
+		{"short column pointers", 2, 2, []int{0, 1}, []int{0}, []float64{1}, nil},
+		{"first pointer not 0", 2, 1, []int{1, 1}, []int{0}, []float64{1}, nil},
+		{"row indices short", 2, 1, []int{0, 2}, []int{0}, []float64{1, 2}, nil},
+		{"sumw2 short", 2, 1, []int{0, 1}, []int{0}, []float64{1}, []float64{}},
+		{"pointers decrease", 2, 2, []int{0, 2, 1}, []int{0}, []float64{1}, nil},
+		{"row out of range", 2, 1, []int{0, 1}, []int{2}, []float64{1}, nil},
+		{"negative row", 2, 1, []int{0, 1}, []int{-1}, []float64{1}, nil},
+		{"rows repeated", 3, 1, []int{0, 2}, []int{1, 1}, []float64{1, 2}, nil},
+		{"rows decreasing", 3, 1, []int{0, 2}, []int{2, 1}, []float64{1, 2}, nil},
+		{"infinite value", 2, 1, []int{0, 1}, []int{0}, []float64{inf}, nil},
+		{"NaN value", 2, 1, []int{0, 1}, []int{0}, []float64{nan}, nil},
+		{"negative sumw2", 2, 1, []int{0, 1}, []int{0}, []float64{1}, []float64{-1}},
+		{"NaN sumw2", 2, 1, []int{0, 1}, []int{0}, []float64{1}, []float64{nan}},
+	} {
+		if _, err := NewMatrix(c.rows, c.cols, c.colPtr, c.ri, c.val, c.sumw2); err == nil {
+			t.Errorf("NewMatrix accepted %s", c.name)
+		}
+	}
+	m, err := NewMatrix(2, 1, []int{0, 2}, []int{0, 1}, []float64{1, 2}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for name, w2 := range map[string][]float64{"short": {1}, "negative": {1, -1}, "infinite": {inf, 1}, "NaN": {nan, 1}} {
+		if _, err := m.WithValues([]float64{1, 2}, w2); err == nil {
+			t.Errorf("WithValues accepted %s squared-weight sums", name)
+		}
+	}
+}

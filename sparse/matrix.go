@@ -169,8 +169,9 @@ func (m *Matrix) ToDense() (*mat.Dense, error) {
 // Values, and squared-weight sums sumw2 (may be nil). The structure is
 // shared, not copied; val and sumw2 become the new matrix's storage. This
 // is the cheap way to hold many matrices of one pattern, for example
-// resampled responses. It returns an error if the lengths do not match or
-// a value is not finite.
+// resampled responses. It returns an error if the lengths do not match, a
+// value is not finite or a squared-weight sum is not a finite
+// non-negative number (the checks of NewMatrix).
 func (m *Matrix) WithValues(val, sumw2 []float64) (*Matrix, error) {
 	if len(val) != len(m.val) {
 		return nil, fmt.Errorf("sparse: %d values for a matrix with %d non-zeros", len(val), len(m.val))
@@ -181,6 +182,11 @@ func (m *Matrix) WithValues(val, sumw2 []float64) (*Matrix, error) {
 	for k, v := range val {
 		if v-v != 0 {
 			return nil, fmt.Errorf("sparse: non-finite value %v at entry %d", v, k)
+		}
+	}
+	for k, v := range sumw2 {
+		if v-v != 0 || v < 0 {
+			return nil, fmt.Errorf("sparse: squared-weight sum %v at entry %d is not a finite non-negative number", v, k)
 		}
 	}
 	n := *m
