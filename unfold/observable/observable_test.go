@@ -43,6 +43,13 @@ var ref = []struct {
 	{"1 >= pass_reco", func(px, py, pz, e, y, pt, pass, w float64) float64 { return b2f(1 >= pass) }},
 	{"pass_reco == 1", func(px, py, pz, e, y, pt, pass, w float64) float64 { return b2f(pass == 1) }},
 	{"px != py", func(px, py, pz, e, y, pt, pass, w float64) float64 { return b2f(px != py) }},
+	// pt and floor(abs(px)) are often equal, so ties tell == <= > >= apart;
+	// w and px hold NaN in some rows.
+	{"(pt == floor(abs(px))) + 2*(pt <= floor(abs(px))) + 4*(pt > floor(abs(px))) + 8*(pt >= floor(abs(px))) + 16*(w >= py) + 32*(pass_reco != 0.5)",
+		func(px, py, pz, e, y, pt, pass, w float64) float64 {
+			q := math.Floor(math.Abs(px))
+			return b2f(pt == q) + 2*b2f(pt <= q) + 4*b2f(pt > q) + 8*b2f(pt >= q) + 16*b2f(w >= py) + 32*b2f(pass != 0.5)
+		}},
 	{"!pass_reco", func(px, py, pz, e, y, pt, pass, w float64) float64 { return b2f(pass == 0) }},
 	{"atan2(py, px)", func(px, py, pz, e, y, pt, pass, w float64) float64 { return math.Atan2(py, px) }},
 	{"hypot(px, py)", func(px, py, pz, e, y, pt, pass, w float64) float64 { return math.Hypot(px, py) }},
@@ -313,6 +320,7 @@ func TestErrors(t *testing.T) {
 		{"2i * px", "2i", "imag literals are not supported"},
 		{"&px", "&", "operator & is not supported"},
 		{"   ", "", "empty expression"},
+		{"min(px, py...)", "...", "... is not supported"},
 	} {
 		_, err := Compile(tc.src, testCols)
 		var e *Error
