@@ -20,11 +20,10 @@ const MaxAxes = binning.MaxAxes
 // the region and for flow bins). Regions are never neighbours of each
 // other.
 //
-// Smoothing asks Neighbours only about the axes g's region has: for a
-// *binning.Scheme it reads them from the scheme's regions; another
-// implementation may report them with a method NumAxes(g int) int, and
-// otherwise must answer (-1, -1) for every axis up to MaxAxes that g's
-// region lacks.
+// Smoothing asks Neighbours only about the axes g's region has when the
+// implementation reports them with a method NumAxes(g int) int, as
+// *binning.Scheme does; otherwise it must answer (-1, -1) for every axis
+// up to MaxAxes that g's region lacks.
 type Neighbourhood interface {
 	Len() int
 	InRange() int
@@ -34,18 +33,7 @@ type Neighbourhood interface {
 // numAxes returns a function giving the number of axes of bin g's
 // region, for in-range bins.
 func numAxes(nb Neighbourhood) func(g int) int {
-	switch s := nb.(type) {
-	case *binning.Scheme:
-		regs := s.Regions()
-		return func(g int) int {
-			for r := range regs {
-				if lo, hi := s.Span(r); g >= lo && g < hi {
-					return len(regs[r].Axes())
-				}
-			}
-			return 0
-		}
-	case interface{ NumAxes(g int) int }:
+	if s, ok := nb.(interface{ NumAxes(g int) int }); ok {
 		return s.NumAxes
 	}
 	return func(int) int { return MaxAxes }
