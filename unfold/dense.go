@@ -3,6 +3,7 @@ package unfold
 import (
 	"context"
 	"runtime"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -100,7 +101,7 @@ func newJacobian(m *model) *jacobian {
 				}
 			}
 		}
-		sortInt32(row)
+		slices.Sort(row)
 		for _, l := range row {
 			jc.loc[l] = -1
 		}
@@ -109,15 +110,6 @@ func newJacobian(m *model) *jacobian {
 	}
 	jc.aVal = make([]float64, len(jc.aIdx))
 	return jc
-}
-
-func sortInt32(s []int32) {
-	// insertion sort: rows of A are short
-	for i := 1; i < len(s); i++ {
-		for k := i; k > 0 && s[k] < s[k-1]; k-- {
-			s[k], s[k-1] = s[k-1], s[k]
-		}
-	}
 }
 
 func (jc *jacobian) init(ctx context.Context, it *iterator) error {
