@@ -252,6 +252,12 @@ func TestMemoryLimit(t *testing.T) {
 	if want := int64(16*60*130 + 8*60*60); tl.Bytes != want || tl.Limit != 1<<16 {
 		t.Errorf("estimate %d limit %d, want %d and %d", tl.Bytes, tl.Limit, want, 1<<16)
 	}
+	// The exact per-bin variances need the dense Jacobian alone
+	// (16·n_t·n_r bytes), refused under the same limit.
+	_, err = Unfold(context.Background(), p, &Settings{Covariance: Diagonal, DiagonalMethod: DiagonalExact, MemoryLimit: 1 << 16})
+	if !errors.As(err, &tl) || tl.Bytes != 16*60*130 {
+		t.Errorf("exact diagonal under a small limit: got %v, want a *TooLargeError of %d bytes", err, 16*60*130)
+	}
 	res := unfoldOrFail(t, p, &Settings{Covariance: Diagonal, MemoryLimit: 1 << 16})
 	if res.UncertaintyMethod != "linearised-probes" {
 		t.Errorf("automatic diagonal under a small limit used %q", res.UncertaintyMethod)

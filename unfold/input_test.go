@@ -72,22 +72,65 @@ func TestInputErrors(t *testing.T) {
 		}
 	}
 
-	for _, s := range []Settings{
-		{Iterations: -1}, {Iterations: 3, StopChi2: 1}, {StopChi2: math.NaN()}, {Probes: 1},
-		{Toys: -2}, {MemoryLimit: -1}, {Covariance: 7}, {Background: 3},
-		{Smoothing: &Smoothing{}}, {Smoothing: &Smoothing{Neighbours: chainScheme(t, 3), Strength: 2}},
+	for _, c := range []struct {
+		s     Settings
+		field string
+	}{
+		{Settings{Iterations: -1}, "Iterations"},
+		{Settings{Iterations: 3, StopChi2: 1}, "Iterations"},
+		{Settings{MaxIterations: -1}, "MaxIterations"},
+		{Settings{StopChi2: math.NaN()}, "StopChi2"},
+		{Settings{StopChi2: -1}, "StopChi2"},
+		{Settings{StopChi2: math.Inf(1)}, "StopChi2"},
+		{Settings{Probes: -1}, "Probes"},
+		{Settings{Probes: 1}, "Probes"},
+		{Settings{Toys: -2}, "Toys"},
+		{Settings{Toys: 1}, "Toys"},
+		{Settings{MemoryLimit: -1}, "MemoryLimit"},
+		{Settings{Covariance: 7}, "Covariance"},
+		{Settings{Covariance: -1}, "Covariance"},
+		{Settings{Background: 3}, "Background"},
+		{Settings{DiagonalMethod: 9}, "DiagonalMethod"},
+		{Settings{Smoothing: &Smoothing{}}, "Smoothing"},
+		{Settings{Smoothing: &Smoothing{Neighbours: chainScheme(t, 3), Strength: 2}}, "Smoothing"},
+		{Settings{Smoothing: &Smoothing{Neighbours: chainScheme(t, 3), Strength: -0.5}}, "Smoothing"},
+		{Settings{Smoothing: &Smoothing{Neighbours: chainScheme(t, 4)}}, "Smoothing"},
+		{Settings{Smoothing: &Smoothing{Neighbours: badNeighbourhood{n: 3, in: 4}}}, "Smoothing"},
+		{Settings{Smoothing: &Smoothing{Neighbours: badNeighbourhood{n: 3, in: 3, beyond: true}}}, "Smoothing"},
 	} {
-		_, err := Unfold(context.Background(), good(), &s)
+		_, err := Unfold(context.Background(), good(), &c.s)
 		var se *SettingsError
-		if !errors.As(err, &se) {
-			t.Errorf("settings %+v: got %v, want a *SettingsError", s, err)
+		if !errors.As(err, &se) || se.Field != c.field {
+			t.Errorf("settings %+v: got %v, want a *SettingsError for %s", c.s, err, c.field)
 		}
 	}
-	_, err := Unfold(context.Background(), good(), &Settings{Smoothing: &Smoothing{Neighbours: chainScheme(t, 4)}})
-	var se *SettingsError
-	if !errors.As(err, &se) {
-		t.Errorf("smoothing neighbourhood of the wrong size: got %v", err)
+	// The neighbourhood stand-in is valid when it reports nothing wrong.
+	if _, err := Unfold(context.Background(), good(), &Settings{Smoothing: &Smoothing{Neighbours: badNeighbourhood{n: 3, in: 3}}}); err != nil {
+		t.Errorf("valid stand-in neighbourhood: %v", err)
 	}
+}
+
+// badNeighbourhood is a chain of n truth bins whose first in bins are in
+// range; with beyond set, every bin names a next neighbour past the end.
+type badNeighbourhood struct {
+	n, in  int
+	beyond bool
+}
+
+func (b badNeighbourhood) Len() int     { return b.n }
+func (b badNeighbourhood) InRange() int { return b.in }
+func (b badNeighbourhood) NumAxes(int) int {
+	return 1
+}
+func (b badNeighbourhood) Neighbours(g, axis int) (prev, next int) {
+	if b.beyond {
+		return g - 1, b.n
+	}
+	prev, next = g-1, g+1
+	if next >= b.in {
+		next = -1
+	}
+	return prev, next
 }
 
 // Subtract mode clips negative n − b to zero and reports the bins.
