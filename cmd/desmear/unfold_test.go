@@ -340,6 +340,18 @@ func TestUnfoldBadInput(t *testing.T) {
 		{"max without stop", nil, []string{"--max-iterations", "3"}, exitUsage, []string{"only with --stop-chi2"}},
 		{"probes with full", nil, []string{"--covariance", "full", "--probes", "10"}, exitUsage, []string{"--probes applies only"}},
 		{"smooth without binning", nil, []string{"--smooth", "0.5"}, exitUsage, []string{"--smooth needs --truth-binning"}},
+		{"negative iterations", nil, []string{"--iterations", "-1"}, exitUsage, []string{"--iterations -1: give a positive number"}},
+		{"zero iterations", nil, []string{"--iterations", "0"}, exitUsage, []string{"give at least 1 iteration"}},
+		{"negative stop", nil, []string{"--stop-chi2", "-1"}, exitUsage, []string{"--stop-chi2 -1: give a finite number > 0"}},
+		{"NaN stop", nil, []string{"--stop-chi2", "NaN"}, exitUsage, []string{"give a finite number > 0"}},
+		{"zero stop", nil, []string{"--stop-chi2", "0"}, exitUsage, []string{"give a threshold > 0"}},
+		{"zero max", nil, []string{"--stop-chi2", "1", "--max-iterations", "0"}, exitUsage, []string{"--max-iterations 0: give a positive number"}},
+		{"smooth out of range", nil, []string{"--smooth", "2", "--truth-binning", "T.yaml"}, exitUsage, []string{"--smooth 2: give a strength in (0, 1]"}},
+		{"background mode without background", nil, []string{"--background-mode", "subtract"}, exitUsage, []string{"--background-mode needs --background"}},
+		{"diagonal method with full", nil, []string{"--covariance", "full", "--diagonal-method", "exact"}, exitUsage, []string{"--diagonal-method applies only"}},
+		{"one probe", nil, []string{"--probes", "1"}, exitUsage, []string{"--probes 1: give at least 2"}},
+		{"toys without toys method", nil, []string{"--toys", "10"}, exitUsage, []string{"--toys applies only"}},
+		{"one toy", nil, []string{"--diagonal-method", "toys", "--toys", "1"}, exitUsage, []string{"--toys 1: give at least 2"}},
 		{"covariance too large", nil, []string{"--covariance", "full", "--memory-limit", "10B"}, exitNumerical, []string{"memory limit", "--covariance diag"}},
 	}
 	for _, c := range cases {
