@@ -15,7 +15,6 @@ import (
 	"time"
 
 	"github.com/schollz/progressbar/v3"
-	"github.com/spf13/cobra"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -27,10 +26,9 @@ import (
 )
 
 // runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from
-// an analysis file. It honours the unfold command's --force (replace an
-// earlier result folder) when that flag exists.
-func runAnalysisUnfold(ctx context.Context, g *globalOptions, cmd *cobra.Command, path string) error {
-	replace := boolFlag(cmd, "force")
+// an analysis file. replace is the unfold command's --force (replace an
+// earlier result folder).
+func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, replace bool) error {
 	a, out, err := runAnalysis(ctx, g, path, replace)
 	if err != nil {
 		return err
@@ -72,18 +70,6 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace boo
 		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", path, time.Since(start).Seconds())
 	}
 	return a, out, nil
-}
-
-func boolFlag(cmd *cobra.Command, name string) bool {
-	if cmd == nil {
-		return false
-	}
-	f := cmd.Flags().Lookup(name)
-	if f == nil {
-		return false
-	}
-	v, _ := cmd.Flags().GetBool(name)
-	return v
 }
 
 // classifyAnalysisErr attaches the exit class to an error of an

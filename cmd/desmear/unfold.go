@@ -109,7 +109,7 @@ is at most --stop-chi2, within --max-iterations.`,
 				if err := checkAnalysisFlags(cmd, args[0]); err != nil {
 					return err
 				}
-				return runAnalysisUnfold(cmd.Context(), g, cmd, args[0])
+				return runAnalysisUnfold(cmd.Context(), g, args[0], o.force)
 			}
 			if err := o.check(cmd); err != nil {
 				return err
