@@ -182,7 +182,7 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 	return output.Install(tmp, dir, replace)
 }
 
-// printSummary prints the event counts and the per-truth-bin quality of
+// printResponseSummary prints the event counts and the per-truth-bin quality of
 // a response.
 func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response, maxBins int) {
 	s := r.Summary
@@ -208,17 +208,17 @@ func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response, m
 	if len(s.NegativeGenerated) > 0 {
 		fmt.Fprintf(w, "negative generated: truth bins %v\n", s.NegativeGenerated)
 	}
+	fmt.Fprintln(w)
+	if n := a.Truth.Len(); maxBins > 0 && n > maxBins {
+		fmt.Fprintf(w, "%d truth bins: per-bin table left out (more than --max-bins %d)\n", n, maxBins)
+		return
+	}
 	eff, pur, stab := r.Efficiency(nil), r.Purity(nil), r.Stability(nil)
 	num := func(v []float64, j int) string {
 		if v == nil || math.IsNaN(v[j]) {
 			return "-"
 		}
 		return fmt.Sprintf("%.3f", v[j])
-	}
-	fmt.Fprintln(w)
-	if n := a.Truth.Len(); maxBins > 0 && n > maxBins {
-		fmt.Fprintf(w, "%d truth bins: per-bin table left out (more than --max-bins %d)\n", n, maxBins)
-		return
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "truth bin\tlabel\tgenerated\tefficiency\tpurity\tstability\t\n")
