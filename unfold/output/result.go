@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 
 	"github.com/desmear/desmear/binning"
@@ -238,7 +239,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		Estimate:             make([]float64, nt),
 		Determined:           make([]bool, nt),
 		Efficiency:           make([]float64, nt),
-		Folded:               finiteCopy(res.Folded),
+		Folded:               slices.Clone(res.Folded),
 		ClippedRecoBins:      res.Clipped,
 		UncertaintyMethod:    res.UncertaintyMethod,
 		UncertaintyPrecision: res.UncertaintyPrecision,
@@ -283,13 +284,6 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		return nil, err
 	}
 	return r, nil
-}
-
-func finiteCopy(v []float64) []float64 {
-	if v == nil {
-		return nil
-	}
-	return append([]float64(nil), v...)
 }
 
 // checkFinite returns an error naming the first NaN or infinity.
