@@ -2,6 +2,7 @@ package sparse
 
 import (
 	"runtime"
+	"slices"
 	"sync"
 	"sync/atomic"
 )
@@ -188,7 +189,7 @@ func (p *partition) plan() {
 	for b := 0; b < nb; b++ {
 		cuts = append(cuts, p.lo[b], p.hi[b])
 	}
-	sortInts(cuts)
+	slices.Sort(cuts)
 	for k := 0; k+1 < len(cuts); k++ {
 		s, e := cuts[k], cuts[k+1]
 		if s == e {
@@ -203,14 +204,6 @@ func (p *partition) plan() {
 		n := int32(len(p.covers)) - first
 		for r := s; r < e; r += reduceRows {
 			p.tasks = append(p.tasks, reduceTask{start: r, end: min(r+reduceRows, e), first: first, n: n})
-		}
-	}
-}
-
-func sortInts(a []int) {
-	for i := 1; i < len(a); i++ {
-		for k := i; k > 0 && a[k] < a[k-1]; k-- {
-			a[k], a[k-1] = a[k-1], a[k]
 		}
 	}
 }
