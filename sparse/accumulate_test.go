@@ -364,6 +364,22 @@ func TestAccumulateErrors(t *testing.T) {
 	if err := a.AddBatch(0, nil, nil, nil); err == nil {
 		t.Error("AddBatch after Matrix accepted")
 	}
+	if _, _, err := a.Matrix(); err == nil {
+		t.Error("second Matrix call accepted")
+	}
+	a, _ = NewAccumulator(3, 2, nil)
+	_ = a.AddBatch(0, []int32{0}, []int32{0}, []float64{1})
+	if err := a.Add(0, 0, 1); err == nil {
+		t.Error("Add mixed with AddBatch accepted")
+	}
+	for _, opt := range []AccumulatorOptions{{ChunkEntries: -1}, {Window: -1}} {
+		if _, err := NewAccumulator(3, 2, &opt); err == nil {
+			t.Errorf("negative option %+v accepted", opt)
+		}
+	}
+	if _, err := NewAccumulator(math.MaxInt32+1, 2, nil); err == nil {
+		t.Error("more rows than the packed keys hold accepted")
+	}
 }
 
 // TestAccumulateErrorReleasesWaiters makes one batch invalid while other

@@ -45,4 +45,10 @@ func TestBanded3DStructure(t *testing.T) {
 	if _, err := Banded3D([3]int{0, 1, 1}, reco, hood, 20, 1); err == nil {
 		t.Error("zero-sized truth grid accepted")
 	}
+	if _, err := Banded3D(truth, reco, hood, 0, 1); err == nil {
+		t.Error("zero entries per column accepted")
+	}
+	if _, err := Banded3D([3]int{1 << 11, 1 << 11, 1 << 10}, reco, hood, 20, 1); err == nil {
+		t.Error("a truth grid of 2^32 cells accepted")
+	}
 }

@@ -378,6 +378,7 @@ func TestKernelDimensionPanics(t *testing.T) {
 		"Fold":        func() { m.Fold(make([]float64, 4), make([]float64, 4)) },
 		"BackProject": func() { m.BackProject(make([]float64, 3), make([]float64, 3)) },
 		"Sweep":       func() { m.Sweep(make([]float64, 3), make([]float64, 4), nil) },
+		"SweepRows":   func() { m.SweepRows(make([]float64, 4), make([]float64, 3), nil, nil) },
 		"ColSums":     func() { m.ColSums(make([]float64, 3)) },
 		"RowSums":     func() { m.RowSums(make([]float64, 4)) },
 		"ScaleCols":   func() { m.ScaleCols(make([]float64, 3)) },
