@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"math"
 	"os"
@@ -144,10 +145,6 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if err != nil {
 		return nil, err
 	}
-	if err := os.Chmod(tmp, 0o755); err != nil {
-		os.RemoveAll(tmp)
-		return nil, err
-	}
 	ok := false
 	defer func() {
 		if !ok {
@@ -234,10 +231,10 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 	if err := writeTruth(in.Path(TruthFile), in.Truth); err != nil {
 		return err
 	}
-	if err := os.WriteFile(in.Path(AnalysisFile), []byte(analysisYAML(in.Config)), 0o644); err != nil {
+	if err := writeText(in.Path(AnalysisFile), analysisYAML(in.Config)); err != nil {
 		return err
 	}
-	if err := os.WriteFile(in.Path(StressFile), []byte(stressYAML(in.Config)), 0o644); err != nil {
+	if err := writeText(in.Path(StressFile), stressYAML(in.Config)); err != nil {
 		return err
 	}
 	if err := writeScenario(in.Path(ScenarioFile), in); err != nil {
@@ -262,8 +259,17 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 	return errors.Join(errs...)
 }
 
+// writeText writes text to the file path of the temporary folder, synced
+// to disk before the folder is installed.
+func writeText(path, text string) error {
+	return output.WriteSynced(path, func(w io.Writer) error {
+		_, err := io.WriteString(w, text)
+		return err
+	})
+}
+
 func writeScheme(path, text string) (*binning.Scheme, error) {
-	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+	if err := writeText(path, text); err != nil {
 		return nil, err
 	}
 	return binning.ReadFile(path)
@@ -290,26 +296,20 @@ func histogramTruth(t *binning.Scheme, s *sample) []float64 {
 var TruthHeader = []string{"index", "label", "flow", "expected", "generated"}
 
 func writeTruth(path string, t *Truth) error {
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	w := csv.NewWriter(f)
-	w.Write(TruthHeader)
-	for g := range t.Expected {
-		b := t.Scheme.Bin(g)
-		w.Write([]string{
-			strconv.Itoa(g), t.Scheme.Label(g), strconv.FormatBool(b.Flow),
-			strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
-			strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
-		})
-	}
-	w.Flush()
-	if err := w.Error(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	return output.WriteSynced(path, func(out io.Writer) error {
+		w := csv.NewWriter(out)
+		w.Write(TruthHeader)
+		for g := range t.Expected {
+			b := t.Scheme.Bin(g)
+			w.Write([]string{
+				strconv.Itoa(g), t.Scheme.Label(g), strconv.FormatBool(b.Flow),
+				strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
+				strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
+			})
+		}
+		w.Flush()
+		return w.Error()
+	})
 }
 
 // ReadTruth reads the known truth (truth.csv) of the demo folder dir.
@@ -383,5 +383,5 @@ func writeScenario(path string, in *Inputs) error {
 	if err != nil {
 		return err
 	}
-	return os.WriteFile(path, append(b, '\n'), 0o644)
+	return writeText(path, string(b)+"\n")
 }

@@ -1,15 +1,16 @@
 package demo
 
 import (
-	"bufio"
 	"context"
 	"fmt"
-	"os"
+	"io"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/compress/snappy"
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/rtree"
+
+	"github.com/desmear/desmear/unfold/output"
 )
 
 // TreeName is the name of the TTree in the demo's ROOT files.
@@ -110,52 +111,32 @@ func writeDataROOT(ctx context.Context, path string, s *sample) error {
 	})
 }
 
-// writeParquet writes rows built by row(i) for i < n, in row groups of
-// rowGroup rows, snappy-compressed.
+// writeParquet writes rows built by row(i) for i < n, snappy-compressed,
+// handing them to the writer in batches.
 func writeParquet[T any](ctx context.Context, path string, n int, row func(i int) T) error {
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	bw := bufio.NewWriterSize(f, 1<<20)
-	w := parquet.NewGenericWriter[T](bw, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
-	const batch = 4096
-	buf := make([]T, 0, batch)
-	flush := func() error {
-		if _, err := w.Write(buf); err != nil {
+	return output.WriteSynced(path, func(out io.Writer) error {
+		w := parquet.NewGenericWriter[T](out, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
+		const batch = 4096
+		buf := make([]T, 0, batch)
+		for i := range n {
+			if i%ctxEvery == 0 {
+				if err := ctx.Err(); err != nil {
+					return err
+				}
+			}
+			buf = append(buf, row(i))
+			if len(buf) == batch || i == n-1 {
+				if _, err := w.Write(buf); err != nil {
+					return fmt.Errorf("writing %s: %w", path, err)
+				}
+				buf = buf[:0]
+			}
+		}
+		if err := w.Close(); err != nil {
 			return fmt.Errorf("writing %s: %w", path, err)
 		}
-		buf = buf[:0]
 		return nil
-	}
-	for i := range n {
-		if i%ctxEvery == 0 {
-			if err := ctx.Err(); err != nil {
-				f.Close()
-				return err
-			}
-		}
-		buf = append(buf, row(i))
-		if len(buf) == batch {
-			if err := flush(); err != nil {
-				f.Close()
-				return err
-			}
-		}
-	}
-	if err := flush(); err != nil {
-		f.Close()
-		return err
-	}
-	if err := w.Close(); err != nil {
-		f.Close()
-		return fmt.Errorf("writing %s: %w", path, err)
-	}
-	if err := bw.Flush(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	})
 }
 
 func writeSimulationParquet(ctx context.Context, path string, s *sample) error {

@@ -172,7 +172,7 @@ func dataChunk(cfg Config, c, chunks int) (reco, truth *sample) {
 	return reco, truth
 }
 
-// samples generates the simulation and the pseudo-data, in chunks spread
+// generate generates the simulation and the pseudo-data, in chunks spread
 // over GOMAXPROCS goroutines and joined in chunk order.
 func generate(ctx context.Context, cfg Config) (sim, data, dataTruth *sample, err error) {
 	total := cfg.events()
