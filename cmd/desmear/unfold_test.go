@@ -40,8 +40,10 @@ func writeFiles(t *testing.T, dir string, files map[string]string) string {
 // bins, R (rows reco) = [[0.60,0.10,0.00],[0.20,0.60,0.10],
 // [0.05,0.15,0.60],[0.00,0.05,0.20]], n = (667,578,325,87), flat prior.
 // With G = (1000,1000,1000) the response table is A = 1000 R. The
-// expected values come from an independent cross-check implementation
-// (a script written for those notes, not this project's code).
+// iteration is D'Agostini's (NIM A 362 (1995) 487; CERN Yellow Report
+// 99-03, eqs. 7.3-7.5); the expected values come from an independent
+// cross-check implementation (a script written for those notes, not this
+// project's code).
 var oracleD = map[string]string{
 	"A.csv": `# Oracle D: A = R * 1000
 reco,truth,value
@@ -183,8 +185,10 @@ func TestUnfoldOracleD(t *testing.T) {
 // Oracle E of methods.md §7: R = [[0.7,0.2,0],[0.2,0.6,0.2],[0,0.15,0.7]],
 // n = (820,900,640), flat prior, Poisson data; after 2 iterations
 // sqrt(diag V) = (31.746167, 25.974453, 29.433933) and corr(0,1) =
-// 0.196891 from the linearised propagation (independent cross-check
-// script of those notes). The stop rule's maximum is exercised too.
+// 0.196891 from the linearised propagation through every iteration
+// (T. Adye, PHYSTAT 2011, CERN-2011-006, arXiv:1105.1160; values from the
+// independent cross-check script of those notes). The stop rule's
+// maximum is exercised too.
 func TestUnfoldOracleEFullCovariance(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), map[string]string{
 		"A.csv": "reco,truth,value\n0,0,700\n0,1,200\n1,0,200\n1,1,600\n1,2,200\n2,1,150\n2,2,700\n",
@@ -269,7 +273,9 @@ func TestUnfoldWithBinning(t *testing.T) {
 }
 
 // A prior with a zero in a measurable bin is reported: EM keeps zeros
-// (the update multiplies the previous estimate), so that bin stays 0.
+// (the update multiplies the previous estimate), so that bin stays 0
+// ("if the probability of a cause is initially set to zero it can never
+// change": D'Agostini, CERN Yellow Report 99-03, ch. 7).
 func TestUnfoldZeroPriorNote(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), maps(oracleD, map[string]string{"p.csv": "truth,value\n0,1\n2,1\n"}))
 	out := filepath.Join(t.TempDir(), "result")
