@@ -45,6 +45,9 @@ func TestProjectSlice2D(t *testing.T) {
 	if !slices.Equal(p.Map, want) {
 		t.Errorf("Project(forward, y).Map = %v, want %v", p.Map, want)
 	}
+	x, _ := NewAxis("x", "", []float64{0, 1, 2}, false, false)
+	r1, _ := NewRegion("line", x)
+	one, _ := NewScheme(r1)
 	for _, c := range []struct {
 		name string
 		f    func() (*Projection, error)
@@ -56,6 +59,9 @@ func TestProjectSlice2D(t *testing.T) {
 		{"region out of range", func() (*Projection, error) { return s.Project(2, 0) }},
 		{"slice an edges-by-bin axis", func() (*Projection, error) { return s.Slice(0, 1, 0) }},
 		{"slice bin out of range", func() (*Projection, error) { return s.Slice(0, 0, 3) }},
+		{"slice axis out of range", func() (*Projection, error) { return s.Slice(0, 2, 0) }},
+		{"slice region out of range", func() (*Projection, error) { return s.Slice(2, 0, 0) }},
+		{"slice of a one-axis region", func() (*Projection, error) { return one.Slice(0, 0, 0) }},
 	} {
 		if _, err := c.f(); err == nil {
 			t.Errorf("%s: no error", c.name)

@@ -451,3 +451,116 @@ func TestRegionOf(t *testing.T) {
 		}
 	}
 }
+
+// TestConstructionErrorsMore covers the remaining refusals of NewAxisByBin,
+// NewRegion and NewScheme, each checked on its own.
+func TestConstructionErrorsMore(t *testing.T) {
+	if _, err := NewAxisByBin("", "", [][]float64{{0, 1}}, false, false); err == nil {
+		t.Error("NewAxisByBin without name gave no error")
+	}
+	if _, err := NewAxisByBin("x", "", nil, false, false); err == nil {
+		t.Error("NewAxisByBin without edge lists gave no error")
+	}
+	x, _ := NewAxis("x", "", []float64{0, 1}, false, false)
+	if _, err := NewRegion("", x); err == nil {
+		t.Error("NewRegion without name gave no error")
+	}
+	axes := make([]*Axis, MaxAxes+1)
+	for k := range axes {
+		axes[k], _ = NewAxis(fmt.Sprint("a", k), "", []float64{0, 1}, false, false)
+	}
+	if _, err := NewRegion("r", axes[:MaxAxes]...); err != nil {
+		t.Errorf("NewRegion with %d axes: %v", MaxAxes, err)
+	}
+	if _, err := NewRegion("r", axes...); err == nil {
+		t.Errorf("NewRegion with %d axes gave no error", MaxAxes+1)
+	}
+	r, _ := NewRegion("r", x)
+	if _, err := NewScheme(r, nil); err == nil {
+		t.Error("NewScheme with a nil region gave no error")
+	}
+	// Three regions of 2^26 bins: each fits in MaxBins, together they do not.
+	e := uniformEdges(1<<13, 0, 1)
+	u, _ := NewAxis("u", "", e, false, false)
+	v, _ := NewAxis("v", "", e, false, false)
+	var regs []*Region
+	for _, name := range []string{"a", "b", "c"} {
+		reg, err := NewRegion(name, u, v)
+		if err != nil {
+			t.Fatal(err)
+		}
+		regs = append(regs, reg)
+	}
+	if _, err := NewScheme(regs[:2]...); err != nil {
+		t.Errorf("a scheme of 2^27 bins: %v", err)
+	}
+	if _, err := NewScheme(regs...); err == nil {
+		t.Error("a scheme of 3·2^26 bins gave no error")
+	}
+}
+
+// TestGlobalNoSuchBin checks that Global returns -1 for bin numbers that
+// name no bin of testdata/scheme2d.yaml.
+func TestGlobalNoSuchBin(t *testing.T) {
+	s := readTestdata(t, "scheme2d.yaml")
+	for _, c := range []struct {
+		name string
+		r    int
+		idx  []int
+	}{
+		{"too few bin numbers", 0, []int{0}},
+		{"too many bin numbers", 0, []int{0, 0, 0}},
+		{"plain axis bin out of range", 0, []int{3, 0}},
+		{"nested bin past its slice", 0, []int{2, 2}}, // y slice 2 has 2 pt bins
+		{"underflow switched off", 0, []int{UnderflowBin, AnyBin}},
+		{"overflow switched off", 1, []int{0, OverflowBin}},
+		{"nested flow bin past its slice", 0, []int{1, 3}},
+		{"AnyBin under an in-range bin", 0, []int{0, AnyBin}},
+		{"a bin number under a flow of the axis before", 0, []int{OverflowBin, 0}},
+		{"AnyBin on a plain axis", 1, []int{AnyBin, 0}},
+		{"negative bin number", 0, []int{-4, 0}},
+	} {
+		if g := s.Global(c.r, c.idx...); g != -1 {
+			t.Errorf("%s: Global(%d, %v) = %d (%s), want -1", c.name, c.r, c.idx, g, s.Label(g))
+		}
+	}
+	// The valid flow bins next to those cases.
+	if g := s.Global(0, OverflowBin, AnyBin); g != 19 {
+		t.Errorf("Global(0, overflow, any) = %d, want 19", g)
+	}
+	if g := s.Global(0, 2, OverflowBin); g != 18 {
+		t.Errorf("Global(0, 2, overflow) = %d, want 18", g)
+	}
+}
+
+// TestProgrammerErrorsPanic checks that calls with wrong lengths or out-of-range
+// arguments panic, as doc.go says.
+func TestProgrammerErrorsPanic(t *testing.T) {
+	s := readTestdata(t, "scheme2d.yaml")
+	p, err := s.Project(1, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name string
+		f    func()
+	}{
+		{"Locate with one coordinate", func() { s.Locate([]float64{1}) }},
+		{"Bin(-1)", func() { s.Bin(-1) }},
+		{"Bin(Len())", func() { s.Bin(s.Len()) }},
+		{"Label(Len())", func() { s.Label(s.Len()) }},
+		{"Neighbours along axis 2 of a 2-axis region", func() { s.Neighbours(0, 2) }},
+		{"Neighbours along axis -1", func() { s.Neighbours(0, -1) }},
+		{"Apply with a short src", func() { p.Apply(make([]float64, p.Target.Len()), make([]float64, s.Len()-1)) }},
+		{"Apply with a long dst", func() { p.Apply(make([]float64, p.Target.Len()+1), make([]float64, s.Len())) }},
+	} {
+		func() {
+			defer func() {
+				if recover() == nil {
+					t.Errorf("%s did not panic", c.name)
+				}
+			}()
+			c.f()
+		}()
+	}
+}

@@ -3,6 +3,7 @@ package binning
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"io/fs"
 	"math"
 	"os"
@@ -155,6 +156,90 @@ regions:
 		{"no regions", `
 description: nothing
 `, 2, "regions", "missing"},
+		{"region not a mapping", `
+regions:
+  - 3
+`, 3, "regions[0]", "expected a mapping"},
+		{"key not a name", `
+regions:
+  - {[a]: 1}
+`, 3, "regions[0]", "expected a key name"},
+		{"description not text", `
+description: [a, b]
+regions:
+  - name: a
+    axes: [{name: x, edges: [0, 1]}]
+`, 2, "description", "expected a text value"},
+		{"region without name", `
+regions:
+  - axes: [{name: x, edges: [0, 1]}]
+`, 3, "regions[0].name", "missing"},
+		{"region name null", `
+regions:
+  - name: ~
+    axes: [{name: x, edges: [0, 1]}]
+`, 3, "regions[0].name", "expected a text value, found nothing (null)"},
+		{"empty region name", `
+regions:
+  - name: ""
+    axes: [{name: x, edges: [0, 1]}]
+`, 3, "regions[0].name", "empty"},
+		{"region without axes", `
+regions:
+  - name: a
+`, 3, "regions[0].axes", "missing"},
+		{"too many axes", `
+regions:
+  - name: a
+    axes: [{name: a, edges: [0, 1]}, {name: b, edges: [0, 1]}, {name: c, edges: [0, 1]},
+           {name: d, edges: [0, 1]}, {name: e, edges: [0, 1]}, {name: f, edges: [0, 1]},
+           {name: g, edges: [0, 1]}, {name: h, edges: [0, 1]}, {name: i, edges: [0, 1]}]
+`, 4, "regions[0].axes", "at most 8"},
+		{"axis without name", `
+regions:
+  - name: a
+    axes:
+      - {edges: [0, 1]}
+`, 5, "regions[0].axes[0].name", "missing"},
+		{"axis name not text", `
+regions:
+  - name: a
+    axes:
+      - {name: {x: 1}, edges: [0, 1]}
+`, 5, "regions[0].axes[0].name", "expected a text value, found a mapping"},
+		{"empty axis name", `
+regions:
+  - name: a
+    axes:
+      - {name: "", edges: [0, 1]}
+`, 5, "regions[0].axes[0].name", "empty"},
+		{"unit not text", `
+regions:
+  - name: a
+    axes:
+      - {name: x, unit: [GeV], edges: [0, 1]}
+`, 5, "regions[0].axes[0].unit", "expected a text value, found a list"},
+		{"edges not a list", `
+regions:
+  - name: a
+    axes:
+      - {name: x, edges: 3}
+`, 5, "regions[0].axes[0].edges", "expected a list of numbers"},
+		{"edges_by_bin not a list", `
+regions:
+  - name: a
+    axes:
+      - {name: y, edges: [0, 1]}
+      - {name: x, edges_by_bin: 3}
+`, 6, "regions[0].axes[1].edges_by_bin", "expected a non-empty list of edge lists"},
+		{"edges by bin after edges by bin", `
+regions:
+  - name: a
+    axes:
+      - {name: y, edges: [0, 1]}
+      - {name: x, edges_by_bin: [[0, 1]]}
+      - {name: z, edges_by_bin: [[0, 1]]}
+`, 7, "regions[0].axes[2].edges_by_bin", "has edges by bin itself"},
 		{"empty file", ``, 0, "", "empty"},
 		{"bad yaml", "regions: [\n", 1, "", "not valid YAML"},
 	}
@@ -287,4 +372,69 @@ func FuzzDecode(f *testing.F) {
 			}
 		}
 	})
+}
+
+// TestDecodeAliases checks that YAML anchors and aliases are followed for
+// an axis, an edge list and an edge list inside edges_by_bin.
+func TestDecodeAliases(t *testing.T) {
+	s, err := Decode(strings.NewReader(`
+regions:
+  - name: a
+    axes:
+      - &y {name: y, edges: &e [0, 1, 2]}
+      - name: pt
+        edges_by_bin: [*e, [0, 5]]
+  - name: b
+    axes:
+      - *y
+      - {name: pt, edges: *e}
+`), "alias.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []string{"a y[0,1) pt[0,1)", "a y[0,1) pt[1,2)", "a y[1,2) pt[0,5)", "b y[0,1) pt[0,1)", "b y[0,1) pt[1,2)", "b y[1,2) pt[0,1)", "b y[1,2) pt[1,2)"}
+	if s.Len() != len(want) || s.InRange() != len(want) {
+		t.Fatalf("Len %d InRange %d, want %d and %d", s.Len(), s.InRange(), len(want), len(want))
+	}
+	for g, w := range want {
+		if got := s.Label(g); got != w {
+			t.Errorf("bin %d: %q, want %q", g, got, w)
+		}
+	}
+}
+
+// TestDecodeTooManyBins checks that a region, and a scheme, over MaxBins
+// bins is an *Error at the region (or the regions list) instead of a
+// table too large to hold.
+func TestDecodeTooManyBins(t *testing.T) {
+	list := func(n int) string {
+		var b strings.Builder
+		b.WriteByte('[')
+		for i := 0; i <= n; i++ {
+			if i > 0 {
+				b.WriteString(", ")
+			}
+			fmt.Fprint(&b, i)
+		}
+		b.WriteByte(']')
+		return b.String()
+	}
+	big := list(1000)
+	region := fmt.Sprintf("regions:\n  - name: a\n    axes:\n      - {name: x, edges: %s}\n      - {name: y, edges: %s}\n      - {name: z, edges: %s}\n", big, big, big)
+	_, err := Decode(strings.NewReader(region), "big.yaml")
+	var e *Error
+	if !errors.As(err, &e) || e.Line != 2 || e.Field != "regions[0]" || !strings.Contains(e.Msg, "at most") {
+		t.Errorf("a 1e9-bin region: %v, want an *Error at line 2, regions[0], saying at most", err)
+	}
+	// Three regions of 2^26 bins each: every region fits, the scheme does not.
+	half := list(1 << 13)
+	var b strings.Builder
+	b.WriteString("regions:\n")
+	for _, name := range []string{"a", "b", "c"} {
+		fmt.Fprintf(&b, "  - name: %s\n    axes:\n      - {name: x, edges: %s}\n      - {name: y, edges: %s}\n", name, half, half)
+	}
+	_, err = Decode(strings.NewReader(b.String()), "big.yaml")
+	if !errors.As(err, &e) || e.Line != 2 || e.Field != "regions" || !strings.Contains(e.Msg, "at most") {
+		t.Errorf("a scheme of 3·2^26 bins: %v, want an *Error at line 2, regions, saying at most", err)
+	}
 }
