@@ -239,6 +239,15 @@ func TestLocate(t *testing.T) {
 	s := mustSet(t, "reco,truth,value\n0,0,1\n", "truth,value\n0,10\n", "reco,value\n0,5\n1,7\n", "", "")
 	err := s.Locate(&unfold.InputError{Field: "Data", Reco: 1, Truth: -1, Reason: "count 7 in a reco bin that no truth bin reaches"})
 	wantError(t, err, 3, "value", "reco bin 1", "no truth bin reaches")
+	// A variance problem names the variance column.
+	err = s.Locate(&unfold.InputError{Field: "DataVariance", Reco: 0, Truth: -1, Reason: "variance 0 of a positive count"})
+	wantError(t, err, 2, "variance", "reco bin 0")
+	// A response cell names the response table's row.
+	err = s.Locate(&unfold.InputError{Field: "Migrations", Reco: 0, Truth: 0, Reason: "negative migration count"})
+	wantError(t, err, 2, "value", "negative migration count")
+	// A bin without a row in the table names the file only.
+	err = s.Locate(&unfold.InputError{Field: "Generated", Reco: -1, Truth: 4, Reason: "no generated count"})
+	wantError(t, err, 0, "", "truth bin 4", "no generated count")
 	other := errors.New("other")
 	if s.Locate(other) != other {
 		t.Error("Locate changed an unrelated error")
