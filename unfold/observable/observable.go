@@ -228,18 +228,18 @@ const (
 // term is the compiled, immutable form of an expression.
 type term struct {
 	op   opcode
-	val  float64 // opConst, or the constant of a ...K op
-	col  int     // opCol
-	f1   func(float64) float64
-	f2   func(float64, float64) float64
+	val  float64                        // opConst, or the constant of a ...K op
+	col  int                            // opCol
+	f1   func(float64) float64          // opFunc1
+	f2   func(float64, float64) float64 // opFunc2
 	args []*term
 }
 
 type funcDef struct {
 	nargs int // -2: two or more
 	op    opcode
-	f1    func(float64) float64
-	f2    func(float64, float64) float64
+	f1    func(float64) float64          // for opFunc1
+	f2    func(float64, float64) float64 // for opFunc2
 	doc   string
 }
 
@@ -255,8 +255,8 @@ func Functions() [][2]string {
 }
 
 var funcs = map[string]funcDef{
-	"abs":   {nargs: 1, op: opAbs, f1: math.Abs, doc: "abs(x): absolute value"},
-	"sqrt":  {nargs: 1, op: opSqrt, f1: math.Sqrt, doc: "sqrt(x): square root (NaN for x < 0)"},
+	"abs":   {nargs: 1, op: opAbs, doc: "abs(x): absolute value"},
+	"sqrt":  {nargs: 1, op: opSqrt, doc: "sqrt(x): square root (NaN for x < 0)"},
 	"cbrt":  {nargs: 1, op: opFunc1, f1: math.Cbrt, doc: "cbrt(x): cube root"},
 	"exp":   {nargs: 1, op: opFunc1, f1: math.Exp, doc: "exp(x): e to the power x"},
 	"expm1": {nargs: 1, op: opFunc1, f1: math.Expm1, doc: "expm1(x): exp(x)-1, accurate for small x"},
@@ -276,8 +276,8 @@ var funcs = map[string]funcDef{
 	"asinh": {nargs: 1, op: opFunc1, f1: math.Asinh, doc: "asinh(x): inverse hyperbolic sine"},
 	"acosh": {nargs: 1, op: opFunc1, f1: math.Acosh, doc: "acosh(x): inverse hyperbolic cosine"},
 	"atanh": {nargs: 1, op: opFunc1, f1: math.Atanh, doc: "atanh(x): inverse hyperbolic tangent"},
-	"floor": {nargs: 1, op: opFloor, f1: math.Floor, doc: "floor(x): largest integer <= x"},
-	"ceil":  {nargs: 1, op: opCeil, f1: math.Ceil, doc: "ceil(x): smallest integer >= x"},
+	"floor": {nargs: 1, op: opFloor, doc: "floor(x): largest integer <= x"},
+	"ceil":  {nargs: 1, op: opCeil, doc: "ceil(x): smallest integer >= x"},
 	"round": {nargs: 1, op: opFunc1, f1: math.Round, doc: "round(x): nearest integer, halves away from zero"},
 	"trunc": {nargs: 1, op: opFunc1, f1: math.Trunc, doc: "trunc(x): integer part"},
 	"sign":  {nargs: 1, op: opFunc1, f1: sign, doc: "sign(x): -1, 0 or 1 (NaN for NaN)"},
@@ -286,9 +286,9 @@ var funcs = map[string]funcDef{
 	"pow":   {nargs: 2, op: opFunc2, f2: math.Pow, doc: "pow(x, y): x to the power y"},
 	"atan2": {nargs: 2, op: opFunc2, f2: math.Atan2, doc: "atan2(y, x): arc tangent of y/x in (-pi, pi]"},
 	"hypot": {nargs: 2, op: opFunc2, f2: math.Hypot, doc: "hypot(x, y): sqrt(x*x+y*y) without overflow"},
-	"mod":   {nargs: 2, op: opMod, f2: math.Mod, doc: "mod(x, y): remainder of x/y with the sign of x (same as x % y)"},
-	"min":   {nargs: -2, op: opMin, f2: fmin, doc: "min(x, y, ...): smallest argument (NaN if any is NaN)"},
-	"max":   {nargs: -2, op: opMax, f2: fmax, doc: "max(x, y, ...): largest argument (NaN if any is NaN)"},
+	"mod":   {nargs: 2, op: opMod, doc: "mod(x, y): remainder of x/y with the sign of x (same as x % y)"},
+	"min":   {nargs: -2, op: opMin, doc: "min(x, y, ...): smallest argument (NaN if any is NaN)"},
+	"max":   {nargs: -2, op: opMax, doc: "max(x, y, ...): largest argument (NaN if any is NaN)"},
 	"where": {nargs: 3, op: opWhere, doc: "where(c, a, b): a where c is true (neither 0 nor NaN), else b"},
 }
 
@@ -304,12 +304,6 @@ func sign(x float64) float64 {
 
 func isNaN(x float64) float64 { return b2f(x != x) }
 func isInf(x float64) float64 { return b2f(math.IsInf(x, 0)) }
-func fmin(a, b float64) float64 {
-	return min(a, b)
-}
-func fmax(a, b float64) float64 {
-	return max(a, b)
-}
 
 // truth is the logical value of x: true when x is neither 0 nor NaN.
 func truth(x float64) bool { return math.Abs(x) > 0 }
@@ -403,11 +397,7 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		if err != nil {
 			return nil, err
 		}
-		t := &term{op: op, args: []*term{a, b}}
-		if op == opMod {
-			t.f2 = math.Mod
-		}
-		return fold(t), nil
+		return fold(&term{op: op, args: []*term{a, b}}), nil
 	case *ast.CallExpr:
 		id, ok := x.Fun.(*ast.Ident)
 		if !ok {
@@ -441,7 +431,7 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 		if f.nargs == -2 {
 			t := args[0]
 			for _, a := range args[1:] {
-				t = fold(&term{op: f.op, f2: f.f2, args: []*term{t, a}})
+				t = fold(&term{op: f.op, args: []*term{t, a}})
 			}
 			return t, nil
 		}
