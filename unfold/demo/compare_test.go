@@ -65,4 +65,10 @@ func TestCompareChi2(t *testing.T) {
 	if _, err := Compare(tr, est[:3], unc, cov); err == nil {
 		t.Error("a short estimate was accepted")
 	}
+	if _, err := Compare(tr, est, unc[:3], nil); err == nil {
+		t.Error("short uncertainties were accepted")
+	}
+	if _, err := Compare(tr, est, unc, mat.NewSymDense(nin, nil)); err == nil {
+		t.Error("a covariance of the in-range bins only was accepted")
+	}
 }

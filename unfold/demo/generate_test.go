@@ -264,12 +264,6 @@ func TestGenerateFolderRules(t *testing.T) {
 	if b, err := os.ReadFile(filepath.Join(foreign, "thesis.tex")); err != nil || string(b) != "keep me" {
 		t.Error("the foreign folder was touched")
 	}
-	entries, _ := os.ReadDir(base)
-	for _, e := range entries {
-		if e.Name() != "demo" && e.Name() != "foreign" {
-			t.Errorf("left behind: %s", e.Name())
-		}
-	}
 	for _, bad := range []string{"", ".", base + "/..", "/"} {
 		if _, err := Generate(context.Background(), bad, cfg, true); !errors.Is(err, ErrNotDemoFolder) {
 			t.Errorf("Generate into %q: %v, want ErrNotDemoFolder", bad, err)
@@ -281,6 +275,26 @@ func TestGenerateFolderRules(t *testing.T) {
 	if _, err := Generate(context.Background(), filepath.Join(base, "small"), Config{Events: MinEvents - 1}, false); err == nil {
 		t.Error("a simulation below MinEvents was accepted")
 	}
+	if _, err := Generate(context.Background(), filepath.Join(base, "large"), Config{Events: MaxEvents + 1}, false); err == nil {
+		t.Error("a simulation above MaxEvents was accepted")
+	}
+	// A file in the folder's place is never replaced; an empty folder is.
+	file := filepath.Join(base, "file")
+	os.WriteFile(file, []byte("keep me"), 0o644)
+	if _, err := Generate(context.Background(), file, cfg, true); !errors.Is(err, ErrNotDemoFolder) {
+		t.Errorf("Generate over a file: %v, want ErrNotDemoFolder", err)
+	}
+	if b, err := os.ReadFile(file); err != nil || string(b) != "keep me" {
+		t.Error("the file in the folder's place was touched")
+	}
+	empty := filepath.Join(base, "empty")
+	os.Mkdir(empty, 0o755)
+	if _, err := Generate(context.Background(), empty, cfg, false); !errors.Is(err, fs.ErrExist) {
+		t.Errorf("Generate into an empty folder without replace: %v, want fs.ErrExist", err)
+	}
+	if _, err := Generate(context.Background(), empty, cfg, true); err != nil {
+		t.Errorf("replacing an empty folder: %v", err)
+	}
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
 	if _, err := Generate(ctx, filepath.Join(base, "cancelled"), cfg, false); !errors.Is(err, context.Canceled) {
@@ -288,6 +302,12 @@ func TestGenerateFolderRules(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(base, "cancelled")); !errors.Is(err, fs.ErrNotExist) {
 		t.Error("a cancelled Generate left its folder")
+	}
+	entries, _ := os.ReadDir(base)
+	for _, e := range entries {
+		if e.Name() != "demo" && e.Name() != "foreign" && e.Name() != "file" && e.Name() != "empty" {
+			t.Errorf("left behind: %s", e.Name())
+		}
 	}
 }
 
@@ -304,5 +324,37 @@ func BenchmarkGenerateDefault(b *testing.B) {
 		b.StopTimer()
 		os.RemoveAll(dir)
 		b.StartTimer()
+	}
+}
+
+// ReadTruth refuses a truth.csv that does not match the folder's truth
+// binning: a wrong header, a missing row, an index out of order, a value
+// that is not a number.
+func TestReadTruthRefusesDamagedFiles(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "demo")
+	if _, err := Generate(context.Background(), dir, Config{Events: MinEvents, Seed: 4}, false); err != nil {
+		t.Fatal(err)
+	}
+	path := filepath.Join(dir, TruthFile)
+	good, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.SplitAfter(string(good), "\n")
+	for name, text := range map[string]string{
+		"header":    strings.Replace(string(good), "expected", "estimate", 1),
+		"short":     strings.Join(lines[:len(lines)-2], ""),
+		"order":     lines[0] + lines[2] + lines[1] + strings.Join(lines[3:], ""),
+		"expected":  lines[0] + strings.Replace(lines[1], ",false,", ",false,x", 1) + strings.Join(lines[2:], ""),
+		"generated": strings.TrimSuffix(string(good), "\n") + "z\n",
+	} {
+		if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := ReadTruth(dir); err == nil {
+			t.Errorf("%s: a damaged truth.csv was accepted", name)
+		} else if !strings.Contains(err.Error(), path) {
+			t.Errorf("%s: error %q does not name the file", name, err)
+		}
 	}
 }
