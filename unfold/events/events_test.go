@@ -330,6 +330,53 @@ func TestParquetTypes(t *testing.T) {
 	}
 }
 
+// TestParquetUnsupported checks that columns without one number per event
+// are listed as unreadable with the reason, and that a missing column lists
+// the readable ones.
+func TestParquetUnsupported(t *testing.T) {
+	type inner struct {
+		A float64 `parquet:"a"`
+	}
+	type row struct {
+		X     float64   `parquet:"x"`
+		List  []float64 `parquet:"list"`
+		Group inner     `parquet:"group"`
+		Dec   int64     `parquet:"dec,decimal(2:18)"`
+	}
+	path := filepath.Join(t.TempDir(), "nested.parquet")
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := parquet.NewGenericWriter[row](f)
+	if _, err := w.Write([]row{{X: 1, List: []float64{1, 2}, Group: inner{A: 3}, Dec: 314}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	if got := src.Columns(); !reflect.DeepEqual(got, []string{"x"}) {
+		t.Errorf("Columns = %v, want [x]", got)
+	}
+	for col, want := range map[string]string{
+		"list":  `column "list" cannot be read: it is a repeated (list) column`,
+		"group": `column "group" cannot be read: it is a group of columns`,
+		"dec":   `column "dec" cannot be read: decimal columns are not supported`,
+		"y":     `no column "y" (have: x)`,
+	} {
+		err := src.Read(context.Background(), []string{"x", col}, 10, func(*Batch) error { return nil })
+		if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), path) {
+			t.Errorf("%s: error %v, want %q", col, err, want)
+		}
+	}
+}
+
 func TestParquetNulls(t *testing.T) {
 	type row struct {
 		X *float64 `parquet:"x,optional"`
@@ -383,6 +430,7 @@ func TestCSVErrors(t *testing.T) {
 		{"quoted.csv", "a,\"b\"\n\"1\",\" 2\"\n\n#c\n\"3\",x\n", []string{"b"}, `quoted.csv:5:5: column "b": "x" is not a number`},
 		{"multiline.csv", "a,b\n1,\"2\n3\"\n", []string{"b"}, "multiline.csv:2:"},
 		{"crlf.csv", "a,b\r\n1,2\r\n3,4", []string{"b"}, ""},
+		{"bools.csv", "a,b\nfalse,TRUE\n False ,1e400\n", []string{"a", "b"}, ""},
 	} {
 		p := write(tc.name, tc.body)
 		src, err := Open(p, Options{})
@@ -400,6 +448,7 @@ func TestCSVErrors(t *testing.T) {
 		"ok.csv":     {{2, 1}, {1, 3}},
 		"crlf.csv":   {{2, 4}, {1, 3}},
 		"quoted.csv": {{2}, {1}},
+		"bools.csv":  {{1, math.Inf(1)}, {0, 0}}, // a number out of range is ±Inf, as strconv.ParseFloat gives
 	} {
 		src, _ := Open(filepath.Join(dir, file), Options{})
 		var got [][]float64
@@ -556,6 +605,8 @@ func TestWriteErrors(t *testing.T) {
 		{[]string{"a", "b"}, [][]float64{{1}, {2, 3}}, `column "b" has 2 values`},
 		{[]string{"a", "a"}, [][]float64{{1}, {2}}, "given twice"},
 		{[]string{"a,b"}, [][]float64{{1}}, "cannot be written to a CSV header"},
+		{nil, nil, "no columns"},
+		{[]string{"a", ""}, [][]float64{{1}, {2}}, "column 1 has an empty name"},
 	} {
 		if err := WriteCSV(p, tc.names, tc.cols); err == nil || !strings.Contains(err.Error(), tc.want) {
 			t.Errorf("%v: error %v, want %q", tc.names, err, tc.want)
@@ -760,6 +811,28 @@ func TestROOTTreeChoice(t *testing.T) {
 			t.Errorf("tree %s: %v, want %v", tree, got[0], want)
 		}
 		src.Close()
+	}
+	if _, err := Open(path, Options{Tree: "sub"}); err == nil || !strings.Contains(err.Error(), `"sub" is a TDirectoryFile, not a TTree`) {
+		t.Errorf("a directory named as the tree: %v", err)
+	}
+
+	// A file whose only tree is in a directory: the path must be given.
+	deep := filepath.Join(t.TempDir(), "deep.root")
+	f, err = groot.Create(deep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if dir, err = riofs.Dir(f).Mkdir("sub"); err != nil {
+		t.Fatal(err)
+	}
+	if w, err = rtree.NewWriter(dir, "deep", []rtree.WriteVar{{Name: "x", Value: &x}}); err != nil {
+		t.Fatal(err)
+	}
+	w.Write()
+	w.Close()
+	f.Close()
+	if _, err := Open(deep, Options{}); err == nil || !strings.Contains(err.Error(), "no TTree at the top level of the file; give the tree's path") {
+		t.Errorf("no tree at the top level: %v", err)
 	}
 }
 
