@@ -371,3 +371,67 @@ func TestJSONLayout(t *testing.T) {
 		t.Errorf("unexpected layout:\n%s", got)
 	}
 }
+
+// The settings record fills in the kernel's documented defaults (the
+// zero values of unfold.Settings mean "the default").
+func TestDescribeSettings(t *testing.T) {
+	d := DescribeSettings(nil, "generated", false)
+	if d.Iterations != unfold.DefaultIterations || d.StopChi2 != 0 || d.MaxIterations != 0 || d.MemoryLimit != unfold.DefaultMemoryLimit ||
+		d.Covariance != unfold.NoCovariance.String() || d.DiagonalMethod != "" || d.Probes != 0 ||
+		d.Toys != 0 || d.Background != "" || d.Smoothing != 0 || d.Prior != "generated" {
+		t.Errorf("defaults: %+v", d)
+	}
+	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Diagonal}, "generated", false); d.DiagonalMethod != unfold.DiagonalAuto.String() || d.Probes != unfold.DefaultProbes || d.Toys != 0 {
+		t.Errorf("diagonal: %+v", d)
+	}
+	d = DescribeSettings(&unfold.Settings{StopChi2: 0.5, Background: unfold.Subtract, Smoothing: &unfold.Smoothing{},
+		Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, MemoryLimit: 1 << 20}, "table", true)
+	if d.Iterations != 0 || d.StopChi2 != 0.5 || d.MaxIterations != unfold.DefaultMaxIterations || d.Background != "subtract" ||
+		d.Smoothing != 1 || d.Toys != unfold.DefaultToys || d.Probes != 0 || d.MemoryLimit != 1<<20 || d.Prior != "table" {
+		t.Errorf("stopping rule, subtraction, smoothing, toys: %+v", d)
+	}
+	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Full}, "generated", true); d.DiagonalMethod != "" || d.Probes != 0 || d.Background != "model" {
+		t.Errorf("full covariance with a background in the model: %+v", d)
+	}
+}
+
+// WriteResult refuses a result holding a NaN or an infinity anywhere
+// (JSON has no such numbers) and leaves no file in the folder; WriteCSV
+// refuses a truth binning of another size.
+func TestWriteResultRefuses(t *testing.T) {
+	for name, spoil := range map[string]func(r *Result){
+		"covariance": func(r *Result) { r.Covariance[1][0] = math.NaN() },
+		"history":    func(r *Result) { r.History[1].Chi2 = math.Inf(1) },
+		"folded":     func(r *Result) { r.Folded[0] = math.Inf(-1) },
+	} {
+		t.Run(name, func(t *testing.T) {
+			r, err := FromUnfold(kernelResult())
+			if err != nil {
+				t.Fatal(err)
+			}
+			spoil(r)
+			dir := filepath.Join(t.TempDir(), "run")
+			f, err := New(dir, false)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer f.Abort()
+			if err := f.WriteResult(r, nil); err == nil || !strings.Contains(err.Error(), name) {
+				t.Errorf("WriteResult = %v, want an error naming %s", err, name)
+			}
+			if got := entries(t, f.tmp); len(got) != 0 {
+				t.Errorf("files written: %v", got)
+			}
+		})
+	}
+	r, err := FromUnfold(kernelResult())
+	if err != nil {
+		t.Fatal(err)
+	}
+	ax, _ := binning.NewAxis("x", "", []float64{0, 1}, false, false)
+	reg, _ := binning.NewRegion("all", ax)
+	s, _ := binning.NewScheme(reg)
+	if err := WriteCSV(&bytes.Buffer{}, r, s); err == nil {
+		t.Error("WriteCSV accepted a 1-bin binning for a 3-bin result")
+	}
+}
