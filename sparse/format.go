@@ -292,8 +292,11 @@ func read(r io.Reader, size int64) (*Matrix, error) {
 		return nil, formatErr("format version %d, this program reads version %d; use a matching desmear version", v, formatVersion)
 	}
 	flags := binary.LittleEndian.Uint32(hdr[12:])
-	if flags&^flagSumW2 != 0 || binary.LittleEndian.Uint32(hdr[44:]) != 0 {
+	if flags&^flagSumW2 != 0 {
 		return nil, formatErr("unknown flags %#x in the header", flags)
+	}
+	if binary.LittleEndian.Uint32(hdr[44:]) != 0 {
+		return nil, formatErr("reserved header bytes 44-47 are not zero")
 	}
 	rows64, cols64, nnz64 := binary.LittleEndian.Uint64(hdr[16:]), binary.LittleEndian.Uint64(hdr[24:]), binary.LittleEndian.Uint64(hdr[32:])
 	if rows64 > math.MaxInt32 || cols64 > math.MaxInt32 {
