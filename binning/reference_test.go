@@ -105,7 +105,7 @@ func refFlatten(s *Scheme) []refBin {
 // refContains reports whether bin b holds the point x (scheme order).
 func refContains(s *Scheme, b refBin, x []float64) bool {
 	for k, a := range s.regions[b.region].axes {
-		v := x[s.axisIndex(a.name)]
+		v := x[s.AxisIndex(a.name)]
 		if math.IsNaN(v) {
 			return false
 		}

@@ -130,6 +130,7 @@ func (r *Region) layout() {
 	r.lv = make([]level, d)
 	r.ident = make([]int, d)
 	nIn, nExt := 1, 1
+	r.rect = true
 	for k, a := range r.axes {
 		r.ident[k] = k
 		l := &r.lv[k]
@@ -146,6 +147,7 @@ func (r *Region) layout() {
 			continue
 		}
 		l.nested = true
+		r.rect = false
 		p := &r.lv[k-1]
 		l.cum = make([]int, p.n+1)
 		l.finds = make([]finder, len(a.byBin))
@@ -165,7 +167,6 @@ func (r *Region) layout() {
 		nExt = nExt / p.m * l.totalExt()
 	}
 	r.nIn, r.nExt = nIn, nExt
-	r.rect = r.Rectangular()
 	r.flowExt = make([]int32, 0, nExt-nIn)
 	r.listFlows(0, 0, 0, 0, false)
 }
@@ -217,14 +218,7 @@ func (r *Region) Flows() int { return len(r.flowExt) }
 
 // Rectangular reports whether no axis of the region has edges by bin, so
 // that its bins form a full grid (as a ROOT TH1D/TH2D/TH3D would).
-func (r *Region) Rectangular() bool {
-	for _, l := range r.lv {
-		if l.nested {
-			return false
-		}
-	}
-	return true
-}
+func (r *Region) Rectangular() bool { return r.rect }
 
 // find locates the point whose coordinate on axis k is x[pos[k]]. It
 // returns the in-range cell, or -1 and the position of the flow cell in

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -53,7 +54,7 @@ func NewScheme(regions ...*Region) (*Scheme, error) {
 		}
 		s.pos[r] = make([]int, len(reg.axes))
 		for k, a := range reg.axes {
-			j := s.axisIndex(a.name)
+			j := s.AxisIndex(a.name)
 			if j < 0 {
 				j = len(s.names)
 				s.names = append(s.names, a.name)
@@ -74,14 +75,9 @@ func NewScheme(regions ...*Region) (*Scheme, error) {
 	return s, nil
 }
 
-func (s *Scheme) axisIndex(name string) int {
-	for j, n := range s.names {
-		if n == name {
-			return j
-		}
-	}
-	return -1
-}
+// AxisIndex returns the position of the axis called name in AxisNames, or
+// -1.
+func (s *Scheme) AxisIndex(name string) int { return slices.Index(s.names, name) }
 
 // Len returns the number of global bins, flow bins included.
 func (s *Scheme) Len() int { return s.n }
@@ -98,16 +94,12 @@ func (s *Scheme) AxisNames() []string { return s.names }
 // AxisUnit returns the unit of the axis called name, and whether there is
 // such an axis.
 func (s *Scheme) AxisUnit(name string) (string, bool) {
-	j := s.axisIndex(name)
+	j := s.AxisIndex(name)
 	if j < 0 {
 		return "", false
 	}
 	return s.units[j], true
 }
-
-// AxisIndex returns the position of the axis called name in AxisNames, or
-// -1.
-func (s *Scheme) AxisIndex(name string) int { return s.axisIndex(name) }
 
 // Regions returns the regions in order. The slice must not be modified.
 func (s *Scheme) Regions() []*Region { return s.regions }

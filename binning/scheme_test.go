@@ -137,7 +137,7 @@ func representative(s *Scheme, b refBin) [][]float64 {
 			out = append(out, slices.Clone(x))
 			return
 		}
-		j := s.axisIndex(reg.axes[k].name)
+		j := s.AxisIndex(reg.axes[k].name)
 		for _, v := range opts[k] {
 			x[j] = v
 			rec(k+1, x)
@@ -562,5 +562,30 @@ func TestProgrammerErrorsPanic(t *testing.T) {
 			}()
 			c.f()
 		}()
+	}
+}
+
+// TestLookups checks the name lookups and the region shape of
+// testdata/scheme2d.yaml, whose central region has pt edges by y bin.
+func TestLookups(t *testing.T) {
+	s := readTestdata(t, "scheme2d.yaml")
+	if s.RegionIndex("forward") != 1 || s.RegionIndex("central") != 0 || s.RegionIndex("backward") != -1 {
+		t.Errorf("RegionIndex forward, central, backward = %d, %d, %d; want 1, 0, -1", s.RegionIndex("forward"), s.RegionIndex("central"), s.RegionIndex("backward"))
+	}
+	if s.AxisIndex("pt") != 1 || s.AxisIndex("mass") != -1 {
+		t.Errorf("AxisIndex pt, mass = %d, %d; want 1, -1", s.AxisIndex("pt"), s.AxisIndex("mass"))
+	}
+	if u, ok := s.AxisUnit("pt"); u != "GeV" || !ok {
+		t.Errorf("AxisUnit(pt) = %q, %v; want GeV, true", u, ok)
+	}
+	if u, ok := s.AxisUnit("mass"); u != "" || ok {
+		t.Errorf("AxisUnit(mass) = %q, %v; want \"\", false", u, ok)
+	}
+	regs := s.Regions()
+	if regs[0].Rectangular() || !regs[1].Rectangular() {
+		t.Errorf("Rectangular central, forward = %v, %v; want false, true", regs[0].Rectangular(), regs[1].Rectangular())
+	}
+	if regs[0].Len() != 9 || regs[0].Flows() != 7 || regs[1].Len() != 4 || regs[1].Flows() != 0 {
+		t.Errorf("central Len %d Flows %d, forward Len %d Flows %d; want 9, 7, 4, 0", regs[0].Len(), regs[0].Flows(), regs[1].Len(), regs[1].Flows())
 	}
 }
