@@ -2,11 +2,11 @@ package binning
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"io"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 
 	"go.yaml.in/yaml/v3"
@@ -95,10 +95,6 @@ func Decode(r io.Reader, filename string) (*Scheme, error) {
 // message ("yaml: line 3: ..."), or returns 0.
 func yamlErrorLine(err error) int {
 	var line int
-	var te *yaml.TypeError
-	if errors.As(err, &te) {
-		return 0
-	}
 	if _, e := fmt.Sscanf(err.Error(), "yaml: line %d:", &line); e == nil {
 		return line
 	}
@@ -126,14 +122,8 @@ func (d *decoder) fields(n *yaml.Node, field string, allowed ...string) (map[str
 		if k.Kind != yaml.ScalarNode {
 			return nil, d.errf(k, field, "expected a key name, found %s", kindName(k))
 		}
-		ok := false
-		for _, a := range allowed {
-			if k.Value == a {
-				ok = true
-			}
-		}
 		sub := joinField(field, k.Value)
-		if !ok {
+		if !slices.Contains(allowed, k.Value) {
 			return nil, d.errf(k, sub, "unknown key %q; the keys allowed here are %s", k.Value, quoteList(allowed))
 		}
 		if _, dup := out[k.Value]; dup {
