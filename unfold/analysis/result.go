@@ -73,14 +73,6 @@ type AnalysisInfo struct {
 	Title string `json:"title,omitempty"`
 }
 
-func hashFile(role, path string) (fill.Input, error) {
-	in, err := output.HashFile(role, path)
-	if err != nil {
-		return fill.Input{}, err
-	}
-	return fill.Input(in), nil
-}
-
 // CheckOutput reports early whether the result folder could be written.
 func (a *Analysis) CheckOutput(replace bool) error {
 	return output.Check(a.Output.Folder, replace)
@@ -160,9 +152,7 @@ func (a *Analysis) inputs(out *Outcome) ([]output.Input, error) {
 		}
 	}
 	if out.ResponseInfo != nil {
-		for _, in := range out.ResponseInfo.Inputs {
-			ins = append(ins, output.Input(in))
-		}
+		ins = append(ins, out.ResponseInfo.Inputs...)
 	}
 	if err := add("data", a.Data.File); err != nil {
 		return nil, err

@@ -13,6 +13,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/output"
 	"github.com/desmear/desmear/unfold/tables"
 )
 
@@ -124,7 +125,7 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 		}
 		hc := make(chan hashed, 1)
 		go func() {
-			in, err := hashFile("simulation", s.File)
+			in, err := output.HashFile("simulation", s.File)
 			hc <- hashed{in, err}
 		}()
 		sum, err := b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))

@@ -302,6 +302,9 @@ func WriteCSV(path string, names []string, cols [][]float64) error {
 			f.Close()
 			return fmt.Errorf("events: writing %s: %w", path, err)
 		}
-		return syncClose(f, path)
+		if err := f.Close(); err != nil {
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		return nil
 	})
 }

@@ -179,7 +179,9 @@ func checkColumns(path string, names []string, cols [][]float64) error {
 }
 
 // atomicWrite creates a temporary file next to path, lets write fill it
-// (given its name), and renames it to path if write succeeds.
+// (given its name) and close it, then syncs it to disk, gives it mode 0644
+// (os.CreateTemp makes it private) and renames it to path. On error the
+// temporary file is removed and path is left as it was.
 func atomicWrite(path string, write func(tmp string) error) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
@@ -199,20 +201,27 @@ func atomicWrite(path string, write func(tmp string) error) (err error) {
 	if err := write(tmp); err != nil {
 		return err
 	}
+	if err := syncFile(tmp); err != nil {
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
+	if err := os.Chmod(tmp, 0o644); err != nil {
+		return fmt.Errorf("events: writing %s: %w", path, err)
+	}
 	if err := os.Rename(tmp, path); err != nil {
 		return fmt.Errorf("events: writing %s: %w", path, err)
 	}
 	return nil
 }
 
-// syncClose flushes f to stable storage and closes it.
-func syncClose(f *os.File, path string) error {
+// syncFile flushes the written file at path to stable storage.
+func syncFile(path string) error {
+	f, err := os.OpenFile(path, os.O_RDWR, 0)
+	if err != nil {
+		return err
+	}
 	if err := f.Sync(); err != nil {
 		f.Close()
-		return fmt.Errorf("events: writing %s: %w", path, err)
+		return err
 	}
-	if err := f.Close(); err != nil {
-		return fmt.Errorf("events: writing %s: %w", path, err)
-	}
-	return nil
+	return f.Close()
 }

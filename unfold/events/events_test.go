@@ -623,6 +623,32 @@ func TestWriteErrors(t *testing.T) {
 	}
 }
 
+// TestWrittenFileMode checks that the writers' files are not private, as
+// files written under os.CreateTemp's name would be (mode 0600): a sample
+// written for others to read gets mode 0644, as os.WriteFile(..., 0o644)
+// gives.
+func TestWrittenFileMode(t *testing.T) {
+	dir := t.TempDir()
+	names, cols := sampleColumns(3)
+	for name, write := range map[string]func(string) error{
+		"m.csv":     func(p string) error { return WriteCSV(p, names, cols) },
+		"m.parquet": func(p string) error { return WriteParquet(p, names, cols) },
+		"m.root":    func(p string) error { return WriteROOT(p, "events", names, cols) },
+	} {
+		p := filepath.Join(dir, name)
+		if err := write(p); err != nil {
+			t.Fatal(err)
+		}
+		st, err := os.Stat(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if st.Mode().Perm() != 0o644 {
+			t.Errorf("%s: mode %v, want -rw-r--r--", name, st.Mode().Perm())
+		}
+	}
+}
+
 func TestFormatOf(t *testing.T) {
 	for p, want := range map[string]Format{"a.root": FormatROOT, "B.ROOT": FormatROOT, "c.parquet": FormatParquet,
 		"d.pq": FormatParquet, "e.csv": FormatCSV, "f.txt": FormatUnknown, "root": FormatUnknown} {

@@ -475,8 +475,8 @@ func WriteParquet(path string, names []string, cols [][]float64) error {
 	for i, n := range names {
 		byName[n] = i
 	}
-	for j, path := range schema.Columns() {
-		order[j] = byName[path[0]]
+	for j, col := range schema.Columns() {
+		order[j] = byName[col[0]]
 	}
 	return atomicWrite(path, func(tmp string) error {
 		f, err := os.Create(tmp)
@@ -509,6 +509,9 @@ func WriteParquet(path string, names []string, cols [][]float64) error {
 			f.Close()
 			return fmt.Errorf("events: writing %s: %w", path, err)
 		}
-		return syncClose(f, path)
+		if err := f.Close(); err != nil {
+			return fmt.Errorf("events: writing %s: %w", path, err)
+		}
+		return nil
 	})
 }

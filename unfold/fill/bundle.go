@@ -52,14 +52,9 @@ type SampleSummary struct {
 	Summary Summary `json:"summary"`
 }
 
-// Input is one input file: its role, path, size and SHA-256 (the same
-// fields as a result folder's inputs).
-type Input struct {
-	Role   string `json:"role"`
-	Path   string `json:"path"`
-	Bytes  int64  `json:"bytes"`
-	SHA256 string `json:"sha256"`
-}
+// Input is one input file: its role, path, size and SHA-256, the record
+// a result folder keeps of its inputs.
+type Input = output.Input
 
 type bundleDoc struct {
 	Format         string     `json:"format"`
