@@ -296,3 +296,37 @@ func TestPrintOutcomeLimitsTable(t *testing.T) {
 		}
 	}
 }
+
+// desmear response never replaces a folder that is not its own earlier
+// output, even with --force: the bundle folder must hold a response.json
+// and the tables folder a response.csv. Both are refused before any
+// event is read, and the folders are left as they were.
+func TestResponseTargetRefused(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	foreign := filepath.Join(filepath.Dir(path), "mine")
+	if err := os.Mkdir(foreign, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(foreign, "thesis.tex"), []byte("keep"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"response", path, "--out", foreign}, "exists (use --force"},
+		{[]string{"response", path, "--out", foreign, "--force"}, "does not hold a response.json"},
+		{[]string{"response", path, "--tables", foreign, "--force"}, "does not hold a response.csv"},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), c.args...)
+		if code != exitUsage || !strings.Contains(stderr, c.want) || stdout != "" {
+			t.Errorf("%v: exit %d, stdout %q, stderr %q; want %d and %q", c.args[2:], code, stdout, stderr, exitUsage, c.want)
+		}
+	}
+	if names, _ := os.ReadDir(foreign); len(names) != 1 {
+		t.Errorf("the folder was touched: %v", names)
+	}
+	if _, err := os.Stat(filepath.Join(filepath.Dir(path), "response")); err == nil {
+		t.Error("a response bundle was written although the tables folder was refused")
+	}
+}
