@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"reflect"
 	"runtime"
+	"slices"
 	"strings"
 	"sync"
 
@@ -87,7 +88,7 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 func treeNames(f *groot.File) []string {
 	var trees []string
 	for _, k := range f.Keys() {
-		if isTreeClass(k.ClassName()) && !contains(trees, k.Name()) {
+		if isTreeClass(k.ClassName()) && !slices.Contains(trees, k.Name()) {
 			trees = append(trees, k.Name())
 		}
 	}
@@ -104,15 +105,6 @@ func topLevelTrees(f *groot.File) string {
 }
 
 func isTreeClass(c string) bool { return c == "TTree" || c == "TNtuple" || c == "TNtupleD" }
-
-func contains(s []string, x string) bool {
-	for _, v := range s {
-		if v == x {
-			return true
-		}
-	}
-	return false
-}
 
 // leafProblem says why a leaf cannot be read as one number per event, or
 // returns "".
