@@ -85,6 +85,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
+	// Every input is checked here, once, before any event is read.
 	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
 		return nil, err
 	}
@@ -93,7 +94,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if a.ResponseFile != "" {
 		out.Response, out.ResponseInfo, err = a.LoadResponse()
 	} else {
-		out.Response, out.ResponseInfo, err = a.BuildResponse(ctx, opt)
+		out.Response, out.ResponseInfo, err = a.buildResponse(ctx, opt)
 	}
 	if err != nil {
 		return nil, err

@@ -101,11 +101,16 @@ func (a *Analysis) CheckInputs(sim, rest bool) error {
 // BuildResponse streams the simulated samples into a response. It
 // returns the response and the provenance of its inputs.
 func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
-	if len(a.Simulation) == 0 {
-		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
-	}
 	if err := a.CheckInputs(true, false); err != nil {
 		return nil, nil, err
+	}
+	return a.buildResponse(ctx, opt)
+}
+
+// buildResponse is BuildResponse once the simulation's inputs are checked.
+func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
+	if len(a.Simulation) == 0 {
+		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
 	info := &fill.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
 	if opt != nil {
