@@ -199,7 +199,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	for i, s := range doc.Simulation {
 		f := fmt.Sprintf("simulation[%d]", i)
 		sm := Sample{Field: f, Line: c.line("simulation", i), Tree: s.Tree, Scale: s.Scale}
-		sm.File = c.path(f+".file", s.File, c.line("simulation", i, "file"), sm.Line)
+		sm.File = c.path(f+".file", s.File, c.keyLine("simulation", i, "file"), sm.Line)
 		if sm.File != "" && events.FormatOf(sm.File) == events.FormatUnknown {
 			c.errf(c.line("simulation", i, "file"), f+".file", "unknown events format of %q (use .root, .parquet or .csv)", s.File)
 		}
@@ -227,7 +227,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 			c.errf(bg.Line, f, "give either events or table, not both")
 		case b.Events != "":
 			bg.Kind = DataEvents
-			bg.File = c.path(f+".events", b.Events, c.line("backgrounds", i, "events"), bg.Line)
+			bg.File = c.path(f+".events", b.Events, c.keyLine("backgrounds", i, "events"), bg.Line)
 			if events.FormatOf(bg.File) == events.FormatUnknown {
 				c.errf(c.line("backgrounds", i, "events"), f+".events", "unknown events format of %q (use .root, .parquet or .csv)", b.Events)
 			}
@@ -236,7 +236,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 			bg.Observables = c.levelExprs(f+".observables", b.Observables.node, a.Reco, a.RecoObservables, false)
 		case b.Table != "":
 			bg.Kind = DataTable
-			bg.File = c.path(f+".table", b.Table, c.line("backgrounds", i, "table"), bg.Line)
+			bg.File = c.path(f+".table", b.Table, c.keyLine("backgrounds", i, "table"), bg.Line)
 			for _, k := range []string{"tree", "weight", "selection", "observables"} {
 				if n := nodeAt(root, "backgrounds", i, k); n != nil {
 					c.errf(n.Line, f+"."+k, "applies to an events file only, not to a table")
@@ -271,7 +271,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
 	if a.Unfolding.Prior == "file" {
-		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.line("unfolding", "prior_file"), c.line("unfolding", "prior"))
+		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.keyLine("unfolding", "prior_file"), c.line("unfolding", "prior"))
 	} else if u.PriorFile != "" {
 		c.errf(c.line("unfolding", "prior_file"), "unfolding.prior_file", "is used only with prior: file")
 	}
@@ -391,6 +391,17 @@ func (c *checker) expr(text string, path ...any) Expression {
 	return Expression{Text: strings.TrimSpace(text), Line: c.line(path...), Field: fieldName(path...)}
 }
 
+// keyLine returns the line of the node at path, or 0 when there is none
+// (unlike line, it does not fall back to an enclosing key).
+func (c *checker) keyLine(path ...any) int {
+	if n := nodeAt(c.root, path...); n != nil {
+		return n.Line
+	}
+	return 0
+}
+
+// path resolves the file name given at line (0 when its key is absent,
+// then the message points at parentLine).
 func (c *checker) path(field, name string, line, parentLine int) string {
 	if name == "" {
 		if line == 0 {
@@ -485,14 +496,14 @@ func (c *checker) data(d dataDoc, a *Analysis) Data {
 	switch {
 	case d.Events != "":
 		out.Kind = DataEvents
-		out.File = c.path("data.events", d.Events, c.line("data", "events"), out.Line)
+		out.File = c.path("data.events", d.Events, c.keyLine("data", "events"), out.Line)
 		out.Weight = c.expr(d.Weight, "data", "weight")
 		out.Selection = c.expr(d.Selection, "data", "selection")
 		out.Observables = c.levelExprs("data.observables", d.Observables.node, a.Reco, a.RecoObservables, false)
 		only("tree", "weight", "selection", "observables")
 	case d.Histogram != "":
 		out.Kind = DataHistogram
-		out.File = c.path("data.histogram", d.Histogram, c.line("data", "histogram"), out.Line)
+		out.File = c.path("data.histogram", d.Histogram, c.keyLine("data", "histogram"), out.Line)
 		only("name")
 		regs := a.Reco.Regions()
 		if len(regs) != 1 || !regs[0].Rectangular() || len(regs[0].Axes()) > 2 {
@@ -503,7 +514,7 @@ func (c *checker) data(d dataDoc, a *Analysis) Data {
 		}
 	case d.Table != "":
 		out.Kind = DataTable
-		out.File = c.path("data.table", d.Table, c.line("data", "table"), out.Line)
+		out.File = c.path("data.table", d.Table, c.keyLine("data", "table"), out.Line)
 		only()
 	}
 	if out.Kind == DataEvents && events.FormatOf(out.File) == events.FormatUnknown {

@@ -82,6 +82,28 @@ func TestDecodeErrors(t *testing.T) {
 		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 1e-12", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
 		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 0", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
 		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 1e300", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
+		// Each check of the decoder, one row each.
+		{"simulation:\n  - file: sim.csv\n    weight: w\n    truth_selection: pt\n    reco_selection: pr\n", "", `simulation: missing: list the simulated samples`},
+		{"    table: b.csv", "    table: b.csv\n    events: bkg.csv", `testdata/bad.yaml:21: backgrounds[0]: give either events or table, not both`},
+		{"    table: b.csv", "    events: bkg.txt", `testdata/bad.yaml:22: backgrounds[0].events: unknown events format of "bkg.txt"`},
+		{"    table: b.csv", "    table: b.csv\n    weight: w", `testdata/bad.yaml:23: backgrounds[0].weight: applies to an events file only`},
+		{"    table: b.csv", "    tree: t", `testdata/bad.yaml:21: backgrounds[0]: missing: give events`},
+		{"    scale_uncertainty: 0.1", "    scale_uncertainty: -0.1", `testdata/bad.yaml:24: backgrounds[0].scale_uncertainty: must be a finite relative uncertainty`},
+		{"  iterations: 3", "  iterations: -1", `testdata/bad.yaml:26: unfolding.iterations: must be ≥ 1`},
+		{"  iterations: 3", "  stop_chi2: -1", `testdata/bad.yaml:26: unfolding.stop_chi2: must be a finite number > 0`},
+		{"  iterations: 3", "  stop_chi2: 0.1\n  max_iterations: -2", `testdata/bad.yaml:27: unfolding.max_iterations: must be ≥ 1`},
+		{"  iterations: 3", "  iterations: 3\n  max_iterations: 20", `testdata/bad.yaml:27: unfolding.max_iterations: bounds the stopping rule`},
+		{"  iterations: 3", "  iterations: 3\n  prior_file: p.csv", `testdata/bad.yaml:27: unfolding.prior_file: is used only with prior: file`},
+		{"  iterations: 3", "  iterations: 3\n  prior: file", `testdata/bad.yaml:27: unfolding.prior_file: missing file name`},
+		{"  iterations: 3", "  iterations: 3\n  smoothing: 1.5", `testdata/bad.yaml:27: unfolding.smoothing: must be a strength in (0, 1]`},
+		{"  seed: 7", "  seed: 7\n  probes: 1", `testdata/bad.yaml:30: uncertainty.probes: must be at least 2`},
+		{"  seed: 7", "  seed: 7\n  toys: -3", `testdata/bad.yaml:30: uncertainty.toys: must be at least 2`},
+		{"  folder: out", "  folder: out\n  formats: [json, png]", `testdata/bad.yaml:32: output.formats[1]: unknown format "png" (known: json, csv, regions, root)`},
+		{"  luminosity: 2.5", "  luminosity: -2.5", `testdata/bad.yaml:32: output.luminosity: must be a positive integrated luminosity`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  workers: -1", `testdata/bad.yaml:34: processing.workers: must be ≥ 0`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  batch_size: -1", `testdata/bad.yaml:34: processing.batch_size: must be ≥ 0`},
+		{"  weight: w\nbackgrounds", "  weight: w\n  name: h\nbackgrounds", `testdata/bad.yaml:20: data.name: does not apply to this kind of data`},
+		{"  events: data.csv", "  events: data.txt", `testdata/bad.yaml:18: data.events: unknown events format of "data.txt"`},
 	}
 	for _, c := range cases {
 		err := decodeErr(t, c.old, c.new)
