@@ -420,6 +420,13 @@ func TestWriteErrors(t *testing.T) {
 		{[]*Hist1D{NewHist1D("", []float64{0, 1})}, nil, "bad histogram name"},
 		{nil, []*Hist2D{{Name: "m", XEdges: []float64{0, 1}, YEdges: []float64{0, 1}, SumW: make([]float64, 9), SumW2: make([]float64, 8)}}, "need 9 cells"},
 		{nil, []*Hist2D{NewHist2D("m", []float64{0, 1}, []float64{0, math.Inf(1)})}, "finite"},
+		{nil, []*Hist2D{NewHist2D("m", []float64{0}, []float64{0, 1})}, "need at least 2 edges per axis"},
+		{nil, []*Hist2D{NewHist2D("m", []float64{1, 0}, []float64{0, 1})}, "x: edges not increasing"},
+		{[]*Hist1D{good}, []*Hist2D{NewHist2D("a", []float64{0, 1}, []float64{0, 1})}, `name "a" used twice`},
+		{[]*Hist1D{NewHist1D("d//h", []float64{0, 1})}, nil, "bad histogram name"},
+		{[]*Hist1D{NewHist1D("/h", []float64{0, 1})}, nil, "bad histogram name"},
+		{[]*Hist1D{NewHist1D("d/", []float64{0, 1})}, nil, "bad histogram name"},
+		{[]*Hist1D{NewHist1D("h;1", []float64{0, 1})}, nil, "bad histogram name"},
 	} {
 		err := WriteFile(path, tc.h1, tc.h2)
 		if err == nil || !strings.Contains(err.Error(), tc.want) {
