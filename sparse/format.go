@@ -52,8 +52,9 @@ func formatErr(format string, args ...any) error {
 }
 
 // Save writes m to the file path atomically: it writes a temporary file
-// in the same directory, syncs it and renames it over path, so that path
-// holds either its old content or the complete new matrix.
+// in the same directory, syncs it, renames it over path and syncs the
+// directory, so that path holds either its old content or the complete
+// new matrix.
 func (m *Matrix) Save(path string) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
@@ -87,7 +88,17 @@ func (m *Matrix) Save(path string) (err error) {
 	if err = f.Close(); err != nil {
 		return err
 	}
-	return os.Rename(tmp, path)
+	if err = os.Rename(tmp, path); err != nil {
+		return err
+	}
+	// Sync the directory so that the rename survives a crash; some
+	// filesystems cannot sync directories, which is not an error of the
+	// file.
+	if d, derr := os.Open(dir); derr == nil {
+		d.Sync()
+		d.Close()
+	}
+	return nil
 }
 
 // EncodedSize returns the size in bytes of m in the file format.
