@@ -268,6 +268,9 @@ func TestAccumulateOrderIndependent(t *testing.T) {
 	checkAgainstDense(t, m, sw, sw2, 1e-12)
 }
 
+// TestAccumulateNegativeAndZero: negative and exactly cancelling cells
+// are kept and reported; the expected sums are plain arithmetic on the
+// entries.
 func TestAccumulateNegativeAndZero(t *testing.T) {
 	es := []entry{{0, 0, 2}, {0, 0, -3}, {1, 0, 1}, {1, 0, -1}, {2, 1, -0.5}, {0, 1, 1}}
 	m, rep := accumulateSerial(t, 3, 2, es, nil)
