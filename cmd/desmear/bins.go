@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"io/fs"
 	"math"
 	"strconv"
 	"strings"
@@ -61,7 +60,7 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 	if err != nil {
 		return err
 	}
-	if o.locateSet || o.locate != "" {
+	if o.locateSet {
 		if x, err = parsePoint(s, o.locate); err != nil {
 			return err
 		}
@@ -77,16 +76,12 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 			return inputErr(fmt.Errorf("point %s is outside every bin of %s: no region has an in-range bin or a switched-on flow bin containing it", formatPoint(s, x), path))
 		}
 		if o.format == "csv" {
-			err = writeBinsCSV(w, s, []int{b})
+			err = writeBinsCSV(w, s, b, b+1)
 		} else {
 			fmt.Fprintf(w, "%d %s\n", b, s.Label(b))
 		}
 	} else if o.format == "csv" {
-		all := make([]int, s.Len())
-		for i := range all {
-			all[i] = i
-		}
-		err = writeBinsCSV(w, s, all)
+		err = writeBinsCSV(w, s, 0, s.Len())
 	} else {
 		err = writeBinsTable(w, s, path)
 	}
@@ -100,20 +95,21 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 }
 
 // readScheme reads a scheme file, classifying bad content and a missing or
-// unreadable file as bad input (as every command does) and any other
-// failure to read as an input/output failure.
+// unreadable file as bad input (as every command does, see openInput) and
+// any other failure to read as an input/output failure.
 func readScheme(path string) (*binning.Scheme, error) {
-	s, err := binning.ReadFile(path)
+	f, err := openInput("binning scheme", path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	s, err := binning.Decode(f, path)
 	var be *binning.Error
 	switch {
 	case err == nil:
 		return s, nil
 	case errors.As(err, &be):
 		return nil, inputErr(err)
-	case errors.Is(err, fs.ErrNotExist):
-		return nil, inputErr(fmt.Errorf("binning scheme %s does not exist", path))
-	case errors.Is(err, fs.ErrPermission):
-		return nil, inputErr(fmt.Errorf("binning scheme %s cannot be read: permission denied", path))
 	}
 	return nil, ioErr(fmt.Errorf("binning scheme: %w", err))
 }
@@ -186,8 +182,8 @@ func binName(i int) string {
 	return strconv.Itoa(i)
 }
 
-// writeBinsCSV writes the header and one row per listed global bin.
-func writeBinsCSV(w io.Writer, s *binning.Scheme, bins []int) error {
+// writeBinsCSV writes the header and one row per global bin lo..hi-1.
+func writeBinsCSV(w io.Writer, s *binning.Scheme, lo, hi int) error {
 	names := s.AxisNames()
 	cw := csv.NewWriter(w)
 	head := []string{"index", "region", "flow"}
@@ -199,7 +195,7 @@ func writeBinsCSV(w io.Writer, s *binning.Scheme, bins []int) error {
 		return err
 	}
 	row := make([]string, len(head))
-	for _, g := range bins {
+	for g := lo; g < hi; g++ {
 		b := s.Bin(g)
 		clear(row)
 		row[0], row[1], row[2] = strconv.Itoa(g), b.RegionName, strconv.FormatBool(b.Flow)
@@ -255,12 +251,8 @@ func writeBinsTable(w io.Writer, s *binning.Scheme, path string) error {
 	return tw.Flush()
 }
 
-func span(lo, hi int) string {
-	if hi <= lo {
-		return "none"
-	}
-	return fmt.Sprintf("%d-%d", lo, hi-1)
-}
+// span shows the non-empty range lo..hi-1.
+func span(lo, hi int) string { return fmt.Sprintf("%d-%d", lo, hi-1) }
 
 func spanIf(lo, hi int) string {
 	if hi <= lo {

@@ -124,6 +124,7 @@ func TestBinsErrors(t *testing.T) {
 		{[]string{scheme2d, "--locate", ""}, exitUsage, "axis=value"},
 		{[]string{filepath.Join(dir, "missing.yaml")}, exitInput, "missing.yaml"}, // a missing input file is bad input, as for every command
 		{[]string{bad}, exitInput, bad + ":4:"},
+		{[]string{dir}, exitIO, "binning scheme: "}, // a folder opens but cannot be read
 	}
 	for _, c := range cases {
 		code, out, errs := runBinsCLI(t, c.args...)
