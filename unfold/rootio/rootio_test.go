@@ -491,6 +491,10 @@ func TestReadProfileRefused(t *testing.T) {
 	}
 }
 
+// TestFillCells checks Fill's cell choice against ROOT's bin rule
+// (TAxis::FindBin: a bin holds [low, high), below the first edge is the
+// underflow, at or above the last edge and NaN the overflow; from memory of
+// ROOT's TAxis source).
 func TestFillCells(t *testing.T) {
 	h := NewHist1D("h", []float64{0, 1, 2})
 	for _, x := range []float64{-1, 0, 0.5, 1, 2, 3, math.NaN(), math.Inf(-1), math.Inf(1)} {
