@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"os"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/compress/snappy"
@@ -75,7 +76,25 @@ func writeTree(ctx context.Context, path, title string, vars []rtree.WriteVar, n
 		f.Close()
 		return err
 	}
-	return f.Close()
+	if err := f.Close(); err != nil {
+		return err
+	}
+	return syncFile(path)
+}
+
+// syncFile flushes the file path to disk. groot writes through a file of
+// its own, so its output is synced after it is closed, as
+// output.WriteSynced does for the other files of the folder.
+func syncFile(path string) error {
+	f, err := os.OpenFile(path, os.O_WRONLY, 0)
+	if err != nil {
+		return err
+	}
+	err = f.Sync()
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	return err
 }
 
 // writeSimulationROOT writes the simulation as a TTree.
