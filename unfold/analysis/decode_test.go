@@ -2,6 +2,7 @@ package analysis
 
 import (
 	"errors"
+	"fmt"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -201,4 +202,17 @@ func FuzzDecode(f *testing.F) {
 			t.Fatal("no error but no binning")
 		}
 	})
+}
+
+// A YAML syntax error names the file and the line the YAML library
+// reports, without the library's "yaml: line N:" prefix.
+func TestSyntaxErrorLine(t *testing.T) {
+	_, err := Decode([]byte("title: x\nunfolding:\n  iterations: [3\n"), "testdata/bad.yaml")
+	var e *Error
+	if !errors.As(err, &e) || e.Line == 0 || strings.Contains(e.Msg, "line") || strings.HasPrefix(e.Msg, "yaml:") {
+		t.Fatalf("got %#v, want an *Error with the line apart from the message", err)
+	}
+	if want := fmt.Sprintf("testdata/bad.yaml:%d: ", e.Line); !strings.HasPrefix(err.Error(), want) {
+		t.Errorf("got %q, want it to start with %q", err, want)
+	}
 }

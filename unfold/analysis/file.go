@@ -281,9 +281,8 @@ func translate(file string, err error, root *yaml.Node) error {
 		}
 		return es
 	}
-	msg := err.Error()
-	e := &Error{File: file, Msg: strings.TrimPrefix(msg, "yaml: "), Err: err}
-	if sm := regexp.MustCompile(`^yaml: line (\d+): (.*)$`).FindStringSubmatch(msg); sm != nil {
+	e := &Error{File: file, Msg: strings.TrimPrefix(err.Error(), "yaml: "), Err: err}
+	if sm := lineRe.FindStringSubmatch(e.Msg); sm != nil {
 		e.Line, _ = strconv.Atoi(sm[1])
 		e.Msg = sm[2]
 	}

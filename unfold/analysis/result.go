@@ -5,6 +5,7 @@ import (
 	"encoding/csv"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"path/filepath"
 	"strconv"
@@ -176,7 +177,6 @@ func finitePtrs(v []float64) []*float64 {
 	out := make([]*float64, len(v))
 	for i, x := range v {
 		if !math.IsNaN(x) && !math.IsInf(x, 0) {
-			x := x
 			out[i] = &x
 		}
 	}
@@ -228,8 +228,8 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 	doc.TruthBinning = output.DescribeBinning(a.Truth, a.TruthFile)
 	doc.RecoBinning = output.DescribeBinning(a.Reco, a.RecoFile)
 	doc.Analysis = AnalysisInfo{File: a.File, Title: a.Title}
-	doc.Purity = finitePtrs(out.Response.Purity(nil))
-	doc.Stability = finitePtrs(out.Response.Stability(nil))
+	pur, stab := out.Response.Purity(nil), out.Response.Stability(nil)
+	doc.Purity, doc.Stability = finitePtrs(pur), finitePtrs(stab)
 	doc.Density, doc.DensityUncertainty = a.densities(doc.Estimate, doc.Uncertainty)
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = out.Response.Summary
@@ -262,7 +262,6 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 		out.Files = append(out.Files, output.CSVFile)
 	}
 	if a.Output.Has("regions") {
-		pur, stab := out.Response.Purity(nil), out.Response.Stability(nil)
 		for r, reg := range a.Truth.Regions() {
 			name := "region-" + reg.Name() + ".csv"
 			w, err := f.Create(name)
@@ -296,15 +295,11 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 	return nil
 }
 
-type csvWriter interface {
-	Write(p []byte) (int, error)
-}
-
 // writeRegion writes the in-range bins of region r: global index, the
 // edges of each axis of the region, the volume, the estimate and its
 // uncertainty as counts and as a density, the efficiency, purity and
 // stability.
-func writeRegion(w csvWriter, s *binning.Scheme, r int, doc *Document, pur, stab []float64) error {
+func writeRegion(w io.Writer, s *binning.Scheme, r int, doc *Document, pur, stab []float64) error {
 	cw := csv.NewWriter(w)
 	reg := s.Regions()[r]
 	header := []string{"index"}

@@ -321,12 +321,12 @@ type Expected struct {
 func (a *Analysis) Background(ctx context.Context, r *fill.Response, opt *Options) (*Expected, error) {
 	nr := a.Reco.Len()
 	e := &Expected{Values: make([]float64, nr), Variance: make([]float64, nr)}
-	any := false
+	nonzero := false
 	if a.Unfolding.Fakes == "background" {
 		for i := range e.Values {
 			e.Values[i] += r.Fakes[i]
 			e.Variance[i] += r.FakesSumW2[i]
-			any = any || r.Fakes[i] != 0
+			nonzero = nonzero || r.Fakes[i] != 0
 		}
 	}
 	for _, b := range a.Backgrounds {
@@ -360,10 +360,10 @@ func (a *Analysis) Background(ctx context.Context, r *fill.Response, opt *Option
 			}
 			u := b.ScaleUncertainty * val[i]
 			e.Variance[i] += u * u
-			any = any || val[i] != 0
+			nonzero = nonzero || val[i] != 0
 		}
 	}
-	if !any {
+	if !nonzero {
 		return nil, nil
 	}
 	for i, v := range e.Values {
