@@ -82,7 +82,7 @@ func (c *CSV) Close() error { return nil }
 // Read implements Source.
 func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error {
 	checkBatchSize(batchSize)
-	idx, err := checkRequest(c.path, c.header, columns, "column")
+	idx, err := checkRequest(c.path, c.header, columns)
 	if err != nil {
 		return err
 	}

@@ -110,18 +110,16 @@ func Open(path string, opt Options) (Source, error) {
 
 // checkRequest validates a list of requested columns against the available
 // ones and returns their indices.
-func checkRequest(path string, have []string, want []string, what string) ([]int, error) {
+func checkRequest(path string, have []string, want []string) ([]int, error) {
 	idx := make(map[string]int, len(have))
 	for i, n := range have {
-		if _, dup := idx[n]; !dup {
-			idx[n] = i
-		}
+		idx[n] = i
 	}
 	out := make([]int, len(want))
 	for i, n := range want {
 		j, ok := idx[n]
 		if !ok {
-			return nil, fmt.Errorf("events: %s: no %s %q%s", path, what, n, listHint(have))
+			return nil, fmt.Errorf("events: %s: no column %q%s", path, n, listHint(have))
 		}
 		out[i] = j
 	}
