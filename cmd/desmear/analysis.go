@@ -181,8 +181,7 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	fmt.Fprintf(w, "iterations: %d%s\n", res.Iterations, conv)
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
-	const maxRows = 30
-	if n := a.Truth.InRange(); n > maxRows {
+	if n := a.Truth.InRange(); n > maxTableRows {
 		file := output.JSONFile
 		if slices.Contains(out.Files, output.CSVFile) {
 			file = output.CSVFile

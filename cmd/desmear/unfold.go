@@ -513,6 +513,11 @@ func writeResultFolder(ctx context.Context, dir string, force bool, write func(f
 	return nil
 }
 
+// maxTableRows is the largest number of truth bins whose per-bin table
+// "desmear unfold" prints (in both modes); larger results point to the
+// result files.
+const maxTableRows = 30
+
 // printSummary prints what was done to stdout, with a per-bin table for
 // small problems, and notes to stderr.
 func printSummary(g *globalOptions, dir string, r *output.Result, truth *binning.Scheme) {
@@ -532,8 +537,7 @@ func printSummary(g *globalOptions, dir string, r *output.Result, truth *binning
 	}
 	w := g.stdout
 	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) in %s\n", r.RecoBins, r.TruthBins, det, stop)
-	const maxRows = 30
-	if r.TruthBins <= maxRows {
+	if r.TruthBins <= maxTableRows {
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 		head := "bin\testimate\t"
 		if r.Uncertainty != nil {
