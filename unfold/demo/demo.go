@@ -87,9 +87,9 @@ func mustScheme(text, name string) *binning.Scheme {
 
 // ExpectedTruth returns the expected number of generated zetons of the
 // pseudo-data of cfg in each global bin of the truth scheme s, whose axes
-// must be named "y" (absolute rapidity) and "pt" (GeV). Flow bins get the
-// expectation over their open range, clipped to the generated and
-// fiducial region.
+// must be named "y" (absolute rapidity) and "pt" (GeV); another axis
+// name panics. Flow bins get the expectation over their open range,
+// clipped to the generated and fiducial region.
 func ExpectedTruth(s *binning.Scheme, cfg Config) []float64 {
 	out := make([]float64, s.Len())
 	lz := cfg.dataZetons()

@@ -65,6 +65,8 @@
 //
 // Errors: a size out of range, an existing output folder and file-system
 // problems are returned as errors; a cancelled context stops the
-// generation and leaves nothing behind. The package panics only if its
-// own built-in binnings fail to decode (a bug).
+// generation and leaves nothing behind. The package panics only on
+// programmer errors: its own built-in binnings failing to decode (a
+// bug), or ExpectedTruth given a scheme with an axis other than y and
+// pt.
 package demo
