@@ -5,6 +5,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strings"
 	"testing"
 )
 
@@ -56,5 +57,77 @@ func TestBundleRoundTrip(t *testing.T) {
 	os.WriteFile(p, data[:20], 0o644)
 	if _, _, err := LoadResponse(dir); err == nil {
 		t.Error("truncated file loaded")
+	}
+}
+
+// Folders that are not bundles of this format are refused, with
+// messages naming the file.
+func TestBundleRefusals(t *testing.T) {
+	b := NewBuilder(handTruth, handReco)
+	if _, err := b.Add(context.Background(), handSimulation(4), nil); err != nil {
+		t.Fatal(err)
+	}
+	r, err := b.Response()
+	if err != nil {
+		t.Fatal(err)
+	}
+	tmp := t.TempDir()
+
+	// Replacing a folder that holds no bundle is refused, and it is left
+	// as it was.
+	plain := filepath.Join(tmp, "plain")
+	os.Mkdir(plain, 0o755)
+	os.WriteFile(filepath.Join(plain, "notes.txt"), []byte("keep"), 0o644)
+	if err := r.Save(plain, BundleInfo{}, true); err == nil || !strings.Contains(err.Error(), "not a response bundle") {
+		t.Errorf("replacing a plain folder: got %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(plain, "notes.txt")); err != nil {
+		t.Errorf("the plain folder was changed: %v", err)
+	}
+	if _, _, err := LoadResponse(plain); err == nil || !strings.Contains(err.Error(), "is not a response bundle (no response.json") {
+		t.Errorf("loading a plain folder: got %v", err)
+	}
+
+	dir := filepath.Join(tmp, "resp")
+	if err := r.Save(dir, BundleInfo{}, false); err != nil {
+		t.Fatal(err)
+	}
+	good, err := os.ReadFile(filepath.Join(dir, bundleJSON))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct{ old, new, want string }{
+		{`"truth_bins": 4`, `"truth_bins": "4"`, "response.json: json: cannot unmarshal"},
+		{`"format_version": 1`, `"format_version": 2`, `format "desmear-response" version 2, want "desmear-response" version 1`},
+		{`"reco_bins": 3`, `"reco_bins": 4`, "vector lengths do not match 4 truth and 4 reco bins"},
+	} {
+		bad := strings.Replace(string(good), c.old, c.new, 1)
+		if bad == string(good) {
+			t.Fatalf("%q not in response.json", c.old)
+		}
+		os.WriteFile(filepath.Join(dir, bundleJSON), []byte(bad), 0o644)
+		if _, _, err := LoadResponse(dir); err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s → %s: got %v, want %q", c.old, c.new, err, c.want)
+		}
+	}
+
+	// A matrix of other dimensions than the vectors.
+	os.WriteFile(filepath.Join(dir, bundleJSON), good, 0o644)
+	b2 := NewBuilder(handTruth, handTruth)
+	if _, err := b2.Add(context.Background(), handSimulation(4), nil); err != nil {
+		t.Fatal(err)
+	}
+	r2, err := b2.Response()
+	if err != nil {
+		t.Fatal(err)
+	}
+	other := filepath.Join(tmp, "other")
+	if err := r2.Save(other, BundleInfo{}, false); err != nil {
+		t.Fatal(err)
+	}
+	m, _ := os.ReadFile(filepath.Join(other, bundleMatrix))
+	os.WriteFile(filepath.Join(dir, bundleMatrix), m, 0o644)
+	if _, _, err := LoadResponse(dir); err == nil || !strings.Contains(err.Error(), "a 4×4 matrix, want 3×4") {
+		t.Errorf("matrix of other size: got %v", err)
 	}
 }

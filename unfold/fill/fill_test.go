@@ -467,3 +467,46 @@ func mustScheme(t *testing.T, src string) *binning.Scheme {
 	}
 	return s
 }
+
+// Problems met while building a response are errors that say where.
+func TestBuilderErrors(t *testing.T) {
+	// A non-finite weight names the sample and the event.
+	sim := handSimulation(4)
+	cols := make([][]float64, 5)
+	for _, ev := range handEvents {
+		for c := range cols {
+			cols[c] = append(cols[c], ev[c])
+		}
+	}
+	cols[2][6] = math.Inf(1)
+	sim.Read = memory(cols, 4)
+	_, err := NewBuilder(handTruth, handReco).Add(context.Background(), sim, &Options{Workers: 2})
+	var ee *EventError
+	if !errors.As(err, &ee) || ee.Sample != "hand" || ee.Event != 6 {
+		t.Fatalf("infinite weight: got %v, want an EventError for event 6 of hand", err)
+	}
+	if want := "hand: event 6: weight is +Inf"; err.Error() != want {
+		t.Errorf("message %q, want %q", err, want)
+	}
+
+	// Samples with and without reco observables for the truth axes
+	// cannot be mixed: purity and stability would miss events.
+	b := NewBuilder(handTruth, handReco)
+	if _, err := b.Add(context.Background(), handSimulation(4), nil); err != nil {
+		t.Fatal(err)
+	}
+	other := handSimulation(4)
+	other.Name, other.RecoInTruth = "other", nil
+	if _, err := b.Add(context.Background(), other, nil); err == nil || !strings.Contains(err.Error(), "other: every simulated sample") {
+		t.Errorf("mixed samples: got %v", err)
+	}
+
+	// A reader that hands over fewer values than the batch length.
+	short := handSimulation(4)
+	short.Read = func(ctx context.Context, fn func(int64, int, [][]float64) error) error {
+		return fn(0, 3, [][]float64{{0.5, 0.5, 0.5}, {0.5, 0.5}, {1, 1, 1}, {1, 1, 1}, {1, 1, 1}})
+	}
+	if _, err := NewBuilder(handTruth, handReco).Add(context.Background(), short, nil); err == nil || !strings.Contains(err.Error(), "column 1 with 2 values for a batch of 3") {
+		t.Errorf("short column: got %v", err)
+	}
+}
