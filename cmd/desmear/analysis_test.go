@@ -12,9 +12,11 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/fill"
 	"github.com/desmear/desmear/unfold/tables"
 )
 
@@ -328,5 +330,34 @@ func TestResponseTargetRefused(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(filepath.Dir(path), "response")); err == nil {
 		t.Error("a response bundle was written although the tables folder was refused")
+	}
+}
+
+// A folder that appears at the tables path while the response is built
+// (after the first check) is not replaced either: writeTables checks
+// again before renaming, and leaves no temporary folder behind.
+func TestWriteTablesChecksAgain(t *testing.T) {
+	parent := t.TempDir()
+	dir := filepath.Join(parent, "tables")
+	if err := os.Mkdir(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "thesis.tex"), []byte("keep"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	m, err := sparse.NewMatrix(1, 1, []int{0, 1}, []int{0}, []float64{2}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := &fill.Response{Migrations: m, Generated: []float64{3}, GeneratedSumW2: []float64{3}, Fakes: []float64{0}, FakesSumW2: []float64{0}}
+	err = writeTables(dir, r, nil, true)
+	if err == nil || !strings.Contains(err.Error(), "does not hold a response.csv") {
+		t.Errorf("writeTables over a foreign folder: %v", err)
+	}
+	if names, _ := os.ReadDir(parent); len(names) != 1 {
+		t.Errorf("beside the folder: %v", names)
+	}
+	if b, err := os.ReadFile(filepath.Join(dir, "thesis.tex")); err != nil || string(b) != "keep" {
+		t.Errorf("the folder was touched: %v %q", err, b)
 	}
 }

@@ -150,7 +150,9 @@ func checkTarget(path string, force bool, marker string) error {
 
 // writeTables writes the plain tables of the response into dir,
 // atomically (a temporary sibling folder renamed into place). runResponse
-// has checked that an existing dir may be replaced.
+// has checked that an existing dir may be replaced; the check is made
+// again before the rename, as the response build can take long enough
+// for a folder to appear at dir meanwhile.
 func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace bool) (err error) {
 	tmp, err := output.Temp(dir)
 	if err != nil {
@@ -177,6 +179,9 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 		val, vr = bkg.Values, bkg.Variance
 	}
 	if err := write("background.csv", func(w io.Writer) error { return tables.WriteVector(w, tables.Background, val, vr) }); err != nil {
+		return err
+	}
+	if err := checkTarget(dir, replace, "response.csv"); err != nil {
 		return err
 	}
 	return output.Install(tmp, dir, replace)
