@@ -44,5 +44,8 @@
 //
 // Errors from the underlying reader (a failing disk, for example) are
 // returned as they are, wrapped with the file name, and are not *Error
-// values. Nothing in this package panics on any input.
+// values. Nothing in this package panics on any input; it panics only
+// for programming errors: an invalid Kind, Assemble without the
+// response, generated or data table, or WriteVector with a second
+// column of the wrong length or for the prior.
 package tables
