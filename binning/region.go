@@ -220,23 +220,21 @@ func (r *Region) Flows() int { return len(r.flowExt) }
 // that its bins form a full grid (as a ROOT TH1D/TH2D/TH3D would).
 func (r *Region) Rectangular() bool { return r.rect }
 
-// find locates the point whose coordinate on axis k is x[pos[k]]. It
-// returns the in-range cell, or -1 and the position of the flow cell in
-// the region's flow list (only if flows is true; -1 otherwise), or -1, -1
-// if the point needs a flow bin that is switched off. No coordinate may
-// be NaN.
-func (r *Region) find(x []float64, pos []int, flows bool) (int, int) {
+// find returns the in-range cell of the point whose coordinate on axis k
+// is x[pos[k]], or -1 if it is outside the in-range bins (see findFlow).
+// No coordinate may be NaN.
+func (r *Region) find(x []float64, pos []int) int {
 	if r.rect {
 		c := 0
 		for k := range r.lv {
 			l := &r.lv[k]
 			i := l.find.find(x[pos[k]])
 			if uint(i) >= uint(l.n) {
-				return -1, r.flowIf(flows, x, pos)
+				return -1
 			}
 			c = c*l.n + i
 		}
-		return c, -1
+		return c
 	}
 	c, q, ip := 0, 0, 0
 	for k := range r.lv {
@@ -246,7 +244,7 @@ func (r *Region) find(x []float64, pos []int, flows bool) (int, int) {
 			f := &l.finds[ip]
 			i := f.find(v)
 			if i < 0 || i >= f.n {
-				return -1, r.flowIf(flows, x, pos)
+				return -1
 			}
 			c = q*l.total() + l.cum[ip] + i
 			ip = i
@@ -254,20 +252,13 @@ func (r *Region) find(x []float64, pos []int, flows bool) (int, int) {
 		}
 		i := l.find.find(v)
 		if i < 0 || i >= l.n {
-			return -1, r.flowIf(flows, x, pos)
+			return -1
 		}
 		q = c
 		c = c*l.n + i
 		ip = i
 	}
-	return c, -1
-}
-
-func (r *Region) flowIf(flows bool, x []float64, pos []int) int {
-	if !flows || len(r.flowExt) == 0 {
-		return -1
-	}
-	return r.findFlow(x, pos)
+	return c
 }
 
 // findFlow returns the position in the flow list of the point, known to

@@ -141,18 +141,19 @@ func (s *Scheme) Locate(x []float64) int {
 			return Outside
 		}
 	}
-	fr, fp := -1, -1
 	for r, reg := range s.regions {
-		c, p := reg.find(x, s.pos[r], fr < 0)
-		if c >= 0 {
+		if c := reg.find(x, s.pos[r]); c >= 0 {
 			return s.inOff[r] + c
 		}
-		if p >= 0 && fr < 0 {
-			fr, fp = r, p
-		}
 	}
-	if fr >= 0 {
-		return s.nIn + s.flowOff[fr] + fp
+	// In no region's in-range bins: the first switched-on flow bin.
+	for r, reg := range s.regions {
+		if len(reg.flowExt) == 0 {
+			continue
+		}
+		if p := reg.findFlow(x, s.pos[r]); p >= 0 {
+			return s.nIn + s.flowOff[r] + p
+		}
 	}
 	return Outside
 }
@@ -344,7 +345,7 @@ func (s *Scheme) neighbour(r, k int, st *[MaxAxes]int, x *[MaxAxes]float64, dir 
 	}
 	y := *x
 	y[k] = 0.5 * (e[i] + e[i+1])
-	c, _ := reg.find(y[:len(reg.axes)], reg.ident, false)
+	c := reg.find(y[:len(reg.axes)], reg.ident)
 	if c < 0 {
 		return -1
 	}
