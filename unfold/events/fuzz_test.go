@@ -4,6 +4,7 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -24,6 +25,9 @@ func FuzzCSV(f *testing.F) {
 		}
 		src, err := OpenCSV(path)
 		if err != nil {
+			if !strings.Contains(err.Error(), path) {
+				t.Fatalf("OpenCSV error does not name the file: %v", err)
+			}
 			return
 		}
 		n := 0
@@ -36,6 +40,8 @@ func FuzzCSV(f *testing.F) {
 			}
 			return nil
 		})
-		_ = err
+		if err != nil && !strings.Contains(err.Error(), path) {
+			t.Fatalf("Read error does not name the file: %v", err)
+		}
 	})
 }
