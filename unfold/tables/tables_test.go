@@ -326,3 +326,23 @@ func FuzzReadResponse(f *testing.F) {
 		}
 	})
 }
+
+// Programming errors panic rather than return an error value.
+func TestPanics(t *testing.T) {
+	for name, f := range map[string]func(){
+		"ReadVector invalid Kind":    func() { ReadVector(strings.NewReader("truth,value\n"), "v.csv", Kind(7)) },
+		"WriteVector invalid Kind":   func() { WriteVector(&bytes.Buffer{}, Kind(-1), nil, nil) },
+		"WriteVector short err2":     func() { WriteVector(&bytes.Buffer{}, Data, []float64{1, 2}, []float64{1}) },
+		"WriteVector err2 for prior": func() { WriteVector(&bytes.Buffer{}, Prior, []float64{1}, []float64{1}) },
+		"Assemble without data":      func() { (&Set{Response: &Response{}, Generated: &Vector{}}).Assemble(Sizes{}) },
+	} {
+		t.Run(name, func(t *testing.T) {
+			defer func() {
+				if recover() == nil {
+					t.Error("no panic")
+				}
+			}()
+			f()
+		})
+	}
+}
