@@ -37,3 +37,14 @@ func TestByteSize(t *testing.T) {
 		}
 	}
 }
+
+// Names and values of different lengths are a programming error.
+func TestChoicePanics(t *testing.T) {
+	defer func() {
+		if recover() == nil {
+			t.Error("NewChoice with 2 names and 1 value did not panic")
+		}
+	}()
+	var v int
+	NewChoice(&v, 0, []string{"a", "b"}, []int{1})
+}
