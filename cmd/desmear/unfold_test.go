@@ -569,3 +569,30 @@ func TestUnfoldSizesBeyondMemoryLimit(t *testing.T) {
 		t.Errorf("output folder %s left behind", out)
 	}
 }
+
+// The summary says how the iteration stopped, and the notes on stderr
+// report clipped reco bins and estimated (not exact) uncertainties.
+func TestUnfoldSummaryNotes(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), maps(oracleD, map[string]string{"b.csv": "reco,value\n3,100\n"}))
+	for _, c := range []struct {
+		name   string
+		extra  []string
+		stdout string
+		stderr string
+	}{
+		{"converged", []string{"--stop-chi2", "1e6"}, "(chi-square below 1e+06)", ""},
+		{"not converged", []string{"--stop-chi2", "1e-300", "--max-iterations", "2"}, "2 iterations (maximum reached", ""},
+		// Background 100 above the 87 counts of reco bin 3.
+		{"clipped", []string{"--background", filepath.Join(dir, "b.csv"), "--background-mode", "subtract"}, "", "in 1 reco bins the data minus the background was negative"},
+		{"probes", []string{"--diagonal-method", "probes", "--probes", "20"}, "", "uncertainties estimated with 20 probes"},
+		{"toys", []string{"--diagonal-method", "toys", "--toys", "20"}, "", "uncertainties estimated with 20 toys"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			out := filepath.Join(t.TempDir(), "result")
+			code, stdout, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), c.extra...)...)
+			if code != exitOK || !strings.Contains(stdout, c.stdout) || !strings.Contains(stderr, c.stderr) {
+				t.Errorf("exit %d; stdout %q lacks %q or stderr %q lacks %q", code, stdout, c.stdout, stderr, c.stderr)
+			}
+		})
+	}
+}
