@@ -587,3 +587,29 @@ func TestNegativeGeneratedPlaced(t *testing.T) {
 		t.Errorf("got %v, want a message containing %q", err, want)
 	}
 }
+
+// A bad event is reported at the key of the file it comes from, with the
+// events file and the event's position; a cancelled run returns the
+// context's error unchanged.
+func TestEventErrorPlaced(t *testing.T) {
+	dir := t.TempDir()
+	sim := simEvents(2000, 5)
+	sim[2][1234] = math.NaN()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, sim)
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(500, 6)[1]})
+	a, err := Decode([]byte(strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv").Replace(analysisTemplate)), filepath.Join(dir, "a.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	want := fmt.Sprintf("%s:17: simulation[0]: %s: event 1234: weight is NaN", filepath.Join(dir, "a.yaml"), filepath.Join(dir, "sim.csv"))
+	var e *Error
+	if !errors.As(err, &e) || err.Error() != want {
+		t.Errorf("got %v, want %q", err, want)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := a.Run(ctx, nil, false); !errors.Is(err, context.Canceled) || errors.As(err, &e) {
+		t.Errorf("cancelled: got %T %v, want context.Canceled unwrapped", err, err)
+	}
+}
