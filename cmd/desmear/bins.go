@@ -55,34 +55,32 @@ func runBins(g *globalOptions, o *binsOptions, path string) error {
 	if o.format != "table" && o.format != "csv" {
 		return usagef("--format %q: use table or csv", o.format)
 	}
-	var x []float64
 	s, err := readScheme(path)
 	if err != nil {
 		return err
 	}
+	lo, hi := 0, s.Len() // the bins to print
 	if o.locateSet {
-		if x, err = parsePoint(s, o.locate); err != nil {
+		x, err := parsePoint(s, o.locate)
+		if err != nil {
 			return err
 		}
-	}
-	w := bufio.NewWriter(g.stdout)
-	if x != nil {
 		b := s.Locate(x)
 		if b == binning.Outside {
-			fmt.Fprintf(w, "outside\n")
-			if err := w.Flush(); err != nil {
+			if _, err := io.WriteString(g.stdout, "outside\n"); err != nil {
 				return ioErr(err)
 			}
 			return inputErr(fmt.Errorf("point %s is outside every bin of %s: no region has an in-range bin or a switched-on flow bin containing it", formatPoint(s, x), path))
 		}
-		if o.format == "csv" {
-			err = writeBinsCSV(w, s, b, b+1)
-		} else {
-			fmt.Fprintf(w, "%d %s\n", b, s.Label(b))
-		}
-	} else if o.format == "csv" {
-		err = writeBinsCSV(w, s, 0, s.Len())
-	} else {
+		lo, hi = b, b+1
+	}
+	w := bufio.NewWriter(g.stdout)
+	switch {
+	case o.format == "csv":
+		err = writeBinsCSV(w, s, lo, hi)
+	case o.locateSet:
+		_, err = fmt.Fprintf(w, "%d %s\n", lo, s.Label(lo))
+	default:
 		err = writeBinsTable(w, s, path)
 	}
 	if err == nil {

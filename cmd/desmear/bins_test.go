@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/csv"
+	"errors"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -57,7 +58,7 @@ func TestBinsCSV(t *testing.T) {
 		t.Errorf("header %q, want %q", strings.Join(rows[0], ","), head)
 	}
 	for i, r := range rows[1:] {
-		if r[0] != itoa(i) {
+		if r[0] != strconv.Itoa(i) {
 			t.Fatalf("row %d has index %s", i+1, r[0])
 		}
 	}
@@ -74,8 +75,6 @@ func TestBinsCSV(t *testing.T) {
 		t.Errorf("first sideband row %q", got)
 	}
 }
-
-func itoa(i int) string { return strconv.Itoa(i) }
 
 func TestBinsLocate(t *testing.T) {
 	code, out, errs := runBinsCLI(t, scheme2d, "--locate", "y=1.2,pt=35")
@@ -152,6 +151,27 @@ func TestArgumentErrorsSayUsage(t *testing.T) {
 		code, out, errs := runCLI(t, context.Background(), c.args...)
 		if code != exitUsage || !strings.Contains(errs, c.want) || out != "" {
 			t.Errorf("desmear %v: exit %d, stdout %q, stderr %q; want exit %d and %q", c.args, code, out, errs, exitUsage, c.want)
+		}
+	}
+}
+
+// failWriter fails every write, as a full disk or a closed pipe does.
+type failWriter struct{}
+
+func (failWriter) Write([]byte) (int, error) { return 0, errors.New("no space left on device") }
+
+// A failure to write the output is an input/output failure, whatever is printed.
+func TestBinsWriteFailure(t *testing.T) {
+	for _, args := range [][]string{
+		{scheme2d},
+		{scheme2d, "--format", "csv"},
+		{scheme2d, "--locate", "y=1.2,pt=35"},
+		{scheme2d, "--locate", "y=-1,pt=35"}, // outside: the "outside" line fails first
+	} {
+		var stderr strings.Builder
+		code := run(context.Background(), append([]string{"bins"}, args...), strings.NewReader(""), failWriter{}, &stderr)
+		if code != exitIO || !strings.Contains(stderr.String(), "no space left") {
+			t.Errorf("bins %v to a failing stdout: exit %d, stderr %q; want exit %d", args, code, stderr.String(), exitIO)
 		}
 	}
 }
