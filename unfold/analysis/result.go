@@ -149,8 +149,10 @@ func (a *Analysis) inputs(out *Outcome) ([]output.Input, error) {
 		return nil, err
 	}
 	if a.ResponseFile != "" {
-		if err := add("response", filepath.Join(a.ResponseFile, "response.json")); err != nil {
-			return nil, err
+		for _, name := range fill.BundleFiles() {
+			if err := add("response", filepath.Join(a.ResponseFile, name)); err != nil {
+				return nil, err
+			}
 		}
 	}
 	if out.ResponseInfo != nil {

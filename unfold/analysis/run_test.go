@@ -364,6 +364,25 @@ func TestSavedResponse(t *testing.T) {
 	if !slices.Equal(loaded.Result.Estimate, built.Result.Estimate) || !slices.Equal(loaded.Result.Uncertainty, built.Result.Uncertainty) {
 		t.Errorf("loaded response gives %v, built %v", loaded.Result.Estimate, built.Result.Estimate)
 	}
+	// The result records both files of the loaded bundle among its inputs,
+	// beside the simulation the bundle was built from.
+	var doc Document
+	if b, err := os.ReadFile(filepath.Join(loaded.Folder, "result.json")); err != nil || json.Unmarshal(b, &doc) != nil {
+		t.Fatalf("result.json: %v", err)
+	}
+	var bundle []string
+	sim := false
+	for _, in := range doc.Inputs {
+		switch in.Role {
+		case "response":
+			bundle = append(bundle, filepath.Base(in.Path))
+		case "simulation":
+			sim = true
+		}
+	}
+	if !slices.Equal(bundle, []string{"response.json", "migrations.dsm"}) || !sim {
+		t.Errorf("inputs %+v: want the bundle's response.json and migrations.dsm and the simulation", doc.Inputs)
+	}
 	other := strings.Replace(with, "edges: [0, 0.5, 1, 1.5, 2, 3]", "edges: [0, 0.5, 1, 2, 3]", 1)
 	c, err := Decode([]byte(other), filepath.Join(dir, "analysis.yaml"))
 	if err != nil {

@@ -31,6 +31,9 @@ const (
 	bundleMatrix  = "migrations.dsm"
 )
 
+// BundleFiles returns the names of the files of a response bundle.
+func BundleFiles() []string { return []string{bundleJSON, bundleMatrix} }
+
 // BundleInfo is the provenance stored with a response bundle.
 type BundleInfo struct {
 	// TruthScheme and RecoScheme identify the binning schemes the
