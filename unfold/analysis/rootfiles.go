@@ -57,7 +57,7 @@ func (a *Analysis) readHistogram() (*Measured, error) {
 		}
 		n := h.NBins()
 		for c := 0; c < n+2; c++ {
-			if err := a.put(m, h.SumW[c], h.SumW2[c], a.Reco.Global(0, rootCell(c, n))); err != nil {
+			if err := put(m, h.SumW[c], h.SumW2[c], a.Reco.Global(0, rootCell(c, n))); err != nil {
 				return nil, where(fmt.Errorf("%s cell %d: %v", d.Name, c, err))
 			}
 		}
@@ -74,7 +74,7 @@ func (a *Analysis) readHistogram() (*Measured, error) {
 		for iy := 0; iy < ny+2; iy++ {
 			for ix := 0; ix < nx+2; ix++ {
 				c := h.Index(ix, iy)
-				if err := a.put(m, h.SumW[c], h.SumW2[c], a.Reco.Global(0, rootCell(ix, nx), rootCell(iy, ny))); err != nil {
+				if err := put(m, h.SumW[c], h.SumW2[c], a.Reco.Global(0, rootCell(ix, nx), rootCell(iy, ny))); err != nil {
 					return nil, where(fmt.Errorf("%s cell (%d,%d): %v", d.Name, ix, iy, err))
 				}
 			}
@@ -87,7 +87,7 @@ func (a *Analysis) readHistogram() (*Measured, error) {
 	return m, nil
 }
 
-func (a *Analysis) put(m *Measured, w, w2 float64, g int) error {
+func put(m *Measured, w, w2 float64, g int) error {
 	if math.IsNaN(w) || math.IsInf(w, 0) || w < 0 {
 		return fmt.Errorf("content %v is not a count ≥ 0", w)
 	}

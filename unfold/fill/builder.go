@@ -98,7 +98,7 @@ type Response struct {
 	Summary Summary
 }
 
-// TruthBins and RecoBins return the sizes of the two schemes.
+// TruthBins returns the number of truth bins.
 func (r *Response) TruthBins() int { return len(r.Generated) }
 
 // RecoBins returns the number of reco bins.
