@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
-	"math"
 	"path/filepath"
 	"slices"
 	"sync"
@@ -196,10 +195,7 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		if res.Uncertainty != nil {
 			u = fmt.Sprintf("%.4g", res.Uncertainty[j])
 		}
-		e := "-"
-		if !math.IsNaN(res.Efficiency[j]) {
-			e = fmt.Sprintf("%.3f", res.Efficiency[j])
-		}
+		e := fmt.Sprintf("%.3f", res.Efficiency[j]) // 0 in bins not determined, never NaN
 		est := fmt.Sprintf("%.6g", res.Estimate[j])
 		if !res.Determined[j] {
 			est = "not determined"
