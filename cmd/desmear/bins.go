@@ -9,7 +9,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
-	"text/tabwriter"
+	"unicode/utf8"
 
 	"github.com/spf13/cobra"
 
@@ -229,24 +229,59 @@ func writeBinsTable(w io.Writer, s *binning.Scheme, path string) error {
 	fmt.Fprintf(w, "# %s: %d global bins, %d in range (0-%d) and %d flow\n", path, s.Len(), s.InRange(), s.InRange()-1, s.Len()-s.InRange())
 	fmt.Fprintf(w, "# axes: %s\n", strings.Join(axes, ", "))
 	fmt.Fprintf(w, "# regions: %s\n", strings.Join(regs, "; "))
-	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "index\tregion\tflow\t%s\tvolume\n", strings.Join(axes, "\t"))
-	cells := make([]string, len(names))
-	for g := 0; g < s.Len(); g++ {
+	// The columns are sized in a first pass over the bins, so that the
+	// table streams instead of being held whole (as text/tabwriter would).
+	head := append(append([]string{"index", "region", "flow"}, axes...), "volume")
+	row := make([]string, len(head))
+	fill := func(g int) {
 		b := s.Bin(g)
-		for j := range cells {
-			cells[j] = "."
+		row[0], row[1], row[2] = strconv.Itoa(g), b.RegionName, "-"
+		if b.Flow {
+			row[2] = "flow"
+		}
+		for j := range names {
+			row[3+j] = "."
 		}
 		for k, n := range b.Axes {
-			cells[s.AxisIndex(n)] = tableCell(b.Index[k], b.Low[k], b.High[k])
+			row[3+s.AxisIndex(n)] = tableCell(b.Index[k], b.Low[k], b.High[k])
 		}
-		flow := "-"
-		if b.Flow {
-			flow = "flow"
-		}
-		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\n", g, b.RegionName, flow, strings.Join(cells, "\t"), formatNumber(b.Volume))
+		row[len(row)-1] = formatNumber(b.Volume)
 	}
-	return tw.Flush()
+	width := make([]int, len(head)-1) // the last column is not padded
+	measure := func(cells []string) {
+		for j := range width {
+			width[j] = max(width[j], utf8.RuneCountInString(cells[j]))
+		}
+	}
+	measure(head)
+	for g := range s.Len() {
+		fill(g)
+		measure(row)
+	}
+	var line []byte
+	write := func(cells []string) error {
+		line = line[:0]
+		for j, c := range cells[:len(width)] {
+			line = append(line, c...)
+			for range width[j] - utf8.RuneCountInString(c) + 2 {
+				line = append(line, ' ')
+			}
+		}
+		line = append(line, cells[len(width)]...)
+		line = append(line, '\n')
+		_, err := w.Write(line)
+		return err
+	}
+	if err := write(head); err != nil {
+		return err
+	}
+	for g := range s.Len() {
+		fill(g)
+		if err := write(row); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 // span shows the non-empty range lo..hi-1.

@@ -4,11 +4,13 @@ import (
 	"context"
 	"encoding/csv"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+	"text/tabwriter"
 )
 
 // runBinsCLI runs desmear bins with args (see runCLI).
@@ -172,6 +174,57 @@ func TestBinsWriteFailure(t *testing.T) {
 		code := run(context.Background(), append([]string{"bins"}, args...), strings.NewReader(""), failWriter{}, &stderr)
 		if code != exitIO || !strings.Contains(stderr.String(), "no space left") {
 			t.Errorf("bins %v to a failing stdout: exit %d, stderr %q; want exit %d", args, code, stderr.String(), exitIO)
+		}
+	}
+}
+
+// The streamed table is aligned as text/tabwriter (Go standard library,
+// the reference) aligns the same cells, also with a region name and a
+// unit of non-ASCII letters, which count one column each.
+func TestBinsTableAlignment(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "micro.yaml")
+	yaml := "regions:\n  - name: entrée-sortie\n    axes:\n      - {name: r, unit: µm, edges: [0, 5, 12.5, 100], overflow: true}\n      - {name: z, unit: mm, edges: [-300, 0, 300]}\n"
+	if err := os.WriteFile(path, []byte(yaml), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, file := range []string{scheme2d, "../../testdata/scheme3d.yaml", path} {
+		code, out, errs := runBinsCLI(t, file)
+		if code != exitOK {
+			t.Fatalf("%s: exit %d, stderr %s", file, code, errs)
+		}
+		s, err := readScheme(file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var want strings.Builder
+		tw := tabwriter.NewWriter(&want, 0, 0, 2, ' ', 0)
+		head := []string{"index", "region", "flow"}
+		for _, n := range s.AxisNames() {
+			if u, _ := s.AxisUnit(n); u != "" {
+				n += " [" + u + "]"
+			}
+			head = append(head, n)
+		}
+		fmt.Fprintln(tw, strings.Join(append(head, "volume"), "\t"))
+		for g := range s.Len() {
+			b := s.Bin(g)
+			cells := []string{strconv.Itoa(g), b.RegionName, "-"}
+			if b.Flow {
+				cells[2] = "flow"
+			}
+			for range s.AxisNames() {
+				cells = append(cells, ".")
+			}
+			for k, n := range b.Axes {
+				cells[3+s.AxisIndex(n)] = tableCell(b.Index[k], b.Low[k], b.High[k])
+			}
+			fmt.Fprintln(tw, strings.Join(append(cells, formatNumber(b.Volume)), "\t"))
+		}
+		tw.Flush()
+		lines := strings.SplitAfterN(out, "\n", 4)
+		if len(lines) != 4 || lines[3] != want.String() {
+			t.Errorf("%s: table\n%s\nwant (text/tabwriter)\n%s", file, out, want.String())
 		}
 	}
 }
