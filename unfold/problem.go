@@ -53,8 +53,10 @@ type model struct {
 	clip   []int          // Subtract mode: reco bins where n − b < 0
 }
 
-// relative tolerance for Σ_i A_ij ≤ G_j.
-const efficiencyTolerance = 1e-9
+// EfficiencyTolerance is the relative allowance for rounding in the
+// check Σ_i A_ij ≤ G_j (an efficiency of at most 1): a truth bin whose
+// migrations exceed its generated count by more is an *InputError.
+const EfficiencyTolerance = 1e-9
 
 func checkVector(field string, v []float64, n int, reco bool, optional bool) error {
 	if v == nil && optional {
@@ -141,7 +143,7 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 				errs[b] = inputErr("Generated", -1, j, "truth bin has migrations (Σ = %v) but no generated count", sum)
 				return
 			}
-			if sum > g*(1+efficiencyTolerance) {
+			if sum > g*(1+EfficiencyTolerance) {
 				errs[b] = inputErr("Generated", -1, j, "generated count %v is below the reconstructed count %v (efficiency > 1)", g, sum)
 				return
 			}

@@ -10,8 +10,9 @@ import (
 )
 
 // EfficiencyTolerance is the relative allowance for rounding in the check
-// Σ_i A_ij ≤ G_j (an efficiency of at most 1). It equals the kernel's.
-const EfficiencyTolerance = 1e-9
+// Σ_i A_ij ≤ G_j (an efficiency of at most 1): the kernel's, so that the
+// tables refuse, at their file and line, exactly what the kernel would.
+const EfficiencyTolerance = unfold.EfficiencyTolerance
 
 // Set is the tables of one unfolding problem. Response, Generated and
 // Data are required; Background and Prior may be nil.
