@@ -23,9 +23,10 @@ const (
 const exitCodesHelp = `Exit status:
   0    success
   2    usage error (unknown command or flag, wrong arguments or flag values)
-  3    bad input (a file that cannot be parsed or is inconsistent; the message names file, line and field)
+  3    bad input (a file that cannot be parsed or is inconsistent, the message naming file, line and
+       field; or an input file that is missing or not readable by you)
   4    numerical failure (the problem cannot be solved as asked, e.g. a covariance too large for memory)
-  5    input/output failure (a file cannot be read or written)
+  5    input/output failure (a file cannot be read or written for another reason)
   70   internal error (a bug: please report it with the message)
   130  interrupted (SIGINT or SIGTERM); no partial output is left behind`
 
