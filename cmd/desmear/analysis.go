@@ -18,10 +18,10 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/observable"
-	"github.com/desmear/desmear/unfold/output"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/inputs/observable"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 // runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from
@@ -50,10 +50,10 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace boo
 	}
 	if err := a.CheckOutput(replace); err != nil {
 		switch {
-		case errors.Is(err, output.ErrExists):
+		case errors.Is(err, result.ErrExists):
 			return nil, nil, usagef("%v (use --force to replace an earlier result)", err)
-		case errors.Is(err, output.ErrNotResult):
-			return nil, nil, usagef("%v; it is not replaced even with --force: choose another output.folder", err)
+		case errors.Is(err, result.ErrNotResult):
+			return nil, nil, usagef("%v; it is not replaced even with --force: choose another result.folder", err)
 		}
 		return nil, nil, ioErr(err)
 	}
@@ -84,7 +84,7 @@ func classifyAnalysisErr(err error) error {
 		se  *unfold.SettingsError
 		tl  *unfold.TooLargeError
 		ne  *unfold.NumericalError
-		ee  *fill.EventError
+		ee  *response.EventError
 		pe  *fs.PathError
 		we  *analysis.OutputError
 	)
@@ -102,7 +102,7 @@ func classifyAnalysisErr(err error) error {
 	case errors.As(err, &ae), errors.As(err, &aes), errors.As(err, &be), errors.As(err, &te), errors.As(err, &oe),
 		errors.As(err, &ue), errors.As(err, &se), errors.As(err, &ee):
 		return inputErr(err)
-	case errors.Is(err, output.ErrExists), errors.Is(err, output.ErrNotResult):
+	case errors.Is(err, result.ErrExists), errors.Is(err, result.ErrNotResult):
 		return usageErr(err)
 	case errors.As(err, &pe):
 		return ioErr(err)
@@ -181,9 +181,9 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
 	if n := a.Truth.InRange(); n > maxTableRows {
-		file := output.JSONFile
-		if slices.Contains(out.Files, output.CSVFile) {
-			file = output.CSVFile
+		file := result.JSONFile
+		if slices.Contains(out.Files, result.CSVFile) {
+			file = result.CSVFile
 		}
 		fmt.Fprintf(w, "%d in-range truth bins: the estimates are in %s\n", n, filepath.Join(out.Folder, file))
 		return

@@ -15,9 +15,9 @@ import (
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/events"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 const cliAnalysis = `title: two-dimensional test analysis
@@ -349,7 +349,7 @@ func TestWriteTablesChecksAgain(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	r := &fill.Response{Migrations: m, Generated: []float64{3}, GeneratedSumW2: []float64{3}, Fakes: []float64{0}, FakesSumW2: []float64{0}}
+	r := &response.Built{Migrations: m, Generated: []float64{3}, GeneratedSumW2: []float64{3}, Fakes: []float64{0}, FakesSumW2: []float64{0}}
 	err = writeTables(dir, r, nil, true)
 	if err == nil || !strings.Contains(err.Error(), "does not hold a response.csv") {
 		t.Errorf("writeTables over a foreign folder: %v", err)

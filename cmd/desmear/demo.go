@@ -93,7 +93,7 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	if err != nil {
 		if ctx.Err() != nil {
 			// Interrupted while unfolding: the inputs this run generated are
-			// removed too, so that an interrupted demo leaves no output.
+			// removed too, so that an interrupted demo leaves no result.
 			os.RemoveAll(in.Dir)
 			return ctx.Err()
 		}

@@ -12,7 +12,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold/demo"
-	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // demoTestEvents keeps the command's tests small (well under a second
@@ -101,14 +101,14 @@ func TestDemoCommand(t *testing.T) {
 }
 
 type demoResultJSON struct {
-	Inputs     []output.Input `json:"inputs"`
+	Inputs     []result.Input `json:"inputs"`
 	Estimate   []float64      `json:"estimate"`
 	Covariance [][]float64    `json:"covariance"`
 }
 
 func readDemoResult(t *testing.T, dir string) *demoResultJSON {
 	t.Helper()
-	b, err := os.ReadFile(filepath.Join(dir, demo.ResultFolder, output.JSONFile))
+	b, err := os.ReadFile(filepath.Join(dir, demo.ResultFolder, result.JSONFile))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -158,7 +158,7 @@ func TestDemoDeterministic(t *testing.T) {
 		switch {
 		case filepath.Ext(name) == ".root":
 			// ROOT files record their write time.
-		case name == output.JSONFile:
+		case name == result.JSONFile:
 			ra, rb := readDemoResult(t, dirs[0]), readDemoResult(t, dirs[1])
 			if !sameFloats(ra.Estimate, rb.Estimate) || len(ra.Covariance) == 0 || len(ra.Covariance) != len(rb.Covariance) {
 				t.Errorf("result.json estimates differ")

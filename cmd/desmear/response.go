@@ -14,9 +14,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/output"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 type responseOptions struct {
@@ -153,8 +153,8 @@ func checkTarget(path string, force bool, marker string) error {
 // has checked that an existing dir may be replaced; the check is made
 // again before the rename, as the response build can take long enough
 // for a folder to appear at dir meanwhile.
-func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace bool) (err error) {
-	tmp, err := output.Temp(dir)
+func writeTables(dir string, r *response.Built, bkg *analysis.Expected, replace bool) (err error) {
+	tmp, err := result.Temp(dir)
 	if err != nil {
 		return err
 	}
@@ -164,7 +164,7 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 		}
 	}()
 	write := func(name string, fn func(io.Writer) error) error {
-		return output.WriteSynced(filepath.Join(tmp, name), fn)
+		return result.WriteSynced(filepath.Join(tmp, name), fn)
 	}
 	if err := write("response.csv", func(w io.Writer) error { return tables.WriteResponse(w, r.Migrations) }); err != nil {
 		return err
@@ -184,12 +184,12 @@ func writeTables(dir string, r *fill.Response, bkg *analysis.Expected, replace b
 	if err := checkTarget(dir, replace, "response.csv"); err != nil {
 		return err
 	}
-	return output.Install(tmp, dir, replace)
+	return result.Install(tmp, dir, replace)
 }
 
 // printResponseSummary prints the event counts and the per-truth-bin quality of
 // a response.
-func printResponseSummary(w io.Writer, a *analysis.Analysis, r *fill.Response, maxBins int) {
+func printResponseSummary(w io.Writer, a *analysis.Analysis, r *response.Built, maxBins int) {
 	s := r.Summary
 	fmt.Fprintf(w, "events read:        %d\n", s.Events)
 	fmt.Fprintf(w, "migration entries:  %d (%d distinct cells)\n", s.Entries, r.Migrations.NNZ())

@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // fuzzModes are the extra flags a fuzzed plain-table unfold runs with,
@@ -122,20 +122,20 @@ func FuzzUnfoldTables(f *testing.F) {
 			// from the content of well-named, readable tables.
 			t.Fatalf("exit %d, want 0, %d or %d\nstderr:\n%s", code, exitInput, exitNumerical, stderr)
 		}
-		data, err := os.ReadFile(filepath.Join(out, output.JSONFile))
+		data, err := os.ReadFile(filepath.Join(out, result.JSONFile))
 		if err != nil {
-			t.Fatalf("exit 0 without %s: %v", output.JSONFile, err)
+			t.Fatalf("exit 0 without %s: %v", result.JSONFile, err)
 		}
 		var raw any
 		if err := json.Unmarshal(data, &raw); err != nil {
-			t.Fatalf("%s is not JSON: %v", output.JSONFile, err)
+			t.Fatalf("%s is not JSON: %v", result.JSONFile, err)
 		}
 		if path, ok := nonFinite(raw, ""); !ok {
-			t.Errorf("%s holds a non-finite number at %s", output.JSONFile, path)
+			t.Errorf("%s holds a non-finite number at %s", result.JSONFile, path)
 		}
-		var r output.Result
+		var r result.Result
 		if err := json.Unmarshal(data, &r); err != nil {
-			t.Fatalf("%s does not decode as a result: %v", output.JSONFile, err)
+			t.Fatalf("%s does not decode as a result: %v", result.JSONFile, err)
 		}
 		if len(r.Estimate) != r.TruthBins || len(r.Folded) != r.RecoBins {
 			t.Errorf("%d estimates for %d truth bins, %d folded values for %d reco bins", len(r.Estimate), r.TruthBins, len(r.Folded), r.RecoBins)

@@ -18,8 +18,8 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/output"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 // unfoldOptions are the options of "desmear unfold" in plain-table mode.
@@ -244,14 +244,14 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
 // checkOutFolder refuses an output folder that exists (unless force) or
 // that cannot be replaced, before any long work.
 func checkOutFolder(dir string, force bool) error {
-	err := output.Check(dir, force)
+	err := result.Check(dir, force)
 	switch {
 	case err == nil:
 		return nil
-	case errors.Is(err, output.ErrExists):
+	case errors.Is(err, result.ErrExists):
 		return usagef("output folder %s exists; give --force to replace it, or choose another folder", dir)
-	case errors.Is(err, output.ErrNotResult):
-		return usagef("output folder %s exists and is not an earlier result folder (no %s in it); refusing to replace it even with --force: choose another folder", dir, output.JSONFile)
+	case errors.Is(err, result.ErrNotResult):
+		return usagef("output folder %s exists and is not an earlier result folder (no %s in it); refusing to replace it even with --force: choose another folder", dir, result.JSONFile)
 	}
 	return ioErr(fmt.Errorf("output folder: %w", err))
 }
@@ -274,24 +274,24 @@ func openInput(what, path string) (*os.File, error) {
 // readHashed opens path, lets read parse it through a hashing reader and
 // returns the input record. Errors from read that are not *tables.Error
 // or *binning.Error are I/O errors.
-func readHashed(role, what, path string, read func(r io.Reader) error) (output.Input, error) {
+func readHashed(role, what, path string, read func(r io.Reader) error) (result.Input, error) {
 	f, err := openInput(what, path)
 	if err != nil {
-		return output.Input{}, err
+		return result.Input{}, err
 	}
 	defer f.Close()
-	h := output.NewHashingReader(f)
+	h := result.NewHashingReader(f)
 	if err := read(h); err != nil {
 		var te *tables.Error
 		var be *binning.Error
 		if errors.As(err, &te) || errors.As(err, &be) {
-			return output.Input{}, inputErr(err)
+			return result.Input{}, inputErr(err)
 		}
-		return output.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
 	in, err := h.Input(role, path)
 	if err != nil {
-		return output.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
 	return in, nil
 }
@@ -300,12 +300,12 @@ func readHashed(role, what, path string, read func(r io.Reader) error) (output.I
 type plainInputs struct {
 	set         tables.Set
 	truth, reco *binning.Scheme
-	inputs      []output.Input
+	inputs      []result.Input
 }
 
 func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 	var pi plainInputs
-	add := func(in output.Input, err error) error {
+	add := func(in result.Input, err error) error {
 		if err == nil {
 			pi.inputs = append(pi.inputs, in)
 		}
@@ -440,25 +440,25 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	hook(ctx, "unfolded")
 
-	r, err := output.FromUnfold(res)
+	r, err := result.FromUnfold(res)
 	if err != nil {
 		return numericalErr(err)
 	}
-	r.Program = output.Program{Name: "desmear", Version: version}
+	r.Program = result.Program{Name: "desmear", Version: version}
 	r.Inputs = pi.inputs
 	prior := "generated"
 	if o.prior != "" {
 		prior = "table"
 	}
-	r.Settings = output.DescribeSettings(settings, prior, o.background != "")
+	r.Settings = result.DescribeSettings(settings, prior, o.background != "")
 	if pi.truth != nil {
-		r.TruthBinning = output.DescribeBinning(pi.truth, o.truthBinning)
+		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 	}
 	if pi.reco != nil {
-		r.RecoBinning = output.DescribeBinning(pi.reco, o.recoBinning)
+		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)
 	}
 
-	if err := writeResultFolder(ctx, o.out, o.force, func(f *output.Folder) error {
+	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) error {
 		return f.WriteResult(r, pi.truth)
 	}); err != nil {
 		return err
@@ -485,10 +485,10 @@ func zeroPrior(prior []float64, det []bool) int {
 // folder, calls write to add the files, and commits unless write fails
 // or ctx is cancelled, in which case nothing is left behind. Errors are
 // classified for the exit code.
-func writeResultFolder(ctx context.Context, dir string, force bool, write func(f *output.Folder) error) error {
-	f, err := output.New(dir, force)
+func writeResultFolder(ctx context.Context, dir string, force bool, write func(f *result.Folder) error) error {
+	f, err := result.New(dir, force)
 	if err != nil {
-		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
 			return checkOutFolder(dir, force)
 		}
 		return ioErr(fmt.Errorf("output folder: %w", err))
@@ -505,7 +505,7 @@ func writeResultFolder(ctx context.Context, dir string, force bool, write func(f
 		return err
 	}
 	if err := f.Commit(); err != nil {
-		if errors.Is(err, output.ErrExists) {
+		if errors.Is(err, result.ErrExists) {
 			return usagef("output folder %s appeared while the result was being written; nothing was replaced", dir)
 		}
 		return ioErr(fmt.Errorf("writing %s: %w", dir, err))
@@ -520,7 +520,7 @@ const maxTableRows = 30
 
 // printSummary prints what was done to stdout, with a per-bin table for
 // small problems, and notes to stderr.
-func printSummary(g *globalOptions, dir string, r *output.Result, truth *binning.Scheme) {
+func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme) {
 	det := 0
 	for _, d := range r.Determined {
 		if d {
@@ -564,7 +564,7 @@ func printSummary(g *globalOptions, dir string, r *output.Result, truth *binning
 		}
 		tw.Flush()
 	}
-	fmt.Fprintf(w, "result: %s/%s, %s/%s\n", dir, output.JSONFile, dir, output.CSVFile)
+	fmt.Fprintf(w, "result: %s/%s, %s/%s\n", dir, result.JSONFile, dir, result.CSVFile)
 	if g.quiet {
 		return
 	}

@@ -10,7 +10,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/sparse"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 // writeBenchTables writes a plain-table problem of nt truth × 2 nt reco

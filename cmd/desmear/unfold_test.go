@@ -13,7 +13,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // runCLI runs the command line in-process and returns its exit status,
@@ -70,13 +70,13 @@ func oracleDArgs(dir, out string) []string {
 		"--out", out}
 }
 
-func readResult(t *testing.T, dir string) (*output.Result, map[string]any) {
+func readResult(t *testing.T, dir string) (*result.Result, map[string]any) {
 	t.Helper()
-	data, err := os.ReadFile(filepath.Join(dir, output.JSONFile))
+	data, err := os.ReadFile(filepath.Join(dir, result.JSONFile))
 	if err != nil {
 		t.Fatal(err)
 	}
-	var r output.Result
+	var r result.Result
 	if err := json.Unmarshal(data, &r); err != nil {
 		t.Fatal(err)
 	}
@@ -140,7 +140,7 @@ func TestUnfoldOracleD(t *testing.T) {
 			t.Errorf("log-likelihood decreases at iteration %d", k)
 		}
 	}
-	if r.Format != output.Format || r.Program.Version != version || r.Settings.Iterations != 5 || r.Settings.Prior != "table" || r.Settings.Covariance != "diag" {
+	if r.Format != result.Format || r.Program.Version != version || r.Settings.Iterations != 5 || r.Settings.Prior != "table" || r.Settings.Covariance != "diag" {
 		t.Errorf("header fields: %+v %+v %+v", r.Format, r.Program, r.Settings)
 	}
 	if len(r.Uncertainty) != 3 || r.Covariance != nil || raw["covariance"] != nil {
@@ -155,13 +155,13 @@ func TestUnfoldOracleD(t *testing.T) {
 		t.Errorf("%d inputs recorded, want %d", len(r.Inputs), len(roles))
 	}
 	for _, in := range r.Inputs {
-		want, err := output.HashFile(in.Role, filepath.Join(dir, roles[in.Role]))
+		want, err := result.HashFile(in.Role, filepath.Join(dir, roles[in.Role]))
 		if err != nil || in != want {
 			t.Errorf("input %+v, want %+v (%v)", in, want, err)
 		}
 	}
 
-	recs := readCSV(t, filepath.Join(out, output.CSVFile))
+	recs := readCSV(t, filepath.Join(out, result.CSVFile))
 	if got := strings.Join(recs[0], ","); got != "index,estimate,uncertainty,determined,efficiency" {
 		t.Errorf("result.csv header %q", got)
 	}
@@ -260,7 +260,7 @@ func TestUnfoldWithBinning(t *testing.T) {
 	if r.Settings.Smoothing != 0.5 {
 		t.Errorf("smoothing %v not recorded", r.Settings.Smoothing)
 	}
-	recs := readCSV(t, filepath.Join(out, output.CSVFile))
+	recs := readCSV(t, filepath.Join(out, result.CSVFile))
 	if got := strings.Join(recs[0], ","); got != "index,region,flow,x_low,x_high,estimate,determined,efficiency" {
 		t.Errorf("result.csv header %q", got)
 	}
@@ -401,13 +401,13 @@ func TestUnfoldExistingFolder(t *testing.T) {
 	if code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--iterations", "1")...); code != exitOK {
 		t.Fatalf("first run: exit %d: %s", code, stderr)
 	}
-	first, _ := os.ReadFile(filepath.Join(out, output.JSONFile))
+	first, _ := os.ReadFile(filepath.Join(out, result.JSONFile))
 
 	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--iterations", "5")...)
 	if code != exitUsage || !strings.Contains(stderr, "exists") || !strings.Contains(stderr, "--force") {
 		t.Errorf("second run without --force: exit %d, stderr %q", code, stderr)
 	}
-	if again, _ := os.ReadFile(filepath.Join(out, output.JSONFile)); !bytes.Equal(again, first) {
+	if again, _ := os.ReadFile(filepath.Join(out, result.JSONFile)); !bytes.Equal(again, first) {
 		t.Error("the refused run changed the existing result")
 	}
 
@@ -539,7 +539,7 @@ func TestUnfoldDeterministic(t *testing.T) {
 		if code != exitOK {
 			t.Fatalf("exit %d: %s", code, stderr)
 		}
-		got[k], _ = os.ReadFile(filepath.Join(out, output.JSONFile))
+		got[k], _ = os.ReadFile(filepath.Join(out, result.JSONFile))
 	}
 	// The paths differ only in the output folder, which result.json does not record.
 	if !bytes.Equal(got[0], got[1]) {

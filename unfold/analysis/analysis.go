@@ -11,7 +11,7 @@ import (
 	"go.yaml.in/yaml/v3"
 
 	"github.com/desmear/desmear/binning"
-	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/inputs/events"
 )
 
 // Analysis is a decoded and checked analysis file. File names in it are
@@ -308,7 +308,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	o := doc.Output
 	a.Output = Output{Formats: o.Formats, Luminosity: o.Luminosity, LuminosityUnit: o.LuminosityUnit}
 	if o.Folder == "" {
-		c.errf(c.line("output"), "output.folder", "missing: name the result folder (relative to the analysis file)")
+		c.errf(c.line("output"), "result.folder", "missing: name the result folder (relative to the analysis file)")
 	}
 	a.Output.Folder = resolve(a.Dir, o.Folder)
 	if a.Output.Formats == nil {
@@ -316,11 +316,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	for i, f := range a.Output.Formats {
 		if !slices.Contains(knownFormats, f) {
-			c.errf(c.line("output", "formats", i), fmt.Sprintf("output.formats[%d]", i), "unknown format %q (known: %s)", f, strings.Join(knownFormats, ", "))
+			c.errf(c.line("output", "formats", i), fmt.Sprintf("result.formats[%d]", i), "unknown format %q (known: %s)", f, strings.Join(knownFormats, ", "))
 		}
 	}
 	if l := o.Luminosity; l < 0 || math.IsNaN(l) || math.IsInf(l, 0) {
-		c.errf(c.line("output", "luminosity"), "output.luminosity", "must be a positive integrated luminosity")
+		c.errf(c.line("output", "luminosity"), "result.luminosity", "must be a positive integrated luminosity")
 	}
 
 	// Processing.

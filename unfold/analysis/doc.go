@@ -48,7 +48,7 @@
 // of every region, of counts and of densities, and a TH2D of each
 // rectangular 2-D region; flow bins in ROOT's flow cells).
 //
-// Every step streams its events through package fill, so the memory does
+// Every step streams its events through package response, so the memory does
 // not grow with the number of events and the results are the same bits
 // whatever the number of worker goroutines. Nothing is printed: progress
 // goes to a callback in Options.

@@ -9,7 +9,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 
-	"github.com/desmear/desmear/unfold/rootio"
+	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // Data from a TH2D: every cell goes to the global bin of the same

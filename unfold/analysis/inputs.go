@@ -8,9 +8,9 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/desmear/desmear/unfold/events"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/observable"
+	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/inputs/observable"
 )
 
 // compiler compiles the expressions of one events file: first against
@@ -35,7 +35,7 @@ func newCompiler(a *Analysis, file string, src events.Source) *compiler {
 }
 
 // add compiles e; it returns nil for an empty expression.
-func (c *compiler) add(e Expression) (fill.Expr, error) {
+func (c *compiler) add(e Expression) (response.Expr, error) {
 	if e.Text == "" {
 		return nil, nil
 	}
@@ -50,7 +50,7 @@ func (c *compiler) add(e Expression) (fill.Expr, error) {
 	}
 	p := &compiled{e: e}
 	c.pending = append(c.pending, p)
-	return func() fill.Evaluator {
+	return func() response.Evaluator {
 		if p.final == nil {
 			panic("analysis: expression used before its columns were fixed")
 		}
@@ -58,8 +58,8 @@ func (c *compiler) add(e Expression) (fill.Expr, error) {
 	}, nil
 }
 
-func (c *compiler) addAll(es []Expression) ([]fill.Expr, error) {
-	out := make([]fill.Expr, len(es))
+func (c *compiler) addAll(es []Expression) ([]response.Expr, error) {
+	out := make([]response.Expr, len(es))
 	for i, e := range es {
 		x, err := c.add(e)
 		if err != nil {
@@ -136,7 +136,7 @@ func (a *Analysis) openEvents(path, tree, field string, line int) (events.Source
 	return src, nil
 }
 
-func readFunc(src events.Source, cols []string, batch int) fill.ReadFunc {
+func readFunc(src events.Source, cols []string, batch int) response.ReadFunc {
 	return func(ctx context.Context, fn func(int64, int, [][]float64) error) error {
 		return src.Read(ctx, cols, batch, func(b *events.Batch) error {
 			return fn(b.Start, b.Len, b.Cols)

@@ -13,9 +13,9 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/output"
-	"github.com/desmear/desmear/unfold/rootio"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // OutputError is a failure to write the result folder (the inputs were
@@ -33,8 +33,8 @@ const RootFile = "result.root"
 
 // Outcome is everything a run produced.
 type Outcome struct {
-	Response     *fill.Response
-	ResponseInfo *fill.BundleInfo
+	Response     *response.Built
+	ResponseInfo *response.BundleInfo
 	Data         *Measured
 	Background   *Expected
 	Result       *unfold.Result
@@ -47,7 +47,7 @@ type Outcome struct {
 // Document is the content of result.json for an analysis run: the
 // plain-table result fields plus the analysis's own.
 type Document struct {
-	output.Result
+	result.Result
 	Analysis AnalysisInfo `json:"analysis"`
 	// Purity and Stability per truth bin (on the truth binning; see the
 	// fill package); null where not defined.
@@ -60,7 +60,7 @@ type Document struct {
 	Luminosity         float64   `json:"luminosity,omitempty"`
 	LuminosityUnit     string    `json:"luminosity_unit,omitempty"`
 	// ResponseSummary counts the simulated events.
-	ResponseSummary fill.Summary `json:"response_summary"`
+	ResponseSummary response.Summary `json:"response_summary"`
 	// DataEvents, DataSelected and DataOutside count the data events
 	// (events files only).
 	DataEvents   int64 `json:"data_events,omitempty"`
@@ -76,7 +76,7 @@ type AnalysisInfo struct {
 
 // CheckOutput reports early whether the result folder could be written.
 func (a *Analysis) CheckOutput(replace bool) error {
-	return output.Check(a.Output.Folder, replace)
+	return result.Check(a.Output.Folder, replace)
 }
 
 // Run builds (or loads) the response, fills the data and the
@@ -118,7 +118,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		return nil, a.placeKernelError(err)
 	}
 	if err := a.write(out, s, replace, opt); err != nil {
-		if errors.Is(err, output.ErrExists) || errors.Is(err, output.ErrNotResult) {
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
 			return nil, err
 		}
 		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
@@ -126,13 +126,13 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	return out, nil
 }
 
-func (a *Analysis) inputs(out *Outcome) ([]output.Input, error) {
-	var ins []output.Input
+func (a *Analysis) inputs(out *Outcome) ([]result.Input, error) {
+	var ins []result.Input
 	add := func(role, path string) error {
 		if path == "" {
 			return nil
 		}
-		in, err := output.HashFile(role, path)
+		in, err := result.HashFile(role, path)
 		if err != nil {
 			return err
 		}
@@ -149,7 +149,7 @@ func (a *Analysis) inputs(out *Outcome) ([]output.Input, error) {
 		return nil, err
 	}
 	if a.ResponseFile != "" {
-		for _, name := range fill.BundleFiles() {
+		for _, name := range response.BundleFiles() {
 			if err := add("response", filepath.Join(a.ResponseFile, name)); err != nil {
 				return nil, err
 			}
@@ -210,12 +210,12 @@ func (a *Analysis) densities(est, unc []float64) (dens, densUnc []float64) {
 }
 
 func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Options) (err error) {
-	res, err := output.FromUnfold(out.Result)
+	res, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err
 	}
 	doc := &Document{Result: *res}
-	doc.Program = output.Program{Name: "desmear"}
+	doc.Program = result.Program{Name: "desmear"}
 	if opt != nil {
 		doc.Program.Version = opt.Version
 	}
@@ -226,9 +226,9 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 	if a.Unfolding.Prior != "simulation" {
 		prior = a.Unfolding.Prior
 	}
-	doc.Settings = output.DescribeSettings(s, prior, out.Background != nil)
-	doc.TruthBinning = output.DescribeBinning(a.Truth, a.TruthFile)
-	doc.RecoBinning = output.DescribeBinning(a.Reco, a.RecoFile)
+	doc.Settings = result.DescribeSettings(s, prior, out.Background != nil)
+	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
+	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
 	doc.Analysis = AnalysisInfo{File: a.File, Title: a.Title}
 	pur, stab := out.Response.Purity(nil), out.Response.Stability(nil)
 	doc.Purity, doc.Stability = finitePtrs(pur), finitePtrs(stab)
@@ -237,7 +237,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 	doc.ResponseSummary = out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
 
-	f, err := output.New(a.Output.Folder, replace)
+	f, err := result.New(a.Output.Folder, replace)
 	if err != nil {
 		return err
 	}
@@ -246,22 +246,22 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 			f.Abort()
 		}
 	}()
-	if err := f.WriteJSON(output.JSONFile, doc); err != nil {
+	if err := f.WriteJSON(result.JSONFile, doc); err != nil {
 		return err
 	}
-	out.Files = append(out.Files, output.JSONFile)
+	out.Files = append(out.Files, result.JSONFile)
 	if a.Output.Has("csv") {
-		w, err := f.Create(output.CSVFile)
+		w, err := f.Create(result.CSVFile)
 		if err != nil {
 			return err
 		}
-		if err := output.WriteCSV(w, &doc.Result, a.Truth); err != nil {
+		if err := result.WriteCSV(w, &doc.Result, a.Truth); err != nil {
 			return err
 		}
 		if err := w.Close(); err != nil {
 			return err
 		}
-		out.Files = append(out.Files, output.CSVFile)
+		out.Files = append(out.Files, result.CSVFile)
 	}
 	if a.Output.Has("regions") {
 		for r, reg := range a.Truth.Regions() {

@@ -5,7 +5,7 @@ import (
 	"math"
 
 	"github.com/desmear/desmear/binning"
-	"github.com/desmear/desmear/unfold/rootio"
+	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // rootCell maps a ROOT cell number along an axis of n bins (0 the

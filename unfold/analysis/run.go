@@ -12,9 +12,9 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/output"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 // Options control how an analysis runs. The zero value is usable.
@@ -29,8 +29,8 @@ type Options struct {
 	Version string
 }
 
-func (a *Analysis) fillOptions(opt *Options, stage string) *fill.Options {
-	o := &fill.Options{Workers: a.Workers}
+func (a *Analysis) fillOptions(opt *Options, stage string) *response.Options {
+	o := &response.Options{Workers: a.Workers}
 	if opt != nil {
 		if opt.Workers > 0 {
 			o.Workers = opt.Workers
@@ -100,7 +100,7 @@ func (a *Analysis) CheckInputs(sim, rest bool) error {
 
 // BuildResponse streams the simulated samples into a response. It
 // returns the response and the provenance of its inputs.
-func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
+func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*response.Built, *response.BundleInfo, error) {
 	if err := a.CheckInputs(true, false); err != nil {
 		return nil, nil, err
 	}
@@ -108,15 +108,15 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*fill.Respo
 }
 
 // buildResponse is BuildResponse once the simulation's inputs are checked.
-func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*fill.Response, *fill.BundleInfo, error) {
+func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.Built, *response.BundleInfo, error) {
 	if len(a.Simulation) == 0 {
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
-	info := &fill.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
+	info := &response.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
 	if opt != nil {
 		info.Program = opt.Version
 	}
-	b := fill.NewBuilder(a.Truth, a.Reco)
+	b := response.NewBuilder(a.Truth, a.Reco)
 	for _, s := range a.Simulation {
 		sim, src, err := a.simulation(&s)
 		if err != nil {
@@ -125,12 +125,12 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*fill.Respo
 		// Hash the file for the provenance while the events are read:
 		// on a machine with a spare core this costs no time.
 		type hashed struct {
-			in  fill.Input
+			in  response.Input
 			err error
 		}
 		hc := make(chan hashed, 1)
 		go func() {
-			in, err := output.HashFile("simulation", s.File)
+			in, err := result.HashFile("simulation", s.File)
 			hc <- hashed{in, err}
 		}()
 		sum, err := b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
@@ -143,9 +143,9 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*fill.Respo
 			return nil, nil, h.err
 		}
 		info.Inputs = append(info.Inputs, h.in)
-		info.Samples = append(info.Samples, fill.SampleSummary{File: s.File, Summary: sum})
+		info.Samples = append(info.Samples, response.SampleSummary{File: s.File, Summary: sum})
 	}
-	r, err := b.Response()
+	r, err := b.Build()
 	if err != nil {
 		return nil, nil, err
 	}
@@ -154,8 +154,8 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*fill.Respo
 
 // LoadResponse loads the saved response bundle named by the analysis
 // file and checks it against the schemes.
-func (a *Analysis) LoadResponse() (*fill.Response, *fill.BundleInfo, error) {
-	r, info, err := fill.LoadResponse(a.ResponseFile)
+func (a *Analysis) LoadResponse() (*response.Built, *response.BundleInfo, error) {
+	r, info, err := response.Load(a.ResponseFile)
 	if err != nil {
 		msg := fmt.Sprintf("cannot load the saved response: %v", err)
 		if _, serr := os.Stat(a.ResponseFile); serr != nil && len(a.Simulation) > 0 {
@@ -185,7 +185,7 @@ func (a *Analysis) eventsErr(field string, line int, err error) error {
 	return &Error{File: a.File, Line: line, Field: field, Msg: err.Error(), Err: err}
 }
 
-func (a *Analysis) simulation(s *Sample) (*fill.Simulation, closer, error) {
+func (a *Analysis) simulation(s *Sample) (*response.Simulation, closer, error) {
 	src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
 	if err != nil {
 		return nil, nil, err
@@ -197,7 +197,7 @@ func (a *Analysis) simulation(s *Sample) (*fill.Simulation, closer, error) {
 		}
 	}()
 	c := newCompiler(a, s.File, src)
-	sim := &fill.Simulation{Sample: fill.Sample{Name: s.File, Events: src.Len(), Scale: s.Scale}}
+	sim := &response.Simulation{Sample: response.Sample{Name: s.File, Events: src.Len(), Scale: s.Scale}}
 	if sim.Weight, err = c.add(s.Weight); err != nil {
 		return nil, nil, err
 	}
@@ -238,15 +238,15 @@ func (a *Analysis) simulation(s *Sample) (*fill.Simulation, closer, error) {
 type closer interface{ Close() error }
 
 // recoHistogram fills the reco scheme from an events file.
-func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file, tree, field string, line int, weight, sel Expression, obs []Expression, scale float64) (*fill.Histogram, error) {
+func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file, tree, field string, line int, weight, sel Expression, obs []Expression, scale float64) (*response.Histogram, error) {
 	src, err := a.openEvents(file, tree, field, line)
 	if err != nil {
 		return nil, err
 	}
 	defer src.Close()
 	c := newCompiler(a, file, src)
-	s := &fill.Sample{Name: file, Events: src.Len(), Scale: scale}
-	l := &fill.Level{}
+	s := &response.Sample{Name: file, Events: src.Len(), Scale: scale}
+	l := &response.Level{}
 	if s.Weight, err = c.add(weight); err != nil {
 		return nil, err
 	}
@@ -261,7 +261,7 @@ func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file,
 		return nil, err
 	}
 	s.Read = readFunc(src, cols, a.BatchSize)
-	h := fill.NewHistogram(a.Reco.Len())
+	h := response.NewHistogram(a.Reco.Len())
 	if err := h.Add(ctx, s, l, a.Reco, a.fillOptions(opt, stage)); err != nil {
 		return nil, a.eventsErr(field, line, err)
 	}
@@ -318,7 +318,7 @@ type Expected struct {
 // per sample, (scale uncertainty × its contribution)² bin by bin (the
 // scale uncertainty is fully correlated across bins; only its diagonal
 // enters here). It returns nil when there is no background at all.
-func (a *Analysis) Background(ctx context.Context, r *fill.Response, opt *Options) (*Expected, error) {
+func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Options) (*Expected, error) {
 	nr := a.Reco.Len()
 	e := &Expected{Values: make([]float64, nr), Variance: make([]float64, nr)}
 	nonzero := false
@@ -436,7 +436,7 @@ func (a *Analysis) Prior() ([]float64, error) {
 }
 
 // Problem assembles the unfolding problem.
-func (a *Analysis) Problem(r *fill.Response, data *Measured, bkg *Expected) (*unfold.Problem, error) {
+func (a *Analysis) Problem(r *response.Built, data *Measured, bkg *Expected) (*unfold.Problem, error) {
 	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, Data: data.Values, DataVariance: data.Variance}
 	if bkg != nil {
 		p.Background, p.BackgroundVariance = bkg.Values, bkg.Variance

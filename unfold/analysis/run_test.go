@@ -15,10 +15,10 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/events"
-	"github.com/desmear/desmear/unfold/fill"
-	"github.com/desmear/desmear/unfold/rootio"
-	"github.com/desmear/desmear/unfold/tables"
+	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/internal/rootio"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 var simColumns = []string{"x_true", "x_reco", "w", "ok_true", "ok_reco"}
@@ -118,7 +118,7 @@ func TestSameResponseFromEveryFormat(t *testing.T) {
 	sim := simEvents(20000, 1)
 	data := [][]float64{simEvents(3000, 9)[1]}
 	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, data)
-	var ref *fill.Response
+	var ref *response.Built
 	for _, ext := range []string{".csv", ".parquet", ".root"} {
 		writeSample(t, filepath.Join(dir, "sim"+ext), simColumns, sim)
 		a, err := Decode([]byte(strings.NewReplacer("SIM", "sim"+ext, "DATA", "data.csv").Replace(analysisTemplate)), filepath.Join(dir, "a.yaml"))

@@ -16,7 +16,7 @@ import (
 	"sync"
 
 	"github.com/desmear/desmear/binning"
-	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // File names inside a demo folder.
@@ -141,7 +141,7 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if err != nil {
 		return nil, err
 	}
-	tmp, err := output.Temp(dir)
+	tmp, err := result.Temp(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -207,8 +207,8 @@ func moveIntoPlace(tmp, dir string, replace bool) error {
 	if err := checkTarget(dir, replace); err != nil {
 		return err
 	}
-	err := output.Install(tmp, dir, replace)
-	if errors.Is(err, output.ErrExists) {
+	err := result.Install(tmp, dir, replace)
+	if errors.Is(err, result.ErrExists) {
 		return fmt.Errorf("demo: %s appeared while the demo was being written (replace it with --force): %w", dir, fs.ErrExist)
 	}
 	return err
@@ -262,7 +262,7 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 // writeText writes text to the file path of the temporary folder, synced
 // to disk before the folder is installed.
 func writeText(path, text string) error {
-	return output.WriteSynced(path, func(w io.Writer) error {
+	return result.WriteSynced(path, func(w io.Writer) error {
 		_, err := io.WriteString(w, text)
 		return err
 	})
@@ -296,7 +296,7 @@ func histogramTruth(t *binning.Scheme, s *sample) []float64 {
 var TruthHeader = []string{"index", "label", "flow", "expected", "generated"}
 
 func writeTruth(path string, t *Truth) error {
-	return output.WriteSynced(path, func(out io.Writer) error {
+	return result.WriteSynced(path, func(out io.Writer) error {
 		w := csv.NewWriter(out)
 		w.Write(TruthHeader)
 		for g := range t.Expected {

@@ -15,8 +15,8 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
-	"github.com/desmear/desmear/unfold/events"
-	"github.com/desmear/desmear/unfold/fill"
+	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/response"
 )
 
 // testEvents keeps the end-to-end tests small: 600k simulated events
@@ -60,7 +60,7 @@ func generateOnce(t *testing.T, cfg demo.Config) *demo.Inputs {
 // pipeline is the analysis of a file, step by step.
 type pipeline struct {
 	a        *analysis.Analysis
-	response *fill.Response
+	response *response.Built
 	problem  *unfold.Problem
 }
 

@@ -11,7 +11,7 @@ import (
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/rtree"
 
-	"github.com/desmear/desmear/unfold/output"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // TreeName is the name of the TTree in the demo's ROOT files.
@@ -84,7 +84,7 @@ func writeTree(ctx context.Context, path, title string, vars []rtree.WriteVar, n
 
 // syncFile flushes the file path to disk. groot writes through a file of
 // its own, so its output is synced after it is closed, as
-// output.WriteSynced does for the other files of the folder.
+// result.WriteSynced does for the other files of the folder.
 func syncFile(path string) error {
 	f, err := os.OpenFile(path, os.O_WRONLY, 0)
 	if err != nil {
@@ -133,7 +133,7 @@ func writeDataROOT(ctx context.Context, path string, s *sample) error {
 // writeParquet writes rows built by row(i) for i < n, snappy-compressed,
 // handing them to the writer in batches.
 func writeParquet[T any](ctx context.Context, path string, n int, row func(i int) T) error {
-	return output.WriteSynced(path, func(out io.Writer) error {
+	return result.WriteSynced(path, func(out io.Writer) error {
 		w := parquet.NewGenericWriter[T](out, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
 		const batch = 4096
 		buf := make([]T, 0, batch)

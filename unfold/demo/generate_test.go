@@ -15,7 +15,7 @@ import (
 
 	"gonum.org/v1/gonum/stat/distuv"
 
-	"github.com/desmear/desmear/unfold/events"
+	"github.com/desmear/desmear/unfold/inputs/events"
 )
 
 // chi2Band returns the 0.1% and 99.9% quantiles of the chi-square

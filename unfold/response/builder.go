@@ -1,0 +1,417 @@
+package response
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/desmear/desmear/sparse"
+)
+
+// Simulation is a simulated sample: events with a truth level and a
+// reco level.
+type Simulation struct {
+	Sample
+	Truth Level
+	Reco  Level
+	// RecoInTruth, when not nil, gives for each axis of the TRUTH scheme
+	// (in its axis order) the index, into Reco.Observables, of the reco
+	// observable that measures it. Each event passing the reco selection
+	// is then also located in the truth scheme with its reco values,
+	// which defines purity and stability on the truth binning even when
+	// the reco binning differs from it.
+	RecoInTruth []int
+}
+
+// entries are the migration entries of one batch on their way to the
+// accumulator.
+type entries struct {
+	seq        uint64
+	rows, cols []int32
+	w          []float64
+}
+
+// Summary counts what happened to the events of the samples.
+type Summary struct {
+	// Events is the number of events read.
+	Events int64 `json:"events"`
+	// Entries is the number of migration entries: events passing both
+	// selections and located at both levels.
+	Entries int64 `json:"entries"`
+	// Misses is the number of events generated in a truth bin but not
+	// in any reco bin (failing the reco selection, or outside the reco
+	// scheme). They count in the generated spectrum only.
+	Misses int64 `json:"misses"`
+	// Fakes is the number of events in a reco bin without a truth bin
+	// (failing the truth selection, or outside the truth scheme). They
+	// go into the expected background.
+	Fakes int64 `json:"fakes"`
+	// OutsideTruth is the number of events passing the truth selection
+	// that fall outside the truth scheme (a switched-off flow). Those
+	// located in a reco bin are counted among the fakes as well.
+	OutsideTruth int64 `json:"outside_truth"`
+	// OutsideReco is the number of events passing the reco selection
+	// that fall outside the reco scheme. Those located in a truth bin
+	// are counted among the misses as well.
+	OutsideReco int64 `json:"outside_reco"`
+	// NegativeCellCount is the number of migration cells whose weight
+	// sum is negative (possible with negative event weights), and
+	// NegativeCells lists the first sparse.MaxReportedCells of them.
+	NegativeCellCount int    `json:"negative_cell_count"`
+	NegativeCells     []Cell `json:"negative_cells,omitempty"`
+	// NegativeGenerated lists the truth bins whose generated sum is
+	// negative.
+	NegativeGenerated []int `json:"negative_generated,omitempty"`
+}
+
+func (s *Summary) add(o *Summary) {
+	s.Events += o.Events
+	s.Entries += o.Entries
+	s.Misses += o.Misses
+	s.Fakes += o.Fakes
+	s.OutsideTruth += o.OutsideTruth
+	s.OutsideReco += o.OutsideReco
+}
+
+// Built is a response built from simulated events.
+type Built struct {
+	// Migrations holds A_ij, the sum of weights of events generated in
+	// truth bin j and reconstructed in reco bin i (rows are reco bins,
+	// columns truth bins), with the sum of squared weights per cell.
+	Migrations *sparse.Matrix
+	// Generated holds G_j, the sum of weights of all events passing the
+	// truth selection located in truth bin j (reconstructed or not), and
+	// GeneratedSumW2 the sums of squared weights.
+	Generated, GeneratedSumW2 []float64
+	// Fakes holds the sum of weights of the fakes per reco bin, the
+	// expected background from the simulation, and FakesSumW2 its sums
+	// of squared weights (its variance).
+	Fakes, FakesSumW2 []float64
+	// Diagonal holds, per truth bin j, the sum of weights of events
+	// generated in j whose reco observables are located in j as well;
+	// RecoInTruth the sum of weights of events passing the reco
+	// selection whose reco observables are located in truth bin j. Both
+	// are nil when the simulation gave no RecoInTruth observables.
+	Diagonal, RecoInTruth []float64
+	// Summary counts the events.
+	Summary Summary
+}
+
+// TruthBins returns the number of truth bins.
+func (r *Built) TruthBins() int { return len(r.Generated) }
+
+// RecoBins returns the number of reco bins.
+func (r *Built) RecoBins() int { return len(r.Fakes) }
+
+// Efficiency writes eps_j = sum_i A_ij / G_j into dst (allocated when
+// nil) and returns it; it is NaN where G_j is zero. It panics if dst has
+// the wrong length.
+func (r *Built) Efficiency(dst []float64) []float64 {
+	dst = use(dst, r.TruthBins())
+	r.Migrations.ColSums(dst)
+	for j := range dst {
+		dst[j] = ratio(dst[j], r.Generated[j])
+	}
+	return dst
+}
+
+// Purity writes purity_j = Diagonal_j / RecoInTruth_j into dst: the
+// fraction of events reconstructed in truth bin j's range that were
+// also generated there. It returns nil when the response carries no
+// RecoInTruth histogram; NaN where the denominator is zero.
+func (r *Built) Purity(dst []float64) []float64 {
+	if r.Diagonal == nil {
+		return nil
+	}
+	dst = use(dst, r.TruthBins())
+	for j := range dst {
+		dst[j] = ratio(r.Diagonal[j], r.RecoInTruth[j])
+	}
+	return dst
+}
+
+// Stability writes stability_j = Diagonal_j / G_j into dst: the
+// fraction of events generated in truth bin j that are also
+// reconstructed in j's range. It returns nil when the response carries
+// no RecoInTruth histogram; NaN where G_j is zero.
+func (r *Built) Stability(dst []float64) []float64 {
+	if r.Diagonal == nil {
+		return nil
+	}
+	dst = use(dst, r.TruthBins())
+	for j := range dst {
+		dst[j] = ratio(r.Diagonal[j], r.Generated[j])
+	}
+	return dst
+}
+
+func use(dst []float64, n int) []float64 {
+	if dst == nil {
+		return make([]float64, n)
+	}
+	if len(dst) != n {
+		panic("response: length mismatch")
+	}
+	return dst
+}
+
+func ratio(a, b float64) float64 {
+	if b == 0 {
+		return math.NaN()
+	}
+	return a / b
+}
+
+// Builder builds a response from one or more simulated samples. Samples
+// are processed in the order they are added; the result depends only on
+// the samples and their order, never on the number of workers.
+type Builder struct {
+	truth, reco Locator
+	acc         *sparse.Accumulator
+	seq         uint64 // batches fed to acc so far
+	gen, gen2   []float64
+	fake, fake2 []float64
+	diag, rit   []float64
+	sum         Summary
+	withDiag    bool
+	samples     int
+}
+
+// NewBuilder returns a Builder for the given truth and reco schemes.
+func NewBuilder(truth, reco Locator) *Builder {
+	nt, nr := truth.Len(), reco.Len()
+	if nt >= math.MaxInt32 || nr >= math.MaxInt32 {
+		panic("response: scheme too large")
+	}
+	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	if err != nil {
+		panic(err)
+	}
+	return &Builder{
+		truth: truth, reco: reco, acc: acc,
+		gen: make([]float64, nt), gen2: make([]float64, nt),
+		fake: make([]float64, nr), fake2: make([]float64, nr),
+		diag: make([]float64, nt), rit: make([]float64, nt),
+	}
+}
+
+// Add streams the events of sim into the response. It returns the
+// counts for this sample alone. On error (a bad event, a read failure,
+// cancellation) the Builder must not be used further.
+func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summary, error) {
+	withDiag := sim.RecoInTruth != nil
+	if b.samples == 0 {
+		b.withDiag = withDiag
+	} else if b.withDiag != withDiag {
+		return Summary{}, fmt.Errorf("%s: every simulated sample must give reco observables for the truth axes, or none", sim.Name)
+	}
+	b.samples++
+	var dg *diagMap
+	if withDiag {
+		for _, ax := range sim.RecoInTruth {
+			if ax < 0 || ax >= len(sim.Reco.Observables) {
+				panic("response: RecoInTruth names a reco observable that does not exist")
+			}
+		}
+		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
+	}
+	seq0 := b.seq
+	newWork := func() func(*scratch, *batch) error {
+		weight := instantiate(sim.Weight)
+		truth, reco := sim.Truth.instantiate(), sim.Reco.instantiate()
+		return func(sc *scratch, bt *batch) error {
+			if err := evalWeights(&sim.Sample, weight, bt); err != nil {
+				return err
+			}
+			sc.locate(bt.truth, truth, b.truth, bt.cols, bt.n)
+			sc.locate(bt.reco, reco, b.reco, bt.cols, bt.n)
+			if withDiag {
+				sc.locateDiag(bt.diag, bt.reco, dg, reco != nil)
+			}
+			// Migration entries of the batch, in event order.
+			rows, cols, w := bt.erows[:0], bt.ecols[:0], bt.ew[:0]
+			for k, t := range bt.truth {
+				if r := bt.reco[k]; t >= 0 && r >= 0 {
+					rows = append(rows, r)
+					cols = append(cols, t)
+					w = append(w, bt.w[k])
+				}
+			}
+			bt.erows, bt.ecols, bt.ew = rows, cols, w
+			return nil
+		}
+	}
+	// The entries go to the accumulator from a goroutine of their own, in
+	// batch order (batch number seq0+bt.seq of its entry stream), so that
+	// its chunk sorting overlaps with reading and locating.
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	const queued = 64
+	epool := make(chan *entries, queued)
+	for i := 0; i < queued; i++ {
+		epool <- &entries{}
+	}
+	ech := make(chan *entries, queued)
+	accDone := make(chan error, 1)
+	go func() {
+		var err error
+		for e := range ech {
+			if err == nil {
+				if err = b.acc.AddBatch(e.seq, e.rows, e.cols, e.w); err != nil {
+					cancel()
+				}
+			}
+			epool <- e
+		}
+		accDone <- err
+	}()
+	var s Summary
+	consume := func(bt *batch) error {
+		e := <-epool
+		e.seq = seq0 + uint64(bt.seq)
+		e.rows, bt.erows = bt.erows, e.rows[:0]
+		e.cols, bt.ecols = bt.ecols, e.cols[:0]
+		e.w, bt.ew = bt.ew, e.w[:0]
+		ech <- e
+		for k := 0; k < bt.n; k++ {
+			w := bt.w[k]
+			t, r := bt.truth[k], bt.reco[k]
+			if r == codeOutside {
+				s.OutsideReco++
+			}
+			switch {
+			case t >= 0:
+				b.gen[t] += w
+				b.gen2[t] += w * w
+				if r >= 0 {
+					s.Entries++
+				} else {
+					s.Misses++
+				}
+			default:
+				if t == codeOutside {
+					s.OutsideTruth++
+				}
+				if r >= 0 {
+					b.fake[r] += w
+					b.fake2[r] += w * w
+					s.Fakes++
+				}
+			}
+			if withDiag {
+				if d := bt.diag[k]; d >= 0 {
+					b.rit[d] += w
+					if d == t {
+						b.diag[d] += w
+					}
+				}
+			}
+		}
+		return nil
+	}
+	n, batches, err := stream(ctx, &sim.Sample, opt, newWork, consume)
+	close(ech)
+	if aerr := <-accDone; aerr != nil && err == nil || errors.Is(err, context.Canceled) && aerr != nil {
+		err = aerr
+	}
+	b.seq += uint64(batches)
+	s.Events = n
+	if err != nil {
+		return s, err
+	}
+	b.sum.add(&s)
+	return s, nil
+}
+
+// Response returns the built response. The Builder must not be used
+// afterwards.
+func (b *Builder) Build() (*Built, error) {
+	m, rep, err := b.acc.Matrix()
+	b.acc = nil
+	if err != nil {
+		return nil, err
+	}
+	r := &Built{
+		Migrations: m,
+		Generated:  b.gen, GeneratedSumW2: b.gen2,
+		Fakes: b.fake, FakesSumW2: b.fake2,
+		Summary: b.sum,
+	}
+	r.Summary.NegativeCellCount = rep.NegativeCount
+	for _, c := range rep.Negative {
+		r.Summary.NegativeCells = append(r.Summary.NegativeCells, Cell{Reco: c.Row, Truth: c.Col, Value: c.SumW})
+	}
+	for j, g := range b.gen {
+		if g < 0 {
+			r.Summary.NegativeGenerated = append(r.Summary.NegativeGenerated, j)
+		}
+	}
+	if b.withDiag {
+		r.Diagonal, r.RecoInTruth = b.diag, b.rit
+	}
+	return r, nil
+}
+
+// Histogram is a reco-level histogram filled from events (data, or a
+// background sample).
+type Histogram struct {
+	// Values and SumW2 are the sums of weights and of squared weights
+	// per bin of the scheme.
+	Values, SumW2 []float64
+	// Events is the number of events read, Selected the number passing
+	// the selection, and Outside the number of those outside the scheme.
+	Events, Selected, Outside int64
+}
+
+// NewHistogram returns an empty histogram over a scheme of n bins.
+func NewHistogram(n int) *Histogram {
+	return &Histogram{Values: make([]float64, n), SumW2: make([]float64, n)}
+}
+
+// Add streams the events of s, located in scheme with the observables
+// and selection of l, into the histogram. Sums are formed in event
+// order, so the result does not depend on the number of workers.
+func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator, opt *Options) error {
+	if scheme.Len() != len(h.Values) {
+		panic("response: histogram and scheme sizes differ")
+	}
+	newWork := func() func(*scratch, *batch) error {
+		weight, lv := instantiate(s.Weight), l.instantiate()
+		return func(sc *scratch, bt *batch) error {
+			if err := evalWeights(s, weight, bt); err != nil {
+				return err
+			}
+			sc.locate(bt.reco, lv, scheme, bt.cols, bt.n)
+			return nil
+		}
+	}
+	var sel, out int64
+	consume := func(bt *batch) error {
+		for k := 0; k < bt.n; k++ {
+			switch r := bt.reco[k]; {
+			case r >= 0:
+				w := bt.w[k]
+				h.Values[r] += w
+				h.SumW2[r] += w * w
+				sel++
+			case r == codeOutside:
+				sel++
+				out++
+			}
+		}
+		return nil
+	}
+	n, _, err := stream(ctx, s, opt, newWork, consume)
+	h.Events += n
+	h.Selected += sel
+	h.Outside += out
+	return err
+}
+
+func instantiate(e Expr) Evaluator {
+	if e == nil {
+		return nil
+	}
+	return e()
+}

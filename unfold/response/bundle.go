@@ -1,0 +1,147 @@
+package response
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path/filepath"
+
+	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/result"
+)
+
+// A response bundle is a folder holding a built response:
+//
+//	response.json    format, sizes, the generated and fakes vectors with
+//	                 their sums of squared weights, the purity histograms,
+//	                 the summary and provenance (BundleInfo)
+//	migrations.dsm   the migration matrix with its sums of squared
+//	                 weights, in the sparse package's checksummed file
+//	                 format (sparse.Matrix.WriteTo, sparse.Load)
+//
+// It is written atomically: into a hidden temporary sibling folder that
+// is renamed into place (result.Temp, result.Install).
+const (
+	BundleFormat  = "desmear-response"
+	BundleVersion = 1
+	bundleJSON    = "response.json"
+	bundleMatrix  = "migrations.dsm"
+)
+
+// BundleFiles returns the names of the files of a response bundle.
+func BundleFiles() []string { return []string{bundleJSON, bundleMatrix} }
+
+// BundleInfo is the provenance stored with a response bundle.
+type BundleInfo struct {
+	// TruthScheme and RecoScheme identify the binning schemes the
+	// response was built for (for example a hash of their bin labels);
+	// the loader compares them with the schemes in use.
+	TruthScheme string `json:"truth_scheme"`
+	RecoScheme  string `json:"reco_scheme"`
+	// Inputs are the files the response was built from.
+	Inputs []Input `json:"inputs"`
+	// Program is the program version that built it.
+	Program string `json:"program"`
+	// Samples holds the counts of each simulated sample, in order.
+	Samples []SampleSummary `json:"samples,omitempty"`
+}
+
+// SampleSummary is the Summary of one sample (without cell lists).
+type SampleSummary struct {
+	File    string  `json:"file"`
+	Summary Summary `json:"summary"`
+}
+
+// Input is one input file: its role, path, size and SHA-256, the record
+// a result folder keeps of its inputs.
+type Input = result.Input
+
+type bundleDoc struct {
+	Format         string     `json:"format"`
+	Version        int        `json:"format_version"`
+	Info           BundleInfo `json:"info"`
+	TruthBins      int        `json:"truth_bins"`
+	RecoBins       int        `json:"reco_bins"`
+	Generated      []float64  `json:"generated"`
+	GeneratedSumW2 []float64  `json:"generated_sumw2"`
+	Fakes          []float64  `json:"fakes"`
+	FakesSumW2     []float64  `json:"fakes_sumw2"`
+	Diagonal       []float64  `json:"diagonal,omitempty"`
+	RecoInTruth    []float64  `json:"reco_in_truth,omitempty"`
+	Summary        Summary    `json:"summary"`
+}
+
+// Save writes r and info as a response bundle at dir. An existing dir is
+// refused unless replace is set and it is an earlier bundle.
+func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
+	if fi, err := os.Lstat(dir); err == nil {
+		if !replace {
+			return fmt.Errorf("%s exists (replace it with --force)", dir)
+		}
+		if _, err := os.Stat(filepath.Join(dir, bundleJSON)); !fi.IsDir() || err != nil {
+			return fmt.Errorf("%s exists and is not a response bundle; not replacing it", dir)
+		}
+	}
+	tmp, err := result.Temp(dir)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if err != nil {
+			os.RemoveAll(tmp)
+		}
+	}()
+	doc := bundleDoc{Format: BundleFormat, Version: BundleVersion, Info: info,
+		TruthBins: r.TruthBins(), RecoBins: r.RecoBins(),
+		Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2, Fakes: r.Fakes, FakesSumW2: r.FakesSumW2,
+		Diagonal: r.Diagonal, RecoInTruth: r.RecoInTruth, Summary: r.Summary}
+	b, err := json.MarshalIndent(&doc, "", " ")
+	if err != nil {
+		return err
+	}
+	if err := result.WriteSynced(filepath.Join(tmp, bundleJSON), func(w io.Writer) error { _, err := w.Write(b); return err }); err != nil {
+		return err
+	}
+	if err := result.WriteSynced(filepath.Join(tmp, bundleMatrix), func(w io.Writer) error { _, err := r.Migrations.WriteTo(w); return err }); err != nil {
+		return err
+	}
+	return result.Install(tmp, dir, replace)
+}
+
+// Load reads the response bundle at dir.
+func Load(dir string) (*Built, *BundleInfo, error) {
+	b, err := os.ReadFile(filepath.Join(dir, bundleJSON))
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			return nil, nil, fmt.Errorf("%s is not a response bundle (no %s in it)", dir, bundleJSON)
+		}
+		return nil, nil, err
+	}
+	var doc bundleDoc
+	if err := json.Unmarshal(b, &doc); err != nil {
+		return nil, nil, fmt.Errorf("%s: %v", filepath.Join(dir, bundleJSON), err)
+	}
+	if doc.Format != BundleFormat || doc.Version != BundleVersion {
+		return nil, nil, fmt.Errorf("%s: format %q version %d, want %q version %d", filepath.Join(dir, bundleJSON), doc.Format, doc.Version, BundleFormat, BundleVersion)
+	}
+	nt, nr := doc.TruthBins, doc.RecoBins
+	bad := len(doc.Generated) != nt || len(doc.GeneratedSumW2) != nt || len(doc.Fakes) != nr || len(doc.FakesSumW2) != nr ||
+		(doc.Diagonal != nil && len(doc.Diagonal) != nt) || (doc.RecoInTruth != nil && len(doc.RecoInTruth) != nt) ||
+		(doc.Diagonal == nil) != (doc.RecoInTruth == nil)
+	if bad {
+		return nil, nil, fmt.Errorf("%s: vector lengths do not match %d truth and %d reco bins", filepath.Join(dir, bundleJSON), nt, nr)
+	}
+	m, err := sparse.Load(filepath.Join(dir, bundleMatrix))
+	if err != nil {
+		return nil, nil, err
+	}
+	if rows, cols := m.Dims(); rows != nr || cols != nt {
+		return nil, nil, fmt.Errorf("%s: a %d×%d matrix, want %d×%d", filepath.Join(dir, bundleMatrix), rows, cols, nr, nt)
+	}
+	r := &Built{Migrations: m, Generated: doc.Generated, GeneratedSumW2: doc.GeneratedSumW2,
+		Fakes: doc.Fakes, FakesSumW2: doc.FakesSumW2, Diagonal: doc.Diagonal, RecoInTruth: doc.RecoInTruth, Summary: doc.Summary}
+	return r, &doc.Info, nil
+}

@@ -1,0 +1,47 @@
+// Package response builds responses and reco-level histograms from streamed
+// events.
+//
+// A simulated event is located in the truth scheme if it passes the
+// truth selection, and in the reco scheme if it passes the reco
+// selection. Then:
+//
+//   - located at both levels: a migration entry (reco bin i, truth bin j,
+//     weight w) of the matrix A;
+//   - located at truth level only: a miss. It counts in the generated
+//     spectrum G_j only, which lowers the efficiency eps_j = sum_i A_ij / G_j;
+//   - located at reco level only: a fake. Its weight goes into the
+//     expected background b_i and its squared weight into the
+//     background's variance.
+//
+// G_j is the sum of the weights of every event passing the truth
+// selection located in truth bin j. Flow bins are ordinary bins of the
+// schemes. An event that passes a selection but falls outside a scheme
+// (a flow it would need is switched off) is counted as outside at that
+// level and treated as not located there: truth outside with reco
+// inside is a fake, truth inside with reco outside is a miss.
+//
+// Purity and stability are defined on the truth binning, so that they
+// also mean something when the reco binning differs: the reco
+// observables of each event passing the reco selection are located in
+// the TRUTH scheme as well (Simulation.RecoInTruth). With D_j the weight
+// of events generated in truth bin j whose reco observables also fall in
+// j, and R_j the weight of all reco-selected events whose reco
+// observables fall in j, purity_j = D_j / R_j and stability_j = D_j / G_j.
+// For identical truth and reco binnings these are the usual definitions
+// (common practice).
+//
+// Events are streamed: the memory used is independent of the number of
+// events (a fixed number of batches in flight, plus the distinct cells
+// of the matrix). A fixed number of worker goroutines evaluate the
+// observables and locate the events of whole batches. The generated
+// spectrum, the fakes and the purity histograms are then summed on one
+// goroutine in event order, and the migration entries go, batch by batch
+// in event order, to a sparse.Accumulator, whose result depends only on
+// that ordered stream. So every result is the same bits whatever the
+// number of workers or the batch size.
+//
+// The package never draws anything: a progress callback reports the
+// events done. Problems with the input (a non-finite weight, a read
+// error) are returned as errors naming the sample and the event;
+// programmer errors (mismatched lengths) panic.
+package response

@@ -1,0 +1,406 @@
+package result
+
+import (
+	"encoding/csv"
+	"fmt"
+	"io"
+	"math"
+	"slices"
+	"strconv"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+)
+
+// Format and FormatVersion identify result.json files of this layout.
+// FormatVersion grows when a field changes meaning or disappears; new
+// fields may be added without changing it.
+const (
+	Format        = "desmear-result"
+	FormatVersion = 1
+)
+
+// Result is the schema of result.json. Arrays over truth bins have one
+// entry per global truth bin (flow bins included). No number is NaN or
+// infinite: bins the response cannot measure are flagged false in
+// Determined and carry 0 in Estimate, Uncertainty and Covariance.
+//
+// Commands that write more than the plain-table fields embed Result in
+// their own struct (its fields then appear at the top level of the JSON
+// object) or add fields here; readers must ignore fields they do not
+// know.
+type Result struct {
+	Format        string   `json:"format"`         // always Format
+	FormatVersion int      `json:"format_version"` // FormatVersion
+	Program       Program  `json:"program"`
+	Inputs        []Input  `json:"inputs"` // every input file, with its content hash
+	Settings      Settings `json:"settings"`
+
+	TruthBins int `json:"truth_bins"`
+	RecoBins  int `json:"reco_bins"`
+
+	// Estimate is the unfolded expected count per truth bin.
+	Estimate []float64 `json:"estimate"`
+	// Uncertainty is the square root of the data-statistical variance
+	// of each estimate; absent with covariance "none".
+	Uncertainty []float64 `json:"uncertainty,omitempty"`
+	// UncertaintyMethod is "linearised" (exact first-order propagation
+	// through every iteration), "linearised-probes" (the same, estimated
+	// with random probes) or "poisson-toys"; absent without uncertainty.
+	UncertaintyMethod string `json:"uncertainty_method,omitempty"`
+	// UncertaintyPrecision is the relative statistical precision of each
+	// variance (0 for the exact propagation); UncertaintySamples the
+	// number of probes or toys.
+	UncertaintyPrecision float64 `json:"uncertainty_precision,omitempty"`
+	UncertaintySamples   int     `json:"uncertainty_samples,omitempty"`
+	// Covariance is the full data-statistical covariance as an array of
+	// rows; only with covariance "full".
+	Covariance [][]float64 `json:"covariance,omitempty"`
+	// Determined flags the truth bins the response can measure
+	// (efficiency > 0).
+	Determined []bool `json:"determined"`
+	// Efficiency is eps_j = Σ_i A_ij / G_j.
+	Efficiency []float64 `json:"efficiency"`
+	// Folded is the expected reco spectrum of the estimate, R μ + b.
+	Folded []float64 `json:"folded"`
+	// ClippedRecoBins lists the reco bins where data minus background
+	// was negative and set to 0 (background mode "subtract").
+	ClippedRecoBins []int `json:"clipped_reco_bins,omitempty"`
+
+	// Iterations is the number of iterations made; Converged reports
+	// that the stop-chi2 criterion was met (false with a fixed number).
+	Iterations int    `json:"iterations"`
+	Converged  bool   `json:"converged"`
+	History    []Step `json:"history"`
+
+	// TruthBinning and RecoBinning describe the binning schemes when
+	// they were given.
+	TruthBinning *Binning `json:"truth_binning,omitempty"`
+	RecoBinning  *Binning `json:"reco_binning,omitempty"`
+}
+
+// Program names the program that wrote a result.
+type Program struct {
+	Name    string `json:"name"`
+	Version string `json:"version"`
+}
+
+// Input is one input file of a result: its role (for example
+// "response", "data", "truth-binning"), its path as given, its size in
+// bytes and the SHA-256 of its content (lower-case hex).
+type Input struct {
+	Role   string `json:"role"`
+	Path   string `json:"path"`
+	Bytes  int64  `json:"bytes"`
+	SHA256 string `json:"sha256"`
+}
+
+// Settings are the unfolding settings in force, defaults filled in.
+type Settings struct {
+	// Iterations is the fixed number of iterations; 0 with a stopping rule.
+	Iterations int `json:"iterations,omitempty"`
+	// StopChi2 and MaxIterations are the stopping rule, when used.
+	StopChi2      float64 `json:"stop_chi2,omitempty"`
+	MaxIterations int     `json:"max_iterations,omitempty"`
+	// Prior is "generated" (the generated spectrum) or "table" (given).
+	Prior string `json:"prior"`
+	// Background is "model" or "subtract"; absent without background.
+	Background string `json:"background_mode,omitempty"`
+	// Smoothing is the smoothing strength; absent without smoothing.
+	Smoothing float64 `json:"smoothing,omitempty"`
+	// Covariance is "none", "diag" or "full"; DiagonalMethod the method
+	// of "diag": "auto", "exact", "probes" or "toys".
+	Covariance     string `json:"covariance"`
+	DiagonalMethod string `json:"diagonal_method,omitempty"`
+	Probes         int    `json:"probes,omitempty"`
+	Toys           int    `json:"toys,omitempty"`
+	Seed           uint64 `json:"seed"`
+	// MemoryLimit is the memory limit of the uncertainty computation in
+	// bytes.
+	MemoryLimit int64 `json:"memory_limit"`
+}
+
+// Step is one iteration of the history; iteration 0 is the start.
+type Step struct {
+	Iteration     int     `json:"iteration"`
+	Chi2          float64 `json:"chi2"`
+	Change        float64 `json:"change"`
+	LogLikelihood float64 `json:"log_likelihood"`
+}
+
+// Binning describes a binning scheme: its file, sizes, axes, regions,
+// and per global bin a label, its region (index into Regions) and whether
+// it is a flow bin. Bin edges are in result.csv (JSON cannot hold the
+// infinite edges of flow bins).
+type Binning struct {
+	File    string   `json:"file,omitempty"`
+	Bins    int      `json:"bins"`
+	InRange int      `json:"in_range"`
+	Axes    []Axis   `json:"axes"`
+	Regions []string `json:"regions"`
+	Labels  []string `json:"labels"`
+	Region  []int    `json:"region"`
+	Flow    []bool   `json:"flow"`
+}
+
+// Axis names an axis of a binning and its unit.
+type Axis struct {
+	Name string `json:"name"`
+	Unit string `json:"unit,omitempty"`
+}
+
+// DescribeBinning returns the description of scheme s read from file.
+func DescribeBinning(s *binning.Scheme, file string) *Binning {
+	b := &Binning{File: file, Bins: s.Len(), InRange: s.InRange()}
+	for _, name := range s.AxisNames() {
+		unit, _ := s.AxisUnit(name)
+		b.Axes = append(b.Axes, Axis{Name: name, Unit: unit})
+	}
+	for _, r := range s.Regions() {
+		b.Regions = append(b.Regions, r.Name())
+	}
+	n := s.Len()
+	b.Labels = make([]string, n)
+	b.Region = make([]int, n)
+	b.Flow = make([]bool, n)
+	for g := 0; g < n; g++ {
+		bin := s.Bin(g)
+		b.Labels[g] = s.Label(g)
+		b.Region[g] = bin.Region
+		b.Flow[g] = bin.Flow
+	}
+	return b
+}
+
+// DescribeSettings returns the settings in force for s (nil means the
+// defaults), with the kernel's defaults filled in. prior says where the
+// prior came from ("generated" or "table"); withBackground whether a
+// background was given.
+func DescribeSettings(s *unfold.Settings, prior string, withBackground bool) Settings {
+	var z unfold.Settings
+	if s != nil {
+		z = *s
+	}
+	d := Settings{Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
+	if z.StopChi2 > 0 {
+		d.StopChi2 = z.StopChi2
+		d.MaxIterations = z.MaxIterations
+		if d.MaxIterations == 0 {
+			d.MaxIterations = unfold.DefaultMaxIterations
+		}
+	} else {
+		d.Iterations = z.Iterations
+		if d.Iterations == 0 {
+			d.Iterations = unfold.DefaultIterations
+		}
+	}
+	if withBackground {
+		d.Background = map[unfold.BackgroundMode]string{unfold.InModel: "model", unfold.Subtract: "subtract"}[z.Background]
+	}
+	if z.Smoothing != nil {
+		d.Smoothing = z.Smoothing.Strength
+		if d.Smoothing == 0 {
+			d.Smoothing = 1
+		}
+	}
+	if z.Covariance == unfold.Diagonal {
+		d.DiagonalMethod = z.DiagonalMethod.String()
+		switch z.DiagonalMethod {
+		case unfold.DiagonalAuto, unfold.DiagonalProbes:
+			d.Probes = z.Probes
+			if d.Probes == 0 {
+				d.Probes = unfold.DefaultProbes
+			}
+		case unfold.DiagonalToys:
+			d.Toys = z.Toys
+			if d.Toys == 0 {
+				d.Toys = unfold.DefaultToys
+			}
+		}
+	}
+	if d.MemoryLimit == 0 {
+		d.MemoryLimit = unfold.DefaultMemoryLimit
+	}
+	return d
+}
+
+// FromUnfold fills the estimate, uncertainty, covariance, efficiency,
+// iteration and history fields of a new Result from the kernel's result,
+// with Format and FormatVersion set. Bins not determined get 0. It
+// returns an error if any number is NaN or infinite (which valid inputs
+// never produce). Program, Inputs, Settings and the binnings are left
+// for the caller.
+func FromUnfold(res *unfold.Result) (*Result, error) {
+	nt := len(res.Estimate)
+	r := &Result{
+		Format: Format, FormatVersion: FormatVersion,
+		TruthBins:            nt,
+		RecoBins:             len(res.Folded),
+		Estimate:             make([]float64, nt),
+		Determined:           make([]bool, nt),
+		Efficiency:           make([]float64, nt),
+		Folded:               slices.Clone(res.Folded),
+		ClippedRecoBins:      res.Clipped,
+		UncertaintyMethod:    res.UncertaintyMethod,
+		UncertaintyPrecision: res.UncertaintyPrecision,
+		UncertaintySamples:   res.Samples,
+		Iterations:           res.Iterations,
+		Converged:            res.Converged,
+		History:              make([]Step, len(res.History)),
+	}
+	copy(r.Determined, res.Determined)
+	copy(r.Efficiency, res.Efficiency)
+	for j := range r.Estimate {
+		if r.Determined[j] {
+			r.Estimate[j] = res.Estimate[j]
+		}
+	}
+	if res.Uncertainty != nil {
+		r.Uncertainty = make([]float64, nt)
+		for j := range r.Uncertainty {
+			if r.Determined[j] {
+				r.Uncertainty[j] = res.Uncertainty[j]
+			}
+		}
+	}
+	if res.Covariance != nil {
+		r.Covariance = make([][]float64, nt)
+		for i := range r.Covariance {
+			row := make([]float64, nt)
+			if r.Determined[i] {
+				for j := range row {
+					if r.Determined[j] {
+						row[j] = res.Covariance.At(i, j)
+					}
+				}
+			}
+			r.Covariance[i] = row
+		}
+	}
+	for k, s := range res.History {
+		r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
+	}
+	if err := r.checkFinite(); err != nil {
+		return nil, err
+	}
+	return r, nil
+}
+
+// checkFinite returns an error naming the first NaN or infinity.
+func (r *Result) checkFinite() error {
+	vecs := []struct {
+		name string
+		v    []float64
+	}{{"estimate", r.Estimate}, {"uncertainty", r.Uncertainty}, {"efficiency", r.Efficiency}, {"folded", r.Folded}}
+	for _, x := range vecs {
+		for i, v := range x.v {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("result: %s[%d] is %v", x.name, i, v)
+			}
+		}
+	}
+	for i, row := range r.Covariance {
+		for j, v := range row {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("result: covariance[%d][%d] is %v", i, j, v)
+			}
+		}
+	}
+	for _, s := range r.History {
+		for _, v := range []float64{s.Chi2, s.Change, s.LogLikelihood} {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("result: history of iteration %d holds %v", s.Iteration, v)
+			}
+		}
+	}
+	return nil
+}
+
+// WriteCSV writes the per-bin table of r as CSV: the columns index; with
+// a truth binning s (nil for none) region, flow and, for every axis of
+// the scheme, NAME_low and NAME_high (empty for bins whose region lacks
+// the axis; "-inf" and "inf" on the open side of flow bins); then
+// estimate, uncertainty (only when r has one), determined and efficiency.
+func WriteCSV(w io.Writer, r *Result, s *binning.Scheme) error {
+	nt := len(r.Estimate)
+	if s != nil && s.Len() != nt {
+		return fmt.Errorf("result: truth binning has %d bins, the result %d", s.Len(), nt)
+	}
+	cw := csv.NewWriter(w)
+	header := []string{"index"}
+	var axes []string
+	if s != nil {
+		axes = s.AxisNames()
+		header = append(header, "region", "flow")
+		for _, a := range axes {
+			header = append(header, a+"_low", a+"_high")
+		}
+	}
+	header = append(header, "estimate")
+	if r.Uncertainty != nil {
+		header = append(header, "uncertainty")
+	}
+	header = append(header, "determined", "efficiency")
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	rec := make([]string, len(header))
+	for j := 0; j < nt; j++ {
+		rec = rec[:0]
+		rec = append(rec, strconv.Itoa(j))
+		if s != nil {
+			bin := s.Bin(j)
+			rec = append(rec, bin.RegionName, strconv.FormatBool(bin.Flow))
+			for _, a := range axes {
+				lo, hi := "", ""
+				for k, name := range bin.Axes {
+					if name == a {
+						lo, hi = formatEdge(bin.Low[k]), formatEdge(bin.High[k])
+					}
+				}
+				rec = append(rec, lo, hi)
+			}
+		}
+		rec = append(rec, formatFloat(r.Estimate[j]))
+		if r.Uncertainty != nil {
+			rec = append(rec, formatFloat(r.Uncertainty[j]))
+		}
+		rec = append(rec, strconv.FormatBool(r.Determined[j]), formatFloat(r.Efficiency[j]))
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+func formatFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+func formatEdge(v float64) string {
+	switch {
+	case math.IsInf(v, -1):
+		return "-inf"
+	case math.IsInf(v, 1):
+		return "inf"
+	}
+	return formatFloat(v)
+}
+
+// WriteResult writes r to result.json and its per-bin table to
+// result.csv in folder f (s is the truth binning, nil for none).
+func (f *Folder) WriteResult(r *Result, s *binning.Scheme) error {
+	if err := r.checkFinite(); err != nil {
+		return err
+	}
+	if err := f.WriteJSON(JSONFile, r); err != nil {
+		return err
+	}
+	w, err := f.Create(CSVFile)
+	if err != nil {
+		return err
+	}
+	if err := WriteCSV(w, r, s); err != nil {
+		return err
+	}
+	return w.Close()
+}
