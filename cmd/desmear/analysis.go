@@ -18,10 +18,10 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/inputs/observable"
-	"github.com/desmear/desmear/unfold/result"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from

@@ -16,8 +16,8 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/inputs/events"
-	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/response"
 )
 
 const cliAnalysis = `title: two-dimensional test analysis

@@ -14,9 +14,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
-	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 type responseOptions struct {

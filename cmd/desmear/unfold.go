@@ -18,8 +18,8 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/result"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // unfoldOptions are the options of "desmear unfold" in plain-table mode.

@@ -9,8 +9,8 @@ import (
 	"strings"
 
 	"github.com/desmear/desmear/unfold/inputs/events"
-	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/inputs/observable"
+	"github.com/desmear/desmear/unfold/response"
 )
 
 // compiler compiles the expressions of one events file: first against

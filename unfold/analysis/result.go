@@ -13,9 +13,9 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
-	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // OutputError is a failure to write the result folder (the inputs were

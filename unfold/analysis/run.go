@@ -12,9 +12,9 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
-	"github.com/desmear/desmear/unfold/inputs/tables"
 )
 
 // Options control how an analysis runs. The zero value is usable.

@@ -16,9 +16,9 @@ import (
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
-	"github.com/desmear/desmear/unfold/response"
-	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/internal/rootio"
+	"github.com/desmear/desmear/unfold/response"
 )
 
 var simColumns = []string{"x_true", "x_reco", "w", "ok_true", "ok_reco"}
