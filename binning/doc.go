@@ -76,6 +76,8 @@
 //
 // Decode and ReadFile read a scheme from YAML (see Decode for the format),
 // strictly: every problem is an *Error naming the file, line and field.
+// DecodeNode reads a scheme already parsed as a yaml.Node, such as one
+// written inline in a larger YAML file, keeping that file's positions.
 //
 // # Conventions
 //

@@ -84,11 +84,25 @@ func Decode(r io.Reader, filename string) (*Scheme, error) {
 	if err := yaml.Unmarshal(data, &doc); err != nil {
 		return nil, &Error{File: filename, Line: yamlErrorLine(err), Msg: "not valid YAML: " + err.Error()}
 	}
-	d := decoder{file: filename}
-	if doc.Kind != yaml.DocumentNode || len(doc.Content) == 0 {
-		return nil, d.errf(&doc, "", "the file is empty; a scheme needs a list of regions under the key %q", "regions")
+	return DecodeNode(&doc, filename)
+}
+
+// DecodeNode decodes the scheme in n, a YAML mapping in the format
+// Decode reads (or a document node holding one), for a scheme written
+// inside a larger YAML file. It checks what Decode checks; an *Error
+// names file, the line and column in n's tree and the field below n.
+func DecodeNode(n *yaml.Node, file string) (*Scheme, error) {
+	d := decoder{file: file}
+	if n == nil {
+		return nil, &Error{File: file, Msg: fmt.Sprintf("no scheme; a scheme needs a list of regions under the key %q", "regions")}
 	}
-	return d.scheme(doc.Content[0])
+	if n.Kind == yaml.DocumentNode || n.Kind == 0 {
+		if len(n.Content) == 0 {
+			return nil, d.errf(n, "", "the file is empty; a scheme needs a list of regions under the key %q", "regions")
+		}
+		n = n.Content[0]
+	}
+	return d.scheme(n)
 }
 
 // yamlErrorLine extracts the line number from a yaml.v3 syntax error

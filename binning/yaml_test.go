@@ -10,6 +10,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"go.yaml.in/yaml/v3"
 )
 
 // TestDecodeErrors checks that each problem in a scheme file is an *Error
@@ -436,5 +438,41 @@ func TestDecodeTooManyBins(t *testing.T) {
 	_, err = Decode(strings.NewReader(b.String()), "big.yaml")
 	if !errors.As(err, &e) || e.Line != 2 || e.Field != "regions" || !strings.Contains(e.Msg, "at most") {
 		t.Errorf("a scheme of 3·2^26 bins: %v, want an *Error at line 2, regions, saying at most", err)
+	}
+}
+
+// A scheme inside a larger YAML document decodes from its node, the
+// same as from its own file, and its errors keep the positions of the
+// larger document with the field below the node.
+func TestDecodeNode(t *testing.T) {
+	const outer = `title: outer
+scheme:
+  regions:
+    - name: a
+      axes: [{name: x, edges: [0, 1, 2]}]
+`
+	var doc yaml.Node
+	if err := yaml.Unmarshal([]byte(outer), &doc); err != nil {
+		t.Fatal(err)
+	}
+	n := doc.Content[0].Content[3]
+	s, err := DecodeNode(n, "outer.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.Len() != 2 {
+		t.Errorf("%d bins, want 2", s.Len())
+	}
+	bad := strings.Replace(outer, "[0, 1, 2]", "[0, 2, 1]", 1)
+	if err := yaml.Unmarshal([]byte(bad), &doc); err != nil {
+		t.Fatal(err)
+	}
+	_, err = DecodeNode(doc.Content[0].Content[3], "outer.yaml")
+	var e *Error
+	if !errors.As(err, &e) || e.File != "outer.yaml" || e.Line != 5 || e.Field != "regions[0].axes[0].edges[2]" {
+		t.Errorf("got %#v, want an *Error at outer.yaml:5 on regions[0].axes[0].edges[2]", err)
+	}
+	if _, err := DecodeNode(nil, "outer.yaml"); err == nil {
+		t.Error("no error for a nil node")
 	}
 }

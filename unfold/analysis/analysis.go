@@ -177,11 +177,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	a := &Analysis{File: path, Dir: filepath.Dir(path), Title: doc.Title}
 
 	// Binning.
-	a.Truth, a.TruthFile, err = schemeFrom(path, a.Dir, "binning.truth", src, doc.Binning.Truth.node)
+	a.Truth, a.TruthFile, err = schemeFrom(path, a.Dir, "binning.truth", doc.Binning.Truth.node)
 	if err != nil {
 		return nil, err
 	}
-	a.Reco, a.RecoFile, err = schemeFrom(path, a.Dir, "binning.reco", src, doc.Binning.Reco.node)
+	a.Reco, a.RecoFile, err = schemeFrom(path, a.Dir, "binning.reco", doc.Binning.Reco.node)
 	if err != nil {
 		return nil, err
 	}

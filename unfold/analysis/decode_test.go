@@ -79,6 +79,12 @@ func TestDecodeErrors(t *testing.T) {
 		// right article.
 		{"  iterations: 3", "  iterations: [3]", `testdata/bad.yaml:26: unfolding.iterations: the value is a list, want a whole number`},
 		{"  folder: out", "  folder: out\n  formats: 5", `value 5 is an integer, want a list`},
+		// The field of a wrong value is its own path, also inside a list
+		// or when the wrong value is a mapping.
+		{"  folder: out", "  folder: out\n  formats: [json, [csv]]", `testdata/bad.yaml:32: output.formats[1]: the value is a list, want a string`},
+		{"  iterations: 3", "  iterations: {n: 3}", `testdata/bad.yaml:26: unfolding.iterations: the value is a mapping, want a whole number`},
+		{"  iterations: 3", "  iterations: 3\n  iterations: 4", `testdata/bad.yaml:27: unfolding.iterations: given twice (first on line 26)`},
+		{"title: test analysis", "title: [a, b]", `testdata/bad.yaml:1: title: the value is a list, want a string`},
 		// A limit that truncates to 0 bytes (the kernel's default) is refused.
 		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 1e-12", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},
 		{"  iterations: 3", "  iterations: 3\n  memory_limit_gib: 0", `testdata/bad.yaml:27: unfolding.memory_limit_gib: must be a positive number of GiB`},

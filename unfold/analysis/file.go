@@ -8,7 +8,6 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
-	"regexp"
 	"strconv"
 	"strings"
 
@@ -175,159 +174,227 @@ func (es Errors) Unwrap() []error {
 	return out
 }
 
-var (
-	lineRe    = regexp.MustCompile(`^line (\d+): (.*)$`)
-	unknownRe = regexp.MustCompile(`^field (\S+) not found in type (\S+)$`)
-	typeRe    = regexp.MustCompile(`^cannot unmarshal (\S+)(?: (.*))? into (\S+)$`)
-)
+// sections names each section type of the file in messages.
+var sections = map[reflect.Type]string{
+	reflect.TypeFor[fileDoc]():       "the top level",
+	reflect.TypeFor[binningDoc]():    "binning",
+	reflect.TypeFor[levelsDoc]():     "observables",
+	reflect.TypeFor[sampleDoc]():     "a simulation sample",
+	reflect.TypeFor[dataDoc]():       "data",
+	reflect.TypeFor[bkgDoc]():        "a background",
+	reflect.TypeFor[unfoldingDoc]():  "unfolding",
+	reflect.TypeFor[uncertainDoc]():  "uncertainty",
+	reflect.TypeFor[outputDoc]():     "output",
+	reflect.TypeFor[processingDoc](): "processing",
+}
 
-// allowed lists the keys of each section type, for unknown-key messages.
-var allowed = map[string]reflect.Type{}
+// lists describes the list sections in messages.
+var lists = map[reflect.Type]string{
+	reflect.TypeFor[[]sampleDoc](): "a list of simulated samples (- file: ...)",
+	reflect.TypeFor[[]bkgDoc]():    "a list of backgrounds (- name: ...)",
+}
 
-func init() {
-	for _, v := range []any{fileDoc{}, binningDoc{}, levelsDoc{}, sampleDoc{}, dataDoc{}, bkgDoc{}, unfoldingDoc{}, uncertainDoc{}, outputDoc{}, processingDoc{}} {
-		t := reflect.TypeOf(v)
-		allowed["analysis."+t.Name()] = t
+var unmarshaler = reflect.TypeFor[yaml.Unmarshaler]()
+
+// keyField returns the index of the field of struct type t whose key is
+// key, or -1.
+func keyField(t reflect.Type, key string) int {
+	for i := range t.NumField() {
+		if t.Field(i).Tag.Get("yaml") == key {
+			return i
+		}
 	}
+	return -1
 }
 
 func keysOf(t reflect.Type) []string {
 	var keys []string
-	for i := 0; i < t.NumField(); i++ {
-		tag := t.Field(i).Tag.Get("yaml")
-		if tag != "" && tag != "-" {
+	for i := range t.NumField() {
+		if tag := t.Field(i).Tag.Get("yaml"); tag != "" && tag != "-" {
 			keys = append(keys, tag)
 		}
 	}
 	return keys
 }
 
-func sectionName(typ string) string {
-	switch typ {
-	case "analysis.fileDoc":
-		return "the top level"
-	case "analysis.binningDoc":
-		return "binning"
-	case "analysis.levelsDoc":
-		return "observables"
-	case "analysis.sampleDoc":
-		return "a simulation sample"
-	case "analysis.dataDoc":
-		return "data"
-	case "analysis.bkgDoc":
-		return "a background"
-	case "analysis.unfoldingDoc":
-		return "unfolding"
-	case "analysis.uncertainDoc":
-		return "uncertainty"
-	case "analysis.outputDoc":
-		return "output"
-	case "analysis.processingDoc":
-		return "processing"
+// wantName describes the Go type t as the kind of value a key wants.
+func wantName(t reflect.Type) string {
+	if s, ok := lists[t]; ok {
+		return s
 	}
-	return typ
+	switch t.Kind() {
+	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64,
+		reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64:
+		return "a whole number"
+	case reflect.Float32, reflect.Float64:
+		return "a number"
+	case reflect.String:
+		return "a string"
+	case reflect.Bool:
+		return "true or false"
+	case reflect.Slice:
+		return "a list"
+	case reflect.Struct:
+		return "a mapping (" + sections[t] + ")"
+	}
+	return t.String()
 }
 
-// translate turns the YAML library's messages into Errors of file; root,
-// when not nil, is the document's node tree, used to name the field of
-// a type error.
-func translate(file string, err error, root *yaml.Node) error {
-	var te *yaml.TypeError
-	if errors.As(err, &te) {
-		var es Errors
-		for _, m := range te.Errors {
-			e := &Error{File: file, Msg: m}
-			if sm := lineRe.FindStringSubmatch(m); sm != nil {
-				e.Line, _ = strconv.Atoi(sm[1])
-				e.Msg = sm[2]
-			}
-			if sm := unknownRe.FindStringSubmatch(e.Msg); sm != nil {
-				e.Field = sm[1]
-				if t, ok := allowed[sm[2]]; ok {
-					e.Msg = fmt.Sprintf("unknown key in %s (known keys: %s)", sectionName(sm[2]), strings.Join(keysOf(t), ", "))
-				} else {
-					e.Msg = "unknown key"
-				}
-			} else if sm := typeRe.FindStringSubmatch(e.Msg); sm != nil {
-				kind := strings.TrimPrefix(sm[1], "!!")
-				switch kind {
-				case "map":
-					kind = "a mapping"
-				case "seq":
-					kind = "a list"
-				case "str":
-					kind = "a string"
-				case "int":
-					kind = "an integer"
-				case "float":
-					kind = "a number"
-				case "bool":
-					kind = "true or false"
-				case "null":
-					kind = "empty (null)"
-				default:
-					kind = "a " + kind
-				}
-				if v := strings.Trim(sm[2], "`"); v != "" {
-					e.Msg = fmt.Sprintf("value %s is %s, want %s", v, kind, goTypeName(sm[3]))
-				} else {
-					e.Msg = fmt.Sprintf("the value is %s, want %s", kind, goTypeName(sm[3]))
-				}
-				if root != nil {
-					e.Field = fieldAtLine(root, e.Line, sm[1])
-				}
-			}
-			es = append(es, e)
-		}
-		return es
+// kindName describes the YAML value n.
+func kindName(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.MappingNode:
+		return "a mapping"
+	case yaml.SequenceNode:
+		return "a list"
 	}
+	switch tag := n.ShortTag(); tag {
+	case "!!str":
+		return "a string"
+	case "!!int":
+		return "an integer"
+	case "!!float":
+		return "a number"
+	case "!!bool":
+		return "true or false"
+	case "!!null":
+		return "empty (null)"
+	default:
+		return "a " + strings.TrimPrefix(tag, "!!")
+	}
+}
+
+// checkNode walks n against t, the Go type its value decodes into, the
+// way the YAML library decodes it, and appends to es each unknown or
+// repeated key and each value of the wrong kind. field is n's path.
+func checkNode(es *Errors, file string, n *yaml.Node, t reflect.Type, field string) {
+	if n.Kind == yaml.AliasNode {
+		n = n.Alias
+	}
+	if n == nil || reflect.PointerTo(t).Implements(unmarshaler) {
+		return
+	}
+	if n.Kind == yaml.ScalarNode && n.ShortTag() == "!!null" {
+		return // an empty value leaves the zero value
+	}
+	wrong := func() {
+		e := &Error{File: file, Line: n.Line, Field: field}
+		if n.Kind == yaml.ScalarNode {
+			e.Msg = fmt.Sprintf("value %s is %s, want %s", n.Value, kindName(n), wantName(t))
+		} else {
+			e.Msg = fmt.Sprintf("the value is %s, want %s", kindName(n), wantName(t))
+		}
+		*es = append(*es, e)
+	}
+	switch t.Kind() {
+	case reflect.Struct:
+		if n.Kind != yaml.MappingNode {
+			wrong()
+			return
+		}
+		checkMapping(es, file, n, t, field, map[string]int{})
+	case reflect.Slice:
+		if n.Kind != yaml.SequenceNode {
+			wrong()
+			return
+		}
+		for i, c := range n.Content {
+			checkNode(es, file, c, t.Elem(), fmt.Sprintf("%s[%d]", field, i))
+		}
+	default:
+		if n.Kind != yaml.ScalarNode || n.Decode(reflect.New(t).Interface()) != nil {
+			wrong()
+		}
+	}
+}
+
+// checkMapping checks the keys and values of the mapping n against the
+// struct type t; seen holds the line of each key already given, across
+// merged mappings (<<: *anchor).
+func checkMapping(es *Errors, file string, n *yaml.Node, t reflect.Type, field string, seen map[string]int) {
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		k, v := n.Content[i], n.Content[i+1]
+		if k.Kind == yaml.ScalarNode && k.ShortTag() == "!!merge" {
+			if v.Kind == yaml.AliasNode {
+				v = v.Alias
+			}
+			merged := []*yaml.Node{v}
+			if v != nil && v.Kind == yaml.SequenceNode {
+				merged = v.Content
+			}
+			for _, m := range merged {
+				if m != nil && m.Kind == yaml.AliasNode {
+					m = m.Alias
+				}
+				if m == nil || m.Kind != yaml.MappingNode {
+					*es = append(*es, &Error{File: file, Line: k.Line, Field: field, Msg: "a merge (<<) takes a mapping or a list of mappings"})
+					continue
+				}
+				checkMapping(es, file, m, t, field, seen)
+			}
+			continue
+		}
+		j := keyField(t, k.Value)
+		if k.Kind != yaml.ScalarNode || j < 0 {
+			*es = append(*es, &Error{File: file, Line: k.Line, Field: k.Value,
+				Msg: fmt.Sprintf("unknown key in %s (known keys: %s)", sections[t], strings.Join(keysOf(t), ", "))})
+			continue
+		}
+		sub := k.Value
+		if field != "" {
+			sub = field + "." + k.Value
+		}
+		if line, dup := seen[k.Value]; dup {
+			*es = append(*es, &Error{File: file, Line: k.Line, Field: sub, Msg: fmt.Sprintf("given twice (first on line %d); give each key once", line)})
+			continue
+		}
+		seen[k.Value] = k.Line
+		checkNode(es, file, v, t.Field(j).Type, sub)
+	}
+}
+
+// syntaxError is a YAML syntax error as an Error of file, the line the
+// library names kept apart from the message.
+func syntaxError(file string, err error) *Error {
 	e := &Error{File: file, Msg: strings.TrimPrefix(err.Error(), "yaml: "), Err: err}
-	if sm := lineRe.FindStringSubmatch(e.Msg); sm != nil {
-		e.Line, _ = strconv.Atoi(sm[1])
-		e.Msg = sm[2]
+	if rest, ok := strings.CutPrefix(e.Msg, "line "); ok {
+		num, msg, ok := strings.Cut(rest, ": ")
+		if l, err := strconv.Atoi(num); ok && err == nil {
+			e.Line, e.Msg = l, msg
+		}
 	}
 	return e
 }
 
-func goTypeName(t string) string {
-	switch {
-	case strings.HasPrefix(t, "int"), strings.HasPrefix(t, "uint"):
-		return "a whole number"
-	case strings.HasPrefix(t, "float"):
-		return "a number"
-	case t == "string":
-		return "a string"
-	case t == "[]analysis.sampleDoc":
-		return "a list of simulated samples (- file: ...)"
-	case t == "[]analysis.bkgDoc":
-		return "a list of backgrounds (- name: ...)"
-	case strings.HasPrefix(t, "[]"):
-		return "a list"
-	case strings.HasPrefix(t, "analysis."):
-		return "a mapping (" + sectionName(t) + ")"
-	}
-	return t
-}
-
 // parse decodes src strictly into the document structure and the node
-// tree (kept for positions).
+// tree (kept for positions): the tree is checked against the structure
+// by checkNode before it is decoded.
 func parse(file string, src []byte) (*fileDoc, *yaml.Node, error) {
-	var root yaml.Node
-	if err := yaml.Unmarshal(src, &root); err != nil {
-		return nil, nil, translate(file, err, nil)
-	}
-	var doc fileDoc
 	dec := yaml.NewDecoder(bytes.NewReader(src))
-	dec.KnownFields(true)
-	if err := dec.Decode(&doc); err != nil {
+	var root yaml.Node
+	if err := dec.Decode(&root); err != nil {
 		if errors.Is(err, io.EOF) {
 			return nil, nil, &Error{File: file, Msg: "the file is empty"}
 		}
-		return nil, nil, translate(file, err, &root)
+		return nil, nil, syntaxError(file, err)
 	}
 	var extra yaml.Node
 	if err := dec.Decode(&extra); err == nil {
 		return nil, nil, &Error{File: file, Line: extra.Line, Msg: "a second YAML document (---) is not allowed"}
+	} else if !errors.Is(err, io.EOF) {
+		return nil, nil, syntaxError(file, err)
+	}
+	var es Errors
+	for _, n := range root.Content {
+		checkNode(&es, file, n, reflect.TypeFor[fileDoc](), "")
+	}
+	if len(es) > 0 {
+		return nil, nil, es
+	}
+	var doc fileDoc
+	if err := root.Decode(&doc); err != nil {
+		// checkNode lets through only what decodes.
+		return nil, nil, &Error{File: file, Msg: err.Error(), Err: err}
 	}
 	return &doc, &root, nil
 }
@@ -368,7 +435,7 @@ func nodeAt(root *yaml.Node, path ...any) *yaml.Node {
 // schemeFrom decodes a binning scheme given inline (a mapping) or by a
 // path relative to dir. Errors inside an inline scheme keep the line
 // numbers of the analysis file.
-func schemeFrom(file, dir, field string, src []byte, n *yaml.Node) (*binning.Scheme, string, error) {
+func schemeFrom(file, dir, field string, n *yaml.Node) (*binning.Scheme, string, error) {
 	switch {
 	case n == nil:
 		return nil, "", &Error{File: file, Field: field, Msg: "missing: give a binning scheme file or an inline scheme"}
@@ -384,8 +451,7 @@ func schemeFrom(file, dir, field string, src []byte, n *yaml.Node) (*binning.Sch
 		}
 		return s, path, nil
 	case n.Kind == yaml.MappingNode:
-		text := inlineText(src, n)
-		s, err := binning.Decode(strings.NewReader(text), file)
+		s, err := binning.DecodeNode(n, file)
 		if err != nil {
 			var be *binning.Error
 			if errors.As(err, &be) {
@@ -404,53 +470,6 @@ func schemeFrom(file, dir, field string, src []byte, n *yaml.Node) (*binning.Sch
 	return nil, "", &Error{File: file, Line: n.Line, Field: field, Msg: "want a file name or a mapping with the scheme's regions"}
 }
 
-// inlineText returns the source text of the mapping n, blanked outside
-// it so that line and column numbers are those of the whole file.
-func inlineText(src []byte, n *yaml.Node) string {
-	lines := strings.Split(string(src), "\n")
-	first := n.Line - 1
-	last := maxLine(n) - 1
-	// Continue over lines indented deeper than the mapping's first key
-	// (closing brackets of flow collections, wrapped values).
-	for last+1 < len(lines) {
-		l := lines[last+1]
-		t := strings.TrimLeft(l, " ")
-		if t != "" && !strings.HasPrefix(t, "#") && len(l)-len(t) < n.Column-1 {
-			break
-		}
-		if t != "" && !strings.HasPrefix(t, "#") && len(l)-len(t) == n.Column-1 && n.Style&yaml.FlowStyle == 0 {
-			// a sibling key at the same indentation belongs to the mapping
-			// only if the mapping's own keys sit there, which maxLine covers.
-			break
-		}
-		last++
-	}
-	var b strings.Builder
-	for i := 0; i < first; i++ {
-		b.WriteByte('\n')
-	}
-	for i := first; i <= last && i < len(lines); i++ {
-		l := lines[i]
-		if i == first {
-			c := min(n.Column-1, len(l))
-			l = strings.Repeat(" ", c) + l[c:]
-		}
-		b.WriteString(l)
-		b.WriteByte('\n')
-	}
-	return b.String()
-}
-
-func maxLine(n *yaml.Node) int {
-	m := n.Line
-	for _, c := range n.Content {
-		if l := maxLine(c); l > m {
-			m = l
-		}
-	}
-	return m
-}
-
 func resolve(dir, p string) string {
 	if p == "" || filepath.IsAbs(p) {
 		return p
@@ -466,48 +485,4 @@ func unwrapPath(err error) error {
 		return pe.Err
 	}
 	return err
-}
-
-// fieldAtLine returns the path of the value of the given YAML kind
-// (the tag in the library's message: !!map, !!seq, or a scalar tag) that
-// starts on line, for messages ("" if none).
-func fieldAtLine(root *yaml.Node, line int, tag string) string {
-	want := yaml.ScalarNode
-	switch tag {
-	case "!!map":
-		want = yaml.MappingNode
-	case "!!seq":
-		want = yaml.SequenceNode
-	}
-	found := ""
-	var walk func(n *yaml.Node, path string)
-	walk = func(n *yaml.Node, path string) {
-		if n == nil || found != "" {
-			return
-		}
-		if n.Line == line && n.Kind == want && path != "" {
-			found = path
-			return
-		}
-		switch n.Kind {
-		case yaml.DocumentNode:
-			for _, c := range n.Content {
-				walk(c, path)
-			}
-		case yaml.MappingNode:
-			for i := 0; i+1 < len(n.Content); i += 2 {
-				p := n.Content[i].Value
-				if path != "" {
-					p = path + "." + p
-				}
-				walk(n.Content[i+1], p)
-			}
-		case yaml.SequenceNode:
-			for i, c := range n.Content {
-				walk(c, fmt.Sprintf("%s[%d]", path, i))
-			}
-		}
-	}
-	walk(root, "")
-	return found
 }
