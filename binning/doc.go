@@ -69,8 +69,9 @@
 // other regions are never neighbours. Along the axis an edges-by-bin axis
 // depends on, the neighbour is the bin of the adjacent slice that contains
 // this bin's centre on the other axes. Scheme.Project and Scheme.Slice
-// give sparse 0/1 maps from global bins to the bins of a projection (sum
-// over axes) or of one slice (one bin of an axis fixed).
+// give 0/1 maps (Projection.Map, summed by Projection.Apply) from global
+// bins to the bins of a projection (sum over axes) or of one slice (one
+// bin of an axis fixed).
 //
 // # YAML
 //

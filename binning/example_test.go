@@ -135,12 +135,11 @@ func ExampleScheme_Project() {
 	}
 	fmt.Println(p.Map[:9])
 	fmt.Println(p.Apply(make([]float64, p.Target.Len()), counts))
-	rows, cols := p.Matrix().Dims()
-	fmt.Println(rows, cols, p.Target.Label(2))
+	fmt.Println(len(p.Map), p.Target.Len(), p.Target.Label(2))
 	// Output:
 	// [0 0 0 0 1 1 1 2 2]
 	// [4 3 2]
-	// 3 20 central y[1,1.5)
+	// 20 3 central y[1,1.5)
 }
 
 func ExampleScheme_Slice() {

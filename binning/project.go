@@ -3,8 +3,6 @@ package binning
 import (
 	"fmt"
 	"slices"
-
-	jbsparse "github.com/james-bowman/sparse"
 )
 
 // Projection is a 0/1 map from the global bins of a scheme to the bins of
@@ -163,31 +161,4 @@ func (p *Projection) Apply(dst, src []float64) []float64 {
 		}
 	}
 	return dst
-}
-
-// Matrix returns the map as a Target.Len() x len(Map) sparse 0/1 matrix P
-// (P[t][g] = 1 if Map[g] == t), for linear propagation such as
-// V' = P V Pᵀ. Column indices are increasing in each row.
-func (p *Projection) Matrix() *jbsparse.CSR {
-	nt := p.Target.Len()
-	ia := make([]int, nt+1)
-	for _, t := range p.Map {
-		if t >= 0 {
-			ia[t+1]++
-		}
-	}
-	for t := 0; t < nt; t++ {
-		ia[t+1] += ia[t]
-	}
-	ja := make([]int, ia[nt])
-	data := make([]float64, ia[nt])
-	next := slices.Clone(ia[:nt])
-	for g, t := range p.Map {
-		if t >= 0 {
-			ja[next[t]] = g
-			data[next[t]] = 1
-			next[t]++
-		}
-	}
-	return jbsparse.NewCSR(nt, len(p.Map), ia, ja, data)
 }
