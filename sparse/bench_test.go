@@ -21,7 +21,7 @@ var (
 
 func fineMatrix(b *testing.B) *Matrix {
 	fineOnce.Do(func() {
-		fine, fineErr = Banded3D([3]int{100, 100, 50}, [3]int{100, 100, 100}, [3]int{3, 3, 4}, 20, 1)
+		fine, fineErr = banded3D([3]int{100, 100, 50}, [3]int{100, 100, 100}, [3]int{3, 3, 4}, 20, 1)
 	})
 	if fineErr != nil {
 		b.Fatal(fineErr)

@@ -49,9 +49,9 @@
 //
 // # Test matrices
 //
-// Banded3D builds a synthetic response with the structure of a fine
-// three-dimensional analysis, used by the benchmarks of this and other
-// packages.
+// Package sparsetest builds synthetic responses with the structure of a
+// fine three-dimensional analysis, used by the tests and benchmarks of
+// this and other packages.
 //
 // # Conventions
 //

@@ -10,6 +10,8 @@ import (
 	"time"
 
 	"gonum.org/v1/gonum/mat"
+
+	"github.com/desmear/desmear/sparse/sparsetest"
 )
 
 // randomMatrix returns a rows×cols matrix where each cell is stored with
@@ -111,6 +113,15 @@ var kernelShapes = []shape{
 	{"multi-block random", 700, 500, 0.3, 7},
 }
 
+// banded3D is the synthetic response of sparsetest.Banded3D as a Matrix.
+func banded3D(truth, reco, hood [3]int, perCol int, seed uint64) (*Matrix, error) {
+	b, err := sparsetest.Banded3D(truth, reco, hood, perCol, seed)
+	if err != nil {
+		return nil, err
+	}
+	return NewMatrix(b.Rows, b.Cols, b.ColPtr, b.RowIdx, b.Val, nil)
+}
+
 func kernelMatrices(t *testing.T) []*Matrix {
 	rng := rand.New(rand.NewPCG(11, 12))
 	var ms []*Matrix
@@ -118,7 +129,7 @@ func kernelMatrices(t *testing.T) []*Matrix {
 		ms = append(ms, randomMatrix(t, rng, sh.rows, sh.cols, sh.density, sh.emptyEvery))
 	}
 	// A banded matrix: its blocks have overlapping row ranges.
-	b, err := Banded3D([3]int{12, 12, 8}, [3]int{12, 12, 16}, [3]int{3, 3, 4}, 20, 3)
+	b, err := banded3D([3]int{12, 12, 8}, [3]int{12, 12, 16}, [3]int{3, 3, 4}, 20, 3)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -131,7 +142,7 @@ func kernelMatrices(t *testing.T) []*Matrix {
 	}
 	// A banded matrix whose blocks only meet their neighbours: it
 	// scatters in two phases straight into the destination.
-	c, err := Banded3D([3]int{8, 8, 24}, [3]int{8, 8, 48}, [3]int{3, 3, 4}, 20, 5)
+	c, err := banded3D([3]int{8, 8, 24}, [3]int{8, 8, 48}, [3]int{3, 3, 4}, 20, 5)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -302,7 +313,7 @@ func TestKernelsBitIdentical(t *testing.T) {
 	rng := rand.New(rand.NewPCG(15, 16))
 	ms := kernelMatrices(t)
 	// A larger matrix with the default partition.
-	big, err := Banded3D([3]int{40, 40, 40}, [3]int{40, 40, 80}, [3]int{3, 3, 4}, 20, 4)
+	big, err := banded3D([3]int{40, 40, 40}, [3]int{40, 40, 80}, [3]int{3, 3, 4}, 20, 4)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -10,14 +10,19 @@ import (
 	"time"
 
 	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/sparse/sparsetest"
 )
 
 // benchProblem builds an invented benchmark problem on the shared banded
-// 3-D response of package sparse: G_j = 1 (so R = A), a truth falling
+// 3-D response of package sparsetest: G_j = 1 (so R = A), a truth falling
 // along the last truth axis, Poisson-like data around its fold.
 func benchProblem(b *testing.B, truth, reco [3]int) *Problem {
 	b.Helper()
-	a, err := sparse.Banded3D(truth, reco, [3]int{3, 3, 4}, 20, 1)
+	m, err := sparsetest.Banded3D(truth, reco, [3]int{3, 3, 4}, 20, 1)
+	if err != nil {
+		b.Fatal(err)
+	}
+	a, err := sparse.NewMatrix(m.Rows, m.Cols, m.ColPtr, m.RowIdx, m.Val, nil)
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -1,10 +1,24 @@
-package sparse
+// Package sparsetest makes synthetic sparse matrices for the tests and
+// benchmarks of package sparse and of the packages that use it. It does
+// not import package sparse, so that package's own tests can use it: a
+// matrix comes as its compressed-column arrays, the arguments of
+// sparse.NewMatrix.
+package sparsetest
 
 import (
 	"fmt"
 	"math"
 	"math/rand/v2"
 )
+
+// Matrix is a matrix in compressed-column form: column j has the rows
+// RowIdx[ColPtr[j]:ColPtr[j+1]] (strictly increasing) with the values
+// Val[ColPtr[j]:ColPtr[j+1]], as sparse.NewMatrix takes them.
+type Matrix struct {
+	Rows, Cols     int
+	ColPtr, RowIdx []int
+	Val            []float64
+}
 
 // Banded3D returns a synthetic response matrix with the structure of a
 // fine three-dimensional analysis, for benchmarks and tests: columns are
@@ -24,22 +38,22 @@ import (
 //
 // With truth {100,100,50}, reco {100,100,100}, hood {3,3,4} and perCol 20
 // it is the 500,000×1,000,000 matrix of about 10 million non-zeros used by
-// the package benchmarks.
+// the benchmarks of package sparse.
 func Banded3D(truth, reco, hood [3]int, perCol int, seed uint64) (*Matrix, error) {
 	nt, nr, nh := 1, 1, 1
 	for a := 0; a < 3; a++ {
 		if truth[a] <= 0 || reco[a] <= 0 || hood[a] <= 0 {
-			return nil, fmt.Errorf("sparse: Banded3D sizes must be positive (truth %v, reco %v, hood %v)", truth, reco, hood)
+			return nil, fmt.Errorf("sparsetest: Banded3D sizes must be positive (truth %v, reco %v, hood %v)", truth, reco, hood)
 		}
 		nt *= truth[a]
 		nr *= reco[a]
 		nh *= hood[a]
 	}
 	if perCol <= 0 {
-		return nil, fmt.Errorf("sparse: Banded3D needs a positive number of entries per column, not %d", perCol)
+		return nil, fmt.Errorf("sparsetest: Banded3D needs a positive number of entries per column, not %d", perCol)
 	}
 	if nt > math.MaxInt32 || nr > math.MaxInt32 || float64(nt)*float64(min(perCol, nh)) > 1<<40 {
-		return nil, fmt.Errorf("sparse: Banded3D matrix %d×%d is too large", nr, nt)
+		return nil, fmt.Errorf("sparsetest: Banded3D matrix %d×%d is too large", nr, nt)
 	}
 	rng := rand.New(rand.NewPCG(seed, 0x62616e646564)) // stream "banded"
 	colPtr := make([]int, nt+1)
@@ -113,5 +127,5 @@ func Banded3D(truth, reco, hood [3]int, perCol int, seed uint64) (*Matrix, error
 		}
 		colPtr[j+1] = len(val)
 	}
-	return NewMatrix(nr, nt, colPtr, rowIdx, val, nil)
+	return &Matrix{Rows: nr, Cols: nt, ColPtr: colPtr, RowIdx: rowIdx, Val: val}, nil
 }
