@@ -2,15 +2,12 @@ package analysis
 
 import (
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"math"
 	"os"
 	"strings"
 
-	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
@@ -40,17 +37,6 @@ func (a *Analysis) fillOptions(opt *Options, stage string) *response.Options {
 		}
 	}
 	return o
-}
-
-// Fingerprint identifies a binning scheme by the SHA-256 of its bin
-// labels and flow flags, so that a saved response is only used with the
-// schemes it was built for.
-func Fingerprint(s *binning.Scheme) string {
-	h := sha256.New()
-	for g := 0; g < s.Len(); g++ {
-		fmt.Fprintf(h, "%s|%v\n", s.Label(g), s.Bin(g).Flow)
-	}
-	return hex.EncodeToString(h.Sum(nil))
 }
 
 // CheckInputs opens every events file of the analysis (simulation,
@@ -112,7 +98,7 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.B
 	if len(a.Simulation) == 0 {
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
-	info := &response.BundleInfo{TruthScheme: Fingerprint(a.Truth), RecoScheme: Fingerprint(a.Reco)}
+	info := &response.BundleInfo{TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco)}
 	if opt != nil {
 		info.Program = opt.Version
 	}
@@ -164,10 +150,10 @@ func (a *Analysis) LoadResponse() (*response.Built, *response.BundleInfo, error)
 		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: msg, Err: err}
 	}
 	var differ []string
-	if info.TruthScheme != Fingerprint(a.Truth) {
+	if info.TruthScheme != response.Fingerprint(a.Truth) {
 		differ = append(differ, "truth")
 	}
-	if info.RecoScheme != Fingerprint(a.Reco) {
+	if info.RecoScheme != response.Fingerprint(a.Reco) {
 		differ = append(differ, "reco")
 	}
 	if len(differ) > 0 {

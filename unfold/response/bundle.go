@@ -1,6 +1,8 @@
 package response
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -9,6 +11,7 @@ import (
 	"os"
 	"path/filepath"
 
+	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -37,7 +40,7 @@ func BundleFiles() []string { return []string{bundleJSON, bundleMatrix} }
 // BundleInfo is the provenance stored with a response bundle.
 type BundleInfo struct {
 	// TruthScheme and RecoScheme identify the binning schemes the
-	// response was built for (for example a hash of their bin labels);
+	// response was built for (Fingerprint of each scheme);
 	// the loader compares them with the schemes in use.
 	TruthScheme string `json:"truth_scheme"`
 	RecoScheme  string `json:"reco_scheme"`
@@ -47,6 +50,18 @@ type BundleInfo struct {
 	Program string `json:"program"`
 	// Samples holds the counts of each simulated sample, in order.
 	Samples []SampleSummary `json:"samples,omitempty"`
+}
+
+// Fingerprint identifies a binning scheme by the SHA-256 of its bin
+// labels and flow flags, the value of BundleInfo.TruthScheme and
+// RecoScheme, so that a saved response is only used with the schemes it
+// was built for.
+func Fingerprint(s *binning.Scheme) string {
+	h := sha256.New()
+	for g := 0; g < s.Len(); g++ {
+		fmt.Fprintf(h, "%s|%v\n", s.Label(g), s.Bin(g).Flow)
+	}
+	return hex.EncodeToString(h.Sum(nil))
 }
 
 // SampleSummary is the Summary of one sample (without cell lists).

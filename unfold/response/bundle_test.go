@@ -2,9 +2,13 @@ package response
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"fmt"
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -129,5 +133,27 @@ func TestBundleRefusals(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, bundleMatrix), m, 0o644)
 	if _, _, err := Load(dir); err == nil || !strings.Contains(err.Error(), "a 4×4 matrix, want 3×4") {
 		t.Errorf("matrix of other size: got %v", err)
+	}
+}
+
+// Fingerprint is the SHA-256 (FIPS 180-4) of the lines "label|flow" of
+// the scheme's bins; schemes that differ in a bin label or a flow flag
+// have different fingerprints.
+func TestFingerprint(t *testing.T) {
+	const one = "regions:\n  - name: a\n    axes: [{name: x, edges: [0, 1, 2]%s}]\n"
+	s := mustScheme(t, fmt.Sprintf(one, ""))
+	var text strings.Builder
+	for g := 0; g < s.Len(); g++ {
+		text.WriteString(s.Label(g) + "|" + strconv.FormatBool(s.Bin(g).Flow) + "\n")
+	}
+	sum := sha256.Sum256([]byte(text.String()))
+	if got, want := Fingerprint(s), hex.EncodeToString(sum[:]); got != want {
+		t.Errorf("Fingerprint = %s, want %s", got, want)
+	}
+	if Fingerprint(s) == Fingerprint(mustScheme(t, fmt.Sprintf(one, ", overflow: true"))) {
+		t.Error("schemes with and without overflow have the same fingerprint")
+	}
+	if Fingerprint(s) != Fingerprint(mustScheme(t, fmt.Sprintf(one, ""))) {
+		t.Error("the same scheme decoded twice has two fingerprints")
 	}
 }
