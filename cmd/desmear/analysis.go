@@ -88,6 +88,9 @@ func classifyAnalysisErr(err error) error {
 		pe  *fs.PathError
 		we  *analysis.OutputError
 	)
+	if errors.Is(err, analysis.ErrResponseNeeded) && errors.As(err, &ae) {
+		err = fmt.Errorf("%w with \"desmear response %s\"", err, ae.File)
+	}
 	switch {
 	case errors.Is(err, context.Canceled), errors.Is(err, context.DeadlineExceeded):
 		return err

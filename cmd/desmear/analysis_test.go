@@ -215,6 +215,9 @@ func TestAnalysisErrors(t *testing.T) {
 		{[]string{"response", bad("weight: w", "weight: wgt")}, exitInput, `bad2.yaml:15: simulation[0].weight: unknown column "wgt"`},
 		{[]string{"response", bad("file: sim.parquet", "file: nowhere.parquet")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
 		{[]string{"unfold", filepath.Join(filepath.Dir(path), "missing.yaml")}, exitInput, "missing.yaml: cannot read the analysis file"},
+		// The library says what to do; the command line adds the command.
+		{[]string{"unfold", bad("simulation:", "response: unbuilt\nsimulation:")}, exitInput,
+			`response: the saved response ` + filepath.Join(filepath.Dir(path), "unbuilt") + ` does not exist yet; build it from the simulation with "desmear response ` + filepath.Join(filepath.Dir(path), "bad4.yaml") + `"`},
 	}
 	for _, c := range cases {
 		code, _, stderr := runCLI(t, context.Background(), c.args...)

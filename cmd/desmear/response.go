@@ -3,6 +3,7 @@ package main
 import (
 	"bufio"
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -98,6 +99,12 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		return classifyAnalysisErr(err)
 	}
 	if err := r.Save(out, *info, o.force); err != nil {
+		if errors.Is(err, result.ErrExists) {
+			// It appeared during the build.
+			if cerr := checkTarget(out, o.force, "response.json"); cerr != nil {
+				return cerr
+			}
+		}
 		return ioErr(err)
 	}
 	if o.tables != "" {

@@ -138,14 +138,20 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.B
 	return r, info, nil
 }
 
+// ErrResponseNeeded is wrapped by the error of LoadResponse (and Run)
+// when the saved response must be built from the simulation first: it
+// does not exist yet, or it was built for other binning schemes.
+var ErrResponseNeeded = errors.New("analysis: the saved response must be built from the simulation")
+
 // LoadResponse loads the saved response bundle named by the analysis
-// file and checks it against the schemes.
+// file and checks it against the schemes; see ErrResponseNeeded.
 func (a *Analysis) LoadResponse() (*response.Built, *response.BundleInfo, error) {
 	r, info, err := response.Load(a.ResponseFile)
 	if err != nil {
 		msg := fmt.Sprintf("cannot load the saved response: %v", err)
 		if _, serr := os.Stat(a.ResponseFile); serr != nil && len(a.Simulation) > 0 {
-			msg = fmt.Sprintf("the saved response %s does not exist yet; build it from the simulation with \"desmear response %s\"", a.ResponseFile, a.File)
+			msg = fmt.Sprintf("the saved response %s does not exist yet; build it from the simulation", a.ResponseFile)
+			err = errors.Join(ErrResponseNeeded, err)
 		}
 		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: msg, Err: err}
 	}
@@ -157,7 +163,7 @@ func (a *Analysis) LoadResponse() (*response.Built, *response.BundleInfo, error)
 		differ = append(differ, "reco")
 	}
 	if len(differ) > 0 {
-		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for another %s binning than this file's; rebuild it with \"desmear response %s\"", a.ResponseFile, strings.Join(differ, " and "), a.File)}
+		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for another %s binning than this file's; rebuild it from the simulation", a.ResponseFile, strings.Join(differ, " and ")), Err: ErrResponseNeeded}
 	}
 	return r, info, nil
 }

@@ -392,8 +392,21 @@ func TestSavedResponse(t *testing.T) {
 	// the level whose binning differs.
 	line := 1 + strings.Count(other[:strings.Index(other, "response: saved")], "\n")
 	want := fmt.Sprintf("analysis.yaml:%d: response: the saved response %s was built for another truth binning", line, filepath.Join(dir, "saved"))
-	if _, _, err := c.LoadResponse(); err == nil || !strings.Contains(err.Error(), want) {
-		t.Errorf("a bundle of other schemes: got %v, want %q", err, want)
+	_, _, oerr := c.LoadResponse()
+	if oerr == nil || !strings.Contains(oerr.Error(), want) {
+		t.Errorf("a bundle of other schemes: got %v, want %q", oerr, want)
+	}
+	// A bundle to rebuild, and one not built yet, are ErrResponseNeeded;
+	// the message says what to do without naming a command.
+	missing, err := Decode([]byte(strings.Replace(with, "response: saved", "response: unbuilt", 1)), filepath.Join(dir, "analysis.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, _, merr := missing.LoadResponse()
+	for _, err := range []error{oerr, merr} {
+		if !errors.Is(err, ErrResponseNeeded) || !strings.Contains(err.Error(), "from the simulation") || strings.Contains(err.Error(), "desmear") {
+			t.Errorf("got %v, want ErrResponseNeeded saying to build it from the simulation, naming no command", err)
+		}
 	}
 }
 

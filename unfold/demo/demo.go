@@ -196,7 +196,7 @@ func checkTarget(dir string, replace bool) error {
 type existsError struct{ dir string }
 
 func (e existsError) Error() string {
-	return fmt.Sprintf("demo: %s already exists (replace it with --force)", e.dir)
+	return fmt.Sprintf("demo: %s already exists; Generate replaces an earlier demo folder only when asked to", e.dir)
 }
 
 func (e existsError) Is(target error) bool { return target == fs.ErrExist }
@@ -209,7 +209,7 @@ func moveIntoPlace(tmp, dir string, replace bool) error {
 	}
 	err := result.Install(tmp, dir, replace)
 	if errors.Is(err, result.ErrExists) {
-		return fmt.Errorf("demo: %s appeared while the demo was being written (replace it with --force): %w", dir, fs.ErrExist)
+		return fmt.Errorf("demo: %s appeared while the demo was being written (%w); nothing was replaced", dir, fs.ErrExist)
 	}
 	return err
 }

@@ -90,11 +90,12 @@ type bundleDoc struct {
 }
 
 // Save writes r and info as a response bundle at dir. An existing dir is
-// refused unless replace is set and it is an earlier bundle.
+// refused unless replace is set and it is an earlier bundle: without
+// replace the error wraps result.ErrExists.
 func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if fi, err := os.Lstat(dir); err == nil {
 		if !replace {
-			return fmt.Errorf("%s exists (replace it with --force)", dir)
+			return fmt.Errorf("%w: %s", result.ErrExists, dir)
 		}
 		if _, err := os.Stat(filepath.Join(dir, bundleJSON)); !fi.IsDir() || err != nil {
 			return fmt.Errorf("%s exists and is not a response bundle; not replacing it", dir)
