@@ -36,14 +36,13 @@ func writeFiles(t *testing.T, dir string, files map[string]string) string {
 	return dir
 }
 
-// Oracle D of the shared methods notes (methods.md §7): 3 truth × 4 reco
-// bins, R (rows reco) = [[0.60,0.10,0.00],[0.20,0.60,0.10],
+// Oracle D of method.md §10 Reference values used by the tests: 3 truth
+// × 4 reco bins, R (rows reco) = [[0.60,0.10,0.00],[0.20,0.60,0.10],
 // [0.05,0.15,0.60],[0.00,0.05,0.20]], n = (667,578,325,87), flat prior.
 // With G = (1000,1000,1000) the response table is A = 1000 R. The
 // iteration is D'Agostini's (NIM A 362 (1995) 487; CERN Yellow Report
 // 99-03, eqs. 7.3-7.5); the expected values come from an independent
-// cross-check implementation (a script written for those notes, not this
-// project's code).
+// computation of that iteration (not this project's code; method.md §10).
 var oracleD = map[string]string{
 	"A.csv": `# Oracle D: A = R * 1000
 reco,truth,value
@@ -107,7 +106,7 @@ func TestUnfoldOracleD(t *testing.T) {
 		t.Fatalf("exit %d\nstderr: %s", code, stderr)
 	}
 	r, raw := readResult(t, out)
-	// methods.md §7, Oracle D: iteration 5.
+	// method.md §10, Oracle D: iteration 5.
 	want := []float64{1006.166641, 581.767988, 309.074630}
 	for j, w := range want {
 		if math.Abs(r.Estimate[j]-w) > 1e-6 {
@@ -182,13 +181,13 @@ func TestUnfoldOracleD(t *testing.T) {
 	}
 }
 
-// Oracle E of methods.md §7: R = [[0.7,0.2,0],[0.2,0.6,0.2],[0,0.15,0.7]],
+// Oracle E of method.md §10: R = [[0.7,0.2,0],[0.2,0.6,0.2],[0,0.15,0.7]],
 // n = (820,900,640), flat prior, Poisson data; after 2 iterations
 // sqrt(diag V) = (31.746167, 25.974453, 29.433933) and corr(0,1) =
 // 0.196891 from the linearised propagation through every iteration
-// (T. Adye, PHYSTAT 2011, CERN-2011-006, arXiv:1105.1160; values from the
-// independent cross-check script of those notes). The stop rule's
-// maximum is exercised too.
+// (T. Adye, PHYSTAT 2011, CERN-2011-006, arXiv:1105.1160; method.md §8
+// Linearised uncertainty propagation; values from an independent
+// computation, method.md §10). The stop rule's maximum is exercised too.
 func TestUnfoldOracleEFullCovariance(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), map[string]string{
 		"A.csv": "reco,truth,value\n0,0,700\n0,1,200\n1,0,200\n1,1,600\n1,2,200\n2,1,150\n2,2,700\n",

@@ -219,9 +219,9 @@ func simulationTruth(t *testing.T, in *demo.Inputs, s *binning.Scheme) []float64
 // as the expected background and its own truth as the prior, returns
 // that truth at every iteration. When the data are exactly the folded
 // simulation, n = R G + b, and the prior is G, the iteration is at its
-// fixed point: ν = n and μ' = μ/ε · Σ R n/ν = μ (methods notes §3.2
-// item 4, the Asimov fixed point of the EM iteration; G. D'Agostini,
-// NIM A362 (1995) 487, eqs. 4–5). The data here are the simulation file
+// fixed point: ν = n and μ' = μ/ε · Σ R n/ν = μ (method.md §7 Exact
+// properties of the iteration, item 4, the Asimov fixed point of the EM
+// iteration of G. D'Agostini, NIM A362 (1995) 487). The data here are the simulation file
 // itself, filled through the analysis file's data section (weights and
 // reco selection), so the test covers the whole path from the files; the
 // truth it is compared with is histogrammed independently from the
