@@ -20,6 +20,7 @@ import (
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/inputs/observable"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -174,10 +175,11 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	}
 	fmt.Fprintln(w, ")")
 	conv := ""
+	det := bayes.DetailsOf(res)
 	if a.Unfolding.StopChi2 > 0 {
-		conv = fmt.Sprintf(", converged: %v", res.Converged)
+		conv = fmt.Sprintf(", converged: %v", det.Converged)
 	}
-	fmt.Fprintf(w, "iterations: %d%s\n", res.Iterations, conv)
+	fmt.Fprintf(w, "iterations: %d%s\n", det.Iterations, conv)
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
 	if n := a.Truth.InRange(); n > maxTableRows {

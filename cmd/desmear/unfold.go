@@ -19,6 +19,7 @@ import (
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -221,12 +222,10 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 	return nil
 }
 
-// settings returns the kernel settings of the options.
-func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
+// settings returns the common and the iterative method's settings of
+// the options.
+func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, *bayes.Settings) {
 	s := &unfold.Settings{
-		Iterations:     o.iterations,
-		StopChi2:       o.stopChi2,
-		MaxIterations:  o.maxIterations,
 		Background:     o.bgMode,
 		Covariance:     o.covariance,
 		DiagonalMethod: o.diagonal,
@@ -235,10 +234,15 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
 		Seed:           o.seed,
 		MemoryLimit:    o.memoryLimit,
 	}
-	if o.smooth > 0 {
-		s.Smoothing = &unfold.Smoothing{Neighbours: truth, Strength: o.smooth}
+	m := &bayes.Settings{
+		Iterations:    o.iterations,
+		StopChi2:      o.stopChi2,
+		MaxIterations: o.maxIterations,
 	}
-	return s
+	if o.smooth > 0 {
+		m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}
+	}
+	return s, m
 }
 
 // checkOutFolder refuses an output folder that exists (unless force) or
@@ -433,8 +437,8 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		return err
 	}
 
-	settings := o.settings(pi.truth)
-	res, err := unfold.Unfold(ctx, prob, settings)
+	settings, method := o.settings(pi.truth)
+	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
 		return kernelErr(ctx, &pi.set, err)
 	}
@@ -450,7 +454,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if o.prior != "" {
 		prior = "table"
 	}
-	r.Settings = result.DescribeSettings(settings, prior, o.background != "")
+	r.Settings = result.DescribeSettings(settings, method, prior, o.background != "")
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 	}

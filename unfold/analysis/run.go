@@ -13,6 +13,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -383,16 +384,17 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 	return e, nil
 }
 
-// Settings returns the kernel settings of the analysis file.
-func (a *Analysis) Settings() (*unfold.Settings, error) {
+// Settings returns the settings of the analysis file: the common ones
+// and those of the iterative method.
+func (a *Analysis) Settings() (*unfold.Settings, *bayes.Settings, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
-		Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	m := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
 	if u.Background == "subtract" {
 		s.Background = unfold.Subtract
 	}
 	if u.Smoothing > 0 {
-		s.Smoothing = &unfold.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
+		m.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
 	}
 	switch un.Covariance {
 	case "none":
@@ -410,7 +412,7 @@ func (a *Analysis) Settings() (*unfold.Settings, error) {
 	case "toys":
 		s.DiagonalMethod = unfold.DiagonalToys
 	}
-	return s, nil
+	return s, m, nil
 }
 
 // Prior returns the prior of the iteration: nil for the simulation's

@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"context"
+	"github.com/desmear/desmear/unfold"
 	"math"
 	"testing"
 
@@ -11,7 +12,7 @@ import (
 
 // denseProblem builds a Problem from a dense response R (rows reco,
 // columns truth) with G_j = 1, so that A = R.
-func denseProblem(t testing.TB, r [][]float64, n []float64) *Problem {
+func denseProblem(t testing.TB, r [][]float64, n []float64) *unfold.Problem {
 	t.Helper()
 	nr, nt := len(r), len(r[0])
 	colPtr := []int{0}
@@ -34,12 +35,12 @@ func denseProblem(t testing.TB, r [][]float64, n []float64) *Problem {
 	for j := range g {
 		g[j] = 1
 	}
-	return &Problem{Migrations: a, Generated: g, Data: n}
+	return &unfold.Problem{Migrations: a, Generated: g, Data: n}
 }
 
-func unfoldOrFail(t testing.TB, p *Problem, s *Settings) *Result {
+func unfoldOrFail(t testing.TB, p *unfold.Problem, s *opts) *unfold.Result {
 	t.Helper()
-	res, err := Unfold(context.Background(), p, s)
+	res, err := unfoldWith(context.Background(), p, s)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -62,7 +63,7 @@ func TestOracleAExactRationals(t *testing.T) {
 		{284.67344551, 115.32655449},
 	}
 	for k, w := range want {
-		res := unfoldOrFail(t, p, &Settings{Iterations: k + 1})
+		res := unfoldOrFail(t, p, &opts{Iterations: k + 1})
 		tol := 1e-14
 		if k == 2 {
 			tol = 1e-10 // quoted to 8 decimals
@@ -82,12 +83,12 @@ func TestOracleAExactRationals(t *testing.T) {
 func TestOracleAConservationAndLimit(t *testing.T) {
 	p := denseProblem(t, [][]float64{{0.8, 0.1}, {0.2, 0.9}}, []float64{250, 150})
 	for k := 1; k <= 6; k++ {
-		res := unfoldOrFail(t, p, &Settings{Iterations: k})
+		res := unfoldOrFail(t, p, &opts{Iterations: k})
 		if s := res.Estimate[0] + res.Estimate[1]; !near(s, 400, 1e-14) {
 			t.Errorf("iteration %d: Σ eps μ = %.15g, want 400", k, s)
 		}
 	}
-	res := unfoldOrFail(t, p, &Settings{Iterations: 2000})
+	res := unfoldOrFail(t, p, &opts{Iterations: 2000})
 	if !near(res.Estimate[0], 300, 1e-9) || !near(res.Estimate[1], 100, 1e-9) {
 		t.Errorf("2000 iterations: got %v, want (300, 100)", res.Estimate)
 	}
@@ -102,14 +103,14 @@ func TestOracleBPriorShapeAndAsimov(t *testing.T) {
 	for _, prior := range [][]float64{{1, 3}, {10, 30}} {
 		p := denseProblem(t, r, []float64{250, 150})
 		p.Prior = prior
-		res := unfoldOrFail(t, p, &Settings{Iterations: 1})
+		res := unfoldOrFail(t, p, &opts{Iterations: 1})
 		if !near(res.Estimate[0], 192.16300940, 1e-10) || !near(res.Estimate[1], 207.83699060, 1e-10) {
 			t.Errorf("prior %v: got %v, want (192.16300940, 207.83699060)", prior, res.Estimate)
 		}
 	}
 	p := denseProblem(t, r, []float64{250, 150})
 	p.Prior = []float64{300, 100}
-	res := unfoldOrFail(t, p, &Settings{Iterations: 1})
+	res := unfoldOrFail(t, p, &opts{Iterations: 1})
 	if !near(res.Estimate[0], 300, 1e-14) || !near(res.Estimate[1], 100, 1e-14) {
 		t.Errorf("Asimov: got %v, want (300, 100)", res.Estimate)
 	}
@@ -122,7 +123,7 @@ func TestOracleCDiagonal(t *testing.T) {
 	p := denseProblem(t, [][]float64{{0.5, 0, 0}, {0, 0.8, 0}, {0, 0, 0.25}}, []float64{50, 40, 10})
 	for _, prior := range [][]float64{nil, {1, 2, 3}, {7, 0.1, 1e3}} {
 		p.Prior = prior
-		res := unfoldOrFail(t, p, &Settings{Iterations: 1})
+		res := unfoldOrFail(t, p, &opts{Iterations: 1})
 		want := []float64{100, 50, 40}
 		for j := range want {
 			if !near(res.Estimate[j], want[j], 1e-14) {
@@ -148,21 +149,21 @@ func TestOracleD(t *testing.T) {
 	eps := []float64{0.85, 0.90, 0.90}
 	var hist []Step
 	for k, want := range map[int][]float64{1: {847.613212, 621.062831, 419.524691}, 5: {1006.166641, 581.767988, 309.074630}} {
-		res := unfoldOrFail(t, p, &Settings{Iterations: k})
+		res := unfoldOrFail(t, p, &opts{Iterations: k})
 		for j := range want {
 			if math.Abs(res.Estimate[j]-want[j]) > 5e-7 { // quoted to 6 decimals
 				t.Errorf("iteration %d bin %d: got %.9f, want %.6f", k, j, res.Estimate[j], want[j])
 			}
 		}
 		if k == 5 {
-			hist = res.History
+			hist = details(res).History
 		}
 	}
 	if math.Abs(hist[1].LogLikelihood-8607.7217) > 1e-4 || math.Abs(hist[5].LogLikelihood-8624.3521) > 1e-4 {
 		t.Errorf("log-likelihood: iteration 1 %.4f (want 8607.7217), 5 %.4f (want 8624.3521)", hist[1].LogLikelihood, hist[5].LogLikelihood)
 	}
 	for k := 1; k <= 5; k++ {
-		res := unfoldOrFail(t, p, &Settings{Iterations: k})
+		res := unfoldOrFail(t, p, &opts{Iterations: k})
 		var s float64
 		for j, x := range res.Estimate {
 			s += eps[j] * x
@@ -172,7 +173,7 @@ func TestOracleD(t *testing.T) {
 		}
 	}
 	asimov := denseProblem(t, oracleDR, []float64{660, 590, 320, 90})
-	res := unfoldOrFail(t, asimov, &Settings{Iterations: 20000})
+	res := unfoldOrFail(t, asimov, &opts{Iterations: 20000})
 	for j, want := range []float64{1000, 600, 300} {
 		if !near(res.Estimate[j], want, 1e-8) {
 			t.Errorf("Asimov bin %d: got %.10g, want %g", j, res.Estimate[j], want)
@@ -211,7 +212,7 @@ func TestOracleE(t *testing.T) {
 	}
 	for _, c := range cases {
 		p := denseProblem(t, oracleER, oracleEN)
-		res := unfoldOrFail(t, p, &Settings{Iterations: c.k, Covariance: Full})
+		res := unfoldOrFail(t, p, &opts{Iterations: c.k, Covariance: unfold.Full})
 		for j := range c.mu {
 			if math.Abs(res.Estimate[j]-c.mu[j]) > 1e-6 {
 				t.Errorf("K=%d μ_%d = %.6f, want %.6f", c.k, j, res.Estimate[j], c.mu[j])
@@ -225,7 +226,7 @@ func TestOracleE(t *testing.T) {
 			t.Errorf("K=%d corr(0,1) = %.6f, want %.6f", c.k, corr, c.corr)
 		}
 		if c.jac != nil {
-			jc, _ := jacobianOf(t, p, &Settings{Iterations: c.k})
+			jc, _ := jacobianOf(t, p, &opts{Iterations: c.k})
 			for i := range c.jac {
 				for r := range c.jac[i] {
 					if got := jc.at(i, r); math.Abs(got-c.jac[i][r]) > 1e-6 {
@@ -238,14 +239,14 @@ func TestOracleE(t *testing.T) {
 
 	// K → ∞.
 	p := denseProblem(t, oracleER, oracleEN)
-	res := unfoldOrFail(t, p, &Settings{Iterations: 3000, Covariance: Full})
+	res := unfoldOrFail(t, p, &opts{Iterations: 3000, Covariance: unfold.Full})
 	var inv mat.Dense
 	if err := inv.Inverse(mat.NewDense(3, 3, []float64{0.7, 0.2, 0, 0.2, 0.6, 0.2, 0, 0.15, 0.7})); err != nil {
 		t.Fatal(err)
 	}
 	var lim mat.VecDense
 	lim.MulVec(&inv, mat.NewVecDense(3, append([]float64(nil), oracleEN...)))
-	jc, _ := jacobianOf(t, p, &Settings{Iterations: 3000})
+	jc, _ := jacobianOf(t, p, &opts{Iterations: 3000})
 	for j := 0; j < 3; j++ {
 		if !near(res.Estimate[j], lim.AtVec(j), 1e-9) {
 			t.Errorf("K=∞ μ_%d = %.9f, want R⁻¹n = %.9f", j, res.Estimate[j], lim.AtVec(j))
@@ -269,8 +270,8 @@ func TestOracleE(t *testing.T) {
 // geometrically with ratio 0.8·10/20 + 0.2·190/180 = 0.611111.
 func TestOracleJBoundary(t *testing.T) {
 	p := denseProblem(t, [][]float64{{0.8, 0.1}, {0.2, 0.9}}, []float64{10, 190})
-	a := unfoldOrFail(t, p, &Settings{Iterations: 200})
-	b := unfoldOrFail(t, p, &Settings{Iterations: 201})
+	a := unfoldOrFail(t, p, &opts{Iterations: 200})
+	b := unfoldOrFail(t, p, &opts{Iterations: 201})
 	if a.Estimate[0] > 1e-30 || !near(a.Estimate[1], 200, 1e-12) {
 		t.Errorf("200 iterations: got %v, want (0, 200)", a.Estimate)
 	}
@@ -290,7 +291,7 @@ func TestOracleKBackground(t *testing.T) {
 	p := denseProblem(t, oracleDR, oracleDN)
 	p.Background = []float64{20, 5, 30, 10}
 	eps := []float64{0.85, 0.90, 0.90}
-	m, err := newModel(p, InModel)
+	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -299,7 +300,7 @@ func TestOracleKBackground(t *testing.T) {
 	for j := range it.mu {
 		it.mu[j] = 1
 	}
-	m.fold(it.fold, it.mu, make([]float64, 3))
+	m.p.Fold(it.fold, it.mu, make([]float64, 3))
 	it.reco()
 	it.emStep()
 	var s float64
@@ -310,10 +311,10 @@ func TestOracleKBackground(t *testing.T) {
 		t.Errorf("unscaled start: Σ eps μ' = %.8f, want 121.28855674", s)
 	}
 
-	res := unfoldOrFail(t, p, &Settings{Iterations: 30})
+	res := unfoldOrFail(t, p, &opts{Iterations: 30})
 	for k := 2; k <= 30; k++ {
-		prev := unfoldOrFail(t, p, &Settings{Iterations: k - 1})
-		cur := unfoldOrFail(t, p, &Settings{Iterations: k})
+		prev := unfoldOrFail(t, p, &opts{Iterations: k - 1})
+		cur := unfoldOrFail(t, p, &opts{Iterations: k})
 		var lhs, rhs float64
 		for j, x := range cur.Estimate {
 			lhs += eps[j] * x
@@ -325,9 +326,9 @@ func TestOracleKBackground(t *testing.T) {
 			t.Errorf("iteration %d: Σ eps μ = %.12g, Σ n (ν−b)/ν = %.12g", k, lhs, rhs)
 		}
 	}
-	for k := 1; k < len(res.History); k++ {
-		if res.History[k].LogLikelihood < res.History[k-1].LogLikelihood-1e-9 {
-			t.Errorf("log-likelihood decreased at iteration %d: %.10f after %.10f", k, res.History[k].LogLikelihood, res.History[k-1].LogLikelihood)
+	for k := 1; k < len(details(res).History); k++ {
+		if details(res).History[k].LogLikelihood < details(res).History[k-1].LogLikelihood-1e-9 {
+			t.Errorf("log-likelihood decreased at iteration %d: %.10f after %.10f", k, details(res).History[k].LogLikelihood, details(res).History[k-1].LogLikelihood)
 		}
 	}
 }
@@ -342,7 +343,7 @@ func TestOracleGInversionLimit(t *testing.T) {
 	for _, c := range []struct{ p, v, rho float64 }{{0.1, 1281.25, -0.219512}, {0.3, 3625, -0.724138}} {
 		pr := denseProblem(t, [][]float64{{1 - c.p, c.p}, {c.p, 1 - c.p}}, []float64{1000, 1000})
 		pr.Prior = []float64{1, 2} // away from the solution, which is (1000, 1000)
-		res := unfoldOrFail(t, pr, &Settings{Iterations: 4000, Covariance: Full})
+		res := unfoldOrFail(t, pr, &opts{Iterations: 4000, Covariance: unfold.Full})
 		for j := 0; j < 2; j++ {
 			if !near(res.Estimate[j], 1000, 1e-9) {
 				t.Errorf("p=%g μ_%d = %.10g, want 1000", c.p, j, res.Estimate[j])

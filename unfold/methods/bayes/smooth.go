@@ -1,9 +1,11 @@
-package unfold
+package bayes
 
 import (
 	"math"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"gonum.org/v1/gonum/floats"
 )
 
 // MaxAxes is the largest number of axes a truth region may have for
@@ -63,11 +65,11 @@ type Smoothing struct {
 func (s *Smoothing) check() error {
 	switch {
 	case s.Neighbours == nil:
-		return &SettingsError{"Smoothing", "no neighbourhood given"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "no neighbourhood given"}
 	case s.Strength < 0 || s.Strength > 1 || math.IsNaN(s.Strength):
-		return &SettingsError{"Smoothing", "strength must be in (0, 1]"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "strength must be in (0, 1]"}
 	case s.Neighbours.InRange() < 0 || s.Neighbours.InRange() > s.Neighbours.Len():
-		return &SettingsError{"Smoothing", "neighbourhood reports more in-range bins than bins"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood reports more in-range bins than bins"}
 	}
 	return nil
 }
@@ -83,7 +85,7 @@ type smoother struct {
 func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 	nb := s.Neighbours
 	if nb.Len() != len(det) {
-		return nil, &SettingsError{"Smoothing", "neighbourhood has a different number of bins than the truth binning"}
+		return nil, &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood has a different number of bins than the truth binning"}
 	}
 	in := nb.InRange()
 	sm := &smoother{n: len(det), w: s.Strength}
@@ -109,7 +111,7 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 			}
 			p, q := nb.Neighbours(j, a)
 			if p >= len(det) || q >= len(det) {
-				return nil, &SettingsError{"Smoothing", "neighbourhood returned a bin beyond its length"}
+				return nil, &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood returned a bin beyond its length"}
 			}
 			if ok(p) {
 				t[j][0] = int32(p)
@@ -162,7 +164,7 @@ func (sm *smoother) applyAxisRows(dst, src []float64, m, a int) {
 			if g >= 0 {
 				d = int(g)
 			}
-			axpy(dst[d*m:(d+1)*m], c, s)
+			floats.AddScaled(dst[d*m:(d+1)*m], c, s)
 		}
 	}
 }
