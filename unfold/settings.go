@@ -190,14 +190,10 @@ func (s *Settings) Resolve() (Settings, error) {
 		r = *s
 	}
 	switch {
-	case r.Probes < 0:
-		return r, &SettingsError{"Probes", "must not be negative"}
-	case r.Probes == 1:
-		return r, &SettingsError{"Probes", "need at least 2 probes"}
-	case r.Toys < 0:
-		return r, &SettingsError{"Toys", "must not be negative"}
-	case r.Toys == 1:
-		return r, &SettingsError{"Toys", "need at least 2 toys"}
+	case r.Probes < 0 || r.Probes == 1:
+		return r, &SettingsError{"Probes", "must be at least 2"}
+	case r.Toys < 0 || r.Toys == 1:
+		return r, &SettingsError{"Toys", "must be at least 2"}
 	case r.MemoryLimit < 0:
 		return r, &SettingsError{"MemoryLimit", "must not be negative"}
 	case r.Background < 0 || int(r.Background) >= len(backgroundNames):

@@ -73,7 +73,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	}
 	a, err := analysis.Load(path)
 	if err != nil {
-		return classifyAnalysisErr(err)
+		return analysisErr(err)
 	}
 	out := o.out
 	if out == "" {
@@ -95,7 +95,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	r, info, err := a.BuildResponse(ctx, &analysis.Options{Progress: p.report, Version: version})
 	p.finish()
 	if err != nil {
-		return classifyAnalysisErr(err)
+		return analysisErr(err)
 	}
 	if err := r.Save(out, *info, o.force); err != nil {
 		return ioErr(err)
@@ -104,7 +104,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		bkg, err := a.Background(ctx, r, &analysis.Options{Progress: p.report})
 		p.finish()
 		if err != nil {
-			return classifyAnalysisErr(err)
+			return analysisErr(err)
 		}
 		if err := writeTables(o.tables, r, bkg, o.force); err != nil {
 			return ioErr(err)

@@ -3,6 +3,7 @@ package analysis
 import (
 	"context"
 	"crypto/sha256"
+	"encoding"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -385,32 +386,31 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 }
 
 // Settings returns the settings of the analysis file: the common ones
-// and those of the iterative method.
+// and those of the iterative method. The error is an
+// *unfold.SettingsError for a mode name the enumerations do not know
+// (Decode has refused those already).
 func (a *Analysis) Settings() (*unfold.Settings, *bayes.Settings, error) {
 	u, un := a.Unfolding, a.Uncertainty
 	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
 	m := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
-	if u.Background == "subtract" {
-		s.Background = unfold.Subtract
-	}
-	if u.Smoothing > 0 {
+	if u.Smoothing != 0 {
 		m.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
 	}
-	switch un.Covariance {
-	case "none":
-		s.Covariance = unfold.NoCovariance
-	case "diag":
-		s.Covariance = unfold.Diagonal
-	case "full":
-		s.Covariance = unfold.Full
-	}
-	switch un.Method {
-	case "exact":
-		s.DiagonalMethod = unfold.DiagonalExact
-	case "probes":
-		s.DiagonalMethod = unfold.DiagonalProbes
-	case "toys":
-		s.DiagonalMethod = unfold.DiagonalToys
+	for _, e := range []struct {
+		field string
+		v     encoding.TextUnmarshaler
+		text  string
+	}{
+		{"Background", &s.Background, u.Background},
+		{"Covariance", &s.Covariance, un.Covariance},
+		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+	} {
+		if e.text == "" {
+			continue
+		}
+		if err := e.v.UnmarshalText([]byte(e.text)); err != nil {
+			return nil, nil, &unfold.SettingsError{Field: e.field, Reason: err.Error()}
+		}
 	}
 	return s, m, nil
 }

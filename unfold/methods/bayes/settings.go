@@ -78,11 +78,11 @@ func (s *Settings) resolve() (*resolved, error) {
 	}
 	switch {
 	case r.Iterations < 0:
-		return nil, &unfold.SettingsError{Field: "Iterations", Reason: "must not be negative"}
+		return nil, &unfold.SettingsError{Field: "Iterations", Reason: "must be ≥ 1"}
 	case r.MaxIterations < 0:
-		return nil, &unfold.SettingsError{Field: "MaxIterations", Reason: "must not be negative"}
+		return nil, &unfold.SettingsError{Field: "MaxIterations", Reason: "must be ≥ 1"}
 	case r.StopChi2 < 0 || math.IsNaN(r.StopChi2) || math.IsInf(r.StopChi2, 0):
-		return nil, &unfold.SettingsError{Field: "StopChi2", Reason: "must be a finite number ≥ 0"}
+		return nil, &unfold.SettingsError{Field: "StopChi2", Reason: "must be a finite number > 0"}
 	case r.Iterations > 0 && r.StopChi2 > 0:
 		return nil, &unfold.SettingsError{Field: "Iterations", Reason: "give either a fixed number of iterations or a stopping χ², not both"}
 	}

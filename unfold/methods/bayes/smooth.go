@@ -67,7 +67,7 @@ func (s *Smoothing) check() error {
 	case s.Neighbours == nil:
 		return &unfold.SettingsError{Field: "Smoothing", Reason: "no neighbourhood given"}
 	case s.Strength < 0 || s.Strength > 1 || math.IsNaN(s.Strength):
-		return &unfold.SettingsError{Field: "Smoothing", Reason: "strength must be in (0, 1]"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "must be a strength in (0, 1]"}
 	case s.Neighbours.InRange() < 0 || s.Neighbours.InRange() > s.Neighbours.Len():
 		return &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood reports more in-range bins than bins"}
 	}
