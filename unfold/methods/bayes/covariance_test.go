@@ -56,6 +56,7 @@ func TestJacobianAgainstFiniteDifferences(t *testing.T) {
 		{"background subtracted", true, opts{Iterations: 4, Background: unfold.Subtract}},
 		{"smoothing", false, opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: sch, Strength: 0.5}}},
 		{"smoothing with background", true, opts{Iterations: 3, Smoothing: &Smoothing{Neighbours: sch}}},
+		{"2-D smoothing, strength below 1", true, opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: gridScheme(t, 3, 3), Strength: 0.4}}},
 	}
 	for _, c := range cases {
 		p := randomProblem(t, 21, 9, 17, 5, c.bkg)

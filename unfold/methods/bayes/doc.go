@@ -50,9 +50,10 @@
 //
 // # Smoothing
 //
-// Settings.Smoothing smooths μ after every iteration with a
-// total-preserving (1,2,1)/4 kernel along each axis of the truth binning,
-// inside a region and never across regions or into flow bins (the EMS
+// Settings.Smoothing smooths μ after every iteration,
+// μ ← (1−W) μ + W S μ, with S the product of total-preserving (1,2,1)/4
+// kernels along each axis of the truth binning, inside a region and
+// never across regions or into flow bins (the EMS
 // scheme of Silverman et al., JRSS B 52 (1990) 271). Smoothing breaks the
 // monotone likelihood of the plain EM iteration.
 //
@@ -72,7 +73,8 @@
 // respect to the background has the source term −Rᵀ diag(n/ν²) instead of
 // Rᵀ diag(1/ν). The start depends on the data through the scaling:
 // M(0) = p 1ᵀ / Σ_j eps_j p_j, and −M(0) with respect to b. With smoothing
-// S, every step is followed by M ← S M. The covariance is
+// of strength W, every step is followed by M ← (1−W) M + W S M, as the
+// estimate is by μ ← (1−W) μ + W S μ. The covariance is
 // V = M diag(var n) Mᵀ (+ M_b diag(var b) M_bᵀ when Problem.BackgroundVariance
 // is given), var n = n unless Problem.DataVariance is given.
 //

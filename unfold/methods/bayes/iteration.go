@@ -112,6 +112,7 @@ type iterator struct {
 	n  []float64 // data of this sequence
 
 	mu, next, g, tmp []float64 // truth-sized
+	orig             []float64 // truth-sized scratch of the smoothing
 	fold, fnext      []float64 // reco-sized: R μ(k), R μ(k+1)
 	nu, nunext       []float64 // ν(k), ν(k+1); without background they alias fold, fnext
 	y, ynext         []float64 // n / ν(k), n / ν(k+1)
@@ -140,6 +141,9 @@ func newIterator(m *model, sm *smoother) *iterator {
 		it.nu, it.nunext = it.fold, it.fnext // ν = R μ: no copy; swapped together
 	}
 	it.tmp = make([]float64, m.nt)
+	if sm != nil {
+		it.orig = make([]float64, m.nt)
+	}
 	m.p.Fold(it.rp, m.prior, it.tmp)
 	invG, invEps, gk := m.invG, m.invEps, it.g
 	it.update = func(j int, ga float64) float64 {
@@ -263,7 +267,7 @@ func (it *iterator) emStep() float64 {
 		it.g[j] = g
 		it.next[j] = it.mu[j] * g * m.invEps[j]
 	}
-	it.sm.apply(it.next, it.tmp)
+	it.sm.apply(it.next, it.tmp, it.orig)
 	m.p.Fold(it.fnext, it.next, it.tmp)
 	return it.recoAll(it.fnext, it.nunext, it.ynext)
 }

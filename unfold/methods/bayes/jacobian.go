@@ -185,11 +185,8 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 		return err
 	}
 	if it.sm != nil {
-		// Smooth the rows of W along each axis, ping-ponging with J.
-		for a := range it.sm.nbr {
-			it.sm.applyAxisRows(J, W, cols, a)
-			J, W = W, J
-		}
+		// M ← (1−w) M + w S M on the rows of W.
+		W, J = it.sm.applyRows(J, W, cols)
 	}
 	jc.j, jc.w = W, J
 	return nil

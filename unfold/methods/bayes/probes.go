@@ -33,6 +33,7 @@ type probes struct {
 
 type probeWork struct {
 	y, spare, gt []float64
+	orig         []float64 // scratch of the smoothing
 	update       func(j int, g float64) float64
 	dmu          []float64
 	it           *iterator
@@ -63,6 +64,7 @@ func newProbes(m *model, batch *unfold.Probes) *probes {
 		pw.y = make([]float64, m.nr)
 		pw.spare = make([]float64, m.nr)
 		pw.gt = make([]float64, m.nt)
+		pw.orig = make([]float64, m.nt)
 		pw.update = func(j int, ga float64) float64 {
 			it := pw.it
 			v := (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
@@ -171,7 +173,7 @@ func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 			pw.dmu[j] = (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
 		}
 		// it.tmp is shared between probes; use the private scratch
-		it.sm.apply(pw.dmu, pw.gt)
+		it.sm.apply(pw.dmu, pw.gt, pw.orig)
 		m.p.Fold(next, pw.dmu, pw.gt)
 	}
 	pr.tfold[s], pw.spare = next, tf

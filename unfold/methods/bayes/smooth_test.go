@@ -2,6 +2,7 @@ package bayes
 
 import (
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/desmear/desmear/binning"
@@ -20,6 +21,30 @@ func chainScheme(t testing.TB, n int) *binning.Scheme {
 		t.Fatal(err)
 	}
 	reg, err := binning.NewRegion("all", ax)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := binning.NewScheme(reg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// gridScheme is a one-region, two-axis truth binning of nx×ny bins
+// without flows.
+func gridScheme(t testing.TB, nx, ny int) *binning.Scheme {
+	t.Helper()
+	edges := func(n int) []float64 {
+		e := make([]float64, n+1)
+		for i := range e {
+			e[i] = float64(i)
+		}
+		return e
+	}
+	x, _ := binning.NewAxis("x", "", edges(nx), false, false)
+	y, _ := binning.NewAxis("y", "", edges(ny), false, false)
+	reg, err := binning.NewRegion("grid", x, y)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -66,7 +91,7 @@ func TestSmoothingKernel(t *testing.T) {
 		v[i] = float64(1 + i*i%7)
 	}
 	orig := append([]float64(nil), v...)
-	sm.apply(v, make([]float64, n))
+	sm.apply(v, make([]float64, n), make([]float64, n))
 
 	// Reference: (1,2,1)/4 with reflecting ends along y then x on the
 	// 3×4 grid of region a (row-major, y fastest), separately on region b.
@@ -158,5 +183,47 @@ func TestSmoothingPreservesTotal(t *testing.T) {
 	}
 	if maxRelDiff(a.next, b.next) < 1e-6 {
 		t.Errorf("smoothing did not change the estimate")
+	}
+}
+
+// A strength W < 1 blends the full smoothing once, μ ← (1−W) μ + W S μ
+// with S the product of the per-axis kernels (the package documentation,
+// section Smoothing), not once per axis. Closed form, derived here, on a
+// 2×2 region without flows and a unit mass 4 in the corner bin 0: along
+// an axis of two bins each bin keeps 3/4 and gives 1/4 to its neighbour
+// (1/2 kept, 1/4 to the neighbour, the missing side's 1/4 kept), so
+//
+//	S δ = (9/4, 3/4, 3/4, 1/4) for bins (0, two edge neighbours, 3),
+//
+// and with W = 1/2, μ = δ/2 + S δ/2 = (25/8, 3/8, 3/8, 1/8). Blending per
+// axis would instead give (49/16, 7/16, 7/16, 1/16). All values are
+// binary fractions, so the check is exact.
+func TestSmoothingStrengthBlendsOnce(t *testing.T) {
+	x, _ := binning.NewAxis("x", "", []float64{0, 1, 2}, false, false)
+	y, _ := binning.NewAxis("y", "", []float64{0, 1, 2}, false, false)
+	r, err := binning.NewRegion("a", x, y)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := binning.NewScheme(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sm, err := newSmoother(&Smoothing{Neighbours: s, Strength: 0.5}, []bool{true, true, true, true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	v := []float64{4, 0, 0, 0}
+	sm.apply(v, make([]float64, 4), make([]float64, 4))
+	if want := []float64{25.0 / 8, 3.0 / 8, 3.0 / 8, 1.0 / 8}; !slices.Equal(v, want) {
+		t.Errorf("smoothed %v, want %v", v, want)
+	}
+	// The rows of a matrix (the Jacobian's update) follow the same
+	// formula, column by column.
+	src := []float64{4, 1, 0, 0, 0, 0, 0, 0}
+	dst := make([]float64, 8)
+	out, _ := sm.applyRows(dst, src, 2)
+	if want := []float64{25.0 / 8, 1 * 25.0 / 32, 3.0 / 8, 3.0 / 32, 3.0 / 8, 3.0 / 32, 1.0 / 8, 1.0 / 32}; !slices.Equal(out, want) {
+		t.Errorf("smoothed rows %v, want %v", out, want)
 	}
 }
