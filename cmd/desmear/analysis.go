@@ -140,12 +140,8 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		fmt.Fprint(w, f)
 	}
 	fmt.Fprintln(w, ")")
-	conv := ""
 	det := bayes.DetailsOf(res)
-	if a.Unfolding.StopChi2 > 0 {
-		conv = fmt.Sprintf(", converged: %v", det.Converged)
-	}
-	fmt.Fprintf(w, "iterations: %d%s\n", det.Iterations, conv)
+	fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
 	if n := a.Truth.InRange(); n > maxTableRows {

@@ -566,6 +566,23 @@ func writeResultFolder(ctx context.Context, dir string, force bool, write func(f
 // result files.
 const maxTableRows = 30
 
+// stopSummary says how many iterations were made and how the iteration
+// stopped (result.json's stopped_by), for the terminal summaries.
+func stopSummary(iterations int, stoppedBy string, stopChi2 float64) string {
+	why := ""
+	switch stoppedBy {
+	case bayes.StoppedByIterations:
+		why = "the fixed number"
+	case bayes.StoppedByChi2:
+		why = fmt.Sprintf("chi-square below %g", stopChi2)
+	case bayes.StoppedByMaxIterations:
+		why = fmt.Sprintf("maximum reached; chi-square still above %g", stopChi2)
+	default:
+		return fmt.Sprintf("%d iterations", iterations)
+	}
+	return fmt.Sprintf("%d iterations (stopped by %s: %s)", iterations, stoppedBy, why)
+}
+
 // printSummary prints what was done to stdout, with a per-bin table for
 // small problems, and notes to stderr.
 func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme) {
@@ -575,14 +592,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 			det++
 		}
 	}
-	stop := fmt.Sprintf("%d iterations", r.Iterations)
-	if r.Settings.StopChi2 > 0 {
-		if r.Converged {
-			stop += fmt.Sprintf(" (chi-square below %g)", r.Settings.StopChi2)
-		} else {
-			stop += fmt.Sprintf(" (maximum reached; chi-square still above %g)", r.Settings.StopChi2)
-		}
-	}
+	stop := stopSummary(r.Iterations, r.StoppedBy, r.Settings.StopChi2)
 	w := g.stdout
 	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) in %s\n", r.RecoBins, r.TruthBins, det, stop)
 	if r.TruthBins <= maxTableRows {

@@ -126,8 +126,8 @@ func TestUnfoldOracleD(t *testing.T) {
 	if math.Abs(s-1657) > 1e-8 {
 		t.Errorf("Σ eps μ = %v, want 1657 (Oracle D)", s)
 	}
-	if r.Iterations != 5 || len(r.History) != 6 || r.Converged {
-		t.Errorf("iterations %d, history %d steps, converged %v", r.Iterations, len(r.History), r.Converged)
+	if r.Iterations != 5 || len(r.History) != 6 || r.Converged || r.StoppedBy != "iterations" {
+		t.Errorf("iterations %d, history %d steps, converged %v, stopped by %q", r.Iterations, len(r.History), r.Converged, r.StoppedBy)
 	}
 	// Oracle D: the log-likelihood increases, 8607.7217 after iteration 1 to
 	// 8624.3521 (Dempster, Laird, Rubin, JRSS B 39 (1977) 1: EM never
@@ -202,8 +202,8 @@ func TestUnfoldOracleEFullCovariance(t *testing.T) {
 		t.Fatalf("exit %d\nstderr: %s", code, stderr)
 	}
 	r, _ := readResult(t, out)
-	if r.Iterations != 2 || r.Converged || r.Settings.MaxIterations != 2 {
-		t.Errorf("iterations %d converged %v settings %+v", r.Iterations, r.Converged, r.Settings)
+	if r.Iterations != 2 || r.Converged || r.StoppedBy != "max_iterations" || r.Settings.MaxIterations != 2 {
+		t.Errorf("iterations %d converged %v stopped by %q settings %+v", r.Iterations, r.Converged, r.StoppedBy, r.Settings)
 	}
 	wantMu := []float64{923.565227, 894.044441, 754.943419}
 	wantSigma := []float64{31.746167, 25.974453, 29.433933}
@@ -580,8 +580,8 @@ func TestUnfoldSummaryNotes(t *testing.T) {
 		stdout string
 		stderr string
 	}{
-		{"converged", []string{"--stop-chi2", "1e6"}, "(chi-square below 1e+06)", ""},
-		{"not converged", []string{"--stop-chi2", "1e-300", "--max-iterations", "2"}, "2 iterations (maximum reached", ""},
+		{"converged", []string{"--stop-chi2", "1e6"}, "1 iterations (stopped by chi2: chi-square below 1e+06)", ""},
+		{"not converged", []string{"--stop-chi2", "1e-300", "--max-iterations", "2"}, "2 iterations (stopped by max_iterations: maximum reached", ""},
 		// Background 100 above the 87 counts of reco bin 3.
 		{"clipped", []string{"--background", filepath.Join(dir, "b.csv"), "--background-mode", "subtract"}, "", "in 1 reco bins the data minus the background was negative"},
 		{"probes", []string{"--diagonal-method", "probes", "--probes", "20"}, "", "uncertainties estimated with 20 probes"},

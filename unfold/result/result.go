@@ -69,9 +69,14 @@ type Result struct {
 	ClippedRecoBins []int `json:"clipped_reco_bins,omitempty"`
 
 	// Iterations is the number of iterations made; Converged reports
-	// that the stop-chi2 criterion was met (false with a fixed number).
+	// that the stop-chi2 criterion was met (false with a fixed number,
+	// kept for readers of format version 1); StoppedBy says how the
+	// iteration stopped: "iterations" (the fixed number was made), "chi2"
+	// (the stopping chi-square was met) or "max_iterations" (the bound
+	// was reached first).
 	Iterations int    `json:"iterations"`
 	Converged  bool   `json:"converged"`
+	StoppedBy  string `json:"stopped_by,omitempty"`
 	History    []Step `json:"history"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
@@ -230,7 +235,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		UncertaintySamples:   res.Samples,
 	}
 	if d, ok := res.Details.(*bayes.Details); ok {
-		r.Iterations, r.Converged = d.Iterations, d.Converged
+		r.Iterations, r.Converged, r.StoppedBy = d.Iterations, d.Converged, d.StoppedBy
 		r.History = make([]Step, len(d.History))
 		for k, s := range d.History {
 			r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}

@@ -33,9 +33,24 @@ type Details struct {
 	// Converged reports that the StopChi2 criterion was met; it is false
 	// with a fixed number of iterations.
 	Converged bool
+	// StoppedBy says how the iteration stopped: StoppedByIterations,
+	// StoppedByChi2 or StoppedByMaxIterations.
+	StoppedBy string
 	// History has one Step per iteration, History[0] being the start.
 	History []Step
 }
+
+// How the iteration stopped (Details.StoppedBy; the names of result.json).
+const (
+	// StoppedByIterations: the fixed number of iterations was made.
+	StoppedByIterations = "iterations"
+	// StoppedByChi2: the χ² between successive iterations reached the
+	// stopping value.
+	StoppedByChi2 = "chi2"
+	// StoppedByMaxIterations: the bound on the iterations was reached
+	// before the stopping χ².
+	StoppedByMaxIterations = "max_iterations"
+)
 
 // model is the prepared problem with its slices at hand for the
 // iteration's loops.
@@ -351,6 +366,14 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 			res.Converged = true
 			break
 		}
+	}
+	switch {
+	case rs.fixed:
+		res.StoppedBy = StoppedByIterations
+	case res.Converged:
+		res.StoppedBy = StoppedByChi2
+	default:
+		res.StoppedBy = StoppedByMaxIterations
 	}
 	return nil
 }

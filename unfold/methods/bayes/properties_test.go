@@ -290,10 +290,13 @@ func TestStopChi2(t *testing.T) {
 	p := denseProblem(t, oracleDR, oracleDN)
 	res := unfoldOrFail(t, p, &opts{StopChi2: 1, MaxIterations: 50})
 	// From Oracle D's history: χ² = 140.4, 19.8, 3.54, 0.713 → stops at 4.
-	if details(res).Iterations != 4 || !details(res).Converged {
-		t.Errorf("stopped after %d iterations (converged %v), want 4", details(res).Iterations, details(res).Converged)
+	if d := details(res); d.Iterations != 4 || !d.Converged || d.StoppedBy != StoppedByChi2 {
+		t.Errorf("stopped after %d iterations (converged %v, by %q), want 4 by %q", d.Iterations, d.Converged, d.StoppedBy, StoppedByChi2)
 	}
 	prev := unfoldOrFail(t, p, &opts{Iterations: 3})
+	if d := details(prev); d.StoppedBy != StoppedByIterations || d.Converged {
+		t.Errorf("fixed count: stopped by %q (converged %v), want %q", d.StoppedBy, d.Converged, StoppedByIterations)
+	}
 	var chi2 float64
 	for j, x := range res.Estimate {
 		d := x - prev.Estimate[j]
@@ -303,7 +306,7 @@ func TestStopChi2(t *testing.T) {
 		t.Errorf("χ²(4) = %g, recomputed %g", details(res).History[4].Chi2, chi2)
 	}
 	capped := unfoldOrFail(t, p, &opts{StopChi2: 1e-12, MaxIterations: 7})
-	if details(capped).Iterations != 7 || details(capped).Converged {
-		t.Errorf("capped: %d iterations, converged %v; want 7, false", details(capped).Iterations, details(capped).Converged)
+	if d := details(capped); d.Iterations != 7 || d.Converged || d.StoppedBy != StoppedByMaxIterations {
+		t.Errorf("capped: %d iterations, converged %v, by %q; want 7, false, %q", d.Iterations, d.Converged, d.StoppedBy, StoppedByMaxIterations)
 	}
 }
