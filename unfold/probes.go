@@ -20,7 +20,7 @@ const (
 // z_s through its linearised computation (Fit.Tangents) into
 // dμ_s = J z_s; E[(dμ_s)_j²] is the variance of μ_j.
 type Probes struct {
-	first, count int
+	count        int
 	sdN, sdB     []float64  // σ(n_i); σ(b_i), nil when not propagated
 	signN, signB [][]uint64 // per probe, bit i set: +σ, clear: −σ
 	dmu          [][]float64
@@ -41,7 +41,7 @@ func ProbeBytes(m *Prepared) int64 {
 // then its background signs, so a probe does not depend on the batch it
 // is in.
 func NewProbes(m *Prepared, first, count int, seed uint64) *Probes {
-	pr := &Probes{first: first, count: count}
+	pr := &Probes{count: count}
 	pr.sdN = make([]float64, m.nr)
 	for i, v := range m.varN {
 		pr.sdN[i] = math.Sqrt(v)

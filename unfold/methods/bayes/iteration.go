@@ -53,20 +53,17 @@ const (
 )
 
 // model is the prepared problem with its slices at hand for the
-// iteration's loops.
+// iteration's loops: the dimensions, A, 1/G, eps, 1/eps, the determined
+// bins, the data and background as used, the background variance, the
+// prior and Σ eps p (see the accessors of unfold.Prepared).
 type model struct {
-	p      *unfold.Prepared
-	nt, nr int
-	a      *sparse.Matrix // A_ij; the response is R_ij = A_ij invG_j (never stored)
-	invG   []float64      // 1/G_j, 0 where not determined
-	eps    []float64      // Σ_i R_ij
-	invEps []float64      // 1/eps_j, 0 where not determined
-	det    []bool         // eps_j > 0
-	n      []float64      // data used by the iteration (n − b clipped in Subtract mode)
-	b      []float64      // background inside ν (nil in Subtract mode or without background)
-	varB   []float64      // variance of b inside ν; nil when not propagated
-	prior  []float64      // prior, 0 where not determined
-	sumEP  float64        // Σ_j eps_j p_j
+	p                 *unfold.Prepared
+	nt, nr            int
+	a                 *sparse.Matrix
+	invG, eps, invEps []float64
+	det               []bool
+	n, b, varB, prior []float64
+	sumEP             float64
 }
 
 func newModel(p *unfold.Prepared) *model {

@@ -10,41 +10,25 @@ import (
 
 // chainScheme is a one-region, one-axis truth binning of n bins without
 // flows.
-func chainScheme(t testing.TB, n int) *binning.Scheme {
-	t.Helper()
-	edges := make([]float64, n+1)
-	for i := range edges {
-		edges[i] = float64(i)
-	}
-	ax, err := binning.NewAxis("x", "", edges, false, false)
-	if err != nil {
-		t.Fatal(err)
-	}
-	reg, err := binning.NewRegion("all", ax)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := binning.NewScheme(reg)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return s
-}
+func chainScheme(t testing.TB, n int) *binning.Scheme { return gridScheme(t, n) }
 
-// gridScheme is a one-region, two-axis truth binning of nx×ny bins
-// without flows.
-func gridScheme(t testing.TB, nx, ny int) *binning.Scheme {
+// gridScheme is a one-region truth binning without flows with one axis
+// of n bins per entry of sizes.
+func gridScheme(t testing.TB, sizes ...int) *binning.Scheme {
 	t.Helper()
-	edges := func(n int) []float64 {
-		e := make([]float64, n+1)
-		for i := range e {
-			e[i] = float64(i)
+	var axes []*binning.Axis
+	for k, n := range sizes {
+		edges := make([]float64, n+1)
+		for i := range edges {
+			edges[i] = float64(i)
 		}
-		return e
+		ax, err := binning.NewAxis(string(rune('x'+k)), "", edges, false, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		axes = append(axes, ax)
 	}
-	x, _ := binning.NewAxis("x", "", edges(nx), false, false)
-	y, _ := binning.NewAxis("y", "", edges(ny), false, false)
-	reg, err := binning.NewRegion("grid", x, y)
+	reg, err := binning.NewRegion("all", axes...)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -199,16 +183,7 @@ func TestSmoothingPreservesTotal(t *testing.T) {
 // axis would instead give (49/16, 7/16, 7/16, 1/16). All values are
 // binary fractions, so the check is exact.
 func TestSmoothingStrengthBlendsOnce(t *testing.T) {
-	x, _ := binning.NewAxis("x", "", []float64{0, 1, 2}, false, false)
-	y, _ := binning.NewAxis("y", "", []float64{0, 1, 2}, false, false)
-	r, err := binning.NewRegion("a", x, y)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := binning.NewScheme(r)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := gridScheme(t, 2, 2)
 	sm, err := newSmoother(&Smoothing{Neighbours: s, Strength: 0.5}, []bool{true, true, true, true})
 	if err != nil {
 		t.Fatal(err)
