@@ -1,108 +1,61 @@
-// Package unfold holds the iterative Bayesian unfolding kernel of desmear:
-// the D'Agostini iteration (G. D'Agostini, Nucl. Instrum. Meth. A362 (1995)
-// 487), which is the EM algorithm for Poisson data (Richardson 1972; Lucy
-// 1974; Shepp and Vardi 1982), run on a sparse response across all axes at
-// once, with the statistical uncertainty of the data propagated through
-// every iteration.
+// Package unfold is the seam shared by the unfolding methods of desmear.
+// It holds what every method needs and none of the methods themselves
+// (the iterative Bayesian method is package unfold/methods/bayes):
 //
-// # The method
-//
-// The inputs (see Problem) are the migrations A_ij (weighted simulated
-// count generated in truth bin j and reconstructed in reco bin i), the
-// generated counts G_j, the data n_i and an optional expected background
-// b_i. The response is R_ij = A_ij / G_j and the efficiency
-// eps_j = Σ_i R_ij. A truth bin with eps_j = 0 cannot be measured: it is
-// reported as not determined (Result.Determined false, estimate 0) and is
-// excluded from the iteration.
-//
-//   - Start: μ(0) = p · Σ_i (n_i − b_i) / Σ_j eps_j p_j, the prior p
-//     (default G) scaled so that Σ_j eps_j μ_j(0) = Σ_i (n_i − b_i).
-//   - Iterate: ν_i = Σ_j R_ij μ_j + b_i and
-//     μ_j ← (μ_j / eps_j) Σ_i R_ij n_i / ν_i.
-//     A reco bin with ν_i = 0 contributes nothing.
-//
-// Each iteration is one fused pass over the matrix
-// (sparse.Matrix.SweepRows): the sweep gathers g_j = (Rᵀ y)_j with
-// y = n/ν, forms μ_j' = μ_j g_j / eps_j and scatters R μ' into the next
-// fold; as each fixed row range of that fold is final, the sweep's rows
-// hook forms the next ν, n/ν and the range's share of the
-// log-likelihood. The log-likelihood is summed within each row range of
-// the matrix (sparse.Matrix.RowRanges) and the ranges in order.
-//
-// With Settings.Background = Subtract the background is removed from the
-// data first, n' = max(n − b, 0), and the iteration runs with b = 0 in ν;
-// the variance of n' is var n + var b (0 where clipped).
-//
-// # Stopping
-//
-// Either a fixed number of iterations K (Settings.Iterations, default
-// DefaultIterations), or the first k ≥ 1 with χ²(k) ≤ Settings.StopChi2,
-// at most Settings.MaxIterations, where
-//
-//	χ²(k) = Σ_j eps_j (μ_j(k) − μ_j(k−1))² / μ_j(k)
-//
-// over the determined bins with μ_j(k) > 0. The denominator μ_j(k)/eps_j
-// is the Poisson variance of a bin-by-bin estimate n_j/eps_j, so χ²(k) is
-// the change between successive iterations in units of a rough
-// statistical variance of each bin. Every iteration is recorded in
-// Result.History with χ², the relative change Σ|Δμ|/Σμ and the Poisson
-// log-likelihood Σ_i (n_i ln ν_i − ν_i).
-//
-// # Smoothing
-//
-// Settings.Smoothing smooths μ after every iteration with a
-// total-preserving (1,2,1)/4 kernel along each axis of the truth binning,
-// inside a region and never across regions or into flow bins (the EMS
-// scheme of Silverman et al., JRSS B 52 (1990) 271). Smoothing breaks the
-// monotone likelihood of the plain EM iteration.
+//   - Problem, the inputs: the migrations A_ij (weighted simulated count
+//     generated in truth bin j and reconstructed in reco bin i), the
+//     generated counts G_j, the data n_i with optional variances, an
+//     optional expected background b_i with optional variances, and an
+//     optional prior.
+//   - Prepared, the validated problem (Prepare): the response
+//     R_ij = A_ij / G_j (never stored), the efficiencies
+//     eps_j = Σ_i R_ij, the determined truth bins (eps_j > 0; the others
+//     are reported as not determined with estimate 0), 1/G, the data and
+//     variances as they enter the fit, the fold R x and the
+//     back-projection Rᵀ y. With Settings.Background = Subtract the
+//     background is removed from the data first, n' = max(n − b, 0),
+//     with var n' = var n + var b (0 where clipped); with InModel it
+//     enters the expectation ν = R μ + b.
+//   - Settings, the settings every method shares (background mode and
+//     uncertainty computation), besides each method's own settings type.
+//   - Method and Fit, the interface a method implements, and Result, the
+//     common outcome, with the method's own Details.
+//   - The uncertainty drivers, and the errors.
 //
 // # Uncertainties
 //
-// The data uncertainty is propagated to first order through all
-// iterations, including the dependence of the unfolding matrix on the
-// previous iteration. Differentiating the update (with g = Rᵀ(n/ν)):
+// The data-statistical uncertainty of a linear or linearised method is
+// V = J diag(var n) Jᵀ (+ J_b diag(var b) J_bᵀ when the background
+// variance is propagated), J = dμ/dn. Settings.Covariance selects:
 //
-//	dμ_j' = (g_j/eps_j) dμ_j + (μ_j/eps_j) [Rᵀ (dn/ν − n (R dμ + db)/ν²)]_j
-//
-// so the Jacobian M(k) = dμ(k)/dn obeys
-//
-//	M(k+1) = diag(g/eps) M(k) + diag(μ(k)/eps) [Rᵀ diag(1/ν) − Rᵀ diag(n/ν²) R M(k)]
-//
-// (diag(g/eps) = diag(μ(k+1)/μ(k)) where μ(k) > 0), and the Jacobian with
-// respect to the background has the source term −Rᵀ diag(n/ν²) instead of
-// Rᵀ diag(1/ν). The start depends on the data through the scaling:
-// M(0) = p 1ᵀ / Σ_j eps_j p_j, and −M(0) with respect to b. With smoothing
-// S, every step is followed by M ← S M. The covariance is
-// V = M diag(var n) Mᵀ (+ M_b diag(var b) M_bᵀ when Problem.BackgroundVariance
-// is given), var n = n unless Problem.DataVariance is given.
-//
-// Settings.Covariance selects:
-//
-//   - Full: the dense Jacobian (a gonum row-major matrix, two buffers of
-//     8·n_t·n_r bytes) is updated every iteration with the sparse
-//     operators Rᵀ diag(n/ν²) R and Rᵀ diag(1/ν) applied to dense column
-//     blocks; V comes from one general matrix multiply. It is refused with
-//     a *TooLargeError when 16·n_t·n_r + 8·n_t² bytes exceed
-//     Settings.MemoryLimit (default 4 GiB); with a propagated background
-//     variance n_r counts twice.
-//   - Diagonal: per-bin variances, by DiagonalExact (diagonal of the exact
-//     V from the dense Jacobian, when it fits), DiagonalProbes (S random
-//     Rademacher probes z_i = ±sqrt(var n_i) propagated as
-//     Jacobian-vector products through the same recursion, one fused sweep
-//     per probe and iteration; Var μ_j ≈ mean_s (M z_s)_j², relative
+//   - Full: the method fills the dense Jacobian (Fit.Jacobian; two
+//     buffers of 8·n_t·n_r bytes) and V comes from one general matrix
+//     multiply. It is refused with a *TooLargeError when
+//     16·n_t·n_r + 8·n_t² bytes exceed Settings.MemoryLimit (default
+//     4 GiB); with a propagated background variance n_r counts twice.
+//   - Diagonal: per-bin variances, by DiagonalExact (the diagonal of the
+//     exact V from the dense Jacobian, when it fits), DiagonalProbes (S
+//     random Rademacher probes z_s, (z_s)_i = ±sqrt(var n_i), propagated
+//     by the method as Jacobian-vector products, Fit.Tangents, in batches
+//     within half the memory limit; Var μ_j ≈ mean_s (J z_s)_j², relative
 //     precision of a variance at most sqrt(2/S)) or DiagonalToys (Poisson
-//     pseudo-data unfolded with the same number of iterations; precision
-//     sqrt(2/(T−1))). DiagonalAuto picks exact when the Jacobian fits
-//     under the memory limit and probes otherwise.
+//     pseudo-data on which the method re-runs with the same
+//     regularisation, Fit.NewToyRunner; precision sqrt(2/(T−1))).
+//     DiagonalAuto picks exact when the Jacobian fits under the memory
+//     limit and probes otherwise.
+//
+// The drivers plan the memory, draw the probes and the pseudo-data and
+// accumulate the variances; the method supplies only the propagation
+// through its own algorithm.
 //
 // # Conventions
 //
 // Unfold returns errors for everything that depends on the inputs:
 // *InputError (inconsistent or invalid Problem), *SettingsError,
-// *TooLargeError, *NumericalError, and ctx.Err() when cancelled (every
-// iteration, probe batch and toy checks the context). Panics are reserved
-// for programmer errors inside the package. Random numbers come from
+// *TooLargeError, *NumericalError, and ctx.Err() when cancelled. Panics
+// are reserved for programmer errors. Random numbers come from
 // math/rand/v2 PCG generators seeded with Settings.Seed and one stream per
-// probe or toy; all sums run in fixed orders, so results are bit-identical
-// for equal inputs and seed whatever the number of cores.
+// probe or toy, so a probe or toy does not depend on the batch or the
+// goroutine it runs on; all sums run in fixed orders, so results are
+// bit-identical for equal inputs and seed whatever the number of cores.
 package unfold

@@ -1,10 +1,8 @@
 package unfold
 
 import (
-	"context"
 	"math"
 	"math/rand/v2"
-	"runtime"
 )
 
 // Stream offsets of the random generators: probe s uses the PCG stream
@@ -15,37 +13,22 @@ const (
 	toyStream   uint64 = 2 << 32
 )
 
-// probes carries random Jacobian-vector products along the iteration:
-// for probe s, the perturbation dn_i = ±σ(n_i), db_i = ±σ(b_i) (random
-// signs, Rademacher) is propagated through the same linearised recursion
-// as the dense Jacobian, one fold and one back-projection per probe and
-// iteration (a fused Sweep). E[(dμ_j)²] is the variance of μ_j.
-type probes struct {
-	m     *model
-	first int // index of the first probe of this batch
-	count int
-	seed  uint64
-	sdN   []float64 // σ(n_i)
-	sdB   []float64 // σ(b_i), nil when not propagated
-	dmu   [][]float64
-	tfold [][]float64 // R dμ
-	signN [][]uint64
-	signB [][]uint64
-	work  []probeWork
-	a     []float64 // σ(n)/ν of the current iteration (0 where ν = 0)
-	w     []float64 // n/ν² of the current iteration
-	c     []float64 // σ(b) n/ν² (nil when the background variance is not propagated)
-	red   reducer
+// Probes is a batch of random probes for the per-bin variances: probe s
+// is the perturbation z_s of the data dn_i = ±σ(n_i) and, when the
+// background variance is propagated, of the background db_i = ±σ(b_i),
+// with independent random signs (Rademacher). A method propagates each
+// z_s through its linearised computation (Fit.Tangents) into
+// dμ_s = J z_s; E[(dμ_s)_j²] is the variance of μ_j.
+type Probes struct {
+	count        int
+	sdN, sdB     []float64  // σ(n_i); σ(b_i), nil when not propagated
+	signN, signB [][]uint64 // per probe, bit i set: +σ, clear: −σ
+	dmu          [][]float64
 }
 
-type probeWork struct {
-	y, spare, gt []float64
-	update       func(j int, g float64) float64
-	dmu          []float64
-	it           *iterator
-}
-
-func perProbeBytes(m *model) int64 {
+// ProbeBytes is the memory estimate of one probe of m as the methods
+// hold it: a truth and a reco tangent and the sign bits.
+func ProbeBytes(m *Prepared) int64 {
 	b := 8*int64(m.nt) + 8*int64(m.nr) + int64(m.nr)/8 + 8
 	if m.varB != nil {
 		b += int64(m.nr)/8 + 8
@@ -53,8 +36,12 @@ func perProbeBytes(m *model) int64 {
 	return b
 }
 
-func newProbes(m *model, first, count int, seed uint64) *probes {
-	pr := &probes{m: m, first: first, count: count, seed: seed}
+// NewProbes draws count probes for m, numbered from first: probe s uses
+// the PCG stream probeStream+s seeded with seed, its data signs first and
+// then its background signs, so a probe does not depend on the batch it
+// is in.
+func NewProbes(m *Prepared, first, count int, seed uint64) *Probes {
+	pr := &Probes{count: count}
 	pr.sdN = make([]float64, m.nr)
 	for i, v := range m.varN {
 		pr.sdN[i] = math.Sqrt(v)
@@ -81,150 +68,57 @@ func newProbes(m *model, first, count int, seed uint64) *probes {
 			pr.signB = append(pr.signB, bits)
 		}
 		pr.dmu = append(pr.dmu, make([]float64, m.nt))
-		pr.tfold = append(pr.tfold, make([]float64, m.nr))
-	}
-	pr.a = make([]float64, m.nr)
-	pr.w = make([]float64, m.nr)
-	if pr.sdB != nil {
-		pr.c = make([]float64, m.nr)
-	}
-	workers := min(runtime.GOMAXPROCS(0), count)
-	pr.work = make([]probeWork, workers)
-	for w := range pr.work {
-		pw := &pr.work[w]
-		pw.y = make([]float64, m.nr)
-		pw.spare = make([]float64, m.nr)
-		pw.gt = make([]float64, m.nt)
-		pw.update = func(j int, ga float64) float64 {
-			it := pw.it
-			v := (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
-			pw.dmu[j] = v
-			return v * m.invG[j]
-		}
 	}
 	return pr
 }
 
-func sign(bits []uint64, i int) float64 {
+// Len returns the number of probes in the batch.
+func (pr *Probes) Len() int { return pr.count }
+
+// DataSD returns σ(n_i).
+func (pr *Probes) DataSD() []float64 { return pr.sdN }
+
+// BackgroundSD returns σ(b_i), nil when the background variance is not
+// propagated.
+func (pr *Probes) BackgroundSD() []float64 { return pr.sdB }
+
+// Signs returns the sign bits of probe s for the data and the
+// background (nil when not propagated): bit i%64 of word i/64 set means
+// +σ, clear −σ.
+func (pr *Probes) Signs(s int) (data, background []uint64) {
+	if pr.signB != nil {
+		return pr.signN[s], pr.signB[s]
+	}
+	return pr.signN[s], nil
+}
+
+// Sign returns the sign (±1) of bit i in bits.
+func Sign(bits []uint64, i int) float64 {
 	if bits[i>>6]>>(uint(i)&63)&1 != 0 {
 		return 1
 	}
 	return -1
 }
 
-func (pr *probes) init(ctx context.Context, it *iterator) error {
-	m := pr.m
-	forEach(pr.count, runtime.GOMAXPROCS(0), func(s int) {
-		var d float64
-		for i, sd := range pr.sdN {
-			d += sign(pr.signN[s], i) * sd
-		}
-		for i, sd := range pr.sdB {
-			d -= sign(pr.signB[s], i) * sd
-		}
-		c := d / m.sumEP
-		for j, p := range m.prior {
-			pr.dmu[s][j] = c * p
-		}
-		for i, v := range it.rp {
-			pr.tfold[s][i] = c * v
-		}
-	})
-	return ctx.Err()
+// Net returns Σ_i dn_i − Σ_i db_i of probe s, the change of the net data
+// Σ (n − b), summed in bin order, data first.
+func (pr *Probes) Net(s int) float64 {
+	var d float64
+	for i, sd := range pr.sdN {
+		d += Sign(pr.signN[s], i) * sd
+	}
+	for i, sd := range pr.sdB {
+		d -= Sign(pr.signB[s], i) * sd
+	}
+	return d
 }
 
-func (pr *probes) step(ctx context.Context, it *iterator) error {
-	n, nu, a, w, c := it.n, it.nu, pr.a, pr.w, pr.c
-	pr.red.run(len(nu), func(lo, hi int, _ *[4]float64) {
-		for i := lo; i < hi; i++ {
-			if v := nu[i]; v > 0 {
-				inv := 1 / v
-				a[i] = pr.sdN[i] * inv
-				w[i] = n[i] * inv * inv
-			} else {
-				a[i], w[i] = 0, 0
-			}
-			if c != nil {
-				c[i] = w[i] * pr.sdB[i]
-			}
-		}
-	})
-	// Probes run on separate goroutines; each Sweep is itself
-	// deterministic, so the bits do not depend on the scheduling.
-	work := make(chan int, pr.count)
-	for s := 0; s < pr.count; s++ {
-		work <- s
-	}
-	close(work)
-	done := make(chan struct{}, len(pr.work))
-	for w := range pr.work {
-		go func(pw *probeWork) {
-			defer func() { done <- struct{}{} }()
-			pw.it = it
-			for s := range work {
-				if ctx.Err() != nil {
-					return
-				}
-				pr.one(pw, it, s)
-			}
-		}(&pr.work[w])
-	}
-	for range pr.work {
-		<-done
-	}
-	return ctx.Err()
-}
-
-// one advances probe s by one iteration.
-func (pr *probes) one(pw *probeWork, it *iterator, s int) {
-	m := pr.m
-	// y = dn/ν − n (R dμ + db)/ν² with dn = ±σ(n), db = ±σ(b): the sign
-	// of a_i (and c_i) is flipped through its sign bit where the probe's
-	// bit is 0.
-	a, w, c, tf, y := pr.a, pr.w, pr.c, pr.tfold[s], pw.y
-	sn := pr.signN[s]
-	var sb []uint64
-	if c != nil {
-		sb = pr.signB[s]
-	}
-	for wi, word := range sn {
-		lo := wi * 64
-		hi := min(lo+64, len(y))
-		aa, ww, tt, yy := a[lo:hi], w[lo:hi], tf[lo:hi], y[lo:hi]
-		aa, ww, tt = aa[:len(yy)], ww[:len(yy)], tt[:len(yy)]
-		nw := ^word
-		for k := range yy {
-			flip := (nw >> uint(k) & 1) << 63
-			yy[k] = math.Float64frombits(math.Float64bits(aa[k])^flip) - ww[k]*tt[k]
-		}
-		if sb != nil {
-			cc := c[lo:hi]
-			cc = cc[:len(yy)]
-			nb := ^sb[wi]
-			for k := range yy {
-				flip := (nb >> uint(k) & 1) << 63
-				yy[k] -= math.Float64frombits(math.Float64bits(cc[k]) ^ flip)
-			}
-		}
-	}
-	pw.dmu = pr.dmu[s]
-	next := pw.spare
-	if it.sm == nil {
-		m.a.Sweep(next, y, pw.update)
-	} else {
-		m.a.BackProject(pw.gt, y)
-		for j, ga := range pw.gt {
-			pw.dmu[j] = (it.g[j]*pw.dmu[j] + it.mu[j]*ga*m.invG[j]) * m.invEps[j]
-		}
-		// it.tmp is shared between probes; use the private scratch
-		it.sm.apply(pw.dmu, pw.gt)
-		m.fold(next, pw.dmu, pw.gt)
-	}
-	pr.tfold[s], pw.spare = next, tf
-}
+// Tangent returns dμ_s, the truth-sized vector the method fills for
+// probe s.
+func (pr *Probes) Tangent(s int) []float64 { return pr.dmu[s] }
 
 // accumulate adds Σ_s dμ_s² of this batch to sum, in probe order.
-func (pr *probes) accumulate(sum []float64) {
+func (pr *Probes) accumulate(sum []float64) {
 	for s := 0; s < pr.count; s++ {
 		for j, x := range pr.dmu[s] {
 			sum[j] += x * x

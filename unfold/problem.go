@@ -5,6 +5,7 @@ import (
 	"runtime"
 
 	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/internal/parallel"
 )
 
 // Problem holds the inputs of an unfolding. Bins are global indices:
@@ -36,21 +37,26 @@ type Problem struct {
 	Prior []float64
 }
 
-// model is a validated problem ready for the iteration.
-type model struct {
-	nt, nr int
-	a      *sparse.Matrix // A_ij; the response is R_ij = A_ij invG_j (never stored)
-	invG   []float64      // 1/G_j, 0 where not determined
-	eps    []float64      // Σ_i R_ij
-	invEps []float64      // 1/eps_j, 0 where not determined
-	det    []bool         // eps_j > 0
-	n      []float64      // data used by the iteration (n − b clipped in Subtract mode)
-	b      []float64      // background inside ν (nil in Subtract mode or without background)
-	varN   []float64      // variance of n as used (in Subtract mode var n + var b, 0 where clipped)
-	varB   []float64      // variance of b inside ν; nil when not propagated
-	prior  []float64      // prior, 0 where not determined
-	sumEP  float64        // Σ_j eps_j p_j
-	clip   []int          // Subtract mode: reco bins where n − b < 0
+// Prepared is a validated Problem in the form every method uses: the
+// efficiencies, the determined truth bins, 1/G, and the data, variances
+// and background as they enter the fit in the chosen background mode.
+// Make one with Prepare. The slices its accessors return are its own and
+// must not be modified.
+type Prepared struct {
+	nt, nr   int
+	a        *sparse.Matrix // A_ij; the response is R_ij = A_ij invG_j (never stored)
+	invG     []float64      // 1/G_j, 0 where not determined
+	eps      []float64      // Σ_i R_ij
+	invEps   []float64      // 1/eps_j, 0 where not determined
+	det      []bool         // eps_j > 0
+	n        []float64      // data used by the fit (n − b clipped in Subtract mode)
+	b        []float64      // background inside ν (nil in Subtract mode or without background)
+	varN     []float64      // variance of n as used (in Subtract mode var n + var b, 0 where clipped)
+	varB     []float64      // variance of b inside ν; nil when not propagated
+	prior    []float64      // prior, 0 where not determined
+	sumEP    float64        // Σ_j eps_j p_j
+	clip     []int          // Subtract mode: reco bins where n − b < 0
+	weighted bool           // var n is not n (given variances or a subtracted background)
 }
 
 // EfficiencyTolerance is the relative allowance for rounding in the
@@ -80,7 +86,11 @@ func checkVector(field string, v []float64, n int, reco bool, optional bool) err
 	return nil
 }
 
-func newModel(p *Problem, mode BackgroundMode) (*model, error) {
+// Prepare validates p and prepares it for background mode mode.
+//
+// Errors: *InputError for invalid or inconsistent inputs, naming the
+// Problem field and the bins concerned.
+func Prepare(p *Problem, mode BackgroundMode) (*Prepared, error) {
 	if p == nil || p.Migrations == nil {
 		return nil, inputErr("Migrations", -1, -1, "no response given")
 	}
@@ -118,13 +128,13 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 	}
 
 	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()
-	m := &model{nt: nt, nr: nr, a: a, invG: make([]float64, nt), eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
+	m := &Prepared{nt: nt, nr: nr, a: a, invG: make([]float64, nt), eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
 	// Columns in fixed blocks on several goroutines; each column is
 	// summed serially, so the result does not depend on the scheduling.
 	const colBlock = 4096
 	nb := (nt + colBlock - 1) / colBlock
 	errs := make([]error, nb)
-	forEach(nb, runtime.GOMAXPROCS(0), func(b int) {
+	parallel.For(nb, runtime.GOMAXPROCS(0), func(b int) {
 		for j := b * colBlock; j < min(nt, (b+1)*colBlock); j++ {
 			g := p.Generated[j]
 			var sum float64
@@ -202,6 +212,7 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 		}
 	}
 
+	m.weighted = p.DataVariance != nil || mode == Subtract && p.Background != nil
 	prior := p.Prior
 	if prior == nil {
 		prior = p.Generated
@@ -219,36 +230,101 @@ func newModel(p *Problem, mode BackgroundMode) (*model, error) {
 	return m, nil
 }
 
-// scale returns Σ_i (n_i − b_i) / Σ_j eps_j p_j, the factor mapping the
-// prior to μ(0), for data n (and the model's background).
-func (m *model) scale(n []float64) float64 {
+// TruthBins returns the number of truth bins (columns of the response).
+func (m *Prepared) TruthBins() int { return m.nt }
+
+// RecoBins returns the number of reco bins (rows of the response).
+func (m *Prepared) RecoBins() int { return m.nr }
+
+// Migrations returns the migration matrix A; the response is
+// R_ij = A_ij / G_j.
+func (m *Prepared) Migrations() *sparse.Matrix { return m.a }
+
+// InvGenerated returns 1/G_j, 0 where the truth bin is not determined.
+func (m *Prepared) InvGenerated() []float64 { return m.invG }
+
+// Efficiency returns eps_j = Σ_i R_ij.
+func (m *Prepared) Efficiency() []float64 { return m.eps }
+
+// InvEfficiency returns 1/eps_j, 0 where the truth bin is not determined.
+func (m *Prepared) InvEfficiency() []float64 { return m.invEps }
+
+// Determined reports the truth bins the response can measure
+// (eps_j > 0); the others are excluded from the fit.
+func (m *Prepared) Determined() []bool { return m.det }
+
+// Undetermined returns the truth bins with eps_j = 0, in order.
+func (m *Prepared) Undetermined() []int {
+	var u []int
+	for j, d := range m.det {
+		if !d {
+			u = append(u, j)
+		}
+	}
+	return u
+}
+
+// Data returns the data n as the fit uses it: in Subtract mode
+// max(n − b, 0).
+func (m *Prepared) Data() []float64 { return m.n }
+
+// DataVariance returns the variance of Data (Poisson n unless given; in
+// Subtract mode var n + var b, 0 where clipped).
+func (m *Prepared) DataVariance() []float64 { return m.varN }
+
+// Background returns the background b that enters the expectation
+// ν = R μ + b, nil in Subtract mode or without a background.
+func (m *Prepared) Background() []float64 { return m.b }
+
+// BackgroundVariance returns the variance of Background, nil when it is
+// not propagated.
+func (m *Prepared) BackgroundVariance() []float64 { return m.varB }
+
+// Prior returns the prior p_j, 0 where not determined.
+func (m *Prepared) Prior() []float64 { return m.prior }
+
+// FoldedPrior returns Σ_j eps_j p_j (> 0).
+func (m *Prepared) FoldedPrior() float64 { return m.sumEP }
+
+// Clipped returns the reco bins where the data minus the background was
+// negative and was set to zero (Subtract mode only).
+func (m *Prepared) Clipped() []int { return m.clip }
+
+// Columns returns the number of columns of the Jacobian dμ/d(n, b): the
+// reco bins, twice when the background variance is propagated (columns
+// RecoBins().. are then the background bins).
+func (m *Prepared) Columns() int {
+	if m.varB != nil {
+		return 2 * m.nr
+	}
+	return m.nr
+}
+
+// net returns Σ_i (n_i − b_i) of the data as used.
+func (m *Prepared) net() float64 {
 	var s float64
-	for _, x := range n {
+	for _, x := range m.n {
 		s += x
 	}
 	for _, x := range m.b {
 		s -= x
 	}
-	return s / m.sumEP
+	return s
 }
 
-// fold computes dst = R x = A (x ∘ invG), using tmp (truth-sized) as
-// scratch.
-func (m *model) fold(dst, x, tmp []float64) {
+// Fold computes dst = R x = A (x ∘ invG), using tmp (truth-sized) as
+// scratch. dst must not alias x or tmp.
+func (m *Prepared) Fold(dst, x, tmp []float64) {
 	for j, v := range x {
 		tmp[j] = v * m.invG[j]
 	}
 	m.a.Fold(dst, tmp)
 }
 
-// rValues returns the values of R = A/G in the order of A's entries.
-func (m *model) rValues() []float64 {
-	colPtr, val := m.a.ColPtr(), m.a.Values()
-	rv := make([]float64, len(val))
-	for j := 0; j < m.nt; j++ {
-		for k := colPtr[j]; k < colPtr[j+1]; k++ {
-			rv[k] = val[k] * m.invG[j]
-		}
+// BackProject computes dst = Rᵀ y (truth-sized dst, reco-sized y).
+func (m *Prepared) BackProject(dst, y []float64) {
+	m.a.BackProject(dst, y)
+	for j, ig := range m.invG {
+		dst[j] *= ig
 	}
-	return rv
 }

@@ -1,16 +1,12 @@
 package unfold
 
-import "math"
+import (
+	"fmt"
+	"strings"
+)
 
 // Defaults used when the corresponding Settings field is zero.
 const (
-	// DefaultIterations is the number of iterations when neither
-	// Settings.Iterations nor Settings.StopChi2 is set. A few iterations
-	// are common practice for the iterative Bayesian method.
-	DefaultIterations = 4
-	// DefaultMaxIterations bounds the iteration when Settings.StopChi2 is
-	// set and Settings.MaxIterations is zero.
-	DefaultMaxIterations = 100
 	// DefaultProbes is the number of random probes for the stochastic
 	// per-bin variances (relative precision of a variance ≤ sqrt(2/100)
 	// ≈ 14%, of an uncertainty ≈ 7%).
@@ -36,16 +32,6 @@ const (
 	Subtract
 )
 
-func (m BackgroundMode) String() string {
-	switch m {
-	case InModel:
-		return "in-model"
-	case Subtract:
-		return "subtract"
-	}
-	return "BackgroundMode(?)"
-}
-
 // CovarianceMode selects the data-statistical uncertainty to compute.
 type CovarianceMode int
 
@@ -61,18 +47,6 @@ const (
 	Full
 )
 
-func (m CovarianceMode) String() string {
-	switch m {
-	case NoCovariance:
-		return "none"
-	case Diagonal:
-		return "diag"
-	case Full:
-		return "full"
-	}
-	return "CovarianceMode(?)"
-}
-
 // DiagonalMethod selects how the per-bin variances of Diagonal are
 // computed.
 type DiagonalMethod int
@@ -85,48 +59,111 @@ const (
 	// from the dense Jacobian.
 	DiagonalExact
 	// DiagonalProbes propagates Settings.Probes random Rademacher probes
-	// through the linearised iteration (Jacobian-vector products).
+	// through the linearised method (Jacobian-vector products).
 	DiagonalProbes
 	// DiagonalToys unfolds Settings.Toys Poisson pseudo-data sets and
 	// takes the sample variance of the estimates.
 	DiagonalToys
 )
 
-func (m DiagonalMethod) String() string {
-	switch m {
-	case DiagonalAuto:
-		return "auto"
-	case DiagonalExact:
-		return "exact"
-	case DiagonalProbes:
-		return "probes"
-	case DiagonalToys:
-		return "toys"
-	}
-	return "DiagonalMethod(?)"
+// The text names of the modes, indexed by value: the names of result.json,
+// of the analysis file and of the command line. They are spelled here
+// only.
+var (
+	backgroundNames = []string{InModel: "model", Subtract: "subtract"}
+	covarianceNames = []string{NoCovariance: "none", Diagonal: "diag", Full: "full"}
+	diagonalNames   = []string{DiagonalAuto: "auto", DiagonalExact: "exact", DiagonalProbes: "probes", DiagonalToys: "toys"}
+)
+
+// BackgroundModes returns the modes in order; their String values are
+// the text names.
+func BackgroundModes() []BackgroundMode { return []BackgroundMode{InModel, Subtract} }
+
+// CovarianceModes returns the modes in order; their String values are
+// the text names.
+func CovarianceModes() []CovarianceMode { return []CovarianceMode{NoCovariance, Diagonal, Full} }
+
+// DiagonalMethods returns the methods in order; their String values are
+// the text names.
+func DiagonalMethods() []DiagonalMethod {
+	return []DiagonalMethod{DiagonalAuto, DiagonalExact, DiagonalProbes, DiagonalToys}
 }
 
-// Settings controls an unfolding. The zero value (and a nil *Settings)
-// means: DefaultIterations iterations, background in the model, no
-// smoothing, no uncertainty.
-type Settings struct {
-	// Iterations is a fixed number of iterations. Zero means
-	// DefaultIterations unless StopChi2 is set; setting both is an error.
-	Iterations int
-	// StopChi2, when positive, stops the iteration at the first k ≥ 1
-	// whose χ² between successive iterations (see the package
-	// documentation) is at most StopChi2, or at MaxIterations.
-	StopChi2 float64
-	// MaxIterations bounds the iteration with StopChi2 (zero means
-	// DefaultMaxIterations).
-	MaxIterations int
+func enumName(names []string, v int, typ string) string {
+	if v >= 0 && v < len(names) {
+		return names[v]
+	}
+	return fmt.Sprintf("%s(%d)", typ, v)
+}
 
+func enumParse(names []string, text []byte, typ string) (int, error) {
+	for i, n := range names {
+		if string(text) == n {
+			return i, nil
+		}
+	}
+	return 0, fmt.Errorf("unfold: unknown %s %q (want %s)", typ, text, strings.Join(names, ", "))
+}
+
+func enumText(names []string, v int, typ string) ([]byte, error) {
+	if v >= 0 && v < len(names) {
+		return []byte(names[v]), nil
+	}
+	return nil, fmt.Errorf("unfold: invalid %s(%d)", typ, v)
+}
+
+// String returns the text name ("model" or "subtract").
+func (m BackgroundMode) String() string { return enumName(backgroundNames, int(m), "BackgroundMode") }
+
+// MarshalText returns the text name.
+func (m BackgroundMode) MarshalText() ([]byte, error) {
+	return enumText(backgroundNames, int(m), "BackgroundMode")
+}
+
+// UnmarshalText sets m from its text name.
+func (m *BackgroundMode) UnmarshalText(text []byte) error {
+	v, err := enumParse(backgroundNames, text, "background mode")
+	*m = BackgroundMode(v)
+	return err
+}
+
+// String returns the text name ("none", "diag" or "full").
+func (m CovarianceMode) String() string { return enumName(covarianceNames, int(m), "CovarianceMode") }
+
+// MarshalText returns the text name.
+func (m CovarianceMode) MarshalText() ([]byte, error) {
+	return enumText(covarianceNames, int(m), "CovarianceMode")
+}
+
+// UnmarshalText sets m from its text name.
+func (m *CovarianceMode) UnmarshalText(text []byte) error {
+	v, err := enumParse(covarianceNames, text, "covariance mode")
+	*m = CovarianceMode(v)
+	return err
+}
+
+// String returns the text name ("auto", "exact", "probes" or "toys").
+func (m DiagonalMethod) String() string { return enumName(diagonalNames, int(m), "DiagonalMethod") }
+
+// MarshalText returns the text name.
+func (m DiagonalMethod) MarshalText() ([]byte, error) {
+	return enumText(diagonalNames, int(m), "DiagonalMethod")
+}
+
+// UnmarshalText sets m from its text name.
+func (m *DiagonalMethod) UnmarshalText(text []byte) error {
+	v, err := enumParse(diagonalNames, text, "diagonal method")
+	*m = DiagonalMethod(v)
+	return err
+}
+
+// Settings holds the settings every method shares: the background mode
+// and the uncertainty computation. The zero value (and a nil *Settings)
+// means background in the model and no uncertainty. Each method has its
+// own settings type besides (see Method).
+type Settings struct {
 	// Background selects how Problem.Background enters.
 	Background BackgroundMode
-
-	// Smoothing, when not nil, smooths the estimate after every
-	// iteration before it becomes the next prior.
-	Smoothing *Smoothing
 
 	// Covariance selects the uncertainty computation.
 	Covariance CovarianceMode
@@ -143,60 +180,28 @@ type Settings struct {
 	MemoryLimit int64
 }
 
-// resolved is Settings with the defaults filled in and checked.
-type resolved struct {
-	Settings
-	fixed   bool // a fixed number of iterations (Iterations), else stop rule
-	maxIter int
-}
-
-func resolve(s *Settings) (*resolved, error) {
-	var r resolved
+// Resolve checks s (nil means the zero value) and returns it with the
+// defaults filled in. It is the one place the common settings are
+// checked; the error is a *SettingsError whose Field is the Settings
+// field.
+func (s *Settings) Resolve() (Settings, error) {
+	var r Settings
 	if s != nil {
-		r.Settings = *s
+		r = *s
 	}
 	switch {
-	case r.Iterations < 0:
-		return nil, &SettingsError{"Iterations", "must not be negative"}
-	case r.MaxIterations < 0:
-		return nil, &SettingsError{"MaxIterations", "must not be negative"}
-	case r.StopChi2 < 0 || math.IsNaN(r.StopChi2) || math.IsInf(r.StopChi2, 0):
-		return nil, &SettingsError{"StopChi2", "must be a finite number ≥ 0"}
-	case r.Iterations > 0 && r.StopChi2 > 0:
-		return nil, &SettingsError{"Iterations", "give either a fixed number of iterations or a stopping χ², not both"}
-	case r.Probes < 0:
-		return nil, &SettingsError{"Probes", "must not be negative"}
-	case r.Probes == 1:
-		return nil, &SettingsError{"Probes", "need at least 2 probes"}
-	case r.Toys < 0:
-		return nil, &SettingsError{"Toys", "must not be negative"}
-	case r.Toys == 1:
-		return nil, &SettingsError{"Toys", "need at least 2 toys"}
+	case r.Probes < 0 || r.Probes == 1:
+		return r, &SettingsError{"Probes", "must be at least 2"}
+	case r.Toys < 0 || r.Toys == 1:
+		return r, &SettingsError{"Toys", "must be at least 2"}
 	case r.MemoryLimit < 0:
-		return nil, &SettingsError{"MemoryLimit", "must not be negative"}
-	case r.Background != InModel && r.Background != Subtract:
-		return nil, &SettingsError{"Background", "unknown mode"}
-	case r.Covariance < NoCovariance || r.Covariance > Full:
-		return nil, &SettingsError{"Covariance", "unknown mode"}
-	case r.DiagonalMethod < DiagonalAuto || r.DiagonalMethod > DiagonalToys:
-		return nil, &SettingsError{"DiagonalMethod", "unknown method"}
-	}
-	if r.Smoothing != nil {
-		if err := r.Smoothing.check(); err != nil {
-			return nil, err
-		}
-	}
-	if r.StopChi2 > 0 {
-		r.maxIter = r.MaxIterations
-		if r.maxIter == 0 {
-			r.maxIter = DefaultMaxIterations
-		}
-	} else {
-		r.fixed = true
-		if r.Iterations == 0 {
-			r.Iterations = DefaultIterations
-		}
-		r.maxIter = r.Iterations
+		return r, &SettingsError{"MemoryLimit", "must not be negative"}
+	case r.Background < 0 || int(r.Background) >= len(backgroundNames):
+		return r, &SettingsError{"Background", "unknown mode"}
+	case r.Covariance < 0 || int(r.Covariance) >= len(covarianceNames):
+		return r, &SettingsError{"Covariance", "unknown mode"}
+	case r.DiagonalMethod < 0 || int(r.DiagonalMethod) >= len(diagonalNames):
+		return r, &SettingsError{"DiagonalMethod", "unknown method"}
 	}
 	if r.Probes == 0 {
 		r.Probes = DefaultProbes
@@ -207,5 +212,5 @@ func resolve(s *Settings) (*resolved, error) {
 	if r.MemoryLimit == 0 {
 		r.MemoryLimit = DefaultMemoryLimit
 	}
-	return &r, nil
+	return r, nil
 }

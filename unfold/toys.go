@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"runtime"
 
+	"github.com/desmear/desmear/unfold/internal/parallel"
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
@@ -17,7 +18,7 @@ import (
 // n_eff = n_i²/var_i, which has mean n_i and variance var_i (common
 // practice). The background is Gaussian with the given variance,
 // truncated at zero.
-func toyData(m *model, weighted bool, seed uint64, t int, n, b []float64) {
+func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 	src := rand.NewPCG(seed, toyStream+uint64(t))
 	rng := rand.New(src)
 	for i, x := range m.n {
@@ -25,7 +26,7 @@ func toyData(m *model, weighted bool, seed uint64, t int, n, b []float64) {
 			n[i] = 0
 			continue
 		}
-		if !weighted {
+		if !m.weighted {
 			n[i] = distuv.Poisson{Lambda: x, Src: src}.Rand()
 			continue
 		}
@@ -45,32 +46,27 @@ func toyData(m *model, weighted bool, seed uint64, t int, n, b []float64) {
 	}
 }
 
-// toyVariances unfolds toys pseudo-data sets with iterations iterations
-// each and returns the sample variance of the estimate per truth bin.
-// Toys run concurrently; their results are accumulated in toy order
+// toyVariances re-runs fit on toys pseudo-data sets and returns the
+// sample variance of the estimate per truth bin. Toys run concurrently,
+// one runner per goroutine; their results are accumulated in toy order
 // (Welford's update), so the bits do not depend on the scheduling.
-func toyVariances(ctx context.Context, m *model, sm *smoother, weighted bool, iterations, toys int, seed uint64) ([]float64, error) {
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, error) {
 	workers := min(runtime.GOMAXPROCS(0), toys)
 	type slot struct {
-		it  *iterator
-		mod model
-		n   []float64
-		b   []float64
-		res Result
-		err error
+		run  ToyRunner
+		n, b []float64
+		est  []float64
+		err  error
 	}
 	slots := make([]slot, workers)
 	for w := range slots {
 		sl := &slots[w]
-		sl.mod = *m
 		if m.varB != nil {
 			sl.b = make([]float64, m.nr)
-			sl.mod.b = sl.b
 		}
 		sl.n = make([]float64, m.nr)
-		sl.it = newIterator(&sl.mod, sm)
+		sl.run = fit.NewToyRunner()
 	}
-	rs := &resolved{fixed: true, maxIter: iterations}
 	mean := make([]float64, m.nt)
 	m2 := make([]float64, m.nt)
 	count := 0
@@ -79,17 +75,17 @@ func toyVariances(ctx context.Context, m *model, sm *smoother, weighted bool, it
 			return nil, err
 		}
 		batch := min(workers, toys-t0)
-		forEach(batch, batch, func(w int) {
+		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
-			toyData(m, weighted, seed, t0+w, sl.n, sl.b)
-			sl.err = sl.it.iterate(ctx, sl.n, rs, nil, &sl.res)
+			toyData(m, seed, t0+w, sl.n, sl.b)
+			sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
 		})
 		for w := 0; w < batch; w++ {
 			if err := slots[w].err; err != nil {
 				return nil, err
 			}
 			count++
-			for j, x := range slots[w].it.mu {
+			for j, x := range slots[w].est {
 				d := x - mean[j]
 				mean[j] += d / float64(count)
 				m2[j] += d * (x - mean[j])

@@ -8,17 +8,18 @@ import (
 
 // plan is the uncertainty computation chosen for a problem.
 type plan struct {
-	m        *model
-	rs       *resolved
-	method   CovarianceMode
-	diag     DiagonalMethod // resolved: DiagonalExact, DiagonalProbes or DiagonalToys
-	weighted bool
-	batch    int // probes per batch
+	m      *Prepared
+	rs     *Settings
+	method CovarianceMode
+	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes or DiagonalToys
+	batch  int            // probes per batch
 }
 
-func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
-	pl := &plan{m: m, rs: rs, method: rs.Covariance, weighted: weighted}
-	cols := jacobianCols(m)
+// planUncertainty chooses the computation of rs for m and refuses, with a
+// *TooLargeError, what does not fit under the memory limit.
+func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
+	pl := &plan{m: m, rs: rs, method: rs.Covariance}
+	cols := m.Columns()
 	switch rs.Covariance {
 	case NoCovariance:
 		return pl, nil
@@ -51,7 +52,7 @@ func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
 		}
 	}
 	if pl.diag == DiagonalProbes {
-		per := perProbeBytes(m)
+		per := ProbeBytes(m)
 		if per > rs.MemoryLimit/2 {
 			return nil, &TooLargeError{
 				What: "one random probe (probes run in batches within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
@@ -64,17 +65,6 @@ func planUncertainty(m *model, rs *resolved, weighted bool) (*plan, error) {
 	return pl, nil
 }
 
-// first returns the tangents carried along the nominal iteration.
-func (pl *plan) first(ctx context.Context) (tangents, error) {
-	switch {
-	case pl.method == Full || pl.method == Diagonal && pl.diag == DiagonalExact:
-		return newJacobian(pl.m), nil
-	case pl.method == Diagonal && pl.diag == DiagonalProbes:
-		return newProbes(pl.m, 0, pl.batch, pl.rs.Seed), nil
-	}
-	return nil, nil
-}
-
 // columnVariances returns the variances of the Jacobian's columns.
 func (pl *plan) columnVariances() []float64 {
 	v := append([]float64(nil), pl.m.varN...)
@@ -84,36 +74,38 @@ func (pl *plan) columnVariances() []float64 {
 	return v
 }
 
-// finish completes the uncertainty computation into res.
-func (pl *plan) finish(ctx context.Context, it *iterator, res *Result, tan tangents) error {
+// finish completes the uncertainty computation into res, asking fit for
+// the Jacobian, the probes' tangents or the toys' estimates.
+func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	m := pl.m
 	var variance []float64
 	switch {
 	case pl.method == NoCovariance:
 		return nil
-	case pl.method == Full:
-		jc := tan.(*jacobian)
-		cov, err := jc.covariance(ctx, pl.columnVariances())
-		if err != nil {
+	case pl.method == Full || pl.diag == DiagonalExact:
+		jc := NewJacobian(m)
+		if err := fit.Jacobian(ctx, jc); err != nil {
 			return err
 		}
-		res.Covariance = cov
-		variance = make([]float64, m.nt)
-		for j := range variance {
-			variance[j] = cov.At(j, j)
+		if pl.method == Full {
+			cov, err := jc.covariance(ctx, pl.columnVariances())
+			if err != nil {
+				return err
+			}
+			res.Covariance = cov
+			variance = make([]float64, m.nt)
+			for j := range variance {
+				variance[j] = cov.At(j, j)
+			}
+		} else {
+			variance = jc.variances(pl.columnVariances())
 		}
-		res.UncertaintyMethod = "linearised"
-	case pl.diag == DiagonalExact:
-		variance = tan.(*jacobian).variances(pl.columnVariances())
 		res.UncertaintyMethod = "linearised"
 	case pl.diag == DiagonalProbes:
 		sum := make([]float64, m.nt)
-		pr := tan.(*probes)
-		pr.accumulate(sum)
-		fixed := &resolved{fixed: true, maxIter: res.Iterations}
-		for first := pl.batch; first < pl.rs.Probes; first += pl.batch {
-			pr = newProbes(m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
-			if _, err := newIterator(m, it.sm).run(ctx, m.n, fixed, pr); err != nil {
+		for first := 0; first < pl.rs.Probes; first += pl.batch {
+			pr := NewProbes(m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
+			if err := fit.Tangents(ctx, pr); err != nil {
 				return err
 			}
 			pr.accumulate(sum)
@@ -126,7 +118,7 @@ func (pl *plan) finish(ctx context.Context, it *iterator, res *Result, tan tange
 		res.Samples = pl.rs.Probes
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
 	case pl.diag == DiagonalToys:
-		v, err := toyVariances(ctx, m, it.sm, pl.weighted, res.Iterations, pl.rs.Toys, pl.rs.Seed)
+		v, err := toyVariances(ctx, m, fit, pl.rs.Toys, pl.rs.Seed)
 		if err != nil {
 			return err
 		}

@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"io/fs"
 	"path/filepath"
 	"slices"
 	"sync"
@@ -15,12 +14,9 @@ import (
 
 	"github.com/schollz/progressbar/v3"
 
-	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/inputs/observable"
-	"github.com/desmear/desmear/unfold/inputs/tables"
-	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -46,7 +42,7 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 func runAnalysis(ctx context.Context, g *globalOptions, path string, replace bool) (*analysis.Analysis, *analysis.Outcome, error) {
 	a, err := analysis.Load(path)
 	if err != nil {
-		return nil, nil, classifyAnalysisErr(err)
+		return nil, nil, analysisErr(err)
 	}
 	if err := a.CheckOutput(replace); err != nil {
 		switch {
@@ -63,7 +59,7 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace boo
 	out, err := a.Run(ctx, &analysis.Options{Progress: p.report, Version: version}, replace)
 	p.finish()
 	if err != nil {
-		return nil, nil, classifyAnalysisErr(err)
+		return nil, nil, analysisErr(err)
 	}
 	if !g.quiet {
 		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", path, time.Since(start).Seconds())
@@ -71,46 +67,22 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace boo
 	return a, out, nil
 }
 
-// classifyAnalysisErr attaches the exit class to an error of an
-// analysis run.
-func classifyAnalysisErr(err error) error {
+// analysisErr adds to an error of an analysis run the advice that names
+// the command line or the keys to change: the command that builds a
+// missing or outdated saved response, and the keys to change when the
+// memory limit is too small. exitCode classifies it.
+func analysisErr(err error) error {
 	var (
-		ae  *analysis.Error
-		aes analysis.Errors
-		be  *binning.Error
-		te  *tables.Error
-		oe  *observable.Error
-		ue  *unfold.InputError
-		se  *unfold.SettingsError
-		tl  *unfold.TooLargeError
-		ne  *unfold.NumericalError
-		ee  *response.EventError
-		pe  *fs.PathError
-		we  *analysis.OutputError
+		tl *unfold.TooLargeError
+		ae *analysis.Error
 	)
-	if errors.Is(err, analysis.ErrResponseNeeded) && errors.As(err, &ae) {
-		err = fmt.Errorf("%w with \"desmear response %s\"", err, ae.File)
-	}
 	switch {
-	case errors.Is(err, context.Canceled), errors.Is(err, context.DeadlineExceeded):
-		return err
+	case errors.Is(err, analysis.ErrResponseNeeded) && errors.As(err, &ae):
+		return fmt.Errorf("%w with \"desmear response %s\"", err, ae.File)
 	case errors.As(err, &tl):
-		return numericalErr(fmt.Errorf("%w (in the analysis file: uncertainty.covariance: diag, or a larger unfolding.memory_limit_gib)", err))
-	case errors.As(err, &ne):
-		return numericalErr(err)
-	case errors.As(err, &we):
-		return ioErr(err)
-	case errors.Is(err, fs.ErrNotExist), errors.Is(err, fs.ErrPermission):
-		return inputErr(err) // a missing or unreadable input file
-	case errors.As(err, &ae), errors.As(err, &aes), errors.As(err, &be), errors.As(err, &te), errors.As(err, &oe),
-		errors.As(err, &ue), errors.As(err, &se), errors.As(err, &ee):
-		return inputErr(err)
-	case errors.Is(err, result.ErrExists), errors.Is(err, result.ErrNotResult):
-		return usageErr(err)
-	case errors.As(err, &pe):
-		return ioErr(err)
+		return fmt.Errorf("%w (in the analysis file: uncertainty.covariance: diag, or a larger unfolding.memory_limit_gib)", err)
 	}
-	return inputErr(err)
+	return err
 }
 
 // progress draws one bar per stage on stderr, only when stderr is a
@@ -176,11 +148,8 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		fmt.Fprint(w, f)
 	}
 	fmt.Fprintln(w, ")")
-	conv := ""
-	if a.Unfolding.StopChi2 > 0 {
-		conv = fmt.Sprintf(", converged: %v", res.Converged)
-	}
-	fmt.Fprintf(w, "iterations: %d%s\n", res.Iterations, conv)
+	det := bayes.DetailsOf(res)
+	fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
 	if n := a.Truth.InRange(); n > maxTableRows {

@@ -17,6 +17,7 @@ import (
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 )
 
@@ -288,7 +289,7 @@ func TestPrintOutcomeLimitsTable(t *testing.T) {
 			Estimate:   make([]float64, c.bins),
 			Determined: make([]bool, c.bins),
 			Efficiency: make([]float64, c.bins),
-			Iterations: 4,
+			Details:    &bayes.Details{Iterations: 4},
 		}
 		var b strings.Builder
 		printOutcome(&b, &analysis.Analysis{Truth: s}, &analysis.Outcome{Result: res, Folder: "out", Files: c.files})

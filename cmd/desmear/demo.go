@@ -16,6 +16,7 @@ import (
 
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 )
 
 type demoOptions struct {
@@ -132,7 +133,7 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 	if len(out.Files) > 0 {
 		fmt.Fprintf(w, "         %s\n", strings.Join(out.Files, "  "))
 	}
-	fmt.Fprintf(w, "\nUnfolded (%d iterations, prior: the simulation) vs. known truth, expected zetons per in-range truth bin:\n", out.Result.Iterations)
+	fmt.Fprintf(w, "\nUnfolded (%d iterations, prior: the simulation) vs. known truth, expected zetons per in-range truth bin:\n", bayes.DetailsOf(out.Result).Iterations)
 	labelW := len("bin")
 	for _, r := range cmp.Rows {
 		labelW = max(labelW, len(r.Label))

@@ -5,7 +5,18 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"runtime/debug"
+
+	"github.com/spf13/cobra"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/inputs/observable"
+	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // Exit codes, one per class of failure. They are listed in the root
@@ -58,20 +69,53 @@ func ioErr(err error) error        { return withClass(exitIO, err) }
 
 func usagef(format string, a ...any) error { return usageErr(fmt.Errorf(format, a...)) }
 
-// exitCode maps an error to the process exit status.
-func exitCode(ctx context.Context, err error) int {
-	if err == nil {
+// exitCode maps an error to the process exit status. It is the one
+// classifier of errors: an error classified where it arose (usageErr,
+// inputErr, numericalErr, ioErr) keeps its class, the libraries' typed
+// errors map by kind, and an error of no known kind is an input error
+// (exit 3) once a command runs: the commands' failures that carry no type
+// come from reading their input files. Before a command runs the only
+// such errors are cobra's own (an unknown command), usage errors (exit
+// 2); started says whether a command ran.
+func exitCode(ctx context.Context, err error, started bool) int {
+	var (
+		ce  *classError
+		ae  *analysis.Error
+		aes analysis.Errors
+		be  *binning.Error
+		te  *tables.Error
+		oe  *observable.Error
+		ie  *unfold.InputError
+		se  *unfold.SettingsError
+		tl  *unfold.TooLargeError
+		ne  *unfold.NumericalError
+		ee  *response.EventError
+		we  *analysis.OutputError
+		pe  *fs.PathError
+	)
+	switch {
+	case err == nil:
 		return exitOK
-	}
-	if errors.Is(err, context.Canceled) || ctx.Err() != nil {
+	case errors.Is(err, context.Canceled), ctx.Err() != nil:
 		return exitInterrupted
-	}
-	var ce *classError
-	if errors.As(err, &ce) {
+	case errors.As(err, &ce):
 		return ce.code
+	case errors.As(err, &tl), errors.As(err, &ne):
+		return exitNumerical
+	case errors.As(err, &we):
+		return exitIO
+	case errors.Is(err, fs.ErrNotExist), errors.Is(err, fs.ErrPermission):
+		return exitInput // a missing or unreadable input file
+	case errors.As(err, &ae), errors.As(err, &aes), errors.As(err, &be), errors.As(err, &te), errors.As(err, &oe),
+		errors.As(err, &ie), errors.As(err, &ee):
+		return exitInput
+	case errors.As(err, &se), errors.Is(err, result.ErrExists), errors.Is(err, result.ErrNotResult):
+		return exitUsage // a setting or an output folder the user chose
+	case errors.As(err, &pe):
+		return exitIO
+	case started:
+		return exitInput
 	}
-	// Errors that reach here unclassified come from cobra's own argument
-	// and flag parsing.
 	return exitUsage
 }
 
@@ -85,9 +129,11 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		}
 	}()
 	root := newRootCommand(stdin, stdout, stderr)
+	started := false
+	root.PersistentPreRun = func(*cobra.Command, []string) { started = true }
 	root.SetArgs(args)
 	err := root.ExecuteContext(ctx)
-	code = exitCode(ctx, err)
+	code = exitCode(ctx, err, started)
 	if err != nil {
 		if code == exitInterrupted {
 			fmt.Fprintln(stderr, "desmear: interrupted; no output was written")

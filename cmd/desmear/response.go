@@ -74,7 +74,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	}
 	a, err := analysis.Load(path)
 	if err != nil {
-		return classifyAnalysisErr(err)
+		return analysisErr(err)
 	}
 	out := o.out
 	if out == "" {
@@ -96,7 +96,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	r, info, err := a.BuildResponse(ctx, &analysis.Options{Progress: p.report, Version: version})
 	p.finish()
 	if err != nil {
-		return classifyAnalysisErr(err)
+		return analysisErr(err)
 	}
 	if err := r.Save(out, *info, o.force); err != nil {
 		if errors.Is(err, result.ErrExists) {
@@ -111,7 +111,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		bkg, err := a.Background(ctx, r, &analysis.Options{Progress: p.report})
 		p.finish()
 		if err != nil {
-			return classifyAnalysisErr(err)
+			return analysisErr(err)
 		}
 		if err := writeTables(o.tables, r, bkg, o.force); err != nil {
 			return ioErr(err)

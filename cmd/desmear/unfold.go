@@ -19,11 +19,14 @@ import (
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
 )
 
 // unfoldOptions are the options of "desmear unfold" in plain-table mode.
 type unfoldOptions struct {
+	flags *pflag.FlagSet // set by check, for the messages naming flags
+
 	response, generated, data, background, prior string
 	truthBinning, recoBinning                    string
 
@@ -128,12 +131,12 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.IntVar(&o.iterations, "iterations", 0, "fixed number of iterations `K` (default 4 unless --stop-chi2 is given)")
 	f.Float64Var(&o.stopChi2, "stop-chi2", 0, "stop at the first iteration whose chi-square between successive estimates is at most `X`")
 	f.IntVar(&o.maxIterations, "max-iterations", 0, "with --stop-chi2: at most `K` iterations (default 100)")
-	f.Var(flagval.NewChoice(&o.bgMode, unfold.InModel, []string{"model", "subtract"}, []unfold.BackgroundMode{unfold.InModel, unfold.Subtract}),
+	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()),
 		"background-mode", "model: the background stays in the folded expectation (estimates stay non-negative); subtract: data minus background is unfolded (negative differences set to 0)")
 	f.Float64Var(&o.smooth, "smooth", 0, "smooth the estimate between iterations with strength `W` in (0,1] along each axis of the truth binning, within regions (needs --truth-binning; default: no smoothing)")
-	f.Var(flagval.NewChoice(&o.covariance, unfold.Diagonal, []string{"none", "diag", "full"}, []unfold.CovarianceMode{unfold.NoCovariance, unfold.Diagonal, unfold.Full}),
+	f.Var(flagval.NewEnum(&o.covariance, unfold.Diagonal, unfold.CovarianceModes()),
 		"covariance", "data-statistical uncertainty: none; diag (per-bin uncertainties); full (also the covariance matrix, linearised through every iteration)")
-	f.Var(flagval.NewChoice(&o.diagonal, unfold.DiagonalAuto, []string{"auto", "exact", "probes", "toys"}, []unfold.DiagonalMethod{unfold.DiagonalAuto, unfold.DiagonalExact, unfold.DiagonalProbes, unfold.DiagonalToys}),
+	f.Var(flagval.NewEnum(&o.diagonal, unfold.DiagonalAuto, unfold.DiagonalMethods()),
 		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
 	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
@@ -185,23 +188,23 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 	if len(missing) > 0 {
 		return usagef("unfold needs %s (or an analysis file as the only argument); see \"desmear unfold --help\"", strings.Join(missing, ", "))
 	}
-	changed := cmd.Flags().Changed
+	o.flags = cmd.Flags()
+	changed := o.flags.Changed
+	// The ranges of the values are checked by the settings' validators
+	// (below); here only what the command line adds: an explicit 0
+	// (the libraries' "default") and flags given in the wrong mode.
 	switch {
-	case o.iterations < 0:
-		return usagef("--iterations %d: give a positive number", o.iterations)
 	case changed("iterations") && o.iterations == 0:
 		return usagef("--iterations 0: give at least 1 iteration")
 	case changed("iterations") && changed("stop-chi2"):
 		return usagef("give either --iterations or --stop-chi2, not both")
-	case !(o.stopChi2 >= 0) || o.stopChi2 > 1e300:
-		return usagef("--stop-chi2 %v: give a finite number > 0", o.stopChi2)
 	case changed("stop-chi2") && o.stopChi2 == 0:
 		return usagef("--stop-chi2 0: give a threshold > 0 (or a fixed number with --iterations)")
 	case changed("max-iterations") && !changed("stop-chi2"):
 		return usagef("--max-iterations applies only with --stop-chi2 (use --iterations for a fixed number)")
-	case o.maxIterations < 0 || changed("max-iterations") && o.maxIterations == 0:
-		return usagef("--max-iterations %d: give a positive number", o.maxIterations)
-	case changed("smooth") && !(o.smooth > 0 && o.smooth <= 1):
+	case changed("max-iterations") && o.maxIterations == 0:
+		return usagef("--max-iterations 0: give a positive number")
+	case changed("smooth") && o.smooth <= 0:
 		return usagef("--smooth %v: give a strength in (0, 1]", o.smooth)
 	case o.smooth > 0 && o.truthBinning == "":
 		return usagef("--smooth needs --truth-binning (smoothing follows the axes and regions of the truth binning)")
@@ -211,22 +214,66 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--diagonal-method applies only to --covariance diag")
 	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys):
 		return usagef("--probes applies only to --covariance diag with --diagonal-method probes or auto")
-	case changed("probes") && o.probes < 2:
-		return usagef("--probes %d: give at least 2", o.probes)
+	case changed("probes") && o.probes == 0:
+		return usagef("--probes 0: give at least 2")
 	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys):
 		return usagef("--toys applies only to --covariance diag --diagonal-method toys")
-	case changed("toys") && o.toys < 2:
-		return usagef("--toys %d: give at least 2", o.toys)
+	case changed("toys") && o.toys == 0:
+		return usagef("--toys 0: give at least 2")
 	}
-	return nil
+	s, m := o.settings(nil)
+	if m.Smoothing != nil {
+		// The truth binning is read later; the unfolding checks it.
+		m.Smoothing.Neighbours = noBins{}
+	}
+	if _, err := s.Resolve(); err != nil {
+		return o.flagErr(err)
+	}
+	return o.flagErr(m.Validate())
 }
 
-// settings returns the kernel settings of the options.
-func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
+// noBins stands for the truth binning when the settings are checked
+// before it is read.
+type noBins struct{}
+
+func (noBins) Len() int                       { return 0 }
+func (noBins) InRange() int                   { return 0 }
+func (noBins) Neighbours(int, int) (int, int) { return -1, -1 }
+
+// settingFlags maps the fields of unfold.Settings and bayes.Settings to
+// their flags.
+var settingFlags = map[string]string{
+	"Iterations":     "iterations",
+	"StopChi2":       "stop-chi2",
+	"MaxIterations":  "max-iterations",
+	"Smoothing":      "smooth",
+	"Background":     "background-mode",
+	"Covariance":     "covariance",
+	"DiagonalMethod": "diagonal-method",
+	"Probes":         "probes",
+	"Toys":           "toys",
+	"Seed":           "seed",
+	"MemoryLimit":    "memory-limit",
+}
+
+// flagErr turns an *unfold.SettingsError into a usage error naming the
+// flag and its value; other errors (and nil) are returned unchanged.
+func (o *unfoldOptions) flagErr(err error) error {
+	var se *unfold.SettingsError
+	if !errors.As(err, &se) {
+		return err
+	}
+	name, ok := settingFlags[se.Field]
+	if !ok || o.flags == nil || o.flags.Lookup(name) == nil {
+		return usageErr(err)
+	}
+	return usagef("--%s %s: %s", name, o.flags.Lookup(name).Value, se.Reason)
+}
+
+// settings returns the common and the iterative method's settings of
+// the options.
+func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, *bayes.Settings) {
 	s := &unfold.Settings{
-		Iterations:     o.iterations,
-		StopChi2:       o.stopChi2,
-		MaxIterations:  o.maxIterations,
 		Background:     o.bgMode,
 		Covariance:     o.covariance,
 		DiagonalMethod: o.diagonal,
@@ -235,10 +282,15 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
 		Seed:           o.seed,
 		MemoryLimit:    o.memoryLimit,
 	}
-	if o.smooth > 0 {
-		s.Smoothing = &unfold.Smoothing{Neighbours: truth, Strength: o.smooth}
+	m := &bayes.Settings{
+		Iterations:    o.iterations,
+		StopChi2:      o.stopChi2,
+		MaxIterations: o.maxIterations,
 	}
-	return s
+	if o.smooth > 0 {
+		m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}
+	}
+	return s, m
 }
 
 // checkOutFolder refuses an output folder that exists (unless force) or
@@ -392,24 +444,20 @@ func checkSizes(z tables.Sizes, limit int64) error {
 		z.Truth, origin(z.TruthOrigin), z.Reco, origin(z.RecoOrigin), need>>20, limit>>20))
 }
 
-// kernelErr classifies an error of unfold.Unfold.
-func kernelErr(ctx context.Context, set *tables.Set, err error) error {
+// kernelErr says where an error of unfold.Unfold comes from: an input
+// error at the table file and line, a settings error at its flag, and
+// the flags to change when the memory limit is too small. exitCode
+// classifies the result.
+func (o *unfoldOptions) kernelErr(set *tables.Set, err error) error {
 	var ie *unfold.InputError
-	var se *unfold.SettingsError
-	switch {
-	case ctx.Err() != nil || errors.Is(err, context.Canceled):
-		return err
-	case errors.As(err, &ie):
-		return inputErr(set.Locate(err))
-	case errors.As(err, &se):
-		return usageErr(err)
-	}
 	var tl *unfold.TooLargeError
-	if errors.As(err, &tl) {
-		return numericalErr(fmt.Errorf("%w (on the command line: --covariance diag, or a larger --memory-limit)", err))
+	switch {
+	case errors.As(err, &ie):
+		return set.Locate(err)
+	case errors.As(err, &tl):
+		return fmt.Errorf("%w (on the command line: --covariance diag, or a larger --memory-limit)", err)
 	}
-	// *unfold.NumericalError and anything else.
-	return numericalErr(err)
+	return o.flagErr(err)
 }
 
 func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
@@ -433,10 +481,10 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		return err
 	}
 
-	settings := o.settings(pi.truth)
-	res, err := unfold.Unfold(ctx, prob, settings)
+	settings, method := o.settings(pi.truth)
+	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
-		return kernelErr(ctx, &pi.set, err)
+		return o.kernelErr(&pi.set, err)
 	}
 	hook(ctx, "unfolded")
 
@@ -450,7 +498,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if o.prior != "" {
 		prior = "table"
 	}
-	r.Settings = result.DescribeSettings(settings, prior, o.background != "")
+	r.Settings = result.DescribeSettings(settings, method, prior, o.background != "")
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 	}
@@ -518,6 +566,23 @@ func writeResultFolder(ctx context.Context, dir string, force bool, write func(f
 // result files.
 const maxTableRows = 30
 
+// stopSummary says how many iterations were made and how the iteration
+// stopped (result.json's stopped_by), for the terminal summaries.
+func stopSummary(iterations int, stoppedBy string, stopChi2 float64) string {
+	why := ""
+	switch stoppedBy {
+	case bayes.StoppedByIterations:
+		why = "the fixed number"
+	case bayes.StoppedByChi2:
+		why = fmt.Sprintf("chi-square below %g", stopChi2)
+	case bayes.StoppedByMaxIterations:
+		why = fmt.Sprintf("maximum reached; chi-square still above %g", stopChi2)
+	default:
+		return fmt.Sprintf("%d iterations", iterations)
+	}
+	return fmt.Sprintf("%d iterations (stopped by %s: %s)", iterations, stoppedBy, why)
+}
+
 // printSummary prints what was done to stdout, with a per-bin table for
 // small problems, and notes to stderr.
 func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme) {
@@ -527,14 +592,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 			det++
 		}
 	}
-	stop := fmt.Sprintf("%d iterations", r.Iterations)
-	if r.Settings.StopChi2 > 0 {
-		if r.Converged {
-			stop += fmt.Sprintf(" (chi-square below %g)", r.Settings.StopChi2)
-		} else {
-			stop += fmt.Sprintf(" (maximum reached; chi-square still above %g)", r.Settings.StopChi2)
-		}
-	}
+	stop := stopSummary(r.Iterations, r.StoppedBy, r.Settings.StopChi2)
 	w := g.stdout
 	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) in %s\n", r.RecoBins, r.TruthBins, det, stop)
 	if r.TruthBins <= maxTableRows {

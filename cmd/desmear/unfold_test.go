@@ -125,8 +125,8 @@ func TestUnfoldOracleD(t *testing.T) {
 	if math.Abs(s-1657) > 1e-8 {
 		t.Errorf("Σ eps μ = %v, want 1657 (Oracle D)", s)
 	}
-	if r.Iterations != 5 || len(r.History) != 6 || r.Converged {
-		t.Errorf("iterations %d, history %d steps, converged %v", r.Iterations, len(r.History), r.Converged)
+	if r.Iterations != 5 || len(r.History) != 6 || r.Converged || r.StoppedBy != "iterations" {
+		t.Errorf("iterations %d, history %d steps, converged %v, stopped by %q", r.Iterations, len(r.History), r.Converged, r.StoppedBy)
 	}
 	// Oracle D: the log-likelihood increases, 8607.7217 after iteration 1 to
 	// 8624.3521 (Dempster, Laird, Rubin, JRSS B 39 (1977) 1: EM never
@@ -201,8 +201,8 @@ func TestUnfoldOracleEFullCovariance(t *testing.T) {
 		t.Fatalf("exit %d\nstderr: %s", code, stderr)
 	}
 	r, _ := readResult(t, out)
-	if r.Iterations != 2 || r.Converged || r.Settings.MaxIterations != 2 {
-		t.Errorf("iterations %d converged %v settings %+v", r.Iterations, r.Converged, r.Settings)
+	if r.Iterations != 2 || r.Converged || r.StoppedBy != "max_iterations" || r.Settings.MaxIterations != 2 {
+		t.Errorf("iterations %d converged %v stopped by %q settings %+v", r.Iterations, r.Converged, r.StoppedBy, r.Settings)
 	}
 	wantMu := []float64{923.565227, 894.044441, 754.943419}
 	wantSigma := []float64{31.746167, 25.974453, 29.433933}
@@ -345,18 +345,18 @@ func TestUnfoldBadInput(t *testing.T) {
 		{"max without stop", nil, []string{"--max-iterations", "3"}, exitUsage, []string{"only with --stop-chi2"}},
 		{"probes with full", nil, []string{"--covariance", "full", "--probes", "10"}, exitUsage, []string{"--probes applies only"}},
 		{"smooth without binning", nil, []string{"--smooth", "0.5"}, exitUsage, []string{"--smooth needs --truth-binning"}},
-		{"negative iterations", nil, []string{"--iterations", "-1"}, exitUsage, []string{"--iterations -1: give a positive number"}},
+		{"negative iterations", nil, []string{"--iterations", "-1"}, exitUsage, []string{"--iterations -1: must be ≥ 1"}},
 		{"zero iterations", nil, []string{"--iterations", "0"}, exitUsage, []string{"give at least 1 iteration"}},
-		{"negative stop", nil, []string{"--stop-chi2", "-1"}, exitUsage, []string{"--stop-chi2 -1: give a finite number > 0"}},
-		{"NaN stop", nil, []string{"--stop-chi2", "NaN"}, exitUsage, []string{"give a finite number > 0"}},
+		{"negative stop", nil, []string{"--stop-chi2", "-1"}, exitUsage, []string{"--stop-chi2 -1: must be a finite number > 0"}},
+		{"NaN stop", nil, []string{"--stop-chi2", "NaN"}, exitUsage, []string{"--stop-chi2 NaN: must be a finite number > 0"}},
 		{"zero stop", nil, []string{"--stop-chi2", "0"}, exitUsage, []string{"give a threshold > 0"}},
 		{"zero max", nil, []string{"--stop-chi2", "1", "--max-iterations", "0"}, exitUsage, []string{"--max-iterations 0: give a positive number"}},
-		{"smooth out of range", nil, []string{"--smooth", "2", "--truth-binning", "T.yaml"}, exitUsage, []string{"--smooth 2: give a strength in (0, 1]"}},
+		{"smooth out of range", nil, []string{"--smooth", "2", "--truth-binning", "T.yaml"}, exitUsage, []string{"--smooth 2: must be a strength in (0, 1]"}},
 		{"background mode without background", nil, []string{"--background-mode", "subtract"}, exitUsage, []string{"--background-mode needs --background"}},
 		{"diagonal method with full", nil, []string{"--covariance", "full", "--diagonal-method", "exact"}, exitUsage, []string{"--diagonal-method applies only"}},
-		{"one probe", nil, []string{"--probes", "1"}, exitUsage, []string{"--probes 1: give at least 2"}},
+		{"one probe", nil, []string{"--probes", "1"}, exitUsage, []string{"--probes 1: must be at least 2"}},
 		{"toys without toys method", nil, []string{"--toys", "10"}, exitUsage, []string{"--toys applies only"}},
-		{"one toy", nil, []string{"--diagonal-method", "toys", "--toys", "1"}, exitUsage, []string{"--toys 1: give at least 2"}},
+		{"one toy", nil, []string{"--diagonal-method", "toys", "--toys", "1"}, exitUsage, []string{"--toys 1: must be at least 2"}},
 		{"covariance too large", nil, []string{"--covariance", "full", "--memory-limit", "10B"}, exitNumerical, []string{"memory limit", "--covariance diag"}},
 	}
 	for _, c := range cases {
@@ -579,8 +579,8 @@ func TestUnfoldSummaryNotes(t *testing.T) {
 		stdout string
 		stderr string
 	}{
-		{"converged", []string{"--stop-chi2", "1e6"}, "(chi-square below 1e+06)", ""},
-		{"not converged", []string{"--stop-chi2", "1e-300", "--max-iterations", "2"}, "2 iterations (maximum reached", ""},
+		{"converged", []string{"--stop-chi2", "1e6"}, "1 iterations (stopped by chi2: chi-square below 1e+06)", ""},
+		{"not converged", []string{"--stop-chi2", "1e-300", "--max-iterations", "2"}, "2 iterations (stopped by max_iterations: maximum reached", ""},
 		// Background 100 above the 87 counts of reco bin 3.
 		{"clipped", []string{"--background", filepath.Join(dir, "b.csv"), "--background-mode", "subtract"}, "", "in 1 reco bins the data minus the background was negative"},
 		{"probes", []string{"--diagonal-method", "probes", "--probes", "20"}, "", "uncertainties estimated with 20 probes"},

@@ -1,6 +1,7 @@
 package analysis
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"os"
@@ -11,6 +12,7 @@ import (
 	"go.yaml.in/yaml/v3"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
 )
 
@@ -257,16 +259,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	u := doc.Unfolding
 	a.Unfolding = Unfolding{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
 		Prior: u.Prior, Smoothing: u.Smoothing, Background: u.Background, Fakes: u.Fakes}
-	switch {
-	case u.Iterations < 0:
-		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "must be ≥ 1")
-	case u.Iterations > 0 && u.StopChi2 > 0:
-		c.errf(c.line("unfolding", "stop_chi2"), "unfolding.stop_chi2", "give either iterations or stop_chi2, not both")
-	case u.StopChi2 < 0 || math.IsNaN(u.StopChi2) || math.IsInf(u.StopChi2, 0):
-		c.errf(c.line("unfolding", "stop_chi2"), "unfolding.stop_chi2", "must be a finite number > 0")
-	case u.MaxIterations < 0:
-		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "must be ≥ 1")
-	case u.MaxIterations > 0 && u.StopChi2 == 0:
+	if u.MaxIterations != 0 && u.StopChi2 == 0 {
 		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "bounds the stopping rule: give stop_chi2 too, or use iterations")
 	}
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
@@ -275,10 +268,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	} else if u.PriorFile != "" {
 		c.errf(c.line("unfolding", "prior_file"), "unfolding.prior_file", "is used only with prior: file")
 	}
-	if s := u.Smoothing; s < 0 || s > 1 || math.IsNaN(s) {
-		c.errf(c.line("unfolding", "smoothing"), "unfolding.smoothing", "must be a strength in (0, 1], or 0 (no smoothing)")
-	}
-	c.oneOf(&a.Unfolding.Background, "model", []string{"model", "subtract"}, "unfolding", "background")
+	c.oneOf(&a.Unfolding.Background, unfold.InModel.String(), names(unfold.BackgroundModes()), "unfolding", "background")
 	c.oneOf(&a.Unfolding.Fakes, "background", []string{"background", "ignore"}, "unfolding", "fakes")
 	// A limit below one byte would truncate to 0, the kernel's default:
 	// refuse it (and an explicit 0) rather than silently use the default.
@@ -295,13 +285,10 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
-	c.oneOf(&a.Uncertainty.Covariance, "diag", []string{"none", "diag", "full"}, "uncertainty", "covariance")
-	c.oneOf(&a.Uncertainty.Method, "auto", []string{"auto", "exact", "probes", "toys"}, "uncertainty", "method")
-	if un.Probes < 0 || un.Probes == 1 {
-		c.errf(c.line("uncertainty", "probes"), "uncertainty.probes", "must be at least 2")
-	}
-	if un.Toys < 0 || un.Toys == 1 {
-		c.errf(c.line("uncertainty", "toys"), "uncertainty.toys", "must be at least 2")
+	c.oneOf(&a.Uncertainty.Covariance, unfold.Diagonal.String(), names(unfold.CovarianceModes()), "uncertainty", "covariance")
+	c.oneOf(&a.Uncertainty.Method, unfold.DiagonalAuto.String(), names(unfold.DiagonalMethods()), "uncertainty", "method")
+	if len(c.errs) == 0 {
+		c.settings(a)
 	}
 
 	// Output.
@@ -355,6 +342,47 @@ type checker struct {
 	file string
 	root *yaml.Node
 	errs Errors
+}
+
+// settingKeys maps the fields of unfold.Settings and bayes.Settings to
+// their keys in the analysis file.
+var settingKeys = map[string][]any{
+	"Iterations":     {"unfolding", "iterations"},
+	"StopChi2":       {"unfolding", "stop_chi2"},
+	"MaxIterations":  {"unfolding", "max_iterations"},
+	"Smoothing":      {"unfolding", "smoothing"},
+	"Background":     {"unfolding", "background"},
+	"MemoryLimit":    {"unfolding", "memory_limit_gib"},
+	"Covariance":     {"uncertainty", "covariance"},
+	"DiagonalMethod": {"uncertainty", "method"},
+	"Probes":         {"uncertainty", "probes"},
+	"Toys":           {"uncertainty", "toys"},
+	"Seed":           {"uncertainty", "seed"},
+}
+
+// settings checks the unfolding and uncertainty settings of a with their
+// validators and reports an invalid one at its key.
+func (c *checker) settings(a *Analysis) {
+	s, m, err := a.Settings()
+	if err == nil {
+		if _, err = s.Resolve(); err == nil {
+			err = m.Validate()
+		}
+	}
+	var se *unfold.SettingsError
+	if errors.As(err, &se) {
+		key := settingKeys[se.Field]
+		c.errf(c.line(key...), fieldName(key...), "%s", se.Reason)
+	}
+}
+
+// names returns the text names of the values of an enumeration.
+func names[T fmt.Stringer](vals []T) []string {
+	out := make([]string, len(vals))
+	for i, v := range vals {
+		out[i] = v.String()
+	}
+	return out
 }
 
 func (c *checker) errf(line int, field, format string, args ...any) {

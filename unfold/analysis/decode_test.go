@@ -71,7 +71,7 @@ func TestDecodeErrors(t *testing.T) {
 		{`  reco: {x: "xr"}`, `  reco: {z: "xr"}`, `testdata/bad.yaml:11: observables.reco.z: the binning has no axis "z"`},
 		{"  folder: out", "  folder: ''", `result.folder: missing`},
 		{"    scale: 2\n", "    scale: -2\n", `testdata/bad.yaml:23: backgrounds[0].scale: must be a finite number > 0`},
-		{"  iterations: 3", "  iterations: 3\n  stop_chi2: 0.1", `unfolding.stop_chi2: give either iterations or stop_chi2`},
+		{"  iterations: 3", "  iterations: 3\n  stop_chi2: 0.1", `unfolding.iterations: give either a fixed number of iterations or a stopping χ², not both`},
 		{"  events: data.csv", "  events: data.csv\n  table: n.csv", `data: give exactly one of`},
 		{"  - file: sim.csv\n    weight: w\n    truth_selection: pt\n    reco_selection: pr", "  file: sim.csv\n  weight: w\n  truth_selection: pt\n  reco_selection: pr", `testdata/bad.yaml:13: simulation: the value is a mapping, want a list of simulated samples`},
 		{"  - file: sim.csv", "  - file: sim.txt", `testdata/bad.yaml:13: simulation[0].file: unknown events format of "sim.txt"`},

@@ -14,6 +14,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/internal/rootio"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -110,14 +111,14 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err != nil {
 		return nil, err
 	}
-	s, err := a.Settings()
+	s, m, err := a.Settings()
 	if err != nil {
 		return nil, err
 	}
-	if out.Result, err = unfold.Unfold(ctx, p, s); err != nil {
+	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
-	if err := a.write(out, s, replace, opt); err != nil {
+	if err := a.write(out, s, m, replace, opt); err != nil {
 		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
 			return nil, err
 		}
@@ -209,7 +210,7 @@ func (a *Analysis) densities(est, unc []float64) (dens, densUnc []float64) {
 	return dens, densUnc
 }
 
-func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Options) (err error) {
+func (a *Analysis) write(out *Outcome, s *unfold.Settings, m *bayes.Settings, replace bool, opt *Options) (err error) {
 	res, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err
@@ -226,7 +227,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 	if a.Unfolding.Prior != "simulation" {
 		prior = a.Unfolding.Prior
 	}
-	doc.Settings = result.DescribeSettings(s, prior, out.Background != nil)
+	doc.Settings = result.DescribeSettings(s, m, prior, out.Background != nil)
 	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
 	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
 	doc.Analysis = AnalysisInfo{File: a.File, Title: a.Title}

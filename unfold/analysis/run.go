@@ -2,6 +2,7 @@ package analysis
 
 import (
 	"context"
+	"encoding"
 	"errors"
 	"fmt"
 	"math"
@@ -10,6 +11,7 @@ import (
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -375,34 +377,34 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 	return e, nil
 }
 
-// Settings returns the kernel settings of the analysis file.
-func (a *Analysis) Settings() (*unfold.Settings, error) {
+// Settings returns the settings of the analysis file: the common ones
+// and those of the iterative method. The error is an
+// *unfold.SettingsError for a mode name the enumerations do not know
+// (Decode has refused those already).
+func (a *Analysis) Settings() (*unfold.Settings, *bayes.Settings, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
-		Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
-	if u.Background == "subtract" {
-		s.Background = unfold.Subtract
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	m := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
+	if u.Smoothing != 0 {
+		m.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
 	}
-	if u.Smoothing > 0 {
-		s.Smoothing = &unfold.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
+	for _, e := range []struct {
+		field string
+		v     encoding.TextUnmarshaler
+		text  string
+	}{
+		{"Background", &s.Background, u.Background},
+		{"Covariance", &s.Covariance, un.Covariance},
+		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+	} {
+		if e.text == "" {
+			continue
+		}
+		if err := e.v.UnmarshalText([]byte(e.text)); err != nil {
+			return nil, nil, &unfold.SettingsError{Field: e.field, Reason: err.Error()}
+		}
 	}
-	switch un.Covariance {
-	case "none":
-		s.Covariance = unfold.NoCovariance
-	case "diag":
-		s.Covariance = unfold.Diagonal
-	case "full":
-		s.Covariance = unfold.Full
-	}
-	switch un.Method {
-	case "exact":
-		s.DiagonalMethod = unfold.DiagonalExact
-	case "probes":
-		s.DiagonalMethod = unfold.DiagonalProbes
-	case "toys":
-		s.DiagonalMethod = unfold.DiagonalToys
-	}
-	return s, nil
+	return s, m, nil
 }
 
 // Prior returns the prior of the iteration: nil for the simulation's

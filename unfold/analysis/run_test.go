@@ -18,6 +18,7 @@ import (
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/internal/rootio"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 )
 
@@ -188,7 +189,7 @@ func TestClosure(t *testing.T) {
 		t.Fatal(err)
 	}
 	for k := 1; k <= 5; k++ {
-		res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Iterations: k})
+		res, err := unfold.Unfold(context.Background(), p, nil, &bayes.Settings{Iterations: k})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -295,8 +296,8 @@ func TestRunAndTables(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	s, _ := a.Settings()
-	res, err := unfold.Unfold(context.Background(), p, s)
+	s, m, _ := a.Settings()
+	res, err := unfold.Unfold(context.Background(), p, s, m)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -480,11 +481,11 @@ func TestBackgroundPriorAndTH1D(t *testing.T) {
 	if !slices.Equal(p.Prior, []float64{5, 4, 3, 2, 1, 1}) {
 		t.Errorf("prior %v", p.Prior)
 	}
-	s, _ := a.Settings()
-	if s.Smoothing == nil || s.Smoothing.Strength != 0.5 || s.Covariance != unfold.Full || s.Iterations != 4 {
-		t.Errorf("settings %+v", s)
+	s, m, _ := a.Settings()
+	if m.Smoothing == nil || m.Smoothing.Strength != 0.5 || s.Covariance != unfold.Full || m.Iterations != 4 {
+		t.Errorf("settings %+v %+v", s, m)
 	}
-	if _, err := unfold.Unfold(ctx, p, s); err != nil {
+	if _, err := unfold.Unfold(ctx, p, s, m); err != nil {
 		t.Fatal(err)
 	}
 	a.Unfolding.Prior = "flat"

@@ -16,6 +16,7 @@ import (
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
 	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 )
 
@@ -90,16 +91,16 @@ func load(t testing.TB, path string) *pipeline {
 	return &pipeline{a: a, response: r, problem: p}
 }
 
-func (p *pipeline) unfold(t testing.TB, mutate func(*unfold.Settings)) *unfold.Result {
+func (p *pipeline) unfold(t testing.TB, mutate func(*unfold.Settings, *bayes.Settings)) *unfold.Result {
 	t.Helper()
-	s, err := p.a.Settings()
+	s, m, err := p.a.Settings()
 	if err != nil {
 		t.Fatal(err)
 	}
 	if mutate != nil {
-		mutate(s)
+		mutate(s, m)
 	}
-	res, err := unfold.Unfold(context.Background(), p.problem, s)
+	res, err := unfold.Unfold(context.Background(), p.problem, s, m)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -130,8 +131,8 @@ func TestDemoUnfoldedAgreesWithKnownTruth(t *testing.T) {
 		in := generateOnce(t, demo.Config{Events: testEvents, Seed: seed})
 		p := load(t, in.Path(demo.AnalysisFile))
 		res := p.unfold(t, nil)
-		if res.Iterations != demo.Iterations || res.Covariance == nil {
-			t.Fatalf("the demo's analysis made %d iterations (want %d), covariance %v", res.Iterations, demo.Iterations, res.Covariance != nil)
+		if bayes.DetailsOf(res).Iterations != demo.Iterations || res.Covariance == nil {
+			t.Fatalf("the demo's analysis made %d iterations (want %d), covariance %v", bayes.DetailsOf(res).Iterations, demo.Iterations, res.Covariance != nil)
 		}
 		c, err := demo.Compare(in.Truth, res.Estimate, res.Uncertainty, res.Covariance)
 		if err != nil {
@@ -254,8 +255,8 @@ func TestDemoClosureOnSimulation(t *testing.T) {
 		}
 	}
 	for k := 1; k <= 12; k++ {
-		res := p.unfold(t, func(s *unfold.Settings) {
-			s.Iterations, s.Covariance = k, unfold.NoCovariance
+		res := p.unfold(t, func(s *unfold.Settings, m *bayes.Settings) {
+			m.Iterations, s.Covariance = k, unfold.NoCovariance
 		})
 		worst := 0.0
 		for g, v := range truth {

@@ -42,7 +42,7 @@ func BenchmarkFixedSimulationToys(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	s, err := a.Settings()
+	s, m, err := a.Settings()
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -71,7 +71,7 @@ func BenchmarkFixedSimulationToys(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			res, err := unfold.Unfold(ctx, p, s)
+			res, err := unfold.Unfold(ctx, p, s, m)
 			if err != nil {
 				b.Fatal(err)
 			}

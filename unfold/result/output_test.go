@@ -14,6 +14,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -255,12 +256,12 @@ func TestHashingReader(t *testing.T) {
 func kernelResult() *unfold.Result {
 	cov := mat.NewSymDense(3, []float64{4, 1, 99, 1, 9, 99, 99, 99, 99})
 	return &unfold.Result{
-		Estimate:          []float64{10, 20, 123},
-		Determined:        []bool{true, true, false},
-		Efficiency:        []float64{0.5, 0.8, 0},
-		Folded:            []float64{3, 4},
-		Iterations:        2,
-		History:           []unfold.Step{{Iteration: 0, LogLikelihood: -3}, {Iteration: 1, Chi2: 2, Change: 0.1, LogLikelihood: -2}, {Iteration: 2, Chi2: 1, Change: 0.05, LogLikelihood: -1}},
+		Estimate:   []float64{10, 20, 123},
+		Determined: []bool{true, true, false},
+		Efficiency: []float64{0.5, 0.8, 0},
+		Folded:     []float64{3, 4},
+		Details: &bayes.Details{Iterations: 2,
+			History: []bayes.Step{{Iteration: 0, LogLikelihood: -3}, {Iteration: 1, Chi2: 2, Change: 0.1, LogLikelihood: -2}, {Iteration: 2, Chi2: 1, Change: 0.05, LogLikelihood: -1}}},
 		Uncertainty:       []float64{2, 3, math.NaN()},
 		Covariance:        cov,
 		UncertaintyMethod: "linearised",
@@ -375,22 +376,23 @@ func TestJSONLayout(t *testing.T) {
 // The settings record fills in the kernel's documented defaults (the
 // zero values of unfold.Settings mean "the default").
 func TestDescribeSettings(t *testing.T) {
-	d := DescribeSettings(nil, "generated", false)
-	if d.Iterations != unfold.DefaultIterations || d.StopChi2 != 0 || d.MaxIterations != 0 || d.MemoryLimit != unfold.DefaultMemoryLimit ||
+	d := DescribeSettings(nil, nil, "generated", false)
+	if d.Iterations != bayes.DefaultIterations || d.StopChi2 != 0 || d.MaxIterations != 0 || d.MemoryLimit != unfold.DefaultMemoryLimit ||
 		d.Covariance != unfold.NoCovariance.String() || d.DiagonalMethod != "" || d.Probes != 0 ||
 		d.Toys != 0 || d.Background != "" || d.Smoothing != 0 || d.Prior != "generated" {
 		t.Errorf("defaults: %+v", d)
 	}
-	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Diagonal}, "generated", false); d.DiagonalMethod != unfold.DiagonalAuto.String() || d.Probes != unfold.DefaultProbes || d.Toys != 0 {
+	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Diagonal}, nil, "generated", false); d.DiagonalMethod != unfold.DiagonalAuto.String() || d.Probes != unfold.DefaultProbes || d.Toys != 0 {
 		t.Errorf("diagonal: %+v", d)
 	}
-	d = DescribeSettings(&unfold.Settings{StopChi2: 0.5, Background: unfold.Subtract, Smoothing: &unfold.Smoothing{},
-		Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, MemoryLimit: 1 << 20}, "table", true)
-	if d.Iterations != 0 || d.StopChi2 != 0.5 || d.MaxIterations != unfold.DefaultMaxIterations || d.Background != "subtract" ||
+	d = DescribeSettings(&unfold.Settings{Background: unfold.Subtract,
+		Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, MemoryLimit: 1 << 20},
+		&bayes.Settings{StopChi2: 0.5, Smoothing: &bayes.Smoothing{Neighbours: chain{}}}, "table", true)
+	if d.Iterations != 0 || d.StopChi2 != 0.5 || d.MaxIterations != bayes.DefaultMaxIterations || d.Background != "subtract" ||
 		d.Smoothing != 1 || d.Toys != unfold.DefaultToys || d.Probes != 0 || d.MemoryLimit != 1<<20 || d.Prior != "table" {
 		t.Errorf("stopping rule, subtraction, smoothing, toys: %+v", d)
 	}
-	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Full}, "generated", true); d.DiagonalMethod != "" || d.Probes != 0 || d.Background != "model" {
+	if d := DescribeSettings(&unfold.Settings{Covariance: unfold.Full}, nil, "generated", true); d.DiagonalMethod != "" || d.Probes != 0 || d.Background != "model" {
 		t.Errorf("full covariance with a background in the model: %+v", d)
 	}
 }
@@ -435,3 +437,11 @@ func TestWriteResultRefuses(t *testing.T) {
 		t.Error("WriteCSV accepted a 1-bin binning for a 3-bin result")
 	}
 }
+
+// chain is a neighbourhood of no bins, enough for settings that only
+// need one given.
+type chain struct{}
+
+func (chain) Len() int                       { return 0 }
+func (chain) InRange() int                   { return 0 }
+func (chain) Neighbours(int, int) (int, int) { return -1, -1 }

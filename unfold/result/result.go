@@ -10,6 +10,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 )
 
 // Format and FormatVersion identify result.json files of this layout.
@@ -68,9 +69,14 @@ type Result struct {
 	ClippedRecoBins []int `json:"clipped_reco_bins,omitempty"`
 
 	// Iterations is the number of iterations made; Converged reports
-	// that the stop-chi2 criterion was met (false with a fixed number).
+	// that the stop-chi2 criterion was met (false with a fixed number,
+	// kept for readers of format version 1); StoppedBy says how the
+	// iteration stopped: "iterations" (the fixed number was made), "chi2"
+	// (the stopping chi-square was met) or "max_iterations" (the bound
+	// was reached first).
 	Iterations int    `json:"iterations"`
 	Converged  bool   `json:"converged"`
+	StoppedBy  string `json:"stopped_by,omitempty"`
 	History    []Step `json:"history"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
@@ -172,54 +178,37 @@ func DescribeBinning(s *binning.Scheme, file string) *Binning {
 	return b
 }
 
-// DescribeSettings returns the settings in force for s (nil means the
-// defaults), with the kernel's defaults filled in. prior says where the
+// DescribeSettings returns the settings in force for the common
+// settings s and the iterative method's settings m (nil means the
+// defaults), as their Resolve methods fill them in. prior says where the
 // prior came from ("generated" or "table"); withBackground whether a
-// background was given.
-func DescribeSettings(s *unfold.Settings, prior string, withBackground bool) Settings {
-	var z unfold.Settings
-	if s != nil {
+// background was given. Settings that do not resolve are described as
+// given.
+func DescribeSettings(s *unfold.Settings, m *bayes.Settings, prior string, withBackground bool) Settings {
+	z, err := s.Resolve()
+	if err != nil && s != nil {
 		z = *s
 	}
-	d := Settings{Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
-	if z.StopChi2 > 0 {
-		d.StopChi2 = z.StopChi2
-		d.MaxIterations = z.MaxIterations
-		if d.MaxIterations == 0 {
-			d.MaxIterations = unfold.DefaultMaxIterations
-		}
-	} else {
-		d.Iterations = z.Iterations
-		if d.Iterations == 0 {
-			d.Iterations = unfold.DefaultIterations
-		}
+	b, err := m.Resolve()
+	if err != nil && m != nil {
+		b = *m
 	}
+	d := Settings{Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit,
+		Iterations: b.Iterations, StopChi2: b.StopChi2, MaxIterations: b.MaxIterations}
 	if withBackground {
-		d.Background = map[unfold.BackgroundMode]string{unfold.InModel: "model", unfold.Subtract: "subtract"}[z.Background]
+		d.Background = z.Background.String()
 	}
-	if z.Smoothing != nil {
-		d.Smoothing = z.Smoothing.Strength
-		if d.Smoothing == 0 {
-			d.Smoothing = 1
-		}
+	if b.Smoothing != nil {
+		d.Smoothing = b.Smoothing.Strength
 	}
 	if z.Covariance == unfold.Diagonal {
 		d.DiagonalMethod = z.DiagonalMethod.String()
 		switch z.DiagonalMethod {
 		case unfold.DiagonalAuto, unfold.DiagonalProbes:
 			d.Probes = z.Probes
-			if d.Probes == 0 {
-				d.Probes = unfold.DefaultProbes
-			}
 		case unfold.DiagonalToys:
 			d.Toys = z.Toys
-			if d.Toys == 0 {
-				d.Toys = unfold.DefaultToys
-			}
 		}
-	}
-	if d.MemoryLimit == 0 {
-		d.MemoryLimit = unfold.DefaultMemoryLimit
 	}
 	return d
 }
@@ -244,9 +233,13 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		UncertaintyMethod:    res.UncertaintyMethod,
 		UncertaintyPrecision: res.UncertaintyPrecision,
 		UncertaintySamples:   res.Samples,
-		Iterations:           res.Iterations,
-		Converged:            res.Converged,
-		History:              make([]Step, len(res.History)),
+	}
+	if d, ok := res.Details.(*bayes.Details); ok {
+		r.Iterations, r.Converged, r.StoppedBy = d.Iterations, d.Converged, d.StoppedBy
+		r.History = make([]Step, len(d.History))
+		for k, s := range d.History {
+			r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
+		}
 	}
 	copy(r.Determined, res.Determined)
 	copy(r.Efficiency, res.Efficiency)
@@ -276,9 +269,6 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 			}
 			r.Covariance[i] = row
 		}
-	}
-	for k, s := range res.History {
-		r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
 	}
 	if err := r.checkFinite(); err != nil {
 		return nil, err

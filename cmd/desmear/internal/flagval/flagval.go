@@ -25,6 +25,19 @@ func NewChoice[T comparable](p *T, def T, names []string, vals []T) *Choice[T] {
 	return &Choice[T]{p: p, names: names, vals: vals}
 }
 
+// NewEnum is NewChoice for an enumeration whose values name themselves:
+// the names are the values' String results, in the order of vals.
+func NewEnum[T interface {
+	comparable
+	fmt.Stringer
+}](p *T, def T, vals []T) *Choice[T] {
+	names := make([]string, len(vals))
+	for i, v := range vals {
+		names[i] = v.String()
+	}
+	return NewChoice(p, def, names, vals)
+}
+
 // String returns the name of the current value.
 func (c *Choice[T]) String() string {
 	for i, v := range c.vals {

@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"context"
+	"github.com/desmear/desmear/unfold"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -23,7 +24,7 @@ import (
 // of doc.go:
 //
 //	dμ' = (g/eps) dμ + (μ/eps) Rᵀ(z/ν − n (R dμ)/ν²),  dμ(0) = p Σ z / Σ eps p.
-func serialEM(p *Problem, iterations int, subtract bool, signs [][]float64) (mu, nu, ll []float64, dmu [][]float64) {
+func serialEM(p *unfold.Problem, iterations int, subtract bool, signs [][]float64) (mu, nu, ll []float64, dmu [][]float64) {
 	a := p.Migrations
 	nr, nt := a.Dims()
 	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()
@@ -151,7 +152,7 @@ func serialEM(p *Problem, iterations int, subtract bool, signs [][]float64) (mu,
 // permutedRows returns p with its reco bins in a random order, so that
 // every truth column reaches rows all over the spectrum: the sparse
 // kernels then take their buffered path (no banded two-phase scatter).
-func permutedRows(t *testing.T, p *Problem, seed uint64) *Problem {
+func permutedRows(t *testing.T, p *unfold.Problem, seed uint64) *unfold.Problem {
 	t.Helper()
 	a := p.Migrations
 	nr, nt := a.Dims()
@@ -174,7 +175,7 @@ func permutedRows(t *testing.T, p *Problem, seed uint64) *Problem {
 	if err != nil {
 		t.Fatal(err)
 	}
-	q := &Problem{Migrations: m, Generated: p.Generated, Data: make([]float64, nr)}
+	q := &unfold.Problem{Migrations: m, Generated: p.Generated, Data: make([]float64, nr)}
 	for i, x := range p.Data {
 		q.Data[perm[i]] = x
 	}
@@ -212,7 +213,7 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 	banded := randomProblem(t, 3, 30000, 70000, 8, true)
 	cases := []struct {
 		name     string
-		p        *Problem
+		p        *unfold.Problem
 		subtract bool
 	}{
 		{"banded", banded, false},
@@ -227,24 +228,24 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 		if r := c.p.Migrations.RowRanges(); len(r) < 4 {
 			t.Fatalf("%s: only %d row ranges; the test needs several", c.name, len(r)-1)
 		}
-		s := &Settings{Iterations: K}
+		s := &opts{Iterations: K}
 		if c.subtract {
-			s.Background = Subtract
+			s.Background = unfold.Subtract
 		}
-		rs, err := resolve(s)
+		rs, err := s.resolve()
 		if err != nil {
 			t.Fatal(err)
 		}
-		m, err := newModel(c.p, rs.Background)
+		m, err := prepare(c.p, s.Background)
 		if err != nil {
 			t.Fatal(err)
 		}
-		var first *Result
+		var first *unfold.Result
 		var firstDmu [][]float64
 		for _, procs := range []int{1, 2} {
 			runtime.GOMAXPROCS(procs)
 			res := unfoldOrFail(t, c.p, s)
-			pr := newProbes(m, 0, probes, 7)
+			pr := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7))
 			if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
 				t.Fatal(err)
 			}
@@ -253,7 +254,7 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 				continue
 			}
 			if !slices.Equal(res.Estimate, first.Estimate) || !slices.Equal(res.Folded, first.Folded) ||
-				!slices.Equal(res.History, first.History) {
+				!slices.Equal(details(res).History, details(first).History) {
 				t.Errorf("%s: results with 1 and 2 cores differ", c.name)
 			}
 			for q := range pr.dmu {
@@ -262,12 +263,12 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 				}
 			}
 		}
-		ref := newProbes(m, 0, probes, 7) // the probes' own sign bits
+		ref := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7)) // the probes' own sign bits
 		signs := make([][]float64, probes)
 		for q := range signs {
 			signs[q] = make([]float64, m.nr)
 			for i := range signs[q] {
-				signs[q][i] = sign(ref.signN[q], i)
+				signs[q][i] = unfold.Sign(ref.signN[q], i)
 			}
 		}
 		mu, nu, ll, dmu := serialEM(c.p, K, c.subtract, signs)
@@ -277,7 +278,7 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 		if d := maxRelDiff(first.Folded, nu); d > 1e-12 {
 			t.Errorf("%s: fold vs serial reference: max relative difference %g", c.name, d)
 		}
-		for k, st := range first.History {
+		for k, st := range details(first).History {
 			if !near(st.LogLikelihood, ll[k], 1e-12) {
 				t.Errorf("%s: log-likelihood %d: %.17g, serial reference %.17g", c.name, k, st.LogLikelihood, ll[k])
 			}

@@ -1,11 +1,13 @@
-package unfold
+package bayes
 
 import (
 	"context"
 	"runtime"
 	"slices"
 
-	"gonum.org/v1/gonum/mat"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/parallel"
+	"gonum.org/v1/gonum/floats"
 )
 
 // jacobian carries the dense Jacobian J(k) = dμ(k)/d(n, b) along the
@@ -37,28 +39,10 @@ type jacobian struct {
 
 const jacobianBlock = 512 // columns per block of the dense update
 
-// denseBytes is the memory estimate of the dense Jacobian (two buffers)
-// plus, when full is set, the covariance.
-func denseBytes(nt, cols int, full bool) int64 {
-	b := 16 * int64(nt) * int64(cols)
-	if full {
-		b += 8 * int64(nt) * int64(nt)
-	}
-	return b
-}
-
-func jacobianCols(m *model) int {
-	if m.varB != nil {
-		return 2 * m.nr
-	}
-	return m.nr
-}
-
-func newJacobian(m *model) *jacobian {
+// newJacobian prepares the recursion for m in the buffers of dst.
+func newJacobian(m *model, dst *unfold.Jacobian) *jacobian {
 	nt, nr := m.nt, m.nr
-	jc := &jacobian{m: m, cols: jacobianCols(m)}
-	jc.j = make([]float64, nt*jc.cols)
-	jc.w = make([]float64, nt*jc.cols)
+	jc := &jacobian{m: m, cols: dst.Cols, j: dst.Data, w: dst.Work}
 
 	// Rows of R.
 	jc.cVal = m.rValues()
@@ -161,7 +145,7 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 	colPtr, rowIdx, val := m.a.ColPtr(), m.a.RowIdx(), jc.cVal
 	n, nu, mu, g, inv := it.n, it.nu, it.mu, it.g, m.invEps
 	cols := jc.cols
-	forEach(nb, runtime.GOMAXPROCS(0), func(b int) {
+	parallel.For(nb, runtime.GOMAXPROCS(0), func(b int) {
 		if ctx.Err() != nil {
 			return
 		}
@@ -181,7 +165,7 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 			h := mu[r] * inv[r]
 			for q := jc.aPtr[r]; q < jc.aPtr[r+1]; q++ {
 				l := int(jc.aIdx[q])
-				axpy(dst, -h*jc.aVal[q], J[l*cols+c0:l*cols+c1])
+				floats.AddScaled(dst, -h*jc.aVal[q], J[l*cols+c0:l*cols+c1])
 			}
 			for k := colPtr[r]; k < colPtr[r+1]; k++ {
 				i := rowIdx[k]
@@ -201,62 +185,9 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 		return err
 	}
 	if it.sm != nil {
-		// Smooth the rows of W along each axis, ping-ponging with J.
-		for a := range it.sm.nbr {
-			it.sm.applyAxisRows(J, W, cols, a)
-			J, W = W, J
-		}
+		// M ← (1−w) M + w S M on the rows of W.
+		W, J = it.sm.applyRows(J, W, cols)
 	}
 	jc.j, jc.w = W, J
 	return nil
-}
-
-// variances returns diag(J diag(v) Jᵀ) for the variances v of the
-// columns.
-func (jc *jacobian) variances(v []float64) []float64 {
-	out := make([]float64, jc.m.nt)
-	forEach(jc.m.nt, runtime.GOMAXPROCS(0), func(r int) {
-		row := jc.j[r*jc.cols : (r+1)*jc.cols]
-		var s float64
-		for q, x := range row {
-			s += x * x * v[q]
-		}
-		out[r] = s
-	})
-	return out
-}
-
-// covarianceBlock is the row block of the covariance product.
-const covarianceBlock = 512
-
-// covariance returns J diag(v) Jᵀ. The scaled copy J diag(v) goes into
-// the spare buffer; the upper triangle of blocks is computed with general
-// matrix multiplies (gonum Dgemm, faster here than a symmetric rank-k
-// update), about half the work of the full product.
-func (jc *jacobian) covariance(ctx context.Context, v []float64) (*mat.SymDense, error) {
-	nt, cols := jc.m.nt, jc.cols
-	forEach(nt, runtime.GOMAXPROCS(0), func(r int) {
-		src := jc.j[r*cols : (r+1)*cols]
-		dst := jc.w[r*cols : (r+1)*cols]
-		for q, x := range src {
-			dst[q] = x * v[q]
-		}
-	})
-	jd := mat.NewDense(nt, cols, jc.w)
-	j := mat.NewDense(nt, cols, jc.j)
-	out := mat.NewDense(nt, nt, nil)
-	for i0 := 0; i0 < nt; i0 += covarianceBlock {
-		i1 := min(nt, i0+covarianceBlock)
-		a := jd.Slice(i0, i1, 0, cols)
-		for k0 := i0; k0 < nt; k0 += covarianceBlock {
-			if err := ctx.Err(); err != nil {
-				return nil, err
-			}
-			k1 := min(nt, k0+covarianceBlock)
-			dst := out.Slice(i0, i1, k0, k1).(*mat.Dense)
-			dst.Mul(a, j.Slice(k0, k1, 0, cols).T())
-		}
-	}
-	jc.w = nil // the scaled copy is no longer needed
-	return mat.NewSymDense(nt, out.RawMatrix().Data), nil
 }

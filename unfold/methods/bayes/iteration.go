@@ -1,11 +1,13 @@
-package unfold
+package bayes
 
 import (
 	"context"
 	"math"
 	"runtime"
 
-	"gonum.org/v1/gonum/mat"
+	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/parallel"
 )
 
 // Step records one iteration. Iteration 0 is the start, μ(0).
@@ -24,100 +26,78 @@ type Step struct {
 	LogLikelihood float64
 }
 
-// Result is the outcome of Unfold. Slices over truth bins have one entry
-// per truth bin, over reco bins one per reco bin.
-type Result struct {
-	// Estimate is μ, the unfolded expected count per truth bin; 0 where
-	// not determined.
-	Estimate []float64
-	// Determined reports the truth bins the response can measure
-	// (efficiency > 0). The others are excluded from the iteration.
-	Determined []bool
-	// Efficiency is eps_j = Σ_i A_ij / G_j.
-	Efficiency []float64
-	// Folded is ν = R μ + b, the expected reco spectrum of the estimate
-	// (with the background, in both background modes).
-	Folded []float64
-	// Clipped lists the reco bins where the data minus the background was
-	// negative and was set to zero (Subtract mode only).
-	Clipped []int
-
+// Details is what the iterative method adds to unfold.Result.Details.
+type Details struct {
 	// Iterations is the number of iterations made.
 	Iterations int
 	// Converged reports that the StopChi2 criterion was met; it is false
 	// with a fixed number of iterations.
 	Converged bool
+	// StoppedBy says how the iteration stopped: StoppedByIterations,
+	// StoppedByChi2 or StoppedByMaxIterations.
+	StoppedBy string
 	// History has one Step per iteration, History[0] being the start.
 	History []Step
-
-	// Uncertainty is the square root of the variance of each estimate
-	// (nil without an uncertainty computation; 0 where not determined).
-	Uncertainty []float64
-	// Covariance is the full linearised covariance (Full only).
-	Covariance *mat.SymDense
-	// UncertaintyMethod names the method that produced Uncertainty:
-	// "linearised" (exact first order), "linearised-probes" or
-	// "poisson-toys"; empty without an uncertainty computation.
-	UncertaintyMethod string
-	// UncertaintyPrecision is the relative statistical precision of each
-	// variance in Uncertainty (sqrt(2/S) for S probes, at most; sqrt(2/(T−1))
-	// for T toys); 0 for the exact propagation.
-	UncertaintyPrecision float64
-	// Samples is the number of probes or toys used (0 for exact).
-	Samples int
 }
 
-// Unfold unfolds p with settings s (nil means the defaults).
-//
-// Errors: *InputError for invalid or inconsistent inputs, *SettingsError
-// for invalid settings, *TooLargeError when a full covariance does not fit
-// under the memory limit, *NumericalError on overflow, and ctx.Err() when
-// the context is cancelled.
-func Unfold(ctx context.Context, p *Problem, s *Settings) (*Result, error) {
-	rs, err := resolve(s)
-	if err != nil {
-		return nil, err
-	}
-	m, err := newModel(p, rs.Background)
-	if err != nil {
-		return nil, err
-	}
-	if m.scale(m.n) <= 0 {
-		return nil, inputErr("Data", -1, -1, "the data minus the background sum to %v ≤ 0: there is nothing to unfold", m.scale(m.n)*m.sumEP)
-	}
-	var sm *smoother
-	if rs.Smoothing != nil {
-		if sm, err = newSmoother(rs.Smoothing, m.det); err != nil {
-			return nil, err
-		}
-	}
-	weighted := p.DataVariance != nil || rs.Background == Subtract && p.Background != nil
-	plan, err := planUncertainty(m, rs, weighted)
-	if err != nil {
-		return nil, err
-	}
+// How the iteration stopped (Details.StoppedBy; the names of result.json).
+const (
+	// StoppedByIterations: the fixed number of iterations was made.
+	StoppedByIterations = "iterations"
+	// StoppedByChi2: the χ² between successive iterations reached the
+	// stopping value.
+	StoppedByChi2 = "chi2"
+	// StoppedByMaxIterations: the bound on the iterations was reached
+	// before the stopping χ².
+	StoppedByMaxIterations = "max_iterations"
+)
 
-	it := newIterator(m, sm)
-	tan, err := plan.first(ctx)
-	if err != nil {
-		return nil, err
+// model is the prepared problem with its slices at hand for the
+// iteration's loops: the dimensions, A, 1/G, eps, 1/eps, the determined
+// bins, the data and background as used, the background variance, the
+// prior and Σ eps p (see the accessors of unfold.Prepared).
+type model struct {
+	p                 *unfold.Prepared
+	nt, nr            int
+	a                 *sparse.Matrix
+	invG, eps, invEps []float64
+	det               []bool
+	n, b, varB, prior []float64
+	sumEP             float64
+}
+
+func newModel(p *unfold.Prepared) *model {
+	return &model{
+		p: p, nt: p.TruthBins(), nr: p.RecoBins(), a: p.Migrations(),
+		invG: p.InvGenerated(), eps: p.Efficiency(), invEps: p.InvEfficiency(), det: p.Determined(),
+		n: p.Data(), b: p.Background(), varB: p.BackgroundVariance(),
+		prior: p.Prior(), sumEP: p.FoldedPrior(),
 	}
-	res, err := it.run(ctx, m.n, rs, tan)
-	if err != nil {
-		return nil, err
+}
+
+// scale returns Σ_i (n_i − b_i) / Σ_j eps_j p_j, the factor mapping the
+// prior to μ(0), for data n (and the model's background).
+func (m *model) scale(n []float64) float64 {
+	var s float64
+	for _, x := range n {
+		s += x
 	}
-	res.Determined = append([]bool(nil), m.det...)
-	res.Efficiency = append([]float64(nil), m.eps...)
-	res.Clipped = m.clip
-	if rs.Background == Subtract && p.Background != nil {
-		for i, b := range p.Background {
-			res.Folded[i] += b
+	for _, x := range m.b {
+		s -= x
+	}
+	return s / m.sumEP
+}
+
+// rValues returns the values of R = A/G in the order of A's entries.
+func (m *model) rValues() []float64 {
+	colPtr, val := m.a.ColPtr(), m.a.Values()
+	rv := make([]float64, len(val))
+	for j := 0; j < m.nt; j++ {
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			rv[k] = val[k] * m.invG[j]
 		}
 	}
-	if err := plan.finish(ctx, it, res, tan); err != nil {
-		return nil, err
-	}
-	return res, nil
+	return rv
 }
 
 // tangents are linear perturbations carried along the nominal iteration.
@@ -144,13 +124,14 @@ type iterator struct {
 	n  []float64 // data of this sequence
 
 	mu, next, g, tmp []float64 // truth-sized
+	orig             []float64 // truth-sized scratch of the smoothing
 	fold, fnext      []float64 // reco-sized: R μ(k), R μ(k+1)
 	nu, nunext       []float64 // ν(k), ν(k+1); without background they alias fold, fnext
 	y, ynext         []float64 // n / ν(k), n / ν(k+1)
 	rp               []float64 // R p (the folded prior), for the tangents' start
 	ranges           []int     // the matrix's fixed row ranges (RowRanges)
 	ll               []float64 // log-likelihood partial sum per row range
-	red              reducer
+	red              parallel.Reducer
 	keepG            bool // tangents read g: the sweep stores it
 	update           func(j int, g float64) float64
 	updateNoG        func(j int, g float64) float64
@@ -172,7 +153,10 @@ func newIterator(m *model, sm *smoother) *iterator {
 		it.nu, it.nunext = it.fold, it.fnext // ν = R μ: no copy; swapped together
 	}
 	it.tmp = make([]float64, m.nt)
-	m.fold(it.rp, m.prior, it.tmp)
+	if sm != nil {
+		it.orig = make([]float64, m.nt)
+	}
+	m.p.Fold(it.rp, m.prior, it.tmp)
 	invG, invEps, gk := m.invG, m.invEps, it.g
 	it.update = func(j int, ga float64) float64 {
 		ig := invG[j]
@@ -223,7 +207,7 @@ func (it *iterator) reco() float64 {
 // ranges in order.
 func (it *iterator) recoAll(fold, nu, y []float64) float64 {
 	rb := it.ranges
-	forEach(len(it.ll), runtime.GOMAXPROCS(0), func(r int) {
+	parallel.For(len(it.ll), runtime.GOMAXPROCS(0), func(r int) {
 		it.ll[r] = it.recoRange(fold, nu, y, rb[r], rb[r+1])
 	})
 	return it.sumLL()
@@ -295,8 +279,8 @@ func (it *iterator) emStep() float64 {
 		it.g[j] = g
 		it.next[j] = it.mu[j] * g * m.invEps[j]
 	}
-	it.sm.apply(it.next, it.tmp)
-	m.fold(it.fnext, it.next, it.tmp)
+	it.sm.apply(it.next, it.tmp, it.orig)
+	m.p.Fold(it.fnext, it.next, it.tmp)
 	return it.recoAll(it.fnext, it.nunext, it.ynext)
 }
 
@@ -304,7 +288,7 @@ func (it *iterator) emStep() float64 {
 // it.mu.
 func (it *iterator) compare() (chi2, change float64) {
 	mu, next, eps := it.mu, it.next, it.m.eps
-	s := it.red.run(len(mu), func(lo, hi int, acc *[4]float64) {
+	s := it.red.Run(len(mu), func(lo, hi int, acc *[4]float64) {
 		var c2, d, t float64
 		for j := lo; j < hi; j++ {
 			x := next[j]
@@ -330,22 +314,20 @@ func (it *iterator) compare() (chi2, change float64) {
 }
 
 // run iterates from the prior for data n under the stopping rule of rs,
-// carrying tan (may be nil) along, and returns the result with copies of
-// the final estimate and fold.
-func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tangents) (*Result, error) {
-	res := &Result{}
-	if err := it.iterate(ctx, n, rs, tan, res); err != nil {
+// carrying tan (may be nil) along, and returns the details; the final
+// estimate stays in it.mu and its fold in it.nu.
+func (it *iterator) run(ctx context.Context, n []float64, rs *resolved, tan tangents) (*Details, error) {
+	d := &Details{}
+	if err := it.iterate(ctx, n, rs, tan, d); err != nil {
 		return nil, err
 	}
-	res.Estimate = append([]float64(nil), it.mu...)
-	res.Folded = append([]float64(nil), it.nu...)
-	return res, nil
+	return d, nil
 }
 
 // iterate runs the iteration, recording History, Iterations and
 // Converged into res; the final estimate stays in it.mu and its fold in
 // it.nu.
-func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan tangents, res *Result) error {
+func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan tangents, res *Details) error {
 	if err := ctx.Err(); err != nil {
 		return err
 	}
@@ -373,7 +355,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		it.nu, it.nunext = it.nunext, it.nu
 		it.y, it.ynext = it.ynext, it.y
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
-			return &NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
+			return &unfold.NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
 		}
 		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
 		res.Iterations = k
@@ -381,6 +363,14 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 			res.Converged = true
 			break
 		}
+	}
+	switch {
+	case rs.fixed:
+		res.StoppedBy = StoppedByIterations
+	case res.Converged:
+		res.StoppedBy = StoppedByChi2
+	default:
+		res.StoppedBy = StoppedByMaxIterations
 	}
 	return nil
 }

@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"context"
+	"github.com/desmear/desmear/unfold"
 	"math"
 	"testing"
 
@@ -41,7 +42,7 @@ func TestSquareLimitIsDenseSolve(t *testing.T) {
 		if err := want.SolveVec(r, rhs); err != nil {
 			t.Fatal(err)
 		}
-		res := unfoldOrFail(t, p, &Settings{Iterations: 20000})
+		res := unfoldOrFail(t, p, &opts{Iterations: 20000})
 		for j := range truth {
 			if want.AtVec(j) <= 0 {
 				t.Fatalf("test problem has a non-positive solution %v", want.AtVec(j))
@@ -56,15 +57,15 @@ func TestSquareLimitIsDenseSolve(t *testing.T) {
 // The Poisson log-likelihood does not decrease at any iteration: the
 // iteration is an EM algorithm (Dempster, Laird, Rubin, JRSS B 39 (1977)
 // 1; Lucy, AJ 79 (1974) 745). With b = 0, Σ_j eps_j μ_j(k) = Σ_i n_i after
-// every iteration (methods notes §3.2 item 1, an exact property of the
+// every iteration (method.md §7 item 1, an exact property of the
 // EM update).
 func TestLikelihoodMonotoneAndConservation(t *testing.T) {
 	for seed := uint64(1); seed <= 4; seed++ {
 		for _, bkg := range []bool{false, true} {
 			p := randomProblem(t, seed, 40, 90, 7, bkg)
-			res := unfoldOrFail(t, p, &Settings{Iterations: 60})
-			for k := 1; k < len(res.History); k++ {
-				h, prev := res.History[k], res.History[k-1]
+			res := unfoldOrFail(t, p, &opts{Iterations: 60})
+			for k := 1; k < len(details(res).History); k++ {
+				h, prev := details(res).History[k], details(res).History[k-1]
 				if h.LogLikelihood < prev.LogLikelihood-1e-9*math.Abs(prev.LogLikelihood) {
 					t.Errorf("seed %d bkg=%v: log-likelihood fell at iteration %d: %.12g < %.12g", seed, bkg, k, h.LogLikelihood, prev.LogLikelihood)
 				}
@@ -77,7 +78,7 @@ func TestLikelihoodMonotoneAndConservation(t *testing.T) {
 				sumN += x
 			}
 			for _, k := range []int{1, 2, 3, 7, 20} {
-				r := unfoldOrFail(t, p, &Settings{Iterations: k})
+				r := unfoldOrFail(t, p, &opts{Iterations: k})
 				var s float64
 				for j, x := range r.Estimate {
 					s += r.Efficiency[j] * x
@@ -90,11 +91,11 @@ func TestLikelihoodMonotoneAndConservation(t *testing.T) {
 	}
 }
 
-// Diagonal response: one iteration gives n_j/eps_j exactly (methods notes
-// §3.2 item 5, closed form), for random efficiencies and data.
+// Diagonal response: one iteration gives n_j/eps_j exactly (method.md
+// §7 item 5, closed form), for random efficiencies and data.
 func TestDiagonalOneIteration(t *testing.T) {
 	p := randomProblem(t, 3, 50, 50, 1, false)
-	res := unfoldOrFail(t, p, &Settings{Iterations: 1})
+	res := unfoldOrFail(t, p, &opts{Iterations: 1})
 	for j := range res.Estimate {
 		want := p.Data[j] / res.Efficiency[j]
 		if !near(res.Estimate[j], want, 1e-14) {
@@ -106,7 +107,7 @@ func TestDiagonalOneIteration(t *testing.T) {
 // denseEM is the same update written with gonum dense arithmetic, as an
 // independent reference for the sparse kernel: ν = R μ + b,
 // μ' = μ/eps ∘ Rᵀ(n/ν), from μ(0) = p Σ(n−b)/Σ eps p.
-func denseEM(p *Problem, iterations int) []float64 {
+func denseEM(p *unfold.Problem, iterations int) []float64 {
 	r := denseR(p.Migrations, p.Generated)
 	nr, nt := r.Dims()
 	eps := make([]float64, nt)
@@ -157,7 +158,7 @@ func denseEM(p *Problem, iterations int) []float64 {
 // denseJacobian is the linearised recursion written with gonum dense
 // products (J = dμ/dn only), an independent reference for the sparse
 // operators of the dense-Jacobian update.
-func denseJacobian(p *Problem, iterations int) *mat.Dense {
+func denseJacobian(p *unfold.Problem, iterations int) *mat.Dense {
 	r := denseR(p.Migrations, p.Generated)
 	nr, nt := r.Dims()
 	eps := make([]float64, nt)
@@ -222,14 +223,14 @@ func TestSparseAgainstDenseGonum(t *testing.T) {
 		for _, bkg := range []bool{false, true} {
 			p := randomProblem(t, seed, 37, 81, 9, bkg)
 			for _, k := range []int{1, 5, 25} {
-				res := unfoldOrFail(t, p, &Settings{Iterations: k})
+				res := unfoldOrFail(t, p, &opts{Iterations: k})
 				if d := maxRelDiff(res.Estimate, denseEM(p, k)); d > 1e-12 {
 					t.Errorf("seed %d bkg=%v K=%d: sparse vs dense max relative difference %g", seed, bkg, k, d)
 				}
 			}
 		}
 		p := randomProblem(t, seed, 37, 81, 9, false)
-		jc, _ := jacobianOf(t, p, &Settings{Iterations: 6})
+		jc, _ := jacobianOf(t, p, &opts{Iterations: 6})
 		ref := denseJacobian(p, 6)
 		scale := mat.Norm(ref, math.Inf(1))
 		var d float64
@@ -243,9 +244,9 @@ func TestSparseAgainstDenseGonum(t *testing.T) {
 		}
 
 		// Probes: each propagated probe must equal J z for its own z.
-		m, _ := newModel(p, InModel)
-		rs, _ := resolve(&Settings{Iterations: 6})
-		pr := newProbes(m, 0, 3, 99)
+		m, _ := prepare(p, unfold.InModel)
+		rs, _ := (&opts{Iterations: 6}).resolve()
+		pr := newProbes(m, unfold.NewProbes(m.p, 0, 3, 99))
 		if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
 			t.Fatal(err)
 		}
@@ -253,7 +254,7 @@ func TestSparseAgainstDenseGonum(t *testing.T) {
 			for j := 0; j < 37; j++ {
 				var want float64
 				for q := 0; q < 81; q++ {
-					want += ref.At(j, q) * sign(pr.signN[s], q) * math.Sqrt(p.Data[q])
+					want += ref.At(j, q) * unfold.Sign(pr.signN[s], q) * math.Sqrt(p.Data[q])
 				}
 				if math.Abs(pr.dmu[s][j]-want) > 1e-11*math.Max(1, math.Abs(want)) {
 					t.Errorf("seed %d probe %d bin %d: JVP %.15g, J z %.15g", seed, s, j, pr.dmu[s][j], want)
@@ -265,11 +266,11 @@ func TestSparseAgainstDenseGonum(t *testing.T) {
 
 // Σ_j eps_j M_jm = 1 for every reco bin m and every iteration, without
 // background: a consequence of the exact conservation Σ eps μ = Σ n
-// (methods notes §2.2, derived there).
+// (method.md §8 Linearised uncertainty propagation, derived there).
 func TestEfficiencyWeightedJacobianSumsToOne(t *testing.T) {
 	p := randomProblem(t, 5, 30, 70, 8, false)
 	for _, k := range []int{1, 3, 10} {
-		jc, res := jacobianOf(t, p, &Settings{Iterations: k})
+		jc, res := jacobianOf(t, p, &opts{Iterations: k})
 		for q := 0; q < jc.cols; q++ {
 			var s float64
 			for j := 0; j < 30; j++ {
@@ -287,22 +288,25 @@ func TestEfficiencyWeightedJacobianSumsToOne(t *testing.T) {
 // documented Σ eps (Δμ)²/μ.
 func TestStopChi2(t *testing.T) {
 	p := denseProblem(t, oracleDR, oracleDN)
-	res := unfoldOrFail(t, p, &Settings{StopChi2: 1, MaxIterations: 50})
+	res := unfoldOrFail(t, p, &opts{StopChi2: 1, MaxIterations: 50})
 	// From Oracle D's history: χ² = 140.4, 19.8, 3.54, 0.713 → stops at 4.
-	if res.Iterations != 4 || !res.Converged {
-		t.Errorf("stopped after %d iterations (converged %v), want 4", res.Iterations, res.Converged)
+	if d := details(res); d.Iterations != 4 || !d.Converged || d.StoppedBy != StoppedByChi2 {
+		t.Errorf("stopped after %d iterations (converged %v, by %q), want 4 by %q", d.Iterations, d.Converged, d.StoppedBy, StoppedByChi2)
 	}
-	prev := unfoldOrFail(t, p, &Settings{Iterations: 3})
+	prev := unfoldOrFail(t, p, &opts{Iterations: 3})
+	if d := details(prev); d.StoppedBy != StoppedByIterations || d.Converged {
+		t.Errorf("fixed count: stopped by %q (converged %v), want %q", d.StoppedBy, d.Converged, StoppedByIterations)
+	}
 	var chi2 float64
 	for j, x := range res.Estimate {
 		d := x - prev.Estimate[j]
 		chi2 += res.Efficiency[j] * d * d / x
 	}
-	if !near(res.History[4].Chi2, chi2, 1e-12) {
-		t.Errorf("χ²(4) = %g, recomputed %g", res.History[4].Chi2, chi2)
+	if !near(details(res).History[4].Chi2, chi2, 1e-12) {
+		t.Errorf("χ²(4) = %g, recomputed %g", details(res).History[4].Chi2, chi2)
 	}
-	capped := unfoldOrFail(t, p, &Settings{StopChi2: 1e-12, MaxIterations: 7})
-	if capped.Iterations != 7 || capped.Converged {
-		t.Errorf("capped: %d iterations, converged %v; want 7, false", capped.Iterations, capped.Converged)
+	capped := unfoldOrFail(t, p, &opts{StopChi2: 1e-12, MaxIterations: 7})
+	if d := details(capped); d.Iterations != 7 || d.Converged || d.StoppedBy != StoppedByMaxIterations {
+		t.Errorf("capped: %d iterations, converged %v, by %q; want 7, false, %q", d.Iterations, d.Converged, d.StoppedBy, StoppedByMaxIterations)
 	}
 }

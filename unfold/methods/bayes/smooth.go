@@ -1,9 +1,13 @@
-package unfold
+package bayes
 
 import (
 	"math"
+	"runtime"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/parallel"
+	"gonum.org/v1/gonum/floats"
 )
 
 // MaxAxes is the largest number of axes a truth region may have for
@@ -63,11 +67,11 @@ type Smoothing struct {
 func (s *Smoothing) check() error {
 	switch {
 	case s.Neighbours == nil:
-		return &SettingsError{"Smoothing", "no neighbourhood given"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "no neighbourhood given"}
 	case s.Strength < 0 || s.Strength > 1 || math.IsNaN(s.Strength):
-		return &SettingsError{"Smoothing", "strength must be in (0, 1]"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "must be a strength in (0, 1]"}
 	case s.Neighbours.InRange() < 0 || s.Neighbours.InRange() > s.Neighbours.Len():
-		return &SettingsError{"Smoothing", "neighbourhood reports more in-range bins than bins"}
+		return &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood reports more in-range bins than bins"}
 	}
 	return nil
 }
@@ -83,7 +87,7 @@ type smoother struct {
 func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 	nb := s.Neighbours
 	if nb.Len() != len(det) {
-		return nil, &SettingsError{"Smoothing", "neighbourhood has a different number of bins than the truth binning"}
+		return nil, &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood has a different number of bins than the truth binning"}
 	}
 	in := nb.InRange()
 	sm := &smoother{n: len(det), w: s.Strength}
@@ -109,7 +113,7 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 			}
 			p, q := nb.Neighbours(j, a)
 			if p >= len(det) || q >= len(det) {
-				return nil, &SettingsError{"Smoothing", "neighbourhood returned a bin beyond its length"}
+				return nil, &unfold.SettingsError{Field: "Smoothing", Reason: "neighbourhood returned a bin beyond its length"}
 			}
 			if ok(p) {
 				t[j][0] = int32(p)
@@ -123,16 +127,32 @@ func newSmoother(s *Smoothing, det []bool) (*smoother, error) {
 	return sm, nil
 }
 
-// apply smooths x in place along every axis; tmp has the length of x.
-// It is linear in x, so the same call smooths tangent vectors.
-func (sm *smoother) apply(x, tmp []float64) {
+// apply smooths x in place, x ← (1−w) x + w S x with S the product of
+// the per-axis kernels; tmp and orig have the length of x (orig is used
+// only for w < 1). It is linear in x, so the same call smooths tangent
+// vectors.
+func (sm *smoother) apply(x, tmp, orig []float64) {
+	if sm.w == 1 {
+		sm.kernels(x, tmp)
+		return
+	}
+	copy(orig, x)
+	sm.kernels(x, tmp)
+	for j, v := range orig {
+		x[j] = (1-sm.w)*v + sm.w*x[j]
+	}
+}
+
+// kernels sets x ← S x, applying the per-axis kernels in turn; tmp has
+// the length of x.
+func (sm *smoother) kernels(x, tmp []float64) {
 	for _, t := range sm.nbr {
 		copy(tmp, x)
 		for j := range x {
-			x[j] *= 1 - sm.w/2
+			x[j] *= 0.5
 		}
 		for j, pq := range t {
-			c := tmp[j] * sm.w / 4
+			c := tmp[j] / 4
 			for _, g := range pq {
 				if g >= 0 {
 					x[g] += c
@@ -144,17 +164,56 @@ func (sm *smoother) apply(x, tmp []float64) {
 	}
 }
 
-// applyAxisRows writes into dst the smoothing along axis a of the rows
-// of the row-major n×m matrix src (the Jacobian's columns are tangent
-// vectors, so its rows combine as the entries of x in apply). dst and
-// src must not overlap.
-func (sm *smoother) applyAxisRows(dst, src []float64, m, a int) {
-	t := sm.nbr[a]
-	f := 1 - sm.w/2
-	for i, v := range src {
-		dst[i] = f * v
+// applyRows smooths the rows of the row-major n×m matrix src into dst,
+// dst ← (1−w) src + w S src (the Jacobian's columns are tangent vectors,
+// so its rows combine as the entries of x in apply). src is overwritten;
+// dst and src must not overlap. It returns dst and src, which may have
+// been swapped: the smoothed rows are in the first.
+func (sm *smoother) applyRows(dst, src []float64, m int) (out, spare []float64) {
+	if sm.w == 1 {
+		// Ping-pong the kernels between the two buffers.
+		for a := range sm.nbr {
+			sm.kernelRows(dst, src, m, a)
+			dst, src = src, dst
+		}
+		return src, dst
 	}
-	c := sm.w / 4
+	// Column blocks are independent: each is copied out, smoothed
+	// through two scratch blocks and blended into dst.
+	n := len(src) / max(m, 1)
+	nb := (m + smoothBlock - 1) / smoothBlock
+	parallel.For(nb, runtime.GOMAXPROCS(0), func(b int) {
+		c0 := b * smoothBlock
+		c1 := min(m, c0+smoothBlock)
+		bw := c1 - c0
+		x, t := make([]float64, n*bw), make([]float64, n*bw)
+		for r := 0; r < n; r++ {
+			copy(x[r*bw:(r+1)*bw], src[r*m+c0:r*m+c1])
+		}
+		for a := range sm.nbr {
+			sm.kernelRows(t, x, bw, a)
+			x, t = t, x
+		}
+		for r := 0; r < n; r++ {
+			d, s, k := dst[r*m+c0:r*m+c1], src[r*m+c0:r*m+c1], x[r*bw:(r+1)*bw]
+			for q := range d {
+				d[q] = (1-sm.w)*s[q] + sm.w*k[q]
+			}
+		}
+	})
+	return dst, src
+}
+
+// smoothBlock is the column block of applyRows with w < 1.
+const smoothBlock = 64
+
+// kernelRows writes into dst the kernel along axis a applied to the rows
+// of the row-major n×m matrix src. dst and src must not overlap.
+func (sm *smoother) kernelRows(dst, src []float64, m, a int) {
+	t := sm.nbr[a]
+	for i, v := range src {
+		dst[i] = 0.5 * v
+	}
 	for j, pq := range t {
 		s := src[j*m : (j+1)*m]
 		for _, g := range pq {
@@ -162,7 +221,7 @@ func (sm *smoother) applyAxisRows(dst, src []float64, m, a int) {
 			if g >= 0 {
 				d = int(g)
 			}
-			axpy(dst[d*m:(d+1)*m], c, s)
+			floats.AddScaled(dst[d*m:(d+1)*m], 0.25, s)
 		}
 	}
 }

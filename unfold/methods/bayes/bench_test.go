@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"context"
+	"github.com/desmear/desmear/unfold"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -16,7 +17,7 @@ import (
 // benchProblem builds an invented benchmark problem on the shared banded
 // 3-D response of package sparsetest: G_j = 1 (so R = A), a truth falling
 // along the last truth axis, Poisson-like data around its fold.
-func benchProblem(b *testing.B, truth, reco [3]int) *Problem {
+func benchProblem(b *testing.B, truth, reco [3]int) *unfold.Problem {
 	b.Helper()
 	m, err := sparsetest.Banded3D(truth, reco, [3]int{3, 3, 4}, 20, 1)
 	if err != nil {
@@ -40,15 +41,15 @@ func benchProblem(b *testing.B, truth, reco [3]int) *Problem {
 	for i, f := range fold {
 		fold[i] = math.Max(0, math.Round(f+math.Sqrt(f)*rng.NormFloat64()))
 	}
-	return &Problem{Migrations: a, Generated: gen, Data: fold}
+	return &unfold.Problem{Migrations: a, Generated: gen, Data: fold}
 }
 
 var fine struct {
 	once sync.Once
-	p    *Problem
+	p    *unfold.Problem
 }
 
-func fineProblem(b *testing.B) *Problem {
+func fineProblem(b *testing.B) *unfold.Problem {
 	fine.once.Do(func() { fine.p = benchProblem(b, [3]int{100, 100, 50}, [3]int{100, 100, 100}) })
 	return fine.p
 }
@@ -67,7 +68,7 @@ func median(d []time.Duration) time.Duration {
 func BenchmarkFineIterations(b *testing.B) {
 	p := fineProblem(b)
 	ctx := context.Background()
-	s := &Settings{Iterations: 10}
+	s := &opts{Iterations: 10}
 	nr, nt := p.Migrations.Dims()
 	x := make([]float64, nt)
 	y := make([]float64, nr)
@@ -76,17 +77,17 @@ func BenchmarkFineIterations(b *testing.B) {
 		y[i] = 1
 	}
 	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
-	m, err := newModel(p, InModel)
+	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		b.Fatal(err)
 	}
 	it := newIterator(m, nil)
-	rs, _ := resolve(s)
+	rs, _ := s.resolve()
 	var tu, ti, ts []time.Duration
 	b.ResetTimer()
 	for range b.N {
 		t0 := time.Now()
-		if _, err := Unfold(ctx, p, s); err != nil {
+		if _, err := unfoldWith(ctx, p, s); err != nil {
 			b.Fatal(err)
 		}
 		tu = append(tu, time.Since(t0))
@@ -115,7 +116,7 @@ func BenchmarkFineIterations(b *testing.B) {
 // iterations at 500,000 × 1,000,000 (the whole Unfold call).
 func BenchmarkFineProbes(b *testing.B) {
 	p := fineProblem(b)
-	s := &Settings{Iterations: 4, Covariance: Diagonal, DiagonalMethod: DiagonalProbes, Probes: 100, Seed: 1}
+	s := &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 100, Seed: 1}
 	b.ResetTimer()
 	benchUnfold(b, p, s)
 }
@@ -126,18 +127,18 @@ func BenchmarkFullCovariance(b *testing.B) {
 	p := benchProblem(b, [3]int{25, 20, 10}, [3]int{25, 20, 20})
 	for _, k := range []int{4, 10} {
 		b.Run(map[int]string{4: "K=4", 10: "K=10"}[k], func(b *testing.B) {
-			benchUnfold(b, p, &Settings{Iterations: k, Covariance: Full})
+			benchUnfold(b, p, &opts{Iterations: k, Covariance: unfold.Full})
 		})
 	}
 }
 
 // benchUnfold runs Unfold b.N times and reports the median time of a
 // call as s/op-median.
-func benchUnfold(b *testing.B, p *Problem, s *Settings) {
+func benchUnfold(b *testing.B, p *unfold.Problem, s *opts) {
 	var d []time.Duration
 	for range b.N {
 		t0 := time.Now()
-		if _, err := Unfold(context.Background(), p, s); err != nil {
+		if _, err := unfoldWith(context.Background(), p, s); err != nil {
 			b.Fatal(err)
 		}
 		d = append(d, time.Since(t0))
@@ -153,7 +154,7 @@ func benchUnfold(b *testing.B, p *Problem, s *Settings) {
 // medians over the rounds.
 func BenchmarkFineIterationParts(b *testing.B) {
 	p := fineProblem(b)
-	m, err := newModel(p, InModel)
+	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/desmear/desmear/binning"
@@ -9,17 +10,25 @@ import (
 
 // chainScheme is a one-region, one-axis truth binning of n bins without
 // flows.
-func chainScheme(t testing.TB, n int) *binning.Scheme {
+func chainScheme(t testing.TB, n int) *binning.Scheme { return gridScheme(t, n) }
+
+// gridScheme is a one-region truth binning without flows with one axis
+// of n bins per entry of sizes.
+func gridScheme(t testing.TB, sizes ...int) *binning.Scheme {
 	t.Helper()
-	edges := make([]float64, n+1)
-	for i := range edges {
-		edges[i] = float64(i)
+	var axes []*binning.Axis
+	for k, n := range sizes {
+		edges := make([]float64, n+1)
+		for i := range edges {
+			edges[i] = float64(i)
+		}
+		ax, err := binning.NewAxis(string(rune('x'+k)), "", edges, false, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		axes = append(axes, ax)
 	}
-	ax, err := binning.NewAxis("x", "", edges, false, false)
-	if err != nil {
-		t.Fatal(err)
-	}
-	reg, err := binning.NewRegion("all", ax)
+	reg, err := binning.NewRegion("all", axes...)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -66,7 +75,7 @@ func TestSmoothingKernel(t *testing.T) {
 		v[i] = float64(1 + i*i%7)
 	}
 	orig := append([]float64(nil), v...)
-	sm.apply(v, make([]float64, n))
+	sm.apply(v, make([]float64, n), make([]float64, n))
 
 	// Reference: (1,2,1)/4 with reflecting ends along y then x on the
 	// 3×4 grid of region a (row-major, y fastest), separately on region b.
@@ -158,5 +167,38 @@ func TestSmoothingPreservesTotal(t *testing.T) {
 	}
 	if maxRelDiff(a.next, b.next) < 1e-6 {
 		t.Errorf("smoothing did not change the estimate")
+	}
+}
+
+// A strength W < 1 blends the full smoothing once, μ ← (1−W) μ + W S μ
+// with S the product of the per-axis kernels (the package documentation,
+// section Smoothing), not once per axis. Closed form, derived here, on a
+// 2×2 region without flows and a unit mass 4 in the corner bin 0: along
+// an axis of two bins each bin keeps 3/4 and gives 1/4 to its neighbour
+// (1/2 kept, 1/4 to the neighbour, the missing side's 1/4 kept), so
+//
+//	S δ = (9/4, 3/4, 3/4, 1/4) for bins (0, two edge neighbours, 3),
+//
+// and with W = 1/2, μ = δ/2 + S δ/2 = (25/8, 3/8, 3/8, 1/8). Blending per
+// axis would instead give (49/16, 7/16, 7/16, 1/16). All values are
+// binary fractions, so the check is exact.
+func TestSmoothingStrengthBlendsOnce(t *testing.T) {
+	s := gridScheme(t, 2, 2)
+	sm, err := newSmoother(&Smoothing{Neighbours: s, Strength: 0.5}, []bool{true, true, true, true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	v := []float64{4, 0, 0, 0}
+	sm.apply(v, make([]float64, 4), make([]float64, 4))
+	if want := []float64{25.0 / 8, 3.0 / 8, 3.0 / 8, 1.0 / 8}; !slices.Equal(v, want) {
+		t.Errorf("smoothed %v, want %v", v, want)
+	}
+	// The rows of a matrix (the Jacobian's update) follow the same
+	// formula, column by column.
+	src := []float64{4, 1, 0, 0, 0, 0, 0, 0}
+	dst := make([]float64, 8)
+	out, _ := sm.applyRows(dst, src, 2)
+	if want := []float64{25.0 / 8, 1 * 25.0 / 32, 3.0 / 8, 3.0 / 32, 3.0 / 8, 3.0 / 32, 1.0 / 8, 1.0 / 32}; !slices.Equal(out, want) {
+		t.Errorf("smoothed rows %v, want %v", out, want)
 	}
 }

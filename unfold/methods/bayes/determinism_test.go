@@ -1,6 +1,7 @@
-package unfold
+package bayes
 
 import (
+	"github.com/desmear/desmear/unfold"
 	"runtime"
 	"testing"
 )
@@ -14,13 +15,13 @@ func TestDeterministicAcrossCores(t *testing.T) {
 	big.BackgroundVariance = big.Background
 	mid := randomProblem(t, 5, 600, 1300, 9, true)
 	runs := []struct {
-		p *Problem
-		s Settings
+		p *unfold.Problem
+		s opts
 	}{
-		{big, Settings{Iterations: 3, Covariance: Diagonal, DiagonalMethod: DiagonalProbes, Probes: 3, Seed: 5}},
-		{big, Settings{StopChi2: 1e-3, MaxIterations: 4, Smoothing: &Smoothing{Neighbours: chainScheme(t, 30000)}}},
-		{mid, Settings{Iterations: 3, Covariance: Full}},
-		{mid, Settings{Iterations: 3, Covariance: Diagonal, DiagonalMethod: DiagonalToys, Toys: 5, Seed: 9}},
+		{big, opts{Iterations: 3, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 3, Seed: 5}},
+		{big, opts{StopChi2: 1e-3, MaxIterations: 4, Smoothing: &Smoothing{Neighbours: chainScheme(t, 30000)}}},
+		{mid, opts{Iterations: 3, Covariance: unfold.Full}},
+		{mid, opts{Iterations: 3, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: 5, Seed: 9}},
 	}
 	old := runtime.GOMAXPROCS(0)
 	defer runtime.GOMAXPROCS(old)
@@ -43,9 +44,9 @@ func TestDeterministicAcrossCores(t *testing.T) {
 		if a.Covariance != nil {
 			same("covariance", a.Covariance.RawSymmetric().Data, b.Covariance.RawSymmetric().Data)
 		}
-		for i := range a.History {
-			if a.History[i] != b.History[i] {
-				t.Errorf("run %d: history %d differs: %+v, %+v", k, i, a.History[i], b.History[i])
+		for i := range details(a).History {
+			if details(a).History[i] != details(b).History[i] {
+				t.Errorf("run %d: history %d differs: %+v, %+v", k, i, details(a).History[i], details(b).History[i])
 			}
 		}
 	}

@@ -1,9 +1,12 @@
-package unfold
+package bayes
 
 import (
 	"context"
 	"errors"
+	"github.com/desmear/desmear/unfold"
+	"gonum.org/v1/gonum/stat/distuv"
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -12,7 +15,7 @@ import (
 // finiteJacobian returns dμ(K)/dv by central differences of the whole
 // iteration (Unfold called on perturbed inputs), where v is the slice of
 // the problem that perturb selects.
-func finiteJacobian(t *testing.T, p *Problem, s *Settings, v []float64) [][]float64 {
+func finiteJacobian(t *testing.T, p *unfold.Problem, s *opts, v []float64) [][]float64 {
 	t.Helper()
 	nt := len(p.Generated)
 	out := make([][]float64, nt)
@@ -35,7 +38,7 @@ func finiteJacobian(t *testing.T, p *Problem, s *Settings, v []float64) [][]floa
 }
 
 // The analytic (linearised) propagation agrees with central finite
-// differences of the whole iteration to 1e-6 (methods notes §2.2: the
+// differences of the whole iteration to 1e-6 (method.md §8: the
 // recursion is derived there and in the package documentation; finite
 // differences are the independent check). Cases: data and background
 // Jacobians with the background in the model, the subtracted background,
@@ -46,13 +49,14 @@ func TestJacobianAgainstFiniteDifferences(t *testing.T) {
 	cases := []struct {
 		name string
 		bkg  bool
-		s    Settings
+		s    opts
 	}{
-		{"plain", false, Settings{Iterations: 5}},
-		{"background in model", true, Settings{Iterations: 5}},
-		{"background subtracted", true, Settings{Iterations: 4, Background: Subtract}},
-		{"smoothing", false, Settings{Iterations: 4, Smoothing: &Smoothing{Neighbours: sch, Strength: 0.5}}},
-		{"smoothing with background", true, Settings{Iterations: 3, Smoothing: &Smoothing{Neighbours: sch}}},
+		{"plain", false, opts{Iterations: 5}},
+		{"background in model", true, opts{Iterations: 5}},
+		{"background subtracted", true, opts{Iterations: 4, Background: unfold.Subtract}},
+		{"smoothing", false, opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: sch, Strength: 0.5}}},
+		{"smoothing with background", true, opts{Iterations: 3, Smoothing: &Smoothing{Neighbours: sch}}},
+		{"2-D smoothing, strength below 1", true, opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: gridScheme(t, 3, 3), Strength: 0.4}}},
 	}
 	for _, c := range cases {
 		p := randomProblem(t, 21, 9, 17, 5, c.bkg)
@@ -77,7 +81,7 @@ func TestJacobianAgainstFiniteDifferences(t *testing.T) {
 		for j := range fdN {
 			for q := 0; q < nr; q++ {
 				got := jc.at(j, q)
-				if c.bkg && s.Background == Subtract {
+				if c.bkg && s.Background == unfold.Subtract {
 					// columns are d/dn' with n' = n − b: dμ/dn = J, dμ/db = −J
 					if math.Abs(got+fdB[j][q]) > 1e-6 {
 						t.Errorf("%s: dμ_%d/db_%d analytic %.9f, finite %.9f", c.name, j, q, -got, fdB[j][q])
@@ -86,7 +90,7 @@ func TestJacobianAgainstFiniteDifferences(t *testing.T) {
 				if math.Abs(got-fdN[j][q]) > 1e-6 {
 					t.Errorf("%s: dμ_%d/dn_%d analytic %.9f, finite %.9f", c.name, j, q, got, fdN[j][q])
 				}
-				if c.bkg && s.Background == InModel {
+				if c.bkg && s.Background == unfold.InModel {
 					if gb := jc.at(j, nr+q); math.Abs(gb-fdB[j][q]) > 1e-6 {
 						t.Errorf("%s: dμ_%d/db_%d analytic %.9f, finite %.9f", c.name, j, q, gb, fdB[j][q])
 					}
@@ -95,7 +99,7 @@ func TestJacobianAgainstFiniteDifferences(t *testing.T) {
 		}
 
 		// Full covariance vs the finite-difference propagation.
-		s.Covariance = Full
+		s.Covariance = unfold.Full
 		res := unfoldOrFail(t, p, &s)
 		varN := p.Data
 		if p.DataVariance != nil {
@@ -131,22 +135,25 @@ func TestCovarianceAgainstPoissonToys(t *testing.T) {
 	}
 	const T = 2000
 	for _, k := range []int{2, 6} {
-		res := unfoldOrFail(t, p, &Settings{Iterations: k, Covariance: Full})
-		m, _ := newModel(p, InModel)
-		rs, _ := resolve(&Settings{Iterations: k})
+		res := unfoldOrFail(t, p, &opts{Iterations: k, Covariance: unfold.Full})
+		m, _ := prepare(p, unfold.InModel)
+		rs, _ := (&opts{Iterations: k}).resolve()
 		it := newIterator(m, nil)
 		n := make([]float64, len(p.Data))
 		mean := make([]float64, 6)
 		sum := make([][]float64, 6)
 		var est [][]float64
 		for toy := 0; toy < T; toy++ {
-			toyData(m, false, 42, toy, n, nil)
-			r, err := it.run(context.Background(), n, rs, nil)
-			if err != nil {
+			src := rand.NewPCG(42, uint64(toy))
+			for i, x := range m.n {
+				n[i] = distuv.Poisson{Lambda: x, Src: src}.Rand()
+			}
+			if _, err := it.run(context.Background(), n, rs, nil); err != nil {
 				t.Fatal(err)
 			}
-			est = append(est, r.Estimate)
-			for j, x := range r.Estimate {
+			e := append([]float64(nil), it.mu...)
+			est = append(est, e)
+			for j, x := range e {
 				mean[j] += x / T
 			}
 		}
@@ -169,7 +176,7 @@ func TestCovarianceAgainstPoissonToys(t *testing.T) {
 			}
 		}
 		// The library's own toy method agrees with the same precision.
-		toys := unfoldOrFail(t, p, &Settings{Iterations: k, Covariance: Diagonal, DiagonalMethod: DiagonalToys, Toys: T, Seed: 42})
+		toys := unfoldOrFail(t, p, &opts{Iterations: k, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: T, Seed: 42})
 		if toys.UncertaintyMethod != "poisson-toys" || toys.Samples != T {
 			t.Errorf("toy method reported %q with %d samples", toys.UncertaintyMethod, toys.Samples)
 		}
@@ -197,9 +204,9 @@ func TestProbesAgainstExactDiagonal(t *testing.T) {
 		p.BackgroundVariance[i] = b
 	}
 	const S = 400
-	exact := unfoldOrFail(t, p, &Settings{Iterations: 4, Covariance: Diagonal, DiagonalMethod: DiagonalExact})
-	full := unfoldOrFail(t, p, &Settings{Iterations: 4, Covariance: Full})
-	probe := unfoldOrFail(t, p, &Settings{Iterations: 4, Covariance: Diagonal, DiagonalMethod: DiagonalProbes, Probes: S, Seed: 7})
+	exact := unfoldOrFail(t, p, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact})
+	full := unfoldOrFail(t, p, &opts{Iterations: 4, Covariance: unfold.Full})
+	probe := unfoldOrFail(t, p, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: S, Seed: 7})
 	if probe.UncertaintyMethod != "linearised-probes" || !near(probe.UncertaintyPrecision, math.Sqrt(2.0/S), 1e-15) {
 		t.Errorf("probe method %q precision %g", probe.UncertaintyMethod, probe.UncertaintyPrecision)
 	}
@@ -222,8 +229,8 @@ func TestProbesAgainstExactDiagonal(t *testing.T) {
 
 	// Probes computed in several batches (a small memory limit) give the
 	// same bits as one batch.
-	small := perProbeBytes(mustModel(t, p)) * 2 * 37 // 37 probes per batch
-	batched := unfoldOrFail(t, p, &Settings{Iterations: 4, Covariance: Diagonal, DiagonalMethod: DiagonalProbes, Probes: S, Seed: 7, MemoryLimit: small})
+	small := unfold.ProbeBytes(mustModel(t, p).p) * 2 * 37 // 37 probes per batch
+	batched := unfoldOrFail(t, p, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: S, Seed: 7, MemoryLimit: small})
 	for j := range batched.Uncertainty {
 		if batched.Uncertainty[j] != probe.Uncertainty[j] {
 			t.Fatalf("bin %d: batched probes %v, one batch %v", j, batched.Uncertainty[j], probe.Uncertainty[j])
@@ -231,8 +238,8 @@ func TestProbesAgainstExactDiagonal(t *testing.T) {
 	}
 }
 
-func mustModel(t *testing.T, p *Problem) *model {
-	m, err := newModel(p, InModel)
+func mustModel(t *testing.T, p *unfold.Problem) *model {
+	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -244,8 +251,8 @@ func mustModel(t *testing.T, p *Problem) *model {
 // diagonal then falls back to probes.
 func TestMemoryLimit(t *testing.T) {
 	p := randomProblem(t, 4, 60, 130, 9, false)
-	_, err := Unfold(context.Background(), p, &Settings{Covariance: Full, MemoryLimit: 1 << 16})
-	var tl *TooLargeError
+	_, err := unfoldWith(context.Background(), p, &opts{Covariance: unfold.Full, MemoryLimit: 1 << 16})
+	var tl *unfold.TooLargeError
 	if !errors.As(err, &tl) {
 		t.Fatalf("got %v, want a *TooLargeError", err)
 	}
@@ -254,21 +261,21 @@ func TestMemoryLimit(t *testing.T) {
 	}
 	// The exact per-bin variances need the dense Jacobian alone
 	// (16·n_t·n_r bytes), refused under the same limit.
-	_, err = Unfold(context.Background(), p, &Settings{Covariance: Diagonal, DiagonalMethod: DiagonalExact, MemoryLimit: 1 << 16})
+	_, err = unfoldWith(context.Background(), p, &opts{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact, MemoryLimit: 1 << 16})
 	if !errors.As(err, &tl) || tl.Bytes != 16*60*130 {
-		t.Errorf("exact diagonal under a small limit: got %v, want a *TooLargeError of %d bytes", err, 16*60*130)
+		t.Errorf("exact diagonal under a small limit: got %v, want a *unfold.TooLargeError of %d bytes", err, 16*60*130)
 	}
-	res := unfoldOrFail(t, p, &Settings{Covariance: Diagonal, MemoryLimit: 1 << 16})
+	res := unfoldOrFail(t, p, &opts{Covariance: unfold.Diagonal, MemoryLimit: 1 << 16})
 	if res.UncertaintyMethod != "linearised-probes" {
 		t.Errorf("automatic diagonal under a small limit used %q", res.UncertaintyMethod)
 	}
-	res = unfoldOrFail(t, p, &Settings{Covariance: Diagonal})
+	res = unfoldOrFail(t, p, &opts{Covariance: unfold.Diagonal})
 	if res.UncertaintyMethod != "linearised" || res.UncertaintyPrecision != 0 {
 		t.Errorf("automatic diagonal under the default limit used %q", res.UncertaintyMethod)
 	}
 	// A limit below what one probe needs (probes run in batches within half
 	// the limit) is refused too, rather than silently exceeded.
-	_, err = Unfold(context.Background(), p, &Settings{Covariance: Diagonal, DiagonalMethod: DiagonalProbes, MemoryLimit: 10})
+	_, err = unfoldWith(context.Background(), p, &opts{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, MemoryLimit: 10})
 	if !errors.As(err, &tl) {
 		t.Fatalf("probes under a 10-byte limit: got %v, want a *TooLargeError", err)
 	}
@@ -279,7 +286,7 @@ func TestMemoryLimit(t *testing.T) {
 // spanning several row blocks.
 func TestBlockedCovarianceProduct(t *testing.T) {
 	p := randomProblem(t, 6, 700, 1500, 9, false)
-	jc, _ := jacobianOf(t, p, &Settings{Iterations: 2})
+	jc, _ := jacobianOf(t, p, &opts{Iterations: 2})
 	jd := mat.NewDense(700, 1500, nil)
 	for r := 0; r < 700; r++ {
 		for q := 0; q < 1500; q++ {
@@ -288,7 +295,7 @@ func TestBlockedCovarianceProduct(t *testing.T) {
 	}
 	var want mat.Dense
 	want.Mul(jd, mat.NewDense(700, 1500, append([]float64(nil), jc.j...)).T())
-	res := unfoldOrFail(t, p, &Settings{Iterations: 2, Covariance: Full})
+	res := unfoldOrFail(t, p, &opts{Iterations: 2, Covariance: unfold.Full})
 	for a := 0; a < 700; a++ {
 		for b := 0; b < 700; b++ {
 			if got, w := res.Covariance.At(a, b), want.At(a, b); math.Abs(got-w) > 1e-12*math.Max(1, math.Abs(w)) {
@@ -304,15 +311,15 @@ func TestBlockedCovarianceProduct(t *testing.T) {
 func TestProbesAreJacobianVectorProducts(t *testing.T) {
 	p := randomProblem(t, 12, 25, 60, 7, true)
 	p.BackgroundVariance = p.Background
-	s := &Settings{Iterations: 5, Smoothing: &Smoothing{Neighbours: chainScheme(t, 25), Strength: 0.7}}
+	s := &opts{Iterations: 5, Smoothing: &Smoothing{Neighbours: chainScheme(t, 25), Strength: 0.7}}
 	jc, _ := jacobianOf(t, p, s)
-	rs, _ := resolve(s)
+	rs, _ := s.resolve()
 	m := mustModel(t, p)
 	sm, err := newSmoother(s.Smoothing, m.det)
 	if err != nil {
 		t.Fatal(err)
 	}
-	pr := newProbes(m, 0, 4, 3)
+	pr := newProbes(m, unfold.NewProbes(m.p, 0, 4, 3))
 	if _, err := newIterator(m, sm).run(context.Background(), m.n, rs, pr); err != nil {
 		t.Fatal(err)
 	}
@@ -321,8 +328,8 @@ func TestProbesAreJacobianVectorProducts(t *testing.T) {
 		for j := 0; j < 25; j++ {
 			var want float64
 			for q := 0; q < nr; q++ {
-				want += jc.at(j, q) * sign(pr.signN[k], q) * math.Sqrt(p.Data[q])
-				want += jc.at(j, nr+q) * sign(pr.signB[k], q) * math.Sqrt(p.Background[q])
+				want += jc.at(j, q) * unfold.Sign(pr.signN[k], q) * math.Sqrt(p.Data[q])
+				want += jc.at(j, nr+q) * unfold.Sign(pr.signB[k], q) * math.Sqrt(p.Background[q])
 			}
 			if math.Abs(pr.dmu[k][j]-want) > 1e-11*math.Max(1, math.Abs(want)) {
 				t.Errorf("probe %d bin %d: %.15g, J z = %.15g", k, j, pr.dmu[k][j], want)

@@ -1,4 +1,4 @@
-package unfold
+package bayes
 
 import (
 	"math"

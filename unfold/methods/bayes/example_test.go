@@ -1,4 +1,4 @@
-package unfold_test
+package bayes_test
 
 import (
 	"context"
@@ -8,6 +8,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 )
 
 // A two-bin example with invented numbers: 80% of the events generated
@@ -15,7 +16,7 @@ import (
 // so on. The estimate approaches R⁻¹ n = (300, 100) as the iterations
 // grow; the uncertainty is the linearised data-statistical one, which
 // tends to sqrt(diag(R⁻¹ diag(n) R⁻ᵀ)) = (20.40, 14.71).
-func ExampleUnfold() {
+func Example() {
 	// Migrations (rows: reco, columns: truth) in compressed-column form.
 	a, err := sparse.NewMatrix(2, 2, []int{0, 2, 4}, []int{0, 1, 0, 1}, []float64{800, 200, 100, 900}, nil)
 	if err != nil {
@@ -27,7 +28,7 @@ func ExampleUnfold() {
 		Data:       []float64{250, 150},
 	}
 	for _, k := range []int{1, 3, 100} {
-		res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Iterations: k, Covariance: unfold.Full})
+		res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Covariance: unfold.Full}, &bayes.Settings{Iterations: k})
 		if err != nil {
 			log.Fatal(err)
 		}
@@ -48,14 +49,14 @@ func ExampleSettings_stopChi2() {
 		log.Fatal(err)
 	}
 	p := &unfold.Problem{Migrations: a, Generated: []float64{1000, 1000}, Data: []float64{250, 150}}
-	res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{StopChi2: 0.5})
+	res, err := unfold.Unfold(context.Background(), p, nil, &bayes.Settings{StopChi2: 0.5})
 	if err != nil {
 		log.Fatal(err)
 	}
-	for _, h := range res.History {
+	for _, h := range bayes.DetailsOf(res).History {
 		fmt.Printf("%d χ²=%.3f logL=%.3f\n", h.Iteration, h.Chi2, h.LogLikelihood)
 	}
-	fmt.Println("converged:", res.Converged)
+	fmt.Println("converged:", bayes.DetailsOf(res).Converged)
 	// Output:
 	// 0 χ²=0.000 logL=1707.283
 	// 1 χ²=26.096 logL=1725.588
@@ -91,8 +92,8 @@ func ExampleSmoothing() {
 		log.Fatal(err)
 	}
 	p := &unfold.Problem{Migrations: a, Generated: []float64{1, 1, 1, 1}, Data: []float64{130, 60, 140, 70}}
-	for _, sm := range []*unfold.Smoothing{nil, {Neighbours: truth, Strength: 0.5}} {
-		res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Iterations: 10, Smoothing: sm})
+	for _, sm := range []*bayes.Smoothing{nil, {Neighbours: truth, Strength: 0.5}} {
+		res, err := unfold.Unfold(context.Background(), p, nil, &bayes.Settings{Iterations: 10, Smoothing: sm})
 		if err != nil {
 			log.Fatal(err)
 		}

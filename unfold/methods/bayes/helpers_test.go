@@ -1,7 +1,8 @@
-package unfold
+package bayes
 
 import (
 	"context"
+	"github.com/desmear/desmear/unfold"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -15,7 +16,7 @@ import (
 // (a band), efficiencies in [0.5, 0.95], generated counts ~1e4 and data
 // Poisson-like around the fold of a smooth truth. With bkg, a background
 // of a few counts per reco bin. Everything is seeded.
-func randomProblem(t testing.TB, seed uint64, nt, nr, perCol int, bkg bool) *Problem {
+func randomProblem(t testing.TB, seed uint64, nt, nr, perCol int, bkg bool) *unfold.Problem {
 	t.Helper()
 	rng := rand.New(rand.NewPCG(seed, 7))
 	colPtr := []int{0}
@@ -58,7 +59,7 @@ func randomProblem(t testing.TB, seed uint64, nt, nr, perCol int, bkg bool) *Pro
 		scaled[j] = truth[j] / gen[j]
 	}
 	a.Fold(fold, scaled)
-	p := &Problem{Migrations: a, Generated: gen, Data: make([]float64, nr)}
+	p := &unfold.Problem{Migrations: a, Generated: gen, Data: make([]float64, nr)}
 	if bkg {
 		p.Background = make([]float64, nr)
 		for i := range p.Background {
@@ -90,13 +91,13 @@ func denseR(a *sparse.Matrix, gen []float64) *mat.Dense {
 
 // jacobianOf runs the iteration of p under s carrying the dense Jacobian
 // and returns it with the result.
-func jacobianOf(t testing.TB, p *Problem, s *Settings) (*jacobian, *Result) {
+func jacobianOf(t testing.TB, p *unfold.Problem, s *opts) (*jacobian, *unfold.Result) {
 	t.Helper()
-	rs, err := resolve(s)
+	rs, err := s.resolve()
 	if err != nil {
 		t.Fatal(err)
 	}
-	m, err := newModel(p, rs.Background)
+	m, err := prepare(p, s.Background)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -106,13 +107,13 @@ func jacobianOf(t testing.TB, p *Problem, s *Settings) (*jacobian, *Result) {
 			t.Fatal(err)
 		}
 	}
-	jc := newJacobian(m)
-	res, err := newIterator(m, sm).run(context.Background(), m.n, rs, jc)
+	jc := newJacobian(m, unfold.NewJacobian(m.p))
+	it := newIterator(m, sm)
+	d, err := it.run(context.Background(), m.n, rs, jc)
 	if err != nil {
 		t.Fatal(err)
 	}
-	res.Efficiency = m.eps
-	return jc, res
+	return jc, &unfold.Result{Estimate: it.mu, Folded: it.nu, Efficiency: m.eps, Determined: m.det, Details: d}
 }
 
 func (jc *jacobian) at(r, c int) float64 { return jc.j[r*jc.cols+c] }
@@ -123,4 +124,52 @@ func maxRelDiff(a, b []float64) float64 {
 		d = math.Max(d, math.Abs(a[i]-b[i])/math.Max(1e-300, math.Max(math.Abs(a[i]), math.Abs(b[i]))))
 	}
 	return d
+}
+
+// opts gathers the common and the method's settings of a test.
+type opts struct {
+	Iterations     int
+	StopChi2       float64
+	MaxIterations  int
+	Smoothing      *Smoothing
+	Background     unfold.BackgroundMode
+	Covariance     unfold.CovarianceMode
+	DiagonalMethod unfold.DiagonalMethod
+	Probes, Toys   int
+	Seed           uint64
+	MemoryLimit    int64
+}
+
+// split returns the common settings and the method of o (nil: defaults).
+func (o *opts) split() (*unfold.Settings, *Settings) {
+	if o == nil {
+		return nil, nil
+	}
+	return &unfold.Settings{Background: o.Background, Covariance: o.Covariance, DiagonalMethod: o.DiagonalMethod,
+			Probes: o.Probes, Toys: o.Toys, Seed: o.Seed, MemoryLimit: o.MemoryLimit},
+		&Settings{Iterations: o.Iterations, StopChi2: o.StopChi2, MaxIterations: o.MaxIterations, Smoothing: o.Smoothing}
+}
+
+// resolve resolves the method's settings of o.
+func (o *opts) resolve() (*resolved, error) {
+	_, m := o.split()
+	return m.resolve()
+}
+
+// unfoldWith unfolds p with the settings of o by the iterative method.
+func unfoldWith(ctx context.Context, p *unfold.Problem, o *opts) (*unfold.Result, error) {
+	s, m := o.split()
+	return unfold.Unfold(ctx, p, s, m)
+}
+
+// details returns the iteration details of res.
+func details(res *unfold.Result) *Details { return DetailsOf(res) }
+
+// prepare prepares p for mode and returns the iteration's model of it.
+func prepare(p *unfold.Problem, mode unfold.BackgroundMode) (*model, error) {
+	pr, err := unfold.Prepare(p, mode)
+	if err != nil {
+		return nil, err
+	}
+	return newModel(pr), nil
 }

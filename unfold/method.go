@@ -1,0 +1,150 @@
+package unfold
+
+import (
+	"context"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// Result is the outcome of Unfold. Slices over truth bins have one entry
+// per truth bin, over reco bins one per reco bin.
+type Result struct {
+	// Method is the name of the method (Method.Name).
+	Method string
+	// Estimate is μ, the unfolded expected count per truth bin; 0 where
+	// not determined.
+	Estimate []float64
+	// Determined reports the truth bins the response can measure
+	// (efficiency > 0). The others are excluded from the fit.
+	Determined []bool
+	// Efficiency is eps_j = Σ_i A_ij / G_j.
+	Efficiency []float64
+	// Folded is ν = R μ + b, the expected reco spectrum of the estimate
+	// (with the background, in both background modes).
+	Folded []float64
+	// Clipped lists the reco bins where the data minus the background was
+	// negative and was set to zero (Subtract mode only).
+	Clipped []int
+
+	// Uncertainty is the square root of the variance of each estimate
+	// (nil without an uncertainty computation; 0 where not determined).
+	Uncertainty []float64
+	// Covariance is the full linearised covariance (Full only).
+	Covariance *mat.SymDense
+	// UncertaintyMethod names the method that produced Uncertainty:
+	// "linearised" (exact first order), "linearised-probes" or
+	// "poisson-toys"; empty without an uncertainty computation.
+	UncertaintyMethod string
+	// UncertaintyPrecision is the relative statistical precision of each
+	// variance in Uncertainty (sqrt(2/S) for S probes, at most; sqrt(2/(T−1))
+	// for T toys); 0 for the exact propagation.
+	UncertaintyPrecision float64
+	// Samples is the number of probes or toys used (0 for exact).
+	Samples int
+
+	// Details holds what is particular to the method (Fit.Details), for
+	// example the iteration history of the iterative method.
+	Details any
+}
+
+// Method is an unfolding method with its own settings: the value is the
+// method's settings type (a pointer), so choosing a method means giving
+// its settings.
+type Method interface {
+	// Name is the method's name, as recorded in Result.Method.
+	Name() string
+	// Validate checks the method's settings; it returns a
+	// *SettingsError naming the field.
+	Validate() error
+	// Fit runs the method on p (settings already validated).
+	Fit(ctx context.Context, p *Prepared) (Fit, error)
+}
+
+// Fit is the nominal result of a method on a prepared problem, able to
+// propagate perturbations of the data through the same computation. The
+// uncertainty drivers of Unfold use it; the method supplies only what
+// depends on its algorithm.
+//
+// The estimate μ(n, b) is treated as a function of the data n and of the
+// background b inside the model (Prepared.Data, Prepared.Background).
+// Linear methods give it exactly, linearised methods to first order at
+// the nominal data.
+type Fit interface {
+	// Estimate returns μ per truth bin (0 where not determined).
+	Estimate() []float64
+	// Folded returns R μ + b with b the background inside the model.
+	Folded() []float64
+	// Details returns the method-specific details stored in
+	// Result.Details.
+	Details() any
+
+	// Jacobian computes the dense Jacobian dμ/d(n, b) at the nominal
+	// data into dst (dst.Rows = truth bins, dst.Cols =
+	// Prepared.Columns()).
+	Jacobian(ctx context.Context, dst *Jacobian) error
+	// Tangents computes the Jacobian-vector products dμ_s = J z_s for
+	// the probes of dst into dst.Tangent(s).
+	Tangents(ctx context.Context, dst *Probes) error
+	// NewToyRunner returns a runner that re-runs the method with the
+	// same regularisation on pseudo-data. Every runner is used by one
+	// goroutine; several runners run concurrently.
+	NewToyRunner() ToyRunner
+}
+
+// ToyRunner re-runs a method on pseudo-data.
+type ToyRunner interface {
+	// Run returns the estimate for data n and, when the background
+	// variance is propagated, background b (nil otherwise). The
+	// returned slice is the runner's own, valid until the next call.
+	Run(ctx context.Context, n, b []float64) ([]float64, error)
+}
+
+// Unfold unfolds p with the common settings s (nil means the defaults)
+// and method m (m carries the method's settings).
+//
+// Errors: *InputError for invalid or inconsistent inputs, *SettingsError
+// for invalid settings, *TooLargeError when an uncertainty computation
+// does not fit under the memory limit, *NumericalError on overflow, and
+// ctx.Err() when the context is cancelled.
+func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, error) {
+	if err := m.Validate(); err != nil {
+		return nil, err
+	}
+	rs, err := s.Resolve()
+	if err != nil {
+		return nil, err
+	}
+	pr, err := Prepare(p, rs.Background)
+	if err != nil {
+		return nil, err
+	}
+	if net := pr.net(); net <= 0 {
+		return nil, inputErr("Data", -1, -1, "the data minus the background sum to %v ≤ 0: there is nothing to unfold", net)
+	}
+	plan, err := planUncertainty(pr, &rs)
+	if err != nil {
+		return nil, err
+	}
+	fit, err := m.Fit(ctx, pr)
+	if err != nil {
+		return nil, err
+	}
+	res := &Result{
+		Method:     m.Name(),
+		Estimate:   append([]float64(nil), fit.Estimate()...),
+		Determined: append([]bool(nil), pr.det...),
+		Efficiency: append([]float64(nil), pr.eps...),
+		Folded:     append([]float64(nil), fit.Folded()...),
+		Clipped:    pr.clip,
+		Details:    fit.Details(),
+	}
+	if rs.Background == Subtract && p.Background != nil {
+		for i, b := range p.Background {
+			res.Folded[i] += b
+		}
+	}
+	if err := plan.finish(ctx, fit, res); err != nil {
+		return nil, err
+	}
+	return res, nil
+}

@@ -1,0 +1,107 @@
+package bayes
+
+import (
+	"context"
+
+	"github.com/desmear/desmear/unfold"
+)
+
+// Name is the method's name in unfold.Result.Method.
+const Name = "iterative-bayes"
+
+// Name returns the method's name.
+func (s *Settings) Name() string { return Name }
+
+// Validate checks the settings (see Resolve).
+func (s *Settings) Validate() error {
+	_, err := s.resolve()
+	return err
+}
+
+// Fit runs the iteration on p. The result's Details are a *Details.
+func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
+	rs, err := s.resolve()
+	if err != nil {
+		return nil, err
+	}
+	m := newModel(p)
+	var sm *smoother
+	if rs.Smoothing != nil {
+		if sm, err = newSmoother(rs.Smoothing, m.det); err != nil {
+			return nil, err
+		}
+	}
+	it := newIterator(m, sm)
+	d, err := it.run(ctx, m.n, rs, nil)
+	if err != nil {
+		return nil, err
+	}
+	return &fit{m: m, sm: sm, details: d,
+		estimate: append([]float64(nil), it.mu...),
+		folded:   append([]float64(nil), it.nu...)}, nil
+}
+
+// fit is the nominal iteration. The uncertainties re-run the iteration
+// with the number of iterations it made, carrying the tangents along;
+// the iteration is deterministic, so the re-run retraces it bit for bit.
+type fit struct {
+	m                *model
+	sm               *smoother
+	details          *Details
+	estimate, folded []float64
+}
+
+func (f *fit) Estimate() []float64 { return f.estimate }
+func (f *fit) Folded() []float64   { return f.folded }
+func (f *fit) Details() any        { return f.details }
+
+// Jacobian carries the dense Jacobian along a re-run of the iteration.
+func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
+	jc := newJacobian(f.m, dst)
+	if _, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), jc); err != nil {
+		return err
+	}
+	dst.Data, dst.Work = jc.j, jc.w
+	return nil
+}
+
+// Tangents carries the probes along a re-run of the iteration.
+func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
+	pr := newProbes(f.m, dst)
+	_, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), pr)
+	return err
+}
+
+// NewToyRunner returns a runner iterating pseudo-data as many times as
+// the nominal iteration did.
+func (f *fit) NewToyRunner() unfold.ToyRunner {
+	r := &toyRunner{mod: *f.m, rs: fixedIterations(f.details.Iterations)}
+	r.it = newIterator(&r.mod, f.sm)
+	return r
+}
+
+type toyRunner struct {
+	mod model
+	it  *iterator
+	rs  *resolved
+	d   Details
+}
+
+func (r *toyRunner) Run(ctx context.Context, n, b []float64) ([]float64, error) {
+	if b != nil {
+		r.mod.b = b
+	}
+	if err := r.it.iterate(ctx, n, r.rs, nil, &r.d); err != nil {
+		return nil, err
+	}
+	return r.it.mu, nil
+}
+
+// DetailsOf returns the iteration details of a result of this method,
+// or an empty Details when r came from another method.
+func DetailsOf(r *unfold.Result) *Details {
+	if d, ok := r.Details.(*Details); ok {
+		return d
+	}
+	return &Details{}
+}
