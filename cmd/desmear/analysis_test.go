@@ -351,7 +351,7 @@ func TestWriteTablesChecksAgain(t *testing.T) {
 	}
 	r := &response.Built{Migrations: m, Generated: []float64{3}, GeneratedSumW2: []float64{3}, Fakes: []float64{0}, FakesSumW2: []float64{0}}
 	err = writeTables(dir, r, nil, true)
-	if err == nil || !strings.Contains(err.Error(), "does not hold a response.csv") {
+	if err == nil || !strings.Contains(err.Error(), "without a response.csv") {
 		t.Errorf("writeTables over a foreign folder: %v", err)
 	}
 	if names, _ := os.ReadDir(parent); len(names) != 1 {

@@ -79,8 +79,11 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	fmt.Fprintf(diag, "desmear demo: generating %d simulated events and the pseudo-data (seed %d) into %s\n", o.events, o.seed, o.out)
 	in, err := demo.Generate(ctx, o.out, demo.Config{Events: o.events, Seed: o.seed}, o.force)
 	if err != nil {
-		if errors.Is(err, fs.ErrExist) || errors.Is(err, demo.ErrNotDemoFolder) {
+		switch {
+		case errors.Is(err, demo.ErrNotDemoFolder):
 			return usageErr(err)
+		case errors.Is(err, fs.ErrExist):
+			return usagef("%v (replace it with --force)", err)
 		}
 		if ctx.Err() != nil {
 			return ctx.Err()

@@ -459,7 +459,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 
 	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) error {
-		return f.WriteResult(r, pi.truth)
+		return result.WriteResult(f, r, pi.truth)
 	}); err != nil {
 		return err
 	}

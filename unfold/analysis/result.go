@@ -246,7 +246,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, replace bool, opt *Op
 			f.Abort()
 		}
 	}()
-	if err := f.WriteJSON(result.JSONFile, doc); err != nil {
+	if err := result.WriteJSON(f, result.JSONFile, doc); err != nil {
 		return err
 	}
 	out.Files = append(out.Files, result.JSONFile)

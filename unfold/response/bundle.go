@@ -4,12 +4,12 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
 
 	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -23,7 +23,7 @@ import (
 //	                 format (sparse.Matrix.WriteTo, sparse.Load)
 //
 // It is written atomically: into a hidden temporary sibling folder that
-// is renamed into place (result.Temp, result.Install).
+// is renamed into place.
 const (
 	BundleFormat  = "desmear-response"
 	BundleVersion = 1
@@ -74,26 +74,24 @@ type bundleDoc struct {
 	Summary        Summary    `json:"summary"`
 }
 
-// Save writes r and info as a response bundle at dir. An existing dir is
-// refused unless replace is set and it is an earlier bundle.
+// CheckBundle reports whether a response bundle could be written at dir:
+// nil when nothing exists there, or when replace is set and dir is empty
+// or an earlier bundle. Otherwise the error wraps result.ErrExists or
+// result.ErrNotResult (see Save).
+func CheckBundle(dir string, replace bool) error {
+	if err := atomicfile.Check(dir, bundleJSON, replace); err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	return nil
+}
+
+// Save writes r and info as a response bundle at dir, atomically. An
+// existing dir is refused (the error wraps result.ErrExists) unless
+// replace is set and it is empty or an earlier bundle (it holds a
+// response.json); any other folder is left alone (the error wraps
+// result.ErrNotResult, the module's error for a folder that is not an
+// earlier one of the kind being written).
 func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
-	if fi, err := os.Lstat(dir); err == nil {
-		if !replace {
-			return fmt.Errorf("%s exists (replace it with --force)", dir)
-		}
-		if _, err := os.Stat(filepath.Join(dir, bundleJSON)); !fi.IsDir() || err != nil {
-			return fmt.Errorf("%s exists and is not a response bundle; not replacing it", dir)
-		}
-	}
-	tmp, err := result.Temp(dir)
-	if err != nil {
-		return err
-	}
-	defer func() {
-		if err != nil {
-			os.RemoveAll(tmp)
-		}
-	}()
 	doc := bundleDoc{Format: BundleFormat, Version: BundleVersion, Info: info,
 		TruthBins: r.TruthBins(), RecoBins: r.RecoBins(),
 		Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2, Fakes: r.Fakes, FakesSumW2: r.FakesSumW2,
@@ -102,13 +100,25 @@ func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err != nil {
 		return err
 	}
-	if err := result.WriteSynced(filepath.Join(tmp, bundleJSON), func(w io.Writer) error { _, err := w.Write(b); return err }); err != nil {
+	f, err := atomicfile.New(dir, bundleJSON, replace)
+	if err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	defer f.Abort()
+	if err := f.WriteFile(bundleJSON, b); err != nil {
 		return err
 	}
-	if err := result.WriteSynced(filepath.Join(tmp, bundleMatrix), func(w io.Writer) error { _, err := r.Migrations.WriteTo(w); return err }); err != nil {
+	w, err := f.Create(bundleMatrix)
+	if err != nil {
 		return err
 	}
-	return result.Install(tmp, dir, replace)
+	if _, err := r.Migrations.WriteTo(w); err != nil {
+		return fmt.Errorf("%s: %w", filepath.Join(dir, bundleMatrix), err)
+	}
+	if err := f.Commit(); err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	return nil
 }
 
 // Load reads the response bundle at dir.

@@ -388,11 +388,11 @@ func formatEdge(v float64) string {
 
 // WriteResult writes r to result.json and its per-bin table to
 // result.csv in folder f (s is the truth binning, nil for none).
-func (f *Folder) WriteResult(r *Result, s *binning.Scheme) error {
+func WriteResult(f *Folder, r *Result, s *binning.Scheme) error {
 	if err := r.checkFinite(); err != nil {
 		return err
 	}
-	if err := f.WriteJSON(JSONFile, r); err != nil {
+	if err := WriteJSON(f, JSONFile, r); err != nil {
 		return err
 	}
 	w, err := f.Create(CSVFile)
