@@ -15,7 +15,6 @@ import (
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
 )
@@ -33,7 +32,7 @@ observables:
   truth: {y: abs(y_t), pt: pt_t}
   reco: {y: abs(y_r), pt: pt_r}
 simulation:
-  - file: sim.parquet
+  - file: sim.csv
     weight: w
     truth_selection: pass_t
     reco_selection: pass_r && pt_r > 0.2
@@ -60,7 +59,7 @@ const cliReco = `regions:
 `
 
 // writeCLIAnalysis writes a small 2-D analysis: simulated events in
-// Parquet, the data and a background as plain tables.
+// CSV, the data and a background as plain tables.
 func writeCLIAnalysis(t *testing.T) string {
 	t.Helper()
 	dir := t.TempDir()
@@ -79,7 +78,20 @@ func writeCLIAnalysis(t *testing.T) string {
 		cols[5][k] = boolFloat(rng.Float64() < 0.98)
 		cols[6][k] = boolFloat(rng.Float64() < 0.9)
 	}
-	if err := events.WriteParquet(filepath.Join(dir, "sim.parquet"), names, cols); err != nil {
+	// The simulation as an events CSV file: a header, then one row per
+	// event, each value in the shortest form that reads back exactly.
+	var sim []byte
+	sim = append(sim, strings.Join(names, ",")+"\n"...)
+	for k := 0; k < n; k++ {
+		for c := range cols {
+			if c > 0 {
+				sim = append(sim, ',')
+			}
+			sim = strconv.AppendFloat(sim, cols[c][k], 'g', -1, 64)
+		}
+		sim = append(sim, '\n')
+	}
+	if err := os.WriteFile(filepath.Join(dir, "sim.csv"), sim, 0o644); err != nil {
 		t.Fatal(err)
 	}
 	// 4 × 7 reco bins: 24 in range, then the 4 pt overflows.
@@ -213,7 +225,7 @@ func TestAnalysisErrors(t *testing.T) {
 	}{
 		{[]string{"unfold", bad("  iterations: 3", "  iterations: 3\n  iteratoins: 4")}, exitInput, "bad1.yaml:27: iteratoins: unknown key in unfolding"},
 		{[]string{"response", bad("weight: w", "weight: wgt")}, exitInput, `bad2.yaml:15: simulation[0].weight: unknown column "wgt"`},
-		{[]string{"response", bad("file: sim.parquet", "file: nowhere.parquet")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
+		{[]string{"response", bad("file: sim.csv", "file: nowhere.csv")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
 		{[]string{"unfold", filepath.Join(filepath.Dir(path), "missing.yaml")}, exitInput, "missing.yaml: cannot read the analysis file"},
 	}
 	for _, c := range cases {

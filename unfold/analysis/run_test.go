@@ -15,8 +15,8 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/response"
 )
@@ -56,11 +56,11 @@ func writeSample(t *testing.T, path string, names []string, cols [][]float64) {
 	var err error
 	switch filepath.Ext(path) {
 	case ".csv":
-		err = events.WriteCSV(path, names, cols)
+		err = eventfile.WriteCSV(path, names, cols)
 	case ".parquet":
-		err = events.WriteParquet(path, names, cols)
+		err = eventfile.WriteParquet(path, names, cols)
 	case ".root":
-		err = events.WriteROOT(path, "events", names, cols)
+		err = eventfile.WriteROOT(path, "events", names, cols)
 	}
 	if err != nil {
 		t.Fatal(err)
