@@ -18,6 +18,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -274,24 +275,24 @@ func openInput(what, path string) (*os.File, error) {
 // readHashed opens path, lets read parse it through a hashing reader and
 // returns the input record. Errors from read that are not *tables.Error
 // or *binning.Error are I/O errors.
-func readHashed(role, what, path string, read func(r io.Reader) error) (result.Input, error) {
+func readHashed(role, what, path string, read func(r io.Reader) error) (inputs.File, error) {
 	f, err := openInput(what, path)
 	if err != nil {
-		return result.Input{}, err
+		return inputs.File{}, err
 	}
 	defer f.Close()
-	h := result.NewHashingReader(f)
+	h := inputs.NewHashingReader(f)
 	if err := read(h); err != nil {
 		var te *tables.Error
 		var be *binning.Error
 		if errors.As(err, &te) || errors.As(err, &be) {
-			return result.Input{}, inputErr(err)
+			return inputs.File{}, inputErr(err)
 		}
-		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return inputs.File{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
-	in, err := h.Input(role, path)
+	in, err := h.File(role, path)
 	if err != nil {
-		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return inputs.File{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
 	return in, nil
 }
@@ -300,12 +301,12 @@ func readHashed(role, what, path string, read func(r io.Reader) error) (result.I
 type plainInputs struct {
 	set         tables.Set
 	truth, reco *binning.Scheme
-	inputs      []result.Input
+	inputs      []inputs.File
 }
 
 func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 	var pi plainInputs
-	add := func(in result.Input, err error) error {
+	add := func(in inputs.File, err error) error {
 		if err == nil {
 			pi.inputs = append(pi.inputs, in)
 		}

@@ -13,6 +13,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
@@ -126,13 +127,13 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	return out, nil
 }
 
-func (a *Analysis) inputs(out *Outcome) ([]result.Input, error) {
-	var ins []result.Input
+func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
+	var ins []inputs.File
 	add := func(role, path string) error {
 		if path == "" {
 			return nil
 		}
-		in, err := result.HashFile(role, path)
+		in, err := inputs.Hash(role, path)
 		if err != nil {
 			return err
 		}

@@ -9,8 +9,8 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
-	"github.com/desmear/desmear/unfold/result"
 )
 
 // A response bundle is a folder holding a built response:
@@ -42,7 +42,7 @@ type BundleInfo struct {
 	TruthScheme string `json:"truth_scheme"`
 	RecoScheme  string `json:"reco_scheme"`
 	// Inputs are the files the response was built from.
-	Inputs []Input `json:"inputs"`
+	Inputs []inputs.File `json:"inputs"`
 	// Program is the program version that built it.
 	Program string `json:"program"`
 	// Samples holds the counts of each simulated sample, in order.
@@ -54,10 +54,6 @@ type SampleSummary struct {
 	File    string  `json:"file"`
 	Summary Summary `json:"summary"`
 }
-
-// Input is one input file: its role, path, size and SHA-256, the record
-// a result folder keeps of its inputs.
-type Input = result.Input
 
 type bundleDoc struct {
 	Format         string     `json:"format"`

@@ -10,6 +10,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 )
 
 // Format and FormatVersion identify result.json files of this layout.
@@ -30,11 +31,11 @@ const (
 // object) or add fields here; readers must ignore fields they do not
 // know.
 type Result struct {
-	Format        string   `json:"format"`         // always Format
-	FormatVersion int      `json:"format_version"` // FormatVersion
-	Program       Program  `json:"program"`
-	Inputs        []Input  `json:"inputs"` // every input file, with its content hash
-	Settings      Settings `json:"settings"`
+	Format        string        `json:"format"`         // always Format
+	FormatVersion int           `json:"format_version"` // FormatVersion
+	Program       Program       `json:"program"`
+	Inputs        []inputs.File `json:"inputs"` // every input file, with its content hash
+	Settings      Settings      `json:"settings"`
 
 	TruthBins int `json:"truth_bins"`
 	RecoBins  int `json:"reco_bins"`
@@ -83,16 +84,6 @@ type Result struct {
 type Program struct {
 	Name    string `json:"name"`
 	Version string `json:"version"`
-}
-
-// Input is one input file of a result: its role (for example
-// "response", "data", "truth-binning"), its path as given, its size in
-// bytes and the SHA-256 of its content (lower-case hex).
-type Input struct {
-	Role   string `json:"role"`
-	Path   string `json:"path"`
-	Bytes  int64  `json:"bytes"`
-	SHA256 string `json:"sha256"`
 }
 
 // Settings are the unfolding settings in force, defaults filled in.
