@@ -460,7 +460,8 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 
 	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) error {
-		return result.WriteResult(f, r, pi.truth)
+		_, err := result.Write(f, r, pi.truth, []string{result.JSONFormat, "csv"})
+		return err
 	}); err != nil {
 		return err
 	}

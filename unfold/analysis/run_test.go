@@ -19,6 +19,7 @@ import (
 	"github.com/desmear/desmear/unfold/internal/eventfile"
 	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 var simColumns = []string{"x_true", "x_reco", "w", "ok_true", "ok_reco"}
@@ -366,7 +367,7 @@ func TestSavedResponse(t *testing.T) {
 	}
 	// The result records both files of the loaded bundle among its inputs,
 	// beside the simulation the bundle was built from.
-	var doc Document
+	var doc result.Result
 	if b, err := os.ReadFile(filepath.Join(loaded.Folder, "result.json")); err != nil || json.Unmarshal(b, &doc) != nil {
 		t.Fatalf("result.json: %v", err)
 	}

@@ -21,14 +21,6 @@ var ErrExists = atomicfile.ErrExists
 // the folder is not an earlier one of their kind.
 var ErrNotResult = atomicfile.ErrNotOurs
 
-// JSONFile and CSVFile are the names of the two files of every result
-// folder. A folder holding JSONFile counts as an earlier result that may
-// be replaced.
-const (
-	JSONFile = "result.json"
-	CSVFile  = "result.csv"
-)
-
 // Check reports whether a result folder could be written at path: nil
 // when nothing exists there, or when replace is set and the path is an
 // empty folder or one holding a result.json. Otherwise it returns an
@@ -60,16 +52,4 @@ func New(path string, replace bool) (*Folder, error) {
 		return nil, fmt.Errorf("result: %w", err)
 	}
 	return f, nil
-}
-
-// WriteJSON writes v as JSON to the file name of folder f: objects one
-// member per line, indented by two spaces, and arrays of plain values
-// (numbers, strings, booleans) on one line each. It fails, writing
-// nothing, if v holds a NaN or an infinity, which JSON cannot represent.
-func WriteJSON(f *Folder, name string, v any) error {
-	data, err := marshal(v)
-	if err != nil {
-		return fmt.Errorf("result: %s: %w", name, err)
-	}
-	return f.WriteFile(name, data)
 }

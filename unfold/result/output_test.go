@@ -169,10 +169,10 @@ func TestDescribeSettings(t *testing.T) {
 	}
 }
 
-// WriteResult refuses a result holding a NaN or an infinity anywhere
+// Write refuses a result holding a NaN or an infinity anywhere
 // (JSON has no such numbers) and leaves no file in the folder; WriteCSV
 // refuses a truth binning of another size.
-func TestWriteResultRefuses(t *testing.T) {
+func TestWriteRefuses(t *testing.T) {
 	for name, spoil := range map[string]func(r *Result){
 		"covariance": func(r *Result) { r.Covariance[1][0] = math.NaN() },
 		"history":    func(r *Result) { r.History[1].Chi2 = math.Inf(1) },
@@ -190,8 +190,8 @@ func TestWriteResultRefuses(t *testing.T) {
 				t.Fatal(err)
 			}
 			defer f.Abort()
-			if err := WriteResult(f, r, nil); err == nil || !strings.Contains(err.Error(), name) {
-				t.Errorf("WriteResult = %v, want an error naming %s", err, name)
+			if _, err := Write(f, r, nil, DefaultFormats()); err == nil || !strings.Contains(err.Error(), name) {
+				t.Errorf("Write = %v, want an error naming %s", err, name)
 			}
 			if err := f.Commit(); err != nil {
 				t.Fatal(err)

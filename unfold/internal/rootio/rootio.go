@@ -13,8 +13,22 @@ import (
 	"go-hep.org/x/hep/groot/root"
 	"go-hep.org/x/hep/hbook"
 
+	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
+
+// BinOf maps a ROOT cell number along an axis of n bins (0 the
+// underflow, 1..n the bins, n+1 the overflow) to a bin number of package
+// binning (binning.UnderflowBin, 0..n-1, binning.OverflowBin).
+func BinOf(c, n int) int {
+	switch {
+	case c == 0:
+		return binning.UnderflowBin
+	case c == n+1:
+		return binning.OverflowBin
+	}
+	return c - 1
+}
 
 // Hist1D is a one-dimensional histogram in ROOT's cell layout.
 type Hist1D struct {
