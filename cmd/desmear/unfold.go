@@ -39,8 +39,9 @@ type unfoldOptions struct {
 	seed          uint64
 	memoryLimit   int64
 
-	out   string
-	force bool
+	out     string
+	force   bool
+	formats []string
 }
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
@@ -89,7 +90,11 @@ It runs in one of two modes:
 
 The result folder DIR holds result.json (estimate, uncertainty, covariance with
 --covariance full, efficiency, iteration history, settings, input files with
-their SHA-256) and result.csv (one row per truth bin). It is written to a
+their SHA-256) and result.csv (one row per truth bin); with --truth-binning
+also region-NAME.csv (per truth region: bin edges, volume, counts and
+densities, i.e. counts per bin volume) and result.root (histograms of counts
+and densities), the same files an analysis file's output.formats chooses
+from (--formats). It is written to a
 temporary folder and renamed into place, so a failed or interrupted run leaves
 nothing behind; an existing DIR is refused unless --force is given (and even
 then only an earlier result folder or an empty folder is replaced).
@@ -142,6 +147,7 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
+	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
 	return cmd
 }
 
@@ -413,7 +419,22 @@ func kernelErr(ctx context.Context, set *tables.Set, err error) error {
 	return numericalErr(err)
 }
 
+// formatsUsage is the help of --formats, naming the registered formats.
+func formatsUsage() string {
+	var binned []string
+	for _, name := range result.Formats() {
+		if result.NeedsTruthBinning(name) {
+			binned = append(binned, name)
+		}
+	}
+	return fmt.Sprintf("formats `LIST` of the result folder, among %s (%s always written; %s only with --truth-binning)",
+		strings.Join(result.Formats(), ", "), result.JSONFile, strings.Join(binned, ", "))
+}
+
 func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
+	if err := result.CheckFormats(o.formats); err != nil {
+		return usagef("--formats: %v", err)
+	}
 	if err := checkOutFolder(o.out, o.force); err != nil {
 		return err
 	}
@@ -459,13 +480,14 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)
 	}
 
-	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) error {
-		_, err := result.Write(f, r, pi.truth, []string{result.JSONFormat, "csv"})
+	var files []string
+	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) (err error) {
+		files, err = result.Write(f, r, pi.truth, o.formats)
 		return err
 	}); err != nil {
 		return err
 	}
-	printSummary(g, o.out, r, pi.truth)
+	printSummary(g, o.out, r, pi.truth, files)
 	if zeros := zeroPrior(prob.Prior, r.Determined); zeros > 0 && !g.quiet {
 		fmt.Fprintf(g.stderr, "note: the prior %s is 0 in %d truth bins the response can measure; the iteration keeps a zero, so their estimates are 0 (give every such bin a positive prior)\n", o.prior, zeros)
 	}
@@ -521,8 +543,9 @@ func writeResultFolder(ctx context.Context, dir string, force bool, write func(f
 const maxTableRows = 30
 
 // printSummary prints what was done to stdout, with a per-bin table for
-// small problems, and notes to stderr.
-func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme) {
+// small problems, and notes to stderr. Of the files written it names
+// result.json and result.csv.
+func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme, files []string) {
 	det := 0
 	for _, d := range r.Determined {
 		if d {
@@ -566,7 +589,13 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 		}
 		tw.Flush()
 	}
-	fmt.Fprintf(w, "result: %s/%s, %s/%s\n", dir, result.JSONFile, dir, result.CSVFile)
+	var tables []string
+	for _, name := range []string{result.JSONFile, result.CSVFile} {
+		if slices.Contains(files, name) {
+			tables = append(tables, dir+"/"+name)
+		}
+	}
+	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
 	if g.quiet {
 		return
 	}
