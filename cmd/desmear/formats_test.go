@@ -124,14 +124,6 @@ func TestPlainWritesAnalysisFormats(t *testing.T) {
 // --truth-binning the formats that need one are left out.
 func TestPlainFormats(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), oracleD)
-	names := func(out string) string {
-		es, _ := os.ReadDir(out)
-		var n []string
-		for _, e := range es {
-			n = append(n, e.Name())
-		}
-		return strings.Join(n, " ")
-	}
 	for _, c := range []struct {
 		formats, want string
 	}{
@@ -147,7 +139,7 @@ func TestPlainFormats(t *testing.T) {
 		if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
 			t.Fatalf("--formats %q: exit %d\n%s", c.formats, code, stderr)
 		}
-		if got := names(out); got != c.want {
+		if got := strings.Join(dirNames(t, out), " "); got != c.want {
 			t.Errorf("--formats %q wrote %s, want %s", c.formats, got, c.want)
 		}
 	}

@@ -3,7 +3,6 @@ package main
 import (
 	"bufio"
 	"context"
-	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -16,7 +15,6 @@ import (
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
-	"github.com/desmear/desmear/unfold/result"
 )
 
 type responseOptions struct {
@@ -82,11 +80,11 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 			out = filepath.Join(a.Dir, "response")
 		}
 	}
-	if err := refusedFolder(response.CheckBundle(out, o.force), out, response.BundleFiles()[0]); err != nil {
+	if err := refusedFolder(response.CheckBundle(out, o.force), out, "response bundle", response.BundleFiles()[0]); err != nil {
 		return err
 	}
 	if o.tables != "" {
-		if err := refusedFolder(tables.CheckFolder(o.tables, o.force), o.tables, tables.ResponseFile); err != nil {
+		if err := refusedFolder(tables.CheckFolder(o.tables, o.force), o.tables, "tables folder", tables.ResponseFile); err != nil {
 			return err
 		}
 	}
@@ -98,7 +96,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		return classifyAnalysisErr(err)
 	}
 	if err := r.Save(out, *info, o.force); err != nil {
-		return refusedFolder(err, out, response.BundleFiles()[0])
+		return refusedFolder(err, out, "response bundle", response.BundleFiles()[0])
 	}
 	if o.tables != "" {
 		bkg, err := a.Background(ctx, r, &analysis.Options{Progress: p.report})
@@ -107,7 +105,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 			return classifyAnalysisErr(err)
 		}
 		if err := writeTables(o.tables, r, bkg, o.force); err != nil {
-			return refusedFolder(err, o.tables, tables.ResponseFile)
+			return refusedFolder(err, o.tables, "tables folder", tables.ResponseFile)
 		}
 	}
 	w := bufio.NewWriter(g.stdout)
@@ -130,22 +128,6 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		return ioErr(err)
 	}
 	return nil
-}
-
-// refusedFolder classifies an error of checking or writing the output
-// folder dir, whose kind the file marker identifies: a folder that exists
-// without --force, or that is not an earlier output of this kind, is a
-// usage error with advice; anything else an I/O error (nil stays nil).
-func refusedFolder(err error, dir, marker string) error {
-	switch {
-	case err == nil:
-		return nil
-	case errors.Is(err, result.ErrExists):
-		return usagef("%s exists (use --force to replace it)", dir)
-	case errors.Is(err, result.ErrNotResult):
-		return usagef("%s exists and does not hold a %s; not replacing it", dir, marker)
-	}
-	return ioErr(err)
 }
 
 // writeTables writes the plain tables of the response into dir,

@@ -248,19 +248,27 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) *unfold.Settings {
 	return s
 }
 
-// checkOutFolder refuses an output folder that exists (unless force) or
+// checkOutFolder refuses a result folder that exists (unless force) or
 // that cannot be replaced, before any long work.
 func checkOutFolder(dir string, force bool) error {
-	err := result.Check(dir, force)
+	return refusedFolder(result.Check(dir, force), dir, "result folder", result.JSONFile)
+}
+
+// refusedFolder classifies an error of checking or writing the output
+// folder dir, a "result folder", "response bundle" or "tables folder"
+// (what) whose earlier versions hold the file marker: a folder that
+// exists without --force, or that is not an earlier one of its kind, is
+// a usage error with advice; anything else an I/O error (nil stays nil).
+func refusedFolder(err error, dir, what, marker string) error {
 	switch {
 	case err == nil:
 		return nil
 	case errors.Is(err, result.ErrExists):
-		return usagef("output folder %s exists; give --force to replace it, or choose another folder", dir)
+		return usagef("%s %s exists (use --force to replace it, or choose another folder)", what, dir)
 	case errors.Is(err, result.ErrNotResult):
-		return usagef("output folder %s exists and is not an earlier result folder (no %s in it); refusing to replace it even with --force: choose another folder", dir, result.JSONFile)
+		return usagef("%s exists and is not an earlier %s (it does not hold a %s); refusing to replace it even with --force: choose another folder", dir, what, marker)
 	}
-	return ioErr(fmt.Errorf("output folder: %w", err))
+	return ioErr(fmt.Errorf("%s %s: %w", what, dir, err))
 }
 
 // openInput opens an input file, classifying a missing file as bad input
