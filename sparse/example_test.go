@@ -87,7 +87,14 @@ func ExampleLoad() {
 	}
 	defer os.RemoveAll(dir)
 	path := filepath.Join(dir, "response.dsm")
-	if err := m.Save(path); err != nil {
+	f, err := os.Create(path)
+	if err != nil {
+		log.Fatal(err)
+	}
+	if _, err := m.WriteTo(f); err != nil {
+		log.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
 		log.Fatal(err)
 	}
 	back, err := sparse.Load(path)

@@ -28,7 +28,7 @@
 // given. Write writes a chosen list of formats into a folder; Formats
 // lists the registered names and DefaultFormats those written when none
 // are chosen (the default of the analysis file's output.formats and of
-// the command line's --formats). Adding a format (plots, a report, an
+// the plain-table mode's format list). Adding a format (plots, a report, an
 // export) is one new file here: a function writing its files into the
 // folder, registered with Register from the file's init.
 //
