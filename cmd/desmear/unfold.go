@@ -94,10 +94,10 @@ their SHA-256) and result.csv (one row per truth bin); with --truth-binning
 also region-NAME.csv (per truth region: bin edges, volume, counts and
 densities, i.e. counts per bin volume) and result.root (histograms of counts
 and densities), the same files an analysis file's output.formats chooses
-from (--formats). It is written to a
-temporary folder and renamed into place, so a failed or interrupted run leaves
-nothing behind; an existing DIR is refused unless --force is given (and even
-then only an earlier result folder or an empty folder is replaced).
+from (--formats). It is written to a temporary folder and renamed into place,
+so a failed or interrupted run leaves nothing behind; an existing DIR is
+refused unless --force is given (and even then only an earlier result folder
+or an empty folder is replaced).
 
 The iteration stops after --iterations K (default 4), or at the first
 iteration whose chi-square between successive estimates,
@@ -435,7 +435,7 @@ func formatsUsage() string {
 			binned = append(binned, name)
 		}
 	}
-	return fmt.Sprintf("formats `LIST` of the result folder, among %s (%s always written; %s only with --truth-binning)",
+	return fmt.Sprintf("comma-separated `LIST` of the result folder's formats, among %s (%s is always written; %s only with --truth-binning)",
 		strings.Join(result.Formats(), ", "), result.JSONFile, strings.Join(binned, ", "))
 }
 
