@@ -42,8 +42,9 @@
 //
 // # Files
 //
-// Save writes a matrix (values, squared-weight sums, dimensions) in a
-// compact checksummed binary format of this package, atomically; Load and
+// WriteTo writes a matrix (values, squared-weight sums, dimensions) in a
+// compact checksummed binary format of this package (writing it to a file
+// atomically is the caller's part, as the response bundle does); Load and
 // Read return an error wrapping ErrFormat for a truncated or corrupted
 // file. The layout is documented in format.go.
 //

@@ -1,10 +1,9 @@
 package sparse_test
 
 import (
+	"bytes"
 	"fmt"
 	"log"
-	"os"
-	"path/filepath"
 
 	"github.com/desmear/desmear/sparse"
 )
@@ -76,21 +75,18 @@ func ExampleMatrix_Sweep() {
 	// [2 7] [16 21 8]
 }
 
-func ExampleLoad() {
+// Write a matrix in the package's checksummed file format and read it
+// back.
+func ExampleRead() {
 	m, err := sparse.NewMatrix(2, 2, []int{0, 1, 2}, []int{0, 1}, []float64{0.75, 0.5}, []float64{0.1, 0.2})
 	if err != nil {
 		log.Fatal(err)
 	}
-	dir, err := os.MkdirTemp("", "sparse-example")
-	if err != nil {
+	var file bytes.Buffer // a file written with WriteTo reads back with Load
+	if _, err := m.WriteTo(&file); err != nil {
 		log.Fatal(err)
 	}
-	defer os.RemoveAll(dir)
-	path := filepath.Join(dir, "response.dsm")
-	if err := m.Save(path); err != nil {
-		log.Fatal(err)
-	}
-	back, err := sparse.Load(path)
+	back, err := sparse.Read(&file)
 	if err != nil {
 		log.Fatal(err)
 	}

@@ -10,7 +10,6 @@ import (
 	"io"
 	"math"
 	"os"
-	"path/filepath"
 )
 
 // The matrix file format, version 1. All numbers are little-endian.
@@ -49,56 +48,6 @@ var castagnoli = crc32.MakeTable(crc32.Castagnoli)
 // formatErr returns an error wrapping ErrFormat.
 func formatErr(format string, args ...any) error {
 	return fmt.Errorf("%w: %s", ErrFormat, fmt.Sprintf(format, args...))
-}
-
-// Save writes m to the file path atomically: it writes a temporary file
-// in the same directory, syncs it, renames it over path and syncs the
-// directory, so that path holds either its old content or the complete
-// new matrix.
-func (m *Matrix) Save(path string) (err error) {
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".tmp-*")
-	if err != nil {
-		return fmt.Errorf("sparse: saving %s: %w", path, err)
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(tmp)
-			err = fmt.Errorf("sparse: saving %s: %w", path, err)
-		}
-	}()
-	bw := bufio.NewWriterSize(f, 1<<20)
-	if _, err = m.WriteTo(bw); err != nil {
-		return err
-	}
-	if err = bw.Flush(); err != nil {
-		return err
-	}
-	if err = f.Chmod(0o644); err != nil {
-		return err
-	}
-	if err = f.Sync(); err != nil {
-		return err
-	}
-	if err = f.Close(); err != nil {
-		return err
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return err
-	}
-	// Sync the directory so that the rename survives a crash; some
-	// filesystems cannot sync directories, which is not an error of the
-	// file.
-	if d, derr := os.Open(dir); derr == nil {
-		d.Sync()
-		d.Close()
-	}
-	return nil
 }
 
 // EncodedSize returns the size in bytes of m in the file format.
@@ -199,7 +148,7 @@ func (e *encWriter) u64(v uint64) {
 	e.buf = binary.LittleEndian.AppendUint64(e.buf, v)
 }
 
-// Load reads a matrix written by Save. A file that is not a valid matrix
+// Load reads a matrix file written by WriteTo. A file that is not a valid matrix
 // file gives an error wrapping ErrFormat that says what is wrong.
 func Load(path string) (*Matrix, error) {
 	f, err := os.Open(path)

@@ -15,7 +15,6 @@ import (
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
@@ -34,7 +33,7 @@ observables:
   truth: {y: abs(y_t), pt: pt_t}
   reco: {y: abs(y_r), pt: pt_r}
 simulation:
-  - file: sim.parquet
+  - file: sim.csv
     weight: w
     truth_selection: pass_t
     reco_selection: pass_r && pt_r > 0.2
@@ -61,7 +60,7 @@ const cliReco = `regions:
 `
 
 // writeCLIAnalysis writes a small 2-D analysis: simulated events in
-// Parquet, the data and a background as plain tables.
+// CSV, the data and a background as plain tables.
 func writeCLIAnalysis(t *testing.T) string {
 	t.Helper()
 	dir := t.TempDir()
@@ -80,7 +79,20 @@ func writeCLIAnalysis(t *testing.T) string {
 		cols[5][k] = boolFloat(rng.Float64() < 0.98)
 		cols[6][k] = boolFloat(rng.Float64() < 0.9)
 	}
-	if err := events.WriteParquet(filepath.Join(dir, "sim.parquet"), names, cols); err != nil {
+	// The simulation as an events CSV file: a header, then one row per
+	// event, each value in the shortest form that reads back exactly.
+	var sim []byte
+	sim = append(sim, strings.Join(names, ",")+"\n"...)
+	for k := 0; k < n; k++ {
+		for c := range cols {
+			if c > 0 {
+				sim = append(sim, ',')
+			}
+			sim = strconv.AppendFloat(sim, cols[c][k], 'g', -1, 64)
+		}
+		sim = append(sim, '\n')
+	}
+	if err := os.WriteFile(filepath.Join(dir, "sim.csv"), sim, 0o644); err != nil {
 		t.Fatal(err)
 	}
 	// 4 × 7 reco bins: 24 in range, then the 4 pt overflows.
@@ -214,7 +226,7 @@ func TestAnalysisErrors(t *testing.T) {
 	}{
 		{[]string{"unfold", bad("  iterations: 3", "  iterations: 3\n  iteratoins: 4")}, exitInput, "bad1.yaml:27: iteratoins: unknown key in unfolding"},
 		{[]string{"response", bad("weight: w", "weight: wgt")}, exitInput, `bad2.yaml:15: simulation[0].weight: unknown column "wgt"`},
-		{[]string{"response", bad("file: sim.parquet", "file: nowhere.parquet")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
+		{[]string{"response", bad("file: sim.csv", "file: nowhere.csv")}, exitInput, "bad3.yaml:14: simulation[0].file: cannot open the events file"},
 		{[]string{"unfold", filepath.Join(filepath.Dir(path), "missing.yaml")}, exitInput, "missing.yaml: cannot read the analysis file"},
 		// The library says what to do; the command line adds the command.
 		{[]string{"unfold", bad("simulation:", "response: unbuilt\nsimulation:")}, exitInput,
@@ -355,7 +367,7 @@ func TestWriteTablesChecksAgain(t *testing.T) {
 	}
 	r := &response.Built{Migrations: m, Generated: []float64{3}, GeneratedSumW2: []float64{3}, Fakes: []float64{0}, FakesSumW2: []float64{0}}
 	err = writeTables(dir, r, nil, true)
-	if err == nil || !strings.Contains(err.Error(), "does not hold a response.csv") {
+	if err == nil || !strings.Contains(err.Error(), "without a response.csv") {
 		t.Errorf("writeTables over a foreign folder: %v", err)
 	}
 	if names, _ := os.ReadDir(parent); len(names) != 1 {

@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold/demo"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -101,9 +102,9 @@ func TestDemoCommand(t *testing.T) {
 }
 
 type demoResultJSON struct {
-	Inputs     []result.Input `json:"inputs"`
-	Estimate   []float64      `json:"estimate"`
-	Covariance [][]float64    `json:"covariance"`
+	Inputs     []inputs.File `json:"inputs"`
+	Estimate   []float64     `json:"estimate"`
+	Covariance [][]float64   `json:"covariance"`
 }
 
 func readDemoResult(t *testing.T, dir string) *demoResultJSON {

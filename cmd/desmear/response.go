@@ -3,11 +3,9 @@ package main
 import (
 	"bufio"
 	"context"
-	"errors"
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"text/tabwriter"
@@ -17,7 +15,6 @@ import (
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/response"
-	"github.com/desmear/desmear/unfold/result"
 )
 
 type responseOptions struct {
@@ -83,11 +80,11 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 			out = filepath.Join(a.Dir, "response")
 		}
 	}
-	if err := checkTarget(out, o.force, "response.json"); err != nil {
+	if err := refusedFolder(response.CheckBundle(out, o.force), out, "response bundle", response.BundleFiles()[0]); err != nil {
 		return err
 	}
 	if o.tables != "" {
-		if err := checkTarget(o.tables, o.force, "response.csv"); err != nil {
+		if err := refusedFolder(tables.CheckFolder(o.tables, o.force), o.tables, "tables folder", tables.ResponseFile); err != nil {
 			return err
 		}
 	}
@@ -99,13 +96,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 		return analysisErr(err)
 	}
 	if err := r.Save(out, *info, o.force); err != nil {
-		if errors.Is(err, result.ErrExists) {
-			// It appeared during the build.
-			if cerr := checkTarget(out, o.force, "response.json"); cerr != nil {
-				return cerr
-			}
-		}
-		return ioErr(err)
+		return refusedFolder(err, out, "response bundle", response.BundleFiles()[0])
 	}
 	if o.tables != "" {
 		bkg, err := a.Background(ctx, r, &analysis.Options{Progress: p.report})
@@ -114,7 +105,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 			return analysisErr(err)
 		}
 		if err := writeTables(o.tables, r, bkg, o.force); err != nil {
-			return ioErr(err)
+			return refusedFolder(err, o.tables, "tables folder", tables.ResponseFile)
 		}
 	}
 	w := bufio.NewWriter(g.stdout)
@@ -139,59 +130,17 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	return nil
 }
 
-// checkTarget refuses an existing path unless force is set and it holds
-// marker (an earlier output of the same kind).
-func checkTarget(path string, force bool, marker string) error {
-	fi, err := os.Lstat(path)
-	if err != nil {
-		return nil
-	}
-	if !force {
-		return usagef("%s exists (use --force to replace it)", path)
-	}
-	if _, err := os.Stat(filepath.Join(path, marker)); !fi.IsDir() || err != nil {
-		return usagef("%s exists and does not hold a %s; not replacing it", path, marker)
-	}
-	return nil
-}
-
 // writeTables writes the plain tables of the response into dir,
-// atomically (a temporary sibling folder renamed into place). runResponse
-// has checked that an existing dir may be replaced; the check is made
-// again before the rename, as the response build can take long enough
-// for a folder to appear at dir meanwhile.
-func writeTables(dir string, r *response.Built, bkg *analysis.Expected, replace bool) (err error) {
-	tmp, err := result.Temp(dir)
-	if err != nil {
-		return err
-	}
-	defer func() {
-		if err != nil {
-			os.RemoveAll(tmp)
-		}
-	}()
-	write := func(name string, fn func(io.Writer) error) error {
-		return result.WriteSynced(filepath.Join(tmp, name), fn)
-	}
-	if err := write("response.csv", func(w io.Writer) error { return tables.WriteResponse(w, r.Migrations) }); err != nil {
-		return err
-	}
-	if err := write("generated.csv", func(w io.Writer) error {
-		return tables.WriteVector(w, tables.Generated, r.Generated, r.GeneratedSumW2)
-	}); err != nil {
-		return err
-	}
-	val, vr := make([]float64, r.RecoBins()), make([]float64, r.RecoBins())
+// atomically. runResponse has checked that an existing dir may be
+// replaced; the check is made again before the rename, as the response
+// build can take long enough for a folder to appear at dir meanwhile.
+func writeTables(dir string, r *response.Built, bkg *analysis.Expected, replace bool) error {
+	t := &tables.Folder{Response: r.Migrations, Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2,
+		Background: make([]float64, r.RecoBins()), BackgroundVariance: make([]float64, r.RecoBins())}
 	if bkg != nil {
-		val, vr = bkg.Values, bkg.Variance
+		t.Background, t.BackgroundVariance = bkg.Values, bkg.Variance
 	}
-	if err := write("background.csv", func(w io.Writer) error { return tables.WriteVector(w, tables.Background, val, vr) }); err != nil {
-		return err
-	}
-	if err := checkTarget(dir, replace, "response.csv"); err != nil {
-		return err
-	}
-	return result.Install(tmp, dir, replace)
+	return tables.WriteFolder(dir, t, replace)
 }
 
 // printResponseSummary prints the event counts and the per-truth-bin quality of

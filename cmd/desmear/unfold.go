@@ -18,6 +18,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
@@ -41,8 +42,9 @@ type unfoldOptions struct {
 	seed          uint64
 	memoryLimit   int64
 
-	out   string
-	force bool
+	out     string
+	force   bool
+	formats []string
 }
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
@@ -91,10 +93,14 @@ It runs in one of two modes:
 
 The result folder DIR holds result.json (estimate, uncertainty, covariance with
 --covariance full, efficiency, iteration history, settings, input files with
-their SHA-256) and result.csv (one row per truth bin). It is written to a
-temporary folder and renamed into place, so a failed or interrupted run leaves
-nothing behind; an existing DIR is refused unless --force is given (and even
-then only an earlier result folder or an empty folder is replaced).
+their SHA-256) and result.csv (one row per truth bin); with --truth-binning
+also region-NAME.csv (per truth region: bin edges, volume, counts and
+densities, i.e. counts per bin volume) and result.root (histograms of counts
+and densities), the same files an analysis file's output.formats chooses
+from (--formats). It is written to a temporary folder and renamed into place,
+so a failed or interrupted run leaves nothing behind; an existing DIR is
+refused unless --force is given (and even then only an earlier result folder
+or an empty folder is replaced).
 
 The iteration stops after --iterations K (default 4), or at the first
 iteration whose chi-square between successive estimates,
@@ -144,6 +150,7 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
+	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
 	return cmd
 }
 
@@ -293,19 +300,27 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, *baye
 	return s, m
 }
 
-// checkOutFolder refuses an output folder that exists (unless force) or
+// checkOutFolder refuses a result folder that exists (unless force) or
 // that cannot be replaced, before any long work.
 func checkOutFolder(dir string, force bool) error {
-	err := result.Check(dir, force)
+	return refusedFolder(result.Check(dir, force), dir, "result folder", result.JSONFile)
+}
+
+// refusedFolder classifies an error of checking or writing the output
+// folder dir, a "result folder", "response bundle" or "tables folder"
+// (what) whose earlier versions hold the file marker: a folder that
+// exists without --force, or that is not an earlier one of its kind, is
+// a usage error with advice; anything else an I/O error (nil stays nil).
+func refusedFolder(err error, dir, what, marker string) error {
 	switch {
 	case err == nil:
 		return nil
 	case errors.Is(err, result.ErrExists):
-		return usagef("output folder %s exists; give --force to replace it, or choose another folder", dir)
+		return usagef("%s %s exists (use --force to replace it, or choose another folder)", what, dir)
 	case errors.Is(err, result.ErrNotResult):
-		return usagef("output folder %s exists and is not an earlier result folder (no %s in it); refusing to replace it even with --force: choose another folder", dir, result.JSONFile)
+		return usagef("%s exists and is not an earlier %s (it does not hold a %s); refusing to replace it even with --force: choose another folder", dir, what, marker)
 	}
-	return ioErr(fmt.Errorf("output folder: %w", err))
+	return ioErr(fmt.Errorf("%s %s: %w", what, dir, err))
 }
 
 // openInput opens an input file, classifying a missing file as bad input
@@ -326,24 +341,24 @@ func openInput(what, path string) (*os.File, error) {
 // readHashed opens path, lets read parse it through a hashing reader and
 // returns the input record. Errors from read that are not *tables.Error
 // or *binning.Error are I/O errors.
-func readHashed(role, what, path string, read func(r io.Reader) error) (result.Input, error) {
+func readHashed(role, what, path string, read func(r io.Reader) error) (inputs.File, error) {
 	f, err := openInput(what, path)
 	if err != nil {
-		return result.Input{}, err
+		return inputs.File{}, err
 	}
 	defer f.Close()
-	h := result.NewHashingReader(f)
+	h := inputs.NewHashingReader(f)
 	if err := read(h); err != nil {
 		var te *tables.Error
 		var be *binning.Error
 		if errors.As(err, &te) || errors.As(err, &be) {
-			return result.Input{}, inputErr(err)
+			return inputs.File{}, inputErr(err)
 		}
-		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return inputs.File{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
-	in, err := h.Input(role, path)
+	in, err := h.File(role, path)
 	if err != nil {
-		return result.Input{}, ioErr(fmt.Errorf("%s: %w", what, err))
+		return inputs.File{}, ioErr(fmt.Errorf("%s: %w", what, err))
 	}
 	return in, nil
 }
@@ -352,12 +367,12 @@ func readHashed(role, what, path string, read func(r io.Reader) error) (result.I
 type plainInputs struct {
 	set         tables.Set
 	truth, reco *binning.Scheme
-	inputs      []result.Input
+	inputs      []inputs.File
 }
 
 func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 	var pi plainInputs
-	add := func(in result.Input, err error) error {
+	add := func(in inputs.File, err error) error {
 		if err == nil {
 			pi.inputs = append(pi.inputs, in)
 		}
@@ -460,7 +475,22 @@ func (o *unfoldOptions) kernelErr(set *tables.Set, err error) error {
 	return o.flagErr(err)
 }
 
+// formatsUsage is the help of --formats, naming the registered formats.
+func formatsUsage() string {
+	var binned []string
+	for _, name := range result.Formats() {
+		if result.NeedsTruthBinning(name) {
+			binned = append(binned, name)
+		}
+	}
+	return fmt.Sprintf("comma-separated `LIST` of the result folder's formats, among %s (%s is always written; %s only with --truth-binning)",
+		strings.Join(result.Formats(), ", "), result.JSONFile, strings.Join(binned, ", "))
+}
+
 func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
+	if err := result.CheckFormats(o.formats); err != nil {
+		return usagef("--formats: %v", err)
+	}
 	if err := checkOutFolder(o.out, o.force); err != nil {
 		return err
 	}
@@ -506,12 +536,14 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)
 	}
 
-	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) error {
-		return f.WriteResult(r, pi.truth)
+	var files []string
+	if err := writeResultFolder(ctx, o.out, o.force, func(f *result.Folder) (err error) {
+		files, err = result.Write(f, r, pi.truth, o.formats)
+		return err
 	}); err != nil {
 		return err
 	}
-	printSummary(g, o.out, r, pi.truth)
+	printSummary(g, o.out, r, pi.truth, files)
 	if zeros := zeroPrior(prob.Prior, r.Determined); zeros > 0 && !g.quiet {
 		fmt.Fprintf(g.stderr, "note: the prior %s is 0 in %d truth bins the response can measure; the iteration keeps a zero, so their estimates are 0 (give every such bin a positive prior)\n", o.prior, zeros)
 	}
@@ -584,8 +616,9 @@ func stopSummary(iterations int, stoppedBy string, stopChi2 float64) string {
 }
 
 // printSummary prints what was done to stdout, with a per-bin table for
-// small problems, and notes to stderr.
-func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme) {
+// small problems, and notes to stderr. Of the files written it names
+// result.json and result.csv.
+func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme, files []string) {
 	det := 0
 	for _, d := range r.Determined {
 		if d {
@@ -622,7 +655,13 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 		}
 		tw.Flush()
 	}
-	fmt.Fprintf(w, "result: %s/%s, %s/%s\n", dir, result.JSONFile, dir, result.CSVFile)
+	var tables []string
+	for _, name := range []string{result.JSONFile, result.CSVFile} {
+		if slices.Contains(files, name) {
+			tables = append(tables, dir+"/"+name)
+		}
+	}
+	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
 	if g.quiet {
 		return
 	}

@@ -13,6 +13,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -154,7 +155,7 @@ func TestUnfoldOracleD(t *testing.T) {
 		t.Errorf("%d inputs recorded, want %d", len(r.Inputs), len(roles))
 	}
 	for _, in := range r.Inputs {
-		want, err := result.HashFile(in.Role, filepath.Join(dir, roles[in.Role]))
+		want, err := inputs.Hash(in.Role, filepath.Join(dir, roles[in.Role]))
 		if err != nil || in != want {
 			t.Errorf("input %+v, want %+v (%v)", in, want, err)
 		}

@@ -14,6 +14,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // Analysis is a decoded and checked analysis file. File names in it are
@@ -149,12 +150,6 @@ type Output struct {
 	Luminosity     float64
 	LuminosityUnit string
 }
-
-// Formats written by Run.
-var knownFormats = []string{"json", "csv", "regions", "root"}
-
-// Has reports whether the output includes format f.
-func (o *Output) Has(f string) bool { return slices.Contains(o.Formats, f) }
 
 // Load reads, decodes and checks the analysis file at path. Problems in
 // the file are *Error values (or Errors, several at once) naming the
@@ -299,11 +294,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	a.Output.Folder = resolve(a.Dir, o.Folder)
 	if a.Output.Formats == nil {
-		a.Output.Formats = slices.Clone(knownFormats)
+		a.Output.Formats = result.DefaultFormats()
 	}
 	for i, f := range a.Output.Formats {
-		if !slices.Contains(knownFormats, f) {
-			c.errf(c.line("output", "formats", i), fmt.Sprintf("result.formats[%d]", i), "unknown format %q (known: %s)", f, strings.Join(knownFormats, ", "))
+		if err := result.CheckFormats([]string{f}); err != nil {
+			c.errf(c.line("output", "formats", i), fmt.Sprintf("result.formats[%d]", i), "%v", err)
 		}
 	}
 	if l := o.Luminosity; l < 0 || math.IsNaN(l) || math.IsInf(l, 0) {

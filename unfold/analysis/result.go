@@ -2,18 +2,14 @@ package analysis
 
 import (
 	"context"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"path/filepath"
-	"strconv"
 	"strings"
 
-	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/internal/rootio"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
@@ -29,9 +25,6 @@ type OutputError struct {
 func (e *OutputError) Error() string { return fmt.Sprintf("writing %s: %v", e.Folder, e.Err) }
 func (e *OutputError) Unwrap() error { return e.Err }
 
-// RootFile is the name of the ROOT file in a result folder.
-const RootFile = "result.root"
-
 // Outcome is everything a run produced.
 type Outcome struct {
 	Response     *response.Built
@@ -43,36 +36,6 @@ type Outcome struct {
 	Folder string
 	// Files lists the files written in it.
 	Files []string
-}
-
-// Document is the content of result.json for an analysis run: the
-// plain-table result fields plus the analysis's own.
-type Document struct {
-	result.Result
-	Analysis AnalysisInfo `json:"analysis"`
-	// Purity and Stability per truth bin (on the truth binning; see the
-	// fill package); null where not defined.
-	Purity    []*float64 `json:"purity,omitempty"`
-	Stability []*float64 `json:"stability,omitempty"`
-	// Density is the estimate divided by the bin volume (and by the
-	// integrated luminosity when given), per truth bin; 0 for flow bins.
-	Density            []float64 `json:"density"`
-	DensityUncertainty []float64 `json:"density_uncertainty,omitempty"`
-	Luminosity         float64   `json:"luminosity,omitempty"`
-	LuminosityUnit     string    `json:"luminosity_unit,omitempty"`
-	// ResponseSummary counts the simulated events.
-	ResponseSummary response.Summary `json:"response_summary"`
-	// DataEvents, DataSelected and DataOutside count the data events
-	// (events files only).
-	DataEvents   int64 `json:"data_events,omitempty"`
-	DataSelected int64 `json:"data_selected,omitempty"`
-	DataOutside  int64 `json:"data_outside,omitempty"`
-}
-
-// AnalysisInfo names the analysis file.
-type AnalysisInfo struct {
-	File  string `json:"file"`
-	Title string `json:"title,omitempty"`
 }
 
 // CheckOutput reports early whether the result folder could be written.
@@ -127,13 +90,13 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	return out, nil
 }
 
-func (a *Analysis) inputs(out *Outcome) ([]result.Input, error) {
-	var ins []result.Input
+func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
+	var ins []inputs.File
 	add := func(role, path string) error {
 		if path == "" {
 			return nil
 		}
-		in, err := result.HashFile(role, path)
+		in, err := inputs.Hash(role, path)
 		if err != nil {
 			return err
 		}
@@ -186,36 +149,11 @@ func finitePtrs(v []float64) []*float64 {
 	return out
 }
 
-// densities returns the estimate and its uncertainty divided by the bin
-// volume and the luminosity (1 when not given); 0 for flow bins.
-func (a *Analysis) densities(est, unc []float64) (dens, densUnc []float64) {
-	lumi := a.Output.Luminosity
-	if lumi == 0 {
-		lumi = 1
-	}
-	dens = make([]float64, len(est))
-	if unc != nil {
-		densUnc = make([]float64, len(est))
-	}
-	for g := range est {
-		b := a.Truth.Bin(g)
-		if b.Flow || !(b.Volume > 0) || math.IsInf(b.Volume, 0) {
-			continue
-		}
-		dens[g] = est[g] / b.Volume / lumi
-		if unc != nil {
-			densUnc[g] = unc[g] / b.Volume / lumi
-		}
-	}
-	return dens, densUnc
-}
-
 func (a *Analysis) write(out *Outcome, s *unfold.Settings, m *bayes.Settings, replace bool, opt *Options) (err error) {
-	res, err := result.FromUnfold(out.Result)
+	doc, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err
 	}
-	doc := &Document{Result: *res}
 	doc.Program = result.Program{Name: "desmear"}
 	if opt != nil {
 		doc.Program.Version = opt.Version
@@ -230,116 +168,26 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m *bayes.Settings, re
 	doc.Settings = result.DescribeSettings(s, m, prior, out.Background != nil)
 	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
 	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
-	doc.Analysis = AnalysisInfo{File: a.File, Title: a.Title}
-	pur, stab := out.Response.Purity(nil), out.Response.Stability(nil)
-	doc.Purity, doc.Stability = finitePtrs(pur), finitePtrs(stab)
-	doc.Density, doc.DensityUncertainty = a.densities(doc.Estimate, doc.Uncertainty)
+	doc.Analysis = &result.Analysis{File: a.File, Title: a.Title}
+	doc.Purity, doc.Stability = finitePtrs(out.Response.Purity(nil)), finitePtrs(out.Response.Stability(nil))
+	doc.Density, doc.DensityUncertainty = result.Densities(a.Truth, doc.Estimate, doc.Uncertainty, a.Output.Luminosity)
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
-	doc.ResponseSummary = out.Response.Summary
+	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
 
 	f, err := result.New(a.Output.Folder, replace)
 	if err != nil {
 		return err
 	}
-	defer func() {
-		if err != nil {
-			f.Abort()
-		}
-	}()
-	if err := f.WriteJSON(result.JSONFile, doc); err != nil {
+	defer f.Abort()
+	if out.Files, err = result.Write(f, doc, a.Truth, a.Output.Formats); err != nil {
 		return err
-	}
-	out.Files = append(out.Files, result.JSONFile)
-	if a.Output.Has("csv") {
-		w, err := f.Create(result.CSVFile)
-		if err != nil {
-			return err
-		}
-		if err := result.WriteCSV(w, &doc.Result, a.Truth); err != nil {
-			return err
-		}
-		if err := w.Close(); err != nil {
-			return err
-		}
-		out.Files = append(out.Files, result.CSVFile)
-	}
-	if a.Output.Has("regions") {
-		for r, reg := range a.Truth.Regions() {
-			name := "region-" + reg.Name() + ".csv"
-			w, err := f.Create(name)
-			if err != nil {
-				return err
-			}
-			if err := writeRegion(w, a.Truth, r, doc, pur, stab); err != nil {
-				return err
-			}
-			if err := w.Close(); err != nil {
-				return err
-			}
-			out.Files = append(out.Files, name)
-		}
-	}
-	if a.Output.Has("root") {
-		path, err := f.Reserve(RootFile)
-		if err != nil {
-			return err
-		}
-		h1, h2 := rootHistograms(a.Truth, doc.Estimate, doc.Uncertainty, doc.Density, doc.DensityUncertainty)
-		if err := rootio.WriteFile(path, h1, h2); err != nil {
-			return err
-		}
-		out.Files = append(out.Files, RootFile)
 	}
 	if err := f.Commit(); err != nil {
 		return err
 	}
 	out.Folder = a.Output.Folder
 	return nil
-}
-
-// writeRegion writes the in-range bins of region r: global index, the
-// edges of each axis of the region, the volume, the estimate and its
-// uncertainty as counts and as a density, the efficiency, purity and
-// stability.
-func writeRegion(w io.Writer, s *binning.Scheme, r int, doc *Document, pur, stab []float64) error {
-	cw := csv.NewWriter(w)
-	reg := s.Regions()[r]
-	header := []string{"index"}
-	for _, ax := range reg.Axes() {
-		header = append(header, ax.Name()+"_low", ax.Name()+"_high")
-	}
-	header = append(header, "volume", "estimate", "uncertainty", "density", "density_uncertainty", "efficiency", "purity", "stability", "determined")
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	f := func(v float64) string {
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return ""
-		}
-		return strconv.FormatFloat(v, 'g', -1, 64)
-	}
-	at := func(v []float64, g int) float64 {
-		if v == nil {
-			return math.NaN()
-		}
-		return v[g]
-	}
-	lo, hi := s.Span(r)
-	for g := lo; g < hi; g++ {
-		b := s.Bin(g)
-		rec := []string{strconv.Itoa(g)}
-		for k := range b.Axes {
-			rec = append(rec, f(b.Low[k]), f(b.High[k]))
-		}
-		rec = append(rec, f(b.Volume), f(doc.Estimate[g]), f(at(doc.Uncertainty, g)), f(doc.Density[g]), f(at(doc.DensityUncertainty, g)),
-			f(doc.Efficiency[g]), f(at(pur, g)), f(at(stab, g)), strconv.FormatBool(doc.Determined[g]))
-		if err := cw.Write(rec); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
 }
 
 // placeKernelError puts an input error of the unfolding kernel at the key

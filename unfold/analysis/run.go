@@ -10,10 +10,10 @@ import (
 	"strings"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
-	"github.com/desmear/desmear/unfold/result"
 )
 
 // Options control how an analysis runs. The zero value is usable.
@@ -113,12 +113,12 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.B
 		// Hash the file for the provenance while the events are read:
 		// on a machine with a spare core this costs no time.
 		type hashed struct {
-			in  response.Input
+			in  inputs.File
 			err error
 		}
 		hc := make(chan hashed, 1)
 		go func() {
-			in, err := result.HashFile("simulation", s.File)
+			in, err := inputs.Hash("simulation", s.File)
 			hc <- hashed{in, err}
 		}()
 		sum, err := b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))

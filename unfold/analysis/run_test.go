@@ -15,11 +15,12 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
-	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 	"github.com/desmear/desmear/unfold/internal/rootio"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 var simColumns = []string{"x_true", "x_reco", "w", "ok_true", "ok_reco"}
@@ -57,11 +58,11 @@ func writeSample(t *testing.T, path string, names []string, cols [][]float64) {
 	var err error
 	switch filepath.Ext(path) {
 	case ".csv":
-		err = events.WriteCSV(path, names, cols)
+		err = eventfile.WriteCSV(path, names, cols)
 	case ".parquet":
-		err = events.WriteParquet(path, names, cols)
+		err = eventfile.WriteParquet(path, names, cols)
 	case ".root":
-		err = events.WriteROOT(path, "events", names, cols)
+		err = eventfile.WriteROOT(path, "events", names, cols)
 	}
 	if err != nil {
 		t.Fatal(err)
@@ -367,7 +368,7 @@ func TestSavedResponse(t *testing.T) {
 	}
 	// The result records both files of the loaded bundle among its inputs,
 	// beside the simulation the bundle was built from.
-	var doc Document
+	var doc result.Result
 	if b, err := os.ReadFile(filepath.Join(loaded.Folder, "result.json")); err != nil || json.Unmarshal(b, &doc) != nil {
 		t.Fatalf("result.json: %v", err)
 	}

@@ -6,8 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
-	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
@@ -16,7 +14,7 @@ import (
 	"sync"
 
 	"github.com/desmear/desmear/binning"
-	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 // File names inside a demo folder.
@@ -134,93 +132,45 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if base := filepath.Base(filepath.Clean(dir)); dir == "" || base == "." || base == ".." || base == string(filepath.Separator) {
 		return nil, fmt.Errorf("demo: %q cannot be the demo folder (%w); name a folder to create", dir, ErrNotDemoFolder)
 	}
-	if err := checkTarget(dir, replace); err != nil {
-		return nil, err
+	if err := atomicfile.Check(dir, ScenarioFile, replace); err != nil {
+		return nil, folderError(err)
 	}
 	sim, data, dataTruth, err := generate(ctx, cfg)
 	if err != nil {
 		return nil, err
 	}
-	tmp, err := result.Temp(dir)
+	f, err := atomicfile.New(dir, ScenarioFile, replace)
 	if err != nil {
+		return nil, folderError(err)
+	}
+	defer f.Abort()
+	in := &Inputs{Config: cfg, SimulatedEvents: sim.len(), DataEvents: data.len()}
+	if err := writeInputs(ctx, f, in, sim, data, dataTruth); err != nil {
 		return nil, err
 	}
-	ok := false
-	defer func() {
-		if !ok {
-			os.RemoveAll(tmp)
-		}
-	}()
-	in := &Inputs{Dir: tmp, Config: cfg, SimulatedEvents: sim.len(), DataEvents: data.len()}
-	if err := writeInputs(ctx, in, sim, data, dataTruth); err != nil {
-		return nil, err
+	if err := f.Commit(); err != nil {
+		return nil, folderError(err)
 	}
-	if err := moveIntoPlace(tmp, dir, replace); err != nil {
-		return nil, err
-	}
-	ok = true
 	in.Dir = dir
 	return in, nil
 }
 
-// checkTarget refuses an existing dir unless it may be replaced.
-func checkTarget(dir string, replace bool) error {
-	st, err := os.Stat(dir)
-	if errors.Is(err, fs.ErrNotExist) {
-		return nil
+// folderError says that a refused folder is the demo folder; a folder
+// that is not an earlier demo folder is reported with ErrNotDemoFolder.
+func folderError(err error) error {
+	if errors.Is(err, atomicfile.ErrNotOurs) {
+		return fmt.Errorf("demo: %w, so it is left alone (%w): choose another output folder", err, ErrNotDemoFolder)
 	}
+	return fmt.Errorf("demo: %w", err)
+}
+
+// writeInputs writes every file of the demo folder into f.
+func writeInputs(ctx context.Context, f *atomicfile.Folder, in *Inputs, sim, data, dataTruth *sample) error {
+	truthScheme, err := writeScheme(f, TruthBinningFile, truthBinningYAML)
 	if err != nil {
 		return err
 	}
-	if !replace {
-		return existsError{dir}
-	}
-	if !st.IsDir() {
-		return fmt.Errorf("demo: %s exists and is not a folder (%w); choose another output folder", dir, ErrNotDemoFolder)
-	}
-	entries, err := os.ReadDir(dir)
-	if err != nil {
-		return err
-	}
-	if len(entries) == 0 {
-		return nil
-	}
-	if _, err := os.Stat(filepath.Join(dir, ScenarioFile)); err != nil {
-		return fmt.Errorf("demo: %s is not empty and holds no %s, so it is left alone (%w): choose another output folder", dir, ScenarioFile, ErrNotDemoFolder)
-	}
-	return nil
-}
-
-// existsError reports an existing output folder. It matches fs.ErrExist
-// with errors.Is without repeating that error's text.
-type existsError struct{ dir string }
-
-func (e existsError) Error() string {
-	return fmt.Sprintf("demo: %s already exists; Generate replaces an earlier demo folder only when asked to", e.dir)
-}
-
-func (e existsError) Is(target error) bool { return target == fs.ErrExist }
-
-// moveIntoPlace renames tmp to dir, replacing an existing dir if allowed
-// (checked again, in case it appeared meanwhile).
-func moveIntoPlace(tmp, dir string, replace bool) error {
-	if err := checkTarget(dir, replace); err != nil {
-		return err
-	}
-	err := result.Install(tmp, dir, replace)
-	if errors.Is(err, result.ErrExists) {
-		return fmt.Errorf("demo: %s appeared while the demo was being written (%w); nothing was replaced", dir, fs.ErrExist)
-	}
-	return err
-}
-
-// writeInputs writes every file of the folder in.Dir.
-func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) error {
-	truthScheme, err := writeScheme(in.Path(TruthBinningFile), truthBinningYAML)
-	if err != nil {
-		return err
-	}
-	if _, err := writeScheme(in.Path(RecoBinningFile), recoBinningYAML); err != nil {
+	if _, err := writeScheme(f, RecoBinningFile, recoBinningYAML); err != nil {
 		return err
 	}
 	in.Truth = &Truth{
@@ -228,23 +178,23 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 		Expected:  ExpectedTruth(truthScheme, in.Config),
 		Generated: histogramTruth(truthScheme, dataTruth),
 	}
-	if err := writeTruth(in.Path(TruthFile), in.Truth); err != nil {
+	if err := writeTruth(f, TruthFile, in.Truth); err != nil {
 		return err
 	}
-	if err := writeText(in.Path(AnalysisFile), analysisYAML(in.Config)); err != nil {
+	if err := f.WriteFile(AnalysisFile, []byte(analysisYAML(in.Config))); err != nil {
 		return err
 	}
-	if err := writeText(in.Path(StressFile), stressYAML(in.Config)); err != nil {
+	if err := f.WriteFile(StressFile, []byte(stressYAML(in.Config))); err != nil {
 		return err
 	}
-	if err := writeScenario(in.Path(ScenarioFile), in); err != nil {
+	if err := writeScenario(f, in); err != nil {
 		return err
 	}
 	writers := []func() error{
-		func() error { return writeSimulationROOT(ctx, in.Path(SimulationROOT), sim) },
-		func() error { return writeSimulationParquet(ctx, in.Path(SimulationParquet), sim) },
-		func() error { return writeDataROOT(ctx, in.Path(DataROOT), data) },
-		func() error { return writeDataParquet(ctx, in.Path(DataParquet), data) },
+		func() error { return writeSimulationROOT(ctx, f, SimulationROOT, sim) },
+		func() error { return writeSimulationParquet(ctx, f, SimulationParquet, sim) },
+		func() error { return writeDataROOT(ctx, f, DataROOT, data) },
+		func() error { return writeDataParquet(ctx, f, DataParquet, data) },
 	}
 	errs := make([]error, len(writers))
 	var wg sync.WaitGroup
@@ -259,20 +209,13 @@ func writeInputs(ctx context.Context, in *Inputs, sim, data, dataTruth *sample) 
 	return errors.Join(errs...)
 }
 
-// writeText writes text to the file path of the temporary folder, synced
-// to disk before the folder is installed.
-func writeText(path, text string) error {
-	return result.WriteSynced(path, func(w io.Writer) error {
-		_, err := io.WriteString(w, text)
-		return err
-	})
-}
-
-func writeScheme(path, text string) (*binning.Scheme, error) {
-	if err := writeText(path, text); err != nil {
+// writeScheme writes the binning scheme text to the file name of f and
+// returns the scheme.
+func writeScheme(f *atomicfile.Folder, name, text string) (*binning.Scheme, error) {
+	if err := f.WriteFile(name, []byte(text)); err != nil {
 		return nil, err
 	}
-	return binning.ReadFile(path)
+	return binning.Decode(strings.NewReader(text), name)
 }
 
 // histogramTruth counts the fiducial zetons of s in the truth scheme t.
@@ -295,21 +238,26 @@ func histogramTruth(t *binning.Scheme, s *sample) []float64 {
 // TruthHeader is the header of truth.csv.
 var TruthHeader = []string{"index", "label", "flow", "expected", "generated"}
 
-func writeTruth(path string, t *Truth) error {
-	return result.WriteSynced(path, func(out io.Writer) error {
-		w := csv.NewWriter(out)
-		w.Write(TruthHeader)
-		for g := range t.Expected {
-			b := t.Scheme.Bin(g)
-			w.Write([]string{
-				strconv.Itoa(g), t.Scheme.Label(g), strconv.FormatBool(b.Flow),
-				strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
-				strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
-			})
-		}
-		w.Flush()
-		return w.Error()
-	})
+func writeTruth(f *atomicfile.Folder, name string, t *Truth) error {
+	out, err := f.Create(name)
+	if err != nil {
+		return err
+	}
+	w := csv.NewWriter(out)
+	w.Write(TruthHeader)
+	for g := range t.Expected {
+		b := t.Scheme.Bin(g)
+		w.Write([]string{
+			strconv.Itoa(g), t.Scheme.Label(g), strconv.FormatBool(b.Flow),
+			strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
+			strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
+		})
+	}
+	w.Flush()
+	if err := w.Error(); err != nil {
+		return err
+	}
+	return out.Close()
 }
 
 // ReadTruth reads the known truth (truth.csv) of the demo folder dir.
@@ -360,7 +308,7 @@ type scenario struct {
 	Parameters      map[string]float64 `json:"parameters"`
 }
 
-func writeScenario(path string, in *Inputs) error {
+func writeScenario(f *atomicfile.Folder, in *Inputs) error {
 	sc := scenario{
 		Description: "desmear demo: an invented measurement of the made-up zeton particle in the imaginary " +
 			"\"demo run\", double-differential in pt (GeV) and |y|. The simulation and the pseudo-data differ in shape " +
@@ -383,5 +331,5 @@ func writeScenario(path string, in *Inputs) error {
 	if err != nil {
 		return err
 	}
-	return writeText(path, string(b)+"\n")
+	return f.WriteFile(ScenarioFile, append(b, '\n'))
 }

@@ -3,15 +3,13 @@ package demo
 import (
 	"context"
 	"fmt"
-	"io"
-	"os"
 
 	"github.com/parquet-go/parquet-go"
 	"github.com/parquet-go/parquet-go/compress/snappy"
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/rtree"
 
-	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 // TreeName is the name of the TTree in the demo's ROOT files.
@@ -47,7 +45,12 @@ const ctxEvery = 1 << 16
 
 // writeTree writes a TTree of n entries with the branches vars: set(i)
 // puts entry i into the variables the branches point at.
-func writeTree(ctx context.Context, path, title string, vars []rtree.WriteVar, n int, set func(i int)) error {
+func writeTree(ctx context.Context, dst *atomicfile.Folder, name, title string, vars []rtree.WriteVar, n int, set func(i int)) error {
+	// groot creates the file itself; Commit syncs it to disk.
+	path, err := dst.Reserve(name)
+	if err != nil {
+		return err
+	}
 	f, err := groot.Create(path)
 	if err != nil {
 		return err
@@ -69,36 +72,18 @@ func writeTree(ctx context.Context, path, title string, vars []rtree.WriteVar, n
 		if _, err := w.Write(); err != nil {
 			w.Close()
 			f.Close()
-			return fmt.Errorf("writing %s: event %d: %w", path, i, err)
+			return fmt.Errorf("writing %s: event %d: %w", name, i, err)
 		}
 	}
 	if err := w.Close(); err != nil {
 		f.Close()
 		return err
 	}
-	if err := f.Close(); err != nil {
-		return err
-	}
-	return syncFile(path)
-}
-
-// syncFile flushes the file path to disk. groot writes through a file of
-// its own, so its output is synced after it is closed, as
-// result.WriteSynced does for the other files of the folder.
-func syncFile(path string) error {
-	f, err := os.OpenFile(path, os.O_WRONLY, 0)
-	if err != nil {
-		return err
-	}
-	err = f.Sync()
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	return err
+	return f.Close()
 }
 
 // writeSimulationROOT writes the simulation as a TTree.
-func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
+func writeSimulationROOT(ctx context.Context, f *atomicfile.Folder, name string, s *sample) error {
 	var (
 		ptTrue, yTrue, ptReco, yReco float32
 		weight                       float64
@@ -113,7 +98,7 @@ func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
 		{Name: "pass_truth", Value: &passTruth},
 		{Name: "pass_reco", Value: &passReco},
 	}
-	return writeTree(ctx, path, "demo run: simulated zetons and fakes", vars, s.len(), func(i int) {
+	return writeTree(ctx, f, name, "demo run: simulated zetons and fakes", vars, s.len(), func(i int) {
 		ptTrue, yTrue = float32(s.ptTrue[i]), float32(s.yTrue[i])
 		ptReco, yReco = float32(s.ptReco[i]), float32(s.yReco[i])
 		weight = s.weight[i]
@@ -122,44 +107,46 @@ func writeSimulationROOT(ctx context.Context, path string, s *sample) error {
 }
 
 // writeDataROOT writes the pseudo-data (reco-level pt and y) as a TTree.
-func writeDataROOT(ctx context.Context, path string, s *sample) error {
+func writeDataROOT(ctx context.Context, f *atomicfile.Folder, name string, s *sample) error {
 	var pt, y float32
 	vars := []rtree.WriteVar{{Name: "pt", Value: &pt}, {Name: "y", Value: &y}}
-	return writeTree(ctx, path, "demo run: pseudo-data", vars, s.len(), func(i int) {
+	return writeTree(ctx, f, name, "demo run: pseudo-data", vars, s.len(), func(i int) {
 		pt, y = float32(s.ptReco[i]), float32(s.yReco[i])
 	})
 }
 
 // writeParquet writes rows built by row(i) for i < n, snappy-compressed,
 // handing them to the writer in batches.
-func writeParquet[T any](ctx context.Context, path string, n int, row func(i int) T) error {
-	return result.WriteSynced(path, func(out io.Writer) error {
-		w := parquet.NewGenericWriter[T](out, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
-		const batch = 4096
-		buf := make([]T, 0, batch)
-		for i := range n {
-			if i%ctxEvery == 0 {
-				if err := ctx.Err(); err != nil {
-					return err
-				}
-			}
-			buf = append(buf, row(i))
-			if len(buf) == batch || i == n-1 {
-				if _, err := w.Write(buf); err != nil {
-					return fmt.Errorf("writing %s: %w", path, err)
-				}
-				buf = buf[:0]
+func writeParquet[T any](ctx context.Context, f *atomicfile.Folder, name string, n int, row func(i int) T) error {
+	out, err := f.Create(name)
+	if err != nil {
+		return err
+	}
+	w := parquet.NewGenericWriter[T](out, parquet.Compression(&snappy.Codec{}), parquet.CreatedBy("desmear demo", "", ""))
+	const batch = 4096
+	buf := make([]T, 0, batch)
+	for i := range n {
+		if i%ctxEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				return err
 			}
 		}
-		if err := w.Close(); err != nil {
-			return fmt.Errorf("writing %s: %w", path, err)
+		buf = append(buf, row(i))
+		if len(buf) == batch || i == n-1 {
+			if _, err := w.Write(buf); err != nil {
+				return fmt.Errorf("writing %s: %w", name, err)
+			}
+			buf = buf[:0]
 		}
-		return nil
-	})
+	}
+	if err := w.Close(); err != nil {
+		return fmt.Errorf("writing %s: %w", name, err)
+	}
+	return out.Close()
 }
 
-func writeSimulationParquet(ctx context.Context, path string, s *sample) error {
-	return writeParquet(ctx, path, s.len(), func(i int) simRow {
+func writeSimulationParquet(ctx context.Context, f *atomicfile.Folder, name string, s *sample) error {
+	return writeParquet(ctx, f, name, s.len(), func(i int) simRow {
 		return simRow{
 			PtTrue: s.ptTrue[i], YTrue: s.yTrue[i], PtReco: s.ptReco[i], YReco: s.yReco[i],
 			Weight: s.weight[i], PassTruth: s.passTruth[i], PassReco: s.passReco[i],
@@ -167,8 +154,8 @@ func writeSimulationParquet(ctx context.Context, path string, s *sample) error {
 	})
 }
 
-func writeDataParquet(ctx context.Context, path string, s *sample) error {
-	return writeParquet(ctx, path, s.len(), func(i int) dataRow {
+func writeDataParquet(ctx context.Context, f *atomicfile.Folder, name string, s *sample) error {
+	return writeParquet(ctx, f, name, s.len(), func(i int) dataRow {
 		return dataRow{Pt: s.ptReco[i], Y: s.yReco[i]}
 	})
 }

@@ -242,7 +242,7 @@ func TestGenerateFolderRules(t *testing.T) {
 	}
 	if _, err := Generate(context.Background(), dir, cfg, false); !errors.Is(err, fs.ErrExist) {
 		t.Errorf("second Generate without replace: %v, want fs.ErrExist", err)
-	} else if want := "demo: " + dir + " already exists; Generate replaces an earlier demo folder only when asked to"; err.Error() != want {
+	} else if want := "demo: the folder exists: " + dir; err.Error() != want {
 		t.Errorf("second Generate without replace: message %q, want %q", err, want)
 	}
 	if _, err := Generate(context.Background(), dir, cfg, true); err != nil {

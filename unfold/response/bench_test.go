@@ -10,7 +10,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
 
 // benchDir holds the benchmark's Parquet file, made once per test
@@ -64,7 +64,7 @@ func benchSample(n int) (string, error) {
 			}
 			cols[6][k] = 0.5 + rng.Float64()
 		}
-		benchErr = events.WriteParquet(filepath.Join(benchDir, "sim.parquet"), names, cols)
+		benchErr = eventfile.WriteParquet(filepath.Join(benchDir, "sim.parquet"), names, cols)
 	})
 	return filepath.Join(benchDir, "sim.parquet"), benchErr
 }

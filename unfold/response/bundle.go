@@ -6,14 +6,14 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/sparse"
-	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/inputs"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 // A response bundle is a folder holding a built response:
@@ -26,7 +26,7 @@ import (
 //	                 format (sparse.Matrix.WriteTo, sparse.Load)
 //
 // It is written atomically: into a hidden temporary sibling folder that
-// is renamed into place (result.Temp, result.Install).
+// is renamed into place.
 const (
 	BundleFormat  = "desmear-response"
 	BundleVersion = 1
@@ -45,7 +45,7 @@ type BundleInfo struct {
 	TruthScheme string `json:"truth_scheme"`
 	RecoScheme  string `json:"reco_scheme"`
 	// Inputs are the files the response was built from.
-	Inputs []Input `json:"inputs"`
+	Inputs []inputs.File `json:"inputs"`
 	// Program is the program version that built it.
 	Program string `json:"program"`
 	// Samples holds the counts of each simulated sample, in order.
@@ -70,10 +70,6 @@ type SampleSummary struct {
 	Summary Summary `json:"summary"`
 }
 
-// Input is one input file: its role, path, size and SHA-256, the record
-// a result folder keeps of its inputs.
-type Input = result.Input
-
 type bundleDoc struct {
 	Format         string     `json:"format"`
 	Version        int        `json:"format_version"`
@@ -89,27 +85,24 @@ type bundleDoc struct {
 	Summary        Summary    `json:"summary"`
 }
 
-// Save writes r and info as a response bundle at dir. An existing dir is
-// refused unless replace is set and it is an earlier bundle: without
-// replace the error wraps result.ErrExists.
+// CheckBundle reports whether a response bundle could be written at dir:
+// nil when nothing exists there, or when replace is set and dir is empty
+// or an earlier bundle. Otherwise the error wraps result.ErrExists or
+// result.ErrNotResult (see Save).
+func CheckBundle(dir string, replace bool) error {
+	if err := atomicfile.Check(dir, bundleJSON, replace); err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	return nil
+}
+
+// Save writes r and info as a response bundle at dir, atomically. An
+// existing dir is refused (the error wraps result.ErrExists) unless
+// replace is set and it is empty or an earlier bundle (it holds a
+// response.json); any other folder is left alone (the error wraps
+// result.ErrNotResult, the module's error for a folder that is not an
+// earlier one of the kind being written).
 func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
-	if fi, err := os.Lstat(dir); err == nil {
-		if !replace {
-			return fmt.Errorf("%w: %s", result.ErrExists, dir)
-		}
-		if _, err := os.Stat(filepath.Join(dir, bundleJSON)); !fi.IsDir() || err != nil {
-			return fmt.Errorf("%s exists and is not a response bundle; not replacing it", dir)
-		}
-	}
-	tmp, err := result.Temp(dir)
-	if err != nil {
-		return err
-	}
-	defer func() {
-		if err != nil {
-			os.RemoveAll(tmp)
-		}
-	}()
 	doc := bundleDoc{Format: BundleFormat, Version: BundleVersion, Info: info,
 		TruthBins: r.TruthBins(), RecoBins: r.RecoBins(),
 		Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2, Fakes: r.Fakes, FakesSumW2: r.FakesSumW2,
@@ -118,13 +111,25 @@ func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err != nil {
 		return err
 	}
-	if err := result.WriteSynced(filepath.Join(tmp, bundleJSON), func(w io.Writer) error { _, err := w.Write(b); return err }); err != nil {
+	f, err := atomicfile.New(dir, bundleJSON, replace)
+	if err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	defer f.Abort()
+	if err := f.WriteFile(bundleJSON, b); err != nil {
 		return err
 	}
-	if err := result.WriteSynced(filepath.Join(tmp, bundleMatrix), func(w io.Writer) error { _, err := r.Migrations.WriteTo(w); return err }); err != nil {
+	w, err := f.Create(bundleMatrix)
+	if err != nil {
 		return err
 	}
-	return result.Install(tmp, dir, replace)
+	if _, err := r.Migrations.WriteTo(w); err != nil {
+		return fmt.Errorf("%s: %w", filepath.Join(dir, bundleMatrix), err)
+	}
+	if err := f.Commit(); err != nil {
+		return fmt.Errorf("response bundle: %w", err)
+	}
+	return nil
 }
 
 // Load reads the response bundle at dir.

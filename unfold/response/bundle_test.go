@@ -4,6 +4,7 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -11,6 +12,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 func TestBundleRoundTrip(t *testing.T) {
@@ -82,7 +85,7 @@ func TestBundleRefusals(t *testing.T) {
 	plain := filepath.Join(tmp, "plain")
 	os.Mkdir(plain, 0o755)
 	os.WriteFile(filepath.Join(plain, "notes.txt"), []byte("keep"), 0o644)
-	if err := r.Save(plain, BundleInfo{}, true); err == nil || !strings.Contains(err.Error(), "not a response bundle") {
+	if err := r.Save(plain, BundleInfo{}, true); !errors.Is(err, atomicfile.ErrNotOurs) || !strings.Contains(err.Error(), "without a response.json") {
 		t.Errorf("replacing a plain folder: got %v", err)
 	}
 	if _, err := os.Stat(filepath.Join(plain, "notes.txt")); err != nil {

@@ -1,40 +1,58 @@
-// Package result writes result folders atomically and defines the
-// schema of result.json.
+// Package result is the result layer of both modes of desmear unfold:
+// the one result document (Result, the schema of result.json), the
+// writers of the result folder, one per output format, and the folder
+// itself, written atomically.
+//
+// # The document
+//
+// Result holds the fields of every result (estimate, uncertainty,
+// covariance, efficiency, iterations, settings, input files with their
+// SHA-256, binnings) and, filled by an analysis run only and left out of
+// the JSON when empty, those of the analysis (purity, stability,
+// densities, luminosity, response summary, data counts). FromUnfold fills
+// it from the kernel's result and guarantees that no number is NaN or
+// infinite (JSON has no such values; bins the response cannot measure
+// are flagged in Determined and hold 0).
+//
+// # Formats
+//
+// Each output format is a Writer registered by name in its own file of
+// this package:
+//
+//	json     result.json       json.go     the document; always written
+//	csv      result.csv        csv.go      one row per truth bin
+//	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
+//	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region
+//
+// The last two need a truth binning and are written only when one is
+// given. Write writes a chosen list of formats into a folder; Formats
+// lists the registered names and DefaultFormats those written when none
+// are chosen (the default of the analysis file's output.formats and of
+// the plain-table mode's format list). Adding a format (plots, a report, an
+// export) is one new file here: a function writing its files into the
+// folder, registered with Register from the file's init.
+//
+// # The folder
 //
 // A result folder is written in three steps: New starts it in a hidden
-// temporary sibling folder; Create, WriteFile, WriteJSON, Reserve and
-// WriteResult add files; Commit syncs everything to disk and renames the
-// temporary folder into place. Abort (deferred right after New) removes
-// the temporary folder when the run fails or is interrupted, so that a
-// failed run leaves no half-written result:
+// temporary sibling folder; Write (or WriteJSON, or the Folder's Create,
+// WriteFile and Reserve) adds files; Commit syncs everything to disk and
+// renames the temporary folder into place. Abort (deferred right after
+// New) removes the temporary folder when the run fails or is
+// interrupted, so that a failed run leaves no half-written result:
 //
 //	f, err := result.New(dir, force)
 //	if err != nil { ... }
 //	defer f.Abort()
-//	... f.WriteResult(res, scheme); f.WriteJSON("extra.json", v) ...
+//	files, err := result.Write(f, doc, truth, result.DefaultFormats())
+//	if err != nil { ... }
 //	return f.Commit()
 //
 // An existing folder is refused (ErrExists) unless replacing is asked
 // for, and even then only an empty folder or an earlier result (a folder
-// holding result.json) is replaced (ErrNotResult otherwise). On Linux
-// the replacement is one atomic exchange of the two folders
-// (renameat2 RENAME_EXCHANGE), and a new folder is installed with
-// RENAME_NOREPLACE; elsewhere, and on filesystems without these, the old
-// folder is renamed aside first and a check precedes the rename. A process
+// holding result.json) is replaced (ErrNotResult otherwise). A process
 // killed (not interrupted) while writing can leave a hidden
 // ".NAME.partial-XXXX" folder beside the result; it is safe to delete.
-//
-// Folders that are not result folders (a response bundle, a demo
-// folder) are installed the same way with Temp and Install: the caller
-// writes its files into the folder Temp makes, decides itself which
-// existing folder it may replace, and Install renames the folder into
-// place with the same atomic steps as Commit.
-//
-// Result is the documented schema of result.json (see its fields);
-// FromUnfold fills it from the kernel's result and guarantees that no
-// number is NaN or infinite (JSON has no such values; bins the response
-// cannot measure are flagged in Determined and hold 0). WriteCSV writes
-// the per-bin table result.csv.
 //
 // Errors: every function returns errors; nothing panics on any input.
 package result

@@ -2,7 +2,6 @@ package result_test
 
 import (
 	"fmt"
-	"io"
 	"os"
 	"path/filepath"
 
@@ -21,7 +20,7 @@ func ExampleFolder() {
 		return
 	}
 	defer f.Abort() // removes the temporary folder unless committed
-	if err := f.WriteJSON("summary.json", map[string]int{"bins": 3}); err != nil {
+	if err := result.WriteJSON(f, "summary.json", map[string]int{"bins": 3}); err != nil {
 		fmt.Println(err)
 		return
 	}
@@ -38,42 +37,4 @@ func ExampleFolder() {
 	// {
 	//   "bins": 3
 	// }
-}
-
-// Install a folder that is not a result folder (here a folder of plain
-// tables): write its files into the folder Temp makes, then rename it
-// into place. The caller decides itself whether an existing folder may
-// be replaced.
-func ExampleInstall() {
-	parent, _ := os.MkdirTemp("", "example")
-	defer os.RemoveAll(parent)
-	dir := filepath.Join(parent, "tables")
-
-	tmp, err := result.Temp(dir)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	err = result.WriteSynced(filepath.Join(tmp, "generated.csv"), func(w io.Writer) error {
-		_, err := io.WriteString(w, "truth,value\n0,1000\n")
-		return err
-	})
-	if err == nil {
-		err = result.Install(tmp, dir, false)
-	}
-	if err != nil {
-		os.RemoveAll(tmp) // on failure the caller removes the temporary folder
-		fmt.Println(err)
-		return
-	}
-	data, _ := os.ReadFile(filepath.Join(dir, "generated.csv"))
-	fmt.Print(string(data))
-	entries, _ := os.ReadDir(parent)
-	for _, e := range entries {
-		fmt.Println("in the parent folder:", e.Name()) // no temporary folder is left
-	}
-	// Output:
-	// truth,value
-	// 0,1000
-	// in the parent folder: tables
 }

@@ -1,16 +1,15 @@
 package result
 
 import (
-	"encoding/csv"
 	"fmt"
-	"io"
 	"math"
 	"slices"
-	"strconv"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/response"
 )
 
 // Format and FormatVersion identify result.json files of this layout.
@@ -26,16 +25,17 @@ const (
 // infinite: bins the response cannot measure are flagged false in
 // Determined and carry 0 in Estimate, Uncertainty and Covariance.
 //
-// Commands that write more than the plain-table fields embed Result in
-// their own struct (its fields then appear at the top level of the JSON
-// object) or add fields here; readers must ignore fields they do not
-// know.
+// It is the one result document of both modes: the fields after
+// RecoBinning are filled by an analysis run only (from its analysis
+// file, its response and its data) and are left out of the JSON when
+// empty, so that a plain-table result holds exactly the fields above
+// them. Readers must ignore fields they do not know.
 type Result struct {
-	Format        string   `json:"format"`         // always Format
-	FormatVersion int      `json:"format_version"` // FormatVersion
-	Program       Program  `json:"program"`
-	Inputs        []Input  `json:"inputs"` // every input file, with its content hash
-	Settings      Settings `json:"settings"`
+	Format        string        `json:"format"`         // always Format
+	FormatVersion int           `json:"format_version"` // FormatVersion
+	Program       Program       `json:"program"`
+	Inputs        []inputs.File `json:"inputs"` // every input file, with its content hash
+	Settings      Settings      `json:"settings"`
 
 	TruthBins int `json:"truth_bins"`
 	RecoBins  int `json:"reco_bins"`
@@ -83,22 +83,40 @@ type Result struct {
 	// they were given.
 	TruthBinning *Binning `json:"truth_binning,omitempty"`
 	RecoBinning  *Binning `json:"reco_binning,omitempty"`
+
+	// Analysis names the analysis file.
+	Analysis *Analysis `json:"analysis,omitempty"`
+	// Purity and Stability per truth bin (on the truth binning; see
+	// package response); null where not defined.
+	Purity    []*float64 `json:"purity,omitempty"`
+	Stability []*float64 `json:"stability,omitempty"`
+	// Density is the estimate divided by the bin volume (and by the
+	// integrated luminosity when given), per truth bin; 0 for flow bins
+	// (see Densities). DensityUncertainty is the uncertainty divided
+	// alike.
+	Density            []float64 `json:"density,omitempty"`
+	DensityUncertainty []float64 `json:"density_uncertainty,omitempty"`
+	Luminosity         float64   `json:"luminosity,omitempty"`
+	LuminosityUnit     string    `json:"luminosity_unit,omitempty"`
+	// ResponseSummary counts the simulated events.
+	ResponseSummary *response.Summary `json:"response_summary,omitempty"`
+	// DataEvents, DataSelected and DataOutside count the data events
+	// (events files only).
+	DataEvents   int64 `json:"data_events,omitempty"`
+	DataSelected int64 `json:"data_selected,omitempty"`
+	DataOutside  int64 `json:"data_outside,omitempty"`
+}
+
+// Analysis names the analysis file of a result.
+type Analysis struct {
+	File  string `json:"file"`
+	Title string `json:"title,omitempty"`
 }
 
 // Program names the program that wrote a result.
 type Program struct {
 	Name    string `json:"name"`
 	Version string `json:"version"`
-}
-
-// Input is one input file of a result: its role (for example
-// "response", "data", "truth-binning"), its path as given, its size in
-// bytes and the SHA-256 of its content (lower-case hex).
-type Input struct {
-	Role   string `json:"role"`
-	Path   string `json:"path"`
-	Bytes  int64  `json:"bytes"`
-	SHA256 string `json:"sha256"`
 }
 
 // Settings are the unfolding settings in force, defaults filled in.
@@ -306,91 +324,45 @@ func (r *Result) checkFinite() error {
 	return nil
 }
 
-// WriteCSV writes the per-bin table of r as CSV: the columns index; with
-// a truth binning s (nil for none) region, flow and, for every axis of
-// the scheme, NAME_low and NAME_high (empty for bins whose region lacks
-// the axis; "-inf" and "inf" on the open side of flow bins); then
-// estimate, uncertainty (only when r has one), determined and efficiency.
-func WriteCSV(w io.Writer, r *Result, s *binning.Scheme) error {
-	nt := len(r.Estimate)
-	if s != nil && s.Len() != nt {
-		return fmt.Errorf("result: truth binning has %d bins, the result %d", s.Len(), nt)
+// Densities returns the estimate est and its uncertainty unc (nil for
+// none) divided by the volume of each bin of the truth scheme s and by
+// the integrated luminosity lumi (0 for none, taken as 1); 0 for flow
+// bins and bins without a finite positive volume.
+func Densities(s *binning.Scheme, est, unc []float64, lumi float64) (dens, densUnc []float64) {
+	if lumi == 0 {
+		lumi = 1
 	}
-	cw := csv.NewWriter(w)
-	header := []string{"index"}
-	var axes []string
-	if s != nil {
-		axes = s.AxisNames()
-		header = append(header, "region", "flow")
-		for _, a := range axes {
-			header = append(header, a+"_low", a+"_high")
+	dens = make([]float64, len(est))
+	if unc != nil {
+		densUnc = make([]float64, len(est))
+	}
+	for g := range est {
+		b := s.Bin(g)
+		if b.Flow || !(b.Volume > 0) || math.IsInf(b.Volume, 0) {
+			continue
+		}
+		dens[g] = est[g] / b.Volume / lumi
+		if unc != nil {
+			densUnc[g] = unc[g] / b.Volume / lumi
 		}
 	}
-	header = append(header, "estimate")
-	if r.Uncertainty != nil {
-		header = append(header, "uncertainty")
-	}
-	header = append(header, "determined", "efficiency")
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	rec := make([]string, len(header))
-	for j := 0; j < nt; j++ {
-		rec = rec[:0]
-		rec = append(rec, strconv.Itoa(j))
-		if s != nil {
-			bin := s.Bin(j)
-			rec = append(rec, bin.RegionName, strconv.FormatBool(bin.Flow))
-			for _, a := range axes {
-				lo, hi := "", ""
-				for k, name := range bin.Axes {
-					if name == a {
-						lo, hi = formatEdge(bin.Low[k]), formatEdge(bin.High[k])
-					}
-				}
-				rec = append(rec, lo, hi)
-			}
-		}
-		rec = append(rec, formatFloat(r.Estimate[j]))
-		if r.Uncertainty != nil {
-			rec = append(rec, formatFloat(r.Uncertainty[j]))
-		}
-		rec = append(rec, strconv.FormatBool(r.Determined[j]), formatFloat(r.Efficiency[j]))
-		if err := cw.Write(rec); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
+	return dens, densUnc
 }
 
-func formatFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
-
-func formatEdge(v float64) string {
-	switch {
-	case math.IsInf(v, -1):
-		return "-inf"
-	case math.IsInf(v, 1):
-		return "inf"
+// densities returns the densities of r on the truth scheme s: those of
+// the document when it holds them, else Densities of its estimate.
+func (r *Result) densities(s *binning.Scheme) (dens, densUnc []float64) {
+	if r.Density != nil {
+		return r.Density, r.DensityUncertainty
 	}
-	return formatFloat(v)
+	return Densities(s, r.Estimate, r.Uncertainty, r.Luminosity)
 }
 
-// WriteResult writes r to result.json and its per-bin table to
-// result.csv in folder f (s is the truth binning, nil for none).
-func (f *Folder) WriteResult(r *Result, s *binning.Scheme) error {
-	if err := r.checkFinite(); err != nil {
-		return err
+// checkBins returns an error when the truth scheme s does not have one
+// bin per truth bin of r.
+func (r *Result) checkBins(s *binning.Scheme) error {
+	if s.Len() != len(r.Estimate) {
+		return fmt.Errorf("result: truth binning has %d bins, the result %d", s.Len(), len(r.Estimate))
 	}
-	if err := f.WriteJSON(JSONFile, r); err != nil {
-		return err
-	}
-	w, err := f.Create(CSVFile)
-	if err != nil {
-		return err
-	}
-	if err := WriteCSV(w, r, s); err != nil {
-		return err
-	}
-	return w.Close()
+	return nil
 }

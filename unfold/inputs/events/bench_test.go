@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold/inputs/observable"
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
 
 const benchRows = 4 << 20
@@ -42,17 +43,17 @@ func benchInputsT(b testing.TB) (dir string, names []string) {
 		}
 		benchFiles.names = names
 		d := benchFiles.dir
-		if benchFiles.err = WriteParquet(filepath.Join(d, "bench.parquet"), names, cols); benchFiles.err != nil {
+		if benchFiles.err = eventfile.WriteParquet(filepath.Join(d, "bench.parquet"), names, cols); benchFiles.err != nil {
 			return
 		}
-		if benchFiles.err = WriteROOT(filepath.Join(d, "bench.root"), "events", names, cols); benchFiles.err != nil {
+		if benchFiles.err = eventfile.WriteROOT(filepath.Join(d, "bench.root"), "events", names, cols); benchFiles.err != nil {
 			return
 		}
 		small := make([][]float64, len(cols))
 		for c := range cols {
 			small[c] = cols[c][:benchRows/10]
 		}
-		benchFiles.err = WriteCSV(filepath.Join(d, "bench.csv"), names, small)
+		benchFiles.err = eventfile.WriteCSV(filepath.Join(d, "bench.csv"), names, small)
 	})
 	if benchFiles.err != nil {
 		b.Fatal(benchFiles.err)
@@ -90,18 +91,18 @@ func benchReadOpt(b *testing.B, file string, rows int64, opt Options) {
 }
 
 // BenchmarkParquetRead decodes 5 float64 columns of a Snappy-compressed
-// Parquet file written by WriteParquet.
+// Parquet file written by eventfile.WriteParquet.
 func BenchmarkParquetRead(b *testing.B) { benchRead(b, "bench.parquet", benchRows) }
 
 // BenchmarkROOTRead reads 5 float64 branches of an LZ4-compressed TTree
-// written by WriteROOT, with 1 and 2 decoding goroutines.
+// written by eventfile.WriteROOT, with 1 and 2 decoding goroutines.
 func BenchmarkROOTRead(b *testing.B) {
 	for _, w := range []int{1, 2} {
 		b.Run(fmt.Sprintf("workers=%d", w), func(b *testing.B) { benchReadOpt(b, "bench.root", benchRows, Options{Workers: w}) })
 	}
 }
 
-// BenchmarkCSVRead parses 5 columns of a CSV file written by WriteCSV.
+// BenchmarkCSVRead parses 5 columns of a CSV file written by eventfile.WriteCSV.
 func BenchmarkCSVRead(b *testing.B) { benchRead(b, "bench.csv", benchRows/10) }
 
 // BenchmarkParquetObservables decodes the Parquet sample and evaluates

@@ -7,6 +7,8 @@ import (
 	"os"
 	"path/filepath"
 	"testing"
+
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
 
 // TestCorrupted flips random bytes of ROOT and Parquet files: opening and
@@ -21,9 +23,9 @@ func TestCorrupted(t *testing.T) {
 	for _, file := range []string{"c.root", "c.parquet"} {
 		p := filepath.Join(dir, file)
 		if filepath.Ext(file) == ".root" {
-			WriteROOT(p, "events", names, cols)
+			eventfile.WriteROOT(p, "events", names, cols)
 		} else {
-			WriteParquet(p, names, cols)
+			eventfile.WriteParquet(p, names, cols)
 		}
 		data, _ := os.ReadFile(p)
 		rng := rand.New(rand.NewPCG(1, 2))

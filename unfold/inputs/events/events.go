@@ -3,7 +3,6 @@ package events
 import (
 	"context"
 	"fmt"
-	"os"
 	"path/filepath"
 	"strings"
 )
@@ -149,77 +148,4 @@ func newBatch(nc, n int) *Batch {
 		b.Cols[c] = make([]float64, n)
 	}
 	return b
-}
-
-// checkColumns validates the arguments of the writers.
-func checkColumns(path string, names []string, cols [][]float64) error {
-	if len(names) != len(cols) {
-		return fmt.Errorf("events: writing %s: %d names for %d columns", path, len(names), len(cols))
-	}
-	if len(names) == 0 {
-		return fmt.Errorf("events: writing %s: no columns", path)
-	}
-	seen := map[string]bool{}
-	for i, n := range names {
-		if n == "" {
-			return fmt.Errorf("events: writing %s: column %d has an empty name", path, i)
-		}
-		if seen[n] {
-			return fmt.Errorf("events: writing %s: column name %q given twice", path, n)
-		}
-		seen[n] = true
-		if len(cols[i]) != len(cols[0]) {
-			return fmt.Errorf("events: writing %s: column %q has %d values, column %q has %d",
-				path, n, len(cols[i]), names[0], len(cols[0]))
-		}
-	}
-	return nil
-}
-
-// atomicWrite creates a temporary file next to path, lets write fill it
-// (given its name) and close it, then syncs it to disk, gives it mode 0644
-// (os.CreateTemp makes it private) and renames it to path. On error the
-// temporary file is removed and path is left as it was.
-func atomicWrite(path string, write func(tmp string) error) (err error) {
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	f, err := os.CreateTemp(dir, "."+base+".tmp-*"+filepath.Ext(base))
-	if err != nil {
-		return fmt.Errorf("events: writing %s: %w", path, err)
-	}
-	tmp := f.Name()
-	f.Close()
-	defer func() {
-		if err != nil {
-			os.Remove(tmp)
-		}
-	}()
-	if err := write(tmp); err != nil {
-		return err
-	}
-	if err := syncFile(tmp); err != nil {
-		return fmt.Errorf("events: writing %s: %w", path, err)
-	}
-	if err := os.Chmod(tmp, 0o644); err != nil {
-		return fmt.Errorf("events: writing %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("events: writing %s: %w", path, err)
-	}
-	return nil
-}
-
-// syncFile flushes the written file at path to stable storage.
-func syncFile(path string) error {
-	f, err := os.OpenFile(path, os.O_RDWR, 0)
-	if err != nil {
-		return err
-	}
-	if err := f.Sync(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
 }

@@ -17,6 +17,8 @@ import (
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/rtree"
+
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
 
 // TestROOTSmallFlatTree reads groot/testdata/small-flat-tree.root, a file
@@ -207,11 +209,11 @@ func writeOpen(t *testing.T, p string, names []string, cols [][]float64) Source 
 	var err error
 	switch filepath.Ext(p) {
 	case ".root":
-		err = WriteROOT(p, "events", names, cols)
+		err = eventfile.WriteROOT(p, "events", names, cols)
 	case ".parquet":
-		err = WriteParquet(p, names, cols)
+		err = eventfile.WriteParquet(p, names, cols)
 	default:
-		err = WriteCSV(p, names, cols)
+		err = eventfile.WriteCSV(p, names, cols)
 	}
 	if err != nil {
 		t.Fatal(err)
@@ -230,9 +232,9 @@ func TestFormatsAgree(t *testing.T) {
 	dir := t.TempDir()
 	names, cols := sampleColumns(2500)
 	files := map[string]func(string) error{
-		"ev.root":    func(p string) error { return WriteROOT(p, "events", names, cols) },
-		"ev.parquet": func(p string) error { return WriteParquet(p, names, cols) },
-		"ev.csv":     func(p string) error { return WriteCSV(p, names, cols) },
+		"ev.root":    func(p string) error { return eventfile.WriteROOT(p, "events", names, cols) },
+		"ev.parquet": func(p string) error { return eventfile.WriteParquet(p, names, cols) },
+		"ev.csv":     func(p string) error { return eventfile.WriteCSV(p, names, cols) },
 	}
 	order := []string{"weight", "pt_reco", "pass_reco", "pt_true", "y_true", "pt_reco"}
 	idx := map[string]int{}
@@ -505,9 +507,9 @@ func TestTruncated(t *testing.T) {
 		full := filepath.Join(dir, file)
 		var err error
 		if strings.HasSuffix(file, ".root") {
-			err = WriteROOT(full, "events", names, cols)
+			err = eventfile.WriteROOT(full, "events", names, cols)
 		} else {
-			err = WriteParquet(full, names, cols)
+			err = eventfile.WriteParquet(full, names, cols)
 		}
 		if err != nil {
 			t.Fatal(err)
@@ -578,7 +580,7 @@ func TestOpenErrors(t *testing.T) {
 	}
 	p := filepath.Join(dir, "two.root")
 	names, cols := sampleColumns(10)
-	if err := WriteROOT(p, "events", names, cols); err != nil {
+	if err := eventfile.WriteROOT(p, "events", names, cols); err != nil {
 		t.Fatal(err)
 	}
 	// The message lists the trees the file has, and not groot's text, which
@@ -590,62 +592,6 @@ func TestOpenErrors(t *testing.T) {
 	os.WriteFile(junk, []byte("this is not parquet at all"), 0o644)
 	if _, err := Open(junk, Options{}); err == nil || !strings.Contains(err.Error(), junk) {
 		t.Errorf("junk parquet: %v", err)
-	}
-}
-
-func TestWriteErrors(t *testing.T) {
-	dir := t.TempDir()
-	p := filepath.Join(dir, "w.csv")
-	for _, tc := range []struct {
-		names []string
-		cols  [][]float64
-		want  string
-	}{
-		{[]string{"a"}, [][]float64{{1}, {2}}, "1 names for 2 columns"},
-		{[]string{"a", "b"}, [][]float64{{1}, {2, 3}}, `column "b" has 2 values`},
-		{[]string{"a", "a"}, [][]float64{{1}, {2}}, "given twice"},
-		{[]string{"a,b"}, [][]float64{{1}}, "cannot be written to a CSV header"},
-		{nil, nil, "no columns"},
-		{[]string{"a", ""}, [][]float64{{1}, {2}}, "column 1 has an empty name"},
-	} {
-		if err := WriteCSV(p, tc.names, tc.cols); err == nil || !strings.Contains(err.Error(), tc.want) {
-			t.Errorf("%v: error %v, want %q", tc.names, err, tc.want)
-		}
-	}
-	if _, err := os.Stat(p); !os.IsNotExist(err) {
-		t.Errorf("failed writes left %s", p)
-	}
-	if err := WriteParquet(filepath.Join(dir, "no", "such", "dir.parquet"), []string{"a"}, [][]float64{{1}}); err == nil {
-		t.Error("write into a missing folder succeeded")
-	}
-	if tmp := tempFiles(t, dir); len(tmp) > 0 {
-		t.Errorf("temporary files left behind: %v", tmp)
-	}
-}
-
-// TestWrittenFileMode checks that the writers' files are not private, as
-// files written under os.CreateTemp's name would be (mode 0600): a sample
-// written for others to read gets mode 0644, as os.WriteFile(..., 0o644)
-// gives.
-func TestWrittenFileMode(t *testing.T) {
-	dir := t.TempDir()
-	names, cols := sampleColumns(3)
-	for name, write := range map[string]func(string) error{
-		"m.csv":     func(p string) error { return WriteCSV(p, names, cols) },
-		"m.parquet": func(p string) error { return WriteParquet(p, names, cols) },
-		"m.root":    func(p string) error { return WriteROOT(p, "events", names, cols) },
-	} {
-		p := filepath.Join(dir, name)
-		if err := write(p); err != nil {
-			t.Fatal(err)
-		}
-		st, err := os.Stat(p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if st.Mode().Perm() != 0o644 {
-			t.Errorf("%s: mode %v, want -rw-r--r--", name, st.Mode().Perm())
-		}
 	}
 }
 
@@ -719,7 +665,7 @@ func TestROOTParallel(t *testing.T) {
 	dir := t.TempDir()
 	names, cols := sampleColumns(20000)
 	path := filepath.Join(dir, "par.root")
-	if err := WriteROOT(path, "events", names, cols); err != nil {
+	if err := eventfile.WriteROOT(path, "events", names, cols); err != nil {
 		t.Fatal(err)
 	}
 	order := []string{"y_true", "pt_reco", "y_true", "weight"}

@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
 
 func Example() {
@@ -20,7 +21,7 @@ func Example() {
 		{11, 19, 33, 38, 52},
 		{1, 1, 0.5, 1, 2},
 	}
-	if err := events.WriteParquet(path, names, cols); err != nil {
+	if err := eventfile.WriteParquet(path, names, cols); err != nil {
 		fmt.Println(err)
 		return
 	}

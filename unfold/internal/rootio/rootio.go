@@ -4,8 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
 	"strings"
 
 	"go-hep.org/x/hep/groot"
@@ -14,7 +12,23 @@ import (
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/root"
 	"go-hep.org/x/hep/hbook"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
+
+// BinOf maps a ROOT cell number along an axis of n bins (0 the
+// underflow, 1..n the bins, n+1 the overflow) to a bin number of package
+// binning (binning.UnderflowBin, 0..n-1, binning.OverflowBin).
+func BinOf(c, n int) int {
+	switch {
+	case c == 0:
+		return binning.UnderflowBin
+	case c == n+1:
+		return binning.OverflowBin
+	}
+	return c - 1
+}
 
 // Hist1D is a one-dimensional histogram in ROOT's cell layout.
 type Hist1D struct {
@@ -352,7 +366,8 @@ func (h *Hist2D) check() error {
 
 // WriteFile writes the histograms to a new ROOT file at path, as TH1D and
 // TH2D objects keyed by their names; a name "dir/h" puts h in directory dir.
-// The file is written under a temporary name and renamed into place.
+// The file is written atomically: under a temporary name beside path,
+// synced to disk and renamed into place.
 func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
 	seen := map[string]bool{}
 	for _, h := range h1 {
@@ -371,51 +386,29 @@ func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
 			return fmt.Errorf("rootio: writing %s: %w", path, err)
 		}
 	}
-	dir, base := filepath.Split(path)
-	if dir == "" {
-		dir = "."
-	}
-	tf, err := os.CreateTemp(dir, "."+base+".tmp-*.root")
+	err := atomicfile.WriteVia(path, func(tmp string) error {
+		f, err := groot.Create(tmp)
+		if err != nil {
+			return err
+		}
+		d := riofs.Dir(f)
+		for _, h := range h1 {
+			if err := d.Put(h.Name, toTH1D(h)); err != nil {
+				f.Close()
+				return fmt.Errorf("%q: %w", h.Name, err)
+			}
+		}
+		for _, h := range h2 {
+			if err := d.Put(h.Name, toTH2D(h)); err != nil {
+				f.Close()
+				return fmt.Errorf("%q: %w", h.Name, err)
+			}
+		}
+		return f.Close()
+	})
 	if err != nil {
 		return fmt.Errorf("rootio: writing %s: %w", path, err)
 	}
-	tmp := tf.Name()
-	tf.Close()
-	ok := false
-	defer func() {
-		if !ok {
-			os.Remove(tmp)
-		}
-	}()
-	f, err := groot.Create(tmp)
-	if err != nil {
-		return fmt.Errorf("rootio: writing %s: %w", path, err)
-	}
-	d := riofs.Dir(f)
-	for _, h := range h1 {
-		if err := d.Put(h.Name, toTH1D(h)); err != nil {
-			f.Close()
-			return fmt.Errorf("rootio: writing %s: %q: %w", path, h.Name, err)
-		}
-	}
-	for _, h := range h2 {
-		if err := d.Put(h.Name, toTH2D(h)); err != nil {
-			f.Close()
-			return fmt.Errorf("rootio: writing %s: %q: %w", path, h.Name, err)
-		}
-	}
-	if err := f.Close(); err != nil {
-		return fmt.Errorf("rootio: writing %s: %w", path, err)
-	}
-	// os.CreateTemp makes the file private (0600); a result file gets the
-	// same permissions as the other files written beside it.
-	if err := os.Chmod(tmp, 0o644); err != nil {
-		return fmt.Errorf("rootio: writing %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("rootio: writing %s: %w", path, err)
-	}
-	ok = true
 	return nil
 }
 

@@ -1,6 +1,6 @@
 //go:build !linux
 
-package result
+package atomicfile
 
 // renameNoReplace renames the folder from to the path to, failing with
 // an error satisfying errors.Is(err, fs.ErrExist) when to exists: a check

@@ -1,6 +1,6 @@
 //go:build linux
 
-package result
+package atomicfile
 
 import (
 	"errors"

@@ -1,0 +1,154 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"go-hep.org/x/hep/groot"
+	"go-hep.org/x/hep/groot/riofs"
+	"go-hep.org/x/hep/groot/root"
+)
+
+const formatsTruth = `regions:
+  - name: central
+    axes:
+      - {name: y, edges: [0, 1, 2]}
+      - {name: pt, edges: [0, 1, 2, 4], overflow: true}
+`
+
+// rootObjects reads every histogram of the ROOT file at path, keyed by
+// its path inside the file.
+func rootObjects(t *testing.T, path string) map[string]root.Object {
+	t.Helper()
+	f, err := groot.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	objs := map[string]root.Object{}
+	err = riofs.Walk(f, func(p string, obj root.Object, err error) error {
+		if err != nil {
+			return err
+		}
+		if strings.HasPrefix(obj.Class(), "TH") {
+			// p starts with the name the file was written under.
+			objs[p[strings.LastIndex(p, ".root/")+len(".root/"):]] = obj
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return objs
+}
+
+// The plain-table mode with --truth-binning writes the region tables and
+// the ROOT histograms of the analysis mode, through the same writers: an
+// analysis without purity (its reco axes are named apart from the truth
+// axes) and without luminosity, unfolded again in plain-table mode from
+// the tables of "desmear response --tables" with the same settings,
+// gives the same estimate (TestAnalysisEndToEnd), so region-central.csv
+// must be the same bytes and result.root the same histograms.
+func TestPlainWritesAnalysisFormats(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := string(src)
+	truthStart, recoStart := strings.Index(text, "  truth:\n"), strings.Index(text, "  reco: reco.yaml")
+	text = text[:truthStart] + "  truth: truth.yaml\n" + text[recoStart:]
+	text = strings.Replace(text, "reco: {y: abs(y_r), pt: pt_r}", "reco: {yr: abs(y_r), ptr: pt_r}", 1)
+	reco, err := os.ReadFile(filepath.Join(dir, "reco.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	recoText := strings.NewReplacer("name: y,", "name: yr,", "name: pt,", "name: ptr,").Replace(string(reco))
+	for name, content := range map[string]string{"analysis.yaml": text, "truth.yaml": formatsTruth, "reco.yaml": recoText} {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	tdir := filepath.Join(dir, "tables")
+	if code, _, stderr := runCLI(t, context.Background(), "response", path, "--tables", tdir); code != 0 {
+		t.Fatalf("response: exit %d\n%s", code, stderr)
+	}
+	if code, _, stderr := runCLI(t, context.Background(), "unfold", path); code != 0 {
+		t.Fatalf("unfold analysis: exit %d\n%s", code, stderr)
+	}
+	plain := filepath.Join(dir, "plain")
+	code, _, stderr := runCLI(t, context.Background(), "unfold", "--response", filepath.Join(tdir, "response.csv"), "--generated", filepath.Join(tdir, "generated.csv"),
+		"--background", filepath.Join(tdir, "background.csv"), "--data", filepath.Join(dir, "n.csv"), "--truth-binning", filepath.Join(dir, "truth.yaml"),
+		"--iterations", "3", "--covariance", "full", "--out", plain)
+	if code != 0 {
+		t.Fatalf("plain unfold: exit %d\n%s", code, stderr)
+	}
+	analysisJSON, err := os.ReadFile(filepath.Join(dir, "result", "result.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if bytes.Contains(analysisJSON, []byte(`"purity"`)) || bytes.Contains(analysisJSON, []byte(`"luminosity"`)) {
+		t.Fatal("the analysis has a purity or a luminosity, which the plain-table mode cannot have")
+	}
+	a, err := os.ReadFile(filepath.Join(dir, "result", "region-central.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := os.ReadFile(filepath.Join(plain, "region-central.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(a, p) {
+		t.Errorf("region-central.csv differs:\nanalysis\n%s\nplain\n%s", a, p)
+	}
+	ha, hp := rootObjects(t, filepath.Join(dir, "result", "result.root")), rootObjects(t, filepath.Join(plain, "result.root"))
+	if len(ha) == 0 || len(ha) != len(hp) {
+		t.Fatalf("%d histograms in the analysis's result.root, %d in the plain one", len(ha), len(hp))
+	}
+	for name, h := range ha {
+		if !reflect.DeepEqual(h, hp[name]) {
+			t.Errorf("histogram %s differs", name)
+		}
+	}
+}
+
+// --formats chooses the files of a plain-table result folder by the
+// names of output.formats: result.json is always written, an unknown
+// name is a usage error before anything is read, and without
+// --truth-binning the formats that need one are left out.
+func TestPlainFormats(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), oracleD)
+	for _, c := range []struct {
+		formats, want string
+	}{
+		{"", "result.csv result.json"},
+		{"json", "result.json"},
+		{"csv,regions,root", "result.csv result.json"},
+	} {
+		out := filepath.Join(dir, "out-"+strings.ReplaceAll(c.formats, ",", "-"))
+		args := oracleDArgs(dir, out)
+		if c.formats != "" {
+			args = append(args, "--formats", c.formats)
+		}
+		if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
+			t.Fatalf("--formats %q: exit %d\n%s", c.formats, code, stderr)
+		}
+		if got := strings.Join(dirNames(t, out), " "); got != c.want {
+			t.Errorf("--formats %q wrote %s, want %s", c.formats, got, c.want)
+		}
+	}
+	out := filepath.Join(dir, "bad")
+	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--formats", "json,pdf")...)
+	if code != exitUsage || !strings.Contains(stderr, `unknown format "pdf" (known: json, csv, regions, root)`) {
+		t.Errorf("--formats json,pdf: exit %d, %s", code, stderr)
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Error("a result folder was written with an unknown format")
+	}
+}

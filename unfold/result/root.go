@@ -1,0 +1,134 @@
+package result
+
+import (
+	"fmt"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/internal/rootio"
+)
+
+// RootFile is the name of the ROOT file of a result folder.
+const RootFile = "result.root"
+
+func init() {
+	Register(Writer{Name: "root", Default: true, NeedsTruthBinning: true, Write: writeROOT})
+}
+
+// writeROOT writes result.root: the histograms of rootHistograms.
+func writeROOT(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
+	if err := r.checkBins(s); err != nil {
+		return nil, err
+	}
+	path, err := f.Reserve(RootFile)
+	if err != nil {
+		return nil, err
+	}
+	dens, densUnc := r.densities(s)
+	h1, h2 := rootHistograms(s, r.Estimate, r.Uncertainty, dens, densUnc)
+	if err := rootio.WriteFile(path, h1, h2); err != nil {
+		return nil, err
+	}
+	return []string{RootFile}, nil
+}
+
+// rootHistograms makes the ROOT histograms of the result: for every
+// region one TH1D per slice along its last axis (the whole region for a
+// 1-D one), of counts and of densities, and a TH2D of counts and one of
+// densities for each rectangular 2-D region. Flow bins of the scheme go
+// into ROOT's flow cells of the slice histograms and of the TH2D.
+func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*rootio.Hist1D, []*rootio.Hist2D) {
+	var h1 []*rootio.Hist1D
+	var h2 []*rootio.Hist2D
+	val := func(g int, v []float64) float64 {
+		if g < 0 || v == nil {
+			return 0
+		}
+		return v[g]
+	}
+	for r, reg := range s.Regions() {
+		axes := reg.Axes()
+		last := axes[len(axes)-1]
+		// Enumerate the outer bins (all axes but the last), in-range only.
+		var outer [][]int
+		var rec func(prefix []int, k int)
+		rec = func(prefix []int, k int) {
+			if k == len(axes)-1 {
+				outer = append(outer, append([]int(nil), prefix...))
+				return
+			}
+			prev := 0
+			if len(prefix) > 0 {
+				prev = prefix[len(prefix)-1]
+			}
+			for i := 0; i < axes[k].Bins(prev); i++ {
+				rec(append(prefix, i), k+1)
+			}
+		}
+		rec(nil, 0)
+		for _, o := range outer {
+			prev := 0
+			if len(o) > 0 {
+				prev = o[len(o)-1]
+			}
+			edges := last.EdgesIn(prev)
+			// Names: REGION/counts for a 1-D region, REGION/counts_y0 for
+			// outer bin 0 of axis y, REGION/counts_y0_x2 in 3-D.
+			suffix := ""
+			for k, i := range o {
+				if k > 0 {
+					suffix += "_"
+				}
+				suffix += fmt.Sprintf("%s%d", axes[k].Name(), i)
+			}
+			if suffix != "" {
+				suffix = "_" + suffix
+			}
+			n := len(edges) - 1
+			hc := rootio.NewHist1D(reg.Name()+"/counts"+suffix, edges)
+			hd := rootio.NewHist1D(reg.Name()+"/density"+suffix, edges)
+			hc.Title, hd.Title = title(s, r, o, "counts"), title(s, r, o, "density")
+			for c := 0; c < n+2; c++ {
+				g := s.Global(r, append(append([]int(nil), o...), rootio.BinOf(c, n))...)
+				hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
+				if c >= 1 && c <= n {
+					hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
+				}
+			}
+			h1 = append(h1, hc, hd)
+		}
+		if len(axes) == 2 && reg.Rectangular() {
+			xe, ye := axes[0].Edges(), axes[1].Edges()
+			hc := rootio.NewHist2D(reg.Name()+"/counts2d", xe, ye)
+			hd := rootio.NewHist2D(reg.Name()+"/density2d", xe, ye)
+			hc.Title, hd.Title = reg.Name()+" counts", reg.Name()+" density"
+			nx, ny := len(xe)-1, len(ye)-1
+			for iy := 0; iy < ny+2; iy++ {
+				for ix := 0; ix < nx+2; ix++ {
+					c := hc.Index(ix, iy)
+					g := s.Global(r, rootio.BinOf(ix, nx), rootio.BinOf(iy, ny))
+					hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
+					if ix >= 1 && ix <= nx && iy >= 1 && iy <= ny {
+						hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
+					}
+				}
+			}
+			h2 = append(h2, hc, hd)
+		}
+	}
+	return h1, h2
+}
+
+func sq(x float64) float64 { return x * x }
+
+func title(s *binning.Scheme, r int, outer []int, what string) string {
+	reg := s.Regions()[r]
+	t := reg.Name() + " " + what
+	axes := reg.Axes()
+	prev := 0
+	for k, i := range outer {
+		e := axes[k].EdgesIn(prev)
+		t += fmt.Sprintf(" %s[%g,%g)", axes[k].Name(), e[i], e[i+1])
+		prev = i
+	}
+	return t
+}
