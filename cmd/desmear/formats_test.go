@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -150,5 +151,32 @@ func TestPlainFormats(t *testing.T) {
 	}
 	if _, err := os.Stat(out); err == nil {
 		t.Error("a result folder was written with an unknown format")
+	}
+}
+
+// --method takes the names of the methods package; the result's
+// settings name the method that ran; an unknown name is a usage error
+// that lists the choices.
+func TestPlainMethod(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), oracleD)
+	out := filepath.Join(dir, "out")
+	if code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--method", "dagostini")...); code != 0 {
+		t.Fatalf("--method dagostini: exit %d\n%s", code, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "result.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc struct {
+		Settings struct {
+			Method string `json:"method"`
+		} `json:"settings"`
+	}
+	if err := json.Unmarshal(b, &doc); err != nil || doc.Settings.Method != "dagostini" {
+		t.Errorf("settings.method %q (%v), want dagostini", doc.Settings.Method, err)
+	}
+	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, filepath.Join(dir, "bad")), "--method", "lucky")...)
+	if code != exitUsage || !strings.Contains(stderr, "dagostini") {
+		t.Errorf("--method lucky: exit %d, %s", code, stderr)
 	}
 }

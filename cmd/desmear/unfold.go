@@ -20,6 +20,7 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -31,6 +32,7 @@ type unfoldOptions struct {
 	response, generated, data, background, prior string
 	truthBinning, recoBinning                    string
 
+	method        string
 	iterations    int
 	stopChi2      float64
 	maxIterations int
@@ -134,6 +136,8 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
 	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
 	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
+	f.Var(flagval.NewChoice(&o.method, methods.Default, methods.Names(), methods.Names()),
+		"method", "the unfolding method: dagostini (the D'Agostini iterative Bayesian method)")
 	f.IntVar(&o.iterations, "iterations", 0, "fixed number of iterations `K` (default 4 unless --stop-chi2 is given)")
 	f.Float64Var(&o.stopChi2, "stop-chi2", 0, "stop at the first iteration whose chi-square between successive estimates is at most `X`")
 	f.IntVar(&o.maxIterations, "max-iterations", 0, "with --stop-chi2: at most `K` iterations (default 100)")
@@ -229,9 +233,9 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--toys 0: give at least 2")
 	}
 	s, m := o.settings(nil)
-	if m.Smoothing != nil {
+	if b, ok := m.(*bayes.Settings); ok && b.Smoothing != nil {
 		// The truth binning is read later; the unfolding checks it.
-		m.Smoothing.Neighbours = noBins{}
+		b.Smoothing.Neighbours = noBins{}
 	}
 	if _, err := s.Resolve(); err != nil {
 		return o.flagErr(err)
@@ -247,8 +251,8 @@ func (noBins) Len() int                       { return 0 }
 func (noBins) InRange() int                   { return 0 }
 func (noBins) Neighbours(int, int) (int, int) { return -1, -1 }
 
-// settingFlags maps the fields of unfold.Settings and bayes.Settings to
-// their flags.
+// settingFlags maps the fields of unfold.Settings and of the methods'
+// settings to their flags.
 var settingFlags = map[string]string{
 	"Iterations":     "iterations",
 	"StopChi2":       "stop-chi2",
@@ -277,9 +281,9 @@ func (o *unfoldOptions) flagErr(err error) error {
 	return usagef("--%s %s: %s", name, o.flags.Lookup(name).Value, se.Reason)
 }
 
-// settings returns the common and the iterative method's settings of
-// the options.
-func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, *bayes.Settings) {
+// settings returns the common settings of the options and the method
+// with its own settings.
+func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfold.Method) {
 	s := &unfold.Settings{
 		Background:     o.bgMode,
 		Covariance:     o.covariance,
@@ -289,15 +293,19 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, *baye
 		Seed:           o.seed,
 		MemoryLimit:    o.memoryLimit,
 	}
-	m := &bayes.Settings{
-		Iterations:    o.iterations,
-		StopChi2:      o.stopChi2,
-		MaxIterations: o.maxIterations,
+	switch o.method {
+	case bayes.Name:
+		m := &bayes.Settings{
+			Iterations:    o.iterations,
+			StopChi2:      o.stopChi2,
+			MaxIterations: o.maxIterations,
+		}
+		if o.smooth > 0 {
+			m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}
+		}
+		return s, m
 	}
-	if o.smooth > 0 {
-		m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}
-	}
-	return s, m
+	panic("desmear: the method choice let through an unknown method " + o.method)
 }
 
 // checkOutFolder refuses a result folder that exists (unless force) or

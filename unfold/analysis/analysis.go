@@ -14,6 +14,7 @@ import (
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
+	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -116,6 +117,8 @@ type Background struct {
 
 // Unfolding holds the settings of the iteration.
 type Unfolding struct {
+	// Method is the unfolding method's name (methods.Names).
+	Method        string
 	Iterations    int
 	StopChi2      float64
 	MaxIterations int
@@ -252,11 +255,12 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Unfolding.
 	u := doc.Unfolding
-	a.Unfolding = Unfolding{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
+	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
 		Prior: u.Prior, Smoothing: u.Smoothing, Background: u.Background, Fakes: u.Fakes}
 	if u.MaxIterations != 0 && u.StopChi2 == 0 {
 		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "bounds the stopping rule: give stop_chi2 too, or use iterations")
 	}
+	c.oneOf(&a.Unfolding.Method, methods.Default, methods.Names(), "unfolding", "method")
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
 	if a.Unfolding.Prior == "file" {
 		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.keyLine("unfolding", "prior_file"), c.line("unfolding", "prior"))
@@ -359,7 +363,7 @@ var settingKeys = map[string][]any{
 // validators and reports an invalid one at its key.
 func (c *checker) settings(a *Analysis) {
 	s, m, err := a.Settings()
-	if err == nil {
+	if err == nil && m != nil {
 		if _, err = s.Resolve(); err == nil {
 			err = m.Validate()
 		}

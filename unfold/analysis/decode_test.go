@@ -63,7 +63,8 @@ func TestDecodeErrors(t *testing.T) {
 		old, new string
 		want     string // substring of the message
 	}{
-		{"  iterations: 3", "  iteratons: 3", `testdata/bad.yaml:26: iteratons: unknown key in unfolding (known keys: iterations,`},
+		{"  iterations: 3", "  iteratons: 3", `testdata/bad.yaml:26: iteratons: unknown key in unfolding (known keys: method, iterations,`},
+		{"  iterations: 3", "  method: lucky\n  iterations: 3", `testdata/bad.yaml:26: unfolding.method: unknown value "lucky" (one of: dagostini)`},
 		{"title: test analysis", "titel: x", `testdata/bad.yaml:1: titel: unknown key in the top level`},
 		{"    weight: w\n    truth_selection", "    wieght: w\n    truth_selection", `testdata/bad.yaml:14: wieght: unknown key in a simulation sample`},
 		{"  iterations: 3", "  iterations: three", `testdata/bad.yaml:26: unfolding.iterations: value three is a string, want a whole number`},

@@ -97,6 +97,7 @@ type bkgDoc struct {
 }
 
 type unfoldingDoc struct {
+	Method        string  `yaml:"method"`
 	Iterations    int     `yaml:"iterations"`
 	StopChi2      float64 `yaml:"stop_chi2"`
 	MaxIterations int     `yaml:"max_iterations"`

@@ -10,7 +10,6 @@ import (
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
-	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -149,7 +148,7 @@ func finitePtrs(v []float64) []*float64 {
 	return out
 }
 
-func (a *Analysis) write(out *Outcome, s *unfold.Settings, m *bayes.Settings, replace bool, opt *Options) (err error) {
+func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, replace bool, opt *Options) (err error) {
 	doc, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err

@@ -378,15 +378,21 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 }
 
 // Settings returns the settings of the analysis file: the common ones
-// and those of the iterative method. The error is an
-// *unfold.SettingsError for a mode name the enumerations do not know
-// (Decode has refused those already).
-func (a *Analysis) Settings() (*unfold.Settings, *bayes.Settings, error) {
+// and the method with its own settings (nil when the method name is not
+// one of methods.Names, which Decode has refused already). The error is
+// an *unfold.SettingsError for a mode name the enumerations do not know
+// (Decode has refused those already too).
+func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
 	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
-	m := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
-	if u.Smoothing != 0 {
-		m.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
+	var m unfold.Method
+	switch u.Method {
+	case bayes.Name, "":
+		b := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
+		if u.Smoothing != 0 {
+			b.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
+		}
+		m = b
 	}
 	for _, e := range []struct {
 		field string

@@ -482,8 +482,9 @@ func TestBackgroundPriorAndTH1D(t *testing.T) {
 	if !slices.Equal(p.Prior, []float64{5, 4, 3, 2, 1, 1}) {
 		t.Errorf("prior %v", p.Prior)
 	}
-	s, m, _ := a.Settings()
-	if m.Smoothing == nil || m.Smoothing.Strength != 0.5 || s.Covariance != unfold.Full || m.Iterations != 4 {
+	s, mm, _ := a.Settings()
+	m, ok := mm.(*bayes.Settings)
+	if !ok || m.Smoothing == nil || m.Smoothing.Strength != 0.5 || s.Covariance != unfold.Full || m.Iterations != 4 {
 		t.Errorf("settings %+v %+v", s, m)
 	}
 	if _, err := unfold.Unfold(ctx, p, s, m); err != nil {

@@ -98,7 +98,7 @@ func (p *pipeline) unfold(t testing.TB, mutate func(*unfold.Settings, *bayes.Set
 		t.Fatal(err)
 	}
 	if mutate != nil {
-		mutate(s, m)
+		mutate(s, m.(*bayes.Settings))
 	}
 	res, err := unfold.Unfold(context.Background(), p.problem, s, m)
 	if err != nil {

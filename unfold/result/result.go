@@ -121,6 +121,8 @@ type Program struct {
 
 // Settings are the unfolding settings in force, defaults filled in.
 type Settings struct {
+	// Method names the unfolding method (its Name, e.g. "dagostini").
+	Method string `json:"method"`
 	// Iterations is the fixed number of iterations; 0 with a stopping rule.
 	Iterations int `json:"iterations,omitempty"`
 	// StopChi2 and MaxIterations are the stopping rule, when used.
@@ -197,27 +199,35 @@ func DescribeBinning(s *binning.Scheme, file string) *Binning {
 }
 
 // DescribeSettings returns the settings in force for the common
-// settings s and the iterative method's settings m (nil means the
-// defaults), as their Resolve methods fill them in. prior says where the
-// prior came from ("generated" or "table"); withBackground whether a
-// background was given. Settings that do not resolve are described as
-// given.
-func DescribeSettings(s *unfold.Settings, m *bayes.Settings, prior string, withBackground bool) Settings {
+// settings s (nil means the defaults) and the method m (nil means the
+// default method with its defaults), as their Resolve methods fill them
+// in. prior says where the prior came from
+// ("generated" or "table"); withBackground whether a background was
+// given. Settings that do not resolve are described as given.
+//
+// Each method has one case here: the keys of its own settings.
+func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBackground bool) Settings {
 	z, err := s.Resolve()
 	if err != nil && s != nil {
 		z = *s
 	}
-	b, err := m.Resolve()
-	if err != nil && m != nil {
-		b = *m
+	if m == nil {
+		m = (*bayes.Settings)(nil)
 	}
-	d := Settings{Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit,
-		Iterations: b.Iterations, StopChi2: b.StopChi2, MaxIterations: b.MaxIterations}
+	d := Settings{Method: m.Name(), Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
+	switch m := m.(type) {
+	case *bayes.Settings:
+		b, err := m.Resolve()
+		if err != nil && m != nil {
+			b = *m
+		}
+		d.Iterations, d.StopChi2, d.MaxIterations = b.Iterations, b.StopChi2, b.MaxIterations
+		if b.Smoothing != nil {
+			d.Smoothing = b.Smoothing.Strength
+		}
+	}
 	if withBackground {
 		d.Background = z.Background.String()
-	}
-	if b.Smoothing != nil {
-		d.Smoothing = b.Smoothing.Strength
 	}
 	if z.Covariance == unfold.Diagonal {
 		d.DiagonalMethod = z.DiagonalMethod.String()
@@ -252,7 +262,9 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		UncertaintyPrecision: res.UncertaintyPrecision,
 		UncertaintySamples:   res.Samples,
 	}
-	if d, ok := res.Details.(*bayes.Details); ok {
+	// Each method has one case here: the fields of its details.
+	switch d := res.Details.(type) {
+	case *bayes.Details:
 		r.Iterations, r.Converged, r.StoppedBy = d.Iterations, d.Converged, d.StoppedBy
 		r.History = make([]Step, len(d.History))
 		for k, s := range d.History {

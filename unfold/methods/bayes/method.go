@@ -6,8 +6,9 @@ import (
 	"github.com/desmear/desmear/unfold"
 )
 
-// Name is the method's name in unfold.Result.Method.
-const Name = "iterative-bayes"
+// Name is the method's name in unfold.Result.Method and in the method
+// choice of the analysis file and the command line.
+const Name = "dagostini"
 
 // Name returns the method's name.
 func (s *Settings) Name() string { return Name }
