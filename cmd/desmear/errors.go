@@ -73,11 +73,10 @@ func usagef(format string, a ...any) error { return usageErr(fmt.Errorf(format, 
 // classifier of errors: an error classified where it arose (usageErr,
 // inputErr, numericalErr, ioErr) keeps its class, the libraries' typed
 // errors map by kind, and an error of no known kind is an input error
-// (exit 3) once a command runs: the commands' failures that carry no type
-// come from reading their input files. Before a command runs the only
-// such errors are cobra's own (an unknown command), usage errors (exit
-// 2); started says whether a command ran.
-func exitCode(ctx context.Context, err error, started bool) int {
+// (exit 3): the commands' failures that carry no type come from reading
+// their input files. (run classifies cobra's own errors, which arise
+// before a command runs, as usage errors first.)
+func exitCode(ctx context.Context, err error) int {
 	var (
 		ce  *classError
 		ae  *analysis.Error
@@ -113,10 +112,8 @@ func exitCode(ctx context.Context, err error, started bool) int {
 		return exitUsage // a setting or an output folder the user chose
 	case errors.As(err, &pe):
 		return exitIO
-	case started:
-		return exitInput
 	}
-	return exitUsage
+	return exitInput
 }
 
 // run executes the command line and returns the exit status. It is the
@@ -133,7 +130,12 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 	root.PersistentPreRun = func(*cobra.Command, []string) { started = true }
 	root.SetArgs(args)
 	err := root.ExecuteContext(ctx)
-	code = exitCode(ctx, err, started)
+	if err != nil && !started {
+		// cobra's own errors: an unknown command or flag, a flag value
+		// it cannot parse, the wrong number of arguments.
+		err = usageErr(err)
+	}
+	code = exitCode(ctx, err)
 	if err != nil {
 		if code == exitInterrupted {
 			fmt.Fprintln(stderr, "desmear: interrupted; no output was written")
