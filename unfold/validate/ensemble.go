@@ -142,10 +142,10 @@ func expected(p *unfold.Prepared, bkg, t []float64) []float64 {
 	return nu
 }
 
-// poisson fills n with Poisson counts of means nu from the PCG stream of
-// toy t.
-func poisson(n, nu []float64, seed uint64, t int) {
-	src := rand.NewPCG(seed, toyStream+uint64(t))
+// poisson fills n with Poisson counts of means nu from PCG stream
+// stream of seed (toy t uses toyStream + t).
+func poisson(n, nu []float64, seed, stream uint64) {
+	src := rand.NewPCG(seed, stream)
 	for i, x := range nu {
 		if x > 0 {
 			n[i] = distuv.Poisson{Lambda: x, Src: src}.Rand()
@@ -207,7 +207,7 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
 			sl.err = nil
-			poisson(sl.prob.Data, nu, c.Seed, t0+w)
+			poisson(sl.prob.Data, nu, c.Seed, toyStream+uint64(t0+w))
 			for k := 1; k <= K; k++ {
 				res, err := unfold.Unfold(ctx, &sl.prob, &rs, c.Method(k))
 				if err != nil {

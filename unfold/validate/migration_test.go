@@ -120,7 +120,7 @@ func TestMigrationsScan(t *testing.T) {
 	}
 	n := make([]float64, nt)
 	for toy := range toys {
-		poisson(n, nu, c.Seed, toy)
+		poisson(n, nu, c.Seed, toyStream+uint64(toy))
 		for k := 1; k <= K; k++ {
 			mu := denseIteration(r, n, prior, k)
 			for j, x := range mu {
