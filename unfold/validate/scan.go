@@ -45,7 +45,7 @@ type Point struct {
 	MSEError         float64 `json:"mse_error"`
 	MSEWeighted      float64 `json:"mse_weighted"`
 	MSEWeightedError float64 `json:"mse_weighted_error"`
-	// BiasOverSigma is the mean over the determined bins of
+	// BiasOverSigma is the mean over the determined bins with a spread of
 	// |Bias_j|/sqrt(Variance_j); each term has a precision of about
 	// 1/sqrt(T), which BiasOverSigmaError states.
 	BiasOverSigma      float64 `json:"bias_over_sigma"`
@@ -80,7 +80,7 @@ func (e *Ensemble) Scan() []Point {
 			BiasOverSigmaError: 1 / math.Sqrt(ft),
 			CoverageMin:        1,
 		}
-		det := 0
+		det, spread := 0, 0
 		for j := range nt {
 			if !e.Det[j] {
 				continue
@@ -103,16 +103,16 @@ func (e *Ensemble) Scan() []Point {
 			p.Coverage[j], p.CoverageError[j] = c, math.Sqrt(c*(1-c)/ft)
 			p.CoverageMean += c
 			p.CoverageMin = min(p.CoverageMin, c)
-			switch {
-			case v > 0:
+			if v > 0 { // bins whose estimate never varies are left out
 				p.BiasOverSigma += math.Abs(p.Bias[j]) / math.Sqrt(v)
-			case p.Bias[j] != 0:
-				p.BiasOverSigma = math.Inf(1)
+				spread++
 			}
 		}
 		if det > 0 {
 			p.CoverageMean /= float64(det)
-			p.BiasOverSigma /= float64(det)
+		}
+		if spread > 0 {
+			p.BiasOverSigma /= float64(spread)
 		}
 		pts[k] = p
 	}

@@ -1,0 +1,157 @@
+package validate
+
+import (
+	"context"
+	"fmt"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
+)
+
+// Options are the choices of a validation (see Validate).
+type Options struct {
+	// Method returns the method at regularisation strength k (the scan);
+	// Nominal is the method as the analysis sets it (closure and stress
+	// tests, and the nominal result).
+	Method  func(k int) unfold.Method
+	Nominal unfold.Method
+	// MaxK, Toys and Seed set the toy ensemble (see Config).
+	MaxK int
+	Toys int
+	Seed uint64
+	// Truth is the truth of the toys; nil means the generated spectrum
+	// scaled to the data (ScaledGenerated). TruthSource names it in the
+	// report ("generated" when Truth is nil).
+	Truth       []float64
+	TruthSource string
+	// Tilts, when TiltScheme is not nil, adds one stress test per axis of
+	// the scheme: a linear tilt of TiltPercent (Tilt). Weights adds
+	// stress tests of given weights per truth bin, by name.
+	TiltScheme  *binning.Scheme
+	TiltPercent float64
+	Weights     []NamedWeights
+	// Criterion chooses the recommendation (zero: MinMSE), with
+	// Threshold for BiasBelow.
+	Criterion Criterion
+	Threshold float64
+	// Progress, when not nil, reports the toys done (see Config).
+	Progress func(done, total int)
+}
+
+// NamedWeights are the weights of a stress test.
+type NamedWeights struct {
+	Name    string
+	Weights []float64
+}
+
+// DefaultTiltPercent is the size of the built-in linear tilts.
+const DefaultTiltPercent = 20
+
+// Report is everything a validation found.
+type Report struct {
+	Method      string    `json:"method"`
+	Toys        int       `json:"toys"`
+	MaxK        int       `json:"max_iterations"`
+	Seed        uint64    `json:"seed"`
+	TruthSource string    `json:"truth_source"`
+	Truth       []float64 `json:"truth"`
+	Determined  []bool    `json:"determined"`
+	// Labels name the truth bins (empty without a truth binning).
+	Labels []string `json:"labels,omitempty"`
+	Scan   []Point  `json:"scan"`
+	// Recommended is the k the criterion chooses; Recommendation the
+	// criterion with its curve.
+	Recommended    int             `json:"recommended_iterations"`
+	Recommendation *Recommendation `json:"recommendation"`
+	Closure        []*Check        `json:"closure"`
+	Stress         []*Check        `json:"stress"`
+}
+
+// ScaledGenerated returns the generated spectrum G of p scaled so that
+// its fold matches the data: G · Σ(n − b) / Σ_j eps_j G_j, 0 where not
+// determined.
+func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		return nil, err
+	}
+	t := make([]float64, pr.TruthBins())
+	var s float64
+	for j, d := range pr.Determined() {
+		if d {
+			t[j] = p.Generated[j]
+			s += pr.Efficiency()[j] * t[j]
+		}
+	}
+	f := netData(p) / s
+	if !(f > 0) {
+		return nil, fmt.Errorf("validate: the data minus the background sum to %v ≤ 0: there is no statistics to draw toys at", netData(p))
+	}
+	for j := range t {
+		t[j] *= f
+	}
+	return t, nil
+}
+
+// Validate runs the toy ensemble of o, the closure tests (exact and
+// fluctuated), the stress tests and the recommendation on problem p
+// with the common settings s.
+func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Options) (*Report, error) {
+	truth, src := o.Truth, o.TruthSource
+	if truth == nil {
+		var err error
+		if truth, err = ScaledGenerated(p); err != nil {
+			return nil, err
+		}
+		src = "generated"
+	}
+	c := &Config{Problem: p, Settings: s, Method: o.Method, MaxK: o.MaxK, Truth: truth, Toys: o.Toys, Seed: o.Seed, Progress: o.Progress}
+	e, err := Run(ctx, c, 0, 0)
+	if err != nil {
+		return nil, err
+	}
+	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan()}
+	crit := o.Criterion
+	if crit == "" {
+		crit = MinMSE
+	}
+	if r.Recommendation, err = Recommend(r.Scan, crit, o.Threshold); err != nil {
+		return nil, err
+	}
+	r.Recommended = r.Recommendation.K
+	for _, fl := range []bool{false, true} {
+		ch, err := Closure(ctx, p, s, o.Nominal, fl, o.Seed)
+		if err != nil {
+			return nil, err
+		}
+		r.Closure = append(r.Closure, ch)
+	}
+	ns, _ := s.Resolve()
+	ns.Covariance, ns.DiagonalMethod = unfold.Diagonal, unfold.DiagonalAuto
+	nominal, err := unfold.Unfold(ctx, p, &ns, o.Nominal)
+	if err != nil {
+		return nil, err
+	}
+	tests := append([]NamedWeights(nil), o.Weights...)
+	if o.TiltScheme != nil {
+		pct := o.TiltPercent
+		if pct == 0 {
+			pct = DefaultTiltPercent
+		}
+		for _, ax := range o.TiltScheme.AxisNames() {
+			w, err := Tilt(o.TiltScheme, ax, pct)
+			if err != nil {
+				return nil, err
+			}
+			tests = append(tests, NamedWeights{Name: fmt.Sprintf("tilt-%s-%+g%%", ax, pct), Weights: w})
+		}
+	}
+	for _, t := range tests {
+		ch, err := Stress(ctx, p, s, o.Nominal, t.Name, t.Weights, nominal)
+		if err != nil {
+			return nil, err
+		}
+		r.Stress = append(r.Stress, ch)
+	}
+	return r, nil
+}
