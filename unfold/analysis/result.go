@@ -49,27 +49,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
-	// Every input is checked here, once, before any event is read.
-	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
-		return nil, err
-	}
-	out := &Outcome{}
-	var err error
-	if a.ResponseFile != "" {
-		out.Response, out.ResponseInfo, err = a.LoadResponse()
-	} else {
-		out.Response, out.ResponseInfo, err = a.buildResponse(ctx, opt)
-	}
-	if err != nil {
-		return nil, err
-	}
-	if out.Data, err = a.FillData(ctx, opt); err != nil {
-		return nil, err
-	}
-	if out.Background, err = a.Background(ctx, out.Response, opt); err != nil {
-		return nil, err
-	}
-	p, err := a.Problem(out.Response, out.Data, out.Background)
+	out, p, err := a.Assemble(ctx, opt)
 	if err != nil {
 		return nil, err
 	}
@@ -87,6 +67,38 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
 	}
 	return out, nil
+}
+
+// Assemble checks every input, builds (or loads) the response, fills
+// the data and the background and returns them with the unfolding
+// problem, without unfolding: what Run unfolds, and what other studies
+// of the same problem start from.
+func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfold.Problem, error) {
+	// Every input is checked here, once, before any event is read.
+	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
+		return nil, nil, err
+	}
+	out := &Outcome{}
+	var err error
+	if a.ResponseFile != "" {
+		out.Response, out.ResponseInfo, err = a.LoadResponse()
+	} else {
+		out.Response, out.ResponseInfo, err = a.buildResponse(ctx, opt)
+	}
+	if err != nil {
+		return nil, nil, err
+	}
+	if out.Data, err = a.FillData(ctx, opt); err != nil {
+		return nil, nil, err
+	}
+	if out.Background, err = a.Background(ctx, out.Response, opt); err != nil {
+		return nil, nil, err
+	}
+	p, err := a.Problem(out.Response, out.Data, out.Background)
+	if err != nil {
+		return nil, nil, err
+	}
+	return out, p, nil
 }
 
 func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
