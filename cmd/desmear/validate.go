@@ -1,0 +1,305 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"text/tabwriter"
+	"time"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/inputs/tables"
+	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/validate"
+)
+
+// validateOptions are the options of "desmear validate". The plain-table
+// inputs and the nominal settings use the fields of unfoldOptions.
+type validateOptions struct {
+	unfoldOptions
+	truth     string
+	toys      int
+	maxK      int
+	criterion validate.Criterion
+	threshold float64
+	tilt      float64
+}
+
+// defaultValidationToys is the toy count of "desmear validate".
+const defaultValidationToys = 500
+
+// defaultScanIterations is the largest iteration count scanned.
+const defaultScanIterations = 10
+
+func newValidateCommand(g *globalOptions) *cobra.Command {
+	var o validateOptions
+	cmd := &cobra.Command{
+		Use:   "validate (ANALYSIS.yaml | --response A.csv --generated G.csv --data n.csv [--truth T.csv]) --out DIR [flags]",
+		Short: "Scan the number of iterations with toys, run closure and stress tests, recommend an iteration count",
+		Long: `validate measures how the unfolding behaves where the truth is known and
+writes a validation folder DIR:
+
+  - toys: Poisson pseudo-data drawn from a truth (--truth T.csv, by default
+    the generated spectrum scaled to the data) folded through the response
+    plus the background, each unfolded with 1..--max-iterations iterations;
+    per iteration count the bias, variance, pulls, coverage of the truth by
+    the +-1 sigma intervals and the mean squared error, each with its toy
+    precision;
+  - a recommendation: the iteration count minimising --criterion;
+  - closure: the simulation's own reco spectrum unfolded, exactly and with
+    Poisson fluctuations at the data's statistics;
+  - stress tests: the simulated truth tilted linearly by --tilt percent along
+    each axis of the truth binning, folded, unfolded and compared with the
+    tilted truth and with the nominal result.
+
+DIR holds validation.json, scan.csv, scan-bins.csv and checks.csv; it is
+written atomically, and an existing DIR is replaced only with --force (and
+only an earlier validation folder or an empty one). See "desmear help
+validation".`,
+		Example: `  desmear validate demo/analysis.yaml --out demo/validation
+  desmear validate --response A.csv --generated G.csv --data n.csv --truth T.csv \
+      --toys 1000 --max-iterations 15 --out validation`,
+		Args: cobra.MaximumNArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := o.checkValidate(cmd, args); err != nil {
+				return err
+			}
+			return runValidate(cmd.Context(), g, &o, args)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.response, "response", "", "response table `A.csv` (reco,truth,value[,sumw2])")
+	f.StringVar(&o.generated, "generated", "", "generated-count table `G.csv` (truth,value[,sumw2])")
+	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
+	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
+	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value); default: the generated counts")
+	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: bin labels, and one stress test per axis")
+	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
+	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()), "background-mode", "model or subtract (see \"desmear unfold --help\")")
+	f.IntVar(&o.iterations, "iterations", 0, "iterations `K` of the nominal unfolding, for closure and stress tests (default 4)")
+	f.StringVar(&o.truth, "truth", "", "truth table `T.csv` (truth,value) the toys are drawn from; default: the generated counts scaled to the data")
+	f.IntVar(&o.toys, "toys", defaultValidationToys, "number of toys `N`")
+	f.IntVar(&o.maxK, "max-iterations", defaultScanIterations, "scan 1..`K` iterations")
+	f.Var(flagval.NewChoice(&o.criterion, validate.MinMSE, criterionNames(), validate.Criteria()),
+		"criterion", "how the iteration count is recommended: min_mse (smallest summed mean squared error), min_mse_weighted (weighted by 1/truth), bias_below (smallest count whose mean |bias|/sigma is below --bias-threshold)")
+	f.Float64Var(&o.threshold, "bias-threshold", validate.DefaultBiasThreshold, "threshold `X` of --criterion bias_below")
+	f.Float64Var(&o.tilt, "tilt", validate.DefaultTiltPercent, "size in `PERCENT` of the linear tilts of the stress tests (0: none)")
+	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the toys; the same seed gives the same bits")
+	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for each unfolding, e.g. 8GiB")
+	f.StringVar(&o.out, "out", "", "validation folder `DIR` to create")
+	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier validation (or is empty)")
+	return cmd
+}
+
+func criterionNames() []string {
+	var n []string
+	for _, c := range validate.Criteria() {
+		n = append(n, string(c))
+	}
+	return n
+}
+
+// validateAnalysisFlags are the flags that apply with an analysis file.
+var validateAnalysisFlags = map[string]bool{"truth": true, "toys": true, "max-iterations": true, "criterion": true, "bias-threshold": true, "tilt": true, "seed": true, "out": true, "force": true}
+
+func (o *validateOptions) checkValidate(cmd *cobra.Command, args []string) error {
+	o.flags = cmd.Flags()
+	if o.out == "" {
+		return usagef("validate needs --out DIR; see \"desmear validate --help\"")
+	}
+	if len(args) == 1 {
+		var wrong []string
+		cmd.Flags().Visit(func(f *pflag.Flag) {
+			if !validateAnalysisFlags[f.Name] && cmd.LocalNonPersistentFlags().Lookup(f.Name) != nil {
+				wrong = append(wrong, "--"+f.Name)
+			}
+		})
+		if len(wrong) > 0 {
+			return usagef("%v cannot be combined with an analysis file: the inputs and settings come from %s", wrong, args[0])
+		}
+	} else if o.response == "" || o.generated == "" || o.data == "" {
+		return usagef("validate needs --response, --generated and --data (or an analysis file as the only argument); see \"desmear validate --help\"")
+	}
+	switch {
+	case o.flags.Changed("iterations") && o.iterations < 1:
+		return usagef("--iterations %d: give at least 1 iteration", o.iterations)
+	case o.toys < 2:
+		return usagef("--toys %d: give at least 2", o.toys)
+	case o.maxK < 1:
+		return usagef("--max-iterations %d: give at least 1", o.maxK)
+	case !(o.tilt >= 0 && o.tilt < 100):
+		return usagef("--tilt %v: give a size in [0, 100) percent", o.tilt)
+	case !(o.threshold > 0):
+		return usagef("--bias-threshold %v: give a number > 0", o.threshold)
+	}
+	return nil
+}
+
+// validation is what a validation needs, from either front end.
+type validation struct {
+	prob     *unfold.Problem
+	settings *unfold.Settings
+	method   *bayes.Settings
+	truth    *binning.Scheme
+	// locate places an error of the unfolding in the inputs.
+	locate func(error) error
+}
+
+func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args []string) error {
+	if err := refusedFolder(validate.CheckFolder(o.out, o.force), o.out, "validation folder", validate.JSONFile); err != nil {
+		return err
+	}
+	var v *validation
+	var err error
+	if len(args) == 1 {
+		v, err = loadValidationAnalysis(ctx, g, args[0])
+	} else {
+		v, err = loadValidationPlain(ctx, o)
+	}
+	if err != nil {
+		return err
+	}
+	opt := &validate.Options{
+		Method: func(k int) unfold.Method {
+			m := *v.method
+			m.Iterations, m.StopChi2, m.MaxIterations = k, 0, 0
+			return &m
+		},
+		Nominal: v.method, MaxK: o.maxK, Toys: o.toys, Seed: o.seed,
+		Criterion: o.criterion, Threshold: o.threshold,
+	}
+	if v.truth != nil && o.tilt > 0 {
+		opt.TiltScheme, opt.TiltPercent = v.truth, o.tilt
+	}
+	if o.truth != "" {
+		t, err := tables.LoadVector(o.truth, tables.Prior)
+		if err != nil {
+			return inputErr(fmt.Errorf("--truth: %w", err))
+		}
+		if opt.Truth, _, err = t.Dense(len(v.prob.Generated), "the response's truth bins"); err != nil {
+			return inputErr(fmt.Errorf("--truth: %w", err))
+		}
+		opt.TruthSource = o.truth
+	}
+	p := newProgress(g)
+	defer p.finish()
+	opt.Progress = func(done, total int) { p.report("toys", int64(done), int64(total)) }
+	start := time.Now()
+	rep, err := validate.Validate(ctx, v.prob, v.settings, opt)
+	p.finish()
+	if err != nil {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		return v.locate(err)
+	}
+	if v.truth != nil {
+		for j := range rep.Truth {
+			rep.Labels = append(rep.Labels, v.truth.Label(j))
+		}
+	}
+	if err := validate.WriteFolder(o.out, o.force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
+			return refusedFolder(err, o.out, "validation folder", validate.JSONFile)
+		}
+		return ioErr(fmt.Errorf("writing %s: %w", o.out, err))
+	}
+	if !g.quiet {
+		fmt.Fprintf(g.stderr, "desmear: validation with %d toys done in %.1f s\n", o.toys, time.Since(start).Seconds())
+	}
+	w := bufio.NewWriter(g.stdout)
+	printValidation(w, o.out, rep)
+	if err := w.Flush(); err != nil {
+		return ioErr(err)
+	}
+	return nil
+}
+
+// loadValidationAnalysis loads the analysis file and assembles its
+// problem (building the response and filling the data as "desmear
+// unfold" does).
+func loadValidationAnalysis(ctx context.Context, g *globalOptions, path string) (*validation, error) {
+	a, err := analysis.Load(path)
+	if err != nil {
+		return nil, analysisErr(err)
+	}
+	s, m, err := a.Settings()
+	if err != nil {
+		return nil, analysisErr(err)
+	}
+	b, ok := m.(*bayes.Settings)
+	if !ok {
+		return nil, usagef("%s: the iteration scan applies to the iterative method (%s), not to %s", path, bayes.Name, m.Name())
+	}
+	p := newProgress(g)
+	_, prob, err := a.Assemble(ctx, &analysis.Options{Progress: p.report, Version: version})
+	p.finish()
+	if err != nil {
+		return nil, analysisErr(err)
+	}
+	return &validation{prob: prob, settings: s, method: b, truth: a.Truth, locate: func(err error) error {
+		return analysisErr(err)
+	}}, nil
+}
+
+// loadValidationPlain reads the plain tables as "desmear unfold" does.
+func loadValidationPlain(ctx context.Context, o *validateOptions) (*validation, error) {
+	o.method = bayes.Name
+	pi, err := loadPlain(&o.unfoldOptions)
+	if err != nil {
+		return nil, err
+	}
+	z := pi.sizes(&o.unfoldOptions)
+	if err := checkSizes(z, o.memoryLimit); err != nil {
+		return nil, err
+	}
+	prob, err := pi.set.Assemble(z)
+	if err != nil {
+		return nil, inputErr(err)
+	}
+	s, m := o.settings(pi.truth)
+	s.Covariance = unfold.Diagonal
+	return &validation{prob: prob, settings: s, method: m.(*bayes.Settings), truth: pi.truth, locate: func(err error) error {
+		return o.kernelErr(&pi.set, err)
+	}}, nil
+}
+
+// printValidation prints the scan and the recommendation.
+func printValidation(w io.Writer, dir string, r *validate.Report) {
+	fmt.Fprintf(w, "validation: %s (%d toys from the %s truth)\n", dir, r.Toys, r.TruthSource)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "k\tmse\t± toys\tmean |bias|/sigma\tcoverage mean\tmin\t\n")
+	for _, p := range r.Scan {
+		mark := ""
+		if p.K == r.Recommended {
+			mark = " <"
+		}
+		fmt.Fprintf(tw, "%d\t%.5g\t%.2g\t%.3f\t%.3f\t%.3f\t%s\n", p.K, p.MSE, p.MSEError, p.BiasOverSigma, p.CoverageMean, p.CoverageMin, mark)
+	}
+	tw.Flush()
+	rec := r.Recommendation
+	fmt.Fprintf(w, "recommended iterations: %d (criterion %s", r.Recommended, rec.Criterion)
+	if rec.Criterion == validate.BiasBelow {
+		fmt.Fprintf(w, " < %g", rec.Threshold)
+		if !rec.Met {
+			fmt.Fprint(w, ", not met by any scanned count: the smallest value")
+		}
+	}
+	fmt.Fprintln(w, ")")
+	for _, c := range append(append([]*validate.Check(nil), r.Closure...), r.Stress...) {
+		fmt.Fprintf(w, "%s: chi2/ndf = %.3g/%d, largest |pull| %.3g (bin %d)", c.Name, c.Chi2, c.NDF, c.MaxPull, c.MaxPullBin)
+		if c.Nominal != nil {
+			fmt.Fprintf(w, "; against the nominal result chi2/ndf = %.3g/%d", c.Nominal.Chi2, c.Nominal.NDF)
+		}
+		fmt.Fprintln(w)
+	}
+}

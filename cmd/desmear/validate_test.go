@@ -1,0 +1,126 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+
+	"github.com/desmear/desmear/unfold/validate"
+)
+
+func readValidation(t *testing.T, dir string) *validate.Report {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(dir, validate.JSONFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var r validate.Report
+	if err := json.Unmarshal(b, &r); err != nil {
+		t.Fatal(err)
+	}
+	return &r
+}
+
+// TestValidateDemo: on the demo, the closure test without fluctuations
+// returns the simulation truth to rounding (the simulation's prior starts
+// the iteration at its fixed point, method.md §7 Exact properties of the
+// iteration); the folder holds the scan, the recommendation and one
+// stress test per truth axis.
+func TestValidateDemo(t *testing.T) {
+	ctx := context.Background()
+	dir := filepath.Join(t.TempDir(), "zeton")
+	if code, stdout, stderr := runCLI(t, ctx, "demo", "--out", dir, "--events", demoTestEvents, "--seed", "3"); code != 0 {
+		t.Fatalf("demo: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	out := filepath.Join(dir, "validation")
+	code, stdout, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out, "--toys", "60", "--max-iterations", "3")
+	if code != 0 {
+		t.Fatalf("validate: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	r := readValidation(t, out)
+	if len(r.Scan) != 3 || r.Recommended < 1 || r.Recommended > 3 || r.Toys != 60 {
+		t.Errorf("scan of %d points, recommended %d, %d toys", len(r.Scan), r.Recommended, r.Toys)
+	}
+	if c := r.Closure[0]; c.Fluctuated || c.MaxRelDeviation > 1e-9 {
+		t.Errorf("closure without fluctuations: largest relative deviation %v", c.MaxRelDeviation)
+	}
+	// Σ pull² of ndf bins: mean ndf, spread about sqrt(2 ndf) (common
+	// practice; the bins are correlated, so within 4 of those).
+	if c := r.Closure[1]; !c.Fluctuated || math.Abs(c.Chi2-float64(c.NDF)) > 4*math.Sqrt(2*float64(c.NDF)) {
+		t.Errorf("fluctuated closure: chi2 %v for %d bins", c.Chi2, c.NDF)
+	}
+	if len(r.Stress) != 2 || !strings.HasPrefix(r.Stress[0].Name, "tilt-y") || r.Stress[0].Nominal == nil {
+		t.Errorf("stress tests %+v", r.Stress)
+	}
+	for _, want := range []string{"recommended iterations:", "closure: chi2/ndf", "tilt-pt"} {
+		if !strings.Contains(stdout, want) {
+			t.Errorf("stdout lacks %q:\n%s", want, stdout)
+		}
+	}
+	for _, f := range validate.Files() {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Error(err)
+		}
+	}
+	// An existing folder is refused without --force.
+	if code, _, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out, "--toys", "4", "--max-iterations", "1"); code != exitUsage || !strings.Contains(stderr, "--force") {
+		t.Errorf("existing folder: exit %d, %s", code, stderr)
+	}
+	// The settings come from the analysis file.
+	if code, _, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out+"2", "--iterations", "3"); code != exitUsage || !strings.Contains(stderr, "--iterations") {
+		t.Errorf("--iterations with an analysis file: exit %d, %s", code, stderr)
+	}
+}
+
+// TestValidatePlain: plain-table mode with a toy truth table, the same
+// bits with one core and with two, and the usage errors.
+func TestValidatePlain(t *testing.T) {
+	files := map[string]string{"T.csv": "truth,value\n0,1200\n1,800\n2,400\n"}
+	for k, v := range oracleD {
+		files[k] = v
+	}
+	dir := writeFiles(t, t.TempDir(), files)
+	args := func(out string) []string {
+		return []string{"validate", "--response", filepath.Join(dir, "A.csv"), "--generated", filepath.Join(dir, "G.csv"),
+			"--data", filepath.Join(dir, "n.csv"), "--prior", filepath.Join(dir, "p.csv"), "--truth", filepath.Join(dir, "T.csv"),
+			"--toys", "100", "--max-iterations", "6", "--seed", "4", "--out", out}
+	}
+	ctx := context.Background()
+	var docs [2][]byte
+	for i, procs := range []int{1, 2} {
+		prev := runtime.GOMAXPROCS(procs)
+		out := filepath.Join(t.TempDir(), "v")
+		code, stdout, stderr := runCLI(t, ctx, args(out)...)
+		runtime.GOMAXPROCS(prev)
+		if code != 0 {
+			t.Fatalf("exit %d\n%s\n%s", code, stdout, stderr)
+		}
+		b, err := os.ReadFile(filepath.Join(out, validate.JSONFile))
+		if err != nil {
+			t.Fatal(err)
+		}
+		docs[i] = b
+		r := readValidation(t, out)
+		if r.TruthSource != filepath.Join(dir, "T.csv") || r.Truth[0] != 1200 {
+			t.Errorf("toy truth %s %v", r.TruthSource, r.Truth)
+		}
+	}
+	if !bytes.Equal(docs[0], docs[1]) {
+		t.Error("validation.json differs between 1 and 2 cores")
+	}
+	if code, _, stderr := runCLI(t, ctx, "validate", "--response", filepath.Join(dir, "A.csv"), "--out", filepath.Join(t.TempDir(), "x")); code != exitUsage || !strings.Contains(stderr, "--generated") {
+		t.Errorf("missing tables: exit %d, %s", code, stderr)
+	}
+	if code, _, stderr := runCLI(t, ctx, append(args(filepath.Join(t.TempDir(), "y")), "--toys", "1")...); code != exitUsage || !strings.Contains(stderr, "--toys") {
+		t.Errorf("--toys 1: exit %d, %s", code, stderr)
+	}
+	if code, _, stderr := runCLI(t, ctx, append(args(filepath.Join(t.TempDir(), "z")), "--criterion", "best")...); code != exitUsage {
+		t.Errorf("--criterion best: exit %d, %s", code, stderr)
+	}
+}
