@@ -92,11 +92,12 @@ type progress struct {
 	on    bool
 	w     io.Writer
 	stage string
+	unit  string // what is counted ("events" unless set)
 	bar   *progressbar.ProgressBar
 }
 
 func newProgress(g *globalOptions) *progress {
-	return &progress{on: g.progress(), w: g.stderr}
+	return &progress{on: g.progress(), w: g.stderr, unit: "events"}
 }
 
 func (p *progress) report(stage string, done, total int64) {
@@ -118,7 +119,7 @@ func (p *progress) report(stage string, done, total int64) {
 			progressbar.OptionSetWriter(p.w),
 			progressbar.OptionSetDescription(stage),
 			progressbar.OptionShowCount(),
-			progressbar.OptionSetItsString("events"),
+			progressbar.OptionSetItsString(p.unit),
 			progressbar.OptionShowIts(),
 			progressbar.OptionThrottle(100*time.Millisecond),
 			progressbar.OptionClearOnFinish(),

@@ -191,6 +191,7 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 		opt.TruthSource = o.truth
 	}
 	p := newProgress(g)
+	p.unit = "toys"
 	defer p.finish()
 	opt.Progress = func(done, total int) { p.report("toys", int64(done), int64(total)) }
 	start := time.Now()
