@@ -129,13 +129,7 @@ is at most --stop-chi2, within --max-iterations.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.response, "response", "", "response table `A.csv` (reco,truth,value[,sumw2])")
-	f.StringVar(&o.generated, "generated", "", "generated-count table `G.csv` (truth,value[,sumw2])")
-	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
-	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
-	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
-	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
-	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
+	o.tableFlags(f)
 	f.Var(flagval.NewChoice(&o.method, methods.Default, methods.Names(), methods.Names()),
 		"method", "the unfolding method: dagostini (the D'Agostini iterative Bayesian method)")
 	f.IntVar(&o.iterations, "iterations", 0, "fixed number of iterations `K` (default 4 unless --stop-chi2 is given)")
@@ -156,6 +150,17 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
 	return cmd
+}
+
+// tableFlags registers the flags of the plain-table inputs (tableFlags).
+func (o *unfoldOptions) tableFlags(f *pflag.FlagSet) {
+	f.StringVar(&o.response, "response", "", "response table `A.csv` (reco,truth,value[,sumw2])")
+	f.StringVar(&o.generated, "generated", "", "generated-count table `G.csv` (truth,value[,sumw2])")
+	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
+	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
+	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
+	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
+	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
 }
 
 // analysisFlags are the unfold flags that apply with an analysis file;

@@ -77,13 +77,7 @@ validation".`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.response, "response", "", "response table `A.csv` (reco,truth,value[,sumw2])")
-	f.StringVar(&o.generated, "generated", "", "generated-count table `G.csv` (truth,value[,sumw2])")
-	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
-	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
-	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value); default: the generated counts")
-	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: bin labels, and one stress test per axis")
-	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
+	o.tableFlags(f)
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()), "background-mode", "model or subtract (see \"desmear unfold --help\")")
 	f.IntVar(&o.iterations, "iterations", 0, "iterations `K` of the nominal unfolding, for closure and stress tests (default 4)")
 	f.StringVar(&o.truth, "truth", "", "truth table `T.csv` (truth,value) the toys are drawn from; default: the generated counts scaled to the data")
