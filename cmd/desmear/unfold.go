@@ -34,6 +34,7 @@ type unfoldOptions struct {
 
 	method        string
 	iterations    int
+	autoIter      bool // --iterations auto
 	stopChi2      float64
 	maxIterations int
 	bgMode        unfold.BackgroundMode
@@ -132,7 +133,7 @@ is at most --stop-chi2, within --max-iterations.`,
 	o.tableFlags(f)
 	f.Var(flagval.NewChoice(&o.method, methods.Default, methods.Names(), methods.Names()),
 		"method", "the unfolding method: dagostini (the D'Agostini iterative Bayesian method)")
-	f.IntVar(&o.iterations, "iterations", 0, "fixed number of iterations `K` (default 4 unless --stop-chi2 is given)")
+	f.Var(flagval.NewCountOrAuto(&o.iterations, &o.autoIter), "iterations", "fixed number of iterations `K` (default 4 unless --stop-chi2 is given), or auto: the count of smallest mean squared error on toys (see \"desmear help validation\")")
 	f.Float64Var(&o.stopChi2, "stop-chi2", 0, "stop at the first iteration whose chi-square between successive estimates is at most `X`")
 	f.IntVar(&o.maxIterations, "max-iterations", 0, "with --stop-chi2: at most `K` iterations (default 100)")
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()),
@@ -210,7 +211,7 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 	// (below); here only what the command line adds: an explicit 0
 	// (the libraries' "default") and flags given in the wrong mode.
 	switch {
-	case changed("iterations") && o.iterations == 0:
+	case changed("iterations") && o.iterations == 0 && !o.autoIter:
 		return usagef("--iterations 0: give at least 1 iteration")
 	case changed("iterations") && changed("stop-chi2"):
 		return usagef("give either --iterations or --stop-chi2, not both")
@@ -525,6 +526,12 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 
 	settings, method := o.settings(pi.truth)
+	var choice *result.IterationsChoice
+	if o.autoIter {
+		if choice, err = chooseIterations(ctx, g, prob, settings, method, o.seed); err != nil {
+			return o.kernelErr(&pi.set, err)
+		}
+	}
 	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
 		return o.kernelErr(&pi.set, err)
@@ -542,6 +549,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 		prior = "table"
 	}
 	r.Settings = result.DescribeSettings(settings, method, prior, o.background != "")
+	r.Settings.IterationsChosen = choice
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 	}

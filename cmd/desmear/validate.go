@@ -298,3 +298,32 @@ func printValidation(w io.Writer, dir string, r *validate.Report) {
 		fmt.Fprintln(w)
 	}
 }
+
+// chooseIterations is --iterations auto: it runs the toy scan of
+// "desmear validate" with its defaults (toys from the generated spectrum
+// scaled to the data, criterion min_mse), sets the chosen count in m and
+// returns the record of the choice.
+func chooseIterations(ctx context.Context, g *globalOptions, prob *unfold.Problem, s *unfold.Settings, m unfold.Method, seed uint64) (*result.IterationsChoice, error) {
+	b, ok := m.(*bayes.Settings)
+	if !ok {
+		return nil, usagef("--iterations auto applies to the iterative method (%s) only", bayes.Name)
+	}
+	p := newProgress(g)
+	p.unit = "toys"
+	defer p.finish()
+	rec, err := validate.Choose(ctx, prob, s, func(k int) unfold.Method {
+		c := *b
+		c.Iterations = k
+		return &c
+	}, defaultScanIterations, defaultValidationToys, seed, validate.MinMSE, 0, func(done, total int) {
+		p.report("choosing the iterations", int64(done), int64(total))
+	})
+	if err != nil {
+		return nil, err
+	}
+	b.Iterations = rec.K
+	if !g.quiet {
+		fmt.Fprintf(g.stderr, "desmear: %d iterations chosen (smallest %s of 1..%d on %d toys)\n", rec.K, rec.Criterion, defaultScanIterations, defaultValidationToys)
+	}
+	return &result.IterationsChoice{Criterion: string(rec.Criterion), Toys: defaultValidationToys, MaxIterations: defaultScanIterations, Seed: seed, Curve: rec.Curve}, nil
+}

@@ -8,6 +8,8 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -122,5 +124,43 @@ func TestValidatePlain(t *testing.T) {
 	}
 	if code, _, stderr := runCLI(t, ctx, append(args(filepath.Join(t.TempDir(), "z")), "--criterion", "best")...); code != exitUsage {
 		t.Errorf("--criterion best: exit %d, %s", code, stderr)
+	}
+}
+
+// TestUnfoldIterationsAuto: --iterations auto unfolds with the count the
+// toy scan recommends (the smallest of its recorded curve) and records
+// the criterion; the estimate is that of a fixed run with that count.
+func TestUnfoldIterationsAuto(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), oracleD)
+	ctx := context.Background()
+	auto := filepath.Join(t.TempDir(), "auto")
+	args := oracleDArgs(dir, auto)
+	if code, stdout, stderr := runCLI(t, ctx, append(args, "--iterations", "auto", "--seed", "9")...); code != 0 {
+		t.Fatalf("exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	r, _ := readResult(t, auto)
+	ch := r.Settings.IterationsChosen
+	if ch == nil || ch.Criterion != string(validate.MinMSE) || len(ch.Curve) != defaultScanIterations || ch.Seed != 9 {
+		t.Fatalf("iterations_chosen %+v", ch)
+	}
+	best := 0
+	for k, v := range ch.Curve {
+		if v < ch.Curve[best] {
+			best = k
+		}
+	}
+	if r.Settings.Iterations != best+1 {
+		t.Errorf("iterations %d, the curve is smallest at %d", r.Settings.Iterations, best+1)
+	}
+	fixed := filepath.Join(t.TempDir(), "fixed")
+	if code, _, stderr := runCLI(t, ctx, append(oracleDArgs(dir, fixed), "--iterations", strconv.Itoa(best+1))...); code != 0 {
+		t.Fatal(stderr)
+	}
+	f, _ := readResult(t, fixed)
+	if !slices.Equal(f.Estimate, r.Estimate) || f.Settings.IterationsChosen != nil {
+		t.Errorf("auto estimate %v, fixed %v", r.Estimate, f.Estimate)
+	}
+	if code, _, stderr := runCLI(t, ctx, append(oracleDArgs(dir, filepath.Join(t.TempDir(), "x")), "--iterations", "often")...); code != exitUsage || !strings.Contains(stderr, "auto") {
+		t.Errorf("--iterations often: exit %d, %s", code, stderr)
 	}
 }

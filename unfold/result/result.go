@@ -119,12 +119,26 @@ type Program struct {
 	Version string `json:"version"`
 }
 
+// IterationsChoice records an automatic choice of the number of
+// iterations: the criterion minimised over 1..MaxIterations on Toys toys
+// of seed Seed, with its value per count (Curve).
+type IterationsChoice struct {
+	Criterion     string    `json:"criterion"`
+	Toys          int       `json:"toys"`
+	MaxIterations int       `json:"max_iterations"`
+	Seed          uint64    `json:"seed"`
+	Curve         []float64 `json:"curve"`
+}
+
 // Settings are the unfolding settings in force, defaults filled in.
 type Settings struct {
 	// Method names the unfolding method (its Name, e.g. "dagostini").
 	Method string `json:"method"`
 	// Iterations is the fixed number of iterations; 0 with a stopping rule.
 	Iterations int `json:"iterations,omitempty"`
+	// IterationsChosen, when the number of iterations was chosen
+	// automatically, records how; absent otherwise.
+	IterationsChosen *IterationsChoice `json:"iterations_chosen,omitempty"`
 	// StopChi2 and MaxIterations are the stopping rule, when used.
 	StopChi2      float64 `json:"stop_chi2,omitempty"`
 	MaxIterations int     `json:"max_iterations,omitempty"`

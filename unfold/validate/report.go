@@ -155,3 +155,19 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 	}
 	return r, nil
 }
+
+// Choose runs the toy ensemble of a validation alone, with the toys
+// drawn from the generated spectrum scaled to the data, and returns the
+// regularisation strength criterion c chooses (threshold for BiasBelow)
+// with its curve: the automatic choice of the number of iterations.
+func Choose(ctx context.Context, p *unfold.Problem, s *unfold.Settings, method func(k int) unfold.Method, maxK, toys int, seed uint64, c Criterion, threshold float64, progress func(done, total int)) (*Recommendation, error) {
+	truth, err := ScaledGenerated(p)
+	if err != nil {
+		return nil, err
+	}
+	e, err := Run(ctx, &Config{Problem: p, Settings: s, Method: method, MaxK: maxK, Truth: truth, Toys: toys, Seed: seed, Progress: progress}, 0, 0)
+	if err != nil {
+		return nil, err
+	}
+	return Recommend(e.Scan(), c, threshold)
+}

@@ -125,3 +125,40 @@ func (b *ByteSize) Set(s string) error {
 
 // Type returns "size".
 func (b *ByteSize) Type() string { return "size" }
+
+// CountOrAuto is a flag holding a positive count or the word "auto".
+type CountOrAuto struct {
+	p    *int
+	auto *bool
+}
+
+// NewCountOrAuto returns a CountOrAuto storing a count into p (and false
+// into auto), or true into auto for "auto".
+func NewCountOrAuto(p *int, auto *bool) *CountOrAuto { return &CountOrAuto{p: p, auto: auto} }
+
+func (c *CountOrAuto) String() string {
+	if c.auto != nil && *c.auto {
+		return "auto"
+	}
+	if c.p == nil {
+		return "0"
+	}
+	return strconv.Itoa(*c.p)
+}
+
+// Set accepts a non-negative integer or "auto".
+func (c *CountOrAuto) Set(s string) error {
+	if s == "auto" {
+		*c.auto, *c.p = true, 0
+		return nil
+	}
+	n, err := strconv.Atoi(s)
+	if err != nil || n < 0 {
+		return fmt.Errorf("want a number of iterations or auto, not %q", s)
+	}
+	*c.auto, *c.p = false, n
+	return nil
+}
+
+// Type is the value's name in the usage text.
+func (c *CountOrAuto) Type() string { return "count|auto" }

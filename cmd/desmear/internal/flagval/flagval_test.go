@@ -48,3 +48,21 @@ func TestChoicePanics(t *testing.T) {
 	var v int
 	NewChoice(&v, 0, []string{"a", "b"}, []int{1})
 }
+
+// CountOrAuto takes a count or "auto" and refuses anything else.
+func TestCountOrAuto(t *testing.T) {
+	var n int
+	var auto bool
+	c := NewCountOrAuto(&n, &auto)
+	if err := c.Set("7"); err != nil || n != 7 || auto || c.String() != "7" {
+		t.Errorf("7: %v %d %v %s", err, n, auto, c)
+	}
+	if err := c.Set("auto"); err != nil || n != 0 || !auto || c.String() != "auto" {
+		t.Errorf("auto: %v %d %v %s", err, n, auto, c)
+	}
+	for _, bad := range []string{"-1", "four", ""} {
+		if err := c.Set(bad); err == nil {
+			t.Errorf("%q accepted", bad)
+		}
+	}
+}
