@@ -23,6 +23,7 @@ import (
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/validate"
 )
 
 // unfoldOptions are the options of "desmear unfold" in plain-table mode.
@@ -526,7 +527,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 
 	settings, method := o.settings(pi.truth)
-	var choice *result.IterationsChoice
+	var choice *validate.Choice
 	if o.autoIter {
 		if choice, err = chooseIterations(ctx, g, prob, settings, method, o.seed); err != nil {
 			return o.kernelErr(&pi.set, err)

@@ -34,12 +34,6 @@ type validateOptions struct {
 	tilt      float64
 }
 
-// defaultValidationToys is the toy count of "desmear validate".
-const defaultValidationToys = 500
-
-// defaultScanIterations is the largest iteration count scanned.
-const defaultScanIterations = 10
-
 func newValidateCommand(g *globalOptions) *cobra.Command {
 	var o validateOptions
 	cmd := &cobra.Command{
@@ -81,8 +75,8 @@ validation".`,
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()), "background-mode", "model or subtract (see \"desmear unfold --help\")")
 	f.IntVar(&o.iterations, "iterations", 0, "iterations `K` of the nominal unfolding, for closure and stress tests (default 4)")
 	f.StringVar(&o.truth, "truth", "", "truth table `T.csv` (truth,value) the toys are drawn from; default: the generated counts scaled to the data")
-	f.IntVar(&o.toys, "toys", defaultValidationToys, "number of toys `N`")
-	f.IntVar(&o.maxK, "max-iterations", defaultScanIterations, "scan 1..`K` iterations")
+	f.IntVar(&o.toys, "toys", validate.DefaultToys, "number of toys `N`")
+	f.IntVar(&o.maxK, "max-iterations", validate.DefaultMaxK, "scan 1..`K` iterations")
 	f.Var(flagval.NewChoice(&o.criterion, validate.MinMSE, criterionNames(), validate.Criteria()),
 		"criterion", "how the iteration count is recommended: min_mse (smallest summed mean squared error), min_mse_weighted (weighted by 1/truth), bias_below (smallest count whose mean |bias|/sigma is below --bias-threshold)")
 	f.Float64Var(&o.threshold, "bias-threshold", validate.DefaultBiasThreshold, "threshold `X` of --criterion bias_below")
@@ -163,11 +157,7 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 		return err
 	}
 	opt := &validate.Options{
-		Method: func(k int) unfold.Method {
-			m := *v.method
-			m.Iterations, m.StopChi2, m.MaxIterations = k, 0, 0
-			return &m
-		},
+		Method:  v.method.WithIterations,
 		Nominal: v.method, MaxK: o.maxK, Toys: o.toys, Seed: o.seed,
 		Criterion: o.criterion, Threshold: o.threshold,
 	}
@@ -299,11 +289,10 @@ func printValidation(w io.Writer, dir string, r *validate.Report) {
 	}
 }
 
-// chooseIterations is --iterations auto: it runs the toy scan of
-// "desmear validate" with its defaults (toys from the generated spectrum
-// scaled to the data, criterion min_mse), sets the chosen count in m and
-// returns the record of the choice.
-func chooseIterations(ctx context.Context, g *globalOptions, prob *unfold.Problem, s *unfold.Settings, m unfold.Method, seed uint64) (*result.IterationsChoice, error) {
+// chooseIterations is --iterations auto: it runs the toy scan
+// (validate.Choose), sets the chosen count in m and returns the record of
+// the choice.
+func chooseIterations(ctx context.Context, g *globalOptions, prob *unfold.Problem, s *unfold.Settings, m unfold.Method, seed uint64) (*validate.Choice, error) {
 	b, ok := m.(*bayes.Settings)
 	if !ok {
 		return nil, usagef("--iterations auto applies to the iterative method (%s) only", bayes.Name)
@@ -311,19 +300,15 @@ func chooseIterations(ctx context.Context, g *globalOptions, prob *unfold.Proble
 	p := newProgress(g)
 	p.unit = "toys"
 	defer p.finish()
-	rec, err := validate.Choose(ctx, prob, s, func(k int) unfold.Method {
-		c := *b
-		c.Iterations = k
-		return &c
-	}, defaultScanIterations, defaultValidationToys, seed, validate.MinMSE, 0, func(done, total int) {
+	ch, err := validate.Choose(ctx, prob, s, b.WithIterations, seed, func(done, total int) {
 		p.report("choosing the iterations", int64(done), int64(total))
 	})
 	if err != nil {
 		return nil, err
 	}
-	b.Iterations = rec.K
+	b.Iterations = ch.K
 	if !g.quiet {
-		fmt.Fprintf(g.stderr, "desmear: %d iterations chosen (smallest %s of 1..%d on %d toys)\n", rec.K, rec.Criterion, defaultScanIterations, defaultValidationToys)
+		fmt.Fprintf(g.stderr, "desmear: %d iterations chosen (smallest %s of 1..%d on %d toys)\n", ch.K, ch.Criterion, ch.MaxIterations, ch.Toys)
 	}
-	return &result.IterationsChoice{Criterion: string(rec.Criterion), Toys: defaultValidationToys, MaxIterations: defaultScanIterations, Seed: seed, Curve: rec.Curve}, nil
+	return ch, nil
 }

@@ -70,6 +70,29 @@ func TestValidateDemo(t *testing.T) {
 			t.Error(err)
 		}
 	}
+	// iterations: auto in the analysis file chooses the count of the
+	// smallest recorded curve value and records the choice.
+	src, err := os.ReadFile(filepath.Join(dir, "analysis.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	auto := strings.Replace(strings.Replace(string(src), "iterations: 4", "iterations: auto", 1), "folder: result", "folder: result-auto", 1)
+	if auto == string(src) {
+		t.Fatal("the demo's analysis file has no \"iterations: 4\"")
+	}
+	autoFile := filepath.Join(dir, "auto.yaml")
+	writeFiles(t, dir, map[string]string{"auto.yaml": auto})
+	if code, stdout, stderr := runCLI(t, ctx, "unfold", autoFile); code != 0 {
+		t.Fatalf("iterations: auto: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	res, _ := readResult(t, filepath.Join(dir, "result-auto"))
+	if ch := res.Settings.IterationsChosen; ch == nil || ch.Criterion != validate.MinMSE || res.Settings.Iterations != argmin(ch.Curve)+1 {
+		t.Errorf("iterations %d, choice %+v", res.Settings.Iterations, ch)
+	}
+	writeFiles(t, dir, map[string]string{"bad.yaml": strings.Replace(auto, "iterations: auto", "iterations: auto\n  stop_chi2: 0.5", 1)})
+	if code, _, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "bad.yaml")); code == 0 || !strings.Contains(stderr, "unfolding.iterations") {
+		t.Errorf("auto with stop_chi2: exit %d, %s", code, stderr)
+	}
 	// An existing folder is refused without --force.
 	if code, _, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out, "--toys", "4", "--max-iterations", "1"); code != exitUsage || !strings.Contains(stderr, "--force") {
 		t.Errorf("existing folder: exit %d, %s", code, stderr)
@@ -140,15 +163,10 @@ func TestUnfoldIterationsAuto(t *testing.T) {
 	}
 	r, _ := readResult(t, auto)
 	ch := r.Settings.IterationsChosen
-	if ch == nil || ch.Criterion != string(validate.MinMSE) || len(ch.Curve) != defaultScanIterations || ch.Seed != 9 {
+	if ch == nil || ch.Criterion != validate.MinMSE || len(ch.Curve) != validate.DefaultMaxK || ch.Seed != 9 {
 		t.Fatalf("iterations_chosen %+v", ch)
 	}
-	best := 0
-	for k, v := range ch.Curve {
-		if v < ch.Curve[best] {
-			best = k
-		}
-	}
+	best := argmin(ch.Curve)
 	if r.Settings.Iterations != best+1 {
 		t.Errorf("iterations %d, the curve is smallest at %d", r.Settings.Iterations, best+1)
 	}
@@ -163,4 +181,15 @@ func TestUnfoldIterationsAuto(t *testing.T) {
 	if code, _, stderr := runCLI(t, ctx, append(oracleDArgs(dir, filepath.Join(t.TempDir(), "x")), "--iterations", "often")...); code != exitUsage || !strings.Contains(stderr, "auto") {
 		t.Errorf("--iterations often: exit %d, %s", code, stderr)
 	}
+}
+
+// argmin returns the index of the first smallest value.
+func argmin(v []float64) int {
+	best := 0
+	for k, x := range v {
+		if x < v[best] {
+			best = k
+		}
+	}
+	return best
 }

@@ -15,6 +15,7 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -118,10 +119,13 @@ type Background struct {
 // Unfolding holds the settings of the iteration.
 type Unfolding struct {
 	// Method is the unfolding method's name (methods.Names).
-	Method        string
-	Iterations    int
-	StopChi2      float64
-	MaxIterations int
+	Method     string
+	Iterations int
+	// AutoIterations is "iterations: auto": the number of iterations is
+	// chosen by a toy scan before the unfolding (validate.Choose).
+	AutoIterations bool
+	StopChi2       float64
+	MaxIterations  int
 	// Prior is "simulation" (the generated spectrum), "flat" or "file".
 	Prior     string
 	PriorFile string // resolved, when Prior is "file"
@@ -255,12 +259,18 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Unfolding.
 	u := doc.Unfolding
-	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
+	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations.n, AutoIterations: u.Iterations.auto, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
 		Prior: u.Prior, Smoothing: u.Smoothing, Background: u.Background, Fakes: u.Fakes}
+	if u.Iterations.auto && u.StopChi2 != 0 {
+		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "give either iterations (a number or auto) or stop_chi2, not both")
+	}
 	if u.MaxIterations != 0 && u.StopChi2 == 0 {
 		c.errf(c.line("unfolding", "max_iterations"), "unfolding.max_iterations", "bounds the stopping rule: give stop_chi2 too, or use iterations")
 	}
 	c.oneOf(&a.Unfolding.Method, methods.Default, methods.Names(), "unfolding", "method")
+	if a.Unfolding.AutoIterations && a.Unfolding.Method != bayes.Name {
+		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "auto applies to the iterative method (%s) only", bayes.Name)
+	}
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
 	if a.Unfolding.Prior == "file" {
 		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.keyLine("unfolding", "prior_file"), c.line("unfolding", "prior"))

@@ -57,6 +57,20 @@ func (e *exprMap) UnmarshalYAML(n *yaml.Node) error {
 	return nil
 }
 
+// iterationsDoc is a number of iterations or the word auto.
+type iterationsDoc struct {
+	n    int
+	auto bool
+}
+
+func (d *iterationsDoc) UnmarshalYAML(n *yaml.Node) error {
+	if n.Kind == yaml.ScalarNode && n.Value == "auto" {
+		d.auto = true
+		return nil
+	}
+	return n.Decode(&d.n)
+}
+
 type levelsDoc struct {
 	Truth exprMap `yaml:"truth"`
 	Reco  exprMap `yaml:"reco"`
@@ -97,16 +111,16 @@ type bkgDoc struct {
 }
 
 type unfoldingDoc struct {
-	Method        string  `yaml:"method"`
-	Iterations    int     `yaml:"iterations"`
-	StopChi2      float64 `yaml:"stop_chi2"`
-	MaxIterations int     `yaml:"max_iterations"`
-	Prior         string  `yaml:"prior"`
-	PriorFile     string  `yaml:"prior_file"`
-	Smoothing     float64 `yaml:"smoothing"`
-	Background    string  `yaml:"background"`
-	Fakes         string  `yaml:"fakes"`
-	MemoryLimit   float64 `yaml:"memory_limit_gib"`
+	Method        string        `yaml:"method"`
+	Iterations    iterationsDoc `yaml:"iterations"`
+	StopChi2      float64       `yaml:"stop_chi2"`
+	MaxIterations int           `yaml:"max_iterations"`
+	Prior         string        `yaml:"prior"`
+	PriorFile     string        `yaml:"prior_file"`
+	Smoothing     float64       `yaml:"smoothing"`
+	Background    string        `yaml:"background"`
+	Fakes         string        `yaml:"fakes"`
+	MemoryLimit   float64       `yaml:"memory_limit_gib"`
 }
 
 type uncertainDoc struct {
@@ -271,6 +285,12 @@ func kindName(n *yaml.Node) string {
 func checkNode(es *Errors, file string, n *yaml.Node, t reflect.Type, field string) {
 	if n.Kind == yaml.AliasNode {
 		n = n.Alias
+	}
+	if t == reflect.TypeFor[iterationsDoc]() {
+		if n != nil && n.Kind == yaml.ScalarNode && n.Value == "auto" {
+			return
+		}
+		t = reflect.TypeFor[int]() // otherwise a count
 	}
 	if n == nil || reflect.PointerTo(t).Implements(unmarshaler) {
 		return

@@ -10,8 +10,10 @@ import (
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
+	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
+	"github.com/desmear/desmear/unfold/validate"
 )
 
 // OutputError is a failure to write the result folder (the inputs were
@@ -31,6 +33,9 @@ type Outcome struct {
 	Data         *Measured
 	Background   *Expected
 	Result       *unfold.Result
+	// IterationsChosen records the automatic choice of the number of
+	// iterations (iterations: auto); nil otherwise.
+	IterationsChosen *validate.Choice
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -57,6 +62,11 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err != nil {
 		return nil, err
 	}
+	if a.Unfolding.AutoIterations {
+		if out.IterationsChosen, err = a.chooseIterations(ctx, p, s, m, opt); err != nil {
+			return nil, err
+		}
+	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
@@ -67,6 +77,25 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
 	}
 	return out, nil
+}
+
+// chooseIterations runs the toy scan of iterations: auto and sets the
+// chosen number in m (the iterative method's settings).
+func (a *Analysis) chooseIterations(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) (*validate.Choice, error) {
+	b, ok := m.(*bayes.Settings)
+	if !ok {
+		return nil, fmt.Errorf("analysis: iterations: auto with the method %s, which Decode refuses", m.Name())
+	}
+	var progress func(done, total int)
+	if opt != nil && opt.Progress != nil {
+		progress = func(done, total int) { opt.Progress("choosing the iterations", int64(done), int64(total)) }
+	}
+	ch, err := validate.Choose(ctx, p, s, b.WithIterations, a.Uncertainty.Seed, progress)
+	if err != nil {
+		return nil, a.placeKernelError(err)
+	}
+	b.Iterations = ch.K
+	return ch, nil
 }
 
 // Assemble checks every input, builds (or loads) the response, fills
@@ -177,6 +206,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 		prior = a.Unfolding.Prior
 	}
 	doc.Settings = result.DescribeSettings(s, m, prior, out.Background != nil)
+	doc.Settings.IterationsChosen = out.IterationsChosen
 	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
 	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
 	doc.Analysis = &result.Analysis{File: a.File, Title: a.Title}

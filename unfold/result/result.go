@@ -10,6 +10,7 @@ import (
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/validate"
 )
 
 // Format and FormatVersion identify result.json files of this layout.
@@ -119,17 +120,6 @@ type Program struct {
 	Version string `json:"version"`
 }
 
-// IterationsChoice records an automatic choice of the number of
-// iterations: the criterion minimised over 1..MaxIterations on Toys toys
-// of seed Seed, with its value per count (Curve).
-type IterationsChoice struct {
-	Criterion     string    `json:"criterion"`
-	Toys          int       `json:"toys"`
-	MaxIterations int       `json:"max_iterations"`
-	Seed          uint64    `json:"seed"`
-	Curve         []float64 `json:"curve"`
-}
-
 // Settings are the unfolding settings in force, defaults filled in.
 type Settings struct {
 	// Method names the unfolding method (its Name, e.g. "dagostini").
@@ -138,7 +128,7 @@ type Settings struct {
 	Iterations int `json:"iterations,omitempty"`
 	// IterationsChosen, when the number of iterations was chosen
 	// automatically, records how; absent otherwise.
-	IterationsChosen *IterationsChoice `json:"iterations_chosen,omitempty"`
+	IterationsChosen *validate.Choice `json:"iterations_chosen,omitempty"`
 	// StopChi2 and MaxIterations are the stopping rule, when used.
 	StopChi2      float64 `json:"stop_chi2,omitempty"`
 	MaxIterations int     `json:"max_iterations,omitempty"`

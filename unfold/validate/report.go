@@ -156,18 +156,43 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 	return r, nil
 }
 
-// Choose runs the toy ensemble of a validation alone, with the toys
-// drawn from the generated spectrum scaled to the data, and returns the
-// regularisation strength criterion c chooses (threshold for BiasBelow)
-// with its curve: the automatic choice of the number of iterations.
-func Choose(ctx context.Context, p *unfold.Problem, s *unfold.Settings, method func(k int) unfold.Method, maxK, toys int, seed uint64, c Criterion, threshold float64, progress func(done, total int)) (*Recommendation, error) {
+// Defaults of the automatic choice (Choose) and of a validation's
+// command line.
+const (
+	// DefaultToys is the number of toys.
+	DefaultToys = 500
+	// DefaultMaxK is the largest regularisation strength scanned.
+	DefaultMaxK = 10
+)
+
+// Choice records an automatic choice of the regularisation strength (the
+// number of iterations): K, chosen by Criterion over 1..MaxIterations on
+// Toys toys of seed Seed, with the criterion's value per strength.
+type Choice struct {
+	K             int       `json:"-"`
+	Criterion     Criterion `json:"criterion"`
+	Toys          int       `json:"toys"`
+	MaxIterations int       `json:"max_iterations"`
+	Seed          uint64    `json:"seed"`
+	Curve         []float64 `json:"curve"`
+}
+
+// Choose runs the toy ensemble of a validation alone, with DefaultToys
+// toys drawn from the generated spectrum scaled to the data, over
+// 1..DefaultMaxK, and returns the strength the MinMSE criterion
+// chooses: the automatic choice of the number of iterations.
+func Choose(ctx context.Context, p *unfold.Problem, s *unfold.Settings, method func(k int) unfold.Method, seed uint64, progress func(done, total int)) (*Choice, error) {
 	truth, err := ScaledGenerated(p)
 	if err != nil {
 		return nil, err
 	}
-	e, err := Run(ctx, &Config{Problem: p, Settings: s, Method: method, MaxK: maxK, Truth: truth, Toys: toys, Seed: seed, Progress: progress}, 0, 0)
+	e, err := Run(ctx, &Config{Problem: p, Settings: s, Method: method, MaxK: DefaultMaxK, Truth: truth, Toys: DefaultToys, Seed: seed, Progress: progress}, 0, 0)
 	if err != nil {
 		return nil, err
 	}
-	return Recommend(e.Scan(), c, threshold)
+	rec, err := Recommend(e.Scan(), MinMSE, 0)
+	if err != nil {
+		return nil, err
+	}
+	return &Choice{K: rec.K, Criterion: rec.Criterion, Toys: DefaultToys, MaxIterations: DefaultMaxK, Seed: seed, Curve: rec.Curve}, nil
 }

@@ -19,6 +19,18 @@ func (s *Settings) Validate() error {
 	return err
 }
 
+// WithIterations returns a copy of s with a fixed number of k
+// iterations (no stopping rule): the method at regularisation strength
+// k, for scans of the number of iterations.
+func (s *Settings) WithIterations(k int) unfold.Method {
+	var c Settings
+	if s != nil {
+		c = *s
+	}
+	c.Iterations, c.StopChi2, c.MaxIterations = k, 0, 0
+	return &c
+}
+
 // Fit runs the iteration on p. The result's Details are a *Details.
 func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
 	rs, err := s.resolve()

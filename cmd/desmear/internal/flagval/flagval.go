@@ -146,14 +146,15 @@ func (c *CountOrAuto) String() string {
 	return strconv.Itoa(*c.p)
 }
 
-// Set accepts a non-negative integer or "auto".
+// Set accepts an integer or "auto"; the range of the count is the
+// settings' to check.
 func (c *CountOrAuto) Set(s string) error {
 	if s == "auto" {
 		*c.auto, *c.p = true, 0
 		return nil
 	}
 	n, err := strconv.Atoi(s)
-	if err != nil || n < 0 {
+	if err != nil {
 		return fmt.Errorf("want a number of iterations or auto, not %q", s)
 	}
 	*c.auto, *c.p = false, n
