@@ -300,6 +300,10 @@ func (m *Prepared) Columns() int {
 	return m.nr
 }
 
+// Net returns Σ_i (n_i − b_i) of the data as the fit uses them (in
+// Subtract mode Σ_i max(n_i − b_i, 0)).
+func (m *Prepared) Net() float64 { return m.net() }
+
 // net returns Σ_i (n_i − b_i) of the data as used.
 func (m *Prepared) net() float64 {
 	var s float64

@@ -96,18 +96,6 @@ func unfoldKnown(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m u
 	return c, res, nil
 }
 
-// netData returns Σ_i (n_i − b_i) of p's data.
-func netData(p *unfold.Problem) float64 {
-	var s float64
-	for _, x := range p.Data {
-		s += x
-	}
-	for _, x := range p.Background {
-		s -= x
-	}
-	return s
-}
-
 // Closure unfolds the simulation's own reco spectrum: ν = A·1 + b, the
 // migrations summed over the truth bins plus the background, whose truth
 // is the generated spectrum G. Without fluctuations the data are ν and
@@ -137,7 +125,7 @@ func Closure(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m unfol
 		for _, x := range sim {
 			ss += x
 		}
-		f := netData(p) / ss
+		f := pr.Net() / ss
 		for i := range sim {
 			sim[i] *= f
 		}
@@ -188,7 +176,7 @@ func Stress(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m unfold
 	if !(sum > 0) {
 		return nil, fmt.Errorf("validate: stress test %s: the reweighted truth folds to nothing", name)
 	}
-	f := netData(p) / sum
+	f := pr.Net() / sum
 	for j := range truth {
 		truth[j] *= f
 	}

@@ -83,9 +83,9 @@ func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
 			s += pr.Efficiency()[j] * t[j]
 		}
 	}
-	f := netData(p) / s
+	f := pr.Net() / s
 	if !(f > 0) {
-		return nil, fmt.Errorf("validate: the data minus the background sum to %v ≤ 0: there is no statistics to draw toys at", netData(p))
+		return nil, fmt.Errorf("validate: the data minus the background sum to %v ≤ 0: there is no statistics to draw toys at", pr.Net())
 	}
 	for j := range t {
 		t[j] *= f
