@@ -16,6 +16,11 @@
 //     background is removed from the data first, n' = max(n − b, 0),
 //     with var n' = var n + var b (0 where clipped); with InModel it
 //     enters the expectation ν = R μ + b.
+//     A Prepared is reused for ensembles of unfoldings of one response:
+//     SetData, SetPrior and SetResponse (same sparsity pattern) replace
+//     the data, the prior or the response values in its own buffers,
+//     validated as by Prepare, without allocating; a method's reusable
+//     form (bayes.Unfolder) then unfolds it again without allocating.
 //   - Settings, the settings every method shares (background mode and
 //     uncertainty computation), besides each method's own settings type.
 //   - Method and Fit, the interface a method implements, and Result, the

@@ -194,3 +194,70 @@ func BenchmarkFineIterationParts(b *testing.B) {
 		b.ReportMetric(median(d[k]).Seconds()*1e3, pt.name)
 	}
 }
+
+// BenchmarkFinePrepared: the fixed cost of one more unfolding of a
+// prepared problem at 500,000 × 1,000,000 (10M non-zeros), interleaved in
+// one loop: a reused Unfolder with 4 and with 8 iterations (the
+// difference over 4 is the marginal iteration, the rest of the 4-iteration
+// call its fixed cost), a whole unfold.Unfold call with 4 iterations, and
+// 4 bare fused sweeps. Reports medians and same-run ratios.
+func BenchmarkFinePrepared(b *testing.B) {
+	p := fineProblem(b)
+	ctx := context.Background()
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	u4, err := NewUnfolder(pr, &Settings{Iterations: 4})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u8, err := NewUnfolder(pr, &Settings{Iterations: 8})
+	if err != nil {
+		b.Fatal(err)
+	}
+	nr, nt := p.Migrations.Dims()
+	dst := make([]float64, nt)
+	x := make([]float64, nt)
+	y := make([]float64, nr)
+	next := make([]float64, nr)
+	for i := range y {
+		y[i] = 1
+	}
+	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	var t4, t8, tw, ts []time.Duration
+	b.ResetTimer()
+	for range b.N {
+		t0 := time.Now()
+		if _, err := u4.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t4 = append(t4, time.Since(t0))
+		t0 = time.Now()
+		if _, err := u8.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t8 = append(t8, time.Since(t0))
+		t0 = time.Now()
+		if _, err := unfoldWith(ctx, p, &opts{Iterations: 4}); err != nil {
+			b.Fatal(err)
+		}
+		tw = append(tw, time.Since(t0))
+		t0 = time.Now()
+		for range 4 {
+			p.Migrations.Sweep(next, y, upd)
+			y, next = next, y
+		}
+		ts = append(ts, time.Since(t0))
+	}
+	b.StopTimer()
+	m4, m8, mw, ms := median(t4), median(t8), median(tw), median(ts)
+	iter := (m8 - m4) / 4
+	b.ReportMetric(m4.Seconds()*1e3, "ms/prepared4")
+	b.ReportMetric(iter.Seconds()*1e3, "ms/iteration")
+	b.ReportMetric((m4-4*iter).Seconds()*1e3, "ms/fixed")
+	b.ReportMetric(float64(m4)/float64(4*iter), "prepared4/4iterations")
+	b.ReportMetric(mw.Seconds()*1e3, "ms/unfold4")
+	b.ReportMetric(float64(mw)/float64(4*iter), "unfold4/4iterations")
+	b.ReportMetric(float64(4*iter)/float64(ms), "iteration/sweep")
+}
