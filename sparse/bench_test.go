@@ -370,3 +370,58 @@ func BenchmarkAccumulate(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkSweepBlock compares one SweepBlock over 8 interleaved vectors
+// with 8 Sweeps of one vector each, timed in the same loop (alternating),
+// on the fine grid. Model bytes: one matrix pass per call plus, per
+// vector, y read and next written; the 8 Sweeps read the matrix 8 times.
+func BenchmarkSweepBlock(b *testing.B) {
+	m := fineMatrix(b)
+	const k = 8
+	x := make([]float64, m.cols)
+	for j := range x {
+		x[j] = 0.5
+	}
+	yb, nb := make([]float64, k*m.rows), make([]float64, k*m.rows)
+	for i := range yb {
+		yb[i] = 1
+	}
+	ys, ns := make([][]float64, k), make([][]float64, k)
+	for s := range ys {
+		ys[s], ns[s] = make([]float64, m.rows), make([]float64, m.rows)
+		for i := range ys[s] {
+			ys[s][i] = 1
+		}
+	}
+	updBlock := func(j int, g, out []float64) {
+		for s := range out {
+			out[s] = g[s] * x[j]
+		}
+	}
+	upd := func(j int, g float64) float64 { return g * x[j] }
+	m.SweepBlock(nb, yb, k, updBlock)
+	bw1 := sameRunTriad(b, m)
+	var tb, ts []float64
+	b.ResetTimer()
+	for b.Loop() {
+		t0 := time.Now()
+		m.SweepBlock(nb, yb, k, updBlock)
+		tb = append(tb, time.Since(t0).Seconds())
+		t0 = time.Now()
+		for s := range ys {
+			m.Sweep(ns[s], ys[s], upd)
+		}
+		ts = append(ts, time.Since(t0).Seconds())
+	}
+	b.StopTimer()
+	bw := (bw1 + sameRunTriad(b, m)) / 2
+	slices.Sort(tb)
+	slices.Sort(ts)
+	mb, ms := tb[len(tb)/2], ts[len(ts)/2]
+	bytes := matrixBytes(m) + k*16*float64(m.rows)
+	b.ReportMetric(mb*1e3, "ms/block8")
+	b.ReportMetric(ms*1e3, "ms/8sweeps")
+	b.ReportMetric(mb/ms, "block8/8sweeps")
+	b.ReportMetric(bw/1e9, "triad-GB/s")
+	b.ReportMetric(mb/(bytes/bw), "x-floor-block8")
+}

@@ -42,7 +42,8 @@
 //     exact V from the dense Jacobian, when it fits), DiagonalProbes (S
 //     random Rademacher probes z_s, (z_s)_i = ±sqrt(var n_i), propagated
 //     by the method as Jacobian-vector products, Fit.Tangents, in batches
-//     within half the memory limit; Var μ_j ≈ mean_s (J z_s)_j², relative
+//     within half the memory limit and ProbeBatchBytes, swept together in
+//     blocks of ProbeBlock; Var μ_j ≈ mean_s (J z_s)_j², relative
 //     precision of a variance at most sqrt(2/S)) or DiagonalToys (Poisson
 //     pseudo-data on which the method re-runs with the same
 //     regularisation, Fit.NewToyRunner; precision sqrt(2/(T−1))).

@@ -5,8 +5,11 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"runtime/metrics"
 	"slices"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -260,4 +263,78 @@ func BenchmarkFinePrepared(b *testing.B) {
 	b.ReportMetric(mw.Seconds()*1e3, "ms/unfold4")
 	b.ReportMetric(float64(mw)/float64(4*iter), "unfold4/4iterations")
 	b.ReportMetric(float64(4*iter)/float64(ms), "iteration/sweep")
+}
+
+// peakHeap runs f and returns the peak of the heap in use (objects and
+// the unused part of in-use spans) above the level before it, sampled
+// every 2 ms.
+func peakHeap(f func()) uint64 {
+	s := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}, {Name: "/memory/classes/heap/unused:bytes"}}
+	read := func() uint64 { metrics.Read(s); return s[0].Value.Uint64() + s[1].Value.Uint64() }
+	runtime.GC()
+	base := read()
+	var peak atomic.Uint64
+	stop, done := make(chan struct{}), make(chan struct{})
+	go func() {
+		defer close(done)
+		for {
+			if h := read(); h > peak.Load() {
+				peak.Store(h)
+			}
+			select {
+			case <-stop:
+				return
+			case <-time.After(2 * time.Millisecond):
+			}
+		}
+	}()
+	f()
+	close(stop)
+	<-done
+	if h := read(); h > peak.Load() {
+		peak.Store(h)
+	}
+	return peak.Load() - min(base, peak.Load())
+}
+
+// BenchmarkFineProbeBlocks: per-bin variances from 100 probes through 4
+// iterations at 500,000 × 1,000,000 (whole Unfold calls), the probes
+// in blocks (one SweepBlock per block of unfold.ProbeBlock probes and
+// iteration) and one by one (a Sweep per probe, the earlier path),
+// interleaved. Reports the medians, their ratio and the peak heap
+// above the problem's.
+func BenchmarkFineProbeBlocks(b *testing.B) {
+	p := fineProblem(b)
+	s := &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 100, Seed: 1}
+	defer func(v bool) { perProbe = v }(perProbe)
+	var tb, to []time.Duration
+	var hb, ho []float64
+	b.ResetTimer()
+	for range b.N {
+		for _, one := range []bool{false, true} {
+			perProbe = one
+			var d time.Duration
+			h := peakHeap(func() {
+				t0 := time.Now()
+				if _, err := unfoldWith(context.Background(), p, s); err != nil {
+					b.Fatal(err)
+				}
+				d = time.Since(t0)
+			})
+			if one {
+				to, ho = append(to, d), append(ho, float64(h))
+			} else {
+				tb, hb = append(tb, d), append(hb, float64(h))
+			}
+		}
+	}
+	b.StopTimer()
+	mb, mo := median(tb), median(to)
+	slices.Sort(hb)
+	slices.Sort(ho)
+	b.ReportMetric(mb.Seconds(), "s/blocks")
+	b.ReportMetric(mo.Seconds(), "s/one-by-one")
+	b.ReportMetric(float64(mb)/float64(mo), "blocks/one-by-one")
+	b.ReportMetric(hb[len(hb)/2]/1e6, "MB-peak-heap/blocks")
+	b.ReportMetric(ho[len(ho)/2]/1e6, "MB-peak-heap/one-by-one")
 }
