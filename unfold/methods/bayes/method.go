@@ -69,10 +69,10 @@ func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
 // Tangents carries the probes along a re-run of the iteration.
 func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 	blocked := f.sm == nil && !perProbe
-	if f.pr == nil || f.pr.count != dst.Len() || f.pr.blocked != blocked {
+	if f.pr == nil || f.pr.made < dst.Len() || f.pr.blocked != blocked {
 		f.pr = newProbes(f.m, dst, blocked)
 	} else {
-		f.pr.rebind(dst) // the next batch of the same size: the same buffers
+		f.pr.reuse(dst) // the next batch, no larger: the same buffers
 	}
 	_, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), f.pr)
 	return err

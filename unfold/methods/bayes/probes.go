@@ -40,6 +40,7 @@ type probes struct {
 	red   parallel.Reducer
 
 	blocked bool
+	made    int       // the number of probes the buffers were made for
 	spare   []float64 // the sweep's destination of a block (interleaved)
 	update  func(j int, g, x []float64)
 	cur     int // first probe of the block being swept
@@ -62,7 +63,7 @@ type probeWork struct {
 // tangents dμ_s it fills, in blocks (only without smoothing) or one by
 // one.
 func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
-	pr := &probes{m: m, count: batch.Len(), blocked: blocked}
+	pr := &probes{m: m, count: batch.Len(), made: batch.Len(), blocked: blocked}
 	pr.rebind(batch)
 	for s := 0; s < pr.count; s++ {
 		if !pr.blocked {
@@ -122,6 +123,21 @@ func (pr *probes) rebind(batch *unfold.Probes) {
 		}
 		pr.dmu = append(pr.dmu, batch.Tangent(s))
 	}
+}
+
+// reuse prepares pr, made for at least as many probes as batch has, for
+// batch, keeping its buffers.
+func (pr *probes) reuse(batch *unfold.Probes) {
+	pr.count = batch.Len()
+	if pr.blocked {
+		pr.tfold = pr.tfold[:(pr.count+unfold.ProbeBlock-1)/unfold.ProbeBlock]
+		for b := range pr.tfold {
+			pr.tfold[b] = pr.tfold[b][:pr.width(b*unfold.ProbeBlock)*pr.m.nr]
+		}
+	} else {
+		pr.tfold = pr.tfold[:pr.count]
+	}
+	pr.rebind(batch)
 }
 
 // width returns the number of probes of the block starting at probe s.
