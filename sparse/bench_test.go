@@ -9,6 +9,8 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
+
+	"github.com/desmear/desmear/sparse/sparsetest"
 )
 
 // The fine grid of the benchmarks: 500,000 truth × 1,000,000 reco bins,
@@ -29,58 +31,16 @@ func fineMatrix(b *testing.B) *Matrix {
 	return fine
 }
 
-// triad is a STREAM-like triad a = b + s c over three arrays of n float64
-// on GOMAXPROCS goroutines, returning the bandwidth in bytes per second by
-// STREAM's counting (24 bytes per element, write-allocate not counted):
-// the median of reps repetitions.
-type triad struct {
-	a, b, c []float64
-}
-
-func newTriad(n int) *triad {
-	t := &triad{make([]float64, n), make([]float64, n), make([]float64, n)}
-	for i := range t.b {
-		t.a[i], t.b[i], t.c[i] = 1, 2, 3 // touch every page
-	}
-	return t
-}
-
-func (t *triad) bandwidth(reps int) float64 {
-	g := runtime.GOMAXPROCS(0)
-	n := len(t.a)
-	times := make([]float64, reps)
-	for r := range times {
-		start := time.Now()
-		var wg sync.WaitGroup
-		for k := 0; k < g; k++ {
-			lo, hi := k*n/g, (k+1)*n/g
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				a, b, c := t.a[lo:hi], t.b[lo:hi], t.c[lo:hi]
-				b, c = b[:len(a)], c[:len(a)]
-				for i := range a {
-					a[i] = b[i] + 3*c[i]
-				}
-			}()
-		}
-		wg.Wait()
-		times[r] = time.Since(start).Seconds()
-	}
-	slices.Sort(times)
-	return 24 * float64(n) / times[reps/2]
-}
-
 var (
 	triadOnce sync.Once
-	triadBuf  *triad
+	triadBuf  *sparsetest.Triad
 )
 
 // sameRunTriad measures the triad bandwidth over arrays as large as the
 // matrix (each of nnz float64, 3×8 bytes per non-zero in all).
 func sameRunTriad(b *testing.B, m *Matrix) float64 {
-	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
-	return triadBuf.bandwidth(5)
+	triadOnce.Do(func() { triadBuf = sparsetest.NewTriad(m.NNZ()) })
+	return triadBuf.Bandwidth(5)
 }
 
 // kernelBench runs one kernel per benchmark iteration and reports its
@@ -230,7 +190,7 @@ func BenchmarkTriad(b *testing.B) {
 	sameRunTriad(b, fineMatrix(b)) // allocates the arrays once
 	var bw float64
 	for b.Loop() {
-		bw = triadBuf.bandwidth(1)
+		bw = triadBuf.Bandwidth(1)
 	}
 	b.ReportMetric(bw/1e9, "GB/s")
 }

@@ -231,14 +231,14 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	}
 	inv := pr.InvEfficiency()
 	upd := func(j int, g float64) float64 { v := x[j] * g * inv[j]; x[j] = v; return v }
-	tr := newTriad(max(2*a.NNZ(), 1<<22)) // each array holds as many bytes as the matrix (16 B per non-zero)
+	tr := sparsetest.NewTriad(max(2*a.NNZ(), 1<<22)) // each array holds as many bytes as the matrix (16 B per non-zero)
 	var ts, t1, t2, tw []time.Duration
 	var bw []float64
 	for range c.Rounds {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		bw = append(bw, tr.bandwidth(3))
+		bw = append(bw, tr.Bandwidth(3))
 		for j := range x {
 			x[j] = 1
 		}
@@ -310,46 +310,6 @@ func peakRSS() int64 {
 		return 0
 	}
 	return ru.Maxrss * 1024 // kilobytes on Linux
-}
-
-// triad is a STREAM-like triad a = b + 3c over three arrays of float64 on
-// GOMAXPROCS goroutines.
-type triad struct{ a, b, c []float64 }
-
-func newTriad(n int) *triad {
-	t := &triad{make([]float64, n), make([]float64, n), make([]float64, n)}
-	for i := range t.b {
-		t.a[i], t.b[i], t.c[i] = 1, 2, 3 // touch every page
-	}
-	return t
-}
-
-// bandwidth returns the median bandwidth of reps triads in bytes per
-// second by STREAM's counting (24 bytes per element).
-func (t *triad) bandwidth(reps int) float64 {
-	g := runtime.GOMAXPROCS(0)
-	n := len(t.a)
-	times := make([]float64, reps)
-	for rep := range times {
-		start := time.Now()
-		var wg sync.WaitGroup
-		for k := 0; k < g; k++ {
-			lo, hi := k*n/g, (k+1)*n/g
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				a, b, c := t.a[lo:hi], t.b[lo:hi], t.c[lo:hi]
-				b, c = b[:len(a)], c[:len(a)]
-				for i := range a {
-					a[i] = b[i] + 3*c[i]
-				}
-			}()
-		}
-		wg.Wait()
-		times[rep] = time.Since(start).Seconds()
-	}
-	slices.Sort(times)
-	return 24 * float64(n) / times[reps/2]
 }
 
 // event draws one simulated event of the grids of c: a truth cell

@@ -57,6 +57,25 @@ func fineProblem(b *testing.B) *unfold.Problem {
 	return fine.p
 }
 
+// bareSweeps returns a function making k bare fused sweeps of a (a
+// trivial update), the yardstick of the iteration benchmarks.
+func bareSweeps(a *sparse.Matrix) func(k int) {
+	nr, nt := a.Dims()
+	x := make([]float64, nt)
+	y := make([]float64, nr)
+	next := make([]float64, nr)
+	for i := range y {
+		y[i] = 1
+	}
+	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	return func(k int) {
+		for range k {
+			a.Sweep(next, y, upd)
+			y, next = next, y
+		}
+	}
+}
+
 func median(d []time.Duration) time.Duration {
 	s := slices.Clone(d)
 	slices.Sort(s)
@@ -72,14 +91,7 @@ func BenchmarkFineIterations(b *testing.B) {
 	p := fineProblem(b)
 	ctx := context.Background()
 	s := &opts{Iterations: 10}
-	nr, nt := p.Migrations.Dims()
-	x := make([]float64, nt)
-	y := make([]float64, nr)
-	next := make([]float64, nr)
-	for i := range y {
-		y[i] = 1
-	}
-	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	sweeps := bareSweeps(p.Migrations)
 	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		b.Fatal(err)
@@ -100,10 +112,7 @@ func BenchmarkFineIterations(b *testing.B) {
 		}
 		ti = append(ti, time.Since(t0))
 		t0 = time.Now()
-		for range 10 {
-			p.Migrations.Sweep(next, y, upd)
-			y, next = next, y
-		}
+		sweeps(10)
 		ts = append(ts, time.Since(t0))
 	}
 	b.StopTimer()
@@ -163,19 +172,12 @@ func BenchmarkFineIterationParts(b *testing.B) {
 	}
 	it := newIterator(m, nil)
 	it.start(m.n)
-	nr, nt := p.Migrations.Dims()
-	x := make([]float64, nt)
-	y := make([]float64, nr)
-	next := make([]float64, nr)
-	for i := range y {
-		y[i] = 1
-	}
-	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	sweep := bareSweeps(p.Migrations)
 	parts := []struct {
 		name string
 		f    func()
 	}{
-		{"ms/10sweeps", func() { p.Migrations.Sweep(next, y, upd) }},
+		{"ms/10sweeps", func() { sweep(1) }},
 		{"ms/10sweeps-update", func() { p.Migrations.Sweep(it.fnext, it.y, it.updateNoG) }},
 		{"ms/10sweeps-update-hook", func() { p.Migrations.SweepRows(it.fnext, it.y, it.updateNoG, it.rows) }},
 		{"ms/10reco-passes", func() { it.recoAll(it.fnext, it.nunext, it.ynext) }},
@@ -219,15 +221,9 @@ func BenchmarkFinePrepared(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	nr, nt := p.Migrations.Dims()
+	_, nt := p.Migrations.Dims()
 	dst := make([]float64, nt)
-	x := make([]float64, nt)
-	y := make([]float64, nr)
-	next := make([]float64, nr)
-	for i := range y {
-		y[i] = 1
-	}
-	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	sweeps := bareSweeps(p.Migrations)
 	var t4, t8, tw, ts []time.Duration
 	b.ResetTimer()
 	for range b.N {
@@ -247,10 +243,7 @@ func BenchmarkFinePrepared(b *testing.B) {
 		}
 		tw = append(tw, time.Since(t0))
 		t0 = time.Now()
-		for range 4 {
-			p.Migrations.Sweep(next, y, upd)
-			y, next = next, y
-		}
+		sweeps(4)
 		ts = append(ts, time.Since(t0))
 	}
 	b.StopTimer()
