@@ -297,15 +297,21 @@ func peakHeap(f func()) uint64 {
 // interleaved. Reports the medians, their ratio and the peak heap
 // above the problem's.
 func BenchmarkFineProbeBlocks(b *testing.B) {
+	benchBlocks(b, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 100, Seed: 1}, &perProbe)
+}
+
+// benchBlocks times Unfold of the fine problem under s with *oneByOne
+// false (blocks) and true, alternately (interleaved rounds), and reports the medians, their
+// ratio and the median peak heaps.
+func benchBlocks(b *testing.B, s *opts, oneByOne *bool) {
 	p := fineProblem(b)
-	s := &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 100, Seed: 1}
-	defer func(v bool) { perProbe = v }(perProbe)
+	defer func(v bool) { *oneByOne = v }(*oneByOne)
 	var tb, to []time.Duration
 	var hb, ho []float64
 	b.ResetTimer()
 	for range b.N {
 		for _, one := range []bool{false, true} {
-			perProbe = one
+			*oneByOne = one
 			var d time.Duration
 			h := peakHeap(func() {
 				t0 := time.Now()
