@@ -9,6 +9,8 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
+
+	"github.com/desmear/desmear/sparse/sparsetest"
 )
 
 // The fine grid of the benchmarks: 500,000 truth × 1,000,000 reco bins,
@@ -29,58 +31,16 @@ func fineMatrix(b *testing.B) *Matrix {
 	return fine
 }
 
-// triad is a STREAM-like triad a = b + s c over three arrays of n float64
-// on GOMAXPROCS goroutines, returning the bandwidth in bytes per second by
-// STREAM's counting (24 bytes per element, write-allocate not counted):
-// the median of reps repetitions.
-type triad struct {
-	a, b, c []float64
-}
-
-func newTriad(n int) *triad {
-	t := &triad{make([]float64, n), make([]float64, n), make([]float64, n)}
-	for i := range t.b {
-		t.a[i], t.b[i], t.c[i] = 1, 2, 3 // touch every page
-	}
-	return t
-}
-
-func (t *triad) bandwidth(reps int) float64 {
-	g := runtime.GOMAXPROCS(0)
-	n := len(t.a)
-	times := make([]float64, reps)
-	for r := range times {
-		start := time.Now()
-		var wg sync.WaitGroup
-		for k := 0; k < g; k++ {
-			lo, hi := k*n/g, (k+1)*n/g
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				a, b, c := t.a[lo:hi], t.b[lo:hi], t.c[lo:hi]
-				b, c = b[:len(a)], c[:len(a)]
-				for i := range a {
-					a[i] = b[i] + 3*c[i]
-				}
-			}()
-		}
-		wg.Wait()
-		times[r] = time.Since(start).Seconds()
-	}
-	slices.Sort(times)
-	return 24 * float64(n) / times[reps/2]
-}
-
 var (
 	triadOnce sync.Once
-	triadBuf  *triad
+	triadBuf  *sparsetest.Triad
 )
 
 // sameRunTriad measures the triad bandwidth over arrays as large as the
 // matrix (each of nnz float64, 3×8 bytes per non-zero in all).
 func sameRunTriad(b *testing.B, m *Matrix) float64 {
-	triadOnce.Do(func() { triadBuf = newTriad(m.NNZ()) })
-	return triadBuf.bandwidth(5)
+	triadOnce.Do(func() { triadBuf = sparsetest.NewTriad(m.NNZ()) })
+	return triadBuf.Bandwidth(5)
 }
 
 // kernelBench runs one kernel per benchmark iteration and reports its
@@ -230,7 +190,7 @@ func BenchmarkTriad(b *testing.B) {
 	sameRunTriad(b, fineMatrix(b)) // allocates the arrays once
 	var bw float64
 	for b.Loop() {
-		bw = triadBuf.bandwidth(1)
+		bw = triadBuf.Bandwidth(1)
 	}
 	b.ReportMetric(bw/1e9, "GB/s")
 }
@@ -369,4 +329,59 @@ func BenchmarkAccumulate(b *testing.B) {
 			b.ReportMetric(peakPerCell, "peak-B/cell")
 		})
 	}
+}
+
+// BenchmarkSweepBlock compares one SweepBlock over 8 interleaved vectors
+// with 8 Sweeps of one vector each, timed in the same loop (alternating),
+// on the fine grid. Model bytes: one matrix pass per call plus, per
+// vector, y read and next written; the 8 Sweeps read the matrix 8 times.
+func BenchmarkSweepBlock(b *testing.B) {
+	m := fineMatrix(b)
+	const k = 8
+	x := make([]float64, m.cols)
+	for j := range x {
+		x[j] = 0.5
+	}
+	yb, nb := make([]float64, k*m.rows), make([]float64, k*m.rows)
+	for i := range yb {
+		yb[i] = 1
+	}
+	ys, ns := make([][]float64, k), make([][]float64, k)
+	for s := range ys {
+		ys[s], ns[s] = make([]float64, m.rows), make([]float64, m.rows)
+		for i := range ys[s] {
+			ys[s][i] = 1
+		}
+	}
+	updBlock := func(j int, g, out []float64) {
+		for s := range out {
+			out[s] = g[s] * x[j]
+		}
+	}
+	upd := func(j int, g float64) float64 { return g * x[j] }
+	m.SweepBlock(nb, yb, k, updBlock)
+	bw1 := sameRunTriad(b, m)
+	var tb, ts []float64
+	b.ResetTimer()
+	for b.Loop() {
+		t0 := time.Now()
+		m.SweepBlock(nb, yb, k, updBlock)
+		tb = append(tb, time.Since(t0).Seconds())
+		t0 = time.Now()
+		for s := range ys {
+			m.Sweep(ns[s], ys[s], upd)
+		}
+		ts = append(ts, time.Since(t0).Seconds())
+	}
+	b.StopTimer()
+	bw := (bw1 + sameRunTriad(b, m)) / 2
+	slices.Sort(tb)
+	slices.Sort(ts)
+	mb, ms := tb[len(tb)/2], ts[len(ts)/2]
+	bytes := matrixBytes(m) + k*16*float64(m.rows)
+	b.ReportMetric(mb*1e3, "ms/block8")
+	b.ReportMetric(ms*1e3, "ms/8sweeps")
+	b.ReportMetric(mb/ms, "block8/8sweeps")
+	b.ReportMetric(bw/1e9, "triad-GB/s")
+	b.ReportMetric(mb/(bytes/bw), "x-floor-block8")
 }

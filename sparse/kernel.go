@@ -226,6 +226,7 @@ const (
 	kBackProject
 	kColSums
 	kScale
+	kSweepBlock
 )
 
 // workspace is the state of one kernel call in flight: the scatter
@@ -241,8 +242,13 @@ type workspace struct {
 	x      []float64
 	update func(j int, g float64) float64
 	rows   func(r, lo, hi int)
-	ntask  int64
-	next   atomic.Int64
+	// SweepBlock: the number of interleaved vectors, the update, and
+	// per block the gathered sums and the update's values (2·width each)
+	width       int
+	updateBlock func(j int, g, x []float64)
+	gx          []float64
+	ntask       int64
+	next        atomic.Int64
 	// pending counts the helper jobs of the current phase not finished;
 	// the helper that finishes the last one signals done.
 	pending atomic.Int64
@@ -265,7 +271,8 @@ func (p *partition) get(m *Matrix) *workspace {
 }
 
 func (p *partition) put(ws *workspace) {
-	ws.m, ws.dst, ws.x, ws.update, ws.rows = nil, nil, nil, nil, nil
+	ws.m, ws.dst, ws.x, ws.update, ws.rows, ws.updateBlock = nil, nil, nil, nil, nil, nil
+	ws.width = 0
 	p.mu.Lock()
 	p.free = append(p.free, ws)
 	p.mu.Unlock()
@@ -331,6 +338,20 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 	}
 	ws := p.get(m)
 	ws.kind, ws.dst, ws.x, ws.update, ws.rows = kind, dst, x, update, rows
+	m.execOn(ws, scatter)
+	p.put(ws)
+}
+
+// execOn runs the phases of a kernel call on the workspace ws, which
+// holds the call's arguments.
+func (m *Matrix) execOn(ws *workspace, scatter bool) {
+	p := m.part
+	nb := p.blocks()
+	w := max(ws.width, 1)
+	if nb == 1 {
+		ws.block(0)
+		return
+	}
 	workers := 1
 	if p.parallel {
 		workers = min(runtime.GOMAXPROCS(0), nb)
@@ -340,15 +361,14 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 		ws.phase(phaseEven, int64((nb+1)/2), workers)
 		ws.phase(phaseOdd, int64(nb/2), workers)
 	case scatter:
-		if len(ws.buf) < p.off[nb] {
-			ws.buf = make([]float64, p.off[nb])
+		if len(ws.buf) < w*p.off[nb] {
+			ws.buf = make([]float64, w*p.off[nb])
 		}
 		ws.phase(phaseBlocks, int64(nb), workers)
 		ws.phase(phaseReduce, int64(len(p.tasks)), workers)
 	default:
 		ws.phase(phaseBlocks, int64(nb), workers)
 	}
-	p.put(ws)
 }
 
 func (ws *workspace) phase(ph int, ntask int64, workers int) {
@@ -426,8 +446,9 @@ func (ws *workspace) block(b int) {
 	c0, c1 := p.bounds[b], p.bounds[b+1]
 	var buf []float64
 	lo := 0
+	w := max(ws.width, 1) // interleaved vectors (SweepBlock)
 	switch ws.kind {
-	case kFold, kSweep, kRowSums:
+	case kFold, kSweep, kRowSums, kSweepBlock:
 		switch {
 		case p.blocks() == 1:
 			buf = ws.dst
@@ -435,11 +456,11 @@ func (ws *workspace) block(b int) {
 		case p.colored:
 			buf = ws.dst
 			if b%2 == 0 {
-				clear(buf[p.clr[b]:p.clr[b+2]])
+				clear(buf[w*p.clr[b] : w*p.clr[b+2]])
 			}
 		default:
 			lo = p.lo[b]
-			buf = ws.buf[p.off[b]:p.off[b+1]]
+			buf = ws.buf[w*p.off[b] : w*p.off[b+1]]
 			clear(buf)
 		}
 	}
@@ -465,6 +486,29 @@ func (ws *workspace) block(b int) {
 			xj := update(c0+jj, gather(ri, v, y))
 			for k, i := range ri {
 				buf[i-lo] += v[k] * xj
+			}
+		}
+	case kSweepBlock:
+		y, update := ws.x, ws.updateBlock
+		gx := ws.gx[2*w*b : 2*w*(b+1)]
+		g, x := gx[:w], gx[w:]
+		if w == 8 {
+			ws.sweep8(buf, lo, colPtr, c0, c1, (*[8]float64)(g), (*[8]float64)(x))
+			break
+		}
+		for jj := 0; jj < c1-c0; jj++ {
+			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
+			v := val[colPtr[jj]:colPtr[jj+1]]
+			v = v[:len(ri)]
+			gatherBlock(g, ri, v, y)
+			update(c0+jj, g, x)
+			for k, i := range ri {
+				vk := v[k]
+				d := buf[w*(i-lo) : w*(i-lo+1)]
+				d = d[:len(x)]
+				for s, xs := range x {
+					d[s] += vk * xs
+				}
 			}
 		}
 	case kRowSums:
@@ -529,24 +573,98 @@ func gather(ri []int, v, y []float64) float64 {
 	return (s0 + s1) + (s2 + s3)
 }
 
+// gatherBlock sets g[s] = Σ_k v[k] y[ri[k]·w + s] for the w = len(g)
+// vectors interleaved in y, each summed exactly as gather sums one
+// vector, so that every vector gets the bits gather would give it.
+func gatherBlock(g []float64, ri []int, v, y []float64) {
+	w := len(g)
+	v = v[:len(ri)]
+	for s := range g {
+		var s0, s1, s2, s3 float64
+		k := 0
+		for ; k+4 <= len(ri); k += 4 {
+			s0 += v[k] * y[ri[k]*w+s]
+			s1 += v[k+1] * y[ri[k+1]*w+s]
+			s2 += v[k+2] * y[ri[k+2]*w+s]
+			s3 += v[k+3] * y[ri[k+3]*w+s]
+		}
+		for ; k < len(ri); k++ {
+			s0 += v[k] * y[ri[k]*w+s]
+		}
+		g[s] = (s0 + s1) + (s2 + s3)
+	}
+}
+
+// sweep8 is the SweepBlock loop of block columns c0..c1-1 for 8
+// vectors, with fixed-size rows: the same sums in the same order as
+// gatherBlock and the generic scatter (per vector, the four chains
+// k mod 4 of gather, the tail into the first), fewer bounds checks.
+func (ws *workspace) sweep8(buf []float64, lo int, colPtr []int, c0, c1 int, g, x *[8]float64) {
+	rowIdx, val, y, update := ws.m.rowIdx, ws.m.val, ws.x, ws.updateBlock
+	for jj := 0; jj < c1-c0; jj++ {
+		ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
+		v := val[colPtr[jj]:colPtr[jj+1]]
+		v = v[:len(ri)]
+		var acc [4][8]float64
+		k := 0
+		for ; k+4 <= len(ri); k += 4 {
+			for q := range 4 {
+				vq, yr, a := v[k+q], (*[8]float64)(y[8*ri[k+q]:]), &acc[q]
+				a[0] += vq * yr[0]
+				a[1] += vq * yr[1]
+				a[2] += vq * yr[2]
+				a[3] += vq * yr[3]
+				a[4] += vq * yr[4]
+				a[5] += vq * yr[5]
+				a[6] += vq * yr[6]
+				a[7] += vq * yr[7]
+			}
+		}
+		for ; k < len(ri); k++ {
+			vq, yr, a := v[k], (*[8]float64)(y[8*ri[k]:]), &acc[0]
+			for s := range 8 {
+				a[s] += vq * yr[s]
+			}
+		}
+		for s := range 8 {
+			g[s] = (acc[0][s] + acc[1][s]) + (acc[2][s] + acc[3][s])
+		}
+		update(c0+jj, g[:], x[:])
+		x0, x1, x2, x3, x4, x5, x6, x7 := x[0], x[1], x[2], x[3], x[4], x[5], x[6], x[7]
+		for k, i := range ri {
+			vk, d := v[k], (*[8]float64)(buf[8*(i-lo):])
+			d[0] += vk * x0
+			d[1] += vk * x1
+			d[2] += vk * x2
+			d[3] += vk * x3
+			d[4] += vk * x4
+			d[5] += vk * x5
+			d[6] += vk * x6
+			d[7] += vk * x7
+		}
+	}
+}
+
 // reduce runs phase 2 task t: the destination rows are the sums of the
 // covering blocks' buffers, taken in block order.
 func (ws *workspace) reduce(t int) {
 	p := ws.p
+	w := max(ws.width, 1)
 	task := p.tasks[t]
-	dst := ws.dst[task.start:task.end]
+	start, end := w*task.start, w*task.end
+	dst := ws.dst[start:end]
 	cov := p.covers[task.first : task.first+task.n]
 	if len(cov) == 0 {
 		clear(dst)
 		return
 	}
 	b := int(cov[0])
-	base := p.off[b] - p.lo[b]
-	copy(dst, ws.buf[base+task.start:base+task.end])
+	base := w * (p.off[b] - p.lo[b])
+	copy(dst, ws.buf[base+start:base+end])
 	for _, c := range cov[1:] {
 		b := int(c)
-		base := p.off[b] - p.lo[b]
-		src := ws.buf[base+task.start : base+task.end]
+		base := w * (p.off[b] - p.lo[b])
+		src := ws.buf[base+start : base+end]
 		src = src[:len(dst)]
 		for i, v := range src {
 			dst[i] += v
@@ -591,6 +709,32 @@ func (m *Matrix) Sweep(next, y []float64, update func(j int, g float64) float64)
 		panic("sparse: Sweep dimension mismatch")
 	}
 	m.exec(kSweep, next, y, update, nil)
+}
+
+// SweepBlock is Sweep on k vectors at once, read from y and written to
+// next interleaved: element i of vector s is y[i*k+s] (len(y) and
+// len(next) are k times the number of rows). For every column j it
+// gathers g[s] = (Aᵀ y_s)_j for s < k, calls update(j, g, x), which must
+// set x[s] for every s, and scatters column j times x[s] into next_s. The
+// matrix is read once for all k vectors. Every vector gets exactly the
+// bits that Sweep would give it alone (the same sums in the same order),
+// whatever k. next is overwritten and must not alias y. g and x have
+// length k, belong to the call and must not be kept. The rules of Sweep
+// for update apply. SweepBlock allocates only on the first calls (its
+// scratch is kept with the matrix's workspaces). It panics if k < 1 or
+// a length does not match.
+func (m *Matrix) SweepBlock(next, y []float64, k int, update func(j int, g, x []float64)) {
+	if k < 1 || len(next) != k*m.rows || len(y) != k*m.rows {
+		panic("sparse: SweepBlock dimension mismatch")
+	}
+	p := m.part
+	ws := p.get(m)
+	ws.kind, ws.dst, ws.x, ws.updateBlock, ws.width = kSweepBlock, next, y, update, k
+	if n := 2 * k * p.blocks(); len(ws.gx) < n {
+		ws.gx = make([]float64, n)
+	}
+	m.execOn(ws, true)
+	p.put(ws)
 }
 
 // RowRanges returns the fixed partition of the rows used by SweepRows:

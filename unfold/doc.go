@@ -16,6 +16,11 @@
 //     background is removed from the data first, n' = max(n − b, 0),
 //     with var n' = var n + var b (0 where clipped); with InModel it
 //     enters the expectation ν = R μ + b.
+//     A Prepared is reused for ensembles of unfoldings of one response:
+//     SetData, SetPrior and SetResponse (same sparsity pattern) replace
+//     the data, the prior or the response values in its own buffers,
+//     validated as by Prepare, without allocating; a method's reusable
+//     form (bayes.Unfolder) then unfolds it again without allocating.
 //   - Settings, the settings every method shares (background mode and
 //     uncertainty computation), besides each method's own settings type.
 //   - Method and Fit, the interface a method implements, and Result, the
@@ -37,7 +42,8 @@
 //     exact V from the dense Jacobian, when it fits), DiagonalProbes (S
 //     random Rademacher probes z_s, (z_s)_i = ±sqrt(var n_i), propagated
 //     by the method as Jacobian-vector products, Fit.Tangents, in batches
-//     within half the memory limit; Var μ_j ≈ mean_s (J z_s)_j², relative
+//     within half the memory limit and ProbeBatchBytes, swept together in
+//     blocks of ProbeBlock; Var μ_j ≈ mean_s (J z_s)_j², relative
 //     precision of a variance at most sqrt(2/S)) or DiagonalToys (Poisson
 //     pseudo-data on which the method re-runs with the same
 //     regularisation, Fit.NewToyRunner; precision sqrt(2/(T−1))).

@@ -118,8 +118,8 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 	if err != nil {
 		return nil, err
 	}
-	if net := pr.net(); net <= 0 {
-		return nil, inputErr("Data", -1, -1, "the data minus the background sum to %v ≤ 0: there is nothing to unfold", net)
+	if err := pr.checkNet(); err != nil {
+		return nil, err
 	}
 	plan, err := planUncertainty(pr, &rs)
 	if err != nil {
@@ -138,10 +138,8 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 		Clipped:    pr.clip,
 		Details:    fit.Details(),
 	}
-	if rs.Background == Subtract && p.Background != nil {
-		for i, b := range p.Background {
-			res.Folded[i] += b
-		}
+	for i, b := range pr.SubtractedBackground() {
+		res.Folded[i] += b
 	}
 	if err := plan.finish(ctx, fit, res); err != nil {
 		return nil, err

@@ -3,6 +3,7 @@ package unfold
 import (
 	"math"
 	"runtime"
+	"slices"
 
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold/internal/parallel"
@@ -57,6 +58,18 @@ type Prepared struct {
 	sumEP    float64        // Σ_j eps_j p_j
 	clip     []int          // Subtract mode: reco bins where n − b < 0
 	weighted bool           // var n is not n (given variances or a subtracted background)
+
+	// kept for the Set methods
+	mode      BackgroundMode
+	gen       []float64 // Generated (the caller's)
+	priorSrc  []float64 // Prior as given (the caller's; nil: Generated)
+	bg, bgVar []float64 // Background, BackgroundVariance (the caller's)
+	reach     []float64 // row sums of A
+	clipBuf   []int     // storage of clip
+	errs      []error   // one per validation task
+	rp        []float64 // R p, valid when rpValid
+	rpTmp     []float64 // truth-sized scratch of R p
+	rpValid   bool
 }
 
 // EfficiencyTolerance is the relative allowance for rounding in the
@@ -127,16 +140,44 @@ func Prepare(p *Problem, mode BackgroundMode) (*Prepared, error) {
 		return nil, inputErr("BackgroundVariance", -1, -1, "given without a background")
 	}
 
+	m := &Prepared{nt: nt, nr: nr, mode: mode, bg: p.Background, bgVar: p.BackgroundVariance,
+		invG: make([]float64, nt), eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt),
+		reach: make([]float64, nr), prior: make([]float64, nt)}
+	m.errs = make([]error, (nt+colBlock-1)/colBlock)
+	if mode == Subtract && p.Background != nil {
+		m.n = make([]float64, nr)
+		m.varN = make([]float64, nr)
+	}
+	if err := m.setResponse(a, p.Generated); err != nil {
+		return nil, err
+	}
+	if err := m.setData(p.Data, p.DataVariance); err != nil {
+		return nil, err
+	}
+	if err := m.setPrior(p.Prior); err != nil {
+		return nil, err
+	}
+	return m, nil
+}
+
+// colBlock is the number of columns of one task of the response's
+// validation.
+const colBlock = 4096
+
+// setResponse validates the migrations a with generated counts g and sets
+// A, 1/G, the efficiencies, the determined bins and the row sums, into
+// m's buffers. The data and the prior must be set again after it.
+func (m *Prepared) setResponse(a *sparse.Matrix, g []float64) error {
 	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()
-	m := &Prepared{nt: nt, nr: nr, a: a, invG: make([]float64, nt), eps: make([]float64, nt), invEps: make([]float64, nt), det: make([]bool, nt)}
+	nt := m.nt
 	// Columns in fixed blocks on several goroutines; each column is
 	// summed serially, so the result does not depend on the scheduling.
-	const colBlock = 4096
-	nb := (nt + colBlock - 1) / colBlock
-	errs := make([]error, nb)
-	parallel.For(nb, runtime.GOMAXPROCS(0), func(b int) {
+	errs := m.errs
+	clear(errs)
+	parallel.For(len(errs), runtime.GOMAXPROCS(0), func(b int) {
 		for j := b * colBlock; j < min(nt, (b+1)*colBlock); j++ {
-			g := p.Generated[j]
+			m.invG[j], m.eps[j], m.invEps[j], m.det[j] = 0, 0, 0, false
+			g := g[j]
 			var sum float64
 			for k := colPtr[j]; k < colPtr[j+1]; k++ {
 				v := val[k]
@@ -170,64 +211,198 @@ func Prepare(p *Problem, mode BackgroundMode) (*Prepared, error) {
 	})
 	for _, err := range errs {
 		if err != nil {
-			return nil, err
+			return err
 		}
 	}
+	m.a, m.gen = a, g
+	m.rpValid = false
 	// Some determined truth bin reaches reco bin i when row i of A has a
 	// positive sum (all entries are ≥ 0, and a column with a positive
 	// entry is determined).
-	reach := make([]float64, nr)
-	a.RowSums(reach)
+	a.RowSums(m.reach)
+	return nil
+}
 
-	n := p.Data
-	varN := p.DataVariance
+// setData sets the data n and its variance (nil: Poisson) as the fit uses
+// them in m's background mode, and checks that every count is reached by
+// the response or explained by the background. In Subtract mode it
+// writes into m's own buffers, otherwise m keeps n and varN.
+func (m *Prepared) setData(n, varN []float64) error {
+	given := varN != nil
 	if varN == nil {
 		varN = n
 	}
+	clip := m.clipBuf[:0]
 	switch {
-	case mode == Subtract && p.Background != nil:
-		m.n = make([]float64, nr)
-		m.varN = make([]float64, nr)
+	case m.mode == Subtract && m.bg != nil:
 		for i := range n {
-			d := n[i] - p.Background[i]
+			m.n[i], m.varN[i] = 0, 0
+			d := n[i] - m.bg[i]
 			if d < 0 {
-				m.clip = append(m.clip, i)
+				clip = append(clip, i)
 				continue
 			}
 			m.n[i] = d
 			m.varN[i] = varN[i]
-			if p.BackgroundVariance != nil {
-				m.varN[i] += p.BackgroundVariance[i]
+			if m.bgVar != nil {
+				m.varN[i] += m.bgVar[i]
 			}
 		}
 	default:
 		m.n = n
 		m.varN = varN
-		m.b = p.Background
-		m.varB = p.BackgroundVariance
+		m.b = m.bg
+		m.varB = m.bgVar
+	}
+	m.clipBuf, m.clip = clip, nil
+	if len(clip) > 0 {
+		m.clip = clip
 	}
 	for i, x := range m.n {
-		if x > 0 && !(reach[i] > 0) && (m.b == nil || m.b[i] == 0) {
-			return nil, inputErr("Data", i, -1, "count %v in a reco bin that no truth bin reaches and no background explains", x)
+		if x > 0 && !(m.reach[i] > 0) && (m.b == nil || m.b[i] == 0) {
+			return inputErr("Data", i, -1, "count %v in a reco bin that no truth bin reaches and no background explains", x)
 		}
 	}
+	m.weighted = given || m.mode == Subtract && m.bg != nil
+	return nil
+}
 
-	m.weighted = p.DataVariance != nil || mode == Subtract && p.Background != nil
-	prior := p.Prior
+// setPrior sets the prior (nil: the generated counts) on the determined
+// bins and Σ_j eps_j p_j.
+func (m *Prepared) setPrior(prior []float64) error {
+	m.priorSrc = prior
 	if prior == nil {
-		prior = p.Generated
+		prior = m.gen
 	}
-	m.prior = make([]float64, nt)
+	m.sumEP = 0
 	for j, d := range m.det {
+		m.prior[j] = 0
 		if d {
 			m.prior[j] = prior[j]
 			m.sumEP += m.eps[j] * prior[j]
 		}
 	}
+	m.rpValid = false
 	if !(m.sumEP > 0) {
-		return nil, inputErr("Prior", -1, -1, "the prior is zero in every truth bin the response can measure")
+		return inputErr("Prior", -1, -1, "the prior is zero in every truth bin the response can measure")
 	}
-	return m, nil
+	return nil
+}
+
+// SetData replaces the data and its variance (nil: Poisson, the counts
+// themselves), keeping the response, the background and the prior, as
+// for a new unfolding of the same problem with other data (toys,
+// replicas). It validates them as Prepare does and allocates nothing
+// (in Subtract mode the list of clipped bins may grow once). Outside
+// Subtract mode m keeps data and variance, which must not be modified
+// while m is in use. On an error m must not be used until a later call
+// succeeds.
+//
+// Errors: *InputError as from Prepare for the fields Data and
+// DataVariance, and when the data minus the background sum to ≤ 0.
+func (m *Prepared) SetData(data, variance []float64) error {
+	if err := checkVector("Data", data, m.nr, true, false); err != nil {
+		return err
+	}
+	if err := checkVector("DataVariance", variance, m.nr, true, true); err != nil {
+		return err
+	}
+	if err := m.setData(data, variance); err != nil {
+		return err
+	}
+	return m.checkNet()
+}
+
+// SetPrior replaces the prior (nil: the generated counts), keeping the
+// rest. m keeps prior, which must not be modified while m is in use. It
+// allocates nothing.
+//
+// Errors: *InputError as from Prepare for the field Prior.
+func (m *Prepared) SetPrior(prior []float64) error {
+	if err := checkVector("Prior", prior, m.nt, false, true); err != nil {
+		return err
+	}
+	return m.setPrior(prior)
+}
+
+// SetResponse replaces the migrations and the generated counts by a
+// matrix of the same dimensions and sparsity pattern (for example one
+// made with sparse.Matrix.WithValues: a resampled or varied response) and
+// recomputes the efficiencies, the determined bins and the row sums into
+// m's buffers, then checks the data and the prior again; it allocates
+// nothing. m keeps a and generated, which must not be modified while m
+// is in use. On an error m must not be used until a later call succeeds.
+//
+// Errors: *InputError as from Prepare for the fields Migrations,
+// Generated, Data and Prior, and when a has another pattern.
+func (m *Prepared) SetResponse(a *sparse.Matrix, generated []float64) error {
+	if a == nil {
+		return inputErr("Migrations", -1, -1, "no response given")
+	}
+	if !samePattern(a, m.a) {
+		return inputErr("Migrations", -1, -1, "the new response has another sparsity pattern than the prepared one; prepare it as a new problem")
+	}
+	if err := checkVector("Generated", generated, m.nt, false, false); err != nil {
+		return err
+	}
+	if err := m.setResponse(a, generated); err != nil {
+		return err
+	}
+	for i, x := range m.n {
+		if x > 0 && !(m.reach[i] > 0) && (m.b == nil || m.b[i] == 0) {
+			return inputErr("Data", i, -1, "count %v in a reco bin that no truth bin reaches and no background explains", x)
+		}
+	}
+	return m.setPrior(m.priorSrc)
+}
+
+// samePattern reports whether a and b have the same dimensions, column
+// pointers and row indices (shared storage is recognised without a
+// pass over it).
+func samePattern(a, b *sparse.Matrix) bool {
+	ar, ac := a.Dims()
+	br, bc := b.Dims()
+	if ar != br || ac != bc || a.NNZ() != b.NNZ() {
+		return false
+	}
+	same := func(x, y []int) bool {
+		return len(x) == 0 || &x[0] == &y[0] || slices.Equal(x, y)
+	}
+	return same(a.ColPtr(), b.ColPtr()) && same(a.RowIdx(), b.RowIdx())
+}
+
+// checkNet refuses data whose net count Σ (n − b) is not positive.
+func (m *Prepared) checkNet() error {
+	if net := m.net(); net <= 0 {
+		return inputErr("Data", -1, -1, "the data minus the background sum to %v ≤ 0: there is nothing to unfold", net)
+	}
+	return nil
+}
+
+// PriorFold returns R p, the folded prior (reco-sized), computed on the
+// first call after Prepare, SetPrior or SetResponse (which allocates its
+// buffers once) and kept. It must not be called concurrently with
+// itself or the Set methods. The slice is m's own.
+func (m *Prepared) PriorFold() []float64 {
+	if !m.rpValid {
+		if m.rp == nil {
+			m.rp = make([]float64, m.nr)
+			m.rpTmp = make([]float64, m.nt)
+		}
+		m.Fold(m.rp, m.prior, m.rpTmp)
+		m.rpValid = true
+	}
+	return m.rp
+}
+
+// SubtractedBackground returns the background subtracted from the data
+// before the fit (Subtract mode), nil in the other modes or without a
+// background. The folded spectrum comparable to the data is ν plus it.
+func (m *Prepared) SubtractedBackground() []float64 {
+	if m.mode == Subtract {
+		return m.bg
+	}
+	return nil
 }
 
 // TruthBins returns the number of truth bins (columns of the response).

@@ -60,9 +60,20 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 				Alternative: "use Poisson toys for the per-bin variances, or raise the memory limit",
 			}
 		}
-		pl.batch = int(min(int64(rs.Probes), rs.MemoryLimit/2/per))
+		pl.batch = probeBatch(rs.Probes, min(rs.MemoryLimit/2, ProbeBatchBytes), per)
 	}
 	return pl, nil
+}
+
+// probeBatch returns the probes per batch for probes of per bytes within
+// budget: a multiple of ProbeBlock when more than a block fits (at least
+// one probe), at most all of them.
+func probeBatch(probes int, budget, per int64) int {
+	n := budget / per
+	if n >= ProbeBlock {
+		n -= n % ProbeBlock
+	}
+	return int(max(1, min(int64(probes), n)))
 }
 
 // columnVariances returns the variances of the Jacobian's columns.
@@ -103,8 +114,9 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		res.UncertaintyMethod = "linearised"
 	case pl.diag == DiagonalProbes:
 		sum := make([]float64, m.nt)
+		var pr *Probes
 		for first := 0; first < pl.rs.Probes; first += pl.batch {
-			pr := NewProbes(m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
+			pr = drawProbes(pr, m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
 			if err := fit.Tangents(ctx, pr); err != nil {
 				return err
 			}

@@ -66,6 +66,7 @@ measurement from simulated events and unfolds it.
 		newResponseCommand(g),
 		newDemoCommand(g),
 		newValidateCommand(g),
+		newBenchCommand(g),
 	)
 	root.SetHelpCommand(newHelpCommand(root))
 	for _, c := range root.Commands() {

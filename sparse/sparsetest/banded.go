@@ -1,7 +1,8 @@
 // Package sparsetest makes synthetic sparse matrices for the tests and
-// benchmarks of package sparse and of the packages that use it. It does
-// not import package sparse, so that package's own tests can use it: a
-// matrix comes as its compressed-column arrays, the arguments of
+// benchmarks of package sparse and of the packages that use it, and holds
+// the memory-bandwidth yardstick (Triad) their benchmarks compare with.
+// It does not import package sparse, so that package's own tests can use
+// it: a matrix comes as its compressed-column arrays, the arguments of
 // sparse.NewMatrix.
 package sparsetest
 

@@ -5,8 +5,11 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"runtime/metrics"
 	"slices"
 	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -54,6 +57,25 @@ func fineProblem(b *testing.B) *unfold.Problem {
 	return fine.p
 }
 
+// bareSweeps returns a function making k bare fused sweeps of a (a
+// trivial update), the yardstick of the iteration benchmarks.
+func bareSweeps(a *sparse.Matrix) func(k int) {
+	nr, nt := a.Dims()
+	x := make([]float64, nt)
+	y := make([]float64, nr)
+	next := make([]float64, nr)
+	for i := range y {
+		y[i] = 1
+	}
+	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	return func(k int) {
+		for range k {
+			a.Sweep(next, y, upd)
+			y, next = next, y
+		}
+	}
+}
+
 func median(d []time.Duration) time.Duration {
 	s := slices.Clone(d)
 	slices.Sort(s)
@@ -69,14 +91,7 @@ func BenchmarkFineIterations(b *testing.B) {
 	p := fineProblem(b)
 	ctx := context.Background()
 	s := &opts{Iterations: 10}
-	nr, nt := p.Migrations.Dims()
-	x := make([]float64, nt)
-	y := make([]float64, nr)
-	next := make([]float64, nr)
-	for i := range y {
-		y[i] = 1
-	}
-	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	sweeps := bareSweeps(p.Migrations)
 	m, err := prepare(p, unfold.InModel)
 	if err != nil {
 		b.Fatal(err)
@@ -97,10 +112,7 @@ func BenchmarkFineIterations(b *testing.B) {
 		}
 		ti = append(ti, time.Since(t0))
 		t0 = time.Now()
-		for range 10 {
-			p.Migrations.Sweep(next, y, upd)
-			y, next = next, y
-		}
+		sweeps(10)
 		ts = append(ts, time.Since(t0))
 	}
 	b.StopTimer()
@@ -160,19 +172,12 @@ func BenchmarkFineIterationParts(b *testing.B) {
 	}
 	it := newIterator(m, nil)
 	it.start(m.n)
-	nr, nt := p.Migrations.Dims()
-	x := make([]float64, nt)
-	y := make([]float64, nr)
-	next := make([]float64, nr)
-	for i := range y {
-		y[i] = 1
-	}
-	upd := func(j int, g float64) float64 { x[j] = g * 0.5; return x[j] }
+	sweep := bareSweeps(p.Migrations)
 	parts := []struct {
 		name string
 		f    func()
 	}{
-		{"ms/10sweeps", func() { p.Migrations.Sweep(next, y, upd) }},
+		{"ms/10sweeps", func() { sweep(1) }},
 		{"ms/10sweeps-update", func() { p.Migrations.Sweep(it.fnext, it.y, it.updateNoG) }},
 		{"ms/10sweeps-update-hook", func() { p.Migrations.SweepRows(it.fnext, it.y, it.updateNoG, it.rows) }},
 		{"ms/10reco-passes", func() { it.recoAll(it.fnext, it.nunext, it.ynext) }},
@@ -193,4 +198,142 @@ func BenchmarkFineIterationParts(b *testing.B) {
 	for k, pt := range parts {
 		b.ReportMetric(median(d[k]).Seconds()*1e3, pt.name)
 	}
+}
+
+// BenchmarkFinePrepared: the fixed cost of one more unfolding of a
+// prepared problem at 500,000 × 1,000,000 (10M non-zeros), interleaved in
+// one loop: a reused Unfolder with 4 and with 8 iterations (the
+// difference over 4 is the marginal iteration, the rest of the 4-iteration
+// call its fixed cost), a whole unfold.Unfold call with 4 iterations, and
+// 4 bare fused sweeps. Reports medians and same-run ratios.
+func BenchmarkFinePrepared(b *testing.B) {
+	p := fineProblem(b)
+	ctx := context.Background()
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	u4, err := NewUnfolder(pr, &Settings{Iterations: 4})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u8, err := NewUnfolder(pr, &Settings{Iterations: 8})
+	if err != nil {
+		b.Fatal(err)
+	}
+	_, nt := p.Migrations.Dims()
+	dst := make([]float64, nt)
+	sweeps := bareSweeps(p.Migrations)
+	var t4, t8, tw, ts []time.Duration
+	b.ResetTimer()
+	for range b.N {
+		t0 := time.Now()
+		if _, err := u4.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t4 = append(t4, time.Since(t0))
+		t0 = time.Now()
+		if _, err := u8.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t8 = append(t8, time.Since(t0))
+		t0 = time.Now()
+		if _, err := unfoldWith(ctx, p, &opts{Iterations: 4}); err != nil {
+			b.Fatal(err)
+		}
+		tw = append(tw, time.Since(t0))
+		t0 = time.Now()
+		sweeps(4)
+		ts = append(ts, time.Since(t0))
+	}
+	b.StopTimer()
+	m4, m8, mw, ms := median(t4), median(t8), median(tw), median(ts)
+	iter := (m8 - m4) / 4
+	b.ReportMetric(m4.Seconds()*1e3, "ms/prepared4")
+	b.ReportMetric(iter.Seconds()*1e3, "ms/iteration")
+	b.ReportMetric((m4-4*iter).Seconds()*1e3, "ms/fixed")
+	b.ReportMetric(float64(m4)/float64(4*iter), "prepared4/4iterations")
+	b.ReportMetric(mw.Seconds()*1e3, "ms/unfold4")
+	b.ReportMetric(float64(mw)/float64(4*iter), "unfold4/4iterations")
+	b.ReportMetric(float64(4*iter)/float64(ms), "iteration/sweep")
+}
+
+// peakHeap runs f and returns the peak of the heap in use (objects and
+// the unused part of in-use spans) above the level before it, sampled
+// every 2 ms.
+func peakHeap(f func()) uint64 {
+	s := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}, {Name: "/memory/classes/heap/unused:bytes"}}
+	read := func() uint64 { metrics.Read(s); return s[0].Value.Uint64() + s[1].Value.Uint64() }
+	runtime.GC()
+	base := read()
+	var peak atomic.Uint64
+	stop, done := make(chan struct{}), make(chan struct{})
+	go func() {
+		defer close(done)
+		for {
+			if h := read(); h > peak.Load() {
+				peak.Store(h)
+			}
+			select {
+			case <-stop:
+				return
+			case <-time.After(2 * time.Millisecond):
+			}
+		}
+	}()
+	f()
+	close(stop)
+	<-done
+	if h := read(); h > peak.Load() {
+		peak.Store(h)
+	}
+	return peak.Load() - min(base, peak.Load())
+}
+
+// BenchmarkFineProbeBlocks: per-bin variances from 100 probes through 4
+// iterations at 500,000 × 1,000,000 (whole Unfold calls), the probes
+// in blocks (one SweepBlock per block of unfold.ProbeBlock probes and
+// iteration) and one by one (a Sweep per probe, the earlier path),
+// interleaved. Reports the medians, their ratio and the peak heap
+// above the problem's.
+func BenchmarkFineProbeBlocks(b *testing.B) {
+	benchBlocks(b, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 100, Seed: 1}, &perProbe)
+}
+
+// benchBlocks times Unfold of the fine problem under s with *oneByOne
+// false (blocks) and true, alternately (interleaved rounds), and reports the medians, their
+// ratio and the median peak heaps.
+func benchBlocks(b *testing.B, s *opts, oneByOne *bool) {
+	p := fineProblem(b)
+	defer func(v bool) { *oneByOne = v }(*oneByOne)
+	var tb, to []time.Duration
+	var hb, ho []float64
+	b.ResetTimer()
+	for range b.N {
+		for _, one := range []bool{false, true} {
+			*oneByOne = one
+			var d time.Duration
+			h := peakHeap(func() {
+				t0 := time.Now()
+				if _, err := unfoldWith(context.Background(), p, s); err != nil {
+					b.Fatal(err)
+				}
+				d = time.Since(t0)
+			})
+			if one {
+				to, ho = append(to, d), append(ho, float64(h))
+			} else {
+				tb, hb = append(tb, d), append(hb, float64(h))
+			}
+		}
+	}
+	b.StopTimer()
+	mb, mo := median(tb), median(to)
+	slices.Sort(hb)
+	slices.Sort(ho)
+	b.ReportMetric(mb.Seconds(), "s/blocks")
+	b.ReportMetric(mo.Seconds(), "s/one-by-one")
+	b.ReportMetric(float64(mb)/float64(mo), "blocks/one-by-one")
+	b.ReportMetric(hb[len(hb)/2]/1e6, "MB-peak-heap/blocks")
+	b.ReportMetric(ho[len(ho)/2]/1e6, "MB-peak-heap/one-by-one")
 }

@@ -319,7 +319,7 @@ func TestProbesAreJacobianVectorProducts(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	pr := newProbes(m, unfold.NewProbes(m.p, 0, 4, 3))
+	pr := newProbes(m, unfold.NewProbes(m.p, 0, 4, 3), false)
 	if _, err := newIterator(m, sm).run(context.Background(), m.n, rs, pr); err != nil {
 		t.Fatal(err)
 	}

@@ -67,7 +67,14 @@ type model struct {
 }
 
 func newModel(p *unfold.Prepared) *model {
-	return &model{
+	m := &model{}
+	m.load(p)
+	return m
+}
+
+// load sets m from p's current state.
+func (m *model) load(p *unfold.Prepared) {
+	*m = model{
 		p: p, nt: p.TruthBins(), nr: p.RecoBins(), a: p.Migrations(),
 		invG: p.InvGenerated(), eps: p.Efficiency(), invEps: p.InvEfficiency(), det: p.Determined(),
 		n: p.Data(), b: p.Background(), varB: p.BackgroundVariance(),
@@ -128,7 +135,7 @@ type iterator struct {
 	fold, fnext      []float64 // reco-sized: R μ(k), R μ(k+1)
 	nu, nunext       []float64 // ν(k), ν(k+1); without background they alias fold, fnext
 	y, ynext         []float64 // n / ν(k), n / ν(k+1)
-	rp               []float64 // R p (the folded prior), for the tangents' start
+	rp               []float64 // R p (the folded prior, Prepared.PriorFold; not ours)
 	ranges           []int     // the matrix's fixed row ranges (RowRanges)
 	ll               []float64 // log-likelihood partial sum per row range
 	red              parallel.Reducer
@@ -143,7 +150,7 @@ func newIterator(m *model, sm *smoother) *iterator {
 		m: m, sm: sm,
 		mu: make([]float64, m.nt), next: make([]float64, m.nt), g: make([]float64, m.nt),
 		fold: make([]float64, m.nr), fnext: make([]float64, m.nr),
-		y: make([]float64, m.nr), ynext: make([]float64, m.nr), rp: make([]float64, m.nr),
+		y: make([]float64, m.nr), ynext: make([]float64, m.nr), rp: m.p.PriorFold(),
 		ranges: m.a.RowRanges(),
 	}
 	it.ll = make([]float64, len(it.ranges)-1)
@@ -156,7 +163,6 @@ func newIterator(m *model, sm *smoother) *iterator {
 	if sm != nil {
 		it.orig = make([]float64, m.nt)
 	}
-	m.p.Fold(it.rp, m.prior, it.tmp)
 	invG, invEps, gk := m.invG, m.invEps, it.g
 	it.update = func(j int, ga float64) float64 {
 		ig := invG[j]

@@ -62,6 +62,7 @@ type fit struct {
 	sm               *smoother
 	details          *Details
 	estimate, folded []float64
+	pr               *probes // the last batch's, reused by the next of its size
 }
 
 func (f *fit) Estimate() []float64 { return f.estimate }
@@ -80,8 +81,13 @@ func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
 
 // Tangents carries the probes along a re-run of the iteration.
 func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
-	pr := newProbes(f.m, dst)
-	_, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), pr)
+	blocked := f.sm == nil && !perProbe
+	if f.pr == nil || f.pr.made < dst.Len() || f.pr.blocked != blocked {
+		f.pr = newProbes(f.m, dst, blocked)
+	} else {
+		f.pr.reuse(dst) // the next batch, no larger: the same buffers
+	}
+	_, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), f.pr)
 	return err
 }
 

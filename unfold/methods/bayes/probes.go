@@ -13,14 +13,23 @@ import (
 // for probe s, the perturbation dn_i = ±σ(n_i), db_i = ±σ(b_i) (random
 // signs, Rademacher) is propagated through the same linearised recursion
 // as the dense Jacobian, one fold and one back-projection per probe and
-// iteration (a fused Sweep). E[(dμ_j)²] is the variance of μ_j.
+// iteration. E[(dμ_j)²] is the variance of μ_j.
+//
+// Without smoothing the probes go in blocks of unfold.ProbeBlock: one
+// SweepBlock per block and iteration reads the matrix once for all of
+// them, with the block's reco vectors interleaved (element i of probe
+// s of the block at i·k+s). Each probe gets the bits of a Sweep of its
+// own (SweepBlock sums every vector as Sweep does), so the results do
+// not depend on the blocks. With smoothing (or with perProbe, for the
+// benchmarks) every probe makes a Sweep, or a back-projection, the
+// smoothing and a fold, of its own.
 type probes struct {
 	m     *model
 	count int
 	sdN   []float64 // σ(n_i)
 	sdB   []float64 // σ(b_i), nil when not propagated
 	dmu   [][]float64
-	tfold [][]float64 // R dμ
+	tfold [][]float64 // R dμ; per block, interleaved, when blocked
 	signN [][]uint64
 	signB [][]uint64
 	batch *unfold.Probes
@@ -29,7 +38,18 @@ type probes struct {
 	w     []float64 // n/ν² of the current iteration
 	c     []float64 // σ(b) n/ν² (nil when the background variance is not propagated)
 	red   parallel.Reducer
+
+	blocked bool
+	made    int       // the number of probes the buffers were made for
+	spare   []float64 // the sweep's destination of a block (interleaved)
+	update  func(j int, g, x []float64)
+	cur     int // first probe of the block being swept
+	it      *iterator
 }
+
+// perProbe makes every probe of the method's fits sweep on its own (the
+// path before the blocks; benchmarks compare the two).
+var perProbe = false
 
 type probeWork struct {
 	y, spare, gt []float64
@@ -40,22 +60,37 @@ type probeWork struct {
 }
 
 // newProbes prepares the recursion of the probes of batch, whose
-// tangents dμ_s it fills.
-func newProbes(m *model, batch *unfold.Probes) *probes {
-	pr := &probes{m: m, count: batch.Len(), sdN: batch.DataSD(), sdB: batch.BackgroundSD(), batch: batch}
+// tangents dμ_s it fills, in blocks (only without smoothing) or one by
+// one.
+func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
+	pr := &probes{m: m, count: batch.Len(), made: batch.Len(), blocked: blocked}
+	pr.rebind(batch)
 	for s := 0; s < pr.count; s++ {
-		sn, sb := batch.Signs(s)
-		pr.signN = append(pr.signN, sn)
-		if sb != nil {
-			pr.signB = append(pr.signB, sb)
+		if !pr.blocked {
+			pr.tfold = append(pr.tfold, make([]float64, m.nr))
+		} else if s%unfold.ProbeBlock == 0 {
+			// every block can take the spare buffer in turn: full capacity
+			pr.tfold = append(pr.tfold, make([]float64, pr.width(s)*m.nr, pr.width(0)*m.nr))
 		}
-		pr.dmu = append(pr.dmu, batch.Tangent(s))
-		pr.tfold = append(pr.tfold, make([]float64, m.nr))
 	}
 	pr.a = make([]float64, m.nr)
 	pr.w = make([]float64, m.nr)
 	if pr.sdB != nil {
 		pr.c = make([]float64, m.nr)
+	}
+	if pr.blocked {
+		pr.spare = make([]float64, pr.width(0)*m.nr)
+		pr.update = func(j int, g, x []float64) {
+			it, ig, ie := pr.it, m.invG[j], m.invEps[j]
+			gj, muj := it.g[j], it.mu[j]
+			dmu := pr.dmu[pr.cur : pr.cur+len(x)]
+			for s, ga := range g {
+				v := (gj*dmu[s][j] + muj*ga*ig) * ie
+				dmu[s][j] = v
+				x[s] = v * ig
+			}
+		}
+		return pr
 	}
 	workers := min(runtime.GOMAXPROCS(0), pr.count)
 	pr.work = make([]probeWork, workers)
@@ -75,6 +110,39 @@ func newProbes(m *model, batch *unfold.Probes) *probes {
 	return pr
 }
 
+// rebind points pr at the signs and tangents of batch, which has pr.count
+// probes.
+func (pr *probes) rebind(batch *unfold.Probes) {
+	pr.batch, pr.sdN, pr.sdB = batch, batch.DataSD(), batch.BackgroundSD()
+	pr.signN, pr.signB, pr.dmu = pr.signN[:0], pr.signB[:0], pr.dmu[:0]
+	for s := 0; s < pr.count; s++ {
+		sn, sb := batch.Signs(s)
+		pr.signN = append(pr.signN, sn)
+		if sb != nil {
+			pr.signB = append(pr.signB, sb)
+		}
+		pr.dmu = append(pr.dmu, batch.Tangent(s))
+	}
+}
+
+// reuse prepares pr, made for at least as many probes as batch has, for
+// batch, keeping its buffers.
+func (pr *probes) reuse(batch *unfold.Probes) {
+	pr.count = batch.Len()
+	if pr.blocked {
+		pr.tfold = pr.tfold[:(pr.count+unfold.ProbeBlock-1)/unfold.ProbeBlock]
+		for b := range pr.tfold {
+			pr.tfold[b] = pr.tfold[b][:pr.width(b*unfold.ProbeBlock)*pr.m.nr]
+		}
+	} else {
+		pr.tfold = pr.tfold[:pr.count]
+	}
+	pr.rebind(batch)
+}
+
+// width returns the number of probes of the block starting at probe s.
+func (pr *probes) width(s int) int { return min(unfold.ProbeBlock, pr.count-s) }
+
 func (pr *probes) init(ctx context.Context, it *iterator) error {
 	m := pr.m
 	parallel.For(pr.count, runtime.GOMAXPROCS(0), func(s int) {
@@ -82,8 +150,17 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 		for j, p := range m.prior {
 			pr.dmu[s][j] = c * p
 		}
+		if !pr.blocked {
+			for i, v := range it.rp {
+				pr.tfold[s][i] = c * v
+			}
+			return
+		}
+		b := s / unfold.ProbeBlock
+		k, o := pr.width(b*unfold.ProbeBlock), s%unfold.ProbeBlock
+		tf := pr.tfold[b]
 		for i, v := range it.rp {
-			pr.tfold[s][i] = c * v
+			tf[i*k+o] = c * v
 		}
 	})
 	return ctx.Err()
@@ -105,6 +182,12 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 			}
 		}
 	})
+	if pr.blocked {
+		if it.sm != nil {
+			panic("bayes: probes in blocks with smoothing")
+		}
+		return pr.stepBlocks(ctx, it)
+	}
 	// Probes run on separate goroutines; each Sweep is itself
 	// deterministic, so the bits do not depend on the scheduling.
 	work := make(chan int, pr.count)
@@ -177,4 +260,43 @@ func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 		m.p.Fold(next, pw.dmu, pw.gt)
 	}
 	pr.tfold[s], pw.spare = next, tf
+}
+
+// stepBlocks advances the probes by one iteration, block by block: the
+// block's y = dn/ν − n (R dμ + db)/ν² overwrites its R dμ (no longer
+// needed), and one SweepBlock gives the new dμ and R dμ of every probe of
+// the block.
+func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
+	a, w, c := pr.a, pr.w, pr.c
+	pr.it = it
+	for b, tf := range pr.tfold {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		first := b * unfold.ProbeBlock
+		k := pr.width(first)
+		pr.red.Run(len(a), func(lo, hi int, _ *[4]float64) {
+			for o := 0; o < k; o++ {
+				sn := pr.signN[first+o]
+				var sb []uint64
+				if c != nil {
+					sb = pr.signB[first+o]
+				}
+				for i := lo; i < hi; i++ {
+					flip := (^sn[i>>6] >> (uint(i) & 63) & 1) << 63
+					y := math.Float64frombits(math.Float64bits(a[i])^flip) - w[i]*tf[i*k+o]
+					if sb != nil {
+						flip := (^sb[i>>6] >> (uint(i) & 63) & 1) << 63
+						y -= math.Float64frombits(math.Float64bits(c[i]) ^ flip)
+					}
+					tf[i*k+o] = y
+				}
+			}
+		})
+		pr.cur = first
+		next := pr.spare[:k*len(a)]
+		pr.m.a.SweepBlock(next, tf, k, pr.update)
+		pr.tfold[b], pr.spare = next, tf[:cap(tf)]
+	}
+	return nil
 }

@@ -246,7 +246,7 @@ func TestSparseAgainstDenseGonum(t *testing.T) {
 		// Probes: each propagated probe must equal J z for its own z.
 		m, _ := prepare(p, unfold.InModel)
 		rs, _ := (&opts{Iterations: 6}).resolve()
-		pr := newProbes(m, unfold.NewProbes(m.p, 0, 3, 99))
+		pr := newProbes(m, unfold.NewProbes(m.p, 0, 3, 99), true)
 		if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
 			t.Fatal(err)
 		}

@@ -245,7 +245,7 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 		for _, procs := range []int{1, 2} {
 			runtime.GOMAXPROCS(procs)
 			res := unfoldOrFail(t, c.p, s)
-			pr := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7))
+			pr := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7), true)
 			if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
 				t.Fatal(err)
 			}
@@ -263,7 +263,7 @@ func TestSweepRowsPathAgainstSerialReference(t *testing.T) {
 				}
 			}
 		}
-		ref := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7)) // the probes' own sign bits
+		ref := newProbes(m, unfold.NewProbes(m.p, 0, probes, 7), true) // the probes' own sign bits
 		signs := make([][]float64, probes)
 		for q := range signs {
 			signs[q] = make([]float64, m.nr)

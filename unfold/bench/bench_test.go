@@ -1,0 +1,44 @@
+package bench
+
+import (
+	"testing"
+
+	"github.com/desmear/desmear/unfold"
+)
+
+// The small problem has the documented shape: 20×20×20 truth and
+// 20×20×40 reco bins, at most 20 migrations per truth bin, efficiencies
+// in [0.6, 0.95] (below one), a background, and data that Prepare
+// accepts.
+func TestSmallProblem(t *testing.T) {
+	c, err := ConfigOf(Small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := Problem(c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	nr, nt := p.Migrations.Dims()
+	if nt != 8000 || nr != 16000 {
+		t.Fatalf("%d truth × %d reco bins, want 8000 × 16000", nt, nr)
+	}
+	if nnz := p.Migrations.NNZ(); nnz > 20*nt || nnz < 15*nt {
+		t.Errorf("%d non-zeros for %d truth bins, want about 20 each", nnz, nt)
+	}
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j, e := range pr.Efficiency() {
+		if e < 0.6-1e-12 || e > 0.95+1e-12 {
+			t.Fatalf("efficiency of truth bin %d is %v, want [0.6, 0.95]", j, e)
+		}
+	}
+	if pr.Background() == nil {
+		t.Error("no background (fakes) in the model")
+	}
+	if _, err := ConfigOf("huge"); err == nil {
+		t.Error("an unknown size was accepted")
+	}
+}
