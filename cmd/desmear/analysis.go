@@ -30,6 +30,7 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 	}
 	w := bufio.NewWriter(g.stdout)
 	printOutcome(w, a, out)
+	printChecks(w, out.Folder, out.Document, out.Files)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}

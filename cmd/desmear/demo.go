@@ -115,6 +115,7 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	}
 	w := bufio.NewWriter(g.stdout)
 	printDemo(w, in, out, cmp)
+	printChecks(w, out.Folder, out.Document, out.Files)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}

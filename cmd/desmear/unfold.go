@@ -530,6 +530,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err != nil {
 		return numericalErr(err)
 	}
+	r.SetProblem(prob)
 	r.Program = result.Program{Name: "desmear", Version: version}
 	r.Inputs = pi.inputs
 	prior := "generated"
@@ -670,6 +671,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 		}
 	}
 	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
+	printChecks(w, dir, r, files)
 	if g.quiet {
 		return
 	}

@@ -30,7 +30,11 @@ type Outcome struct {
 	ResponseInfo *response.BundleInfo
 	Data         *Measured
 	Background   *Expected
-	Result       *unfold.Result
+	// Problem is the unfolding problem assembled from them.
+	Problem *unfold.Problem
+	Result  *unfold.Result
+	// Document is the result document written.
+	Document *result.Result
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -77,6 +81,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err != nil {
 		return nil, err
 	}
+	out.Problem = p
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
@@ -153,6 +158,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	if err != nil {
 		return err
 	}
+	doc.SetProblem(out.Problem)
 	doc.Program = result.Program{Name: "desmear"}
 	if opt != nil {
 		doc.Program.Version = opt.Version
@@ -186,6 +192,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 		return err
 	}
 	out.Folder = a.Output.Folder
+	out.Document = doc
 	return nil
 }
 

@@ -21,8 +21,11 @@
 //
 //	json     result.json       json.go     the document; always written
 //	csv      result.csv        csv.go      one row per truth bin
+//	diagnostics  reco-bins.csv, truth-bins.csv, correlation.csv, history.csv, response.csv
+//	                           diagnostics.go  data against the folded estimate, per-bin checks
 //	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
-//	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region
+//	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region,
+//	                                       correlation TH2D per region
 //
 // The last two need a truth binning and are written only when one is
 // given. Write writes a chosen list of formats into a folder; Formats

@@ -25,6 +25,7 @@ func writeROOT(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	}
 	dens, densUnc := r.densities(s)
 	h1, h2 := rootHistograms(s, r.Estimate, r.Uncertainty, dens, densUnc)
+	h2 = append(h2, correlationHistograms(s, r.Correlation())...)
 	if err := rootio.WriteFile(path, h1, h2); err != nil {
 		return nil, err
 	}
@@ -131,4 +132,45 @@ func title(s *binning.Scheme, r int, outer []int, what string) string {
 		prev = i
 	}
 	return t
+}
+
+// regionBins returns the global bins of region k of s: its in-range
+// bins, then its flow bins, each in global order.
+func regionBins(s *binning.Scheme, k int) []int {
+	var g []int
+	lo, hi := s.Span(k)
+	flo, fhi := s.FlowSpan(k)
+	for _, span := range [][2]int{{lo, hi}, {flo, fhi}} {
+		for i := span[0]; i < span[1]; i++ {
+			g = append(g, i)
+		}
+	}
+	return g
+}
+
+// correlationHistograms makes one TH2D per region of s, REGION/correlation,
+// of the correlation matrix rho between the region's bins (regionBins
+// order, numbered 0, 1, ... along both axes); none when rho is nil.
+func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D {
+	if rho == nil {
+		return nil
+	}
+	var h2 []*rootio.Hist2D
+	for k, reg := range s.Regions() {
+		g := regionBins(s, k)
+		edges := make([]float64, len(g)+1)
+		for i := range edges {
+			edges[i] = float64(i)
+		}
+		h := rootio.NewHist2D(reg.Name()+"/correlation", edges, edges)
+		h.Title = reg.Name() + " correlation (in-range bins, then flow bins, in global order)"
+		h.Entries = float64(len(g) * len(g))
+		for iy, gy := range g {
+			for ix, gx := range g {
+				h.SumW[h.Index(ix+1, iy+1)] = rho[gx][gy]
+			}
+		}
+		h2 = append(h2, h)
+	}
+	return h2
 }

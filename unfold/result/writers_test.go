@@ -62,7 +62,7 @@ func TestWritersSameForBothModes(t *testing.T) {
 	parent := t.TempDir()
 	pdir, pfiles := writeFolder(t, parent, "plain", plain, s)
 	adir, afiles := writeFolder(t, parent, "analysis", &analysis, s)
-	want := []string{JSONFile, CSVFile, RegionFile("c"), RootFile}
+	want := []string{JSONFile, CSVFile, TruthBinsFile, RegionFile("c"), RootFile}
 	if !reflect.DeepEqual(pfiles, want) || !reflect.DeepEqual(afiles, want) {
 		t.Fatalf("files %v and %v, want %v", pfiles, afiles, want)
 	}
@@ -108,23 +108,23 @@ func TestWritersSameForBothModes(t *testing.T) {
 	}
 	// Without a truth binning the regions and root formats are left out.
 	_, files := writeFolder(t, parent, "unbinned", plain, nil)
-	if !reflect.DeepEqual(files, []string{JSONFile, CSVFile}) {
+	if !reflect.DeepEqual(files, []string{JSONFile, CSVFile, TruthBinsFile}) {
 		t.Errorf("without a truth binning: %v", files)
 	}
 }
 
-// The registry: json first, then by name; the four formats are the
+// The registry: json first, then by name; all formats are the
 // default; an unknown name is refused with the known ones; a name is
 // registered once.
 func TestRegistry(t *testing.T) {
-	want := []string{"json", "csv", "regions", "root"}
+	want := []string{"json", "csv", "diagnostics", "regions", "root"}
 	if got := Formats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("Formats() = %v, want %v", got, want)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, regions, root)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, regions, root)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {
