@@ -46,57 +46,23 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 		}
 		return v[g]
 	}
+	for _, sl := range Slices(s) {
+		suffix := sl.Suffix(s)
+		name := s.Regions()[sl.Region].Name()
+		n := len(sl.Edges) - 1
+		hc := rootio.NewHist1D(name+"/counts"+suffix, sl.Edges)
+		hd := rootio.NewHist1D(name+"/density"+suffix, sl.Edges)
+		hc.Title, hd.Title = title(s, &sl, "counts"), title(s, &sl, "density")
+		for c, g := range sl.Cells {
+			hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
+			if c >= 1 && c <= n {
+				hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
+			}
+		}
+		h1 = append(h1, hc, hd)
+	}
 	for r, reg := range s.Regions() {
 		axes := reg.Axes()
-		last := axes[len(axes)-1]
-		// Enumerate the outer bins (all axes but the last), in-range only.
-		var outer [][]int
-		var rec func(prefix []int, k int)
-		rec = func(prefix []int, k int) {
-			if k == len(axes)-1 {
-				outer = append(outer, append([]int(nil), prefix...))
-				return
-			}
-			prev := 0
-			if len(prefix) > 0 {
-				prev = prefix[len(prefix)-1]
-			}
-			for i := 0; i < axes[k].Bins(prev); i++ {
-				rec(append(prefix, i), k+1)
-			}
-		}
-		rec(nil, 0)
-		for _, o := range outer {
-			prev := 0
-			if len(o) > 0 {
-				prev = o[len(o)-1]
-			}
-			edges := last.EdgesIn(prev)
-			// Names: REGION/counts for a 1-D region, REGION/counts_y0 for
-			// outer bin 0 of axis y, REGION/counts_y0_x2 in 3-D.
-			suffix := ""
-			for k, i := range o {
-				if k > 0 {
-					suffix += "_"
-				}
-				suffix += fmt.Sprintf("%s%d", axes[k].Name(), i)
-			}
-			if suffix != "" {
-				suffix = "_" + suffix
-			}
-			n := len(edges) - 1
-			hc := rootio.NewHist1D(reg.Name()+"/counts"+suffix, edges)
-			hd := rootio.NewHist1D(reg.Name()+"/density"+suffix, edges)
-			hc.Title, hd.Title = title(s, r, o, "counts"), title(s, r, o, "density")
-			for c := 0; c < n+2; c++ {
-				g := s.Global(r, append(append([]int(nil), o...), rootio.BinOf(c, n))...)
-				hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
-				if c >= 1 && c <= n {
-					hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
-				}
-			}
-			h1 = append(h1, hc, hd)
-		}
 		if len(axes) == 2 && reg.Rectangular() {
 			xe, ye := axes[0].Edges(), axes[1].Edges()
 			hc := rootio.NewHist2D(reg.Name()+"/counts2d", xe, ye)
@@ -121,15 +87,10 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 
 func sq(x float64) float64 { return x * x }
 
-func title(s *binning.Scheme, r int, outer []int, what string) string {
-	reg := s.Regions()[r]
-	t := reg.Name() + " " + what
-	axes := reg.Axes()
-	prev := 0
-	for k, i := range outer {
-		e := axes[k].EdgesIn(prev)
-		t += fmt.Sprintf(" %s[%g,%g)", axes[k].Name(), e[i], e[i+1])
-		prev = i
+func title(s *binning.Scheme, sl *Slice, what string) string {
+	t := s.Regions()[sl.Region].Name() + " " + what
+	for _, r := range sl.Ranges(s) {
+		t += fmt.Sprintf(" %s[%g,%g)", r.Axis, r.Low, r.High)
 	}
 	return t
 }
