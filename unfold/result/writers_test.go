@@ -62,7 +62,7 @@ func TestWritersSameForBothModes(t *testing.T) {
 	parent := t.TempDir()
 	pdir, pfiles := writeFolder(t, parent, "plain", plain, s)
 	adir, afiles := writeFolder(t, parent, "analysis", &analysis, s)
-	want := []string{JSONFile, CSVFile, TruthBinsFile, RegionFile("c"), RootFile}
+	want := []string{JSONFile, CSVFile, TruthBinsFile, SubmissionFile, RecordFolder + "/c_y0.yaml", RecordFolder + "/c_y1.yaml", RegionFile("c"), RootFile}
 	if !reflect.DeepEqual(pfiles, want) || !reflect.DeepEqual(afiles, want) {
 		t.Fatalf("files %v and %v, want %v", pfiles, afiles, want)
 	}
@@ -117,14 +117,14 @@ func TestWritersSameForBothModes(t *testing.T) {
 // default; an unknown name is refused with the known ones; a name is
 // registered once.
 func TestRegistry(t *testing.T) {
-	want := []string{"json", "csv", "diagnostics", "regions", "root"}
+	want := []string{"json", "csv", "diagnostics", "record", "regions", "root"}
 	if got := Formats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("Formats() = %v, want %v", got, want)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, regions, root)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, record, regions, root)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {
