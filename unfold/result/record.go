@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"strconv"
-	"strings"
 
 	"go.yaml.in/yaml/v3"
 
@@ -114,7 +113,7 @@ func writeRecord(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	}
 	for _, sl := range Slices(s) {
 		reg := s.Regions()[sl.Region]
-		densName, densUnits := recordDensity(r, reg)
+		densName, densUnits := densityLabel(r, reg)
 		axes := reg.Axes()
 		last := axes[len(axes)-1]
 		ind := recordVariable{Header: recordHeader{Name: last.Name(), Units: last.Unit()}}
@@ -123,11 +122,8 @@ func writeRecord(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 			ind.Values = append(ind.Values, recordValue{Low: &lo, High: &hi})
 		}
 		quals := []recordQualifier{{Name: "region", Value: reg.Name()}}
-		var where []string
 		for _, rg := range sl.Ranges(s) {
-			v := fmt.Sprintf("[%g, %g)", roundSig(rg.Low, 12), roundSig(rg.High, 12))
-			quals = append(quals, recordQualifier{Name: rg.Axis, Value: v, Units: rg.Unit})
-			where = append(where, rg.Axis+" in "+v)
+			quals = append(quals, recordQualifier{Name: rg.Axis, Value: rg.String(), Units: rg.Unit})
 		}
 		counts := recordVariable{Header: recordHeader{Name: "events"}, Qualifiers: quals}
 		density := recordVariable{Header: recordHeader{Name: densName, Units: densUnits}, Qualifiers: quals}
@@ -139,10 +135,7 @@ func writeRecord(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 		if err := put(file, recordTable{IndependentVariables: []recordVariable{ind}, DependentVariables: []recordVariable{counts, density}}); err != nil {
 			return nil, err
 		}
-		name := reg.Name()
-		if len(where) > 0 {
-			name += ", " + strings.Join(where, ", ")
-		}
+		name := sl.Name(s)
 		subs = append(subs, recordSubmission{
 			Name:        name,
 			Description: fmt.Sprintf("Unfolded spectrum in %s, per bin of %s: the expected number of events and the %s, with the data-statistical uncertainty.", name, last.Name(), densName),
@@ -153,7 +146,7 @@ func writeRecord(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	if r.Covariance != nil {
 		vol := densityScale(r, s)
 		for k, reg := range s.Regions() {
-			densName, densUnits := recordDensity(r, reg)
+			densName, densUnits := densityLabel(r, reg)
 			lo, hi := s.Span(k)
 			x := recordVariable{Header: recordHeader{Name: "bin"}}
 			y := recordVariable{Header: recordHeader{Name: "bin"}}
@@ -232,31 +225,6 @@ func roundSig(v float64, n int) float64 {
 	}
 	x, _ := strconv.ParseFloat(strconv.FormatFloat(v, 'g', n, 64), 64)
 	return x
-}
-
-// recordDensity returns the name and units of the density of r in the
-// region reg.
-func recordDensity(r *Result, reg *binning.Region) (name, units string) {
-	name = "events per unit bin volume"
-	var u []string
-	for _, a := range reg.Axes() {
-		if a.Unit() != "" {
-			u = append(u, a.Unit())
-		}
-	}
-	if r.Luminosity != 0 {
-		name = "events per unit bin volume and integrated luminosity"
-		if r.LuminosityUnit != "" {
-			u = append(u, r.LuminosityUnit)
-		}
-	}
-	switch len(u) {
-	case 0:
-		return name, ""
-	case 1:
-		return name, "1/" + u[0]
-	}
-	return name, "1/(" + strings.Join(u, " ") + ")"
 }
 
 func squareUnits(u string) string {

@@ -2,6 +2,7 @@ package result
 
 import (
 	"fmt"
+	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold/internal/rootio"
@@ -44,6 +45,47 @@ func (sl *Slice) Suffix(s *binning.Scheme) string {
 type Range struct {
 	Axis, Unit string
 	Low, High  float64
+}
+
+// String returns the interval as "[LOW, HIGH)".
+func (r Range) String() string {
+	return fmt.Sprintf("[%g, %g)", roundSig(r.Low, 12), roundSig(r.High, 12))
+}
+
+// Name returns the name of the slice: its region's, followed by the
+// range of each outer axis ("central, y in [0, 0.8)").
+func (sl *Slice) Name(s *binning.Scheme) string {
+	name := s.Regions()[sl.Region].Name()
+	for _, rg := range sl.Ranges(s) {
+		name += ", " + rg.Axis + " in " + rg.String()
+	}
+	return name
+}
+
+// densityLabel returns the name and units of the density of r in the
+// region reg: per unit bin volume of the region's axes, and per
+// integrated luminosity when r has one.
+func densityLabel(r *Result, reg *binning.Region) (name, units string) {
+	name = "events per unit bin volume"
+	var u []string
+	for _, a := range reg.Axes() {
+		if a.Unit() != "" {
+			u = append(u, a.Unit())
+		}
+	}
+	if r.Luminosity != 0 {
+		name = "events per unit bin volume and integrated luminosity"
+		if r.LuminosityUnit != "" {
+			u = append(u, r.LuminosityUnit)
+		}
+	}
+	switch len(u) {
+	case 0:
+		return name, ""
+	case 1:
+		return name, "1/" + u[0]
+	}
+	return name, "1/(" + strings.Join(u, " ") + ")"
 }
 
 // Ranges returns the intervals of the outer axes of the slice.
