@@ -23,8 +23,8 @@ import (
 // runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from
 // an analysis file. replace is the unfold command's --force (replace an
 // earlier result folder).
-func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, replace bool) error {
-	a, out, err := runAnalysis(ctx, g, path, replace)
+func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, replace, noReport bool) error {
+	a, out, err := runAnalysis(ctx, g, path, replace, noReport)
 	if err != nil {
 		return err
 	}
@@ -37,13 +37,17 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 	return nil
 }
 
-// runAnalysis loads the analysis file at path and runs it, with a
+// runAnalysis loads the analysis file at path and runs it (without the
+// report when noReport is set), with a
 // progress bar on stderr when it is a terminal. It returns the analysis
 // and what the run produced.
-func runAnalysis(ctx context.Context, g *globalOptions, path string, replace bool) (*analysis.Analysis, *analysis.Outcome, error) {
+func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, noReport bool) (*analysis.Analysis, *analysis.Outcome, error) {
 	a, err := analysis.Load(path)
 	if err != nil {
 		return nil, nil, analysisErr(err)
+	}
+	if noReport {
+		a.Output.Formats = withoutReport(a.Output.Formats)
 	}
 	if err := a.CheckOutput(replace); err != nil {
 		switch {

@@ -130,7 +130,7 @@ func TestPlainFormats(t *testing.T) {
 	for _, c := range []struct {
 		formats, want string
 	}{
-		{"", "history.csv reco-bins.csv response.csv result.csv result.json truth-bins.csv"},
+		{"", "history.csv plots reco-bins.csv report.html response.csv result.csv result.json truth-bins.csv"},
 		{"json", "result.json"},
 		{"csv,regions,root", "result.csv result.json"},
 	} {

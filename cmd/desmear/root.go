@@ -65,6 +65,7 @@ measurement from simulated events and unfolds it.
 		newUnfoldCommand(g),
 		newResponseCommand(g),
 		newDemoCommand(g),
+		newReportCommand(g),
 	)
 	root.SetHelpCommand(newHelpCommand(root))
 	for _, c := range root.Commands() {

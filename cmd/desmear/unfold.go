@@ -44,9 +44,10 @@ type unfoldOptions struct {
 	seed          uint64
 	memoryLimit   int64
 
-	out     string
-	force   bool
-	formats []string
+	out      string
+	force    bool
+	formats  []string
+	noReport bool
 }
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
@@ -120,7 +121,7 @@ is at most --stop-chi2, within --max-iterations.`,
 				if err := checkAnalysisFlags(cmd, args[0]); err != nil {
 					return err
 				}
-				return runAnalysisUnfold(cmd.Context(), g, args[0], o.force)
+				return runAnalysisUnfold(cmd.Context(), g, args[0], o.force, o.noReport)
 			}
 			if err := o.check(cmd); err != nil {
 				return err
@@ -155,12 +156,13 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
+	f.BoolVar(&o.noReport, "no-report", false, "write no plots and no report.html (the report format; \"desmear report DIR\" writes them later)")
 	return cmd
 }
 
 // analysisFlags are the unfold flags that apply with an analysis file;
 // every other setting comes from the file.
-var analysisFlags = []string{"force"}
+var analysisFlags = []string{"force", "no-report"}
 
 // checkAnalysisFlags refuses the plain-table flags with an analysis file:
 // the table inputs because they contradict it, and the settings because
@@ -501,6 +503,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	if err := checkOutFolder(o.out, o.force); err != nil {
 		return err
+	}
+	if o.noReport {
+		o.formats = withoutReport(o.formats)
 	}
 	pi, err := loadPlain(o)
 	if err != nil {

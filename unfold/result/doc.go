@@ -25,6 +25,7 @@
 //	                           diagnostics.go  data against the folded estimate, per-bin checks
 //	record   record/*.yaml     record.go   the data-record tables (submission file, a table per slice, covariances)
 //	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
+//	report   plots/*.png|svg, report.html  report.go, plots.go, html.go  the plots (package figure) and the page
 //	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region,
 //	                                       correlation TH2D per region
 //

@@ -86,7 +86,9 @@ func (c *Chart) draw(dc draw.Canvas) error {
 			p.Title.Text = c.Title
 		}
 		if k == len(c.Panels)-1 {
+			p.X.Tick.Marker = plainTicks{}
 			p.X.Label.Text = c.XLabel
+			p.X.Label.TextStyle.Font.Size = vg.Points(10)
 		} else {
 			p.X.Tick.Marker = blankTicks{}
 		}
@@ -145,6 +147,7 @@ func (blankTicks) Ticks(min, max float64) []plot.Tick {
 func (pn *Panel) plot() (*plot.Plot, error) {
 	p := plot.New()
 	p.Y.Label.Text = pn.YLabel
+	p.Y.Label.TextStyle.Font.Size = vg.Points(10)
 	p.Legend.Top = true
 	p.Legend.TextStyle.Font.Size = vg.Points(9)
 	ok := func(y float64) bool { return finite(y) && (!pn.LogY || y > 0) }

@@ -3,6 +3,7 @@ package figure
 import (
 	"image/color"
 	"math"
+	"strconv"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -56,6 +57,7 @@ func (h *Heat) draw(dc draw.Canvas) error {
 	cols, rows := grid(h.Z).Dims()
 	p := plot.New()
 	p.Title.Text, p.X.Label.Text, p.Y.Label.Text = h.Title, h.XLabel, h.YLabel
+	p.X.Tick.Marker, p.Y.Tick.Marker = plainTicks{}, plainTicks{}
 	p.X.Min, p.X.Max = 0, math.Max(float64(cols), 1)
 	p.Y.Min, p.Y.Max = 0, math.Max(float64(rows), 1)
 	lo, hi := h.Min, h.Max
@@ -92,4 +94,18 @@ func (h *Heat) draw(dc draw.Canvas) error {
 	bc := draw.Crop(dc, dc.Max.X-dc.Min.X-barW+vg.Points(6), 0, d.Min.Y-dc.Min.Y, d.Max.Y-dc.Max.Y)
 	bar.Draw(bc)
 	return nil
+}
+
+// plainTicks are the default ticks labelled in the shortest form (bin
+// numbers without decimals).
+type plainTicks struct{}
+
+func (plainTicks) Ticks(min, max float64) []plot.Tick {
+	t := plot.DefaultTicks{}.Ticks(min, max)
+	for i := range t {
+		if t[i].Label != "" {
+			t[i].Label = strconv.FormatFloat(t[i].Value, 'g', 6, 64)
+		}
+	}
+	return t
 }
