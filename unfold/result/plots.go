@@ -87,6 +87,10 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 	scale := densityScale(r, s)
 	sim := scaledTo(r, s, r.Generated)
 	prior := scaledTo(r, s, r.Prior)
+	against := "the simulation truth"
+	if prior != nil {
+		against += " and the prior"
+	}
 	var plots []Plot
 	for _, sl := range Slices(s) {
 		reg := s.Regions()[sl.Region]
@@ -138,7 +142,7 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 		}
 		plots = append(plots, Plot{
 			Name:    "spectrum_" + reg.Name() + sl.Suffix(s),
-			Caption: "Unfolded spectrum, " + sl.Name(s) + ", with its data-statistical uncertainty, against the simulation truth and the prior scaled to the same total.",
+			Caption: "Unfolded spectrum, " + sl.Name(s) + ", with its data-statistical uncertainty, against " + against + " scaled to the same total.",
 			Figure:  &figure.Chart{Title: sl.Name(s), XLabel: axisLabel(last.Name(), last.Unit()), XMin: sl.Edges[0], XMax: sl.Edges[len(sl.Edges)-1], Panels: panels},
 		})
 	}
