@@ -145,14 +145,7 @@ func (p *progress) finish() {
 // estimate per in-range truth bin.
 func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	res := out.Result
-	fmt.Fprintf(w, "result: %s (", out.Folder)
-	for i, f := range out.Files {
-		if i > 0 {
-			fmt.Fprint(w, ", ")
-		}
-		fmt.Fprint(w, f)
-	}
-	fmt.Fprintln(w, ")")
+	fmt.Fprintf(w, "result: %s (%s)\n", out.Folder, fileList(out.Files, ", "))
 	det := bayes.DetailsOf(res)
 	fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
 	// As in plain-table mode, the per-bin table is printed for small

@@ -39,3 +39,27 @@ func printChecks(w io.Writer, dir string, r *result.Result, files []string) {
 
 // formatG4 formats a chi-square for the summary.
 func formatG4(v float64) string { return fmt.Sprintf("%.4g", v) }
+
+// fileList returns the names of files for a summary line, each file of
+// a sub-folder counted under the folder ("plots/ (18 files)").
+func fileList(files []string, sep string) string {
+	var out []string
+	count := map[string]int{}
+	for _, f := range files {
+		dir, _, ok := strings.Cut(f, "/")
+		if !ok {
+			out = append(out, f)
+			continue
+		}
+		if count[dir] == 0 {
+			out = append(out, dir+"/")
+		}
+		count[dir]++
+	}
+	for i, f := range out {
+		if n := count[strings.TrimSuffix(f, "/")]; n > 0 && strings.HasSuffix(f, "/") {
+			out[i] = fmt.Sprintf("%s (%d files)", f, n)
+		}
+	}
+	return strings.Join(out, sep)
+}

@@ -134,7 +134,7 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 	fmt.Fprintf(w, "         seed %d; known truth of the pseudo-data: %s\n", in.Config.Seed, demo.TruthFile)
 	fmt.Fprintf(w, "results: %s\n", out.Folder)
 	if len(out.Files) > 0 {
-		fmt.Fprintf(w, "         %s\n", strings.Join(out.Files, "  "))
+		fmt.Fprintf(w, "         %s\n", fileList(out.Files, "  "))
 	}
 	fmt.Fprintf(w, "\nUnfolded (%d iterations, prior: the simulation) vs. known truth, expected zetons per in-range truth bin:\n", bayes.DetailsOf(out.Result).Iterations)
 	labelW := len("bin")
