@@ -150,10 +150,11 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 }
 
 // truthBounds returns the boundaries between the slices of s in global
-// index, and the start of the flow bins; nil without a scheme.
-func truthBounds(s *binning.Scheme) []float64 {
+// index, and the start of the flow bins; without a scheme, the region
+// boundaries of the truth binning of r.
+func truthBounds(r *Result, s *binning.Scheme) []float64 {
 	if s == nil {
-		return nil
+		return regionBounds(r.TruthBinning)
 	}
 	var b []float64
 	for _, sl := range Slices(s) {
@@ -210,10 +211,7 @@ func efficiencyPlot(r *Result, s *binning.Scheme) Plot {
 	if r.Purity != nil {
 		pts = append(pts, indexPoints("purity", opt(r.Purity), nil), indexPoints("stability", opt(r.Stability), nil))
 	}
-	bounds := truthBounds(s)
-	if s == nil {
-		bounds = regionBounds(r.TruthBinning)
-	}
+	bounds := truthBounds(r, s)
 	return Plot{
 		Name:    "efficiency",
 		Caption: "Efficiency, purity and stability per truth bin, in global-index order; the lines mark the slices and the flow bins.",
@@ -295,10 +293,7 @@ func responsePlot(r *Result, s *binning.Scheme) (Plot, bool) {
 			}
 		}
 	}
-	xb := truthBounds(s)
-	if s == nil {
-		xb = regionBounds(r.TruthBinning)
-	}
+	xb := truthBounds(r, s)
 	return Plot{
 		Name:    "response",
 		Caption: "Response matrix: the probability R_ij that an event of truth bin j is reconstructed in reco bin i, in global-index order; the lines mark the truth slices and flow bins and the reco regions; empty cells are white.",
@@ -313,10 +308,7 @@ func correlationPlot(r *Result, s *binning.Scheme) (Plot, bool) {
 	if r.Covariance == nil || len(r.Covariance) > MaxHeatBins {
 		return Plot{}, false
 	}
-	b := truthBounds(s)
-	if s == nil {
-		b = regionBounds(r.TruthBinning)
-	}
+	b := truthBounds(r, s)
 	return Plot{
 		Name:    "correlation",
 		Caption: "Correlation matrix of the estimate (data-statistical), in global-index order; the lines mark the slices and the flow bins.",

@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -71,7 +72,7 @@ func TestPlotsData(t *testing.T) {
 	if c.XMin != 20 || c.XMax != 40 || c.XLabel != "pt [GeV]" || len(sim.Edges) != 3 {
 		t.Errorf("spectrum axis %v..%v %q, edges %v", c.XMin, c.XMax, c.XLabel, sim.Edges)
 	}
-	if e := plots["efficiency"].Figure.(*figure.Chart).Panels[0].Points[0]; !equal(e.Y, r.Efficiency) {
+	if e := plots["efficiency"].Figure.(*figure.Chart).Panels[0].Points[0]; !slices.Equal(e.Y, r.Efficiency) {
 		t.Errorf("efficiency %v, want %v", e.Y, r.Efficiency)
 	}
 	f := plots["folded"].Figure.(*figure.Chart)
@@ -94,21 +95,9 @@ func TestPlotsData(t *testing.T) {
 	}
 	corr := plots["correlation"].Figure.(*figure.Heat)
 	rho := r.Correlation()
-	if corr.Min != -1 || corr.Max != 1 || corr.Z[0][1] != rho[0][1] || !equal(corr.XBounds, []float64{2}) {
+	if corr.Min != -1 || corr.Max != 1 || corr.Z[0][1] != rho[0][1] || !slices.Equal(corr.XBounds, []float64{2}) {
 		t.Errorf("correlation %v, bounds %v", corr.Z, corr.XBounds)
 	}
-}
-
-func equal(a, b []float64) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // The report writes every plot as PNG (which decodes) and SVG.

@@ -86,11 +86,11 @@ func (c *Chart) draw(dc draw.Canvas) error {
 			p.Title.Text = c.Title
 		}
 		if k == len(c.Panels)-1 {
-			p.X.Tick.Marker = plainTicks{}
+			p.X.Tick.Marker = ticks{}
 			p.X.Label.Text = c.XLabel
 			p.X.Label.TextStyle.Font.Size = vg.Points(10)
 		} else {
-			p.X.Tick.Marker = blankTicks{}
+			p.X.Tick.Marker = ticks{blank: true}
 		}
 		plots[k] = p
 	}
@@ -129,18 +129,6 @@ func (c *Chart) draw(dc draw.Canvas) error {
 		p.Draw(cv)
 	}
 	return nil
-}
-
-// blankTicks are the default ticks without labels, for the x axis of
-// the upper panels.
-type blankTicks struct{}
-
-func (blankTicks) Ticks(min, max float64) []plot.Tick {
-	t := plot.DefaultTicks{}.Ticks(min, max)
-	for i := range t {
-		t[i].Label = ""
-	}
-	return t
 }
 
 // plot builds the gonum plot of the panel.

@@ -57,7 +57,7 @@ func (h *Heat) draw(dc draw.Canvas) error {
 	cols, rows := grid(h.Z).Dims()
 	p := plot.New()
 	p.Title.Text, p.X.Label.Text, p.Y.Label.Text = h.Title, h.XLabel, h.YLabel
-	p.X.Tick.Marker, p.Y.Tick.Marker = plainTicks{}, plainTicks{}
+	p.X.Tick.Marker, p.Y.Tick.Marker = ticks{}, ticks{}
 	p.X.Min, p.X.Max = 0, math.Max(float64(cols), 1)
 	p.Y.Min, p.Y.Max = 0, math.Max(float64(rows), 1)
 	lo, hi := h.Min, h.Max
@@ -96,14 +96,18 @@ func (h *Heat) draw(dc draw.Canvas) error {
 	return nil
 }
 
-// plainTicks are the default ticks labelled in the shortest form (bin
-// numbers without decimals).
-type plainTicks struct{}
+// ticks are the default ticks labelled in the shortest form (bin
+// numbers without decimals), or without labels (the x axis of the upper
+// panels of a chart).
+type ticks struct{ blank bool }
 
-func (plainTicks) Ticks(min, max float64) []plot.Tick {
+func (tk ticks) Ticks(min, max float64) []plot.Tick {
 	t := plot.DefaultTicks{}.Ticks(min, max)
 	for i := range t {
-		if t[i].Label != "" {
+		switch {
+		case tk.blank:
+			t[i].Label = ""
+		case t[i].Label != "":
 			t[i].Label = strconv.FormatFloat(t[i].Value, 'g', 6, 64)
 		}
 	}
