@@ -79,7 +79,10 @@ func reportSummary(r *Result) [][2]string {
 	rows := [][2]string{
 		{"truth bins", fmt.Sprintf("%d (%d determined)", r.TruthBins, det)},
 		{"reco bins", strconv.Itoa(r.RecoBins)},
-		{"iterations", fmt.Sprintf("%d (stopped by %s)", r.Iterations, r.StoppedBy)},
+		{"iterations", strconv.Itoa(r.Iterations)},
+	}
+	if r.StoppedBy != "" {
+		rows[2][1] += " (stopped by " + r.StoppedBy + ")"
 	}
 	if c.HasData {
 		rows = append(rows, [2]string{"folded chi-square", fmt.Sprintf("%.4g over %d reco bins", c.FoldedChi2, c.FoldedBins)})

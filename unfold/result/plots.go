@@ -138,7 +138,8 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 		main := figure.Panel{YLabel: axisLabel(name, units), LogY: hi > 30*lo, Points: []figure.Points{pts}, Steps: steps}
 		panels := []figure.Panel{main}
 		if sim != nil {
-			panels = append(panels, figure.Panel{YLabel: "ratio to simulation", HLines: []float64{1}, Points: []figure.Points{ratio}})
+			lo, hi := ratioRange(ratio.Y)
+			panels = append(panels, figure.Panel{YLabel: "ratio to simulation", YMin: lo, YMax: hi, HLines: []float64{1}, Points: []figure.Points{ratio}})
 		}
 		plots = append(plots, Plot{
 			Name:    "spectrum_" + reg.Name() + sl.Suffix(s),
@@ -147,6 +148,18 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 		})
 	}
 	return plots
+}
+
+// ratioRange returns the y range of a ratio panel: 0.5 to 1.5, widened
+// to hold every ratio y (not every error bar), never below 0.
+func ratioRange(y []float64) (lo, hi float64) {
+	lo, hi = 0.5, 1.5
+	for _, v := range y {
+		if !math.IsNaN(v) {
+			lo, hi = math.Min(lo, v-0.1), math.Max(hi, v+0.1)
+		}
+	}
+	return math.Max(lo, 0), hi
 }
 
 // truthBounds returns the boundaries between the slices of s in global

@@ -191,12 +191,16 @@ func (pn *Panel) plot() (*plot.Plot, error) {
 			if s.YErr != nil && finite(s.YErr[i]) {
 				ey = s.YErr[i]
 			}
-			lo := ey
+			lo, hi := ey, ey
 			if pn.LogY && y-lo < floor {
 				lo = y - floor
 			}
+			if pn.YMin != 0 || pn.YMax != 0 {
+				// A fixed range: the error bars end at its limits.
+				lo, hi = math.Max(math.Min(lo, y-pn.YMin), 0), math.Max(math.Min(hi, pn.YMax-y), 0)
+			}
 			xerr = append(xerr, struct{ Low, High float64 }{ex, ex})
-			yerr = append(yerr, struct{ Low, High float64 }{lo, ey})
+			yerr = append(yerr, struct{ Low, High float64 }{lo, hi})
 			see(s.X[i], y+ey)
 		}
 		col, glyph := pick(colors, style), pick(glyphs, style)
@@ -304,12 +308,12 @@ func (pn *Panel) plot() (*plot.Plot, error) {
 			ymin, ymax = ymin/2+0.25, 2*ymax
 		}
 	}
-	if pn.YMin != 0 || pn.YMax != 0 {
+	switch {
+	case pn.YMin != 0 || pn.YMax != 0:
 		ymin, ymax = pn.YMin, pn.YMax
-	}
-	if pn.LogY {
+	case pn.LogY:
 		ymax *= 3 // room for the legend
-	} else {
+	default:
 		ymax += 0.25 * (ymax - ymin)
 	}
 	p.Y.Min, p.Y.Max = ymin, ymax
