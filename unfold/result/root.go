@@ -26,6 +26,7 @@ func writeROOT(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	dens, densUnc := r.densities(s)
 	h1, h2 := rootHistograms(s, r.Estimate, r.Uncertainty, dens, densUnc)
 	h2 = append(h2, correlationHistograms(s, r.Correlation())...)
+	h2 = append(h2, responseHistograms(s, r)...)
 	if err := rootio.WriteFile(path, h1, h2); err != nil {
 		return nil, err
 	}
@@ -131,6 +132,48 @@ func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D 
 				h.SumW[h.Index(ix+1, iy+1)] = rho[gx][gy]
 			}
 		}
+		h2 = append(h2, h)
+	}
+	return h2
+}
+
+// responseHistograms makes one TH2D per truth region of s,
+// REGION/response, of the response probability R_ij = A_ij / G_j: along
+// x the region's truth bins (regionBins order, numbered 0, 1, ...),
+// along y every reco bin by global index. None without the migrations,
+// or when they have more than MaxHeatBins reco bins or truth bins.
+func responseHistograms(s *binning.Scheme, r *Result) []*rootio.Hist2D {
+	m := r.Migrations
+	if m == nil || r.Generated == nil {
+		return nil
+	}
+	nr, nt := m.Dims()
+	if nr > MaxHeatBins || nt > MaxHeatBins {
+		return nil
+	}
+	ptr, row, val := m.ColPtr(), m.RowIdx(), m.Values()
+	ye := make([]float64, nr+1)
+	for i := range ye {
+		ye[i] = float64(i)
+	}
+	var h2 []*rootio.Hist2D
+	for k, reg := range s.Regions() {
+		g := regionBins(s, k)
+		xe := make([]float64, len(g)+1)
+		for i := range xe {
+			xe[i] = float64(i)
+		}
+		h := rootio.NewHist2D(reg.Name()+"/response", xe, ye)
+		h.Title = reg.Name() + " response probability (x: truth bins of the region, in-range then flow; y: reco bins, global index)"
+		for ix, j := range g {
+			if r.Generated[j] <= 0 {
+				continue
+			}
+			for p := ptr[j]; p < ptr[j+1]; p++ {
+				h.SumW[h.Index(ix+1, row[p]+1)] = val[p] / r.Generated[j]
+			}
+		}
+		h.Entries = float64(m.NNZ())
 		h2 = append(h2, h)
 	}
 	return h2

@@ -135,3 +135,23 @@ func TestCorrelationHistograms(t *testing.T) {
 		t.Error("histograms without a covariance")
 	}
 }
+
+// The response TH2D of a region holds R_ij = A_ij / G_j (method.md §2
+// Response, efficiency, purity and stability) for the region's truth
+// bins along x and every reco bin along y (ROOT cell layout: cell
+// (ix+1, iy+1), common practice).
+func TestResponseHistograms(t *testing.T) {
+	r, s := plotsResult(t) // truth: c (bins 0, 1), f (bin 2); 4 reco bins
+	h := responseHistograms(s, r)
+	if len(h) != 2 || h[0].Name != "c/response" || h[1].Name != "f/response" {
+		t.Fatalf("histograms %v", h)
+	}
+	c, f := h[0], h[1]
+	if nx, ny := c.NBins(); nx != 2 || ny != 4 {
+		t.Fatalf("c/response has %d×%d bins", nx, ny)
+	}
+	// A = R of problem D (diagnostics_test.go), G = (2, 1, 4).
+	if c.SumW[c.Index(1, 2)] != 0.20/2 || c.SumW[c.Index(2, 4)] != 0.05/1 || f.SumW[f.Index(1, 4)] != 0.20/4 || f.SumW[f.Index(1, 1)] != 0 {
+		t.Errorf("response cells c %v f %v", c.SumW, f.SumW)
+	}
+}
