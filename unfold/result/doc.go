@@ -27,7 +27,7 @@
 //	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
 //	report   plots/*.png|svg, report.html  report.go, plots.go, html.go  the plots (package figure) and the page
 //	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region,
-//	                                       correlation TH2D per region
+//	                                       correlation and response TH2D per region
 //
 // The last three need a truth binning and are written only when one is
 // given. Write writes a chosen list of formats into a folder; Formats
