@@ -23,26 +23,31 @@ import (
 // runAnalysisUnfold is "desmear unfold ANALYSIS.yaml": the whole job from
 // an analysis file. replace is the unfold command's --force (replace an
 // earlier result folder).
-func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, replace bool) error {
-	a, out, err := runAnalysis(ctx, g, path, replace)
+func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, replace, noReport bool) error {
+	a, out, err := runAnalysis(ctx, g, path, replace, noReport)
 	if err != nil {
 		return err
 	}
 	w := bufio.NewWriter(g.stdout)
 	printOutcome(w, a, out)
+	printChecks(w, out.Folder, out.Document, out.Files)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}
 	return nil
 }
 
-// runAnalysis loads the analysis file at path and runs it, with a
+// runAnalysis loads the analysis file at path and runs it (without the
+// report when noReport is set), with a
 // progress bar on stderr when it is a terminal. It returns the analysis
 // and what the run produced.
-func runAnalysis(ctx context.Context, g *globalOptions, path string, replace bool) (*analysis.Analysis, *analysis.Outcome, error) {
+func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, noReport bool) (*analysis.Analysis, *analysis.Outcome, error) {
 	a, err := analysis.Load(path)
 	if err != nil {
 		return nil, nil, analysisErr(err)
+	}
+	if noReport {
+		a.Output.Formats = withoutReport(a.Output.Formats)
 	}
 	if err := a.CheckOutput(replace); err != nil {
 		switch {
@@ -141,14 +146,7 @@ func (p *progress) finish() {
 // estimate per in-range truth bin.
 func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	res := out.Result
-	fmt.Fprintf(w, "result: %s (", out.Folder)
-	for i, f := range out.Files {
-		if i > 0 {
-			fmt.Fprint(w, ", ")
-		}
-		fmt.Fprint(w, f)
-	}
-	fmt.Fprintln(w, ")")
+	fmt.Fprintf(w, "result: %s (%s)\n", out.Folder, fileList(out.Files, ", "))
 	det := bayes.DetailsOf(res)
 	fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
 	// As in plain-table mode, the per-bin table is printed for small

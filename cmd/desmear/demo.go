@@ -20,10 +20,11 @@ import (
 )
 
 type demoOptions struct {
-	out    string
-	events int
-	seed   uint64
-	force  bool
+	out      string
+	events   int
+	seed     uint64
+	force    bool
+	noReport bool
 }
 
 func newDemoCommand(g *globalOptions) *cobra.Command {
@@ -61,6 +62,7 @@ of cores (the ROOT files differ only in the write times they record).`,
 	f.IntVar(&o.events, "events", o.events, fmt.Sprintf("number of simulated events, %d to %d; the pseudo-data get about a tenth as many reconstructed events", demo.MinEvents, demo.MaxEvents))
 	f.Uint64Var(&o.seed, "seed", o.seed, "seed of the generator")
 	f.BoolVar(&o.force, "force", false, "replace the output folder if it holds an earlier demo (never any other folder)")
+	f.BoolVar(&o.noReport, "no-report", false, "write no plots and no report.html in the result folder")
 	return cmd
 }
 
@@ -93,7 +95,7 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	}
 	fmt.Fprintf(diag, "desmear demo: inputs written in %.1f s; running %s\n", time.Since(start).Seconds(), in.Path(demo.AnalysisFile))
 	t1 := time.Now()
-	_, out, err := runAnalysis(ctx, g, in.Path(demo.AnalysisFile), false)
+	_, out, err := runAnalysis(ctx, g, in.Path(demo.AnalysisFile), false, o.noReport)
 	if err != nil {
 		if ctx.Err() != nil {
 			// Interrupted while unfolding: the inputs this run generated are
@@ -115,6 +117,7 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	}
 	w := bufio.NewWriter(g.stdout)
 	printDemo(w, in, out, cmp)
+	printChecks(w, out.Folder, out.Document, out.Files)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}
@@ -131,7 +134,7 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 	fmt.Fprintf(w, "         seed %d; known truth of the pseudo-data: %s\n", in.Config.Seed, demo.TruthFile)
 	fmt.Fprintf(w, "results: %s\n", out.Folder)
 	if len(out.Files) > 0 {
-		fmt.Fprintf(w, "         %s\n", strings.Join(out.Files, "  "))
+		fmt.Fprintf(w, "         %s\n", fileList(out.Files, "  "))
 	}
 	fmt.Fprintf(w, "\nUnfolded (%d iterations, prior: the simulation) vs. known truth, expected zetons per in-range truth bin:\n", bayes.DetailsOf(out.Result).Iterations)
 	labelW := len("bin")

@@ -178,6 +178,12 @@ func TestDemoDeterministic(t *testing.T) {
 			if ja, jb := withoutROOTHashes(t, a), withoutROOTHashes(t, b); ja != jb {
 				t.Errorf("result.json differs beyond the ROOT inputs' sizes and hashes:\n%s\n---\n%s", ja, jb)
 			}
+		case name == result.ReportFile:
+			// The inputs table holds the sizes and hashes of the ROOT inputs.
+			ha, hb := rootSHAHTML.ReplaceAll(a, nil), rootSHAHTML.ReplaceAll(b, nil)
+			if len(ha) == 0 || !bytes.Equal(ha, hb) {
+				t.Errorf("%s differs between GOMAXPROCS=1 and 2 beyond the ROOT inputs' sizes and hashes", name)
+			}
 		default:
 			if !bytes.Equal(a, b) {
 				t.Errorf("%s differs between GOMAXPROCS=1 and 2", name)

@@ -13,6 +13,8 @@ import (
 	"go-hep.org/x/hep/groot"
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/root"
+
+	"github.com/desmear/desmear/unfold/result"
 )
 
 const formatsTruth = `regions:
@@ -128,7 +130,7 @@ func TestPlainFormats(t *testing.T) {
 	for _, c := range []struct {
 		formats, want string
 	}{
-		{"", "result.csv result.json"},
+		{"", "history.csv plots reco-bins.csv report.html response.csv result.csv result.json truth-bins.csv"},
 		{"json", "result.json"},
 		{"csv,regions,root", "result.csv result.json"},
 	} {
@@ -146,7 +148,7 @@ func TestPlainFormats(t *testing.T) {
 	}
 	out := filepath.Join(dir, "bad")
 	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--formats", "json,pdf")...)
-	if code != exitUsage || !strings.Contains(stderr, `unknown format "pdf" (known: json, csv, regions, root)`) {
+	if code != exitUsage || !strings.Contains(stderr, `unknown format "pdf" (known: `+strings.Join(result.Formats(), ", ")+`)`) {
 		t.Errorf("--formats json,pdf: exit %d, %s", code, stderr)
 	}
 	if _, err := os.Stat(out); err == nil {

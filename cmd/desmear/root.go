@@ -67,6 +67,7 @@ measurement from simulated events and unfolds it.
 		newDemoCommand(g),
 		newValidateCommand(g),
 		newBenchCommand(g),
+		newReportCommand(g),
 	)
 	root.SetHelpCommand(newHelpCommand(root))
 	for _, c := range root.Commands() {

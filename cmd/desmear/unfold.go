@@ -46,9 +46,10 @@ type unfoldOptions struct {
 	seed          uint64
 	memoryLimit   int64
 
-	out     string
-	force   bool
-	formats []string
+	out      string
+	force    bool
+	formats  []string
+	noReport bool
 }
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
@@ -122,7 +123,7 @@ is at most --stop-chi2, within --max-iterations.`,
 				if err := checkAnalysisFlags(cmd, args[0]); err != nil {
 					return err
 				}
-				return runAnalysisUnfold(cmd.Context(), g, args[0], o.force)
+				return runAnalysisUnfold(cmd.Context(), g, args[0], o.force, o.noReport)
 			}
 			if err := o.check(cmd); err != nil {
 				return err
@@ -151,6 +152,7 @@ is at most --stop-chi2, within --max-iterations.`,
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
+	f.BoolVar(&o.noReport, "no-report", false, "write no plots and no report.html (the report format; \"desmear report DIR\" writes them later)")
 	return cmd
 }
 
@@ -167,7 +169,7 @@ func (o *unfoldOptions) tableFlags(f *pflag.FlagSet) {
 
 // analysisFlags are the unfold flags that apply with an analysis file;
 // every other setting comes from the file.
-var analysisFlags = []string{"force"}
+var analysisFlags = []string{"force", "no-report"}
 
 // checkAnalysisFlags refuses the plain-table flags with an analysis file:
 // the table inputs because they contradict it, and the settings because
@@ -509,6 +511,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err := checkOutFolder(o.out, o.force); err != nil {
 		return err
 	}
+	if o.noReport {
+		o.formats = withoutReport(o.formats)
+	}
 	pi, err := loadPlain(o)
 	if err != nil {
 		return err
@@ -543,6 +548,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err != nil {
 		return numericalErr(err)
 	}
+	r.SetProblem(prob)
 	r.Program = result.Program{Name: "desmear", Version: version}
 	r.Inputs = pi.inputs
 	prior := "generated"
@@ -684,6 +690,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning
 		}
 	}
 	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
+	printChecks(w, dir, r, files)
 	if g.quiet {
 		return
 	}

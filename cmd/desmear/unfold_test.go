@@ -19,7 +19,7 @@ import (
 
 // runCLI runs the command line in-process and returns its exit status,
 // stdout and stderr.
-func runCLI(t *testing.T, ctx context.Context, args ...string) (int, string, string) {
+func runCLI(t testing.TB, ctx context.Context, args ...string) (int, string, string) {
 	t.Helper()
 	var stdout, stderr bytes.Buffer
 	code := run(ctx, args, strings.NewReader(""), &stdout, &stderr)

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 func TestLoadGood(t *testing.T) {
@@ -38,7 +39,7 @@ func TestLoadGood(t *testing.T) {
 	if a.Uncertainty.Covariance != "full" || a.Uncertainty.Seed != 7 {
 		t.Errorf("uncertainty %+v", a.Uncertainty)
 	}
-	if a.Output.Folder != filepath.Join("testdata", "out") || len(a.Output.Formats) != 4 || a.Output.Luminosity != 2.5 {
+	if a.Output.Folder != filepath.Join("testdata", "out") || len(a.Output.Formats) != len(result.DefaultFormats()) || a.Output.Luminosity != 2.5 {
 		t.Errorf("output %+v", a.Output)
 	}
 }
@@ -106,7 +107,7 @@ func TestDecodeErrors(t *testing.T) {
 		{"  iterations: 3", "  iterations: 3\n  smoothing: 1.5", `testdata/bad.yaml:27: unfolding.smoothing: must be a strength in (0, 1]`},
 		{"  seed: 7", "  seed: 7\n  probes: 1", `testdata/bad.yaml:30: uncertainty.probes: must be at least 2`},
 		{"  seed: 7", "  seed: 7\n  toys: -3", `testdata/bad.yaml:30: uncertainty.toys: must be at least 2`},
-		{"  folder: out", "  folder: out\n  formats: [json, png]", `testdata/bad.yaml:32: result.formats[1]: unknown format "png" (known: json, csv, regions, root)`},
+		{"  folder: out", "  folder: out\n  formats: [json, png]", `testdata/bad.yaml:32: result.formats[1]: unknown format "png" (known: ` + strings.Join(result.Formats(), ", ") + `)`},
 		{"  luminosity: 2.5", "  luminosity: -2.5", `testdata/bad.yaml:32: result.luminosity: must be a positive integrated luminosity`},
 		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  workers: -1", `testdata/bad.yaml:34: processing.workers: must be ≥ 0`},
 		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  batch_size: -1", `testdata/bad.yaml:34: processing.batch_size: must be ≥ 0`},

@@ -32,7 +32,11 @@ type Outcome struct {
 	ResponseInfo *response.BundleInfo
 	Data         *Measured
 	Background   *Expected
-	Result       *unfold.Result
+	// Problem is the unfolding problem assembled from them.
+	Problem *unfold.Problem
+	Result  *unfold.Result
+	// Document is the result document written.
+	Document *result.Result
 	// IterationsChosen records the automatic choice of the number of
 	// iterations (iterations: auto); nil otherwise.
 	IterationsChosen *validate.Choice
@@ -67,6 +71,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 			return nil, err
 		}
 	}
+	out.Problem = p
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
@@ -194,6 +199,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	if err != nil {
 		return err
 	}
+	doc.SetProblem(out.Problem)
 	doc.Program = result.Program{Name: "desmear"}
 	if opt != nil {
 		doc.Program.Version = opt.Version
@@ -228,6 +234,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 		return err
 	}
 	out.Folder = a.Output.Folder
+	out.Document = doc
 	return nil
 }
 

@@ -21,10 +21,15 @@
 //
 //	json     result.json       json.go     the document; always written
 //	csv      result.csv        csv.go      one row per truth bin
+//	diagnostics  reco-bins.csv, truth-bins.csv, correlation.csv, history.csv, response.csv
+//	                           diagnostics.go  data against the folded estimate, per-bin checks
+//	record   record/*.yaml     record.go   the data-record tables (submission file, a table per slice, covariances)
 //	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
-//	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region
+//	report   plots/*.png|svg, report.html  report.go, plots.go, html.go  the plots (package figure) and the page
+//	root     result.root       root.go     TH1D per slice, TH2D per rectangular 2-D region,
+//	                                       correlation and response TH2D per region
 //
-// The last two need a truth binning and are written only when one is
+// The last three need a truth binning and are written only when one is
 // given. Write writes a chosen list of formats into a folder; Formats
 // lists the registered names and DefaultFormats those written when none
 // are chosen (the default of the analysis file's output.formats and of

@@ -55,12 +55,6 @@ func writeRegion(w io.Writer, s *binning.Scheme, k int, r *Result, dens, densUnc
 		}
 		return strconv.FormatFloat(v, 'g', -1, 64)
 	}
-	at := func(v []float64, g int) float64 {
-		if v == nil {
-			return math.NaN()
-		}
-		return v[g]
-	}
 	ptr := func(v []*float64, g int) float64 {
 		if v == nil || v[g] == nil {
 			return math.NaN()

@@ -6,6 +6,7 @@ import (
 	"slices"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -79,6 +80,29 @@ type Result struct {
 	Converged  bool   `json:"converged"`
 	StoppedBy  string `json:"stopped_by,omitempty"`
 	History    []Step `json:"history"`
+
+	// Generated is G_j, the simulated count generated per truth bin, and
+	// Prior the prior as given (absent when it is Generated); both set
+	// by SetProblem.
+	Generated []float64 `json:"generated,omitempty"`
+	Prior     []float64 `json:"prior,omitempty"`
+	// Data is n_i per reco bin as given and DataVariance its variance
+	// (n_i for Poisson data); Background and BackgroundVariance the
+	// expected background and its variance (absent without one). All
+	// set by SetProblem.
+	Data               []float64 `json:"data,omitempty"`
+	DataVariance       []float64 `json:"data_variance,omitempty"`
+	Background         []float64 `json:"background,omitempty"`
+	BackgroundVariance []float64 `json:"background_variance,omitempty"`
+	// FoldedChi2 is Σ_i (n_i − ν_i)² / (var n_i + var b_i) over the
+	// FoldedBins reco bins of positive variance (see Pulls); set by
+	// SetProblem.
+	FoldedChi2 float64 `json:"folded_chi2,omitempty"`
+	FoldedBins int     `json:"folded_bins,omitempty"`
+	// Migrations is the migration matrix A_ij of the problem (not part of
+	// result.json); the diagnostics write it as a table when it is small
+	// enough (MaxResponseCells).
+	Migrations *sparse.Matrix `json:"-"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
 	// they were given.
@@ -315,7 +339,9 @@ func (r *Result) checkFinite() error {
 	vecs := []struct {
 		name string
 		v    []float64
-	}{{"estimate", r.Estimate}, {"uncertainty", r.Uncertainty}, {"efficiency", r.Efficiency}, {"folded", r.Folded}}
+	}{{"estimate", r.Estimate}, {"uncertainty", r.Uncertainty}, {"efficiency", r.Efficiency}, {"folded", r.Folded},
+		{"generated", r.Generated}, {"prior", r.Prior}, {"data", r.Data}, {"data_variance", r.DataVariance},
+		{"background", r.Background}, {"background_variance", r.BackgroundVariance}, {"folded_chi2", []float64{r.FoldedChi2}}}
 	for _, x := range vecs {
 		for i, v := range x.v {
 			if math.IsNaN(v) || math.IsInf(v, 0) {

@@ -25,6 +25,8 @@ func writeROOT(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	}
 	dens, densUnc := r.densities(s)
 	h1, h2 := rootHistograms(s, r.Estimate, r.Uncertainty, dens, densUnc)
+	h2 = append(h2, correlationHistograms(s, r.Correlation())...)
+	h2 = append(h2, responseHistograms(s, r)...)
 	if err := rootio.WriteFile(path, h1, h2); err != nil {
 		return nil, err
 	}
@@ -45,57 +47,23 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 		}
 		return v[g]
 	}
+	for _, sl := range Slices(s) {
+		suffix := sl.Suffix(s)
+		name := s.Regions()[sl.Region].Name()
+		n := len(sl.Edges) - 1
+		hc := rootio.NewHist1D(name+"/counts"+suffix, sl.Edges)
+		hd := rootio.NewHist1D(name+"/density"+suffix, sl.Edges)
+		hc.Title, hd.Title = title(s, &sl, "counts"), title(s, &sl, "density")
+		for c, g := range sl.Cells {
+			hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
+			if c >= 1 && c <= n {
+				hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
+			}
+		}
+		h1 = append(h1, hc, hd)
+	}
 	for r, reg := range s.Regions() {
 		axes := reg.Axes()
-		last := axes[len(axes)-1]
-		// Enumerate the outer bins (all axes but the last), in-range only.
-		var outer [][]int
-		var rec func(prefix []int, k int)
-		rec = func(prefix []int, k int) {
-			if k == len(axes)-1 {
-				outer = append(outer, append([]int(nil), prefix...))
-				return
-			}
-			prev := 0
-			if len(prefix) > 0 {
-				prev = prefix[len(prefix)-1]
-			}
-			for i := 0; i < axes[k].Bins(prev); i++ {
-				rec(append(prefix, i), k+1)
-			}
-		}
-		rec(nil, 0)
-		for _, o := range outer {
-			prev := 0
-			if len(o) > 0 {
-				prev = o[len(o)-1]
-			}
-			edges := last.EdgesIn(prev)
-			// Names: REGION/counts for a 1-D region, REGION/counts_y0 for
-			// outer bin 0 of axis y, REGION/counts_y0_x2 in 3-D.
-			suffix := ""
-			for k, i := range o {
-				if k > 0 {
-					suffix += "_"
-				}
-				suffix += fmt.Sprintf("%s%d", axes[k].Name(), i)
-			}
-			if suffix != "" {
-				suffix = "_" + suffix
-			}
-			n := len(edges) - 1
-			hc := rootio.NewHist1D(reg.Name()+"/counts"+suffix, edges)
-			hd := rootio.NewHist1D(reg.Name()+"/density"+suffix, edges)
-			hc.Title, hd.Title = title(s, r, o, "counts"), title(s, r, o, "density")
-			for c := 0; c < n+2; c++ {
-				g := s.Global(r, append(append([]int(nil), o...), rootio.BinOf(c, n))...)
-				hc.SumW[c], hc.SumW2[c] = val(g, est), sq(val(g, unc))
-				if c >= 1 && c <= n {
-					hd.SumW[c], hd.SumW2[c] = val(g, dens), sq(val(g, densUnc))
-				}
-			}
-			h1 = append(h1, hc, hd)
-		}
 		if len(axes) == 2 && reg.Rectangular() {
 			xe, ye := axes[0].Edges(), axes[1].Edges()
 			hc := rootio.NewHist2D(reg.Name()+"/counts2d", xe, ye)
@@ -120,15 +88,93 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 
 func sq(x float64) float64 { return x * x }
 
-func title(s *binning.Scheme, r int, outer []int, what string) string {
-	reg := s.Regions()[r]
-	t := reg.Name() + " " + what
-	axes := reg.Axes()
-	prev := 0
-	for k, i := range outer {
-		e := axes[k].EdgesIn(prev)
-		t += fmt.Sprintf(" %s[%g,%g)", axes[k].Name(), e[i], e[i+1])
-		prev = i
+func title(s *binning.Scheme, sl *Slice, what string) string {
+	t := s.Regions()[sl.Region].Name() + " " + what
+	for _, r := range sl.Ranges(s) {
+		t += fmt.Sprintf(" %s[%g,%g)", r.Axis, r.Low, r.High)
 	}
 	return t
+}
+
+// regionBins returns the global bins of region k of s: its in-range
+// bins, then its flow bins, each in global order.
+func regionBins(s *binning.Scheme, k int) []int {
+	var g []int
+	lo, hi := s.Span(k)
+	flo, fhi := s.FlowSpan(k)
+	for _, span := range [][2]int{{lo, hi}, {flo, fhi}} {
+		for i := span[0]; i < span[1]; i++ {
+			g = append(g, i)
+		}
+	}
+	return g
+}
+
+// correlationHistograms makes one TH2D per region of s, REGION/correlation,
+// of the correlation matrix rho between the region's bins (regionBins
+// order, numbered 0, 1, ... along both axes); none when rho is nil.
+func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D {
+	if rho == nil {
+		return nil
+	}
+	var h2 []*rootio.Hist2D
+	for k, reg := range s.Regions() {
+		g := regionBins(s, k)
+		edges := make([]float64, len(g)+1)
+		for i := range edges {
+			edges[i] = float64(i)
+		}
+		h := rootio.NewHist2D(reg.Name()+"/correlation", edges, edges)
+		h.Title = reg.Name() + " correlation (in-range bins, then flow bins, in global order)"
+		h.Entries = float64(len(g) * len(g))
+		for iy, gy := range g {
+			for ix, gx := range g {
+				h.SumW[h.Index(ix+1, iy+1)] = rho[gx][gy]
+			}
+		}
+		h2 = append(h2, h)
+	}
+	return h2
+}
+
+// responseHistograms makes one TH2D per truth region of s,
+// REGION/response, of the response probability R_ij = A_ij / G_j: along
+// x the region's truth bins (regionBins order, numbered 0, 1, ...),
+// along y every reco bin by global index. None without the migrations,
+// or when they have more than MaxHeatBins reco bins or truth bins.
+func responseHistograms(s *binning.Scheme, r *Result) []*rootio.Hist2D {
+	m := r.Migrations
+	if m == nil || r.Generated == nil {
+		return nil
+	}
+	nr, nt := m.Dims()
+	if nr > MaxHeatBins || nt > MaxHeatBins {
+		return nil
+	}
+	ptr, row, val := m.ColPtr(), m.RowIdx(), m.Values()
+	ye := make([]float64, nr+1)
+	for i := range ye {
+		ye[i] = float64(i)
+	}
+	var h2 []*rootio.Hist2D
+	for k, reg := range s.Regions() {
+		g := regionBins(s, k)
+		xe := make([]float64, len(g)+1)
+		for i := range xe {
+			xe[i] = float64(i)
+		}
+		h := rootio.NewHist2D(reg.Name()+"/response", xe, ye)
+		h.Title = reg.Name() + " response probability (x: truth bins of the region, in-range then flow; y: reco bins, global index)"
+		for ix, j := range g {
+			if r.Generated[j] <= 0 {
+				continue
+			}
+			for p := ptr[j]; p < ptr[j+1]; p++ {
+				h.SumW[h.Index(ix+1, row[p]+1)] = val[p] / r.Generated[j]
+			}
+		}
+		h.Entries = float64(m.NNZ())
+		h2 = append(h2, h)
+	}
+	return h2
 }

@@ -96,3 +96,62 @@ func TestResultHistograms3D(t *testing.T) {
 		t.Errorf("TH2D %s", h2[0].Name)
 	}
 }
+
+// The correlation TH2D of a region holds ρ between its bins, in-range
+// bins first and flow bins after them, numbered from 0 (ROOT cell
+// layout, common practice: cell (ix+1, iy+1) for bins ix, iy).
+func TestCorrelationHistograms(t *testing.T) {
+	s, err := binning.Decode(strings.NewReader(`regions:
+  - name: c
+    axes:
+      - {name: pt, edges: [0, 10, 20], overflow: true}
+  - name: f
+    axes:
+      - {name: pt, edges: [0, 5]}
+`), "s.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := s.Len() // c: 0, 1; f: 2; c overflow: 3
+	rho := make([][]float64, n)
+	for i := range rho {
+		rho[i] = make([]float64, n)
+		for j := range rho[i] {
+			rho[i][j] = float64(10*i + j)
+		}
+	}
+	h := correlationHistograms(s, rho)
+	if len(h) != 2 || h[0].Name != "c/correlation" || h[1].Name != "f/correlation" {
+		t.Fatalf("histograms %v", h)
+	}
+	c := h[0]
+	if nx, ny := c.NBins(); nx != 3 || ny != 3 {
+		t.Fatalf("c/correlation has %d×%d bins, want 3×3", nx, ny)
+	}
+	if c.SumW[c.Index(1, 1)] != rho[0][0] || c.SumW[c.Index(3, 1)] != rho[3][0] || c.SumW[c.Index(2, 3)] != rho[1][3] {
+		t.Errorf("c/correlation cells %v", c.SumW)
+	}
+	if correlationHistograms(s, nil) != nil {
+		t.Error("histograms without a covariance")
+	}
+}
+
+// The response TH2D of a region holds R_ij = A_ij / G_j (method.md §2
+// Response, efficiency, purity and stability) for the region's truth
+// bins along x and every reco bin along y (ROOT cell layout: cell
+// (ix+1, iy+1), common practice).
+func TestResponseHistograms(t *testing.T) {
+	r, s := plotsResult(t) // truth: c (bins 0, 1), f (bin 2); 4 reco bins
+	h := responseHistograms(s, r)
+	if len(h) != 2 || h[0].Name != "c/response" || h[1].Name != "f/response" {
+		t.Fatalf("histograms %v", h)
+	}
+	c, f := h[0], h[1]
+	if nx, ny := c.NBins(); nx != 2 || ny != 4 {
+		t.Fatalf("c/response has %d×%d bins", nx, ny)
+	}
+	// A = R of problem D (diagnostics_test.go), G = (2, 1, 4).
+	if c.SumW[c.Index(1, 2)] != 0.20/2 || c.SumW[c.Index(2, 4)] != 0.05/1 || f.SumW[f.Index(1, 4)] != 0.20/4 || f.SumW[f.Index(1, 1)] != 0 {
+		t.Errorf("response cells c %v f %v", c.SumW, f.SumW)
+	}
+}

@@ -32,6 +32,18 @@ func writeFolder(t *testing.T, parent, name string, r *Result, s *binning.Scheme
 	return dir, files
 }
 
+// notReportFiles returns files without those of the report: the plots
+// folder and report.html (tested in plots_test.go and html_test.go).
+func notReportFiles(files []string) []string {
+	var out []string
+	for _, f := range files {
+		if !strings.HasPrefix(f, PlotsFolder+"/") && f != ReportFile {
+			out = append(out, f)
+		}
+	}
+	return out
+}
+
 // The region tables and the ROOT histograms of a result are the same
 // whether the document carries its densities (an analysis run, which
 // fills them with Densities) or not (the plain-table mode, whose writers
@@ -62,7 +74,8 @@ func TestWritersSameForBothModes(t *testing.T) {
 	parent := t.TempDir()
 	pdir, pfiles := writeFolder(t, parent, "plain", plain, s)
 	adir, afiles := writeFolder(t, parent, "analysis", &analysis, s)
-	want := []string{JSONFile, CSVFile, RegionFile("c"), RootFile}
+	want := []string{JSONFile, CSVFile, TruthBinsFile, SubmissionFile, RecordFolder + "/c_y0.yaml", RecordFolder + "/c_y1.yaml", RegionFile("c"), RootFile}
+	pfiles, afiles = notReportFiles(pfiles), notReportFiles(afiles)
 	if !reflect.DeepEqual(pfiles, want) || !reflect.DeepEqual(afiles, want) {
 		t.Fatalf("files %v and %v, want %v", pfiles, afiles, want)
 	}
@@ -108,23 +121,23 @@ func TestWritersSameForBothModes(t *testing.T) {
 	}
 	// Without a truth binning the regions and root formats are left out.
 	_, files := writeFolder(t, parent, "unbinned", plain, nil)
-	if !reflect.DeepEqual(files, []string{JSONFile, CSVFile}) {
+	if files = notReportFiles(files); !reflect.DeepEqual(files, []string{JSONFile, CSVFile, TruthBinsFile}) {
 		t.Errorf("without a truth binning: %v", files)
 	}
 }
 
-// The registry: json first, then by name; the four formats are the
+// The registry: json first, then by name; all formats are the
 // default; an unknown name is refused with the known ones; a name is
 // registered once.
 func TestRegistry(t *testing.T) {
-	want := []string{"json", "csv", "regions", "root"}
+	want := []string{"json", "csv", "diagnostics", "record", "regions", "report", "root"}
 	if got := Formats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("Formats() = %v, want %v", got, want)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, regions, root)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, record, regions, report, root)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {
