@@ -4,11 +4,16 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/desmear/desmear/unfold"
 )
 
 var sqrt = math.Sqrt
+
+// StillFraction is the least speed of the L-curve, as a fraction of its
+// extent per decade of tau, at which its curvature is used.
+const StillFraction = 0.01
 
 // engine solves the normal equations of a system, densely or by
 // conjugate gradients.
@@ -108,17 +113,17 @@ func (e *engine) nominalIterations() int {
 }
 
 // taus returns the values of the scan, increasing: ScanPoints values
-// log-spaced in [ScanMin, ScanMax], by default [1e-5 s, 10 s] with s the
+// log-spaced in [ScanMin, ScanMax], by default [1e-4 s, 1e3 s] with s the
 // scale of the system (see system.scale).
 func (e *engine) taus(rs *Settings) []float64 {
 	lo, hi := rs.ScanMin, rs.ScanMax
 	if lo == 0 || hi == 0 {
 		s := e.sy.scale()
 		if lo == 0 {
-			lo = 1e-5 * s
+			lo = 1e-4 * s
 		}
 		if hi == 0 {
-			hi = 10 * s
+			hi = 1e3 * s
 		}
 	}
 	if lo >= hi {
@@ -174,7 +179,7 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 		}
 		d.Scan[k] = pt
 	}
-	curvatures(d.Scan)
+	usable := curvatures(d.Scan)
 	best := -1
 	if gc != nil {
 		d.Criterion = ChosenCorrelation
@@ -186,12 +191,23 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 		d.AtScanEdge = best == 0 || best == len(d.Scan)-1
 	} else {
 		d.Criterion = ChosenLCurve
-		for k := 1; k < len(d.Scan)-1; k++ {
+		first, last := -1, -1
+		for k, ok := range usable {
+			if !ok {
+				continue
+			}
+			if first < 0 {
+				first = k
+			}
+			last = k
 			if best < 0 || d.Scan[k].Curvature > d.Scan[best].Curvature {
 				best = k
 			}
 		}
-		d.AtScanEdge = best == 1 || best == len(d.Scan)-2
+		if best < 0 {
+			return &unfold.NumericalError{Reason: "the L-curve does not move over the scanned range of tau (neither the residual nor the penalty changes): widen the scan or give a fixed tau"}
+		}
+		d.AtScanEdge = best == first || best == last
 	}
 	d.Tau = d.Scan[best].Tau
 	return nil
@@ -202,18 +218,30 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 // the inner points, from central differences on the (uniform) grid in t:
 // κ = (x′ y″ − y′ x″) / (x′² + y′²)^{3/2} (Hansen and O'Leary 1993).
 // The corner of the L has κ > 0 (the curve turns from descending to
-// running right).
-func curvatures(s []ScanPoint) {
+// running right). Where the curve moves by less than StillFraction of
+// its extent per unit of t, the curvature is rounding noise: it is left
+// 0 and the point is not usable. It returns which points are usable.
+func curvatures(s []ScanPoint) []bool {
 	lg := func(v float64) float64 { return math.Log10(math.Max(v, 1e-300)) }
-	for k := 1; k+1 < len(s); k++ {
-		h := math.Log10(s[k+1].Tau) - math.Log10(s[k].Tau)
-		xm, x0, xp := lg(s[k-1].ResidualNorm), lg(s[k].ResidualNorm), lg(s[k+1].ResidualNorm)
-		ym, y0, yp := lg(s[k-1].PenaltyNorm), lg(s[k].PenaltyNorm), lg(s[k+1].PenaltyNorm)
-		x1, y1 := (xp-xm)/(2*h), (yp-ym)/(2*h)
-		x2, y2 := (xp-2*x0+xm)/(h*h), (yp-2*y0+ym)/(h*h)
-		den := math.Pow(x1*x1+y1*y1, 1.5)
-		if den > 0 {
-			s[k].Curvature = (x1*y2 - y1*x2) / den
-		}
+	usable := make([]bool, len(s))
+	if len(s) < 3 {
+		return usable
 	}
+	u, v := make([]float64, len(s)), make([]float64, len(s))
+	for k, pt := range s {
+		u[k], v[k] = lg(pt.ResidualNorm), lg(pt.PenaltyNorm)
+	}
+	extent := math.Hypot(slices.Max(u)-slices.Min(u), slices.Max(v)-slices.Min(v))
+	for k := 1; k+1 < len(s); k++ {
+		h := (math.Log10(s[k+1].Tau) - math.Log10(s[k-1].Tau)) / 2
+		u1, v1 := (u[k+1]-u[k-1])/(2*h), (v[k+1]-v[k-1])/(2*h)
+		u2, v2 := (u[k+1]-2*u[k]+u[k-1])/(h*h), (v[k+1]-2*v[k]+v[k-1])/(h*h)
+		speed := math.Hypot(u1, v1)
+		if !(speed > StillFraction*extent) {
+			continue
+		}
+		s[k].Curvature = (u1*v2 - v1*u2) / (speed * speed * speed)
+		usable[k] = true
+	}
+	return usable
 }
