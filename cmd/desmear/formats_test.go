@@ -146,7 +146,7 @@ func TestPlainFormats(t *testing.T) {
 	}
 	out := filepath.Join(dir, "bad")
 	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--formats", "json,pdf")...)
-	if code != exitUsage || !strings.Contains(stderr, `unknown format "pdf" (known: json, csv, regions, root)`) {
+	if code != exitUsage || !strings.Contains(stderr, `unknown format "pdf" (known: json, csv, regions, root, tau-scan)`) {
 		t.Errorf("--formats json,pdf: exit %d, %s", code, stderr)
 	}
 	if _, err := os.Stat(out); err == nil {
