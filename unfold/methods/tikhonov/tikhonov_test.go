@@ -208,3 +208,40 @@ func solverOf(dense bool) Solver {
 	}
 	return SparseSolver
 }
+
+// The penalty rows of the shared 2-D test binning, counted by hand
+// (method.md §13 Tikhonov regularisation): the central region has pt
+// slices of 4, 3 and 2 bins and no rows along y (pt has edges by y bin),
+// so 2 + 1 + 0 curvature rows and 3 + 2 + 1 slope rows; the forward
+// region is 2 × 2, with no curvature rows and 2 + 2 slope rows. No row
+// touches a flow bin or the undetermined bin 0.
+func TestPenaltyRows(t *testing.T) {
+	s := readScheme(t, "scheme2d.yaml")
+	det := make([]bool, s.Len())
+	for j := range det {
+		det[j] = true
+	}
+	for _, c := range []struct {
+		kind      Penalty
+		want      int
+		wantUndet int
+	}{{Curvature, 3, 2}, {Slope, 10, 9}} {
+		l, err := newPenalty(s, s.Len(), det, c.kind, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if l.rows() != c.want {
+			t.Errorf("%v: %d rows, want %d", c.kind, l.rows(), c.want)
+		}
+		for _, j := range l.idx {
+			if j >= s.InRange() {
+				t.Errorf("%v: a row touches flow bin %d", c.kind, j)
+			}
+		}
+		det[0] = false
+		if l, _ = newPenalty(s, s.Len(), det, c.kind, false); l.rows() != c.wantUndet {
+			t.Errorf("%v with bin 0 undetermined: %d rows, want %d", c.kind, l.rows(), c.wantUndet)
+		}
+		det[0] = true
+	}
+}
