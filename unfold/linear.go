@@ -182,3 +182,17 @@ func (r *linearRunner) Run(ctx context.Context, n, b []float64) ([]float64, erro
 	}
 	return r.mu, nil
 }
+
+// Weights returns W_ii = 1/V_ii for the least-squares methods, V_ii the
+// variance of Data (DataVariance); a bin with no variance (a zero count
+// with Poisson data, or a bin clipped in Subtract mode) gets V_ii = 1.
+func (m *Prepared) Weights() []float64 {
+	w := make([]float64, m.nr)
+	for i, v := range m.varN {
+		if v <= 0 {
+			v = 1
+		}
+		w[i] = 1 / v
+	}
+	return w
+}

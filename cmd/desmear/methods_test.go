@@ -103,7 +103,7 @@ func TestUnfoldTikhonovLCurve(t *testing.T) {
 	recs := readCSV(t, filepath.Join(out, result.TauScanFile))
 	chosen := 0
 	for _, rec := range recs[1:] {
-		if rec[6] == "true" {
+		if rec[7] == "true" {
 			chosen++
 		}
 	}

@@ -142,6 +142,7 @@ type TauPoint struct {
 	Curvature    float64 `json:"curvature"`
 	Correlation  float64 `json:"average_global_correlation,omitempty"`
 	Converged    bool    `json:"converged"`
+	CGIterations int     `json:"cg_iterations,omitempty"`
 }
 
 // Inversion is the outcome of the inversion: the condition number of
@@ -339,7 +340,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		r.Tikhonov = &Tikhonov{Tau: d.Tau, Criterion: d.Criterion, AtScanEdge: d.AtScanEdge, Penalty: d.Penalty, Widths: d.Widths, Bias: d.Bias,
 			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm}
 		for _, p := range d.Scan {
-			r.Tikhonov.Scan = append(r.Tikhonov.Scan, TauPoint{Tau: p.Tau, ResidualNorm: p.ResidualNorm, PenaltyNorm: p.PenaltyNorm, Curvature: p.Curvature, Correlation: p.Correlation, Converged: p.Converged})
+			r.Tikhonov.Scan = append(r.Tikhonov.Scan, TauPoint{Tau: p.Tau, ResidualNorm: p.ResidualNorm, PenaltyNorm: p.PenaltyNorm, Curvature: p.Curvature, Correlation: p.Correlation, Converged: p.Converged, CGIterations: p.Iterations})
 		}
 	case *inversion.Details:
 		r.Inversion = &Inversion{Condition: d.Condition}

@@ -27,11 +27,12 @@ func init() {
 // WriteTauScan writes the scan of tau of t as CSV, one row per tau in
 // increasing order: tau, residual_norm, penalty_norm, curvature (of the
 // L-curve; 0 where not defined), average_global_correlation (empty
-// unless the correlation criterion was used), converged, and chosen
+// unless the correlation criterion was used), converged, cg_iterations
+// (0 for the dense solve) and chosen
 // (true on the row of the tau used).
 func WriteTauScan(w io.Writer, t *Tikhonov) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"tau", "residual_norm", "penalty_norm", "curvature", "average_global_correlation", "converged", "chosen"}); err != nil {
+	if err := cw.Write([]string{"tau", "residual_norm", "penalty_norm", "curvature", "average_global_correlation", "converged", "cg_iterations", "chosen"}); err != nil {
 		return err
 	}
 	for _, p := range t.Scan {
@@ -40,7 +41,7 @@ func WriteTauScan(w io.Writer, t *Tikhonov) error {
 			corr = formatFloat(p.Correlation)
 		}
 		rec := []string{formatFloat(p.Tau), formatFloat(p.ResidualNorm), formatFloat(p.PenaltyNorm), formatFloat(p.Curvature), corr,
-			strconv.FormatBool(p.Converged), strconv.FormatBool(p.Tau == t.Tau)}
+			strconv.FormatBool(p.Converged), strconv.Itoa(p.CGIterations), strconv.FormatBool(p.Tau == t.Tau)}
 		if err := cw.Write(rec); err != nil {
 			return err
 		}

@@ -141,14 +141,14 @@ func TestTauScan(t *testing.T) {
 	tk := &Tikhonov{Tau: 0.1, Criterion: "lcurve", Scan: []TauPoint{
 		{Tau: 0.01, ResidualNorm: 5, PenaltyNorm: 100, Converged: true},
 		{Tau: 0.1, ResidualNorm: 6, PenaltyNorm: 20, Curvature: 3.5, Converged: true},
-		{Tau: 1, ResidualNorm: 30, PenaltyNorm: 2, Converged: false},
+		{Tau: 1, ResidualNorm: 30, PenaltyNorm: 2, Converged: false, CGIterations: 17},
 	}}
 	var b strings.Builder
 	if err := WriteTauScan(&b, tk); err != nil {
 		t.Fatal(err)
 	}
-	want := "tau,residual_norm,penalty_norm,curvature,average_global_correlation,converged,chosen\n" +
-		"0.01,5,100,0,,true,false\n0.1,6,20,3.5,,true,true\n1,30,2,0,,false,false\n"
+	want := "tau,residual_norm,penalty_norm,curvature,average_global_correlation,converged,cg_iterations,chosen\n" +
+		"0.01,5,100,0,,true,0,false\n0.1,6,20,3.5,,true,0,true\n1,30,2,0,,false,17,false\n"
 	if b.String() != want {
 		t.Errorf("tau-scan.csv:\n%s\nwant\n%s", b.String(), want)
 	}

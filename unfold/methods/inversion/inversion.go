@@ -69,13 +69,7 @@ func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, err
 	if m > nr {
 		return nil, &unfold.NumericalError{Reason: fmt.Sprintf("the inversion needs at least as many reco bins as determined truth bins (%d reco, %d truth): the least squares have no unique solution", nr, m)}
 	}
-	w := make([]float64, nr)
-	for i, v := range p.DataVariance() {
-		if v <= 0 {
-			v = 1
-		}
-		w[i] = 1 / v
-	}
+	w := p.Weights()
 	r := mat.NewDense(nr, m, nil)
 	a := p.Migrations()
 	colPtr, rowIdx, val := a.ColPtr(), a.RowIdx(), a.Values()

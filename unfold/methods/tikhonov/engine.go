@@ -155,14 +155,18 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	d.Scan = make([]ScanPoint, len(taus))
 	nt := e.sy.nt
 	c := newCG(e.sy)
+	c.tol = max(c.tol, rs.ScanTolerance)
 	x, b := make([]float64, nt), make([]float64, nt)
 	y := make([]float64, e.sy.p.RecoBins())
 	copy(y, e.sy.p.Data())
 	for i, v := range e.sy.p.Background() {
 		y[i] -= v
 	}
-	// From the largest tau down: each solution is the next warm start.
-	for k := len(taus) - 1; k >= 0; k-- {
+	// From the smallest tau up: each solution is the next warm start.
+	// The normal matrix is best conditioned at small tau (it is then
+	// close to Rᵀ V⁻¹ R), and its conditioning worsens as τ² Lᵀ L takes
+	// over, so the hard solves start from the nearest solution.
+	for k := range taus {
 		tau := taus[k]
 		if err := e.prepare(tau); err != nil {
 			return err
@@ -173,6 +177,9 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 			return err
 		}
 		pt := ScanPoint{Tau: tau, Converged: ok}
+		if e.dn == nil {
+			pt.Iterations = c.lastIter
+		}
 		pt.ResidualNorm, pt.PenaltyNorm = e.sy.norms(x)
 		if gc != nil {
 			pt.Correlation = gc.average(tau)

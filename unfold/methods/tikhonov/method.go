@@ -59,9 +59,11 @@ type ScanPoint struct {
 	// criterion only, else 0).
 	Correlation float64
 	// Converged is false when the conjugate gradients stopped at the
-	// iteration bound before the tolerance (the point is then less
-	// precise); always true for the dense solve.
-	Converged bool
+	// iteration bound before the scan's tolerance (the point is then
+	// less precise); always true for the dense solve. Iterations are
+	// the conjugate-gradient iterations of the point (0 for dense).
+	Converged  bool
+	Iterations int
 }
 
 // DetailsOf returns the details of a result of this method, or nil
@@ -164,5 +166,5 @@ func (sy *system) norms(x []float64) (res, pen float64) {
 // errNotConverged is the error of a solve that did not reach the
 // tolerance within the iteration bound.
 func errNotConverged(c *cg, tau float64) error {
-	return &unfold.NumericalError{Iteration: c.lastIter, Reason: fmt.Sprintf("the conjugate gradients at tau = %g stopped at %d iterations with a relative residual of %.3g, above the tolerance %g; raise tau, the tolerance or the iteration bound", tau, c.lastIter, c.lastRes, c.sy.tol)}
+	return &unfold.NumericalError{Reason: fmt.Sprintf("the conjugate gradients at tau = %g stopped at %d iterations with a relative residual of %.3g, above the tolerance %g; raise tau, the tolerance or the iteration bound", tau, c.lastIter, c.lastRes, c.tol)}
 }

@@ -29,22 +29,9 @@ type system struct {
 	maxK int
 }
 
-// weights returns W_ii = 1/V_ii from the data variances; a bin with no
-// variance (zero count, Poisson) gets V_ii = 1.
-func weights(v []float64) []float64 {
-	w := make([]float64, len(v))
-	for i, x := range v {
-		if x <= 0 {
-			x = 1
-		}
-		w[i] = 1 / x
-	}
-	return w
-}
-
 func newSystem(p *unfold.Prepared, l *penalty, x0 []float64, tol float64, maxK int) *system {
 	nt := p.TruthBins()
-	sy := &system{p: p, nt: nt, w: weights(p.DataVariance()), l: l, x0: x0, tol: tol, maxK: maxK}
+	sy := &system{p: p, nt: nt, w: p.Weights(), l: l, x0: x0, tol: tol, maxK: maxK}
 	if sy.maxK == 0 {
 		sy.maxK = max(1000, 10*nt)
 	}
@@ -89,13 +76,14 @@ type cg struct {
 	fold, wf          []float64 // reco-sized
 	lx                []float64 // one per penalty row
 	rhsBuf            []float64
+	tol               float64 // the stopping tolerance (the system's, or the scan's)
 	lastIter          int
 	lastRes, lastNorm float64
 }
 
 func newCG(sy *system) *cg {
 	nt, nr := sy.nt, sy.p.RecoBins()
-	return &cg{sy: sy, r: make([]float64, nt), inv: make([]float64, nt), z: make([]float64, nt), d: make([]float64, nt), q: make([]float64, nt), tmp: make([]float64, nt),
+	return &cg{sy: sy, tol: sy.tol, r: make([]float64, nt), inv: make([]float64, nt), z: make([]float64, nt), d: make([]float64, nt), q: make([]float64, nt), tmp: make([]float64, nt),
 		fold: make([]float64, nr), wf: make([]float64, nr), lx: make([]float64, sy.l.rows()), rhsBuf: make([]float64, nt)}
 }
 
@@ -163,7 +151,7 @@ func (c *cg) solve(ctx context.Context, x, b []float64, tau float64) (bool, erro
 		}
 		rn := math.Sqrt(dot(c.r, c.r))
 		c.lastIter, c.lastRes = k-1, rn/bn
-		if rn <= sy.tol*bn {
+		if rn <= c.tol*bn {
 			return true, nil
 		}
 		c.mul(c.q, c.d, tau)
@@ -191,7 +179,7 @@ func (c *cg) solve(ctx context.Context, x, b []float64, tau float64) (bool, erro
 	}
 	rn := math.Sqrt(dot(c.r, c.r))
 	c.lastIter, c.lastRes = sy.maxK, rn/bn
-	return rn <= sy.tol*bn, nil
+	return rn <= c.tol*bn, nil
 }
 
 // dense is the normal matrix over the determined bins, factorised for

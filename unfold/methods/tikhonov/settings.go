@@ -14,7 +14,11 @@ const (
 	// DefaultTolerance is the stopping tolerance of the conjugate
 	// gradients: the residual of the normal equations relative to their
 	// right-hand side, |r_k| ≤ tol |rhs|.
-	DefaultTolerance = 1e-12
+	DefaultTolerance = 1e-10
+	// DefaultScanTolerance is the stopping tolerance of the conjugate
+	// gradients at the points of a scan of tau, which need the residual
+	// and penalty norms only (to about 1e-6 relative).
+	DefaultScanTolerance = 1e-6
 	// DefaultScanPoints is the number of values of tau in a scan.
 	DefaultScanPoints = 31
 	// DenseLimit is the largest number of truth bins solved with a dense
@@ -190,6 +194,10 @@ type Settings struct {
 	// Tolerance is the stopping tolerance of the conjugate gradients
 	// (zero means DefaultTolerance).
 	Tolerance float64
+	// ScanTolerance is the tolerance of the conjugate gradients at the
+	// points of the scan (zero means DefaultScanTolerance; never below
+	// Tolerance).
+	ScanTolerance float64
 	// MaxIterations bounds the conjugate-gradient iterations of one solve
 	// (zero means 10 times the number of truth bins, at least 1000).
 	MaxIterations int
@@ -224,6 +232,8 @@ func (s *Settings) check() (Settings, error) {
 		return r, &unfold.SettingsError{Field: "Tolerance", Reason: "must be in (0, 1)"}
 	case r.Solver < 0 || int(r.Solver) >= len(solverNames):
 		return r, &unfold.SettingsError{Field: "Solver", Reason: "unknown solver"}
+	case bad(r.ScanTolerance) || r.ScanTolerance >= 1:
+		return r, &unfold.SettingsError{Field: "ScanTolerance", Reason: "must be in (0, 1)"}
 	case r.MaxIterations < 0:
 		return r, &unfold.SettingsError{Field: "MaxIterations", Reason: "must be ≥ 1"}
 	case r.Widths && r.Truth == nil:
@@ -234,6 +244,9 @@ func (s *Settings) check() (Settings, error) {
 	}
 	if r.Tolerance == 0 {
 		r.Tolerance = DefaultTolerance
+	}
+	if r.ScanTolerance == 0 {
+		r.ScanTolerance = DefaultScanTolerance
 	}
 	return r, nil
 }

@@ -105,7 +105,7 @@ func denseReference(t *testing.T, p *unfold.Prepared, l *penalty, tau float64, y
 	if err != nil {
 		t.Fatal(err)
 	}
-	w := weights(p.DataVariance())
+	w := p.Weights()
 	var idx []int
 	for j, d := range p.Determined() {
 		if d {
