@@ -153,3 +153,39 @@ func TestMethodFlagsRefused(t *testing.T) {
 		}
 	}
 }
+
+// An analysis file choosing tikhonov runs it with the penalty along the
+// truth binning's axes: the summary names the method and tau, and the
+// result folder holds tau-scan.csv and the method's outcome; a key of
+// the iterative method is refused with it at its line.
+func TestAnalysisTikhonov(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	text, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tk := strings.Replace(string(text), "  iterations: 3", "  method: tikhonov\n  tau_criterion: lcurve", 1)
+	if err := os.WriteFile(path, []byte(tk), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	if code != exitOK || !strings.Contains(stdout, "method: tikhonov, tau = ") {
+		t.Fatalf("exit %d\n%s%s", code, stdout, stderr)
+	}
+	dir := filepath.Join(filepath.Dir(path), "result")
+	r, _ := readResult(t, dir)
+	if r.Settings.Method != "tikhonov" || r.Tikhonov == nil || r.Tikhonov.PenaltyRows == 0 || r.Tikhonov.Criterion != "lcurve" {
+		t.Errorf("settings %+v, tikhonov %+v", r.Settings, r.Tikhonov)
+	}
+	if _, err := os.Stat(filepath.Join(dir, result.TauScanFile)); err != nil {
+		t.Errorf("no scan table: %v", err)
+	}
+	bad := strings.Replace(tk, "  tau_criterion: lcurve", "  tau_criterion: lcurve\n  iterations: 3", 1)
+	if err := os.WriteFile(path, []byte(bad), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, stderr = runCLI(t, context.Background(), "unfold", path, "--force")
+	if code != exitInput || !strings.Contains(stderr, "unfolding.iterations: applies only to method dagostini") {
+		t.Errorf("iterations with tikhonov: exit %d, %s", code, stderr)
+	}
+}
