@@ -15,6 +15,7 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
+	"github.com/desmear/desmear/unfold/methods/binbybin"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -272,6 +273,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		c.errf(c.line("unfolding", "tau"), "unfolding.tau", "give either tau (a fixed tau) or tau_criterion (to choose it), not both")
 	}
 	c.methodKeys(a.Unfolding.Method)
+	if a.Unfolding.Method == binbybin.Name && !sameBins(a.Truth, a.Reco) {
+		c.errf(c.line("unfolding", "method"), "unfolding.method", "bin-by-bin needs the same truth and reco binning (the truth binning has %d bins, the reco binning %d, or their bins differ): use an unfolding method", a.Truth.Len(), a.Reco.Len())
+	}
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
 	if a.Unfolding.Prior == "file" {
 		a.Unfolding.PriorFile = c.path("unfolding.prior_file", u.PriorFile, c.keyLine("unfolding", "prior_file"), c.line("unfolding", "prior"))
@@ -370,6 +374,20 @@ var settingKeys = map[string][]any{
 	"Probes":         {"uncertainty", "probes"},
 	"Toys":           {"uncertainty", "toys"},
 	"Seed":           {"uncertainty", "seed"},
+}
+
+// sameBins reports whether two schemes have the same bins (the same
+// labels, which name the region and every edge, in the same order).
+func sameBins(a, b *binning.Scheme) bool {
+	if a.Len() != b.Len() {
+		return false
+	}
+	for g := range a.Len() {
+		if a.Label(g) != b.Label(g) {
+			return false
+		}
+	}
+	return true
 }
 
 // methodKeys refuses a key of one method's own settings given with
