@@ -77,14 +77,19 @@ func (e *TooLargeError) Error() string {
 		e.What, size, byteSize(e.Bytes), byteSize(e.Limit), e.Alternative)
 }
 
-// NumericalError reports a numerical failure during the iteration (a
-// non-finite value appeared). With valid inputs it indicates overflow.
+// NumericalError reports a numerical failure of a method: a non-finite
+// value during the iteration (with valid inputs, overflow), a singular
+// system, a solve that did not converge. Iteration is the iteration
+// concerned, 0 when the failure is not in an iteration.
 type NumericalError struct {
 	Iteration int
 	Reason    string
 }
 
 func (e *NumericalError) Error() string {
+	if e.Iteration == 0 {
+		return "unfold: " + e.Reason
+	}
 	return fmt.Sprintf("unfold: iteration %d: %s", e.Iteration, e.Reason)
 }
 

@@ -147,8 +147,12 @@ func (p *progress) finish() {
 func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	res := out.Result
 	fmt.Fprintf(w, "result: %s (%s)\n", out.Folder, fileList(out.Files, ", "))
-	det := bayes.DetailsOf(res)
-	fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
+	if m := methodSummary(res.Details); m != "" {
+		fmt.Fprintf(w, "method: %s\n", m)
+	} else {
+		det := bayes.DetailsOf(res)
+		fmt.Fprintf(w, "iterations: %s\n", stopSummary(det.Iterations, det.StoppedBy, a.Unfolding.StopChi2))
+	}
 	// As in plain-table mode, the per-bin table is printed for small
 	// problems only; the result folder holds every bin.
 	if n := a.Truth.InRange(); n > maxTableRows {

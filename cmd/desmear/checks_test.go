@@ -8,7 +8,7 @@ import (
 )
 
 // The plain-table summary ends with the checks of the result: the
-// folded chi-square (the document's folded_chi2, method.md §13 Folded
+// folded chi-square (the document's folded_chi2, method.md §16 Folded
 // comparison), the counts of poorly measured bins and where the
 // diagnostic tables are.
 func TestPlainChecks(t *testing.T) {

@@ -22,6 +22,9 @@ import (
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/methods/binbybin"
+	"github.com/desmear/desmear/unfold/methods/inversion"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/result"
 	"github.com/desmear/desmear/unfold/validate"
 )
@@ -40,6 +43,8 @@ type unfoldOptions struct {
 	maxIterations int
 	bgMode        unfold.BackgroundMode
 	smooth        float64
+	tau           float64
+	tauCriterion  tikhonov.Criterion
 	covariance    unfold.CovarianceMode
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
@@ -70,7 +75,7 @@ func newUnfoldCommand(g *globalOptions) *cobra.Command {
 	var o unfoldOptions
 	cmd := &cobra.Command{
 		Use:   "unfold (ANALYSIS.yaml | --response A.csv --generated G.csv --data n.csv --out DIR [flags])",
-		Short: "Unfold measured data with the iterative Bayesian method",
+		Short: "Unfold measured data (iterative Bayesian method by default; Tikhonov, inversion, bin-by-bin)",
 		Long: `unfold corrects a measured (reco-level) spectrum for resolution, acceptance
 and efficiency with the D'Agostini iterative Bayesian method (EM for Poisson
 data), on a sparse response matrix over global bin indices, and writes a
@@ -110,7 +115,15 @@ or an empty folder is replaced).
 The iteration stops after --iterations K (default 4), or at the first
 iteration whose chi-square between successive estimates,
   chi2(k) = sum_j eps_j (mu_j(k) - mu_j(k-1))^2 / mu_j(k),
-is at most --stop-chi2, within --max-iterations.`,
+is at most --stop-chi2, within --max-iterations.
+
+--method tikhonov minimises chi2 + tau^2 |L x|^2 with L the second
+differences along each axis of the truth binning (along the global index
+without --truth-binning); tau is fixed with --tau or chosen with
+--tau-criterion lcurve (the default) or correlation, and the scan is
+written to tau-scan.csv. --method inversion is unregularised least
+squares; --method bin-by-bin applies correction factors (a biased
+shortcut, same truth and reco binning only). See "desmear help method".`,
 		Example: `  desmear unfold --response A.csv --generated G.csv --data n.csv --out result
   desmear unfold --response A.csv --generated G.csv --data n.csv --background b.csv \
       --iterations 6 --covariance full --out result --force
@@ -134,10 +147,13 @@ is at most --stop-chi2, within --max-iterations.`,
 	f := cmd.Flags()
 	o.tableFlags(f)
 	f.Var(flagval.NewChoice(&o.method, methods.Default, methods.Names(), methods.Names()),
-		"method", "the unfolding method: dagostini (the D'Agostini iterative Bayesian method)")
+		"method", "the unfolding method: dagostini (the D'Agostini iterative Bayesian method), tikhonov (regularised least squares), inversion (unregularised least squares), bin-by-bin (correction factors, a biased shortcut)")
 	f.Var(flagval.NewCountOrAuto(&o.iterations, &o.autoIter), "iterations", "fixed number of iterations `K` (default 4 unless --stop-chi2 is given), or auto: the count of smallest mean squared error on toys (see \"desmear help validation\")")
 	f.Float64Var(&o.stopChi2, "stop-chi2", 0, "stop at the first iteration whose chi-square between successive estimates is at most `X`")
 	f.IntVar(&o.maxIterations, "max-iterations", 0, "with --stop-chi2: at most `K` iterations (default 100)")
+	f.Float64Var(&o.tau, "tau", 0, "with --method tikhonov: a fixed regularisation strength `X` > 0 (default: chosen by --tau-criterion)")
+	f.Var(flagval.NewEnum(&o.tauCriterion, tikhonov.LCurve, tikhonov.Criteria()),
+		"tau-criterion", "with --method tikhonov: how tau is chosen from a scan: lcurve (maximum curvature of the L-curve) or correlation (minimum average global correlation)")
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()),
 		"background-mode", "model: the background stays in the folded expectation (estimates stay non-negative); subtract: data minus background is unfolded (negative differences set to 0)")
 	f.Float64Var(&o.smooth, "smooth", 0, "smooth the estimate between iterations with strength `W` in (0,1] along each axis of the truth binning, within regions (needs --truth-binning; default: no smoothing)")
@@ -228,6 +244,10 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--smooth %v: give a strength in (0, 1]", o.smooth)
 	case o.smooth > 0 && o.truthBinning == "":
 		return usagef("--smooth needs --truth-binning (smoothing follows the axes and regions of the truth binning)")
+	case changed("tau") && o.tau <= 0:
+		return usagef("--tau %v: give a tau > 0 (or leave it out to choose tau with --tau-criterion)", o.tau)
+	case changed("tau") && changed("tau-criterion"):
+		return usagef("give either --tau (a fixed tau) or --tau-criterion (to choose it), not both")
 	case changed("background-mode") && o.background == "":
 		return usagef("--background-mode needs --background")
 	case changed("diagonal-method") && o.covariance != unfold.Diagonal:
@@ -241,6 +261,9 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 	case changed("toys") && o.toys == 0:
 		return usagef("--toys 0: give at least 2")
 	}
+	if err := o.checkMethodFlags(); err != nil {
+		return err
+	}
 	s, m := o.settings(nil)
 	if b, ok := m.(*bayes.Settings); ok && b.Smoothing != nil {
 		// The truth binning is read later; the unfolding checks it.
@@ -250,6 +273,23 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return o.flagErr(err)
 	}
 	return o.flagErr(m.Validate())
+}
+
+// checkMethodFlags refuses a flag of one method's own settings given
+// with another method.
+func (o *unfoldOptions) checkMethodFlags() error {
+	var fields []string
+	for field := range settingFlags {
+		fields = append(fields, field)
+	}
+	slices.Sort(fields)
+	for _, field := range fields {
+		flag := settingFlags[field]
+		if owner := methods.Owner(field); owner != "" && owner != o.method && o.flags.Changed(flag) {
+			return usagef("--%s applies only to --method %s (the method is %s)", flag, owner, o.method)
+		}
+	}
+	return nil
 }
 
 // noBins stands for the truth binning when the settings are checked
@@ -267,6 +307,8 @@ var settingFlags = map[string]string{
 	"StopChi2":       "stop-chi2",
 	"MaxIterations":  "max-iterations",
 	"Smoothing":      "smooth",
+	"Tau":            "tau",
+	"Criterion":      "tau-criterion",
 	"Background":     "background-mode",
 	"Covariance":     "covariance",
 	"DiagonalMethod": "diagonal-method",
@@ -313,6 +355,12 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 			m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}
 		}
 		return s, m
+	case tikhonov.Name:
+		return s, &tikhonov.Settings{Tau: o.tau, Criterion: o.tauCriterion, Truth: truth}
+	case inversion.Name:
+		return s, &inversion.Settings{}
+	case binbybin.Name:
+		return s, &binbybin.Settings{}
 	}
 	panic("desmear: the method choice let through an unknown method " + o.method)
 }
@@ -571,8 +619,8 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}); err != nil {
 		return err
 	}
-	printSummary(g, o.out, r, pi.truth, files)
-	if zeros := zeroPrior(prob.Prior, r.Determined); zeros > 0 && !g.quiet {
+	printSummary(g, o.out, r, res.Details, pi.truth, files)
+	if zeros := zeroPrior(prob.Prior, r.Determined); zeros > 0 && !g.quiet && o.method == bayes.Name {
 		fmt.Fprintf(g.stderr, "note: the prior %s is 0 in %d truth bins the response can measure; the iteration keeps a zero, so their estimates are 0 (give every such bin a positive prior)\n", o.prior, zeros)
 	}
 	return nil
@@ -643,19 +691,47 @@ func stopSummary(iterations int, stoppedBy string, stopChi2 float64) string {
 	return fmt.Sprintf("%d iterations (stopped by %s: %s)", iterations, stoppedBy, why)
 }
 
+// methodSummary says what a method other than the iterative one did,
+// from its details (the kernel result's Details), for the terminal
+// summaries; "" for the iterative method (see stopSummary).
+func methodSummary(details any) string {
+	switch d := details.(type) {
+	case *tikhonov.Details:
+		how := "fixed"
+		switch d.Criterion {
+		case tikhonov.ChosenLCurve:
+			how = "chosen by the L-curve"
+		case tikhonov.ChosenCorrelation:
+			how = "chosen by the minimum average global correlation"
+		}
+		if d.AtScanEdge {
+			how += ", at the edge of the scan: the optimum may lie outside it"
+		}
+		return fmt.Sprintf("tikhonov, tau = %.4g (%s)", d.Tau, how)
+	case *inversion.Details:
+		return fmt.Sprintf("inversion, condition number %.4g", d.Condition)
+	case *binbybin.Details:
+		return "bin-by-bin factors (a biased shortcut: for contrast only)"
+	}
+	return ""
+}
+
 // printSummary prints what was done to stdout, with a per-bin table for
 // small problems, and notes to stderr. Of the files written it names
 // result.json and result.csv.
-func printSummary(g *globalOptions, dir string, r *result.Result, truth *binning.Scheme, files []string) {
+func printSummary(g *globalOptions, dir string, r *result.Result, details any, truth *binning.Scheme, files []string) {
 	det := 0
 	for _, d := range r.Determined {
 		if d {
 			det++
 		}
 	}
-	stop := stopSummary(r.Iterations, r.StoppedBy, r.Settings.StopChi2)
+	how := "in " + stopSummary(r.Iterations, r.StoppedBy, r.Settings.StopChi2)
+	if m := methodSummary(details); m != "" {
+		how = "with " + m
+	}
 	w := g.stdout
-	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) in %s\n", r.RecoBins, r.TruthBins, det, stop)
+	fmt.Fprintf(w, "unfolded %d reco bins into %d truth bins (%d determined) %s\n", r.RecoBins, r.TruthBins, det, how)
 	if r.TruthBins <= maxTableRows {
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 		head := "bin\testimate\t"

@@ -16,6 +16,7 @@ import (
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/methods/binbybin"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -131,6 +132,10 @@ type Unfolding struct {
 	PriorFile string // resolved, when Prior is "file"
 	// Smoothing is the smoothing strength in (0, 1]; 0 means none.
 	Smoothing float64
+	// Tau is the fixed tau of the Tikhonov method (0: chosen by
+	// TauCriterion, "lcurve" or "correlation"; "" means the default).
+	Tau          float64
+	TauCriterion string
 	// Background is "model" (inside the folded expectation) or
 	// "subtract" (from the data first).
 	Background string
@@ -260,7 +265,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	// Unfolding.
 	u := doc.Unfolding
 	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations.n, AutoIterations: u.Iterations.auto, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
-		Prior: u.Prior, Smoothing: u.Smoothing, Background: u.Background, Fakes: u.Fakes}
+		Prior: u.Prior, Smoothing: u.Smoothing, Tau: u.Tau, TauCriterion: u.TauCriterion, Background: u.Background, Fakes: u.Fakes}
 	if u.Iterations.auto && u.StopChi2 != 0 {
 		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "give either iterations (a number or auto) or stop_chi2, not both")
 	}
@@ -270,6 +275,16 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	c.oneOf(&a.Unfolding.Method, methods.Default, methods.Names(), "unfolding", "method")
 	if a.Unfolding.AutoIterations && a.Unfolding.Method != bayes.Name {
 		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "auto applies to the iterative method (%s) only", bayes.Name)
+	}
+	if nodeAt(root, "unfolding", "tau") != nil && !(u.Tau > 0) {
+		c.errf(c.line("unfolding", "tau"), "unfolding.tau", "must be a tau > 0 (or leave it out to choose tau with tau_criterion)")
+	}
+	if nodeAt(root, "unfolding", "tau") != nil && nodeAt(root, "unfolding", "tau_criterion") != nil {
+		c.errf(c.line("unfolding", "tau"), "unfolding.tau", "give either tau (a fixed tau) or tau_criterion (to choose it), not both")
+	}
+	c.methodKeys(a.Unfolding.Method)
+	if a.Unfolding.Method == binbybin.Name && !sameBins(a.Truth, a.Reco) {
+		c.errf(c.line("unfolding", "method"), "unfolding.method", "bin-by-bin needs the same truth and reco binning (the truth binning has %d bins, the reco binning %d, or their bins differ): use an unfolding method", a.Truth.Len(), a.Reco.Len())
 	}
 	c.oneOf(&a.Unfolding.Prior, "simulation", []string{"simulation", "flat", "file"}, "unfolding", "prior")
 	if a.Unfolding.Prior == "file" {
@@ -353,13 +368,15 @@ type checker struct {
 	errs Errors
 }
 
-// settingKeys maps the fields of unfold.Settings and bayes.Settings to
+// settingKeys maps the fields of unfold.Settings and of the methods' settings to
 // their keys in the analysis file.
 var settingKeys = map[string][]any{
 	"Iterations":     {"unfolding", "iterations"},
 	"StopChi2":       {"unfolding", "stop_chi2"},
 	"MaxIterations":  {"unfolding", "max_iterations"},
 	"Smoothing":      {"unfolding", "smoothing"},
+	"Tau":            {"unfolding", "tau"},
+	"Criterion":      {"unfolding", "tau_criterion"},
 	"Background":     {"unfolding", "background"},
 	"MemoryLimit":    {"unfolding", "memory_limit_gib"},
 	"Covariance":     {"uncertainty", "covariance"},
@@ -367,6 +384,39 @@ var settingKeys = map[string][]any{
 	"Probes":         {"uncertainty", "probes"},
 	"Toys":           {"uncertainty", "toys"},
 	"Seed":           {"uncertainty", "seed"},
+}
+
+// sameBins reports whether two schemes have the same bins (the same
+// labels, which name the region and every edge, in the same order).
+func sameBins(a, b *binning.Scheme) bool {
+	if a.Len() != b.Len() {
+		return false
+	}
+	for g := range a.Len() {
+		if a.Label(g) != b.Label(g) {
+			return false
+		}
+	}
+	return true
+}
+
+// methodKeys refuses a key of one method's own settings given with
+// another method.
+func (c *checker) methodKeys(method string) {
+	if !slices.Contains(methods.Names(), method) {
+		return // refused already
+	}
+	fields := make([]string, 0, len(settingKeys))
+	for f := range settingKeys {
+		fields = append(fields, f)
+	}
+	slices.Sort(fields)
+	for _, f := range fields {
+		key := settingKeys[f]
+		if owner := methods.Owner(f); owner != "" && owner != method && nodeAt(c.root, key...) != nil {
+			c.errf(c.line(key...), fieldName(key...), "applies only to method %s (unfolding.method is %s)", owner, method)
+		}
+	}
 }
 
 // settings checks the unfolding and uncertainty settings of a with their

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -65,7 +66,13 @@ func TestDecodeErrors(t *testing.T) {
 		want     string // substring of the message
 	}{
 		{"  iterations: 3", "  iteratons: 3", `testdata/bad.yaml:26: iteratons: unknown key in unfolding (known keys: method, iterations,`},
-		{"  iterations: 3", "  method: lucky\n  iterations: 3", `testdata/bad.yaml:26: unfolding.method: unknown value "lucky" (one of: dagostini)`},
+		{"  iterations: 3", "  method: lucky\n  iterations: 3", `testdata/bad.yaml:26: unfolding.method: unknown value "lucky" (one of: dagostini, tikhonov, inversion, bin-by-bin)`},
+		{"  iterations: 3", "  method: tikhonov\n  iterations: 3", `testdata/bad.yaml:27: unfolding.iterations: applies only to method dagostini (unfolding.method is tikhonov)`},
+		{"  iterations: 3", "  tau: 0.5", `testdata/bad.yaml:26: unfolding.tau: applies only to method tikhonov (unfolding.method is dagostini)`},
+		{"  iterations: 3", "  method: tikhonov\n  tau: -1", `testdata/bad.yaml:27: unfolding.tau: must be a tau > 0`},
+		{"  iterations: 3", "  method: tikhonov\n  tau: 1\n  tau_criterion: lcurve", `testdata/bad.yaml:27: unfolding.tau: give either tau (a fixed tau) or tau_criterion`},
+		{"  iterations: 3", "  method: tikhonov\n  tau_criterion: best", `testdata/bad.yaml:27: unfolding.tau_criterion: tikhonov: unknown tau criterion "best" (want lcurve, correlation)`},
+		{"  iterations: 3", "  method: bin-by-bin", `testdata/bad.yaml:26: unfolding.method: bin-by-bin needs the same truth and reco binning`},
 		{"title: test analysis", "titel: x", `testdata/bad.yaml:1: titel: unknown key in the top level`},
 		{"    weight: w\n    truth_selection", "    wieght: w\n    truth_selection", `testdata/bad.yaml:14: wieght: unknown key in a simulation sample`},
 		{"  iterations: 3", "  iterations: three", `testdata/bad.yaml:26: unfolding.iterations: value three is a string, want a whole number`},
@@ -222,5 +229,31 @@ func TestSyntaxErrorLine(t *testing.T) {
 	}
 	if want := fmt.Sprintf("testdata/bad.yaml:%d: ", e.Line); !strings.HasPrefix(err.Error(), want) {
 		t.Errorf("got %q, want it to start with %q", err, want)
+	}
+}
+
+// unfolding.method chooses the method and its own keys its settings:
+// tikhonov with tau_criterion gets the truth binning for its penalty;
+// inversion has no settings of its own (bin-by-bin neither, but it is
+// refused here: the file's truth and reco binnings differ).
+func TestMethodSettings(t *testing.T) {
+	for _, c := range []struct{ text, name string }{
+		{"  method: tikhonov\n  tau_criterion: correlation", tikhonov.Name},
+		{"  method: tikhonov\n  tau: 0.25", tikhonov.Name},
+		{"  method: inversion", "inversion"},
+	} {
+		a, err := Decode([]byte(strings.Replace(goodText(t), "  iterations: 3", c.text, 1)), "testdata/good.yaml")
+		if err != nil {
+			t.Fatalf("%q: %v", c.text, err)
+		}
+		_, m, err := a.Settings()
+		if err != nil || m.Name() != c.name {
+			t.Fatalf("%q: method %v, %v", c.text, m, err)
+		}
+		if tk, ok := m.(*tikhonov.Settings); ok {
+			if tk.Truth != a.Truth || (tk.Tau == 0) != (tk.Criterion == tikhonov.Correlation) {
+				t.Errorf("%q: settings %+v", c.text, tk)
+			}
+		}
 	}
 }

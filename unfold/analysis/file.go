@@ -118,6 +118,8 @@ type unfoldingDoc struct {
 	Prior         string        `yaml:"prior"`
 	PriorFile     string        `yaml:"prior_file"`
 	Smoothing     float64       `yaml:"smoothing"`
+	Tau           float64       `yaml:"tau"`
+	TauCriterion  string        `yaml:"tau_criterion"`
 	Background    string        `yaml:"background"`
 	Fakes         string        `yaml:"fakes"`
 	MemoryLimit   float64       `yaml:"memory_limit_gib"`

@@ -13,6 +13,9 @@ import (
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/methods/binbybin"
+	"github.com/desmear/desmear/unfold/methods/inversion"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/response"
 )
 
@@ -393,6 +396,18 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 			b.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
 		}
 		m = b
+	case tikhonov.Name:
+		t := &tikhonov.Settings{Tau: u.Tau, Truth: a.Truth}
+		if u.TauCriterion != "" {
+			if err := t.Criterion.UnmarshalText([]byte(u.TauCriterion)); err != nil {
+				return nil, nil, &unfold.SettingsError{Field: "Criterion", Reason: err.Error()}
+			}
+		}
+		m = t
+	case inversion.Name:
+		m = &inversion.Settings{}
+	case binbybin.Name:
+		m = &binbybin.Settings{}
 	}
 	for _, e := range []struct {
 		field string

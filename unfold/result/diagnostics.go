@@ -73,7 +73,7 @@ func (r *Result) SetProblem(p *unfold.Problem) {
 
 // PullVariance returns var n_i + var b_i of reco bin i, the variance of
 // the difference between the data and the folded expectation as far as
-// the inputs give it (method.md §13 Folded comparison).
+// the inputs give it (method.md §16 Folded comparison).
 func (r *Result) PullVariance(i int) float64 {
 	v := r.DataVariance[i]
 	if r.BackgroundVariance != nil {
@@ -83,7 +83,7 @@ func (r *Result) PullVariance(i int) float64 {
 }
 
 // Pulls returns (n_i − ν_i) / sqrt(var n_i + var b_i) per reco bin, 0
-// where that variance is 0; nil when r holds no data (method.md §13
+// where that variance is 0; nil when r holds no data (method.md §16
 // Folded comparison).
 func (r *Result) Pulls() []float64 {
 	if r.Data == nil {

@@ -75,7 +75,7 @@ func diagnosticsProblem(t *testing.T) *Result {
 	return r
 }
 
-// The pulls and the folded chi-square follow method.md §13 Folded
+// The pulls and the folded chi-square follow method.md §16 Folded
 // comparison, evaluated here by hand from the data, the background
 // variance and the folded expectation; the correlation is the definition
 // ρ_jk = V_jk / sqrt(V_jj V_kk) (same section); every diagnostic table

@@ -43,7 +43,7 @@ func close(a, b float64) bool { return math.Abs(a-b) <= 1e-12*math.Max(1, math.A
 // half-widths of the bin (common practice), the simulation truth scaled
 // to the estimate's total and its ratio; the efficiency; the data with
 // sqrt(var n + var b), the folded expectation and the pulls (method.md
-// §13 Folded comparison); the history; R_ij = A_ij / G_j (method.md §2)
+// §16 Folded comparison); the history; R_ij = A_ij / G_j (method.md §2)
 // and the correlation matrix.
 func TestPlotsData(t *testing.T) {
 	r, s := plotsResult(t)

@@ -10,6 +10,9 @@ import (
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/methods/binbybin"
+	"github.com/desmear/desmear/unfold/methods/inversion"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/validate"
 )
@@ -103,6 +106,11 @@ type Result struct {
 	// result.json); the diagnostics write it as a table when it is small
 	// enough (MaxResponseCells).
 	Migrations *sparse.Matrix `json:"-"`
+	// Tikhonov, Inversion and BinByBin are the outcomes of those methods
+	// (absent for the others).
+	Tikhonov  *Tikhonov  `json:"tikhonov,omitempty"`
+	Inversion *Inversion `json:"inversion,omitempty"`
+	BinByBin  *BinByBin  `json:"bin_by_bin,omitempty"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
 	// they were given.
@@ -130,6 +138,48 @@ type Result struct {
 	DataEvents   int64 `json:"data_events,omitempty"`
 	DataSelected int64 `json:"data_selected,omitempty"`
 	DataOutside  int64 `json:"data_outside,omitempty"`
+}
+
+// Tikhonov is the outcome of the Tikhonov method: the tau used and how
+// it was chosen ("fixed", "lcurve" or "correlation"), the penalty, and
+// the scan of tau (also written as tau-scan.csv).
+type Tikhonov struct {
+	Tau          float64    `json:"tau"`
+	Criterion    string     `json:"tau_criterion"`
+	AtScanEdge   bool       `json:"tau_at_scan_edge,omitempty"`
+	Penalty      string     `json:"penalty"`
+	Widths       bool       `json:"divide_by_widths"`
+	Bias         string     `json:"bias"`
+	PenaltyRows  int        `json:"penalty_rows"`
+	Solver       string     `json:"solver"`
+	CGIterations int        `json:"cg_iterations,omitempty"`
+	ResidualNorm float64    `json:"residual_norm"`
+	PenaltyNorm  float64    `json:"penalty_norm"`
+	Scan         []TauPoint `json:"tau_scan,omitempty"`
+}
+
+// TauPoint is one point of the scan of tau.
+type TauPoint struct {
+	Tau          float64 `json:"tau"`
+	ResidualNorm float64 `json:"residual_norm"`
+	PenaltyNorm  float64 `json:"penalty_norm"`
+	Curvature    float64 `json:"curvature"`
+	Correlation  float64 `json:"average_global_correlation,omitempty"`
+	Converged    bool    `json:"converged"`
+	CGIterations int     `json:"cg_iterations,omitempty"`
+}
+
+// Inversion is the outcome of the inversion: the condition number of
+// the response.
+type Inversion struct {
+	Condition float64 `json:"condition_number"`
+}
+
+// BinByBin is the outcome of the bin-by-bin correction: its factors and
+// the caution that it is a biased shortcut.
+type BinByBin struct {
+	Caution string    `json:"caution"`
+	Factors []float64 `json:"factors"`
 }
 
 // Analysis names the analysis file of a result.
@@ -162,6 +212,11 @@ type Settings struct {
 	Background string `json:"background_mode,omitempty"`
 	// Smoothing is the smoothing strength; absent without smoothing.
 	Smoothing float64 `json:"smoothing,omitempty"`
+	// Tau is the fixed tau of the Tikhonov method, TauCriterion the
+	// criterion choosing it otherwise ("lcurve" or "correlation"); absent
+	// for the other methods. The tau used is in the result's tikhonov.
+	Tau          float64 `json:"tau,omitempty"`
+	TauCriterion string  `json:"tau_criterion,omitempty"`
 	// Covariance is "none", "diag" or "full"; DiagonalMethod the method
 	// of "diag": "auto", "exact", "probes" or "toys".
 	Covariance     string `json:"covariance"`
@@ -253,6 +308,16 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 		if b.Smoothing != nil {
 			d.Smoothing = b.Smoothing.Strength
 		}
+	case *tikhonov.Settings:
+		var t tikhonov.Settings
+		if m != nil {
+			t = *m
+		}
+		if t.Tau > 0 {
+			d.Tau = t.Tau
+		} else {
+			d.TauCriterion = t.Criterion.String()
+		}
 	}
 	if withBackground {
 		d.Background = z.Background.String()
@@ -298,6 +363,16 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		for k, s := range d.History {
 			r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
 		}
+	case *tikhonov.Details:
+		r.Tikhonov = &Tikhonov{Tau: d.Tau, Criterion: d.Criterion, AtScanEdge: d.AtScanEdge, Penalty: d.Penalty, Widths: d.Widths, Bias: d.Bias,
+			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm}
+		for _, p := range d.Scan {
+			r.Tikhonov.Scan = append(r.Tikhonov.Scan, TauPoint{Tau: p.Tau, ResidualNorm: p.ResidualNorm, PenaltyNorm: p.PenaltyNorm, Curvature: p.Curvature, Correlation: p.Correlation, Converged: p.Converged, CGIterations: p.Iterations})
+		}
+	case *inversion.Details:
+		r.Inversion = &Inversion{Condition: d.Condition}
+	case *binbybin.Details:
+		r.BinByBin = &BinByBin{Caution: d.Caution, Factors: slices.Clone(d.Factors)}
 	}
 	copy(r.Determined, res.Determined)
 	copy(r.Efficiency, res.Efficiency)

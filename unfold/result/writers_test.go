@@ -130,14 +130,14 @@ func TestWritersSameForBothModes(t *testing.T) {
 // default; an unknown name is refused with the known ones; a name is
 // registered once.
 func TestRegistry(t *testing.T) {
-	want := []string{"json", "csv", "diagnostics", "record", "regions", "report", "root"}
+	want := []string{"json", "csv", "diagnostics", "record", "regions", "report", "root", "tau-scan"}
 	if got := Formats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("Formats() = %v, want %v", got, want)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, record, regions, report, root)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, record, regions, report, root, tau-scan)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {
@@ -146,4 +146,23 @@ func TestRegistry(t *testing.T) {
 		}
 	}()
 	Register(Writer{Name: "csv", Write: writeJSONFormat})
+}
+
+// The scan of tau is written as a table, one row per tau, the chosen one
+// marked; without a scan nothing is written.
+func TestTauScan(t *testing.T) {
+	tk := &Tikhonov{Tau: 0.1, Criterion: "lcurve", Scan: []TauPoint{
+		{Tau: 0.01, ResidualNorm: 5, PenaltyNorm: 100, Converged: true},
+		{Tau: 0.1, ResidualNorm: 6, PenaltyNorm: 20, Curvature: 3.5, Converged: true},
+		{Tau: 1, ResidualNorm: 30, PenaltyNorm: 2, Converged: false, CGIterations: 17},
+	}}
+	var b strings.Builder
+	if err := WriteTauScan(&b, tk); err != nil {
+		t.Fatal(err)
+	}
+	want := "tau,residual_norm,penalty_norm,curvature,average_global_correlation,converged,cg_iterations,chosen\n" +
+		"0.01,5,100,0,,true,0,false\n0.1,6,20,3.5,,true,0,true\n1,30,2,0,,false,17,false\n"
+	if b.String() != want {
+		t.Errorf("tau-scan.csv:\n%s\nwant\n%s", b.String(), want)
+	}
 }

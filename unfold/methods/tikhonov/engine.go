@@ -1,0 +1,254 @@
+package tikhonov
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+
+	"github.com/desmear/desmear/unfold"
+)
+
+var sqrt = math.Sqrt
+
+// StillFraction is the least speed of the L-curve, as a fraction of its
+// extent per decade of tau, at which its curvature is used.
+const StillFraction = 0.01
+
+// engine solves the normal equations of a system, densely or by
+// conjugate gradients.
+type engine struct {
+	sy      *system
+	dn      *dense // nil: conjugate gradients
+	nominal *cg    // the first solver handed out, whose solve is the nominal one
+}
+
+func newEngine(sy *system, useDense bool) *engine {
+	e := &engine{sy: sy}
+	if useDense {
+		e.dn = newDense(sy)
+	}
+	return e
+}
+
+func (e *engine) kind() string {
+	if e.dn != nil {
+		return "dense"
+	}
+	return "cg"
+}
+
+// prepare readies the engine for solves at tau (the dense factorisation).
+func (e *engine) prepare(tau float64) error {
+	if e.dn != nil {
+		return e.dn.factor(tau)
+	}
+	return nil
+}
+
+// solve solves the normal equations at tau for the right-hand side b
+// into x, with c as the scratch of the conjugate gradients (after
+// prepare(tau) for the dense engine). x holds the warm start of the
+// conjugate gradients.
+func (e *engine) solve(ctx context.Context, c *cg, x, b []float64, tau float64, strict bool) (bool, error) {
+	if e.dn != nil {
+		return true, e.dn.solve(x, b)
+	}
+	ok, err := c.solve(ctx, x, b, tau)
+	if err == nil && !ok && strict {
+		err = errNotConverged(c, tau)
+	}
+	return ok, err
+}
+
+// solver is K y = (Rᵀ W R + τ² Lᵀ L)⁻¹ Rᵀ W y, an unfold.Solver.
+type solver struct {
+	e   *engine
+	c   *cg
+	tau float64
+	b   []float64
+}
+
+func (e *engine) solver(tau float64) unfold.Solver {
+	s := &solver{e: e, c: newCG(e.sy), tau: tau, b: make([]float64, e.sy.nt)}
+	if e.nominal == nil {
+		e.nominal = s.c
+	}
+	return s
+}
+
+func (s *solver) Solve(ctx context.Context, dst, y []float64) error {
+	s.c.rhs(s.b, y, 0)
+	clear(dst)
+	_, err := s.e.solve(ctx, s.c, dst, s.b, s.tau, true)
+	return err
+}
+
+// rhs sets dst = Rᵀ W y + t Lᵀ L x0 (t = τ², 0 for none).
+func (c *cg) rhs(dst, y []float64, t float64) {
+	sy := c.sy
+	for i, v := range y {
+		c.wf[i] = sy.w[i] * v
+	}
+	sy.p.BackProject(dst, c.wf)
+	if sy.x0 != nil && t > 0 {
+		sy.l.addNormal(dst, sy.x0, c.lx, t)
+	}
+}
+
+// solveBias sets dst to the constant part (Rᵀ W R + τ² Lᵀ L)⁻¹ τ² Lᵀ L x0.
+func (e *engine) solveBias(ctx context.Context, dst []float64, tau float64) error {
+	c := newCG(e.sy)
+	b := make([]float64, e.sy.nt)
+	e.sy.l.addNormal(b, e.sy.x0, c.lx, tau*tau)
+	_, err := e.solve(ctx, c, dst, b, tau, true)
+	return err
+}
+
+func (e *engine) nominalIterations() int {
+	if e.dn != nil || e.nominal == nil {
+		return 0
+	}
+	return e.nominal.lastIter
+}
+
+// taus returns the values of the scan, increasing: ScanPoints values
+// log-spaced in [ScanMin, ScanMax], by default [1e-4 s, 1e3 s] with s the
+// scale of the system (see system.scale).
+func (e *engine) taus(rs *Settings) []float64 {
+	lo, hi := rs.ScanMin, rs.ScanMax
+	if lo == 0 || hi == 0 {
+		s := e.sy.scale()
+		if lo == 0 {
+			lo = 1e-4 * s
+		}
+		if hi == 0 {
+			hi = 1e3 * s
+		}
+	}
+	if lo >= hi {
+		lo = hi / 1e6
+	}
+	k := rs.ScanPoints
+	out := make([]float64, k)
+	a, b := math.Log(lo), math.Log(hi)
+	for i := range out {
+		out[i] = math.Exp(a + (b-a)*float64(i)/float64(k-1))
+	}
+	return out
+}
+
+// scan solves at every tau of the scan, fills d.Scan and chooses d.Tau
+// by rs.Criterion (method.md §14 Choosing tau).
+func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
+	var gc *globalCorrelation
+	if rs.Criterion == Correlation {
+		if e.dn == nil || len(e.dn.idx) > CorrelationLimit {
+			return &unfold.SettingsError{Field: "Criterion", Reason: fmt.Sprintf("the global correlation is computed exactly, from the dense covariance, for at most %d determined truth bins (this problem has %d truth bins); choose the L-curve or a fixed tau", CorrelationLimit, e.sy.nt)}
+		}
+		var err error
+		if gc, err = newGlobalCorrelation(e.dn); err != nil {
+			return err
+		}
+	}
+	taus := e.taus(rs)
+	d.Scan = make([]ScanPoint, len(taus))
+	nt := e.sy.nt
+	c := newCG(e.sy)
+	c.tol = max(c.tol, rs.ScanTolerance)
+	x, b := make([]float64, nt), make([]float64, nt)
+	y := make([]float64, e.sy.p.RecoBins())
+	copy(y, e.sy.p.Data())
+	for i, v := range e.sy.p.Background() {
+		y[i] -= v
+	}
+	// From the smallest tau up: each solution is the next warm start.
+	// The normal matrix is best conditioned at small tau (it is then
+	// close to Rᵀ V⁻¹ R), and its conditioning worsens as τ² Lᵀ L takes
+	// over, so the hard solves start from the nearest solution.
+	for k := range taus {
+		tau := taus[k]
+		if err := e.prepare(tau); err != nil {
+			return err
+		}
+		c.rhs(b, y, tau*tau)
+		ok, err := e.solve(ctx, c, x, b, tau, false)
+		if err != nil {
+			return err
+		}
+		pt := ScanPoint{Tau: tau, Converged: ok}
+		if e.dn == nil {
+			pt.Iterations = c.lastIter
+		}
+		pt.ResidualNorm, pt.PenaltyNorm = e.sy.norms(x)
+		if gc != nil {
+			pt.Correlation = gc.average(tau)
+		}
+		d.Scan[k] = pt
+	}
+	usable := curvatures(d.Scan)
+	best := -1
+	if gc != nil {
+		d.Criterion = ChosenCorrelation
+		for k, pt := range d.Scan {
+			if best < 0 || pt.Correlation < d.Scan[best].Correlation {
+				best = k
+			}
+		}
+		d.AtScanEdge = best == 0 || best == len(d.Scan)-1
+	} else {
+		d.Criterion = ChosenLCurve
+		first, last := -1, -1
+		for k, ok := range usable {
+			if !ok {
+				continue
+			}
+			if first < 0 {
+				first = k
+			}
+			last = k
+			if best < 0 || d.Scan[k].Curvature > d.Scan[best].Curvature {
+				best = k
+			}
+		}
+		if best < 0 {
+			return &unfold.NumericalError{Reason: "the L-curve does not move over the scanned range of tau (neither the residual nor the penalty changes): widen the scan or give a fixed tau"}
+		}
+		d.AtScanEdge = best == first || best == last
+	}
+	d.Tau = d.Scan[best].Tau
+	return nil
+}
+
+// curvatures sets the signed curvature of the L-curve
+// (log10 |residual|, log10 |penalty|) parametrised by t = log10 tau at
+// the inner points, from central differences on the (uniform) grid in t:
+// κ = (x′ y″ − y′ x″) / (x′² + y′²)^{3/2} (Hansen and O'Leary 1993).
+// The corner of the L has κ > 0 (the curve turns from descending to
+// running right). Where the curve moves by less than StillFraction of
+// its extent per unit of t, the curvature is rounding noise: it is left
+// 0 and the point is not usable. It returns which points are usable.
+func curvatures(s []ScanPoint) []bool {
+	lg := func(v float64) float64 { return math.Log10(math.Max(v, 1e-300)) }
+	usable := make([]bool, len(s))
+	if len(s) < 3 {
+		return usable
+	}
+	u, v := make([]float64, len(s)), make([]float64, len(s))
+	for k, pt := range s {
+		u[k], v[k] = lg(pt.ResidualNorm), lg(pt.PenaltyNorm)
+	}
+	extent := math.Hypot(slices.Max(u)-slices.Min(u), slices.Max(v)-slices.Min(v))
+	for k := 1; k+1 < len(s); k++ {
+		h := (math.Log10(s[k+1].Tau) - math.Log10(s[k-1].Tau)) / 2
+		u1, v1 := (u[k+1]-u[k-1])/(2*h), (v[k+1]-v[k-1])/(2*h)
+		u2, v2 := (u[k+1]-2*u[k]+u[k-1])/(h*h), (v[k+1]-2*v[k]+v[k-1])/(h*h)
+		speed := math.Hypot(u1, v1)
+		if !(speed > StillFraction*extent) {
+			continue
+		}
+		s[k].Curvature = (u1*v2 - v1*u2) / (speed * speed * speed)
+		usable[k] = true
+	}
+	return usable
+}

@@ -1,0 +1,148 @@
+package tikhonov
+
+import (
+	"context"
+	"math"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+
+	"github.com/desmear/desmear/unfold"
+)
+
+// The global correlation of a 2×2 covariance [[a, c], [c, b]] is
+// |ρ| = |c|/sqrt(a b) for both bins (closed form, derived here: the
+// inverse has diagonal b/(ab − c²) and a/(ab − c²), so
+// 1 − 1/(V_11 (V⁻¹)_11) = c²/(ab)).
+func TestGlobalCorrelation2x2(t *testing.T) {
+	for _, c := range [][3]float64{{4, 9, -3}, {1, 1, 0.5}, {2, 8, 0}, {3625, 3625, -0.724138 * 3625}} {
+		g, err := GlobalCorrelations(mat.NewSymDense(2, []float64{c[0], c[2], c[2], c[1]}))
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := math.Abs(c[2]) / math.Sqrt(c[0]*c[1])
+		for j, v := range g {
+			if math.Abs(v-want) > 1e-12 {
+				t.Errorf("%v: rho[%d] = %v, want %v", c, j, v, want)
+			}
+		}
+	}
+}
+
+// The average global correlation from one decomposition (method.md §14
+// Choosing tau) equals the direct computation from the covariance
+// C = K W⁻¹ Kᵀ with K from gonum's LU solve, at several taus.
+func TestAverageCorrelation(t *testing.T) {
+	nt, nr := 10, 16
+	a, gen := randomResponse(t, 5, nt, nr, 4)
+	truth := make([]float64, nt)
+	for j := range truth {
+		truth[j] = 500 + 50*float64(j)
+	}
+	p := noisyProblem(a, gen, truth, 2)
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	l, _ := newPenalty(nil, nt, pr.Determined(), Curvature, false)
+	sy := newSystem(pr, l, nil, 1e-12, 0)
+	gc, err := newGlobalCorrelation(newDense(sy))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []float64{1e-3, 0.1, 3} {
+		tau := f * sy.scale()
+		k := mat.NewDense(nt, nr, nil)
+		for i := 0; i < nr; i++ {
+			e := make([]float64, nr)
+			e[i] = 1
+			k.SetCol(i, denseReference(t, pr, l, tau, e))
+		}
+		var kv mat.Dense
+		kv.Mul(k, mat.NewDiagDense(nr, pr.DataVariance()))
+		var c mat.Dense
+		c.Mul(&kv, k.T())
+		cs := mat.NewSymDense(nt, nil)
+		for i := 0; i < nt; i++ {
+			for j := i; j < nt; j++ {
+				cs.SetSym(i, j, (c.At(i, j)+c.At(j, i))/2)
+			}
+		}
+		rho, err := GlobalCorrelations(cs)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var want float64
+		for _, r := range rho {
+			want += r / float64(nt)
+		}
+		if got := gc.average(tau); math.Abs(got-want) > 1e-6 {
+			t.Errorf("tau %g: average global correlation %v, want %v", tau, got, want)
+		}
+	}
+}
+
+// The curvature of points on a circle of radius r, traversed
+// counter-clockwise, is 1/r (closed form); central differences on a
+// fine grid give it to O(h²).
+func TestCurvatureOfCircle(t *testing.T) {
+	const r, k = 2.0, 201
+	s := make([]ScanPoint, k)
+	for i := range s {
+		th := -1 + 2*float64(i)/float64(k-1) // log10 tau
+		s[i] = ScanPoint{Tau: math.Pow(10, th), ResidualNorm: math.Pow(10, r*math.Cos(th)), PenaltyNorm: math.Pow(10, r*math.Sin(th))}
+	}
+	usable := curvatures(s)
+	for i := 1; i < k-1; i++ {
+		if !usable[i] {
+			t.Fatalf("point %d not usable", i)
+		}
+		if math.Abs(s[i].Curvature-1/r) > 1e-3 {
+			t.Fatalf("point %d: curvature %v, want %v", i, s[i].Curvature, 1/r)
+		}
+	}
+	if s[0].Curvature != 0 || s[k-1].Curvature != 0 {
+		t.Error("curvature set at the ends of the scan")
+	}
+}
+
+// On a noisy problem with a smeared response the L-curve corner lies inside the scan, the
+// residual norm grows and the penalty norm falls with tau (Hansen and
+// O'Leary 1993, the monotonicity of both norms along the L-curve), the
+// chosen tau is the scan point of largest curvature, and the
+// correlation criterion chooses the scan point of smallest average
+// global correlation.
+func TestScan(t *testing.T) {
+	nt := 40
+	a, gen := smearedResponse(t, nt, 60, 2.5)
+	truth := make([]float64, nt)
+	for j := range truth {
+		truth[j] = 1000 + 800*math.Sin(float64(j)/5)
+	}
+	p := noisyProblem(a, gen, truth, 4)
+	for _, crit := range Criteria() {
+		res, err := unfold.Unfold(context.Background(), p, nil, &Settings{Criterion: crit})
+		if err != nil {
+			t.Fatal(err)
+		}
+		d := DetailsOf(res)
+		if len(d.Scan) != DefaultScanPoints || d.Criterion != crit.String() {
+			t.Fatalf("%v: %d scan points, criterion %q", crit, len(d.Scan), d.Criterion)
+		}
+		best := 0
+		for k, pt := range d.Scan {
+			if k > 0 && (pt.ResidualNorm < d.Scan[k-1].ResidualNorm*(1-1e-9) || pt.PenaltyNorm > d.Scan[k-1].PenaltyNorm*(1+1e-9)) {
+				t.Errorf("%v: point %d not monotone: %+v after %+v", crit, k, pt, d.Scan[k-1])
+			}
+			if crit == LCurve && pt.Curvature > d.Scan[best].Curvature || crit == Correlation && pt.Correlation < d.Scan[best].Correlation {
+				best = k
+			}
+		}
+		if d.Tau != d.Scan[best].Tau {
+			t.Errorf("%v: chose tau %v, the best scan point is %v", crit, d.Tau, d.Scan[best].Tau)
+		}
+		if d.AtScanEdge {
+			t.Errorf("%v: the chosen tau %v is at the edge of the scan", crit, d.Tau)
+		}
+	}
+}
