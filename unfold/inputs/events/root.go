@@ -44,6 +44,9 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 	if err != nil {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
 	}
+	if err := checkROOTBaskets(path); err != nil {
+		return nil, fmt.Errorf("events: %s: %w", path, err)
+	}
 	if treePath == "" {
 		trees := treeNames(f)
 		switch len(trees) {
