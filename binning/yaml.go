@@ -2,6 +2,7 @@ package binning
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -80,8 +81,14 @@ func Decode(r io.Reader, filename string) (*Scheme, error) {
 	if err != nil {
 		return nil, fmt.Errorf("binning: reading %s: %w", filename, err)
 	}
-	var doc yaml.Node
-	if err := yaml.Unmarshal(data, &doc); err != nil {
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	var doc, extra yaml.Node
+	if err := dec.Decode(&doc); err != nil && !errors.Is(err, io.EOF) {
+		return nil, &Error{File: filename, Line: yamlErrorLine(err), Msg: "not valid YAML: " + err.Error()}
+	}
+	if err := dec.Decode(&extra); err == nil {
+		return nil, &Error{File: filename, Line: extra.Line, Msg: "a second YAML document (---) is not allowed; give one scheme per file"}
+	} else if !errors.Is(err, io.EOF) {
 		return nil, &Error{File: filename, Line: yamlErrorLine(err), Msg: "not valid YAML: " + err.Error()}
 	}
 	return DecodeNode(&doc, filename)

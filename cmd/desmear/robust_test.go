@@ -4,6 +4,7 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -83,5 +84,52 @@ func TestSavedResponseIntegrity(t *testing.T) {
 	}
 	if code, _, stderr := runCLI(t, context.Background(), "unfold", path); code != 0 {
 		t.Errorf("the restored bundle: exit %d, %s", code, stderr)
+	}
+}
+
+// Every setting is taken as written or refused: numbers that are not
+// whole for integer keys, an explicit 0 that would mean the default, a
+// second YAML document, a number too large for a float64 in an events
+// file. Each refusal is one line naming the file and line, exit 3, and
+// no result folder.
+func TestSettingsTakenAsWritten(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	n := 0
+	bad := func(old, new string) string {
+		n++
+		if !strings.Contains(string(src), old) {
+			t.Fatalf("%q not in the analysis file", old)
+		}
+		p := filepath.Join(dir, "set"+strconv.Itoa(n)+".yaml")
+		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
+		return p
+	}
+	reco, _ := os.ReadFile(filepath.Join(dir, "reco.yaml"))
+	os.WriteFile(filepath.Join(dir, "reco2.yaml"), append(reco, "---\nregions: []\n"...), 0o644)
+	sim, _ := os.ReadFile(filepath.Join(dir, "sim.csv"))
+	lines := strings.SplitN(string(sim), "\n", 3)
+	fields := strings.Split(lines[1], ",")
+	fields[3] = "1e400"
+	lines[1] = strings.Join(fields, ",")
+	os.WriteFile(filepath.Join(dir, "huge.csv"), []byte(strings.Join(lines, "\n")), 0o644)
+	for _, c := range []struct {
+		cmd, file, want string
+	}{
+		{"unfold", bad("iterations: 3", "iterations: 2.5"), "set1.yaml:26: unfolding.iterations: value 2.5 is a number, want a whole number"},
+		{"unfold", bad("covariance: full", "covariance: full\n  probes: 0"), "set2.yaml:29: uncertainty.probes: 0 is not allowed"},
+		{"unfold", bad("folder: result", "folder: result\n  luminosity: 0"), "set3.yaml:31: output.luminosity: 0 is not allowed"},
+		{"unfold", bad("iterations: 3", "iterations: 0"), "set4.yaml:26: unfolding.iterations: 0 is not allowed"},
+		{"unfold", bad("output:\n", "processing:\n  workers: 1.5\noutput:\n"), "set5.yaml:30: processing.workers: value 1.5 is a number, want a whole number"},
+		{"unfold", bad("reco: reco.yaml", "reco: reco2.yaml"), "reco2.yaml:6: a second YAML document (---) is not allowed"},
+		{"unfold", bad("folder: result\n", "folder: result\n---\ntitle: another\n"), "set7.yaml:31: a second YAML document (---) is not allowed"},
+		{"response", bad("file: sim.csv", "file: huge.csv"), `huge.csv:2:` + strconv.Itoa(len(strings.Join(fields[:3], ","))+2) + `: column "pt_r": "1e400" is too large for a 64-bit float`},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), c.cmd, c.file)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
+	}
+	if _, err := os.Stat(filepath.Join(dir, "response")); err == nil {
+		t.Error("a response folder was left behind")
 	}
 }

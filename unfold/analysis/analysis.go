@@ -275,19 +275,36 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 
 	// Uncertainty.
-	un := doc.Uncertainty
+	un, o := doc.Uncertainty, doc.Output
 	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
 	c.oneOf(&a.Uncertainty.Covariance, unfold.Diagonal.String(), names(unfold.CovarianceModes()), "uncertainty", "covariance")
 	c.oneOf(&a.Uncertainty.Method, unfold.DiagonalAuto.String(), names(unfold.DiagonalMethods()), "uncertainty", "method")
+	// Zero is each of these settings' "not given" value: written out, it
+	// would silently mean the default, so it is refused.
+	for _, z := range []struct {
+		v    float64
+		path []any
+		want string
+	}{
+		{float64(u.Iterations), []any{"unfolding", "iterations"}, "a number of iterations ≥ 1"},
+		{float64(u.MaxIterations), []any{"unfolding", "max_iterations"}, "a bound ≥ 1 on the iterations"},
+		{u.StopChi2, []any{"unfolding", "stop_chi2"}, "a χ² change > 0 at which to stop"},
+		{float64(un.Probes), []any{"uncertainty", "probes"}, "a number of probes ≥ 1"},
+		{float64(un.Toys), []any{"uncertainty", "toys"}, "a number of toys ≥ 1"},
+		{o.Luminosity, []any{"output", "luminosity"}, "a positive integrated luminosity"},
+	} {
+		if z.v == 0 && nodeAt(root, z.path...) != nil && nodeAt(root, z.path...).ShortTag() != "!!null" {
+			c.errf(c.line(z.path...), fieldName(z.path...), "0 is not allowed: give %s, or leave the key out for the default", z.want)
+		}
+	}
 	if len(c.errs) == 0 {
 		c.settings(a)
 	}
 
 	// Output.
-	o := doc.Output
 	a.Output = Output{Formats: o.Formats, Luminosity: o.Luminosity, LuminosityUnit: o.LuminosityUnit}
 	if o.Folder == "" {
 		c.errf(c.line("output"), "result.folder", "missing: name the result folder (relative to the analysis file)")
