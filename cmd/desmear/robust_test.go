@@ -85,6 +85,17 @@ func TestSavedResponseIntegrity(t *testing.T) {
 	if code, _, stderr := runCLI(t, context.Background(), "unfold", path); code != 0 {
 		t.Errorf("the restored bundle: exit %d, %s", code, stderr)
 	}
+	os.RemoveAll(filepath.Join(dir, "result"))
+	// With both response and simulation, a simulation that is not the
+	// one the response was built from is refused, not ignored.
+	sim := filepath.Join(dir, "sim.csv")
+	b, _ := os.ReadFile(sim)
+	os.WriteFile(sim, append(b, b[strings.IndexByte(string(b), '\n')+1:]...), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "another simulation", code, stdout, stderr, exitInput, "analysis.yaml:15: simulation[0].file: the saved response "+saved+" was not built from "+sim, filepath.Join(dir, "result"))
+	if !strings.Contains(stderr, "desmear response") {
+		t.Errorf("another simulation: no advice to rebuild: %q", stderr)
+	}
 }
 
 // Every setting is taken as written or refused: numbers that are not
