@@ -144,3 +144,30 @@ func TestSettingsTakenAsWritten(t *testing.T) {
 		t.Error("a response folder was left behind")
 	}
 }
+
+// Messages say what to fix, the same way for every input format: a
+// missing events file, whatever its format, and the operators of other
+// languages in expressions.
+func TestMessagesSayWhatToFix(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	n := 0
+	bad := func(old, new string) string {
+		n++
+		p := filepath.Join(dir, "msg"+strconv.Itoa(n)+".yaml")
+		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
+		return p
+	}
+	for _, c := range []struct{ file, want string }{
+		{bad("file: sim.csv", "file: gone.root"), "msg1.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.root") + ": no such file or directory"},
+		{bad("file: sim.csv", "file: gone.parquet"), "msg2.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.parquet") + ": no such file or directory"},
+		{bad("file: sim.csv", "file: gone.csv"), "msg3.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.csv") + ": no such file or directory"},
+		{bad("pass_r && pt_r", "pass_r and pt_r"), `"and" is not an operator: write && for and`},
+		{bad("pass_r && pt_r", "pass_r & pt_r"), "for a logical and use &&"},
+		{bad("weight: w", "weight: w ** 2"), "operator ** is not supported; for powers use pow(x, y)"},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), "response", c.file)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "response"))
+	}
+}

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"os"
 	"reflect"
 	"runtime"
 	"slices"
@@ -40,6 +41,13 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 			f.Close()
 		}
 	}()
+	// A file that cannot be opened at all gets the same message as for
+	// the other formats, not the ROOT library's.
+	plain, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	plain.Close()
 	f, err = groot.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
