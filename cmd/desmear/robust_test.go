@@ -171,3 +171,25 @@ func TestMessagesSayWhatToFix(t *testing.T) {
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "response"))
 	}
 }
+
+// A demo run over an existing folder is refused before anything is
+// generated (no "generating" line), and the folder is left as it was.
+func TestDemoRefusesFolderFirst(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "demo")
+	os.Mkdir(out, 0o755)
+	notes := filepath.Join(out, "notes.txt")
+	os.WriteFile(notes, []byte("keep"), 0o644)
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"demo", "--out", out}, "demo: " + out + " already exists (replace it with --force)"},
+		{[]string{"demo", "--out", out, "--force"}, "so it is left alone"},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), c.args...)
+		checkRefusal(t, strings.Join(c.args, " "), code, stdout, stderr, exitUsage, c.want, "")
+		if b, err := os.ReadFile(notes); err != nil || string(b) != "keep" {
+			t.Errorf("%v: the existing folder changed", c.args)
+		}
+	}
+}
