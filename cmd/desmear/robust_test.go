@@ -193,3 +193,20 @@ func TestDemoRefusesFolderFirst(t *testing.T) {
 		}
 	}
 }
+
+// desmear response does not need the data section it never uses; the
+// unfolding refuses its absence, naming the key.
+func TestResponseWithoutData(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	if !strings.Contains(string(src), "data:\n  table: n.csv\n") {
+		t.Fatal("no data section to remove")
+	}
+	os.WriteFile(path, []byte(strings.Replace(string(src), "data:\n  table: n.csv\n", "", 1)), 0o644)
+	if code, _, stderr := runCLI(t, context.Background(), "response", path, "--out", filepath.Join(dir, "resp")); code != 0 {
+		t.Fatalf("desmear response without data: exit %d, %s", code, stderr)
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "unfold without data", code, stdout, stderr, exitInput, path+": data: missing: the unfolding needs the data", filepath.Join(dir, "result"))
+}

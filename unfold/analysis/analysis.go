@@ -83,6 +83,9 @@ const (
 	DataHistogram
 	// DataTable reads a plain table (reco,value[,variance]).
 	DataTable
+	// DataMissing: the file has no data section. Building the response
+	// needs none; unfolding refuses it (the error of FillData and Run).
+	DataMissing
 )
 
 // Data is the measured input.
@@ -514,6 +517,9 @@ func (c *checker) levelExprs(field string, n *yaml.Node, scheme *binning.Scheme,
 	return out
 }
 
+// dataChoice says what the data section takes.
+const dataChoice = "give exactly one of events (an events file), histogram (a ROOT file) or table (a plain-table n.csv)"
+
 func (c *checker) data(d dataDoc, a *Analysis) Data {
 	out := Data{Tree: d.Tree, Name: d.Name, Line: c.line("data")}
 	given := 0
@@ -522,8 +528,12 @@ func (c *checker) data(d dataDoc, a *Analysis) Data {
 			given++
 		}
 	}
+	if given == 0 && nodeAt(c.root, "data") == nil {
+		out.Kind = DataMissing
+		return out
+	}
 	if given != 1 {
-		c.errf(out.Line, "data", "give exactly one of events (an events file), histogram (a ROOT file) or table (a plain-table n.csv)")
+		c.errf(out.Line, "data", dataChoice)
 		return out
 	}
 	only := func(keys ...string) {

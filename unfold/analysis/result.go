@@ -50,6 +50,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
+	if a.Data.Kind == DataMissing {
+		return nil, a.missingData()
+	}
 	// Every input is checked here, once, before any event is read.
 	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
 		return nil, err

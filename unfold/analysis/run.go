@@ -332,8 +332,15 @@ func (a *Analysis) FillData(ctx context.Context, opt *Options) (*Measured, error
 		return &Measured{Values: val, Variance: vr}, nil
 	case DataHistogram:
 		return a.readHistogram()
+	case DataMissing:
+		return nil, a.missingData()
 	}
 	return nil, fmt.Errorf("analysis: unknown data kind %d", d.Kind)
+}
+
+// missingData is the error for unfolding without a data section.
+func (a *Analysis) missingData() error {
+	return &Error{File: a.File, Field: "data", Msg: "missing: the unfolding needs the data; " + dataChoice}
 }
 
 // Expected is the expected background in the reco scheme.
