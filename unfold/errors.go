@@ -78,13 +78,17 @@ func (e *TooLargeError) Error() string {
 }
 
 // NumericalError reports a numerical failure during the iteration (a
-// non-finite value appeared). With valid inputs it indicates overflow.
+// non-finite value appeared), or in the result (Iteration −1). With
+// valid inputs it indicates overflow.
 type NumericalError struct {
 	Iteration int
 	Reason    string
 }
 
 func (e *NumericalError) Error() string {
+	if e.Iteration < 0 {
+		return "unfold: numerical failure: " + e.Reason
+	}
 	return fmt.Sprintf("unfold: iteration %d: %s", e.Iteration, e.Reason)
 }
 

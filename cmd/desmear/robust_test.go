@@ -210,3 +210,13 @@ func TestResponseWithoutData(t *testing.T) {
 	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
 	checkRefusal(t, "unfold without data", code, stdout, stderr, exitInput, path+": data: missing: the unfolding needs the data", filepath.Join(dir, "result"))
 }
+
+// Non-finite results are numerical failures (exit 4) naming the
+// quantity and the bin, not errors of writing the result.
+func TestNonFiniteResultIsNumerical(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	os.WriteFile(path, []byte(strings.Replace(string(src), "folder: result", "folder: result\n  luminosity: 1e-320", 1)), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "tiny luminosity", code, stdout, stderr, exitNumerical, "unfold: numerical failure: the density of truth bin 0 (", filepath.Join(filepath.Dir(path), "result"))
+}
