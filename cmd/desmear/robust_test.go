@@ -220,3 +220,22 @@ func TestNonFiniteResultIsNumerical(t *testing.T) {
 	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
 	checkRefusal(t, "tiny luminosity", code, stdout, stderr, exitNumerical, "unfold: numerical failure: the density of truth bin 0 (", filepath.Join(filepath.Dir(path), "result"))
 }
+
+// An analysis file with several problems lists each on its own line,
+// every line prefixed "desmear: ".
+func TestEveryErrorLinePrefixed(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	bad := strings.Replace(strings.Replace(string(src), "iterations: 3", "iterations: 2.5", 1), "covariance: full", "covariance: full\n  probes: 1.5", 1)
+	os.WriteFile(path, []byte(bad), 0o644)
+	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	lines := strings.Split(strings.TrimSuffix(stderr, "\n"), "\n")
+	if code != exitInput || len(lines) != 2 {
+		t.Fatalf("exit %d, stderr %q: want exit 3 and two lines", code, stderr)
+	}
+	for i, want := range []string{"unfolding.iterations: value 2.5", "uncertainty.probes: value 1.5"} {
+		if !strings.HasPrefix(lines[i], "desmear: ") || !strings.Contains(lines[i], want) {
+			t.Errorf("line %d: %q, want the prefix and %q", i+1, lines[i], want)
+		}
+	}
+}
