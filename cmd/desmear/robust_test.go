@@ -4,6 +4,7 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strconv"
 	"strings"
 	"testing"
@@ -236,6 +237,58 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 	for i, want := range []string{"unfolding.iterations: value 2.5", "uncertainty.probes: value 1.5"} {
 		if !strings.HasPrefix(lines[i], "desmear: ") || !strings.Contains(lines[i], want) {
 			t.Errorf("line %d: %q, want the prefix and %q", i+1, lines[i], want)
+		}
+	}
+}
+
+// Sizes a file can ask for are bounded and checked before the memory is
+// taken: each refusal names the key (or the file) and the limit, and the
+// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
+// upper bound of the peak heap).
+func TestBoundedMemory(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	n := 0
+	bad := func(old, new string) string {
+		n++
+		p := filepath.Join(dir, "mem"+strconv.Itoa(n)+".yaml")
+		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
+		return p
+	}
+	// One list of 10^4 edges used 10^4 times through an alias: 10^8
+	// edges from a file of a few hundred kilobytes.
+	var alias strings.Builder
+	alias.WriteString("regions:\n  - name: r\n    axes:\n      - name: y\n        edges: &e [")
+	for i := range 10000 {
+		if i > 0 {
+			alias.WriteString(", ")
+		}
+		alias.WriteString(strconv.Itoa(i))
+	}
+	alias.WriteString("]\n      - name: pt\n        edges_by_bin: [")
+	for i := range 9999 {
+		if i > 0 {
+			alias.WriteString(", ")
+		}
+		alias.WriteString("*e")
+	}
+	alias.WriteString("]\n")
+	os.WriteFile(filepath.Join(dir, "alias.yaml"), []byte(alias.String()), 0o644)
+	for _, c := range []struct{ file, want string }{
+		{bad("output:\n", "processing:\n  batch_size: 1000000000\noutput:\n"), "mem1.yaml:30: processing.batch_size: must be between 0 (the default) and 1048576 events"},
+		{bad("output:\n", "processing:\n  workers: 100000\noutput:\n"), "mem2.yaml:30: processing.workers: must be between 0 (one per core) and 256"},
+		{bad("reco: reco.yaml", "reco: /dev/zero"), "/dev/zero: larger than 64 MiB, the limit for a scheme file"},
+		{bad("reco: reco.yaml", "reco: alias.yaml"), "alias.yaml:5:16: regions[0].axes[1].edges_by_bin[103]: more than 1048576 edges in the scheme (a list reused through a YAML alias counts each time)"},
+		{"/dev/zero", "/dev/zero: larger than 16 MiB, the limit for an analysis file"},
+	} {
+		var before, after runtime.MemStats
+		runtime.ReadMemStats(&before)
+		code, stdout, stderr := runCLI(t, context.Background(), "unfold", c.file)
+		runtime.ReadMemStats(&after)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
+		if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
+			t.Errorf("%s: %d MB allocated", c.file, a>>20)
 		}
 	}
 }

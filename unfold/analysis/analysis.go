@@ -3,6 +3,7 @@ package analysis
 import (
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -159,9 +160,17 @@ type Output struct {
 // file, the line and the field; problems inside a binning scheme are
 // *binning.Error values.
 func Load(path string) (*Analysis, error) {
-	src, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, &Error{File: path, Msg: fmt.Sprintf("cannot read the analysis file: %v", unwrapPath(err)), Err: err}
+	}
+	defer f.Close()
+	src, err := io.ReadAll(io.LimitReader(f, MaxFileBytes+1))
+	if err != nil {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("cannot read the analysis file: %v", unwrapPath(err)), Err: err}
+	}
+	if len(src) > MaxFileBytes {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("larger than %d MiB, the limit for an analysis file; is it an analysis file?", MaxFileBytes>>20)}
 	}
 	return Decode(src, path)
 }
@@ -327,11 +336,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize
-	if a.Workers < 0 {
-		c.errf(c.line("processing", "workers"), "processing.workers", "must be ≥ 0 (0: one per core)")
+	if a.Workers < 0 || a.Workers > MaxWorkers {
+		c.errf(c.line("processing", "workers"), "processing.workers", "must be between 0 (one per core) and %d", MaxWorkers)
 	}
-	if a.BatchSize < 0 {
-		c.errf(c.line("processing", "batch_size"), "processing.batch_size", "must be ≥ 0 (0: the default)")
+	if a.BatchSize < 0 || a.BatchSize > MaxBatchSize {
+		c.errf(c.line("processing", "batch_size"), "processing.batch_size", "must be between 0 (the default) and %d events", MaxBatchSize)
 	}
 	if a.BatchSize == 0 {
 		a.BatchSize = DefaultBatchSize
@@ -352,6 +361,16 @@ const DefaultSeed = 1
 
 // DefaultBatchSize is the number of events read and processed at once.
 const DefaultBatchSize = 1 << 14
+
+// Limits on what an analysis file may ask for, checked before any memory
+// is taken for it: every worker holds batches of processing.batch_size
+// events of every column it reads, so both are bounded, and so is the
+// size of the file itself.
+const (
+	MaxBatchSize = 1 << 20
+	MaxWorkers   = 256
+	MaxFileBytes = 16 << 20
+)
 
 type checker struct {
 	file string
