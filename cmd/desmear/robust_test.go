@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/parquet-go/parquet-go"
 )
 
 // checkRefusal checks a refusal through the command: the exit status,
@@ -291,4 +293,32 @@ func TestBoundedMemory(t *testing.T) {
 			t.Errorf("%s: %d MB allocated", c.file, a>>20)
 		}
 	}
+}
+
+// A column the file has but cannot deliver as one number per event is
+// named with the reason, not reported as an unknown column.
+func TestUnreadableColumnNamed(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	type row struct {
+		W    float64   `parquet:"w"`
+		List []float64 `parquet:"list"`
+	}
+	f, err := os.Create(filepath.Join(dir, "nested.parquet"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := parquet.NewGenericWriter[row](f)
+	if _, err := w.Write([]row{{W: 1, List: []float64{1, 2}}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	src, _ := os.ReadFile(path)
+	bad := strings.Replace(strings.Replace(string(src), "file: sim.csv", "file: nested.parquet", 1), "weight: w", "weight: list", 1)
+	os.WriteFile(path, []byte(bad), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
+	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
 }

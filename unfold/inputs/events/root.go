@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"maps"
 	"os"
 	"reflect"
 	"runtime"
@@ -140,6 +141,10 @@ func leafProblem(leaf rtree.Leaf) string {
 
 // Columns returns the names of the scalar numeric branches, in tree order.
 func (r *ROOT) Columns() []string { return r.cols }
+
+// Unreadable implements Unreadable: the branches that are not one
+// number per event, with the reason.
+func (r *ROOT) Unreadable() map[string]string { return maps.Clone(r.bad) }
 
 // Len returns the number of entries of the tree.
 func (r *ROOT) Len() int64 { return r.tree.Entries() }
