@@ -37,6 +37,29 @@ func checkRefusal(t *testing.T, name string, code int, stdout, stderr string, wa
 	}
 }
 
+// variants returns a function writing beside the analysis file at path
+// a copy with old replaced by new, named PREFIXn.yaml for the n-th call,
+// and returning its path.
+func variants(t *testing.T, path, prefix string) func(old, new string) string {
+	t.Helper()
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	return func(old, new string) string {
+		n++
+		if !strings.Contains(string(src), old) {
+			t.Fatalf("%q not in the analysis file", old)
+		}
+		p := filepath.Join(filepath.Dir(path), prefix+strconv.Itoa(n)+".yaml")
+		if err := os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+}
+
 // A saved response whose files changed after it was written is refused,
 // the message naming the file; a version 1 bundle is refused with the
 // advice to build it again.
@@ -109,17 +132,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 func TestSettingsTakenAsWritten(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
-	src, _ := os.ReadFile(path)
-	n := 0
-	bad := func(old, new string) string {
-		n++
-		if !strings.Contains(string(src), old) {
-			t.Fatalf("%q not in the analysis file", old)
-		}
-		p := filepath.Join(dir, "set"+strconv.Itoa(n)+".yaml")
-		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
-		return p
-	}
+	bad := variants(t, path, "set")
 	reco, _ := os.ReadFile(filepath.Join(dir, "reco.yaml"))
 	os.WriteFile(filepath.Join(dir, "reco2.yaml"), append(reco, "---\nregions: []\n"...), 0o644)
 	sim, _ := os.ReadFile(filepath.Join(dir, "sim.csv"))
@@ -154,14 +167,7 @@ func TestSettingsTakenAsWritten(t *testing.T) {
 func TestMessagesSayWhatToFix(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
-	src, _ := os.ReadFile(path)
-	n := 0
-	bad := func(old, new string) string {
-		n++
-		p := filepath.Join(dir, "msg"+strconv.Itoa(n)+".yaml")
-		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
-		return p
-	}
+	bad := variants(t, path, "msg")
 	for _, c := range []struct{ file, want string }{
 		{bad("file: sim.csv", "file: gone.root"), "msg1.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.root") + ": no such file or directory"},
 		{bad("file: sim.csv", "file: gone.parquet"), "msg2.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.parquet") + ": no such file or directory"},
@@ -250,14 +256,7 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 func TestBoundedMemory(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
-	src, _ := os.ReadFile(path)
-	n := 0
-	bad := func(old, new string) string {
-		n++
-		p := filepath.Join(dir, "mem"+strconv.Itoa(n)+".yaml")
-		os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644)
-		return p
-	}
+	bad := variants(t, path, "mem")
 	// One list of 10^4 edges used 10^4 times through an alias: 10^8
 	// edges from a file of a few hundred kilobytes.
 	var alias strings.Builder
