@@ -5,6 +5,7 @@ go 1.26
 require (
 	github.com/james-bowman/sparse v0.0.0-20260216202247-495ee4f84d35
 	github.com/parquet-go/parquet-go v0.32.0
+	github.com/pierrec/xxHash v0.1.5
 	github.com/schollz/progressbar/v3 v3.19.1
 	github.com/spf13/cobra v1.10.2
 	github.com/spf13/pflag v1.0.9
@@ -34,7 +35,6 @@ require (
 	github.com/parquet-go/bitpack v1.0.0 // indirect
 	github.com/parquet-go/jsonlite v1.0.0 // indirect
 	github.com/pierrec/lz4/v4 v4.1.21 // indirect
-	github.com/pierrec/xxHash v0.1.5 // indirect
 	github.com/rivo/uniseg v0.4.7 // indirect
 	github.com/twpayne/go-geom v1.6.1 // indirect
 	github.com/ulikunitz/xz v0.5.12 // indirect

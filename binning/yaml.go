@@ -2,6 +2,7 @@ package binning
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -76,12 +77,21 @@ func ReadFile(path string) (*Scheme, error) {
 // underflow and overflow default to false; each axis has exactly one of
 // edges and edges_by_bin.
 func Decode(r io.Reader, filename string) (*Scheme, error) {
-	data, err := io.ReadAll(r)
+	data, err := io.ReadAll(io.LimitReader(r, MaxFileBytes+1))
 	if err != nil {
 		return nil, fmt.Errorf("binning: reading %s: %w", filename, err)
 	}
-	var doc yaml.Node
-	if err := yaml.Unmarshal(data, &doc); err != nil {
+	if len(data) > MaxFileBytes {
+		return nil, &Error{File: filename, Msg: fmt.Sprintf("larger than %d MiB, the limit for a scheme file; is it a binning file?", MaxFileBytes>>20)}
+	}
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	var doc, extra yaml.Node
+	if err := dec.Decode(&doc); err != nil && !errors.Is(err, io.EOF) {
+		return nil, &Error{File: filename, Line: yamlErrorLine(err), Msg: "not valid YAML: " + err.Error()}
+	}
+	if err := dec.Decode(&extra); err == nil {
+		return nil, &Error{File: filename, Line: extra.Line, Msg: "a second YAML document (---) is not allowed; give one scheme per file"}
+	} else if !errors.Is(err, io.EOF) {
 		return nil, &Error{File: filename, Line: yamlErrorLine(err), Msg: "not valid YAML: " + err.Error()}
 	}
 	return DecodeNode(&doc, filename)
@@ -115,7 +125,21 @@ func yamlErrorLine(err error) int {
 	return 0
 }
 
-type decoder struct{ file string }
+// Limits on what a scheme file may ask for, checked before the memory is
+// taken: the file's size, its regions, and its edges counted every time
+// a list is used (a list reused through a YAML alias counts each time).
+// The bins are limited by MaxBins.
+const (
+	MaxFileBytes = 64 << 20
+	MaxRegions   = 1 << 16
+	MaxEdges     = 1 << 20
+)
+
+type decoder struct {
+	file    string
+	nedges  int                      // edges decoded so far
+	decoded map[*yaml.Node][]float64 // edge lists by node, for aliases
+}
 
 func (d *decoder) errf(n *yaml.Node, field, format string, a ...any) error {
 	return &Error{File: d.file, Line: n.Line, Column: n.Column, Field: field, Msg: fmt.Sprintf(format, a...)}
@@ -203,6 +227,9 @@ func (d *decoder) scheme(n *yaml.Node) (*Scheme, error) {
 	}
 	if rn.Kind != yaml.SequenceNode || len(rn.Content) == 0 {
 		return nil, d.errf(rn, "regions", "expected a non-empty list of regions, found %s", kindName(rn))
+	}
+	if len(rn.Content) > MaxRegions {
+		return nil, d.errf(rn, "regions", "%d regions; at most %d are supported", len(rn.Content), MaxRegions)
 	}
 	regions := make([]*Region, 0, len(rn.Content))
 	names := make(map[string]int)
@@ -371,6 +398,12 @@ func (d *decoder) edges(n *yaml.Node, field string) ([]float64, error) {
 	if len(n.Content) < 2 {
 		return nil, d.errf(n, field, "%d edge(s): an axis needs at least two edges (one bin); an empty axis has no bins", len(n.Content))
 	}
+	if d.nedges += len(n.Content); d.nedges > MaxEdges {
+		return nil, d.errf(n, field, "more than %d edges in the scheme (a list reused through a YAML alias counts each time); at most %d are supported", MaxEdges, MaxEdges)
+	}
+	if e, ok := d.decoded[n]; ok { // a list reused through an alias
+		return slices.Clone(e), nil
+	}
 	e := make([]float64, len(n.Content))
 	for i, c := range n.Content {
 		var v float64
@@ -385,7 +418,11 @@ func (d *decoder) edges(n *yaml.Node, field string) ([]float64, error) {
 		}
 		e[i] = v
 	}
-	return e, nil
+	if d.decoded == nil {
+		d.decoded = map[*yaml.Node][]float64{}
+	}
+	d.decoded[n] = e
+	return slices.Clone(e), nil
 }
 
 // WriteYAML writes the scheme in the format Decode reads, with every edge

@@ -79,15 +79,16 @@ func (e *TooLargeError) Error() string {
 
 // NumericalError reports a numerical failure of a method: a non-finite
 // value during the iteration (with valid inputs, overflow), a singular
-// system, a solve that did not converge. Iteration is the iteration
-// concerned, 0 when the failure is not in an iteration.
+// system, a solve that did not converge, or a non-finite number in the
+// result. Iteration is the iteration concerned, 0 (or −1, for the result)
+// when the failure is not in an iteration.
 type NumericalError struct {
 	Iteration int
 	Reason    string
 }
 
 func (e *NumericalError) Error() string {
-	if e.Iteration == 0 {
+	if e.Iteration <= 0 {
 		return "unfold: " + e.Reason
 	}
 	return fmt.Sprintf("unfold: iteration %d: %s", e.Iteration, e.Reason)

@@ -2,6 +2,8 @@ package unfold
 
 import (
 	"context"
+	"fmt"
+	"math"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -144,5 +146,37 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 	if err := plan.finish(ctx, fit, res); err != nil {
 		return nil, err
 	}
+	if err := res.checkFinite(); err != nil {
+		return nil, err
+	}
 	return res, nil
+}
+
+// checkFinite returns a *NumericalError naming the first quantity and
+// bin of r that is NaN or infinite, or nil.
+func (r *Result) checkFinite() error {
+	for _, q := range []struct {
+		name, bins string
+		x          []float64
+	}{
+		{"estimate", "truth", r.Estimate}, {"efficiency", "truth", r.Efficiency},
+		{"folded spectrum", "reco", r.Folded}, {"uncertainty", "truth", r.Uncertainty},
+	} {
+		for i, v := range q.x {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return &NumericalError{Iteration: -1, Reason: fmt.Sprintf("the %s of %s bin %d is %v (overflow or a degenerate input)", q.name, q.bins, i, v)}
+			}
+		}
+	}
+	if c := r.Covariance; c != nil {
+		n := c.SymmetricDim()
+		for i := range n {
+			for j := i; j < n; j++ {
+				if v := c.At(i, j); math.IsNaN(v) || math.IsInf(v, 0) {
+					return &NumericalError{Iteration: -1, Reason: fmt.Sprintf("the covariance of truth bins %d and %d is %v (overflow or a degenerate input)", i, j, v)}
+				}
+			}
+		}
+	}
+	return nil
 }

@@ -78,20 +78,17 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	if g.quiet {
 		diag = io.Discard
 	}
+	if err := demo.CheckFolder(o.out, o.force); err != nil {
+		return demoFolderErr(err, o.out)
+	}
 	start := time.Now()
 	fmt.Fprintf(diag, "desmear demo: generating %d simulated events and the pseudo-data (seed %d) into %s\n", o.events, o.seed, o.out)
 	in, err := demo.Generate(ctx, o.out, demo.Config{Events: o.events, Seed: o.seed}, o.force)
 	if err != nil {
-		switch {
-		case errors.Is(err, demo.ErrNotDemoFolder):
-			return usageErr(err)
-		case errors.Is(err, fs.ErrExist):
-			return usagef("demo: %s already exists (replace it with --force)", o.out)
-		}
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
-		return ioErr(err)
+		return demoFolderErr(err, o.out)
 	}
 	fmt.Fprintf(diag, "desmear demo: inputs written in %.1f s; running %s\n", time.Since(start).Seconds(), in.Path(demo.AnalysisFile))
 	t1 := time.Now()
@@ -122,6 +119,18 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 		return ioErr(err)
 	}
 	return nil
+}
+
+// demoFolderErr classifies an error of writing the demo folder out: a
+// refused folder is a usage error, anything else an I/O error.
+func demoFolderErr(err error, out string) error {
+	switch {
+	case errors.Is(err, demo.ErrNotDemoFolder):
+		return usageErr(err)
+	case errors.Is(err, fs.ErrExist):
+		return usagef("demo: %s already exists (replace it with --force)", out)
+	}
+	return ioErr(err)
 }
 
 // printDemo prints where the inputs and results are and the table of

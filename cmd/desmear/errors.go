@@ -7,6 +7,7 @@ import (
 	"io"
 	"io/fs"
 	"runtime/debug"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -140,7 +141,10 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		if code == exitInterrupted {
 			fmt.Fprintln(stderr, "desmear: interrupted; no output was written")
 		} else {
-			fmt.Fprintf(stderr, "desmear: %v\n", err)
+			// One line per error (a file with several problems lists
+			// each), every line prefixed.
+			msg := strings.TrimRight(err.Error(), "\n")
+			fmt.Fprintf(stderr, "desmear: %s\n", strings.ReplaceAll(msg, "\n", "\ndesmear: "))
 		}
 	}
 	return code

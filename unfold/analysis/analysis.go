@@ -3,6 +3,7 @@ package analysis
 import (
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -86,6 +87,9 @@ const (
 	DataHistogram
 	// DataTable reads a plain table (reco,value[,variance]).
 	DataTable
+	// DataMissing: the file has no data section. Building the response
+	// needs none; unfolding refuses it (the error of FillData and Run).
+	DataMissing
 )
 
 // Data is the measured input.
@@ -168,9 +172,17 @@ type Output struct {
 // file, the line and the field; problems inside a binning scheme are
 // *binning.Error values.
 func Load(path string) (*Analysis, error) {
-	src, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, &Error{File: path, Msg: fmt.Sprintf("cannot read the analysis file: %v", unwrapPath(err)), Err: err}
+	}
+	defer f.Close()
+	src, err := io.ReadAll(io.LimitReader(f, MaxFileBytes+1))
+	if err != nil {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("cannot read the analysis file: %v", unwrapPath(err)), Err: err}
+	}
+	if len(src) > MaxFileBytes {
+		return nil, &Error{File: path, Msg: fmt.Sprintf("larger than %d MiB, the limit for an analysis file; is it an analysis file?", MaxFileBytes>>20)}
 	}
 	return Decode(src, path)
 }
@@ -304,19 +316,36 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 
 	// Uncertainty.
-	un := doc.Uncertainty
+	un, o := doc.Uncertainty, doc.Output
 	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
 	c.oneOf(&a.Uncertainty.Covariance, unfold.Diagonal.String(), names(unfold.CovarianceModes()), "uncertainty", "covariance")
 	c.oneOf(&a.Uncertainty.Method, unfold.DiagonalAuto.String(), names(unfold.DiagonalMethods()), "uncertainty", "method")
+	// Zero is each of these settings' "not given" value: written out, it
+	// would silently mean the default, so it is refused.
+	for _, z := range []struct {
+		v    float64
+		path []any
+		want string
+	}{
+		{float64(u.Iterations.n) + map[bool]float64{true: 1}[u.Iterations.auto], []any{"unfolding", "iterations"}, "a number of iterations ≥ 1 (or auto)"},
+		{float64(u.MaxIterations), []any{"unfolding", "max_iterations"}, "a bound ≥ 1 on the iterations"},
+		{u.StopChi2, []any{"unfolding", "stop_chi2"}, "a χ² change > 0 at which to stop"},
+		{float64(un.Probes), []any{"uncertainty", "probes"}, "a number of probes ≥ 1"},
+		{float64(un.Toys), []any{"uncertainty", "toys"}, "a number of toys ≥ 1"},
+		{o.Luminosity, []any{"output", "luminosity"}, "a positive integrated luminosity"},
+	} {
+		if z.v == 0 && nodeAt(root, z.path...) != nil && nodeAt(root, z.path...).ShortTag() != "!!null" {
+			c.errf(c.line(z.path...), fieldName(z.path...), "0 is not allowed: give %s, or leave the key out for the default", z.want)
+		}
+	}
 	if len(c.errs) == 0 {
 		c.settings(a)
 	}
 
 	// Output.
-	o := doc.Output
 	a.Output = Output{Formats: o.Formats, Luminosity: o.Luminosity, LuminosityUnit: o.LuminosityUnit}
 	if o.Folder == "" {
 		c.errf(c.line("output"), "result.folder", "missing: name the result folder (relative to the analysis file)")
@@ -336,11 +365,11 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize
-	if a.Workers < 0 {
-		c.errf(c.line("processing", "workers"), "processing.workers", "must be ≥ 0 (0: one per core)")
+	if a.Workers < 0 || a.Workers > MaxWorkers {
+		c.errf(c.line("processing", "workers"), "processing.workers", "must be between 0 (one per core) and %d", MaxWorkers)
 	}
-	if a.BatchSize < 0 {
-		c.errf(c.line("processing", "batch_size"), "processing.batch_size", "must be ≥ 0 (0: the default)")
+	if a.BatchSize < 0 || a.BatchSize > MaxBatchSize {
+		c.errf(c.line("processing", "batch_size"), "processing.batch_size", "must be between 0 (the default) and %d events", MaxBatchSize)
 	}
 	if a.BatchSize == 0 {
 		a.BatchSize = DefaultBatchSize
@@ -361,6 +390,16 @@ const DefaultSeed = 1
 
 // DefaultBatchSize is the number of events read and processed at once.
 const DefaultBatchSize = 1 << 14
+
+// Limits on what an analysis file may ask for, checked before any memory
+// is taken for it: every worker holds batches of processing.batch_size
+// events of every column it reads, so both are bounded, and so is the
+// size of the file itself.
+const (
+	MaxBatchSize = 1 << 20
+	MaxWorkers   = 256
+	MaxFileBytes = 16 << 20
+)
 
 type checker struct {
 	file string
@@ -561,6 +600,9 @@ func (c *checker) levelExprs(field string, n *yaml.Node, scheme *binning.Scheme,
 	return out
 }
 
+// dataChoice says what the data section takes.
+const dataChoice = "give exactly one of events (an events file), histogram (a ROOT file) or table (a plain-table n.csv)"
+
 func (c *checker) data(d dataDoc, a *Analysis) Data {
 	out := Data{Tree: d.Tree, Name: d.Name, Line: c.line("data")}
 	given := 0
@@ -569,8 +611,12 @@ func (c *checker) data(d dataDoc, a *Analysis) Data {
 			given++
 		}
 	}
+	if given == 0 && nodeAt(c.root, "data") == nil {
+		out.Kind = DataMissing
+		return out
+	}
 	if given != 1 {
-		c.errf(out.Line, "data", "give exactly one of events (an events file), histogram (a ROOT file) or table (a plain-table n.csv)")
+		c.errf(out.Line, "data", dataChoice)
 		return out
 	}
 	only := func(keys ...string) {

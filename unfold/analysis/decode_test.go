@@ -116,8 +116,10 @@ func TestDecodeErrors(t *testing.T) {
 		{"  seed: 7", "  seed: 7\n  toys: -3", `testdata/bad.yaml:30: uncertainty.toys: must be at least 2`},
 		{"  folder: out", "  folder: out\n  formats: [json, png]", `testdata/bad.yaml:32: result.formats[1]: unknown format "png" (known: ` + strings.Join(result.Formats(), ", ") + `)`},
 		{"  luminosity: 2.5", "  luminosity: -2.5", `testdata/bad.yaml:32: result.luminosity: must be a positive integrated luminosity`},
-		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  workers: -1", `testdata/bad.yaml:34: processing.workers: must be ≥ 0`},
-		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  batch_size: -1", `testdata/bad.yaml:34: processing.batch_size: must be ≥ 0`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  workers: -1", `testdata/bad.yaml:34: processing.workers: must be between 0 (one per core) and 256`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  workers: 100000", `testdata/bad.yaml:34: processing.workers: must be between 0 (one per core) and 256`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  batch_size: -1", `testdata/bad.yaml:34: processing.batch_size: must be between 0 (the default) and 1048576 events`},
+		{"  luminosity: 2.5", "  luminosity: 2.5\nprocessing:\n  batch_size: 1000000000", `testdata/bad.yaml:34: processing.batch_size: must be between 0 (the default) and 1048576 events`},
 		{"  weight: w\nbackgrounds", "  weight: w\n  name: h\nbackgrounds", `testdata/bad.yaml:20: data.name: does not apply to this kind of data`},
 		{"  events: data.csv", "  events: data.txt", `testdata/bad.yaml:18: data.events: unknown events format of "data.txt"`},
 	}

@@ -325,7 +325,10 @@ func checkNode(es *Errors, file string, n *yaml.Node, t reflect.Type, field stri
 			checkNode(es, file, c, t.Elem(), fmt.Sprintf("%s[%d]", field, i))
 		}
 	default:
-		if n.Kind != yaml.ScalarNode || n.Decode(reflect.New(t).Interface()) != nil {
+		// The YAML library truncates a number into an integer field
+		// (2.5 becomes 2): an integer field takes only an integer.
+		if n.Kind != yaml.ScalarNode || n.Decode(reflect.New(t).Interface()) != nil ||
+			(wantName(t) == "a whole number" && n.ShortTag() != "!!int") {
 			wrong()
 		}
 	}

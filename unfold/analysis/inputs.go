@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"maps"
 	"slices"
 	"strconv"
 	"strings"
@@ -18,11 +19,13 @@ import (
 // the file's columns), then, once all are known, against the columns
 // they use, which are the only ones read.
 type compiler struct {
-	a         *Analysis
-	file      string   // events file, for messages
-	available []string // the file's columns
-	used      []string // columns used, in order of first use
-	pending   []*compiled
+	a          *Analysis
+	file       string            // events file, for messages
+	available  []string          // the file's readable columns
+	unreadable map[string]string // the file's other columns, with the reason
+	names      []string          // both, the names an expression may use
+	used       []string          // columns used, in order of first use
+	pending    []*compiled
 }
 
 type compiled struct {
@@ -31,7 +34,13 @@ type compiled struct {
 }
 
 func newCompiler(a *Analysis, file string, src events.Source) *compiler {
-	return &compiler{a: a, file: file, available: src.Columns()}
+	c := &compiler{a: a, file: file, available: src.Columns()}
+	c.names = c.available
+	if u, ok := src.(events.Unreadable); ok {
+		c.unreadable = u.Unreadable()
+		c.names = append(slices.Clone(c.available), slices.Sorted(maps.Keys(c.unreadable))...)
+	}
+	return c
 }
 
 // add compiles e; it returns nil for an empty expression.
@@ -39,9 +48,14 @@ func (c *compiler) add(e Expression) (response.Expr, error) {
 	if e.Text == "" {
 		return nil, nil
 	}
-	x, err := observable.Compile(e.Text, c.available)
+	x, err := observable.Compile(e.Text, c.names)
 	if err != nil {
 		return nil, c.exprError(e, err)
+	}
+	for _, name := range x.ColumnNames() {
+		if why, bad := c.unreadable[name]; bad {
+			return nil, &Error{File: c.a.File, Line: e.Line, Field: e.Field, Msg: fmt.Sprintf("in %q: %s: column %q cannot be read: %s", e.Text, c.file, name, why)}
+		}
 	}
 	for _, name := range x.ColumnNames() {
 		if !slices.Contains(c.used, name) {

@@ -108,6 +108,9 @@ func (a *Analysis) chooseIterations(ctx context.Context, p *unfold.Problem, s *u
 // problem, without unfolding: what Run unfolds, and what other studies
 // of the same problem start from.
 func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfold.Problem, error) {
+	if a.Data.Kind == DataMissing {
+		return nil, nil, a.missingData()
+	}
 	// Every input is checked here, once, before any event is read.
 	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
 		return nil, nil, err
@@ -218,6 +221,16 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	doc.Analysis = &result.Analysis{File: a.File, Title: a.Title}
 	doc.Purity, doc.Stability = finitePtrs(out.Response.Purity(nil)), finitePtrs(out.Response.Stability(nil))
 	doc.Density, doc.DensityUncertainty = result.Densities(a.Truth, doc.Estimate, doc.Uncertainty, a.Output.Luminosity)
+	for _, q := range []struct {
+		name string
+		x    []float64
+	}{{"density", doc.Density}, {"density uncertainty", doc.DensityUncertainty}} {
+		for j, v := range q.x {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return &unfold.NumericalError{Iteration: -1, Reason: fmt.Sprintf("the %s of truth bin %d (%s) is %v: the estimate ÷ the bin volume ÷ the luminosity %g overflows; give the luminosity in a larger unit", q.name, j, a.Truth.Label(j), v, a.Output.Luminosity)}
+			}
+		}
+	}
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside

@@ -170,7 +170,42 @@ func (a *Analysis) LoadResponse() (*response.Built, *response.BundleInfo, error)
 	if len(differ) > 0 {
 		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: fmt.Sprintf("the saved response %s was built for another %s binning than this file's; rebuild it from the simulation", a.ResponseFile, strings.Join(differ, " and ")), Err: ErrResponseNeeded}
 	}
+	if err := a.sameSimulation(info); err != nil {
+		return nil, nil, err
+	}
 	return r, info, nil
+}
+
+// sameSimulation refuses a saved response that was not built from the
+// simulation files the analysis file lists (when it lists any): the
+// files are compared by their SHA-256 with those the bundle records,
+// so that neither key is silently ignored.
+func (a *Analysis) sameSimulation(info *response.BundleInfo) error {
+	if len(a.Simulation) == 0 {
+		return nil
+	}
+	built := map[string]int{}
+	nbuilt := 0
+	for _, f := range info.Inputs {
+		if f.Role == "simulation" {
+			built[f.SHA256]++
+			nbuilt++
+		}
+	}
+	for _, s := range a.Simulation {
+		f, err := inputs.Hash("simulation", s.File)
+		if err != nil {
+			return &Error{File: a.File, Line: s.Line, Field: s.Field + ".file", Msg: fmt.Sprintf("cannot read the simulation file to compare it with the saved response: %v", unwrapPath(err)), Err: err}
+		}
+		if built[f.SHA256] == 0 {
+			return &Error{File: a.File, Line: s.Line, Field: s.Field + ".file", Msg: fmt.Sprintf("the saved response %s was not built from %s (the file changed, or the response was built from other samples); rebuild it from the simulation", a.ResponseFile, s.File), Err: ErrResponseNeeded}
+		}
+		built[f.SHA256]--
+	}
+	if nbuilt != len(a.Simulation) {
+		return &Error{File: a.File, Line: a.responseLine, Field: "response", Msg: fmt.Sprintf("the saved response %s was built from %d simulation files, this file lists %d; rebuild it from the simulation", a.ResponseFile, nbuilt, len(a.Simulation)), Err: ErrResponseNeeded}
+	}
+	return nil
 }
 
 // eventsErr places an error from reading events.
@@ -300,8 +335,15 @@ func (a *Analysis) FillData(ctx context.Context, opt *Options) (*Measured, error
 		return &Measured{Values: val, Variance: vr}, nil
 	case DataHistogram:
 		return a.readHistogram()
+	case DataMissing:
+		return nil, a.missingData()
 	}
 	return nil, fmt.Errorf("analysis: unknown data kind %d", d.Kind)
+}
+
+// missingData is the error for unfolding without a data section.
+func (a *Analysis) missingData() error {
+	return &Error{File: a.File, Field: "data", Msg: "missing: the unfolding needs the data; " + dataChoice}
 }
 
 // Expected is the expected background in the reco scheme.

@@ -129,11 +129,8 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if cfg.Events == 0 {
 		cfg.Events = DefaultEvents
 	}
-	if base := filepath.Base(filepath.Clean(dir)); dir == "" || base == "." || base == ".." || base == string(filepath.Separator) {
-		return nil, fmt.Errorf("demo: %q cannot be the demo folder (%w); name a folder to create", dir, ErrNotDemoFolder)
-	}
-	if err := atomicfile.Check(dir, ScenarioFile, replace); err != nil {
-		return nil, folderError(err)
+	if err := CheckFolder(dir, replace); err != nil {
+		return nil, err
 	}
 	sim, data, dataTruth, err := generate(ctx, cfg)
 	if err != nil {
@@ -153,6 +150,19 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	}
 	in.Dir = dir
 	return in, nil
+}
+
+// CheckFolder reports whether Generate could write the demo folder at
+// dir with replace, with the error Generate would return, so that a
+// refusal comes before the work of generating.
+func CheckFolder(dir string, replace bool) error {
+	if base := filepath.Base(filepath.Clean(dir)); dir == "" || base == "." || base == ".." || base == string(filepath.Separator) {
+		return fmt.Errorf("demo: %q cannot be the demo folder (%w); name a folder to create", dir, ErrNotDemoFolder)
+	}
+	if err := atomicfile.Check(dir, ScenarioFile, replace); err != nil {
+		return folderError(err)
+	}
+	return nil
 }
 
 // folderError says that a refused folder is the demo folder; a folder

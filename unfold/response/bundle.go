@@ -6,9 +6,11 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/sparse"
@@ -24,17 +26,22 @@ import (
 //	migrations.dsm   the migration matrix with its sums of squared
 //	                 weights, in the sparse package's checksummed file
 //	                 format (sparse.Matrix.WriteTo, sparse.Load)
+//	manifest.sha256  one line "SHA-256  NAME" for each of the two files
+//	                 above, checked when the bundle is loaded
 //
 // It is written atomically: into a hidden temporary sibling folder that
-// is renamed into place.
+// is renamed into place. Version 1 bundles (without a manifest) are
+// refused: they have to be built again.
 const (
-	BundleFormat  = "desmear-response"
-	BundleVersion = 1
-	bundleJSON    = "response.json"
-	bundleMatrix  = "migrations.dsm"
+	BundleFormat   = "desmear-response"
+	BundleVersion  = 2
+	bundleJSON     = "response.json"
+	bundleMatrix   = "migrations.dsm"
+	bundleManifest = "manifest.sha256"
 )
 
-// BundleFiles returns the names of the files of a response bundle.
+// BundleFiles returns the names of the data files of a response bundle
+// (without the manifest, which only holds their sums).
 func BundleFiles() []string { return []string{bundleJSON, bundleMatrix} }
 
 // BundleInfo is the provenance stored with a response bundle.
@@ -123,8 +130,14 @@ func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
 	if err != nil {
 		return err
 	}
-	if _, err := r.Migrations.WriteTo(w); err != nil {
+	mh := sha256.New()
+	if _, err := r.Migrations.WriteTo(io.MultiWriter(w, mh)); err != nil {
 		return fmt.Errorf("%s: %w", filepath.Join(dir, bundleMatrix), err)
+	}
+	js := sha256.Sum256(b)
+	manifest := fmt.Sprintf("%x  %s\n%x  %s\n", js, bundleJSON, mh.Sum(nil), bundleMatrix)
+	if err := f.WriteFile(bundleManifest, []byte(manifest)); err != nil {
+		return err
 	}
 	if err := f.Commit(); err != nil {
 		return fmt.Errorf("response bundle: %w", err)
@@ -145,8 +158,14 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	if err := json.Unmarshal(b, &doc); err != nil {
 		return nil, nil, fmt.Errorf("%s: %v", filepath.Join(dir, bundleJSON), err)
 	}
+	if doc.Format == BundleFormat && doc.Version == 1 {
+		return nil, nil, fmt.Errorf("%s: a bundle of format version 1, which carries no checksums and is no longer read; build the response again", filepath.Join(dir, bundleJSON))
+	}
 	if doc.Format != BundleFormat || doc.Version != BundleVersion {
 		return nil, nil, fmt.Errorf("%s: format %q version %d, want %q version %d", filepath.Join(dir, bundleJSON), doc.Format, doc.Version, BundleFormat, BundleVersion)
+	}
+	if err := checkManifest(dir, b); err != nil {
+		return nil, nil, err
 	}
 	nt, nr := doc.TruthBins, doc.RecoBins
 	bad := len(doc.Generated) != nt || len(doc.GeneratedSumW2) != nt || len(doc.Fakes) != nr || len(doc.FakesSumW2) != nr ||
@@ -155,6 +174,8 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	if bad {
 		return nil, nil, fmt.Errorf("%s: vector lengths do not match %d truth and %d reco bins", filepath.Join(dir, bundleJSON), nt, nr)
 	}
+	// Non-finite numbers: JSON cannot hold them (the decoder refuses
+	// 1e400) and sparse.Load refuses them in the matrix.
 	m, err := sparse.Load(filepath.Join(dir, bundleMatrix))
 	if err != nil {
 		return nil, nil, err
@@ -165,4 +186,46 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	r := &Built{Migrations: m, Generated: doc.Generated, GeneratedSumW2: doc.GeneratedSumW2,
 		Fakes: doc.Fakes, FakesSumW2: doc.FakesSumW2, Diagonal: doc.Diagonal, RecoInTruth: doc.RecoInTruth, Summary: doc.Summary}
 	return r, &doc.Info, nil
+}
+
+// checkManifest compares the SHA-256 sums in the manifest of the bundle
+// at dir with its files (js is the content of response.json, already
+// read). Every file of the bundle must be listed.
+func checkManifest(dir string, js []byte) error {
+	mpath := filepath.Join(dir, bundleManifest)
+	text, err := os.ReadFile(mpath)
+	if errors.Is(err, fs.ErrNotExist) {
+		return fmt.Errorf("%s: missing; the bundle's files cannot be checked, build the response again", mpath)
+	}
+	if err != nil {
+		return err
+	}
+	want := map[string]string{}
+	for i, line := range strings.Split(strings.TrimSuffix(string(text), "\n"), "\n") {
+		sum, name, ok := strings.Cut(line, "  ")
+		if !ok || len(sum) != 2*sha256.Size || (name != bundleJSON && name != bundleMatrix) || want[name] != "" {
+			return fmt.Errorf("%s:%d: not a line \"SHA-256  %s\" or \"SHA-256  %s\"", mpath, i+1, bundleJSON, bundleMatrix)
+		}
+		want[name] = sum
+	}
+	got := map[string]string{bundleJSON: fmt.Sprintf("%x", sha256.Sum256(js))}
+	f, err := os.Open(filepath.Join(dir, bundleMatrix))
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	h := sha256.New()
+	if _, err := io.Copy(h, f); err != nil {
+		return fmt.Errorf("%s: %w", filepath.Join(dir, bundleMatrix), err)
+	}
+	got[bundleMatrix] = fmt.Sprintf("%x", h.Sum(nil))
+	for _, name := range []string{bundleJSON, bundleMatrix} {
+		switch {
+		case want[name] == "":
+			return fmt.Errorf("%s: %s is not listed; build the response again", mpath, name)
+		case want[name] != got[name]:
+			return fmt.Errorf("%s: changed since the bundle was written (its SHA-256 differs from %s); build the response again", filepath.Join(dir, name), bundleManifest)
+		}
+	}
+	return nil
 }

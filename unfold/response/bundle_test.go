@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"slices"
@@ -52,6 +53,16 @@ func TestBundleRoundTrip(t *testing.T) {
 	}
 	if got.Summary.Fakes != r.Summary.Fakes || got.Summary.NegativeCellCount != 1 {
 		t.Errorf("summary %+v", got.Summary)
+	}
+	// A non-finite cell in the matrix file, with a matching manifest, is
+	// refused naming the file.
+	r.Migrations.Values()[0] = math.Inf(1)
+	nan := filepath.Join(t.TempDir(), "nan")
+	if err := r.Save(nan, info, false); err != nil {
+		t.Fatal(err)
+	}
+	if _, _, err := Load(nan); err == nil || !strings.Contains(err.Error(), "migrations.dsm: invalid matrix file: sparse: non-finite value +Inf at (0,0)") {
+		t.Errorf("infinite cell: got %v", err)
 	}
 	// A damaged matrix file is an error, not a panic.
 	p := filepath.Join(dir, bundleMatrix)
@@ -103,23 +114,59 @@ func TestBundleRefusals(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, c := range []struct{ old, new, want string }{
-		{`"truth_bins": 4`, `"truth_bins": "4"`, "response.json: json: cannot unmarshal"},
-		{`"format_version": 1`, `"format_version": 2`, `format "desmear-response" version 2, want "desmear-response" version 1`},
-		{`"reco_bins": 3`, `"reco_bins": 4`, "vector lengths do not match 4 truth and 4 reco bins"},
+	goodManifest, err := os.ReadFile(filepath.Join(dir, bundleManifest))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		old, new, want string
+		resum          bool // write a manifest matching the change
+	}{
+		{`"truth_bins": 4`, `"truth_bins": "4"`, "response.json: json: cannot unmarshal", true},
+		{`"format_version": 2`, `"format_version": 3`, `format "desmear-response" version 3, want "desmear-response" version 2`, true},
+		{`"format_version": 2`, `"format_version": 1`, `format version 1, which carries no checksums and is no longer read; build the response again`, true},
+		{`"reco_bins": 3`, `"reco_bins": 4`, "vector lengths do not match 4 truth and 4 reco bins", true},
+		{`"generated": [`, `"generated": [1e400,`, "response.json: json: cannot unmarshal number 1e400", true},
+		// One changed digit is caught by the manifest, which names the file.
+		{`"reco_bins": 3`, `"reco_bins": 4`, "response.json: changed since the bundle was written", false},
 	} {
 		bad := strings.Replace(string(good), c.old, c.new, 1)
 		if bad == string(good) {
 			t.Fatalf("%q not in response.json", c.old)
 		}
 		os.WriteFile(filepath.Join(dir, bundleJSON), []byte(bad), 0o644)
+		manifest := goodManifest
+		if c.resum {
+			manifest = resummed(t, dir)
+		}
+		os.WriteFile(filepath.Join(dir, bundleManifest), manifest, 0o644)
 		if _, _, err := Load(dir); err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%s → %s: got %v, want %q", c.old, c.new, err, c.want)
 		}
 	}
+	os.WriteFile(filepath.Join(dir, bundleJSON), good, 0o644)
+
+	// A manifest that is missing, damaged or does not list a file.
+	for _, c := range []struct{ manifest, want string }{
+		{"", "manifest.sha256: missing"},
+		{"nonsense\n", "manifest.sha256:1: not a line"},
+		{strings.SplitAfter(string(goodManifest), "\n")[0], "manifest.sha256: migrations.dsm is not listed"},
+	} {
+		p := filepath.Join(dir, bundleManifest)
+		os.Remove(p)
+		if c.manifest != "" {
+			os.WriteFile(p, []byte(c.manifest), 0o644)
+		}
+		if _, _, err := Load(dir); err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("manifest %q: got %v, want %q", c.manifest, err, c.want)
+		}
+	}
+	os.WriteFile(filepath.Join(dir, bundleManifest), goodManifest, 0o644)
+	if _, _, err := Load(dir); err != nil {
+		t.Fatalf("the restored bundle: %v", err)
+	}
 
 	// A matrix of other dimensions than the vectors.
-	os.WriteFile(filepath.Join(dir, bundleJSON), good, 0o644)
 	b2 := NewBuilder(handTruth, handTruth)
 	if _, err := b2.Add(context.Background(), handSimulation(4), nil); err != nil {
 		t.Fatal(err)
@@ -134,6 +181,10 @@ func TestBundleRefusals(t *testing.T) {
 	}
 	m, _ := os.ReadFile(filepath.Join(other, bundleMatrix))
 	os.WriteFile(filepath.Join(dir, bundleMatrix), m, 0o644)
+	if _, _, err := Load(dir); err == nil || !strings.Contains(err.Error(), "migrations.dsm: changed since the bundle was written") {
+		t.Errorf("matrix replaced: got %v", err)
+	}
+	os.WriteFile(filepath.Join(dir, bundleManifest), resummed(t, dir), 0o644)
 	if _, _, err := Load(dir); err == nil || !strings.Contains(err.Error(), "a 4×4 matrix, want 3×4") {
 		t.Errorf("matrix of other size: got %v", err)
 	}
@@ -159,4 +210,19 @@ func TestFingerprint(t *testing.T) {
 	if Fingerprint(s) != Fingerprint(mustScheme(t, fmt.Sprintf(one, ""))) {
 		t.Error("the same scheme decoded twice has two fingerprints")
 	}
+}
+
+// resummed returns a manifest with the SHA-256 (FIPS 180-4) of the
+// bundle's files as they are now.
+func resummed(t *testing.T, dir string) []byte {
+	t.Helper()
+	var out strings.Builder
+	for _, name := range []string{bundleJSON, bundleMatrix} {
+		b, err := os.ReadFile(filepath.Join(dir, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		fmt.Fprintf(&out, "%x  %s\n", sha256.Sum256(b), name)
+	}
+	return []byte(out.String())
 }

@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/desmear/desmear/unfold/internal/eventfile"
@@ -52,6 +53,46 @@ func TestCorrupted(t *testing.T) {
 		t.Logf("%s: %d of 120 reads failed with an error", file, fails)
 		if filepath.Ext(file) == ".parquet" && fails != 120 {
 			t.Errorf("%d of 120 damaged Parquet reads succeeded", 120-fails)
+		}
+	}
+}
+
+// TestCorruptedROOTBasket overwrites 64 bytes at several places inside a
+// ROOT file written with LZ4-compressed baskets: each damaged basket is
+// refused when the file is opened, the error naming the file and the
+// branch (ROOT's LZ4 blocks carry an XXH64 sum of the compressed bytes,
+// common practice of the ROOT file format). The columns repeat values so
+// that the baskets compress (the writer stores incompressible ones as
+// they are, without a checksum).
+func TestCorruptedROOTBasket(t *testing.T) {
+	dir := t.TempDir()
+	names := []string{"a", "b"}
+	cols := [][]float64{make([]float64, 200000), make([]float64, 200000)}
+	for k := range cols[0] {
+		cols[0][k], cols[1][k] = float64(k%10), float64(k/1000)
+	}
+	p := filepath.Join(dir, "c.root")
+	if err := eventfile.WriteROOT(p, "events", names, cols); err != nil {
+		t.Fatal(err)
+	}
+	data, _ := os.ReadFile(p)
+	for _, at := range []float64{0.2, 0.35, 0.5, 0.65, 0.8} {
+		d := append([]byte(nil), data...)
+		o := int(at * float64(len(d)))
+		for i := o; i < o+64; i++ {
+			d[i] ^= 0x5a
+		}
+		q := filepath.Join(dir, fmt.Sprintf("x%v.root", at))
+		os.WriteFile(q, d, 0o644)
+		src, err := Open(q, Options{})
+		if err == nil {
+			err = src.Read(context.Background(), names, 1000, func(*Batch) error { return nil })
+			src.Close()
+			t.Errorf("64 bytes damaged at %d of %d: read without error", o, len(d))
+			continue
+		}
+		if !strings.Contains(err.Error(), q+": branch ") || !strings.Contains(err.Error(), "is damaged (LZ4 block checksum mismatch)") {
+			t.Errorf("64 bytes damaged at %d: %v", o, err)
 		}
 	}
 }

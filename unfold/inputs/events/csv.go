@@ -128,6 +128,10 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		for i, j := range idx {
 			fb := lines.fields[j]
 			v, err := parseCSVFloat(unsafe.String(unsafe.SliceData(fb), len(fb)))
+			if errors.Is(err, strconv.ErrRange) {
+				// Written as a number, it would become ±Inf.
+				return fmt.Errorf("events: %s:%d:%d: column %q: %q is too large for a 64-bit float; give a finite number", c.path, lines.line, lines.starts[j]+1, c.header[j], string(fb))
+			}
 			if err != nil {
 				return fmt.Errorf("events: %s:%d:%d: column %q: %q is not a number", c.path, lines.line, lines.starts[j]+1, c.header[j], string(fb))
 			}
@@ -259,10 +263,6 @@ func parseCSVFloat(s string) (float64, error) {
 		return 1, nil
 	case "false":
 		return 0, nil
-	}
-	var ne *strconv.NumError
-	if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
-		return v, nil // ±Inf or a denormal rounded to 0, as ParseFloat gives
 	}
 	return 0, err
 }

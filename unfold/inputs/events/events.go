@@ -31,6 +31,15 @@ type Source interface {
 	Close() error
 }
 
+// Unreadable is implemented by the sources whose files can hold columns
+// that cannot be read as one number per event (ROOT arrays, strings,
+// vectors; Parquet groups, lists, decimals): Unreadable returns each such
+// column with the reason, so that a request for one is answered with the
+// reason rather than as an unknown column.
+type Unreadable interface {
+	Unreadable() map[string]string
+}
+
 // Batch is a block of consecutive events, column by column.
 type Batch struct {
 	Start int64       // index of the first event of the batch in the file

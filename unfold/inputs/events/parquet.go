@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"maps"
 	"os"
 
 	"github.com/parquet-go/parquet-go"
@@ -79,6 +80,10 @@ func OpenParquet(path string) (*Parquet, error) {
 
 // Columns returns the names of the flat numeric columns, in schema order.
 func (p *Parquet) Columns() []string { return p.cols }
+
+// Unreadable implements Unreadable: the columns that are not one number
+// per event, with the reason.
+func (p *Parquet) Unreadable() map[string]string { return maps.Clone(p.bad) }
 
 // Len returns the number of rows in the file.
 func (p *Parquet) Len() int64 { return p.nrows }

@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"maps"
+	"os"
 	"reflect"
 	"runtime"
 	"slices"
@@ -40,9 +42,19 @@ func OpenROOT(path, treePath string) (src *ROOT, err error) {
 			f.Close()
 		}
 	}()
+	// A file that cannot be opened at all gets the same message as for
+	// the other formats, not the ROOT library's.
+	plain, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	plain.Close()
 	f, err = groot.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
+	}
+	if err := checkROOTBaskets(path); err != nil {
+		return nil, fmt.Errorf("events: %s: %w", path, err)
 	}
 	if treePath == "" {
 		trees := treeNames(f)
@@ -129,6 +141,10 @@ func leafProblem(leaf rtree.Leaf) string {
 
 // Columns returns the names of the scalar numeric branches, in tree order.
 func (r *ROOT) Columns() []string { return r.cols }
+
+// Unreadable implements Unreadable: the branches that are not one
+// number per event, with the reason.
+func (r *ROOT) Unreadable() map[string]string { return maps.Clone(r.bad) }
 
 // Len returns the number of entries of the tree.
 func (r *ROOT) Len() int64 { return r.tree.Entries() }

@@ -9,6 +9,7 @@ import (
 	"go/scanner"
 	"go/token"
 	"math"
+	"regexp"
 	"slices"
 	"strconv"
 	"strings"
@@ -53,6 +54,18 @@ func (e *Error) Error() string {
 	return fmt.Sprintf("expression %q: column %d: %s", e.Expr, e.Column(), e.Msg)
 }
 
+// opHints adds to the refusal of an operator of Go that the language
+// lacks the operator meant, as people write it in other languages.
+var opHints = map[token.Token]string{
+	token.XOR: "; for powers use pow(x, y)",
+	token.AND: "; for a logical and use &&",
+	token.OR:  "; for a logical or use ||",
+}
+
+// wordOps finds the words other languages use as logical operators,
+// named in the hint of a syntax error.
+var wordOps = regexp.MustCompile(`\b(and|or|not)\b`)
+
 // Compile parses src and binds its identifiers to columns, the names of the
 // input columns in the order in which Eval and EvalRow receive them.
 func Compile(src string, columns []string) (*Expr, error) {
@@ -71,7 +84,11 @@ func Compile(src string, columns []string) (*Expr, error) {
 	if err != nil {
 		var el scanner.ErrorList
 		if errors.As(err, &el) && len(el) > 0 {
-			return nil, &Error{Expr: src, Offset: el[0].Pos.Offset, Msg: "syntax error: " + el[0].Msg}
+			msg := "syntax error: " + el[0].Msg
+			if w := wordOps.FindString(src); w != "" {
+				msg += fmt.Sprintf("; %q is not an operator: write && for and, || for or, ! for not", w)
+			}
+			return nil, &Error{Expr: src, Offset: el[0].Pos.Offset, Msg: msg}
 		}
 		return nil, &Error{Expr: src, Msg: "syntax error: " + err.Error()}
 	}
@@ -383,10 +400,7 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 	case *ast.BinaryExpr:
 		op, ok := binops[x.Op]
 		if !ok {
-			hint := ""
-			if x.Op == token.XOR {
-				hint = "; for powers use pow(x, y)"
-			}
+			hint := opHints[x.Op]
 			return nil, c.errf(x.OpPos, "operator %s is not supported%s", x.Op, hint)
 		}
 		a, err := c.term(x.X)
@@ -441,6 +455,9 @@ func (c *compiler) term(x ast.Expr) (*term, error) {
 	case *ast.IndexExpr, *ast.IndexListExpr, *ast.SliceExpr:
 		return nil, c.errf(x.Pos(), "indexing is not supported")
 	case *ast.StarExpr:
+		if o := c.fset.Position(x.Pos()).Offset; o > 0 && c.src[o-1] == '*' {
+			return nil, c.errf(x.Pos()-1, "operator ** is not supported; for powers use pow(x, y)")
+		}
 		return nil, c.errf(x.Pos(), "unexpected *: a product needs two operands")
 	case *ast.BadExpr:
 		return nil, c.errf(x.Pos(), "syntax error")

@@ -309,6 +309,14 @@ func TestErrors(t *testing.T) {
 		{"(px + py", "", "syntax error"},
 		{"px ^ 2", "^", "operator ^ is not supported; for powers use pow(x, y)"},
 		{"px << 2", "<<", "operator << is not supported"},
+		// Operators of other languages get the one meant (common practice:
+		// Python's and/or/not and **, C's bitwise & and |).
+		{"px ** 2", "**", "operator ** is not supported; for powers use pow(x, y)"},
+		{"px > 1 & py < 2", "&", "operator & is not supported; for a logical and use &&"},
+		{"px > 1 | py < 2", "|", "operator | is not supported; for a logical or use ||"},
+		{"px > 1 and py < 2", "and", `"and" is not an operator: write && for and, || for or, ! for not`},
+		{"px > 1 or py < 2", "or", `"or" is not an operator`},
+		{"not px", "px", `"not" is not an operator`},
 		{`px + "a"`, `"a"`, "string literals are not supported"},
 		{"jet.pt > 1", "jet", "selectors"},
 		{"px[0]", "px", "indexing is not supported"},

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"os"
 	"strings"
 
 	"go-hep.org/x/hep/groot"
@@ -279,6 +280,13 @@ func openFile(path string) (f *riofs.File, err error) {
 			f, err = nil, fmt.Errorf("rootio: %s: damaged ROOT file: %v", path, p)
 		}
 	}()
+	// A file that cannot be opened at all: the operating system's
+	// message, as for every other input, not the ROOT library's.
+	plain, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("rootio: %w", err)
+	}
+	plain.Close()
 	f, err = groot.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("rootio: %s: cannot open as a ROOT file: %w", path, err)

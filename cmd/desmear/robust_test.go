@@ -1,0 +1,323 @@
+package main
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strconv"
+	"strings"
+	"testing"
+
+	"github.com/parquet-go/parquet-go"
+)
+
+// checkRefusal checks a refusal through the command: the exit status,
+// one line on standard error prefixed "desmear:" holding want, no stack
+// trace, nothing on standard output and no folder left at out.
+func checkRefusal(t *testing.T, name string, code int, stdout, stderr string, wantCode int, want, out string) {
+	t.Helper()
+	line := strings.TrimSuffix(stderr, "\n")
+	switch {
+	case code != wantCode:
+		t.Errorf("%s: exit %d, want %d (stderr %q)", name, code, wantCode, stderr)
+	case !strings.Contains(line, want):
+		t.Errorf("%s: stderr %q, want %q", name, stderr, want)
+	case strings.Contains(line, "\n") || !strings.HasPrefix(line, "desmear: "):
+		t.Errorf("%s: stderr is not one line prefixed \"desmear: \": %q", name, stderr)
+	case strings.Contains(stderr, "goroutine "):
+		t.Errorf("%s: a stack trace: %q", name, stderr)
+	case stdout != "":
+		t.Errorf("%s: stdout %q", name, stdout)
+	}
+	if out != "" {
+		if _, err := os.Stat(out); err == nil {
+			t.Errorf("%s: %s was left behind", name, out)
+		}
+	}
+}
+
+// variants returns a function writing beside the analysis file at path
+// a copy with old replaced by new, named PREFIXn.yaml for the n-th call,
+// and returning its path.
+func variants(t *testing.T, path, prefix string) func(old, new string) string {
+	t.Helper()
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	return func(old, new string) string {
+		n++
+		if !strings.Contains(string(src), old) {
+			t.Fatalf("%q not in the analysis file", old)
+		}
+		p := filepath.Join(filepath.Dir(path), prefix+strconv.Itoa(n)+".yaml")
+		if err := os.WriteFile(p, []byte(strings.Replace(string(src), old, new, 1)), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+}
+
+// A saved response whose files changed after it was written is refused,
+// the message naming the file; a version 1 bundle is refused with the
+// advice to build it again.
+func TestSavedResponseIntegrity(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	os.WriteFile(path, []byte(strings.Replace(string(src), "simulation:", "response: saved\nsimulation:", 1)), 0o644)
+	if code, _, stderr := runCLI(t, context.Background(), "response", path); code != 0 {
+		t.Fatalf("desmear response: exit %d, %s", code, stderr)
+	}
+	saved := filepath.Join(dir, "saved")
+	files := map[string][]byte{}
+	for _, name := range []string{"response.json", "migrations.dsm", "manifest.sha256"} {
+		b, err := os.ReadFile(filepath.Join(saved, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		files[name] = b
+	}
+	for _, c := range []struct {
+		name, file string
+		change     func([]byte) []byte
+		want       string
+	}{
+		{"an added digit", "response.json", func(b []byte) []byte {
+			return []byte(strings.Replace(string(b), `"truth_bins": `, `"truth_bins": 9`, 1))
+		}, "response.json: changed since the bundle was written"},
+		{"a flipped byte", "migrations.dsm", func(b []byte) []byte { b[len(b)/2] ^= 1; return b }, "migrations.dsm: changed since the bundle was written"},
+		{"no manifest", "manifest.sha256", nil, "manifest.sha256: missing"},
+		{"version 1", "response.json", func(b []byte) []byte {
+			return []byte(strings.Replace(string(b), `"format_version": 2`, `"format_version": 1`, 1))
+		}, "format version 1, which carries no checksums and is no longer read; build the response again"},
+	} {
+		p := filepath.Join(saved, c.file)
+		if c.change == nil {
+			os.Remove(p)
+		} else {
+			b := c.change(append([]byte(nil), files[c.file]...))
+			if string(b) == string(files[c.file]) {
+				t.Fatalf("%s: no change made", c.name)
+			}
+			os.WriteFile(p, b, 0o644)
+		}
+		code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+		checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
+		os.WriteFile(p, files[c.file], 0o644)
+	}
+	if code, _, stderr := runCLI(t, context.Background(), "unfold", path); code != 0 {
+		t.Errorf("the restored bundle: exit %d, %s", code, stderr)
+	}
+	os.RemoveAll(filepath.Join(dir, "result"))
+	// With both response and simulation, a simulation that is not the
+	// one the response was built from is refused, not ignored.
+	sim := filepath.Join(dir, "sim.csv")
+	b, _ := os.ReadFile(sim)
+	os.WriteFile(sim, append(b, b[strings.IndexByte(string(b), '\n')+1:]...), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "another simulation", code, stdout, stderr, exitInput, "analysis.yaml:15: simulation[0].file: the saved response "+saved+" was not built from "+sim, filepath.Join(dir, "result"))
+	if !strings.Contains(stderr, "desmear response") {
+		t.Errorf("another simulation: no advice to rebuild: %q", stderr)
+	}
+}
+
+// Every setting is taken as written or refused: numbers that are not
+// whole for integer keys, an explicit 0 that would mean the default, a
+// second YAML document, a number too large for a float64 in an events
+// file. Each refusal is one line naming the file and line, exit 3, and
+// no result folder.
+func TestSettingsTakenAsWritten(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	bad := variants(t, path, "set")
+	reco, _ := os.ReadFile(filepath.Join(dir, "reco.yaml"))
+	os.WriteFile(filepath.Join(dir, "reco2.yaml"), append(reco, "---\nregions: []\n"...), 0o644)
+	sim, _ := os.ReadFile(filepath.Join(dir, "sim.csv"))
+	lines := strings.SplitN(string(sim), "\n", 3)
+	fields := strings.Split(lines[1], ",")
+	fields[3] = "1e400"
+	lines[1] = strings.Join(fields, ",")
+	os.WriteFile(filepath.Join(dir, "huge.csv"), []byte(strings.Join(lines, "\n")), 0o644)
+	for _, c := range []struct {
+		cmd, file, want string
+	}{
+		{"unfold", bad("iterations: 3", "iterations: 2.5"), "set1.yaml:26: unfolding.iterations: value 2.5 is a number, want a whole number"},
+		{"unfold", bad("covariance: full", "covariance: full\n  probes: 0"), "set2.yaml:29: uncertainty.probes: 0 is not allowed"},
+		{"unfold", bad("folder: result", "folder: result\n  luminosity: 0"), "set3.yaml:31: output.luminosity: 0 is not allowed"},
+		{"unfold", bad("iterations: 3", "iterations: 0"), "set4.yaml:26: unfolding.iterations: 0 is not allowed"},
+		{"unfold", bad("output:\n", "processing:\n  workers: 1.5\noutput:\n"), "set5.yaml:30: processing.workers: value 1.5 is a number, want a whole number"},
+		{"unfold", bad("reco: reco.yaml", "reco: reco2.yaml"), "reco2.yaml:6: a second YAML document (---) is not allowed"},
+		{"unfold", bad("folder: result\n", "folder: result\n---\ntitle: another\n"), "set7.yaml:31: a second YAML document (---) is not allowed"},
+		{"response", bad("file: sim.csv", "file: huge.csv"), `huge.csv:2:` + strconv.Itoa(len(strings.Join(fields[:3], ","))+2) + `: column "pt_r": "1e400" is too large for a 64-bit float`},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), c.cmd, c.file)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
+	}
+	if _, err := os.Stat(filepath.Join(dir, "response")); err == nil {
+		t.Error("a response folder was left behind")
+	}
+}
+
+// Messages say what to fix, the same way for every input format: a
+// missing events file, whatever its format, and the operators of other
+// languages in expressions.
+func TestMessagesSayWhatToFix(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	bad := variants(t, path, "msg")
+	for _, c := range []struct{ file, want string }{
+		{bad("file: sim.csv", "file: gone.root"), "msg1.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.root") + ": no such file or directory"},
+		{bad("file: sim.csv", "file: gone.parquet"), "msg2.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.parquet") + ": no such file or directory"},
+		{bad("file: sim.csv", "file: gone.csv"), "msg3.yaml:14: simulation[0].file: cannot open the events file: events: open " + filepath.Join(dir, "gone.csv") + ": no such file or directory"},
+		{bad("pass_r && pt_r", "pass_r and pt_r"), `"and" is not an operator: write && for and`},
+		{bad("pass_r && pt_r", "pass_r & pt_r"), "for a logical and use &&"},
+		{bad("weight: w", "weight: w ** 2"), "operator ** is not supported; for powers use pow(x, y)"},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), "response", c.file)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "response"))
+	}
+}
+
+// A demo run over an existing folder is refused before anything is
+// generated (no "generating" line), and the folder is left as it was.
+func TestDemoRefusesFolderFirst(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "demo")
+	os.Mkdir(out, 0o755)
+	notes := filepath.Join(out, "notes.txt")
+	os.WriteFile(notes, []byte("keep"), 0o644)
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"demo", "--out", out}, "demo: " + out + " already exists (replace it with --force)"},
+		{[]string{"demo", "--out", out, "--force"}, "so it is left alone"},
+	} {
+		code, stdout, stderr := runCLI(t, context.Background(), c.args...)
+		checkRefusal(t, strings.Join(c.args, " "), code, stdout, stderr, exitUsage, c.want, "")
+		if b, err := os.ReadFile(notes); err != nil || string(b) != "keep" {
+			t.Errorf("%v: the existing folder changed", c.args)
+		}
+	}
+}
+
+// desmear response does not need the data section it never uses; the
+// unfolding refuses its absence, naming the key.
+func TestResponseWithoutData(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	src, _ := os.ReadFile(path)
+	if !strings.Contains(string(src), "data:\n  table: n.csv\n") {
+		t.Fatal("no data section to remove")
+	}
+	os.WriteFile(path, []byte(strings.Replace(string(src), "data:\n  table: n.csv\n", "", 1)), 0o644)
+	if code, _, stderr := runCLI(t, context.Background(), "response", path, "--out", filepath.Join(dir, "resp")); code != 0 {
+		t.Fatalf("desmear response without data: exit %d, %s", code, stderr)
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "unfold without data", code, stdout, stderr, exitInput, path+": data: missing: the unfolding needs the data", filepath.Join(dir, "result"))
+}
+
+// Non-finite results are numerical failures (exit 4) naming the
+// quantity and the bin, not errors of writing the result.
+func TestNonFiniteResultIsNumerical(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	os.WriteFile(path, []byte(strings.Replace(string(src), "folder: result", "folder: result\n  luminosity: 1e-320", 1)), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	checkRefusal(t, "tiny luminosity", code, stdout, stderr, exitNumerical, "unfold: numerical failure: the density of truth bin 0 (", filepath.Join(filepath.Dir(path), "result"))
+}
+
+// An analysis file with several problems lists each on its own line,
+// every line prefixed "desmear: ".
+func TestEveryErrorLinePrefixed(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	bad := strings.Replace(strings.Replace(string(src), "iterations: 3", "iterations: 2.5", 1), "covariance: full", "covariance: full\n  probes: 1.5", 1)
+	os.WriteFile(path, []byte(bad), 0o644)
+	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	lines := strings.Split(strings.TrimSuffix(stderr, "\n"), "\n")
+	if code != exitInput || len(lines) != 2 {
+		t.Fatalf("exit %d, stderr %q: want exit 3 and two lines", code, stderr)
+	}
+	for i, want := range []string{"unfolding.iterations: value 2.5", "uncertainty.probes: value 1.5"} {
+		if !strings.HasPrefix(lines[i], "desmear: ") || !strings.Contains(lines[i], want) {
+			t.Errorf("line %d: %q, want the prefix and %q", i+1, lines[i], want)
+		}
+	}
+}
+
+// Sizes a file can ask for are bounded and checked before the memory is
+// taken: each refusal names the key (or the file) and the limit, and the
+// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
+// upper bound of the peak heap).
+func TestBoundedMemory(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	bad := variants(t, path, "mem")
+	// One list of 10^4 edges used 10^4 times through an alias: 10^8
+	// edges from a file of a few hundred kilobytes.
+	var alias strings.Builder
+	alias.WriteString("regions:\n  - name: r\n    axes:\n      - name: y\n        edges: &e [")
+	for i := range 10000 {
+		if i > 0 {
+			alias.WriteString(", ")
+		}
+		alias.WriteString(strconv.Itoa(i))
+	}
+	alias.WriteString("]\n      - name: pt\n        edges_by_bin: [")
+	for i := range 9999 {
+		if i > 0 {
+			alias.WriteString(", ")
+		}
+		alias.WriteString("*e")
+	}
+	alias.WriteString("]\n")
+	os.WriteFile(filepath.Join(dir, "alias.yaml"), []byte(alias.String()), 0o644)
+	for _, c := range []struct{ file, want string }{
+		{bad("output:\n", "processing:\n  batch_size: 1000000000\noutput:\n"), "mem1.yaml:30: processing.batch_size: must be between 0 (the default) and 1048576 events"},
+		{bad("output:\n", "processing:\n  workers: 100000\noutput:\n"), "mem2.yaml:30: processing.workers: must be between 0 (one per core) and 256"},
+		{bad("reco: reco.yaml", "reco: /dev/zero"), "/dev/zero: larger than 64 MiB, the limit for a scheme file"},
+		{bad("reco: reco.yaml", "reco: alias.yaml"), "alias.yaml:5:16: regions[0].axes[1].edges_by_bin[103]: more than 1048576 edges in the scheme (a list reused through a YAML alias counts each time)"},
+		{"/dev/zero", "/dev/zero: larger than 16 MiB, the limit for an analysis file"},
+	} {
+		var before, after runtime.MemStats
+		runtime.ReadMemStats(&before)
+		code, stdout, stderr := runCLI(t, context.Background(), "unfold", c.file)
+		runtime.ReadMemStats(&after)
+		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
+		if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
+			t.Errorf("%s: %d MB allocated", c.file, a>>20)
+		}
+	}
+}
+
+// A column the file has but cannot deliver as one number per event is
+// named with the reason, not reported as an unknown column.
+func TestUnreadableColumnNamed(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	type row struct {
+		W    float64   `parquet:"w"`
+		List []float64 `parquet:"list"`
+	}
+	f, err := os.Create(filepath.Join(dir, "nested.parquet"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := parquet.NewGenericWriter[row](f)
+	if _, err := w.Write([]row{{W: 1, List: []float64{1, 2}}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	src, _ := os.ReadFile(path)
+	bad := strings.Replace(strings.Replace(string(src), "file: sim.csv", "file: nested.parquet", 1), "weight: w", "weight: list", 1)
+	os.WriteFile(path, []byte(bad), 0o644)
+	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
+	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
+}
