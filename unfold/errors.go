@@ -88,7 +88,10 @@ type NumericalError struct {
 }
 
 func (e *NumericalError) Error() string {
-	if e.Iteration <= 0 {
+	if e.Iteration < 0 {
+		return "unfold: numerical failure: " + e.Reason
+	}
+	if e.Iteration == 0 {
 		return "unfold: " + e.Reason
 	}
 	return fmt.Sprintf("unfold: iteration %d: %s", e.Iteration, e.Reason)
