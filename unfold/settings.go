@@ -89,70 +89,91 @@ func DiagonalMethods() []DiagonalMethod {
 	return []DiagonalMethod{DiagonalAuto, DiagonalExact, DiagonalProbes, DiagonalToys}
 }
 
-func enumName(names []string, v int, typ string) string {
-	if v >= 0 && v < len(names) {
-		return names[v]
-	}
-	return fmt.Sprintf("%s(%d)", typ, v)
+// Enum holds the text names of an enumeration of settings, in the
+// order of its values: the one implementation of String, MarshalText
+// and UnmarshalText for the common settings' enumerations and for every
+// method's own.
+type Enum struct {
+	Pkg   string   // the package that owns the type, prefixed to errors ("unfold")
+	Type  string   // the Go type, for a value out of range ("CovarianceMode")
+	What  string   // what a value is, for a name not known ("covariance mode")
+	Names []string // Names[v] is the text name of value v
 }
 
-func enumParse(names []string, text []byte, typ string) (int, error) {
-	for i, n := range names {
+// Name returns the text name of v, or Type(v) when v is out of range.
+func (e Enum) Name(v int) string {
+	if v >= 0 && v < len(e.Names) {
+		return e.Names[v]
+	}
+	return fmt.Sprintf("%s(%d)", e.Type, v)
+}
+
+// Text returns the text name of v; a value out of range is an error.
+func (e Enum) Text(v int) ([]byte, error) {
+	if v >= 0 && v < len(e.Names) {
+		return []byte(e.Names[v]), nil
+	}
+	return nil, fmt.Errorf("%s: invalid %s(%d)", e.Pkg, e.Type, v)
+}
+
+// Parse returns the value named text; an unknown name is an error
+// listing the names.
+func (e Enum) Parse(text []byte) (int, error) {
+	for i, n := range e.Names {
 		if string(text) == n {
 			return i, nil
 		}
 	}
-	return 0, fmt.Errorf("unfold: unknown %s %q (want %s)", typ, text, strings.Join(names, ", "))
+	return 0, fmt.Errorf("%s: unknown %s %q (want %s)", e.Pkg, e.What, text, strings.Join(e.Names, ", "))
 }
 
-func enumText(names []string, v int, typ string) ([]byte, error) {
-	if v >= 0 && v < len(names) {
-		return []byte(names[v]), nil
-	}
-	return nil, fmt.Errorf("unfold: invalid %s(%d)", typ, v)
-}
+var (
+	backgroundEnum = Enum{"unfold", "BackgroundMode", "background mode", backgroundNames}
+	covarianceEnum = Enum{"unfold", "CovarianceMode", "covariance mode", covarianceNames}
+	diagonalEnum   = Enum{"unfold", "DiagonalMethod", "diagonal method", diagonalNames}
+)
 
 // String returns the text name ("model" or "subtract").
-func (m BackgroundMode) String() string { return enumName(backgroundNames, int(m), "BackgroundMode") }
+func (m BackgroundMode) String() string { return backgroundEnum.Name(int(m)) }
 
 // MarshalText returns the text name.
 func (m BackgroundMode) MarshalText() ([]byte, error) {
-	return enumText(backgroundNames, int(m), "BackgroundMode")
+	return backgroundEnum.Text(int(m))
 }
 
 // UnmarshalText sets m from its text name.
 func (m *BackgroundMode) UnmarshalText(text []byte) error {
-	v, err := enumParse(backgroundNames, text, "background mode")
+	v, err := backgroundEnum.Parse(text)
 	*m = BackgroundMode(v)
 	return err
 }
 
 // String returns the text name ("none", "diag" or "full").
-func (m CovarianceMode) String() string { return enumName(covarianceNames, int(m), "CovarianceMode") }
+func (m CovarianceMode) String() string { return covarianceEnum.Name(int(m)) }
 
 // MarshalText returns the text name.
 func (m CovarianceMode) MarshalText() ([]byte, error) {
-	return enumText(covarianceNames, int(m), "CovarianceMode")
+	return covarianceEnum.Text(int(m))
 }
 
 // UnmarshalText sets m from its text name.
 func (m *CovarianceMode) UnmarshalText(text []byte) error {
-	v, err := enumParse(covarianceNames, text, "covariance mode")
+	v, err := covarianceEnum.Parse(text)
 	*m = CovarianceMode(v)
 	return err
 }
 
 // String returns the text name ("auto", "exact", "probes" or "toys").
-func (m DiagonalMethod) String() string { return enumName(diagonalNames, int(m), "DiagonalMethod") }
+func (m DiagonalMethod) String() string { return diagonalEnum.Name(int(m)) }
 
 // MarshalText returns the text name.
 func (m DiagonalMethod) MarshalText() ([]byte, error) {
-	return enumText(diagonalNames, int(m), "DiagonalMethod")
+	return diagonalEnum.Text(int(m))
 }
 
 // UnmarshalText sets m from its text name.
 func (m *DiagonalMethod) UnmarshalText(text []byte) error {
-	v, err := enumParse(diagonalNames, text, "diagonal method")
+	v, err := diagonalEnum.Parse(text)
 	*m = DiagonalMethod(v)
 	return err
 }

@@ -1,9 +1,7 @@
 package tikhonov
 
 import (
-	"fmt"
 	"math"
-	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -98,64 +96,48 @@ func Penalties() []Penalty { return []Penalty{Curvature, Slope} }
 // Biases returns the bias choices in order.
 func Biases() []Bias { return []Bias{NoBias, PriorBias} }
 
-func name(names []string, v int, typ string) string {
-	if v >= 0 && v < len(names) {
-		return names[v]
-	}
-	return fmt.Sprintf("%s(%d)", typ, v)
-}
-
-func text(names []string, v int, typ string) ([]byte, error) {
-	if v >= 0 && v < len(names) {
-		return []byte(names[v]), nil
-	}
-	return nil, fmt.Errorf("tikhonov: invalid %s(%d)", typ, v)
-}
-
-func parse(names []string, b []byte, what string) (int, error) {
-	for i, n := range names {
-		if string(b) == n {
-			return i, nil
-		}
-	}
-	return 0, fmt.Errorf("tikhonov: unknown %s %q (want %s)", what, b, strings.Join(names, ", "))
-}
+var (
+	criterionEnum = unfold.Enum{Pkg: "tikhonov", Type: "Criterion", What: "tau criterion", Names: criterionNames}
+	penaltyEnum   = unfold.Enum{Pkg: "tikhonov", Type: "Penalty", What: "penalty", Names: penaltyNames}
+	biasEnum      = unfold.Enum{Pkg: "tikhonov", Type: "Bias", What: "bias", Names: biasNames}
+	solverEnum    = unfold.Enum{Pkg: "tikhonov", Type: "Solver", What: "solver", Names: solverNames}
+)
 
 // String returns the text name ("lcurve" or "correlation").
-func (c Criterion) String() string { return name(criterionNames, int(c), "Criterion") }
+func (c Criterion) String() string { return criterionEnum.Name(int(c)) }
 
 // MarshalText returns the text name.
-func (c Criterion) MarshalText() ([]byte, error) { return text(criterionNames, int(c), "Criterion") }
+func (c Criterion) MarshalText() ([]byte, error) { return criterionEnum.Text(int(c)) }
 
 // UnmarshalText sets c from its text name.
 func (c *Criterion) UnmarshalText(b []byte) error {
-	v, err := parse(criterionNames, b, "tau criterion")
+	v, err := criterionEnum.Parse(b)
 	*c = Criterion(v)
 	return err
 }
 
 // String returns the text name ("curvature" or "slope").
-func (p Penalty) String() string { return name(penaltyNames, int(p), "Penalty") }
+func (p Penalty) String() string { return penaltyEnum.Name(int(p)) }
 
 // MarshalText returns the text name.
-func (p Penalty) MarshalText() ([]byte, error) { return text(penaltyNames, int(p), "Penalty") }
+func (p Penalty) MarshalText() ([]byte, error) { return penaltyEnum.Text(int(p)) }
 
 // UnmarshalText sets p from its text name.
 func (p *Penalty) UnmarshalText(b []byte) error {
-	v, err := parse(penaltyNames, b, "penalty")
+	v, err := penaltyEnum.Parse(b)
 	*p = Penalty(v)
 	return err
 }
 
 // String returns the text name ("zero" or "prior").
-func (b Bias) String() string { return name(biasNames, int(b), "Bias") }
+func (b Bias) String() string { return biasEnum.Name(int(b)) }
 
 // MarshalText returns the text name.
-func (b Bias) MarshalText() ([]byte, error) { return text(biasNames, int(b), "Bias") }
+func (b Bias) MarshalText() ([]byte, error) { return biasEnum.Text(int(b)) }
 
 // UnmarshalText sets b from its text name.
 func (b *Bias) UnmarshalText(t []byte) error {
-	v, err := parse(biasNames, t, "bias")
+	v, err := biasEnum.Parse(t)
 	*b = Bias(v)
 	return err
 }
@@ -252,4 +234,4 @@ func (s *Settings) check() (Settings, error) {
 }
 
 // String returns the text name ("auto", "dense" or "cg").
-func (s Solver) String() string { return name(solverNames, int(s), "Solver") }
+func (s Solver) String() string { return solverEnum.Name(int(s)) }
