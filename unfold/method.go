@@ -28,12 +28,17 @@ type Result struct {
 	// negative and was set to zero (Subtract mode only).
 	Clipped []int
 
-	// Uncertainty is the square root of the variance of each estimate
-	// (nil without an uncertainty computation; 0 where not determined).
+	// Uncertainty is the square root of the total variance of each
+	// estimate, summed over Sources (nil without an uncertainty
+	// computation; 0 where not determined).
 	Uncertainty []float64
-	// Covariance is the full linearised covariance (Full only).
+	// Covariance is the total covariance, the sum of the sources'
+	// covariances (Full only, and only when every source has one).
 	Covariance *mat.SymDense
-	// UncertaintyMethod names the method that produced Uncertainty:
+	// Sources is the breakdown of the uncertainty by source, the data's
+	// statistics (SourceData) first; AddSource keeps the totals above.
+	Sources []Source
+	// UncertaintyMethod names the method that produced the data source:
 	// "linearised" (exact first order), "linearised-probes" or
 	// "poisson-toys"; empty without an uncertainty computation.
 	UncertaintyMethod string

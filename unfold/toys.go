@@ -67,9 +67,7 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 		sl.n = make([]float64, m.nr)
 		sl.run = fit.NewToyRunner()
 	}
-	mean := make([]float64, m.nt)
-	m2 := make([]float64, m.nt)
-	count := 0
+	ens := NewEnsemble(m.nt, false)
 	for t0 := 0; t0 < toys; t0 += workers {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -84,16 +82,8 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 			if err := slots[w].err; err != nil {
 				return nil, err
 			}
-			count++
-			for j, x := range slots[w].est {
-				d := x - mean[j]
-				mean[j] += d / float64(count)
-				m2[j] += d * (x - mean[j])
-			}
+			ens.Add(slots[w].est)
 		}
 	}
-	for j := range m2 {
-		m2[j] /= float64(count - 1)
-	}
-	return m2, nil
+	return ens.Variances(nil), nil
 }

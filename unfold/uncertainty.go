@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"math"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // plan is the uncertainty computation chosen for a problem.
@@ -90,6 +92,7 @@ func (pl *plan) columnVariances() []float64 {
 func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	m := pl.m
 	var variance []float64
+	var cov *mat.SymDense
 	switch {
 	case pl.method == NoCovariance:
 		return nil
@@ -99,11 +102,11 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 			return err
 		}
 		if pl.method == Full {
-			cov, err := jc.covariance(ctx, pl.columnVariances())
+			c, err := jc.covariance(ctx, pl.columnVariances())
 			if err != nil {
 				return err
 			}
-			res.Covariance = cov
+			cov = c
 			variance = make([]float64, m.nt)
 			for j := range variance {
 				variance[j] = cov.At(j, j)
@@ -139,11 +142,12 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		res.Samples = pl.rs.Toys
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))
 	}
-	res.Uncertainty = make([]float64, m.nt)
-	for j, v := range variance {
-		if m.det[j] && v > 0 {
-			res.Uncertainty[j] = math.Sqrt(v)
+	for j := range variance {
+		if !m.det[j] || variance[j] < 0 {
+			variance[j] = 0
 		}
 	}
+	res.AddSource(Source{Name: SourceData, Method: res.UncertaintyMethod, Variance: variance, Covariance: cov,
+		Precision: res.UncertaintyPrecision, Samples: res.Samples})
 	return nil
 }

@@ -5,6 +5,8 @@ import (
 	"math"
 	"slices"
 
+	"gonum.org/v1/gonum/mat"
+
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
@@ -47,8 +49,8 @@ type Result struct {
 
 	// Estimate is the unfolded expected count per truth bin.
 	Estimate []float64 `json:"estimate"`
-	// Uncertainty is the square root of the data-statistical variance
-	// of each estimate; absent with covariance "none".
+	// Uncertainty is the square root of the total variance of each
+	// estimate, summed over Sources; absent with covariance "none".
 	Uncertainty []float64 `json:"uncertainty,omitempty"`
 	// UncertaintyMethod is "linearised" (exact first-order propagation
 	// through every iteration), "linearised-probes" (the same, estimated
@@ -59,9 +61,14 @@ type Result struct {
 	// number of probes or toys.
 	UncertaintyPrecision float64 `json:"uncertainty_precision,omitempty"`
 	UncertaintySamples   int     `json:"uncertainty_samples,omitempty"`
-	// Covariance is the full data-statistical covariance as an array of
-	// rows; only with covariance "full".
+	// Covariance is the total covariance (the sum of the sources'
+	// covariances) as an array of rows; only with covariance "full".
 	Covariance [][]float64 `json:"covariance,omitempty"`
+	// Sources is the breakdown of the uncertainty by source: "data" (the
+	// data's statistics, described by the uncertainty fields above),
+	// "simulation" (the statistics of the simulation behind the
+	// response) and one entry per systematic variation.
+	Sources []Source `json:"sources,omitempty"`
 	// Determined flags the truth bins the response can measure
 	// (efficiency > 0).
 	Determined []bool `json:"determined"`
@@ -138,6 +145,18 @@ type Result struct {
 	DataEvents   int64 `json:"data_events,omitempty"`
 	DataSelected int64 `json:"data_selected,omitempty"`
 	DataOutside  int64 `json:"data_outside,omitempty"`
+}
+
+// Source is one contribution to the uncertainty (see unfold.Source):
+// its name, how it was obtained, its uncertainty per truth bin and, with
+// covariance "full" when it was computed, its covariance.
+type Source struct {
+	Name        string      `json:"name"`
+	Method      string      `json:"method"`
+	Uncertainty []float64   `json:"uncertainty"`
+	Covariance  [][]float64 `json:"covariance,omitempty"`
+	Precision   float64     `json:"precision,omitempty"`
+	Samples     int         `json:"samples,omitempty"`
 }
 
 // Tikhonov is the outcome of the Tikhonov method: the tau used and how
@@ -389,24 +408,55 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 			}
 		}
 	}
-	if res.Covariance != nil {
-		r.Covariance = make([][]float64, nt)
-		for i := range r.Covariance {
-			row := make([]float64, nt)
-			if r.Determined[i] {
-				for j := range row {
-					if r.Determined[j] {
-						row[j] = res.Covariance.At(i, j)
-					}
-				}
+	r.Covariance = denseRows(res.Covariance, r.Determined)
+	for _, src := range res.Sources {
+		s := Source{Name: src.Name, Method: src.Method, Uncertainty: make([]float64, nt),
+			Covariance: denseRows(src.Covariance, r.Determined), Precision: src.Precision, Samples: src.Samples}
+		for j, v := range src.Variance {
+			if r.Determined[j] && v > 0 {
+				s.Uncertainty[j] = math.Sqrt(v)
 			}
-			r.Covariance[i] = row
 		}
+		r.Sources = append(r.Sources, s)
 	}
 	if err := r.checkFinite(); err != nil {
 		return nil, err
 	}
 	return r, nil
+}
+
+// denseRows returns c as an array of rows with the rows and columns of
+// bins not determined set to 0, or nil for a nil c.
+func denseRows(c *mat.SymDense, determined []bool) [][]float64 {
+	if c == nil {
+		return nil
+	}
+	nt := c.SymmetricDim()
+	rows := make([][]float64, nt)
+	for i := range rows {
+		row := make([]float64, nt)
+		if determined[i] {
+			for j := range row {
+				if determined[j] {
+					row[j] = c.At(i, j)
+				}
+			}
+		}
+		rows[i] = row
+	}
+	return rows
+}
+
+// finiteRows returns an error naming the first NaN or infinity of rows.
+func finiteRows(name string, rows [][]float64) error {
+	for i, row := range rows {
+		for j, v := range row {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("result: %s[%d][%d] is %v", name, i, j, v)
+			}
+		}
+	}
+	return nil
 }
 
 // checkFinite returns an error naming the first NaN or infinity.
@@ -424,11 +474,17 @@ func (r *Result) checkFinite() error {
 			}
 		}
 	}
-	for i, row := range r.Covariance {
-		for j, v := range row {
+	if err := finiteRows("covariance", r.Covariance); err != nil {
+		return err
+	}
+	for _, src := range r.Sources {
+		for i, v := range src.Uncertainty {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return fmt.Errorf("result: covariance[%d][%d] is %v", i, j, v)
+				return fmt.Errorf("result: the uncertainty[%d] of source %q is %v", i, src.Name, v)
 			}
+		}
+		if err := finiteRows(fmt.Sprintf("the covariance of source %q", src.Name), src.Covariance); err != nil {
+			return err
 		}
 	}
 	for _, s := range r.History {
