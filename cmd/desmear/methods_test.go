@@ -25,6 +25,12 @@ var (
 // index (method.md §13 Tikhonov regularisation), solved with gonum's LU.
 func regularised(t *testing.T, tau float64) []float64 {
 	t.Helper()
+	return regularisedWith(t, tau, mat.NewDense(1, 3, []float64{1, -2, 1}))
+}
+
+// regularisedWith is regularised with the penalty rows l.
+func regularisedWith(t *testing.T, tau float64, l *mat.Dense) []float64 {
+	t.Helper()
 	w := make([]float64, 4)
 	for i, n := range oracleDN {
 		w[i] = 1 / n
@@ -32,7 +38,6 @@ func regularised(t *testing.T, tau float64) []float64 {
 	var wr, m mat.Dense
 	wr.Mul(mat.NewDiagDense(4, w), oracleDR)
 	m.Mul(oracleDR.T(), &wr)
-	l := mat.NewDense(1, 3, []float64{1, -2, 1})
 	var ltl mat.Dense
 	ltl.Mul(l.T(), l)
 	ltl.Scale(tau*tau, &ltl)
@@ -80,6 +85,26 @@ func TestUnfoldTikhonovFixedTau(t *testing.T) {
 	}
 	if !strings.Contains(stdout, "with tikhonov, tau = 0.01 (fixed)") {
 		t.Errorf("summary:\n%s", stdout)
+	}
+}
+
+// --penalty slope penalises first differences (rows x_{j+1} − x_j; §13):
+// the estimate equals gonum's solve of those normal equations, and the
+// penalty is recorded.
+func TestUnfoldTikhonovSlope(t *testing.T) {
+	code, _, stderr, out := methodRun(t, "--method", "tikhonov", "--tau", "0.5", "--penalty", "slope")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	r, _ := readResult(t, out)
+	want := regularisedWith(t, 0.5, mat.NewDense(2, 3, []float64{-1, 1, 0, 0, -1, 1}))
+	for j, x := range want {
+		if math.Abs(r.Estimate[j]-x) > 1e-9*x {
+			t.Errorf("estimate[%d] = %v, want %v", j, r.Estimate[j], x)
+		}
+	}
+	if r.Tikhonov.Penalty != "slope" || r.Tikhonov.Bias != "zero" || r.Tikhonov.PenaltyRows != 2 {
+		t.Errorf("tikhonov %+v", r.Tikhonov)
 	}
 }
 
@@ -146,6 +171,10 @@ func TestMethodFlagsRefused(t *testing.T) {
 		{[]string{"--method", "inversion", "--tau-criterion", "correlation"}, "--tau-criterion applies only to --method tikhonov"},
 		{[]string{"--method", "tikhonov", "--tau", "1", "--tau-criterion", "lcurve"}, "give either --tau (a fixed tau) or --tau-criterion"},
 		{[]string{"--method", "tikhonov", "--tau", "0"}, "--tau 0: give a tau > 0"},
+		{[]string{"--penalty", "slope"}, "--penalty applies only to --method tikhonov (the method is dagostini)"},
+		{[]string{"--bias", "prior"}, "--bias applies only to --method tikhonov"},
+		{[]string{"--method", "tikhonov", "--penalty", "wiggle"}, "wiggle"},
+		{[]string{"--method", "tikhonov", "--divide-by-widths"}, "--divide-by-widths needs --truth-binning"},
 	} {
 		code, _, stderr, _ := methodRun(t, c.args...)
 		if code != exitUsage || !strings.Contains(stderr, c.want) {

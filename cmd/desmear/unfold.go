@@ -45,6 +45,9 @@ type unfoldOptions struct {
 	smooth        float64
 	tau           float64
 	tauCriterion  tikhonov.Criterion
+	penalty       tikhonov.Penalty
+	widths        bool
+	bias          tikhonov.Bias
 	covariance    unfold.CovarianceMode
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
@@ -154,6 +157,11 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 	f.Float64Var(&o.tau, "tau", 0, "with --method tikhonov: a fixed regularisation strength `X` > 0 (default: chosen by --tau-criterion)")
 	f.Var(flagval.NewEnum(&o.tauCriterion, tikhonov.LCurve, tikhonov.Criteria()),
 		"tau-criterion", "with --method tikhonov: how tau is chosen from a scan: lcurve (maximum curvature of the L-curve) or correlation (minimum average global correlation)")
+	f.Var(flagval.NewEnum(&o.penalty, tikhonov.Curvature, tikhonov.Penalties()),
+		"penalty", "with --method tikhonov: the derivative penalised along each axis of the truth binning (along the truth index without one): curvature (second differences) or slope (first differences)")
+	f.BoolVar(&o.widths, "divide-by-widths", false, "with --method tikhonov: penalise the densities (estimate / bin volume) with differences divided by the distances of the bin centres (needs --truth-binning)")
+	f.Var(flagval.NewEnum(&o.bias, tikhonov.NoBias, tikhonov.Biases()),
+		"bias", "with --method tikhonov: the spectrum the penalty pulls towards: zero, or prior (the prior scaled to the data, the iterative method's starting point)")
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()),
 		"background-mode", "model: the background stays in the folded expectation (estimates stay non-negative); subtract: data minus background is unfolded (negative differences set to 0)")
 	f.Float64Var(&o.smooth, "smooth", 0, "smooth the estimate between iterations with strength `W` in (0,1] along each axis of the truth binning, within regions (needs --truth-binning; default: no smoothing)")
@@ -248,6 +256,8 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--tau %v: give a tau > 0 (or leave it out to choose tau with --tau-criterion)", o.tau)
 	case changed("tau") && changed("tau-criterion"):
 		return usagef("give either --tau (a fixed tau) or --tau-criterion (to choose it), not both")
+	case o.widths && o.truthBinning == "":
+		return usagef("--divide-by-widths needs --truth-binning (the widths are those of the truth bins)")
 	case changed("background-mode") && o.background == "":
 		return usagef("--background-mode needs --background")
 	case changed("diagonal-method") && o.covariance != unfold.Diagonal:
@@ -309,6 +319,9 @@ var settingFlags = map[string]string{
 	"Smoothing":      "smooth",
 	"Tau":            "tau",
 	"Criterion":      "tau-criterion",
+	"Penalty":        "penalty",
+	"Widths":         "divide-by-widths",
+	"Bias":           "bias",
 	"Background":     "background-mode",
 	"Covariance":     "covariance",
 	"DiagonalMethod": "diagonal-method",
@@ -356,7 +369,7 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 		}
 		return s, m
 	case tikhonov.Name:
-		return s, &tikhonov.Settings{Tau: o.tau, Criterion: o.tauCriterion, Truth: truth}
+		return s, &tikhonov.Settings{Tau: o.tau, Criterion: o.tauCriterion, Penalty: o.penalty, Widths: o.widths, Bias: o.bias, Truth: truth}
 	case inversion.Name:
 		return s, &inversion.Settings{}
 	case binbybin.Name:

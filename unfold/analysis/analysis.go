@@ -140,6 +140,12 @@ type Unfolding struct {
 	// TauCriterion, "lcurve" or "correlation"; "" means the default).
 	Tau          float64
 	TauCriterion string
+	// Penalty ("curvature" or "slope"), Widths (divide by the bin widths)
+	// and Bias ("zero" or "prior") are the Tikhonov method's penalty
+	// ("" means the default).
+	Penalty string
+	Widths  bool
+	Bias    string
 	// Background is "model" (inside the folded expectation) or
 	// "subtract" (from the data first).
 	Background string
@@ -277,7 +283,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	// Unfolding.
 	u := doc.Unfolding
 	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations.n, AutoIterations: u.Iterations.auto, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
-		Prior: u.Prior, Smoothing: u.Smoothing, Tau: u.Tau, TauCriterion: u.TauCriterion, Background: u.Background, Fakes: u.Fakes}
+		Prior: u.Prior, Smoothing: u.Smoothing, Tau: u.Tau, TauCriterion: u.TauCriterion,
+		Penalty: u.Penalty, Widths: u.Widths, Bias: u.Bias, Background: u.Background, Fakes: u.Fakes}
 	if u.Iterations.auto && u.StopChi2 != 0 {
 		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "give either iterations (a number or auto) or stop_chi2, not both")
 	}
@@ -416,6 +423,9 @@ var settingKeys = map[string][]any{
 	"Smoothing":      {"unfolding", "smoothing"},
 	"Tau":            {"unfolding", "tau"},
 	"Criterion":      {"unfolding", "tau_criterion"},
+	"Penalty":        {"unfolding", "penalty"},
+	"Widths":         {"unfolding", "divide_by_widths"},
+	"Bias":           {"unfolding", "bias"},
 	"Background":     {"unfolding", "background"},
 	"MemoryLimit":    {"unfolding", "memory_limit_gib"},
 	"Covariance":     {"uncertainty", "covariance"},

@@ -72,6 +72,10 @@ func TestDecodeErrors(t *testing.T) {
 		{"  iterations: 3", "  method: tikhonov\n  tau: -1", `testdata/bad.yaml:27: unfolding.tau: must be a tau > 0`},
 		{"  iterations: 3", "  method: tikhonov\n  tau: 1\n  tau_criterion: lcurve", `testdata/bad.yaml:27: unfolding.tau: give either tau (a fixed tau) or tau_criterion`},
 		{"  iterations: 3", "  method: tikhonov\n  tau_criterion: best", `testdata/bad.yaml:27: unfolding.tau_criterion: tikhonov: unknown tau criterion "best" (want lcurve, correlation)`},
+		{"  iterations: 3", "  method: tikhonov\n  penalty: wiggle", `testdata/bad.yaml:27: unfolding.penalty: tikhonov: unknown penalty "wiggle" (want curvature, slope)`},
+		{"  iterations: 3", "  method: tikhonov\n  bias: data", `testdata/bad.yaml:27: unfolding.bias: tikhonov: unknown bias "data" (want zero, prior)`},
+		{"  iterations: 3", "  method: tikhonov\n  divide_by_widths: 2", `testdata/bad.yaml:27: unfolding.divide_by_widths:`},
+		{"  iterations: 3", "  penalty: slope", `testdata/bad.yaml:26: unfolding.penalty: applies only to method tikhonov (unfolding.method is dagostini)`},
 		{"  iterations: 3", "  method: bin-by-bin", `testdata/bad.yaml:26: unfolding.method: bin-by-bin needs the same truth and reco binning`},
 		{"title: test analysis", "titel: x", `testdata/bad.yaml:1: titel: unknown key in the top level`},
 		{"    weight: w\n    truth_selection", "    wieght: w\n    truth_selection", `testdata/bad.yaml:14: wieght: unknown key in a simulation sample`},
@@ -242,6 +246,7 @@ func TestMethodSettings(t *testing.T) {
 	for _, c := range []struct{ text, name string }{
 		{"  method: tikhonov\n  tau_criterion: correlation", tikhonov.Name},
 		{"  method: tikhonov\n  tau: 0.25", tikhonov.Name},
+		{"  method: tikhonov\n  penalty: slope\n  divide_by_widths: true\n  bias: prior", tikhonov.Name},
 		{"  method: inversion", "inversion"},
 	} {
 		a, err := Decode([]byte(strings.Replace(goodText(t), "  iterations: 3", c.text, 1)), "testdata/good.yaml")
@@ -253,8 +258,11 @@ func TestMethodSettings(t *testing.T) {
 			t.Fatalf("%q: method %v, %v", c.text, m, err)
 		}
 		if tk, ok := m.(*tikhonov.Settings); ok {
-			if tk.Truth != a.Truth || (tk.Tau == 0) != (tk.Criterion == tikhonov.Correlation) {
+			if tk.Truth != a.Truth || (tk.Tau == 0) != (tk.Criterion == tikhonov.Correlation || strings.Contains(c.text, "penalty")) {
 				t.Errorf("%q: settings %+v", c.text, tk)
+			}
+			if strings.Contains(c.text, "penalty") && (tk.Penalty != tikhonov.Slope || !tk.Widths || tk.Bias != tikhonov.PriorBias) {
+				t.Errorf("%q: penalty settings %+v", c.text, tk)
 			}
 		}
 	}

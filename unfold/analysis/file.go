@@ -120,6 +120,9 @@ type unfoldingDoc struct {
 	Smoothing     float64       `yaml:"smoothing"`
 	Tau           float64       `yaml:"tau"`
 	TauCriterion  string        `yaml:"tau_criterion"`
+	Penalty       string        `yaml:"penalty"`
+	Widths        bool          `yaml:"divide_by_widths"`
+	Bias          string        `yaml:"bias"`
 	Background    string        `yaml:"background"`
 	Fakes         string        `yaml:"fakes"`
 	MemoryLimit   float64       `yaml:"memory_limit_gib"`

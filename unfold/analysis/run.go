@@ -430,6 +430,18 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
 	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	// names are the settings given by name in the file: the field, its
+	// value to set and the text.
+	type named struct {
+		field string
+		v     encoding.TextUnmarshaler
+		text  string
+	}
+	names := []named{
+		{"Background", &s.Background, u.Background},
+		{"Covariance", &s.Covariance, un.Covariance},
+		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+	}
 	var m unfold.Method
 	switch u.Method {
 	case bayes.Name, "":
@@ -439,27 +451,15 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 		}
 		m = b
 	case tikhonov.Name:
-		t := &tikhonov.Settings{Tau: u.Tau, Truth: a.Truth}
-		if u.TauCriterion != "" {
-			if err := t.Criterion.UnmarshalText([]byte(u.TauCriterion)); err != nil {
-				return nil, nil, &unfold.SettingsError{Field: "Criterion", Reason: err.Error()}
-			}
-		}
+		t := &tikhonov.Settings{Tau: u.Tau, Widths: u.Widths, Truth: a.Truth}
+		names = append(names, named{"Criterion", &t.Criterion, u.TauCriterion}, named{"Penalty", &t.Penalty, u.Penalty}, named{"Bias", &t.Bias, u.Bias})
 		m = t
 	case inversion.Name:
 		m = &inversion.Settings{}
 	case binbybin.Name:
 		m = &binbybin.Settings{}
 	}
-	for _, e := range []struct {
-		field string
-		v     encoding.TextUnmarshaler
-		text  string
-	}{
-		{"Background", &s.Background, u.Background},
-		{"Covariance", &s.Covariance, un.Covariance},
-		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
-	} {
+	for _, e := range names {
 		if e.text == "" {
 			continue
 		}

@@ -30,6 +30,9 @@ var own = map[string]string{
 	"Smoothing":     bayes.Name,
 	"Tau":           tikhonov.Name,
 	"Criterion":     tikhonov.Name,
+	"Penalty":       tikhonov.Name,
+	"Widths":        tikhonov.Name,
+	"Bias":          tikhonov.Name,
 }
 
 // Owner returns the method whose own setting the field is, or "" for a
