@@ -16,8 +16,21 @@ import (
 // non-zeros per column, Poisson-like data; no uncertainty. See
 // BENCHMARKS.md.
 func BenchmarkLCurve100k(b *testing.B) {
-	x, _ := binning.NewAxis("x", "", edges(400), false, false)
-	y, _ := binning.NewAxis("y", "", edges(250), false, false)
+	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 400, 250, false) })
+}
+
+// BenchmarkLCurve25k is the same on a 200 × 125 grid, with the
+// incomplete Cholesky preconditioner and with the diagonal one.
+func BenchmarkLCurve25k(b *testing.B) {
+	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 200, 125, false) })
+	b.Run("jacobi", func(b *testing.B) { benchLCurve(b, 200, 125, true) })
+}
+
+func benchLCurve(b *testing.B, nx, ny int, jacobi bool) {
+	defer func(v bool) { jacobiOnly = v }(jacobiOnly)
+	jacobiOnly = jacobi
+	x, _ := binning.NewAxis("x", "", edges(nx), false, false)
+	y, _ := binning.NewAxis("y", "", edges(ny), false, false)
 	r, _ := binning.NewRegion("grid", x, y)
 	s, err := binning.NewScheme(r)
 	if err != nil {

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"sync"
 
 	"github.com/desmear/desmear/unfold"
 )
@@ -21,6 +22,39 @@ type engine struct {
 	sy      *system
 	dn      *dense // nil: conjugate gradients
 	nominal *cg    // the first solver handed out, whose solve is the nominal one
+	// warm is the scan's solution at the chosen tau, the start of the
+	// nominal solve (conjugate gradients without a bias only; nil if
+	// the scan's solutions were too large to keep).
+	warm []float64
+
+	// The conjugate gradients' preconditioner: the explicit normal
+	// matrix (formed once) and its incomplete factor at the last tau.
+	nmOnce sync.Once
+	nm     *normalMatrix
+	mu     sync.Mutex
+	icTau  float64
+	icSet  bool
+	ic     *ichol
+}
+
+// jacobiOnly switches the incomplete Cholesky preconditioner off (the
+// benchmarks compare the two).
+var jacobiOnly = false
+
+// preconditioner returns the incomplete Cholesky factor at tau (nil if
+// none exists), factorising when tau differs from the last one. Solvers
+// at one tau share it (it is read only).
+func (e *engine) preconditioner(tau float64) *ichol {
+	e.nmOnce.Do(func() { e.nm = newNormalMatrix(e.sy) })
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	if !e.icSet || e.icTau != tau {
+		e.ic, e.icTau, e.icSet = nil, tau, true
+		if !jacobiOnly {
+			e.ic = newIchol(e.nm, tau)
+		}
+	}
+	return e.ic
 }
 
 func newEngine(sy *system, useDense bool) *engine {
@@ -54,6 +88,7 @@ func (e *engine) solve(ctx context.Context, c *cg, x, b []float64, tau float64, 
 	if e.dn != nil {
 		return true, e.dn.solve(x, b)
 	}
+	c.pc = e.preconditioner(tau)
 	ok, err := c.solve(ctx, x, b, tau)
 	if err == nil && !ok && strict {
 		err = errNotConverged(c, tau)
@@ -63,23 +98,32 @@ func (e *engine) solve(ctx context.Context, c *cg, x, b []float64, tau float64, 
 
 // solver is K y = (Rᵀ W R + τ² Lᵀ L)⁻¹ Rᵀ W y, an unfold.Solver.
 type solver struct {
-	e   *engine
-	c   *cg
-	tau float64
-	b   []float64
+	e    *engine
+	c    *cg
+	tau  float64
+	b    []float64
+	warm []float64 // the start of the first solve (nil: zero)
 }
 
 func (e *engine) solver(tau float64) unfold.Solver {
 	s := &solver{e: e, c: newCG(e.sy), tau: tau, b: make([]float64, e.sy.nt)}
 	if e.nominal == nil {
 		e.nominal = s.c
+		s.warm = e.warm
 	}
 	return s
 }
 
+// Solve sets dst = K y. The first solve of the nominal solver starts
+// from the scan's solution at its tau (the conjugate gradients stop at
+// the same tolerance from any start); every other solve from zero.
 func (s *solver) Solve(ctx context.Context, dst, y []float64) error {
 	s.c.rhs(s.b, y, 0)
 	clear(dst)
+	if s.warm != nil {
+		copy(dst, s.warm)
+		s.warm = nil
+	}
 	_, err := s.e.solve(ctx, s.c, dst, s.b, s.tau, true)
 	return err
 }
@@ -166,6 +210,9 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	// The normal matrix is best conditioned at small tau (it is then
 	// close to Rᵀ V⁻¹ R), and its conditioning worsens as τ² Lᵀ L takes
 	// over, so the hard solves start from the nearest solution.
+	// The solutions are kept (when small) to start the nominal solve.
+	var xs [][]float64
+	keep := e.dn == nil && e.sy.x0 == nil && int64(nt)*int64(len(taus))*8 <= warmBytes
 	for k := range taus {
 		tau := taus[k]
 		if err := e.prepare(tau); err != nil {
@@ -185,6 +232,9 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 			pt.Correlation = gc.average(tau)
 		}
 		d.Scan[k] = pt
+		if keep {
+			xs = append(xs, slices.Clone(x))
+		}
 	}
 	usable := curvatures(d.Scan)
 	best := -1
@@ -217,8 +267,14 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 		d.AtScanEdge = best == first || best == last
 	}
 	d.Tau = d.Scan[best].Tau
+	if keep {
+		e.warm = xs[best]
+	}
 	return nil
 }
+
+// warmBytes bounds the memory of the scan's kept solutions.
+const warmBytes = 64 << 20
 
 // curvatures sets the signed curvature of the L-curve
 // (log10 |residual|, log10 |penalty|) parametrised by t = log10 tau at

@@ -73,6 +73,7 @@ type cg struct {
 	sy                *system
 	r, z, d, q, tmp   []float64 // truth-sized
 	inv               []float64 // the inverse diagonal (Jacobi), 0 outside the fit
+	pc                *ichol    // the incomplete Cholesky preconditioner at the solve's tau; nil: Jacobi
 	fold, wf          []float64 // reco-sized
 	lx                []float64 // one per penalty row
 	rhsBuf            []float64
@@ -108,8 +109,23 @@ func dot(a, b []float64) float64 {
 	return s
 }
 
+// precondition sets z to the incomplete Cholesky preconditioner applied
+// to r, when there is one (z holds the Jacobi one otherwise).
+func (c *cg) precondition() {
+	if c.pc == nil {
+		return
+	}
+	c.pc.apply(c.z, c.r)
+	for j, v := range c.inv {
+		if v == 0 {
+			c.z[j] = 0
+		}
+	}
+}
+
 // solve solves the normal equations for right-hand side b into x by
-// conjugate gradients preconditioned with the diagonal (Jacobi),
+// conjugate gradients preconditioned with c.pc (incomplete Cholesky) or,
+// without it, with the diagonal (Jacobi),
 // starting from the value x holds (a warm start; zero it for none).
 // It stops when |r| ≤ tol |b| and reports whether it did within the
 // iteration bound. All sums run serially in bin order: the bits do not
@@ -141,6 +157,7 @@ func (c *cg) solve(ctx context.Context, x, b []float64, tau float64) (bool, erro
 		}
 		c.z[j] = inv[j] * c.r[j]
 	}
+	c.precondition()
 	copy(c.d, c.z)
 	rz := dot(c.r, c.z)
 	for k := 1; k <= sy.maxK; k++ {
@@ -170,6 +187,7 @@ func (c *cg) solve(ctx context.Context, x, b []float64, tau float64) (bool, erro
 			c.r[j] -= alpha * c.q[j]
 			c.z[j] = inv[j] * c.r[j]
 		}
+		c.precondition()
 		rz1 := dot(c.r, c.z)
 		beta := rz1 / rz
 		rz = rz1
