@@ -78,7 +78,11 @@ func printBench(w io.Writer, r *bench.Results) error {
 	fmt.Fprintf(tw, "problem\t%s: %d truth × %d reco bins, %d non-zeros, %d cores, %d rounds, %s\n", r.Size, r.TruthBins, r.RecoBins, r.NonZeros, r.Cores, r.Rounds, r.Date)
 	fmt.Fprintf(tw, "triad bandwidth\t%.1f GB/s\n", r.TriadGBs)
 	fmt.Fprintf(tw, "bare sweep\t%.3f ms\t%.2fx the bandwidth floor\n", r.SweepMS, r.SweepFloorRatio)
-	fmt.Fprintf(tw, "marginal iteration\t%.3f ms\t%.2fx the bandwidth floor, %.2fx the sweep\n", r.IterationMS, r.IterationFloorRatio, r.IterationSweepRatio)
+	bound := ""
+	if r.IterationEstimate == "upper-bound" {
+		bound = " (an upper bound: the noise of this run swamped the difference)"
+	}
+	fmt.Fprintf(tw, "marginal iteration\t%.3f ms\t%.2fx the bandwidth floor, %.2fx the sweep%s\n", r.IterationMS, r.IterationFloorRatio, r.IterationSweepRatio, bound)
 	fmt.Fprintf(tw, "one more unfolding of a prepared problem\t%.3f ms\t%d iterations; fixed cost %.3f ms\n", r.PreparedMS, r.Iterations, r.UnfoldingFixedMS)
 	fmt.Fprintf(tw, "whole unfolding\t%.3f ms\t%d iterations\n", r.UnfoldingMS, r.Iterations)
 	fmt.Fprintf(tw, "per-bin variances from probes\t%.3f s\t%d probes, whole unfolding\n", r.ProbesS, r.Probes)
