@@ -175,6 +175,9 @@ type Tikhonov struct {
 	ResidualNorm float64    `json:"residual_norm"`
 	PenaltyNorm  float64    `json:"penalty_norm"`
 	Scan         []TauPoint `json:"tau_scan,omitempty"`
+	// CorrelationSample is the number of truth bins over which the
+	// average global correlation was estimated (absent: exact).
+	CorrelationSample int `json:"correlation_sample,omitempty"`
 }
 
 // TauPoint is one point of the scan of tau.
@@ -184,8 +187,11 @@ type TauPoint struct {
 	PenaltyNorm  float64 `json:"penalty_norm"`
 	Curvature    float64 `json:"curvature"`
 	Correlation  float64 `json:"average_global_correlation,omitempty"`
-	Converged    bool    `json:"converged"`
-	CGIterations int     `json:"cg_iterations,omitempty"`
+	// CorrelationError is the standard error of an estimated Correlation
+	// (see Tikhonov.CorrelationSample).
+	CorrelationError float64 `json:"correlation_error,omitempty"`
+	Converged        bool    `json:"converged"`
+	CGIterations     int     `json:"cg_iterations,omitempty"`
 }
 
 // Inversion is the outcome of the inversion: the condition number of
@@ -384,9 +390,9 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		}
 	case *tikhonov.Details:
 		r.Tikhonov = &Tikhonov{Tau: d.Tau, Criterion: d.Criterion, AtScanEdge: d.AtScanEdge, Penalty: d.Penalty, Widths: d.Widths, Bias: d.Bias,
-			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm}
+			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm, CorrelationSample: d.CorrelationSample}
 		for _, p := range d.Scan {
-			r.Tikhonov.Scan = append(r.Tikhonov.Scan, TauPoint{Tau: p.Tau, ResidualNorm: p.ResidualNorm, PenaltyNorm: p.PenaltyNorm, Curvature: p.Curvature, Correlation: p.Correlation, Converged: p.Converged, CGIterations: p.Iterations})
+			r.Tikhonov.Scan = append(r.Tikhonov.Scan, TauPoint{Tau: p.Tau, ResidualNorm: p.ResidualNorm, PenaltyNorm: p.PenaltyNorm, Curvature: p.Curvature, Correlation: p.Correlation, CorrelationError: p.CorrelationError, Converged: p.Converged, CGIterations: p.Iterations})
 		}
 	case *inversion.Details:
 		r.Inversion = &Inversion{Condition: d.Condition}

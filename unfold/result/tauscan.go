@@ -28,20 +28,24 @@ func init() {
 // increasing order: tau, residual_norm, penalty_norm, curvature (of the
 // L-curve; 0 where not defined), average_global_correlation (empty
 // unless the correlation criterion was used), converged, cg_iterations
-// (0 for the dense solve) and chosen
-// (true on the row of the tau used).
+// (0 for the dense solve), chosen (true on the row of the tau used)
+// and correlation_error (the standard error of an average global
+// correlation estimated from a sample of bins; empty when exact).
 func WriteTauScan(w io.Writer, t *Tikhonov) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"tau", "residual_norm", "penalty_norm", "curvature", "average_global_correlation", "converged", "cg_iterations", "chosen"}); err != nil {
+	if err := cw.Write([]string{"tau", "residual_norm", "penalty_norm", "curvature", "average_global_correlation", "converged", "cg_iterations", "chosen", "correlation_error"}); err != nil {
 		return err
 	}
 	for _, p := range t.Scan {
-		corr := ""
+		corr, corrErr := "", ""
 		if t.Criterion == "correlation" {
 			corr = formatFloat(p.Correlation)
 		}
+		if t.CorrelationSample > 0 {
+			corrErr = formatFloat(p.CorrelationError)
+		}
 		rec := []string{formatFloat(p.Tau), formatFloat(p.ResidualNorm), formatFloat(p.PenaltyNorm), formatFloat(p.Curvature), corr,
-			strconv.FormatBool(p.Converged), strconv.Itoa(p.CGIterations), strconv.FormatBool(p.Tau == t.Tau)}
+			strconv.FormatBool(p.Converged), strconv.Itoa(p.CGIterations), strconv.FormatBool(p.Tau == t.Tau), corrErr}
 		if err := cw.Write(rec); err != nil {
 			return err
 		}

@@ -1,6 +1,7 @@
 package tikhonov
 
 import (
+	"context"
 	"math"
 
 	"gonum.org/v1/gonum/mat"
@@ -103,4 +104,98 @@ func GlobalCorrelations(c *mat.SymDense) ([]float64, error) {
 		out[j] = rho(c.At(j, j), inv.At(j, j))
 	}
 	return out, nil
+}
+
+// CorrelationSample is the number of truth bins over which the average
+// global correlation is estimated above CorrelationLimit.
+const CorrelationSample = 32
+
+// sampledCorrelation estimates the average global correlation of large
+// problems from a sample of the determined bins (method.md §14). With
+// M = Rᵀ W R, G = Lᵀ L and H = M + τ² G the normal matrix, the covariance
+// of the estimate is C = H⁻¹ M H⁻¹ and its inverse C⁻¹ = H M⁻¹ H, so
+//
+//	C_jj = |W^½ R u_j|²  with H u_j = e_j,
+//	(C⁻¹)_jj = M_jj + 2τ² G_jj + τ⁴ g_jᵀ M⁻¹ g_j  with g_j = G e_j:
+//
+// one solve with M per sampled bin (independent of τ) and one solve with
+// H per sampled bin and value of τ. The sample is systematic: every
+// (determined bins / CorrelationSample)-th determined bin, the same at
+// every τ, so that the curve is smooth in τ.
+type sampledCorrelation struct {
+	e    *engine
+	bins []int
+	q    []float64   // g_jᵀ M⁻¹ g_j
+	u    [][]float64 // the solutions at the last τ, the warm starts of the next
+}
+
+func newSampledCorrelation(ctx context.Context, e *engine, c *cg) (*sampledCorrelation, error) {
+	sy := e.sy
+	var det []int
+	for j, ok := range sy.p.Determined() {
+		if ok {
+			det = append(det, j)
+		}
+	}
+	n := min(CorrelationSample, len(det))
+	sc := &sampledCorrelation{e: e}
+	for k := range n {
+		sc.bins = append(sc.bins, det[k*len(det)/n])
+	}
+	if err := e.prepare(0); err != nil {
+		return nil, err
+	}
+	g, v := make([]float64, sy.nt), make([]float64, sy.nt)
+	lx := make([]float64, sy.l.rows())
+	ej := make([]float64, sy.nt)
+	for _, j := range sc.bins {
+		clear(g)
+		clear(v)
+		ej[j] = 1
+		sy.l.addNormal(g, ej, lx, 1)
+		ej[j] = 0
+		ok, err := e.solve(ctx, c, v, g, 0, false)
+		if err != nil {
+			return nil, err
+		}
+		if !ok {
+			return nil, &unfold.SettingsError{Field: "Criterion", Reason: "the global correlation needs a covariance that the response alone determines (Rᵀ V⁻¹ R invertible: the unregularised solve did not converge); choose the L-curve or a fixed tau"}
+		}
+		sc.q = append(sc.q, dot(g, v))
+		sc.u = append(sc.u, make([]float64, sy.nt))
+	}
+	return sc, nil
+}
+
+// average returns the sample mean of ρ_j at tau (after e.prepare(tau))
+// and its standard error, with c as the solver's scratch.
+func (sc *sampledCorrelation) average(ctx context.Context, c *cg, tau float64) (mean, se float64, err error) {
+	sy := sc.e.sy
+	ej := make([]float64, sy.nt)
+	fold := make([]float64, sy.p.RecoBins())
+	t2 := tau * tau
+	var sum, sum2 float64
+	for k, j := range sc.bins {
+		ej[j] = 1
+		_, err := sc.e.solve(ctx, c, sc.u[k], ej, tau, false)
+		ej[j] = 0
+		if err != nil {
+			return 0, 0, err
+		}
+		sy.p.Fold(fold, sc.u[k], c.tmp)
+		var cjj float64
+		for i, f := range fold {
+			cjj += sy.w[i] * f * f
+		}
+		ci := sy.fd[j] + 2*t2*sy.ld[j] + t2*t2*sc.q[k]
+		r := rho(cjj, ci)
+		sum += r
+		sum2 += r * r
+	}
+	n := float64(len(sc.bins))
+	mean = sum / n
+	if n > 1 {
+		se = math.Sqrt(math.Max(0, (sum2-n*mean*mean)/(n-1)) / n)
+	}
+	return mean, se, nil
 }

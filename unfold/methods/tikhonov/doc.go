@@ -33,7 +33,8 @@
 // L-curve (maximum curvature of log |residual| against log |penalty|;
 // P. C. Hansen and D. P. O'Leary, SIAM J. Sci. Comput. 14 (1993) 1487)
 // or by the minimum average global correlation, computed exactly up to
-// CorrelationLimit determined truth bins and refused above. The scan is
+// CorrelationLimit determined truth bins and estimated from a sample of
+// CorrelationSample bins above. The scan is
 // in the details (Details.Scan).
 //
 // The formulas are in cmd/desmear/help/method.md, §13 and §14.

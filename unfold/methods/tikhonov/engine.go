@@ -2,7 +2,6 @@ package tikhonov
 
 import (
 	"context"
-	"fmt"
 	"math"
 	"slices"
 	"sync"
@@ -186,20 +185,24 @@ func (e *engine) taus(rs *Settings) []float64 {
 // by rs.Criterion (method.md §14 Choosing tau).
 func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	var gc *globalCorrelation
+	var sc *sampledCorrelation
+	nt := e.sy.nt
+	c := newCG(e.sy)
+	c.tol = max(c.tol, rs.ScanTolerance)
 	if rs.Criterion == Correlation {
-		if e.dn == nil || len(e.dn.idx) > CorrelationLimit {
-			return &unfold.SettingsError{Field: "Criterion", Reason: fmt.Sprintf("the global correlation is computed exactly, from the dense covariance, for at most %d determined truth bins (this problem has %d truth bins); choose the L-curve or a fixed tau", CorrelationLimit, e.sy.nt)}
-		}
 		var err error
-		if gc, err = newGlobalCorrelation(e.dn); err != nil {
+		if e.dn != nil && len(e.dn.idx) <= CorrelationLimit {
+			gc, err = newGlobalCorrelation(e.dn)
+		} else {
+			sc, err = newSampledCorrelation(ctx, e, c)
+			d.CorrelationSample = len(sc.bins)
+		}
+		if err != nil {
 			return err
 		}
 	}
 	taus := e.taus(rs)
 	d.Scan = make([]ScanPoint, len(taus))
-	nt := e.sy.nt
-	c := newCG(e.sy)
-	c.tol = max(c.tol, rs.ScanTolerance)
 	x, b := make([]float64, nt), make([]float64, nt)
 	y := make([]float64, e.sy.p.RecoBins())
 	copy(y, e.sy.p.Data())
@@ -231,6 +234,11 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 		if gc != nil {
 			pt.Correlation = gc.average(tau)
 		}
+		if sc != nil {
+			if pt.Correlation, pt.CorrelationError, err = sc.average(ctx, c, tau); err != nil {
+				return err
+			}
+		}
 		d.Scan[k] = pt
 		if keep {
 			xs = append(xs, slices.Clone(x))
@@ -238,7 +246,7 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	}
 	usable := curvatures(d.Scan)
 	best := -1
-	if gc != nil {
+	if gc != nil || sc != nil {
 		d.Criterion = ChosenCorrelation
 		for k, pt := range d.Scan {
 			if best < 0 || pt.Correlation < d.Scan[best].Correlation {

@@ -45,6 +45,10 @@ type Details struct {
 	// lie outside the range scanned.
 	Scan       []ScanPoint
 	AtScanEdge bool
+	// CorrelationSample is the number of truth bins over which the
+	// average global correlation was estimated (0: computed exactly over
+	// all determined bins).
+	CorrelationSample int
 }
 
 // ScanPoint is one value of tau of a scan.
@@ -56,8 +60,10 @@ type ScanPoint struct {
 	// (0 at the two ends, where it is not defined).
 	Curvature float64
 	// Correlation is the average global correlation (correlation
-	// criterion only, else 0).
-	Correlation float64
+	// criterion only, else 0); CorrelationError its standard error when
+	// it is estimated from a sample of bins (else 0).
+	Correlation      float64
+	CorrelationError float64
 	// Converged is false when the conjugate gradients stopped at the
 	// iteration bound before the scan's tolerance (the point is then
 	// less precise); always true for the dense solve. Iterations are

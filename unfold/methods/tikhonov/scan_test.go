@@ -50,6 +50,26 @@ func TestAverageCorrelation(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The estimate of large problems (§14), here over all 10 bins (fewer
+	// than CorrelationSample), by conjugate gradients and densely.
+	type sampled struct {
+		e  *engine
+		c  *cg
+		sc *sampledCorrelation
+	}
+	var samplers []sampled
+	for _, dense := range []bool{false, true} {
+		e := newEngine(sy, dense)
+		c := newCG(sy)
+		sc, err := newSampledCorrelation(context.Background(), e, c)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(sc.bins) != nt {
+			t.Fatalf("sample of %d bins, want all %d", len(sc.bins), nt)
+		}
+		samplers = append(samplers, sampled{e, c, sc})
+	}
 	for _, f := range []float64{1e-3, 0.1, 3} {
 		tau := f * sy.scale()
 		k := mat.NewDense(nt, nr, nil)
@@ -78,6 +98,18 @@ func TestAverageCorrelation(t *testing.T) {
 		}
 		if got := gc.average(tau); math.Abs(got-want) > 1e-6 {
 			t.Errorf("tau %g: average global correlation %v, want %v", tau, got, want)
+		}
+		for k, sm := range samplers {
+			if err := sm.e.prepare(tau); err != nil {
+				t.Fatal(err)
+			}
+			got, se, err := sm.sc.average(context.Background(), sm.c, tau)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(got-want) > 1e-6 || !(se > 0) {
+				t.Errorf("tau %g, sampled estimate (dense %v): %v ± %v, want %v", tau, k == 1, got, se, want)
+			}
 		}
 	}
 }

@@ -24,9 +24,9 @@ const (
 	// conjugate gradients.
 	DenseLimit = 1500
 	// CorrelationLimit is the largest number of determined truth bins for
-	// which the global correlation is computed (exactly, from the dense
-	// covariance and its inverse); the correlation criterion is refused
-	// above it.
+	// which the global correlation is computed exactly, from the dense
+	// covariance and its inverse; above it the average is estimated from
+	// CorrelationSample bins.
 	CorrelationLimit = 1500
 )
 
