@@ -110,21 +110,21 @@ type Results struct {
 	// IterationEstimate is "difference" (the median over rounds of the
 	// difference between 2K and K iterations, over K) or "upper-bound"
 	// (the noise swamped the difference: 2K iterations' time over 2K).
-	IterationEstimate string `json:"iteration_estimate"`
-	UnfoldingFixedMS    float64 `json:"unfolding_fixed_ms"` // prepared unfolding − Iterations × marginal iteration, at least 0
-	PreparedMS          float64 `json:"prepared_unfolding_ms"`
-	UnfoldingMS         float64 `json:"unfolding_ms"`
-	Iterations          int     `json:"iterations"`
-	Probes              int     `json:"probes"`
-	ProbesS             float64 `json:"probes_s"`
-	Toys                int     `json:"toys"`
-	ToysPerS            float64 `json:"toys_per_s"`
-	FillEvents          int     `json:"fill_events"`
-	FillEntriesPerS     float64 `json:"fill_entries_per_s"`
-	ParquetEvents       int     `json:"parquet_events"`
-	ParquetEventsPerS   float64 `json:"parquet_events_per_s"`
-	PeakRSSBytes        int64   `json:"peak_rss_bytes"`
-	ByteModel           string  `json:"byte_model"`
+	IterationEstimate string  `json:"iteration_estimate"`
+	UnfoldingFixedMS  float64 `json:"unfolding_fixed_ms"` // prepared unfolding − Iterations × marginal iteration, at least 0
+	PreparedMS        float64 `json:"prepared_unfolding_ms"`
+	UnfoldingMS       float64 `json:"unfolding_ms"`
+	Iterations        int     `json:"iterations"`
+	Probes            int     `json:"probes"`
+	ProbesS           float64 `json:"probes_s"`
+	Toys              int     `json:"toys"`
+	ToysPerS          float64 `json:"toys_per_s"`
+	FillEvents        int     `json:"fill_events"`
+	FillEntriesPerS   float64 `json:"fill_entries_per_s"`
+	ParquetEvents     int     `json:"parquet_events"`
+	ParquetEventsPerS float64 `json:"parquet_events_per_s"`
+	PeakRSSBytes      int64   `json:"peak_rss_bytes"`
+	ByteModel         string  `json:"byte_model"`
 }
 
 // Problem returns the problem of configuration c.

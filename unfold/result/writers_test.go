@@ -160,9 +160,20 @@ func TestTauScan(t *testing.T) {
 	if err := WriteTauScan(&b, tk); err != nil {
 		t.Fatal(err)
 	}
-	want := "tau,residual_norm,penalty_norm,curvature,average_global_correlation,converged,cg_iterations,chosen\n" +
-		"0.01,5,100,0,,true,0,false\n0.1,6,20,3.5,,true,0,true\n1,30,2,0,,false,17,false\n"
+	want := "tau,residual_norm,penalty_norm,curvature,average_global_correlation,converged,cg_iterations,chosen,correlation_error\n" +
+		"0.01,5,100,0,,true,0,false,\n0.1,6,20,3.5,,true,0,true,\n1,30,2,0,,false,17,false,\n"
 	if b.String() != want {
 		t.Errorf("tau-scan.csv:\n%s\nwant\n%s", b.String(), want)
+	}
+	// An estimated correlation carries its standard error.
+	tk.Criterion, tk.CorrelationSample = "correlation", 32
+	tk.Scan = tk.Scan[1:2]
+	tk.Scan[0].Correlation, tk.Scan[0].CorrelationError = 0.75, 0.02
+	b.Reset()
+	if err := WriteTauScan(&b, tk); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.HasSuffix(b.String(), "\n0.1,6,20,3.5,0.75,true,0,true,0.02\n") {
+		t.Errorf("estimated correlation:\n%s", b.String())
 	}
 }
