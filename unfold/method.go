@@ -43,6 +43,13 @@ type Result struct {
 	UncertaintyPrecision float64
 	// Samples is the number of probes or toys used (0 for exact).
 	Samples int
+	// StepVariance is, for a method that keeps the steps of its
+	// computation (Stepper: the iterations of the iterative method, when
+	// asked), the per-bin variance of the estimate of every step,
+	// StepVariance[k] for step k (0 the start), computed by the same
+	// propagation as Uncertainty while it passes through the steps; nil
+	// otherwise.
+	StepVariance [][]float64
 
 	// Details holds what is particular to the method (Fit.Details), for
 	// example the iteration history of the iterative method.

@@ -47,17 +47,21 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 }
 
 // toyVariances re-runs fit on toys pseudo-data sets and returns the
-// sample variance of the estimate per truth bin. Toys run concurrently,
-// one runner per goroutine; their results are accumulated in toy order
-// (Welford's update), so the bits do not depend on the scheduling.
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, error) {
+// sample variance of the estimate per truth bin and, for a fit keeping
+// its steps whose runners report them (StepToyRunner), of the estimate
+// of every step (nil otherwise). Toys run concurrently, one runner per
+// goroutine; their results are accumulated in toy order (Welford's
+// update), so the bits do not depend on the scheduling.
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, [][]float64, error) {
 	workers := min(runtime.GOMAXPROCS(0), toys)
 	type slot struct {
-		run  ToyRunner
-		n, b []float64
-		est  []float64
-		err  error
+		run   ToyRunner
+		n, b  []float64
+		est   []float64
+		steps [][]float64 // the estimate of every step
+		err   error
 	}
+	ns := steps(fit)
 	slots := make([]slot, workers)
 	for w := range slots {
 		sl := &slots[w]
@@ -66,34 +70,85 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 		}
 		sl.n = make([]float64, m.nr)
 		sl.run = fit.NewToyRunner()
+		if _, ok := sl.run.(StepToyRunner); !ok {
+			ns = 0
+		}
 	}
-	mean := make([]float64, m.nt)
-	m2 := make([]float64, m.nt)
-	count := 0
+	for w := range slots {
+		if ns > 0 {
+			slots[w].steps = make([][]float64, ns)
+			for k := range slots[w].steps {
+				slots[w].steps[k] = make([]float64, m.nt)
+			}
+		}
+	}
+	all := newWelford(m.nt)
+	var per []*welford
+	for range ns {
+		per = append(per, newWelford(m.nt))
+	}
 	for t0 := 0; t0 < toys; t0 += workers {
 		if err := ctx.Err(); err != nil {
-			return nil, err
+			return nil, nil, err
 		}
 		batch := min(workers, toys-t0)
 		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
 			toyData(m, seed, t0+w, sl.n, sl.b)
-			sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
+			if ns == 0 {
+				sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
+				return
+			}
+			sl.err = sl.run.(StepToyRunner).RunSteps(ctx, sl.n, sl.b, func(k int, est []float64) {
+				if k >= 0 && k < ns {
+					copy(sl.steps[k], est)
+				}
+			})
+			sl.est = sl.steps[ns-1]
 		})
 		for w := 0; w < batch; w++ {
-			if err := slots[w].err; err != nil {
-				return nil, err
+			sl := &slots[w]
+			if sl.err != nil {
+				return nil, nil, sl.err
 			}
-			count++
-			for j, x := range slots[w].est {
-				d := x - mean[j]
-				mean[j] += d / float64(count)
-				m2[j] += d * (x - mean[j])
+			all.add(sl.est)
+			for k, e := range per {
+				e.add(sl.steps[k])
 			}
 		}
 	}
-	for j := range m2 {
-		m2[j] /= float64(count - 1)
+	var sv [][]float64
+	for _, e := range per {
+		sv = append(sv, e.variance())
 	}
-	return m2, nil
+	return all.variance(), sv, nil
+}
+
+// welford accumulates the mean and the sum of squared deviations per
+// entry (Welford's update).
+type welford struct {
+	count    int
+	mean, m2 []float64
+}
+
+func newWelford(n int) *welford {
+	return &welford{mean: make([]float64, n), m2: make([]float64, n)}
+}
+
+func (e *welford) add(x []float64) {
+	e.count++
+	for j, v := range x {
+		d := v - e.mean[j]
+		e.mean[j] += d / float64(e.count)
+		e.m2[j] += d * (v - e.mean[j])
+	}
+}
+
+// variance returns the sample variances (m2 divided by count − 1, in
+// place).
+func (e *welford) variance() []float64 {
+	for j := range e.m2 {
+		e.m2[j] /= float64(e.count - 1)
+	}
+	return e.m2
 }

@@ -45,10 +45,16 @@ func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, err
 		}
 	}
 	it := newIterator(m, sm)
-	d, err := it.run(ctx, m.n, rs, nil)
+	var tan tangents
+	var kept [][]float64
+	if rs.Scan {
+		tan = &recorder{each: func(_ int, mu []float64) { kept = append(kept, append([]float64(nil), mu...)) }}
+	}
+	d, err := it.run(ctx, m.n, rs, tan)
 	if err != nil {
 		return nil, err
 	}
+	d.Estimates = kept
 	return &fit{m: m, sm: sm, details: d,
 		estimate: append([]float64(nil), it.mu...),
 		folded:   append([]float64(nil), it.nu...)}, nil
@@ -68,6 +74,10 @@ type fit struct {
 func (f *fit) Estimate() []float64 { return f.estimate }
 func (f *fit) Folded() []float64   { return f.folded }
 func (f *fit) Details() any        { return f.details }
+
+// Steps returns the number of iterations kept with Settings.Scan, the
+// start included (unfold.Stepper); 0 without.
+func (f *fit) Steps() int { return len(f.details.Estimates) }
 
 // Jacobian carries the dense Jacobian along a re-run of the iteration.
 func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
@@ -96,6 +106,10 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 func (f *fit) NewToyRunner() unfold.ToyRunner {
 	r := &toyRunner{mod: *f.m, rs: fixedIterations(f.details.Iterations)}
 	r.it = newIterator(&r.mod, f.sm)
+	if f.Steps() > 0 {
+		r.rec = &recorder{}
+		return &stepToyRunner{r}
+	}
 	return r
 }
 
@@ -104,6 +118,7 @@ type toyRunner struct {
 	it  *iterator
 	rs  *resolved
 	d   Details
+	rec *recorder // reports the steps (stepToyRunner)
 }
 
 func (r *toyRunner) Run(ctx context.Context, n, b []float64) ([]float64, error) {
