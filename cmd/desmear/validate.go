@@ -222,6 +222,9 @@ func loadValidationAnalysis(ctx context.Context, g *globalOptions, path string) 
 		return nil, analysisErr(err)
 	}
 	b, ok := m.(*bayes.Settings)
+	if ok {
+		b.Scan = false // the toys need no iteration scan of their own
+	}
 	if !ok {
 		return nil, usagef("%s: the iteration scan applies to the iterative method (%s), not to %s", path, bayes.Name, m.Name())
 	}

@@ -89,6 +89,15 @@ func TestValidateDemo(t *testing.T) {
 	if ch := res.Settings.IterationsChosen; ch == nil || ch.Criterion != validate.MinMSE || res.Settings.Iterations != argmin(ch.Curve)+1 {
 		t.Errorf("iterations %d, choice %+v", res.Settings.Iterations, ch)
 	}
+	// The iteration scan from an analysis file (the demo's full
+	// covariance: the variances of every iteration are the diagonals of
+	// the Jacobian recursion).
+	scan := strings.Replace(string(src), "folder: result", "folder: result-scan\n  formats: [json, iterations]", 1)
+	writeFiles(t, dir, map[string]string{"scan.yaml": scan})
+	if code, stdout, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "scan.yaml")); code != 0 {
+		t.Fatalf("iteration scan: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	checkIterationTables(t, filepath.Join(dir, "result-scan"), 4)
 	writeFiles(t, dir, map[string]string{"bad.yaml": strings.Replace(auto, "iterations: auto", "iterations: auto\n  stop_chi2: 0.5", 1)})
 	if code, _, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "bad.yaml")); code == 0 || !strings.Contains(stderr, "unfolding.iterations") {
 		t.Errorf("auto with stop_chi2: exit %d, %s", code, stderr)

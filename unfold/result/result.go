@@ -108,9 +108,12 @@ type Result struct {
 	Migrations *sparse.Matrix `json:"-"`
 	// Tikhonov, Inversion and BinByBin are the outcomes of those methods
 	// (absent for the others).
-	Tikhonov  *Tikhonov  `json:"tikhonov,omitempty"`
-	Inversion *Inversion `json:"inversion,omitempty"`
-	BinByBin  *BinByBin  `json:"bin_by_bin,omitempty"`
+	// Scan is the iteration scan of the iterative method when it was
+	// asked for (the "iterations" format; not part of result.json).
+	Scan      *IterationScan `json:"-"`
+	Tikhonov  *Tikhonov      `json:"tikhonov,omitempty"`
+	Inversion *Inversion     `json:"inversion,omitempty"`
+	BinByBin  *BinByBin      `json:"bin_by_bin,omitempty"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
 	// they were given.
@@ -363,6 +366,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		for k, s := range d.History {
 			r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
 		}
+		r.Scan = newIterationScan(d.Estimates, res.StepVariance, res.Determined)
 	case *tikhonov.Details:
 		r.Tikhonov = &Tikhonov{Tau: d.Tau, Criterion: d.Criterion, AtScanEdge: d.AtScanEdge, Penalty: d.Penalty, Widths: d.Widths, Bias: d.Bias,
 			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm}
