@@ -71,26 +71,11 @@ type Report struct {
 // its fold matches the data: G · Σ(n − b) / Σ_j eps_j G_j, 0 where not
 // determined.
 func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
-	pr, err := unfold.Prepare(p, unfold.InModel)
-	if err != nil {
-		return nil, err
+	w := make([]float64, len(p.Generated))
+	for j := range w {
+		w[j] = 1
 	}
-	t := make([]float64, pr.TruthBins())
-	var s float64
-	for j, d := range pr.Determined() {
-		if d {
-			t[j] = p.Generated[j]
-			s += pr.Efficiency()[j] * t[j]
-		}
-	}
-	f := pr.Net() / s
-	if !(f > 0) {
-		return nil, fmt.Errorf("validate: the data minus the background sum to %v ≤ 0: there is no statistics to draw toys at", pr.Net())
-	}
-	for j := range t {
-		t[j] *= f
-	}
-	return t, nil
+	return Reweighted(p, w)
 }
 
 // Validate runs the toy ensemble of o, the closure tests (exact and
