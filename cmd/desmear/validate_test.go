@@ -102,6 +102,31 @@ func TestValidateDemo(t *testing.T) {
 	if code, _, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "bad.yaml")); code == 0 || !strings.Contains(stderr, "unfolding.iterations") {
 		t.Errorf("auto with stop_chi2: exit %d, %s", code, stderr)
 	}
+	// Toy truths and a stress test of the analysis file.
+	stress := string(src) + "\nvalidation:\n  stress:\n    - name: harder-pt\n      weight: \"1 + 0.01*(pt - 40)\"\n"
+	writeFiles(t, dir, map[string]string{"stress.yaml": stress})
+	for _, c := range []struct{ truth, source string }{{"result", "result"}, {"harder-pt", "harder-pt"}, {"tilt-y", "tilt-y-+20%"}} {
+		o := filepath.Join(dir, "v-"+c.truth)
+		if code, stdout, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "stress.yaml"), "--out", o, "--toys", "4", "--max-iterations", "1", "--toy-truth", c.truth); code != 0 {
+			t.Fatalf("--toy-truth %s: exit %d\n%s\n%s", c.truth, code, stdout, stderr)
+		}
+		v := readValidation(t, o)
+		names := []string{}
+		for _, st := range v.Stress {
+			names = append(names, st.Name)
+		}
+		if v.TruthSource != c.source || !slices.Equal(names, []string{"harder-pt", "tilt-y-+20%", "tilt-pt-+20%"}) {
+			t.Errorf("--toy-truth %s: truth %s, stress tests %v", c.truth, v.TruthSource, names)
+		}
+		if c.truth == "result" && !slices.Equal(v.Truth, v.Nominal.Estimate) {
+			t.Errorf("the result as toy truth %v, the nominal result %v", v.Truth, v.Nominal.Estimate)
+		}
+	}
+	for _, bad := range [][]string{{"--toy-truth", "softer"}, {"--toy-truth", "tilt-eta"}, {"--toy-truth", "result", "--truth", "T.csv"}} {
+		if code, _, stderr := runCLI(t, ctx, append([]string{"validate", filepath.Join(dir, "stress.yaml"), "--out", filepath.Join(dir, "v-bad")}, bad...)...); code != exitUsage || !strings.Contains(stderr, "truth") {
+			t.Errorf("%v: exit %d, %s", bad, code, stderr)
+		}
+	}
 	// An existing folder is refused without --force.
 	if code, _, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out, "--toys", "4", "--max-iterations", "1"); code != exitUsage || !strings.Contains(stderr, "--force") {
 		t.Errorf("existing folder: exit %d, %s", code, stderr)

@@ -20,10 +20,13 @@ type Options struct {
 	Toys int
 	Seed uint64
 	// Truth is the truth of the toys; nil means the generated spectrum
-	// scaled to the data (ScaledGenerated). TruthSource names it in the
-	// report ("generated" when Truth is nil).
-	Truth       []float64
-	TruthSource string
+	// scaled to the data (ScaledGenerated), or with TruthFromResult the
+	// nominal result (the estimate of the data with the Nominal method:
+	// the toys are its refold). TruthSource names it in the report
+	// ("generated" or "result" when Truth is nil).
+	Truth           []float64
+	TruthSource     string
+	TruthFromResult bool
 	// Tilts, when TiltScheme is not nil, adds one stress test per axis of
 	// the scheme: a linear tilt of TiltPercent (Tilt). Weights adds
 	// stress tests of given weights per truth bin, by name.
@@ -65,6 +68,15 @@ type Report struct {
 	Recommendation *Recommendation `json:"recommendation"`
 	Closure        []*Check        `json:"closure"`
 	Stress         []*Check        `json:"stress"`
+	// Nominal is the nominal result (the data unfolded with the nominal
+	// method) that the stress tests are compared with.
+	Nominal *Nominal `json:"nominal"`
+}
+
+// Nominal is the estimate of the data and its per-bin uncertainty.
+type Nominal struct {
+	Estimate    []float64 `json:"estimate"`
+	Uncertainty []float64 `json:"uncertainty"`
 }
 
 // ScaledGenerated returns the generated spectrum G of p scaled so that
@@ -82,9 +94,26 @@ func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
 // fluctuated), the stress tests and the recommendation on problem p
 // with the common settings s.
 func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Options) (*Report, error) {
+	ns, err := s.Resolve()
+	if err != nil {
+		return nil, err
+	}
+	ns.Covariance, ns.DiagonalMethod = unfold.Diagonal, unfold.DiagonalAuto
+	nominal, err := unfold.Unfold(ctx, p, &ns, o.Nominal)
+	if err != nil {
+		return nil, err
+	}
 	truth, src := o.Truth, o.TruthSource
-	if truth == nil {
-		var err error
+	switch {
+	case truth != nil:
+	case o.TruthFromResult:
+		truth, src = make([]float64, len(nominal.Estimate)), "result"
+		for j, d := range nominal.Determined {
+			if d {
+				truth[j] = nominal.Estimate[j]
+			}
+		}
+	default:
 		if truth, err = ScaledGenerated(p); err != nil {
 			return nil, err
 		}
@@ -95,7 +124,8 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 	if err != nil {
 		return nil, err
 	}
-	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan()}
+	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan(),
+		Nominal: &Nominal{Estimate: nominal.Estimate, Uncertainty: nominal.Uncertainty}}
 	crit := o.Criterion
 	if crit == "" {
 		crit = MinMSE
@@ -110,12 +140,6 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 			return nil, err
 		}
 		r.Closure = append(r.Closure, ch)
-	}
-	ns, _ := s.Resolve()
-	ns.Covariance, ns.DiagonalMethod = unfold.Diagonal, unfold.DiagonalAuto
-	nominal, err := unfold.Unfold(ctx, p, &ns, o.Nominal)
-	if err != nil {
-		return nil, err
 	}
 	tests := append([]NamedWeights(nil), o.Weights...)
 	if o.TiltScheme != nil {

@@ -116,18 +116,19 @@ func (r *Report) scanBinRows() [][]string {
 // checkRows: one row per closure or stress test and determined truth
 // bin.
 func (r *Report) checkRows() [][]string {
-	rows := [][]string{{"test", "bin", "label", "truth", "estimate", "uncertainty", "bias", "pull", "nominal_difference", "nominal_pull"}}
+	rows := [][]string{{"test", "bin", "label", "truth", "estimate", "uncertainty", "bias", "pull", "nominal", "nominal_uncertainty", "nominal_difference", "nominal_pull"}}
 	for _, c := range append(append([]*Check(nil), r.Closure...), r.Stress...) {
 		for j, d := range r.Determined {
 			if !d {
 				continue
 			}
-			nd, np := "", ""
-			if c.Nominal != nil {
+			nv, nu, nd, np := "", "", "", ""
+			if c.Nominal != nil && r.Nominal != nil {
+				nv, nu = num(r.Nominal.Estimate[j]), num(r.Nominal.Uncertainty[j])
 				nd, np = num(c.Nominal.Difference[j]), num(c.Nominal.Pull[j])
 			}
 			rows = append(rows, []string{c.Name, strconv.Itoa(j), r.label(j), num(c.Truth[j]), num(c.Estimate[j]), num(c.Uncertainty[j]),
-				num(c.Bias[j]), num(c.Pull[j]), nd, np})
+				num(c.Bias[j]), num(c.Pull[j]), nv, nu, nd, np})
 		}
 	}
 	return rows
