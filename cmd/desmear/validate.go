@@ -60,7 +60,8 @@ writes a validation folder DIR:
     analysis file's validation.stress, folded, unfolded and compared with the
     reweighted truth and with the nominal result.
 
-DIR holds validation.json, scan.csv, scan-bins.csv and checks.csv; it is
+DIR holds validation.json, scan.csv, scan-bins.csv, checks.csv and the
+figure of the scan (scan.png, scan.svg); it is
 written atomically, and an existing DIR is replaced only with --force (and
 only an earlier validation folder or an empty one). See "desmear help
 validation".`,

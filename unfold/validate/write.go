@@ -7,6 +7,7 @@ import (
 	"strconv"
 
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
+	"github.com/desmear/desmear/unfold/result/figure"
 )
 
 // The files of a validation folder; JSONFile also marks a folder as an
@@ -18,8 +19,11 @@ const (
 	ChecksFile   = "checks.csv"
 )
 
-// Files lists the files WriteFolder writes, in order.
-func Files() []string { return []string{JSONFile, ScanFile, ScanBinsFile, ChecksFile} }
+// Files lists the files WriteFolder writes, in order: the document, the
+// tables and the figure of the scan (ScanFigure) as PNG and SVG.
+func Files() []string {
+	return []string{JSONFile, ScanFile, ScanBinsFile, ChecksFile, ScanPlot + "." + figure.PNG, ScanPlot + "." + figure.SVG}
+}
 
 // CheckFolder reports early whether a validation folder could be
 // written at dir (see atomicfile.Check: an existing folder only with
@@ -67,6 +71,16 @@ func WriteFolder(dir string, replace bool, prog Program, r *Report) error {
 			return err
 		}
 		if err := f.WriteFile(t.name, b.Bytes()); err != nil {
+			return err
+		}
+	}
+	fig := r.ScanFigure()
+	for _, format := range []string{figure.PNG, figure.SVG} {
+		b, err := figure.Render(fig, format)
+		if err != nil {
+			return err
+		}
+		if err := f.WriteFile(ScanPlot+"."+format, b); err != nil {
 			return err
 		}
 	}
