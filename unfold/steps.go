@@ -4,14 +4,15 @@ import "context"
 
 // Stepper is implemented by a Fit whose estimate is the last of a
 // sequence of steps that it keeps (the iterations of the iterative
-// method, when asked to keep them): Steps returns the number of steps
-// kept, step 0 being the start, or 0 when none are kept. For such a fit
-// the uncertainty drivers record the per-bin variance of every step
-// without re-running the method (Result.StepVariance): its Jacobian and
-// Tangents call Jacobian.Step and Probes.Step after the start and after
-// every step, and its toy runners implement StepToyRunner.
+// method, when asked to keep them): StepEstimates returns the estimate
+// of every step, step 0 being the start, or nil when none are kept
+// (Result.StepEstimates). For such a fit the uncertainty drivers record
+// the per-bin variance of every step without re-running the method
+// (Result.StepVariance): its Jacobian and Tangents call Jacobian.Step and
+// Probes.Step after the start and after every step, and its toy runners
+// implement StepToyRunner.
 type Stepper interface {
-	Steps() int
+	StepEstimates() [][]float64
 }
 
 // StepToyRunner is a ToyRunner that reports the estimate of every step
@@ -42,10 +43,11 @@ func (pr *Probes) Step(k int) {
 	}
 }
 
-// steps returns the number of steps fit keeps (0 when it is no Stepper).
-func steps(fit Fit) int {
+// steps returns the estimates of the steps fit keeps (nil when it is no
+// Stepper).
+func steps(fit Fit) [][]float64 {
 	if s, ok := fit.(Stepper); ok {
-		return s.Steps()
+		return s.StepEstimates()
 	}
-	return 0
+	return nil
 }

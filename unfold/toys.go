@@ -61,7 +61,7 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 		steps [][]float64 // the estimate of every step
 		err   error
 	}
-	ns := steps(fit)
+	ns := len(steps(fit))
 	slots := make([]slot, workers)
 	for w := range slots {
 		sl := &slots[w]

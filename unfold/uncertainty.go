@@ -95,7 +95,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		return nil
 	case pl.method == Full || pl.diag == DiagonalExact:
 		jc := NewJacobian(m)
-		if n := steps(fit); n > 0 {
+		if n := len(steps(fit)); n > 0 {
 			cv := pl.columnVariances()
 			res.StepVariance = make([][]float64, n)
 			jc.step = func(k int) {
@@ -124,7 +124,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	case pl.diag == DiagonalProbes:
 		sum := make([]float64, m.nt)
 		var pr *Probes
-		n := steps(fit)
+		n := len(steps(fit))
 		if n > 0 {
 			res.StepVariance = make([][]float64, n)
 			for k := range res.StepVariance {

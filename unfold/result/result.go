@@ -366,7 +366,6 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		for k, s := range d.History {
 			r.History[k] = Step{Iteration: s.Iteration, Chi2: s.Chi2, Change: s.Change, LogLikelihood: s.LogLikelihood}
 		}
-		r.Scan = newIterationScan(d.Estimates, res.StepVariance, res.Determined)
 	case *tikhonov.Details:
 		r.Tikhonov = &Tikhonov{Tau: d.Tau, Criterion: d.Criterion, AtScanEdge: d.AtScanEdge, Penalty: d.Penalty, Widths: d.Widths, Bias: d.Bias,
 			PenaltyRows: d.PenaltyRows, Solver: d.Solver, CGIterations: d.CGIterations, ResidualNorm: d.ResidualNorm, PenaltyNorm: d.PenaltyNorm}
@@ -378,6 +377,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 	case *binbybin.Details:
 		r.BinByBin = &BinByBin{Caution: d.Caution, Factors: slices.Clone(d.Factors)}
 	}
+	r.Scan = newIterationScan(res.StepEstimates, res.StepVariance, res.Determined)
 	copy(r.Determined, res.Determined)
 	copy(r.Efficiency, res.Efficiency)
 	for j := range r.Estimate {

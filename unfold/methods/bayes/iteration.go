@@ -38,10 +38,6 @@ type Details struct {
 	StoppedBy string
 	// History has one Step per iteration, History[0] being the start.
 	History []Step
-	// Estimates holds, with Settings.Scan, the estimate μ(k) of every
-	// iteration k = 0..Iterations (Estimates[0] the start); nil
-	// otherwise.
-	Estimates [][]float64
 }
 
 // How the iteration stopped (Details.StoppedBy; the names of result.json).

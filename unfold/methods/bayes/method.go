@@ -54,8 +54,7 @@ func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, err
 	if err != nil {
 		return nil, err
 	}
-	d.Estimates = kept
-	return &fit{m: m, sm: sm, details: d,
+	return &fit{m: m, sm: sm, details: d, kept: kept,
 		estimate: append([]float64(nil), it.mu...),
 		folded:   append([]float64(nil), it.nu...)}, nil
 }
@@ -67,6 +66,7 @@ type fit struct {
 	m                *model
 	sm               *smoother
 	details          *Details
+	kept             [][]float64 // the estimate of every iteration (Scan)
 	estimate, folded []float64
 	pr               *probes // the last batch's, reused by the next of its size
 }
@@ -75,9 +75,9 @@ func (f *fit) Estimate() []float64 { return f.estimate }
 func (f *fit) Folded() []float64   { return f.folded }
 func (f *fit) Details() any        { return f.details }
 
-// Steps returns the number of iterations kept with Settings.Scan, the
-// start included (unfold.Stepper); 0 without.
-func (f *fit) Steps() int { return len(f.details.Estimates) }
+// StepEstimates returns the estimate of every iteration kept with
+// Settings.Scan, the start first (unfold.Stepper); nil without.
+func (f *fit) StepEstimates() [][]float64 { return f.kept }
 
 // Jacobian carries the dense Jacobian along a re-run of the iteration.
 func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
@@ -106,7 +106,7 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 func (f *fit) NewToyRunner() unfold.ToyRunner {
 	r := &toyRunner{mod: *f.m, rs: fixedIterations(f.details.Iterations)}
 	r.it = newIterator(&r.mod, f.sm)
-	if f.Steps() > 0 {
+	if f.kept != nil {
 		r.rec = &recorder{}
 		return &stepToyRunner{r}
 	}

@@ -41,8 +41,8 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 				t.Fatal(err)
 			}
 			d := DetailsOf(res)
-			if len(d.Estimates) != d.Iterations+1 || len(d.History) != d.Iterations+1 {
-				t.Fatalf("%d estimates and %d steps for %d iterations", len(d.Estimates), len(d.History), d.Iterations)
+			if len(res.StepEstimates) != d.Iterations+1 || len(d.History) != d.Iterations+1 {
+				t.Fatalf("%d estimates and %d steps for %d iterations", len(res.StepEstimates), len(d.History), d.Iterations)
 			}
 			if c.o.Covariance == unfold.NoCovariance {
 				if res.StepVariance != nil {
@@ -51,7 +51,7 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 			} else if len(res.StepVariance) != d.Iterations+1 {
 				t.Fatalf("%d step variances for %d iterations", len(res.StepVariance), d.Iterations)
 			}
-			if !slices.Equal(d.Estimates[d.Iterations], res.Estimate) {
+			if !slices.Equal(res.StepEstimates[d.Iterations], res.Estimate) {
 				t.Errorf("the last kept estimate is not the result")
 			}
 			for k := 1; k <= d.Iterations; k++ {
@@ -60,7 +60,7 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 					t.Fatal(err)
 				}
 				rd := DetailsOf(ref)
-				if !slices.Equal(d.Estimates[k], ref.Estimate) {
+				if !slices.Equal(res.StepEstimates[k], ref.Estimate) {
 					t.Errorf("k=%d: the kept estimate differs from a run of %d iterations", k, k)
 				}
 				if !slices.Equal(d.History[:k+1], rd.History) {
@@ -77,7 +77,7 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 			if c.o.Background == unfold.InModel && c.o.Iterations > 0 {
 				dense := denseIterations(p, d.Iterations)
 				for k, mu := range dense {
-					if e := maxRelDiff(mu, d.Estimates[k]); e > 1e-12 {
+					if e := maxRelDiff(mu, res.StepEstimates[k]); e > 1e-12 {
 						t.Errorf("k=%d: kept estimate differs from the dense iteration by %.2g", k, e)
 					}
 				}

@@ -36,7 +36,8 @@ type Settings struct {
 	// iteration before it becomes the next prior.
 	Smoothing *Smoothing
 
-	// Scan keeps the estimate of every iteration (Details.Estimates) and
+	// Scan keeps the estimate of every iteration
+	// (unfold.Result.StepEstimates) and
 	// makes the uncertainty computation record the per-bin variance of
 	// every iteration (unfold.Result.StepVariance), in the same run: the
 	// iteration scan. It costs two truth-sized vectors per iteration.
