@@ -31,6 +31,17 @@ func (s *Settings) WithIterations(k int) unfold.Method {
 	return &c
 }
 
+// Scanned returns a copy of s that keeps every iteration (Scan): the
+// iteration scan in one run.
+func (s *Settings) Scanned() unfold.Method {
+	var c Settings
+	if s != nil {
+		c = *s
+	}
+	c.Scan = true
+	return &c
+}
+
 // Fit runs the iteration on p. The result's Details are a *Details.
 func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
 	rs, err := s.resolve()
