@@ -57,6 +57,23 @@ func TestValidateDemo(t *testing.T) {
 	if c := r.Closure[1]; !c.Fluctuated || math.Abs(c.Chi2-float64(c.NDF)) > 4*math.Sqrt(2*float64(c.NDF)) {
 		t.Errorf("fluctuated closure: chi2 %v for %d bins", c.Chi2, c.NDF)
 	}
+	// The pulls of the fluctuated closure: mean 0 and width 1 within 4
+	// of their precisions 1/sqrt(n) and 1/sqrt(2(n−1)) over the n bins
+	// (common practice; the bins are correlated, hence the margin).
+	{
+		c := r.Closure[1]
+		var s, s2, n float64
+		for j, d := range r.Determined {
+			if d && c.Uncertainty[j] > 0 {
+				s, s2, n = s+c.Pull[j], s2+c.Pull[j]*c.Pull[j], n+1
+			}
+		}
+		mean := s / n
+		width := math.Sqrt((s2 - n*mean*mean) / (n - 1))
+		if math.Abs(mean) > 4/math.Sqrt(n) || math.Abs(width-1) > 4/math.Sqrt(2*(n-1)) {
+			t.Errorf("fluctuated closure pulls: mean %v, width %v over %v bins", mean, width, n)
+		}
+	}
 	if len(r.Stress) != 2 || !strings.HasPrefix(r.Stress[0].Name, "tilt-y") || r.Stress[0].Nominal == nil {
 		t.Errorf("stress tests %+v", r.Stress)
 	}
