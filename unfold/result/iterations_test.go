@@ -20,36 +20,15 @@ import (
 // folded chi-square is Σ_i (n_i − ν_i)²/(var n_i + var b_i) with
 // ν = R μ(k) + b computed here densely with gonum from the written
 // estimate (method.md §16 Folded comparison). Problem D of method.md §10
-// with a background of known variance.
+// with a background of known variance and another prior.
 func TestIterationScan(t *testing.T) {
 	ctx := context.Background()
-	cols := [][]float64{{0.60, 0.20, 0.05, 0}, {0.10, 0.60, 0.15, 0.05}, {0, 0.10, 0.60, 0.20}}
-	ptr, row, val := []int{0}, []int(nil), []float64(nil)
-	for _, c := range cols {
-		for i, v := range c {
-			if v != 0 {
-				row, val = append(row, i), append(val, v*2)
-			}
-		}
-		ptr = append(ptr, len(row))
-	}
-	a, err := sparse.NewMatrix(4, 3, ptr, row, val, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	p := &unfold.Problem{Migrations: a, Generated: []float64{2, 2, 2}, Data: []float64{667, 578, 325, 87},
-		Background: []float64{20, 5, 30, 10}, BackgroundVariance: []float64{4, 1, 9, 0}, Prior: []float64{1, 3, 2}}
+	p := problemD(t, 2)
+	p.Prior = []float64{1, 3, 2}
+	a := p.Migrations
 	s := &unfold.Settings{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact}
 	const K = 7
-	res, err := unfold.Unfold(ctx, p, s, &bayes.Settings{Iterations: K, Scan: true})
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := FromUnfold(res)
-	if err != nil {
-		t.Fatal(err)
-	}
-	r.SetProblem(p)
+	r, res := unfoldDoc(t, p, s, &bayes.Settings{Iterations: K, Scan: true})
 	dir := filepath.Join(t.TempDir(), "out")
 	f, err := New(dir, false)
 	if err != nil {
