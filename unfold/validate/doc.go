@@ -31,6 +31,16 @@
 // several runs and merged (Merge) therefore hold the same blocks and
 // give the same bits.
 //
+// # Truths
+//
+// The toys are drawn from a truth given per truth bin: the generated
+// spectrum scaled to the data (ScaledGenerated), a reweighted one
+// (Reweighted, with the weights of a linear Tilt or of a weight
+// expression over the truth axes evaluated at the bin centres, Weights),
+// or the nominal result itself (Options.TruthFromResult: the toys are
+// its refold). The stress tests use the same reweighted truths without
+// fluctuations.
+//
 // # Figures of merit
 //
 // For every k and truth bin j, over T toys: the bias (mean estimate −
