@@ -32,6 +32,8 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 		{"stop-chi2", opts{StopChi2: 0.5, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact}},
 		{"subtract", opts{Iterations: 4, Background: unfold.Subtract, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact}},
 		{"none", opts{Iterations: 4}},
+		{"smoothing-exact", opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: chainScheme(t, 12), Strength: 0.5}, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalExact}},
+		{"smoothing-probes", opts{Iterations: 4, Smoothing: &Smoothing{Neighbours: chainScheme(t, 12), Strength: 0.5}, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: 10, Seed: 2}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			s, m := c.o.split()
@@ -74,7 +76,7 @@ func TestScanRowsAreFixedIterationRuns(t *testing.T) {
 					}
 				}
 			}
-			if c.o.Background == unfold.InModel && c.o.Iterations > 0 {
+			if c.o.Background == unfold.InModel && c.o.Iterations > 0 && c.o.Smoothing == nil {
 				dense := denseIterations(p, d.Iterations)
 				for k, mu := range dense {
 					if e := maxRelDiff(mu, res.StepEstimates[k]); e > 1e-12 {
