@@ -52,7 +52,11 @@
 //
 // The drivers plan the memory, draw the probes and the pseudo-data and
 // accumulate the variances; the method supplies only the propagation
-// through its own algorithm.
+// through its own algorithm. A fit whose estimate is the last of a
+// sequence of steps it keeps (Stepper: the iterations of the iterative
+// method with its scan) reports every step while it propagates, and the
+// drivers record the per-bin variance of each in Result.StepVariance in
+// the same run.
 //
 // # Conventions
 //

@@ -20,6 +20,8 @@ type Jacobian struct {
 	// scratch (and swap with Data); on return from Fit.Jacobian the
 	// Jacobian is in Data.
 	Work []float64
+
+	step func(k int) // set by the driver recording the steps (see Step)
 }
 
 // NewJacobian allocates the two buffers of the Jacobian of m.

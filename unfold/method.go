@@ -48,6 +48,15 @@ type Result struct {
 	UncertaintyPrecision float64
 	// Samples is the number of probes or toys used (0 for exact).
 	Samples int
+	// StepEstimates is, for a method that keeps the steps of its
+	// computation (Stepper: the iterations of the iterative method, when
+	// asked), the estimate of every step, StepEstimates[k] for step k (0
+	// the start; the last is Estimate); nil otherwise. StepVariance is
+	// then the per-bin variance of each, computed by the same propagation
+	// as Uncertainty while it passes through the steps (nil without an
+	// uncertainty computation).
+	StepEstimates [][]float64
+	StepVariance  [][]float64
 
 	// Details holds what is particular to the method (Fit.Details), for
 	// example the iteration history of the iterative method.
@@ -144,6 +153,9 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 		Folded:     append([]float64(nil), fit.Folded()...),
 		Clipped:    pr.clip,
 		Details:    fit.Details(),
+	}
+	if st := steps(fit); st != nil {
+		res.StepEstimates = st
 	}
 	for i, b := range pr.SubtractedBackground() {
 		res.Folded[i] += b

@@ -36,6 +36,7 @@ type Probes struct {
 	sdN, sdB     []float64  // σ(n_i); σ(b_i), nil when not propagated
 	signN, signB [][]uint64 // per probe, bit i set: +σ, clear: −σ
 	dmu          [][]float64
+	step         func(k int) // set by the driver recording the steps (see Step)
 }
 
 // ProbeBytes is the memory estimate of one probe of m as the methods

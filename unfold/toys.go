@@ -47,17 +47,21 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 }
 
 // toyVariances re-runs fit on toys pseudo-data sets and returns the
-// sample variance of the estimate per truth bin. Toys run concurrently,
-// one runner per goroutine; their results are accumulated in toy order
-// (Welford's update), so the bits do not depend on the scheduling.
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, error) {
+// sample variance of the estimate per truth bin and, for a fit keeping
+// its steps whose runners report them (StepToyRunner), of the estimate
+// of every step (nil otherwise). Toys run concurrently, one runner per
+// goroutine; their results are accumulated in toy order (Welford's
+// update), so the bits do not depend on the scheduling.
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, [][]float64, error) {
 	workers := min(runtime.GOMAXPROCS(0), toys)
 	type slot struct {
-		run  ToyRunner
-		n, b []float64
-		est  []float64
-		err  error
+		run   ToyRunner
+		n, b  []float64
+		est   []float64
+		steps [][]float64 // the estimate of every step
+		err   error
 	}
+	ns := len(steps(fit))
 	slots := make([]slot, workers)
 	for w := range slots {
 		sl := &slots[w]
@@ -66,24 +70,56 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 		}
 		sl.n = make([]float64, m.nr)
 		sl.run = fit.NewToyRunner()
+		if _, ok := sl.run.(StepToyRunner); !ok {
+			ns = 0
+		}
 	}
-	ens := NewEnsemble(m.nt, false)
+	for w := range slots {
+		if ns > 0 {
+			slots[w].steps = make([][]float64, ns)
+			for k := range slots[w].steps {
+				slots[w].steps[k] = make([]float64, m.nt)
+			}
+		}
+	}
+	all := NewEnsemble(m.nt, false)
+	var per []*Ensemble
+	for range ns {
+		per = append(per, NewEnsemble(m.nt, false))
+	}
 	for t0 := 0; t0 < toys; t0 += workers {
 		if err := ctx.Err(); err != nil {
-			return nil, err
+			return nil, nil, err
 		}
 		batch := min(workers, toys-t0)
 		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
 			toyData(m, seed, t0+w, sl.n, sl.b)
-			sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
+			if ns == 0 {
+				sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
+				return
+			}
+			sl.err = sl.run.(StepToyRunner).RunSteps(ctx, sl.n, sl.b, func(k int, est []float64) {
+				if k >= 0 && k < ns {
+					copy(sl.steps[k], est)
+				}
+			})
+			sl.est = sl.steps[ns-1]
 		})
 		for w := 0; w < batch; w++ {
-			if err := slots[w].err; err != nil {
-				return nil, err
+			sl := &slots[w]
+			if sl.err != nil {
+				return nil, nil, sl.err
 			}
-			ens.Add(slots[w].est)
+			all.Add(sl.est)
+			for k, e := range per {
+				e.Add(sl.steps[k])
+			}
 		}
 	}
-	return ens.Variances(nil), nil
+	var sv [][]float64
+	for _, e := range per {
+		sv = append(sv, e.Variances(nil))
+	}
+	return all.Variances(nil), sv, nil
 }

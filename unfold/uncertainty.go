@@ -98,6 +98,15 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		return nil
 	case pl.method == Full || pl.diag == DiagonalExact:
 		jc := NewJacobian(m)
+		if n := len(steps(fit)); n > 0 {
+			cv := pl.columnVariances()
+			res.StepVariance = make([][]float64, n)
+			jc.step = func(k int) {
+				if k >= 0 && k < n {
+					res.StepVariance[k] = jc.variances(cv)
+				}
+			}
+		}
 		if err := fit.Jacobian(ctx, jc); err != nil {
 			return err
 		}
@@ -118,8 +127,23 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	case pl.diag == DiagonalProbes:
 		sum := make([]float64, m.nt)
 		var pr *Probes
+		n := len(steps(fit))
+		if n > 0 {
+			res.StepVariance = make([][]float64, n)
+			for k := range res.StepVariance {
+				res.StepVariance[k] = make([]float64, m.nt)
+			}
+		}
 		for first := 0; first < pl.rs.Probes; first += pl.batch {
 			pr = drawProbes(pr, m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
+			pr.step = nil
+			if n > 0 {
+				pr.step = func(k int) {
+					if k >= 0 && k < n {
+						pr.accumulate(res.StepVariance[k])
+					}
+				}
+			}
 			if err := fit.Tangents(ctx, pr); err != nil {
 				return err
 			}
@@ -128,16 +152,21 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		for j := range sum {
 			sum[j] /= float64(pl.rs.Probes)
 		}
+		for _, v := range res.StepVariance {
+			for j := range v {
+				v[j] /= float64(pl.rs.Probes)
+			}
+		}
 		variance = sum
 		res.UncertaintyMethod = "linearised-probes"
 		res.Samples = pl.rs.Probes
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
 	case pl.diag == DiagonalToys:
-		v, err := toyVariances(ctx, m, fit, pl.rs.Toys, pl.rs.Seed)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, pl.rs.Seed)
 		if err != nil {
 			return err
 		}
-		variance = v
+		variance, res.StepVariance = v, sv
 		res.UncertaintyMethod = "poisson-toys"
 		res.Samples = pl.rs.Toys
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))

@@ -363,6 +363,7 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 			Iterations:    o.iterations,
 			StopChi2:      o.stopChi2,
 			MaxIterations: o.maxIterations,
+			Scan:          slices.Contains(o.formats, result.IterationsFormat),
 		}
 		if o.smooth > 0 {
 			m.Smoothing = &bayes.Smoothing{Neighbours: truth, Strength: o.smooth}

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strings"
 	"text/tabwriter"
 	"time"
 
@@ -27,6 +28,7 @@ import (
 type validateOptions struct {
 	unfoldOptions
 	truth     string
+	toyTruth  string
 	toys      int
 	maxK      int
 	criterion validate.Criterion
@@ -42,9 +44,11 @@ func newValidateCommand(g *globalOptions) *cobra.Command {
 		Long: `validate measures how the unfolding behaves where the truth is known and
 writes a validation folder DIR:
 
-  - toys: Poisson pseudo-data drawn from a truth (--truth T.csv, by default
-    the generated spectrum scaled to the data) folded through the response
-    plus the background, each unfolded with 1..--max-iterations iterations;
+  - toys: Poisson pseudo-data drawn from a truth (--truth T.csv, or
+    --toy-truth: the generated spectrum scaled to the data, the default; the
+    nominal result; a tilt of the generated spectrum; or a stress test of the
+    analysis file) folded through the response plus the background, each
+    unfolded with 1..--max-iterations iterations;
     per iteration count the bias, variance, pulls, coverage of the truth by
     the +-1 sigma intervals and the mean squared error, each with its toy
     precision;
@@ -52,10 +56,12 @@ writes a validation folder DIR:
   - closure: the simulation's own reco spectrum unfolded, exactly and with
     Poisson fluctuations at the data's statistics;
   - stress tests: the simulated truth tilted linearly by --tilt percent along
-    each axis of the truth binning, folded, unfolded and compared with the
-    tilted truth and with the nominal result.
+    each axis of the truth binning, or reweighted by the expressions of the
+    analysis file's validation.stress, folded, unfolded and compared with the
+    reweighted truth and with the nominal result.
 
-DIR holds validation.json, scan.csv, scan-bins.csv and checks.csv; it is
+DIR holds validation.json, scan.csv, scan-bins.csv, checks.csv and the
+figure of the scan (scan.png, scan.svg); it is
 written atomically, and an existing DIR is replaced only with --force (and
 only an earlier validation folder or an empty one). See "desmear help
 validation".`,
@@ -75,6 +81,7 @@ validation".`,
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()), "background-mode", "model or subtract (see \"desmear unfold --help\")")
 	f.IntVar(&o.iterations, "iterations", 0, "iterations `K` of the nominal unfolding, for closure and stress tests (default 4)")
 	f.StringVar(&o.truth, "truth", "", "truth table `T.csv` (truth,value) the toys are drawn from; default: the generated counts scaled to the data")
+	f.StringVar(&o.toyTruth, "toy-truth", "generated", "the truth the toys are drawn from, instead of --truth: `T` = generated (the generated counts scaled to the data), result (the nominal result: the toys are its refold), tilt-AXIS (the generated counts tilted by --tilt percent along AXIS) or the name of a stress test of the analysis file")
 	f.IntVar(&o.toys, "toys", validate.DefaultToys, "number of toys `N`")
 	f.IntVar(&o.maxK, "max-iterations", validate.DefaultMaxK, "scan 1..`K` iterations")
 	f.Var(flagval.NewChoice(&o.criterion, validate.MinMSE, criterionNames(), validate.Criteria()),
@@ -97,7 +104,7 @@ func criterionNames() []string {
 }
 
 // validateAnalysisFlags are the flags that apply with an analysis file.
-var validateAnalysisFlags = map[string]bool{"truth": true, "toys": true, "max-iterations": true, "criterion": true, "bias-threshold": true, "tilt": true, "seed": true, "out": true, "force": true}
+var validateAnalysisFlags = map[string]bool{"truth": true, "toy-truth": true, "toys": true, "max-iterations": true, "criterion": true, "bias-threshold": true, "tilt": true, "seed": true, "out": true, "force": true}
 
 func (o *validateOptions) checkValidate(cmd *cobra.Command, args []string) error {
 	o.flags = cmd.Flags()
@@ -120,6 +127,8 @@ func (o *validateOptions) checkValidate(cmd *cobra.Command, args []string) error
 	switch {
 	case o.flags.Changed("iterations") && o.iterations < 1:
 		return usagef("--iterations %d: give at least 1 iteration", o.iterations)
+	case o.truth != "" && o.flags.Changed("toy-truth"):
+		return usagef("give either --truth T.csv or --toy-truth, not both")
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:
@@ -138,6 +147,8 @@ type validation struct {
 	settings *unfold.Settings
 	method   *bayes.Settings
 	truth    *binning.Scheme
+	// stress are the stress tests of the analysis file.
+	stress []validate.NamedWeights
 	// locate places an error of the unfolding in the inputs.
 	locate func(error) error
 }
@@ -159,7 +170,7 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 	opt := &validate.Options{
 		Method:  v.method.WithIterations,
 		Nominal: v.method, MaxK: o.maxK, Toys: o.toys, Seed: o.seed,
-		Criterion: o.criterion, Threshold: o.threshold,
+		Criterion: o.criterion, Threshold: o.threshold, Weights: v.stress,
 	}
 	if v.truth != nil && o.tilt > 0 {
 		opt.TiltScheme, opt.TiltPercent = v.truth, o.tilt
@@ -173,6 +184,8 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 			return inputErr(fmt.Errorf("--truth: %w", err))
 		}
 		opt.TruthSource = o.truth
+	} else if err := v.toyTruth(o, opt); err != nil {
+		return err
 	}
 	p := newProgress(g)
 	p.unit = "toys"
@@ -222,6 +235,9 @@ func loadValidationAnalysis(ctx context.Context, g *globalOptions, path string) 
 		return nil, analysisErr(err)
 	}
 	b, ok := m.(*bayes.Settings)
+	if ok {
+		b.Scan = false // the toys need no iteration scan of their own
+	}
 	if !ok {
 		return nil, usagef("%s: the iteration scan applies to the iterative method (%s), not to %s", path, bayes.Name, m.Name())
 	}
@@ -231,9 +247,13 @@ func loadValidationAnalysis(ctx context.Context, g *globalOptions, path string) 
 	if err != nil {
 		return nil, analysisErr(err)
 	}
-	return &validation{prob: prob, settings: s, method: b, truth: a.Truth, locate: func(err error) error {
+	v := &validation{prob: prob, settings: s, method: b, truth: a.Truth, locate: func(err error) error {
 		return analysisErr(err)
-	}}, nil
+	}}
+	for _, st := range a.Stress {
+		v.stress = append(v.stress, validate.NamedWeights{Name: st.Name, Weights: st.Weights})
+	}
+	return v, nil
 }
 
 // loadValidationPlain reads the plain tables as "desmear unfold" does.
@@ -256,6 +276,53 @@ func loadValidationPlain(ctx context.Context, o *validateOptions) (*validation, 
 	return &validation{prob: prob, settings: s, method: m.(*bayes.Settings), truth: pi.truth, locate: func(err error) error {
 		return o.kernelErr(&pi.set, err)
 	}}, nil
+}
+
+// toyTruth sets the toys' truth of --toy-truth in opt.
+func (v *validation) toyTruth(o *validateOptions, opt *validate.Options) error {
+	name := o.toyTruth
+	var w []float64
+	switch {
+	case name == "" || name == "generated":
+		return nil
+	case name == "result":
+		opt.TruthFromResult = true
+		return nil
+	case strings.HasPrefix(name, "tilt-"):
+		if v.truth == nil {
+			return usagef("--toy-truth %s: a tilt needs a truth binning (--truth-binning)", name)
+		}
+		pct := o.tilt
+		if pct == 0 {
+			pct = validate.DefaultTiltPercent
+		}
+		var err error
+		if w, err = validate.Tilt(v.truth, strings.TrimPrefix(name, "tilt-"), pct); err != nil {
+			return usagef("--toy-truth %s: %v (axes: %s)", name, strings.TrimPrefix(err.Error(), "validate: "), strings.Join(v.truth.AxisNames(), ", "))
+		}
+		name = fmt.Sprintf("%s-%+g%%", name, pct)
+	default:
+		var names []string
+		for _, st := range v.stress {
+			if st.Name == name {
+				w = st.Weights
+			}
+			names = append(names, st.Name)
+		}
+		if w == nil {
+			list := "it has none"
+			if len(names) > 0 {
+				list = "it has " + strings.Join(names, ", ")
+			}
+			return usagef("--toy-truth %q: not generated, result, tilt-AXIS or a stress test of the analysis file (validation.stress; %s)", name, list)
+		}
+	}
+	t, err := validate.Reweighted(v.prob, w)
+	if err != nil {
+		return inputErr(fmt.Errorf("--toy-truth %s: %w", name, err))
+	}
+	opt.Truth, opt.TruthSource = t, name
+	return nil
 }
 
 // printValidation prints the scan and the recommendation.

@@ -57,6 +57,23 @@ func TestValidateDemo(t *testing.T) {
 	if c := r.Closure[1]; !c.Fluctuated || math.Abs(c.Chi2-float64(c.NDF)) > 4*math.Sqrt(2*float64(c.NDF)) {
 		t.Errorf("fluctuated closure: chi2 %v for %d bins", c.Chi2, c.NDF)
 	}
+	// The pulls of the fluctuated closure: mean 0 and width 1 within 4
+	// of their precisions 1/sqrt(n) and 1/sqrt(2(n−1)) over the n bins
+	// (common practice; the bins are correlated, hence the margin).
+	{
+		c := r.Closure[1]
+		var s, s2, n float64
+		for j, d := range r.Determined {
+			if d && c.Uncertainty[j] > 0 {
+				s, s2, n = s+c.Pull[j], s2+c.Pull[j]*c.Pull[j], n+1
+			}
+		}
+		mean := s / n
+		width := math.Sqrt((s2 - n*mean*mean) / (n - 1))
+		if math.Abs(mean) > 4/math.Sqrt(n) || math.Abs(width-1) > 4/math.Sqrt(2*(n-1)) {
+			t.Errorf("fluctuated closure pulls: mean %v, width %v over %v bins", mean, width, n)
+		}
+	}
 	if len(r.Stress) != 2 || !strings.HasPrefix(r.Stress[0].Name, "tilt-y") || r.Stress[0].Nominal == nil {
 		t.Errorf("stress tests %+v", r.Stress)
 	}
@@ -89,9 +106,43 @@ func TestValidateDemo(t *testing.T) {
 	if ch := res.Settings.IterationsChosen; ch == nil || ch.Criterion != validate.MinMSE || res.Settings.Iterations != argmin(ch.Curve)+1 {
 		t.Errorf("iterations %d, choice %+v", res.Settings.Iterations, ch)
 	}
+	// The iteration scan from an analysis file (the demo's full
+	// covariance: the variances of every iteration are the diagonals of
+	// the Jacobian recursion).
+	scan := strings.Replace(string(src), "folder: result", "folder: result-scan\n  formats: [json, iterations]", 1)
+	writeFiles(t, dir, map[string]string{"scan.yaml": scan})
+	if code, stdout, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "scan.yaml")); code != 0 {
+		t.Fatalf("iteration scan: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	checkIterationTables(t, filepath.Join(dir, "result-scan"), 4)
 	writeFiles(t, dir, map[string]string{"bad.yaml": strings.Replace(auto, "iterations: auto", "iterations: auto\n  stop_chi2: 0.5", 1)})
 	if code, _, stderr := runCLI(t, ctx, "unfold", filepath.Join(dir, "bad.yaml")); code == 0 || !strings.Contains(stderr, "unfolding.iterations") {
 		t.Errorf("auto with stop_chi2: exit %d, %s", code, stderr)
+	}
+	// Toy truths and a stress test of the analysis file.
+	stress := string(src) + "\nvalidation:\n  stress:\n    - name: harder-pt\n      weight: \"1 + 0.01*(pt - 40)\"\n"
+	writeFiles(t, dir, map[string]string{"stress.yaml": stress})
+	for _, c := range []struct{ truth, source string }{{"result", "result"}, {"harder-pt", "harder-pt"}, {"tilt-y", "tilt-y-+20%"}} {
+		o := filepath.Join(dir, "v-"+c.truth)
+		if code, stdout, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "stress.yaml"), "--out", o, "--toys", "4", "--max-iterations", "1", "--toy-truth", c.truth); code != 0 {
+			t.Fatalf("--toy-truth %s: exit %d\n%s\n%s", c.truth, code, stdout, stderr)
+		}
+		v := readValidation(t, o)
+		names := []string{}
+		for _, st := range v.Stress {
+			names = append(names, st.Name)
+		}
+		if v.TruthSource != c.source || !slices.Equal(names, []string{"harder-pt", "tilt-y-+20%", "tilt-pt-+20%"}) {
+			t.Errorf("--toy-truth %s: truth %s, stress tests %v", c.truth, v.TruthSource, names)
+		}
+		if c.truth == "result" && !slices.Equal(v.Truth, v.Nominal.Estimate) {
+			t.Errorf("the result as toy truth %v, the nominal result %v", v.Truth, v.Nominal.Estimate)
+		}
+	}
+	for _, bad := range [][]string{{"--toy-truth", "softer"}, {"--toy-truth", "tilt-eta"}, {"--toy-truth", "result", "--truth", "T.csv"}} {
+		if code, _, stderr := runCLI(t, ctx, append([]string{"validate", filepath.Join(dir, "stress.yaml"), "--out", filepath.Join(dir, "v-bad")}, bad...)...); code != exitUsage || !strings.Contains(stderr, "truth") {
+			t.Errorf("%v: exit %d, %s", bad, code, stderr)
+		}
 	}
 	// An existing folder is refused without --force.
 	if code, _, stderr := runCLI(t, ctx, "validate", filepath.Join(dir, "analysis.yaml"), "--out", out, "--toys", "4", "--max-iterations", "1"); code != exitUsage || !strings.Contains(stderr, "--force") {

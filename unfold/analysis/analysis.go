@@ -52,6 +52,18 @@ type Analysis struct {
 	Output      Output
 	Workers     int
 	BatchSize   int
+
+	// Stress lists the stress tests of validation.stress: a name and
+	// weights per truth bin, the weight expression evaluated over the
+	// truth axes at the bin centres (validate.Weights).
+	Stress []Stress
+}
+
+// Stress is a stress test of the analysis file.
+type Stress struct {
+	Name    string
+	Weight  Expression
+	Weights []float64
 }
 
 // Expression is an expression text with its position in the analysis
@@ -369,6 +381,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	if l := o.Luminosity; l < 0 || math.IsNaN(l) || math.IsInf(l, 0) {
 		c.errf(c.line("output", "luminosity"), "result.luminosity", "must be a positive integrated luminosity")
 	}
+
+	c.stress(a, doc.Validation.Stress)
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize

@@ -180,6 +180,9 @@ func TestReferenceExample(t *testing.T) {
 	if a.Unfolding.MemoryLimit != 4<<30 || a.Output.LuminosityUnit != "fb^-1" || a.BatchSize != 16384 {
 		t.Errorf("settings %+v %+v", a.Unfolding, a.Output)
 	}
+	if len(a.Stress) != 1 || a.Stress[0].Name != "harder-pt" || len(a.Stress[0].Weights) != a.Truth.Len() {
+		t.Errorf("stress tests %+v", a.Stress)
+	}
 }
 
 // An inline scheme in flow style on one line decodes, and its errors

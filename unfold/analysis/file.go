@@ -30,6 +30,17 @@ type fileDoc struct {
 	Uncertainty uncertainDoc  `yaml:"uncertainty"`
 	Output      outputDoc     `yaml:"output"`
 	Processing  processingDoc `yaml:"processing"`
+	Validation  validationDoc `yaml:"validation"`
+}
+
+// validationDoc is what only a validation uses.
+type validationDoc struct {
+	Stress []stressDoc `yaml:"stress"`
+}
+
+type stressDoc struct {
+	Name   string `yaml:"name"`
+	Weight string `yaml:"weight"`
 }
 
 type binningDoc struct {
@@ -206,12 +217,15 @@ var sections = map[reflect.Type]string{
 	reflect.TypeFor[uncertainDoc]():  "uncertainty",
 	reflect.TypeFor[outputDoc]():     "output",
 	reflect.TypeFor[processingDoc](): "processing",
+	reflect.TypeFor[validationDoc](): "validation",
+	reflect.TypeFor[stressDoc]():     "a stress test",
 }
 
 // lists describes the list sections in messages.
 var lists = map[reflect.Type]string{
 	reflect.TypeFor[[]sampleDoc](): "a list of simulated samples (- file: ...)",
 	reflect.TypeFor[[]bkgDoc]():    "a list of backgrounds (- name: ...)",
+	reflect.TypeFor[[]stressDoc](): "a list of stress tests (- name: ...)",
 }
 
 var unmarshaler = reflect.TypeFor[yaml.Unmarshaler]()

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"slices"
 	"strings"
 
 	"github.com/desmear/desmear/unfold"
@@ -17,6 +18,7 @@ import (
 	"github.com/desmear/desmear/unfold/methods/inversion"
 	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/response"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // Options control how an analysis runs. The zero value is usable.
@@ -445,7 +447,8 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	var m unfold.Method
 	switch u.Method {
 	case bayes.Name, "":
-		b := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations}
+		b := &bayes.Settings{Iterations: u.Iterations, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
+			Scan: slices.Contains(a.Output.Formats, result.IterationsFormat)}
 		if u.Smoothing != 0 {
 			b.Smoothing = &bayes.Smoothing{Neighbours: a.Truth, Strength: u.Smoothing}
 		}

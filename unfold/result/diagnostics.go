@@ -69,6 +69,9 @@ func (r *Result) SetProblem(p *unfold.Problem) {
 			r.FoldedBins++
 		}
 	}
+	if r.Scan != nil && p.Migrations != nil {
+		r.Scan.foldedChi2(r, p)
+	}
 }
 
 // PullVariance returns var n_i + var b_i of reco bin i, the variance of

@@ -39,12 +39,12 @@ func num(t *testing.T, s string) float64 {
 	return v
 }
 
-// diagnosticsProblem unfolds problem D of method.md §10 Reference values
-// used by the tests (3 truth × 4 reco bins) with a background of known
-// variance and the full covariance, and returns the document.
-func diagnosticsProblem(t *testing.T) *Result {
+// problemD is problem D of method.md §10 Reference values used by the
+// tests (3 truth × 4 reco bins) with a background of known variance, the
+// generated counts all g (so A = g R).
+func problemD(t *testing.T, g float64) *unfold.Problem {
 	t.Helper()
-	// R with rows = reco, columns = truth; G = 1, so A = R.
+	// R with rows = reco, columns = truth.
 	cols := [][]float64{{0.60, 0.20, 0.05, 0}, {0.10, 0.60, 0.15, 0.05}, {0, 0.10, 0.60, 0.20}}
 	var ptr, row []int
 	var val []float64
@@ -52,7 +52,7 @@ func diagnosticsProblem(t *testing.T) *Result {
 	for _, c := range cols {
 		for i, v := range c {
 			if v != 0 {
-				row, val = append(row, i), append(val, v)
+				row, val = append(row, i), append(val, g*v)
 			}
 		}
 		ptr = append(ptr, len(row))
@@ -61,9 +61,23 @@ func diagnosticsProblem(t *testing.T) *Result {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p := &unfold.Problem{Migrations: a, Generated: []float64{1, 1, 1}, Data: []float64{667, 578, 325, 87},
+	return &unfold.Problem{Migrations: a, Generated: []float64{g, g, g}, Data: []float64{667, 578, 325, 87},
 		Background: []float64{20, 5, 30, 10}, BackgroundVariance: []float64{4, 1, 9, 0}}
-	res, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Covariance: unfold.Full}, &bayes.Settings{Iterations: 3})
+}
+
+// diagnosticsProblem unfolds problem D (G = 1, so A = R) with the full
+// covariance and returns the document.
+func diagnosticsProblem(t *testing.T) *Result {
+	t.Helper()
+	r, _ := unfoldDoc(t, problemD(t, 1), &unfold.Settings{Covariance: unfold.Full}, &bayes.Settings{Iterations: 3})
+	return r
+}
+
+// unfoldDoc unfolds p and returns the document (with SetProblem) and the
+// kernel's result.
+func unfoldDoc(t *testing.T, p *unfold.Problem, s *unfold.Settings, m unfold.Method) (*Result, *unfold.Result) {
+	t.Helper()
+	res, err := unfold.Unfold(context.Background(), p, s, m)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -72,7 +86,7 @@ func diagnosticsProblem(t *testing.T) *Result {
 		t.Fatal(err)
 	}
 	r.SetProblem(p)
-	return r
+	return r, res
 }
 
 // The pulls and the folded chi-square follow method.md §16 Folded

@@ -23,6 +23,8 @@
 //	csv      result.csv        csv.go      one row per truth bin
 //	diagnostics  reco-bins.csv, truth-bins.csv, correlation.csv, history.csv, response.csv
 //	                           diagnostics.go  data against the folded estimate, per-bin checks
+//	iterations  iterations.csv, iterations-bins.csv  iterations.go  the iteration scan (Scan);
+//	                                       not a default format
 //	record   record/*.yaml     record.go   the data-record tables (submission file, a table per slice, covariances)
 //	regions  region-NAME.csv   regions.go  per truth region: edges, volume, counts and densities
 //	report   plots/*.png|svg, report.html  report.go, plots.go, html.go  the plots (package figure) and the page

@@ -115,9 +115,12 @@ type Result struct {
 	Migrations *sparse.Matrix `json:"-"`
 	// Tikhonov, Inversion and BinByBin are the outcomes of those methods
 	// (absent for the others).
-	Tikhonov  *Tikhonov  `json:"tikhonov,omitempty"`
-	Inversion *Inversion `json:"inversion,omitempty"`
-	BinByBin  *BinByBin  `json:"bin_by_bin,omitempty"`
+	// Scan is the iteration scan of the iterative method when it was
+	// asked for (the "iterations" format; not part of result.json).
+	Scan      *IterationScan `json:"-"`
+	Tikhonov  *Tikhonov      `json:"tikhonov,omitempty"`
+	Inversion *Inversion     `json:"inversion,omitempty"`
+	BinByBin  *BinByBin      `json:"bin_by_bin,omitempty"`
 
 	// TruthBinning and RecoBinning describe the binning schemes when
 	// they were given.
@@ -399,6 +402,7 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 	case *binbybin.Details:
 		r.BinByBin = &BinByBin{Caution: d.Caution, Factors: slices.Clone(d.Factors)}
 	}
+	r.Scan = newIterationScan(res.StepEstimates, res.StepVariance, res.Determined)
 	copy(r.Determined, res.Determined)
 	copy(r.Efficiency, res.Efficiency)
 	for j := range r.Estimate {

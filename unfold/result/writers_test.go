@@ -131,13 +131,13 @@ func TestWritersSameForBothModes(t *testing.T) {
 // registered once.
 func TestRegistry(t *testing.T) {
 	want := []string{"json", "csv", "diagnostics", "record", "regions", "report", "root", "tau-scan"}
-	if got := Formats(); !reflect.DeepEqual(got, want) {
-		t.Errorf("Formats() = %v, want %v", got, want)
+	if got := Formats(); !reflect.DeepEqual(got, []string{"json", "csv", "diagnostics", "iterations", "record", "regions", "report", "root", "tau-scan"}) {
+		t.Errorf("Formats() = %v", got)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, record, regions, report, root, tau-scan)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, iterations, record, regions, report, root, tau-scan)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {

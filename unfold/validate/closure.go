@@ -157,28 +157,9 @@ func Stress(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m unfold
 	if err != nil {
 		return nil, err
 	}
-	nt := pr.TruthBins()
-	if len(w) != nt {
-		return nil, fmt.Errorf("validate: stress test %s: %d weights, want one per truth bin (%d)", name, len(w), nt)
-	}
-	truth := make([]float64, nt)
-	var sum float64
-	for j, d := range pr.Determined() {
-		if !d {
-			continue
-		}
-		if !(w[j] >= 0) || math.IsInf(w[j], 0) {
-			return nil, fmt.Errorf("validate: stress test %s: weight %v of truth bin %d is not a finite number ≥ 0", name, w[j], j)
-		}
-		truth[j] = p.Generated[j] * w[j]
-		sum += pr.Efficiency()[j] * truth[j]
-	}
-	if !(sum > 0) {
-		return nil, fmt.Errorf("validate: stress test %s: the reweighted truth folds to nothing", name)
-	}
-	f := pr.Net() / sum
-	for j := range truth {
-		truth[j] *= f
+	truth, err := reweighted(pr, p.Generated, w)
+	if err != nil {
+		return nil, fmt.Errorf("validate: stress test %s: %w", name, err)
 	}
 	data := expected(pr, p.Background, truth)
 	c, _, err := unfoldKnown(ctx, p, s, m, name, data, truth, false)
@@ -205,42 +186,15 @@ func Tilt(scheme *binning.Scheme, axis string, percent float64) ([]float64, erro
 	if !(math.Abs(percent) < 100) {
 		return nil, fmt.Errorf("validate: a tilt of %v%% would make weights negative; give a size below 100%%", percent)
 	}
-	n := scheme.Len()
-	lo, hi := math.Inf(1), math.Inf(-1)
-	centre := make([]float64, n)
-	has := make([]bool, n)
-	for g := range n {
-		b := scheme.Bin(g)
-		for k, name := range b.Axes {
-			if name != axis {
-				continue
-			}
-			l, h := b.Low[k], b.High[k]
-			switch {
-			case math.IsInf(l, -1) && math.IsInf(h, 1):
-				continue // a flow bin summing over the axis: weight 1
-			case math.IsInf(l, -1):
-				centre[g] = math.Inf(-1)
-			case math.IsInf(h, 1):
-				centre[g] = math.Inf(1)
-			default:
-				centre[g] = (l + h) / 2
-				if g < scheme.InRange() {
-					lo, hi = min(lo, l), max(hi, h)
-				}
-			}
-			has[g] = true
-		}
-	}
-	if !(hi > lo) {
+	c := axisCentres(scheme, axis)
+	if !(c.hi > c.lo) {
 		return nil, fmt.Errorf("validate: axis %q has no in-range width", axis)
 	}
-	w := make([]float64, n)
-	for g := range n {
+	w := make([]float64, len(c.x))
+	for g, x := range c.x {
 		w[g] = 1
-		if has[g] {
-			x := min(max(centre[g], lo), hi)
-			w[g] = 1 + percent/100*(2*(x-lo)/(hi-lo)-1)
+		if c.has[g] {
+			w[g] = 1 + percent/100*(2*(x-c.lo)/(c.hi-c.lo)-1)
 		}
 	}
 	return w, nil

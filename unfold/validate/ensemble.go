@@ -33,7 +33,9 @@ type Config struct {
 	// (DiagonalAuto unless DiagonalMethod says otherwise).
 	Settings *unfold.Settings
 	// Method returns the method at regularisation strength k, k = 1..MaxK
-	// (for the iterative method: k iterations).
+	// (for the iterative method: k iterations). When Method(MaxK) is a
+	// Scanner, each toy is unfolded once with its steps kept, and the
+	// estimate and uncertainty at k are those of step k.
 	Method func(k int) unfold.Method
 	// MaxK is the largest regularisation strength scanned (≥ 1).
 	MaxK int
@@ -47,6 +49,17 @@ type Config struct {
 	// Progress, when not nil, is called after each toy with the toys
 	// done and the toys of this run, from one goroutine at a time.
 	Progress func(done, total int)
+}
+
+// Scanner is a method whose computation passes through the
+// regularisation strengths 1..k in order (the iterations of the
+// iterative method) and can keep them: Scanned returns the method
+// keeping every step (an unfold.Stepper fit, whose step k is what the
+// method at strength k computes, bit for bit). A toy scan then costs one
+// run of the largest strength instead of one run per strength.
+type Scanner interface {
+	unfold.Method
+	Scanned() unfold.Method
 }
 
 // Block holds the moments of BlockToys consecutive toys (fewer for the
@@ -184,10 +197,9 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 	e := &Ensemble{MaxK: K, Truth: append([]float64(nil), c.Truth...), Det: append([]bool(nil), p.Determined()...), Seed: c.Seed}
 
 	workers := max(1, min(runtime.GOMAXPROCS(0), count))
-	type slot struct {
-		prob     unfold.Problem
-		est, sig [][]float64 // per k
-		err      error
+	var scan unfold.Method
+	if sc, ok := c.Method(K).(Scanner); ok {
+		scan = sc.Scanned()
 	}
 	slots := make([]slot, workers)
 	for w := range slots {
@@ -208,6 +220,10 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 			sl := &slots[w]
 			sl.err = nil
 			poisson(sl.prob.Data, nu, c.Seed, toyStream+uint64(t0+w))
+			if scan != nil {
+				sl.err = sl.scan(ctx, &rs, scan, K, t0+w)
+				return
+			}
 			for k := 1; k <= K; k++ {
 				res, err := unfold.Unfold(ctx, &sl.prob, &rs, c.Method(k))
 				if err != nil {
@@ -241,6 +257,41 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 		}
 	}
 	return e, nil
+}
+
+// slot is the work of one toy at a time: its problem (the toy's data)
+// and its estimates and uncertainties per k.
+type slot struct {
+	prob     unfold.Problem
+	est, sig [][]float64 // per k
+	err      error
+}
+
+// scan unfolds the slot's toy once with the scanning method m (MaxK = K)
+// and takes the estimate and uncertainty at k from step k.
+func (sl *slot) scan(ctx context.Context, rs *unfold.Settings, m unfold.Method, K, toy int) error {
+	res, err := unfold.Unfold(ctx, &sl.prob, rs, m)
+	if err != nil {
+		return fmt.Errorf("toy %d: %w", toy, err)
+	}
+	if len(res.StepEstimates) != K+1 || len(res.StepVariance) != K+1 {
+		return fmt.Errorf("validate: toy %d: the scanning method kept %d steps, want %d", toy, len(res.StepEstimates), K+1)
+	}
+	for k := 1; k <= K; k++ {
+		sig := sl.sig[k-1]
+		if len(sig) != len(res.Estimate) {
+			sig = make([]float64, len(res.Estimate))
+			sl.sig[k-1] = sig
+		}
+		for j, v := range res.StepVariance[k] {
+			sig[j] = 0
+			if res.Determined[j] && v > 0 {
+				sig[j] = math.Sqrt(v) // as unfold.Result.Uncertainty
+			}
+		}
+		sl.est[k-1] = res.StepEstimates[k]
+	}
+	return nil
 }
 
 // addToy adds one toy's estimate and uncertainties.

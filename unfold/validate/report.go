@@ -20,10 +20,13 @@ type Options struct {
 	Toys int
 	Seed uint64
 	// Truth is the truth of the toys; nil means the generated spectrum
-	// scaled to the data (ScaledGenerated). TruthSource names it in the
-	// report ("generated" when Truth is nil).
-	Truth       []float64
-	TruthSource string
+	// scaled to the data (ScaledGenerated), or with TruthFromResult the
+	// nominal result (the estimate of the data with the Nominal method:
+	// the toys are its refold). TruthSource names it in the report
+	// ("generated" or "result" when Truth is nil).
+	Truth           []float64
+	TruthSource     string
+	TruthFromResult bool
 	// Tilts, when TiltScheme is not nil, adds one stress test per axis of
 	// the scheme: a linear tilt of TiltPercent (Tilt). Weights adds
 	// stress tests of given weights per truth bin, by name.
@@ -65,41 +68,52 @@ type Report struct {
 	Recommendation *Recommendation `json:"recommendation"`
 	Closure        []*Check        `json:"closure"`
 	Stress         []*Check        `json:"stress"`
+	// Nominal is the nominal result (the data unfolded with the nominal
+	// method) that the stress tests are compared with.
+	Nominal *Nominal `json:"nominal"`
+}
+
+// Nominal is the estimate of the data and its per-bin uncertainty.
+type Nominal struct {
+	Estimate    []float64 `json:"estimate"`
+	Uncertainty []float64 `json:"uncertainty"`
 }
 
 // ScaledGenerated returns the generated spectrum G of p scaled so that
 // its fold matches the data: G · Σ(n − b) / Σ_j eps_j G_j, 0 where not
 // determined.
 func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
-	pr, err := unfold.Prepare(p, unfold.InModel)
-	if err != nil {
-		return nil, err
+	w := make([]float64, len(p.Generated))
+	for j := range w {
+		w[j] = 1
 	}
-	t := make([]float64, pr.TruthBins())
-	var s float64
-	for j, d := range pr.Determined() {
-		if d {
-			t[j] = p.Generated[j]
-			s += pr.Efficiency()[j] * t[j]
-		}
-	}
-	f := pr.Net() / s
-	if !(f > 0) {
-		return nil, fmt.Errorf("validate: the data minus the background sum to %v ≤ 0: there is no statistics to draw toys at", pr.Net())
-	}
-	for j := range t {
-		t[j] *= f
-	}
-	return t, nil
+	return Reweighted(p, w)
 }
 
 // Validate runs the toy ensemble of o, the closure tests (exact and
 // fluctuated), the stress tests and the recommendation on problem p
 // with the common settings s.
 func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Options) (*Report, error) {
+	ns, err := s.Resolve()
+	if err != nil {
+		return nil, err
+	}
+	ns.Covariance, ns.DiagonalMethod = unfold.Diagonal, unfold.DiagonalAuto
+	nominal, err := unfold.Unfold(ctx, p, &ns, o.Nominal)
+	if err != nil {
+		return nil, err
+	}
 	truth, src := o.Truth, o.TruthSource
-	if truth == nil {
-		var err error
+	switch {
+	case truth != nil:
+	case o.TruthFromResult:
+		truth, src = make([]float64, len(nominal.Estimate)), "result"
+		for j, d := range nominal.Determined {
+			if d {
+				truth[j] = nominal.Estimate[j]
+			}
+		}
+	default:
 		if truth, err = ScaledGenerated(p); err != nil {
 			return nil, err
 		}
@@ -110,7 +124,8 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 	if err != nil {
 		return nil, err
 	}
-	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan()}
+	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan(),
+		Nominal: &Nominal{Estimate: nominal.Estimate, Uncertainty: nominal.Uncertainty}}
 	crit := o.Criterion
 	if crit == "" {
 		crit = MinMSE
@@ -125,12 +140,6 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 			return nil, err
 		}
 		r.Closure = append(r.Closure, ch)
-	}
-	ns, _ := s.Resolve()
-	ns.Covariance, ns.DiagonalMethod = unfold.Diagonal, unfold.DiagonalAuto
-	nominal, err := unfold.Unfold(ctx, p, &ns, o.Nominal)
-	if err != nil {
-		return nil, err
 	}
 	tests := append([]NamedWeights(nil), o.Weights...)
 	if o.TiltScheme != nil {

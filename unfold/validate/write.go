@@ -7,6 +7,7 @@ import (
 	"strconv"
 
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
+	"github.com/desmear/desmear/unfold/result/figure"
 )
 
 // The files of a validation folder; JSONFile also marks a folder as an
@@ -18,8 +19,11 @@ const (
 	ChecksFile   = "checks.csv"
 )
 
-// Files lists the files WriteFolder writes, in order.
-func Files() []string { return []string{JSONFile, ScanFile, ScanBinsFile, ChecksFile} }
+// Files lists the files WriteFolder writes, in order: the document, the
+// tables and the figure of the scan (ScanFigure) as PNG and SVG.
+func Files() []string {
+	return []string{JSONFile, ScanFile, ScanBinsFile, ChecksFile, ScanPlot + "." + figure.PNG, ScanPlot + "." + figure.SVG}
+}
 
 // CheckFolder reports early whether a validation folder could be
 // written at dir (see atomicfile.Check: an existing folder only with
@@ -70,6 +74,16 @@ func WriteFolder(dir string, replace bool, prog Program, r *Report) error {
 			return err
 		}
 	}
+	fig := r.ScanFigure()
+	for _, format := range []string{figure.PNG, figure.SVG} {
+		b, err := figure.Render(fig, format)
+		if err != nil {
+			return err
+		}
+		if err := f.WriteFile(ScanPlot+"."+format, b); err != nil {
+			return err
+		}
+	}
 	return f.Commit()
 }
 
@@ -116,18 +130,19 @@ func (r *Report) scanBinRows() [][]string {
 // checkRows: one row per closure or stress test and determined truth
 // bin.
 func (r *Report) checkRows() [][]string {
-	rows := [][]string{{"test", "bin", "label", "truth", "estimate", "uncertainty", "bias", "pull", "nominal_difference", "nominal_pull"}}
+	rows := [][]string{{"test", "bin", "label", "truth", "estimate", "uncertainty", "bias", "pull", "nominal", "nominal_uncertainty", "nominal_difference", "nominal_pull"}}
 	for _, c := range append(append([]*Check(nil), r.Closure...), r.Stress...) {
 		for j, d := range r.Determined {
 			if !d {
 				continue
 			}
-			nd, np := "", ""
-			if c.Nominal != nil {
+			nv, nu, nd, np := "", "", "", ""
+			if c.Nominal != nil && r.Nominal != nil {
+				nv, nu = num(r.Nominal.Estimate[j]), num(r.Nominal.Uncertainty[j])
 				nd, np = num(c.Nominal.Difference[j]), num(c.Nominal.Pull[j])
 			}
 			rows = append(rows, []string{c.Name, strconv.Itoa(j), r.label(j), num(c.Truth[j]), num(c.Estimate[j]), num(c.Uncertainty[j]),
-				num(c.Bias[j]), num(c.Pull[j]), nd, np})
+				num(c.Bias[j]), num(c.Pull[j]), nv, nu, nd, np})
 		}
 	}
 	return rows

@@ -20,6 +20,8 @@ import (
 // with S = [Rᵀ diag(1/ν) | −Rᵀ diag(n/ν²)], and J(0) = p/Σ(eps p) [1ᵀ | −1ᵀ].
 type jacobian struct {
 	m    *model
+	dst  *unfold.Jacobian
+	k    int // the iteration the buffers hold
 	cols int
 	j, w []float64 // two row-major nt×cols buffers
 
@@ -42,7 +44,7 @@ const jacobianBlock = 512 // columns per block of the dense update
 // newJacobian prepares the recursion for m in the buffers of dst.
 func newJacobian(m *model, dst *unfold.Jacobian) *jacobian {
 	nt, nr := m.nt, m.nr
-	jc := &jacobian{m: m, cols: dst.Cols, j: dst.Data, w: dst.Work}
+	jc := &jacobian{m: m, dst: dst, cols: dst.Cols, j: dst.Data, w: dst.Work}
 
 	// Rows of R.
 	jc.cVal = m.rValues()
@@ -108,7 +110,16 @@ func (jc *jacobian) init(ctx context.Context, it *iterator) error {
 			row[q] = -c
 		}
 	}
+	jc.k = 0
+	jc.report()
 	return nil
+}
+
+// report hands the Jacobian of iteration jc.k to the driver
+// (unfold.Jacobian.Step).
+func (jc *jacobian) report() {
+	jc.dst.Data, jc.dst.Work = jc.j, jc.w
+	jc.dst.Step(jc.k)
 }
 
 // values computes A = Rᵀ diag(n/ν²) R for the current ν.
@@ -189,5 +200,7 @@ func (jc *jacobian) step(ctx context.Context, it *iterator) error {
 		W, J = it.sm.applyRows(J, W, cols)
 	}
 	jc.j, jc.w = W, J
+	jc.k++
+	jc.report()
 	return nil
 }

@@ -31,6 +31,17 @@ func (s *Settings) WithIterations(k int) unfold.Method {
 	return &c
 }
 
+// Scanned returns a copy of s that keeps every iteration (Scan): the
+// iteration scan in one run.
+func (s *Settings) Scanned() unfold.Method {
+	var c Settings
+	if s != nil {
+		c = *s
+	}
+	c.Scan = true
+	return &c
+}
+
 // Fit runs the iteration on p. The result's Details are a *Details.
 func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
 	rs, err := s.resolve()
@@ -45,11 +56,16 @@ func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, err
 		}
 	}
 	it := newIterator(m, sm)
-	d, err := it.run(ctx, m.n, rs, nil)
+	var tan tangents
+	var kept [][]float64
+	if rs.Scan {
+		tan = &recorder{each: func(_ int, mu []float64) { kept = append(kept, append([]float64(nil), mu...)) }}
+	}
+	d, err := it.run(ctx, m.n, rs, tan)
 	if err != nil {
 		return nil, err
 	}
-	return &fit{m: m, sm: sm, details: d,
+	return &fit{m: m, sm: sm, details: d, kept: kept,
 		estimate: append([]float64(nil), it.mu...),
 		folded:   append([]float64(nil), it.nu...)}, nil
 }
@@ -61,6 +77,7 @@ type fit struct {
 	m                *model
 	sm               *smoother
 	details          *Details
+	kept             [][]float64 // the estimate of every iteration (Scan)
 	estimate, folded []float64
 	pr               *probes // the last batch's, reused by the next of its size
 }
@@ -68,6 +85,10 @@ type fit struct {
 func (f *fit) Estimate() []float64 { return f.estimate }
 func (f *fit) Folded() []float64   { return f.folded }
 func (f *fit) Details() any        { return f.details }
+
+// StepEstimates returns the estimate of every iteration kept with
+// Settings.Scan, the start first (unfold.Stepper); nil without.
+func (f *fit) StepEstimates() [][]float64 { return f.kept }
 
 // Jacobian carries the dense Jacobian along a re-run of the iteration.
 func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
@@ -96,6 +117,10 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 func (f *fit) NewToyRunner() unfold.ToyRunner {
 	r := &toyRunner{mod: *f.m, rs: fixedIterations(f.details.Iterations)}
 	r.it = newIterator(&r.mod, f.sm)
+	if f.kept != nil {
+		r.rec = &recorder{}
+		return &stepToyRunner{r}
+	}
 	return r
 }
 
@@ -104,6 +129,7 @@ type toyRunner struct {
 	it  *iterator
 	rs  *resolved
 	d   Details
+	rec *recorder // reports the steps (stepToyRunner)
 }
 
 func (r *toyRunner) Run(ctx context.Context, n, b []float64) ([]float64, error) {

@@ -45,6 +45,7 @@ type probes struct {
 	update  func(j int, g, x []float64)
 	cur     int // first probe of the block being swept
 	it      *iterator
+	k       int // the iteration the tangents hold
 }
 
 // perProbe makes every probe of the method's fits sweep on its own (the
@@ -163,7 +164,12 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 			tf[i*k+o] = c * v
 		}
 	})
-	return ctx.Err()
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	pr.k = 0
+	pr.batch.Step(0)
+	return nil
 }
 
 func (pr *probes) step(ctx context.Context, it *iterator) error {
@@ -186,7 +192,12 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 		if it.sm != nil {
 			panic("bayes: probes in blocks with smoothing")
 		}
-		return pr.stepBlocks(ctx, it)
+		if err := pr.stepBlocks(ctx, it); err != nil {
+			return err
+		}
+		pr.k++
+		pr.batch.Step(pr.k)
+		return nil
 	}
 	// Probes run on separate goroutines; each Sweep is itself
 	// deterministic, so the bits do not depend on the scheduling.
@@ -211,7 +222,12 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 	for range pr.work {
 		<-done
 	}
-	return ctx.Err()
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	pr.k++
+	pr.batch.Step(pr.k)
+	return nil
 }
 
 // one advances probe s by one iteration.

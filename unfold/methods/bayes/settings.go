@@ -35,6 +35,13 @@ type Settings struct {
 	// Smoothing, when not nil, smooths the estimate after every
 	// iteration before it becomes the next prior.
 	Smoothing *Smoothing
+
+	// Scan keeps the estimate of every iteration
+	// (unfold.Result.StepEstimates) and
+	// makes the uncertainty computation record the per-bin variance of
+	// every iteration (unfold.Result.StepVariance), in the same run: the
+	// iteration scan. It costs two truth-sized vectors per iteration.
+	Scan bool
 }
 
 // resolved is Settings with the defaults filled in and checked.
