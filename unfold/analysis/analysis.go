@@ -53,6 +53,11 @@ type Analysis struct {
 	Workers     int
 	BatchSize   int
 
+	// Compare, when not empty, names a reference spectrum (a truth,value
+	// table over the truth binning) that the result is compared with
+	// (key compare; resolved).
+	Compare string
+
 	// Stress lists the stress tests of validation.stress: a name and
 	// weights per truth bin, the weight expression evaluated over the
 	// truth axes at the bin centres (validate.Weights).
@@ -383,6 +388,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 
 	c.stress(a, doc.Validation.Stress)
+	if nodeAt(root, "compare") != nil {
+		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
+	}
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize

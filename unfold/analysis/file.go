@@ -31,6 +31,7 @@ type fileDoc struct {
 	Output      outputDoc     `yaml:"output"`
 	Processing  processingDoc `yaml:"processing"`
 	Validation  validationDoc `yaml:"validation"`
+	Compare     string        `yaml:"compare"`
 }
 
 // validationDoc is what only a validation uses.

@@ -72,11 +72,16 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		}
 	}
 	out.Problem = p
+	ref, err := a.Reference()
+	if err != nil {
+		return nil, err
+	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
-	if err := a.write(out, s, m, replace, opt); err != nil {
-		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
+	if err := a.write(out, s, m, ref, replace, opt); err != nil {
+		var ne *unfold.NumericalError // of the comparison with the reference
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) || errors.As(err, &ne) {
 			return nil, err
 		}
 		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
@@ -181,6 +186,9 @@ func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
 	if err := add("prior", a.Unfolding.PriorFile); err != nil {
 		return nil, err
 	}
+	if err := add("compare", a.Compare); err != nil {
+		return nil, err
+	}
 	return ins, nil
 }
 
@@ -197,7 +205,7 @@ func finitePtrs(v []float64) []*float64 {
 	return out
 }
 
-func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, replace bool, opt *Options) (err error) {
+func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref []float64, replace bool, opt *Options) (err error) {
 	doc, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err
@@ -234,6 +242,11 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+	if ref != nil {
+		if err := doc.Compare(out.Result, ref, a.Compare, a.Truth); err != nil {
+			return err
+		}
+	}
 
 	f, err := result.New(a.Output.Folder, replace)
 	if err != nil {

@@ -495,6 +495,21 @@ func (a *Analysis) Prior() ([]float64, error) {
 	return nil, nil
 }
 
+// Reference reads the reference spectrum of the key compare (nil when
+// none is given), one value per bin of the truth binning; errors are
+// *tables.Error values naming the file and the line.
+func (a *Analysis) Reference() ([]float64, error) {
+	if a.Compare == "" {
+		return nil, nil
+	}
+	v, err := tables.LoadVector(a.Compare, tables.Prior)
+	if err != nil {
+		return nil, err
+	}
+	ref, _, err := v.Dense(a.Truth.Len(), "the truth binning")
+	return ref, err
+}
+
 // Problem assembles the unfolding problem.
 func (a *Analysis) Problem(r *response.Built, data *Measured, bkg *Expected) (*unfold.Problem, error) {
 	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, Data: data.Values, DataVariance: data.Variance}

@@ -69,6 +69,9 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// Comparison compares the result with a reference spectrum, when
+	// one was given.
+	Comparison *Comparison `json:"comparison,omitempty"`
 	// Determined flags the truth bins the response can measure
 	// (efficiency > 0).
 	Determined []bool `json:"determined"`
