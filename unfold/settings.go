@@ -199,6 +199,10 @@ type Settings struct {
 	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
 	// the probe vectors held at once (zero means DefaultMemoryLimit).
 	MemoryLimit int64
+	// BiasToys is the number of toys of the bias estimate beside the
+	// result (package validate, EstimateBias); 0, the default, is off.
+	// Unfold itself does not use it.
+	BiasToys int
 }
 
 // Resolve checks s (nil means the zero value) and returns it with the
@@ -215,6 +219,8 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"Probes", "must be at least 2"}
 	case r.Toys < 0 || r.Toys == 1:
 		return r, &SettingsError{"Toys", "must be at least 2"}
+	case r.BiasToys < 0 || r.BiasToys == 1:
+		return r, &SettingsError{"BiasToys", "must be 0 (no bias estimate) or at least 2"}
 	case r.MemoryLimit < 0:
 		return r, &SettingsError{"MemoryLimit", "must not be negative"}
 	case r.Background < 0 || int(r.Background) >= len(backgroundNames):

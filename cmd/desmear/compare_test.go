@@ -110,3 +110,44 @@ func TestAnalysisCompare(t *testing.T) {
 		t.Errorf("missing reference: exit %d, stderr %q", code, stderr)
 	}
 }
+
+// --bias-toys: the bias estimate beside the uncertainty in result.csv
+// (bias, bias_error) and in result.json (bias, with its toys and seed);
+// 1 toy is refused at the flag, and uncertainty.bias_toys: 1 at its line.
+// The numbers are checked in unfold/validate (method.md §20).
+func TestUnfoldBiasToys(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), oracleD)
+	out := filepath.Join(dir, "out")
+	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--bias-toys", "50")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	r, _ := readResult(t, out)
+	if r.Bias == nil || r.Bias.Toys != 50 || len(r.Bias.Values) != 3 || len(r.Bias.Error) != 3 || r.Settings.BiasToys != 50 {
+		t.Fatalf("bias %+v, settings %+v", r.Bias, r.Settings)
+	}
+	for j, e := range r.Bias.Error {
+		if !(e > 0) {
+			t.Errorf("bin %d: bias error %v", j, e)
+		}
+	}
+	rows := readCSV(t, filepath.Join(out, "result.csv"))
+	if h := strings.Join(rows[0], ","); !strings.Contains(h, "uncertainty,bias,bias_error,") {
+		t.Errorf("result.csv header %s", h)
+	}
+	code, _, stderr = runCLI(t, context.Background(), append(oracleDArgs(dir, filepath.Join(dir, "out2")), "--bias-toys", "1")...)
+	if code != exitUsage || !strings.Contains(stderr, "--bias-toys 1") {
+		t.Errorf("--bias-toys 1: exit %d, stderr %q", code, stderr)
+	}
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	bad := strings.Replace(string(src), "uncertainty:\n", "uncertainty:\n  bias_toys: 1\n", 1)
+	if bad == string(src) {
+		t.Fatal("the test analysis has no uncertainty section")
+	}
+	os.WriteFile(path, []byte(bad), 0o644)
+	code, _, stderr = runCLI(t, context.Background(), "unfold", path)
+	if code != exitInput || !strings.Contains(stderr, "uncertainty.bias_toys: must be 0") {
+		t.Errorf("bias_toys: 1: exit %d, stderr %q", code, stderr)
+	}
+}

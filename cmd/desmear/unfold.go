@@ -52,6 +52,7 @@ type unfoldOptions struct {
 	covariance    unfold.CovarianceMode
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
+	biasToys      int
 	seed          uint64
 	memoryLimit   int64
 
@@ -172,6 +173,7 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
 	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
+	f.IntVar(&o.biasToys, "bias-toys", 0, "estimate the bias of the result on `N` toys drawn from the result refolded, at the chosen regularisation (a model-dependent estimate, not a correction; default 0: off)")
 	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
@@ -331,6 +333,7 @@ var settingFlags = map[string]string{
 	"Toys":           "toys",
 	"Seed":           "seed",
 	"MemoryLimit":    "memory-limit",
+	"BiasToys":       "bias-toys",
 }
 
 // flagErr turns an *unfold.SettingsError into a usage error naming the
@@ -358,6 +361,7 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 		Toys:           o.toys,
 		Seed:           o.seed,
 		MemoryLimit:    o.memoryLimit,
+		BiasToys:       o.biasToys,
 	}
 	switch o.method {
 	case bayes.Name:
@@ -618,6 +622,18 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err != nil {
 		return o.kernelErr(&pi.set, err)
 	}
+	var bias *validate.Bias
+	if settings.BiasToys > 0 {
+		p := newProgress(g)
+		p.unit = "toys"
+		bias, err = validate.EstimateBias(ctx, prob, settings, method, res, func(done, total int) {
+			p.report("estimating the bias", int64(done), int64(total))
+		})
+		p.finish()
+		if err != nil {
+			return o.kernelErr(&pi.set, err)
+		}
+	}
 	hook(ctx, "unfolded")
 
 	r, err := result.FromUnfold(res)
@@ -633,6 +649,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	r.Settings = result.DescribeSettings(settings, method, prior, o.background != "")
 	r.Settings.IterationsChosen = choice
+	r.SetBias(bias)
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 	}

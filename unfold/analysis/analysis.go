@@ -180,6 +180,7 @@ type Uncertainty struct {
 	Probes     int
 	Toys       int
 	Seed       uint64
+	BiasToys   int // toys of the bias estimate; 0: none
 }
 
 // Output holds the output settings.
@@ -341,7 +342,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Uncertainty.
 	un, o := doc.Uncertainty, doc.Output
-	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
+	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, BiasToys: un.BiasToys}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
@@ -455,6 +456,7 @@ var settingKeys = map[string][]any{
 	"Probes":         {"uncertainty", "probes"},
 	"Toys":           {"uncertainty", "toys"},
 	"Seed":           {"uncertainty", "seed"},
+	"BiasToys":       {"uncertainty", "bias_toys"},
 }
 
 // sameBins reports whether two schemes have the same bins (the same

@@ -146,6 +146,7 @@ type uncertainDoc struct {
 	Probes     int    `yaml:"probes"`
 	Toys       int    `yaml:"toys"`
 	Seed       uint64 `yaml:"seed"`
+	BiasToys   int    `yaml:"bias_toys"`
 }
 
 type outputDoc struct {

@@ -40,6 +40,8 @@ type Outcome struct {
 	// IterationsChosen records the automatic choice of the number of
 	// iterations (iterations: auto); nil otherwise.
 	IterationsChosen *validate.Choice
+	// Bias is the bias estimate of uncertainty.bias_toys; nil without.
+	Bias *validate.Bias
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -78,6 +80,15 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
+	}
+	if s.BiasToys > 0 {
+		var progress func(done, total int)
+		if opt != nil && opt.Progress != nil {
+			progress = func(done, total int) { opt.Progress("estimating the bias", int64(done), int64(total)) }
+		}
+		if out.Bias, err = validate.EstimateBias(ctx, p, s, m, out.Result, progress); err != nil {
+			return nil, a.placeKernelError(err)
+		}
 	}
 	if err := a.write(out, s, m, ref, replace, opt); err != nil {
 		var ne *unfold.NumericalError // of the comparison with the reference
@@ -242,6 +253,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+	doc.SetBias(out.Bias)
 	if ref != nil {
 		if err := doc.Compare(out.Result, ref, a.Compare, a.Truth); err != nil {
 			return err

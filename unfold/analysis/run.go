@@ -431,7 +431,7 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 // (Decode has refused those already too).
 func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit, BiasToys: un.BiasToys}
 	// names are the settings given by name in the file: the field, its
 	// value to set and the text.
 	type named struct {

@@ -6,6 +6,7 @@
 package methods
 
 import (
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/methods/binbybin"
 	"github.com/desmear/desmear/unfold/methods/inversion"
@@ -39,3 +40,30 @@ var own = map[string]string{
 // setting every method shares (the fields of unfold.Settings). The front
 // ends refuse a method's own setting given with another method.
 func Owner(field string) string { return own[field] }
+
+// Fixed returns the method m with the regularisation its result chose
+// (details, the unfold.Result's Details) fixed, as a family for a toy
+// ensemble of the validate package: the method at strength k = 1..K,
+// whose K-th is m at its chosen regularisation. For the iterative method
+// that is k iterations and K the iterations made (so that a stopping
+// rule's choice is kept, and the toys unfold once with the steps kept);
+// for Tikhonov the chosen tau at K = 1 (the toys do not choose it
+// again); the other methods have no regularisation (K = 1).
+func Fixed(m unfold.Method, details any) (family func(k int) unfold.Method, K int) {
+	switch m := m.(type) {
+	case *bayes.Settings:
+		if d, ok := details.(*bayes.Details); ok {
+			return m.WithIterations, d.Iterations
+		}
+	case *tikhonov.Settings:
+		if d, ok := details.(*tikhonov.Details); ok {
+			var t tikhonov.Settings
+			if m != nil {
+				t = *m
+			}
+			t.Tau, t.Criterion = d.Tau, tikhonov.LCurve
+			return func(int) unfold.Method { return &t }, 1
+		}
+	}
+	return func(int) unfold.Method { return m }, 1
+}

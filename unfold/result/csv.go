@@ -52,6 +52,9 @@ func WriteCSV(w io.Writer, r *Result, s *binning.Scheme) error {
 	if r.Uncertainty != nil {
 		header = append(header, "uncertainty")
 	}
+	if r.Bias != nil {
+		header = append(header, "bias", "bias_error")
+	}
 	header = append(header, "determined", "efficiency")
 	if err := cw.Write(header); err != nil {
 		return err
@@ -76,6 +79,9 @@ func WriteCSV(w io.Writer, r *Result, s *binning.Scheme) error {
 		rec = append(rec, formatFloat(r.Estimate[j]))
 		if r.Uncertainty != nil {
 			rec = append(rec, formatFloat(r.Uncertainty[j]))
+		}
+		if r.Bias != nil {
+			rec = append(rec, formatFloat(r.Bias.Values[j]), formatFloat(r.Bias.Error[j]))
 		}
 		rec = append(rec, strconv.FormatBool(r.Determined[j]), formatFloat(r.Efficiency[j]))
 		if err := cw.Write(rec); err != nil {

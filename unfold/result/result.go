@@ -69,6 +69,10 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// Bias is the toy estimate of the bias of the estimate, when asked
+	// for (settings.bias_toys): a model-dependent estimate, not a
+	// correction.
+	Bias *Bias `json:"bias,omitempty"`
 	// Comparison compares the result with a reference spectrum, when
 	// one was given.
 	Comparison *Comparison `json:"comparison,omitempty"`
@@ -165,6 +169,35 @@ type Source struct {
 	Samples     int         `json:"samples,omitempty"`
 }
 
+// Bias is the bias estimate of a result: per truth bin the mean of the
+// toys' estimates minus the result, the toys drawn from the result
+// refolded and unfolded at the regularisation the result chose; Error is
+// its toy precision (one standard error). Model-dependent: it takes the
+// result as the truth; it is not a correction (method.md §20).
+type Bias struct {
+	Toys   int       `json:"toys"`
+	Seed   uint64    `json:"seed"`
+	Truth  string    `json:"truth"`
+	Values []float64 `json:"values"`
+	Error  []float64 `json:"error"`
+}
+
+// SetBias records the bias estimate b (nil: none), with bins not
+// determined at 0.
+func (r *Result) SetBias(b *validate.Bias) {
+	if b == nil {
+		r.Bias = nil
+		return
+	}
+	rb := &Bias{Toys: b.Toys, Seed: b.Seed, Truth: "result-refolded", Values: make([]float64, len(r.Estimate)), Error: make([]float64, len(r.Estimate))}
+	for j := range rb.Values {
+		if r.Determined[j] {
+			rb.Values[j], rb.Error[j] = b.Bias[j], b.Error[j]
+		}
+	}
+	r.Bias = rb
+}
+
 // Tikhonov is the outcome of the Tikhonov method: the tau used and how
 // it was chosen ("fixed", "lcurve" or "correlation"), the penalty, and
 // the scan of tau (also written as tau-scan.csv).
@@ -258,6 +291,8 @@ type Settings struct {
 	// MemoryLimit is the memory limit of the uncertainty computation in
 	// bytes.
 	MemoryLimit int64 `json:"memory_limit"`
+	// BiasToys is the number of toys of the bias estimate (absent: off).
+	BiasToys int `json:"bias_toys,omitempty"`
 }
 
 // Step is one iteration of the history; iteration 0 is the start.
@@ -328,7 +363,7 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 	if m == nil {
 		m = (*bayes.Settings)(nil)
 	}
-	d := Settings{Method: m.Name(), Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
+	d := Settings{Method: m.Name(), Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit, BiasToys: z.BiasToys}
 	switch m := m.(type) {
 	case *bayes.Settings:
 		b, err := m.Resolve()
@@ -474,12 +509,16 @@ func finiteRows(name string, rows [][]float64) error {
 
 // checkFinite returns an error naming the first NaN or infinity.
 func (r *Result) checkFinite() error {
-	vecs := []struct {
+	type named struct {
 		name string
 		v    []float64
-	}{{"estimate", r.Estimate}, {"uncertainty", r.Uncertainty}, {"efficiency", r.Efficiency}, {"folded", r.Folded},
+	}
+	vecs := []named{{"estimate", r.Estimate}, {"uncertainty", r.Uncertainty}, {"efficiency", r.Efficiency}, {"folded", r.Folded},
 		{"generated", r.Generated}, {"prior", r.Prior}, {"data", r.Data}, {"data_variance", r.DataVariance},
 		{"background", r.Background}, {"background_variance", r.BackgroundVariance}, {"folded_chi2", []float64{r.FoldedChi2}}}
+	if r.Bias != nil {
+		vecs = append(vecs, named{"bias", r.Bias.Values}, named{"bias error", r.Bias.Error})
+	}
 	for _, x := range vecs {
 		for i, v := range x.v {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
