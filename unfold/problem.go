@@ -58,6 +58,7 @@ type Prepared struct {
 	sumEP    float64        // Σ_j eps_j p_j
 	clip     []int          // Subtract mode: reco bins where n − b < 0
 	weighted bool           // var n is not n (given variances or a subtracted background)
+	givenVar bool           // the data came with their own variances
 
 	// kept for the Set methods
 	mode      BackgroundMode
@@ -264,6 +265,7 @@ func (m *Prepared) setData(n, varN []float64) error {
 		}
 	}
 	m.weighted = given || m.mode == Subtract && m.bg != nil
+	m.givenVar = given
 	return nil
 }
 

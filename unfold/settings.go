@@ -66,6 +66,22 @@ const (
 	DiagonalToys
 )
 
+// VarianceSource says which variance of the data the linearised
+// propagation uses (method.md §21).
+type VarianceSource int
+
+const (
+	// FromCounts uses the variance of the observed counts, var n_i = n_i
+	// for Poisson data (the default).
+	FromCounts VarianceSource = iota
+	// FromExpectation uses the folded expectation of the estimate,
+	// var n_i = ν_i = (R μ + b)_i, scaled by var n_i / n_i for weighted
+	// data, so that a bin driven towards zero does not take its
+	// variance with it. The toys (DiagonalToys) draw around the observed
+	// counts and do not take it.
+	FromExpectation
+)
+
 // The text names of the modes, indexed by value: the names of result.json,
 // of the analysis file and of the command line. They are spelled here
 // only.
@@ -73,7 +89,26 @@ var (
 	backgroundNames = []string{InModel: "model", Subtract: "subtract"}
 	covarianceNames = []string{NoCovariance: "none", Diagonal: "diag", Full: "full"}
 	diagonalNames   = []string{DiagonalAuto: "auto", DiagonalExact: "exact", DiagonalProbes: "probes", DiagonalToys: "toys"}
+	varianceNames   = []string{FromCounts: "counts", FromExpectation: "expectation"}
 )
+
+// VarianceSources returns the variance sources in order.
+func VarianceSources() []VarianceSource { return []VarianceSource{FromCounts, FromExpectation} }
+
+// String returns the text name ("counts" or "expectation").
+func (v VarianceSource) String() string { return varianceEnum.Name(int(v)) }
+
+// MarshalText returns the text name.
+func (v VarianceSource) MarshalText() ([]byte, error) { return varianceEnum.Text(int(v)) }
+
+// UnmarshalText parses a text name.
+func (v *VarianceSource) UnmarshalText(text []byte) error {
+	x, err := varianceEnum.Parse(text)
+	if err == nil {
+		*v = VarianceSource(x)
+	}
+	return err
+}
 
 // BackgroundModes returns the modes in order; their String values are
 // the text names.
@@ -131,6 +166,7 @@ var (
 	backgroundEnum = Enum{"unfold", "BackgroundMode", "background mode", backgroundNames}
 	covarianceEnum = Enum{"unfold", "CovarianceMode", "covariance mode", covarianceNames}
 	diagonalEnum   = Enum{"unfold", "DiagonalMethod", "diagonal method", diagonalNames}
+	varianceEnum   = Enum{"unfold", "VarianceSource", "variance source", varianceNames}
 )
 
 // String returns the text name ("model" or "subtract").
@@ -199,6 +235,9 @@ type Settings struct {
 	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
 	// the probe vectors held at once (zero means DefaultMemoryLimit).
 	MemoryLimit int64
+	// VarianceFrom selects the data variance of the linearised
+	// propagation (exact and probes).
+	VarianceFrom VarianceSource
 	// BiasToys is the number of toys of the bias estimate beside the
 	// result (package validate, EstimateBias); 0, the default, is off.
 	// Unfold itself does not use it.
@@ -219,6 +258,10 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"Probes", "must be at least 2"}
 	case r.Toys < 0 || r.Toys == 1:
 		return r, &SettingsError{"Toys", "must be at least 2"}
+	case r.VarianceFrom < 0 || int(r.VarianceFrom) >= len(varianceNames):
+		return r, &SettingsError{"VarianceFrom", "unknown variance source"}
+	case r.VarianceFrom == FromExpectation && r.Covariance == Diagonal && r.DiagonalMethod == DiagonalToys:
+		return r, &SettingsError{"VarianceFrom", "the toys draw around the observed counts; the variance from the expectation applies to the linearised propagation (exact, probes)"}
 	case r.BiasToys < 0 || r.BiasToys == 1:
 		return r, &SettingsError{"BiasToys", "must be 0 (no bias estimate) or at least 2"}
 	case r.MemoryLimit < 0:

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -67,6 +68,34 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 	return pl, nil
 }
 
+// expectedVariance returns the variance of the data from the folded
+// expectation nu = R μ + b (method.md §21; nu is the fit's fold, without
+// the background in Subtract mode, which adds it): nu_i for Poisson counts,
+// scaled by var n_i / n_i for data with their own variances (where
+// n_i > 0); in Subtract mode the background variance is added and the
+// clipped bins keep 0.
+func (m *Prepared) expectedVariance(nu []float64) []float64 {
+	v := make([]float64, m.nr)
+	sub := m.mode == Subtract && m.bg != nil
+	for i, x := range nu {
+		if sub && m.varN[i] == 0 && m.n[i] == 0 && slices.Contains(m.clip, i) {
+			continue
+		}
+		if sub {
+			x += m.bg[i] // the fit's fold leaves out the subtracted background
+		}
+		x = max(x, 0)
+		if m.givenVar && !sub && m.n[i] > 0 {
+			x *= m.varN[i] / m.n[i]
+		}
+		if sub && m.bgVar != nil {
+			x += m.bgVar[i]
+		}
+		v[i] = x
+	}
+	return v
+}
+
 // probeBatch returns the probes per batch for probes of per bytes within
 // budget: a multiple of ProbeBlock when more than a block fits (at least
 // one probe), at most all of them.
@@ -91,6 +120,13 @@ func (pl *plan) columnVariances() []float64 {
 // the Jacobian, the probes' tangents or the toys' estimates.
 func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	m := pl.m
+	if pl.rs.VarianceFrom == FromExpectation && pl.method != NoCovariance {
+		// The fit is done: only the propagation sees the variance of
+		// the expectation (method.md §21).
+		observed := m.varN
+		m.varN = m.expectedVariance(fit.Folded())
+		defer func() { m.varN = observed }()
+	}
 	var variance []float64
 	var cov *mat.SymDense
 	switch {

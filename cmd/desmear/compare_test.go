@@ -151,3 +151,36 @@ func TestUnfoldBiasToys(t *testing.T) {
 		t.Errorf("bias_toys: 1: exit %d, stderr %q", code, stderr)
 	}
 }
+
+// --variance-from and uncertainty.variance_from: the choice is recorded in
+// settings; a bad value is refused at the flag and at the key's line.
+// The numbers are checked in unfold/methods/bayes (method.md §21).
+func TestVarianceFromSetting(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), oracleD)
+	out := filepath.Join(dir, "out")
+	code, _, stderr := runCLI(t, context.Background(), append(oracleDArgs(dir, out), "--variance-from", "expectation")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if r, _ := readResult(t, out); r.Settings.VarianceFrom != "expectation" {
+		t.Errorf("settings %+v", r.Settings)
+	}
+	code, _, stderr = runCLI(t, context.Background(), append(oracleDArgs(dir, filepath.Join(dir, "o2")), "--variance-from", "nope")...)
+	if code != exitUsage || !strings.Contains(stderr, "variance-from") {
+		t.Errorf("--variance-from nope: exit %d, stderr %q", code, stderr)
+	}
+	path := writeCLIAnalysis(t)
+	src, _ := os.ReadFile(path)
+	lines := strings.Split(string(src), "\n")
+	at := 0
+	for k, l := range lines {
+		if l == "uncertainty:" {
+			at = k + 2 // the line of the new key
+		}
+	}
+	os.WriteFile(path, []byte(strings.Replace(string(src), "uncertainty:\n", "uncertainty:\n  variance_from: nope\n", 1)), 0o644)
+	code, _, stderr = runCLI(t, context.Background(), "unfold", path)
+	if want := "analysis.yaml:" + strconv.Itoa(at) + ": uncertainty.variance_from"; code != exitInput || !strings.Contains(stderr, want) {
+		t.Errorf("variance_from: nope: exit %d, stderr %q, want %q", code, stderr, want)
+	}
+}

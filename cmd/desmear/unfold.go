@@ -53,6 +53,7 @@ type unfoldOptions struct {
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
 	biasToys      int
+	varianceFrom  unfold.VarianceSource
 	seed          uint64
 	memoryLimit   int64
 
@@ -173,6 +174,8 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
 	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
+	f.Var(flagval.NewEnum(&o.varianceFrom, unfold.FromCounts, unfold.VarianceSources()),
+		"variance-from", "the data variance of the linearised propagation: counts (the observed n) or expectation (the folded expectation nu of the estimate, which does not collapse where the estimate is driven towards zero)")
 	f.IntVar(&o.biasToys, "bias-toys", 0, "estimate the bias of the result on `N` toys drawn from the result refolded, at the chosen regularisation (a model-dependent estimate, not a correction; default 0: off)")
 	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
@@ -334,6 +337,7 @@ var settingFlags = map[string]string{
 	"Seed":           "seed",
 	"MemoryLimit":    "memory-limit",
 	"BiasToys":       "bias-toys",
+	"VarianceFrom":   "variance-from",
 }
 
 // flagErr turns an *unfold.SettingsError into a usage error naming the
@@ -362,6 +366,7 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 		Seed:           o.seed,
 		MemoryLimit:    o.memoryLimit,
 		BiasToys:       o.biasToys,
+		VarianceFrom:   o.varianceFrom,
 	}
 	switch o.method {
 	case bayes.Name:

@@ -181,6 +181,8 @@ type Uncertainty struct {
 	Toys       int
 	Seed       uint64
 	BiasToys   int // toys of the bias estimate; 0: none
+	// VarianceFrom is counts or expectation ("" for the default).
+	VarianceFrom string
 }
 
 // Output holds the output settings.
@@ -342,7 +344,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Uncertainty.
 	un, o := doc.Uncertainty, doc.Output
-	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, BiasToys: un.BiasToys}
+	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
@@ -457,6 +459,7 @@ var settingKeys = map[string][]any{
 	"Toys":           {"uncertainty", "toys"},
 	"Seed":           {"uncertainty", "seed"},
 	"BiasToys":       {"uncertainty", "bias_toys"},
+	"VarianceFrom":   {"uncertainty", "variance_from"},
 }
 
 // sameBins reports whether two schemes have the same bins (the same

@@ -141,12 +141,13 @@ type unfoldingDoc struct {
 }
 
 type uncertainDoc struct {
-	Covariance string `yaml:"covariance"`
-	Method     string `yaml:"method"`
-	Probes     int    `yaml:"probes"`
-	Toys       int    `yaml:"toys"`
-	Seed       uint64 `yaml:"seed"`
-	BiasToys   int    `yaml:"bias_toys"`
+	Covariance   string `yaml:"covariance"`
+	Method       string `yaml:"method"`
+	Probes       int    `yaml:"probes"`
+	Toys         int    `yaml:"toys"`
+	Seed         uint64 `yaml:"seed"`
+	BiasToys     int    `yaml:"bias_toys"`
+	VarianceFrom string `yaml:"variance_from"`
 }
 
 type outputDoc struct {

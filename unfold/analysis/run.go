@@ -443,6 +443,7 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 		{"Background", &s.Background, u.Background},
 		{"Covariance", &s.Covariance, un.Covariance},
 		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+		{"VarianceFrom", &s.VarianceFrom, un.VarianceFrom},
 	}
 	var m unfold.Method
 	switch u.Method {

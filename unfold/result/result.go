@@ -293,6 +293,9 @@ type Settings struct {
 	MemoryLimit int64 `json:"memory_limit"`
 	// BiasToys is the number of toys of the bias estimate (absent: off).
 	BiasToys int `json:"bias_toys,omitempty"`
+	// VarianceFrom is "expectation" when the linearised propagation used
+	// the folded expectation; absent for the observed counts.
+	VarianceFrom string `json:"variance_from,omitempty"`
 }
 
 // Step is one iteration of the history; iteration 0 is the start.
@@ -387,6 +390,9 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 	}
 	if withBackground {
 		d.Background = z.Background.String()
+	}
+	if z.VarianceFrom != unfold.FromCounts && z.Covariance != unfold.NoCovariance {
+		d.VarianceFrom = z.VarianceFrom.String()
 	}
 	if z.Covariance == unfold.Diagonal {
 		d.DiagonalMethod = z.DiagonalMethod.String()
