@@ -34,6 +34,7 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
 	}
+	printBinNotes(g, out.Document, a.Truth, "uncertainty.method: toys")
 	return nil
 }
 

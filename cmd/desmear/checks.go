@@ -17,7 +17,14 @@ import (
 func printChecks(w io.Writer, dir string, r *result.Result, files []string) {
 	c := r.Check()
 	if c.HasData {
-		fmt.Fprintf(w, "folded chi-square: %s over %d reco bins (data against the folded estimate)\n", formatG4(c.FoldedChi2), c.FoldedBins)
+		fmt.Fprintf(w, "folded chi-square: %s over %d reco bins (in reco space: data against the folded estimate, correlations ignored; not a goodness-of-fit test)\n", formatG4(c.FoldedChi2), c.FoldedBins)
+	}
+	if r.Covariance != nil {
+		cond := "infinite (singular)"
+		if r.CovarianceCondition != nil {
+			cond = formatG4(*r.CovarianceCondition)
+		}
+		fmt.Fprintf(w, "covariance: condition number %s over the determined truth bins; a chi-square with it uses its pseudo-inverse (desmear help method, §19)\n", cond)
 	}
 	checks := []string{fmt.Sprintf("%d truth bins not determined", c.Undetermined),
 		fmt.Sprintf("%d with efficiency below %g", c.LowEfficiency, result.LowEfficiency)}

@@ -184,3 +184,42 @@ func TestVarianceFromSetting(t *testing.T) {
 		t.Errorf("variance_from: nope: exit %d, stderr %q, want %q", code, stderr, want)
 	}
 }
+
+// The warning on a collapsed uncertainty (method.md §21): a background
+// above the data of reco bin 1 drives truth bin 1 towards zero by a
+// factor n_1/b_1 = 1/2 per iteration at most (the iteration of method.md
+// §3: μ₁ ← μ₁ n₁/(ε μ₁ + b₁)), so after 20 iterations it is below 1e-4 of
+// its start while its linearised uncertainty, a product of those factors
+// times sqrt(n₁)/n₁ per iteration, stays below sqrt(μ₁). The bin is named
+// on stderr and listed in result.json; truth bin 0 is not. A truth bin
+// without response entries is noted as not determined.
+func TestUnfoldCollapseWarning(t *testing.T) {
+	dir := writeFiles(t, t.TempDir(), map[string]string{
+		"A.csv": "reco,truth,value\n0,0,800\n1,1,800\n",
+		"G.csv": "truth,value\n0,1000\n1,1000\n2,1000\n",
+		"n.csv": "reco,value\n0,100\n1,5\n",
+		"b.csv": "reco,value\n0,0\n1,10\n",
+	})
+	args := func(out string, extra ...string) []string {
+		return append([]string{"unfold", "--response", filepath.Join(dir, "A.csv"), "--generated", filepath.Join(dir, "G.csv"),
+			"--data", filepath.Join(dir, "n.csv"), "--out", filepath.Join(dir, out)}, extra...)
+	}
+	code, _, stderr := runCLI(t, context.Background(), args("out", "--background", filepath.Join(dir, "b.csv"), "--iterations", "20")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	r, _ := readResult(t, filepath.Join(dir, "out"))
+	if len(r.CollapsedBins) != 1 || r.CollapsedBins[0] != 1 {
+		t.Errorf("collapsed bins %v, want [1] (estimate %v ± %v)", r.CollapsedBins, r.Estimate, r.Uncertainty)
+	}
+	if !strings.Contains(stderr, "warning: in 1 truth bins") || !strings.Contains(stderr, "(bins 1)") || !strings.Contains(stderr, "--diagonal-method toys") {
+		t.Errorf("stderr lacks the warning:\n%s", stderr)
+	}
+	if !strings.Contains(stderr, "1 truth bins have no response entries") {
+		t.Errorf("stderr lacks the note on bin 2:\n%s", stderr)
+	}
+	code, _, stderr = runCLI(t, context.Background(), args("out2")...)
+	if code != 0 || strings.Contains(stderr, "warning:") {
+		t.Errorf("without the background: exit %d, stderr %s", code, stderr)
+	}
+}

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -823,11 +824,9 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
 	printComparison(w, r, truth)
 	printChecks(w, dir, r, files)
+	printBinNotes(g, r, truth, "--diagonal-method toys")
 	if g.quiet {
 		return
-	}
-	if r.TruthBins > det {
-		fmt.Fprintf(g.stderr, "note: %d truth bins have no response entries (efficiency 0) and are not determined; they are flagged in result.json and hold 0\n", r.TruthBins-det)
 	}
 	if len(r.ClippedRecoBins) > 0 {
 		fmt.Fprintf(g.stderr, "note: in %d reco bins the data minus the background was negative and was set to 0 (listed in result.json)\n", len(r.ClippedRecoBins))
@@ -835,6 +834,42 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 	if r.UncertaintyPrecision > 0 {
 		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, map[bool]string{true: "probes", false: "toys"}[strings.Contains(r.UncertaintyMethod, "probes")], 100*r.UncertaintyPrecision)
 	}
+}
+
+// printBinNotes prints to stderr, in both modes, the note on the truth
+// bins not determined by the data and the warning on the bins whose
+// linearised uncertainty collapsed (result.Collapsed), naming them and
+// the remedies (toys is how the mode asks for toys).
+func printBinNotes(g *globalOptions, r *result.Result, truth *binning.Scheme, toys string) {
+	if g.quiet {
+		return
+	}
+	det := 0
+	for _, d := range r.Determined {
+		if d {
+			det++
+		}
+	}
+	if r.TruthBins > det {
+		fmt.Fprintf(g.stderr, "note: %d truth bins have no response entries (efficiency 0) and are not determined; they are flagged in result.json and hold 0\n", r.TruthBins-det)
+	}
+	if len(r.CollapsedBins) == 0 {
+		return
+	}
+	var names []string
+	for _, j := range r.CollapsedBins {
+		if len(names) == 10 {
+			names = append(names, fmt.Sprintf("… %d in all, listed in result.json collapsed_bins", len(r.CollapsedBins)))
+			break
+		}
+		name := strconv.Itoa(j)
+		if truth != nil {
+			name += " " + truth.Label(j)
+		}
+		names = append(names, name)
+	}
+	fmt.Fprintf(g.stderr, "warning: in %d truth bins the estimate fell below %g of its start and its uncertainty below the Poisson sqrt(estimate): the linearised uncertainty collapses with the estimate there (bins %s); check them with toys (%s) or the variance from the expectation (desmear help method, §21)\n",
+		len(r.CollapsedBins), result.CollapseFall, strings.Join(names, "; "), toys)
 }
 
 // printComparison prints the comparison of r with its reference

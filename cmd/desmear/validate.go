@@ -348,7 +348,7 @@ func printValidation(w io.Writer, dir string, r *validate.Report) {
 	}
 	fmt.Fprintln(w, ")")
 	for _, c := range append(append([]*validate.Check(nil), r.Closure...), r.Stress...) {
-		fmt.Fprintf(w, "%s: chi2/ndf = %.3g/%d, largest |pull| %.3g (bin %d)", c.Name, c.Chi2, c.NDF, c.MaxPull, c.MaxPullBin)
+		fmt.Fprintf(w, "%s: chi2/ndf = %.3g/%d (per-bin uncertainties, correlations ignored), largest |pull| %.3g (bin %d)", c.Name, c.Chi2, c.NDF, c.MaxPull, c.MaxPullBin)
 		if c.Nominal != nil {
 			fmt.Fprintf(w, "; against the nominal result chi2/ndf = %.3g/%d", c.Nominal.Chi2, c.Nominal.NDF)
 		}

@@ -72,6 +72,55 @@ func (r *Result) SetProblem(p *unfold.Problem) {
 	if r.Scan != nil && p.Migrations != nil {
 		r.Scan.foldedChi2(r, p)
 	}
+	r.CollapsedBins = r.Collapsed()
+}
+
+// CollapseFall is the fall of an estimate from its start below which
+// Collapsed looks at its uncertainty (method.md §21).
+const CollapseFall = 1e-2
+
+// Collapsed returns the determined truth bins whose linearised
+// uncertainty collapsed with the estimate (method.md §21): an iterative
+// result whose estimate μ_j fell to at most CollapseFall times its start
+// μ_j(0) (the prior, or the generated spectrum, scaled so that
+// Σ_j eps_j μ_j(0) = Σ_i (n_i − b_i)) while its uncertainty is at most
+// sqrt(μ_j), the Poisson uncertainty of the estimate itself (a relative
+// uncertainty below 1/sqrt(μ_j)). nil without an uncertainty, without
+// data or for a method that does not iterate.
+func (r *Result) Collapsed() []int {
+	if r.Uncertainty == nil || r.Data == nil || len(r.History) == 0 {
+		return nil
+	}
+	start := r.Prior
+	if start == nil {
+		start = r.Generated
+	}
+	if len(start) != len(r.Estimate) {
+		return nil
+	}
+	var sumN, sumEps float64
+	for i, n := range r.Data {
+		sumN += n
+		if r.Background != nil {
+			sumN -= r.Background[i]
+		}
+	}
+	for j, p := range start {
+		if r.Determined[j] {
+			sumEps += r.Efficiency[j] * p
+		}
+	}
+	if !(sumN > 0) || !(sumEps > 0) {
+		return nil
+	}
+	var out []int
+	for j, p := range start {
+		mu0 := p * sumN / sumEps
+		if r.Determined[j] && mu0 > 0 && r.Estimate[j] <= CollapseFall*mu0 && r.Uncertainty[j] <= math.Sqrt(r.Estimate[j]) {
+			out = append(out, j)
+		}
+	}
+	return out
 }
 
 // PullVariance returns var n_i + var b_i of reco bin i, the variance of

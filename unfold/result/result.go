@@ -64,6 +64,14 @@ type Result struct {
 	// Covariance is the total covariance (the sum of the sources'
 	// covariances) as an array of rows; only with covariance "full".
 	Covariance [][]float64 `json:"covariance,omitempty"`
+	// CovarianceCondition is the condition number of the total
+	// covariance over the determined truth bins, the ratio of its largest
+	// to its smallest eigenvalue (null when singular; method.md §19);
+	// only with a covariance.
+	CovarianceCondition *float64 `json:"covariance_condition_number,omitempty"`
+	// CollapsedBins lists the determined truth bins whose linearised
+	// uncertainty collapsed with the estimate (see Collapsed).
+	CollapsedBins []int `json:"collapsed_bins,omitempty"`
 	// Sources is the breakdown of the uncertainty by source: "data" (the
 	// data's statistics, described by the uncertainty fields above),
 	// "simulation" (the statistics of the simulation behind the
@@ -463,6 +471,19 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		}
 	}
 	r.Covariance = denseRows(res.Covariance, r.Determined)
+	if res.Covariance != nil {
+		var det []int
+		for j, d := range r.Determined {
+			if d {
+				det = append(det, j)
+			}
+		}
+		// A matrix that is not a covariance (refused by any chi-square
+		// with it) gets no condition number.
+		if e, err := unfold.Decompose(res.Covariance, det, 0); err == nil && !math.IsInf(e.Condition, 0) {
+			r.CovarianceCondition = &e.Condition
+		}
+	}
 	for _, src := range res.Sources {
 		s := Source{Name: src.Name, Method: src.Method, Uncertainty: make([]float64, nt),
 			Covariance: denseRows(src.Covariance, r.Determined), Precision: src.Precision, Samples: src.Samples}

@@ -48,20 +48,27 @@ type Comparison struct {
 	NDF        int       `json:"ndf"`
 }
 
-func compare(est, ref, sigma []float64, det []bool) *Comparison {
+// compare compares est with ref through unfold.Compare on the diagonal
+// of the squared uncertainties sigma (the pseudo-inverse of method.md
+// §19: the plain sum of squared pulls over the bins with an
+// uncertainty, NDF their number); pulls are 0 where there is none.
+func compare(est, ref, sigma []float64, det []bool) (*Comparison, error) {
 	c := &Comparison{Difference: make([]float64, len(est)), Pull: make([]float64, len(est))}
-	for j, x := range est {
-		if !det[j] {
+	uc, err := unfold.Compare(ref, est, sigma, nil, det, nil, 0)
+	if err != nil {
+		return nil, err
+	}
+	for _, r := range uc.Rows {
+		if !r.Determined {
 			continue
 		}
-		c.Difference[j] = x - ref[j]
-		if s := sigma[j]; s > 0 {
-			c.Pull[j] = c.Difference[j] / s
-			c.Chi2 += c.Pull[j] * c.Pull[j]
-			c.NDF++
+		c.Difference[r.Bin] = r.Estimate - r.Reference
+		if !math.IsNaN(r.Pull) {
+			c.Pull[r.Bin] = r.Pull
 		}
 	}
-	return c
+	c.Chi2, c.NDF = uc.Chi2, uc.NDF
+	return c, nil
 }
 
 // unfoldKnown unfolds data (with the problem's background, prior and
@@ -82,7 +89,10 @@ func unfoldKnown(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m u
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", name, err)
 	}
-	cmp := compare(res.Estimate, truth, res.Uncertainty, res.Determined)
+	cmp, err := compare(res.Estimate, truth, res.Uncertainty, res.Determined)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", name, err)
+	}
 	c := &Check{Name: name, Fluctuated: fluct, Truth: truth, Estimate: res.Estimate, Uncertainty: res.Uncertainty,
 		Bias: cmp.Difference, Pull: cmp.Pull, Chi2: cmp.Chi2, NDF: cmp.NDF, MaxPullBin: -1}
 	for j, x := range cmp.Pull {
@@ -167,7 +177,9 @@ func Stress(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m unfold
 		return nil, err
 	}
 	if nominal != nil && nominal.Uncertainty != nil {
-		c.Nominal = compare(c.Estimate, nominal.Estimate, nominal.Uncertainty, nominal.Determined)
+		if c.Nominal, err = compare(c.Estimate, nominal.Estimate, nominal.Uncertainty, nominal.Determined); err != nil {
+			return nil, fmt.Errorf("validate: stress test %s: %w", name, err)
+		}
 	}
 	return c, nil
 }
