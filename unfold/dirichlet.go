@@ -15,7 +15,7 @@ import (
 const MethodDirichlet = "dirichlet-samples"
 
 // DirichletParams returns the Dirichlet parameters of the response
-// columns of p (method.md §19): alpha, parallel to the values of
+// columns of p (method.md §20): alpha, parallel to the values of
 // p.Migrations, and alpha0, the parameter of each column's inefficiency
 // cell. For truth bin j with effective count N_j = G_j²/S_j (S_j =
 // p.GeneratedSumW2[j]) the cell of reco bin k gets N_j·A_kj/G_j and the

@@ -109,7 +109,7 @@ func denseDAgostini(r *mat.Dense, n, p []float64, iters int) []float64 {
 
 // multinomialCovariance is the linear propagation of the multinomial
 // covariance of each response column, Cov(R_kj, R_lj) = R_kj(δ_kl −
-// R_lj)/N_j (method.md §19 Sampling the response and the data), through
+// R_lj)/N_j (method.md §20 Sampling the response and the data), through
 // the Jacobian of estimate(R) with respect to the stored entries of R,
 // computed by central finite differences.
 func multinomialCovariance(p *unfold.Problem, estimate func(r *mat.Dense) []float64) *mat.SymDense {
@@ -163,7 +163,7 @@ func TestDirichletMoments(t *testing.T) {
 	// One column of three reco cells and its inefficiency cell. The
 	// Dirichlet moments (N. L. Johnson, S. Kotz and N. Balakrishnan,
 	// Continuous Multivariate Distributions vol. 1, Wiley 2000, ch. 49;
-	// method.md §19): E p_k = α_k/α_0, Cov(p_k, p_l) = (α_k δ_kl α_0 −
+	// method.md §20): E p_k = α_k/α_0, Cov(p_k, p_l) = (α_k δ_kl α_0 −
 	// α_k α_l)/(α_0²(α_0 + 1)), α_0 = Σ α including the inefficiency cell.
 	alpha := []float64{3, 0.5, 12}
 	alpha0 := []float64{4.5}
@@ -214,7 +214,7 @@ func TestDirichletParams(t *testing.T) {
 		}
 		colPtr, val := p.Migrations.ColPtr(), p.Migrations.Values()
 		for j := range 4 {
-			neff := p.Generated[j] * p.Generated[j] / p.GeneratedSumW2[j] // method.md §19
+			neff := p.Generated[j] * p.Generated[j] / p.GeneratedSumW2[j] // method.md §20
 			sum := 0.0
 			for k := colPtr[j]; k < colPtr[j+1]; k++ {
 				want := 0.0
@@ -307,7 +307,7 @@ func TestResponseSamplesScaleAsInverseEffectiveCount(t *testing.T) {
 	m := &bayes.Settings{Iterations: 3}
 	var base float64
 	for _, k := range []float64{1, 10, 100} {
-		// Σw² = G/k: N_eff = k G (method.md §19).
+		// Σw² = G/k: N_eff = k G (method.md §20).
 		for j, g := range p.Generated {
 			p.GeneratedSumW2[j] = g / k
 		}
@@ -321,7 +321,7 @@ func TestResponseSamplesScaleAsInverseEffectiveCount(t *testing.T) {
 			continue
 		}
 		// The linear propagation scales exactly as 1/N_eff (method.md
-		// §19); the summed sample variances have at most the precision
+		// §20); the summed sample variances have at most the precision
 		// of one, sqrt(2/(S−1)), for both samples.
 		if got := v * k / base; math.Abs(got-1) > 6*math.Sqrt(2/float64(S-1)) {
 			t.Errorf("N_eff × %v: simulation variance × %v / nominal = %v, want 1", k, k, got)
@@ -331,7 +331,7 @@ func TestResponseSamplesScaleAsInverseEffectiveCount(t *testing.T) {
 
 func TestSimulationVarianceWithDataStatistics(t *testing.T) {
 	// Unregularised inversion of a square response; with N_j = μ_j the
-	// simulation covariance is V_data − diag(μ) (method.md §19, the ratio
+	// simulation covariance is V_data − diag(μ) (method.md §20, the ratio
 	// for simulation statistics equal to the data's).
 	p, _ := smeared(t, 12, 12, 1e5, 4000)
 	nom, err := unfold.Unfold(context.Background(), p, &unfold.Settings{Covariance: unfold.Full}, &inversion.Settings{})
@@ -384,7 +384,7 @@ func TestGammaSamplesOfTheData(t *testing.T) {
 }
 
 func TestResponseSamplesSameBitsForAnyCores(t *testing.T) {
-	// Determinism rule: one PCG stream per sample (method.md §19).
+	// Determinism rule: one PCG stream per sample (method.md §20).
 	p, _ := smeared(t, 9, 12, 500, 300)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
 	var ref *unfold.Result

@@ -23,7 +23,7 @@ type Problem struct {
 	// truth bin (G_j being Σ w); nil when unknown (for example a
 	// normalised response). Only the sampling of the response uses it:
 	// N_eff,j = G_j² / GeneratedSumW2_j is the column's effective count
-	// (method.md §19).
+	// (method.md §20).
 	GeneratedSumW2 []float64
 
 	// Data n_i is the observed count in reco bin i.

@@ -67,13 +67,13 @@ const (
 	// DiagonalGamma unfolds Settings.Toys samples of the data
 	// expectation drawn from the Gamma posterior of each count (with the
 	// prior of Settings.SamplingPrior) and takes the sample variance of
-	// the estimates (method.md §19).
+	// the estimates (method.md §20).
 	DiagonalGamma
 )
 
 // SamplingPrior selects the prior added to the counts when the response
 // (Settings.ResponseSamples) or the data expectation (DiagonalGamma) is
-// sampled from its posterior (method.md §19).
+// sampled from its posterior (method.md §20).
 type SamplingPrior int
 
 const (
@@ -242,7 +242,7 @@ type Settings struct {
 	Toys int
 	// ResponseSamples is the number of responses sampled from the
 	// Dirichlet posterior of each column for the simulation's statistical
-	// uncertainty (source SourceSimulation, method.md §19); zero means
+	// uncertainty (source SourceSimulation, method.md §20); zero means
 	// none. It needs Problem.GeneratedSumW2 and an uncertainty of the
 	// data (Covariance other than NoCovariance); with Full the source has
 	// the full covariance.

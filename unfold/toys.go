@@ -47,7 +47,7 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 }
 
 // gammaData fills n with sample t of the data expectation drawn from the
-// Gamma posterior of each count (method.md §19) and, when the
+// Gamma posterior of each count (method.md §20) and, when the
 // background variance is propagated, b as toyData does. An unweighted
 // count n_i gives Gamma(n_i + a, 1), a weighted one Gamma(n_eff + a,
 // var_i/n_i) with n_eff = n_i²/var_i, where a is 1 with the flat prior
