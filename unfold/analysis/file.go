@@ -146,6 +146,9 @@ type uncertainDoc struct {
 	Probes     int    `yaml:"probes"`
 	Toys       int    `yaml:"toys"`
 	Seed       uint64 `yaml:"seed"`
+
+	ResponseSamples int    `yaml:"response_samples"`
+	SamplingPrior   string `yaml:"sampling_prior"`
 }
 
 type outputDoc struct {

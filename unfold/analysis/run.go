@@ -431,7 +431,7 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 // (Decode has refused those already too).
 func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit, ResponseSamples: un.ResponseSamples}
 	// names are the settings given by name in the file: the field, its
 	// value to set and the text.
 	type named struct {
@@ -443,6 +443,7 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 		{"Background", &s.Background, u.Background},
 		{"Covariance", &s.Covariance, un.Covariance},
 		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+		{"SamplingPrior", &s.SamplingPrior, un.SamplingPrior},
 	}
 	var m unfold.Method
 	switch u.Method {
@@ -512,7 +513,7 @@ func (a *Analysis) Reference() ([]float64, error) {
 
 // Problem assembles the unfolding problem.
 func (a *Analysis) Problem(r *response.Built, data *Measured, bkg *Expected) (*unfold.Problem, error) {
-	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, Data: data.Values, DataVariance: data.Variance}
+	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2, Data: data.Values, DataVariance: data.Variance}
 	if bkg != nil {
 		p.Background, p.BackgroundVariance = bkg.Values, bkg.Variance
 	}
