@@ -44,6 +44,10 @@ type Outcome struct {
 	Folder string
 	// Files lists the files written in it.
 	Files []string
+
+	// backgrounds are the background samples filled, kept for the
+	// variations.
+	backgrounds []backgroundSample
 }
 
 // CheckOutput reports early whether the result folder could be written.
@@ -74,6 +78,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	out.Problem = p
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
+	}
+	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
+		return nil, err
 	}
 	if err := a.write(out, s, m, replace, opt); err != nil {
 		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
@@ -115,6 +122,9 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
 		return nil, nil, err
 	}
+	if err := a.checkVariations(); err != nil {
+		return nil, nil, err
+	}
 	out := &Outcome{}
 	var err error
 	if a.ResponseFile != "" {
@@ -128,7 +138,10 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if out.Data, err = a.FillData(ctx, opt); err != nil {
 		return nil, nil, err
 	}
-	if out.Background, err = a.Background(ctx, out.Response, opt); err != nil {
+	if out.backgrounds, err = a.backgroundSamples(ctx, opt); err != nil {
+		return nil, nil, err
+	}
+	if out.Background, err = a.expected(out.Response, out.backgrounds, nil); err != nil {
 		return nil, nil, err
 	}
 	p, err := a.Problem(out.Response, out.Data, out.Background)
@@ -180,6 +193,18 @@ func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
 	}
 	if err := add("prior", a.Unfolding.PriorFile); err != nil {
 		return nil, err
+	}
+	for _, v := range a.Variations {
+		for _, ch := range []*Change{v.Change, v.Up, v.Down} {
+			if ch == nil {
+				continue
+			}
+			for _, f := range ch.Files {
+				if err := add("variation", f); err != nil {
+					return nil, err
+				}
+			}
+		}
 	}
 	return ins, nil
 }
