@@ -62,6 +62,11 @@ type Analysis struct {
 	// weights per truth bin, the weight expression evaluated over the
 	// truth axes at the bin centres (validate.Weights).
 	Stress []Stress
+
+	// Variations lists the systematic variations: those of the file's
+	// variations, then one per background with a scale uncertainty
+	// (named ScaleSourceName of the background).
+	Variations []Variation
 }
 
 // Stress is a stress test of the analysis file.
@@ -397,6 +402,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	if nodeAt(root, "compare") != nil {
 		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
 	}
+	c.variations(a, doc.Variations)
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize
