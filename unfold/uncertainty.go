@@ -14,7 +14,7 @@ type plan struct {
 	m      *Prepared
 	rs     *Settings
 	method CovarianceMode
-	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes or DiagonalToys
+	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes, DiagonalToys or DiagonalGamma
 	batch  int            // probes per batch
 }
 
@@ -69,7 +69,7 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 }
 
 // expectedVariance returns the variance of the data from the folded
-// expectation nu = R μ + b (method.md §21; nu is the fit's fold, without
+// expectation nu = R μ + b (method.md §23; nu is the fit's fold, without
 // the background in Subtract mode, which adds it): nu_i for Poisson counts,
 // scaled by var n_i / n_i for data with their own variances (where
 // n_i > 0); in Subtract mode the background variance is added and the
@@ -122,7 +122,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	m := pl.m
 	if pl.rs.VarianceFrom == FromExpectation && pl.method != NoCovariance {
 		// The fit is done: only the propagation sees the variance of
-		// the expectation (method.md §21).
+		// the expectation (method.md §23).
 		observed := m.varN
 		m.varN = m.expectedVariance(fit.Folded())
 		defer func() { m.varN = observed }()
@@ -195,15 +195,26 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		}
 		variance = sum
 		res.UncertaintyMethod = "linearised-probes"
+		res.Streams = append(res.Streams, Stream{"probe", probeStream})
 		res.Samples = pl.rs.Probes
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
-	case pl.diag == DiagonalToys:
-		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, pl.rs.Seed)
+	case pl.diag == DiagonalToys || pl.diag == DiagonalGamma:
+		seed := pl.rs.Seed
+		draw := func(t int, n, b []float64) { toyData(m, seed, t, n, b) }
+		res.UncertaintyMethod = "poisson-toys"
+		st := Stream{"poisson-toy", toyStream}
+		if pl.diag == DiagonalGamma {
+			prior := pl.rs.SamplingPrior
+			draw = func(t int, n, b []float64) { gammaData(m, prior, seed, t, n, b) }
+			res.UncertaintyMethod = "gamma-samples"
+			st = Stream{"gamma-sample", gammaStream}
+		}
+		res.Streams = append(res.Streams, st)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw)
 		if err != nil {
 			return err
 		}
 		variance, res.StepVariance = v, sv
-		res.UncertaintyMethod = "poisson-toys"
 		res.Samples = pl.rs.Toys
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))
 	}

@@ -53,6 +53,8 @@ type unfoldOptions struct {
 	covariance    unfold.CovarianceMode
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
+	respSamples   int
+	samplingPrior unfold.SamplingPrior
 	biasToys      int
 	varianceFrom  unfold.VarianceSource
 	seed          uint64
@@ -172,13 +174,16 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 	f.Var(flagval.NewEnum(&o.covariance, unfold.Diagonal, unfold.CovarianceModes()),
 		"covariance", "data-statistical uncertainty: none; diag (per-bin uncertainties); full (also the covariance matrix, linearised through every iteration)")
 	f.Var(flagval.NewEnum(&o.diagonal, unfold.DiagonalAuto, unfold.DiagonalMethods()),
-		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
+		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), gamma (samples of the data expectation from the Gamma posterior of each count), auto (exact when it fits in --memory-limit, else probes)")
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
-	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
+	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets or Gamma samples `N` for --diagonal-method toys or gamma (default 500)")
+	f.IntVar(&o.respSamples, "response-samples", 0, "the simulation's statistical uncertainty from `N` responses sampled from the Dirichlet posterior of each column (needs the sumw2 column of G.csv); 0: off")
+	f.Var(flagval.NewEnum(&o.samplingPrior, unfold.NoSamplingPrior, unfold.SamplingPriors()),
+		"sampling-prior", "prior of --response-samples and --diagonal-method gamma: none (the samples' mean is the measured response or data) or flat (+1 on every non-empty cell and the inefficiency cell, +1 on each count)")
 	f.Var(flagval.NewEnum(&o.varianceFrom, unfold.FromCounts, unfold.VarianceSources()),
 		"variance-from", "the data variance of the linearised propagation: counts (the observed n) or expectation (the folded expectation nu of the estimate, which does not collapse where the estimate is driven towards zero)")
 	f.IntVar(&o.biasToys, "bias-toys", 0, "estimate the bias of the result on `N` toys drawn from the result refolded, at the chosen regularisation (a model-dependent estimate, not a correction; default 0: off)")
-	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
+	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes, toys and samples; the same seed gives the same bits")
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
@@ -270,12 +275,14 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--background-mode needs --background")
 	case changed("diagonal-method") && o.covariance != unfold.Diagonal:
 		return usagef("--diagonal-method applies only to --covariance diag")
-	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys):
+	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys || o.diagonal == unfold.DiagonalGamma):
 		return usagef("--probes applies only to --covariance diag with --diagonal-method probes or auto")
 	case changed("probes") && o.probes == 0:
 		return usagef("--probes 0: give at least 2")
-	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys):
-		return usagef("--toys applies only to --covariance diag --diagonal-method toys")
+	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys && o.diagonal != unfold.DiagonalGamma):
+		return usagef("--toys applies only to --covariance diag --diagonal-method toys or gamma")
+	case changed("sampling-prior") && o.respSamples == 0 && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalGamma):
+		return usagef("--sampling-prior applies only with --response-samples N or --diagonal-method gamma")
 	case changed("toys") && o.toys == 0:
 		return usagef("--toys 0: give at least 2")
 	}
@@ -321,24 +328,26 @@ func (noBins) Neighbours(int, int) (int, int) { return -1, -1 }
 // settingFlags maps the fields of unfold.Settings and of the methods'
 // settings to their flags.
 var settingFlags = map[string]string{
-	"Iterations":     "iterations",
-	"StopChi2":       "stop-chi2",
-	"MaxIterations":  "max-iterations",
-	"Smoothing":      "smooth",
-	"Tau":            "tau",
-	"Criterion":      "tau-criterion",
-	"Penalty":        "penalty",
-	"Widths":         "divide-by-widths",
-	"Bias":           "bias",
-	"Background":     "background-mode",
-	"Covariance":     "covariance",
-	"DiagonalMethod": "diagonal-method",
-	"Probes":         "probes",
-	"Toys":           "toys",
-	"Seed":           "seed",
-	"MemoryLimit":    "memory-limit",
-	"BiasToys":       "bias-toys",
-	"VarianceFrom":   "variance-from",
+	"Iterations":      "iterations",
+	"StopChi2":        "stop-chi2",
+	"MaxIterations":   "max-iterations",
+	"Smoothing":       "smooth",
+	"Tau":             "tau",
+	"Criterion":       "tau-criterion",
+	"Penalty":         "penalty",
+	"Widths":          "divide-by-widths",
+	"Bias":            "bias",
+	"Background":      "background-mode",
+	"Covariance":      "covariance",
+	"DiagonalMethod":  "diagonal-method",
+	"Probes":          "probes",
+	"Toys":            "toys",
+	"ResponseSamples": "response-samples",
+	"SamplingPrior":   "sampling-prior",
+	"Seed":            "seed",
+	"MemoryLimit":     "memory-limit",
+	"BiasToys":        "bias-toys",
+	"VarianceFrom":    "variance-from",
 }
 
 // flagErr turns an *unfold.SettingsError into a usage error naming the
@@ -359,15 +368,17 @@ func (o *unfoldOptions) flagErr(err error) error {
 // with its own settings.
 func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfold.Method) {
 	s := &unfold.Settings{
-		Background:     o.bgMode,
-		Covariance:     o.covariance,
-		DiagonalMethod: o.diagonal,
-		Probes:         o.probes,
-		Toys:           o.toys,
-		Seed:           o.seed,
-		MemoryLimit:    o.memoryLimit,
-		BiasToys:       o.biasToys,
-		VarianceFrom:   o.varianceFrom,
+		Background:      o.bgMode,
+		Covariance:      o.covariance,
+		DiagonalMethod:  o.diagonal,
+		Probes:          o.probes,
+		Toys:            o.toys,
+		ResponseSamples: o.respSamples,
+		SamplingPrior:   o.samplingPrior,
+		Seed:            o.seed,
+		MemoryLimit:     o.memoryLimit,
+		BiasToys:        o.biasToys,
+		VarianceFrom:    o.varianceFrom,
 	}
 	switch o.method {
 	case bayes.Name:
@@ -868,7 +879,7 @@ func printBinNotes(g *globalOptions, r *result.Result, truth *binning.Scheme, to
 		}
 		names = append(names, name)
 	}
-	fmt.Fprintf(g.stderr, "warning: in %d truth bins the estimate fell below %g of its start and its uncertainty below the Poisson sqrt(estimate): the linearised uncertainty collapses with the estimate there (bins %s); check them with toys (%s) or the variance from the expectation (desmear help method, §21)\n",
+	fmt.Fprintf(g.stderr, "warning: in %d truth bins the estimate fell below %g of its start and its uncertainty below the Poisson sqrt(estimate): the linearised uncertainty collapses with the estimate there (bins %s); check them with toys (%s) or the variance from the expectation (desmear help method, §23)\n",
 		len(r.CollapsedBins), result.CollapseFall, strings.Join(names, "; "), toys)
 }
 

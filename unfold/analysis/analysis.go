@@ -62,6 +62,11 @@ type Analysis struct {
 	// weights per truth bin, the weight expression evaluated over the
 	// truth axes at the bin centres (validate.Weights).
 	Stress []Stress
+
+	// Variations lists the systematic variations: those of the file's
+	// variations, then one per background with a scale uncertainty
+	// (named ScaleSourceName of the background).
+	Variations []Variation
 }
 
 // Stress is a stress test of the analysis file.
@@ -176,11 +181,15 @@ type Unfolding struct {
 // Uncertainty holds the uncertainty settings.
 type Uncertainty struct {
 	Covariance string // none, diag or full
-	Method     string // auto, exact, probes or toys (diag only)
+	Method     string // auto, exact, probes, toys or gamma (diag only)
 	Probes     int
 	Toys       int
 	Seed       uint64
-	BiasToys   int // toys of the bias estimate; 0: none
+	// ResponseSamples is the number of sampled responses (0: none),
+	// SamplingPrior the prior of the sampling (none or flat).
+	ResponseSamples int
+	SamplingPrior   string
+	BiasToys        int // toys of the bias estimate; 0: none
 	// VarianceFrom is counts or expectation ("" for the default).
 	VarianceFrom string
 }
@@ -344,12 +353,14 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Uncertainty.
 	un, o := doc.Uncertainty, doc.Output
-	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom}
+	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed,
+		ResponseSamples: un.ResponseSamples, SamplingPrior: un.SamplingPrior, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
 	c.oneOf(&a.Uncertainty.Covariance, unfold.Diagonal.String(), names(unfold.CovarianceModes()), "uncertainty", "covariance")
 	c.oneOf(&a.Uncertainty.Method, unfold.DiagonalAuto.String(), names(unfold.DiagonalMethods()), "uncertainty", "method")
+	c.oneOf(&a.Uncertainty.SamplingPrior, unfold.NoSamplingPrior.String(), names(unfold.SamplingPriors()), "uncertainty", "sampling_prior")
 	// Zero is each of these settings' "not given" value: written out, it
 	// would silently mean the default, so it is refused.
 	for _, z := range []struct {
@@ -394,6 +405,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	if nodeAt(root, "compare") != nil {
 		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
 	}
+	c.variations(a, doc.Variations)
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize
@@ -442,24 +454,26 @@ type checker struct {
 // settingKeys maps the fields of unfold.Settings and of the methods' settings to
 // their keys in the analysis file.
 var settingKeys = map[string][]any{
-	"Iterations":     {"unfolding", "iterations"},
-	"StopChi2":       {"unfolding", "stop_chi2"},
-	"MaxIterations":  {"unfolding", "max_iterations"},
-	"Smoothing":      {"unfolding", "smoothing"},
-	"Tau":            {"unfolding", "tau"},
-	"Criterion":      {"unfolding", "tau_criterion"},
-	"Penalty":        {"unfolding", "penalty"},
-	"Widths":         {"unfolding", "divide_by_widths"},
-	"Bias":           {"unfolding", "bias"},
-	"Background":     {"unfolding", "background"},
-	"MemoryLimit":    {"unfolding", "memory_limit_gib"},
-	"Covariance":     {"uncertainty", "covariance"},
-	"DiagonalMethod": {"uncertainty", "method"},
-	"Probes":         {"uncertainty", "probes"},
-	"Toys":           {"uncertainty", "toys"},
-	"Seed":           {"uncertainty", "seed"},
-	"BiasToys":       {"uncertainty", "bias_toys"},
-	"VarianceFrom":   {"uncertainty", "variance_from"},
+	"Iterations":      {"unfolding", "iterations"},
+	"StopChi2":        {"unfolding", "stop_chi2"},
+	"MaxIterations":   {"unfolding", "max_iterations"},
+	"Smoothing":       {"unfolding", "smoothing"},
+	"Tau":             {"unfolding", "tau"},
+	"Criterion":       {"unfolding", "tau_criterion"},
+	"Penalty":         {"unfolding", "penalty"},
+	"Widths":          {"unfolding", "divide_by_widths"},
+	"Bias":            {"unfolding", "bias"},
+	"Background":      {"unfolding", "background"},
+	"MemoryLimit":     {"unfolding", "memory_limit_gib"},
+	"Covariance":      {"uncertainty", "covariance"},
+	"DiagonalMethod":  {"uncertainty", "method"},
+	"Probes":          {"uncertainty", "probes"},
+	"Toys":            {"uncertainty", "toys"},
+	"ResponseSamples": {"uncertainty", "response_samples"},
+	"SamplingPrior":   {"uncertainty", "sampling_prior"},
+	"Seed":            {"uncertainty", "seed"},
+	"BiasToys":        {"uncertainty", "bias_toys"},
+	"VarianceFrom":    {"uncertainty", "variance_from"},
 }
 
 // sameBins reports whether two schemes have the same bins (the same

@@ -46,6 +46,10 @@ type Outcome struct {
 	Folder string
 	// Files lists the files written in it.
 	Files []string
+
+	// backgrounds are the background samples filled, kept for the
+	// variations.
+	backgrounds []backgroundSample
 }
 
 // CheckOutput reports early whether the result folder could be written.
@@ -80,6 +84,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
+	}
+	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
+		return nil, err
 	}
 	if s.BiasToys > 0 {
 		var progress func(done, total int)
@@ -131,6 +138,9 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if err := a.CheckInputs(a.ResponseFile == "", true); err != nil {
 		return nil, nil, err
 	}
+	if err := a.checkVariations(); err != nil {
+		return nil, nil, err
+	}
 	out := &Outcome{}
 	var err error
 	if a.ResponseFile != "" {
@@ -144,7 +154,10 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if out.Data, err = a.FillData(ctx, opt); err != nil {
 		return nil, nil, err
 	}
-	if out.Background, err = a.Background(ctx, out.Response, opt); err != nil {
+	if out.backgrounds, err = a.backgroundSamples(ctx, opt); err != nil {
+		return nil, nil, err
+	}
+	if out.Background, err = a.expected(out.Response, out.backgrounds, nil); err != nil {
 		return nil, nil, err
 	}
 	p, err := a.Problem(out.Response, out.Data, out.Background)
@@ -199,6 +212,18 @@ func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
 	}
 	if err := add("compare", a.Compare); err != nil {
 		return nil, err
+	}
+	for _, v := range a.Variations {
+		for _, ch := range []*Change{v.Change, v.Up, v.Down} {
+			if ch == nil {
+				continue
+			}
+			for _, f := range ch.Files {
+				if err := add("variation", f); err != nil {
+					return nil, err
+				}
+			}
+		}
 	}
 	return ins, nil
 }

@@ -13,7 +13,7 @@ import (
 // with the method at the regularisation the result chose, and per truth
 // bin the mean toy estimate minus μ̂ with its standard error. It is a
 // model-dependent estimate (it takes the result as the truth), not a
-// correction (method.md §20).
+// correction (method.md §22).
 type Bias struct {
 	// Toys and Seed set the ensemble (the toys of Run, one PCG stream per
 	// toy); K is the regularisation strength of the method family.
@@ -51,7 +51,11 @@ func EstimateBias(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m 
 			truth[j] = nominal.Estimate[j]
 		}
 	}
-	e, err := Run(ctx, &Config{Problem: p, Settings: s, Method: method, MaxK: K, Truth: truth, Toys: rs.BiasToys, Seed: rs.Seed, Progress: progress}, 0, 0)
+	// The toys estimate the bias of the data's unfolding: each toy's
+	// uncertainty is the per-bin one of Run, without response samples.
+	ts := rs
+	ts.ResponseSamples = 0
+	e, err := Run(ctx, &Config{Problem: p, Settings: &ts, Method: method, MaxK: K, Truth: truth, Toys: rs.BiasToys, Seed: rs.Seed, Progress: progress}, 0, 0)
 	if err != nil {
 		return nil, err
 	}
