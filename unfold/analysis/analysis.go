@@ -18,6 +18,7 @@ import (
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/methods/binbybin"
+	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -183,6 +184,9 @@ type Output struct {
 	Formats        []string
 	Luminosity     float64
 	LuminosityUnit string
+	// Derived lists the derived quantities of output.derived, checked
+	// against the truth binning.
+	Derived []*derive.Quantity
 }
 
 // Load reads, decodes and checks the analysis file at path. Problems in
@@ -382,6 +386,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		c.errf(c.line("output", "luminosity"), "result.luminosity", "must be a positive integrated luminosity")
 	}
 
+	c.derived(a, o.Derived)
 	c.stress(a, doc.Validation.Stress)
 
 	// Processing.
