@@ -14,11 +14,11 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/methods/binbybin"
-	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/result"
 )
 
