@@ -69,6 +69,10 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// SliceAxis names the axis along which the ROOT file's slice
+	// histograms run (see SlicesAlong); empty: the last axis of each
+	// region.
+	SliceAxis string `json:"root_slice_axis,omitempty"`
 	// Derived lists the derived quantities asked for (projections,
 	// densities, normalised shapes; see Derived), each written as its own
 	// table.
