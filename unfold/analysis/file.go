@@ -152,6 +152,7 @@ type outputDoc struct {
 	Formats        []string     `yaml:"formats"`
 	Luminosity     float64      `yaml:"luminosity"`
 	LuminosityUnit string       `yaml:"luminosity_unit"`
+	RootSliceAxis  string       `yaml:"root_slice_axis"`
 	Derived        []derivedDoc `yaml:"derived"`
 }
 

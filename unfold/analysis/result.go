@@ -234,6 +234,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 		}
 	}
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
+	doc.SliceAxis = a.Output.RootSliceAxis
 	for _, q := range a.Output.Derived {
 		var cov mat.Symmetric
 		if c := out.Result.Covariance; c != nil {
