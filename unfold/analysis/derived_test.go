@@ -56,6 +56,8 @@ func TestDerivedDecode(t *testing.T) {
 		{add("{name: a, region: all, kind: shape}\n    - {name: a, region: all, kind: projection}"), `testdata/bad.yaml:35: output.derived[1].name: "a" is the name of the derived quantity on line 34 too`},
 		{add("{name: a, region: all, kind: shape, colour: red}"), `testdata/bad.yaml:34: colour: unknown key in a derived quantity (known keys: name, region, kind, axes, per_slice, divide_by_widths, luminosity)`},
 		{add("{name: a, region: all, kind: shape, luminosity: 2}"), `testdata/bad.yaml:34: output.derived[0].luminosity: value 2 is an integer, want`},
+		{lumi + "\n  root_slice_axis: z", `testdata/bad.yaml:33: output.root_slice_axis: the truth binning has no axis "z" (its axes: x)`},
+		{lumi + "\n  root_slice_axis: [x]", `testdata/bad.yaml:33: output.root_slice_axis: the value is a list, want a string`},
 		{lumi + "\n  derived: {name: a}", `testdata/bad.yaml:33: output.derived: the value is a mapping, want a list of derived quantities`},
 		{lumi + "\n  formats: [json, csv]\n  derived:\n    - {name: a, region: all, kind: shape}", `testdata/bad.yaml:33: output.formats: output.derived lists quantities but the formats leave out "derived"`},
 	}
