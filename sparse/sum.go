@@ -3,7 +3,6 @@ package sparse
 import (
 	"errors"
 	"fmt"
-	"slices"
 )
 
 // Sum returns the cell-by-cell sum of the matrices, which must all have
@@ -43,43 +42,78 @@ func Sum(ms ...*Matrix) (*Matrix, error) {
 	if withW2 {
 		sw2 = make([]float64, 0, nnz)
 	}
-	// The entries of a column from every matrix, in argument order; a
-	// stable sort by row keeps that order among equal rows.
-	type ent struct {
-		row     int
-		v, sum2 float64
+	// Per column, a k-way merge of the matrices' row lists: a binary heap
+	// of the matrices ordered by (next row, argument number), so that
+	// equal rows come out in argument order.
+	pos := make([]int, len(ms))
+	heap := make([]int, 0, len(ms))
+	less := func(a, b int) bool {
+		ra, rb := ms[a].rowIdx[pos[a]], ms[b].rowIdx[pos[b]]
+		return ra < rb || ra == rb && a < b
 	}
-	var buf []ent
+	down := func(i int) {
+		for {
+			l := 2*i + 1
+			if l >= len(heap) {
+				return
+			}
+			if r := l + 1; r < len(heap) && less(heap[r], heap[l]) {
+				l = r
+			}
+			if !less(heap[l], heap[i]) {
+				return
+			}
+			heap[i], heap[l] = heap[l], heap[i]
+			i = l
+		}
+	}
 	for j := 0; j < cols; j++ {
-		buf = buf[:0]
-		for _, m := range ms {
-			for p := m.colPtr[j]; p < m.colPtr[j+1]; p++ {
-				e := ent{row: m.rowIdx[p], v: m.val[p]}
-				if withW2 {
-					e.sum2 = m.sumw2[p]
-				}
-				buf = append(buf, e)
+		heap = heap[:0]
+		for k, m := range ms {
+			pos[k] = m.colPtr[j]
+			if pos[k] < m.colPtr[j+1] {
+				heap = append(heap, k)
 			}
 		}
-		slices.SortStableFunc(buf, func(a, b ent) int { return a.row - b.row })
-		for p := 0; p < len(buf); {
-			e := buf[p]
-			p++
-			for p < len(buf) && buf[p].row == e.row {
-				e.v += buf[p].v
-				e.sum2 += buf[p].sum2
-				p++
+		for i := len(heap)/2 - 1; i >= 0; i-- {
+			down(i)
+		}
+		last := -1
+		for len(heap) > 0 {
+			k := heap[0]
+			m := ms[k]
+			p := pos[k]
+			r := m.rowIdx[p]
+			if r == last {
+				q := len(val) - 1
+				val[q] += m.val[p]
+				if withW2 {
+					sw2[q] += m.sumw2[p]
+				}
+			} else {
+				rowIdx = append(rowIdx, r)
+				val = append(val, m.val[p])
+				if withW2 {
+					sw2 = append(sw2, m.sumw2[p])
+				}
+				last = r
 			}
-			if e.v-e.v != 0 || e.sum2-e.sum2 != 0 {
-				return nil, fmt.Errorf("sparse: the sum of cell (row %d, column %d) overflows", e.row, j)
+			if pos[k]++; pos[k] == m.colPtr[j+1] {
+				heap[0] = heap[len(heap)-1]
+				heap = heap[:len(heap)-1]
 			}
-			rowIdx = append(rowIdx, e.row)
-			val = append(val, e.v)
-			if withW2 {
-				sw2 = append(sw2, e.sum2)
-			}
+			down(0)
 		}
 		colPtr[j+1] = len(val)
+	}
+	for p, v := range val {
+		if v-v != 0 || withW2 && sw2[p]-sw2[p] != 0 {
+			j := 0
+			for colPtr[j+1] <= p {
+				j++
+			}
+			return nil, fmt.Errorf("sparse: the sum of cell (row %d, column %d) overflows", rowIdx[p], j)
+		}
 	}
 	return NewMatrix(rows, cols, colPtr, rowIdx, val, sw2)
 }
