@@ -2,8 +2,12 @@ package events
 
 import (
 	"context"
+	"math"
+	"os"
 	"path/filepath"
 	"testing"
+
+	"github.com/parquet-go/parquet-go"
 
 	"github.com/desmear/desmear/unfold/internal/eventfile"
 )
@@ -70,6 +74,62 @@ func TestReadRange(t *testing.T) {
 				}
 			}
 			src.Close()
+		}
+	}
+}
+
+// TestParquetReadRangeRowGroups: ranged reads of a Parquet file of many
+// small row groups (and pages) equal the slices of a whole read, for
+// ranges that start and end inside, at the edges of, and across groups.
+func TestParquetReadRangeRowGroups(t *testing.T) {
+	type row struct {
+		X float64 `parquet:"x"`
+		N int64   `parquet:"n"`
+	}
+	rows := make([]row, 5000)
+	for k := range rows {
+		rows[k] = row{X: math.Sqrt(float64(k)), N: int64(k) - 7}
+	}
+	path := filepath.Join(t.TempDir(), "groups.parquet")
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := parquet.NewGenericWriter[row](f, parquet.MaxRowsPerRowGroup(700), parquet.PageBufferSize(1024))
+	if _, err := w.Write(rows); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	src, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.Close()
+	if g := len(src.(*Parquet).pf.RowGroups()); g < 7 {
+		t.Fatalf("%d row groups, want at least 7", g)
+	}
+	for _, r := range [][2]int64{{0, 700}, {700, 1400}, {699, 701}, {1, 4999}, {2100, 2100}, {3333, 5000}, {4999, 6000}} {
+		var xs, ns []float64
+		err := src.ReadRange(context.Background(), []string{"x", "n"}, r[0], r[1], 128, func(b *Batch) error {
+			xs = append(xs, b.Cols[0]...)
+			ns = append(ns, b.Cols[1]...)
+			return nil
+		})
+		if err != nil {
+			t.Fatal(err)
+		}
+		hi := min(r[1], 5000)
+		if int64(len(xs)) != hi-r[0] {
+			t.Fatalf("[%d,%d): %d rows", r[0], r[1], len(xs))
+		}
+		for i := range xs {
+			k := r[0] + int64(i)
+			if xs[i] != rows[k].X || ns[i] != float64(rows[k].N) {
+				t.Fatalf("[%d,%d): row %d is %v %v, want %v %v", r[0], r[1], k, xs[i], ns[i], rows[k].X, rows[k].N)
+			}
 		}
 	}
 }
