@@ -81,7 +81,9 @@ func synthCol(i int) response.Expr {
 func syntheticSimulation(n int64) *response.Simulation {
 	return &response.Simulation{
 		Sample: response.Sample{Name: "synthetic", Events: n, Weight: synthCol(6),
-			Read:      func(ctx context.Context, fn func(int64, int, [][]float64) error) error { return synthetic(ctx, 0, n, fn) },
+			Read: func(ctx context.Context, fn func(int64, int, [][]float64) error) error {
+				return synthetic(ctx, 0, n, fn)
+			},
 			ReadRange: synthetic},
 		Truth: response.Level{Observables: []response.Expr{synthCol(0), synthCol(1), synthCol(2)}},
 		Reco:  response.Level{Observables: []response.Expr{synthCol(3), synthCol(4), synthCol(5)}},
