@@ -345,6 +345,22 @@ func Merge(parts ...*Ensemble) (*Ensemble, error) {
 	return out, nil
 }
 
+// complete reports whether e holds toys 0..toys−1, each once, in
+// blocks in toy order (as Run and Merge make them).
+func (e *Ensemble) complete(toys int) error {
+	next := 0
+	for _, b := range e.Blocks {
+		if b.First != next {
+			return fmt.Errorf("validate: toys %d..%d are missing from the ensemble", next, b.First-1)
+		}
+		next = b.First + b.Toys
+	}
+	if next != toys {
+		return fmt.Errorf("validate: the ensemble holds toys 0..%d, want 0..%d", next-1, toys-1)
+	}
+	return nil
+}
+
 // total returns the moments of all toys of k (0-based), the blocks
 // merged in toy order.
 func (e *Ensemble) total(k int) Acc {
