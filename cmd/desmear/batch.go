@@ -33,7 +33,7 @@ validation folder "desmear validate" writes, bit for bit.
   desmear batch merge DIR                  (writes the validation folder)
   desmear batch submit DIR --slurm         (a job array and a dependent merge)
 
-See "desmear help batch".`,
+See "desmear help cluster".`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return usagef("batch needs a subcommand: plan, run, run-local, status, merge or submit (see \"desmear batch --help\")")
