@@ -99,8 +99,8 @@ func TestBatchPlanRefuses(t *testing.T) {
 		args []string
 		want string
 	}{
-		{[]string{"--replicas", "10"}, "bootstrap replicas are not available yet"},
-		{[]string{"--variations"}, "systematic variations are not available yet"},
+		{[]string{"--replicas", "10"}, "plans of bootstrap replicas are not available yet"},
+		{[]string{"--variations"}, "plans of systematic variations are not available yet"},
 		{[]string{"--toys", "10", "--replicas", "3"}, "one of --toys N, --replicas N or --variations"},
 	} {
 		code, _, errs := runCLI(t, ctx, append([]string{"batch", "plan", "a.yaml", "--shards", "2", "--workdir", w}, c.args...)...)

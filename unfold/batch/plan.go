@@ -33,8 +33,9 @@ const (
 	Toys Kind = "toys"
 	// Replicas: bootstrap replicas of the simulation (not available).
 	Replicas Kind = "replicas"
-	// Variations: the systematic variations of an analysis (not
-	// available).
+	// Variations: the systematic variations of an analysis, one unit
+	// each (not available: an analysis runs its variations in one
+	// process).
 	Variations Kind = "variations"
 )
 
@@ -67,9 +68,9 @@ func (k Kind) Check() error {
 	case Toys:
 		return nil
 	case Replicas:
-		return fmt.Errorf("batch: ensembles of bootstrap replicas are %w: only toy ensembles can be planned", ErrNotAvailable)
+		return fmt.Errorf("batch: plans of bootstrap replicas are %w: only toy ensembles can be planned", ErrNotAvailable)
 	case Variations:
-		return fmt.Errorf("batch: ensembles of systematic variations are %w: only toy ensembles can be planned", ErrNotAvailable)
+		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): only toy ensembles can be planned", ErrNotAvailable)
 	}
 	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
 }
