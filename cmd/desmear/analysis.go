@@ -42,6 +42,12 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 // progress bar on stderr when it is a terminal. It returns the analysis
 // and what the run produced.
 func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, noReport bool) (*analysis.Analysis, *analysis.Outcome, error) {
+	return runAnalysisWith(ctx, g, path, replace, noReport, &analysis.Options{})
+}
+
+// runAnalysisWith is runAnalysis with the options opt (the progress and
+// the version are filled in here).
+func runAnalysisWith(ctx context.Context, g *globalOptions, path string, replace, noReport bool, opt *analysis.Options) (*analysis.Analysis, *analysis.Outcome, error) {
 	a, err := analysis.Load(path)
 	if err != nil {
 		return nil, nil, analysisErr(err)
@@ -61,13 +67,18 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, no
 	p := newProgress(g)
 	defer p.finish()
 	start := time.Now()
-	out, err := a.Run(ctx, &analysis.Options{Progress: p.report, Version: version}, replace)
+	opt.Progress, opt.Version = p.report, version
+	out, err := a.Run(ctx, opt, replace)
 	p.finish()
 	if err != nil {
 		return nil, nil, analysisErr(err)
 	}
 	if !g.quiet {
-		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", path, time.Since(start).Seconds())
+		shown := path
+		if opt.Staged != "" {
+			shown = filepath.Join(opt.Final, filepath.Base(path))
+		}
+		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", shown, time.Since(start).Seconds())
 	}
 	return a, out, nil
 }

@@ -2,7 +2,12 @@ package main
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"io/fs"
+	stdmaps "maps"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"runtime"
 	"strconv"
@@ -320,4 +325,79 @@ func TestUnreadableColumnNamed(t *testing.T) {
 	os.WriteFile(path, []byte(bad), 0o644)
 	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
 	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
+}
+
+// treeSums returns the SHA-256 of every file under dir by its relative
+// path.
+func treeSums(t *testing.T, dir string) map[string]string {
+	t.Helper()
+	sums := map[string]string{}
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		rel, _ := filepath.Rel(dir, p)
+		h := sha256.Sum256(b)
+		sums[rel] = hex.EncodeToString(h[:])
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return sums
+}
+
+// desmear demo --force over an earlier demo folder that cannot be
+// removed whole is an error (one line, exit 5) that leaves the earlier
+// folder byte-identical and nothing beside it; a replacement that can go
+// ahead installs inputs and result together (common practice: an
+// immutable file cannot be unlinked, even by root).
+func TestDemoForceWithoutLoss(t *testing.T) {
+	parent := t.TempDir()
+	out := filepath.Join(parent, "demo")
+	args := []string{"demo", "--out", out, "--events", "20000", "--no-report", "-q"}
+	if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
+		t.Fatalf("demo: exit %d, %s", code, stderr)
+	}
+	before := treeSums(t, out)
+	stuck := filepath.Join(out, "result", "result.csv")
+	if os.Geteuid() == 0 {
+		if msg, err := exec.Command("chattr", "+i", stuck).CombinedOutput(); err != nil {
+			t.Skipf("running as root and chattr +i is not available here (%v: %s)", err, msg)
+		}
+		t.Cleanup(func() { exec.Command("chattr", "-i", stuck).Run() })
+	} else {
+		os.Chmod(filepath.Join(out, "result"), 0o555)
+		t.Cleanup(func() { os.Chmod(filepath.Join(out, "result"), 0o755) })
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), append(args, "--force", "--seed", "5")...)
+	checkRefusal(t, "demo --force over an unremovable folder", code, stdout, stderr, exitIO, "cannot be removed", "")
+	if after := treeSums(t, out); !stdmaps.Equal(before, after) {
+		t.Errorf("the earlier demo folder changed after the refused replacement")
+	}
+	if entries, _ := os.ReadDir(parent); len(entries) != 1 {
+		t.Errorf("beside the demo folder after the refusal: %v", entries)
+	}
+	if os.Geteuid() == 0 {
+		exec.Command("chattr", "-i", stuck).Run()
+	} else {
+		os.Chmod(filepath.Join(out, "result"), 0o755)
+	}
+	if code, _, stderr := runCLI(t, context.Background(), append(args, "--force", "--seed", "5")...); code != 0 {
+		t.Fatalf("demo --force: exit %d, %s", code, stderr)
+	}
+	after := treeSums(t, out)
+	if after["result/result.json"] == "" || after["analysis.yaml"] == "" || after["result/result.json"] == before["result/result.json"] {
+		t.Errorf("demo --force did not install new inputs and a new result together")
+	}
+	if entries, _ := os.ReadDir(parent); len(entries) != 1 {
+		t.Errorf("beside the demo folder after the replacement: %v", entries)
+	}
+	if b, _ := os.ReadFile(filepath.Join(out, "result", "result.json")); strings.Contains(string(b), "partial") {
+		t.Errorf("result.json names the temporary folder")
+	}
 }

@@ -210,15 +210,18 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	if doc.Inputs, err = a.inputs(out); err != nil {
 		return err
 	}
+	for k := range doc.Inputs {
+		doc.Inputs[k].Path = opt.shown(doc.Inputs[k].Path)
+	}
 	prior := "generated"
 	if a.Unfolding.Prior != "simulation" {
 		prior = a.Unfolding.Prior
 	}
 	doc.Settings = result.DescribeSettings(s, m, prior, out.Background != nil)
 	doc.Settings.IterationsChosen = out.IterationsChosen
-	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
-	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
-	doc.Analysis = &result.Analysis{File: a.File, Title: a.Title}
+	doc.TruthBinning = result.DescribeBinning(a.Truth, opt.shown(a.TruthFile))
+	doc.RecoBinning = result.DescribeBinning(a.Reco, opt.shown(a.RecoFile))
+	doc.Analysis = &result.Analysis{File: opt.shown(a.File), Title: a.Title}
 	doc.Purity, doc.Stability = finitePtrs(out.Response.Purity(nil)), finitePtrs(out.Response.Stability(nil))
 	doc.Density, doc.DensityUncertainty = result.Densities(a.Truth, doc.Estimate, doc.Uncertainty, a.Output.Luminosity)
 	for _, q := range []struct {
@@ -246,7 +249,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	if err := f.Commit(); err != nil {
 		return err
 	}
-	out.Folder = a.Output.Folder
+	out.Folder = opt.shown(a.Output.Folder)
 	out.Document = doc
 	return nil
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"path/filepath"
 	"slices"
 	"strings"
 
@@ -31,6 +32,27 @@ type Options struct {
 	Progress func(stage string, done, total int64)
 	// Version is the program version recorded in the outputs.
 	Version string
+	// Staged and Final, when both are set, say that the analysis file
+	// lies in a folder being written under the temporary name Staged,
+	// to be installed at Final once the run is done: the paths under
+	// Staged are recorded in the result and in the Outcome as under
+	// Final, where they will be.
+	Staged, Final string
+}
+
+// shown returns the path p as recorded in the outputs (see
+// Options.Staged).
+func (opt *Options) shown(p string) string {
+	if opt == nil || opt.Staged == "" || opt.Final == "" {
+		return p
+	}
+	staged := filepath.Clean(opt.Staged)
+	if c := filepath.Clean(p); c == staged {
+		return opt.Final
+	} else if rel, ok := strings.CutPrefix(c, staged+string(filepath.Separator)); ok {
+		return filepath.Join(opt.Final, rel)
+	}
+	return p
 }
 
 func (a *Analysis) fillOptions(opt *Options, stage string) *response.Options {
