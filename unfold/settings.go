@@ -199,6 +199,11 @@ type Settings struct {
 	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
 	// the probe vectors held at once (zero means DefaultMemoryLimit).
 	MemoryLimit int64
+
+	// NegativeCells and Unexplained are the remedies Remedy applies
+	// before the unfolding (zero: refuse).
+	NegativeCells NegativeCells
+	Unexplained   Unexplained
 }
 
 // Resolve checks s (nil means the zero value) and returns it with the
@@ -223,6 +228,10 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"Covariance", "unknown mode"}
 	case r.DiagonalMethod < 0 || int(r.DiagonalMethod) >= len(diagonalNames):
 		return r, &SettingsError{"DiagonalMethod", "unknown method"}
+	case r.NegativeCells < 0 || int(r.NegativeCells) >= len(negativeEnum.Names):
+		return r, &SettingsError{"NegativeCells", "unknown remedy"}
+	case r.Unexplained < 0 || int(r.Unexplained) >= len(unexplainedEnum.Names):
+		return r, &SettingsError{"Unexplained", "unknown remedy"}
 	}
 	if r.Probes == 0 {
 		r.Probes = DefaultProbes
