@@ -2,6 +2,7 @@ package unfold
 
 import (
 	"fmt"
+	"slices"
 	"strings"
 )
 
@@ -110,6 +111,13 @@ func (l Labels) of(kind string, bin int) string {
 	return fmt.Sprintf("%s bin %d (%s)", kind, bin, l(bin))
 }
 
+// The words of Remedy's errors naming the setting that would remedy the
+// problem; front ends replace them with their flag or key.
+const (
+	NegativeCellsAdvice = "the negative-cell remedy: clip"
+	UnexplainedAdvice   = "the unexplained-data remedy: drop"
+)
+
 // maxListed bounds the bins an error message lists one by one.
 const maxListed = 50
 
@@ -119,7 +127,8 @@ const maxListed = 50
 // (Unexplained), in that order (clipping can leave a reco bin
 // unreached). It returns p itself when nothing needs a remedy, otherwise
 // a shallow copy with new Migrations, Data and DataVariance; p is never
-// modified. reco and truth label the bins in the errors.
+// modified. reco and truth label the bins in the errors, whose Reco and
+// Truth are the first bin or cell listed.
 //
 // Errors: *SettingsError for an unknown remedy; *InputError listing every
 // negative cell with its value (refuse), or every unexplained reco bin
@@ -155,8 +164,9 @@ func Remedy(p *Problem, s *Settings, reco, truth Labels) (*Problem, *Remedies, e
 				}
 				list = append(list, fmt.Sprintf("%s × %s: %.6g", reco.of("reco", c.Reco), truth.of("truth", c.Truth), c.Value))
 			}
-			return nil, nil, inputErr("Migrations", -1, -1, "%d negative migration cells, %.6g in all (negative event weights; the iteration needs a non-negative response): %s; merge bins, use more simulated events, or clip them to zero (the negative-cell remedy)",
-				len(rem.ClippedCells), rem.ClippedWeight, strings.Join(list, ", "))
+			first := rem.ClippedCells[0]
+			return nil, nil, inputErr("Migrations", first.Reco, first.Truth, "%d negative migration cells, %.6g in all (negative event weights; the iteration needs a non-negative response): %s; merge bins, use more simulated events, or clip them to zero (%s)",
+				len(rem.ClippedCells), rem.ClippedWeight, strings.Join(list, ", "), NegativeCellsAdvice)
 		}
 		v := make([]float64, len(val))
 		var w2 []float64
@@ -179,6 +189,9 @@ func Remedy(p *Problem, s *Settings, reco, truth Labels) (*Problem, *Remedies, e
 	}
 	reach := make([]float64, nr)
 	q.Migrations.RowSums(reach)
+	if !slices.ContainsFunc(reach, func(x float64) bool { return x > 0 }) {
+		return q, rem, nil // an empty response: Prepare refuses it
+	}
 	var total float64
 	for i, n := range q.Data {
 		total += n
@@ -210,8 +223,8 @@ func Remedy(p *Problem, s *Settings, reco, truth Labels) (*Problem, *Remedies, e
 			}
 			list = append(list, fmt.Sprintf("%s: %.6g", reco.of("reco", d.Reco), d.Count))
 		}
-		return nil, nil, inputErr("Data", -1, -1, "%d reco bins hold data that no truth bin reaches and no background explains, %.6g in all (%.3g%% of the data): %s; widen the truth binning or its flows, add the background, or drop those bins (the unexplained-data remedy)",
-			len(rem.Dropped), rem.DroppedCount, 100*rem.DroppedFraction, strings.Join(list, ", "))
+		return nil, nil, inputErr("Data", rem.Dropped[0].Reco, -1, "%d reco bins hold data that no truth bin reaches and no background explains, %.6g in all (%.3g%% of the data): %s; widen the truth binning or its flows, add the background, or drop those bins (%s)",
+			len(rem.Dropped), rem.DroppedCount, 100*rem.DroppedFraction, strings.Join(list, ", "), UnexplainedAdvice)
 	}
 	c := *q
 	c.Data = append([]float64(nil), q.Data...)

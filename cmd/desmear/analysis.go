@@ -73,6 +73,8 @@ func runAnalysisWith(ctx context.Context, g *globalOptions, path string, replace
 	if err != nil {
 		return nil, nil, analysisErr(err)
 	}
+	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
+	printWarnings(g, out.Warnings)
 	if !g.quiet {
 		shown := path
 		if opt.Staged != "" {
@@ -189,4 +191,15 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t\n", j, a.Truth.Label(j), est, u, e)
 	}
 	tw.Flush()
+}
+
+// printWarnings prints the warnings on the inputs on stderr, one line
+// each.
+func printWarnings(g *globalOptions, warnings []string) {
+	if g.quiet {
+		return
+	}
+	for _, w := range warnings {
+		fmt.Fprintf(g.stderr, "desmear: warning: %s\n", w)
+	}
 }

@@ -40,6 +40,12 @@ type Outcome struct {
 	// IterationsChosen records the automatic choice of the number of
 	// iterations (iterations: auto); nil otherwise.
 	IterationsChosen *validate.Choice
+	// Remedies reports what the remedies of the settings changed in the
+	// problem (unfold.Remedy); Warnings are the notes on the inputs
+	// (efficiencies or purities above 1, data left out in switched-off
+	// flows), each one line naming the bins.
+	Remedies *unfold.Remedies
+	Warnings []string
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -135,6 +141,14 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if err != nil {
 		return nil, nil, err
 	}
+	s, _, err := a.Settings()
+	if err != nil {
+		return nil, nil, err
+	}
+	if p, out.Remedies, err = unfold.Remedy(p, s, a.Reco.Label, a.Truth.Label); err != nil {
+		return nil, nil, a.placeKernelError(err)
+	}
+	out.Warnings = a.warnings(out)
 	return out, p, nil
 }
 
@@ -237,6 +251,14 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+	if out.Data.OutsideContent != 0 {
+		doc.DataOutsideContent = &out.Data.OutsideContent
+		doc.DataOutsideFraction = &out.Data.OutsideFraction
+	}
+	if !out.Remedies.Empty() {
+		doc.Remedies = out.Remedies
+	}
+	doc.Warnings = out.Warnings
 
 	f, err := result.New(a.Output.Folder, replace)
 	if err != nil {
@@ -296,9 +318,49 @@ func (a *Analysis) placeKernelError(err error) error {
 	if ue.Truth >= 0 && ue.Truth < a.Truth.Len() {
 		where = append(where, fmt.Sprintf("truth bin %d (%s)", ue.Truth, a.Truth.Label(ue.Truth)))
 	}
-	e.Msg = what + ue.Reason
+	advice := strings.NewReplacer(unfold.NegativeCellsAdvice, "unfolding.negative_cells: clip", unfold.UnexplainedAdvice, "unfolding.unexplained: drop")
+	e.Msg = what + advice.Replace(ue.Reason)
 	if len(where) > 0 {
 		e.Msg = strings.Join(where, ", ") + ": " + e.Msg
 	}
 	return e
+}
+
+// ResponseWarnings returns one line for each kind of implausible value
+// of the response r, naming the truth bins: efficiencies above 1 and
+// purities above 1, which only negative event weights can produce.
+func (a *Analysis) ResponseWarnings(r *response.Built) []string {
+	var out []string
+	for _, q := range []struct {
+		name string
+		v    []float64
+	}{{"efficiency", r.Efficiency(nil)}, {"purity", r.Purity(nil)}} {
+		var bins []string
+		for j, x := range q.v {
+			if x > 1+unfold.EfficiencyTolerance {
+				if len(bins) == maxWarned {
+					bins = append(bins, "...")
+					break
+				}
+				bins = append(bins, fmt.Sprintf("%d (%s) %.3g", j, a.Truth.Label(j), x))
+			}
+		}
+		if len(bins) > 0 {
+			out = append(out, fmt.Sprintf("the %s is above 1 in truth bins %s: negative event weights in the simulation; check those bins", q.name, strings.Join(bins, ", ")))
+		}
+	}
+	return out
+}
+
+// maxWarned bounds the bins a warning lists.
+const maxWarned = 20
+
+// warnings returns the notes on the inputs of out: those of the
+// response, and the data left out in switched-off flows.
+func (a *Analysis) warnings(out *Outcome) []string {
+	w := a.ResponseWarnings(out.Response)
+	if d := out.Data; d != nil && d.OutsideContent != 0 {
+		w = append(w, fmt.Sprintf("data: %.6g (%.3g%% of the data read) lie in flows the reco binning switches off and are left out", d.OutsideContent, 100*d.OutsideFraction))
+	}
+	return w
 }

@@ -328,8 +328,13 @@ func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file,
 type Measured struct {
 	Values   []float64
 	Variance []float64 // nil: Poisson (unweighted data)
-	// Events, Selected and Outside count the data events (events files).
+	// Events, Selected and Outside count the data events (events files),
+	// or Outside the non-empty histogram cells of switched-off flows.
 	Events, Selected, Outside int64
+	// OutsideContent is the content left out in flows the reco binning
+	// switches off (weights of events, or histogram content), and
+	// OutsideFraction its fraction of everything read.
+	OutsideContent, OutsideFraction float64
 }
 
 // FillData fills or reads the data into the reco scheme.
@@ -342,7 +347,8 @@ func (a *Analysis) FillData(ctx context.Context, opt *Options) (*Measured, error
 		if err != nil {
 			return nil, err
 		}
-		m := &Measured{Values: h.Values, Events: h.Events, Selected: h.Selected, Outside: h.Outside}
+		m := &Measured{Values: h.Values, Events: h.Events, Selected: h.Selected, Outside: h.Outside, OutsideContent: h.OutsideWeight}
+		m.outsideFraction()
 		if d.Weight.Text != "" {
 			m.Variance = h.SumW2
 		}
@@ -463,6 +469,8 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	}
 	names := []named{
 		{"Background", &s.Background, u.Background},
+		{"NegativeCells", &s.NegativeCells, u.NegativeCells},
+		{"Unexplained", &s.Unexplained, u.Unexplained},
 		{"Covariance", &s.Covariance, un.Covariance},
 		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
 	}
