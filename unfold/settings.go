@@ -196,8 +196,9 @@ type Settings struct {
 	Toys int
 	// Seed seeds the probes and toys. Equal seeds give equal bits.
 	Seed uint64
-	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
-	// the probe vectors held at once (zero means DefaultMemoryLimit).
+	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance,
+	// and (within half of it) the probes of a batch with their buffers
+	// or the toys run at once (zero means DefaultMemoryLimit).
 	MemoryLimit int64
 
 	// NegativeCells and Unexplained are the remedies Remedy applies
