@@ -69,6 +69,13 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// Comparison compares the result with a reference spectrum, when
+	// one was given.
+	Comparison *Comparison `json:"comparison,omitempty"`
+	// RandomStreams records how the random numbers behind the
+	// uncertainty were drawn; absent when none were (an exact
+	// computation).
+	RandomStreams *RandomStreams `json:"random_streams,omitempty"`
 	// Determined flags the truth bins the response can measure
 	// (efficiency > 0).
 	Determined []bool `json:"determined"`
@@ -160,6 +167,29 @@ type Source struct {
 	Covariance  [][]float64 `json:"covariance,omitempty"`
 	Precision   float64     `json:"precision,omitempty"`
 	Samples     int         `json:"samples,omitempty"`
+	// Shift is the signed shift per truth bin of a systematic variation
+	// (the varied estimate minus the nominal one, or the half-difference
+	// of an up/down pair, whose one-sided shifts are ShiftUp and
+	// ShiftDown); absent for the statistical sources.
+	Shift     []float64 `json:"shift,omitempty"`
+	ShiftUp   []float64 `json:"shift_up,omitempty"`
+	ShiftDown []float64 `json:"shift_down,omitempty"`
+}
+
+// RandomStreams says where the random numbers of a result come from:
+// unit k of each kind (probe, toy or sample number k, from 0) draws from
+// the generator seeded with (Seed, Offset + k).
+type RandomStreams struct {
+	Generator string   `json:"generator"` // "pcg (go math/rand/v2)"
+	Seed      uint64   `json:"seed"`
+	Streams   []Stream `json:"streams"`
+}
+
+// Stream is one kind of unit of RandomStreams.
+type Stream struct {
+	Unit       string `json:"unit"` // "probe", "poisson-toy", "gamma-sample" or "response-sample"
+	Offset     uint64 `json:"offset"`
+	Derivation string `json:"derivation"` // for example "response-sample k (from 0) draws from rand.NewPCG(seed, 4·2^32 + k)"
 }
 
 // Tikhonov is the outcome of the Tikhonov method: the tau used and how
@@ -251,7 +281,12 @@ type Settings struct {
 	DiagonalMethod string `json:"diagonal_method,omitempty"`
 	Probes         int    `json:"probes,omitempty"`
 	Toys           int    `json:"toys,omitempty"`
-	Seed           uint64 `json:"seed"`
+	// ResponseSamples is the number of sampled responses behind the
+	// simulation source, SamplingPrior the prior of the Dirichlet and
+	// Gamma sampling ("none" or "flat"); absent without sampling.
+	ResponseSamples int    `json:"response_samples,omitempty"`
+	SamplingPrior   string `json:"sampling_prior,omitempty"`
+	Seed            uint64 `json:"seed"`
 	// MemoryLimit is the memory limit of the uncertainty computation in
 	// bytes.
 	MemoryLimit int64 `json:"memory_limit"`
@@ -355,9 +390,15 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 		switch z.DiagonalMethod {
 		case unfold.DiagonalAuto, unfold.DiagonalProbes:
 			d.Probes = z.Probes
-		case unfold.DiagonalToys:
+		case unfold.DiagonalToys, unfold.DiagonalGamma:
 			d.Toys = z.Toys
 		}
+	}
+	if z.ResponseSamples > 0 {
+		d.ResponseSamples = z.ResponseSamples
+	}
+	if z.ResponseSamples > 0 || z.Covariance == unfold.Diagonal && z.DiagonalMethod == unfold.DiagonalGamma {
+		d.SamplingPrior = z.SamplingPrior.String()
 	}
 	return d
 }
@@ -382,6 +423,13 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		UncertaintyMethod:    res.UncertaintyMethod,
 		UncertaintyPrecision: res.UncertaintyPrecision,
 		UncertaintySamples:   res.Samples,
+	}
+	if len(res.Streams) > 0 {
+		r.RandomStreams = &RandomStreams{Generator: "pcg (go math/rand/v2)", Seed: res.Seed}
+		for _, st := range res.Streams {
+			r.RandomStreams.Streams = append(r.RandomStreams.Streams, Stream{Unit: st.Unit, Offset: st.Offset,
+				Derivation: fmt.Sprintf("%s k (from 0) draws from rand.NewPCG(seed, %d·2^32 + k)", st.Unit, st.Offset>>32)})
+		}
 	}
 	// Each method has one case here: the fields of its details.
 	switch d := res.Details.(type) {
@@ -427,12 +475,28 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 				s.Uncertainty[j] = math.Sqrt(v)
 			}
 		}
+		s.Shift, s.ShiftUp, s.ShiftDown = determinedOnly(src.Shift, r.Determined), determinedOnly(src.Up, r.Determined), determinedOnly(src.Down, r.Determined)
 		r.Sources = append(r.Sources, s)
 	}
 	if err := r.checkFinite(); err != nil {
 		return nil, err
 	}
 	return r, nil
+}
+
+// determinedOnly returns a copy of v with 0 in the bins not determined
+// (nil for a nil v).
+func determinedOnly(v []float64, determined []bool) []float64 {
+	if v == nil {
+		return nil
+	}
+	out := make([]float64, len(v))
+	for j, x := range v {
+		if determined[j] {
+			out[j] = x
+		}
+	}
+	return out
 }
 
 // denseRows returns c as an array of rows with the rows and columns of
@@ -488,9 +552,14 @@ func (r *Result) checkFinite() error {
 		return err
 	}
 	for _, src := range r.Sources {
-		for i, v := range src.Uncertainty {
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return fmt.Errorf("result: the uncertainty[%d] of source %q is %v", i, src.Name, v)
+		for _, x := range []struct {
+			what string
+			v    []float64
+		}{{"uncertainty", src.Uncertainty}, {"shift", src.Shift}, {"shift_up", src.ShiftUp}, {"shift_down", src.ShiftDown}} {
+			for i, v := range x.v {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return fmt.Errorf("result: the %s[%d] of source %q is %v", x.what, i, src.Name, v)
+				}
 			}
 		}
 		if err := finiteRows(fmt.Sprintf("the covariance of source %q", src.Name), src.Covariance); err != nil {
