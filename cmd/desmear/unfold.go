@@ -657,6 +657,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 			return o.kernelErr(&pi.set, err)
 		}
 	}
+	if b, err := unfold.FullCovarianceBytes(prob, settings); err == nil && b >= 64<<20 {
+		fmt.Fprintf(g.stderr, "note: the full covariance takes about %.0f MB of memory (dense Jacobian and covariance matrix)\n", float64(b)/1e6)
+	}
 	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
 		return o.kernelErr(&pi.set, err)
