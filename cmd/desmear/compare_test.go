@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -10,6 +11,9 @@ import (
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold/result"
 )
 
 // --compare in plain-table mode: the pulls and the chi-square of result.json
@@ -222,4 +226,45 @@ func TestUnfoldCollapseWarning(t *testing.T) {
 	if code != 0 || strings.Contains(stderr, "warning:") {
 		t.Errorf("without the background: exit %d, stderr %s", code, stderr)
 	}
+}
+
+// Both modes print the same notes through printBinNotes: an analysis
+// result with a truth bin not determined and a collapsed bin gets the
+// note and the warning, naming the bin by its label and the analysis
+// file's way to ask for toys.
+func TestBinNotesAnalysisMode(t *testing.T) {
+	var stderr strings.Builder
+	g := &globalOptions{stdout: io.Discard, stderr: &stderr}
+	r := &result.Result{TruthBins: 3, Determined: []bool{true, true, false}, CollapsedBins: []int{1}}
+	s := compareScheme(t)
+	printBinNotes(g, r, s, "uncertainty.method: toys")
+	got := stderr.String()
+	for _, want := range []string{"1 truth bins have no response entries", "(bins 1 " + s.Label(1) + ")", "uncertainty.method: toys"} {
+		if !strings.Contains(got, want) {
+			t.Errorf("stderr lacks %q:\n%s", want, got)
+		}
+	}
+	stderr.Reset()
+	g.quiet = true
+	printBinNotes(g, r, s, "")
+	if stderr.Len() != 0 {
+		t.Errorf("--quiet printed %q", stderr.String())
+	}
+}
+
+func compareScheme(t *testing.T) *binning.Scheme {
+	t.Helper()
+	ax, err := binning.NewAxis("x", "", []float64{0, 1, 2, 3}, false, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	reg, err := binning.NewRegion("all", ax)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := binning.NewScheme(reg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
 }
