@@ -38,6 +38,10 @@ type Source struct {
 	// or samples behind it (0 for an exact computation).
 	Precision float64
 	Samples   int
+	// Shift is the signed shift per truth bin of a systematic variation
+	// (ShiftSource, PairSource); nil for the statistical sources. Up and
+	// Down are the one-sided shifts of an up/down pair (nil otherwise).
+	Shift, Up, Down []float64
 }
 
 // AddSource appends s to r.Sources and sets the totals: r.Uncertainty to

@@ -14,6 +14,7 @@ import (
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -175,7 +176,8 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 		fmt.Fprintf(w, "total uncertainty = the square root of the sum of the sources' variances: %s\n", strings.Join(names, ", "))
 	}
 	if cmp.NDF > 0 {
-		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the total covariance of the in-range bins (the sum of the sources' covariances, inverted by Cholesky)\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
+		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the total covariance of the in-range bins (the sum of the sources') through its pseudo-inverse\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
+		fmt.Fprintf(w, "         (eigenvalues below %.0e of the largest dropped: ndf = %d of %d directions kept; condition number %.3g; desmear help method, §19)\n", unfold.EigenvalueCut, cmp.NDF, len(cmp.Rows), cmp.Condition)
 	}
 	fmt.Fprintf(w, "pull = (unfolded - truth) / total uncertainty; neighbouring bins are correlated.\n")
 	fmt.Fprintf(w, "stress test (simulation reweighted to the true spectrum): desmear unfold %s\n", in.Path(demo.StressFile))

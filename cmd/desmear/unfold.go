@@ -34,6 +34,7 @@ type unfoldOptions struct {
 	flags *pflag.FlagSet // set by check, for the messages naming flags
 
 	response, generated, data, background, prior string
+	compare                                      string
 	truthBinning, recoBinning                    string
 
 	method        string
@@ -64,7 +65,7 @@ type unfoldOptions struct {
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
 // combined with an analysis file.
-var tableFlags = []string{"response", "generated", "data", "background", "prior", "truth-binning", "reco-binning"}
+var tableFlags = []string{"response", "generated", "data", "background", "prior", "truth-binning", "reco-binning", "compare"}
 
 // testHook, when set by a test, is called at named stages of the
 // plain-table run ("loaded", "unfolded", "written").
@@ -192,6 +193,7 @@ func (o *unfoldOptions) tableFlags(f *pflag.FlagSet) {
 	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
 	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
 	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
+	f.StringVar(&o.compare, "compare", "", "reference table `T.csv` (truth,value): print and store the pulls and the chi-square of the result against it (comparison.csv, result.json comparison)")
 	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
 	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
 }
@@ -456,6 +458,7 @@ func readHashed(role, what, path string, read func(r io.Reader) error) (inputs.F
 // plainInputs is everything read for a plain-table run.
 type plainInputs struct {
 	set         tables.Set
+	compare     *tables.Vector // the reference of --compare, nil without
 	truth, reco *binning.Scheme
 	inputs      []inputs.File
 }
@@ -498,11 +501,16 @@ func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 		{o.data, tables.Data, &pi.set.Data},
 		{o.background, tables.Background, &pi.set.Background},
 		{o.prior, tables.Prior, &pi.set.Prior},
+		{o.compare, tables.Prior, &pi.compare},
 	} {
 		if t.path == "" {
 			continue
 		}
-		if err := add(readHashed(t.kind.String(), t.kind.String()+" table", t.path, func(r io.Reader) (err error) {
+		role := t.kind.String()
+		if t.dst == &pi.compare {
+			role = "compare"
+		}
+		if err := add(readHashed(role, role+" table", t.path, func(r io.Reader) (err error) {
 			*t.dst, err = tables.ReadVector(r, t.path, t.kind)
 			return err
 		})); err != nil {
@@ -599,6 +607,12 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err != nil {
 		return inputErr(err)
 	}
+	var ref []float64
+	if pi.compare != nil {
+		if ref, _, err = pi.compare.Dense(z.Truth, z.TruthOrigin); err != nil {
+			return inputErr(err)
+		}
+	}
 	hook(ctx, "loaded")
 	if err := ctx.Err(); err != nil {
 		return err
@@ -635,6 +649,11 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	if pi.reco != nil {
 		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)
+	}
+	if ref != nil {
+		if err := r.Compare(res, ref, o.compare, pi.truth); err != nil {
+			return numericalErr(err)
+		}
 	}
 
 	var files []string
@@ -791,6 +810,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 		}
 	}
 	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
+	printComparison(w, r, truth)
 	printChecks(w, dir, r, files)
 	if g.quiet {
 		return
@@ -816,4 +836,58 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 			fmt.Fprintf(g.stderr, "note: the simulation's statistical uncertainty from %d sampled responses (relative precision of each of its variances about %.0f%%) is added to the data's\n", src.Samples, 100*src.Precision)
 		}
 	}
+}
+
+// printComparison prints the comparison of r with its reference
+// spectrum (nothing without one): the pulls per compared bin for up to
+// maxTableRows bins, and the chi-square with how it was computed.
+func printComparison(w io.Writer, r *result.Result, truth *binning.Scheme) {
+	if r == nil || r.Comparison == nil {
+		return
+	}
+	c := r.Comparison
+	fmt.Fprintf(w, "comparison with %s (%d truth bins):\n", c.Reference, len(c.Bins))
+	if len(c.Bins) <= maxTableRows {
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		head := "bin\treference\testimate\tpull\t"
+		if truth != nil {
+			head += "  label"
+		}
+		fmt.Fprintln(tw, head)
+		for k, j := range c.Bins {
+			pull := "-"
+			if c.Pull[k] != nil {
+				pull = fmt.Sprintf("%+.2f", *c.Pull[k])
+			}
+			line := fmt.Sprintf("%d\t%.6g\t%.6g\t%s\t", j, c.Values[k], r.Estimate[j], pull)
+			if truth != nil {
+				line += "  " + truth.Label(j)
+			}
+			fmt.Fprintln(tw, line)
+		}
+		tw.Flush()
+	}
+	fmt.Fprintln(w, comparisonChi2(c))
+}
+
+// comparisonChi2 says what the chi-square of a comparison is and how it
+// was computed (method.md §19).
+func comparisonChi2(c *result.Comparison) string {
+	if c.Covariance == "none" {
+		return "no chi-square: the result has no uncertainty (pull = (estimate - reference) / uncertainty)"
+	}
+	what := "the total covariance"
+	if c.Covariance == "diagonal" {
+		what = "the total uncertainties only (no full covariance: correlations ignored)"
+	}
+	cond := "singular"
+	if c.Condition != nil {
+		cond = fmt.Sprintf("%.3g", *c.Condition)
+	}
+	ratio := "-"
+	if c.NDF > 0 {
+		ratio = fmt.Sprintf("%.2f", c.Chi2/float64(c.NDF))
+	}
+	return fmt.Sprintf("chi2/ndf = %.1f/%d = %s (p-value %.2f) with %s through its pseudo-inverse: eigenvalues below %.0e of the largest dropped, %d of %d directions kept (condition number %s)",
+		c.Chi2, c.NDF, ratio, c.PValue, what, c.EigenvalueCut, c.NDF, c.Determined, cond)
 }

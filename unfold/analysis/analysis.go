@@ -53,10 +53,20 @@ type Analysis struct {
 	Workers     int
 	BatchSize   int
 
+	// Compare, when not empty, names a reference spectrum (a truth,value
+	// table over the truth binning) that the result is compared with
+	// (key compare; resolved).
+	Compare string
+
 	// Stress lists the stress tests of validation.stress: a name and
 	// weights per truth bin, the weight expression evaluated over the
 	// truth axes at the bin centres (validate.Weights).
 	Stress []Stress
+
+	// Variations lists the systematic variations: those of the file's
+	// variations, then one per background with a scale uncertainty
+	// (named ScaleSourceName of the background).
+	Variations []Variation
 }
 
 // Stress is a stress test of the analysis file.
@@ -389,6 +399,10 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 
 	c.stress(a, doc.Validation.Stress)
+	if nodeAt(root, "compare") != nil {
+		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
+	}
+	c.variations(a, doc.Variations)
 
 	// Processing.
 	a.Workers, a.BatchSize = doc.Processing.Workers, doc.Processing.BatchSize

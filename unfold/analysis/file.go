@@ -19,18 +19,42 @@ import (
 // The YAML structure of an analysis file. Field tags are the keys; see
 // the package documentation and the reference page for their meaning.
 type fileDoc struct {
-	Title       string        `yaml:"title"`
-	Binning     binningDoc    `yaml:"binning"`
-	Observables levelsDoc     `yaml:"observables"`
-	Simulation  []sampleDoc   `yaml:"simulation"`
-	Response    string        `yaml:"response"`
-	Data        dataDoc       `yaml:"data"`
-	Backgrounds []bkgDoc      `yaml:"backgrounds"`
-	Unfolding   unfoldingDoc  `yaml:"unfolding"`
-	Uncertainty uncertainDoc  `yaml:"uncertainty"`
-	Output      outputDoc     `yaml:"output"`
-	Processing  processingDoc `yaml:"processing"`
-	Validation  validationDoc `yaml:"validation"`
+	Title       string         `yaml:"title"`
+	Binning     binningDoc     `yaml:"binning"`
+	Observables levelsDoc      `yaml:"observables"`
+	Simulation  []sampleDoc    `yaml:"simulation"`
+	Response    string         `yaml:"response"`
+	Data        dataDoc        `yaml:"data"`
+	Backgrounds []bkgDoc       `yaml:"backgrounds"`
+	Unfolding   unfoldingDoc   `yaml:"unfolding"`
+	Uncertainty uncertainDoc   `yaml:"uncertainty"`
+	Output      outputDoc      `yaml:"output"`
+	Processing  processingDoc  `yaml:"processing"`
+	Validation  validationDoc  `yaml:"validation"`
+	Compare     string         `yaml:"compare"`
+	Variations  []variationDoc `yaml:"variations"`
+}
+
+// changeDoc is one change of a systematic variation: exactly one kind.
+type changeDoc struct {
+	Files           []string `yaml:"files"`
+	Weight          string   `yaml:"weight"`
+	BackgroundScale float64  `yaml:"background_scale"`
+	Background      string   `yaml:"background"`
+	RecoObservables exprMap  `yaml:"reco_observables"`
+}
+
+// variationDoc is a systematic variation: a name and one change, or an
+// up/down pair of changes.
+type variationDoc struct {
+	Name            string    `yaml:"name"`
+	Files           []string  `yaml:"files"`
+	Weight          string    `yaml:"weight"`
+	BackgroundScale float64   `yaml:"background_scale"`
+	Background      string    `yaml:"background"`
+	RecoObservables exprMap   `yaml:"reco_observables"`
+	Up              changeDoc `yaml:"up"`
+	Down            changeDoc `yaml:"down"`
 }
 
 // validationDoc is what only a validation uses.
@@ -222,13 +246,16 @@ var sections = map[reflect.Type]string{
 	reflect.TypeFor[processingDoc](): "processing",
 	reflect.TypeFor[validationDoc](): "validation",
 	reflect.TypeFor[stressDoc]():     "a stress test",
+	reflect.TypeFor[variationDoc]():  "a variation",
+	reflect.TypeFor[changeDoc]():     "a variation's up or down change",
 }
 
 // lists describes the list sections in messages.
 var lists = map[reflect.Type]string{
-	reflect.TypeFor[[]sampleDoc](): "a list of simulated samples (- file: ...)",
-	reflect.TypeFor[[]bkgDoc]():    "a list of backgrounds (- name: ...)",
-	reflect.TypeFor[[]stressDoc](): "a list of stress tests (- name: ...)",
+	reflect.TypeFor[[]sampleDoc]():    "a list of simulated samples (- file: ...)",
+	reflect.TypeFor[[]bkgDoc]():       "a list of backgrounds (- name: ...)",
+	reflect.TypeFor[[]stressDoc]():    "a list of stress tests (- name: ...)",
+	reflect.TypeFor[[]variationDoc](): "a list of variations (- name: ...)",
 }
 
 var unmarshaler = reflect.TypeFor[yaml.Unmarshaler]()

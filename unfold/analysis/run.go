@@ -68,7 +68,7 @@ func (a *Analysis) CheckInputs(sim, rest bool) error {
 	}
 	if sim {
 		for _, s := range a.Simulation {
-			if err := check(s.File, s.Tree, s.Field+".file", s.Line, []Expression{s.Weight, s.TruthSelection, s.RecoSelection}, s.Truth, s.Reco); err != nil {
+			if err := a.checkSample(&s); err != nil {
 				return err
 			}
 		}
@@ -91,6 +91,24 @@ func (a *Analysis) CheckInputs(sim, rest bool) error {
 	return nil
 }
 
+// checkSample opens the events file of a simulated sample and compiles
+// its expressions against the file's columns.
+func (a *Analysis) checkSample(s *Sample) error {
+	src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
+	if err != nil {
+		return err
+	}
+	defer src.Close()
+	c := newCompiler(a, s.File, src)
+	for _, es := range [][]Expression{{s.Weight, s.TruthSelection, s.RecoSelection}, s.Truth, s.Reco} {
+		if _, err := c.addAll(es); err != nil {
+			return err
+		}
+	}
+	_, err = c.finish()
+	return err
+}
+
 // BuildResponse streams the simulated samples into a response. It
 // returns the response and the provenance of its inputs.
 func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*response.Built, *response.BundleInfo, error) {
@@ -102,7 +120,13 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*response.B
 
 // buildResponse is BuildResponse once the simulation's inputs are checked.
 func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.Built, *response.BundleInfo, error) {
-	if len(a.Simulation) == 0 {
+	return a.buildFrom(ctx, opt, a.Simulation, "")
+}
+
+// buildFrom builds the response from the samples; stage prefixes the
+// progress stages.
+func (a *Analysis) buildFrom(ctx context.Context, opt *Options, samples []Sample, stage string) (*response.Built, *response.BundleInfo, error) {
+	if len(samples) == 0 {
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
 	info := &response.BundleInfo{TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco)}
@@ -110,7 +134,7 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.B
 		info.Program = opt.Version
 	}
 	b := response.NewBuilder(a.Truth, a.Reco)
-	for _, s := range a.Simulation {
+	for _, s := range samples {
 		sim, src, err := a.simulation(&s)
 		if err != nil {
 			return nil, nil, err
@@ -126,7 +150,7 @@ func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.B
 			in, err := inputs.Hash("simulation", s.File)
 			hc <- hashed{in, err}
 		}()
-		sum, err := b.Add(ctx, sim, a.fillOptions(opt, "simulation "+s.File))
+		sum, err := b.Add(ctx, sim, a.fillOptions(opt, stage+"simulation "+s.File))
 		src.Close()
 		h := <-hc
 		if err != nil {
@@ -355,21 +379,28 @@ type Expected struct {
 
 // Background returns the expected background: the simulation's fakes
 // (unless unfolding.fakes is "ignore") plus every background sample
-// times its scale. Its variance is the sum of the squared weights plus,
-// per sample, (scale uncertainty × its contribution)² bin by bin (the
-// scale uncertainty is fully correlated across bins; only its diagonal
-// enters here). It returns nil when there is no background at all.
+// times its scale. Its variance is the sum of the squared weights; a
+// background's scale uncertainty is not in it but a systematic source of
+// its own, fully correlated across bins (method.md §21). It returns nil
+// when there is no background at all.
 func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Options) (*Expected, error) {
-	nr := a.Reco.Len()
-	e := &Expected{Values: make([]float64, nr), Variance: make([]float64, nr)}
-	nonzero := false
-	if a.Unfolding.Fakes == "background" {
-		for i := range e.Values {
-			e.Values[i] += r.Fakes[i]
-			e.Variance[i] += r.FakesSumW2[i]
-			nonzero = nonzero || r.Fakes[i] != 0
-		}
+	bs, err := a.backgroundSamples(ctx, opt)
+	if err != nil {
+		return nil, err
 	}
+	return a.expected(r, bs, nil)
+}
+
+// backgroundSample is a background sample filled (or read) and scaled by
+// its scale, with its variance (nil when not known).
+type backgroundSample struct {
+	Values, Variance []float64
+}
+
+// backgroundSamples fills or reads every background sample.
+func (a *Analysis) backgroundSamples(ctx context.Context, opt *Options) ([]backgroundSample, error) {
+	nr := a.Reco.Len()
+	var out []backgroundSample
 	for _, b := range a.Backgrounds {
 		var val, vr []float64
 		switch b.Kind {
@@ -394,14 +425,35 @@ func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Optio
 				}
 			}
 		}
-		for i := range val {
-			e.Values[i] += val[i]
-			if vr != nil {
-				e.Variance[i] += vr[i]
+		out = append(out, backgroundSample{Values: val, Variance: vr})
+	}
+	return out, nil
+}
+
+// expected sums the fakes of r and the background samples bs, sample k
+// times factor[k] (its variance times factor[k]²; nil factor: all 1).
+func (a *Analysis) expected(r *response.Built, bs []backgroundSample, factor []float64) (*Expected, error) {
+	nr := a.Reco.Len()
+	e := &Expected{Values: make([]float64, nr), Variance: make([]float64, nr)}
+	nonzero := false
+	if a.Unfolding.Fakes == "background" {
+		for i := range e.Values {
+			e.Values[i] += r.Fakes[i]
+			e.Variance[i] += r.FakesSumW2[i]
+			nonzero = nonzero || r.Fakes[i] != 0
+		}
+	}
+	for k, b := range bs {
+		f := 1.0
+		if factor != nil {
+			f = factor[k]
+		}
+		for i, v := range b.Values {
+			e.Values[i] += f * v
+			if b.Variance != nil {
+				e.Variance[i] += f * f * b.Variance[i]
 			}
-			u := b.ScaleUncertainty * val[i]
-			e.Variance[i] += u * u
-			nonzero = nonzero || val[i] != 0
+			nonzero = nonzero || v != 0
 		}
 	}
 	if !nonzero {
@@ -494,6 +546,21 @@ func (a *Analysis) Prior() ([]float64, error) {
 		return p, err
 	}
 	return nil, nil
+}
+
+// Reference reads the reference spectrum of the key compare (nil when
+// none is given), one value per bin of the truth binning; errors are
+// *tables.Error values naming the file and the line.
+func (a *Analysis) Reference() ([]float64, error) {
+	if a.Compare == "" {
+		return nil, nil
+	}
+	v, err := tables.LoadVector(a.Compare, tables.Prior)
+	if err != nil {
+		return nil, err
+	}
+	ref, _, err := v.Dense(a.Truth.Len(), "the truth binning")
+	return ref, err
 }
 
 // Problem assembles the unfolding problem.

@@ -69,6 +69,9 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// Comparison compares the result with a reference spectrum, when
+	// one was given.
+	Comparison *Comparison `json:"comparison,omitempty"`
 	// RandomStreams records how the random numbers behind the
 	// uncertainty were drawn; absent when none were (an exact
 	// computation).
@@ -164,6 +167,13 @@ type Source struct {
 	Covariance  [][]float64 `json:"covariance,omitempty"`
 	Precision   float64     `json:"precision,omitempty"`
 	Samples     int         `json:"samples,omitempty"`
+	// Shift is the signed shift per truth bin of a systematic variation
+	// (the varied estimate minus the nominal one, or the half-difference
+	// of an up/down pair, whose one-sided shifts are ShiftUp and
+	// ShiftDown); absent for the statistical sources.
+	Shift     []float64 `json:"shift,omitempty"`
+	ShiftUp   []float64 `json:"shift_up,omitempty"`
+	ShiftDown []float64 `json:"shift_down,omitempty"`
 }
 
 // RandomStreams says where the random numbers of a result come from:
@@ -465,12 +475,28 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 				s.Uncertainty[j] = math.Sqrt(v)
 			}
 		}
+		s.Shift, s.ShiftUp, s.ShiftDown = determinedOnly(src.Shift, r.Determined), determinedOnly(src.Up, r.Determined), determinedOnly(src.Down, r.Determined)
 		r.Sources = append(r.Sources, s)
 	}
 	if err := r.checkFinite(); err != nil {
 		return nil, err
 	}
 	return r, nil
+}
+
+// determinedOnly returns a copy of v with 0 in the bins not determined
+// (nil for a nil v).
+func determinedOnly(v []float64, determined []bool) []float64 {
+	if v == nil {
+		return nil
+	}
+	out := make([]float64, len(v))
+	for j, x := range v {
+		if determined[j] {
+			out[j] = x
+		}
+	}
+	return out
 }
 
 // denseRows returns c as an array of rows with the rows and columns of
@@ -526,9 +552,14 @@ func (r *Result) checkFinite() error {
 		return err
 	}
 	for _, src := range r.Sources {
-		for i, v := range src.Uncertainty {
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return fmt.Errorf("result: the uncertainty[%d] of source %q is %v", i, src.Name, v)
+		for _, x := range []struct {
+			what string
+			v    []float64
+		}{{"uncertainty", src.Uncertainty}, {"shift", src.Shift}, {"shift_up", src.ShiftUp}, {"shift_down", src.ShiftDown}} {
+			for i, v := range x.v {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return fmt.Errorf("result: the %s[%d] of source %q is %v", x.what, i, src.Name, v)
+				}
 			}
 		}
 		if err := finiteRows(fmt.Sprintf("the covariance of source %q", src.Name), src.Covariance); err != nil {
