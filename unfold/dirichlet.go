@@ -126,7 +126,8 @@ func gammaRand(rng *rand.Rand, a float64) float64 {
 // responseSource computes the simulation source by unfolding, with
 // method m and the nominal data, rs.ResponseSamples responses sampled by
 // SampleResponse, and taking the ensemble's variances (and covariance
-// with Full). Samples run concurrently, each worker on its own prepared
+// with Full). A method that is a Refitter reuses its work from sample to
+// sample. Samples run concurrently, each worker on its own prepared
 // problem, and are added to the ensemble in sample order, so the bits do
 // not depend on the number of cores. det are the nominal determined
 // bins; the source is 0 elsewhere.
@@ -138,10 +139,11 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 	samples := rs.ResponseSamples
 	workers := min(runtime.GOMAXPROCS(0), samples)
 	type slot struct {
-		pr  *Prepared
-		val []float64
-		est []float64
-		err error
+		pr    *Prepared
+		val   []float64
+		est   []float64
+		refit func(ctx context.Context, dst []float64) error
+		err   error
 	}
 	slots := make([]slot, workers)
 	for w := range slots {
@@ -157,6 +159,12 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 		if sl.pr, err = Prepare(&q, rs.Background); err != nil {
 			return nil, err
 		}
+		if rf, ok := m.(Refitter); ok {
+			if sl.refit, err = rf.NewRefit(sl.pr); err != nil {
+				return nil, err
+			}
+			sl.est = make([]float64, len(p.Generated))
+		}
 	}
 	nt := len(p.Generated)
 	full := rs.Covariance == Full
@@ -171,6 +179,10 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 			sl := &slots[w]
 			SampleResponse(sl.val, colPtr, alpha, alpha0, p.Generated, rs.Seed, s0+w)
 			if sl.err = sl.pr.SetResponse(sl.pr.a, p.Generated); sl.err != nil {
+				return
+			}
+			if sl.refit != nil {
+				sl.err = sl.refit(ctx, sl.est)
 				return
 			}
 			var fit Fit

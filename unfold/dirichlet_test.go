@@ -409,6 +409,29 @@ func TestResponseSamplesSameBitsForAnyCores(t *testing.T) {
 	}
 }
 
+// fitOnly hides the Refitter of a method, so that the samples re-run it
+// with Fit.
+type fitOnly struct{ m unfold.Method }
+
+func (f fitOnly) Name() string    { return f.m.Name() }
+func (f fitOnly) Validate() error { return f.m.Validate() }
+func (f fitOnly) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
+	return f.m.Fit(ctx, p)
+}
+
+func TestResponseSamplesRefitSameBitsAsFit(t *testing.T) {
+	// The reusable iteration gives the bits of a new fit (bayes.Unfolder's
+	// contract), so the simulation source does not depend on the path.
+	p, _ := smeared(t, 9, 12, 500, 300)
+	for _, m := range []*bayes.Settings{{Iterations: 4}, {StopChi2: 0.01, MaxIterations: 50}} {
+		a := sampled(t, p, m, unfold.Full, 23, 2)
+		b := sampled(t, p, fitOnly{m}, unfold.Full, 23, 2)
+		if !mat.Equal(a.Source(unfold.SourceSimulation).Covariance, b.Source(unfold.SourceSimulation).Covariance) {
+			t.Errorf("%+v: the reused iteration and new fits give different simulation covariances", m)
+		}
+	}
+}
+
 func TestResponseSampleSettings(t *testing.T) {
 	for _, c := range []struct {
 		s     unfold.Settings

@@ -50,6 +50,18 @@
 //     DiagonalAuto picks exact when the Jacobian fits under the memory
 //     limit and probes otherwise.
 //
+// DiagonalGamma draws the data expectation from the Gamma posterior of
+// each count instead of Poisson pseudo-data (method.md §20).
+//
+// The statistics of the simulation behind the response are a source of
+// their own (SourceSimulation, Result.Sources): with
+// Settings.ResponseSamples > 0 every response column is sampled from the
+// Dirichlet posterior of its effective counts (Problem.GeneratedSumW2;
+// DirichletParams, SampleResponse), each sampled response is unfolded
+// with the nominal data on a worker's own Prepared (SetResponse), reusing
+// the method's work when it is a Refitter, and the ensemble's covariance
+// is added to the data's (method.md §20).
+//
 // The drivers plan the memory, draw the probes and the pseudo-data and
 // accumulate the variances; the method supplies only the propagation
 // through its own algorithm. A fit whose estimate is the last of a
@@ -65,7 +77,7 @@
 // *TooLargeError, *NumericalError, and ctx.Err() when cancelled. Panics
 // are reserved for programmer errors. Random numbers come from
 // math/rand/v2 PCG generators seeded with Settings.Seed and one stream per
-// probe or toy, so a probe or toy does not depend on the batch or the
-// goroutine it runs on; all sums run in fixed orders, so results are
+// probe, toy or sample (Result.Streams), so a probe, toy or sample does
+// not depend on the batch or the goroutine it runs on; all sums run in fixed orders, so results are
 // bit-identical for equal inputs and seed whatever the number of cores.
 package unfold

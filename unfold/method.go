@@ -81,6 +81,16 @@ type Method interface {
 	Fit(ctx context.Context, p *Prepared) (Fit, error)
 }
 
+// Refitter is implemented by a method that can unfold one prepared
+// problem again and again while its Set methods change it, reusing its
+// work (ensembles of sampled responses). NewRefit returns a function
+// writing the estimate for p's current state into dst (one entry per
+// truth bin), the same bits as Fit(ctx, p).Estimate(); it is used by one
+// goroutine. Methods without it are re-run with Fit.
+type Refitter interface {
+	NewRefit(p *Prepared) (func(ctx context.Context, dst []float64) error, error)
+}
+
 // Fit is the nominal result of a method on a prepared problem, able to
 // propagate perturbations of the data through the same computation. The
 // uncertainty drivers of Unfold use it; the method supplies only what

@@ -155,18 +155,34 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 	for _, r := range cmp.Rows {
 		labelW = max(labelW, len(r.Label))
 	}
-	fmt.Fprintf(w, "%3s  %-*s  %9s  %9s  %-9s  %6s\n", "", labelW, "bin", "truth", "unfolded", "± uncert.", "pull")
+	srcs := out.Result.Sources
+	fmt.Fprintf(w, "%3s  %-*s  %9s  %9s  %-9s", "", labelW, "bin", "truth", "unfolded", "± total")
+	for _, src := range srcs {
+		fmt.Fprintf(w, "  %10s", src.Name)
+	}
+	fmt.Fprintf(w, "  %6s\n", "pull")
 	for _, r := range cmp.Rows {
 		pull := "-"
 		if !math.IsNaN(r.Pull) {
 			pull = fmt.Sprintf("%+.2f", r.Pull)
 		}
-		fmt.Fprintf(w, "%3d  %-*s  %9.1f  %9.1f  ± %-7.1f  %6s\n", r.Bin, labelW, r.Label, r.Truth, r.Unfolded, r.Uncertainty, pull)
+		fmt.Fprintf(w, "%3d  %-*s  %9.1f  %9.1f  ± %-7.1f", r.Bin, labelW, r.Label, r.Truth, r.Unfolded, r.Uncertainty)
+		for _, src := range srcs {
+			fmt.Fprintf(w, "  %10.1f", math.Sqrt(max(src.Variance[r.Bin], 0)))
+		}
+		fmt.Fprintf(w, "  %6s\n", pull)
+	}
+	var names []string
+	for _, src := range srcs {
+		names = append(names, src.Name+" ("+src.Method+")")
+	}
+	if len(names) > 0 {
+		fmt.Fprintf(w, "total uncertainty = the square root of the sum of the sources' variances: %s\n", strings.Join(names, ", "))
 	}
 	if cmp.NDF > 0 {
-		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the full covariance of the in-range bins through its pseudo-inverse\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
+		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the total covariance of the in-range bins (the sum of the sources') through its pseudo-inverse\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
 		fmt.Fprintf(w, "         (eigenvalues below %.0e of the largest dropped: ndf = %d of %d directions kept; condition number %.3g; desmear help method, §19)\n", unfold.EigenvalueCut, cmp.NDF, len(cmp.Rows), cmp.Condition)
 	}
-	fmt.Fprintf(w, "pull = (unfolded - truth) / uncertainty: data-statistical uncertainty only; neighbouring bins are correlated.\n")
+	fmt.Fprintf(w, "pull = (unfolded - truth) / total uncertainty; neighbouring bins are correlated.\n")
 	fmt.Fprintf(w, "stress test (simulation reweighted to the true spectrum): desmear unfold %s\n", in.Path(demo.StressFile))
 }

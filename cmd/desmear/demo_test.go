@@ -4,9 +4,11 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -37,7 +39,7 @@ func TestDemoCommand(t *testing.T) {
 			t.Errorf("the table has no row for %s", s.Label(g))
 		}
 	}
-	for _, want := range []string{"invented data", "chi2/ndf", "results: " + filepath.Join(dir, demo.ResultFolder), "seed 3"} {
+	for _, want := range []string{"invented data", "chi2/ndf", "total covariance", "data (linearised), simulation (dirichlet-samples)", "results: " + filepath.Join(dir, demo.ResultFolder), "seed 3"} {
 		if !strings.Contains(stdout, want) {
 			t.Errorf("stdout lacks %q:\n%s", want, stdout)
 		}
@@ -53,7 +55,8 @@ func TestDemoCommand(t *testing.T) {
 	rows := 0
 	for _, line := range strings.Split(stdout, "\n") {
 		f := strings.Fields(line)
-		if len(f) < 8 || f[len(f)-3] != "±" {
+		pm := slices.Index(f, "±")
+		if len(f) < 10 || pm < 2 || pm+4 != len(f)-1 {
 			continue
 		}
 		g, err := strconv.Atoi(f[0])
@@ -61,9 +64,18 @@ func TestDemoCommand(t *testing.T) {
 			continue
 		}
 		rows++
-		v, _ := strconv.ParseFloat(f[len(f)-4], 64)
-		if want := doc.Estimate[g]; strconv.FormatFloat(want, 'f', 1, 64) != f[len(f)-4] {
+		v, _ := strconv.ParseFloat(f[pm-1], 64)
+		if want := doc.Estimate[g]; strconv.FormatFloat(want, 'f', 1, 64) != f[pm-1] {
 			t.Errorf("bin %d: table %v, result.json %v", g, v, want)
+		}
+		// The total is the quadratic sum of the data and simulation
+		// columns (method.md §18 Sources of uncertainty and their total),
+		// to the printed rounding.
+		tot, _ := strconv.ParseFloat(f[pm+1], 64)
+		d, _ := strconv.ParseFloat(f[pm+2], 64)
+		sim, _ := strconv.ParseFloat(f[pm+3], 64)
+		if !(sim > 0) || math.Abs(tot-math.Hypot(d, sim)) > 0.1 {
+			t.Errorf("bin %d: total %v, data %v, simulation %v", g, tot, d, sim)
 		}
 	}
 	if rows != s.InRange() {

@@ -881,7 +881,19 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 		fmt.Fprintf(g.stderr, "note: in %d reco bins the data minus the background was negative and was set to 0 (listed in result.json)\n", len(r.ClippedRecoBins))
 	}
 	if r.UncertaintyPrecision > 0 {
-		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, map[bool]string{true: "probes", false: "toys"}[strings.Contains(r.UncertaintyMethod, "probes")], 100*r.UncertaintyPrecision)
+		kind := "toys"
+		switch {
+		case strings.Contains(r.UncertaintyMethod, "probes"):
+			kind = "probes"
+		case strings.Contains(r.UncertaintyMethod, "gamma"):
+			kind = "Gamma samples of the data"
+		}
+		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, kind, 100*r.UncertaintyPrecision)
+	}
+	for _, src := range r.Sources {
+		if src.Name == unfold.SourceSimulation {
+			fmt.Fprintf(g.stderr, "note: the simulation's statistical uncertainty from %d sampled responses (relative precision of each of its variances about %.0f%%) is added to the data's\n", src.Samples, 100*src.Precision)
+		}
 	}
 }
 

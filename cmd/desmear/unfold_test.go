@@ -593,6 +593,7 @@ func TestUnfoldSummaryNotes(t *testing.T) {
 		{"clipped", []string{"--background", filepath.Join(dir, "b.csv"), "--background-mode", "subtract"}, "", "in 1 reco bins the data minus the background was negative"},
 		{"probes", []string{"--diagonal-method", "probes", "--probes", "20"}, "", "uncertainties estimated with 20 probes"},
 		{"toys", []string{"--diagonal-method", "toys", "--toys", "20"}, "", "uncertainties estimated with 20 toys"},
+		{"gamma", []string{"--diagonal-method", "gamma", "--toys", "20"}, "", "uncertainties estimated with 20 Gamma samples of the data"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			out := filepath.Join(t.TempDir(), "result")
@@ -612,8 +613,12 @@ func TestUnfoldResponseSamples(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), maps(oracleD, map[string]string{"G.csv": "truth,value,sumw2\n0,1000,1000\n1,1000,1000\n2,1000,1000\n"}))
 	out := filepath.Join(t.TempDir(), "result")
 	args := append(oracleDArgs(dir, out), "--covariance", "full", "--response-samples", "200", "--sampling-prior", "flat", "--seed", "5")
-	if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
+	code, _, stderr := runCLI(t, context.Background(), args...)
+	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if !strings.Contains(stderr, "from 200 sampled responses") {
+		t.Errorf("no note of the response samples: %s", stderr)
 	}
 	r, raw := readResult(t, out)
 	if len(r.Sources) != 2 || r.Sources[0].Name != "data" || r.Sources[1].Name != "simulation" || r.Sources[1].Method != "dirichlet-samples" || r.Sources[1].Samples != 200 {

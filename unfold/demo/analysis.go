@@ -13,10 +13,17 @@ import (
 // statistical uncertainty.
 const Iterations = 4
 
+// ResponseSamples is the number of responses the demo samples for the
+// statistical uncertainty of the simulation (method.md §20): each
+// variance of that source to about sqrt(2/199) ≈ 10%, on a source of
+// about a tenth of the data's variance.
+const ResponseSamples = 200
+
 // analysisYAML returns the analysis file of the demo: the simulation from
 // the ROOT file, the pseudo-data from the Parquet file (so both readers
 // run), the fakes of the simulation as the expected background, the
-// simulation's truth as the prior, and the full linearised covariance.
+// simulation's truth as the prior, and the full covariance: linearised
+// for the data, from sampled responses for the simulation.
 func analysisYAML(cfg Config) string {
 	return analysisText(cfg, "", "weight", ResultFolder, "")
 }
@@ -71,13 +78,16 @@ unfolding:
   iterations: %d
   prior: simulation
 
+# The data's statistics propagated linearly; the simulation's from
+# responses sampled from the Dirichlet posterior of each response column.
 uncertainty:
   covariance: full
+  response_samples: %d
 
 output:
   folder: %s
 %s`, cfg.events(), cfg.Seed, note, TruthBinningFile, RecoBinningFile, SimulationROOT, TreeName,
-		weight, DataParquet, Iterations, folder, tail)
+		weight, DataParquet, Iterations, ResponseSamples, folder, tail)
 }
 
 // ReweightExpression returns an expression over the simulation's columns

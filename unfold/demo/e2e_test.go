@@ -256,7 +256,7 @@ func TestDemoClosureOnSimulation(t *testing.T) {
 	}
 	for k := 1; k <= 12; k++ {
 		res := p.unfold(t, func(s *unfold.Settings, m *bayes.Settings) {
-			m.Iterations, s.Covariance = k, unfold.NoCovariance
+			m.Iterations, s.Covariance, s.ResponseSamples = k, unfold.NoCovariance, 0
 		})
 		worst := 0.0
 		for g, v := range truth {

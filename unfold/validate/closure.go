@@ -80,9 +80,12 @@ func unfoldKnown(ctx context.Context, p *unfold.Problem, s *unfold.Settings, m u
 		return nil, nil, err
 	}
 	rs.Covariance = unfold.Diagonal
-	if rs.DiagonalMethod == unfold.DiagonalToys {
+	if rs.DiagonalMethod == unfold.DiagonalToys || rs.DiagonalMethod == unfold.DiagonalGamma {
 		rs.DiagonalMethod = unfold.DiagonalAuto
 	}
+	// The checks concern the data's statistics; the response is the
+	// nominal one in every unfolding, so it is not sampled.
+	rs.ResponseSamples = 0
 	q := *p
 	q.Data, q.DataVariance = data, nil
 	res, err := unfold.Unfold(ctx, &q, &rs, m)

@@ -196,9 +196,12 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 	nu := expected(p, c.Problem.Background, c.Truth)
 	rs, _ := c.Settings.Resolve()
 	rs.Covariance = unfold.Diagonal
-	if rs.DiagonalMethod == unfold.DiagonalToys {
+	if rs.DiagonalMethod == unfold.DiagonalToys || rs.DiagonalMethod == unfold.DiagonalGamma {
 		rs.DiagonalMethod = unfold.DiagonalAuto
 	}
+	// The checks concern the data's statistics; the response is the
+	// nominal one in every unfolding, so it is not sampled.
+	rs.ResponseSamples = 0
 	e := &Ensemble{MaxK: K, Truth: append([]float64(nil), c.Truth...), Det: append([]bool(nil), p.Determined()...), Seed: c.Seed}
 
 	workers := max(1, min(runtime.GOMAXPROCS(0), count))

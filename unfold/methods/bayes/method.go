@@ -42,6 +42,20 @@ func (s *Settings) Scanned() unfold.Method {
 	return &c
 }
 
+// NewRefit returns the iteration on p's current state with its work
+// allocated once (an Unfolder): the unfold.Refitter of the iterative
+// method, for ensembles of sampled responses.
+func (s *Settings) NewRefit(p *unfold.Prepared) (func(ctx context.Context, dst []float64) error, error) {
+	u, err := NewUnfolder(p, s)
+	if err != nil {
+		return nil, err
+	}
+	return func(ctx context.Context, dst []float64) error {
+		_, err := u.Unfold(ctx, dst, nil)
+		return err
+	}, nil
+}
+
 // Fit runs the iteration on p. The result's Details are a *Details.
 func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, error) {
 	rs, err := s.resolve()
