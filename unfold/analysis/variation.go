@@ -77,7 +77,9 @@ func ScaleSourceName(background string) string { return background + "-scale" }
 // variations checks the variations of the analysis file, and adds one
 // for the scale uncertainty of each background that has one.
 func (c *checker) variations(a *Analysis, docs []variationDoc) {
-	seen := map[string]int{unfold.SourceData: -1, unfold.SourceSimulation: -1}
+	// The statistical sources' names, and the columns of the breakdown
+	// tables, are taken.
+	seen := map[string]int{unfold.SourceData: -1, unfold.SourceSimulation: -1, "index": -2, "region": -2, "flow": -2, "total": -2}
 	for i, d := range docs {
 		f := fmt.Sprintf("variations[%d]", i)
 		v := Variation{Name: strings.TrimSpace(d.Name), Field: f, Line: c.line("variations", i)}
@@ -87,9 +89,12 @@ func (c *checker) variations(a *Analysis, docs []variationDoc) {
 		}
 		nameLine := c.line("variations", i, "name")
 		if first, dup := seen[v.Name]; dup {
-			if first < 0 {
+			switch first {
+			case -1:
 				c.errf(nameLine, f+".name", "%q is the name of a statistical source: choose another", v.Name)
-			} else {
+			case -2:
+				c.errf(nameLine, f+".name", "%q names a column of the breakdown tables: choose another", v.Name)
+			default:
 				c.errf(nameLine, f+".name", "%q is the name of the variation on line %d too: give each a name of its own", v.Name, first)
 			}
 			continue
