@@ -39,8 +39,9 @@ type Result struct {
 	// statistics (SourceData) first; AddSource keeps the totals above.
 	Sources []Source
 	// UncertaintyMethod names the method that produced the data source:
-	// "linearised" (exact first order), "linearised-probes" or
-	// "poisson-toys"; empty without an uncertainty computation.
+	// "linearised" (exact first order), "linearised-probes",
+	// "poisson-toys" or "gamma-samples"; empty without an uncertainty
+	// computation.
 	UncertaintyMethod string
 	// UncertaintyPrecision is the relative statistical precision of each
 	// variance in Uncertainty (sqrt(2/S) for S probes, at most; sqrt(2/(T−1))
@@ -48,6 +49,10 @@ type Result struct {
 	UncertaintyPrecision float64
 	// Samples is the number of probes or toys used (0 for exact).
 	Samples int
+	// Seed is Settings.Seed, and Streams the random streams the
+	// uncertainty computation drew from (none for an exact one).
+	Seed    uint64
+	Streams []Stream
 	// StepEstimates is, for a method that keeps the steps of its
 	// computation (Stepper: the iterations of the iterative method, when
 	// asked), the estimate of every step, StepEstimates[k] for step k (0
@@ -160,8 +165,17 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 	for i, b := range pr.SubtractedBackground() {
 		res.Folded[i] += b
 	}
+	res.Seed = rs.Seed
 	if err := plan.finish(ctx, fit, res); err != nil {
 		return nil, err
+	}
+	if rs.ResponseSamples > 0 {
+		src, err := responseSource(ctx, p, &rs, m, res.Determined)
+		if err != nil {
+			return nil, err
+		}
+		res.AddSource(*src)
+		res.Streams = append(res.Streams, Stream{"response-sample", responseStream})
 	}
 	if err := res.checkFinite(); err != nil {
 		return nil, err

@@ -6,12 +6,26 @@ import (
 )
 
 // Stream offsets of the random generators: probe s uses the PCG stream
-// probeStream+s, toy t the stream toyStream+t, both seeded with
-// Settings.Seed.
+// probeStream+s, toy t the stream toyStream+t, Gamma sample t of the
+// data gammaStream+t, response sample s responseStream+s, all seeded
+// with Settings.Seed (Streams describes them).
 const (
-	probeStream uint64 = 1 << 32
-	toyStream   uint64 = 2 << 32
+	probeStream    uint64 = 1 << 32
+	toyStream      uint64 = 2 << 32
+	gammaStream    uint64 = 3 << 32
+	responseStream uint64 = 4 << 32
 )
+
+// Stream describes the random numbers of one kind of unit of work
+// (Result.Streams lists those a result used): unit
+// k (probe, toy or sample number k, from 0) draws from the PCG
+// generator of math/rand/v2 seeded with rand.NewPCG(Settings.Seed,
+// Offset+k), so that a unit's numbers depend on the seed and its
+// number only, not on the goroutine or batch it runs in.
+type Stream struct {
+	Unit   string // "probe", "poisson-toy", "gamma-sample" or "response-sample"
+	Offset uint64
+}
 
 // ProbeBlock is the number of probes a method propagates together, in
 // one pass over the response per iteration; batches of probes are

@@ -19,6 +19,12 @@ type Problem struct {
 	// Generated G_j is the weighted simulated count generated in truth
 	// bin j, whether reconstructed or not. Σ_i A_ij ≤ G_j.
 	Generated []float64
+	// GeneratedSumW2 is Σ w² of the simulated events generated in each
+	// truth bin (G_j being Σ w); nil when unknown (for example a
+	// normalised response). Only the sampling of the response uses it:
+	// N_eff,j = G_j² / GeneratedSumW2_j is the column's effective count
+	// (method.md §20).
+	GeneratedSumW2 []float64
 
 	// Data n_i is the observed count in reco bin i.
 	Data []float64

@@ -64,6 +64,29 @@ const (
 	// DiagonalToys unfolds Settings.Toys Poisson pseudo-data sets and
 	// takes the sample variance of the estimates.
 	DiagonalToys
+	// DiagonalGamma unfolds Settings.Toys samples of the data
+	// expectation drawn from the Gamma posterior of each count (with the
+	// prior of Settings.SamplingPrior) and takes the sample variance of
+	// the estimates (method.md §20).
+	DiagonalGamma
+)
+
+// SamplingPrior selects the prior added to the counts when the response
+// (Settings.ResponseSamples) or the data expectation (DiagonalGamma) is
+// sampled from its posterior (method.md §20).
+type SamplingPrior int
+
+const (
+	// NoSamplingPrior adds nothing: the Dirichlet parameters of a
+	// response column are its effective counts, the Gamma shape of a
+	// data count is its effective count. The mean of the samples is the
+	// measured response (the measured data), and cells with no entries
+	// stay empty (the default).
+	NoSamplingPrior SamplingPrior = iota
+	// FlatSamplingPrior adds 1 to every non-empty cell of a response
+	// column and to its inefficiency cell, and 1 to the Gamma shape of
+	// every data count (a flat prior, as in D'Agostini, arXiv:1010.0632).
+	FlatSamplingPrior
 )
 
 // The text names of the modes, indexed by value: the names of result.json,
@@ -72,7 +95,8 @@ const (
 var (
 	backgroundNames = []string{InModel: "model", Subtract: "subtract"}
 	covarianceNames = []string{NoCovariance: "none", Diagonal: "diag", Full: "full"}
-	diagonalNames   = []string{DiagonalAuto: "auto", DiagonalExact: "exact", DiagonalProbes: "probes", DiagonalToys: "toys"}
+	diagonalNames   = []string{DiagonalAuto: "auto", DiagonalExact: "exact", DiagonalProbes: "probes", DiagonalToys: "toys", DiagonalGamma: "gamma"}
+	priorNames      = []string{NoSamplingPrior: "none", FlatSamplingPrior: "flat"}
 )
 
 // BackgroundModes returns the modes in order; their String values are
@@ -86,8 +110,12 @@ func CovarianceModes() []CovarianceMode { return []CovarianceMode{NoCovariance, 
 // DiagonalMethods returns the methods in order; their String values are
 // the text names.
 func DiagonalMethods() []DiagonalMethod {
-	return []DiagonalMethod{DiagonalAuto, DiagonalExact, DiagonalProbes, DiagonalToys}
+	return []DiagonalMethod{DiagonalAuto, DiagonalExact, DiagonalProbes, DiagonalToys, DiagonalGamma}
 }
+
+// SamplingPriors returns the priors in order; their String values are
+// the text names.
+func SamplingPriors() []SamplingPrior { return []SamplingPrior{NoSamplingPrior, FlatSamplingPrior} }
 
 // Enum holds the text names of an enumeration of settings, in the
 // order of its values: the one implementation of String, MarshalText
@@ -131,7 +159,23 @@ var (
 	backgroundEnum = Enum{"unfold", "BackgroundMode", "background mode", backgroundNames}
 	covarianceEnum = Enum{"unfold", "CovarianceMode", "covariance mode", covarianceNames}
 	diagonalEnum   = Enum{"unfold", "DiagonalMethod", "diagonal method", diagonalNames}
+	priorEnum      = Enum{"unfold", "SamplingPrior", "sampling prior", priorNames}
 )
+
+// String returns the text name ("none" or "flat").
+func (p SamplingPrior) String() string { return priorEnum.Name(int(p)) }
+
+// MarshalText returns the text name.
+func (p SamplingPrior) MarshalText() ([]byte, error) {
+	return priorEnum.Text(int(p))
+}
+
+// UnmarshalText sets p from its text name.
+func (p *SamplingPrior) UnmarshalText(text []byte) error {
+	v, err := priorEnum.Parse(text)
+	*p = SamplingPrior(v)
+	return err
+}
 
 // String returns the text name ("model" or "subtract").
 func (m BackgroundMode) String() string { return backgroundEnum.Name(int(m)) }
@@ -163,7 +207,8 @@ func (m *CovarianceMode) UnmarshalText(text []byte) error {
 	return err
 }
 
-// String returns the text name ("auto", "exact", "probes" or "toys").
+// String returns the text name ("auto", "exact", "probes", "toys" or
+// "gamma").
 func (m DiagonalMethod) String() string { return diagonalEnum.Name(int(m)) }
 
 // MarshalText returns the text name.
@@ -192,9 +237,20 @@ type Settings struct {
 	DiagonalMethod DiagonalMethod
 	// Probes is the number of random probes (zero means DefaultProbes).
 	Probes int
-	// Toys is the number of pseudo-data sets (zero means DefaultToys).
+	// Toys is the number of pseudo-data sets, Poisson toys or Gamma
+	// samples (zero means DefaultToys).
 	Toys int
-	// Seed seeds the probes and toys. Equal seeds give equal bits.
+	// ResponseSamples is the number of responses sampled from the
+	// Dirichlet posterior of each column for the simulation's statistical
+	// uncertainty (source SourceSimulation, method.md §20); zero means
+	// none. It needs Problem.GeneratedSumW2 and an uncertainty of the
+	// data (Covariance other than NoCovariance); with Full the source has
+	// the full covariance.
+	ResponseSamples int
+	// SamplingPrior is the prior of the Dirichlet and Gamma sampling.
+	SamplingPrior SamplingPrior
+	// Seed seeds the probes, toys and samples. Equal seeds give equal
+	// bits (see Streams).
 	Seed uint64
 	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
 	// the probe vectors held at once (zero means DefaultMemoryLimit).
@@ -223,6 +279,12 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"Covariance", "unknown mode"}
 	case r.DiagonalMethod < 0 || int(r.DiagonalMethod) >= len(diagonalNames):
 		return r, &SettingsError{"DiagonalMethod", "unknown method"}
+	case r.ResponseSamples < 0 || r.ResponseSamples == 1:
+		return r, &SettingsError{"ResponseSamples", "must be 0 (no sampling) or at least 2"}
+	case r.ResponseSamples > 0 && r.Covariance == NoCovariance:
+		return r, &SettingsError{"ResponseSamples", "needs an uncertainty of the data too (a covariance mode other than none): the total uncertainty would leave the data's statistics out"}
+	case r.SamplingPrior < 0 || int(r.SamplingPrior) >= len(priorNames):
+		return r, &SettingsError{"SamplingPrior", "unknown prior"}
 	}
 	if r.Probes == 0 {
 		r.Probes = DefaultProbes

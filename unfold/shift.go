@@ -9,17 +9,17 @@ import (
 // Methods of the sources of systematic variations (Source.Method).
 const (
 	// MethodShift is the source of one varied result: the shift is the
-	// varied estimate minus the nominal one (method.md §19).
+	// varied estimate minus the nominal one (method.md §21).
 	MethodShift = "shift"
 	// MethodHalfDifference is the source of an up/down pair: the shift
-	// is half the up estimate minus the down estimate (method.md §19).
+	// is half the up estimate minus the down estimate (method.md §21).
 	MethodHalfDifference = "half-difference"
 )
 
 // ShiftSource returns the source of the systematic variation name from
 // the nominal estimate and the estimate of the varied result: Shift =
 // varied − nominal per truth bin, Variance = Shift², and with full the
-// covariance Shift Shiftᵀ, fully correlated across bins (method.md §19).
+// covariance Shift Shiftᵀ, fully correlated across bins (method.md §21).
 // Bins not determined (determined[j] false; determined may be nil for
 // all) get a zero shift. It panics if the lengths differ.
 func ShiftSource(name string, nominal, varied []float64, determined []bool, full bool) Source {
@@ -39,7 +39,7 @@ func ShiftSource(name string, nominal, varied []float64, determined []bool, full
 // an up/down pair: the symmetrised shift Shift = (up − down)/2 per truth
 // bin, which keeps the sign of the up variation (a bin that rises with
 // the up variation has a positive shift), Variance = Shift² and with full
-// the covariance Shift Shiftᵀ (method.md §19). Up and Down keep the
+// the covariance Shift Shiftᵀ (method.md §21). Up and Down keep the
 // one-sided shifts up − nominal and down − nominal. Bins not determined
 // get zero shifts. It panics if the lengths differ.
 func PairSource(name string, nominal, up, down []float64, determined []bool, full bool) Source {

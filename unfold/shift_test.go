@@ -10,7 +10,7 @@ import (
 )
 
 // TestShiftSourceOuterProduct checks a single variation's source
-// against the closed form of method.md §19 Systematic variations: shift
+// against the closed form of method.md §21 Systematic variations: shift
 // = varied − nominal, variance = shift², covariance = shift shiftᵀ.
 func TestShiftSourceOuterProduct(t *testing.T) {
 	nom := []float64{10, 20, 30, 40}
@@ -26,7 +26,7 @@ func TestShiftSourceOuterProduct(t *testing.T) {
 			t.Errorf("bin %d: shift %v variance %v, want %v and %v", i, s.Shift[i], s.Variance[i], want[i], want[i]*want[i])
 		}
 		for j := range want {
-			// method.md §19: V_ij = δ_i δ_j.
+			// method.md §21: V_ij = δ_i δ_j.
 			if got := s.Covariance.At(i, j); got != want[i]*want[j] {
 				t.Errorf("cov[%d][%d] = %v, want %v", i, j, got, want[i]*want[j])
 			}
@@ -38,7 +38,7 @@ func TestShiftSourceOuterProduct(t *testing.T) {
 }
 
 // TestPairSourceHalfDifference checks the symmetrised pair of method.md
-// §19 Systematic variations: δ = (up − down)/2 with the sign of the up
+// §21 Systematic variations: δ = (up − down)/2 with the sign of the up
 // variation, the covariance the outer product δ δᵀ, and the one-sided
 // shifts kept.
 func TestPairSourceHalfDifference(t *testing.T) {
@@ -66,7 +66,7 @@ func TestPairSourceHalfDifference(t *testing.T) {
 		t.Errorf("sign of the shifts %v", s.Shift)
 	}
 	// A fully correlated source: the correlation of any two bins with
-	// a shift is ±1 (method.md §19).
+	// a shift is ±1 (method.md §21).
 	for i := range nom {
 		for j := range nom {
 			r := s.Covariance.At(i, j) / math.Sqrt(s.Variance[i]*s.Variance[j])

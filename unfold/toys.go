@@ -46,13 +46,47 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 	}
 }
 
+// gammaData fills n with sample t of the data expectation drawn from the
+// Gamma posterior of each count (method.md §20) and, when the
+// background variance is propagated, b as toyData does. An unweighted
+// count n_i gives Gamma(n_i + a, 1), a weighted one Gamma(n_eff + a,
+// var_i/n_i) with n_eff = n_i²/var_i, where a is 1 with the flat prior
+// and 0 without; a shape of 0 gives 0.
+func gammaData(m *Prepared, prior SamplingPrior, seed uint64, t int, n, b []float64) {
+	rng := rand.New(rand.NewPCG(seed, gammaStream+uint64(t)))
+	add := 0.0
+	if prior == FlatSamplingPrior {
+		add = 1
+	}
+	for i, x := range m.n {
+		shape, scale := x, 1.0
+		if m.weighted && x > 0 {
+			if v := m.varN[i]; v > 0 {
+				shape, scale = x*x/v, v/x
+			} else {
+				n[i] = x // known exactly
+				continue
+			}
+		}
+		n[i] = gammaRand(rng, shape+add) * scale
+	}
+	if b != nil {
+		for i, x := range m.b {
+			v := x + math.Sqrt(m.varB[i])*rng.NormFloat64()
+			b[i] = math.Max(v, 0)
+		}
+	}
+}
+
 // toyVariances re-runs fit on toys pseudo-data sets and returns the
 // sample variance of the estimate per truth bin and, for a fit keeping
 // its steps whose runners report them (StepToyRunner), of the estimate
 // of every step (nil otherwise). Toys run concurrently, one runner per
 // goroutine; their results are accumulated in toy order (Welford's
 // update), so the bits do not depend on the scheduling.
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint64) ([]float64, [][]float64, error) {
+//
+// draw fills the pseudo-data of toy t (toyData or gammaData).
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64)) ([]float64, [][]float64, error) {
 	workers := min(runtime.GOMAXPROCS(0), toys)
 	type slot struct {
 		run   ToyRunner
@@ -94,7 +128,7 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, seed uint
 		batch := min(workers, toys-t0)
 		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
-			toyData(m, seed, t0+w, sl.n, sl.b)
+			draw(t0+w, sl.n, sl.b)
 			if ns == 0 {
 				sl.est, sl.err = sl.run.Run(ctx, sl.n, sl.b)
 				return

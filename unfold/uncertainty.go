@@ -13,7 +13,7 @@ type plan struct {
 	m      *Prepared
 	rs     *Settings
 	method CovarianceMode
-	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes or DiagonalToys
+	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes, DiagonalToys or DiagonalGamma
 	batch  int            // probes per batch
 }
 
@@ -159,15 +159,26 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		}
 		variance = sum
 		res.UncertaintyMethod = "linearised-probes"
+		res.Streams = append(res.Streams, Stream{"probe", probeStream})
 		res.Samples = pl.rs.Probes
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
-	case pl.diag == DiagonalToys:
-		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, pl.rs.Seed)
+	case pl.diag == DiagonalToys || pl.diag == DiagonalGamma:
+		seed := pl.rs.Seed
+		draw := func(t int, n, b []float64) { toyData(m, seed, t, n, b) }
+		res.UncertaintyMethod = "poisson-toys"
+		st := Stream{"poisson-toy", toyStream}
+		if pl.diag == DiagonalGamma {
+			prior := pl.rs.SamplingPrior
+			draw = func(t int, n, b []float64) { gammaData(m, prior, seed, t, n, b) }
+			res.UncertaintyMethod = "gamma-samples"
+			st = Stream{"gamma-sample", gammaStream}
+		}
+		res.Streams = append(res.Streams, st)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw)
 		if err != nil {
 			return err
 		}
 		variance, res.StepVariance = v, sv
-		res.UncertaintyMethod = "poisson-toys"
 		res.Samples = pl.rs.Toys
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))
 	}

@@ -161,6 +161,7 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 			file = result.CSVFile
 		}
 		fmt.Fprintf(w, "%d in-range truth bins: the estimates are in %s\n", n, filepath.Join(out.Folder, file))
+		printComparison(w, out.Document, a.Truth)
 		return
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
@@ -178,4 +179,5 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t\n", j, a.Truth.Label(j), est, u, e)
 	}
 	tw.Flush()
+	printComparison(w, out.Document, a.Truth)
 }

@@ -178,7 +178,7 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	// The plain tables carry no systematic variation: the plain result's
 	// uncertainty is the analysis's data source; the analysis adds the
 	// background's scale uncertainty as a source of its own (method.md
-	// §19 Systematic variations).
+	// §21 Systematic variations).
 	a, b := readAnalysisResult(t, filepath.Join(dir, "result")), readAnalysisResult(t, plain)
 	if len(a.Sources) != 2 || a.Sources[0].Name != "data" || a.Sources[1].Name != "flat-scale" {
 		t.Fatalf("analysis sources %+v", a.Sources)

@@ -14,6 +14,7 @@ import (
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/demo"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -159,7 +160,8 @@ func printDemo(w io.Writer, in *demo.Inputs, out *analysis.Outcome, cmp *demo.Co
 		fmt.Fprintf(w, "%3d  %-*s  %9.1f  %9.1f  ± %-7.1f  %6s\n", r.Bin, labelW, r.Label, r.Truth, r.Unfolded, r.Uncertainty, pull)
 	}
 	if cmp.NDF > 0 {
-		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the full covariance of the in-range bins\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
+		fmt.Fprintf(w, "\nchi2/ndf = %.1f/%d = %.2f (p-value %.2f) with the full covariance of the in-range bins through its pseudo-inverse\n", cmp.Chi2, cmp.NDF, cmp.Chi2/float64(cmp.NDF), cmp.PValue)
+		fmt.Fprintf(w, "         (eigenvalues below %.0e of the largest dropped: ndf = %d of %d directions kept; condition number %.3g; desmear help method, §19)\n", unfold.EigenvalueCut, cmp.NDF, len(cmp.Rows), cmp.Condition)
 	}
 	fmt.Fprintf(w, "pull = (unfolded - truth) / uncertainty: data-statistical uncertainty only; neighbouring bins are correlated.\n")
 	fmt.Fprintf(w, "stress test (simulation reweighted to the true spectrum): desmear unfold %s\n", in.Path(demo.StressFile))

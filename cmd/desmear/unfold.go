@@ -34,6 +34,7 @@ type unfoldOptions struct {
 	flags *pflag.FlagSet // set by check, for the messages naming flags
 
 	response, generated, data, background, prior string
+	compare                                      string
 	truthBinning, recoBinning                    string
 
 	method        string
@@ -51,6 +52,8 @@ type unfoldOptions struct {
 	covariance    unfold.CovarianceMode
 	diagonal      unfold.DiagonalMethod
 	probes, toys  int
+	respSamples   int
+	samplingPrior unfold.SamplingPrior
 	seed          uint64
 	memoryLimit   int64
 
@@ -62,7 +65,7 @@ type unfoldOptions struct {
 
 // tableFlags are the flags that name plain-table inputs; they cannot be
 // combined with an analysis file.
-var tableFlags = []string{"response", "generated", "data", "background", "prior", "truth-binning", "reco-binning"}
+var tableFlags = []string{"response", "generated", "data", "background", "prior", "truth-binning", "reco-binning", "compare"}
 
 // testHook, when set by a test, is called at named stages of the
 // plain-table run ("loaded", "unfolded", "written").
@@ -168,10 +171,13 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 	f.Var(flagval.NewEnum(&o.covariance, unfold.Diagonal, unfold.CovarianceModes()),
 		"covariance", "data-statistical uncertainty: none; diag (per-bin uncertainties); full (also the covariance matrix, linearised through every iteration)")
 	f.Var(flagval.NewEnum(&o.diagonal, unfold.DiagonalAuto, unfold.DiagonalMethods()),
-		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), auto (exact when it fits in --memory-limit, else probes)")
+		"diagonal-method", "how --covariance diag is computed: exact (dense Jacobian), probes (random probe vectors), toys (Poisson pseudo-data), gamma (samples of the data expectation from the Gamma posterior of each count), auto (exact when it fits in --memory-limit, else probes)")
 	f.IntVar(&o.probes, "probes", 0, "number of random probes `N` for --diagonal-method probes or auto (default 100: about 7% precision on each uncertainty)")
-	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets `N` for --diagonal-method toys (default 500)")
-	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes and toys; the same seed gives the same bits")
+	f.IntVar(&o.toys, "toys", 0, "number of Poisson pseudo-data sets or Gamma samples `N` for --diagonal-method toys or gamma (default 500)")
+	f.IntVar(&o.respSamples, "response-samples", 0, "the simulation's statistical uncertainty from `N` responses sampled from the Dirichlet posterior of each column (needs the sumw2 column of G.csv); 0: off")
+	f.Var(flagval.NewEnum(&o.samplingPrior, unfold.NoSamplingPrior, unfold.SamplingPriors()),
+		"sampling-prior", "prior of --response-samples and --diagonal-method gamma: none (the samples' mean is the measured response or data) or flat (+1 on every non-empty cell and the inefficiency cell, +1 on each count)")
+	f.Uint64Var(&o.seed, "seed", 1, "random seed `S` of the probes, toys and samples; the same seed gives the same bits")
 	f.Var(flagval.NewByteSize(&o.memoryLimit, unfold.DefaultMemoryLimit), "memory-limit", "memory allowed for the unfolding, e.g. 8GiB or 500MB: problems whose vectors would not fit (about 256 bytes per bin) and a full covariance above it are refused")
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
@@ -187,6 +193,7 @@ func (o *unfoldOptions) tableFlags(f *pflag.FlagSet) {
 	f.StringVar(&o.data, "data", "", "data table `n.csv` (reco,value[,variance])")
 	f.StringVar(&o.background, "background", "", "expected-background table `b.csv` (reco,value[,variance]); default: none")
 	f.StringVar(&o.prior, "prior", "", "prior table `p.csv` (truth,value), only its shape matters; default: the generated counts")
+	f.StringVar(&o.compare, "compare", "", "reference table `T.csv` (truth,value): print and store the pulls and the chi-square of the result against it (comparison.csv, result.json comparison)")
 	f.StringVar(&o.truthBinning, "truth-binning", "", "truth binning scheme `T.yaml`: fixes the number of truth bins, adds bin labels and edges to the result")
 	f.StringVar(&o.recoBinning, "reco-binning", "", "reco binning scheme `R.yaml`: fixes the number of reco bins")
 }
@@ -262,12 +269,14 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--background-mode needs --background")
 	case changed("diagonal-method") && o.covariance != unfold.Diagonal:
 		return usagef("--diagonal-method applies only to --covariance diag")
-	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys):
+	case changed("probes") && (o.covariance != unfold.Diagonal || o.diagonal == unfold.DiagonalExact || o.diagonal == unfold.DiagonalToys || o.diagonal == unfold.DiagonalGamma):
 		return usagef("--probes applies only to --covariance diag with --diagonal-method probes or auto")
 	case changed("probes") && o.probes == 0:
 		return usagef("--probes 0: give at least 2")
-	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys):
-		return usagef("--toys applies only to --covariance diag --diagonal-method toys")
+	case changed("toys") && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalToys && o.diagonal != unfold.DiagonalGamma):
+		return usagef("--toys applies only to --covariance diag --diagonal-method toys or gamma")
+	case changed("sampling-prior") && o.respSamples == 0 && (o.covariance != unfold.Diagonal || o.diagonal != unfold.DiagonalGamma):
+		return usagef("--sampling-prior applies only with --response-samples N or --diagonal-method gamma")
 	case changed("toys") && o.toys == 0:
 		return usagef("--toys 0: give at least 2")
 	}
@@ -313,22 +322,24 @@ func (noBins) Neighbours(int, int) (int, int) { return -1, -1 }
 // settingFlags maps the fields of unfold.Settings and of the methods'
 // settings to their flags.
 var settingFlags = map[string]string{
-	"Iterations":     "iterations",
-	"StopChi2":       "stop-chi2",
-	"MaxIterations":  "max-iterations",
-	"Smoothing":      "smooth",
-	"Tau":            "tau",
-	"Criterion":      "tau-criterion",
-	"Penalty":        "penalty",
-	"Widths":         "divide-by-widths",
-	"Bias":           "bias",
-	"Background":     "background-mode",
-	"Covariance":     "covariance",
-	"DiagonalMethod": "diagonal-method",
-	"Probes":         "probes",
-	"Toys":           "toys",
-	"Seed":           "seed",
-	"MemoryLimit":    "memory-limit",
+	"Iterations":      "iterations",
+	"StopChi2":        "stop-chi2",
+	"MaxIterations":   "max-iterations",
+	"Smoothing":       "smooth",
+	"Tau":             "tau",
+	"Criterion":       "tau-criterion",
+	"Penalty":         "penalty",
+	"Widths":          "divide-by-widths",
+	"Bias":            "bias",
+	"Background":      "background-mode",
+	"Covariance":      "covariance",
+	"DiagonalMethod":  "diagonal-method",
+	"Probes":          "probes",
+	"Toys":            "toys",
+	"ResponseSamples": "response-samples",
+	"SamplingPrior":   "sampling-prior",
+	"Seed":            "seed",
+	"MemoryLimit":     "memory-limit",
 }
 
 // flagErr turns an *unfold.SettingsError into a usage error naming the
@@ -349,13 +360,15 @@ func (o *unfoldOptions) flagErr(err error) error {
 // with its own settings.
 func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfold.Method) {
 	s := &unfold.Settings{
-		Background:     o.bgMode,
-		Covariance:     o.covariance,
-		DiagonalMethod: o.diagonal,
-		Probes:         o.probes,
-		Toys:           o.toys,
-		Seed:           o.seed,
-		MemoryLimit:    o.memoryLimit,
+		Background:      o.bgMode,
+		Covariance:      o.covariance,
+		DiagonalMethod:  o.diagonal,
+		Probes:          o.probes,
+		Toys:            o.toys,
+		ResponseSamples: o.respSamples,
+		SamplingPrior:   o.samplingPrior,
+		Seed:            o.seed,
+		MemoryLimit:     o.memoryLimit,
 	}
 	switch o.method {
 	case bayes.Name:
@@ -445,6 +458,7 @@ func readHashed(role, what, path string, read func(r io.Reader) error) (inputs.F
 // plainInputs is everything read for a plain-table run.
 type plainInputs struct {
 	set         tables.Set
+	compare     *tables.Vector // the reference of --compare, nil without
 	truth, reco *binning.Scheme
 	inputs      []inputs.File
 }
@@ -487,11 +501,16 @@ func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 		{o.data, tables.Data, &pi.set.Data},
 		{o.background, tables.Background, &pi.set.Background},
 		{o.prior, tables.Prior, &pi.set.Prior},
+		{o.compare, tables.Prior, &pi.compare},
 	} {
 		if t.path == "" {
 			continue
 		}
-		if err := add(readHashed(t.kind.String(), t.kind.String()+" table", t.path, func(r io.Reader) (err error) {
+		role := t.kind.String()
+		if t.dst == &pi.compare {
+			role = "compare"
+		}
+		if err := add(readHashed(role, role+" table", t.path, func(r io.Reader) (err error) {
 			*t.dst, err = tables.ReadVector(r, t.path, t.kind)
 			return err
 		})); err != nil {
@@ -588,6 +607,12 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	if err != nil {
 		return inputErr(err)
 	}
+	var ref []float64
+	if pi.compare != nil {
+		if ref, _, err = pi.compare.Dense(z.Truth, z.TruthOrigin); err != nil {
+			return inputErr(err)
+		}
+	}
 	hook(ctx, "loaded")
 	if err := ctx.Err(); err != nil {
 		return err
@@ -624,6 +649,11 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	if pi.reco != nil {
 		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)
+	}
+	if ref != nil {
+		if err := r.Compare(res, ref, o.compare, pi.truth); err != nil {
+			return numericalErr(err)
+		}
 	}
 
 	var files []string
@@ -780,6 +810,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 		}
 	}
 	fmt.Fprintf(w, "result: %s\n", strings.Join(tables, ", "))
+	printComparison(w, r, truth)
 	printChecks(w, dir, r, files)
 	if g.quiet {
 		return
@@ -793,4 +824,58 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 	if r.UncertaintyPrecision > 0 {
 		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, map[bool]string{true: "probes", false: "toys"}[strings.Contains(r.UncertaintyMethod, "probes")], 100*r.UncertaintyPrecision)
 	}
+}
+
+// printComparison prints the comparison of r with its reference
+// spectrum (nothing without one): the pulls per compared bin for up to
+// maxTableRows bins, and the chi-square with how it was computed.
+func printComparison(w io.Writer, r *result.Result, truth *binning.Scheme) {
+	if r == nil || r.Comparison == nil {
+		return
+	}
+	c := r.Comparison
+	fmt.Fprintf(w, "comparison with %s (%d truth bins):\n", c.Reference, len(c.Bins))
+	if len(c.Bins) <= maxTableRows {
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		head := "bin\treference\testimate\tpull\t"
+		if truth != nil {
+			head += "  label"
+		}
+		fmt.Fprintln(tw, head)
+		for k, j := range c.Bins {
+			pull := "-"
+			if c.Pull[k] != nil {
+				pull = fmt.Sprintf("%+.2f", *c.Pull[k])
+			}
+			line := fmt.Sprintf("%d\t%.6g\t%.6g\t%s\t", j, c.Values[k], r.Estimate[j], pull)
+			if truth != nil {
+				line += "  " + truth.Label(j)
+			}
+			fmt.Fprintln(tw, line)
+		}
+		tw.Flush()
+	}
+	fmt.Fprintln(w, comparisonChi2(c))
+}
+
+// comparisonChi2 says what the chi-square of a comparison is and how it
+// was computed (method.md §19).
+func comparisonChi2(c *result.Comparison) string {
+	if c.Covariance == "none" {
+		return "no chi-square: the result has no uncertainty (pull = (estimate - reference) / uncertainty)"
+	}
+	what := "the total covariance"
+	if c.Covariance == "diagonal" {
+		what = "the total uncertainties only (no full covariance: correlations ignored)"
+	}
+	cond := "singular"
+	if c.Condition != nil {
+		cond = fmt.Sprintf("%.3g", *c.Condition)
+	}
+	ratio := "-"
+	if c.NDF > 0 {
+		ratio = fmt.Sprintf("%.2f", c.Chi2/float64(c.NDF))
+	}
+	return fmt.Sprintf("chi2/ndf = %.1f/%d = %s (p-value %.2f) with %s through its pseudo-inverse: eigenvalues below %.0e of the largest dropped, %d of %d directions kept (condition number %s)",
+		c.Chi2, c.NDF, ratio, c.PValue, what, c.EigenvalueCut, c.NDF, c.Determined, cond)
 }

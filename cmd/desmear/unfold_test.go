@@ -358,6 +358,13 @@ func TestUnfoldBadInput(t *testing.T) {
 		{"one probe", nil, []string{"--probes", "1"}, exitUsage, []string{"--probes 1: must be at least 2"}},
 		{"toys without toys method", nil, []string{"--toys", "10"}, exitUsage, []string{"--toys applies only"}},
 		{"one toy", nil, []string{"--diagonal-method", "toys", "--toys", "1"}, exitUsage, []string{"--toys 1: must be at least 2"}},
+		{"response samples without sumw2", nil, []string{"--response-samples", "20"}, exitInput, []string{"G.csv:", `field "sumw2"`, "no sumw2 column", "cannot be sampled"}},
+		{"one response sample", nil, []string{"--response-samples", "1"}, exitUsage, []string{"--response-samples 1: must be 0 (no sampling) or at least 2"}},
+		{"negative response samples", nil, []string{"--response-samples", "-2"}, exitUsage, []string{"--response-samples -2: must be 0"}},
+		{"response samples without covariance", nil, []string{"--response-samples", "20", "--covariance", "none"}, exitUsage, []string{"--response-samples 20: needs an uncertainty of the data too"}},
+		{"unknown sampling prior", nil, []string{"--sampling-prior", "uniform"}, exitUsage, []string{`"uniform"`, "none, flat"}},
+		{"sampling prior without sampling", nil, []string{"--sampling-prior", "flat"}, exitUsage, []string{"--sampling-prior applies only"}},
+		{"zero sumw2", map[string]string{"G.csv": "truth,value,sumw2\n0,1000,1000\n1,1000,0\n2,1000,1000\n"}, []string{"--response-samples", "20"}, exitInput, []string{"G.csv:3:", `field "sumw2"`, "truth bin 1"}},
 		{"covariance too large", nil, []string{"--covariance", "full", "--memory-limit", "10B"}, exitNumerical, []string{"memory limit", "--covariance diag"}},
 	}
 	for _, c := range cases {
@@ -594,5 +601,40 @@ func TestUnfoldSummaryNotes(t *testing.T) {
 				t.Errorf("exit %d; stdout %q lacks %q or stderr %q lacks %q", code, stdout, c.stdout, stderr, c.stderr)
 			}
 		})
+	}
+}
+
+func TestUnfoldResponseSamples(t *testing.T) {
+	// Oracle D with unweighted simulation (sumw2 = value, N_eff = G):
+	// the simulation source joins the data's and the total is their sum
+	// (method.md §18 Sources of uncertainty and their total; the
+	// sampling itself is tested in package unfold against method.md §20).
+	dir := writeFiles(t, t.TempDir(), maps(oracleD, map[string]string{"G.csv": "truth,value,sumw2\n0,1000,1000\n1,1000,1000\n2,1000,1000\n"}))
+	out := filepath.Join(t.TempDir(), "result")
+	args := append(oracleDArgs(dir, out), "--covariance", "full", "--response-samples", "200", "--sampling-prior", "flat", "--seed", "5")
+	if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	r, raw := readResult(t, out)
+	if len(r.Sources) != 2 || r.Sources[0].Name != "data" || r.Sources[1].Name != "simulation" || r.Sources[1].Method != "dirichlet-samples" || r.Sources[1].Samples != 200 {
+		t.Fatalf("sources %+v", r.Sources)
+	}
+	for j, u := range r.Uncertainty {
+		d, s := r.Sources[0].Uncertainty[j], r.Sources[1].Uncertainty[j]
+		if !(s > 0) || math.Abs(u*u-(d*d+s*s)) > 1e-9*u*u {
+			t.Errorf("bin %d: total %v, data %v, simulation %v", j, u, d, s)
+		}
+		if c := r.Covariance[j][j]; math.Abs(c-u*u) > 1e-9*c {
+			t.Errorf("bin %d: total covariance %v, variance %v", j, c, u*u)
+		}
+	}
+	if r.Settings.ResponseSamples != 200 || r.Settings.SamplingPrior != "flat" {
+		t.Errorf("settings %+v", r.Settings)
+	}
+	if rs := r.RandomStreams; rs == nil || rs.Seed != 5 || len(rs.Streams) != 1 || rs.Streams[0].Unit != "response-sample" || rs.Streams[0].Offset != 4<<32 {
+		t.Errorf("random streams %+v", r.RandomStreams)
+	}
+	if _, ok := raw["random_streams"]; !ok {
+		t.Error("result.json has no random_streams")
 	}
 }

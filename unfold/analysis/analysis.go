@@ -53,6 +53,11 @@ type Analysis struct {
 	Workers     int
 	BatchSize   int
 
+	// Compare, when not empty, names a reference spectrum (a truth,value
+	// table over the truth binning) that the result is compared with
+	// (key compare; resolved).
+	Compare string
+
 	// Stress lists the stress tests of validation.stress: a name and
 	// weights per truth bin, the weight expression evaluated over the
 	// truth axes at the bin centres (validate.Weights).
@@ -176,10 +181,14 @@ type Unfolding struct {
 // Uncertainty holds the uncertainty settings.
 type Uncertainty struct {
 	Covariance string // none, diag or full
-	Method     string // auto, exact, probes or toys (diag only)
+	Method     string // auto, exact, probes, toys or gamma (diag only)
 	Probes     int
 	Toys       int
 	Seed       uint64
+	// ResponseSamples is the number of sampled responses (0: none),
+	// SamplingPrior the prior of the sampling (none or flat).
+	ResponseSamples int
+	SamplingPrior   string
 }
 
 // Output holds the output settings.
@@ -341,12 +350,14 @@ func Decode(src []byte, path string) (*Analysis, error) {
 
 	// Uncertainty.
 	un, o := doc.Uncertainty, doc.Output
-	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed}
+	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed,
+		ResponseSamples: un.ResponseSamples, SamplingPrior: un.SamplingPrior}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
 	c.oneOf(&a.Uncertainty.Covariance, unfold.Diagonal.String(), names(unfold.CovarianceModes()), "uncertainty", "covariance")
 	c.oneOf(&a.Uncertainty.Method, unfold.DiagonalAuto.String(), names(unfold.DiagonalMethods()), "uncertainty", "method")
+	c.oneOf(&a.Uncertainty.SamplingPrior, unfold.NoSamplingPrior.String(), names(unfold.SamplingPriors()), "uncertainty", "sampling_prior")
 	// Zero is each of these settings' "not given" value: written out, it
 	// would silently mean the default, so it is refused.
 	for _, z := range []struct {
@@ -388,6 +399,9 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 
 	c.stress(a, doc.Validation.Stress)
+	if nodeAt(root, "compare") != nil {
+		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
+	}
 	c.variations(a, doc.Variations)
 
 	// Processing.
@@ -437,22 +451,24 @@ type checker struct {
 // settingKeys maps the fields of unfold.Settings and of the methods' settings to
 // their keys in the analysis file.
 var settingKeys = map[string][]any{
-	"Iterations":     {"unfolding", "iterations"},
-	"StopChi2":       {"unfolding", "stop_chi2"},
-	"MaxIterations":  {"unfolding", "max_iterations"},
-	"Smoothing":      {"unfolding", "smoothing"},
-	"Tau":            {"unfolding", "tau"},
-	"Criterion":      {"unfolding", "tau_criterion"},
-	"Penalty":        {"unfolding", "penalty"},
-	"Widths":         {"unfolding", "divide_by_widths"},
-	"Bias":           {"unfolding", "bias"},
-	"Background":     {"unfolding", "background"},
-	"MemoryLimit":    {"unfolding", "memory_limit_gib"},
-	"Covariance":     {"uncertainty", "covariance"},
-	"DiagonalMethod": {"uncertainty", "method"},
-	"Probes":         {"uncertainty", "probes"},
-	"Toys":           {"uncertainty", "toys"},
-	"Seed":           {"uncertainty", "seed"},
+	"Iterations":      {"unfolding", "iterations"},
+	"StopChi2":        {"unfolding", "stop_chi2"},
+	"MaxIterations":   {"unfolding", "max_iterations"},
+	"Smoothing":       {"unfolding", "smoothing"},
+	"Tau":             {"unfolding", "tau"},
+	"Criterion":       {"unfolding", "tau_criterion"},
+	"Penalty":         {"unfolding", "penalty"},
+	"Widths":          {"unfolding", "divide_by_widths"},
+	"Bias":            {"unfolding", "bias"},
+	"Background":      {"unfolding", "background"},
+	"MemoryLimit":     {"unfolding", "memory_limit_gib"},
+	"Covariance":      {"uncertainty", "covariance"},
+	"DiagonalMethod":  {"uncertainty", "method"},
+	"Probes":          {"uncertainty", "probes"},
+	"Toys":            {"uncertainty", "toys"},
+	"ResponseSamples": {"uncertainty", "response_samples"},
+	"SamplingPrior":   {"uncertainty", "sampling_prior"},
+	"Seed":            {"uncertainty", "seed"},
 }
 
 // sameBins reports whether two schemes have the same bins (the same

@@ -52,5 +52,5 @@ output:
 	// truth pt: sqrt(px_true*px_true + py_true*py_true)
 	// reco selection: passed && sqrt(px*px + py*py) > 15
 	// iterations: 4 prior: simulation covariance: diag
-	// example.yaml:1: titel: unknown key in the top level (known keys: title, binning, observables, simulation, response, data, backgrounds, unfolding, uncertainty, output, processing, validation, variations)
+	// example.yaml:1: titel: unknown key in the top level (known keys: title, binning, observables, simulation, response, data, backgrounds, unfolding, uncertainty, output, processing, validation, compare, variations)
 }

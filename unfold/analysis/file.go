@@ -31,6 +31,7 @@ type fileDoc struct {
 	Output      outputDoc      `yaml:"output"`
 	Processing  processingDoc  `yaml:"processing"`
 	Validation  validationDoc  `yaml:"validation"`
+	Compare     string         `yaml:"compare"`
 	Variations  []variationDoc `yaml:"variations"`
 }
 
@@ -168,6 +169,9 @@ type uncertainDoc struct {
 	Probes     int    `yaml:"probes"`
 	Toys       int    `yaml:"toys"`
 	Seed       uint64 `yaml:"seed"`
+
+	ResponseSamples int    `yaml:"response_samples"`
+	SamplingPrior   string `yaml:"sampling_prior"`
 }
 
 type outputDoc struct {

@@ -76,14 +76,19 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		}
 	}
 	out.Problem = p
+	ref, err := a.Reference()
+	if err != nil {
+		return nil, err
+	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
 	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
 		return nil, err
 	}
-	if err := a.write(out, s, m, replace, opt); err != nil {
-		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
+	if err := a.write(out, s, m, ref, replace, opt); err != nil {
+		var ne *unfold.NumericalError // of the comparison with the reference
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) || errors.As(err, &ne) {
 			return nil, err
 		}
 		return nil, &OutputError{Folder: a.Output.Folder, Err: err}
@@ -194,6 +199,9 @@ func (a *Analysis) inputs(out *Outcome) ([]inputs.File, error) {
 	if err := add("prior", a.Unfolding.PriorFile); err != nil {
 		return nil, err
 	}
+	if err := add("compare", a.Compare); err != nil {
+		return nil, err
+	}
 	for _, v := range a.Variations {
 		for _, ch := range []*Change{v.Change, v.Up, v.Down} {
 			if ch == nil {
@@ -222,7 +230,7 @@ func finitePtrs(v []float64) []*float64 {
 	return out
 }
 
-func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, replace bool, opt *Options) (err error) {
+func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref []float64, replace bool, opt *Options) (err error) {
 	doc, err := result.FromUnfold(out.Result)
 	if err != nil {
 		return err
@@ -259,6 +267,11 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, repl
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+	if ref != nil {
+		if err := doc.Compare(out.Result, ref, a.Compare, a.Truth); err != nil {
+			return err
+		}
+	}
 
 	f, err := result.New(a.Output.Folder, replace)
 	if err != nil {

@@ -381,7 +381,7 @@ type Expected struct {
 // (unless unfolding.fakes is "ignore") plus every background sample
 // times its scale. Its variance is the sum of the squared weights; a
 // background's scale uncertainty is not in it but a systematic source of
-// its own, fully correlated across bins (method.md §19). It returns nil
+// its own, fully correlated across bins (method.md §21). It returns nil
 // when there is no background at all.
 func (a *Analysis) Background(ctx context.Context, r *response.Built, opt *Options) (*Expected, error) {
 	bs, err := a.backgroundSamples(ctx, opt)
@@ -483,7 +483,7 @@ func (a *Analysis) expected(r *response.Built, bs []backgroundSample, factor []f
 // (Decode has refused those already too).
 func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit}
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit, ResponseSamples: un.ResponseSamples}
 	// names are the settings given by name in the file: the field, its
 	// value to set and the text.
 	type named struct {
@@ -495,6 +495,7 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 		{"Background", &s.Background, u.Background},
 		{"Covariance", &s.Covariance, un.Covariance},
 		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
+		{"SamplingPrior", &s.SamplingPrior, un.SamplingPrior},
 	}
 	var m unfold.Method
 	switch u.Method {
@@ -547,9 +548,24 @@ func (a *Analysis) Prior() ([]float64, error) {
 	return nil, nil
 }
 
+// Reference reads the reference spectrum of the key compare (nil when
+// none is given), one value per bin of the truth binning; errors are
+// *tables.Error values naming the file and the line.
+func (a *Analysis) Reference() ([]float64, error) {
+	if a.Compare == "" {
+		return nil, nil
+	}
+	v, err := tables.LoadVector(a.Compare, tables.Prior)
+	if err != nil {
+		return nil, err
+	}
+	ref, _, err := v.Dense(a.Truth.Len(), "the truth binning")
+	return ref, err
+}
+
 // Problem assembles the unfolding problem.
 func (a *Analysis) Problem(r *response.Built, data *Measured, bkg *Expected) (*unfold.Problem, error) {
-	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, Data: data.Values, DataVariance: data.Variance}
+	p := &unfold.Problem{Migrations: r.Migrations, Generated: r.Generated, GeneratedSumW2: r.GeneratedSumW2, Data: data.Values, DataVariance: data.Variance}
 	if bkg != nil {
 		p.Background, p.BackgroundVariance = bkg.Values, bkg.Variance
 	}

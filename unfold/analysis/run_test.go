@@ -464,7 +464,7 @@ func TestBackgroundPriorAndTH1D(t *testing.T) {
 	}
 	// Expected: fakes + 0.5 × 2 per background event; variance: fakes'
 	// Σw² + Σ(0.5·2)² (the scale uncertainty is a source of its own,
-	// method.md §19 Systematic variations).
+	// method.md §21 Systematic variations).
 	count := make([]float64, a.Reco.Len())
 	for _, x := range bx {
 		count[a.Reco.Locate([]float64{x})]++

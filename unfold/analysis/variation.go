@@ -325,7 +325,7 @@ func (a *Analysis) backgroundScales(ch *Change) []float64 {
 
 // fixRegularisation returns m with the regularisation the nominal result
 // res ended with: the number of iterations made, the tau chosen. A
-// variation is unfolded with it (method.md §19).
+// variation is unfolded with it (method.md §21).
 func fixRegularisation(m unfold.Method, res *unfold.Result) unfold.Method {
 	switch d := res.Details.(type) {
 	case *bayes.Details:

@@ -49,7 +49,7 @@ func fmtFloat(x float64) string { b, _ := json.Marshal(x); return string(b) }
 
 // A reweighting by exactly 1 and the same simulation under another file
 // name give the nominal estimate bit for bit, so their shifts are zero
-// exactly (method.md §19 Systematic variations: δ = μ' − μ); a real
+// exactly (method.md §21 Systematic variations: δ = μ' − μ); a real
 // reweighting gives a shift; and the total is the sum of the sources
 // (method.md §18 Sources of uncertainty and their total).
 func TestVariationOfOneZeroShift(t *testing.T) {
@@ -152,7 +152,7 @@ func TestVariationOfOneZeroShift(t *testing.T) {
 }
 
 // The shift of a background's scale uncertainty u is the result with the
-// background scaled by 1 + u minus the nominal one (method.md §19
+// background scaled by 1 + u minus the nominal one (method.md §21
 // Systematic variations); to first order it is the derivative of the
 // estimate with respect to the background times u·b. Checked against
 // the exact Jacobian of method.md §8 Linearised uncertainty propagation

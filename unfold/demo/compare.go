@@ -1,12 +1,11 @@
 package demo
 
 import (
-	"errors"
 	"fmt"
-	"math"
 
 	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/stat/distuv"
+
+	"github.com/desmear/desmear/unfold"
 )
 
 // Row is one in-range truth bin of a Comparison.
@@ -24,11 +23,15 @@ type Row struct {
 // measurement).
 type Comparison struct {
 	Rows []Row
-	// Chi2 is (μ − t)ᵀ V⁻¹ (μ − t) over the in-range bins, with V the
-	// reported covariance restricted to them; NDF is the number of those
-	// bins. Both are zero when no covariance was given.
-	Chi2 float64
-	NDF  int
+	// Chi2 is (μ − t)ᵀ V⁺ (μ − t) over the in-range bins, with V the
+	// reported covariance restricted to them and V⁺ its pseudo-inverse
+	// (unfold.Compare, method.md §19); NDF is the number of
+	// eigen-directions kept (the number of bins for a well-conditioned
+	// V), Condition the condition number of V. All zero when no
+	// covariance was given.
+	Chi2      float64
+	NDF       int
+	Condition float64
 	// PValue is the probability of a chi-square at least as large,
 	// P(χ²_NDF ≥ Chi2), from gonum's distuv.ChiSquared.
 	PValue float64
@@ -38,7 +41,8 @@ type Comparison struct {
 // uncertainty (per truth bin) and cov (truth bins × truth bins) may be
 // nil; without cov no chi-square is computed. It returns an error if the
 // lengths do not match the truth binning, or if the in-range block of cov
-// is not positive definite.
+// is not a covariance (a negative eigenvalue beyond the cut). The pulls
+// and the chi-square are those of unfold.Compare.
 func Compare(t *Truth, estimate, uncertainty []float64, cov mat.Symmetric) (*Comparison, error) {
 	n := t.Scheme.Len()
 	if len(estimate) != n || (uncertainty != nil && len(uncertainty) != n) {
@@ -47,39 +51,20 @@ func Compare(t *Truth, estimate, uncertainty []float64, cov mat.Symmetric) (*Com
 	if cov != nil && cov.SymmetricDim() != n {
 		return nil, fmt.Errorf("demo: compare: covariance of size %d for %d truth bins", cov.SymmetricDim(), n)
 	}
-	nin := t.Scheme.InRange()
-	c := &Comparison{Rows: make([]Row, nin)}
-	for g := range nin {
-		r := Row{Bin: g, Label: t.Scheme.Label(g), Truth: t.Expected[g], Unfolded: estimate[g], Pull: math.NaN()}
-		if uncertainty != nil {
-			r.Uncertainty = uncertainty[g]
-			if r.Uncertainty > 0 {
-				r.Pull = (r.Unfolded - r.Truth) / r.Uncertainty
-			}
-		}
-		c.Rows[g] = r
+	bins := make([]int, t.Scheme.InRange())
+	for g := range bins {
+		bins[g] = g
 	}
-	if cov == nil {
-		return c, nil
-	}
-	v := mat.NewSymDense(nin, nil)
-	d := mat.NewVecDense(nin, nil)
-	for i := range nin {
-		d.SetVec(i, estimate[i]-t.Expected[i])
-		for j := i; j < nin; j++ {
-			v.SetSym(i, j, cov.At(i, j))
-		}
-	}
-	var ch mat.Cholesky
-	if !ch.Factorize(v) {
-		return nil, errors.New("demo: compare: the covariance of the in-range bins is not positive definite")
-	}
-	x := mat.NewVecDense(nin, nil)
-	if err := ch.SolveVecTo(x, d); err != nil {
+	uc, err := unfold.Compare(t.Expected, estimate, uncertainty, cov, nil, bins, 0)
+	if err != nil {
 		return nil, fmt.Errorf("demo: compare: %w", err)
 	}
-	c.Chi2 = mat.Dot(d, x)
-	c.NDF = nin
-	c.PValue = distuv.ChiSquared{K: float64(nin)}.Survival(c.Chi2)
+	c := &Comparison{Rows: make([]Row, len(bins))}
+	if cov != nil { // without one, the demo states no chi-square
+		c.Chi2, c.NDF, c.Condition, c.PValue = uc.Chi2, uc.NDF, uc.Condition, uc.PValue
+	}
+	for g, r := range uc.Rows {
+		c.Rows[g] = Row{Bin: g, Label: t.Scheme.Label(g), Truth: r.Reference, Unfolded: r.Estimate, Uncertainty: r.Uncertainty, Pull: r.Pull}
+	}
 	return c, nil
 }

@@ -27,6 +27,7 @@ const (
 	DataROOT           = "data.root"
 	DataParquet        = "data.parquet"
 	TruthFile          = "truth.csv"
+	ReferenceFile      = "truth-expected.csv"
 	ScenarioFile       = "scenario.json"
 	ResultFolder       = "result"
 	StressFile         = "stress-test.yaml"
@@ -191,6 +192,9 @@ func writeInputs(ctx context.Context, f *atomicfile.Folder, in *Inputs, sim, dat
 	if err := writeTruth(f, TruthFile, in.Truth); err != nil {
 		return err
 	}
+	if err := writeReference(f, ReferenceFile, in.Truth); err != nil {
+		return err
+	}
 	if err := f.WriteFile(AnalysisFile, []byte(analysisYAML(in.Config))); err != nil {
 		return err
 	}
@@ -262,6 +266,25 @@ func writeTruth(f *atomicfile.Folder, name string, t *Truth) error {
 			strconv.FormatFloat(t.Expected[g], 'g', 17, 64),
 			strconv.FormatFloat(t.Generated[g], 'g', -1, 64),
 		})
+	}
+	w.Flush()
+	if err := w.Error(); err != nil {
+		return err
+	}
+	return out.Close()
+}
+
+// writeReference writes the expected truth as a plain truth table
+// (truth,value), the reference spectrum of the stress test's compare key.
+func writeReference(f *atomicfile.Folder, name string, t *Truth) error {
+	out, err := f.Create(name)
+	if err != nil {
+		return err
+	}
+	w := csv.NewWriter(out)
+	w.Write([]string{"truth", "value"})
+	for g, e := range t.Expected {
+		w.Write([]string{strconv.Itoa(g), strconv.FormatFloat(e, 'g', 17, 64)})
 	}
 	w.Flush()
 	if err := w.Error(); err != nil {

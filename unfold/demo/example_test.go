@@ -38,6 +38,7 @@ func ExampleGenerate() {
 	// simulation.root
 	// stress-test.yaml
 	// truth-binning.yaml
+	// truth-expected.csv
 	// truth.csv
 	// simulated events: 20000
 }

@@ -18,7 +18,13 @@ func init() {
 		if err := writeFile(f, CSVFile, func(w io.Writer) error { return WriteCSV(w, r, truth) }); err != nil {
 			return nil, err
 		}
-		return []string{CSVFile}, nil
+		if r.Comparison == nil {
+			return []string{CSVFile}, nil
+		}
+		if err := writeFile(f, ComparisonFile, func(w io.Writer) error { return WriteComparison(w, r, truth) }); err != nil {
+			return nil, err
+		}
+		return []string{CSVFile, ComparisonFile}, nil
 	}})
 }
 

@@ -69,6 +69,13 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// Comparison compares the result with a reference spectrum, when
+	// one was given.
+	Comparison *Comparison `json:"comparison,omitempty"`
+	// RandomStreams records how the random numbers behind the
+	// uncertainty were drawn; absent when none were (an exact
+	// computation).
+	RandomStreams *RandomStreams `json:"random_streams,omitempty"`
 	// Determined flags the truth bins the response can measure
 	// (efficiency > 0).
 	Determined []bool `json:"determined"`
@@ -169,6 +176,22 @@ type Source struct {
 	ShiftDown []float64 `json:"shift_down,omitempty"`
 }
 
+// RandomStreams says where the random numbers of a result come from:
+// unit k of each kind (probe, toy or sample number k, from 0) draws from
+// the generator seeded with (Seed, Offset + k).
+type RandomStreams struct {
+	Generator string   `json:"generator"` // "pcg (go math/rand/v2)"
+	Seed      uint64   `json:"seed"`
+	Streams   []Stream `json:"streams"`
+}
+
+// Stream is one kind of unit of RandomStreams.
+type Stream struct {
+	Unit       string `json:"unit"` // "probe", "poisson-toy", "gamma-sample" or "response-sample"
+	Offset     uint64 `json:"offset"`
+	Derivation string `json:"derivation"` // for example "response-sample k (from 0) draws from rand.NewPCG(seed, 4·2^32 + k)"
+}
+
 // Tikhonov is the outcome of the Tikhonov method: the tau used and how
 // it was chosen ("fixed", "lcurve" or "correlation"), the penalty, and
 // the scan of tau (also written as tau-scan.csv).
@@ -258,7 +281,12 @@ type Settings struct {
 	DiagonalMethod string `json:"diagonal_method,omitempty"`
 	Probes         int    `json:"probes,omitempty"`
 	Toys           int    `json:"toys,omitempty"`
-	Seed           uint64 `json:"seed"`
+	// ResponseSamples is the number of sampled responses behind the
+	// simulation source, SamplingPrior the prior of the Dirichlet and
+	// Gamma sampling ("none" or "flat"); absent without sampling.
+	ResponseSamples int    `json:"response_samples,omitempty"`
+	SamplingPrior   string `json:"sampling_prior,omitempty"`
+	Seed            uint64 `json:"seed"`
 	// MemoryLimit is the memory limit of the uncertainty computation in
 	// bytes.
 	MemoryLimit int64 `json:"memory_limit"`
@@ -362,9 +390,15 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 		switch z.DiagonalMethod {
 		case unfold.DiagonalAuto, unfold.DiagonalProbes:
 			d.Probes = z.Probes
-		case unfold.DiagonalToys:
+		case unfold.DiagonalToys, unfold.DiagonalGamma:
 			d.Toys = z.Toys
 		}
+	}
+	if z.ResponseSamples > 0 {
+		d.ResponseSamples = z.ResponseSamples
+	}
+	if z.ResponseSamples > 0 || z.Covariance == unfold.Diagonal && z.DiagonalMethod == unfold.DiagonalGamma {
+		d.SamplingPrior = z.SamplingPrior.String()
 	}
 	return d
 }
@@ -389,6 +423,13 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 		UncertaintyMethod:    res.UncertaintyMethod,
 		UncertaintyPrecision: res.UncertaintyPrecision,
 		UncertaintySamples:   res.Samples,
+	}
+	if len(res.Streams) > 0 {
+		r.RandomStreams = &RandomStreams{Generator: "pcg (go math/rand/v2)", Seed: res.Seed}
+		for _, st := range res.Streams {
+			r.RandomStreams.Streams = append(r.RandomStreams.Streams, Stream{Unit: st.Unit, Offset: st.Offset,
+				Derivation: fmt.Sprintf("%s k (from 0) draws from rand.NewPCG(seed, %d·2^32 + k)", st.Unit, st.Offset>>32)})
+		}
 	}
 	// Each method has one case here: the fields of its details.
 	switch d := res.Details.(type) {

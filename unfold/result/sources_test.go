@@ -45,9 +45,9 @@ func sourcesResult(t *testing.T) (*unfold.Result, *binning.Scheme) {
 // The breakdown files: sources.csv (each source's uncertainty, the total
 // the root of their summed variances: method.md §18 Sources of
 // uncertainty and their total), shifts.csv (the signed shifts, the
-// pair's half-difference and one-sided shifts: method.md §19 Systematic
+// pair's half-difference and one-sided shifts: method.md §21 Systematic
 // variations), the covariance of each source (a shift's the outer
-// product of the shift, §19) and the region table's parts.
+// product of the shift, §21) and the region table's parts.
 func TestSourcesFiles(t *testing.T) {
 	ur, s := sourcesResult(t)
 	doc, err := FromUnfold(ur)

@@ -71,9 +71,9 @@ func (s *Set) Assemble(z Sizes) (*unfold.Problem, error) {
 		return nil, err
 	}
 	p := &unfold.Problem{Migrations: a}
-	// The sumw2 column of the generated table is checked here but not
-	// used by the kernel yet; it stays in s.Generated.Err2.
-	if p.Generated, _, err = s.Generated.Dense(z.Truth, z.TruthOrigin); err != nil {
+	// The sumw2 column of the generated table gives the simulation's
+	// effective counts (the sampling of the response); nil without it.
+	if p.Generated, p.GeneratedSumW2, err = s.Generated.Dense(z.Truth, z.TruthOrigin); err != nil {
 		return nil, err
 	}
 	if p.Data, p.DataVariance, err = s.Data.Dense(z.Reco, z.RecoOrigin); err != nil {
@@ -133,6 +133,11 @@ func (s *Set) Locate(err error) error {
 	switch ie.Field {
 	case "Generated":
 		v, bin = s.Generated, ie.Truth
+	case "GeneratedSumW2":
+		if s.Generated != nil && s.Generated.Err2 == nil {
+			return &Error{File: s.Generated.File, Field: "sumw2", Msg: "the table has no sumw2 column (the sum of squared weights of the events generated in each truth bin): without it the statistics of the simulation are unknown (the table may be normalised) and the response cannot be sampled; add the column"}
+		}
+		v, bin = s.Generated, ie.Truth
 	case "Prior":
 		v, bin = s.Prior, ie.Truth
 	case "Data", "DataVariance":
@@ -153,8 +158,11 @@ func (s *Set) Locate(err error) error {
 		return err
 	}
 	col = "value"
-	if ie.Field == "DataVariance" || ie.Field == "BackgroundVariance" {
+	switch ie.Field {
+	case "DataVariance", "BackgroundVariance":
 		col = "variance"
+	case "GeneratedSumW2":
+		col = "sumw2"
 	}
 	msg := ie.Reason
 	if bin >= 0 {

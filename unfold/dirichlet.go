@@ -1,0 +1,207 @@
+package unfold
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"runtime"
+
+	"github.com/desmear/desmear/unfold/internal/parallel"
+)
+
+// MethodDirichlet is the Method of the simulation source computed by
+// sampling the response.
+const MethodDirichlet = "dirichlet-samples"
+
+// DirichletParams returns the Dirichlet parameters of the response
+// columns of p (method.md §20): alpha, parallel to the values of
+// p.Migrations, and alpha0, the parameter of each column's inefficiency
+// cell. For truth bin j with effective count N_j = G_j²/S_j (S_j =
+// p.GeneratedSumW2[j]) the cell of reco bin k gets N_j·A_kj/G_j and the
+// inefficiency cell N_j·(1 − Σ_k A_kj/G_j); with FlatSamplingPrior every
+// cell with A_kj > 0 and the inefficiency cell get 1 more. Columns
+// without migrations get 0 throughout.
+//
+// Errors: *InputError for the field GeneratedSumW2 when it is nil, of
+// the wrong length, not finite and ≥ 0, or 0 for a truth bin with
+// migrations.
+func DirichletParams(p *Problem, prior SamplingPrior) (alpha, alpha0 []float64, err error) {
+	if p.GeneratedSumW2 == nil {
+		return nil, nil, inputErr("GeneratedSumW2", -1, -1, "the sums of squared weights of the generated counts are not given: the statistics of the simulation are unknown (a normalised response carries none), so the response cannot be sampled")
+	}
+	_, nt := p.Migrations.Dims()
+	if err := checkVector("GeneratedSumW2", p.GeneratedSumW2, nt, false, false); err != nil {
+		return nil, nil, err
+	}
+	add := 0.0
+	if prior == FlatSamplingPrior {
+		add = 1
+	}
+	colPtr, val := p.Migrations.ColPtr(), p.Migrations.Values()
+	alpha = make([]float64, len(val))
+	alpha0 = make([]float64, nt)
+	for j := range nt {
+		var sum float64
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			sum += val[k]
+		}
+		g, s2 := p.Generated[j], p.GeneratedSumW2[j]
+		if sum <= 0 || g <= 0 {
+			continue
+		}
+		if s2 <= 0 {
+			return nil, nil, inputErr("GeneratedSumW2", -1, j, "is %v for a generated count %v: a truth bin with migrations needs the sum of its squared weights", s2, g)
+		}
+		neff := g * g / s2
+		for k := colPtr[j]; k < colPtr[j+1]; k++ {
+			if val[k] > 0 {
+				alpha[k] = neff*val[k]/g + add
+			}
+		}
+		alpha0[j] = neff*max(0, 1-sum/g) + add
+	}
+	return alpha, alpha0, nil
+}
+
+// SampleResponse draws the response values of sample s into dst
+// (parallel to the values of the migrations, with generated counts gen):
+// column j's cell probabilities, the inefficiency cell's included, from
+// Dirichlet(alpha, alpha0_j) (normalised Gamma(alpha, 1) draws), times
+// G_j. Cells with parameter 0 get 0. The numbers come from the PCG stream
+// seeded with seed and stream responseStream+s only. colPtr are the
+// migrations' column pointers. It panics if the lengths disagree.
+func SampleResponse(dst []float64, colPtr []int, alpha, alpha0, gen []float64, seed uint64, s int) {
+	if len(dst) != len(alpha) || len(alpha0) != len(gen) || len(colPtr) != len(gen)+1 {
+		panic("unfold: SampleResponse lengths disagree")
+	}
+	rng := rand.New(rand.NewPCG(seed, responseStream+uint64(s)))
+	for j, g := range gen {
+		lo, hi := colPtr[j], colPtr[j+1]
+		tot := gammaRand(rng, alpha0[j])
+		for k := lo; k < hi; k++ {
+			dst[k] = gammaRand(rng, alpha[k])
+			tot += dst[k]
+		}
+		if tot <= 0 {
+			clear(dst[lo:hi])
+			continue
+		}
+		f := g / tot
+		for k := lo; k < hi; k++ {
+			dst[k] *= f
+		}
+	}
+}
+
+// gammaRand draws from Gamma(a, 1) (0 for a ≤ 0) with the method of
+// G. Marsaglia and W. W. Tsang (ACM TOMS 26 (2000) 363), using
+// Gamma(a) = Gamma(a+1)·U^(1/a) for a < 1 (their §6). It allocates
+// nothing.
+func gammaRand(rng *rand.Rand, a float64) float64 {
+	if !(a > 0) {
+		return 0
+	}
+	boost := 1.0
+	if a < 1 {
+		boost = math.Pow(1-rng.Float64(), 1/a) // 1−U in (0, 1]
+		a++
+	}
+	d := a - 1.0/3
+	c := 1 / math.Sqrt(9*d)
+	for {
+		x := rng.NormFloat64()
+		v := 1 + c*x
+		if v <= 0 {
+			continue
+		}
+		v = v * v * v
+		u := rng.Float64()
+		if u < 1-0.0331*x*x*x*x || math.Log(u) < 0.5*x*x+d*(1-v+math.Log(v)) {
+			return d * v * boost
+		}
+	}
+}
+
+// responseSource computes the simulation source by unfolding, with
+// method m and the nominal data, rs.ResponseSamples responses sampled by
+// SampleResponse, and taking the ensemble's variances (and covariance
+// with Full). Samples run concurrently, each worker on its own prepared
+// problem, and are added to the ensemble in sample order, so the bits do
+// not depend on the number of cores. det are the nominal determined
+// bins; the source is 0 elsewhere.
+func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det []bool) (*Source, error) {
+	alpha, alpha0, err := DirichletParams(p, rs.SamplingPrior)
+	if err != nil {
+		return nil, err
+	}
+	samples := rs.ResponseSamples
+	workers := min(runtime.GOMAXPROCS(0), samples)
+	type slot struct {
+		pr  *Prepared
+		val []float64
+		est []float64
+		err error
+	}
+	slots := make([]slot, workers)
+	for w := range slots {
+		sl := &slots[w]
+		sl.val = make([]float64, len(alpha))
+		a, err := p.Migrations.WithValues(sl.val, nil)
+		if err != nil {
+			return nil, err
+		}
+		q := *p
+		q.Migrations = a
+		copy(sl.val, p.Migrations.Values())
+		if sl.pr, err = Prepare(&q, rs.Background); err != nil {
+			return nil, err
+		}
+	}
+	nt := len(p.Generated)
+	full := rs.Covariance == Full
+	ens := NewEnsemble(nt, full)
+	colPtr := p.Migrations.ColPtr()
+	for s0 := 0; s0 < samples; s0 += workers {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		batch := min(workers, samples-s0)
+		parallel.For(batch, batch, func(w int) {
+			sl := &slots[w]
+			SampleResponse(sl.val, colPtr, alpha, alpha0, p.Generated, rs.Seed, s0+w)
+			if sl.err = sl.pr.SetResponse(sl.pr.a, p.Generated); sl.err != nil {
+				return
+			}
+			var fit Fit
+			if fit, sl.err = m.Fit(ctx, sl.pr); sl.err == nil {
+				sl.est = fit.Estimate()
+			}
+		})
+		for w := range batch {
+			sl := &slots[w]
+			if sl.err != nil {
+				return nil, fmt.Errorf("response sample %d: %w", s0+w, sl.err)
+			}
+			ens.Add(sl.est)
+		}
+	}
+	src := &Source{Name: SourceSimulation, Method: MethodDirichlet, Variance: ens.Variances(nil),
+		Precision: math.Sqrt(2 / float64(samples-1)), Samples: samples}
+	if full {
+		src.Covariance = ens.Covariance(nil)
+		for j := range nt {
+			for k := j; k < nt; k++ {
+				if !det[j] || !det[k] {
+					src.Covariance.SetSym(j, k, 0)
+				}
+			}
+		}
+	}
+	for j, d := range det {
+		if !d || src.Variance[j] < 0 {
+			src.Variance[j] = 0
+		}
+	}
+	return src, nil
+}
