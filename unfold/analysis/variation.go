@@ -347,7 +347,8 @@ func fixRegularisation(m unfold.Method, res *unfold.Result) unfold.Method {
 
 // varied unfolds the data of out with the change applied: the response
 // (built again when the change needs it), the background, the nominal
-// settings without an uncertainty and the regularisation m fixed. It
+// settings without an uncertainty computation (no covariance, no
+// sampled responses) and the regularisation m fixed. It
 // returns the estimate.
 func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSample, s *unfold.Settings, m unfold.Method, v *Variation, ch *Change, opt *Options) ([]float64, error) {
 	r := out.Response
@@ -366,7 +367,7 @@ func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSam
 		return nil, err
 	}
 	sv := *s
-	sv.Covariance = unfold.NoCovariance
+	sv.Covariance, sv.ResponseSamples = unfold.NoCovariance, 0 // the estimate alone
 	res, err := unfold.Unfold(ctx, p, &sv, m)
 	if err != nil {
 		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}
