@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -238,6 +239,33 @@ func TestBackgroundScaleShiftLinearised(t *testing.T) {
 	for i, v := range p.BackgroundVariance {
 		if want := out.Response.FakesSumW2[i] + out.backgrounds[0].Variance[i]; math.Abs(v-want) > 1e-12*(want+1) {
 			t.Errorf("reco bin %d: background variance %v, want Σw² %v", i, v, want)
+		}
+	}
+}
+
+// With the Tikhonov method a variation is unfolded at the nominal
+// result's tau (method.md §21 Systematic variations): a reweighting by
+// exactly 1 then moves no bin by more than rounding (a solve at the
+// fixed tau against the scan's choice).
+func TestVariationTikhonovFixedTau(t *testing.T) {
+	a := variationAnalysis(t, 0.05, "variations:\n  - {name: one, weight: \"1\"}\n")
+	a.Unfolding.Method, a.Unfolding.Iterations, a.Unfolding.TauCriterion = "tikhonov", 0, "correlation"
+	out, err := a.Run(context.Background(), nil, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res := out.Result
+	_, m, _ := a.Settings()
+	fixed := fixRegularisation(m, res)
+	ts, ok := fixed.(*tikhonov.Settings)
+	d, dok := res.Details.(*tikhonov.Details)
+	if !ok || !dok || ts.Tau != d.Tau || !(ts.Tau > 0) || ts.Criterion != tikhonov.LCurve || d.Criterion != "correlation" {
+		t.Fatalf("fixed method %+v, details %+v", fixed, res.Details)
+	}
+	src := res.Source("one")
+	for j, d := range src.Shift {
+		if math.Abs(d) > 1e-9*(math.Abs(res.Estimate[j])+1) {
+			t.Errorf("truth bin %d: shift %v of %v", j, d, res.Estimate[j])
 		}
 	}
 }
