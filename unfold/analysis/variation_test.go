@@ -3,6 +3,8 @@ package analysis
 import (
 	"context"
 	"encoding/json"
+	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -267,5 +269,26 @@ func TestVariationTikhonovFixedTau(t *testing.T) {
 		if math.Abs(d) > 1e-9*(math.Abs(res.Estimate[j])+1) {
 			t.Errorf("truth bin %d: shift %v of %v", j, d, res.Estimate[j])
 		}
+	}
+}
+
+// Dense source covariances that would not fit under the memory limit are
+// refused with the size (unfold.TooLargeError), before any variation is
+// unfolded; the nominal covariance fits.
+func TestVariationCovariancesTooLarge(t *testing.T) {
+	var v strings.Builder
+	v.WriteString("variations:\n")
+	for k := range 12 {
+		fmt.Fprintf(&v, "  - {name: norm%d, background_scale: 1.1}\n", k)
+	}
+	a := variationAnalysis(t, 0, v.String())
+	nt := int64(a.Truth.Len())
+	// Room for the nominal Jacobian and covariance (16·nt·2nr + 8·nt²),
+	// not for 13 more nt × nt matrices.
+	a.Unfolding.MemoryLimit = 16*nt*2*int64(a.Reco.Len()) + 8*nt*nt
+	_, err := a.Run(context.Background(), nil, false)
+	var tl *unfold.TooLargeError
+	if !errors.As(err, &tl) || tl.Bytes != 8*nt*nt*13 || !strings.Contains(err.Error(), "12 systematic sources") {
+		t.Fatalf("got %v", err)
 	}
 }
