@@ -270,7 +270,7 @@ func (a *Analysis) samples(ch *Change) []Sample {
 		switch ch.Kind {
 		case ChangeFiles:
 			s.File = ch.Files[i]
-			s.Field, s.Line = fmt.Sprintf("%s.files[%d]", ch.Field, i), ch.Line
+			s.FileField, s.Line = fmt.Sprintf("%s.files[%d]", ch.Field, i), ch.Line
 		case ChangeWeight:
 			w := ch.Weight
 			if s.Weight.Text != "" {

@@ -292,3 +292,13 @@ func TestVariationCovariancesTooLarge(t *testing.T) {
 		t.Fatalf("got %v", err)
 	}
 }
+
+// A missing file of an alternative simulation is reported at its key
+// before any event is read.
+func TestVariationMissingFile(t *testing.T) {
+	a := variationAnalysis(t, 0, "variations:\n  - {name: other, files: [nosuch.csv]}\n")
+	_, err := a.Run(context.Background(), nil, false)
+	if err == nil || !strings.Contains(err.Error(), "variations[0].files[0]") || strings.Contains(err.Error(), "files[0].file") {
+		t.Fatalf("got %v", err)
+	}
+}
