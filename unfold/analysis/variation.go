@@ -375,6 +375,16 @@ func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSam
 	return res.Estimate, nil
 }
 
+// checkSourceCovariances refuses, with the size, dense covariances of
+// the variations' sources that would not fit under the memory limit
+// (with covariance full only).
+func (a *Analysis) checkSourceCovariances(s *unfold.Settings) error {
+	if s.Covariance != unfold.Full || len(a.Variations) == 0 {
+		return nil
+	}
+	return unfold.CheckSourceCovariances(a.Truth.Len(), a.Reco.Len(), len(a.Variations), s.MemoryLimit)
+}
+
 // addVariations unfolds every variation and adds its source to
 // out.Result.
 func (a *Analysis) addVariations(ctx context.Context, out *Outcome, s *unfold.Settings, m unfold.Method, opt *Options) error {
@@ -383,10 +393,8 @@ func (a *Analysis) addVariations(ctx context.Context, out *Outcome, s *unfold.Se
 	}
 	res := out.Result
 	full := s.Covariance == unfold.Full
-	if full {
-		if err := unfold.CheckSourceCovariances(a.Truth.Len(), a.Reco.Len(), len(a.Variations), s.MemoryLimit); err != nil {
-			return err
-		}
+	if err := a.checkSourceCovariances(s); err != nil {
+		return err
 	}
 	fixed := fixRegularisation(m, res)
 	for k := range a.Variations {

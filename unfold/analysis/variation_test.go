@@ -273,8 +273,8 @@ func TestVariationTikhonovFixedTau(t *testing.T) {
 }
 
 // Dense source covariances that would not fit under the memory limit are
-// refused with the size (unfold.TooLargeError), before any variation is
-// unfolded; the nominal covariance fits.
+// refused with the size (unfold.TooLargeError), before the unfolding;
+// the nominal covariance alone would fit.
 func TestVariationCovariancesTooLarge(t *testing.T) {
 	var v strings.Builder
 	v.WriteString("variations:\n")
