@@ -14,6 +14,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -177,6 +178,9 @@ type Unfolding struct {
 	// Fakes is "background" (the simulation's fakes are part of the
 	// expected background, the default) or "ignore".
 	Fakes string
+	// NegativeCells ("refuse" or "clip") and Unexplained ("refuse" or
+	// "drop") are the remedies of unfold.Remedy.
+	NegativeCells, Unexplained string
 	// MemoryLimit in bytes; 0 means the kernel's default.
 	MemoryLimit int64
 }
@@ -200,6 +204,12 @@ type Output struct {
 	Formats        []string
 	Luminosity     float64
 	LuminosityUnit string
+	// RootSliceAxis is the axis the ROOT slice histograms run along
+	// ("" for the last axis of each region; see result.SlicesAlong).
+	RootSliceAxis string
+	// Derived lists the derived quantities of output.derived, checked
+	// against the truth binning.
+	Derived []*derive.Quantity
 }
 
 // Load reads, decodes and checks the analysis file at path. Problems in
@@ -313,7 +323,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	u := doc.Unfolding
 	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations.n, AutoIterations: u.Iterations.auto, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
 		Prior: u.Prior, Smoothing: u.Smoothing, Tau: u.Tau, TauCriterion: u.TauCriterion,
-		Penalty: u.Penalty, Widths: u.Widths, Bias: u.Bias, Background: u.Background, Fakes: u.Fakes}
+		Penalty: u.Penalty, Widths: u.Widths, Bias: u.Bias, Background: u.Background, Fakes: u.Fakes,
+		NegativeCells: u.NegativeCells, Unexplained: u.Unexplained}
 	if u.Iterations.auto && u.StopChi2 != 0 {
 		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "give either iterations (a number or auto) or stop_chi2, not both")
 	}
@@ -342,6 +353,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	c.oneOf(&a.Unfolding.Background, unfold.InModel.String(), names(unfold.BackgroundModes()), "unfolding", "background")
 	c.oneOf(&a.Unfolding.Fakes, "background", []string{"background", "ignore"}, "unfolding", "fakes")
+	c.oneOf(&a.Unfolding.NegativeCells, unfold.RefuseNegative.String(), names(unfold.NegativeCellsModes()), "unfolding", "negative_cells")
+	c.oneOf(&a.Unfolding.Unexplained, unfold.RefuseUnexplained.String(), names(unfold.UnexplainedModes()), "unfolding", "unexplained")
 	// A limit below one byte would truncate to 0, the kernel's default:
 	// refuse it (and an explicit 0) rather than silently use the default.
 	if m := u.MemoryLimit; m < 0 || math.IsNaN(m) || math.IsInf(m, 0) || m*(1<<30) >= math.MaxInt64 ||
@@ -401,6 +414,12 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		c.errf(c.line("output", "luminosity"), "result.luminosity", "must be a positive integrated luminosity")
 	}
 
+	if a.Output.RootSliceAxis = strings.TrimSpace(o.RootSliceAxis); a.Output.RootSliceAxis != "" && a.Truth != nil {
+		if _, err := result.SlicesAlong(a.Truth, a.Output.RootSliceAxis); err != nil {
+			c.errf(c.line("output", "root_slice_axis"), "output.root_slice_axis", "%v", err)
+		}
+	}
+	c.derived(a, o.Derived)
 	c.stress(a, doc.Validation.Stress)
 	if nodeAt(root, "compare") != nil {
 		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))
@@ -465,6 +484,8 @@ var settingKeys = map[string][]any{
 	"Bias":            {"unfolding", "bias"},
 	"Background":      {"unfolding", "background"},
 	"MemoryLimit":     {"unfolding", "memory_limit_gib"},
+	"NegativeCells":   {"unfolding", "negative_cells"},
+	"Unexplained":     {"unfolding", "unexplained"},
 	"Covariance":      {"uncertainty", "covariance"},
 	"DiagonalMethod":  {"uncertainty", "method"},
 	"Probes":          {"uncertainty", "probes"},

@@ -69,6 +69,14 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// SliceAxis names the axis along which the ROOT file's slice
+	// histograms run (see SlicesAlong); empty: the last axis of each
+	// region.
+	SliceAxis string `json:"root_slice_axis,omitempty"`
+	// Derived lists the derived quantities asked for (projections,
+	// densities, normalised shapes; see Derived), each written as its own
+	// table.
+	Derived []Derived `json:"derived,omitempty"`
 	// Comparison compares the result with a reference spectrum, when
 	// one was given.
 	Comparison *Comparison `json:"comparison,omitempty"`
@@ -155,6 +163,16 @@ type Result struct {
 	DataEvents   int64 `json:"data_events,omitempty"`
 	DataSelected int64 `json:"data_selected,omitempty"`
 	DataOutside  int64 `json:"data_outside,omitempty"`
+	// DataOutsideContent is the data content left out in flows the reco
+	// binning switches off, DataOutsideFraction its fraction of the data
+	// read; both absent when nothing was left out.
+	DataOutsideContent  *float64 `json:"data_outside_content,omitempty"`
+	DataOutsideFraction *float64 `json:"data_outside_fraction,omitempty"`
+	// Remedies lists what the remedies of the settings changed (clipped
+	// negative cells, dropped reco bins); absent when nothing.
+	Remedies *unfold.Remedies `json:"remedies,omitempty"`
+	// Warnings are notes on the inputs, one line each.
+	Warnings []string `json:"warnings,omitempty"`
 }
 
 // Source is one contribution to the uncertainty (see unfold.Source):
@@ -275,6 +293,10 @@ type Settings struct {
 	// for the other methods. The tau used is in the result's tikhonov.
 	Tau          float64 `json:"tau,omitempty"`
 	TauCriterion string  `json:"tau_criterion,omitempty"`
+	// NegativeCells ("clip") and Unexplained ("drop") are the remedies
+	// chosen; absent when refusing (the default).
+	NegativeCells string `json:"negative_cells,omitempty"`
+	Unexplained   string `json:"unexplained,omitempty"`
 	// Covariance is "none", "diag" or "full"; DiagonalMethod the method
 	// of "diag": "auto", "exact", "probes" or "toys".
 	Covariance     string `json:"covariance"`
@@ -361,6 +383,12 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 		m = (*bayes.Settings)(nil)
 	}
 	d := Settings{Method: m.Name(), Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
+	if z.NegativeCells != unfold.RefuseNegative {
+		d.NegativeCells = z.NegativeCells.String()
+	}
+	if z.Unexplained != unfold.RefuseUnexplained {
+		d.Unexplained = z.Unexplained.String()
+	}
 	switch m := m.(type) {
 	case *bayes.Settings:
 		b, err := m.Resolve()
@@ -563,6 +591,18 @@ func (r *Result) checkFinite() error {
 			}
 		}
 		if err := finiteRows(fmt.Sprintf("the covariance of source %q", src.Name), src.Covariance); err != nil {
+			return err
+		}
+	}
+	for _, d := range r.Derived {
+		for _, x := range [][]float64{d.Value, d.Uncertainty} {
+			for i, v := range x {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return fmt.Errorf("result: bin %d of the derived quantity %q is %v", i, d.Name, v)
+				}
+			}
+		}
+		if err := finiteRows(fmt.Sprintf("the covariance of the derived quantity %q", d.Name), d.Covariance); err != nil {
 			return err
 		}
 	}
