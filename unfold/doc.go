@@ -70,6 +70,14 @@
 // drivers record the per-bin variance of each in Result.StepVariance in
 // the same run.
 //
+// The uncertainty is kept by source (Result.Sources, added with
+// AddSource, which keeps the totals): the data's statistics, the
+// simulation's, and one source per systematic variation, built by
+// ShiftSource (a varied estimate minus the nominal one) or PairSource
+// (the half-difference of an up/down pair), whose covariance is the
+// outer product of the shift (method.md §21); CheckSourceCovariances
+// refuses dense source covariances above the memory limit.
+//
 // # Conventions
 //
 // Unfold returns errors for everything that depends on the inputs:

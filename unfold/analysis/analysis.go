@@ -98,6 +98,9 @@ type Sample struct {
 	Truth, Reco []Expression
 	Field       string // e.g. "simulation[0]", for messages
 	Line        int
+	// FileField names the key of File in messages when it is not
+	// Field + ".file" (a variation's alternative file).
+	FileField string
 }
 
 // DataKind says where the data come from.

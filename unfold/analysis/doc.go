@@ -24,6 +24,10 @@
 //	uncertainty   covariance none|diag|full, method, probes, toys, seed
 //	output        result folder, formats, integrated luminosity
 //	processing    worker goroutines and batch size
+//	variations    systematic variations: an alternative simulation, a
+//	              reweighting, a background scale or replaced reco
+//	              observables, alone or as an up/down pair; each unfolded
+//	              with the nominal settings into a source of uncertainty
 //
 // Decoding is strict: an unknown key, a value of the wrong type, an
 // unknown axis name or choice, or a missing required key is an *Error

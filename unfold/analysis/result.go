@@ -80,6 +80,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if err != nil {
 		return nil, err
 	}
+	if err := a.checkSourceCovariances(s); err != nil {
+		return nil, err
+	}
 	if a.Unfolding.AutoIterations {
 		if out.IterationsChosen, err = a.chooseIterations(ctx, p, s, m, opt); err != nil {
 			return nil, err

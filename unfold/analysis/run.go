@@ -130,7 +130,7 @@ func (a *Analysis) CheckInputs(sim, rest bool) error {
 // checkSample opens the events file of a simulated sample and compiles
 // its expressions against the file's columns.
 func (a *Analysis) checkSample(s *Sample) error {
-	src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
+	src, err := a.openEvents(s.File, s.Tree, s.fileField(), s.Line)
 	if err != nil {
 		return err
 	}
@@ -379,7 +379,7 @@ func (a *Analysis) eventsErr(field string, line int, err error) error {
 }
 
 func (a *Analysis) simulation(s *Sample) (*response.Simulation, closer, error) {
-	src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
+	src, err := a.openEvents(s.File, s.Tree, s.fileField(), s.Line)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -430,6 +430,14 @@ func (a *Analysis) simulation(s *Sample) (*response.Simulation, closer, error) {
 }
 
 type closer interface{ Close() error }
+
+// fileField names the key of the sample's events file in messages.
+func (s *Sample) fileField() string {
+	if s.FileField != "" {
+		return s.FileField
+	}
+	return s.Field + ".file"
+}
 
 // recoHistogram fills the reco scheme from an events file.
 func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file, tree, field string, line int, weight, sel Expression, obs []Expression, scale float64) (*response.Histogram, error) {

@@ -77,7 +77,9 @@ func ScaleSourceName(background string) string { return background + "-scale" }
 // variations checks the variations of the analysis file, and adds one
 // for the scale uncertainty of each background that has one.
 func (c *checker) variations(a *Analysis, docs []variationDoc) {
-	seen := map[string]int{unfold.SourceData: -1, unfold.SourceSimulation: -1}
+	// The statistical sources' names, and the columns of the breakdown
+	// tables, are taken.
+	seen := map[string]int{unfold.SourceData: -1, unfold.SourceSimulation: -1, "index": -2, "region": -2, "flow": -2, "total": -2}
 	for i, d := range docs {
 		f := fmt.Sprintf("variations[%d]", i)
 		v := Variation{Name: strings.TrimSpace(d.Name), Field: f, Line: c.line("variations", i)}
@@ -87,9 +89,12 @@ func (c *checker) variations(a *Analysis, docs []variationDoc) {
 		}
 		nameLine := c.line("variations", i, "name")
 		if first, dup := seen[v.Name]; dup {
-			if first < 0 {
+			switch first {
+			case -1:
 				c.errf(nameLine, f+".name", "%q is the name of a statistical source: choose another", v.Name)
-			} else {
+			case -2:
+				c.errf(nameLine, f+".name", "%q names a column of the breakdown tables: choose another", v.Name)
+			default:
 				c.errf(nameLine, f+".name", "%q is the name of the variation on line %d too: give each a name of its own", v.Name, first)
 			}
 			continue
@@ -265,7 +270,7 @@ func (a *Analysis) samples(ch *Change) []Sample {
 		switch ch.Kind {
 		case ChangeFiles:
 			s.File = ch.Files[i]
-			s.Field, s.Line = fmt.Sprintf("%s.files[%d]", ch.Field, i), ch.Line
+			s.FileField, s.Line = fmt.Sprintf("%s.files[%d]", ch.Field, i), ch.Line
 		case ChangeWeight:
 			w := ch.Weight
 			if s.Weight.Text != "" {
@@ -342,7 +347,8 @@ func fixRegularisation(m unfold.Method, res *unfold.Result) unfold.Method {
 
 // varied unfolds the data of out with the change applied: the response
 // (built again when the change needs it), the background, the nominal
-// settings without an uncertainty and the regularisation m fixed. It
+// settings without an uncertainty computation (no covariance, no
+// sampled responses) and the regularisation m fixed. It
 // returns the estimate.
 func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSample, s *unfold.Settings, m unfold.Method, v *Variation, ch *Change, opt *Options) ([]float64, error) {
 	r := out.Response
@@ -365,12 +371,22 @@ func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSam
 		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}
 	}
 	sv := *s
-	sv.Covariance = unfold.NoCovariance
+	sv.Covariance, sv.ResponseSamples = unfold.NoCovariance, 0 // the estimate alone
 	res, err := unfold.Unfold(ctx, p, &sv, m)
 	if err != nil {
 		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}
 	}
 	return res.Estimate, nil
+}
+
+// checkSourceCovariances refuses, with the size, dense covariances of
+// the variations' sources that would not fit under the memory limit
+// (with covariance full only).
+func (a *Analysis) checkSourceCovariances(s *unfold.Settings) error {
+	if s.Covariance != unfold.Full || len(a.Variations) == 0 {
+		return nil
+	}
+	return unfold.CheckSourceCovariances(a.Truth.Len(), a.Reco.Len(), len(a.Variations), s.MemoryLimit)
 }
 
 // addVariations unfolds every variation and adds its source to
@@ -381,10 +397,8 @@ func (a *Analysis) addVariations(ctx context.Context, out *Outcome, s *unfold.Se
 	}
 	res := out.Result
 	full := s.Covariance == unfold.Full
-	if full {
-		if err := unfold.CheckSourceCovariances(a.Truth.Len(), a.Reco.Len(), len(a.Variations), s.MemoryLimit); err != nil {
-			return err
-		}
+	if err := a.checkSourceCovariances(s); err != nil {
+		return err
 	}
 	fixed := fixRegularisation(m, res)
 	for k := range a.Variations {

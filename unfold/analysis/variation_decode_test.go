@@ -67,6 +67,7 @@ func TestDecodeVariationErrors(t *testing.T) {
 		{"  - name: a\n    weight: \"1\"\n    background_scale: 1.1\n", `testdata/bad.yaml:33: variations[0].background_scale: give one change per variation (weight and background_scale given)`},
 		{"  - name: a\n    weight: \"1\"\n  - name: a\n    weight: \"2\"\n", `testdata/bad.yaml:33: variations[1].name: "a" is the name of the variation on line 31 too`},
 		{"  - name: data\n    weight: \"1\"\n", `testdata/bad.yaml:31: variations[0].name: "data" is the name of a statistical source`},
+		{"  - name: total\n    weight: \"1\"\n", `testdata/bad.yaml:31: variations[0].name: "total" names a column of the breakdown tables`},
 		{"  - name: other-scale\n    weight: \"1\"\n", `testdata/bad.yaml:24: backgrounds[0].scale_uncertainty: its source of uncertainty is named "other-scale", the name of a variation (line 31) too`},
 		{"  - name: a\n    background_scale: .inf\n", `testdata/bad.yaml:32: variations[0].background_scale: must be a finite number > 0`},
 		{"  - name: a\n    background_scale: .nan\n", `testdata/bad.yaml:32: variations[0].background_scale: must be a finite number > 0`},

@@ -3,6 +3,8 @@ package analysis
 import (
 	"context"
 	"encoding/json"
+	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -11,6 +13,7 @@ import (
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/tikhonov"
 	"github.com/desmear/desmear/unfold/result"
 )
 
@@ -239,5 +242,63 @@ func TestBackgroundScaleShiftLinearised(t *testing.T) {
 		if want := out.Response.FakesSumW2[i] + out.backgrounds[0].Variance[i]; math.Abs(v-want) > 1e-12*(want+1) {
 			t.Errorf("reco bin %d: background variance %v, want Σw² %v", i, v, want)
 		}
+	}
+}
+
+// With the Tikhonov method a variation is unfolded at the nominal
+// result's tau (method.md §21 Systematic variations): a reweighting by
+// exactly 1 then moves no bin by more than rounding (a solve at the
+// fixed tau against the scan's choice).
+func TestVariationTikhonovFixedTau(t *testing.T) {
+	a := variationAnalysis(t, 0.05, "variations:\n  - {name: one, weight: \"1\"}\n")
+	a.Unfolding.Method, a.Unfolding.Iterations, a.Unfolding.TauCriterion = "tikhonov", 0, "correlation"
+	out, err := a.Run(context.Background(), nil, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res := out.Result
+	_, m, _ := a.Settings()
+	fixed := fixRegularisation(m, res)
+	ts, ok := fixed.(*tikhonov.Settings)
+	d, dok := res.Details.(*tikhonov.Details)
+	if !ok || !dok || ts.Tau != d.Tau || !(ts.Tau > 0) || ts.Criterion != tikhonov.LCurve || d.Criterion != "correlation" {
+		t.Fatalf("fixed method %+v, details %+v", fixed, res.Details)
+	}
+	src := res.Source("one")
+	for j, d := range src.Shift {
+		if math.Abs(d) > 1e-9*(math.Abs(res.Estimate[j])+1) {
+			t.Errorf("truth bin %d: shift %v of %v", j, d, res.Estimate[j])
+		}
+	}
+}
+
+// Dense source covariances that would not fit under the memory limit are
+// refused with the size (unfold.TooLargeError), before the unfolding;
+// the nominal covariance alone would fit.
+func TestVariationCovariancesTooLarge(t *testing.T) {
+	var v strings.Builder
+	v.WriteString("variations:\n")
+	for k := range 12 {
+		fmt.Fprintf(&v, "  - {name: norm%d, background_scale: 1.1}\n", k)
+	}
+	a := variationAnalysis(t, 0, v.String())
+	nt := int64(a.Truth.Len())
+	// Room for the nominal Jacobian and covariance (16·nt·2nr + 8·nt²),
+	// not for 13 more nt × nt matrices.
+	a.Unfolding.MemoryLimit = 16*nt*2*int64(a.Reco.Len()) + 8*nt*nt
+	_, err := a.Run(context.Background(), nil, false)
+	var tl *unfold.TooLargeError
+	if !errors.As(err, &tl) || tl.Bytes != 8*nt*nt*13 || !strings.Contains(err.Error(), "12 systematic sources") {
+		t.Fatalf("got %v", err)
+	}
+}
+
+// A missing file of an alternative simulation is reported at its key
+// before any event is read.
+func TestVariationMissingFile(t *testing.T) {
+	a := variationAnalysis(t, 0, "variations:\n  - {name: other, files: [nosuch.csv]}\n")
+	_, err := a.Run(context.Background(), nil, false)
+	if err == nil || !strings.Contains(err.Error(), "variations[0].files[0]") || strings.Contains(err.Error(), "files[0].file") {
+		t.Fatalf("got %v", err)
 	}
 }

@@ -24,15 +24,18 @@ type Plot struct {
 // Plots returns the figures of r on the truth scheme s (nil for none):
 // with a truth binning one spectrum per slice (the estimate as a
 // density per unit bin volume, against the simulation truth and the
-// prior scaled to the estimate's total, with their ratio below); the
-// efficiency, purity and stability per truth bin; the data against the
-// folded expectation with the pulls; the iteration history; the
-// response and the correlation as heat maps (up to MaxHeatBins bins).
+// prior scaled to the estimate's total, with their ratio below); with
+// more than one source the uncertainty breakdown by source (per slice
+// with a truth binning); the efficiency, purity and stability per truth
+// bin; the data against the folded expectation with the pulls; the
+// iteration history; the response and the correlation as heat maps (up
+// to MaxHeatBins bins).
 func Plots(r *Result, s *binning.Scheme) []Plot {
 	var plots []Plot
 	if s != nil && s.Len() == len(r.Estimate) {
 		plots = append(plots, spectrumPlots(r, s)...)
 	}
+	plots = append(plots, breakdownPlots(r, s)...)
 	plots = append(plots, efficiencyPlot(r, s))
 	if p, ok := foldedPlot(r); ok {
 		plots = append(plots, p)
@@ -143,7 +146,7 @@ func spectrumPlots(r *Result, s *binning.Scheme) []Plot {
 		}
 		plots = append(plots, Plot{
 			Name:    "spectrum_" + reg.Name() + sl.Suffix(s),
-			Caption: "Unfolded spectrum, " + sl.Name(s) + ", with its data-statistical uncertainty, against " + against + " scaled to the same total.",
+			Caption: "Unfolded spectrum, " + sl.Name(s) + ", with its " + uncertaintyWord(r) + " uncertainty, against " + against + " scaled to the same total.",
 			Figure:  &figure.Chart{Title: sl.Name(s), XLabel: axisLabel(last.Name(), last.Unit()), XMin: sl.Edges[0], XMax: sl.Edges[len(sl.Edges)-1], Panels: panels},
 		})
 	}
@@ -324,8 +327,17 @@ func correlationPlot(r *Result, s *binning.Scheme) (Plot, bool) {
 	b := truthBounds(r, s)
 	return Plot{
 		Name:    "correlation",
-		Caption: "Correlation matrix of the estimate (data-statistical), in global-index order; the lines mark the slices and the flow bins.",
+		Caption: "Correlation matrix of the estimate (" + uncertaintyWord(r) + "), in global-index order; the lines mark the slices and the flow bins.",
 		Figure: &figure.Heat{Title: "Correlation matrix", XLabel: "truth bin (global index)", YLabel: "truth bin (global index)", ZLabel: "correlation",
 			Z: r.Correlation(), Min: -1, Max: 1, XBounds: b, YBounds: b},
 	}, true
+}
+
+// uncertaintyWord names the uncertainty of r in captions:
+// "data-statistical" with the data's source alone, "total" otherwise.
+func uncertaintyWord(r *Result) string {
+	if len(r.Sources) > 1 {
+		return "total"
+	}
+	return "data-statistical"
 }
