@@ -13,7 +13,7 @@ import (
 // printChecks prints the checks of a result document r written to dir
 // (both modes, whatever the size): the folded chi-square, the truth bins
 // not determined or poorly measured, the clipped reco bins and where the
-// diagnostic tables are among files.
+// diagnostic tables and the derived quantities' tables are among files.
 func printChecks(w io.Writer, dir string, r *result.Result, files []string) {
 	c := r.Check()
 	if c.HasData {
@@ -41,6 +41,15 @@ func printChecks(w io.Writer, dir string, r *result.Result, files []string) {
 	}
 	if len(diag) > 0 {
 		fmt.Fprintf(w, "diagnostics: %s\n", strings.Join(diag, ", "))
+	}
+	var derived []string
+	for _, d := range r.Derived {
+		if slices.Contains(files, d.File) {
+			derived = append(derived, filepath.Join(dir, d.File))
+		}
+	}
+	if len(derived) > 0 {
+		fmt.Fprintf(w, "derived: %s\n", strings.Join(derived, ", "))
 	}
 }
 

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -27,5 +28,27 @@ func TestPlainChecks(t *testing.T) {
 		if !strings.Contains(stdout, want) {
 			t.Errorf("stdout lacks %q:\n%s", want, stdout)
 		}
+	}
+}
+
+// The summary of an analysis with derived quantities names their
+// tables.
+func TestDerivedSummary(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(src), "  folder: result\n", "  folder: result\n  derived:\n    - {name: pt, region: central, kind: shape, per_slice: [y]}\n", 1)
+	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path, "--no-report")
+	if code != 0 {
+		t.Fatalf("exit %d\n%s", code, stderr)
+	}
+	want := "derived: " + filepath.Join(filepath.Dir(path), "result", "derived-pt.csv") + "\n"
+	if !strings.Contains(stdout, want) {
+		t.Errorf("stdout lacks %q:\n%s", want, stdout)
 	}
 }

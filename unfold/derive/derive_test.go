@@ -402,3 +402,81 @@ func TestSpecErrors(t *testing.T) {
 		t.Error("an unknown kind accepted")
 	}
 }
+
+// TestEdgesByBin checks a triple-differential region whose pt edges
+// depend on the y bin: the projection onto (y, pt) summing the mass is
+// the hand sum over the in-range mass bins of each (y, pt) bin (found by
+// the reverse lookup Scheme.Bin), the shape per y slice sums to one in
+// each slice with its covariance equal to gonum's D cov Dᵀ and with the
+// ones of each slice in its kernel (method.md §23 Derived quantities);
+// summing over y while keeping pt, and slicing by pt without y, are
+// refused.
+func TestEdgesByBin(t *testing.T) {
+	s, err := binning.ReadFile("../../testdata/scheme3d.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := s.Len()
+	rng := rand.New(rand.NewPCG(3, 3))
+	mu := make([]float64, n)
+	for g := range mu {
+		mu[g] = 1 + 9*rng.Float64()
+	}
+	q, err := New(s, Spec{Name: "ypt", Region: "signal", Axes: []string{"y", "pt"}}, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// y0 has 3 pt bins and y1 two.
+	if q.Len() != 5 {
+		t.Fatalf("%d bins; want 5", q.Len())
+	}
+	want := make([]float64, 5)
+	first := []int{0, 3}
+	for g := range n {
+		b := s.Bin(g)
+		if b.RegionName != "signal" || b.Flow {
+			continue
+		}
+		want[first[b.Index[0]]+b.Index[1]] += mu[g]
+	}
+	got := q.Value(make([]float64, 5), mu)
+	for i := range want {
+		if math.Abs(got[i]-want[i]) > 1e-12*want[i] {
+			t.Errorf("projection bin %d: %v; want %v", i, got[i], want[i])
+		}
+	}
+	sh, err := New(s, Spec{Name: "shape", Region: "signal", Kind: Shape, Axes: []string{"y", "pt"}, PerSlice: []string{"y"}}, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	y := sh.Value(make([]float64, 5), mu)
+	if a, b := y[0]+y[1]+y[2], y[3]+y[4]; math.Abs(a-1) > 1e-14 || math.Abs(b-1) > 1e-14 {
+		t.Errorf("slices sum to %v and %v", a, b)
+	}
+	cov := randomCov(n, rng)
+	c := sh.Covariance(nil, mu, cov)
+	d := sh.Jacobian(mu).Dense()
+	var dc, ref mat.Dense
+	dc.Mul(d, cov)
+	ref.Mul(&dc, d.T())
+	for i := range 5 {
+		for j := range 5 {
+			if math.Abs(c.At(i, j)-ref.At(i, j)) > 1e-12*mat.Max(&ref) {
+				t.Errorf("shape covariance (%d,%d): %v; D cov Dᵀ %v", i, j, c.At(i, j), ref.At(i, j))
+			}
+		}
+		if k0, k1 := c.At(i, 0)+c.At(i, 1)+c.At(i, 2), c.At(i, 3)+c.At(i, 4); math.Abs(k0) > 1e-13*mat.Max(&ref) || math.Abs(k1) > 1e-13*mat.Max(&ref) {
+			t.Errorf("row %d: slice sums %g, %g; want 0", i, k0, k1)
+		}
+	}
+	for _, sp := range []Spec{
+		{Name: "pt", Region: "signal", Axes: []string{"pt"}},
+		{Name: "s", Region: "signal", Kind: Shape, Axes: []string{"y", "pt"}, PerSlice: []string{"pt"}},
+	} {
+		if _, err := New(s, sp, 0); err == nil {
+			t.Errorf("%s accepted", sp.Name)
+		} else if se, ok := err.(*SpecError); !ok || (sp.Name == "pt") != (se.Field == "axes") {
+			t.Errorf("%s: %v", sp.Name, err)
+		}
+	}
+}

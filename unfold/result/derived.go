@@ -88,10 +88,10 @@ func NewDerived(q *derive.Quantity, est []float64, cov mat.Symmetric) Derived {
 		}
 	}
 	d.CovarianceFile = DerivedCovarianceFile(sp.Name)
-	d.Note = "first-order propagation D Cov Dᵀ of the full covariance of the estimate"
+	d.Note = "exact linear propagation D Cov Dᵀ of the full covariance of the estimate"
 	if q.Singular() {
 		d.SingularCovariance = true
-		d.Note += "; singular by construction (each normalisation group sums to one): do not invert it"
+		d.Note = "first-order propagation D Cov Dᵀ of the full covariance of the estimate; singular by construction (each normalisation group sums to one): do not invert it"
 	}
 	return d
 }
