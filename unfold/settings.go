@@ -252,9 +252,15 @@ type Settings struct {
 	// Seed seeds the probes, toys and samples. Equal seeds give equal
 	// bits (see Streams).
 	Seed uint64
-	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance and
-	// the probe vectors held at once (zero means DefaultMemoryLimit).
+	// MemoryLimit bounds, in bytes, the dense Jacobian and covariance,
+	// and (within half of it) the probes of a batch with their buffers
+	// or the toys run at once (zero means DefaultMemoryLimit).
 	MemoryLimit int64
+
+	// NegativeCells and Unexplained are the remedies Remedy applies
+	// before the unfolding (zero: refuse).
+	NegativeCells NegativeCells
+	Unexplained   Unexplained
 }
 
 // Resolve checks s (nil means the zero value) and returns it with the
@@ -279,6 +285,10 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"Covariance", "unknown mode"}
 	case r.DiagonalMethod < 0 || int(r.DiagonalMethod) >= len(diagonalNames):
 		return r, &SettingsError{"DiagonalMethod", "unknown method"}
+	case r.NegativeCells < 0 || int(r.NegativeCells) >= len(negativeEnum.Names):
+		return r, &SettingsError{"NegativeCells", "unknown remedy"}
+	case r.Unexplained < 0 || int(r.Unexplained) >= len(unexplainedEnum.Names):
+		return r, &SettingsError{"Unexplained", "unknown remedy"}
 	case r.ResponseSamples < 0 || r.ResponseSamples == 1:
 		return r, &SettingsError{"ResponseSamples", "must be 0 (no sampling) or at least 2"}
 	case r.ResponseSamples > 0 && r.Covariance == NoCovariance:

@@ -83,11 +83,12 @@ func gammaData(m *Prepared, prior SamplingPrior, seed uint64, t int, n, b []floa
 // its steps whose runners report them (StepToyRunner), of the estimate
 // of every step (nil otherwise). Toys run concurrently, one runner per
 // goroutine; their results are accumulated in toy order (Welford's
-// update), so the bits do not depend on the scheduling.
+// update), so the bits do not depend on the scheduling. At most
+// maxWorkers toys run at once.
 //
 // draw fills the pseudo-data of toy t (toyData or gammaData).
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64)) ([]float64, [][]float64, error) {
-	workers := min(runtime.GOMAXPROCS(0), toys)
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64), maxWorkers int) ([]float64, [][]float64, error) {
+	workers := max(1, min(runtime.GOMAXPROCS(0), toys, maxWorkers))
 	type slot struct {
 		run   ToyRunner
 		n, b  []float64

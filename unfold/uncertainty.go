@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"runtime"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -15,6 +16,26 @@ type plan struct {
 	method CovarianceMode
 	diag   DiagonalMethod // resolved: DiagonalExact, DiagonalProbes, DiagonalToys or DiagonalGamma
 	batch  int            // probes per batch
+	// toyWorkers bounds the toys run at once (their memory within half
+	// the limit).
+	toyWorkers int
+}
+
+// FullCovarianceBytes returns the memory estimate of the full covariance
+// of p under s (the dense Jacobian, two buffers, and the covariance
+// matrix: 16 bytes per truth bin and Jacobian column plus 8 per pair of
+// truth bins), the figure Unfold compares with the memory limit; 0 when s
+// does not ask for the full covariance. The background variance adds a
+// column per reco bin when it is propagated (background in the model).
+// It lets a caller state the memory before the computation starts.
+func FullCovarianceBytes(p *Problem, s *Settings) (int64, error) {
+	rs, err := s.Resolve()
+	if err != nil || rs.Covariance != Full || p.Migrations == nil {
+		return 0, err
+	}
+	nr, nt := p.Migrations.Dims()
+	varB := p.BackgroundVariance != nil && rs.Background == InModel
+	return denseBytes(nt, columns(nr, varB), true), nil
 }
 
 // planUncertainty chooses the computation of rs for m and refuses, with a
@@ -53,18 +74,44 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 			}
 		}
 	}
-	if pl.diag == DiagonalProbes {
-		per := ProbeBytes(m)
-		if per > rs.MemoryLimit/2 {
+	switch pl.diag {
+	case DiagonalProbes:
+		per, fixed := ProbeBytes(m), probeOverhead(m)
+		if 2*(per+fixed) > rs.MemoryLimit {
 			return nil, &TooLargeError{
-				What: "one random probe (probes run in batches within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
-				Bytes: 2 * per, Limit: rs.MemoryLimit,
+				What: "one random probe and the buffers of a batch (probes run in batches within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
+				Bytes: 2 * (per + fixed), Limit: rs.MemoryLimit,
 				Alternative: "use Poisson toys for the per-bin variances, or raise the memory limit",
 			}
 		}
-		pl.batch = probeBatch(rs.Probes, min(rs.MemoryLimit/2, ProbeBatchBytes), per)
+		pl.batch = probeBatch(rs.Probes, min(rs.MemoryLimit/2, ProbeBatchBytes)-fixed, per)
+	case DiagonalToys, DiagonalGamma:
+		per := toyBytes(m)
+		if 2*per > rs.MemoryLimit {
+			return nil, &TooLargeError{
+				What: "one Poisson toy or Gamma sample (they run at once within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
+				Bytes: 2 * per, Limit: rs.MemoryLimit,
+				Alternative: "use random probes for the per-bin variances, or raise the memory limit",
+			}
+		}
+		pl.toyWorkers = int(min(int64(runtime.GOMAXPROCS(0)), rs.MemoryLimit/2/per))
 	}
 	return pl, nil
+}
+
+// probeOverhead is the memory a batch of probes holds besides its
+// probes (ProbeBytes each): a block of reco tangents and a few reco
+// vectors of the method, the standard deviations and the sum of the
+// variances.
+func probeOverhead(m *Prepared) int64 {
+	return 8*int64(m.nr)*(ProbeBlock+6) + 8*int64(m.nt)*2
+}
+
+// toyBytes is the memory estimate of one toy run at a time: the
+// pseudo-data and the runner's copy of the iteration's vectors (about
+// eight truth and eight reco vectors), and its share of the ensembles.
+func toyBytes(m *Prepared) int64 {
+	return 8 * (10*int64(m.nr) + 12*int64(m.nt))
 }
 
 // probeBatch returns the probes per batch for probes of per bytes within
@@ -174,7 +221,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 			st = Stream{"gamma-sample", gammaStream}
 		}
 		res.Streams = append(res.Streams, st)
-		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers)
 		if err != nil {
 			return err
 		}

@@ -42,6 +42,12 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 // progress bar on stderr when it is a terminal. It returns the analysis
 // and what the run produced.
 func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, noReport bool) (*analysis.Analysis, *analysis.Outcome, error) {
+	return runAnalysisWith(ctx, g, path, replace, noReport, &analysis.Options{})
+}
+
+// runAnalysisWith is runAnalysis with the options opt (the progress and
+// the version are filled in here).
+func runAnalysisWith(ctx context.Context, g *globalOptions, path string, replace, noReport bool, opt *analysis.Options) (*analysis.Analysis, *analysis.Outcome, error) {
 	a, err := analysis.Load(path)
 	if err != nil {
 		return nil, nil, analysisErr(err)
@@ -61,13 +67,20 @@ func runAnalysis(ctx context.Context, g *globalOptions, path string, replace, no
 	p := newProgress(g)
 	defer p.finish()
 	start := time.Now()
-	out, err := a.Run(ctx, &analysis.Options{Progress: p.report, Version: version}, replace)
+	opt.Progress, opt.Version = p.report, version
+	out, err := a.Run(ctx, opt, replace)
 	p.finish()
 	if err != nil {
 		return nil, nil, analysisErr(err)
 	}
+	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
+	printWarnings(g, out.Warnings)
 	if !g.quiet {
-		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", path, time.Since(start).Seconds())
+		shown := path
+		if opt.Staged != "" {
+			shown = filepath.Join(opt.Final, filepath.Base(path))
+		}
+		fmt.Fprintf(g.stderr, "desmear: analysis %s done in %.1f s\n", shown, time.Since(start).Seconds())
 	}
 	return a, out, nil
 }
@@ -180,4 +193,15 @@ func printOutcome(w io.Writer, a *analysis.Analysis, out *analysis.Outcome) {
 	}
 	tw.Flush()
 	printComparison(w, out.Document, a.Truth)
+}
+
+// printWarnings prints the warnings on the inputs on stderr, one line
+// each.
+func printWarnings(g *globalOptions, warnings []string) {
+	if g.quiet {
+		return
+	}
+	for _, w := range warnings {
+		fmt.Fprintf(g.stderr, "desmear: warning: %s\n", w)
+	}
 }

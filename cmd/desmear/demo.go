@@ -7,7 +7,6 @@ import (
 	"io"
 	"io/fs"
 	"math"
-	"os"
 	"strings"
 	"time"
 
@@ -84,24 +83,29 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	}
 	start := time.Now()
 	fmt.Fprintf(diag, "desmear demo: generating %d simulated events and the pseudo-data (seed %d) into %s\n", o.events, o.seed, o.out)
-	in, err := demo.Generate(ctx, o.out, demo.Config{Events: o.events, Seed: o.seed}, o.force)
+	// The inputs and the result are written in one temporary folder,
+	// installed whole at the end: an earlier demo folder stays intact
+	// until then, and an interrupted or failed run leaves nothing.
+	st, err := demo.Stage(ctx, o.out, demo.Config{Events: o.events, Seed: o.seed}, o.force)
 	if err != nil {
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
 		return demoFolderErr(err, o.out)
 	}
+	defer st.Abort()
+	in := st.Inputs
 	fmt.Fprintf(diag, "desmear demo: inputs written in %.1f s; running %s\n", time.Since(start).Seconds(), in.Path(demo.AnalysisFile))
 	t1 := time.Now()
-	_, out, err := runAnalysis(ctx, g, in.Path(demo.AnalysisFile), false, o.noReport)
+	_, out, err := runAnalysisWith(ctx, g, st.Path(demo.AnalysisFile), false, o.noReport, &analysis.Options{Staged: st.Dir(), Final: in.Dir})
 	if err != nil {
 		if ctx.Err() != nil {
-			// Interrupted while unfolding: the inputs this run generated are
-			// removed too, so that an interrupted demo leaves no result.
-			os.RemoveAll(in.Dir)
 			return ctx.Err()
 		}
 		return err
+	}
+	if err := st.Commit(); err != nil {
+		return demoFolderErr(err, o.out)
 	}
 	fmt.Fprintf(diag, "desmear demo: analysis done in %.1f s (total %.1f s)\n", time.Since(t1).Seconds(), time.Since(start).Seconds())
 	res := out.Result

@@ -224,6 +224,7 @@ func runResponse(ctx context.Context, g *globalOptions, o *responseOptions, path
 	if err != nil {
 		return analysisErr(err)
 	}
+	printWarnings(g, a.ResponseWarnings(r))
 	if err := r.Save(out, *info, o.force); err != nil {
 		return refusedFolder(err, out, "response bundle", response.BundleFiles()[0])
 	}

@@ -2,9 +2,18 @@ package main
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"io/fs"
+	stdmaps "maps"
+	"math"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -320,4 +329,211 @@ func TestUnreadableColumnNamed(t *testing.T) {
 	os.WriteFile(path, []byte(bad), 0o644)
 	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
 	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
+}
+
+// treeSums returns the SHA-256 of every file under dir by its relative
+// path.
+func treeSums(t *testing.T, dir string) map[string]string {
+	t.Helper()
+	sums := map[string]string{}
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		rel, _ := filepath.Rel(dir, p)
+		h := sha256.Sum256(b)
+		sums[rel] = hex.EncodeToString(h[:])
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return sums
+}
+
+// desmear demo --force over an earlier demo folder that cannot be
+// removed whole is an error (one line, exit 5) that leaves the earlier
+// folder byte-identical and nothing beside it; a replacement that can go
+// ahead installs inputs and result together (common practice: an
+// immutable file cannot be unlinked, even by root).
+func TestDemoForceWithoutLoss(t *testing.T) {
+	parent := t.TempDir()
+	out := filepath.Join(parent, "demo")
+	args := []string{"demo", "--out", out, "--events", "20000", "--no-report", "-q"}
+	if code, _, stderr := runCLI(t, context.Background(), args...); code != 0 {
+		t.Fatalf("demo: exit %d, %s", code, stderr)
+	}
+	before := treeSums(t, out)
+	stuck := filepath.Join(out, "result", "result.csv")
+	if os.Geteuid() == 0 {
+		if msg, err := exec.Command("chattr", "+i", stuck).CombinedOutput(); err != nil {
+			t.Skipf("running as root and chattr +i is not available here (%v: %s)", err, msg)
+		}
+		t.Cleanup(func() { exec.Command("chattr", "-i", stuck).Run() })
+	} else {
+		os.Chmod(filepath.Join(out, "result"), 0o555)
+		t.Cleanup(func() { os.Chmod(filepath.Join(out, "result"), 0o755) })
+	}
+	code, stdout, stderr := runCLI(t, context.Background(), append(args, "--force", "--seed", "5")...)
+	checkRefusal(t, "demo --force over an unremovable folder", code, stdout, stderr, exitIO, "cannot be removed", "")
+	if after := treeSums(t, out); !stdmaps.Equal(before, after) {
+		t.Errorf("the earlier demo folder changed after the refused replacement")
+	}
+	if entries, _ := os.ReadDir(parent); len(entries) != 1 {
+		t.Errorf("beside the demo folder after the refusal: %v", entries)
+	}
+	if os.Geteuid() == 0 {
+		exec.Command("chattr", "-i", stuck).Run()
+	} else {
+		os.Chmod(filepath.Join(out, "result"), 0o755)
+	}
+	if code, _, stderr := runCLI(t, context.Background(), append(args, "--force", "--seed", "5")...); code != 0 {
+		t.Fatalf("demo --force: exit %d, %s", code, stderr)
+	}
+	after := treeSums(t, out)
+	if after["result/result.json"] == "" || after["analysis.yaml"] == "" || after["result/result.json"] == before["result/result.json"] {
+		t.Errorf("demo --force did not install new inputs and a new result together")
+	}
+	if entries, _ := os.ReadDir(parent); len(entries) != 1 {
+		t.Errorf("beside the demo folder after the replacement: %v", entries)
+	}
+	if b, _ := os.ReadFile(filepath.Join(out, "result", "result.json")); strings.Contains(string(b), "partial") {
+		t.Errorf("result.json names the temporary folder")
+	}
+}
+
+// The unexplained-data remedy through the command, on plain tables: 5
+// reco × 2 truth bins, reco bins 3 and 4 reached by no truth bin and
+// holding 5 and 2 of the 34 counts. Refused by default, the message
+// naming every such bin with its count and the fraction of the data;
+// with --unexplained drop the result records the dropped bins and
+// equals, bit for bit, the result of the data table edited by hand
+// (common practice: dropping unreachable bins, checked against the
+// problem edited by hand).
+func TestUnexplainedThroughCommand(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, content string) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	resp := write("r.csv", "reco,truth,value\n0,0,10\n1,0,4\n0,1,2\n1,1,8\n2,1,3\n")
+	gen := write("g.csv", "truth,value\n0,20\n1,20\n")
+	data := write("n.csv", "reco,value\n0,12\n1,12\n2,3\n3,5\n4,2\n")
+	dataHand := write("nh.csv", "reco,value\n0,12\n1,12\n2,3\n3,0\n4,0\n")
+	args := func(n, out string, more ...string) []string {
+		return append([]string{"unfold", "--response", resp, "--generated", gen, "--data", n, "--iterations", "3", "--out", filepath.Join(dir, out)}, more...)
+	}
+	ctx := context.Background()
+	code, stdout, stderr := runCLI(t, ctx, args(data, "refused")...)
+	// 7 of the 34 counts, 20.6% (by hand).
+	checkRefusal(t, "unexplained data", code, stdout, stderr, exitInput, "2 reco bins hold data that no truth bin reaches and no background explains, 7 in all (20.6% of the data): reco bin 3: 5, reco bin 4: 2", filepath.Join(dir, "refused"))
+	if !strings.Contains(stderr, "--unexplained drop") || !strings.Contains(stderr, "n.csv:5:") {
+		t.Errorf("the refusal does not name the flag and the first line: %q", stderr)
+	}
+	code, _, stderr = runCLI(t, ctx, args(data, "remedied", "--unexplained", "drop")...)
+	if code != 0 {
+		t.Fatalf("with the remedy: exit %d, %s", code, stderr)
+	}
+	if want := "dropped the data of 2 reco bins that no truth bin reaches, 7 in all (20.6% of the data): 3: 5, 4: 2"; !strings.Contains(stderr, want) {
+		t.Errorf("stderr %q, want %q", stderr, want)
+	}
+	if code, _, stderr := runCLI(t, ctx, args(dataHand, "by-hand")...); code != 0 {
+		t.Fatalf("the data edited by hand: exit %d, %s", code, stderr)
+	}
+	var got, want remediedResult
+	readJSON(t, filepath.Join(dir, "remedied", "result.json"), &got)
+	readJSON(t, filepath.Join(dir, "by-hand", "result.json"), &want)
+	if !slices.Equal(got.Estimate, want.Estimate) || !slices.Equal(got.Uncertainty, want.Uncertainty) {
+		t.Errorf("remedied estimate %v ± %v, by hand %v ± %v", got.Estimate, got.Uncertainty, want.Estimate, want.Uncertainty)
+	}
+	if got.Settings.Unexplained != "drop" || want.Remedies != nil {
+		t.Errorf("settings recorded %+v; by-hand remedies %+v", got.Settings, want.Remedies)
+	}
+	if r := got.Remedies; r == nil || r.DroppedCount != 7 || r.DroppedFraction != 7.0/34 || len(r.DroppedBins) != 2 {
+		t.Errorf("remedies recorded %+v, want bins 3 and 4, 7 counts, 7/34 of the data", got.Remedies)
+	}
+}
+
+// remediedResult is the part of result.json the remedy tests read.
+type remediedResult struct {
+	Estimate    []float64 `json:"estimate"`
+	Uncertainty []float64 `json:"uncertainty"`
+	Settings    struct {
+		NegativeCells string `json:"negative_cells"`
+		Unexplained   string `json:"unexplained"`
+	} `json:"settings"`
+	Remedies *struct {
+		ClippedCells []struct {
+			Reco, Truth int
+			Value       float64
+		} `json:"clipped_cells"`
+		ClippedWeight   float64 `json:"clipped_weight"`
+		DroppedBins     []any   `json:"dropped_bins"`
+		DroppedCount    float64 `json:"dropped_count"`
+		DroppedFraction float64 `json:"dropped_fraction"`
+	} `json:"remedies"`
+}
+
+// The negative-cell remedy through an analysis file whose simulated
+// events from |y| < 1 that are reconstructed at |y| > 1.5 weigh −2
+// (negative weights, as in next-to-leading-order samples): refused by
+// default, naming the key; with unfolding.negative_cells: clip the run
+// reports every clipped cell on stderr and records them in result.json,
+// the weight removed equal to the sum of the clipped cells' values
+// (common practice: clipping negative cells to zero).
+func TestNegativeCellsThroughAnalysis(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	dir := filepath.Dir(path)
+	v := variants(t, path, "neg")
+	neg := v("weight: w", "weight: w * (1 - 3 * (abs(y_t) < 1 && abs(y_r) > 1.5))")
+	ctx := context.Background()
+	code, stdout, stderr := runCLI(t, ctx, "unfold", neg)
+	checkRefusal(t, "negative cells", code, stdout, stderr, exitInput, "negative migration cells", filepath.Join(dir, "result"))
+	if !strings.Contains(stderr, "unfolding.negative_cells: clip") {
+		t.Errorf("the refusal does not name the key: %q", stderr)
+	}
+	src, _ := os.ReadFile(neg)
+	os.WriteFile(neg, []byte(strings.Replace(string(src), "iterations: 3", "iterations: 3\n  negative_cells: clip", 1)), 0o644)
+	code, _, stderr = runCLI(t, ctx, "unfold", neg)
+	if code != 0 {
+		t.Fatalf("with negative_cells: clip: exit %d, %s", code, stderr)
+	}
+	var got remediedResult
+	readJSON(t, filepath.Join(dir, "result", "result.json"), &got)
+	r := got.Remedies
+	if r == nil || len(r.ClippedCells) == 0 || got.Settings.NegativeCells != "clip" {
+		t.Fatalf("no clipped cells recorded: %+v, settings %+v", r, got.Settings)
+	}
+	var sum float64
+	for _, c := range r.ClippedCells {
+		if !(c.Value < 0) {
+			t.Errorf("clipped cell %+v is not negative", c)
+		}
+		sum += c.Value
+	}
+	if math.Abs(sum-r.ClippedWeight) > 1e-12*math.Abs(sum) {
+		t.Errorf("recorded weight removed %v, sum of the clipped cells %v", r.ClippedWeight, sum)
+	}
+	if want := fmt.Sprintf("clipped %d negative migration cells to zero", len(r.ClippedCells)); !strings.Contains(stderr, want) {
+		t.Errorf("stderr %q, want %q", stderr, want)
+	}
+}
+
+// readJSON decodes the JSON file at path into v.
+func readJSON(t *testing.T, path string, v any) {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		t.Fatalf("%s: %v", path, err)
+	}
 }

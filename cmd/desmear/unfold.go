@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -57,6 +58,8 @@ type unfoldOptions struct {
 	samplingPrior unfold.SamplingPrior
 	seed          uint64
 	memoryLimit   int64
+	negative      unfold.NegativeCells
+	unexplained   unfold.Unexplained
 
 	out      string
 	force    bool
@@ -166,6 +169,10 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 	f.BoolVar(&o.widths, "divide-by-widths", false, "with --method tikhonov: penalise the densities (estimate / bin volume) with differences divided by the distances of the bin centres (needs --truth-binning)")
 	f.Var(flagval.NewEnum(&o.bias, tikhonov.NoBias, tikhonov.Biases()),
 		"bias", "with --method tikhonov: the spectrum the penalty pulls towards: zero, or prior (the prior scaled to the data, the iterative method's starting point)")
+	f.Var(flagval.NewEnum(&o.negative, unfold.RefuseNegative, unfold.NegativeCellsModes()),
+		"negative-cells", "migration cells of negative weight: refuse (listing them), or clip them to zero (each clipped cell and the weight removed are reported and recorded in result.json)")
+	f.Var(flagval.NewEnum(&o.unexplained, unfold.RefuseUnexplained, unfold.UnexplainedModes()),
+		"unexplained", "data in reco bins that no truth bin reaches and no background explains: refuse (listing every such bin with its count and the fraction of the data), or drop those bins (reported and recorded in result.json)")
 	f.Var(flagval.NewEnum(&o.bgMode, unfold.InModel, unfold.BackgroundModes()),
 		"background-mode", "model: the background stays in the folded expectation (estimates stay non-negative); subtract: data minus background is unfolded (negative differences set to 0)")
 	f.Float64Var(&o.smooth, "smooth", 0, "smooth the estimate between iterations with strength `W` in (0,1] along each axis of the truth binning, within regions (needs --truth-binning; default: no smoothing)")
@@ -344,6 +351,8 @@ var settingFlags = map[string]string{
 	"SamplingPrior":   "sampling-prior",
 	"Seed":            "seed",
 	"MemoryLimit":     "memory-limit",
+	"NegativeCells":   "negative-cells",
+	"Unexplained":     "unexplained",
 }
 
 // flagErr turns an *unfold.SettingsError into a usage error naming the
@@ -373,6 +382,8 @@ func (o *unfoldOptions) settings(truth *binning.Scheme) (*unfold.Settings, unfol
 		SamplingPrior:   o.samplingPrior,
 		Seed:            o.seed,
 		MemoryLimit:     o.memoryLimit,
+		NegativeCells:   o.negative,
+		Unexplained:     o.unexplained,
 	}
 	switch o.method {
 	case bayes.Name:
@@ -628,11 +639,26 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 
 	settings, method := o.settings(pi.truth)
+	var recoLabel, truthLabel unfold.Labels
+	if pi.reco != nil {
+		recoLabel = pi.reco.Label
+	}
+	if pi.truth != nil {
+		truthLabel = pi.truth.Label
+	}
+	prob, remedies, err := unfold.Remedy(prob, settings, recoLabel, truthLabel)
+	if err != nil {
+		return o.kernelErr(&pi.set, remedyAdvice(err, "--negative-cells clip", "--unexplained drop"))
+	}
+	printRemedies(g, remedies, recoLabel, truthLabel)
 	var choice *validate.Choice
 	if o.autoIter {
 		if choice, err = chooseIterations(ctx, g, prob, settings, method, o.seed); err != nil {
 			return o.kernelErr(&pi.set, err)
 		}
+	}
+	if b, err := unfold.FullCovarianceBytes(prob, settings); err == nil && b >= 64<<20 {
+		fmt.Fprintf(g.stderr, "note: the full covariance takes about %.0f MB of memory (dense Jacobian and covariance matrix)\n", float64(b)/1e6)
 	}
 	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
@@ -653,6 +679,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	r.Settings = result.DescribeSettings(settings, method, prior, o.background != "")
 	r.Settings.IterationsChosen = choice
+	if !remedies.Empty() {
+		r.Remedies = remedies
+	}
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
 		r.SliceAxis = o.rootSliceAxis
@@ -833,6 +862,47 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 	}
 	if r.UncertaintyPrecision > 0 {
 		fmt.Fprintf(g.stderr, "note: uncertainties estimated with %d %s; relative precision of each variance about %.0f%%\n", r.UncertaintySamples, map[bool]string{true: "probes", false: "toys"}[strings.Contains(r.UncertaintyMethod, "probes")], 100*r.UncertaintyPrecision)
+	}
+}
+
+// remedyAdvice replaces in an error of unfold.Remedy the words naming
+// the remedies with the front end's own (flags or keys).
+func remedyAdvice(err error, negative, unexplained string) error {
+	var ie *unfold.InputError
+	if !errors.As(err, &ie) {
+		return err
+	}
+	c := *ie
+	c.Reason = strings.NewReplacer(unfold.NegativeCellsAdvice, negative, unfold.UnexplainedAdvice, unexplained).Replace(c.Reason)
+	return &c
+}
+
+// printRemedies reports on stderr, one line each, what the remedies
+// changed: every clipped cell with its value and the weight removed,
+// every dropped reco bin with its count and the fraction of the data.
+func printRemedies(g *globalOptions, r *unfold.Remedies, reco, truth unfold.Labels) {
+	if r.Empty() || g.quiet {
+		return
+	}
+	label := func(l unfold.Labels, b int) string {
+		if l == nil {
+			return strconv.Itoa(b)
+		}
+		return fmt.Sprintf("%d (%s)", b, l(b))
+	}
+	if n := len(r.ClippedCells); n > 0 {
+		cells := make([]string, n)
+		for k, c := range r.ClippedCells {
+			cells[k] = fmt.Sprintf("reco %s × truth %s: %.6g", label(reco, c.Reco), label(truth, c.Truth), c.Value)
+		}
+		fmt.Fprintf(g.stderr, "desmear: note: clipped %d negative migration cells to zero, %.6g of weight removed: %s\n", n, r.ClippedWeight, strings.Join(cells, ", "))
+	}
+	if n := len(r.Dropped); n > 0 {
+		bins := make([]string, n)
+		for k, d := range r.Dropped {
+			bins[k] = fmt.Sprintf("%s: %.6g", label(reco, d.Reco), d.Count)
+		}
+		fmt.Fprintf(g.stderr, "desmear: note: dropped the data of %d reco bins that no truth bin reaches, %.6g in all (%.3g%% of the data): %s\n", n, r.DroppedCount, 100*r.DroppedFraction, strings.Join(bins, ", "))
 	}
 }
 

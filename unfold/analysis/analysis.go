@@ -175,6 +175,9 @@ type Unfolding struct {
 	// Fakes is "background" (the simulation's fakes are part of the
 	// expected background, the default) or "ignore".
 	Fakes string
+	// NegativeCells ("refuse" or "clip") and Unexplained ("refuse" or
+	// "drop") are the remedies of unfold.Remedy.
+	NegativeCells, Unexplained string
 	// MemoryLimit in bytes; 0 means the kernel's default.
 	MemoryLimit int64
 }
@@ -317,7 +320,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	u := doc.Unfolding
 	a.Unfolding = Unfolding{Method: u.Method, Iterations: u.Iterations.n, AutoIterations: u.Iterations.auto, StopChi2: u.StopChi2, MaxIterations: u.MaxIterations,
 		Prior: u.Prior, Smoothing: u.Smoothing, Tau: u.Tau, TauCriterion: u.TauCriterion,
-		Penalty: u.Penalty, Widths: u.Widths, Bias: u.Bias, Background: u.Background, Fakes: u.Fakes}
+		Penalty: u.Penalty, Widths: u.Widths, Bias: u.Bias, Background: u.Background, Fakes: u.Fakes,
+		NegativeCells: u.NegativeCells, Unexplained: u.Unexplained}
 	if u.Iterations.auto && u.StopChi2 != 0 {
 		c.errf(c.line("unfolding", "iterations"), "unfolding.iterations", "give either iterations (a number or auto) or stop_chi2, not both")
 	}
@@ -346,6 +350,8 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	}
 	c.oneOf(&a.Unfolding.Background, unfold.InModel.String(), names(unfold.BackgroundModes()), "unfolding", "background")
 	c.oneOf(&a.Unfolding.Fakes, "background", []string{"background", "ignore"}, "unfolding", "fakes")
+	c.oneOf(&a.Unfolding.NegativeCells, unfold.RefuseNegative.String(), names(unfold.NegativeCellsModes()), "unfolding", "negative_cells")
+	c.oneOf(&a.Unfolding.Unexplained, unfold.RefuseUnexplained.String(), names(unfold.UnexplainedModes()), "unfolding", "unexplained")
 	// A limit below one byte would truncate to 0, the kernel's default:
 	// refuse it (and an explicit 0) rather than silently use the default.
 	if m := u.MemoryLimit; m < 0 || math.IsNaN(m) || math.IsInf(m, 0) || m*(1<<30) >= math.MaxInt64 ||
@@ -475,6 +481,8 @@ var settingKeys = map[string][]any{
 	"Bias":            {"unfolding", "bias"},
 	"Background":      {"unfolding", "background"},
 	"MemoryLimit":     {"unfolding", "memory_limit_gib"},
+	"NegativeCells":   {"unfolding", "negative_cells"},
+	"Unexplained":     {"unfolding", "unexplained"},
 	"Covariance":      {"uncertainty", "covariance"},
 	"DiagonalMethod":  {"uncertainty", "method"},
 	"Probes":          {"uncertainty", "probes"},

@@ -160,6 +160,8 @@ type unfoldingDoc struct {
 	Bias          string        `yaml:"bias"`
 	Background    string        `yaml:"background"`
 	Fakes         string        `yaml:"fakes"`
+	NegativeCells string        `yaml:"negative_cells"`
+	Unexplained   string        `yaml:"unexplained"`
 	MemoryLimit   float64       `yaml:"memory_limit_gib"`
 }
 

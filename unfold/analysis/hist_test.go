@@ -4,7 +4,12 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
+
+	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold/response"
 
 	"github.com/desmear/desmear/unfold/internal/rootio"
 )
@@ -77,11 +82,42 @@ output:
 	if m.Outside != 12 {
 		t.Errorf("outside %d, want 12", m.Outside)
 	}
+	// Their content, by hand: x flows Σ_iy (100·iy+1) + (100·iy+4) =
+	// 2025, y underflow 2 + 3; of all 20 cells, 4050.
+	if m.OutsideContent != 2030 || m.OutsideFraction != 2030.0/4050 {
+		t.Errorf("outside content %v (fraction %v), want 2030 (2030/4050)", m.OutsideContent, m.OutsideFraction)
+	}
 
 	// Edges that differ from the scheme are an error.
 	h.XEdges = []float64{0, 1, 3}
 	rootio.WriteFile(filepath.Join(dir, "data.root"), nil, []*rootio.Hist2D{h})
 	if _, err := a.FillData(context.Background(), nil); err == nil {
 		t.Error("a histogram with other edges was accepted")
+	}
+}
+
+// Efficiencies and purities above 1 (negative event weights) are
+// warned about, naming the truth bins; plausible ones are not (common
+// practice: both are fractions of events, at most 1).
+func TestResponseWarnings(t *testing.T) {
+	truth, err := binning.Decode(strings.NewReader("regions: [{name: r, axes: [{name: x, edges: [0, 1, 2, 3]}]}]"), "truth.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := &Analysis{Truth: truth}
+	m, err := sparse.NewMatrix(3, 3, []int{0, 1, 2, 3}, []int{0, 1, 2}, []float64{5, 9, 2}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := &response.Built{Migrations: m, Generated: []float64{10, 6, 4}, Fakes: make([]float64, 3),
+		Diagonal: []float64{5, 5, 2}, RecoInTruth: []float64{6, 9, 1.5}}
+	w := a.ResponseWarnings(r)
+	// Efficiency 9/6 = 1.5 in bin 1; purity 2/1.5 = 1.33 in bin 2.
+	if len(w) != 2 || !strings.Contains(w[0], "efficiency is above 1 in truth bins 1 (r x[1,2)) 1.5") || !strings.Contains(w[1], "purity is above 1 in truth bins 2 (r x[2,3)) 1.33") {
+		t.Errorf("warnings %q", w)
+	}
+	r.Generated[1], r.RecoInTruth[2] = 9, 2
+	if w := a.ResponseWarnings(r); len(w) != 0 {
+		t.Errorf("warnings for plausible values: %q", w)
 	}
 }

@@ -42,6 +42,12 @@ type Outcome struct {
 	// IterationsChosen records the automatic choice of the number of
 	// iterations (iterations: auto); nil otherwise.
 	IterationsChosen *validate.Choice
+	// Remedies reports what the remedies of the settings changed in the
+	// problem (unfold.Remedy); Warnings are the notes on the inputs
+	// (efficiencies or purities above 1, data left out in switched-off
+	// flows), each one line naming the bins.
+	Remedies *unfold.Remedies
+	Warnings []string
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -155,6 +161,14 @@ func (a *Analysis) Assemble(ctx context.Context, opt *Options) (*Outcome, *unfol
 	if err != nil {
 		return nil, nil, err
 	}
+	s, _, err := a.Settings()
+	if err != nil {
+		return nil, nil, err
+	}
+	if p, out.Remedies, err = unfold.Remedy(p, s, a.Reco.Label, a.Truth.Label); err != nil {
+		return nil, nil, a.placeKernelError(err)
+	}
+	out.Warnings = a.warnings(out)
 	return out, p, nil
 }
 
@@ -245,15 +259,18 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	if doc.Inputs, err = a.inputs(out); err != nil {
 		return err
 	}
+	for k := range doc.Inputs {
+		doc.Inputs[k].Path = opt.shown(doc.Inputs[k].Path)
+	}
 	prior := "generated"
 	if a.Unfolding.Prior != "simulation" {
 		prior = a.Unfolding.Prior
 	}
 	doc.Settings = result.DescribeSettings(s, m, prior, out.Background != nil)
 	doc.Settings.IterationsChosen = out.IterationsChosen
-	doc.TruthBinning = result.DescribeBinning(a.Truth, a.TruthFile)
-	doc.RecoBinning = result.DescribeBinning(a.Reco, a.RecoFile)
-	doc.Analysis = &result.Analysis{File: a.File, Title: a.Title}
+	doc.TruthBinning = result.DescribeBinning(a.Truth, opt.shown(a.TruthFile))
+	doc.RecoBinning = result.DescribeBinning(a.Reco, opt.shown(a.RecoFile))
+	doc.Analysis = &result.Analysis{File: opt.shown(a.File), Title: a.Title}
 	doc.Purity, doc.Stability = finitePtrs(out.Response.Purity(nil)), finitePtrs(out.Response.Stability(nil))
 	doc.Density, doc.DensityUncertainty = result.Densities(a.Truth, doc.Estimate, doc.Uncertainty, a.Output.Luminosity)
 	for _, q := range []struct {
@@ -277,6 +294,14 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	}
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
+	if out.Data.OutsideContent != 0 {
+		doc.DataOutsideContent = &out.Data.OutsideContent
+		doc.DataOutsideFraction = &out.Data.OutsideFraction
+	}
+	if !out.Remedies.Empty() {
+		doc.Remedies = out.Remedies
+	}
+	doc.Warnings = out.Warnings
 	if ref != nil {
 		if err := doc.Compare(out.Result, ref, a.Compare, a.Truth); err != nil {
 			return err
@@ -294,7 +319,7 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	if err := f.Commit(); err != nil {
 		return err
 	}
-	out.Folder = a.Output.Folder
+	out.Folder = opt.shown(a.Output.Folder)
 	out.Document = doc
 	return nil
 }
@@ -341,9 +366,49 @@ func (a *Analysis) placeKernelError(err error) error {
 	if ue.Truth >= 0 && ue.Truth < a.Truth.Len() {
 		where = append(where, fmt.Sprintf("truth bin %d (%s)", ue.Truth, a.Truth.Label(ue.Truth)))
 	}
-	e.Msg = what + ue.Reason
+	advice := strings.NewReplacer(unfold.NegativeCellsAdvice, "unfolding.negative_cells: clip", unfold.UnexplainedAdvice, "unfolding.unexplained: drop")
+	e.Msg = what + advice.Replace(ue.Reason)
 	if len(where) > 0 {
 		e.Msg = strings.Join(where, ", ") + ": " + e.Msg
 	}
 	return e
+}
+
+// ResponseWarnings returns one line for each kind of implausible value
+// of the response r, naming the truth bins: efficiencies above 1 and
+// purities above 1, which only negative event weights can produce.
+func (a *Analysis) ResponseWarnings(r *response.Built) []string {
+	var out []string
+	for _, q := range []struct {
+		name string
+		v    []float64
+	}{{"efficiency", r.Efficiency(nil)}, {"purity", r.Purity(nil)}} {
+		var bins []string
+		for j, x := range q.v {
+			if x > 1+unfold.EfficiencyTolerance {
+				if len(bins) == maxWarned {
+					bins = append(bins, "...")
+					break
+				}
+				bins = append(bins, fmt.Sprintf("%d (%s) %.3g", j, a.Truth.Label(j), x))
+			}
+		}
+		if len(bins) > 0 {
+			out = append(out, fmt.Sprintf("the %s is above 1 in truth bins %s: negative event weights in the simulation; check those bins", q.name, strings.Join(bins, ", ")))
+		}
+	}
+	return out
+}
+
+// maxWarned bounds the bins a warning lists.
+const maxWarned = 20
+
+// warnings returns the notes on the inputs of out: those of the
+// response, and the data left out in switched-off flows.
+func (a *Analysis) warnings(out *Outcome) []string {
+	w := a.ResponseWarnings(out.Response)
+	if d := out.Data; d != nil && d.OutsideContent != 0 {
+		w = append(w, fmt.Sprintf("data: %.6g (%.3g%% of the data read) lie in flows the reco binning switches off and are left out", d.OutsideContent, 100*d.OutsideFraction))
+	}
+	return w
 }

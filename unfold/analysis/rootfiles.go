@@ -71,7 +71,22 @@ func (a *Analysis) readHistogram() (*Measured, error) {
 	if !hasW2 {
 		m.Variance = nil
 	}
+	m.outsideFraction()
 	return m, nil
+}
+
+// outsideFraction sets OutsideFraction from OutsideContent and Values.
+func (m *Measured) outsideFraction() {
+	if m.OutsideContent == 0 {
+		return
+	}
+	total := m.OutsideContent
+	for _, v := range m.Values {
+		total += v
+	}
+	if total != 0 {
+		m.OutsideFraction = m.OutsideContent / total
+	}
 }
 
 func put(m *Measured, w, w2 float64, g int) error {
@@ -81,6 +96,7 @@ func put(m *Measured, w, w2 float64, g int) error {
 	if g < 0 {
 		if w != 0 {
 			m.Outside++
+			m.OutsideContent += w
 		}
 		return nil
 	}

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"path/filepath"
 	"slices"
 	"strings"
 
@@ -37,6 +38,13 @@ type Options struct {
 	// response (sums are formed shard by shard), recorded in the bundle
 	// and in each part.
 	ShardEvents int64
+
+	// Staged and Final, when both are set, say that the analysis file
+	// lies in a folder being written under the temporary name Staged,
+	// to be installed at Final once the run is done: the paths under
+	// Staged are recorded in the result and in the Outcome as under
+	// Final, where they will be.
+	Staged, Final string
 }
 
 func (o *Options) shardEvents() int64 {
@@ -44,6 +52,21 @@ func (o *Options) shardEvents() int64 {
 		return response.DefaultShardEvents
 	}
 	return o.ShardEvents
+}
+
+// shown returns the path p as recorded in the outputs (see
+// Options.Staged).
+func (opt *Options) shown(p string) string {
+	if opt == nil || opt.Staged == "" || opt.Final == "" {
+		return p
+	}
+	staged := filepath.Clean(opt.Staged)
+	if c := filepath.Clean(p); c == staged {
+		return opt.Final
+	} else if rel, ok := strings.CutPrefix(c, staged+string(filepath.Separator)); ok {
+		return filepath.Join(opt.Final, rel)
+	}
+	return p
 }
 
 func (a *Analysis) fillOptions(opt *Options, stage string) *response.Options {
@@ -443,8 +466,13 @@ func (a *Analysis) recoHistogram(ctx context.Context, opt *Options, stage, file,
 type Measured struct {
 	Values   []float64
 	Variance []float64 // nil: Poisson (unweighted data)
-	// Events, Selected and Outside count the data events (events files).
+	// Events, Selected and Outside count the data events (events files),
+	// or Outside the non-empty histogram cells of switched-off flows.
 	Events, Selected, Outside int64
+	// OutsideContent is the content left out in flows the reco binning
+	// switches off (weights of events, or histogram content), and
+	// OutsideFraction its fraction of everything read.
+	OutsideContent, OutsideFraction float64
 }
 
 // FillData fills or reads the data into the reco scheme.
@@ -457,7 +485,8 @@ func (a *Analysis) FillData(ctx context.Context, opt *Options) (*Measured, error
 		if err != nil {
 			return nil, err
 		}
-		m := &Measured{Values: h.Values, Events: h.Events, Selected: h.Selected, Outside: h.Outside}
+		m := &Measured{Values: h.Values, Events: h.Events, Selected: h.Selected, Outside: h.Outside, OutsideContent: h.OutsideWeight}
+		m.outsideFraction()
 		if d.Weight.Text != "" {
 			m.Variance = h.SumW2
 		}
@@ -606,6 +635,8 @@ func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	}
 	names := []named{
 		{"Background", &s.Background, u.Background},
+		{"NegativeCells", &s.NegativeCells, u.NegativeCells},
+		{"Unexplained", &s.Unexplained, u.Unexplained},
 		{"Covariance", &s.Covariance, un.Covariance},
 		{"DiagonalMethod", &s.DiagonalMethod, un.Method},
 		{"SamplingPrior", &s.SamplingPrior, un.SamplingPrior},

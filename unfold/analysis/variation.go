@@ -360,6 +360,10 @@ func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSam
 	if err != nil {
 		return nil, err
 	}
+	// The remedies of the nominal unfolding apply to every variation.
+	if p, _, err = unfold.Remedy(p, s, a.Reco.Label, a.Truth.Label); err != nil {
+		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}
+	}
 	sv := *s
 	sv.Covariance = unfold.NoCovariance
 	res, err := unfold.Unfold(ctx, p, &sv, m)

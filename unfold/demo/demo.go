@@ -124,6 +124,50 @@ func ExpectedTruth(s *binning.Scheme, cfg Config) []float64 {
 // cores, the same cfg gives the same events and the same bytes in every
 // file except the ROOT files, whose keys carry their write time and path.
 func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Inputs, error) {
+	st, err := Stage(ctx, dir, cfg, replace)
+	if err != nil {
+		return nil, err
+	}
+	defer st.Abort()
+	if err := st.Commit(); err != nil {
+		return nil, err
+	}
+	return st.Inputs, nil
+}
+
+// Staged is a demo folder written under a temporary name and not yet
+// installed: work that belongs in the folder (the result of its
+// analysis) is done inside it, at Dir, and Commit installs the whole at
+// once, so that the inputs and that work appear together or not at all,
+// and an earlier demo folder stays intact until then.
+type Staged struct {
+	// Inputs describes the folder; its Dir is the final path.
+	Inputs *Inputs
+	f      *atomicfile.Folder
+}
+
+// Dir returns the temporary folder holding the files until Commit.
+func (s *Staged) Dir() string { return s.f.Dir() }
+
+// Path returns the path of the named file in the temporary folder.
+func (s *Staged) Path(name string) string { return filepath.Join(s.f.Dir(), name) }
+
+// Commit installs the folder at its final path, replacing an earlier
+// demo folder if that was asked for.
+func (s *Staged) Commit() error {
+	if err := s.f.Commit(); err != nil {
+		return folderError(err)
+	}
+	return nil
+}
+
+// Abort removes the temporary folder and everything in it; it does
+// nothing after a successful Commit.
+func (s *Staged) Abort() { s.f.Abort() }
+
+// Stage writes the demo's inputs as Generate does, but into a temporary
+// folder that Commit installs: always pair it with a deferred Abort.
+func Stage(ctx context.Context, dir string, cfg Config, replace bool) (*Staged, error) {
 	if err := cfg.check(); err != nil {
 		return nil, err
 	}
@@ -141,16 +185,13 @@ func Generate(ctx context.Context, dir string, cfg Config, replace bool) (*Input
 	if err != nil {
 		return nil, folderError(err)
 	}
-	defer f.Abort()
 	in := &Inputs{Config: cfg, SimulatedEvents: sim.len(), DataEvents: data.len()}
 	if err := writeInputs(ctx, f, in, sim, data, dataTruth); err != nil {
-		return nil, err
-	}
-	if err := f.Commit(); err != nil {
-		return nil, folderError(err)
+		f.Abort()
+		return nil, fmt.Errorf("demo: writing the inputs in %s: %w", dir, err)
 	}
 	in.Dir = dir
-	return in, nil
+	return &Staged{Inputs: in, f: f}, nil
 }
 
 // CheckFolder reports whether Generate could write the demo folder at
@@ -220,7 +261,14 @@ func writeInputs(ctx context.Context, f *atomicfile.Folder, in *Inputs, sim, dat
 		}()
 	}
 	wg.Wait()
-	return errors.Join(errs...)
+	// The first error only: the writers usually fail for one cause (a
+	// full disk), and the message stays one line.
+	for _, err := range errs {
+		if err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 // writeScheme writes the binning scheme text to the file name of f and

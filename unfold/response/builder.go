@@ -456,8 +456,10 @@ type Histogram struct {
 	// per bin of the scheme.
 	Values, SumW2 []float64
 	// Events is the number of events read, Selected the number passing
-	// the selection, and Outside the number of those outside the scheme.
+	// the selection, and Outside the number of those outside the scheme;
+	// OutsideWeight is the sum of their weights.
 	Events, Selected, Outside int64
+	OutsideWeight             float64
 }
 
 // NewHistogram returns an empty histogram over a scheme of n bins.
@@ -482,7 +484,10 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 			return nil
 		}
 	}
-	var sel, out int64
+	var (
+		sel, out int64
+		outW     float64
+	)
 	consume := func(bt *batch) error {
 		for k := 0; k < bt.n; k++ {
 			switch r := bt.reco[k]; {
@@ -494,6 +499,7 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 			case r == codeOutside:
 				sel++
 				out++
+				outW += bt.w[k]
 			}
 		}
 		return nil
@@ -502,6 +508,7 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 	h.Events += n
 	h.Selected += sel
 	h.Outside += out
+	h.OutsideWeight += outW
 	return err
 }
 

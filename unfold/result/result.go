@@ -163,6 +163,16 @@ type Result struct {
 	DataEvents   int64 `json:"data_events,omitempty"`
 	DataSelected int64 `json:"data_selected,omitempty"`
 	DataOutside  int64 `json:"data_outside,omitempty"`
+	// DataOutsideContent is the data content left out in flows the reco
+	// binning switches off, DataOutsideFraction its fraction of the data
+	// read; both absent when nothing was left out.
+	DataOutsideContent  *float64 `json:"data_outside_content,omitempty"`
+	DataOutsideFraction *float64 `json:"data_outside_fraction,omitempty"`
+	// Remedies lists what the remedies of the settings changed (clipped
+	// negative cells, dropped reco bins); absent when nothing.
+	Remedies *unfold.Remedies `json:"remedies,omitempty"`
+	// Warnings are notes on the inputs, one line each.
+	Warnings []string `json:"warnings,omitempty"`
 }
 
 // Source is one contribution to the uncertainty (see unfold.Source):
@@ -283,6 +293,10 @@ type Settings struct {
 	// for the other methods. The tau used is in the result's tikhonov.
 	Tau          float64 `json:"tau,omitempty"`
 	TauCriterion string  `json:"tau_criterion,omitempty"`
+	// NegativeCells ("clip") and Unexplained ("drop") are the remedies
+	// chosen; absent when refusing (the default).
+	NegativeCells string `json:"negative_cells,omitempty"`
+	Unexplained   string `json:"unexplained,omitempty"`
 	// Covariance is "none", "diag" or "full"; DiagonalMethod the method
 	// of "diag": "auto", "exact", "probes" or "toys".
 	Covariance     string `json:"covariance"`
@@ -369,6 +383,12 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 		m = (*bayes.Settings)(nil)
 	}
 	d := Settings{Method: m.Name(), Prior: prior, Covariance: z.Covariance.String(), Seed: z.Seed, MemoryLimit: z.MemoryLimit}
+	if z.NegativeCells != unfold.RefuseNegative {
+		d.NegativeCells = z.NegativeCells.String()
+	}
+	if z.Unexplained != unfold.RefuseUnexplained {
+		d.Unexplained = z.Unexplained.String()
+	}
 	switch m := m.(type) {
 	case *bayes.Settings:
 		b, err := m.Resolve()

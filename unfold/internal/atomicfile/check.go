@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io/fs"
 	"os"
+	"path/filepath"
 )
 
 // existsError is the type of ErrExists: it also matches fs.ErrExist.
@@ -28,8 +29,11 @@ var ErrNotOurs = errors.New("not an earlier folder of this kind")
 // Check reports whether a folder identified by the file marker may be
 // written at path: nil when nothing exists there, or when replace is
 // set and the path is an empty folder or a folder holding a regular file
-// named marker. Otherwise it returns an error wrapping ErrExists or
-// ErrNotOurs, or the error of looking at the path. Commands call it
+// named marker, and everything in it can be removed. Otherwise it
+// returns an error wrapping ErrExists or ErrNotOurs, or the error of
+// looking at the path, or one wrapping fs.ErrPermission naming what in
+// the earlier folder cannot be removed (a folder not writable, a file
+// marked immutable). Commands call it
 // before a long computation, so that a refused folder is reported at
 // once; New and Commit check again.
 func Check(path, marker string, replace bool) error {
@@ -55,8 +59,25 @@ func Check(path, marker string, replace bool) error {
 	}
 	for _, e := range entries {
 		if e.Name() == marker && e.Type().IsRegular() {
-			return nil
+			return removable(path)
 		}
 	}
 	return fmt.Errorf("%w: %s is a folder without a %s", ErrNotOurs, path, marker)
+}
+
+// removable checks that the folder path and everything in it could be
+// removed: every folder in it writable and searchable, no file in it
+// marked immutable or append-only. A replacement checks it before it
+// starts, so that it never leaves an earlier folder half removed.
+func removable(path string) error {
+	err := filepath.WalkDir(path, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		return canRemoveIn(p, d.IsDir())
+	})
+	if err != nil {
+		return fmt.Errorf("the earlier folder %s cannot be removed (%w); nothing was replaced: make it writable or choose another output folder", path, err)
+	}
+	return nil
 }

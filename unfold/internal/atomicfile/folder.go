@@ -112,6 +112,13 @@ func (f *Folder) removeCreated() {
 // Path returns the final path of the folder.
 func (f *Folder) Path() string { return f.path }
 
+// Dir returns the temporary folder the files are written in until
+// Commit. A writer may create files or folders there directly (for
+// example another Folder, committed inside it before this one); they are
+// installed with the rest by Commit, which syncs only the files it
+// handed out, so such a writer syncs its own.
+func (f *Folder) Dir() string { return f.tmp }
+
 // claim validates a file name and reserves it, creating its sub-folders
 // inside the temporary folder. It must be called with f.mu held.
 func (f *Folder) claim(name string) (string, error) {
@@ -239,6 +246,10 @@ func (f *Folder) Commit() error {
 		return err
 	}
 	if err := f.install(); err != nil {
+		var le *LeftoverError
+		if errors.As(err, &le) {
+			f.st = committed // the new folder is in place
+		}
 		return err
 	}
 	f.st = committed

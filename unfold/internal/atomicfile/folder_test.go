@@ -4,6 +4,7 @@ import (
 	"errors"
 	"io/fs"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -219,5 +220,44 @@ func TestNames(t *testing.T) {
 	}
 	if _, err := New(".", marker, false); err == nil {
 		t.Error(`New(".") succeeded`)
+	}
+}
+
+// An earlier folder that cannot be removed whole (a file marked
+// immutable, or a folder without write permission) is refused before
+// anything is written, and left exactly as it was: replacing it would
+// otherwise install the new folder and leave the old one behind as a
+// hidden partial (common practice: unlink needs write permission on the
+// folder; an immutable file cannot be unlinked even by root).
+func TestReplaceRefusesUnremovable(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "out")
+	if err := os.MkdirAll(filepath.Join(dir, "sub"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	os.WriteFile(filepath.Join(dir, "marker"), []byte("old"), 0o644)
+	stuck := filepath.Join(dir, "sub", "stuck")
+	os.WriteFile(stuck, []byte("old"), 0o644)
+	if os.Geteuid() == 0 {
+		if out, err := exec.Command("chattr", "+i", stuck).CombinedOutput(); err != nil {
+			t.Skipf("running as root and chattr +i is not available here (%v: %s)", err, out)
+		}
+		t.Cleanup(func() { exec.Command("chattr", "-i", stuck).Run() })
+	} else {
+		os.Chmod(filepath.Join(dir, "sub"), 0o555)
+		t.Cleanup(func() { os.Chmod(filepath.Join(dir, "sub"), 0o755) })
+	}
+	if err := Check(dir, "marker", true); !errors.Is(err, fs.ErrPermission) || !strings.Contains(err.Error(), "cannot be removed") {
+		t.Errorf("Check of an unremovable earlier folder: %v, want a permission error saying it cannot be removed", err)
+	}
+	f, err := New(dir, "marker", true)
+	if err == nil {
+		f.Abort()
+		t.Fatal("New over an unremovable earlier folder succeeded")
+	}
+	if got := entries(t, dir); !slices.Equal(got, []string{"marker", "sub"}) {
+		t.Errorf("the earlier folder holds %v after the refusal", got)
+	}
+	if got := entries(t, filepath.Dir(dir)); !slices.Equal(got, []string{"out"}) {
+		t.Errorf("the parent holds %v after the refusal, want only out", got)
 	}
 }

@@ -56,8 +56,7 @@ func place(tmp, dir string, replace bool) error {
 		}
 		if ok {
 			// The old folder now sits at the temporary path.
-			_ = os.RemoveAll(tmp)
-			return nil
+			return removeOld(dir, tmp)
 		}
 		// Fallback: move the old folder aside, then put the new one in.
 		aside, err := os.MkdirTemp(filepath.Dir(dir), "."+filepath.Base(dir)+".old-")
@@ -74,12 +73,34 @@ func place(tmp, dir string, replace bool) error {
 			_ = os.Rename(aside, dir)
 			return err
 		}
-		_ = os.RemoveAll(aside)
-		return nil
+		return removeOld(dir, aside)
 	}
 	err := renameNoReplace(tmp, dir)
 	if errors.Is(err, fs.ErrExist) {
 		return fmt.Errorf("%w: %s", ErrExists, dir)
 	}
 	return err
+}
+
+// LeftoverError is the error of a replacement that installed the new
+// folder but could not remove the earlier one, moved aside to Old
+// (Check refuses such a folder beforehand; this is for one changed while
+// the new folder was written).
+type LeftoverError struct {
+	Dir, Old string
+	Err      error
+}
+
+func (e *LeftoverError) Error() string {
+	return fmt.Sprintf("%s is in place, but the earlier folder moved to %s could not be removed (%v): delete it by hand", e.Dir, e.Old, e.Err)
+}
+
+func (e *LeftoverError) Unwrap() error { return e.Err }
+
+// removeOld removes the earlier folder old after dir was installed.
+func removeOld(dir, old string) error {
+	if err := os.RemoveAll(old); err != nil {
+		return &LeftoverError{Dir: dir, Old: old, Err: err}
+	}
+	return nil
 }

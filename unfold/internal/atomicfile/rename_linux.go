@@ -37,3 +37,21 @@ func exchange(a, b string) (bool, error) {
 	}
 	return true, nil
 }
+
+// canRemoveIn reports an error when the entry at path stands in the way
+// of removing a folder: a folder that is not writable and searchable
+// (its entries cannot be unlinked), or a file marked immutable or
+// append-only (access reports EPERM for writing it, even to root). A
+// file merely without write permission is removable and passes.
+func canRemoveIn(path string, dir bool) error {
+	if dir {
+		if err := unix.Access(path, unix.W_OK|unix.X_OK); err != nil {
+			return &os.PathError{Op: "remove", Path: path, Err: err}
+		}
+		return nil
+	}
+	if err := unix.Access(path, unix.W_OK); errors.Is(err, unix.EPERM) {
+		return &os.PathError{Op: "remove", Path: path, Err: err}
+	}
+	return nil
+}

@@ -65,7 +65,7 @@ func (s *Settings) Fit(ctx context.Context, p *unfold.Prepared) (unfold.Fit, err
 	if err != nil {
 		return nil, err
 	}
-	return &fit{m: m, sm: sm, details: d, kept: kept,
+	return &fit{m: m, sm: sm, it: it, details: d, kept: kept,
 		estimate: append([]float64(nil), it.mu...),
 		folded:   append([]float64(nil), it.nu...)}, nil
 }
@@ -80,6 +80,9 @@ type fit struct {
 	kept             [][]float64 // the estimate of every iteration (Scan)
 	estimate, folded []float64
 	pr               *probes // the last batch's, reused by the next of its size
+	// it is the nominal iteration's iterator, reused by the re-runs
+	// (start resets it), so that batches of probes allocate no new one.
+	it *iterator
 }
 
 func (f *fit) Estimate() []float64 { return f.estimate }
@@ -93,7 +96,7 @@ func (f *fit) StepEstimates() [][]float64 { return f.kept }
 // Jacobian carries the dense Jacobian along a re-run of the iteration.
 func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
 	jc := newJacobian(f.m, dst)
-	if _, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), jc); err != nil {
+	if _, err := f.it.run(ctx, f.m.n, fixedIterations(f.details.Iterations), jc); err != nil {
 		return err
 	}
 	dst.Data, dst.Work = jc.j, jc.w
@@ -108,7 +111,7 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 	} else {
 		f.pr.reuse(dst) // the next batch, no larger: the same buffers
 	}
-	_, err := newIterator(f.m, f.sm).run(ctx, f.m.n, fixedIterations(f.details.Iterations), f.pr)
+	_, err := f.it.run(ctx, f.m.n, fixedIterations(f.details.Iterations), f.pr)
 	return err
 }
 
