@@ -13,7 +13,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/desmear/desmear/cmd/desmear/internal/flagval"
+	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/batch"
+	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/result"
 	"github.com/desmear/desmear/unfold/validate"
 )
@@ -21,12 +23,14 @@ import (
 func newBatchCommand(g *globalOptions) *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "batch (plan | run | run-local | status | merge | submit)",
-		Short: "Split a toy ensemble into shards, run them here or on a Slurm cluster, merge them exactly",
-		Long: `batch splits the toy ensemble of a validation into shards that separate
-processes or cluster jobs run, and merges their partial results into the
-validation folder "desmear validate" writes, bit for bit.
+		Short: "Split a toy ensemble or a response build into shards, run them here or on a Slurm cluster, merge them exactly",
+		Long: `batch splits the toy ensemble of a validation, or the building of a
+response, into shards that separate processes or cluster jobs run, and
+merges their partial results into the validation folder "desmear validate"
+writes (or the bundle "desmear response" writes), bit for bit.
 
   desmear batch plan ANALYSIS.yaml --toys N --shards K --workdir DIR
+  desmear batch plan ANALYSIS.yaml --response --shards K --workdir DIR
   desmear batch run DIR --shard I          (one shard; a finished one is skipped)
   desmear batch run-local DIR --jobs J     (every shard here, J at a time)
   desmear batch status DIR                 (from the shard files)
@@ -52,6 +56,7 @@ type batchPlanOptions struct {
 	validateOptions
 	replicas   int
 	variations bool
+	response   bool
 	shards     int
 	workdir    string
 }
@@ -59,7 +64,7 @@ type batchPlanOptions struct {
 func newBatchPlanCommand(g *globalOptions) *cobra.Command {
 	var o batchPlanOptions
 	cmd := &cobra.Command{
-		Use:   "plan ANALYSIS.yaml (--toys N | --replicas N | --variations) --shards K --workdir DIR [flags]",
+		Use:   "plan ANALYSIS.yaml (--toys N | --response | --replicas N | --variations) --shards K --workdir DIR [flags]",
 		Short: "Write the plan of an ensemble split into shards",
 		Long: `plan assembles the analysis (building its response and filling its data),
 and writes DIR/plan.json: the analysis file and the assembled inputs by
@@ -67,8 +72,14 @@ SHA-256, the settings of the ensemble, its units (blocks of ` + fmt.Sprint(valid
 with its seed and stream) and their split into K shards. Every shard and
 the merge check that the inputs are still those of the plan.
 
-Only toy ensembles of a validation (--toys) can be planned today;
---replicas and --variations are refused until they exist.`,
+With --response the plan is of the analysis's response built in K parts
+(each part a consecutive block of the response shards, as "desmear
+response ANALYSIS.yaml --shard I/K" builds it); the merge writes the
+response bundle (DIR/response unless --out) that "desmear response" writes
+in one run.
+
+Toy ensembles of a validation (--toys) and responses (--response) can be
+planned today; --replicas and --variations are refused until they can.`,
 		Example: `  desmear batch plan demo/analysis.yaml --toys 2000 --shards 40 --workdir toys`,
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -79,6 +90,7 @@ Only toy ensembles of a validation (--toys) can be planned today;
 	f.IntVar(&o.toys, "toys", 0, "plan a validation's toy ensemble of `N` toys")
 	f.IntVar(&o.replicas, "replicas", 0, "plan `N` bootstrap replicas (not available yet)")
 	f.BoolVar(&o.variations, "variations", false, "plan the systematic variations (not available yet)")
+	f.BoolVar(&o.response, "response", false, "plan the response built in K parts (\"desmear response --shard I/K\"), merged into a bundle")
 	f.IntVar(&o.shards, "shards", 0, "number of shards `K`")
 	f.StringVar(&o.workdir, "workdir", "", "work folder `DIR` of the plan and the shard files")
 	f.StringVar(&o.out, "out", "", "validation folder the merge writes (default DIR/validation)")
@@ -94,14 +106,14 @@ Only toy ensembles of a validation (--toys) can be planned today;
 
 func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, path string) error {
 	kinds := 0
-	for _, set := range []bool{cmd.Flags().Changed("toys"), cmd.Flags().Changed("replicas"), o.variations} {
+	for _, set := range []bool{cmd.Flags().Changed("toys"), cmd.Flags().Changed("replicas"), o.variations, o.response} {
 		if set {
 			kinds++
 		}
 	}
 	switch {
 	case kinds != 1:
-		return usagef("batch plan needs one of --toys N, --replicas N or --variations")
+		return usagef("batch plan needs one of --toys N, --response, --replicas N or --variations")
 	case o.replicas != 0 || o.variations:
 		kind := batch.Replicas
 		if o.variations {
@@ -112,6 +124,8 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
+	case o.response:
+		return planResponse(g, o, path)
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:
@@ -161,6 +175,121 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 	return nil
 }
 
+// planResponse writes the plan of a response built in parts.
+func planResponse(g *globalOptions, o *batchPlanOptions, path string) error {
+	abs, err := filepath.Abs(path)
+	if err != nil {
+		return ioErr(err)
+	}
+	if _, err := analysis.Load(abs); err != nil {
+		return analysisErr(err)
+	}
+	out := o.out
+	if out == "" {
+		out = filepath.Join(o.workdir, "response")
+	}
+	if out, err = filepath.Abs(out); err != nil {
+		return ioErr(err)
+	}
+	asum, err := batch.FileSum(abs)
+	if err != nil {
+		return inputErr(err)
+	}
+	p, err := batch.ResponsePlan(batch.Input{Path: abs, SHA256: asum}, o.shards, out)
+	if err != nil {
+		return usageErr(fmt.Errorf("--shards %d: %w", o.shards, err))
+	}
+	if err := p.Write(o.workdir); err != nil {
+		return ioErr(err)
+	}
+	fmt.Fprintf(g.stdout, "plan: %s (the response in %d parts); the merge writes %s\n", filepath.Join(o.workdir, batch.PlanFile), len(p.Shards), out)
+	return nil
+}
+
+// shardJob is a plan ready to run its shards.
+type shardJob interface {
+	shards() int
+	runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error
+}
+
+// readPlan reads the plan of dir.
+func readPlan(dir string) (*batch.Plan, error) {
+	p, err := batch.Read(dir)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			return nil, inputErr(fmt.Errorf("%w (make one with \"desmear batch plan\")", err))
+		}
+		return nil, inputErr(err)
+	}
+	return p, nil
+}
+
+// loadJob reads the plan of dir and loads what its shards need.
+func loadJob(ctx context.Context, g *globalOptions, dir string) (shardJob, error) {
+	p, err := readPlan(dir)
+	if err != nil {
+		return nil, err
+	}
+	if p.Kind == batch.Response {
+		return loadResponseJob(p)
+	}
+	return loadToyJob(ctx, g, p)
+}
+
+// responseJob is a response plan with its analysis loaded.
+type responseJob struct {
+	plan *batch.Plan
+	a    *analysis.Analysis
+}
+
+func loadResponseJob(p *batch.Plan) (*responseJob, error) {
+	asum, err := batch.FileSum(p.Analysis.Path)
+	if err != nil {
+		return nil, inputErr(fmt.Errorf("the plan's analysis file: %w", err))
+	}
+	if err := p.CheckInputs(asum, ""); err != nil {
+		return nil, inputErr(err)
+	}
+	a, err := analysis.Load(p.Analysis.Path)
+	if err != nil {
+		return nil, analysisErr(err)
+	}
+	return &responseJob{plan: p, a: a}, nil
+}
+
+func (j *responseJob) shards() int { return len(j.plan.Shards) }
+
+// runShard builds response part s, unless it is done.
+func (j *responseJob) runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error {
+	say := func(format string, a ...any) {
+		if !g.quiet {
+			mu.Lock()
+			defer mu.Unlock()
+			fmt.Fprintf(g.stderr, format, a...)
+		}
+	}
+	if j.plan.PartDone(dir, s) {
+		say("desmear: response part %d was done already\n", s)
+		return nil
+	}
+	part, err := j.a.BuildPart(ctx, s, len(j.plan.Shards), &analysis.Options{Version: version, ShardEvents: shardEvents})
+	if err != nil {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		return analysisErr(err)
+	}
+	if err := os.MkdirAll(filepath.Join(dir, batch.PartDir), 0o755); err != nil {
+		return ioErr(err)
+	}
+	// replace a part of another plan or a damaged one
+	if err := part.Save(batch.PartPath(dir, s), true); err != nil {
+		return refusedFolder(err, batch.PartPath(dir, s), "response part", "part.json")
+	}
+	say("desmear: response part %d (%d shards) done\n", s, len(part.Numbers))
+	return nil
+}
+
 // toyJob is a plan with its validation set up: the inputs checked
 // against the plan, the nominal result and the toys' configuration.
 type toyJob struct {
@@ -169,15 +298,8 @@ type toyJob struct {
 	setup *validate.Setup
 }
 
-// loadToyJob reads the plan of dir and sets its validation up.
-func loadToyJob(ctx context.Context, g *globalOptions, dir string) (*toyJob, error) {
-	p, err := batch.Read(dir)
-	if err != nil {
-		if errors.Is(err, fs.ErrNotExist) {
-			return nil, inputErr(fmt.Errorf("%w (make one with \"desmear batch plan\")", err))
-		}
-		return nil, inputErr(err)
-	}
+// loadToyJob sets the validation of the toy plan p up.
+func loadToyJob(ctx context.Context, g *globalOptions, p *batch.Plan) (*toyJob, error) {
 	asum, err := batch.FileSum(p.Analysis.Path)
 	if err != nil {
 		return nil, inputErr(fmt.Errorf("the plan's analysis file: %w", err))
@@ -206,6 +328,8 @@ func loadToyJob(ctx context.Context, g *globalOptions, dir string) (*toyJob, err
 	}
 	return &toyJob{plan: p, v: v, setup: st}, nil
 }
+
+func (j *toyJob) shards() int { return len(j.plan.Shards) }
 
 // runShard runs shard s of the job and says so on stderr.
 func (j *toyJob) runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error {
@@ -242,12 +366,12 @@ the plan is not run again; a failed or interrupted shard leaves no file.`,
 			if !cmd.Flags().Changed("shard") {
 				return usagef("batch run needs --shard I")
 			}
-			j, err := loadToyJob(cmd.Context(), g, args[0])
+			j, err := loadJob(cmd.Context(), g, args[0])
 			if err != nil {
 				return err
 			}
-			if shard < 0 || shard >= len(j.plan.Shards) {
-				return usagef("--shard %d: the plan has shards 0..%d", shard, len(j.plan.Shards)-1)
+			if shard < 0 || shard >= j.shards() {
+				return usagef("--shard %d: the plan has shards 0..%d", shard, j.shards()-1)
 			}
 			return j.runShard(cmd.Context(), g, args[0], shard, &sync.Mutex{})
 		},
@@ -269,22 +393,22 @@ in this process, each as "desmear batch run" would. Then merge.`,
 				return usagef("--jobs %d: give at least 1", jobs)
 			}
 			ctx, dir := cmd.Context(), args[0]
-			j, err := loadToyJob(ctx, g, dir)
+			j, err := loadJob(ctx, g, dir)
 			if err != nil {
 				return err
 			}
 			var mu sync.Mutex
 			next := make(chan int)
-			errs := make([]error, len(j.plan.Shards))
+			errs := make([]error, j.shards())
 			var wg sync.WaitGroup
-			for range min(jobs, len(j.plan.Shards)) {
+			for range min(jobs, j.shards()) {
 				wg.Go(func() {
 					for s := range next {
 						errs[s] = j.runShard(ctx, g, dir, s, &mu)
 					}
 				})
 			}
-			for s := range j.plan.Shards {
+			for s := range j.shards() {
 				if ctx.Err() != nil {
 					break
 				}
@@ -308,17 +432,24 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 		Short: "Report the shards of a plan done and missing, from the shard files",
 		Args:  cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			p, err := batch.Read(args[0])
+			p, err := readPlan(args[0])
 			if err != nil {
-				return inputErr(err)
+				return err
 			}
 			pr, err := batch.Status(args[0], p)
 			if err != nil {
 				return ioErr(err)
 			}
 			w := bufio.NewWriter(g.stdout)
-			fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
-			fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
+			marker := validate.JSONFile
+			if p.Kind == batch.Response {
+				marker = response.BundleFiles()[0]
+				fmt.Fprintf(w, "plan: %s (the response in %d parts)\n", filepath.Join(args[0], batch.PlanFile), len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards\n", len(pr.Done), len(p.Shards))
+			} else {
+				fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
+			}
 			if len(pr.Missing) > 0 {
 				fmt.Fprintf(w, "missing: %s\n", batch.Ranges(pr.Missing))
 			}
@@ -327,7 +458,7 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 					fmt.Fprintf(w, "not usable: shard %d: %v\n", s, err)
 				}
 			}
-			if _, err := os.Stat(filepath.Join(p.Out, validate.JSONFile)); err == nil {
+			if _, err := os.Stat(filepath.Join(p.Out, marker)); err == nil {
 				fmt.Fprintf(w, "merged: %s\n", p.Out)
 			} else if len(pr.Todo()) == 0 {
 				fmt.Fprintf(w, "every shard is done: merge with \"desmear batch merge %s\"\n", args[0])
@@ -344,15 +475,24 @@ func newBatchMergeCommand(g *globalOptions) *cobra.Command {
 	var force bool
 	cmd := &cobra.Command{
 		Use:   "merge DIR [--force]",
-		Short: "Merge the shards of a plan into the validation folder",
+		Short: "Merge the shards of a plan into the validation folder or the response bundle",
 		Long: `merge checks that every shard of the plan in DIR is present and belongs to
 the plan, merges their toys exactly and writes the validation folder of the
 plan (DIR/validation unless planned with --out): the same files, bit for
-bit, as "desmear validate" with the plan's settings.`,
+bit, as "desmear validate" with the plan's settings. For a response plan it
+merges the parts in shard order and writes the response bundle
+(DIR/response unless planned with --out), the one "desmear response" writes.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			ctx, dir := cmd.Context(), args[0]
-			j, err := loadToyJob(ctx, g, dir)
+			p, err := readPlan(dir)
+			if err != nil {
+				return err
+			}
+			if p.Kind == batch.Response {
+				return mergeResponse(g, p, dir, force)
+			}
+			j, err := loadToyJob(ctx, g, p)
 			if err != nil {
 				return err
 			}
@@ -388,4 +528,29 @@ bit, as "desmear validate" with the plan's settings.`,
 	}
 	cmd.Flags().BoolVar(&force, "force", false, "replace the validation folder if it holds an earlier validation (or is empty)")
 	return cmd
+}
+
+// mergeResponse merges the response parts of plan p into its bundle.
+func mergeResponse(g *globalOptions, p *batch.Plan, dir string, force bool) error {
+	marker := response.BundleFiles()[0]
+	if err := refusedFolder(response.CheckBundle(p.Out, force), p.Out, "response bundle", marker); err != nil {
+		return err
+	}
+	if _, err := loadResponseJob(p); err != nil {
+		return err
+	}
+	r, info, err := batch.MergeResponse(dir, p)
+	if err != nil {
+		return inputErr(fmt.Errorf("%w (\"desmear batch status %s\" lists them)", err, dir))
+	}
+	if err := r.Save(p.Out, *info, force); err != nil {
+		return refusedFolder(err, p.Out, "response bundle", marker)
+	}
+	w := bufio.NewWriter(g.stdout)
+	fmt.Fprintf(w, "response: %s (%d shards from %d parts)\n", p.Out, len(info.Shards), len(p.Shards))
+	printResponseCounts(w, r)
+	if err := w.Flush(); err != nil {
+		return ioErr(err)
+	}
+	return nil
 }

@@ -101,7 +101,7 @@ func TestBatchPlanRefuses(t *testing.T) {
 	}{
 		{[]string{"--replicas", "10"}, "plans of bootstrap replicas are not available yet"},
 		{[]string{"--variations"}, "plans of systematic variations are not available yet"},
-		{[]string{"--toys", "10", "--replicas", "3"}, "one of --toys N, --replicas N or --variations"},
+		{[]string{"--toys", "10", "--replicas", "3"}, "one of --toys N, --response, --replicas N or --variations"},
 	} {
 		code, _, errs := runCLI(t, ctx, append([]string{"batch", "plan", "a.yaml", "--shards", "2", "--workdir", w}, c.args...)...)
 		if code != exitUsage || !strings.Contains(errs, c.want) {
@@ -190,5 +190,45 @@ func TestBatchSubmitFake(t *testing.T) {
 	code, out, _ = runCLI(t, ctx, "batch", "submit", w, "--slurm", "--dry-run")
 	if _, err := os.Stat(log); code != 0 || err == nil || !strings.Contains(out, "#SBATCH --array=0-3\n") || !strings.Contains(out, "batch merge") {
 		t.Errorf("dry run: exit %d (sbatch called: %v)\n%s", code, err == nil, out)
+	}
+}
+
+// TestBatchResponse: a response plan's parts built here and merged give
+// the bundle "desmear response" writes in one run, byte for byte (the
+// determinism rule of DEVELOPERS.md), for 3 parts and for more parts than
+// response shards (empty parts).
+func TestBatchResponse(t *testing.T) {
+	ctx := context.Background()
+	an := batchDemo(t)
+	defer func(n int64) { shardEvents = n }(shardEvents)
+	shardEvents = 3000 // several response shards per sample
+	tmp := t.TempDir()
+	single := filepath.Join(tmp, "single")
+	if code, out, errs := runCLI(t, ctx, "response", an, "--out", single, "-q"); code != 0 {
+		t.Fatalf("response: exit %d\n%s\n%s", code, out, errs)
+	}
+	for _, k := range []string{"3", "40"} {
+		w := filepath.Join(tmp, "work"+k)
+		if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--response", "--shards", k, "--workdir", w); code != 0 {
+			t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+		}
+		if code, out, errs := runCLI(t, ctx, "batch", "run", w, "--shard", "1", "-q"); code != 0 {
+			t.Fatalf("run: exit %d\n%s\n%s", code, out, errs)
+		}
+		code, out, errs := runCLI(t, ctx, "batch", "merge", w)
+		if code != exitInput || !strings.Contains(errs, "missing: 0,2") {
+			t.Errorf("merge with parts missing: exit %d\n%s\n%s", code, out, errs)
+		}
+		if code, out, errs := runCLI(t, ctx, "batch", "run-local", w, "--jobs", "2"); code != 0 || !strings.Contains(errs, "response part 1 was done already") {
+			t.Fatalf("run-local: exit %d\n%s\n%s", code, out, errs)
+		}
+		code, out, errs = runCLI(t, ctx, "batch", "status", w)
+		if code != 0 || !strings.Contains(out, "done: "+k+" of "+k+" shards") {
+			t.Errorf("status: exit %d\n%s\n%s", code, out, errs)
+		}
+		if code, out, errs := runCLI(t, ctx, "batch", "merge", w, "-q"); code != 0 {
+			t.Fatalf("merge: exit %d\n%s\n%s", code, out, errs)
+		}
+		sameFolders(t, single, filepath.Join(w, "response"))
 	}
 }

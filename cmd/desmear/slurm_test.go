@@ -65,7 +65,9 @@ func waitJob(t *testing.T, id, logs string) {
 // a dependent job on a real cluster, waits, and compares the merged
 // validation folder with "desmear validate" and with run-local byte for
 // byte (the determinism rule of DEVELOPERS.md); then it removes a shard
-// and the merged folder and resubmits the missing shard.
+// and the merged folder and resubmits the missing shard. Last, a response
+// built in parts by a job array and merged by the dependent job is the
+// bundle of "desmear response" in one run.
 func TestBatchSlurm(t *testing.T) {
 	slurmCluster(t)
 	ctx := context.Background()
@@ -111,4 +113,17 @@ func TestBatchSlurm(t *testing.T) {
 	}
 	submit("--missing")
 	sameFolders(t, single, filepath.Join(w, "validation"))
+
+	// The response in parts, as an array with the bundle merged by the
+	// dependent job, against the bundle of one run.
+	bundle, rw := filepath.Join(tmp, "bundle"), filepath.Join(tmp, "response")
+	if code, out, errs := runCLI(t, ctx, "response", an, "--out", bundle, "-q"); code != 0 {
+		t.Fatalf("response: exit %d\n%s\n%s", code, out, errs)
+	}
+	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--response", "--shards", "3", "--workdir", rw); code != 0 {
+		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	w = rw
+	submit()
+	sameFolders(t, bundle, filepath.Join(rw, "response"))
 }

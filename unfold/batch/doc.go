@@ -12,7 +12,11 @@
 // validate.BlockToys consecutive toys; toy t draws from the PCG stream
 // (seed, validate.ToyStream(t)), recorded per unit, so no unit depends
 // on the shard, the process or the machine that runs it. A shard is a
-// contiguous run of units.
+// contiguous run of units. A response plan (ResponsePlan) names the
+// analysis file only: its shard I is part I of the response (a block of
+// the response shards, response.PartShards), written as the part folder
+// parts/part-NNNNN, and MergeResponse merges the parts in shard order
+// (response.MergeParts) into the response of one build, bit for bit.
 //
 // # Shards
 //

@@ -27,10 +27,14 @@ const Format = 1
 // Kind is the kind of ensemble a plan splits.
 type Kind string
 
-// The kinds of ensemble. Only Toys can be planned today.
+// The kinds of ensemble. Toys and Response can be planned today.
 const (
 	// Toys: the toy ensemble of a validation.
 	Toys Kind = "toys"
+	// Response: the response built in parts, each a consecutive block
+	// of the response shards (ranges of simulated events), merged in
+	// shard order into the bundle of a build in one run.
+	Response Kind = "response"
 	// Replicas: bootstrap replicas of the simulation (not available).
 	Replicas Kind = "replicas"
 	// Variations: the systematic variations of an analysis, one unit
@@ -40,7 +44,7 @@ const (
 )
 
 // Kinds lists the kinds of ensemble.
-func Kinds() []Kind { return []Kind{Toys, Replicas, Variations} }
+func Kinds() []Kind { return []Kind{Toys, Response, Replicas, Variations} }
 
 // ErrNotAvailable is returned for a kind of ensemble that cannot be
 // planned yet.
@@ -58,19 +62,19 @@ func (k *Kind) UnmarshalText(b []byte) error {
 			return nil
 		}
 	}
-	return fmt.Errorf("unknown kind of ensemble %q (want toys, replicas or variations)", b)
+	return fmt.Errorf("unknown kind of ensemble %q (want toys, response, replicas or variations)", b)
 }
 
 // Check reports whether a plan of this kind can be made: an error
 // wrapping ErrNotAvailable for replicas and variations.
 func (k Kind) Check() error {
 	switch k {
-	case Toys:
+	case Toys, Response:
 		return nil
 	case Replicas:
-		return fmt.Errorf("batch: plans of bootstrap replicas are %w: only toy ensembles can be planned", ErrNotAvailable)
+		return fmt.Errorf("batch: plans of bootstrap replicas are %w: toy ensembles and responses can be planned", ErrNotAvailable)
 	case Variations:
-		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): only toy ensembles can be planned", ErrNotAvailable)
+		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): toy ensembles and responses can be planned", ErrNotAvailable)
 	}
 	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
 }
@@ -118,10 +122,11 @@ type Plan struct {
 	Analysis Input  `json:"analysis"`
 	Problem  string `json:"problem_sha256"`
 	// Out is the folder the merge writes.
-	Out    string      `json:"out"`
-	Toys   ToySettings `json:"toys"`
-	Units  []Unit      `json:"units"`
-	Shards []Shard     `json:"shards"`
+	Out string `json:"out"`
+	// Toys are the settings of a toy ensemble, nil for a response.
+	Toys   *ToySettings `json:"toys,omitempty"`
+	Units  []Unit       `json:"units,omitempty"`
+	Shards []Shard      `json:"shards"`
 
 	id string // SHA-256 of plan.json, set by Read
 }
@@ -144,7 +149,7 @@ func ToyPlan(analysis Input, problem string, ts ToySettings, shards int, out str
 	if shards > nu {
 		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d toys: a shard holds at least one block of %d toys, so at most %d shards", shards, ts.Toys, validate.BlockToys, nu)}
 	}
-	p := &Plan{Format: Format, Kind: Toys, Analysis: analysis, Problem: problem, Out: out, Toys: ts}
+	p := &Plan{Format: Format, Kind: Toys, Analysis: analysis, Problem: problem, Out: out, Toys: &ts}
 	for u := range nu {
 		first := u * validate.BlockToys
 		p.Units = append(p.Units, Unit{Index: u, FirstToy: first, Toys: min(validate.BlockToys, ts.Toys-first), Seed: ts.Seed, StreamBase: validate.ToyStream(0)})
@@ -152,6 +157,20 @@ func ToyPlan(analysis Input, problem string, ts ToySettings, shards int, out str
 	for s := range shards {
 		lo, hi := s*nu/shards, (s+1)*nu/shards
 		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
+	}
+	return p, nil
+}
+
+// ResponsePlan returns the plan of the response of the analysis built in
+// parts parts: shard I of the plan is response part I of parts. The
+// response's own shards are found by each part from the analysis.
+func ResponsePlan(analysis Input, parts int, out string) (*Plan, error) {
+	if parts < 1 {
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	}
+	p := &Plan{Format: Format, Kind: Response, Analysis: analysis, Out: out}
+	for s := range parts {
+		p.Shards = append(p.Shards, Shard{Index: s})
 	}
 	return p, nil
 }
@@ -216,6 +235,20 @@ func Read(dir string) (*Plan, error) {
 // check reports whether the units cover the toys in order and the shards
 // the units.
 func (p *Plan) check() error {
+	if p.Kind == Response {
+		for i, s := range p.Shards {
+			if s.Index != i || s.Units != 0 {
+				return fmt.Errorf("shard %d is not part %d of the response", i, i)
+			}
+		}
+		if len(p.Shards) == 0 || p.Toys != nil || len(p.Units) > 0 {
+			return fmt.Errorf("a response plan has parts and no toys")
+		}
+		return nil
+	}
+	if p.Toys == nil {
+		return fmt.Errorf("a toy plan without toy settings")
+	}
 	next := 0
 	for i, u := range p.Units {
 		if u.Index != i || u.FirstToy != next || u.Toys < 1 {
@@ -240,10 +273,14 @@ func (p *Plan) check() error {
 }
 
 // CheckInputs reports whether the analysis file and the assembled
-// problem are those the plan was made from.
+// problem are those the plan was made from (the analysis file only for
+// a response plan: problemSum is not used).
 func (p *Plan) CheckInputs(analysisSum, problemSum string) error {
 	if analysisSum != p.Analysis.SHA256 {
 		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(analysisSum), short(p.Analysis.SHA256))
+	}
+	if p.Kind == Response {
+		return nil
 	}
 	if problemSum != p.Problem {
 		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(problemSum), short(p.Problem))

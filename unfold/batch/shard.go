@@ -14,6 +14,7 @@ import (
 	"strings"
 
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
+	"github.com/desmear/desmear/unfold/response"
 	"github.com/desmear/desmear/unfold/validate"
 )
 
@@ -35,6 +36,40 @@ type partial struct {
 	FirstToy int                `json:"first_toy"`
 	Toys     int                `json:"toys"`
 	Ensemble *validate.Ensemble `json:"ensemble"`
+}
+
+// PartPath returns the folder of response part s in the work folder
+// dir.
+func PartPath(dir string, s int) string {
+	return filepath.Join(dir, PartDir, fmt.Sprintf("part-%05d", s))
+}
+
+// PartDir is the folder of the response parts in a work folder.
+const PartDir = "parts"
+
+// readPart reads response part s; a missing part is reported with
+// fs.ErrNotExist, a part of another analysis file or plan with an error
+// saying so.
+func (p *Plan) readPart(dir string, s int) (*response.Part, error) {
+	path := PartPath(dir, s)
+	if _, err := os.Stat(path); err != nil {
+		return nil, err
+	}
+	pt, err := response.LoadPart(path)
+	if err != nil {
+		return nil, err
+	}
+	if pt.Info.Analysis != p.Analysis.SHA256 || pt.Info.Index != s || pt.Info.Count != len(p.Shards) {
+		return nil, fmt.Errorf("%s: part %d of %d of another analysis file, not part %d of %d of the plan", path, pt.Info.Index, pt.Info.Count, s, len(p.Shards))
+	}
+	return pt, nil
+}
+
+// PartDone reports whether response part s of the plan is present and
+// belongs to it (then running it again does nothing).
+func (p *Plan) PartDone(dir string, s int) bool {
+	_, err := p.readPart(dir, s)
+	return err == nil
 }
 
 // readShard reads the file of shard s; a missing file is reported with
@@ -69,6 +104,9 @@ func (p *Plan) readShard(dir string, s int) (*partial, error) {
 func RunShard(ctx context.Context, dir string, p *Plan, s int, c *validate.Config) (bool, error) {
 	if s < 0 || s >= len(p.Shards) {
 		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
+	}
+	if p.Kind != Toys {
+		return false, fmt.Errorf("batch: the plan is of a %s, not of toys", p.Kind)
 	}
 	if _, err := p.readShard(dir, s); err == nil {
 		return false, nil
@@ -113,11 +151,20 @@ type Progress struct {
 func Status(dir string, p *Plan) (*Progress, error) {
 	pr := &Progress{Bad: map[int]error{}}
 	for s := range p.Shards {
-		pt, err := p.readShard(dir, s)
+		var err error
+		toys := 0
+		if p.Kind == Response {
+			_, err = p.readPart(dir, s)
+		} else {
+			var pt *partial
+			if pt, err = p.readShard(dir, s); err == nil {
+				toys = pt.Toys
+			}
+		}
 		switch {
 		case err == nil:
 			pr.Done = append(pr.Done, s)
-			pr.ToysDone += pt.Toys
+			pr.ToysDone += toys
 		case errors.Is(err, fs.ErrNotExist):
 			pr.Missing = append(pr.Missing, s)
 		default:
@@ -141,14 +188,12 @@ func (pr *Progress) Todo() []int {
 	return t
 }
 
-// Merge reads every shard of the plan and merges their toys in toy
-// order: the ensemble of one run over every toy, bit for bit. It is an
-// error, listing the shards, if any is missing or does not belong to the
-// plan.
-func Merge(dir string, p *Plan) (*validate.Ensemble, error) {
+// done checks that every shard of the plan is done, listing those that
+// are not.
+func (p *Plan) done(dir string) error {
 	pr, err := Status(dir, p)
 	if err != nil {
-		return nil, err
+		return err
 	}
 	if todo := pr.Todo(); len(todo) > 0 {
 		var why []string
@@ -160,7 +205,44 @@ func Merge(dir string, p *Plan) (*validate.Ensemble, error) {
 				why = append(why, err.Error())
 			}
 		}
-		return nil, fmt.Errorf("batch: %d of %d shards are not done (%s): run them, then merge", len(todo), len(p.Shards), strings.Join(why, "; "))
+		return fmt.Errorf("batch: %d of %d shards are not done (%s): run them, then merge", len(todo), len(p.Shards), strings.Join(why, "; "))
+	}
+	return nil
+}
+
+// MergeResponse reads every response part of the plan and merges them
+// in shard order (response.MergeParts): the response of one build, bit
+// for bit. It is an error, listing the parts, if any is missing or does
+// not belong to the plan.
+func MergeResponse(dir string, p *Plan) (*response.Built, *response.BundleInfo, error) {
+	if p.Kind != Response {
+		return nil, nil, fmt.Errorf("batch: the plan is of %s, not of a response", p.Kind)
+	}
+	if err := p.done(dir); err != nil {
+		return nil, nil, err
+	}
+	parts := make([]*response.Part, len(p.Shards))
+	names := make([]string, len(p.Shards))
+	for s := range p.Shards {
+		pt, err := p.readPart(dir, s)
+		if err != nil {
+			return nil, nil, err
+		}
+		parts[s], names[s] = pt, PartPath(dir, s)
+	}
+	return response.MergeParts(parts, names)
+}
+
+// Merge reads every shard of the plan and merges their toys in toy
+// order: the ensemble of one run over every toy, bit for bit. It is an
+// error, listing the shards, if any is missing or does not belong to the
+// plan.
+func Merge(dir string, p *Plan) (*validate.Ensemble, error) {
+	if p.Kind != Toys {
+		return nil, fmt.Errorf("batch: the plan is of a %s, not of toys", p.Kind)
+	}
+	if err := p.done(dir); err != nil {
+		return nil, err
 	}
 	parts := make([]*validate.Ensemble, len(p.Shards))
 	for s := range p.Shards {
