@@ -51,7 +51,9 @@ func sameSums(a, b map[string]string) bool {
 // (the file set and contents of an uninterrupted run), never a mix. The
 // JSON files left must parse. A kill cannot be caught, so this checks
 // that the output is installed in one step (common practice: write
-// under a temporary name, rename into place).
+// under a temporary name, rename into place). With the demo's inputs
+// installed before its analysis (as they once were), several of these
+// kills leave inputs without a result and the test fails.
 func TestKillLeavesWholeOutputs(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds the binary and runs it; skipped with -short")
@@ -103,7 +105,7 @@ func TestKillLeavesWholeOutputs(t *testing.T) {
 			} else {
 				os.RemoveAll(c.target)
 			}
-			for k := range 3 {
+			for k := range 6 {
 				at := time.Duration(rng.Float64() * float64(took))
 				cmd := exec.Command(bin, args...)
 				if err := cmd.Start(); err != nil {
