@@ -20,7 +20,10 @@
 // into distinct cells, in memory that grows with the number of distinct
 // cells, and returns the Matrix. Its result depends only on the ordered
 // stream of entries (batches concatenated in sequence order), never on
-// the number of goroutines or their scheduling.
+// the number of goroutines or their scheduling. Sum merges matrices
+// cell by cell in argument order, so that partial matrices (of event
+// shards) merged in a fixed order give the same bits however they were
+// grouped.
 //
 // # Kernels
 //

@@ -474,11 +474,15 @@ func (m *Prepared) Clipped() []int { return m.clip }
 // Columns returns the number of columns of the Jacobian dμ/d(n, b): the
 // reco bins, twice when the background variance is propagated (columns
 // RecoBins().. are then the background bins).
-func (m *Prepared) Columns() int {
-	if m.varB != nil {
-		return 2 * m.nr
+func (m *Prepared) Columns() int { return columns(m.nr, m.varB != nil) }
+
+// columns is the number of columns of the Jacobian for nr reco bins, with
+// or without the background variance propagated as columns of its own.
+func columns(nr int, varB bool) int {
+	if varB {
+		return 2 * nr
 	}
-	return m.nr
+	return nr
 }
 
 // Net returns Σ_i (n_i − b_i) of the data as the fit uses them (in

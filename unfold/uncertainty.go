@@ -21,6 +21,23 @@ type plan struct {
 	toyWorkers int
 }
 
+// FullCovarianceBytes returns the memory estimate of the full covariance
+// of p under s (the dense Jacobian, two buffers, and the covariance
+// matrix: 16 bytes per truth bin and Jacobian column plus 8 per pair of
+// truth bins), the figure Unfold compares with the memory limit; 0 when s
+// does not ask for the full covariance. The background variance adds a
+// column per reco bin when it is propagated (background in the model).
+// It lets a caller state the memory before the computation starts.
+func FullCovarianceBytes(p *Problem, s *Settings) (int64, error) {
+	rs, err := s.Resolve()
+	if err != nil || rs.Covariance != Full || p.Migrations == nil {
+		return 0, err
+	}
+	nr, nt := p.Migrations.Dims()
+	varB := p.BackgroundVariance != nil && rs.Background == InModel
+	return denseBytes(nt, columns(nr, varB), true), nil
+}
+
 // planUncertainty chooses the computation of rs for m and refuses, with a
 // *TooLargeError, what does not fit under the memory limit.
 func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {

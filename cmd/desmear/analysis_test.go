@@ -175,9 +175,21 @@ func TestAnalysisEndToEnd(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("plain unfold: exit %d\n%s", code, stderr)
 	}
+	// The tables carry statistical variances only: the background's scale
+	// uncertainty is a correlated source of the analysis (method.md §21),
+	// so the plain-table uncertainty equals the analysis's data source.
 	a, b := readAnalysisResult(t, filepath.Join(dir, "result")), readAnalysisResult(t, plain)
-	if !slices.Equal(a.Estimate, b.Estimate) || !slices.Equal(a.Uncertainty, b.Uncertainty) || len(a.Estimate) != 8 {
-		t.Errorf("analysis %v ± %v\nplain    %v ± %v", a.Estimate, a.Uncertainty, b.Estimate, b.Uncertainty)
+	var data []float64
+	for _, s := range a.Sources {
+		if s.Name == "data" {
+			data = s.Uncertainty
+		}
+	}
+	if !slices.Equal(a.Estimate, b.Estimate) || !slices.Equal(data, b.Uncertainty) || len(a.Estimate) != 8 {
+		t.Errorf("analysis %v ± %v (data)\nplain    %v ± %v", a.Estimate, data, b.Estimate, b.Uncertainty)
+	}
+	if len(a.Sources) != 2 || a.Sources[1].Name == "data" {
+		t.Errorf("analysis sources %+v, want data and the background's scale", a.Sources)
 	}
 
 	// The background table holds the fakes plus 0.5 × b.csv, with
@@ -194,6 +206,10 @@ func TestAnalysisEndToEnd(t *testing.T) {
 type analysisResultJSON struct {
 	Estimate    []float64 `json:"estimate"`
 	Uncertainty []float64 `json:"uncertainty"`
+	Sources     []struct {
+		Name        string    `json:"name"`
+		Uncertainty []float64 `json:"uncertainty"`
+	} `json:"sources"`
 }
 
 func readAnalysisResult(t *testing.T, dir string) analysisResultJSON {

@@ -100,7 +100,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 		{"a flipped byte", "migrations.dsm", func(b []byte) []byte { b[len(b)/2] ^= 1; return b }, "migrations.dsm: changed since the bundle was written"},
 		{"no manifest", "manifest.sha256", nil, "manifest.sha256: missing"},
 		{"version 1", "response.json", func(b []byte) []byte {
-			return []byte(strings.Replace(string(b), `"format_version": 2`, `"format_version": 1`, 1))
+			return []byte(strings.Replace(string(b), `"format_version": 3`, `"format_version": 1`, 1))
 		}, "format version 1, which carries no checksums and is no longer read; build the response again"},
 	} {
 		p := filepath.Join(saved, c.file)

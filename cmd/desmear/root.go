@@ -68,6 +68,7 @@ measurement from simulated events and unfolds it.
 		newValidateCommand(g),
 		newBenchCommand(g),
 		newReportCommand(g),
+		newBatchCommand(g),
 	)
 	root.SetHelpCommand(newHelpCommand(root))
 	for _, c := range root.Commands() {

@@ -37,6 +37,7 @@ type unfoldOptions struct {
 	response, generated, data, background, prior string
 	compare                                      string
 	truthBinning, recoBinning                    string
+	rootSliceAxis                                string
 
 	method        string
 	iterations    int
@@ -189,6 +190,7 @@ shortcut, same truth and reco binning only). See "desmear help method".`,
 	f.StringVar(&o.out, "out", "", "result folder `DIR` to create")
 	f.BoolVar(&o.force, "force", false, "replace DIR if it holds an earlier result (or is empty)")
 	f.StringSliceVar(&o.formats, "formats", result.DefaultFormats(), formatsUsage())
+	f.StringVar(&o.rootSliceAxis, "root-slice-axis", "", "axis `NAME` of the truth binning along which result.root's slice histograms run (regions without it: their last axis; default the last axis of each region)")
 	f.BoolVar(&o.noReport, "no-report", false, "write no plots and no report.html (the report format; \"desmear report DIR\" writes them later)")
 	return cmd
 }
@@ -270,6 +272,8 @@ func (o *unfoldOptions) check(cmd *cobra.Command) error {
 		return usagef("--tau %v: give a tau > 0 (or leave it out to choose tau with --tau-criterion)", o.tau)
 	case changed("tau") && changed("tau-criterion"):
 		return usagef("give either --tau (a fixed tau) or --tau-criterion (to choose it), not both")
+	case o.rootSliceAxis != "" && o.truthBinning == "":
+		return usagef("--root-slice-axis needs --truth-binning (the slices follow the axes of the truth binning)")
 	case o.widths && o.truthBinning == "":
 		return usagef("--divide-by-widths needs --truth-binning (the widths are those of the truth bins)")
 	case changed("background-mode") && o.background == "":
@@ -497,6 +501,11 @@ func loadPlain(o *unfoldOptions) (*plainInputs, error) {
 	if err := scheme("reco-binning", o.recoBinning, &pi.reco); err != nil {
 		return nil, err
 	}
+	if o.rootSliceAxis != "" {
+		if _, err := result.SlicesAlong(pi.truth, o.rootSliceAxis); err != nil {
+			return nil, usagef("--root-slice-axis: %v", err)
+		}
+	}
 	if err := add(readHashed("response", "response table", o.response, func(r io.Reader) (err error) {
 		pi.set.Response, err = tables.ReadResponse(r, o.response)
 		return err
@@ -648,6 +657,9 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 			return o.kernelErr(&pi.set, err)
 		}
 	}
+	if b, err := unfold.FullCovarianceBytes(prob, settings); err == nil && b >= 64<<20 {
+		fmt.Fprintf(g.stderr, "note: the full covariance takes about %.0f MB of memory (dense Jacobian and covariance matrix)\n", float64(b)/1e6)
+	}
 	res, err := unfold.Unfold(ctx, prob, settings, method)
 	if err != nil {
 		return o.kernelErr(&pi.set, err)
@@ -672,6 +684,7 @@ func runUnfold(ctx context.Context, g *globalOptions, o *unfoldOptions) error {
 	}
 	if pi.truth != nil {
 		r.TruthBinning = result.DescribeBinning(pi.truth, o.truthBinning)
+		r.SliceAxis = o.rootSliceAxis
 	}
 	if pi.reco != nil {
 		r.RecoBinning = result.DescribeBinning(pi.reco, o.recoBinning)

@@ -167,24 +167,8 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 	if err != nil {
 		return err
 	}
-	opt := &validate.Options{
-		Method:  v.method.WithIterations,
-		Nominal: v.method, MaxK: o.maxK, Toys: o.toys, Seed: o.seed,
-		Criterion: o.criterion, Threshold: o.threshold, Weights: v.stress,
-	}
-	if v.truth != nil && o.tilt > 0 {
-		opt.TiltScheme, opt.TiltPercent = v.truth, o.tilt
-	}
-	if o.truth != "" {
-		t, err := tables.LoadVector(o.truth, tables.Prior)
-		if err != nil {
-			return inputErr(fmt.Errorf("--truth: %w", err))
-		}
-		if opt.Truth, _, err = t.Dense(len(v.prob.Generated), "the response's truth bins"); err != nil {
-			return inputErr(fmt.Errorf("--truth: %w", err))
-		}
-		opt.TruthSource = o.truth
-	} else if err := v.toyTruth(o, opt); err != nil {
+	opt, err := v.options(o)
+	if err != nil {
 		return err
 	}
 	p := newProgress(g)
@@ -200,11 +184,7 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 		}
 		return v.locate(err)
 	}
-	if v.truth != nil {
-		for j := range rep.Truth {
-			rep.Labels = append(rep.Labels, v.truth.Label(j))
-		}
-	}
+	v.label(rep)
 	if err := validate.WriteFolder(o.out, o.force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
 		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
 			return refusedFolder(err, o.out, "validation folder", validate.JSONFile)
@@ -220,6 +200,40 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 		return ioErr(err)
 	}
 	return nil
+}
+
+// label names the truth bins of rep (when there is a truth binning).
+func (v *validation) label(rep *validate.Report) {
+	if v.truth != nil {
+		for j := range rep.Truth {
+			rep.Labels = append(rep.Labels, v.truth.Label(j))
+		}
+	}
+}
+
+// options are the validation options of o for v.
+func (v *validation) options(o *validateOptions) (*validate.Options, error) {
+	opt := &validate.Options{
+		Method:  v.method.WithIterations,
+		Nominal: v.method, MaxK: o.maxK, Toys: o.toys, Seed: o.seed,
+		Criterion: o.criterion, Threshold: o.threshold, Weights: v.stress,
+	}
+	if v.truth != nil && o.tilt > 0 {
+		opt.TiltScheme, opt.TiltPercent = v.truth, o.tilt
+	}
+	if o.truth != "" {
+		t, err := tables.LoadVector(o.truth, tables.Prior)
+		if err != nil {
+			return nil, inputErr(fmt.Errorf("--truth: %w", err))
+		}
+		if opt.Truth, _, err = t.Dense(len(v.prob.Generated), "the response's truth bins"); err != nil {
+			return nil, inputErr(fmt.Errorf("--truth: %w", err))
+		}
+		opt.TruthSource = o.truth
+	} else if err := v.toyTruth(o, opt); err != nil {
+		return nil, err
+	}
+	return opt, nil
 }
 
 // loadValidationAnalysis loads the analysis file and assembles its

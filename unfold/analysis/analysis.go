@@ -14,6 +14,7 @@ import (
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/methods"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -200,6 +201,12 @@ type Output struct {
 	Formats        []string
 	Luminosity     float64
 	LuminosityUnit string
+	// RootSliceAxis is the axis the ROOT slice histograms run along
+	// ("" for the last axis of each region; see result.SlicesAlong).
+	RootSliceAxis string
+	// Derived lists the derived quantities of output.derived, checked
+	// against the truth binning.
+	Derived []*derive.Quantity
 }
 
 // Load reads, decodes and checks the analysis file at path. Problems in
@@ -404,6 +411,12 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		c.errf(c.line("output", "luminosity"), "result.luminosity", "must be a positive integrated luminosity")
 	}
 
+	if a.Output.RootSliceAxis = strings.TrimSpace(o.RootSliceAxis); a.Output.RootSliceAxis != "" && a.Truth != nil {
+		if _, err := result.SlicesAlong(a.Truth, a.Output.RootSliceAxis); err != nil {
+			c.errf(c.line("output", "root_slice_axis"), "output.root_slice_axis", "%v", err)
+		}
+	}
+	c.derived(a, o.Derived)
 	c.stress(a, doc.Validation.Stress)
 	if nodeAt(root, "compare") != nil {
 		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))

@@ -177,10 +177,22 @@ type uncertainDoc struct {
 }
 
 type outputDoc struct {
-	Folder         string   `yaml:"folder"`
-	Formats        []string `yaml:"formats"`
-	Luminosity     float64  `yaml:"luminosity"`
-	LuminosityUnit string   `yaml:"luminosity_unit"`
+	Folder         string       `yaml:"folder"`
+	Formats        []string     `yaml:"formats"`
+	Luminosity     float64      `yaml:"luminosity"`
+	LuminosityUnit string       `yaml:"luminosity_unit"`
+	RootSliceAxis  string       `yaml:"root_slice_axis"`
+	Derived        []derivedDoc `yaml:"derived"`
+}
+
+type derivedDoc struct {
+	Name           string   `yaml:"name"`
+	Region         string   `yaml:"region"`
+	Kind           string   `yaml:"kind"`
+	Axes           []string `yaml:"axes"`
+	PerSlice       []string `yaml:"per_slice"`
+	DivideByWidths []string `yaml:"divide_by_widths"`
+	Luminosity     bool     `yaml:"luminosity"`
 }
 
 type processingDoc struct {
@@ -245,6 +257,7 @@ var sections = map[reflect.Type]string{
 	reflect.TypeFor[unfoldingDoc]():  "unfolding",
 	reflect.TypeFor[uncertainDoc]():  "uncertainty",
 	reflect.TypeFor[outputDoc]():     "output",
+	reflect.TypeFor[derivedDoc]():    "a derived quantity",
 	reflect.TypeFor[processingDoc](): "processing",
 	reflect.TypeFor[validationDoc](): "validation",
 	reflect.TypeFor[stressDoc]():     "a stress test",
@@ -258,6 +271,7 @@ var lists = map[reflect.Type]string{
 	reflect.TypeFor[[]bkgDoc]():       "a list of backgrounds (- name: ...)",
 	reflect.TypeFor[[]stressDoc]():    "a list of stress tests (- name: ...)",
 	reflect.TypeFor[[]variationDoc](): "a list of variations (- name: ...)",
+	reflect.TypeFor[[]derivedDoc]():   "a list of derived quantities (- name: ...)",
 }
 
 var unmarshaler = reflect.TypeFor[yaml.Unmarshaler]()

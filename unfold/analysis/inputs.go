@@ -157,3 +157,11 @@ func readFunc(src events.Source, cols []string, batch int) response.ReadFunc {
 		})
 	}
 }
+
+func readRangeFunc(src events.Source, cols []string, batch int) func(context.Context, int64, int64, func(int64, int, [][]float64) error) error {
+	return func(ctx context.Context, lo, hi int64, fn func(int64, int, [][]float64) error) error {
+		return src.ReadRange(ctx, cols, lo, hi, batch, func(b *events.Batch) error {
+			return fn(b.Start, b.Len, b.Cols)
+		})
+	}
+}

@@ -8,6 +8,8 @@ import (
 	"path/filepath"
 	"strings"
 
+	"gonum.org/v1/gonum/mat"
+
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -282,6 +284,14 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 		}
 	}
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
+	doc.SliceAxis = a.Output.RootSliceAxis
+	for _, q := range a.Output.Derived {
+		var cov mat.Symmetric
+		if c := out.Result.Covariance; c != nil {
+			cov = c
+		}
+		doc.Derived = append(doc.Derived, result.NewDerived(q, out.Result.Estimate, cov))
+	}
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
 	if out.Data.OutsideContent != 0 {

@@ -13,6 +13,7 @@ import (
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
+	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/inputs/tables"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 	"github.com/desmear/desmear/unfold/methods/binbybin"
@@ -32,12 +33,25 @@ type Options struct {
 	Progress func(stage string, done, total int64)
 	// Version is the program version recorded in the outputs.
 	Version string
+	// ShardEvents is the number of events of a response shard; 0 means
+	// response.DefaultShardEvents. It is part of the definition of the
+	// response (sums are formed shard by shard), recorded in the bundle
+	// and in each part.
+	ShardEvents int64
+
 	// Staged and Final, when both are set, say that the analysis file
 	// lies in a folder being written under the temporary name Staged,
 	// to be installed at Final once the run is done: the paths under
 	// Staged are recorded in the result and in the Outcome as under
 	// Final, where they will be.
 	Staged, Final string
+}
+
+func (o *Options) shardEvents() int64 {
+	if o == nil || o.ShardEvents <= 0 {
+		return response.DefaultShardEvents
+	}
+	return o.ShardEvents
 }
 
 // shown returns the path p as recorded in the outputs (see
@@ -141,6 +155,9 @@ func (a *Analysis) BuildResponse(ctx context.Context, opt *Options) (*response.B
 }
 
 // buildResponse is BuildResponse once the simulation's inputs are checked.
+// The response is the merge, in shard order, of the partial responses of
+// every shard (response.ShardRanges of each sample), so that it equals
+// bit for bit the merge of parts built separately (BuildPart).
 func (a *Analysis) buildResponse(ctx context.Context, opt *Options) (*response.Built, *response.BundleInfo, error) {
 	return a.buildFrom(ctx, opt, a.Simulation, "")
 }
@@ -151,12 +168,15 @@ func (a *Analysis) buildFrom(ctx context.Context, opt *Options, samples []Sample
 	if len(samples) == 0 {
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
-	info := &response.BundleInfo{TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco)}
+	size := opt.shardEvents()
+	info := &response.BundleInfo{TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco),
+		ShardEvents: size}
 	if opt != nil {
 		info.Program = opt.Version
 	}
 	b := response.NewBuilder(a.Truth, a.Reco)
-	for _, s := range samples {
+	b.ShardEvents = size
+	for i, s := range samples {
 		sim, src, err := a.simulation(&s)
 		if err != nil {
 			return nil, nil, err
@@ -183,12 +203,105 @@ func (a *Analysis) buildFrom(ctx context.Context, opt *Options, samples []Sample
 		}
 		info.Inputs = append(info.Inputs, h.in)
 		info.Samples = append(info.Samples, response.SampleSummary{File: s.File, Summary: sum})
+		for _, rg := range response.ShardRanges(sum.Events, size) {
+			info.Shards = append(info.Shards, response.Shard{Sample: i, File: s.File, SHA256: h.in.SHA256, Lo: rg[0], Hi: rg[1]})
+		}
 	}
 	r, err := b.Build()
 	if err != nil {
 		return nil, nil, err
 	}
 	return r, info, nil
+}
+
+// BuildPart builds part index of count of the response: the shards of
+// every simulated sample are numbered in order (response.ShardRanges of
+// each sample; a CSV file is scanned once to count its events), and the
+// part holds the partial responses of its block of them
+// (response.PartShards), read by event range. Merging the count parts
+// (response.MergeParts) gives the response BuildResponse gives, bit for
+// bit.
+func (a *Analysis) BuildPart(ctx context.Context, index, count int, opt *Options) (*response.Part, error) {
+	if len(a.Simulation) == 0 {
+		return nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
+	}
+	if count < 1 || index < 0 || index >= count {
+		return nil, fmt.Errorf("part %d of %d: give a part number from 0 to the number of parts minus 1", index, count)
+	}
+	if err := a.CheckInputs(true, false); err != nil {
+		return nil, err
+	}
+	an, err := inputs.Hash("analysis", a.File)
+	if err != nil {
+		return nil, err
+	}
+	size := opt.shardEvents()
+	info := response.PartInfo{Analysis: an.SHA256, TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco),
+		ShardEvents: size, Index: index, Count: count}
+	if opt != nil {
+		info.Program = opt.Version
+	}
+	for i, s := range a.Simulation {
+		in, err := inputs.Hash("simulation", s.File)
+		if err != nil {
+			return nil, &Error{File: a.File, Line: s.Line, Field: s.Field + ".file", Msg: fmt.Sprintf("cannot read the simulation file: %v", unwrapPath(err)), Err: err}
+		}
+		info.Inputs = append(info.Inputs, in)
+		src, err := a.openEvents(s.File, s.Tree, s.Field+".file", s.Line)
+		if err != nil {
+			return nil, err
+		}
+		n, err := events.Count(ctx, src)
+		src.Close()
+		if err != nil {
+			return nil, a.eventsErr(s.Field, s.Line, err)
+		}
+		for _, rg := range response.ShardRanges(n, size) {
+			info.Shards = append(info.Shards, response.Shard{Sample: i, File: s.File, SHA256: in.SHA256, Lo: rg[0], Hi: rg[1]})
+		}
+	}
+	p := &response.Part{Info: info}
+	lo, hi := response.PartShards(index, count, len(info.Shards))
+	b := response.NewBuilder(a.Truth, a.Reco)
+	b.ShardEvents = size
+	for i, s := range a.Simulation {
+		// The part's shards of this sample: a consecutive range of events.
+		first, last := -1, -1
+		for k := lo; k < hi; k++ {
+			if info.Shards[k].Sample == i {
+				if first < 0 {
+					first = k
+				}
+				last = k
+			}
+		}
+		if first < 0 {
+			continue
+		}
+		sim, src, err := a.simulation(&s)
+		if err != nil {
+			return nil, err
+		}
+		number := first
+		b.OnShard = func(_ int, slo, shi int64, r *response.Built) error {
+			if sh := info.Shards[number]; sh.Lo != slo || sh.Hi != shi {
+				return fmt.Errorf("%s: the shard of events %d to %d was read as events %d to %d; the file changed while it was read", s.File, sh.Lo, sh.Hi, slo, shi)
+			}
+			p.Numbers = append(p.Numbers, number)
+			p.Partials = append(p.Partials, r)
+			number++
+			return nil
+		}
+		_, err = b.AddRange(ctx, sim, info.Shards[first].Lo, info.Shards[last].Hi, a.fillOptions(opt, "simulation "+s.File))
+		src.Close()
+		if err != nil {
+			return nil, a.eventsErr(s.Field, s.Line, err)
+		}
+		if number != last+1 {
+			return nil, fmt.Errorf("%s: %d shards read, want %d; the file changed while it was read", s.File, number-first, last+1-first)
+		}
+	}
+	return p, nil
 }
 
 // ErrResponseNeeded is wrapped by the error of LoadResponse (and Run)
@@ -311,6 +424,7 @@ func (a *Analysis) simulation(s *Sample) (*response.Simulation, closer, error) {
 		return nil, nil, err
 	}
 	sim.Read = readFunc(src, cols, a.BatchSize)
+	sim.ReadRange = readRangeFunc(src, cols, a.BatchSize)
 	ok = true
 	return sim, src, nil
 }

@@ -27,6 +27,7 @@ type Simulation struct {
 // entries are the migration entries of one batch on their way to the
 // accumulator.
 type entries struct {
+	end        *shardState // when not nil: the shard ends here
 	seq        uint64
 	rows, cols []int32
 	w          []float64
@@ -64,6 +65,9 @@ type Summary struct {
 	// negative.
 	NegativeGenerated []int `json:"negative_generated,omitempty"`
 }
+
+// Add adds the counts of o (not its cell lists) to s.
+func (s *Summary) Add(o *Summary) { s.add(o) }
 
 func (s *Summary) add(o *Summary) {
 	s.Events += o.Events
@@ -166,16 +170,27 @@ func ratio(a, b float64) float64 {
 // Builder builds a response from one or more simulated samples. Samples
 // are processed in the order they are added; the result depends only on
 // the samples and their order, never on the number of workers.
+//
+// The unit of building is the shard (ShardRanges): every shard of a
+// sample gets its own accumulator and histograms, and the partial
+// responses are merged in shard order (Merger). Building all shards in
+// one process, or some shards here and others elsewhere and merging the
+// partials in shard order, gives the same bits.
 type Builder struct {
 	truth, reco Locator
-	acc         *sparse.Accumulator
-	seq         uint64 // batches fed to acc so far
-	gen, gen2   []float64
-	fake, fake2 []float64
-	diag, rit   []float64
-	sum         Summary
+	merger      *Merger
 	withDiag    bool
 	samples     int
+	// OnShard, when not nil, receives the partial response of every
+	// shard as it is finished, in shard order, instead of the Builder
+	// merging it (Build then has nothing to return). sample is the
+	// number of the sample (0 for the first Add or AddRange), [lo, hi)
+	// its events in the shard. The partial's Summary carries no cell
+	// lists: negative cells are decided after the merge.
+	OnShard func(sample int, lo, hi int64, p *Built) error
+	// ShardEvents is the number of events of a shard; 0 means
+	// DefaultShardEvents. It is part of the definition of the result.
+	ShardEvents int64
 }
 
 // NewBuilder returns a Builder for the given truth and reco schemes.
@@ -184,22 +199,92 @@ func NewBuilder(truth, reco Locator) *Builder {
 	if nt >= math.MaxInt32 || nr >= math.MaxInt32 {
 		panic("response: scheme too large")
 	}
-	acc, err := sparse.NewAccumulator(nr, nt, nil)
-	if err != nil {
-		panic(err)
-	}
-	return &Builder{
-		truth: truth, reco: reco, acc: acc,
-		gen: make([]float64, nt), gen2: make([]float64, nt),
-		fake: make([]float64, nr), fake2: make([]float64, nr),
-		diag: make([]float64, nt), rit: make([]float64, nt),
-	}
+	return &Builder{truth: truth, reco: reco, merger: NewMerger(nt, nr)}
+}
+
+// shardState is what a shard has gathered so far, on its way from the
+// event loop to the accumulator's goroutine.
+type shardState struct {
+	lo, hi      int64
+	gen, gen2   []float64
+	fake, fake2 []float64
+	diag, rit   []float64
+	sum         Summary
 }
 
 // Add streams the events of sim into the response. It returns the
 // counts for this sample alone. On error (a bad event, a read failure,
 // cancellation) the Builder must not be used further.
 func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summary, error) {
+	return b.add(ctx, sim, sim.Read, opt)
+}
+
+// AddRange streams the events [lo, hi) of sim into the response, with
+// sim.ReadRange; lo must be a multiple of ShardEvents, so that the range
+// is made of whole shards (hi may end the sample). An empty range gives
+// one empty shard. It returns the counts of the range.
+func (b *Builder) AddRange(ctx context.Context, sim *Simulation, lo, hi int64, opt *Options) (Summary, error) {
+	if lo%b.shardEvents() != 0 || hi < lo {
+		panic("response: AddRange of a range that is not made of whole shards")
+	}
+	if sim.ReadRange == nil {
+		panic("response: AddRange of a sample without ReadRange")
+	}
+	read := func(ctx context.Context, fn func(int64, int, [][]float64) error) error {
+		return sim.ReadRange(ctx, lo, hi, fn)
+	}
+	s, err := b.add(ctx, sim, read, opt)
+	if err == nil && lo == hi {
+		err = b.emptyShard(lo)
+	}
+	return s, err
+}
+
+// emptyShard hands on the partial of a shard without events.
+func (b *Builder) emptyShard(lo int64) error {
+	acc, err := sparse.NewAccumulator(b.reco.Len(), b.truth.Len(), nil)
+	if err != nil {
+		panic(err)
+	}
+	st := b.newShard(lo)
+	st.hi = lo
+	return b.finishShard(acc, st)
+}
+
+func (b *Builder) newShard(lo int64) *shardState {
+	nt, nr := b.truth.Len(), b.reco.Len()
+	st := &shardState{lo: lo, hi: lo,
+		gen: make([]float64, nt), gen2: make([]float64, nt),
+		fake: make([]float64, nr), fake2: make([]float64, nr)}
+	if b.withDiag {
+		st.diag, st.rit = make([]float64, nt), make([]float64, nt)
+	}
+	return st
+}
+
+// finishShard turns the shard's accumulator and histograms into its
+// partial response and hands it on.
+func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
+	m, _, err := acc.Matrix()
+	if err != nil {
+		return err
+	}
+	p := &Built{Migrations: m, Generated: st.gen, GeneratedSumW2: st.gen2, Fakes: st.fake, FakesSumW2: st.fake2,
+		Diagonal: st.diag, RecoInTruth: st.rit, Summary: st.sum}
+	if b.OnShard != nil {
+		return b.OnShard(b.samples-1, st.lo, st.hi, p)
+	}
+	return b.merger.Add(p)
+}
+
+func (b *Builder) shardEvents() int64 {
+	if b.ShardEvents > 0 {
+		return b.ShardEvents
+	}
+	return DefaultShardEvents
+}
+
+func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *Options) (Summary, error) {
 	withDiag := sim.RecoInTruth != nil
 	if b.samples == 0 {
 		b.withDiag = withDiag
@@ -216,7 +301,6 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 		}
 		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
 	}
-	seq0 := b.seq
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
 		truth, reco := sim.Truth.instantiate(), sim.Reco.instantiate()
@@ -242,9 +326,10 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 			return nil
 		}
 	}
-	// The entries go to the accumulator from a goroutine of their own, in
-	// batch order (batch number seq0+bt.seq of its entry stream), so that
-	// its chunk sorting overlaps with reading and locating.
+	// The entries go to the shard's accumulator from a goroutine of their
+	// own, in batch order within the shard, so that its chunk sorting
+	// overlaps with reading and locating; a message with end set closes
+	// the shard there.
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	const queued = 64
@@ -254,103 +339,114 @@ func (b *Builder) Add(ctx context.Context, sim *Simulation, opt *Options) (Summa
 	}
 	ech := make(chan *entries, queued)
 	accDone := make(chan error, 1)
+	nt, nr := b.truth.Len(), b.reco.Len()
 	go func() {
 		var err error
+		var acc *sparse.Accumulator
 		for e := range ech {
+			if err == nil && acc == nil {
+				if acc, err = sparse.NewAccumulator(nr, nt, nil); err != nil {
+					panic(err)
+				}
+			}
 			if err == nil {
-				if err = b.acc.AddBatch(e.seq, e.rows, e.cols, e.w); err != nil {
+				if e.end != nil {
+					err = b.finishShard(acc, e.end)
+					acc = nil
+				} else {
+					err = acc.AddBatch(e.seq, e.rows, e.cols, e.w)
+				}
+				if err != nil {
 					cancel()
 				}
 			}
+			e.end = nil
 			epool <- e
 		}
 		accDone <- err
 	}()
 	var s Summary
-	consume := func(bt *batch) error {
+	var st *shardState
+	var seq uint64 // batches of the shard
+	size := b.shardEvents()
+	endShard := func() {
 		e := <-epool
-		e.seq = seq0 + uint64(bt.seq)
+		e.end = st
+		ech <- e
+		s.add(&st.sum)
+		st = nil
+	}
+	consume := func(bt *batch) error {
+		if k := bt.start / size; st != nil && st.lo/size != k {
+			endShard()
+		}
+		if st == nil {
+			st = b.newShard(bt.start / size * size)
+			seq = 0
+		}
+		st.hi = bt.start + int64(bt.n)
+		st.sum.Events += int64(bt.n)
+		e := <-epool
+		e.seq = seq
+		seq++
 		e.rows, bt.erows = bt.erows, e.rows[:0]
 		e.cols, bt.ecols = bt.ecols, e.cols[:0]
 		e.w, bt.ew = bt.ew, e.w[:0]
 		ech <- e
+		sm := &st.sum
 		for k := 0; k < bt.n; k++ {
 			w := bt.w[k]
 			t, r := bt.truth[k], bt.reco[k]
 			if r == codeOutside {
-				s.OutsideReco++
+				sm.OutsideReco++
 			}
 			switch {
 			case t >= 0:
-				b.gen[t] += w
-				b.gen2[t] += w * w
+				st.gen[t] += w
+				st.gen2[t] += w * w
 				if r >= 0 {
-					s.Entries++
+					sm.Entries++
 				} else {
-					s.Misses++
+					sm.Misses++
 				}
 			default:
 				if t == codeOutside {
-					s.OutsideTruth++
+					sm.OutsideTruth++
 				}
 				if r >= 0 {
-					b.fake[r] += w
-					b.fake2[r] += w * w
-					s.Fakes++
+					st.fake[r] += w
+					st.fake2[r] += w * w
+					sm.Fakes++
 				}
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					b.rit[d] += w
+					st.rit[d] += w
 					if d == t {
-						b.diag[d] += w
+						st.diag[d] += w
 					}
 				}
 			}
 		}
 		return nil
 	}
-	n, batches, err := stream(ctx, &sim.Sample, opt, newWork, consume)
+	_, _, err := stream(ctx, &sim.Sample, read, size, opt, newWork, consume)
+	if err == nil && st != nil {
+		endShard()
+	}
 	close(ech)
 	if aerr := <-accDone; aerr != nil && err == nil || errors.Is(err, context.Canceled) && aerr != nil {
 		err = aerr
 	}
-	b.seq += uint64(batches)
-	s.Events = n
-	if err != nil {
-		return s, err
-	}
-	b.sum.add(&s)
-	return s, nil
+	return s, err
 }
 
-// Response returns the built response. The Builder must not be used
-// afterwards.
+// Build returns the built response: the partials of every shard merged
+// in shard order. The Builder must not be used afterwards.
 func (b *Builder) Build() (*Built, error) {
-	m, rep, err := b.acc.Matrix()
-	b.acc = nil
-	if err != nil {
-		return nil, err
-	}
-	r := &Built{
-		Migrations: m,
-		Generated:  b.gen, GeneratedSumW2: b.gen2,
-		Fakes: b.fake, FakesSumW2: b.fake2,
-		Summary: b.sum,
-	}
-	r.Summary.NegativeCellCount = rep.NegativeCount
-	for _, c := range rep.Negative {
-		r.Summary.NegativeCells = append(r.Summary.NegativeCells, Cell{Reco: c.Row, Truth: c.Col, Value: c.SumW})
-	}
-	for j, g := range b.gen {
-		if g < 0 {
-			r.Summary.NegativeGenerated = append(r.Summary.NegativeGenerated, j)
-		}
-	}
-	if b.withDiag {
-		r.Diagonal, r.RecoInTruth = b.diag, b.rit
-	}
-	return r, nil
+	m := b.merger
+	b.merger = nil
+	return m.Built()
 }
 
 // Histogram is a reco-level histogram filled from events (data, or a
@@ -408,7 +504,7 @@ func (h *Histogram) Add(ctx context.Context, s *Sample, l *Level, scheme Locator
 		}
 		return nil
 	}
-	n, _, err := stream(ctx, s, opt, newWork, consume)
+	n, _, err := stream(ctx, s, s.Read, 0, opt, newWork, consume)
 	h.Events += n
 	h.Selected += sel
 	h.Outside += out

@@ -30,11 +30,13 @@ import (
 //	                 above, checked when the bundle is loaded
 //
 // It is written atomically: into a hidden temporary sibling folder that
-// is renamed into place. Version 1 bundles (without a manifest) are
+// is renamed into place. Version 3 records the shards the response was
+// merged from (BundleInfo.Shards); version 2 bundles, identical but for
+// that list, are still read. Version 1 bundles (without a manifest) are
 // refused: they have to be built again.
 const (
 	BundleFormat   = "desmear-response"
-	BundleVersion  = 2
+	BundleVersion  = 3
 	bundleJSON     = "response.json"
 	bundleMatrix   = "migrations.dsm"
 	bundleManifest = "manifest.sha256"
@@ -57,6 +59,11 @@ type BundleInfo struct {
 	Program string `json:"program"`
 	// Samples holds the counts of each simulated sample, in order.
 	Samples []SampleSummary `json:"samples,omitempty"`
+	// ShardEvents is the number of events of a shard, and Shards the
+	// shards the response was merged from, in merge order (empty in
+	// bundles of format version 2).
+	ShardEvents int64   `json:"shard_events,omitempty"`
+	Shards      []Shard `json:"shards,omitempty"`
 }
 
 // Fingerprint identifies a binning scheme by the SHA-256 of its bin
@@ -161,7 +168,7 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	if doc.Format == BundleFormat && doc.Version == 1 {
 		return nil, nil, fmt.Errorf("%s: a bundle of format version 1, which carries no checksums and is no longer read; build the response again", filepath.Join(dir, bundleJSON))
 	}
-	if doc.Format != BundleFormat || doc.Version != BundleVersion {
+	if doc.Format != BundleFormat || doc.Version != BundleVersion && doc.Version != 2 {
 		return nil, nil, fmt.Errorf("%s: format %q version %d, want %q version %d", filepath.Join(dir, bundleJSON), doc.Format, doc.Version, BundleFormat, BundleVersion)
 	}
 	if err := checkManifest(dir, b); err != nil {

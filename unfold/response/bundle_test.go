@@ -27,7 +27,8 @@ func TestBundleRoundTrip(t *testing.T) {
 		t.Fatal(err)
 	}
 	dir := filepath.Join(t.TempDir(), "resp")
-	info := BundleInfo{TruthScheme: "t", RecoScheme: "r", Program: "test"}
+	info := BundleInfo{TruthScheme: "t", RecoScheme: "r", Program: "test", ShardEvents: 8,
+		Shards: []Shard{{Sample: 0, File: "a.csv", SHA256: "00ff", Lo: 0, Hi: 8}, {Sample: 0, File: "a.csv", SHA256: "00ff", Lo: 8, Hi: 11}}}
 	if err := r.Save(dir, info, false); err != nil {
 		t.Fatal(err)
 	}
@@ -41,7 +42,7 @@ func TestBundleRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if gi.TruthScheme != "t" || gi.RecoScheme != "r" || gi.Program != "test" {
+	if gi.TruthScheme != "t" || gi.RecoScheme != "r" || gi.Program != "test" || gi.ShardEvents != 8 || !slices.Equal(gi.Shards, info.Shards) {
 		t.Errorf("info %+v", gi)
 	}
 	m, g := r.Migrations, got.Migrations
@@ -123,8 +124,8 @@ func TestBundleRefusals(t *testing.T) {
 		resum          bool // write a manifest matching the change
 	}{
 		{`"truth_bins": 4`, `"truth_bins": "4"`, "response.json: json: cannot unmarshal", true},
-		{`"format_version": 2`, `"format_version": 3`, `format "desmear-response" version 3, want "desmear-response" version 2`, true},
-		{`"format_version": 2`, `"format_version": 1`, `format version 1, which carries no checksums and is no longer read; build the response again`, true},
+		{`"format_version": 3`, `"format_version": 4`, `format "desmear-response" version 4, want "desmear-response" version 3`, true},
+		{`"format_version": 3`, `"format_version": 1`, `format version 1, which carries no checksums and is no longer read; build the response again`, true},
 		{`"reco_bins": 3`, `"reco_bins": 4`, "vector lengths do not match 4 truth and 4 reco bins", true},
 		{`"generated": [`, `"generated": [1e400,`, "response.json: json: cannot unmarshal number 1e400", true},
 		// One changed digit is caught by the manifest, which names the file.
@@ -144,7 +145,15 @@ func TestBundleRefusals(t *testing.T) {
 			t.Errorf("%s → %s: got %v, want %q", c.old, c.new, err, c.want)
 		}
 	}
+	// A bundle of format version 2 (no shard list) is still read.
+	v2 := strings.Replace(string(good), `"format_version": 3`, `"format_version": 2`, 1)
+	os.WriteFile(filepath.Join(dir, bundleJSON), []byte(v2), 0o644)
+	os.WriteFile(filepath.Join(dir, bundleManifest), resummed(t, dir), 0o644)
+	if r2, _, err := Load(dir); err != nil || r2.Migrations.NNZ() != r.Migrations.NNZ() {
+		t.Errorf("a version 2 bundle: %v", err)
+	}
 	os.WriteFile(filepath.Join(dir, bundleJSON), good, 0o644)
+	os.WriteFile(filepath.Join(dir, bundleManifest), goodManifest, 0o644)
 
 	// A manifest that is missing, damaged or does not list a file.
 	for _, c := range []struct{ manifest, want string }{

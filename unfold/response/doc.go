@@ -40,6 +40,19 @@
 // that ordered stream. So every result is the same bits whatever the
 // number of workers or the batch size.
 //
+// # Shards
+//
+// The unit of building is the shard, a fixed range of events of one
+// sample (DefaultShardEvents, ShardRanges). Each shard has its own
+// accumulator, histograms and counts, started empty at the shard's first
+// event; the partial responses are merged in shard order (Merger, with
+// sparse.Sum for the migration cells), and negative cells are decided on
+// the merged response. A Builder fed every shard, and Builders fed
+// ranges of shards (AddRange) whose partials are merged in shard order,
+// give the same bits. A Part holds the partials of a block of shards on
+// disk (Save, LoadPart); MergeParts checks that parts of one plan cover
+// every shard exactly once and merges them.
+//
 // The package never draws anything: a progress callback reports the
 // events done. Problems with the input (a non-finite weight, a read
 // error) are returned as errors naming the sample and the event;

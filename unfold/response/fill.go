@@ -59,6 +59,10 @@ type Sample struct {
 	Name string
 	// Read streams the events.
 	Read ReadFunc
+	// ReadRange, when not nil, streams the events [lo, hi) of the sample
+	// as Read does (start staying the position in the sample); it is
+	// needed by Builder.AddRange.
+	ReadRange func(ctx context.Context, lo, hi int64, fn func(start int64, n int, cols [][]float64) error) error
 	// Events is the number of events if known in advance (for progress
 	// reports), or a negative value.
 	Events int64
@@ -225,7 +229,10 @@ func (s *scratch) locate(dst []int32, l *level, scheme Locator, cols [][]float64
 // and consume receives every processed batch in event order, on the
 // calling goroutine. Memory is bounded by a fixed number of batches in
 // flight.
-func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*scratch, *batch) error, consume func(*batch) error) (events, batches int64, err error) {
+//
+// The batches of read are cut at every multiple of cut events (0: no
+// cut), so that no batch spans two shards.
+func stream(ctx context.Context, s *Sample, read ReadFunc, cut int64, opt *Options, newWork func() func(*scratch, *batch) error, consume func(*batch) error) (events, batches int64, err error) {
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	nw := opt.workers()
@@ -257,28 +264,37 @@ func stream(ctx context.Context, s *Sample, opt *Options, newWork func() func(*s
 		defer close(readDone)
 		defer close(jobs)
 		var seq int64
-		readErr = s.Read(ctx, func(start int64, n int, cols [][]float64) error {
-			var b *batch
-			select {
-			case b = <-free:
-			case <-ctx.Done():
-				return ctx.Err()
-			}
-			b.ensure(len(cols), n)
+		readErr = read(ctx, func(start int64, n int, cols [][]float64) error {
 			for c := range cols {
 				if len(cols[c]) < n {
 					return fmt.Errorf("%s: reader gave column %d with %d values for a batch of %d events", s.Name, c, len(cols[c]), n)
 				}
-				copy(b.cols[c], cols[c][:n])
 			}
-			b.seq, b.start, b.n, b.err = seq, start, n, nil
-			seq++
-			select {
-			case jobs <- b:
-				return nil
-			case <-ctx.Done():
-				return ctx.Err()
+			for off := 0; off < n; {
+				m := n - off
+				if cut > 0 {
+					m = int(min(int64(m), cut-(start+int64(off))%cut))
+				}
+				var b *batch
+				select {
+				case b = <-free:
+				case <-ctx.Done():
+					return ctx.Err()
+				}
+				b.ensure(len(cols), m)
+				for c := range cols {
+					copy(b.cols[c], cols[c][off:off+m])
+				}
+				b.seq, b.start, b.n, b.err = seq, start+int64(off), m, nil
+				seq++
+				select {
+				case jobs <- b:
+				case <-ctx.Done():
+					return ctx.Err()
+				}
+				off += m
 			}
+			return nil
 		})
 	}()
 	go func() {

@@ -69,6 +69,14 @@ type Result struct {
 	// "simulation" (the statistics of the simulation behind the
 	// response) and one entry per systematic variation.
 	Sources []Source `json:"sources,omitempty"`
+	// SliceAxis names the axis along which the ROOT file's slice
+	// histograms run (see SlicesAlong); empty: the last axis of each
+	// region.
+	SliceAxis string `json:"root_slice_axis,omitempty"`
+	// Derived lists the derived quantities asked for (projections,
+	// densities, normalised shapes; see Derived), each written as its own
+	// table.
+	Derived []Derived `json:"derived,omitempty"`
 	// Comparison compares the result with a reference spectrum, when
 	// one was given.
 	Comparison *Comparison `json:"comparison,omitempty"`
@@ -583,6 +591,18 @@ func (r *Result) checkFinite() error {
 			}
 		}
 		if err := finiteRows(fmt.Sprintf("the covariance of source %q", src.Name), src.Covariance); err != nil {
+			return err
+		}
+	}
+	for _, d := range r.Derived {
+		for _, x := range [][]float64{d.Value, d.Uncertainty} {
+			for i, v := range x {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					return fmt.Errorf("result: bin %d of the derived quantity %q is %v", i, d.Name, v)
+				}
+			}
+		}
+		if err := finiteRows(fmt.Sprintf("the covariance of the derived quantity %q", d.Name), d.Covariance); err != nil {
 			return err
 		}
 	}

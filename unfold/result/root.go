@@ -2,6 +2,7 @@ package result
 
 import (
 	"fmt"
+	"strings"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold/internal/rootio"
@@ -23,22 +24,34 @@ func writeROOT(f *Folder, r *Result, s *binning.Scheme) ([]string, error) {
 	if err != nil {
 		return nil, err
 	}
+	sl, err := SlicesAlong(s, r.SliceAxis)
+	if err != nil {
+		return nil, fmt.Errorf("result: the ROOT slices: %w", err)
+	}
 	dens, densUnc := r.densities(s)
-	h1, h2 := rootHistograms(s, r.Estimate, r.Uncertainty, dens, densUnc)
-	h2 = append(h2, correlationHistograms(s, r.Correlation())...)
+	h1, h2 := sliceHistograms(s, sl, r.Estimate, r.Uncertainty, dens, densUnc)
+	h2 = append(h2, matrixHistograms(s, r.Correlation(), "correlation", "correlation")...)
+	h2 = append(h2, matrixHistograms(s, r.Covariance, "covariance", "covariance")...)
 	h2 = append(h2, responseHistograms(s, r)...)
+	d1, d2 := derivedHistograms(r.Derived)
+	h1, h2 = append(h1, d1...), append(h2, d2...)
 	if err := rootio.WriteFile(path, h1, h2); err != nil {
 		return nil, err
 	}
 	return []string{RootFile}, nil
 }
 
-// rootHistograms makes the ROOT histograms of the result: for every
-// region one TH1D per slice along its last axis (the whole region for a
-// 1-D one), of counts and of densities, and a TH2D of counts and one of
-// densities for each rectangular 2-D region. Flow bins of the scheme go
-// into ROOT's flow cells of the slice histograms and of the TH2D.
+// rootHistograms is sliceHistograms along the last axis of each region.
 func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*rootio.Hist1D, []*rootio.Hist2D) {
+	return sliceHistograms(s, Slices(s), est, unc, dens, densUnc)
+}
+
+// sliceHistograms makes the ROOT histograms of the result: one TH1D per
+// slice of slices (the whole region for a 1-D one), of counts and of
+// densities, and a TH2D of counts and one of densities for each
+// rectangular 2-D region. Flow bins of the scheme go into ROOT's flow
+// cells of the slice histograms and of the TH2D.
+func sliceHistograms(s *binning.Scheme, slices []Slice, est, unc, dens, densUnc []float64) ([]*rootio.Hist1D, []*rootio.Hist2D) {
 	var h1 []*rootio.Hist1D
 	var h2 []*rootio.Hist2D
 	val := func(g int, v []float64) float64 {
@@ -47,7 +60,7 @@ func rootHistograms(s *binning.Scheme, est, unc, dens, densUnc []float64) ([]*ro
 		}
 		return v[g]
 	}
-	for _, sl := range Slices(s) {
+	for _, sl := range slices {
 		suffix := sl.Suffix(s)
 		name := s.Regions()[sl.Region].Name()
 		n := len(sl.Edges) - 1
@@ -110,11 +123,12 @@ func regionBins(s *binning.Scheme, k int) []int {
 	return g
 }
 
-// correlationHistograms makes one TH2D per region of s, REGION/correlation,
-// of the correlation matrix rho between the region's bins (regionBins
-// order, numbered 0, 1, ... along both axes); none when rho is nil.
-func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D {
-	if rho == nil {
+// matrixHistograms makes one TH2D per region of s, REGION/NAME, of the
+// matrix m (the correlation or the covariance over the truth bins)
+// between the region's bins (regionBins order, numbered 0, 1, ... along
+// both axes); none when m is nil.
+func matrixHistograms(s *binning.Scheme, m [][]float64, name, what string) []*rootio.Hist2D {
+	if m == nil {
 		return nil
 	}
 	var h2 []*rootio.Hist2D
@@ -124,17 +138,65 @@ func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D 
 		for i := range edges {
 			edges[i] = float64(i)
 		}
-		h := rootio.NewHist2D(reg.Name()+"/correlation", edges, edges)
-		h.Title = reg.Name() + " correlation (in-range bins, then flow bins, in global order)"
+		h := rootio.NewHist2D(reg.Name()+"/"+name, edges, edges)
+		h.Title = reg.Name() + " " + what + " (in-range bins, then flow bins, in global order)"
 		h.Entries = float64(len(g) * len(g))
 		for iy, gy := range g {
 			for ix, gx := range g {
-				h.SumW[h.Index(ix+1, iy+1)] = rho[gx][gy]
+				h.SumW[h.Index(ix+1, iy+1)] = m[gx][gy]
 			}
 		}
 		h2 = append(h2, h)
 	}
 	return h2
+}
+
+// correlationHistograms is matrixHistograms of the correlation rho.
+func correlationHistograms(s *binning.Scheme, rho [][]float64) []*rootio.Hist2D {
+	return matrixHistograms(s, rho, "correlation", "correlation")
+}
+
+// derivedHistograms makes the histograms of the derived quantities,
+// derived/NAME: a TH1D for a quantity with one kept axis, a TH2D for one
+// with two kept axes forming a full grid, with the uncertainty² as the
+// squared weights; other quantities (three axes, or edges by bin) have
+// their table only. Derived quantities have no flow bins: the flow cells
+// are 0.
+func derivedHistograms(ds []Derived) ([]*rootio.Hist1D, []*rootio.Hist2D) {
+	var h1 []*rootio.Hist1D
+	var h2 []*rootio.Hist2D
+	for i := range ds {
+		d := &ds[i]
+		reg := d.Binning.Regions()[0]
+		axes := reg.Axes()
+		unc := func(t int) float64 {
+			if d.Uncertainty == nil {
+				return 0
+			}
+			return d.Uncertainty[t]
+		}
+		title := fmt.Sprintf("%s: %s of %s over %s", d.Name, d.Kind, d.Region, strings.Join(d.Axes, ", "))
+		switch {
+		case len(axes) == 1:
+			h := rootio.NewHist1D("derived/"+d.Name, axes[0].Edges())
+			h.Title = title
+			for t := range d.Value {
+				h.SumW[t+1], h.SumW2[t+1] = d.Value[t], sq(unc(t))
+			}
+			h1 = append(h1, h)
+		case len(axes) == 2 && reg.Rectangular():
+			xe, ye := axes[0].Edges(), axes[1].Edges()
+			h := rootio.NewHist2D("derived/"+d.Name, xe, ye)
+			h.Title = title
+			for t := range d.Value {
+				b := d.Binning.Bin(t)
+				c := h.Index(b.Index[0]+1, b.Index[1]+1)
+				h.SumW[c], h.SumW2[c] = d.Value[t], sq(unc(t))
+			}
+			h2 = append(h2, h)
+		}
+	}
+	return h1, h2
 }
 
 // responseHistograms makes one TH2D per truth region of s,

@@ -130,14 +130,14 @@ func TestWritersSameForBothModes(t *testing.T) {
 // default; an unknown name is refused with the known ones; a name is
 // registered once.
 func TestRegistry(t *testing.T) {
-	want := []string{"json", "csv", "diagnostics", "record", "regions", "report", "root", "tau-scan"}
-	if got := Formats(); !reflect.DeepEqual(got, []string{"json", "csv", "diagnostics", "iterations", "record", "regions", "report", "root", "tau-scan"}) {
+	want := []string{"json", "csv", "derived", "diagnostics", "record", "regions", "report", "root", "tau-scan"}
+	if got := Formats(); !reflect.DeepEqual(got, []string{"json", "csv", "derived", "diagnostics", "iterations", "record", "regions", "report", "root", "tau-scan"}) {
 		t.Errorf("Formats() = %v", got)
 	}
 	if got := DefaultFormats(); !reflect.DeepEqual(got, want) {
 		t.Errorf("DefaultFormats() = %v, want %v", got, want)
 	}
-	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, diagnostics, iterations, record, regions, report, root, tau-scan)` {
+	if err := CheckFormats([]string{"csv", "pdf"}); err == nil || err.Error() != `unknown format "pdf" (known: json, csv, derived, diagnostics, iterations, record, regions, report, root, tau-scan)` {
 		t.Errorf("CheckFormats: %v", err)
 	}
 	defer func() {

@@ -22,6 +22,11 @@ const BlockToys = 50
 // validation toy never repeats an uncertainty toy of the same seed.
 const toyStream = 0x76616c6964617465 // "validate"
 
+// ToyStream is the PCG stream of toy t of an ensemble (with the
+// ensemble's seed): a toy's pseudo-data depend on the seed and its
+// number only, never on the part of the ensemble it is run in.
+func ToyStream(t int) uint64 { return toyStream + uint64(t) }
+
 // Config is a toy ensemble: the problem, the truth the toys are drawn
 // from, the method at each regularisation strength and the toy count.
 type Config struct {
@@ -219,7 +224,7 @@ func Run(ctx context.Context, c *Config, first, count int) (*Ensemble, error) {
 		parallel.For(batch, batch, func(w int) {
 			sl := &slots[w]
 			sl.err = nil
-			poisson(sl.prob.Data, nu, c.Seed, toyStream+uint64(t0+w))
+			poisson(sl.prob.Data, nu, c.Seed, ToyStream(t0+w))
 			if scan != nil {
 				sl.err = sl.scan(ctx, &rs, scan, K, t0+w)
 				return
@@ -343,6 +348,22 @@ func Merge(parts ...*Ensemble) (*Ensemble, error) {
 		}
 	}
 	return out, nil
+}
+
+// complete reports whether e holds toys 0..toys−1, each once, in
+// blocks in toy order (as Run and Merge make them).
+func (e *Ensemble) complete(toys int) error {
+	next := 0
+	for _, b := range e.Blocks {
+		if b.First != next {
+			return fmt.Errorf("validate: toys %d..%d are missing from the ensemble", next, b.First-1)
+		}
+		next = b.First + b.Toys
+	}
+	if next != toys {
+		return fmt.Errorf("validate: the ensemble holds toys 0..%d, want 0..%d", next-1, toys-1)
+	}
+	return nil
 }
 
 // total returns the moments of all toys of k (0-based), the blocks

@@ -3,6 +3,7 @@ package validate
 import (
 	"context"
 	"fmt"
+	"slices"
 
 	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
@@ -92,8 +93,40 @@ func ScaledGenerated(p *unfold.Problem) ([]float64, error) {
 
 // Validate runs the toy ensemble of o, the closure tests (exact and
 // fluctuated), the stress tests and the recommendation on problem p
-// with the common settings s.
+// with the common settings s. It is NewSetup, Run over every toy and
+// Setup.Report.
 func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Options) (*Report, error) {
+	st, err := NewSetup(ctx, p, s, o)
+	if err != nil {
+		return nil, err
+	}
+	e, err := Run(ctx, &st.Config, 0, 0)
+	if err != nil {
+		return nil, err
+	}
+	return st.Report(ctx, e)
+}
+
+// Setup is a validation before its toys: the nominal result and the
+// configuration of the toy ensemble (Config, with the toys' truth
+// resolved). Its toys may be run in parts, in one process or in
+// several (Run with a range of toys; Merge), and Report completes the
+// validation from their ensemble.
+type Setup struct {
+	// Config is the toy ensemble; Run(ctx, &Config, first, count) runs
+	// a part of it.
+	Config Config
+
+	p       *unfold.Problem
+	s       *unfold.Settings
+	o       *Options
+	nominal *unfold.Result
+	src     string
+}
+
+// NewSetup unfolds the data with the nominal method and resolves the
+// toys' truth of o.
+func NewSetup(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Options) (*Setup, error) {
 	ns, err := s.Resolve()
 	if err != nil {
 		return nil, err
@@ -119,17 +152,29 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 		}
 		src = "generated"
 	}
-	c := &Config{Problem: p, Settings: s, Method: o.Method, MaxK: o.MaxK, Truth: truth, Toys: o.Toys, Seed: o.Seed, Progress: o.Progress}
-	e, err := Run(ctx, c, 0, 0)
-	if err != nil {
+	c := Config{Problem: p, Settings: s, Method: o.Method, MaxK: o.MaxK, Truth: truth, Toys: o.Toys, Seed: o.Seed, Progress: o.Progress}
+	return &Setup{Config: c, p: p, s: s, o: o, nominal: nominal, src: src}, nil
+}
+
+// Report completes the validation from e, the ensemble of every toy of
+// the setup (one Run, or parts merged with Merge): the scan, the
+// recommendation, the closure and the stress tests. It is an error if e
+// is not the whole ensemble of this setup.
+func (st *Setup) Report(ctx context.Context, e *Ensemble) (*Report, error) {
+	o, p, s, c := st.o, st.p, st.s, &st.Config
+	if e.MaxK != c.MaxK || e.Seed != c.Seed || !slices.Equal(e.Truth, c.Truth) {
+		return nil, fmt.Errorf("validate: the toys come from another configuration (truth, seed or regularisation range differ)")
+	}
+	if err := e.complete(c.Toys); err != nil {
 		return nil, err
 	}
-	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: src, Truth: truth, Determined: e.Det, Scan: e.Scan(),
-		Nominal: &Nominal{Estimate: nominal.Estimate, Uncertainty: nominal.Uncertainty}}
+	r := &Report{Method: o.Nominal.Name(), Toys: o.Toys, MaxK: o.MaxK, Seed: o.Seed, TruthSource: st.src, Truth: c.Truth, Determined: e.Det, Scan: e.Scan(),
+		Nominal: &Nominal{Estimate: st.nominal.Estimate, Uncertainty: st.nominal.Uncertainty}}
 	crit := o.Criterion
 	if crit == "" {
 		crit = MinMSE
 	}
+	var err error
 	if r.Recommendation, err = Recommend(r.Scan, crit, o.Threshold); err != nil {
 		return nil, err
 	}
@@ -156,7 +201,7 @@ func Validate(ctx context.Context, p *unfold.Problem, s *unfold.Settings, o *Opt
 		}
 	}
 	for _, t := range tests {
-		ch, err := Stress(ctx, p, s, o.Nominal, t.Name, t.Weights, nominal)
+		ch, err := Stress(ctx, p, s, o.Nominal, t.Name, t.Weights, st.nominal)
 		if err != nil {
 			return nil, err
 		}

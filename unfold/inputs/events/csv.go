@@ -8,6 +8,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strconv"
 	"strings"
@@ -81,7 +82,17 @@ func (c *CSV) Close() error { return nil }
 
 // Read implements Source.
 func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error {
+	return c.ReadRange(ctx, columns, 0, -1, batchSize, fn)
+}
+
+// ReadRange implements Source: the lines before lo are scanned (their
+// number of fields checked) but not converted.
+func (c *CSV) ReadRange(ctx context.Context, columns []string, lo, hi int64, batchSize int, fn func(b *Batch) error) error {
 	checkBatchSize(batchSize)
+	if hi < 0 {
+		hi = math.MaxInt64
+	}
+	lo = min(max(lo, 0), hi)
 	idx, err := checkRequest(c.path, c.header, columns)
 	if err != nil {
 		return err
@@ -97,7 +108,7 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 	}
 	b := newBatch(len(columns), batchSize)
 	full := b.Cols
-	var start int64
+	start := lo
 	k := 0
 	flush := func() error {
 		if k == 0 {
@@ -114,7 +125,7 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		k = 0
 		return nil
 	}
-	for {
+	for n := int64(0); n < hi; n++ {
 		ok, err := lines.next()
 		if err != nil {
 			return c.lineError(lines, err)
@@ -124,6 +135,14 @@ func (c *CSV) Read(ctx context.Context, columns []string, batchSize int, fn func
 		}
 		if len(lines.fields) != len(c.header) {
 			return fmt.Errorf("events: %s:%d:1: wrong number of fields: %d, the header has %d", c.path, lines.line, len(lines.fields), len(c.header))
+		}
+		if n < lo {
+			if n%(1<<16) == 0 {
+				if err := ctx.Err(); err != nil {
+					return err
+				}
+			}
+			continue
 		}
 		for i, j := range idx {
 			fb := lines.fields[j]

@@ -27,6 +27,13 @@ type Source interface {
 	// from the first event. It panics if batchSize < 1.
 	Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error
 
+	// ReadRange is Read restricted to the events [lo, hi) (hi < 0: to the
+	// end; a range beyond the end is cut there). b.Start stays the index
+	// of the event in the file. ROOT trees are read by entry range,
+	// Parquet files from the row group holding lo, CSV files by scanning
+	// the lines before lo.
+	ReadRange(ctx context.Context, columns []string, lo, hi int64, batchSize int, fn func(b *Batch) error) error
+
 	// Close releases the file.
 	Close() error
 }
@@ -114,6 +121,34 @@ func Open(path string, opt Options) (Source, error) {
 		return OpenCSV(path)
 	}
 	return nil, fmt.Errorf("events: %s: unknown file type %q; use .root, .parquet or .csv", path, filepath.Ext(path))
+}
+
+// clipRange returns the range [lo, hi) of ReadRange cut to n events (a
+// negative hi meaning n).
+func clipRange(lo, hi, n int64) (int64, int64) {
+	if hi < 0 || hi > n {
+		hi = n
+	}
+	lo = max(lo, 0)
+	if lo > hi {
+		lo = hi
+	}
+	return lo, hi
+}
+
+// Count returns the number of events of src: its Len when known, else
+// the count of a scan of the whole file (a CSV file), which also checks
+// that every line has the header's number of fields.
+func Count(ctx context.Context, src Source) (int64, error) {
+	if n := src.Len(); n >= 0 {
+		return n, nil
+	}
+	var n int64
+	err := src.Read(ctx, nil, 1<<16, func(b *Batch) error {
+		n += int64(b.Len)
+		return nil
+	})
+	return n, err
 }
 
 // checkRequest validates a list of requested columns against the available

@@ -392,8 +392,15 @@ func grow[T any](buf *[]T, n int) []T {
 }
 
 // Read implements Source.
-func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) (err error) {
+func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error {
+	return p.ReadRange(ctx, columns, 0, -1, batchSize, fn)
+}
+
+// ReadRange implements Source: the row groups before the one holding lo
+// are skipped, the rows of that group before lo are decoded and dropped.
+func (p *Parquet) ReadRange(ctx context.Context, columns []string, lo, hi int64, batchSize int, fn func(b *Batch) error) (err error) {
 	checkBatchSize(batchSize)
+	lo, hi = clipRange(lo, hi, p.nrows)
 	for _, name := range columns {
 		if _, ok := p.leaf[name]; !ok {
 			if why, isBad := p.bad[name]; isBad {
@@ -421,6 +428,14 @@ func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn 
 	var start int64
 	meta := p.pf.Metadata()
 	for g, rg := range p.pf.RowGroups() {
+		nrg := rg.NumRows()
+		if start >= hi {
+			break
+		}
+		if start+nrg <= lo {
+			start += nrg
+			continue
+		}
 		if g < len(meta.RowGroups) {
 			mcols := meta.RowGroups[g].Columns
 			for i := range curs {
@@ -437,12 +452,24 @@ func (p *Parquet) Read(ctx context.Context, columns []string, batchSize int, fn 
 			curs[i].close()
 			curs[i].pages = chunks[curs[i].col.index].Pages()
 		}
-		nrg := rg.NumRows()
-		for off := int64(0); off < nrg; {
+		// Rows of the group before lo: decoded and dropped.
+		off := int64(0)
+		for off < lo-start {
+			m := int(min(int64(batchSize), lo-start-off))
+			for i := range curs {
+				if err := curs[i].fill(full[i][:m]); err != nil {
+					return fmt.Errorf("events: %s: row group %d, row %d: %w", p.path, g, start+off, err)
+				}
+			}
+			off += int64(m)
+		}
+		start += off
+		end := min(nrg, hi-(start-off))
+		for off < end {
 			if err := ctx.Err(); err != nil {
 				return err
 			}
-			m := int(min(int64(batchSize), nrg-off))
+			m := int(min(int64(batchSize), end-off))
 			for i := range curs {
 				if err := curs[i].fill(full[i][:m]); err != nil {
 					return fmt.Errorf("events: %s: row group %d, row %d: %w", p.path, g, start, err)

@@ -269,49 +269,58 @@ var rootChunk int64 = 1 << 16
 func (r *ROOT) SetWorkers(n int) { r.workers = n }
 
 // Read implements Source.
-func (r *ROOT) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) (err error) {
+func (r *ROOT) Read(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error) error {
+	return r.ReadRange(ctx, columns, 0, -1, batchSize, fn)
+}
+
+// ReadRange implements Source: the entry range [lo, hi) of the tree.
+func (r *ROOT) ReadRange(ctx context.Context, columns []string, lo, hi int64, batchSize int, fn func(b *Batch) error) (err error) {
 	checkBatchSize(batchSize)
 	bd, err := r.bind(columns)
 	if err != nil {
 		return err
 	}
+	lo, hi = clipRange(lo, hi, r.tree.Entries())
 	if len(columns) == 0 {
 		// Nothing to decode: batches of the right lengths only.
 		b := &Batch{}
-		for b.Start = 0; b.Start < r.tree.Entries(); b.Start += int64(b.Len) {
+		for b.Start = lo; b.Start < hi; b.Start += int64(b.Len) {
 			if err := ctx.Err(); err != nil {
 				return err
 			}
-			b.Len = int(min(int64(batchSize), r.tree.Entries()-b.Start))
+			b.Len = int(min(int64(batchSize), hi-b.Start))
 			if err := fn(b); err != nil {
 				return err
 			}
 		}
 		return nil
 	}
+	if lo == hi {
+		return nil
+	}
 	workers := r.workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
-	n := r.tree.Entries()
-	if nchunks := (n + rootChunk - 1) / rootChunk; int64(workers) > nchunks {
+	if nchunks := (hi - lo + rootChunk - 1) / rootChunk; int64(workers) > nchunks {
 		workers = int(nchunks)
 	}
 	if workers > 1 {
-		return r.readParallel(ctx, columns, batchSize, fn, workers)
+		return r.readParallel(ctx, columns, lo, hi, batchSize, fn, workers)
 	}
 	defer func() {
 		if p := recover(); p != nil {
 			err = fmt.Errorf("events: %s: damaged file: %v", r.where(), p)
 		}
 	}()
-	rd, err := rtree.NewReader(r.tree, bd.rvars)
+	rd, err := rtree.NewReader(r.tree, bd.rvars, rtree.WithRange(lo, hi))
 	if err != nil {
 		return fmt.Errorf("events: %s: %w", r.where(), err)
 	}
 	defer rd.Close()
 
 	b := newBatch(len(columns), batchSize)
+	b.Start = lo
 	full := b.Cols
 	var userErr error
 	err = bd.scan(rd, full, func(k int) error {
@@ -352,9 +361,8 @@ type rootPart struct {
 // handle, and hands them over in a channel of its own; the calling
 // goroutine takes chunk j from worker j%workers, so batches arrive in file
 // order.
-func (r *ROOT) readParallel(ctx context.Context, columns []string, batchSize int, fn func(b *Batch) error, workers int) error {
-	n := r.tree.Entries()
-	nchunks := (n + rootChunk - 1) / rootChunk
+func (r *ROOT) readParallel(ctx context.Context, columns []string, lo, hi int64, batchSize int, fn func(b *Batch) error, workers int) error {
+	nchunks := (hi - lo + rootChunk - 1) / rootChunk
 	results := make([]chan *rootPart, workers)
 	free := make([]chan *rootPart, workers)
 	quit := make(chan struct{})
@@ -368,7 +376,7 @@ func (r *ROOT) readParallel(ctx context.Context, columns []string, batchSize int
 		wg.Add(1)
 		go func(w int) {
 			defer wg.Done()
-			r.worker(columns, w, workers, nchunks, free[w], results[w], quit)
+			r.worker(columns, w, workers, lo, hi, nchunks, free[w], results[w], quit)
 		}(w)
 	}
 	defer func() {
@@ -405,8 +413,9 @@ func (r *ROOT) readParallel(ctx context.Context, columns []string, batchSize int
 	return nil
 }
 
-// worker decodes every workers-th chunk of entries, starting at chunk w.
-func (r *ROOT) worker(columns []string, w, workers int, nchunks int64, free <-chan *rootPart, out chan<- *rootPart, quit <-chan struct{}) {
+// worker decodes every workers-th chunk of entries of [first, last),
+// starting at chunk w.
+func (r *ROOT) worker(columns []string, w, workers int, first, last, nchunks int64, free <-chan *rootPart, out chan<- *rootPart, quit <-chan struct{}) {
 	fail := func(err error) {
 		select {
 		case out <- &rootPart{err: err}:
@@ -429,7 +438,6 @@ func (r *ROOT) worker(columns []string, w, workers int, nchunks int64, free <-ch
 		fail(err)
 		return
 	}
-	n := src.tree.Entries()
 	var rd *rtree.Reader
 	defer func() {
 		if rd != nil {
@@ -443,7 +451,7 @@ func (r *ROOT) worker(columns []string, w, workers int, nchunks int64, free <-ch
 		case <-quit:
 			return
 		}
-		lo, hi := j*rootChunk, min((j+1)*rootChunk, n)
+		lo, hi := first+j*rootChunk, min(first+(j+1)*rootChunk, last)
 		if rd == nil {
 			rd, err = rtree.NewReader(src.tree, bd.rvars, rtree.WithRange(lo, hi))
 		} else {

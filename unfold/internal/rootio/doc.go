@@ -24,7 +24,9 @@
 // them from the bins (common practice in ROOT): fTsumw, fTsumw2 and the
 // first and second moments from in-range bins at the bin centres, fEntries
 // from the Entries field. Output files are written to a temporary file and
-// renamed into place.
+// renamed into place; each records its final base name as its own name
+// (go-hep v0.36.0 records the path a file is created at, here the
+// temporary one, and offers no option to change it: see withName).
 //
 // # Errors and panics
 //

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"path/filepath"
 	"strings"
 
 	"go-hep.org/x/hep/groot"
@@ -375,7 +376,9 @@ func (h *Hist2D) check() error {
 // WriteFile writes the histograms to a new ROOT file at path, as TH1D and
 // TH2D objects keyed by their names; a name "dir/h" puts h in directory dir.
 // The file is written atomically: under a temporary name beside path,
-// synced to disk and renamed into place.
+// synced to disk and renamed into place; the name it records for itself
+// (ROOT's file name, shown by ROOT's file browsers) is the base name of
+// path, never the temporary one.
 func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
 	seen := map[string]bool{}
 	for _, h := range h1 {
@@ -395,7 +398,7 @@ func WriteFile(path string, h1 []*Hist1D, h2 []*Hist2D) error {
 		}
 	}
 	err := atomicfile.WriteVia(path, func(tmp string) error {
-		f, err := groot.Create(tmp)
+		f, err := groot.Create(tmp, withName(filepath.Base(path)))
 		if err != nil {
 			return err
 		}

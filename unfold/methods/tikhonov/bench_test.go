@@ -15,20 +15,25 @@ import (
 // 200,000 reco bins, a Gaussian smearing of 1.2 reco bins with 10
 // non-zeros per column, Poisson-like data; no uncertainty. See
 // BENCHMARKS.md.
+// The "full" variants are the scan before its early end and its
+// extrapolated starts (every point solved, each from the previous
+// solution).
 func BenchmarkLCurve100k(b *testing.B) {
-	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 400, 250, false) })
+	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 400, 250, false, false) })
+	b.Run("ichol-full", func(b *testing.B) { benchLCurve(b, 400, 250, false, true) })
 }
 
 // BenchmarkLCurve25k is the same on a 200 × 125 grid, with the
 // incomplete Cholesky preconditioner and with the diagonal one.
 func BenchmarkLCurve25k(b *testing.B) {
-	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 200, 125, false) })
-	b.Run("jacobi", func(b *testing.B) { benchLCurve(b, 200, 125, true) })
+	b.Run("ichol", func(b *testing.B) { benchLCurve(b, 200, 125, false, false) })
+	b.Run("ichol-full", func(b *testing.B) { benchLCurve(b, 200, 125, false, true) })
+	b.Run("jacobi", func(b *testing.B) { benchLCurve(b, 200, 125, true, false) })
 }
 
-func benchLCurve(b *testing.B, nx, ny int, jacobi bool) {
-	defer func(v bool) { jacobiOnly = v }(jacobiOnly)
-	jacobiOnly = jacobi
+func benchLCurve(b *testing.B, nx, ny int, jacobi, full bool) {
+	defer func(v, f bool) { jacobiOnly, fullScan = v, f }(jacobiOnly, fullScan)
+	jacobiOnly, fullScan = jacobi, full
 	x, _ := binning.NewAxis("x", "", edges(nx), false, false)
 	y, _ := binning.NewAxis("y", "", edges(ny), false, false)
 	r, _ := binning.NewRegion("grid", x, y)
@@ -60,10 +65,16 @@ func benchLCurve(b *testing.B, nx, ny int, jacobi bool) {
 			}
 		}
 		iters := d.CGIterations
+		if testing.Verbose() {
+			for _, pt := range d.Scan {
+				b.Logf("tau %.4g res %.6g pen %.6g curv %.4g iter %d", pt.Tau, pt.ResidualNorm, pt.PenaltyNorm, pt.Curvature, pt.Iterations)
+			}
+		}
 		b.ReportMetric(float64(scanIters), "cg-iter-scan")
 		b.ReportMetric(d.Tau, "tau")
 		b.ReportMetric(float64(iters), "cg-iter-nominal")
 		b.ReportMetric(float64(conv), "scan-converged")
+		b.ReportMetric(float64(len(d.Scan)), "scan-points")
 	}
 }
 

@@ -35,7 +35,10 @@
 // or by the minimum average global correlation, computed exactly up to
 // CorrelationLimit determined truth bins and estimated from a sample of
 // CorrelationSample bins above. The scan is
-// in the details (Details.Scan).
+// in the details (Details.Scan). An L-curve scan by conjugate gradients
+// starts each point from the extrapolation of the two previous solutions
+// and ends once the curvature maximum is bracketed (ExtentMargin), so
+// its table may stop short of the last tau.
 //
 // The formulas are in cmd/desmear/help/method.md, §13 and §14.
 package tikhonov

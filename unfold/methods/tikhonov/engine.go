@@ -214,12 +214,29 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	// close to Rᵀ V⁻¹ R), and its conditioning worsens as τ² Lᵀ L takes
 	// over, so the hard solves start from the nearest solution.
 	// The solutions are kept (when small) to start the nominal solve.
+	// By conjugate gradients, from the third point on, the start is
+	// the linear extrapolation in log tau of the two previous solutions
+	// (the grid is uniform in log tau), and the L-curve scan stops once
+	// its corner is bracketed (method.md §14 Choosing tau).
 	var xs [][]float64
 	keep := e.dn == nil && e.sy.x0 == nil && int64(nt)*int64(len(taus))*8 <= warmBytes
+	cont := e.dn == nil && !fullScan
+	var prev []float64
+	if cont {
+		prev = make([]float64, nt)
+	}
 	for k := range taus {
 		tau := taus[k]
 		if err := e.prepare(tau); err != nil {
 			return err
+		}
+		if cont {
+			for j, v := range x {
+				if k >= 2 {
+					x[j] = 2*v - prev[j]
+				}
+				prev[j] = v
+			}
 		}
 		c.rhs(b, y, tau*tau)
 		ok, err := e.solve(ctx, c, x, b, tau, false)
@@ -243,6 +260,13 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 		if keep {
 			xs = append(xs, slices.Clone(x))
 		}
+		if cont && gc == nil && sc == nil && cornerBracketed(d.Scan[:k+1]) {
+			d.Scan = d.Scan[:k+1]
+			break
+		}
+	}
+	for k := range d.Scan {
+		d.Scan[k].Curvature = 0
 	}
 	usable := curvatures(d.Scan)
 	best := -1
@@ -281,6 +305,63 @@ func (e *engine) scan(ctx context.Context, rs *Settings, d *Details) error {
 	return nil
 }
 
+// fullScan switches off the extrapolated starts and the early end of
+// the L-curve scan by conjugate gradients (the benchmarks compare).
+var fullScan = false
+
+// cornerBracketed reports whether the partial L-curve scan s (the first
+// points of the scan, increasing tau) has passed the corner: its usable
+// point of largest curvature κ has usable points on both sides (whose
+// curvature is then lower) and κ E ≥ 1, with E the extent of the
+// partial curve (the diagonal of its bounding box in the log-log plane):
+// the curve turns there more sharply than a quarter circle as large as
+// the part scanned. The last condition keeps the rounding-level
+// wiggles of the first points, where the curve has hardly moved, from
+// counting as a corner. It sets the curvatures of s as curvatures does.
+func cornerBracketed(s []ScanPoint) bool {
+	for k := range s {
+		s[k].Curvature = 0
+	}
+	usable := curvatures(s)
+	best := -1
+	for k, ok := range usable {
+		if ok && (best < 0 || s[k].Curvature > s[best].Curvature) {
+			best = k
+		}
+	}
+	if best < 1 || !usable[best-1] || best+1 >= len(s) || !usable[best+1] {
+		return false
+	}
+	e := extent(s)
+	return s[best].Curvature*e >= 1 && speed(s, best) > ExtentMargin*StillFraction*e
+}
+
+// ExtentMargin is how much the extent of the L-curve may grow beyond
+// the points solved before an ended scan without making its chosen
+// point one where the curve stands still (method.md §14 Choosing tau).
+const ExtentMargin = 1.25
+
+// speed returns the speed of the L-curve of s per unit of log10 tau at
+// the inner point k, from central differences.
+func speed(s []ScanPoint, k int) float64 {
+	h := (math.Log10(s[k+1].Tau) - math.Log10(s[k-1].Tau)) / 2
+	u1 := (lg(s[k+1].ResidualNorm) - lg(s[k-1].ResidualNorm)) / (2 * h)
+	v1 := (lg(s[k+1].PenaltyNorm) - lg(s[k-1].PenaltyNorm)) / (2 * h)
+	return math.Hypot(u1, v1)
+}
+
+// extent returns the diagonal of the bounding box of the L-curve of s,
+// (log10 |residual|, log10 |penalty|).
+func extent(s []ScanPoint) float64 {
+	u, v := make([]float64, len(s)), make([]float64, len(s))
+	for k, pt := range s {
+		u[k], v[k] = lg(pt.ResidualNorm), lg(pt.PenaltyNorm)
+	}
+	return math.Hypot(slices.Max(u)-slices.Min(u), slices.Max(v)-slices.Min(v))
+}
+
+func lg(v float64) float64 { return math.Log10(math.Max(v, 1e-300)) }
+
 // warmBytes bounds the memory of the scan's kept solutions.
 const warmBytes = 64 << 20
 
@@ -293,7 +374,6 @@ const warmBytes = 64 << 20
 // its extent per unit of t, the curvature is rounding noise: it is left
 // 0 and the point is not usable. It returns which points are usable.
 func curvatures(s []ScanPoint) []bool {
-	lg := func(v float64) float64 { return math.Log10(math.Max(v, 1e-300)) }
 	usable := make([]bool, len(s))
 	if len(s) < 3 {
 		return usable
@@ -302,7 +382,7 @@ func curvatures(s []ScanPoint) []bool {
 	for k, pt := range s {
 		u[k], v[k] = lg(pt.ResidualNorm), lg(pt.PenaltyNorm)
 	}
-	extent := math.Hypot(slices.Max(u)-slices.Min(u), slices.Max(v)-slices.Min(v))
+	extent := extent(s)
 	for k := 1; k+1 < len(s); k++ {
 		h := (math.Log10(s[k+1].Tau) - math.Log10(s[k-1].Tau)) / 2
 		u1, v1 := (u[k+1]-u[k-1])/(2*h), (v[k+1]-v[k-1])/(2*h)

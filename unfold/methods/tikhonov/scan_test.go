@@ -3,10 +3,12 @@ package tikhonov
 import (
 	"context"
 	"math"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold"
 )
 
@@ -177,4 +179,83 @@ func TestScan(t *testing.T) {
 			t.Errorf("%v: the chosen tau %v is at the edge of the scan", crit, d.Tau)
 		}
 	}
+}
+
+// The L-curve scan by conjugate gradients, which ends once the corner is
+// bracketed (method.md §14 Choosing tau), chooses the same tau as the
+// full scan of gonum's dense Cholesky solve, on smeared problems in one
+// and two dimensions whose corner lies inside the scan; the points it
+// solves near the corner have the dense norms (to the scan's tolerance),
+// and it stops before the end of the scan except where the chosen point
+// is too slow for ExtentMargin. (With ExtentMargin 1 the "1d wide" case
+// stops early and chooses a point the full scan finds still.)
+func TestScanEndsAtBracketedCorner(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		nx, ny int
+		sigma  float64
+		seed   uint64
+		ends   bool
+	}{
+		{"1d", 60, 0, 2.5, 4, true},
+		{"1d wide", 80, 0, 4, 9, false}, // the corner point moves too slowly to end early
+		{"2d", 16, 10, 1.5, 3, true},
+		{"2d fine", 30, 20, 2, 2, true},
+	} {
+		var s *binning.Scheme
+		nt := c.nx
+		if c.ny > 0 {
+			x, _ := binning.NewAxis("x", "", edges(c.nx), false, false)
+			y, _ := binning.NewAxis("y", "", edges(c.ny), false, false)
+			r, _ := binning.NewRegion("grid", x, y)
+			var err error
+			if s, err = binning.NewScheme(r); err != nil {
+				t.Fatal(err)
+			}
+			nt = s.Len()
+		}
+		a, gen := smearedResponse(t, nt, 2*nt, c.sigma)
+		truth := make([]float64, nt)
+		for j := range truth {
+			truth[j] = 1000 * (1.2 + math.Sin(float64(j%max(c.nx, 1))/7)*math.Cos(float64(j/max(c.nx, 1))/5))
+		}
+		p := noisyProblem(a, gen, truth, c.seed)
+		var got [2]*Details
+		for k, solver := range []Solver{DenseSolver, SparseSolver} {
+			res, err := unfold.Unfold(context.Background(), p, nil, &Settings{Truth: s, Solver: solver})
+			if err != nil {
+				t.Fatalf("%s: %v", c.name, err)
+			}
+			got[k] = DetailsOf(res)
+		}
+		full, cg := got[0], got[1]
+		if len(full.Scan) != DefaultScanPoints || full.AtScanEdge {
+			t.Fatalf("%s: the dense scan has %d points, corner at the edge %v", c.name, len(full.Scan), full.AtScanEdge)
+		}
+		if cg.Tau != full.Tau {
+			t.Errorf("%s: tau %v by conjugate gradients, %v by the full dense scan", c.name, cg.Tau, full.Tau)
+		}
+		if ends := len(cg.Scan) < len(full.Scan); ends != c.ends {
+			t.Errorf("%s: the scan by conjugate gradients has %d points, ends early %v, want %v", c.name, len(cg.Scan), ends, c.ends)
+		}
+		// Near the corner (at the smallest taus the warm starts already
+		// meet the scan's tolerance and the penalty norm is less precise).
+		first := slices.Index(full.Scan, *scanPointAt(full, full.Tau)) - 2
+		for k, pt := range cg.Scan[first:] {
+			k += first
+			ref := full.Scan[k]
+			if pt.Tau != ref.Tau || math.Abs(pt.ResidualNorm/ref.ResidualNorm-1) > 1e-5 || math.Abs(pt.PenaltyNorm/ref.PenaltyNorm-1) > 1e-4 {
+				t.Errorf("%s point %d: %+v, dense %+v", c.name, k, pt, ref)
+			}
+		}
+	}
+}
+
+func scanPointAt(d *Details, tau float64) *ScanPoint {
+	for k := range d.Scan {
+		if d.Scan[k].Tau == tau {
+			return &d.Scan[k]
+		}
+	}
+	return nil
 }

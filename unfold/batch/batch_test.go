@@ -1,0 +1,198 @@
+package batch
+
+import (
+	"context"
+	"errors"
+	"os"
+	"reflect"
+	"strings"
+	"testing"
+
+	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/bayes"
+	"github.com/desmear/desmear/unfold/validate"
+)
+
+// smallProblem: three truth bins migrating into four reco bins.
+func smallProblem(t *testing.T) *unfold.Problem {
+	t.Helper()
+	// columns (truth) of A, CSC
+	colPtr := []int{0, 2, 5, 7}
+	rowIdx := []int{0, 1, 0, 1, 2, 2, 3}
+	val := []float64{600, 150, 100, 500, 120, 200, 350}
+	m, err := sparse.NewMatrix(4, 3, colPtr, rowIdx, val, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return &unfold.Problem{Migrations: m, Generated: []float64{1000, 900, 700}, Data: []float64{700, 640, 330, 350}}
+}
+
+func iterations(k int) unfold.Method { return &bayes.Settings{Iterations: k} }
+
+func toyConfig(t *testing.T, toys int) *validate.Config {
+	return &validate.Config{Problem: smallProblem(t), Method: iterations, MaxK: 3, Truth: []float64{900, 850, 650}, Toys: toys, Seed: 7}
+}
+
+func plan(t *testing.T, dir string, c *validate.Config, shards int) *Plan {
+	t.Helper()
+	sum, err := ProblemSum(c.Problem)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := ToyPlan(Input{Path: "analysis.yaml", SHA256: "a"}, sum, ToySettings{Toys: c.Toys, MaxIterations: c.MaxK, Seed: c.Seed}, shards, dir+"/out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := p.Write(dir); err != nil {
+		t.Fatal(err)
+	}
+	if p, err = Read(dir); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// TestMergeEqualsOneRun: the toys of a plan run shard by shard and merged
+// are the ensemble of one run over every toy, bit for bit, for 1, 2, 7 and
+// 64 shards (the reference is validate.Run over all toys in one process;
+// the determinism rule of DEVELOPERS.md: the same bits for any work
+// split). The toy count leaves the last unit short.
+func TestMergeEqualsOneRun(t *testing.T) {
+	ctx := context.Background()
+	c := toyConfig(t, 64*validate.BlockToys+17)
+	one, err := validate.Run(ctx, c, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, k := range []int{1, 2, 7, 64} {
+		dir := t.TempDir()
+		p := plan(t, dir, c, k)
+		// run the shards in reverse: the order must not matter
+		for s := k - 1; s >= 0; s-- {
+			if ran, err := RunShard(ctx, dir, p, s, c); err != nil || !ran {
+				t.Fatalf("K=%d shard %d: ran %v, %v", k, s, ran, err)
+			}
+		}
+		e, err := Merge(dir, p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(e, one) {
+			t.Errorf("K=%d: the merged ensemble differs from one run", k)
+		}
+		if !reflect.DeepEqual(e.Scan(), one.Scan()) {
+			t.Errorf("K=%d: the merged scan differs from one run", k)
+		}
+	}
+}
+
+// TestShardFiles: a finished shard is not run again, a missing or foreign
+// shard stops the merge with its number, and an interrupted shard leaves
+// no file.
+func TestShardFiles(t *testing.T) {
+	ctx := context.Background()
+	c := toyConfig(t, 4*validate.BlockToys)
+	dir := t.TempDir()
+	p := plan(t, dir, c, 4)
+	if _, err := RunShard(ctx, dir, p, 0, c); err != nil {
+		t.Fatal(err)
+	}
+	st0, _ := os.Stat(ShardPath(dir, 0))
+	if ran, err := RunShard(ctx, dir, p, 0, c); err != nil || ran {
+		t.Errorf("re-running a finished shard: ran %v, %v", ran, err)
+	}
+	if st1, _ := os.Stat(ShardPath(dir, 0)); !st1.ModTime().Equal(st0.ModTime()) {
+		t.Error("re-running a finished shard rewrote its file")
+	}
+	cctx, cancel := context.WithCancel(ctx)
+	cancel()
+	if _, err := RunShard(cctx, dir, p, 1, c); !errors.Is(err, context.Canceled) {
+		t.Errorf("cancelled shard: %v", err)
+	}
+	if _, err := os.Stat(ShardPath(dir, 1)); !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("a cancelled shard left a file: %v", err)
+	}
+	// shard 2 from another plan (another seed)
+	other := t.TempDir()
+	c2 := toyConfig(t, 4*validate.BlockToys)
+	c2.Seed = 8
+	p2 := plan(t, other, c2, 4)
+	if _, err := RunShard(ctx, other, p2, 2, c2); err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(ShardPath(other, 2))
+	if err := os.WriteFile(ShardPath(dir, 2), b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	pr, err := Status(dir, p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(pr.Done, []int{0}) || !reflect.DeepEqual(pr.Missing, []int{1, 3}) || pr.Bad[2] == nil || !reflect.DeepEqual(pr.Todo(), []int{1, 2, 3}) {
+		t.Errorf("status: done %v missing %v bad %v", pr.Done, pr.Missing, pr.Bad)
+	}
+	_, err = Merge(dir, p)
+	if err == nil || !strings.Contains(err.Error(), "missing: 1,3") || !strings.Contains(err.Error(), "another plan") {
+		t.Errorf("merge with shards missing: %v", err)
+	}
+	// the foreign shard is run again for this plan
+	if ran, err := RunShard(ctx, dir, p, 2, c); err != nil || !ran {
+		t.Errorf("foreign shard: ran %v, %v", ran, err)
+	}
+}
+
+// TestPlanUnits: the units are blocks of validate.BlockToys toys with
+// their stream derivation, shard s holding units floor(s·U/K) to
+// floor((s+1)·U/K) − 1; too many
+// shards, and kinds not available, are refused.
+func TestPlanUnits(t *testing.T) {
+	p, err := ToyPlan(Input{}, "", ToySettings{Toys: 520, Seed: 3}, 4, "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(p.Units) != 11 || p.Units[10].Toys != 20 || p.Units[3].FirstToy != 150 || p.Units[3].StreamBase+150 != validate.ToyStream(150) {
+		t.Errorf("units: %+v", p.Units)
+	}
+	var n []int
+	for s := range p.Shards {
+		_, c := p.ToyRange(s)
+		n = append(n, c)
+	}
+	if !reflect.DeepEqual(n, []int{100, 150, 150, 120}) {
+		t.Errorf("toys per shard %v", n)
+	}
+	if _, err := ToyPlan(Input{}, "", ToySettings{Toys: 520}, 12, ""); err == nil {
+		t.Error("12 shards of 11 units accepted")
+	}
+	for _, k := range []Kind{Replicas, Variations} {
+		if err := k.Check(); !errors.Is(err, ErrNotAvailable) {
+			t.Errorf("%s: %v", k, err)
+		}
+	}
+}
+
+// TestArrays: job arrays split at MaxArraySize with offsets, their index
+// lists in Slurm's syntax (common practice: "--array=0-9%4", index lists
+// with ranges).
+func TestArrays(t *testing.T) {
+	var all []int
+	for s := range 10 {
+		all = append(all, s)
+	}
+	a := Arrays(all, 4)
+	if len(a) != 3 || a[1].Offset != 4 || a[2].Spec(2) != "0-1%2" || a[0].Spec(0) != "0-3" {
+		t.Errorf("arrays %+v", a)
+	}
+	a = Arrays([]int{1, 2, 3, 5, 9}, 4)
+	if len(a) != 3 || a[0].Spec(0) != "1-3" || a[1].Spec(0) != "1" || a[2].Spec(0) != "1" || !reflect.DeepEqual(a[2].Shards(), []int{9}) {
+		t.Errorf("arrays %+v", a)
+	}
+	n, err := MaxArraySize([]byte("Configuration data as of now\nMaxArraySize            = 5000\nMaxJobCount = 10000\n"))
+	if err != nil || n != 5000 {
+		t.Errorf("MaxArraySize %d, %v", n, err)
+	}
+	if n, _ := MaxArraySize([]byte("nothing\n")); n != DefaultMaxArraySize {
+		t.Errorf("default MaxArraySize %d", n)
+	}
+}

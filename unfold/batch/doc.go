@@ -1,0 +1,38 @@
+// Package batch splits an ensemble of independent unfoldings into shards
+// that separate processes or machines run, and merges their partial
+// results into exactly what one process computes.
+//
+// # Plans
+//
+// A Plan, written as plan.json in a work folder, names the analysis
+// file and the assembled problem by content hash (SHA-256 of the file,
+// and of the response, generated counts, data and background as
+// assembled: ProblemSum), the settings of the ensemble, the work units
+// and their assignment to shards. A unit of a toy ensemble is a block of
+// validate.BlockToys consecutive toys; toy t draws from the PCG stream
+// (seed, validate.ToyStream(t)), recorded per unit, so no unit depends
+// on the shard, the process or the machine that runs it. A shard is a
+// contiguous run of units.
+//
+// # Shards
+//
+// RunShard runs one shard and writes its partial result (the mergeable
+// moments of its toys, validate.Ensemble) as shards/shard-NNNNN.json in
+// the work folder, atomically: a shard file is complete or absent, so a
+// failed or interrupted shard leaves nothing that Merge would take.
+// Running a shard whose file exists and belongs to the plan does
+// nothing. Each file carries the plan's identity (the SHA-256 of
+// plan.json) and its shard number.
+//
+// Merge checks that every shard of the plan is present and belongs to
+// it, and merges their blocks in toy order; the moments are those of one
+// run over every toy, bit for bit (see validate.Merge). Status reports
+// the shards done, missing and foreign from the shard files alone.
+//
+// # Slurm
+//
+// Arrays splits the shards to submit into job arrays whose indices stay
+// below a cluster's MaxArraySize (MaxArraySize reads it from the output
+// of the cluster's configuration query), each with an offset added to
+// the array task index, and Array.Spec writes an array's index list.
+package batch

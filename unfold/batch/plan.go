@@ -1,0 +1,296 @@
+package batch
+
+import (
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
+	"github.com/desmear/desmear/unfold/validate"
+)
+
+// PlanFile is the name of the plan in a work folder.
+const PlanFile = "plan.json"
+
+// Format is the version of plan.json and of the shard files.
+const Format = 1
+
+// Kind is the kind of ensemble a plan splits.
+type Kind string
+
+// The kinds of ensemble. Only Toys can be planned today.
+const (
+	// Toys: the toy ensemble of a validation.
+	Toys Kind = "toys"
+	// Replicas: bootstrap replicas of the simulation (not available).
+	Replicas Kind = "replicas"
+	// Variations: the systematic variations of an analysis, one unit
+	// each (not available: an analysis runs its variations in one
+	// process).
+	Variations Kind = "variations"
+)
+
+// Kinds lists the kinds of ensemble.
+func Kinds() []Kind { return []Kind{Toys, Replicas, Variations} }
+
+// ErrNotAvailable is returned for a kind of ensemble that cannot be
+// planned yet.
+var ErrNotAvailable = errors.New("not available yet")
+
+// MarshalText implements encoding.TextMarshaler.
+func (k Kind) MarshalText() ([]byte, error) { return []byte(k), nil }
+
+// UnmarshalText implements encoding.TextUnmarshaler: it accepts the
+// names of Kinds.
+func (k *Kind) UnmarshalText(b []byte) error {
+	for _, c := range Kinds() {
+		if string(b) == string(c) {
+			*k = c
+			return nil
+		}
+	}
+	return fmt.Errorf("unknown kind of ensemble %q (want toys, replicas or variations)", b)
+}
+
+// Check reports whether a plan of this kind can be made: an error
+// wrapping ErrNotAvailable for replicas and variations.
+func (k Kind) Check() error {
+	switch k {
+	case Toys:
+		return nil
+	case Replicas:
+		return fmt.Errorf("batch: plans of bootstrap replicas are %w: only toy ensembles can be planned", ErrNotAvailable)
+	case Variations:
+		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): only toy ensembles can be planned", ErrNotAvailable)
+	}
+	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
+}
+
+// Input is a file referenced by content.
+type Input struct {
+	Path   string `json:"path"`
+	SHA256 string `json:"sha256"`
+}
+
+// ToySettings are the settings of a validation's toy ensemble, as the
+// front end that made the plan gave them; every shard and the merge
+// rebuild the ensemble from them.
+type ToySettings struct {
+	Toys          int                `json:"toys"`
+	MaxIterations int                `json:"max_iterations"`
+	Seed          uint64             `json:"seed"`
+	Truth         string             `json:"toy_truth"`
+	Criterion     validate.Criterion `json:"criterion"`
+	BiasThreshold float64            `json:"bias_threshold"`
+	TiltPercent   float64            `json:"tilt_percent"`
+}
+
+// Unit is one unit of work: the toys FirstToy..FirstToy+Toys−1, toy t
+// drawing from the PCG stream (Seed, StreamBase + t).
+type Unit struct {
+	Index      int    `json:"index"`
+	FirstToy   int    `json:"first_toy"`
+	Toys       int    `json:"toys"`
+	Seed       uint64 `json:"seed"`
+	StreamBase uint64 `json:"stream_base"`
+}
+
+// Shard is a contiguous run of units.
+type Shard struct {
+	Index     int `json:"index"`
+	FirstUnit int `json:"first_unit"`
+	Units     int `json:"units"`
+}
+
+// Plan is an ensemble split into shards (see the package documentation).
+type Plan struct {
+	Format   int    `json:"format"`
+	Kind     Kind   `json:"kind"`
+	Analysis Input  `json:"analysis"`
+	Problem  string `json:"problem_sha256"`
+	// Out is the folder the merge writes.
+	Out    string      `json:"out"`
+	Toys   ToySettings `json:"toys"`
+	Units  []Unit      `json:"units"`
+	Shards []Shard     `json:"shards"`
+
+	id string // SHA-256 of plan.json, set by Read
+}
+
+// ID returns the identity of a plan read from its file: the SHA-256 of
+// plan.json.
+func (p *Plan) ID() string { return p.id }
+
+// ToyPlan returns the plan of the toy ensemble of settings ts over
+// shards shards: units of validate.BlockToys toys (the last one fewer),
+// split into shards of as equal a number of units as can be.
+func ToyPlan(analysis Input, problem string, ts ToySettings, shards int, out string) (*Plan, error) {
+	switch {
+	case ts.Toys < 2:
+		return nil, &unfold.SettingsError{Field: "Toys", Reason: "must be at least 2"}
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	}
+	nu := (ts.Toys + validate.BlockToys - 1) / validate.BlockToys
+	if shards > nu {
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d toys: a shard holds at least one block of %d toys, so at most %d shards", shards, ts.Toys, validate.BlockToys, nu)}
+	}
+	p := &Plan{Format: Format, Kind: Toys, Analysis: analysis, Problem: problem, Out: out, Toys: ts}
+	for u := range nu {
+		first := u * validate.BlockToys
+		p.Units = append(p.Units, Unit{Index: u, FirstToy: first, Toys: min(validate.BlockToys, ts.Toys-first), Seed: ts.Seed, StreamBase: validate.ToyStream(0)})
+	}
+	for s := range shards {
+		lo, hi := s*nu/shards, (s+1)*nu/shards
+		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
+	}
+	return p, nil
+}
+
+// ToyRange returns the toys of shard s: first and count.
+func (p *Plan) ToyRange(s int) (first, count int) {
+	sh := p.Shards[s]
+	for _, u := range p.Units[sh.FirstUnit : sh.FirstUnit+sh.Units] {
+		count += u.Toys
+	}
+	return p.Units[sh.FirstUnit].FirstToy, count
+}
+
+// Write writes the plan as plan.json in the work folder dir, creating
+// dir; it is an error if dir holds a plan already.
+func (p *Plan) Write(dir string) error {
+	path := filepath.Join(dir, PlanFile)
+	if _, err := os.Stat(path); err == nil {
+		return fmt.Errorf("%s: a plan exists already; plan into another folder or remove it", path)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	js, err := json.MarshalIndent(p, "", "  ")
+	if err != nil {
+		return err
+	}
+	return atomicfile.Write(path, func(w io.Writer) error {
+		_, err := w.Write(append(js, '\n'))
+		return err
+	})
+}
+
+// Read reads the plan of the work folder dir.
+func Read(dir string) (*Plan, error) {
+	path := filepath.Join(dir, PlanFile)
+	b, err := os.ReadFile(path)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("%s: no plan in this folder: %w", path, err)
+		}
+		return nil, err
+	}
+	var p Plan
+	if err := json.Unmarshal(b, &p); err != nil {
+		return nil, fmt.Errorf("%s: not a plan: %v", path, err)
+	}
+	if p.Format != Format {
+		return nil, fmt.Errorf("%s: plan format %d, this program reads format %d", path, p.Format, Format)
+	}
+	if err := p.Kind.Check(); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if err := p.check(); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	sum := sha256.Sum256(b)
+	p.id = hex.EncodeToString(sum[:])
+	return &p, nil
+}
+
+// check reports whether the units cover the toys in order and the shards
+// the units.
+func (p *Plan) check() error {
+	next := 0
+	for i, u := range p.Units {
+		if u.Index != i || u.FirstToy != next || u.Toys < 1 {
+			return fmt.Errorf("unit %d does not continue the units before it", i)
+		}
+		next += u.Toys
+	}
+	if next != p.Toys.Toys {
+		return fmt.Errorf("the units hold %d toys, the plan %d", next, p.Toys.Toys)
+	}
+	nu := 0
+	for i, s := range p.Shards {
+		if s.Index != i || s.FirstUnit != nu || s.Units < 1 {
+			return fmt.Errorf("shard %d does not continue the shards before it", i)
+		}
+		nu += s.Units
+	}
+	if nu != len(p.Units) || len(p.Shards) == 0 {
+		return fmt.Errorf("the shards hold %d units, the plan %d", nu, len(p.Units))
+	}
+	return nil
+}
+
+// CheckInputs reports whether the analysis file and the assembled
+// problem are those the plan was made from.
+func (p *Plan) CheckInputs(analysisSum, problemSum string) error {
+	if analysisSum != p.Analysis.SHA256 {
+		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(analysisSum), short(p.Analysis.SHA256))
+	}
+	if problemSum != p.Problem {
+		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(problemSum), short(p.Problem))
+	}
+	return nil
+}
+
+func short(s string) string { return s[:min(12, len(s))] }
+
+// FileSum returns the SHA-256 of the file at path, in hex.
+func FileSum(path string) (string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return "", err
+	}
+	defer f.Close()
+	h := sha256.New()
+	if _, err := io.Copy(h, f); err != nil {
+		return "", err
+	}
+	return hex.EncodeToString(h.Sum(nil)), nil
+}
+
+// ProblemSum returns the SHA-256, in hex, of the inputs of p: the
+// migrations (their encoding), the generated counts, the data, the
+// background, their variances and the prior, each with its length (a
+// nil vector differs from an empty one).
+func ProblemSum(p *unfold.Problem) (string, error) {
+	h := sha256.New()
+	if p.Migrations == nil {
+		return "", fmt.Errorf("batch: the problem has no migrations")
+	}
+	if _, err := p.Migrations.WriteTo(h); err != nil {
+		return "", err
+	}
+	var b [8]byte
+	for _, v := range [][]float64{p.Generated, p.Data, p.DataVariance, p.Background, p.BackgroundVariance, p.Prior} {
+		n := uint64(len(v)) + 1
+		if v == nil {
+			n = 0
+		}
+		binary.LittleEndian.PutUint64(b[:], n)
+		h.Write(b[:])
+		for _, x := range v {
+			binary.LittleEndian.PutUint64(b[:], math.Float64bits(x))
+			h.Write(b[:])
+		}
+	}
+	return hex.EncodeToString(h.Sum(nil)), nil
+}
