@@ -537,3 +537,21 @@ func readJSON(t *testing.T, path string, v any) {
 		t.Fatalf("%s: %v", path, err)
 	}
 }
+
+// A full disk during the demo is one line, prefixed, exit 5, and leaves
+// nothing behind (a 200 KB tmpfs holds the inputs of no demo; mounting
+// it needs root, so the test is skipped elsewhere).
+func TestDemoFullDisk(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "disk")
+	os.Mkdir(dir, 0o755)
+	if out, err := exec.Command("mount", "-t", "tmpfs", "-o", "size=200k", "tmpfs", dir).CombinedOutput(); err != nil {
+		t.Skipf("cannot mount a small tmpfs here (%v: %s)", err, out)
+	}
+	t.Cleanup(func() { exec.Command("umount", "-l", dir).Run() }) // lazily: a writer of the failed run may hold a file open
+	out := filepath.Join(dir, "demo")
+	code, stdout, stderr := runCLI(t, context.Background(), "demo", "--out", out, "--events", "20000", "--no-report", "-q")
+	checkRefusal(t, "demo on a full disk", code, stdout, stderr, exitIO, "no space left on device", out)
+	if entries, _ := os.ReadDir(dir); len(entries) != 0 {
+		t.Errorf("left on the full disk: %v", entries)
+	}
+}
