@@ -40,9 +40,10 @@ type Details struct {
 	// of the estimate.
 	ResidualNorm, PenaltyNorm float64
 	// Scan is the scan of tau in increasing order (empty for a fixed
-	// tau); AtScanEdge reports that the chosen tau is the first or last
-	// point at which the criterion is defined, so that the optimum may
-	// lie outside the range scanned.
+	// tau; an L-curve scan by conjugate gradients ends once its corner
+	// is bracketed, method.md §14); AtScanEdge reports that the chosen
+	// tau is the first or last point at which the criterion is defined,
+	// so that the optimum may lie outside the range scanned.
 	Scan       []ScanPoint
 	AtScanEdge bool
 	// CorrelationSample is the number of truth bins over which the
