@@ -90,7 +90,7 @@ const (
 )
 
 // VarianceSource says which variance of the data the linearised
-// propagation uses (method.md §25).
+// propagation uses (method.md §24).
 type VarianceSource int
 
 const (

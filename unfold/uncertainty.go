@@ -101,7 +101,7 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 }
 
 // expectedVariance returns the variance of the data from the folded
-// expectation nu = R μ + b (method.md §25; nu is the fit's fold, without
+// expectation nu = R μ + b (method.md §24; nu is the fit's fold, without
 // the background in Subtract mode, which adds it): nu_i for Poisson counts,
 // scaled by var n_i / n_i for data with their own variances (where
 // n_i > 0); in Subtract mode the background variance is added and the
@@ -169,7 +169,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	m := pl.m
 	if pl.rs.VarianceFrom == FromExpectation && pl.method != NoCovariance {
 		// The fit is done: only the propagation sees the variance of
-		// the expectation (method.md §25).
+		// the expectation (method.md §24).
 		observed := m.varN
 		m.varN = m.expectedVariance(fit.Folded())
 		defer func() { m.varN = observed }()

@@ -118,7 +118,7 @@ func TestAnalysisCompare(t *testing.T) {
 // --bias-toys: the bias estimate beside the uncertainty in result.csv
 // (bias, bias_error) and in result.json (bias, with its toys and seed);
 // 1 toy is refused at the flag, and uncertainty.bias_toys: 1 at its line.
-// The numbers are checked in unfold/validate (method.md §24).
+// The numbers are checked in unfold/validate (method.md §23).
 func TestUnfoldBiasToys(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), oracleD)
 	out := filepath.Join(dir, "out")
@@ -158,7 +158,7 @@ func TestUnfoldBiasToys(t *testing.T) {
 
 // --variance-from and uncertainty.variance_from: the choice is recorded in
 // settings; a bad value is refused at the flag and at the key's line.
-// The numbers are checked in unfold/methods/bayes (method.md §25).
+// The numbers are checked in unfold/methods/bayes (method.md §24).
 func TestVarianceFromSetting(t *testing.T) {
 	dir := writeFiles(t, t.TempDir(), oracleD)
 	out := filepath.Join(dir, "out")
@@ -189,7 +189,7 @@ func TestVarianceFromSetting(t *testing.T) {
 	}
 }
 
-// The warning on a collapsed uncertainty (method.md §25): a background
+// The warning on a collapsed uncertainty (method.md §24): a background
 // above the data of reco bin 1 drives truth bin 1 towards zero by a
 // factor n_1/b_1 = 1/2 per iteration at most (the iteration of method.md
 // §3: μ₁ ← μ₁ n₁/(ε μ₁ + b₁)), so after 20 iterations it is below 1e-4 of

@@ -929,7 +929,7 @@ func printBinNotes(g *globalOptions, r *result.Result, truth *binning.Scheme, to
 		}
 		names = append(names, name)
 	}
-	fmt.Fprintf(g.stderr, "warning: in %d truth bins the estimate fell below %g of its start and its uncertainty below the Poisson sqrt(estimate): the linearised uncertainty collapses with the estimate there (bins %s); check them with toys (%s) or the variance from the expectation (desmear help method, §25)\n",
+	fmt.Fprintf(g.stderr, "warning: in %d truth bins the estimate fell below %g of its start and its uncertainty below the Poisson sqrt(estimate): the linearised uncertainty collapses with the estimate there (bins %s); check them with toys (%s) or the variance from the expectation (desmear help method, §24)\n",
 		len(r.CollapsedBins), result.CollapseFall, strings.Join(names, "; "), toys)
 }
 

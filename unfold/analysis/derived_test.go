@@ -78,7 +78,7 @@ func TestDerivedDecode(t *testing.T) {
 // tables and result.json against the estimate and its covariance: the
 // density is the estimate of each in-range bin divided by its width and
 // the luminosity, with the uncertainty divided alike; the shape sums to
-// one and is marked singular (method.md §23 Derived quantities). With
+// one and is marked singular (method.md §22 Derived quantities). With
 // the variances only, no uncertainty is given and the note says why.
 func TestRunDerived(t *testing.T) {
 	dir := t.TempDir()

@@ -68,7 +68,7 @@ func randomCov(n int, rng *rand.Rand) *mat.SymDense {
 // against sums written out by hand (sum over y for each x bin, over x
 // for each y bin; the flow bins and the other region left out), and
 // the densities against the same sums divided by the widths and the
-// luminosity (method.md §23 Derived quantities).
+// luminosity (method.md §22 Derived quantities).
 func TestProjectionHandSums(t *testing.T) {
 	s := scheme2D(t)
 	mu := make([]float64, s.Len())
@@ -128,7 +128,7 @@ func TestProjectionHandSums(t *testing.T) {
 
 // TestCovarianceAgainstDense checks Covariance against D cov Dᵀ formed
 // with gonum's dense products from the Jacobian D, for every kind (the
-// definition of linear propagation, method.md §23 Derived quantities),
+// definition of linear propagation, method.md §22 Derived quantities),
 // and the Jacobian of a shape against central finite differences of
 // Value.
 func TestCovarianceAgainstDense(t *testing.T) {
@@ -194,7 +194,7 @@ func TestCovarianceAgainstDense(t *testing.T) {
 
 // TestShapeKernel checks that the covariance of a normalised shape has
 // (1, ..., 1) in its kernel over each normalisation group (Σ_t y_t = 1
-// in each group, so 1ᵀ J = 0: method.md §23 Derived quantities), and
+// in each group, so 1ᵀ J = 0: method.md §22 Derived quantities), and
 // the width vector w when the widths divide (Σ_t w_t y_t = 1), to
 // rounding; and that the covariance of a projection is not singular.
 func TestShapeKernel(t *testing.T) {
@@ -408,7 +408,7 @@ func TestSpecErrors(t *testing.T) {
 // the hand sum over the in-range mass bins of each (y, pt) bin (found by
 // the reverse lookup Scheme.Bin), the shape per y slice sums to one in
 // each slice with its covariance equal to gonum's D cov Dᵀ and with the
-// ones of each slice in its kernel (method.md §23 Derived quantities);
+// ones of each slice in its kernel (method.md §22 Derived quantities);
 // summing over y while keeping pt, and slicing by pt without y, are
 // refused.
 func TestEdgesByBin(t *testing.T) {

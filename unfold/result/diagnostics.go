@@ -76,11 +76,11 @@ func (r *Result) SetProblem(p *unfold.Problem) {
 }
 
 // CollapseFall is the fall of an estimate from its start below which
-// Collapsed looks at its uncertainty (method.md §25).
+// Collapsed looks at its uncertainty (method.md §24).
 const CollapseFall = 1e-2
 
 // Collapsed returns the determined truth bins whose linearised
-// uncertainty collapsed with the estimate (method.md §25): an iterative
+// uncertainty collapsed with the estimate (method.md §24): an iterative
 // result whose estimate μ_j fell to at most CollapseFall times its start
 // μ_j(0) (the prior, or the generated spectrum, scaled so that
 // Σ_j eps_j μ_j(0) = Σ_i (n_i − b_i)) while its uncertainty is at most

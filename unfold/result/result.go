@@ -226,7 +226,7 @@ type Stream struct {
 // toys' estimates minus the result, the toys drawn from the result
 // refolded and unfolded at the regularisation the result chose; Error is
 // its toy precision (one standard error). Model-dependent: it takes the
-// result as the truth; it is not a correction (method.md §24).
+// result as the truth; it is not a correction (method.md §23).
 type Bias struct {
 	Toys   int       `json:"toys"`
 	Seed   uint64    `json:"seed"`

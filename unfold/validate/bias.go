@@ -13,7 +13,7 @@ import (
 // with the method at the regularisation the result chose, and per truth
 // bin the mean toy estimate minus μ̂ with its standard error. It is a
 // model-dependent estimate (it takes the result as the truth), not a
-// correction (method.md §24).
+// correction (method.md §23).
 type Bias struct {
 	// Toys and Seed set the ensemble (the toys of Run, one PCG stream per
 	// toy); K is the regularisation strength of the method family.

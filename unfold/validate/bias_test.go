@@ -11,7 +11,7 @@ import (
 
 // On a response without migrations the iteration gives n_j/eps_j at every
 // k (method.md §7 Exact properties of the iteration), an unbiased
-// estimate: the bias estimate from the result refolded (method.md §24
+// estimate: the bias estimate from the result refolded (method.md §23
 // Bias estimate from the refolded result) is zero within its stated
 // precision, and that precision is the Poisson closed form
 // sqrt(Var μ_j / T) with Var μ_j = ν_j / eps_j² = μ̂_j / eps_j (common

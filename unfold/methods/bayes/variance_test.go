@@ -8,7 +8,7 @@ import (
 	"github.com/desmear/desmear/unfold"
 )
 
-// The variance from the expectation (method.md §25 Data variance from the
+// The variance from the expectation (method.md §24 Data variance from the
 // expectation) is the linearised propagation V = J diag(var n) Jᵀ of
 // method.md §8 with var n_i = ν_i, the folded expectation of the
 // estimate: the same covariance, to rounding, as the propagation of data
