@@ -234,32 +234,32 @@ func EnsembleSource(name, method string, ens *Ensemble, det []bool) *Source {
 	return src
 }
 
-// UnfoldEach unfolds count problems with method m, the background mode
-// of s (nil means the defaults) and no uncertainty, and adds their
-// estimates to ens in the order k = 0, 1, …: problem(k) gives problem k
-// (for example the nominal problem with a varied response). Problems
-// are prepared and unfolded concurrently, problem being called from
-// several goroutines for distinct k, and added in order, so the bits do
-// not depend on the number of cores.
+// UnfoldEach unfolds the problems k0 ≤ k < k1 with method m, the
+// background mode of s (nil means the defaults) and no uncertainty, and
+// adds their estimates to ens in the order of k: problem(k) gives
+// problem k (for example the nominal problem with a varied response).
+// Problems are prepared and unfolded concurrently, problem being called
+// from several goroutines for distinct k, and added in order, so the bits
+// do not depend on the number of cores.
 //
-// Errors: those of s.Resolve, Prepare and the method, wrapped with the
-// problem's number, and ctx.Err().
-func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, count int, problem func(k int) (*Problem, error)) error {
+// Errors: those of s.Resolve; those of problem, Prepare and the method,
+// prefixed with "k: "; ctx.Err().
+func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
 	rs, err := s.Resolve()
 	if err != nil {
 		return err
 	}
-	workers := max(1, min(runtime.GOMAXPROCS(0), count))
+	workers := max(1, min(runtime.GOMAXPROCS(0), k1-k0))
 	est := make([][]float64, workers)
 	errs := make([]error, workers)
-	for k0 := 0; k0 < count; k0 += workers {
+	for b0 := k0; b0 < k1; b0 += workers {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		batch := min(workers, count-k0)
+		batch := min(workers, k1-b0)
 		parallel.For(batch, batch, func(w int) {
 			est[w], errs[w] = nil, nil
-			q, err := problem(k0 + w)
+			q, err := problem(b0 + w)
 			if err != nil {
 				errs[w] = err
 				return
@@ -278,7 +278,7 @@ func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, count
 		})
 		for w := range batch {
 			if errs[w] != nil {
-				return fmt.Errorf("problem %d: %w", k0+w, errs[w])
+				return fmt.Errorf("%d: %w", b0+w, errs[w])
 			}
 			ens.Add(est[w])
 		}

@@ -96,6 +96,11 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
+	if s.Replicas > 0 {
+		if err := a.addReplicas(ctx, out, p, s, m, opt); err != nil {
+			return nil, err
+		}
+	}
 	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
 		return nil, err
 	}
