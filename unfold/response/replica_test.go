@@ -148,7 +148,7 @@ func TestFillReplicasSameBits(t *testing.T) {
 // √(2/(N−1)) of a variance from N samples (method.md §25). The bits of
 // the bootstrap do not depend on the core count or the block size.
 func TestReplicaCovarianceAgrees(t *testing.T) {
-	const nb, events, replicas = 24, 60000, 300
+	const nb, events, replicas = 24, 60000, 600
 	rng := rand.New(rand.NewPCG(21, 2))
 	cols := [][]float64{make([]float64, events), make([]float64, events), make([]float64, events)}
 	for e := range events {
@@ -284,13 +284,13 @@ func TestReplicaCovarianceAgrees(t *testing.T) {
 	prec := math.Sqrt(2.0 / (replicas - 1)) // method.md §25: relative precision of a variance from N samples
 	for i := range nb {
 		lin, bo, di := vLin[i][i], vBoot.At(i, i), vDir.At(i, i)
-		if math.Abs(bo/lin-1) > 5*prec {
-			t.Errorf("bin %d: bootstrap variance %.4g, linear propagation %.4g (ratio %.3f, tolerance 5·%.3f)", i, bo, lin, bo/lin, prec)
+		if math.Abs(bo/lin-1) > 4*prec {
+			t.Errorf("bin %d: bootstrap variance %.4g, linear propagation %.4g (ratio %.3f, tolerance 4·%.3f)", i, bo, lin, bo/lin, prec)
 		}
-		if math.Abs(di/lin-1) > 5*prec {
+		if math.Abs(di/lin-1) > 4*prec {
 			t.Errorf("bin %d: Dirichlet variance %.4g, linear propagation %.4g (ratio %.3f)", i, di, lin, di/lin)
 		}
-		if math.Abs(bo/di-1) > 5*math.Sqrt2*prec {
+		if math.Abs(bo/di-1) > 4*math.Sqrt2*prec {
 			t.Errorf("bin %d: bootstrap variance %.4g, Dirichlet %.4g (ratio %.3f)", i, bo, di, bo/di)
 		}
 		if i+1 < nb {
@@ -298,7 +298,7 @@ func TestReplicaCovarianceAgrees(t *testing.T) {
 			// most 1/√N (common practice).
 			rl := vLin[i][i+1] / math.Sqrt(lin*vLin[i+1][i+1])
 			rb := vBoot.At(i, i+1) / math.Sqrt(bo*vBoot.At(i+1, i+1))
-			if math.Abs(rb-rl) > 5/math.Sqrt(replicas) {
+			if math.Abs(rb-rl) > 4/math.Sqrt(replicas) {
 				t.Errorf("bins %d,%d: bootstrap correlation %.3f, linear propagation %.3f", i, i+1, rb, rl)
 			}
 		}
