@@ -100,7 +100,7 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 
 // addReplicas adds the simulation source of s.Replicas bootstrap
 // replicas to out.Result, its stream, and a note on the block size to
-// out.Warnings.
+// out.Notes.
 func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) error {
 	n := s.Replicas
 	ens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, opt)
@@ -115,6 +115,6 @@ func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Prob
 		limit = unfold.DefaultMemoryLimit
 	}
 	block := ReplicaBlock(p, limit)
-	out.Warnings = append(out.Warnings, fmt.Sprintf("the bootstrap filled its %d replicas in %d pass(es) over the simulated events, %d replicas per pass (half of the memory limit)", n, (n+block-1)/block, min(block, n)))
+	out.Notes = append(out.Notes, fmt.Sprintf("the bootstrap filled its %d replicas in %d pass(es) over the simulated events, %d replicas per pass (half of the memory limit)", n, (n+block-1)/block, min(block, n)))
 	return nil
 }

@@ -31,7 +31,8 @@ func TestReplicasRun(t *testing.T) {
 		t.Fatal(err)
 	}
 	const n = 40
-	text := strings.Replace(string(src), "  covariance: full\n", "  covariance: full\n  replicas: 40\n  seed: 3\n", 1)
+	text := strings.Replace(string(src), "  covariance: full\n", "  covariance: full\n  replicas: 40\n  seed: 3\n", 1) +
+		"variations:\n  - {name: one, weight: \"1\"}\n"
 	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
 		t.Fatal(err)
 	}
@@ -48,11 +49,16 @@ func TestReplicasRun(t *testing.T) {
 	if sim == nil || sim.Method != unfold.MethodReplicas || sim.Samples != n || sim.Covariance == nil {
 		t.Fatalf("simulation source %+v", sim)
 	}
+	// A weight of 1 shifts nothing (method.md §21 Systematic variations:
+	// δ = μ' − μ), with the bootstrap asked for too.
+	if v := out.Result.Source("one"); v == nil || slices.ContainsFunc(v.Shift, func(x float64) bool { return x != 0 }) {
+		t.Errorf("variation source %+v", v)
+	}
 	if want := math.Sqrt(2.0 / (n - 1)); sim.Precision != want { // method.md §25
 		t.Errorf("precision %v, want %v", sim.Precision, want)
 	}
-	if !slices.ContainsFunc(out.Warnings, func(w string) bool { return strings.Contains(w, "40 replicas per pass") }) {
-		t.Errorf("no note on the replica blocks in %q", out.Warnings)
+	if !slices.ContainsFunc(out.Notes, func(w string) bool { return strings.Contains(w, "40 replicas per pass") }) {
+		t.Errorf("no note on the replica blocks in %q", out.Notes)
 	}
 	var doc struct {
 		Settings struct {

@@ -50,6 +50,9 @@ type Outcome struct {
 	// flows), each one line naming the bins.
 	Remedies *unfold.Remedies
 	Warnings []string
+	// Notes say how the run went where it chose something (the blocks
+	// of the bootstrap replicas), one line each.
+	Notes []string
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
