@@ -892,11 +892,7 @@ func printSummary(g *globalOptions, dir string, r *result.Result, details any, t
 	}
 	for _, src := range r.Sources {
 		if src.Name == unfold.SourceSimulation {
-			what := "sampled responses"
-			if src.Method == unfold.MethodReplicas {
-				what = "bootstrap replicas of the simulated events"
-			}
-			fmt.Fprintf(g.stderr, "note: the simulation's statistical uncertainty from %d %s (relative precision of each of its variances about %.0f%%) is added to the data's\n", src.Samples, what, 100*src.Precision)
+			fmt.Fprintf(g.stderr, "note: the simulation's statistical uncertainty from %d sampled responses (relative precision of each of its variances about %.0f%%) is added to the data's\n", src.Samples, 100*src.Precision)
 		}
 	}
 }
