@@ -45,6 +45,7 @@ type Analysis struct {
 	// load instead of building the response from Simulation.
 	ResponseFile string
 	responseLine int
+	replicasLine int // of uncertainty.replicas
 
 	Data        Data
 	Backgrounds []Background
@@ -375,6 +376,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed,
 		ResponseSamples: un.ResponseSamples, SamplingPrior: un.SamplingPrior, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom,
 		Replicas: un.Replicas}
+	a.replicasLine = c.line("uncertainty", "replicas")
 	if un.Replicas != 0 && a.ResponseFile != "" {
 		c.errf(c.line("uncertainty", "replicas"), "uncertainty.replicas", "needs the simulated events, but the response is read from a saved bundle (response): give the simulation instead, or use uncertainty.response_samples")
 	}

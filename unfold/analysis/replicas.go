@@ -2,6 +2,7 @@ package analysis
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"github.com/desmear/desmear/unfold"
@@ -26,7 +27,8 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 // estimates, full when s asks for the full covariance: each replica's
 // response (migrations on the pattern of p, generated counts and, when
 // the fakes are background, the fakes in place of the nominal ones) is
-// unfolded with method m and the nominal data of p. nominal is the
+// unfolded with method m and the nominal data of p (with negative cells
+// clipped when s clips them in the nominal response). nominal is the
 // response p was assembled from (its fakes are replaced). The replicas
 // are filled in blocks of ReplicaBlock (one pass over the events per
 // block) and added in replica order, so the bits do not depend on the
@@ -77,6 +79,12 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 		problem := func(r int) (*unfold.Problem, error) {
 			q := *p
 			i := r - b0
+			if rs.NegativeCells == unfold.ClipNegative {
+				// The nominal remedy, applied to the replica's cells.
+				for k, v := range rp.Values[i] {
+					rp.Values[i][k] = max(0, v)
+				}
+			}
 			a, err := p.Migrations.WithValues(rp.Values[i], nil)
 			if err != nil {
 				return nil, err
@@ -104,8 +112,13 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) error {
 	n := s.Replicas
 	ens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, opt)
+	var ue *unfold.InputError
+	if errors.As(err, &ue) {
+		return &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
+			Msg: fmt.Sprintf("%v: the response of this replica cannot be unfolded (too few simulated events in these bins, or negative weights): merge bins, clip negative cells (unfolding.negative_cells: clip) or sample the responses instead (uncertainty.response_samples)", err)}
+	}
 	if err != nil {
-		return a.placeKernelError(err)
+		return err
 	}
 	res := out.Result
 	res.AddSource(*unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined))

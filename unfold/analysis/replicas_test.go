@@ -130,3 +130,33 @@ func TestReplicasRun(t *testing.T) {
 		}
 	}
 }
+
+// With negative event weights and negative cells clipped in the nominal
+// response, the replicas' cells are clipped too (method.md §25: the
+// replica is classified and treated exactly as the nominal response).
+func TestReplicasClipNegativeCells(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(4000, 8))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(2000, 9)[1]})
+	path := writeAnalysis(t, dir, "sim.csv", "data.csv")
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.NewReplacer("  covariance: full\n", "  covariance: full\n  replicas: 30\n",
+		"    weight: w\n", "    weight: w - 0.62\n", "  iterations: 4\n", "  iterations: 4\n  negative_cells: clip\n").Replace(string(src))
+	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	a, err := Load(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	out, err := a.Run(context.Background(), nil, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out.Remedies == nil || out.Result.Source(unfold.SourceSimulation) == nil {
+		t.Errorf("remedies %+v, sources %d", out.Remedies, len(out.Result.Sources))
+	}
+}
