@@ -1,11 +1,14 @@
 package events
 
 import (
+	"bytes"
 	"context"
+	"encoding/binary"
 	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -93,6 +96,32 @@ func TestCorruptedROOTBasket(t *testing.T) {
 		}
 		if !strings.Contains(err.Error(), q+": branch ") || !strings.Contains(err.Error(), "is damaged (LZ4 block checksum mismatch)") {
 			t.Errorf("64 bytes damaged at %d: %v", o, err)
+		}
+	}
+}
+
+// TestParquetFooterLength gives the seed file a footer length (the four
+// bytes before the trailing magic, Apache Parquet file format
+// specification, "File Format") larger than the file: it is refused
+// naming the file, without allocating the declared length (parquet-go
+// v0.32.0 allocates it first: up to 4 GB for one mutated byte).
+func TestParquetFooterLength(t *testing.T) {
+	data, err := os.ReadFile("testdata/events.parquet")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, n := range []uint32{uint32(len(data)) - 11, 1 << 30, 0xffffffff} {
+		d := append([]byte(nil), data...)
+		binary.LittleEndian.PutUint32(d[len(d)-8:], n)
+		var m0, m1 runtime.MemStats
+		runtime.ReadMemStats(&m0)
+		_, err := newParquet("x.parquet", bytes.NewReader(d), int64(len(d)))
+		runtime.ReadMemStats(&m1)
+		if err == nil || !strings.Contains(err.Error(), "x.parquet: not a readable Parquet file: the footer is said to be") {
+			t.Errorf("footer of %d bytes: %v", n, err)
+		}
+		if a := m1.TotalAlloc - m0.TotalAlloc; a > 1<<20 {
+			t.Errorf("footer of %d bytes: %d bytes allocated to refuse it", n, a)
 		}
 	}
 }
