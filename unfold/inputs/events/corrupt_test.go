@@ -125,3 +125,49 @@ func TestParquetFooterLength(t *testing.T) {
 		}
 	}
 }
+
+// TestROOTDeclaredLengths damages the lengths a ROOT file declares (the
+// file header's free-segment length, the uncompressed sizes of the
+// free-segment and streamer records, the top directory's key count; the
+// layout of ROOT's file header, key header and TDirectory record, common
+// practice of the ROOT file format): each is refused naming the file,
+// without allocating the declared length (go-hep v0.36.0 allocates it
+// first: up to 2 GB for one damaged byte).
+func TestROOTDeclaredLengths(t *testing.T) {
+	data, err := os.ReadFile("testdata/events.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	if v := be.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
+	}
+	seekfree, seekinfo := be.Uint32(data[16:]), be.Uint32(data[37:])
+	nbytesname := be.Uint32(data[28:])
+	dir := be.Uint32(data[8:]) + nbytesname // the top directory follows the name record at fBEGIN
+	seekkeys := be.Uint32(data[dir+26:])
+	keylen := be.Uint16(data[seekkeys+14:])
+	for _, c := range []struct {
+		what string
+		at   uint32
+	}{
+		{"free-segment length in the header", 20},
+		{"free-segment record's object size", seekfree + 6},
+		{"streamer record's object size", seekinfo + 6},
+		{"key list's object size", seekkeys + 6},
+		{"number of keys", seekkeys + uint32(keylen)},
+	} {
+		d := append([]byte(nil), data...)
+		be.PutUint32(d[c.at:], 0x7ffffff0)
+		var m0, m1 runtime.MemStats
+		runtime.ReadMemStats(&m0)
+		_, err := newROOT("x.root", memFile{bytes.NewReader(d)}, int64(len(d)), "events")
+		runtime.ReadMemStats(&m1)
+		if err == nil || !strings.Contains(err.Error(), "x.root: damaged ROOT file: ") {
+			t.Errorf("%s damaged: %v", c.what, err)
+		}
+		if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+			t.Errorf("%s damaged: %d bytes allocated to refuse it", c.what, a)
+		}
+	}
+}
