@@ -16,6 +16,8 @@ import (
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/root"
 	"go-hep.org/x/hep/groot/rtree"
+
+	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // ROOT is an event sample in a TTree of a ROOT file.
@@ -63,7 +65,7 @@ func newROOT(path string, rd riofs.Reader, size int64, treePath string) (src *RO
 	}()
 	// go-hep allocates what the file declares before reading it: the
 	// layout is checked first.
-	if err := checkROOT(rd, size); err != nil {
+	if err := rootio.CheckFile(rd, size); err != nil {
 		return nil, fmt.Errorf("events: %s: %w", path, err)
 	}
 	f, err = riofs.NewReader(rd)

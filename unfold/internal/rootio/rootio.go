@@ -283,13 +283,23 @@ func openFile(path string) (f *riofs.File, err error) {
 	}()
 	// A file that cannot be opened at all: the operating system's
 	// message, as for every other input, not the ROOT library's.
-	plain, err := os.Open(path)
+	fd, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("rootio: %w", err)
 	}
-	plain.Close()
-	f, err = groot.Open(path)
+	st, err := fd.Stat()
+	if err == nil {
+		// go-hep allocates what the file declares before reading it:
+		// the layout is checked first.
+		err = CheckFile(fd, st.Size())
+	}
 	if err != nil {
+		fd.Close()
+		return nil, fmt.Errorf("rootio: %s: %w", path, err)
+	}
+	f, err = riofs.NewReader(fd)
+	if err != nil {
+		fd.Close()
 		return nil, fmt.Errorf("rootio: %s: cannot open as a ROOT file: %w", path, err)
 	}
 	return f, nil

@@ -1,4 +1,4 @@
-package events
+package rootio
 
 import (
 	"bytes"
@@ -10,7 +10,7 @@ import (
 	"github.com/pierrec/xxHash/xxHash64"
 )
 
-// checkROOT checks the layout of the ROOT file of size bytes in r before
+// CheckFile checks the layout of the ROOT file of size bytes in r before
 // go-hep reads it, and the checksums go-hep does not verify. go-hep
 // v0.36.0 allocates every length the file declares before reading (the
 // free-segment and streamer records, the key list, the uncompressed size
@@ -33,7 +33,7 @@ import (
 //
 // A file without ROOT's magic is left to go-hep to refuse. The error names
 // the byte offset, and the branch (the basket's key name) for a basket.
-func checkROOT(r io.ReaderAt, size int64) error {
+func CheckFile(r io.ReaderAt, size int64) error {
 	var hdr [64]byte
 	n, _ := r.ReadAt(hdr[:], 0)
 	if n < 4 || string(hdr[:4]) != "root" {
