@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"crypto/sha256"
+	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
@@ -113,7 +114,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 			}
 			os.WriteFile(p, b, 0o644)
 		}
-		code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+		code, stdout, stderr := runBounded(t, c.name, "unfold", path)
 		checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
 		os.WriteFile(p, files[c.file], 0o644)
 	}
@@ -162,7 +163,7 @@ func TestSettingsTakenAsWritten(t *testing.T) {
 		{"unfold", bad("folder: result\n", "folder: result\n---\ntitle: another\n"), "set7.yaml:31: a second YAML document (---) is not allowed"},
 		{"response", bad("file: sim.csv", "file: huge.csv"), `huge.csv:2:` + strconv.Itoa(len(strings.Join(fields[:3], ","))+2) + `: column "pt_r": "1e400" is too large for a 64-bit float`},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), c.cmd, c.file)
+		code, stdout, stderr := runBounded(t, c.file, c.cmd, c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
 	}
 	if _, err := os.Stat(filepath.Join(dir, "response")); err == nil {
@@ -185,7 +186,7 @@ func TestMessagesSayWhatToFix(t *testing.T) {
 		{bad("pass_r && pt_r", "pass_r & pt_r"), "for a logical and use &&"},
 		{bad("weight: w", "weight: w ** 2"), "operator ** is not supported; for powers use pow(x, y)"},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), "response", c.file)
+		code, stdout, stderr := runBounded(t, c.file, "response", c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "response"))
 	}
 }
@@ -259,9 +260,8 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 }
 
 // Sizes a file can ask for are bounded and checked before the memory is
-// taken: each refusal names the key (or the file) and the limit, and the
-// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
-// upper bound of the peak heap).
+// taken: each refusal names the key (or the file) and the limit, within
+// the memory bound of runBounded.
 func TestBoundedMemory(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
@@ -292,14 +292,8 @@ func TestBoundedMemory(t *testing.T) {
 		{bad("reco: reco.yaml", "reco: alias.yaml"), "alias.yaml:5:16: regions[0].axes[1].edges_by_bin[103]: more than 1048576 edges in the scheme (a list reused through a YAML alias counts each time)"},
 		{"/dev/zero", "/dev/zero: larger than 16 MiB, the limit for an analysis file"},
 	} {
-		var before, after runtime.MemStats
-		runtime.ReadMemStats(&before)
-		code, stdout, stderr := runCLI(t, context.Background(), "unfold", c.file)
-		runtime.ReadMemStats(&after)
+		code, stdout, stderr := runBounded(t, c.file, "unfold", c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
-		if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
-			t.Errorf("%s: %d MB allocated", c.file, a>>20)
-		}
 	}
 }
 
@@ -553,5 +547,71 @@ func TestDemoFullDisk(t *testing.T) {
 	checkRefusal(t, "demo on a full disk", code, stdout, stderr, exitIO, "no space left on device", out)
 	if entries, _ := os.ReadDir(dir); len(entries) != 0 {
 		t.Errorf("left on the full disk: %v", entries)
+	}
+}
+
+// runBounded runs the command in-process like runCLI and checks that the
+// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
+// upper bound of its peak heap): the bound the hostile inputs of the
+// tables below must stay within.
+func runBounded(t *testing.T, name string, args ...string) (int, string, string) {
+	t.Helper()
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	code, stdout, stderr := runCLI(t, context.Background(), args...)
+	runtime.ReadMemStats(&after)
+	if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
+		t.Errorf("%s: %d MB allocated", name, a>>20)
+	}
+	return code, stdout, stderr
+}
+
+// Damaged event files through the command (the demo's ROOT simulation,
+// zlib-compressed, and its Parquet data): 64 bytes overwritten in the
+// middle, or a length in the ROOT header made larger than the file, are
+// refused in one line naming the file (exit 3), within the memory bound,
+// with no output left behind (common practice: zlib streams carry an
+// Adler-32 sum, Parquet pages a CRC-32; a ROOT header's records lie
+// inside the file).
+func TestDamagedEventFiles(t *testing.T) {
+	base := t.TempDir()
+	demo := filepath.Join(base, "demo")
+	if code, _, stderr := runCLI(t, context.Background(), "demo", "--out", demo, "--events", "20000", "--no-report", "-q"); code != 0 {
+		t.Fatalf("demo: exit %d, %s", code, stderr)
+	}
+	analysisFile := filepath.Join(demo, "analysis.yaml")
+	os.RemoveAll(filepath.Join(demo, "result"))
+	middle := func(b []byte) {
+		for i := len(b) / 2; i < len(b)/2+64; i++ {
+			b[i] ^= 0x5a
+		}
+	}
+	for _, c := range []struct {
+		name, file string
+		damage     func([]byte)
+		cmd        []string
+		out, want  string
+	}{
+		{"64 bytes of the ROOT simulation", "simulation.root", middle,
+			[]string{"response", analysisFile, "--out", filepath.Join(base, "resp")}, filepath.Join(base, "resp"), "damaged"},
+		{"the free-segment length of the ROOT simulation", "simulation.root", func(b []byte) { binary.BigEndian.PutUint32(b[20:], 0x7ffffff0) },
+			[]string{"response", analysisFile, "--out", filepath.Join(base, "resp")}, filepath.Join(base, "resp"), "damaged ROOT file: the free-segment record of 2147483632 bytes"},
+		{"64 bytes of the Parquet data", "data.parquet", middle,
+			[]string{"unfold", analysisFile, "--no-report"}, filepath.Join(demo, "result"), "data.parquet"},
+	} {
+		p := filepath.Join(demo, c.file)
+		orig, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		d := append([]byte(nil), orig...)
+		c.damage(d)
+		os.WriteFile(p, d, 0o644)
+		code, stdout, stderr := runBounded(t, c.name, c.cmd...)
+		checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, c.out)
+		if !strings.Contains(stderr, p) {
+			t.Errorf("%s: the message does not name %s: %q", c.name, p, stderr)
+		}
+		os.WriteFile(p, orig, 0o644)
 	}
 }
