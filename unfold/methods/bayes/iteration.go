@@ -140,9 +140,13 @@ type iterator struct {
 	ll               []float64 // log-likelihood partial sum per row range
 	red              parallel.Reducer
 	keepG            bool // tangents read g: the sweep stores it
-	update           func(j int, g float64) float64
-	updateNoG        func(j int, g float64) float64
-	rows             func(r, lo, hi int)
+	// noLL skips the log-likelihood (every Step.LogLikelihood is 0): for
+	// runs whose details nobody reads (toys, re-runs, refits), it saves
+	// one logarithm per reco bin and iteration; the estimate is the same.
+	noLL      bool
+	update    func(j int, g float64) float64
+	updateNoG func(j int, g float64) float64
+	rows      func(r, lo, hi int)
 }
 
 func newIterator(m *model, sm *smoother) *iterator {
@@ -231,12 +235,35 @@ func (it *iterator) sumLL() float64 {
 // recoRange sets nu = fold + b (only with a background; otherwise nu
 // aliases fold) and y = n/nu over the rows [lo, hi) and returns the
 // partial log-likelihood Σ (n_i ln ν_i − ν_i) of those rows, summed in
-// row order. It touches nothing outside [lo, hi).
+// row order (0 with it.noLL). It touches nothing outside [lo, hi).
 func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	n, b := it.n, it.m.b
 	f := fold[lo:hi]
 	nn, yy := n[lo:hi:hi], y[lo:hi:hi]
 	nn, yy = nn[:len(f)], yy[:len(f)]
+	if it.noLL {
+		// the same ν and n/ν, without the logarithms
+		if b != nil {
+			bb, vv := b[lo:hi], nu[lo:hi]
+			bb, vv = bb[:len(f)], vv[:len(f)]
+			for i, v := range f {
+				v += bb[i]
+				vv[i] = v
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		} else {
+			for i, v := range f {
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		}
+		return 0
+	}
 	var ll float64
 	if b != nil {
 		bb, vv := b[lo:hi], nu[lo:hi]
