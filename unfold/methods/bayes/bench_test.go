@@ -204,8 +204,10 @@ func BenchmarkFineIterationParts(b *testing.B) {
 // prepared problem at 500,000 × 1,000,000 (10M non-zeros), interleaved in
 // one loop: a reused Unfolder with 4 and with 8 iterations (the
 // difference over 4 is the marginal iteration, the rest of the 4-iteration
-// call its fixed cost), a whole unfold.Unfold call with 4 iterations, and
-// 4 bare fused sweeps. Reports medians and same-run ratios.
+// call its fixed cost), the same pair without the log-likelihood
+// (RecordLogLikelihood(false), the form of the ensembles), a whole
+// unfold.Unfold call with 4 iterations, and 4 bare fused sweeps. Reports
+// medians and same-run ratios.
 func BenchmarkFinePrepared(b *testing.B) {
 	p := fineProblem(b)
 	ctx := context.Background()
@@ -221,13 +223,33 @@ func BenchmarkFinePrepared(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+	u4n, err := NewUnfolder(pr, &Settings{Iterations: 4})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u8n, err := NewUnfolder(pr, &Settings{Iterations: 8})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u4n.RecordLogLikelihood(false)
+	u8n.RecordLogLikelihood(false)
 	_, nt := p.Migrations.Dims()
 	dst := make([]float64, nt)
 	sweeps := bareSweeps(p.Migrations)
-	var t4, t8, tw, ts []time.Duration
+	var t4, t8, t4n, t8n, tw, ts []time.Duration
 	b.ResetTimer()
 	for range b.N {
 		t0 := time.Now()
+		if _, err := u4n.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t4n = append(t4n, time.Since(t0))
+		t0 = time.Now()
+		if _, err := u8n.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t8n = append(t8n, time.Since(t0))
+		t0 = time.Now()
 		if _, err := u4.Unfold(ctx, dst, nil); err != nil {
 			b.Fatal(err)
 		}
@@ -256,6 +278,11 @@ func BenchmarkFinePrepared(b *testing.B) {
 	b.ReportMetric(mw.Seconds()*1e3, "ms/unfold4")
 	b.ReportMetric(float64(mw)/float64(4*iter), "unfold4/4iterations")
 	b.ReportMetric(float64(4*iter)/float64(ms), "iteration/sweep")
+	m4n, m8n := median(t4n), median(t8n)
+	itn := (m8n - m4n) / 4
+	b.ReportMetric(itn.Seconds()*1e3, "ms/iteration-nolog")
+	b.ReportMetric(float64(4*itn)/float64(ms), "iteration-nolog/sweep")
+	b.ReportMetric(float64(m4n)/float64(4*itn), "prepared4-nolog/4iterations")
 }
 
 // peakHeap runs f and returns the peak of the heap in use (objects and

@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"runtime"
+	"slices"
 
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
@@ -143,10 +144,23 @@ type iterator struct {
 	// noLL skips the log-likelihood (every Step.LogLikelihood is 0): for
 	// runs whose details nobody reads (toys, re-runs, refits), it saves
 	// one logarithm per reco bin and iteration; the estimate is the same.
-	noLL      bool
+	noLL bool
+	// lazyNu leaves ν(k) = R μ(k) + b unwritten during the iteration (no
+	// tangents read it): iterate forms the final one from the final fold,
+	// with the bits the per-range pass would have written.
+	lazyNu    bool
 	update    func(j int, g float64) float64
 	updateNoG func(j int, g float64) float64
 	rows      func(r, lo, hi int)
+	// The χ² pass fused into the sweep: the partial sums of compare's
+	// chunks (parallel.ChunkLen truth bins each, as parallel.Reducer
+	// cuts them), those inside one column range of the matrix summed by
+	// its column hook, the chunks straddling two ranges (straddle) after
+	// the sweep; fused reports that parts holds μ(k+1) against μ(k).
+	parts    [][4]float64
+	straddle []int
+	cols     func(lo, hi int)
+	fused    bool
 }
 
 func newIterator(m *model, sm *smoother) *iterator {
@@ -185,6 +199,23 @@ func newIterator(m *model, sm *smoother) *iterator {
 	}
 	it.rows = func(r, lo, hi int) {
 		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.ynext, lo, hi)
+	}
+	const cl = parallel.ChunkLen
+	it.parts = make([][4]float64, (m.nt+cl-1)/cl)
+	cb := m.a.ColRanges()
+	for c := range it.parts {
+		lo, hi := c*cl, min(m.nt, (c+1)*cl)
+		k, _ := slices.BinarySearch(cb, lo+1) // first bound above lo
+		if k < len(cb) && cb[k] < hi {
+			it.straddle = append(it.straddle, c)
+		}
+	}
+	it.cols = func(lo, hi int) {
+		for c := (lo + cl - 1) / cl; c*cl < hi; c++ {
+			if e := min(m.nt, (c+1)*cl); e <= hi {
+				it.parts[c] = it.chunk(c*cl, e)
+			}
+		}
 	}
 	return it
 }
@@ -243,7 +274,18 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	nn, yy = nn[:len(f)], yy[:len(f)]
 	if it.noLL {
 		// the same ν and n/ν, without the logarithms
-		if b != nil {
+		switch {
+		case b != nil && it.lazyNu:
+			bb := b[lo:hi]
+			bb = bb[:len(f)]
+			for i, v := range f {
+				v += bb[i]
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		case b != nil:
 			bb, vv := b[lo:hi], nu[lo:hi]
 			bb, vv = bb[:len(f)], vv[:len(f)]
 			for i, v := range f {
@@ -254,7 +296,7 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 					yy[i] = nn[i] / v
 				}
 			}
-		} else {
+		default:
 			for i, v := range f {
 				yy[i] = 0
 				if v > 0 {
@@ -265,7 +307,19 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 		return 0
 	}
 	var ll float64
-	if b != nil {
+	if b != nil && it.lazyNu {
+		bb := b[lo:hi]
+		bb = bb[:len(f)]
+		for i, v := range f {
+			v += bb[i]
+			if x := nn[i]; v > 0 {
+				yy[i] = x / v
+				ll += x*fastLog(v) - v
+			} else {
+				yy[i] = 0
+			}
+		}
+	} else if b != nil {
 		bb, vv := b[lo:hi], nu[lo:hi]
 		bb, vv = bb[:len(f)], vv[:len(f)]
 		for i, v := range f {
@@ -303,7 +357,11 @@ func (it *iterator) emStep() float64 {
 		if !it.keepG {
 			upd = it.updateNoG
 		}
-		m.a.SweepRows(it.fnext, it.y, upd, it.rows)
+		m.a.SweepHooks(it.fnext, it.y, upd, it.rows, it.cols)
+		for _, c := range it.straddle {
+			it.parts[c] = it.chunk(c*parallel.ChunkLen, min(m.nt, (c+1)*parallel.ChunkLen))
+		}
+		it.fused = true
 		return it.sumLL()
 	}
 	m.a.BackProject(it.g, it.y)
@@ -317,23 +375,40 @@ func (it *iterator) emStep() float64 {
 	return it.recoAll(it.fnext, it.nunext, it.ynext)
 }
 
-// compare returns the χ² and the relative change between it.next and
-// it.mu.
-func (it *iterator) compare() (chi2, change float64) {
-	mu, next, eps := it.mu, it.next, it.m.eps
-	s := it.red.Run(len(mu), func(lo, hi int, acc *[4]float64) {
-		var c2, d, t float64
-		for j := lo; j < hi; j++ {
-			x := next[j]
-			dx := x - mu[j]
-			if x > 0 {
-				c2 += eps[j] * dx * dx / x
-			}
-			d += math.Abs(dx)
-			t += x
+// chunk returns the partial sums of compare over the truth bins
+// [lo, hi): the χ² terms, |μ(k+1) − μ(k)| and μ(k+1), each summed in bin
+// order.
+func (it *iterator) chunk(lo, hi int) [4]float64 {
+	mu, next, eps := it.mu[lo:hi], it.next[lo:hi], it.m.eps[lo:hi]
+	next, eps = next[:len(mu)], eps[:len(mu)]
+	var c2, d, t float64
+	for j, x := range next {
+		dx := x - mu[j]
+		if x > 0 {
+			c2 += eps[j] * dx * dx / x
 		}
-		acc[0], acc[1], acc[2] = c2, d, t
-	})
+		d += math.Abs(dx)
+		t += x
+	}
+	return [4]float64{c2, d, t}
+}
+
+// compare returns the χ² and the relative change between it.next and
+// it.mu: the chunks' partial sums added in chunk order, the chunks those
+// of parallel.Reducer, so that the sums fused into the sweep (it.fused)
+// and those of a separate pass have the same bits.
+func (it *iterator) compare() (chi2, change float64) {
+	var s [4]float64
+	if it.fused {
+		it.fused = false
+		for _, p := range it.parts {
+			for k := range s {
+				s[k] += p[k]
+			}
+		}
+	} else {
+		s = it.red.Run(len(it.mu), func(lo, hi int, acc *[4]float64) { *acc = it.chunk(lo, hi) })
+	}
 	chi2 = s[0]
 	if t := s[2]; t-t != 0 {
 		// A non-finite estimate (overflow or 0·∞ from inputs spanning
@@ -364,9 +439,19 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 	if err := ctx.Err(); err != nil {
 		return err
 	}
+	it.lazyNu = false // the start writes ν(0)
 	res.History = append(res.History[:0], Step{LogLikelihood: it.start(n)})
 	res.Iterations, res.Converged = 0, false
 	it.keepG = tan != nil
+	if b := it.m.b; tan == nil && b != nil {
+		it.lazyNu = true
+		defer func() {
+			it.lazyNu = false
+			for i, f := range it.fold {
+				it.nu[i] = f + b[i]
+			}
+		}()
+	}
 	if tan != nil {
 		if err := tan.init(ctx, it); err != nil {
 			return err
