@@ -148,10 +148,15 @@ type iterator struct {
 	// lazyNu leaves ν(k) = R μ(k) + b unwritten during the iteration (no
 	// tangents read it): iterate forms the final one from the final fold,
 	// with the bits the per-range pass would have written.
-	lazyNu    bool
-	update    func(j int, g float64) float64
-	updateNoG func(j int, g float64) float64
-	rows      func(r, lo, hi int)
+	lazyNu bool
+	// updates[keepG][o] is the sweep's update, o = 0 while it.mu is bufA
+	// (the first truth buffer), 1 while it is the other (updateFunc).
+	updates [2][2]func(j int, g float64) float64
+	bufA    []float64
+	rows    func(r, lo, hi int)
+	// rowsInPlace is rows writing y(k+1) over R μ(k+1) in fnext (see
+	// iterate).
+	rowsInPlace func(r, lo, hi int)
 	// The χ² pass fused into the sweep: the partial sums of compare's
 	// chunks (parallel.ChunkLen truth bins each, as parallel.Reducer
 	// cuts them), those inside one column range of the matrix summed by
@@ -181,24 +186,39 @@ func newIterator(m *model, sm *smoother) *iterator {
 	if sm != nil {
 		it.orig = make([]float64, m.nt)
 	}
+	// The updates capture the truth buffers (not the iterator's fields,
+	// which swap): one closure per order of the two buffers, with and
+	// without storing g.
 	invG, invEps, gk := m.invG, m.invEps, it.g
-	it.update = func(j int, ga float64) float64 {
-		ig := invG[j]
-		g := ga * ig // (Rᵀ y)_j from (Aᵀ y)_j
-		gk[j] = g
-		v := it.mu[j] * g * invEps[j]
-		it.next[j] = v
-		return v * ig // scatter A (μ'/G) = R μ'
+	mk := func(mu, next []float64, keepG bool) func(j int, ga float64) float64 {
+		if keepG {
+			return func(j int, ga float64) float64 {
+				ig := invG[j]
+				g := ga * ig // (Rᵀ y)_j from (Aᵀ y)_j
+				gk[j] = g
+				v := mu[j] * g * invEps[j]
+				next[j] = v
+				return v * ig // scatter A (μ'/G) = R μ'
+			}
+		}
+		// the same without storing g, when no tangents read it
+		return func(j int, ga float64) float64 {
+			ig := invG[j]
+			v := mu[j] * (ga * ig) * invEps[j]
+			next[j] = v
+			return v * ig
+		}
 	}
-	// the same without storing g, when no tangents read it
-	it.updateNoG = func(j int, ga float64) float64 {
-		ig := invG[j]
-		v := it.mu[j] * (ga * ig) * invEps[j]
-		it.next[j] = v
-		return v * ig
+	it.bufA = it.mu
+	it.updates = [2][2]func(int, float64) float64{
+		{mk(it.mu, it.next, false), mk(it.next, it.mu, false)},
+		{mk(it.mu, it.next, true), mk(it.next, it.mu, true)},
 	}
 	it.rows = func(r, lo, hi int) {
 		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.ynext, lo, hi)
+	}
+	it.rowsInPlace = func(r, lo, hi int) {
+		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.fnext, lo, hi)
 	}
 	const cl = parallel.ChunkLen
 	it.parts = make([][4]float64, (m.nt+cl-1)/cl)
@@ -345,19 +365,48 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	return ll
 }
 
+// updateFunc returns the sweep's update from it.mu into it.next, storing
+// g into it.g with keepG.
+func (it *iterator) updateFunc(keepG bool) func(j int, g float64) float64 {
+	k, o := 0, 0
+	if keepG {
+		k = 1
+	}
+	if len(it.mu) > 0 && &it.mu[0] != &it.bufA[0] {
+		o = 1
+	}
+	return it.updates[k][o]
+}
+
+// How emStep treats the reco side (without smoothing; see iterate).
+const (
+	recoBoth    = iota // R μ(k+1) in it.fnext, ν(k+1), y(k+1) in it.nunext, it.ynext
+	recoInPlace        // y(k+1) over R μ(k+1) in it.fnext
+	recoNone           // R μ(k+1) in it.fnext only (no log-likelihood)
+)
+
 // emStep computes μ(k+1) into it.next, g(k) into it.g (when it.keepG or
 // with smoothing), R μ(k+1) into
 // it.fnext, and ν(k+1), y(k+1) into it.nunext, it.ynext; it returns the
 // log-likelihood at μ(k+1). it.mu, it.fold, it.nu and it.y are left as
 // they were.
-func (it *iterator) emStep() float64 {
+func (it *iterator) emStep() float64 { return it.emStepReco(recoBoth) }
+
+// emStepReco is emStep with the reco side of mode (recoBoth with
+// smoothing).
+func (it *iterator) emStepReco(mode int) float64 {
 	m := it.m
 	if it.sm == nil {
-		upd := it.update
-		if !it.keepG {
-			upd = it.updateNoG
+		upd := it.updateFunc(it.keepG)
+		rows := it.rows
+		switch mode {
+		case recoInPlace:
+			rows = it.rowsInPlace
+		case recoNone:
+			rows = nil
+			clear(it.ll)
 		}
-		m.a.SweepHooks(it.fnext, it.y, upd, it.rows, it.cols)
+		m.a.SweepHooks(it.fnext, it.y, upd, rows, it.cols)
 		for _, c := range it.straddle {
 			it.parts[c] = it.chunk(c*parallel.ChunkLen, min(m.nt, (c+1)*parallel.ChunkLen))
 		}
@@ -457,11 +506,24 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 			return err
 		}
 	}
+	// With a fixed number of iterations and no tangents, nobody reads
+	// R μ(k) or ν(k) before the last iteration: y(k) overwrites R μ(k)
+	// (one reco vector less to write per iteration), and the last
+	// iteration forms only R μ(K) (and ν(K) for the log-likelihood). The
+	// values are the same bits.
+	inPlace := tan == nil && it.sm == nil && rs.fixed
 	for k := 1; k <= rs.maxIter; k++ {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		ll := it.emStep()
+		mode := recoBoth
+		switch {
+		case inPlace && k < rs.maxIter:
+			mode = recoInPlace
+		case inPlace && it.noLL:
+			mode = recoNone
+		}
+		ll := it.emStepReco(mode)
 		if tan != nil {
 			if err := tan.step(ctx, it); err != nil {
 				return err
@@ -469,9 +531,16 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		}
 		chi2, change := it.compare()
 		it.mu, it.next = it.next, it.mu
-		it.fold, it.fnext = it.fnext, it.fold
-		it.nu, it.nunext = it.nunext, it.nu
-		it.y, it.ynext = it.ynext, it.y
+		if mode == recoInPlace {
+			it.y, it.fnext = it.fnext, it.y
+			if it.m.b == nil {
+				it.nunext = it.fnext // ν aliases the fold
+			}
+		} else {
+			it.fold, it.fnext = it.fnext, it.fold
+			it.nu, it.nunext = it.nunext, it.nu
+			it.y, it.ynext = it.ynext, it.y
+		}
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
 			return &unfold.NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
 		}
