@@ -106,6 +106,8 @@ type Results struct {
 	SweepFloorRatio     float64 `json:"sweep_floor_ratio"`
 	IterationMS         float64 `json:"iteration_ms"`
 	IterationFloorRatio float64 `json:"iteration_floor_ratio"`
+	// IterationSweepRatio and IterationLogLikSweepRatio are medians over
+	// the rounds of each round's ratio.
 	IterationSweepRatio float64 `json:"iteration_sweep_ratio"`
 	// IterationLogLikMS is the marginal iteration that also records the
 	// log-likelihood of every step (one logarithm per reco bin), as a
@@ -263,8 +265,10 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 			x[j] = 1
 		}
 		t0 := time.Now()
-		a.Sweep(next, y, upd)
-		ts = append(ts, time.Since(t0))
+		for range c.Iterations { // as many sweeps as an unfolding's iterations
+			a.Sweep(next, y, upd)
+		}
+		ts = append(ts, time.Since(t0)/time.Duration(c.Iterations))
 		t0 = time.Now()
 		if _, err := u1.Unfold(ctx, dst, nil); err != nil {
 			return err
@@ -315,7 +319,22 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	}
 	iterLL, _ := marginal(tl1, tl2)
 	r.IterationLogLikMS = ms(iterLL)
-	r.IterationLogLikSweepRatio = float64(iterLL) / float64(sweep)
+	// the ratios to the sweep: medians of the ratios inside each round
+	// (a loaded host moves whole rounds), the medians' ratio as fallback
+	perRound := func(t1, t2 []time.Duration, fallback time.Duration) float64 {
+		q := make([]float64, 0, len(t1))
+		for i := range t1 {
+			if d := t2[i] - t1[i]; d > 0 {
+				q = append(q, float64(d)/k/float64(ts[i]))
+			}
+		}
+		if len(q) < (len(t1)+1)/2 {
+			return float64(fallback) / float64(sweep)
+		}
+		slices.Sort(q)
+		return q[len(q)/2]
+	}
+	r.IterationLogLikSweepRatio = perRound(tl1, tl2, iterLL)
 	matrix := float64(16*a.NNZ() + 8*(nt+1))
 	sweepBytes := matrix + 16*float64(nr) + 24*float64(nt)
 	iterBytes := sweepBytes + 24*float64(nr) + 24*float64(nt)
@@ -324,7 +343,7 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	r.SweepFloorRatio = sweep.Seconds() / floor(sweepBytes)
 	r.IterationMS = ms(iter)
 	r.IterationFloorRatio = iter.Seconds() / floor(iterBytes)
-	r.IterationSweepRatio = float64(iter) / float64(sweep)
+	r.IterationSweepRatio = perRound(t1, t2, iter)
 	r.PreparedMS = ms(m1)
 	r.UnfoldingFixedMS = max(0, ms(m1)-k*r.IterationMS) // 0 when within the noise of the iterations
 	r.UnfoldingMS = ms(median(tw))
