@@ -127,7 +127,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 	sim := filepath.Join(dir, "sim.csv")
 	b, _ := os.ReadFile(sim)
 	os.WriteFile(sim, append(b, b[strings.IndexByte(string(b), '\n')+1:]...), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "another simulation", "unfold", path)
 	checkRefusal(t, "another simulation", code, stdout, stderr, exitInput, "analysis.yaml:15: simulation[0].file: the saved response "+saved+" was not built from "+sim, filepath.Join(dir, "result"))
 	if !strings.Contains(stderr, "desmear response") {
 		t.Errorf("another simulation: no advice to rebuild: %q", stderr)
@@ -205,7 +205,7 @@ func TestDemoRefusesFolderFirst(t *testing.T) {
 		{[]string{"demo", "--out", out}, "demo: " + out + " already exists (replace it with --force)"},
 		{[]string{"demo", "--out", out, "--force"}, "so it is left alone"},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), c.args...)
+		code, stdout, stderr := runBounded(t, strings.Join(c.args, " "), c.args...)
 		checkRefusal(t, strings.Join(c.args, " "), code, stdout, stderr, exitUsage, c.want, "")
 		if b, err := os.ReadFile(notes); err != nil || string(b) != "keep" {
 			t.Errorf("%v: the existing folder changed", c.args)
@@ -226,7 +226,7 @@ func TestResponseWithoutData(t *testing.T) {
 	if code, _, stderr := runCLI(t, context.Background(), "response", path, "--out", filepath.Join(dir, "resp")); code != 0 {
 		t.Fatalf("desmear response without data: exit %d, %s", code, stderr)
 	}
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "unfold without data", "unfold", path)
 	checkRefusal(t, "unfold without data", code, stdout, stderr, exitInput, path+": data: missing: the unfolding needs the data", filepath.Join(dir, "result"))
 }
 
@@ -236,7 +236,7 @@ func TestNonFiniteResultIsNumerical(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	src, _ := os.ReadFile(path)
 	os.WriteFile(path, []byte(strings.Replace(string(src), "folder: result", "folder: result\n  luminosity: 1e-320", 1)), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "tiny luminosity", "unfold", path)
 	checkRefusal(t, "tiny luminosity", code, stdout, stderr, exitNumerical, "unfold: numerical failure: the density of truth bin 0 (", filepath.Join(filepath.Dir(path), "result"))
 }
 
@@ -247,7 +247,7 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 	src, _ := os.ReadFile(path)
 	bad := strings.Replace(strings.Replace(string(src), "iterations: 3", "iterations: 2.5", 1), "covariance: full", "covariance: full\n  probes: 1.5", 1)
 	os.WriteFile(path, []byte(bad), 0o644)
-	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, _, stderr := runBounded(t, "two problems", "unfold", path)
 	lines := strings.Split(strings.TrimSuffix(stderr, "\n"), "\n")
 	if code != exitInput || len(lines) != 2 {
 		t.Fatalf("exit %d, stderr %q: want exit 3 and two lines", code, stderr)
@@ -321,7 +321,7 @@ func TestUnreadableColumnNamed(t *testing.T) {
 	src, _ := os.ReadFile(path)
 	bad := strings.Replace(strings.Replace(string(src), "file: sim.csv", "file: nested.parquet", 1), "weight: w", "weight: list", 1)
 	os.WriteFile(path, []byte(bad), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
+	code, stdout, stderr := runBounded(t, "list column", "response", path)
 	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
 }
 
@@ -425,7 +425,7 @@ func TestUnexplainedThroughCommand(t *testing.T) {
 		return append([]string{"unfold", "--response", resp, "--generated", gen, "--data", n, "--iterations", "3", "--out", filepath.Join(dir, out)}, more...)
 	}
 	ctx := context.Background()
-	code, stdout, stderr := runCLI(t, ctx, args(data, "refused")...)
+	code, stdout, stderr := runBounded(t, "unexplained data", args(data, "refused")...)
 	// 7 of the 34 counts, 20.6% (by hand).
 	checkRefusal(t, "unexplained data", code, stdout, stderr, exitInput, "2 reco bins hold data that no truth bin reaches and no background explains, 7 in all (20.6% of the data): reco bin 3: 5, reco bin 4: 2", filepath.Join(dir, "refused"))
 	if !strings.Contains(stderr, "--unexplained drop") || !strings.Contains(stderr, "n.csv:5:") {
@@ -488,7 +488,7 @@ func TestNegativeCellsThroughAnalysis(t *testing.T) {
 	v := variants(t, path, "neg")
 	neg := v("weight: w", "weight: w * (1 - 3 * (abs(y_t) < 1 && abs(y_r) > 1.5))")
 	ctx := context.Background()
-	code, stdout, stderr := runCLI(t, ctx, "unfold", neg)
+	code, stdout, stderr := runBounded(t, "negative cells", "unfold", neg)
 	checkRefusal(t, "negative cells", code, stdout, stderr, exitInput, "negative migration cells", filepath.Join(dir, "result"))
 	if !strings.Contains(stderr, "unfolding.negative_cells: clip") {
 		t.Errorf("the refusal does not name the key: %q", stderr)
