@@ -50,6 +50,9 @@ type Outcome struct {
 	// flows), each one line naming the bins.
 	Remedies *unfold.Remedies
 	Warnings []string
+	// Notes say how the run went where it chose something (the blocks
+	// of the bootstrap replicas), one line each.
+	Notes []string
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -95,6 +98,11 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	}
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
+	}
+	if s.Replicas > 0 {
+		if err := a.addReplicas(ctx, out, p, s, m, opt); err != nil {
+			return nil, err
+		}
 	}
 	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
 		return nil, err

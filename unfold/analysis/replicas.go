@@ -1,0 +1,133 @@
+package analysis
+
+import (
+	"context"
+	"errors"
+	"fmt"
+
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/response"
+)
+
+// ReplicaBlock returns the number of bootstrap replicas filled in one
+// pass over the simulated events for problem p under the memory limit
+// (bytes; 0 means unfold.DefaultMemoryLimit): half the limit divided by
+// response.ReplicaBytes, at least 1. The other half is left to the
+// unfoldings.
+func ReplicaBlock(p *unfold.Problem, limit int64) int {
+	if limit <= 0 {
+		limit = unfold.DefaultMemoryLimit
+	}
+	nr, nt := p.Migrations.Dims()
+	return int(max(1, limit/2/response.ReplicaBytes(p.Migrations.NNZ(), nt, nr)))
+}
+
+// Replicas computes the Poisson bootstrap replicas r0 ≤ r < r1 of the
+// simulated events (method.md §25) and returns the ensemble of their
+// estimates, full when s asks for the full covariance: each replica's
+// response (migrations on the pattern of p, generated counts and, when
+// the fakes are background, the fakes in place of the nominal ones) is
+// unfolded with method m and the nominal data of p (with negative cells
+// clipped when s clips them in the nominal response). nominal is the
+// response p was assembled from (its fakes are replaced). The replicas
+// are filled in blocks of ReplicaBlock (one pass over the events per
+// block) and added in replica order, so the bits do not depend on the
+// number of cores or the block size, nor on the process that computes
+// the range: ranges computed separately merge (unfold.Ensemble.Merge,
+// in replica order) into the ensemble of the whole range, to rounding.
+// This is the unit a plan of replica shards runs.
+//
+// Errors: *Error placed at the simulation for bad events, a replica
+// whose response cannot be unfolded with the data (an *unfold.InputError
+// wrapped with the replica's number: too few simulated events reach a
+// reco bin), *unfold.SettingsError, ctx.Err().
+func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, opt *Options) (*unfold.Ensemble, error) {
+	rs, err := s.Resolve()
+	if err != nil {
+		return nil, err
+	}
+	if len(a.Simulation) == 0 {
+		return nil, &Error{File: a.File, Line: a.responseLine, Field: "uncertainty.replicas", Msg: "needs the simulated events: give the simulation"}
+	}
+	nt := len(p.Generated)
+	ens := unfold.NewEnsemble(nt, rs.Covariance == unfold.Full)
+	sims := make([]*response.Simulation, len(a.Simulation))
+	for i := range a.Simulation {
+		sim, src, err := a.simulation(&a.Simulation[i])
+		if err != nil {
+			return nil, err
+		}
+		defer src.Close()
+		sims[i] = sim
+	}
+	// The background without the simulation's fakes, to which each
+	// replica adds its own.
+	var rest []float64
+	if p.Background != nil && a.Unfolding.Fakes == "background" {
+		rest = make([]float64, len(p.Background))
+		for i, b := range p.Background {
+			rest[i] = b - nominal.Fakes[i]
+		}
+	}
+	block := ReplicaBlock(p, rs.MemoryLimit)
+	for b0 := r0; b0 < r1; b0 += block {
+		b1 := min(r1, b0+block)
+		rp, err := response.FillReplicas(ctx, a.Truth, a.Reco, sims, p.Migrations, rs.Seed, b0, b1, a.fillOptions(opt, fmt.Sprintf("bootstrap replicas %d to %d", b0, b1-1)))
+		if err != nil {
+			return nil, a.eventsErr("simulation", a.Simulation[0].Line, err)
+		}
+		problem := func(r int) (*unfold.Problem, error) {
+			q := *p
+			i := r - b0
+			if rs.NegativeCells == unfold.ClipNegative {
+				// The nominal remedy, applied to the replica's cells.
+				for k, v := range rp.Values[i] {
+					rp.Values[i][k] = max(0, v)
+				}
+			}
+			a, err := p.Migrations.WithValues(rp.Values[i], nil)
+			if err != nil {
+				return nil, err
+			}
+			q.Migrations, q.Generated, q.GeneratedSumW2 = a, rp.Generated[i], nil
+			if rest != nil {
+				bg := make([]float64, len(rest))
+				for k, v := range rest {
+					bg[k] = max(0, v+rp.Fakes[i][k])
+				}
+				q.Background = bg
+			}
+			return &q, nil
+		}
+		if err := unfold.UnfoldEach(ctx, ens, &rs, m, b0, b1, problem); err != nil {
+			return nil, fmt.Errorf("bootstrap replica %w", err)
+		}
+	}
+	return ens, nil
+}
+
+// addReplicas adds the simulation source of s.Replicas bootstrap
+// replicas to out.Result, its stream, and a note on the block size to
+// out.Notes.
+func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) error {
+	n := s.Replicas
+	ens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, opt)
+	var ue *unfold.InputError
+	if errors.As(err, &ue) {
+		return &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
+			Msg: fmt.Sprintf("%v: the response of this replica cannot be unfolded (too few simulated events in these bins, or negative weights): merge bins, clip negative cells (unfolding.negative_cells: clip) or sample the responses instead (uncertainty.response_samples)", err)}
+	}
+	if err != nil {
+		return err
+	}
+	res := out.Result
+	res.AddSource(*unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined))
+	res.Streams = append(res.Streams, unfold.Stream{Unit: "replica", Derivation: response.ReplicaDerivation})
+	limit := s.MemoryLimit
+	if limit <= 0 {
+		limit = unfold.DefaultMemoryLimit
+	}
+	block := ReplicaBlock(p, limit)
+	out.Notes = append(out.Notes, fmt.Sprintf("the bootstrap filled its %d replicas in %d pass(es) over the simulated events, %d replicas per pass (half of the memory limit)", n, (n+block-1)/block, min(block, n)))
+	return nil
+}
