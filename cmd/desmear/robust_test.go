@@ -635,3 +635,50 @@ func TestDamagedEventFiles(t *testing.T) {
 		t.Errorf("beside the demo and the response: %v", entries)
 	}
 }
+
+// Plain tables: a negative response cell is refused by default, naming
+// the remedy; clipped, the result equals the same tables with that cell
+// removed by hand (the clip sets it to zero: common practice for
+// negative-weight cells), and the weight removed is the cell's value.
+func TestNegativeCellsThroughTables(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, content string) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	resp := write("r.csv", "reco,truth,value\n0,0,10\n1,0,4\n2,0,-1.5\n0,1,2\n1,1,8\n2,1,3\n")
+	respHand := write("rh.csv", "reco,truth,value\n0,0,10\n1,0,4\n0,1,2\n1,1,8\n2,1,3\n")
+	gen := write("g.csv", "truth,value\n0,20\n1,20\n")
+	data := write("n.csv", "reco,value\n0,12\n1,12\n2,3\n")
+	args := func(a, out string, more ...string) []string {
+		return append([]string{"unfold", "--response", a, "--generated", gen, "--data", data, "--iterations", "3", "--out", filepath.Join(dir, out)}, more...)
+	}
+	ctx := context.Background()
+	code, stdout, stderr := runBounded(t, "negative cell in a table", args(resp, "refused")...)
+	checkRefusal(t, "negative cell in a table", code, stdout, stderr, exitInput, "negative migration cells", filepath.Join(dir, "refused"))
+	if !strings.Contains(stderr, "--negative-cells clip") {
+		t.Errorf("the refusal does not name the remedy: %q", stderr)
+	}
+	code, _, stderr = runCLI(t, ctx, args(resp, "clipped", "--negative-cells", "clip")...)
+	if code != 0 {
+		t.Fatalf("with the remedy: exit %d, %s", code, stderr)
+	}
+	if !strings.Contains(stderr, "clipped 1 negative migration cells to zero") {
+		t.Errorf("stderr %q does not report the clipped cell", stderr)
+	}
+	if code, _, stderr := runCLI(t, ctx, args(respHand, "by-hand")...); code != 0 {
+		t.Fatalf("the table edited by hand: exit %d, %s", code, stderr)
+	}
+	var got, want remediedResult
+	readJSON(t, filepath.Join(dir, "clipped", "result.json"), &got)
+	readJSON(t, filepath.Join(dir, "by-hand", "result.json"), &want)
+	if !slices.Equal(got.Estimate, want.Estimate) || !slices.Equal(got.Uncertainty, want.Uncertainty) {
+		t.Errorf("clipped estimate %v ± %v, by hand %v ± %v", got.Estimate, got.Uncertainty, want.Estimate, want.Uncertainty)
+	}
+	if got.Remedies == nil || len(got.Remedies.ClippedCells) != 1 || got.Remedies.ClippedWeight != -1.5 {
+		t.Errorf("recorded remedies %+v, want one cell of -1.5", got.Remedies)
+	}
+}
