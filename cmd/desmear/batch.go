@@ -114,18 +114,16 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 	switch {
 	case kinds != 1:
 		return usagef("batch plan needs one of --toys N, --response, --replicas N or --variations")
-	case o.replicas != 0 || o.variations:
-		kind := batch.Replicas
-		if o.variations {
-			kind = batch.Variations
-		}
-		return usageErr(fmt.Errorf("%v (plan with --toys N)", kind.Check()))
+	case o.replicas != 0:
+		return usageErr(fmt.Errorf("%v (plan with --toys N, --response or --variations)", batch.Replicas.Check()))
 	case o.workdir == "":
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
 	case o.response:
 		return planResponse(g, o, path)
+	case o.variations:
+		return planVariations(cmd.Context(), g, o, path)
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:
@@ -230,8 +228,11 @@ func loadJob(ctx context.Context, g *globalOptions, dir string) (shardJob, error
 	if err != nil {
 		return nil, err
 	}
-	if p.Kind == batch.Response {
+	switch p.Kind {
+	case batch.Response:
 		return loadResponseJob(p)
+	case batch.Variations:
+		return loadVariationJob(p)
 	}
 	return loadToyJob(ctx, g, p)
 }
@@ -442,11 +443,16 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 			}
 			w := bufio.NewWriter(g.stdout)
 			marker := validate.JSONFile
-			if p.Kind == batch.Response {
+			switch p.Kind {
+			case batch.Response:
 				marker = response.BundleFiles()[0]
 				fmt.Fprintf(w, "plan: %s (the response in %d parts)\n", filepath.Join(args[0], batch.PlanFile), len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards\n", len(pr.Done), len(p.Shards))
-			} else {
+			case batch.Variations:
+				marker = result.JSONFile
+				fmt.Fprintf(w, "plan: %s (%d systematic variations in %d shards)\n", filepath.Join(args[0], batch.PlanFile), len(p.Variations), len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d variations)\n", len(pr.Done), len(p.Shards), pr.VariationsDone, len(p.Variations))
+			default:
 				fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
 			}
@@ -489,8 +495,11 @@ merges the parts in shard order and writes the response bundle
 			if err != nil {
 				return err
 			}
-			if p.Kind == batch.Response {
+			switch p.Kind {
+			case batch.Response:
 				return mergeResponse(g, p, dir, force)
+			case batch.Variations:
+				return mergeVariations(ctx, g, p, dir, force)
 			}
 			j, err := loadToyJob(ctx, g, p)
 			if err != nil {

@@ -100,7 +100,6 @@ func TestBatchPlanRefuses(t *testing.T) {
 		want string
 	}{
 		{[]string{"--replicas", "10"}, "plans of bootstrap replicas are not available yet"},
-		{[]string{"--variations"}, "plans of systematic variations are not available yet"},
 		{[]string{"--toys", "10", "--replicas", "3"}, "one of --toys N, --response, --replicas N or --variations"},
 	} {
 		code, _, errs := runCLI(t, ctx, append([]string{"batch", "plan", "a.yaml", "--shards", "2", "--workdir", w}, c.args...)...)

@@ -2,7 +2,10 @@ package batch
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
+	"math"
+	"math/rand/v2"
 	"os"
 	"reflect"
 	"strings"
@@ -165,10 +168,82 @@ func TestPlanUnits(t *testing.T) {
 	if _, err := ToyPlan(Input{}, "", ToySettings{Toys: 520}, 12, ""); err == nil {
 		t.Error("12 shards of 11 units accepted")
 	}
-	for _, k := range []Kind{Replicas, Variations} {
-		if err := k.Check(); !errors.Is(err, ErrNotAvailable) {
-			t.Errorf("%s: %v", k, err)
+	if err := Replicas.Check(); !errors.Is(err, ErrNotAvailable) {
+		t.Errorf("%s: %v", Replicas, err)
+	}
+	if err := Variations.Check(); err != nil {
+		t.Errorf("%s: %v", Variations, err)
+	}
+}
+
+// TestVariationPlan: the systematic variations split into shards of as
+// equal a number as can be, contiguous and in order; a plan of more
+// shards than variations, or of none, is refused; the plan reads back.
+func TestVariationPlan(t *testing.T) {
+	names := []string{"a", "b", "c", "d", "e"}
+	p, err := VariationPlan(Input{Path: "x.yaml", SHA256: "00"}, "11", []Input{{Path: "d.csv", SHA256: "22"}}, names, 3, "out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got [][2]int
+	for s := range p.Shards {
+		first, count := p.VariationRange(s)
+		got = append(got, [2]int{first, count})
+	}
+	// 5 units in 3 shards: ⌊s·5/3⌋ boundaries 0, 1, 3, 5 (common practice:
+	// the balanced block split)
+	if !reflect.DeepEqual(got, [][2]int{{0, 1}, {1, 2}, {3, 2}}) {
+		t.Errorf("shards %v", got)
+	}
+	dir := t.TempDir()
+	if err := p.Write(dir); err != nil {
+		t.Fatal(err)
+	}
+	q, err := Read(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if q.Kind != Variations || len(q.Variations) != 5 || q.Variations[4].Name != "e" || q.CheckFiles([]Input{{Path: "d.csv", SHA256: "22"}}) != nil {
+		t.Errorf("plan read back %+v", q)
+	}
+	if err := q.CheckFiles([]Input{{Path: "d.csv", SHA256: "23"}}); err == nil || !strings.Contains(err.Error(), "has changed") {
+		t.Errorf("a changed input: %v", err)
+	}
+	if _, err := VariationPlan(Input{}, "", nil, names, 6, ""); err == nil {
+		t.Error("6 shards of 5 variations accepted")
+	}
+	if _, err := VariationPlan(Input{}, "", nil, nil, 1, ""); err == nil {
+		t.Error("a plan without variations accepted")
+	}
+}
+
+// TestExactVector: the estimates of a shard file read back with the same
+// IEEE 754 bits (compared with math.Float64bits: common practice), NaN,
+// infinities, −0 and subnormal numbers included.
+func TestExactVector(t *testing.T) {
+	v := exact{0, math.Copysign(0, -1), 1, 0.1, 1.0 / 3, math.MaxFloat64, math.SmallestNonzeroFloat64, -2.5e-310, math.NaN(), math.Inf(1), math.Inf(-1)}
+	rng := rand.New(rand.NewPCG(3, 4))
+	for range 1000 {
+		v = append(v, math.Float64frombits(rng.Uint64()))
+	}
+	b, err := json.Marshal(v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var w exact
+	if err := json.Unmarshal(b, &w); err != nil {
+		t.Fatal(err)
+	}
+	if len(w) != len(v) {
+		t.Fatalf("%d numbers read back of %d", len(w), len(v))
+	}
+	for i := range v {
+		if math.Float64bits(v[i]) != math.Float64bits(w[i]) && !(math.IsNaN(v[i]) && math.IsNaN(w[i])) {
+			t.Errorf("number %d: %v read back as %v", i, v[i], w[i])
 		}
+	}
+	if err := json.Unmarshal([]byte(`[1,"one"]`), &w); err == nil {
+		t.Error(`"one" read as a number`)
 	}
 }
 

@@ -27,7 +27,8 @@ const Format = 1
 // Kind is the kind of ensemble a plan splits.
 type Kind string
 
-// The kinds of ensemble. Toys and Response can be planned today.
+// The kinds of ensemble. Toys, Response and Variations can be planned
+// today.
 const (
 	// Toys: the toy ensemble of a validation.
 	Toys Kind = "toys"
@@ -38,8 +39,8 @@ const (
 	// Replicas: bootstrap replicas of the simulation (not available).
 	Replicas Kind = "replicas"
 	// Variations: the systematic variations of an analysis, one unit
-	// each (not available: an analysis runs its variations in one
-	// process).
+	// each (an up/down pair is one unit), merged with the nominal
+	// result into the result folder of one run.
 	Variations Kind = "variations"
 )
 
@@ -66,15 +67,13 @@ func (k *Kind) UnmarshalText(b []byte) error {
 }
 
 // Check reports whether a plan of this kind can be made: an error
-// wrapping ErrNotAvailable for replicas and variations.
+// wrapping ErrNotAvailable for replicas.
 func (k Kind) Check() error {
 	switch k {
-	case Toys, Response:
+	case Toys, Response, Variations:
 		return nil
 	case Replicas:
-		return fmt.Errorf("batch: plans of bootstrap replicas are %w: toy ensembles and responses can be planned", ErrNotAvailable)
-	case Variations:
-		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): toy ensembles and responses can be planned", ErrNotAvailable)
+		return fmt.Errorf("batch: plans of bootstrap replicas are %w: toy ensembles, responses and systematic variations can be planned", ErrNotAvailable)
 	}
 	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
 }
@@ -108,6 +107,15 @@ type Unit struct {
 	StreamBase uint64 `json:"stream_base"`
 }
 
+// VariationUnit is one unit of a variations plan: the systematic
+// variation Index of the analysis (in the order of analysis.Analysis
+// Variations: the file's variations, then the scale uncertainties of the
+// backgrounds), named Name; both changes of an up/down pair.
+type VariationUnit struct {
+	Index int    `json:"index"`
+	Name  string `json:"name"`
+}
+
 // Shard is a contiguous run of units.
 type Shard struct {
 	Index     int `json:"index"`
@@ -124,9 +132,14 @@ type Plan struct {
 	// Out is the folder the merge writes.
 	Out string `json:"out"`
 	// Toys are the settings of a toy ensemble, nil for a response.
-	Toys   *ToySettings `json:"toys,omitempty"`
-	Units  []Unit       `json:"units,omitempty"`
-	Shards []Shard      `json:"shards"`
+	Toys  *ToySettings `json:"toys,omitempty"`
+	Units []Unit       `json:"units,omitempty"`
+	// Inputs are the input files of a variations plan with their
+	// SHA-256, as the result records them (those of the variations
+	// included); Variations are its units.
+	Inputs     []Input         `json:"inputs,omitempty"`
+	Variations []VariationUnit `json:"variations,omitempty"`
+	Shards     []Shard         `json:"shards"`
 
 	id string // SHA-256 of plan.json, set by Read
 }
@@ -171,6 +184,31 @@ func ResponsePlan(analysis Input, parts int, out string) (*Plan, error) {
 	p := &Plan{Format: Format, Kind: Response, Analysis: analysis, Out: out}
 	for s := range parts {
 		p.Shards = append(p.Shards, Shard{Index: s})
+	}
+	return p, nil
+}
+
+// VariationPlan returns the plan of the systematic variations named
+// names (in the analysis's order) over shards shards of as equal a
+// number of variations as can be; ins are every input of the analysis
+// by content, problem the sum of the nominal problem (ProblemSum).
+func VariationPlan(analysis Input, problem string, ins []Input, names []string, shards int, out string) (*Plan, error) {
+	switch {
+	case len(names) == 0:
+		return nil, &unfold.SettingsError{Field: "Variations", Reason: "the analysis has no systematic variations to plan (no variations, no background scale uncertainty)"}
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	case shards > len(names):
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d systematic variations: a shard holds at least one variation, so at most %d shards", shards, len(names), len(names))}
+	}
+	p := &Plan{Format: Format, Kind: Variations, Analysis: analysis, Problem: problem, Out: out, Inputs: ins}
+	for k, n := range names {
+		p.Variations = append(p.Variations, VariationUnit{Index: k, Name: n})
+	}
+	nu := len(names)
+	for s := range shards {
+		lo, hi := s*nu/shards, (s+1)*nu/shards
+		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
 	}
 	return p, nil
 }
@@ -246,6 +284,17 @@ func (p *Plan) check() error {
 		}
 		return nil
 	}
+	if p.Kind == Variations {
+		if p.Toys != nil || len(p.Units) > 0 {
+			return fmt.Errorf("a plan of systematic variations has no toys")
+		}
+		for i, u := range p.Variations {
+			if u.Index != i || u.Name == "" {
+				return fmt.Errorf("variation %d does not continue the variations before it", i)
+			}
+		}
+		return p.checkShards(len(p.Variations))
+	}
 	if p.Toys == nil {
 		return fmt.Errorf("a toy plan without toy settings")
 	}
@@ -259,6 +308,11 @@ func (p *Plan) check() error {
 	if next != p.Toys.Toys {
 		return fmt.Errorf("the units hold %d toys, the plan %d", next, p.Toys.Toys)
 	}
+	return p.checkShards(len(p.Units))
+}
+
+// checkShards reports whether the shards cover the n units in order.
+func (p *Plan) checkShards(n int) error {
 	nu := 0
 	for i, s := range p.Shards {
 		if s.Index != i || s.FirstUnit != nu || s.Units < 1 {
@@ -266,8 +320,8 @@ func (p *Plan) check() error {
 		}
 		nu += s.Units
 	}
-	if nu != len(p.Units) || len(p.Shards) == 0 {
-		return fmt.Errorf("the shards hold %d units, the plan %d", nu, len(p.Units))
+	if nu != n || len(p.Shards) == 0 {
+		return fmt.Errorf("the shards hold %d units, the plan %d", nu, n)
 	}
 	return nil
 }
