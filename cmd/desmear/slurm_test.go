@@ -65,9 +65,11 @@ func waitJob(t *testing.T, id, logs string) {
 // a dependent job on a real cluster, waits, and compares the merged
 // validation folder with "desmear validate" and with run-local byte for
 // byte (the determinism rule of DEVELOPERS.md); then it removes a shard
-// and the merged folder and resubmits the missing shard. Last, a response
+// and the merged folder and resubmits the missing shard. Then a response
 // built in parts by a job array and merged by the dependent job is the
-// bundle of "desmear response" in one run.
+// bundle of "desmear response" in one run; last, the systematic
+// variations unfolded by a job array and merged by the dependent job are
+// the result folder of "desmear unfold" in one run.
 func TestBatchSlurm(t *testing.T) {
 	slurmCluster(t)
 	ctx := context.Background()
@@ -126,4 +128,24 @@ func TestBatchSlurm(t *testing.T) {
 	w = rw
 	submit()
 	sameFolders(t, bundle, filepath.Join(rw, "response"))
+
+	// The systematic variations, one array task each, merged by the
+	// dependent job into the result folder of "desmear unfold" in one run.
+	b, err := os.ReadFile(an)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(an, append(b, demoVariations...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := runCLI(t, ctx, "unfold", an, "--force", "-q"); code != 0 {
+		t.Fatalf("unfold: exit %d\n%s\n%s", code, out, errs)
+	}
+	vw, merged := filepath.Join(tmp, "variations"), filepath.Join(tmp, "variations-result")
+	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "3", "--workdir", vw, "--out", merged); code != 0 {
+		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	w = vw
+	submit()
+	sameResults(t, filepath.Join(filepath.Dir(an), "result"), merged)
 }
