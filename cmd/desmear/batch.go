@@ -131,9 +131,19 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
-	case o.response:
-		return planResponse(g, o, path)
-	case o.variations:
+	case o.response || o.variations:
+		for _, name := range []string{"toy-truth", "max-iterations", "criterion", "bias-threshold", "tilt", "seed"} {
+			if cmd.Flags().Changed(name) {
+				what := "--response"
+				if o.variations {
+					what = "--variations"
+				}
+				return usagef("--%s is an option of a toy ensemble (--toys N), not of %s", name, what)
+			}
+		}
+		if o.response {
+			return planResponse(g, o, path)
+		}
 		return planVariations(cmd.Context(), g, o, path)
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)

@@ -150,12 +150,35 @@ func TestBatchVariationsRefused(t *testing.T) {
 	if err := os.WriteFile(an, append(b, demoVariations...), 0o644); err != nil {
 		t.Fatal(err)
 	}
+	code, _, errs = runCLI(t, ctx, "batch", "plan", an, "--variations", "--seed", "3", "--shards", "1", "--workdir", w)
+	if code != exitUsage || !strings.Contains(errs, "--seed is an option of a toy ensemble") {
+		t.Errorf("--seed with --variations: exit %d\n%s", code, errs)
+	}
 	code, _, errs = runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "4", "--workdir", w)
 	if code != exitUsage || !strings.Contains(errs, "3 systematic variations") || !strings.Contains(errs, "give at most 3") {
 		t.Errorf("4 shards of 3: exit %d\n%s", code, errs)
 	}
 	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "3", "--workdir", w); code != 0 {
 		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	// A shard file of another plan (of the same variations) is not taken.
+	w2 := filepath.Join(t.TempDir(), "other")
+	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "3", "--workdir", w2, "--out", filepath.Join(w2, "result")); code != 0 {
+		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	if code, out, errs := runCLI(t, ctx, "batch", "run", w2, "--shard", "2", "-q"); code != 0 {
+		t.Fatalf("run: exit %d\n%s\n%s", code, out, errs)
+	}
+	if err := os.MkdirAll(filepath.Join(w, "shards"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	foreign, _ := os.ReadFile(filepath.Join(w2, "shards", "shard-00002.json"))
+	if err := os.WriteFile(filepath.Join(w, "shards", "shard-00002.json"), foreign, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, _ := runCLI(t, ctx, "batch", "status", w)
+	if code != 0 || !strings.Contains(out, "not usable: shard 2:") || !strings.Contains(out, "belongs to another plan") {
+		t.Errorf("status with a foreign shard: exit %d\n%s", code, out)
 	}
 	if err := os.WriteFile(an, append(b, strings.Replace(demoVariations, "0.004", "0.005", 1)...), 0o644); err != nil {
 		t.Fatal(err)
