@@ -14,6 +14,10 @@ import (
 // sampling the response.
 const MethodDirichlet = "dirichlet-samples"
 
+// MethodReplicas is the Method of the simulation source computed from
+// Poisson bootstrap replicas of the simulated events (method.md §25).
+const MethodReplicas = "bootstrap-replicas"
+
 // DirichletParams returns the Dirichlet parameters of the response
 // columns of p (method.md §20): alpha, parallel to the values of
 // p.Migrations, and alpha0, the parameter of each column's inefficiency
@@ -198,9 +202,21 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 			ens.Add(sl.est)
 		}
 	}
-	src := &Source{Name: SourceSimulation, Method: MethodDirichlet, Variance: ens.Variances(nil),
-		Precision: math.Sqrt(2 / float64(samples-1)), Samples: samples}
-	if full {
+	return EnsembleSource(SourceSimulation, MethodDirichlet, ens, det), nil
+}
+
+// EnsembleSource returns the source name, obtained with method, of the
+// ensemble of estimates ens: its variances, and its covariance when ens
+// is full, 0 outside the determined bins det; Precision is
+// sqrt(2/(N−1)), the relative standard deviation of a variance
+// estimated from N Gaussian samples (common practice).
+func EnsembleSource(name, method string, ens *Ensemble, det []bool) *Source {
+	nt := ens.Len()
+	src := &Source{Name: name, Method: method, Variance: ens.Variances(nil), Samples: int(ens.N)}
+	if ens.N > 1 {
+		src.Precision = math.Sqrt(2 / float64(ens.N-1))
+	}
+	if ens.Full {
 		src.Covariance = ens.Covariance(nil)
 		for j := range nt {
 			for k := j; k < nt; k++ {
@@ -215,5 +231,57 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 			src.Variance[j] = 0
 		}
 	}
-	return src, nil
+	return src
+}
+
+// UnfoldEach unfolds the problems k0 ≤ k < k1 with method m, the
+// background mode of s (nil means the defaults) and no uncertainty, and
+// adds their estimates to ens in the order of k: problem(k) gives
+// problem k (for example the nominal problem with a varied response).
+// Problems are prepared and unfolded concurrently, problem being called
+// from several goroutines for distinct k, and added in order, so the bits
+// do not depend on the number of cores.
+//
+// Errors: those of s.Resolve; those of problem, Prepare and the method,
+// prefixed with "k: "; ctx.Err().
+func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
+	rs, err := s.Resolve()
+	if err != nil {
+		return err
+	}
+	workers := max(1, min(runtime.GOMAXPROCS(0), k1-k0))
+	est := make([][]float64, workers)
+	errs := make([]error, workers)
+	for b0 := k0; b0 < k1; b0 += workers {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		batch := min(workers, k1-b0)
+		parallel.For(batch, batch, func(w int) {
+			est[w], errs[w] = nil, nil
+			q, err := problem(b0 + w)
+			if err != nil {
+				errs[w] = err
+				return
+			}
+			pr, err := Prepare(q, rs.Background)
+			if err != nil {
+				errs[w] = err
+				return
+			}
+			fit, err := m.Fit(ctx, pr)
+			if err != nil {
+				errs[w] = err
+				return
+			}
+			est[w] = fit.Estimate()
+		})
+		for w := range batch {
+			if errs[w] != nil {
+				return fmt.Errorf("%d: %w", b0+w, errs[w])
+			}
+			ens.Add(est[w])
+		}
+	}
+	return nil
 }

@@ -60,7 +60,11 @@
 // DirichletParams, SampleResponse), each sampled response is unfolded
 // with the nominal data on a worker's own Prepared (SetResponse), reusing
 // the method's work when it is a Refitter, and the ensemble's covariance
-// is added to the data's (method.md §20).
+// is added to the data's (method.md §20). The Poisson bootstrap of the
+// simulated events (Settings.Replicas, method.md §25) needs the events,
+// so the analysis run computes it: it builds the replicas' responses and
+// unfolds them with UnfoldEach, and EnsembleSource turns the ensemble
+// into the source (method MethodReplicas).
 //
 // The drivers plan the memory, draw the probes and the pseudo-data and
 // accumulate the variances; the method supplies only the propagation

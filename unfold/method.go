@@ -185,7 +185,7 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 			return nil, err
 		}
 		res.AddSource(*src)
-		res.Streams = append(res.Streams, Stream{"response-sample", responseStream})
+		res.Streams = append(res.Streams, Stream{Unit: "response-sample", Offset: responseStream})
 	}
 	if err := res.checkFinite(); err != nil {
 		return nil, err

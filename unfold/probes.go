@@ -23,8 +23,12 @@ const (
 // Offset+k), so that a unit's numbers depend on the seed and its
 // number only, not on the goroutine or batch it runs in.
 type Stream struct {
-	Unit   string // "probe", "poisson-toy", "gamma-sample" or "response-sample"
+	Unit   string // "probe", "poisson-toy", "gamma-sample", "response-sample" or "replica"
 	Offset uint64
+	// Derivation, when not empty, says how the unit's numbers are
+	// derived instead of a PCG stream (the bootstrap replicas' counts,
+	// method.md §25); Offset is then 0.
+	Derivation string
 }
 
 // ProbeBlock is the number of probes a method propagates together, in

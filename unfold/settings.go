@@ -299,6 +299,14 @@ type Settings struct {
 	// result (package validate, EstimateBias); 0, the default, is off.
 	// Unfold itself does not use it.
 	BiasToys int
+	// Replicas is the number of Poisson bootstrap replicas of the
+	// simulated events for the simulation's statistical uncertainty
+	// (source SourceSimulation, method MethodReplicas, method.md §25);
+	// zero means none. It needs the events, so Unfold itself does not use
+	// it: the analysis run does (package analysis). It excludes
+	// ResponseSamples (both estimate the same source) and needs an
+	// uncertainty of the data, as ResponseSamples does.
+	Replicas int
 
 	// NegativeCells and Unexplained are the remedies Remedy applies
 	// before the unfolding (zero: refuse).
@@ -342,6 +350,12 @@ func (s *Settings) Resolve() (Settings, error) {
 		return r, &SettingsError{"ResponseSamples", "must be 0 (no sampling) or at least 2"}
 	case r.ResponseSamples > 0 && r.Covariance == NoCovariance:
 		return r, &SettingsError{"ResponseSamples", "needs an uncertainty of the data too (a covariance mode other than none): the total uncertainty would leave the data's statistics out"}
+	case r.Replicas < 0 || r.Replicas == 1:
+		return r, &SettingsError{"Replicas", "must be 0 (no bootstrap) or at least 2"}
+	case r.Replicas > 0 && r.ResponseSamples > 0:
+		return r, &SettingsError{"Replicas", "cannot be combined with response samples: both estimate the statistical uncertainty of the simulation (source simulation); keep one of the two"}
+	case r.Replicas > 0 && r.Covariance == NoCovariance:
+		return r, &SettingsError{"Replicas", "needs an uncertainty of the data too (a covariance mode other than none): the total uncertainty would leave the data's statistics out"}
 	case r.SamplingPrior < 0 || int(r.SamplingPrior) >= len(priorNames):
 		return r, &SettingsError{"SamplingPrior", "unknown prior"}
 	}

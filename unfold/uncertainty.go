@@ -242,19 +242,19 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		}
 		variance = sum
 		res.UncertaintyMethod = "linearised-probes"
-		res.Streams = append(res.Streams, Stream{"probe", probeStream})
+		res.Streams = append(res.Streams, Stream{Unit: "probe", Offset: probeStream})
 		res.Samples = pl.rs.Probes
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
 	case pl.diag == DiagonalToys || pl.diag == DiagonalGamma:
 		seed := pl.rs.Seed
 		draw := func(t int, n, b []float64) { toyData(m, seed, t, n, b) }
 		res.UncertaintyMethod = "poisson-toys"
-		st := Stream{"poisson-toy", toyStream}
+		st := Stream{Unit: "poisson-toy", Offset: toyStream}
 		if pl.diag == DiagonalGamma {
 			prior := pl.rs.SamplingPrior
 			draw = func(t int, n, b []float64) { gammaData(m, prior, seed, t, n, b) }
 			res.UncertaintyMethod = "gamma-samples"
-			st = Stream{"gamma-sample", gammaStream}
+			st = Stream{Unit: "gamma-sample", Offset: gammaStream}
 		}
 		res.Streams = append(res.Streams, st)
 		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers)

@@ -77,6 +77,9 @@ func runAnalysisWith(ctx context.Context, g *globalOptions, path string, replace
 	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
 	printWarnings(g, out.Warnings)
 	if !g.quiet {
+		for _, n := range out.Notes {
+			fmt.Fprintf(g.stderr, "note: %s\n", n)
+		}
 		shown := path
 		if opt.Staged != "" {
 			shown = filepath.Join(opt.Final, filepath.Base(path))

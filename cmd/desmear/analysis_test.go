@@ -393,3 +393,32 @@ func TestWriteTablesChecksAgain(t *testing.T) {
 		t.Errorf("the folder was touched: %v %q", err, b)
 	}
 }
+
+// The bootstrap of the simulated events through the command line: the
+// notes on stderr name the replicas and their passes over the events
+// (method.md §25 Bootstrap replicas of the simulated events).
+func TestAnalysisReplicasNotes(t *testing.T) {
+	path := writeCLIAnalysis(t)
+	src, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(src), "  covariance: full\n", "  covariance: full\n  replicas: 20\n", 1)
+	if err := os.WriteFile(path, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	if code != 0 {
+		t.Fatalf("unfold: exit %d\n%s", code, stderr)
+	}
+	if want := "note: the bootstrap filled its 20 replicas in 1 pass(es)"; !strings.Contains(stderr, want) {
+		t.Errorf("stderr lacks %q:\n%s", want, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(filepath.Dir(path), "result", "result.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(b), `"bootstrap-replicas"`) {
+		t.Error("result.json names no bootstrap-replicas source")
+	}
+}

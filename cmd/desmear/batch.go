@@ -23,9 +23,10 @@ import (
 func newBatchCommand(g *globalOptions) *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "batch (plan | run | run-local | status | merge | submit)",
-		Short: "Split a toy ensemble, a response build or the systematic variations into shards, run them here or on a Slurm cluster, merge them exactly",
+		Short: "Split a toy ensemble, a response build, the systematic variations or the bootstrap replicas into shards, run them here or on a Slurm cluster, merge them exactly",
 		Long: `batch splits the toy ensemble of a validation, the building of a
-response, or the systematic variations of an analysis file, into shards that
+response, or the systematic variations or bootstrap replicas of an analysis
+file, into shards that
 separate processes or cluster jobs run, and merges their partial results
 into the validation folder "desmear validate" writes (or the bundle
 "desmear response" writes, or the result folder "desmear unfold" writes),
@@ -34,6 +35,7 @@ bit for bit.
   desmear batch plan ANALYSIS.yaml --toys N --shards K --workdir DIR
   desmear batch plan ANALYSIS.yaml --response --shards K --workdir DIR
   desmear batch plan ANALYSIS.yaml --variations --shards K --workdir DIR
+  desmear batch plan ANALYSIS.yaml --replicas N --shards K --workdir DIR
   desmear batch run DIR --shard I          (one shard; a finished one is skipped)
   desmear batch run-local DIR --jobs J     (every shard here, J at a time)
   desmear batch status DIR                 (from the shard files)
@@ -89,8 +91,12 @@ writes their varied estimates; the merge adds their shifts to the nominal
 result and writes the result folder (the analysis file's output.folder
 unless --out) that "desmear unfold ANALYSIS.yaml" writes in one run.
 
-Toy ensembles (--toys), responses (--response) and systematic variations
-(--variations) can be planned today; --replicas is refused until it can.`,
+With --replicas N the plan is of the N bootstrap replicas of the simulated
+events that the analysis file asks for (uncertainty.replicas: N), in units
+of 50 replicas: each shard unfolds the nominal data and its replicas and
+writes the ensembles of its units; the merge merges them in order, as one
+run does, and writes the result folder that "desmear unfold ANALYSIS.yaml"
+writes in one run.`,
 		Example: `  desmear batch plan demo/analysis.yaml --toys 2000 --shards 40 --workdir toys`,
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -99,7 +105,7 @@ Toy ensembles (--toys), responses (--response) and systematic variations
 	}
 	f := cmd.Flags()
 	f.IntVar(&o.toys, "toys", 0, "plan a validation's toy ensemble of `N` toys")
-	f.IntVar(&o.replicas, "replicas", 0, "plan `N` bootstrap replicas (not available yet)")
+	f.IntVar(&o.replicas, "replicas", 0, "plan the `N` bootstrap replicas of the analysis file (its uncertainty.replicas), merged into its result folder")
 	f.BoolVar(&o.variations, "variations", false, "plan the systematic variations of the analysis file, one unit each, merged into its result folder")
 	f.BoolVar(&o.response, "response", false, "plan the response built in K parts (\"desmear response --shard I/K\"), merged into a bundle")
 	f.IntVar(&o.shards, "shards", 0, "number of shards `K`")
@@ -125,26 +131,32 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 	switch {
 	case kinds != 1:
 		return usagef("batch plan needs one of --toys N, --response, --replicas N or --variations")
-	case o.replicas != 0:
-		return usageErr(fmt.Errorf("%v (plan with --toys N, --response or --variations)", batch.Replicas.Check()))
 	case o.workdir == "":
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
-	case o.response || o.variations:
+	case o.response || o.variations || cmd.Flags().Changed("replicas"):
+		what := "--response"
+		switch {
+		case o.variations:
+			what = "--variations"
+		case cmd.Flags().Changed("replicas"):
+			what = "--replicas"
+		}
 		for _, name := range []string{"toy-truth", "max-iterations", "criterion", "bias-threshold", "tilt", "seed"} {
 			if cmd.Flags().Changed(name) {
-				what := "--response"
-				if o.variations {
-					what = "--variations"
-				}
 				return usagef("--%s is an option of a toy ensemble (--toys N), not of %s", name, what)
 			}
 		}
-		if o.response {
+		switch {
+		case o.response:
 			return planResponse(g, o, path)
+		case o.variations:
+			return planVariations(cmd.Context(), g, o, path)
+		case o.replicas < 2:
+			return usagef("--replicas %d: give at least 2", o.replicas)
 		}
-		return planVariations(cmd.Context(), g, o, path)
+		return planReplicas(cmd.Context(), g, o, path)
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:
@@ -254,6 +266,8 @@ func loadJob(ctx context.Context, g *globalOptions, dir string) (shardJob, error
 		return loadResponseJob(p)
 	case batch.Variations:
 		return loadVariationJob(p)
+	case batch.Replicas:
+		return loadReplicaJob(p)
 	}
 	return loadToyJob(ctx, g, p)
 }
@@ -473,6 +487,10 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 				marker = result.JSONFile
 				fmt.Fprintf(w, "plan: %s (%d systematic variations in %d shards)\n", filepath.Join(args[0], batch.PlanFile), len(p.Variations), len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards (%d of %d variations)\n", len(pr.Done), len(p.Shards), pr.VariationsDone, len(p.Variations))
+			case batch.Replicas:
+				marker = result.JSONFile
+				fmt.Fprintf(w, "plan: %s (%d bootstrap replicas in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.ReplicaCount(), len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d replicas)\n", len(pr.Done), len(p.Shards), pr.ReplicasDone, p.ReplicaCount())
 			default:
 				fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
@@ -509,7 +527,8 @@ plan (DIR/validation unless planned with --out): the same files, bit for
 bit, as "desmear validate" with the plan's settings. For a response plan it
 merges the parts in shard order and writes the response bundle
 (DIR/response unless planned with --out), the one "desmear response" writes.
-For a plan of systematic variations it unfolds the nominal data, adds the
+For a plan of systematic variations (or of bootstrap replicas) it unfolds
+the nominal data, adds the
 shift of every variation from the shard files and writes the result folder
 (the analysis file's output.folder unless planned with --out), the one
 "desmear unfold ANALYSIS.yaml" writes.`,
@@ -525,6 +544,8 @@ shift of every variation from the shard files and writes the result folder
 				return mergeResponse(g, p, dir, force)
 			case batch.Variations:
 				return mergeVariations(ctx, g, p, dir, force)
+			case batch.Replicas:
+				return mergeReplicas(ctx, g, p, dir, force)
 			}
 			j, err := loadToyJob(ctx, g, p)
 			if err != nil {

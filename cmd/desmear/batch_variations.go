@@ -1,9 +1,7 @@
 package main
 
 import (
-	"bufio"
 	"context"
-	"errors"
 	"fmt"
 	"path/filepath"
 	"sync"
@@ -184,32 +182,12 @@ func mergeVariations(ctx context.Context, g *globalOptions, p *batch.Plan, dir s
 	if err != nil {
 		return inputErr(fmt.Errorf("%w (\"desmear batch status %s\" lists them)", err, dir))
 	}
-	pr := newProgress(g)
-	defer pr.finish()
-	a, n, err := j.nominal(ctx, &analysis.Options{Version: version, Progress: pr.report})
-	if err != nil {
-		return err
-	}
-	a.Output.Folder = p.Out
-	out, err := n.Finish(ctx, varied, force)
-	pr.finish()
-	if err != nil {
-		if ctx.Err() != nil {
-			return ctx.Err()
+	return j.finish(ctx, g, func(ctx context.Context, a *analysis.Analysis, n *analysis.Nominal) (*analysis.Outcome, error) {
+		// The bootstrap replicas of uncertainty.replicas, if any, here.
+		replicas, err := n.Replicas(ctx, 0, n.ReplicaUnits())
+		if err != nil {
+			return nil, err
 		}
-		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
-			return refusedFolder(err, p.Out, "result folder", result.JSONFile)
-		}
-		return analysisErr(err)
-	}
-	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
-	printWarnings(g, out.Warnings)
-	w := bufio.NewWriter(g.stdout)
-	printOutcome(w, a, out)
-	printChecks(w, out.Folder, out.Document, out.Files)
-	if err := w.Flush(); err != nil {
-		return ioErr(err)
-	}
-	printBinNotes(g, out.Document, a.Truth, "uncertainty.method: toys")
-	return nil
+		return n.Finish(ctx, replicas, varied, force)
+	})
 }

@@ -45,6 +45,7 @@ type Analysis struct {
 	// load instead of building the response from Simulation.
 	ResponseFile string
 	responseLine int
+	replicasLine int // of uncertainty.replicas
 
 	Data        Data
 	Backgrounds []Background
@@ -197,6 +198,9 @@ type Uncertainty struct {
 	ResponseSamples int
 	SamplingPrior   string
 	BiasToys        int // toys of the bias estimate; 0: none
+	// Replicas is the number of Poisson bootstrap replicas of the
+	// simulated events (0: none).
+	Replicas int
 	// VarianceFrom is counts or expectation ("" for the default).
 	VarianceFrom string
 }
@@ -370,7 +374,12 @@ func Decode(src []byte, path string) (*Analysis, error) {
 	// Uncertainty.
 	un, o := doc.Uncertainty, doc.Output
 	a.Uncertainty = Uncertainty{Covariance: un.Covariance, Method: un.Method, Probes: un.Probes, Toys: un.Toys, Seed: un.Seed,
-		ResponseSamples: un.ResponseSamples, SamplingPrior: un.SamplingPrior, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom}
+		ResponseSamples: un.ResponseSamples, SamplingPrior: un.SamplingPrior, BiasToys: un.BiasToys, VarianceFrom: un.VarianceFrom,
+		Replicas: un.Replicas}
+	a.replicasLine = c.line("uncertainty", "replicas")
+	if un.Replicas != 0 && a.ResponseFile != "" {
+		c.errf(c.line("uncertainty", "replicas"), "uncertainty.replicas", "needs the simulated events, but the response is read from a saved bundle (response): give the simulation instead, or use uncertainty.response_samples")
+	}
 	if nodeAt(root, "uncertainty", "seed") == nil {
 		a.Uncertainty.Seed = DefaultSeed
 	}
@@ -497,6 +506,7 @@ var settingKeys = map[string][]any{
 	"SamplingPrior":   {"uncertainty", "sampling_prior"},
 	"Seed":            {"uncertainty", "seed"},
 	"BiasToys":        {"uncertainty", "bias_toys"},
+	"Replicas":        {"uncertainty", "replicas"},
 	"VarianceFrom":    {"uncertainty", "variance_from"},
 }
 

@@ -122,6 +122,10 @@ func TestDecodeErrors(t *testing.T) {
 		{"  seed: 7", "  seed: 7\n  response_samples: -5", `testdata/bad.yaml:30: uncertainty.response_samples: must be 0 (no sampling) or at least 2`},
 		{"  seed: 7", "  seed: 7\n  response_samples: many", `testdata/bad.yaml:30:`},
 		{"  covariance: full", "  covariance: none\n  response_samples: 50", `testdata/bad.yaml:29: uncertainty.response_samples: needs an uncertainty of the data too`},
+		{"  seed: 7", "  seed: 7\n  replicas: 1", `testdata/bad.yaml:30: uncertainty.replicas: must be 0 (no bootstrap) or at least 2`},
+		{"  seed: 7", "  seed: 7\n  replicas: 2.5", `testdata/bad.yaml:30: uncertainty.replicas:`},
+		{"  seed: 7", "  seed: 7\n  replicas: 50\n  response_samples: 50", `testdata/bad.yaml:30: uncertainty.replicas: cannot be combined with response samples`},
+		{"  covariance: full", "  covariance: none\n  replicas: 50", `testdata/bad.yaml:29: uncertainty.replicas: needs an uncertainty of the data too`},
 		{"  seed: 7", "  seed: 7\n  sampling_prior: uniform", `testdata/bad.yaml:30: uncertainty.sampling_prior: unknown value "uniform" (one of: none, flat)`},
 		{"  seed: 7", "  seed: 7\n  method: gammas", `testdata/bad.yaml:30: uncertainty.method: unknown value "gammas" (one of: auto, exact, probes, toys, gamma)`},
 		{"  folder: out", "  folder: out\n  formats: [json, png]", `testdata/bad.yaml:32: result.formats[1]: unknown format "png" (known: ` + strings.Join(result.Formats(), ", ") + `)`},
@@ -138,6 +142,18 @@ func TestDecodeErrors(t *testing.T) {
 		if !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%q → %q:\n got %v\nwant %s", c.old, c.new, err, c.want)
 		}
+	}
+}
+
+// The bootstrap of the simulated events needs the events: with a saved
+// response it is refused at its key (method.md §25 Bootstrap replicas
+// of the simulated events).
+func TestDecodeReplicasNeedEvents(t *testing.T) {
+	text := strings.Replace(goodText(t), "simulation:\n  - file: sim.csv\n    weight: w\n    truth_selection: pt\n    reco_selection: pr\n", "response: r.bundle\n", 1)
+	text = strings.Replace(text, "  seed: 7", "  seed: 7\n  replicas: 50", 1)
+	_, err := Decode([]byte(text), "testdata/bad.yaml")
+	if err == nil || !strings.Contains(err.Error(), "uncertainty.replicas: needs the simulated events") {
+		t.Errorf("got %v, want a refusal of uncertainty.replicas", err)
 	}
 }
 

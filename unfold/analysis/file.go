@@ -175,6 +175,8 @@ type uncertainDoc struct {
 	ResponseSamples int    `yaml:"response_samples"`
 	SamplingPrior   string `yaml:"sampling_prior"`
 
+	Replicas int `yaml:"replicas"`
+
 	BiasToys     int    `yaml:"bias_toys"`
 	VarianceFrom string `yaml:"variance_from"`
 }

@@ -50,6 +50,9 @@ type Outcome struct {
 	// flows), each one line naming the bins.
 	Remedies *unfold.Remedies
 	Warnings []string
+	// Notes say how the run went where it chose something (the blocks
+	// of the bootstrap replicas), one line each.
+	Notes []string
 	// Folder is the result folder written.
 	Folder string
 	// Files lists the files written in it.
@@ -67,13 +70,18 @@ func (a *Analysis) CheckOutput(replace bool) error {
 
 // Run builds (or loads) the response, fills the data and the
 // background, unfolds and writes the result folder atomically. replace
-// allows replacing an earlier result folder. It is Nominal, Vary for
-// every variation in order and Finish, in one process.
+// allows replacing an earlier result folder. It is Nominal, Replicas
+// for every replica unit, Vary for every variation in order and Finish,
+// in one process.
 func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcome, error) {
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
 	n, err := a.Nominal(ctx, opt)
+	if err != nil {
+		return nil, err
+	}
+	replicas, err := n.Replicas(ctx, 0, n.ReplicaUnits())
 	if err != nil {
 		return nil, err
 	}
@@ -83,7 +91,7 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 			return nil, err
 		}
 	}
-	return n.Finish(ctx, varied, replace)
+	return n.Finish(ctx, replicas, varied, replace)
 }
 
 // Nominal is the nominal unfolding of an analysis, before its systematic
@@ -137,13 +145,19 @@ func (n *Nominal) Problem() *unfold.Problem { return n.out.Problem }
 // the result records them (the files of the variations included).
 func (n *Nominal) Inputs() ([]inputs.File, error) { return n.a.inputs(n.out) }
 
-// Finish adds the source of every variation to the nominal result, from
-// varied: the varied estimates of the analysis's variations, in order,
-// as Vary returns them (or as they were read back from where another
-// process wrote them). Then it estimates the bias (uncertainty.bias_toys)
-// and writes the result folder atomically: what Run writes.
-func (n *Nominal) Finish(ctx context.Context, varied []*Varied, replace bool) (*Outcome, error) {
+// Finish adds to the nominal result the simulation source of the
+// bootstrap replicas (uncertainty.replicas; nil without), from replicas:
+// the ensembles of every replica unit in order, as Replicas returns them;
+// and the source of every variation, from varied: the varied estimates
+// of the analysis's variations, in order, as Vary returns them. Either
+// may have been computed by other processes and read back. Then it
+// estimates the bias (uncertainty.bias_toys) and writes the result
+// folder atomically: what Run writes.
+func (n *Nominal) Finish(ctx context.Context, replicas []*unfold.Ensemble, varied []*Varied, replace bool) (*Outcome, error) {
 	a, out, s := n.a, n.out, n.s
+	if err := a.addReplicas(out, s, replicas); err != nil {
+		return nil, err
+	}
 	if err := a.addVariations(out, s, varied); err != nil {
 		return nil, err
 	}

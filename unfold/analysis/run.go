@@ -633,7 +633,7 @@ func (a *Analysis) expected(r *response.Built, bs []backgroundSample, factor []f
 // (Decode has refused those already too).
 func (a *Analysis) Settings() (*unfold.Settings, unfold.Method, error) {
 	u, un := a.Unfolding, a.Uncertainty
-	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit, ResponseSamples: un.ResponseSamples, BiasToys: un.BiasToys}
+	s := &unfold.Settings{Probes: un.Probes, Toys: un.Toys, Seed: un.Seed, MemoryLimit: u.MemoryLimit, ResponseSamples: un.ResponseSamples, BiasToys: un.BiasToys, Replicas: un.Replicas}
 	// names are the settings given by name in the file: the field, its
 	// value to set and the text.
 	type named struct {

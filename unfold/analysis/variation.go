@@ -371,7 +371,7 @@ func (a *Analysis) varied(ctx context.Context, out *Outcome, bkg []backgroundSam
 		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}
 	}
 	sv := *s
-	sv.Covariance, sv.ResponseSamples = unfold.NoCovariance, 0 // the estimate alone
+	sv.Covariance, sv.ResponseSamples, sv.Replicas = unfold.NoCovariance, 0, 0 // the estimate alone
 	res, err := unfold.Unfold(ctx, p, &sv, m)
 	if err != nil {
 		return nil, &Error{File: a.File, Line: ch.Line, Field: ch.Field, Msg: "unfolding with this variation: " + err.Error(), Err: err}

@@ -168,11 +168,10 @@ func TestPlanUnits(t *testing.T) {
 	if _, err := ToyPlan(Input{}, "", ToySettings{Toys: 520}, 12, ""); err == nil {
 		t.Error("12 shards of 11 units accepted")
 	}
-	if err := Replicas.Check(); !errors.Is(err, ErrNotAvailable) {
-		t.Errorf("%s: %v", Replicas, err)
-	}
-	if err := Variations.Check(); err != nil {
-		t.Errorf("%s: %v", Variations, err)
+	for _, k := range Kinds() {
+		if err := k.Check(); err != nil {
+			t.Errorf("%s: %v", k, err)
+		}
 	}
 }
 
@@ -214,6 +213,38 @@ func TestVariationPlan(t *testing.T) {
 	}
 	if _, err := VariationPlan(Input{}, "", nil, nil, 1, ""); err == nil {
 		t.Error("a plan without variations accepted")
+	}
+}
+
+// TestReplicaPlan: 120 bootstrap replicas are the units of 50, 50 and 20
+// replicas (analysis.ReplicaUnit), split into shards of whole units;
+// more shards than units, or fewer than 2 replicas, are refused; the plan
+// reads back.
+func TestReplicaPlan(t *testing.T) {
+	p, err := ReplicaPlan(Input{Path: "x.yaml", SHA256: "00"}, "11", nil, 120, 2, "out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.ReplicaCount() != 120 {
+		t.Errorf("units %+v", p.Replicas)
+	}
+	// 3 units in 2 shards: ⌊s·3/2⌋ boundaries 0, 1, 3 (common practice: the
+	// balanced block split)
+	if !reflect.DeepEqual(p.Shards, []Shard{{0, 0, 1}, {1, 1, 2}}) {
+		t.Errorf("shards %+v", p.Shards)
+	}
+	dir := t.TempDir()
+	if err := p.Write(dir); err != nil {
+		t.Fatal(err)
+	}
+	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.ReplicaCount() != 120 {
+		t.Errorf("plan read back %+v, %v", q, err)
+	}
+	if _, err := ReplicaPlan(Input{}, "", nil, 120, 4, ""); err == nil {
+		t.Error("4 shards of 3 units accepted")
+	}
+	if _, err := ReplicaPlan(Input{}, "", nil, 1, 1, ""); err == nil {
+		t.Error("1 replica accepted")
 	}
 }
 

@@ -25,6 +25,10 @@
 // their varied estimates, as numbers that read back to the same bits;
 // MergeVariations returns them in the analysis's order for
 // analysis.Nominal.Finish, which writes the result folder of one run.
+// A replicas plan (ReplicaPlan) has one unit per analysis.ReplicaUnit
+// bootstrap replicas; RunReplicas writes the ensemble of each unit of a
+// shard, exactly, and MergeReplicas returns them in unit order, which
+// Finish merges as one run does.
 //
 // # Shards
 //

@@ -14,6 +14,7 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
 	"github.com/desmear/desmear/unfold/validate"
 )
@@ -27,8 +28,7 @@ const Format = 1
 // Kind is the kind of ensemble a plan splits.
 type Kind string
 
-// The kinds of ensemble. Toys, Response and Variations can be planned
-// today.
+// The kinds of ensemble.
 const (
 	// Toys: the toy ensemble of a validation.
 	Toys Kind = "toys"
@@ -36,7 +36,9 @@ const (
 	// of the response shards (ranges of simulated events), merged in
 	// shard order into the bundle of a build in one run.
 	Response Kind = "response"
-	// Replicas: bootstrap replicas of the simulation (not available).
+	// Replicas: the bootstrap replicas of the simulation of an analysis
+	// (uncertainty.replicas), in units of analysis.ReplicaUnit, merged
+	// with the nominal result into the result folder of one run.
 	Replicas Kind = "replicas"
 	// Variations: the systematic variations of an analysis, one unit
 	// each (an up/down pair is one unit), merged with the nominal
@@ -46,10 +48,6 @@ const (
 
 // Kinds lists the kinds of ensemble.
 func Kinds() []Kind { return []Kind{Toys, Response, Replicas, Variations} }
-
-// ErrNotAvailable is returned for a kind of ensemble that cannot be
-// planned yet.
-var ErrNotAvailable = errors.New("not available yet")
 
 // MarshalText implements encoding.TextMarshaler.
 func (k Kind) MarshalText() ([]byte, error) { return []byte(k), nil }
@@ -66,14 +64,11 @@ func (k *Kind) UnmarshalText(b []byte) error {
 	return fmt.Errorf("unknown kind of ensemble %q (want toys, response, replicas or variations)", b)
 }
 
-// Check reports whether a plan of this kind can be made: an error
-// wrapping ErrNotAvailable for replicas.
+// Check reports whether a plan of this kind can be made.
 func (k Kind) Check() error {
 	switch k {
-	case Toys, Response, Variations:
+	case Toys, Response, Variations, Replicas:
 		return nil
-	case Replicas:
-		return fmt.Errorf("batch: plans of bootstrap replicas are %w: toy ensembles, responses and systematic variations can be planned", ErrNotAvailable)
 	}
 	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
 }
@@ -116,6 +111,14 @@ type VariationUnit struct {
 	Name  string `json:"name"`
 }
 
+// ReplicaUnit is one unit of a replicas plan: the bootstrap replicas
+// First..First+Replicas−1 (analysis.ReplicaRange of unit Index).
+type ReplicaUnit struct {
+	Index    int `json:"index"`
+	First    int `json:"first"`
+	Replicas int `json:"replicas"`
+}
+
 // Shard is a contiguous run of units.
 type Shard struct {
 	Index     int `json:"index"`
@@ -139,7 +142,9 @@ type Plan struct {
 	// included); Variations are its units.
 	Inputs     []Input         `json:"inputs,omitempty"`
 	Variations []VariationUnit `json:"variations,omitempty"`
-	Shards     []Shard         `json:"shards"`
+	// Replicas are the units of a replicas plan.
+	Replicas []ReplicaUnit `json:"replicas,omitempty"`
+	Shards   []Shard       `json:"shards"`
 
 	id string // SHA-256 of plan.json, set by Read
 }
@@ -211,6 +216,41 @@ func VariationPlan(analysis Input, problem string, ins []Input, names []string, 
 		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
 	}
 	return p, nil
+}
+
+// ReplicaPlan returns the plan of the bootstrap of replicas replicas in
+// units of analysis.ReplicaUnit, over shards shards of as equal a number
+// of units as can be; ins are every input of the analysis by content,
+// problem the sum of the nominal problem (ProblemSum).
+func ReplicaPlan(analysisFile Input, problem string, ins []Input, replicas, shards int, out string) (*Plan, error) {
+	nu := (replicas + analysis.ReplicaUnit - 1) / analysis.ReplicaUnit
+	switch {
+	case replicas < 2:
+		return nil, &unfold.SettingsError{Field: "Replicas", Reason: "must be at least 2"}
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	case shards > nu:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d replicas: a shard holds at least one unit of %d replicas, so at most %d shards", shards, replicas, analysis.ReplicaUnit, nu)}
+	}
+	p := &Plan{Format: Format, Kind: Replicas, Analysis: analysisFile, Problem: problem, Out: out, Inputs: ins}
+	for u := range nu {
+		first, count := analysis.ReplicaRange(replicas, u)
+		p.Replicas = append(p.Replicas, ReplicaUnit{Index: u, First: first, Replicas: count})
+	}
+	for s := range shards {
+		lo, hi := s*nu/shards, (s+1)*nu/shards
+		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
+	}
+	return p, nil
+}
+
+// ReplicaCount returns the number of bootstrap replicas of the plan.
+func (p *Plan) ReplicaCount() int {
+	n := 0
+	for _, u := range p.Replicas {
+		n += u.Replicas
+	}
+	return n
 }
 
 // ToyRange returns the toys of shard s: first and count.
@@ -294,6 +334,21 @@ func (p *Plan) check() error {
 			}
 		}
 		return p.checkShards(len(p.Variations))
+	}
+	if p.Kind == Replicas {
+		if p.Toys != nil || len(p.Units) > 0 || len(p.Variations) > 0 {
+			return fmt.Errorf("a plan of bootstrap replicas has no toys and no variations")
+		}
+		n := 0
+		for _, u := range p.Replicas {
+			n += u.Replicas
+		}
+		for i, u := range p.Replicas {
+			if first, count := analysis.ReplicaRange(n, i); u.Index != i || u.First != first || u.Replicas != count {
+				return fmt.Errorf("replica unit %d does not continue the units before it", i)
+			}
+		}
+		return p.checkShards(len(p.Replicas))
 	}
 	if p.Toys == nil {
 		return fmt.Errorf("a toy plan without toy settings")

@@ -144,8 +144,9 @@ type Progress struct {
 	// plan to the reason.
 	Bad map[int]error
 	// ToysDone is the number of toys of the shards done, VariationsDone
-	// the number of systematic variations.
-	ToysDone, VariationsDone int
+	// the number of systematic variations, ReplicasDone the number of
+	// bootstrap replicas.
+	ToysDone, VariationsDone, ReplicasDone int
 }
 
 // Status reads the shard files of the work folder dir.
@@ -157,6 +158,13 @@ func Status(dir string, p *Plan) (*Progress, error) {
 		switch p.Kind {
 		case Response:
 			_, err = p.readPart(dir, s)
+		case Replicas:
+			var pt *replicaPartial
+			if pt, err = p.readReplicas(dir, s); err == nil {
+				for _, e := range pt.Units {
+					pr.ReplicasDone += int(e.N)
+				}
+			}
 		case Variations:
 			var pt *variedPartial
 			if pt, err = p.readVaried(dir, s); err == nil {

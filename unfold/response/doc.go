@@ -53,6 +53,14 @@
 // disk (Save, LoadPart); MergeParts checks that parts of one plan cover
 // every shard exactly once and merges them.
 //
+// # Bootstrap replicas
+//
+// FillReplicas fills, in one pass over the events, a range of Poisson
+// bootstrap replicas of the response on the nominal sparsity pattern:
+// each event's weight times its ReplicaCount, a Poisson(1) count that is
+// a pure function of (seed, sample, event, replica) (method.md §25), so
+// any range of replicas, in any process, gets the same counts.
+//
 // The package never draws anything: a progress callback reports the
 // events done. Problems with the input (a non-finite weight, a read
 // error) are returned as errors naming the sample and the event;

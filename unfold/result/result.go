@@ -217,7 +217,7 @@ type RandomStreams struct {
 
 // Stream is one kind of unit of RandomStreams.
 type Stream struct {
-	Unit       string `json:"unit"` // "probe", "poisson-toy", "gamma-sample" or "response-sample"
+	Unit       string `json:"unit"` // "probe", "poisson-toy", "gamma-sample", "response-sample" or "replica"
 	Offset     uint64 `json:"offset"`
 	Derivation string `json:"derivation"` // for example "response-sample k (from 0) draws from rand.NewPCG(seed, 4·2^32 + k)"
 }
@@ -349,7 +349,10 @@ type Settings struct {
 	// Gamma sampling ("none" or "flat"); absent without sampling.
 	ResponseSamples int    `json:"response_samples,omitempty"`
 	SamplingPrior   string `json:"sampling_prior,omitempty"`
-	Seed            uint64 `json:"seed"`
+	// Replicas is the number of Poisson bootstrap replicas of the
+	// simulated events behind the simulation source; absent without.
+	Replicas int    `json:"replicas,omitempty"`
+	Seed     uint64 `json:"seed"`
 	// MemoryLimit is the memory limit of the uncertainty computation in
 	// bytes.
 	MemoryLimit int64 `json:"memory_limit"`
@@ -474,6 +477,7 @@ func DescribeSettings(s *unfold.Settings, m unfold.Method, prior string, withBac
 	if z.ResponseSamples > 0 {
 		d.ResponseSamples = z.ResponseSamples
 	}
+	d.Replicas = z.Replicas
 	if z.ResponseSamples > 0 || z.Covariance == unfold.Diagonal && z.DiagonalMethod == unfold.DiagonalGamma {
 		d.SamplingPrior = z.SamplingPrior.String()
 	}
@@ -504,8 +508,11 @@ func FromUnfold(res *unfold.Result) (*Result, error) {
 	if len(res.Streams) > 0 {
 		r.RandomStreams = &RandomStreams{Generator: "pcg (go math/rand/v2)", Seed: res.Seed}
 		for _, st := range res.Streams {
-			r.RandomStreams.Streams = append(r.RandomStreams.Streams, Stream{Unit: st.Unit, Offset: st.Offset,
-				Derivation: fmt.Sprintf("%s k (from 0) draws from rand.NewPCG(seed, %d·2^32 + k)", st.Unit, st.Offset>>32)})
+			d := st.Derivation
+			if d == "" {
+				d = fmt.Sprintf("%s k (from 0) draws from rand.NewPCG(seed, %d·2^32 + k)", st.Unit, st.Offset>>32)
+			}
+			r.RandomStreams.Streams = append(r.RandomStreams.Streams, Stream{Unit: st.Unit, Offset: st.Offset, Derivation: d})
 		}
 	}
 	// Each method has one case here: the fields of its details.
