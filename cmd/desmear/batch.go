@@ -23,18 +23,23 @@ import (
 func newBatchCommand(g *globalOptions) *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "batch (plan | run | run-local | status | merge | submit)",
-		Short: "Split a toy ensemble or a response build into shards, run them here or on a Slurm cluster, merge them exactly",
-		Long: `batch splits the toy ensemble of a validation, or the building of a
-response, into shards that separate processes or cluster jobs run, and
-merges their partial results into the validation folder "desmear validate"
-writes (or the bundle "desmear response" writes), bit for bit.
+		Short: "Split a toy ensemble, a response build, the systematic variations or the bootstrap replicas into shards, run them here or on a Slurm cluster, merge them exactly",
+		Long: `batch splits the toy ensemble of a validation, the building of a
+response, or the systematic variations or bootstrap replicas of an analysis
+file, into shards that
+separate processes or cluster jobs run, and merges their partial results
+into the validation folder "desmear validate" writes (or the bundle
+"desmear response" writes, or the result folder "desmear unfold" writes),
+bit for bit.
 
   desmear batch plan ANALYSIS.yaml --toys N --shards K --workdir DIR
   desmear batch plan ANALYSIS.yaml --response --shards K --workdir DIR
+  desmear batch plan ANALYSIS.yaml --variations --shards K --workdir DIR
+  desmear batch plan ANALYSIS.yaml --replicas N --shards K --workdir DIR
   desmear batch run DIR --shard I          (one shard; a finished one is skipped)
   desmear batch run-local DIR --jobs J     (every shard here, J at a time)
   desmear batch status DIR                 (from the shard files)
-  desmear batch merge DIR                  (writes the validation folder)
+  desmear batch merge DIR                  (writes the validation folder, bundle or result)
   desmear batch submit DIR --slurm         (a job array and a dependent merge)
 
 See "desmear help cluster".`,
@@ -78,8 +83,20 @@ response ANALYSIS.yaml --shard I/K" builds it); the merge writes the
 response bundle (DIR/response unless --out) that "desmear response" writes
 in one run.
 
-Toy ensembles of a validation (--toys) and responses (--response) can be
-planned today; --replicas and --variations are refused until they can.`,
+With --variations the plan is of the analysis file's systematic variations,
+one unit each (an up/down pair is one unit), at most one shard per
+variation: each shard unfolds the nominal data as "desmear unfold
+ANALYSIS.yaml" does and then its variations with the nominal settings, and
+writes their varied estimates; the merge adds their shifts to the nominal
+result and writes the result folder (the analysis file's output.folder
+unless --out) that "desmear unfold ANALYSIS.yaml" writes in one run.
+
+With --replicas N the plan is of the N bootstrap replicas of the simulated
+events that the analysis file asks for (uncertainty.replicas: N), in units
+of 50 replicas: each shard unfolds the nominal data and its replicas and
+writes the ensembles of its units; the merge merges them in order, as one
+run does, and writes the result folder that "desmear unfold ANALYSIS.yaml"
+writes in one run.`,
 		Example: `  desmear batch plan demo/analysis.yaml --toys 2000 --shards 40 --workdir toys`,
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -88,12 +105,12 @@ planned today; --replicas and --variations are refused until they can.`,
 	}
 	f := cmd.Flags()
 	f.IntVar(&o.toys, "toys", 0, "plan a validation's toy ensemble of `N` toys")
-	f.IntVar(&o.replicas, "replicas", 0, "plan `N` bootstrap replicas (not available yet)")
-	f.BoolVar(&o.variations, "variations", false, "plan the systematic variations (not available yet)")
+	f.IntVar(&o.replicas, "replicas", 0, "plan the `N` bootstrap replicas of the analysis file (its uncertainty.replicas), merged into its result folder")
+	f.BoolVar(&o.variations, "variations", false, "plan the systematic variations of the analysis file, one unit each, merged into its result folder")
 	f.BoolVar(&o.response, "response", false, "plan the response built in K parts (\"desmear response --shard I/K\"), merged into a bundle")
 	f.IntVar(&o.shards, "shards", 0, "number of shards `K`")
 	f.StringVar(&o.workdir, "workdir", "", "work folder `DIR` of the plan and the shard files")
-	f.StringVar(&o.out, "out", "", "validation folder the merge writes (default DIR/validation)")
+	f.StringVar(&o.out, "out", "", "folder the merge writes (default DIR/validation, DIR/response, or the analysis file's output.folder with --variations)")
 	f.StringVar(&o.toyTruth, "toy-truth", "generated", "the truth the toys are drawn from (as \"desmear validate --toy-truth\")")
 	f.IntVar(&o.maxK, "max-iterations", validate.DefaultMaxK, "scan 1..`K` iterations")
 	f.Var(flagval.NewChoice(&o.criterion, validate.MinMSE, criterionNames(), validate.Criteria()),
@@ -114,18 +131,32 @@ func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, pat
 	switch {
 	case kinds != 1:
 		return usagef("batch plan needs one of --toys N, --response, --replicas N or --variations")
-	case o.replicas != 0 || o.variations:
-		kind := batch.Replicas
-		if o.variations {
-			kind = batch.Variations
-		}
-		return usageErr(fmt.Errorf("%v (plan with --toys N)", kind.Check()))
 	case o.workdir == "":
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
-	case o.response:
-		return planResponse(g, o, path)
+	case o.response || o.variations || cmd.Flags().Changed("replicas"):
+		what := "--response"
+		switch {
+		case o.variations:
+			what = "--variations"
+		case cmd.Flags().Changed("replicas"):
+			what = "--replicas"
+		}
+		for _, name := range []string{"toy-truth", "max-iterations", "criterion", "bias-threshold", "tilt", "seed"} {
+			if cmd.Flags().Changed(name) {
+				return usagef("--%s is an option of a toy ensemble (--toys N), not of %s", name, what)
+			}
+		}
+		switch {
+		case o.response:
+			return planResponse(g, o, path)
+		case o.variations:
+			return planVariations(cmd.Context(), g, o, path)
+		case o.replicas < 2:
+			return usagef("--replicas %d: give at least 2", o.replicas)
+		}
+		return planReplicas(cmd.Context(), g, o, path)
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:
@@ -230,8 +261,13 @@ func loadJob(ctx context.Context, g *globalOptions, dir string) (shardJob, error
 	if err != nil {
 		return nil, err
 	}
-	if p.Kind == batch.Response {
+	switch p.Kind {
+	case batch.Response:
 		return loadResponseJob(p)
+	case batch.Variations:
+		return loadVariationJob(p)
+	case batch.Replicas:
+		return loadReplicaJob(p)
 	}
 	return loadToyJob(ctx, g, p)
 }
@@ -442,11 +478,20 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 			}
 			w := bufio.NewWriter(g.stdout)
 			marker := validate.JSONFile
-			if p.Kind == batch.Response {
+			switch p.Kind {
+			case batch.Response:
 				marker = response.BundleFiles()[0]
 				fmt.Fprintf(w, "plan: %s (the response in %d parts)\n", filepath.Join(args[0], batch.PlanFile), len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards\n", len(pr.Done), len(p.Shards))
-			} else {
+			case batch.Variations:
+				marker = result.JSONFile
+				fmt.Fprintf(w, "plan: %s (%d systematic variations in %d shards)\n", filepath.Join(args[0], batch.PlanFile), len(p.Variations), len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d variations)\n", len(pr.Done), len(p.Shards), pr.VariationsDone, len(p.Variations))
+			case batch.Replicas:
+				marker = result.JSONFile
+				fmt.Fprintf(w, "plan: %s (%d bootstrap replicas in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.ReplicaCount(), len(p.Shards))
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d replicas)\n", len(pr.Done), len(p.Shards), pr.ReplicasDone, p.ReplicaCount())
+			default:
 				fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
 				fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
 			}
@@ -475,13 +520,18 @@ func newBatchMergeCommand(g *globalOptions) *cobra.Command {
 	var force bool
 	cmd := &cobra.Command{
 		Use:   "merge DIR [--force]",
-		Short: "Merge the shards of a plan into the validation folder or the response bundle",
+		Short: "Merge the shards of a plan into the validation folder, the response bundle or the result folder",
 		Long: `merge checks that every shard of the plan in DIR is present and belongs to
 the plan, merges their toys exactly and writes the validation folder of the
 plan (DIR/validation unless planned with --out): the same files, bit for
 bit, as "desmear validate" with the plan's settings. For a response plan it
 merges the parts in shard order and writes the response bundle
-(DIR/response unless planned with --out), the one "desmear response" writes.`,
+(DIR/response unless planned with --out), the one "desmear response" writes.
+For a plan of systematic variations (or of bootstrap replicas) it unfolds
+the nominal data, adds the
+shift of every variation from the shard files and writes the result folder
+(the analysis file's output.folder unless planned with --out), the one
+"desmear unfold ANALYSIS.yaml" writes.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			ctx, dir := cmd.Context(), args[0]
@@ -489,8 +539,13 @@ merges the parts in shard order and writes the response bundle
 			if err != nil {
 				return err
 			}
-			if p.Kind == batch.Response {
+			switch p.Kind {
+			case batch.Response:
 				return mergeResponse(g, p, dir, force)
+			case batch.Variations:
+				return mergeVariations(ctx, g, p, dir, force)
+			case batch.Replicas:
+				return mergeReplicas(ctx, g, p, dir, force)
 			}
 			j, err := loadToyJob(ctx, g, p)
 			if err != nil {
@@ -526,7 +581,7 @@ merges the parts in shard order and writes the response bundle
 			return nil
 		},
 	}
-	cmd.Flags().BoolVar(&force, "force", false, "replace the validation folder if it holds an earlier validation (or is empty)")
+	cmd.Flags().BoolVar(&force, "force", false, "replace the folder the merge writes if it holds an earlier one of its kind (or is empty)")
 	return cmd
 }
 

@@ -90,8 +90,8 @@ func TestBatchLocal(t *testing.T) {
 	sameFolders(t, single, filepath.Join(w, "validation"))
 }
 
-// TestBatchPlanRefuses: kinds of ensemble that do not exist yet, and more
-// shards than units, are refused with the reason.
+// TestBatchPlanRefuses: two kinds of ensemble at once are refused with
+// the reason.
 func TestBatchPlanRefuses(t *testing.T) {
 	ctx := context.Background()
 	w := t.TempDir()
@@ -99,8 +99,6 @@ func TestBatchPlanRefuses(t *testing.T) {
 		args []string
 		want string
 	}{
-		{[]string{"--replicas", "10"}, "plans of bootstrap replicas are not available yet"},
-		{[]string{"--variations"}, "plans of systematic variations are not available yet"},
 		{[]string{"--toys", "10", "--replicas", "3"}, "one of --toys N, --response, --replicas N or --variations"},
 	} {
 		code, _, errs := runCLI(t, ctx, append([]string{"batch", "plan", "a.yaml", "--shards", "2", "--workdir", w}, c.args...)...)

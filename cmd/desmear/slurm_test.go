@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"os"
 	"os/exec"
@@ -65,9 +66,12 @@ func waitJob(t *testing.T, id, logs string) {
 // a dependent job on a real cluster, waits, and compares the merged
 // validation folder with "desmear validate" and with run-local byte for
 // byte (the determinism rule of DEVELOPERS.md); then it removes a shard
-// and the merged folder and resubmits the missing shard. Last, a response
+// and the merged folder and resubmits the missing shard. Then a response
 // built in parts by a job array and merged by the dependent job is the
-// bundle of "desmear response" in one run.
+// bundle of "desmear response" in one run; last, the systematic
+// variations, and then the bootstrap replicas, computed by a job array and
+// merged by the dependent job are the result folder of "desmear unfold"
+// in one run.
 func TestBatchSlurm(t *testing.T) {
 	slurmCluster(t)
 	ctx := context.Background()
@@ -126,4 +130,41 @@ func TestBatchSlurm(t *testing.T) {
 	w = rw
 	submit()
 	sameFolders(t, bundle, filepath.Join(rw, "response"))
+
+	// The systematic variations, one array task each, merged by the
+	// dependent job into the result folder of "desmear unfold" in one run.
+	b, err := os.ReadFile(an)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(an, append(b, demoVariations...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := runCLI(t, ctx, "unfold", an, "--force", "-q"); code != 0 {
+		t.Fatalf("unfold: exit %d\n%s\n%s", code, out, errs)
+	}
+	vw, merged := filepath.Join(tmp, "variations"), filepath.Join(tmp, "variations-result")
+	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "3", "--workdir", vw, "--out", merged); code != 0 {
+		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	w = vw
+	submit()
+	sameResults(t, filepath.Join(filepath.Dir(an), "result"), merged)
+
+	// The bootstrap replicas, one array task per unit of 50, the same.
+	b, _ = os.ReadFile(an)
+	if err := os.WriteFile(an, bytes.Replace(b, []byte("response_samples: 200"), []byte("replicas: 120"), 1), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := runCLI(t, ctx, "unfold", an, "--force", "-q"); code != 0 {
+		t.Fatalf("unfold: exit %d\n%s\n%s", code, out, errs)
+	}
+	pw := filepath.Join(tmp, "replicas")
+	merged = filepath.Join(tmp, "replicas-result")
+	if code, out, errs := runCLI(t, ctx, "batch", "plan", an, "--replicas", "120", "--shards", "3", "--workdir", pw, "--out", merged); code != 0 {
+		t.Fatalf("plan: exit %d\n%s\n%s", code, out, errs)
+	}
+	w = pw
+	submit()
+	sameResults(t, filepath.Join(filepath.Dir(an), "result"), merged)
 }

@@ -43,7 +43,12 @@
 // Load (or Decode) gives an *Analysis; BuildResponse, FillData,
 // Background, Problem and Settings expose each step, and Run does all of
 // them and writes the result folder atomically (a temporary folder
-// renamed into place; a failed or interrupted run leaves nothing). The
+// renamed into place; a failed or interrupted run leaves nothing). Run
+// is Nominal (the nominal unfolding), Nominal.Replicas for the units of
+// the bootstrap replicas, Nominal.Vary for each systematic variation and
+// Nominal.Finish (the sources added, the result written): the replica
+// units and the variations can be computed in other processes and given
+// to Finish, with the same result bit for bit. The
 // folder holds result.json (the plain-table result fields plus binning
 // labels, efficiency, purity, stability, densities, settings, input
 // files with SHA-256 hashes, program version and seed), result.csv, one

@@ -42,6 +42,18 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 // wrapped with the replica's number: too few simulated events reach a
 // reco bin), *unfold.SettingsError, ctx.Err().
 func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, opt *Options) (*unfold.Ensemble, error) {
+	es, err := a.replicaEnsembles(ctx, nominal, p, s, m, r0, r1, max(1, r1-r0), opt)
+	if err != nil {
+		return nil, err
+	}
+	return es[0], nil
+}
+
+// replicaEnsembles is Replicas with an ensemble of its own for every
+// unit consecutive replicas from r0 on (the last one fewer): each is
+// accumulated alone, in replica order, whatever the passes over the
+// events.
+func (a *Analysis) replicaEnsembles(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1, unit int, opt *Options) ([]*unfold.Ensemble, error) {
 	rs, err := s.Resolve()
 	if err != nil {
 		return nil, err
@@ -50,7 +62,10 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 		return nil, &Error{File: a.File, Line: a.responseLine, Field: "uncertainty.replicas", Msg: "needs the simulated events: give the simulation"}
 	}
 	nt := len(p.Generated)
-	ens := unfold.NewEnsemble(nt, rs.Covariance == unfold.Full)
+	ens := make([]*unfold.Ensemble, max(1, (r1-r0+unit-1)/unit))
+	for u := range ens {
+		ens[u] = unfold.NewEnsemble(nt, rs.Covariance == unfold.Full)
+	}
 	sims := make([]*response.Simulation, len(a.Simulation))
 	for i := range a.Simulation {
 		sim, src, err := a.simulation(&a.Simulation[i])
@@ -99,35 +114,90 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 			}
 			return &q, nil
 		}
-		if err := unfold.UnfoldEach(ctx, ens, &rs, m, b0, b1, problem); err != nil {
-			return nil, fmt.Errorf("bootstrap replica %w", err)
+		for k0 := b0; k0 < b1; {
+			u := (k0 - r0) / unit
+			k1 := min(b1, r0+(u+1)*unit)
+			if err := unfold.UnfoldEach(ctx, ens[u], &rs, m, k0, k1, problem); err != nil {
+				return nil, fmt.Errorf("bootstrap replica %w", err)
+			}
+			k0 = k1
 		}
 	}
 	return ens, nil
 }
 
-// addReplicas adds the simulation source of s.Replicas bootstrap
-// replicas to out.Result, its stream, and a note on the block size to
-// out.Notes.
-func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) error {
-	n := s.Replicas
-	ens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, opt)
+// ReplicaUnit is the number of bootstrap replicas of a unit: the
+// ensemble of each unit of consecutive replicas is accumulated alone
+// (Welford's update, in replica order), and the units are merged in
+// order (unfold.Ensemble.Merge), so that units computed by separate
+// processes give the bits of one run.
+const ReplicaUnit = 50
+
+// ReplicaUnits returns the number of units of the bootstrap replicas of
+// the analysis (uncertainty.replicas): ⌈replicas / ReplicaUnit⌉, 0
+// without replicas.
+func (n *Nominal) ReplicaUnits() int { return (n.s.Replicas + ReplicaUnit - 1) / ReplicaUnit }
+
+// ReplicaRange returns the first replica of unit u of a bootstrap of
+// replicas replicas, and their number.
+func ReplicaRange(replicas, u int) (first, count int) {
+	first = u * ReplicaUnit
+	return first, min(ReplicaUnit, replicas-first)
+}
+
+// Replicas computes the ensembles of the bootstrap replica units
+// u0 ≤ u < u1 (of ReplicaUnits) against the nominal problem: what Finish
+// takes, in order. It returns nil without replicas.
+func (n *Nominal) Replicas(ctx context.Context, u0, u1 int) ([]*unfold.Ensemble, error) {
+	a := n.a
+	if n.s.Replicas == 0 || u0 >= u1 {
+		return nil, nil
+	}
+	r0, _ := ReplicaRange(n.s.Replicas, u0)
+	last, c := ReplicaRange(n.s.Replicas, u1-1)
+	es, err := a.replicaEnsembles(ctx, n.out.Response, n.out.Problem, n.s, n.m, r0, last+c, ReplicaUnit, n.opt)
 	var ue *unfold.InputError
 	if errors.As(err, &ue) {
-		return &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
+		return nil, &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
 			Msg: fmt.Sprintf("%v: the response of this replica cannot be unfolded (too few simulated events in these bins, or negative weights): merge bins, clip negative cells (unfolding.negative_cells: clip) or sample the responses instead (uncertainty.response_samples)", err)}
 	}
+	if err != nil {
+		return nil, err
+	}
+	return es, nil
+}
+
+// addReplicas adds the simulation source of s.Replicas bootstrap
+// replicas to out.Result, from the ensembles of their units (merged in
+// order), its stream, and a note on the block size to out.Notes.
+func (a *Analysis) addReplicas(out *Outcome, s *unfold.Settings, units []*unfold.Ensemble) error {
+	n := s.Replicas
+	nu := (n + ReplicaUnit - 1) / ReplicaUnit
+	if len(units) != nu {
+		return fmt.Errorf("analysis: %d ensembles of bootstrap replica units for the %d units of %d replicas of %s", len(units), nu, n, a.File)
+	}
+	if n == 0 {
+		return nil
+	}
+	rs, err := s.Resolve()
 	if err != nil {
 		return err
 	}
 	res := out.Result
+	ens := unfold.NewEnsemble(len(res.Estimate), rs.Covariance == unfold.Full)
+	for u, e := range units {
+		if _, c := ReplicaRange(n, u); e == nil || e.N != int64(c) || e.Len() != ens.Len() || e.Full != ens.Full || len(e.M2) != len(ens.M2) {
+			return fmt.Errorf("analysis: the ensemble of bootstrap replica unit %d is not that of replicas %d..%d of %s", u, u*ReplicaUnit, u*ReplicaUnit+c-1, a.File)
+		}
+		ens.Merge(e)
+	}
 	res.AddSource(*unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined))
 	res.Streams = append(res.Streams, unfold.Stream{Unit: "replica", Derivation: response.ReplicaDerivation})
 	limit := s.MemoryLimit
 	if limit <= 0 {
 		limit = unfold.DefaultMemoryLimit
 	}
-	block := ReplicaBlock(p, limit)
+	block := ReplicaBlock(out.Problem, limit)
 	out.Notes = append(out.Notes, fmt.Sprintf("the bootstrap filled its %d replicas in %d pass(es) over the simulated events, %d replicas per pass (half of the memory limit)", n, (n+block-1)/block, min(block, n)))
 	return nil
 }

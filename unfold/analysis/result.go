@@ -70,11 +70,47 @@ func (a *Analysis) CheckOutput(replace bool) error {
 
 // Run builds (or loads) the response, fills the data and the
 // background, unfolds and writes the result folder atomically. replace
-// allows replacing an earlier result folder.
+// allows replacing an earlier result folder. It is Nominal, Replicas
+// for every replica unit, Vary for every variation in order and Finish,
+// in one process.
 func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcome, error) {
 	if err := a.CheckOutput(replace); err != nil {
 		return nil, err
 	}
+	n, err := a.Nominal(ctx, opt)
+	if err != nil {
+		return nil, err
+	}
+	replicas, err := n.Replicas(ctx, 0, n.ReplicaUnits())
+	if err != nil {
+		return nil, err
+	}
+	varied := make([]*Varied, len(a.Variations))
+	for k := range a.Variations {
+		if varied[k], err = n.Vary(ctx, k); err != nil {
+			return nil, err
+		}
+	}
+	return n.Finish(ctx, replicas, varied, replace)
+}
+
+// Nominal is the nominal unfolding of an analysis, before its systematic
+// variations: what each variation is unfolded against (Vary) and what
+// their shifts are added to (Finish).
+type Nominal struct {
+	a     *Analysis
+	out   *Outcome
+	s     *unfold.Settings
+	m     unfold.Method
+	fixed unfold.Method // m with the regularisation the nominal ended with
+	ref   []float64
+	opt   *Options
+}
+
+// Nominal assembles the problem (Assemble), chooses the iterations when
+// the file asks for it and unfolds the nominal data with the nominal
+// settings, as Run does before the variations.
+func (a *Analysis) Nominal(ctx context.Context, opt *Options) (*Nominal, error) {
 	out, p, err := a.Assemble(ctx, opt)
 	if err != nil {
 		return nil, err
@@ -99,24 +135,43 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 	if out.Result, err = unfold.Unfold(ctx, p, s, m); err != nil {
 		return nil, a.placeKernelError(err)
 	}
-	if s.Replicas > 0 {
-		if err := a.addReplicas(ctx, out, p, s, m, opt); err != nil {
-			return nil, err
-		}
+	return &Nominal{a: a, out: out, s: s, m: m, fixed: fixRegularisation(m, out.Result), ref: ref, opt: opt}, nil
+}
+
+// Problem returns the nominal problem, as assembled (remedies applied).
+func (n *Nominal) Problem() *unfold.Problem { return n.out.Problem }
+
+// Inputs returns every input file of the analysis with its SHA-256, as
+// the result records them (the files of the variations included).
+func (n *Nominal) Inputs() ([]inputs.File, error) { return n.a.inputs(n.out) }
+
+// Finish adds to the nominal result the simulation source of the
+// bootstrap replicas (uncertainty.replicas; nil without), from replicas:
+// the ensembles of every replica unit in order, as Replicas returns them;
+// and the source of every variation, from varied: the varied estimates
+// of the analysis's variations, in order, as Vary returns them. Either
+// may have been computed by other processes and read back. Then it
+// estimates the bias (uncertainty.bias_toys) and writes the result
+// folder atomically: what Run writes.
+func (n *Nominal) Finish(ctx context.Context, replicas []*unfold.Ensemble, varied []*Varied, replace bool) (*Outcome, error) {
+	a, out, s := n.a, n.out, n.s
+	if err := a.addReplicas(out, s, replicas); err != nil {
+		return nil, err
 	}
-	if err := a.addVariations(ctx, out, s, m, opt); err != nil {
+	if err := a.addVariations(out, s, varied); err != nil {
 		return nil, err
 	}
 	if s.BiasToys > 0 {
 		var progress func(done, total int)
-		if opt != nil && opt.Progress != nil {
-			progress = func(done, total int) { opt.Progress("estimating the bias", int64(done), int64(total)) }
+		if n.opt != nil && n.opt.Progress != nil {
+			progress = func(done, total int) { n.opt.Progress("estimating the bias", int64(done), int64(total)) }
 		}
-		if out.Bias, err = validate.EstimateBias(ctx, p, s, m, out.Result, progress); err != nil {
+		var err error
+		if out.Bias, err = validate.EstimateBias(ctx, out.Problem, s, n.m, out.Result, progress); err != nil {
 			return nil, a.placeKernelError(err)
 		}
 	}
-	if err := a.write(out, s, m, ref, replace, opt); err != nil {
+	if err := a.write(out, s, n.m, n.ref, replace, n.opt); err != nil {
 		var ne *unfold.NumericalError // of the comparison with the reference
 		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) || errors.As(err, &ne) {
 			return nil, err

@@ -389,37 +389,76 @@ func (a *Analysis) checkSourceCovariances(s *unfold.Settings) error {
 	return unfold.CheckSourceCovariances(a.Truth.Len(), a.Reco.Len(), len(a.Variations), s.MemoryLimit)
 }
 
-// addVariations unfolds every variation and adds its source to
-// out.Result.
-func (a *Analysis) addVariations(ctx context.Context, out *Outcome, s *unfold.Settings, m unfold.Method, opt *Options) error {
+// Varied is the varied estimate of one systematic variation: Estimates
+// holds one estimate for a single change, the up and the down estimate
+// for a pair.
+type Varied struct {
+	Name      string
+	Estimates [][]float64
+}
+
+// Vary unfolds variation k (of a.Variations) as Run does: the data with
+// the change applied, the nominal settings and the regularisation the
+// nominal unfolding ended with (method.md §21). It panics if k is out of
+// range.
+func (n *Nominal) Vary(ctx context.Context, k int) (*Varied, error) {
+	a := n.a
+	v := &a.Variations[k]
+	vd := &Varied{Name: v.Name}
+	for _, ch := range []*Change{v.Change, v.Up, v.Down} {
+		if ch == nil {
+			continue
+		}
+		est, err := a.varied(ctx, n.out, n.out.backgrounds, n.s, n.fixed, v, ch, n.opt)
+		if err != nil {
+			return nil, err
+		}
+		vd.Estimates = append(vd.Estimates, est)
+	}
+	return vd, nil
+}
+
+// checkVaried reports whether varied holds the varied estimates of the
+// analysis's variations, in order, each of nt truth bins.
+func (a *Analysis) checkVaried(varied []*Varied, nt int) error {
+	if len(varied) != len(a.Variations) {
+		return fmt.Errorf("analysis: %d varied estimates for the %d systematic variations of %s", len(varied), len(a.Variations), a.File)
+	}
+	for k, vd := range varied {
+		v := &a.Variations[k]
+		want := 1
+		if v.Change == nil {
+			want = 2
+		}
+		if vd == nil || vd.Name != v.Name || len(vd.Estimates) != want {
+			return fmt.Errorf("analysis: the varied estimates %d are not those of the variation %q of %s (%s, line %d)", k, v.Name, a.File, v.Field, v.Line)
+		}
+		for _, e := range vd.Estimates {
+			if len(e) != nt {
+				return fmt.Errorf("analysis: the varied estimate of %q has %d truth bins, the truth binning of %s %d", v.Name, len(e), a.File, nt)
+			}
+		}
+	}
+	return nil
+}
+
+// addVariations adds the source of every variation to out.Result, from
+// the varied estimates (in the order of a.Variations).
+func (a *Analysis) addVariations(out *Outcome, s *unfold.Settings, varied []*Varied) error {
+	res := out.Result
+	if err := a.checkVaried(varied, len(res.Estimate)); err != nil {
+		return err
+	}
 	if len(a.Variations) == 0 {
 		return nil
 	}
-	res := out.Result
 	full := s.Covariance == unfold.Full
-	if err := a.checkSourceCovariances(s); err != nil {
-		return err
-	}
-	fixed := fixRegularisation(m, res)
-	for k := range a.Variations {
-		v := &a.Variations[k]
-		if v.Change != nil {
-			est, err := a.varied(ctx, out, out.backgrounds, s, fixed, v, v.Change, opt)
-			if err != nil {
-				return err
-			}
-			res.AddSource(unfold.ShiftSource(v.Name, res.Estimate, est, res.Determined, full))
+	for k, vd := range varied {
+		if a.Variations[k].Change != nil {
+			res.AddSource(unfold.ShiftSource(vd.Name, res.Estimate, vd.Estimates[0], res.Determined, full))
 			continue
 		}
-		up, err := a.varied(ctx, out, out.backgrounds, s, fixed, v, v.Up, opt)
-		if err != nil {
-			return err
-		}
-		down, err := a.varied(ctx, out, out.backgrounds, s, fixed, v, v.Down, opt)
-		if err != nil {
-			return err
-		}
-		res.AddSource(unfold.PairSource(v.Name, res.Estimate, up, down, res.Determined, full))
+		res.AddSource(unfold.PairSource(vd.Name, res.Estimate, vd.Estimates[0], vd.Estimates[1], res.Determined, full))
 	}
 	for j, x := range res.Uncertainty {
 		if math.IsNaN(x) || math.IsInf(x, 0) {

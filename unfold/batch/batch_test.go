@@ -2,7 +2,10 @@ package batch
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
+	"math"
+	"math/rand/v2"
 	"os"
 	"reflect"
 	"strings"
@@ -165,10 +168,113 @@ func TestPlanUnits(t *testing.T) {
 	if _, err := ToyPlan(Input{}, "", ToySettings{Toys: 520}, 12, ""); err == nil {
 		t.Error("12 shards of 11 units accepted")
 	}
-	for _, k := range []Kind{Replicas, Variations} {
-		if err := k.Check(); !errors.Is(err, ErrNotAvailable) {
+	for _, k := range Kinds() {
+		if err := k.Check(); err != nil {
 			t.Errorf("%s: %v", k, err)
 		}
+	}
+}
+
+// TestVariationPlan: the systematic variations split into shards of as
+// equal a number as can be, contiguous and in order; a plan of more
+// shards than variations, or of none, is refused; the plan reads back.
+func TestVariationPlan(t *testing.T) {
+	names := []string{"a", "b", "c", "d", "e"}
+	p, err := VariationPlan(Input{Path: "x.yaml", SHA256: "00"}, "11", []Input{{Path: "d.csv", SHA256: "22"}}, names, 3, "out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got [][2]int
+	for s := range p.Shards {
+		first, count := p.VariationRange(s)
+		got = append(got, [2]int{first, count})
+	}
+	// 5 units in 3 shards: ⌊s·5/3⌋ boundaries 0, 1, 3, 5 (common practice:
+	// the balanced block split)
+	if !reflect.DeepEqual(got, [][2]int{{0, 1}, {1, 2}, {3, 2}}) {
+		t.Errorf("shards %v", got)
+	}
+	dir := t.TempDir()
+	if err := p.Write(dir); err != nil {
+		t.Fatal(err)
+	}
+	q, err := Read(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if q.Kind != Variations || len(q.Variations) != 5 || q.Variations[4].Name != "e" || q.CheckFiles([]Input{{Path: "d.csv", SHA256: "22"}}) != nil {
+		t.Errorf("plan read back %+v", q)
+	}
+	if err := q.CheckFiles([]Input{{Path: "d.csv", SHA256: "23"}}); err == nil || !strings.Contains(err.Error(), "has changed") {
+		t.Errorf("a changed input: %v", err)
+	}
+	if _, err := VariationPlan(Input{}, "", nil, names, 6, ""); err == nil {
+		t.Error("6 shards of 5 variations accepted")
+	}
+	if _, err := VariationPlan(Input{}, "", nil, nil, 1, ""); err == nil {
+		t.Error("a plan without variations accepted")
+	}
+}
+
+// TestReplicaPlan: 120 bootstrap replicas are the units of 50, 50 and 20
+// replicas (analysis.ReplicaUnit), split into shards of whole units;
+// more shards than units, or fewer than 2 replicas, are refused; the plan
+// reads back.
+func TestReplicaPlan(t *testing.T) {
+	p, err := ReplicaPlan(Input{Path: "x.yaml", SHA256: "00"}, "11", nil, 120, 2, "out")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.ReplicaCount() != 120 {
+		t.Errorf("units %+v", p.Replicas)
+	}
+	// 3 units in 2 shards: ⌊s·3/2⌋ boundaries 0, 1, 3 (common practice: the
+	// balanced block split)
+	if !reflect.DeepEqual(p.Shards, []Shard{{0, 0, 1}, {1, 1, 2}}) {
+		t.Errorf("shards %+v", p.Shards)
+	}
+	dir := t.TempDir()
+	if err := p.Write(dir); err != nil {
+		t.Fatal(err)
+	}
+	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.ReplicaCount() != 120 {
+		t.Errorf("plan read back %+v, %v", q, err)
+	}
+	if _, err := ReplicaPlan(Input{}, "", nil, 120, 4, ""); err == nil {
+		t.Error("4 shards of 3 units accepted")
+	}
+	if _, err := ReplicaPlan(Input{}, "", nil, 1, 1, ""); err == nil {
+		t.Error("1 replica accepted")
+	}
+}
+
+// TestExactVector: the estimates of a shard file read back with the same
+// IEEE 754 bits (compared with math.Float64bits: common practice), NaN,
+// infinities, −0 and subnormal numbers included.
+func TestExactVector(t *testing.T) {
+	v := exact{0, math.Copysign(0, -1), 1, 0.1, 1.0 / 3, math.MaxFloat64, math.SmallestNonzeroFloat64, -2.5e-310, math.NaN(), math.Inf(1), math.Inf(-1)}
+	rng := rand.New(rand.NewPCG(3, 4))
+	for range 1000 {
+		v = append(v, math.Float64frombits(rng.Uint64()))
+	}
+	b, err := json.Marshal(v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var w exact
+	if err := json.Unmarshal(b, &w); err != nil {
+		t.Fatal(err)
+	}
+	if len(w) != len(v) {
+		t.Fatalf("%d numbers read back of %d", len(w), len(v))
+	}
+	for i := range v {
+		if math.Float64bits(v[i]) != math.Float64bits(w[i]) && !(math.IsNaN(v[i]) && math.IsNaN(w[i])) {
+			t.Errorf("number %d: %v read back as %v", i, v[i], w[i])
+		}
+	}
+	if err := json.Unmarshal([]byte(`[1,"one"]`), &w); err == nil {
+		t.Error(`"one" read as a number`)
 	}
 }
 

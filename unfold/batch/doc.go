@@ -17,6 +17,18 @@
 // the response shards, response.PartShards), written as the part folder
 // parts/part-NNNNN, and MergeResponse merges the parts in shard order
 // (response.MergeParts) into the response of one build, bit for bit.
+// A variations plan (VariationPlan) has one unit per systematic
+// variation of the analysis (an up/down pair is one unit) and names
+// every input file of the analysis by content (Plan.Inputs, checked with
+// CheckFiles). RunVariations unfolds the variations of a shard against
+// the nominal unfolding of the analysis (analysis.Nominal) and writes
+// their varied estimates, as numbers that read back to the same bits;
+// MergeVariations returns them in the analysis's order for
+// analysis.Nominal.Finish, which writes the result folder of one run.
+// A replicas plan (ReplicaPlan) has one unit per analysis.ReplicaUnit
+// bootstrap replicas; RunReplicas writes the ensemble of each unit of a
+// shard, exactly, and MergeReplicas returns them in unit order, which
+// Finish merges as one run does.
 //
 // # Shards
 //

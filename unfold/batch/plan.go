@@ -14,6 +14,7 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
 	"github.com/desmear/desmear/unfold/validate"
 )
@@ -27,7 +28,7 @@ const Format = 1
 // Kind is the kind of ensemble a plan splits.
 type Kind string
 
-// The kinds of ensemble. Toys and Response can be planned today.
+// The kinds of ensemble.
 const (
 	// Toys: the toy ensemble of a validation.
 	Toys Kind = "toys"
@@ -35,20 +36,18 @@ const (
 	// of the response shards (ranges of simulated events), merged in
 	// shard order into the bundle of a build in one run.
 	Response Kind = "response"
-	// Replicas: bootstrap replicas of the simulation (not available).
+	// Replicas: the bootstrap replicas of the simulation of an analysis
+	// (uncertainty.replicas), in units of analysis.ReplicaUnit, merged
+	// with the nominal result into the result folder of one run.
 	Replicas Kind = "replicas"
 	// Variations: the systematic variations of an analysis, one unit
-	// each (not available: an analysis runs its variations in one
-	// process).
+	// each (an up/down pair is one unit), merged with the nominal
+	// result into the result folder of one run.
 	Variations Kind = "variations"
 )
 
 // Kinds lists the kinds of ensemble.
 func Kinds() []Kind { return []Kind{Toys, Response, Replicas, Variations} }
-
-// ErrNotAvailable is returned for a kind of ensemble that cannot be
-// planned yet.
-var ErrNotAvailable = errors.New("not available yet")
 
 // MarshalText implements encoding.TextMarshaler.
 func (k Kind) MarshalText() ([]byte, error) { return []byte(k), nil }
@@ -65,16 +64,11 @@ func (k *Kind) UnmarshalText(b []byte) error {
 	return fmt.Errorf("unknown kind of ensemble %q (want toys, response, replicas or variations)", b)
 }
 
-// Check reports whether a plan of this kind can be made: an error
-// wrapping ErrNotAvailable for replicas and variations.
+// Check reports whether a plan of this kind can be made.
 func (k Kind) Check() error {
 	switch k {
-	case Toys, Response:
+	case Toys, Response, Variations, Replicas:
 		return nil
-	case Replicas:
-		return fmt.Errorf("batch: plans of bootstrap replicas are %w: toy ensembles and responses can be planned", ErrNotAvailable)
-	case Variations:
-		return fmt.Errorf("batch: plans of systematic variations are %w (the variations of an analysis file are unfolded in one process, with the nominal result): toy ensembles and responses can be planned", ErrNotAvailable)
 	}
 	return fmt.Errorf("batch: unknown kind of ensemble %q", string(k))
 }
@@ -108,6 +102,23 @@ type Unit struct {
 	StreamBase uint64 `json:"stream_base"`
 }
 
+// VariationUnit is one unit of a variations plan: the systematic
+// variation Index of the analysis (in the order of analysis.Analysis
+// Variations: the file's variations, then the scale uncertainties of the
+// backgrounds), named Name; both changes of an up/down pair.
+type VariationUnit struct {
+	Index int    `json:"index"`
+	Name  string `json:"name"`
+}
+
+// ReplicaUnit is one unit of a replicas plan: the bootstrap replicas
+// First..First+Replicas−1 (analysis.ReplicaRange of unit Index).
+type ReplicaUnit struct {
+	Index    int `json:"index"`
+	First    int `json:"first"`
+	Replicas int `json:"replicas"`
+}
+
 // Shard is a contiguous run of units.
 type Shard struct {
 	Index     int `json:"index"`
@@ -124,9 +135,16 @@ type Plan struct {
 	// Out is the folder the merge writes.
 	Out string `json:"out"`
 	// Toys are the settings of a toy ensemble, nil for a response.
-	Toys   *ToySettings `json:"toys,omitempty"`
-	Units  []Unit       `json:"units,omitempty"`
-	Shards []Shard      `json:"shards"`
+	Toys  *ToySettings `json:"toys,omitempty"`
+	Units []Unit       `json:"units,omitempty"`
+	// Inputs are the input files of a variations plan with their
+	// SHA-256, as the result records them (those of the variations
+	// included); Variations are its units.
+	Inputs     []Input         `json:"inputs,omitempty"`
+	Variations []VariationUnit `json:"variations,omitempty"`
+	// Replicas are the units of a replicas plan.
+	Replicas []ReplicaUnit `json:"replicas,omitempty"`
+	Shards   []Shard       `json:"shards"`
 
 	id string // SHA-256 of plan.json, set by Read
 }
@@ -173,6 +191,66 @@ func ResponsePlan(analysis Input, parts int, out string) (*Plan, error) {
 		p.Shards = append(p.Shards, Shard{Index: s})
 	}
 	return p, nil
+}
+
+// VariationPlan returns the plan of the systematic variations named
+// names (in the analysis's order) over shards shards of as equal a
+// number of variations as can be; ins are every input of the analysis
+// by content, problem the sum of the nominal problem (ProblemSum).
+func VariationPlan(analysis Input, problem string, ins []Input, names []string, shards int, out string) (*Plan, error) {
+	switch {
+	case len(names) == 0:
+		return nil, &unfold.SettingsError{Field: "Variations", Reason: "the analysis has no systematic variations to plan (no variations, no background scale uncertainty)"}
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	case shards > len(names):
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d systematic variations: a shard holds at least one variation, so at most %d shards", shards, len(names), len(names))}
+	}
+	p := &Plan{Format: Format, Kind: Variations, Analysis: analysis, Problem: problem, Out: out, Inputs: ins}
+	for k, n := range names {
+		p.Variations = append(p.Variations, VariationUnit{Index: k, Name: n})
+	}
+	nu := len(names)
+	for s := range shards {
+		lo, hi := s*nu/shards, (s+1)*nu/shards
+		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
+	}
+	return p, nil
+}
+
+// ReplicaPlan returns the plan of the bootstrap of replicas replicas in
+// units of analysis.ReplicaUnit, over shards shards of as equal a number
+// of units as can be; ins are every input of the analysis by content,
+// problem the sum of the nominal problem (ProblemSum).
+func ReplicaPlan(analysisFile Input, problem string, ins []Input, replicas, shards int, out string) (*Plan, error) {
+	nu := (replicas + analysis.ReplicaUnit - 1) / analysis.ReplicaUnit
+	switch {
+	case replicas < 2:
+		return nil, &unfold.SettingsError{Field: "Replicas", Reason: "must be at least 2"}
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	case shards > nu:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d replicas: a shard holds at least one unit of %d replicas, so at most %d shards", shards, replicas, analysis.ReplicaUnit, nu)}
+	}
+	p := &Plan{Format: Format, Kind: Replicas, Analysis: analysisFile, Problem: problem, Out: out, Inputs: ins}
+	for u := range nu {
+		first, count := analysis.ReplicaRange(replicas, u)
+		p.Replicas = append(p.Replicas, ReplicaUnit{Index: u, First: first, Replicas: count})
+	}
+	for s := range shards {
+		lo, hi := s*nu/shards, (s+1)*nu/shards
+		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
+	}
+	return p, nil
+}
+
+// ReplicaCount returns the number of bootstrap replicas of the plan.
+func (p *Plan) ReplicaCount() int {
+	n := 0
+	for _, u := range p.Replicas {
+		n += u.Replicas
+	}
+	return n
 }
 
 // ToyRange returns the toys of shard s: first and count.
@@ -246,6 +324,32 @@ func (p *Plan) check() error {
 		}
 		return nil
 	}
+	if p.Kind == Variations {
+		if p.Toys != nil || len(p.Units) > 0 {
+			return fmt.Errorf("a plan of systematic variations has no toys")
+		}
+		for i, u := range p.Variations {
+			if u.Index != i || u.Name == "" {
+				return fmt.Errorf("variation %d does not continue the variations before it", i)
+			}
+		}
+		return p.checkShards(len(p.Variations))
+	}
+	if p.Kind == Replicas {
+		if p.Toys != nil || len(p.Units) > 0 || len(p.Variations) > 0 {
+			return fmt.Errorf("a plan of bootstrap replicas has no toys and no variations")
+		}
+		n := 0
+		for _, u := range p.Replicas {
+			n += u.Replicas
+		}
+		for i, u := range p.Replicas {
+			if first, count := analysis.ReplicaRange(n, i); u.Index != i || u.First != first || u.Replicas != count {
+				return fmt.Errorf("replica unit %d does not continue the units before it", i)
+			}
+		}
+		return p.checkShards(len(p.Replicas))
+	}
 	if p.Toys == nil {
 		return fmt.Errorf("a toy plan without toy settings")
 	}
@@ -259,6 +363,11 @@ func (p *Plan) check() error {
 	if next != p.Toys.Toys {
 		return fmt.Errorf("the units hold %d toys, the plan %d", next, p.Toys.Toys)
 	}
+	return p.checkShards(len(p.Units))
+}
+
+// checkShards reports whether the shards cover the n units in order.
+func (p *Plan) checkShards(n int) error {
 	nu := 0
 	for i, s := range p.Shards {
 		if s.Index != i || s.FirstUnit != nu || s.Units < 1 {
@@ -266,8 +375,8 @@ func (p *Plan) check() error {
 		}
 		nu += s.Units
 	}
-	if nu != len(p.Units) || len(p.Shards) == 0 {
-		return fmt.Errorf("the shards hold %d units, the plan %d", nu, len(p.Units))
+	if nu != n || len(p.Shards) == 0 {
+		return fmt.Errorf("the shards hold %d units, the plan %d", nu, n)
 	}
 	return nil
 }

@@ -143,8 +143,10 @@ type Progress struct {
 	// Bad maps the shards whose file is damaged or belongs to another
 	// plan to the reason.
 	Bad map[int]error
-	// ToysDone is the number of toys of the shards done.
-	ToysDone int
+	// ToysDone is the number of toys of the shards done, VariationsDone
+	// the number of systematic variations, ReplicasDone the number of
+	// bootstrap replicas.
+	ToysDone, VariationsDone, ReplicasDone int
 }
 
 // Status reads the shard files of the work folder dir.
@@ -153,9 +155,22 @@ func Status(dir string, p *Plan) (*Progress, error) {
 	for s := range p.Shards {
 		var err error
 		toys := 0
-		if p.Kind == Response {
+		switch p.Kind {
+		case Response:
 			_, err = p.readPart(dir, s)
-		} else {
+		case Replicas:
+			var pt *replicaPartial
+			if pt, err = p.readReplicas(dir, s); err == nil {
+				for _, e := range pt.Units {
+					pr.ReplicasDone += int(e.N)
+				}
+			}
+		case Variations:
+			var pt *variedPartial
+			if pt, err = p.readVaried(dir, s); err == nil {
+				pr.VariationsDone += len(pt.Varied)
+			}
+		default:
 			var pt *partial
 			if pt, err = p.readShard(dir, s); err == nil {
 				toys = pt.Toys

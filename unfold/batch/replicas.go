@@ -1,0 +1,136 @@
+package batch
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/atomicfile"
+)
+
+// replicaEnsemble is the ensemble of one replica unit in a shard file,
+// its numbers written to read back bit for bit.
+type replicaEnsemble struct {
+	Unit int   `json:"unit"`
+	N    int64 `json:"n"`
+	Mean exact `json:"mean"`
+	M2   exact `json:"m2"`
+	Full bool  `json:"full"`
+}
+
+// replicaPartial is the file of one shard of a replicas plan.
+type replicaPartial struct {
+	Format int               `json:"format"`
+	Plan   string            `json:"plan"`
+	Shard  int               `json:"shard"`
+	Units  []replicaEnsemble `json:"units"`
+}
+
+// readReplicas reads the file of shard s of a replicas plan, as
+// readShard does for toys.
+func (p *Plan) readReplicas(dir string, s int) (*replicaPartial, error) {
+	path := ShardPath(dir, s)
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, err
+	}
+	var pt replicaPartial
+	if err := json.Unmarshal(b, &pt); err != nil {
+		return nil, fmt.Errorf("%s: not a shard file: %v", path, err)
+	}
+	sh := p.Shards[s]
+	switch {
+	case pt.Format != Format:
+		return nil, fmt.Errorf("%s: shard format %d, want %d", path, pt.Format, Format)
+	case pt.Plan != p.id:
+		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(pt.Plan), short(p.id))
+	case pt.Shard != s || len(pt.Units) != sh.Units:
+		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (replica units %d..%d)", path, s, sh.FirstUnit, sh.FirstUnit+sh.Units-1)
+	}
+	for i, e := range pt.Units {
+		u := p.Replicas[sh.FirstUnit+i]
+		if e.Unit != u.Index || e.N != int64(u.Replicas) || len(e.Mean) == 0 {
+			return nil, fmt.Errorf("%s: does not hold replica unit %d (replicas %d..%d) of shard %d", path, u.Index, u.First, u.First+u.Replicas-1, s)
+		}
+	}
+	return &pt, nil
+}
+
+// ReplicasDone reports whether shard s of the replicas plan is present
+// and belongs to it (then running it again does nothing).
+func (p *Plan) ReplicasDone(dir string, s int) bool {
+	_, err := p.readReplicas(dir, s)
+	return err == nil
+}
+
+// RunReplicas runs shard s of the replicas plan p: compute(u0, u1)
+// computes the ensembles of the replica units u0 ≤ u < u1 (for example
+// analysis.Nominal.Replicas, against the nominal unfolding made from the
+// plan's inputs), written as the shard's file atomically. It does
+// nothing and returns false when the shard's file exists and belongs to
+// the plan; it returns true when it ran the shard.
+func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(ctx context.Context, u0, u1 int) ([]*unfold.Ensemble, error)) (bool, error) {
+	if s < 0 || s >= len(p.Shards) {
+		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
+	}
+	if p.Kind != Replicas {
+		return false, fmt.Errorf("batch: the plan is of %s, not of bootstrap replicas", p.Kind)
+	}
+	if p.ReplicasDone(dir, s) {
+		return false, nil
+	}
+	sh := p.Shards[s]
+	es, err := compute(ctx, sh.FirstUnit, sh.FirstUnit+sh.Units)
+	if err != nil {
+		return false, err
+	}
+	if len(es) != sh.Units {
+		return false, fmt.Errorf("batch: %d ensembles for the %d replica units of shard %d", len(es), sh.Units, s)
+	}
+	pt := &replicaPartial{Format: Format, Plan: p.id, Shard: s}
+	for i, e := range es {
+		pt.Units = append(pt.Units, replicaEnsemble{Unit: sh.FirstUnit + i, N: e.N, Mean: exact(e.Mean), M2: exact(e.M2), Full: e.Full})
+	}
+	js, err := json.Marshal(pt)
+	if err != nil {
+		return false, err
+	}
+	if err := os.MkdirAll(filepath.Join(dir, ShardDir), 0o755); err != nil {
+		return false, err
+	}
+	if err := ctx.Err(); err != nil {
+		return false, err
+	}
+	return true, atomicfile.Write(ShardPath(dir, s), func(w io.Writer) error {
+		_, err := w.Write(js)
+		return err
+	})
+}
+
+// MergeReplicas reads every shard of the replicas plan and returns the
+// ensembles of all its replica units, in order (what
+// analysis.Nominal.Finish takes). It is an error, listing the shards, if
+// any is missing or does not belong to the plan.
+func MergeReplicas(dir string, p *Plan) ([]*unfold.Ensemble, error) {
+	if p.Kind != Replicas {
+		return nil, fmt.Errorf("batch: the plan is of %s, not of bootstrap replicas", p.Kind)
+	}
+	if err := p.done(dir); err != nil {
+		return nil, err
+	}
+	var out []*unfold.Ensemble
+	for s := range p.Shards {
+		pt, err := p.readReplicas(dir, s)
+		if err != nil {
+			return nil, err
+		}
+		for _, e := range pt.Units {
+			out = append(out, &unfold.Ensemble{N: e.N, Mean: []float64(e.Mean), M2: []float64(e.M2), Full: e.Full})
+		}
+	}
+	return out, nil
+}
