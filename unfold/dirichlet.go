@@ -135,7 +135,7 @@ func gammaRand(rng *rand.Rand, a float64) float64 {
 // problem, and are added to the ensemble in sample order, so the bits do
 // not depend on the number of cores. det are the nominal determined
 // bins; the source is 0 elsewhere.
-func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det []bool) (*Source, error) {
+func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det []bool, ds []*RowMatrix) (*Source, error) {
 	alpha, alpha0, err := DirichletParams(p, rs.SamplingPrior)
 	if err != nil {
 		return nil, err
@@ -173,6 +173,7 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 	nt := len(p.Generated)
 	full := rs.Covariance == Full
 	ens := NewEnsemble(nt, full)
+	dens := derivedEnsembles(ds)
 	colPtr := p.Migrations.ColPtr()
 	for s0 := 0; s0 < samples; s0 += workers {
 		if err := ctx.Err(); err != nil {
@@ -200,9 +201,12 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 				return nil, fmt.Errorf("response sample %d: %w", s0+w, sl.err)
 			}
 			ens.Add(sl.est)
+			addDerived(dens, ds, sl.est)
 		}
 	}
-	return EnsembleSource(SourceSimulation, MethodDirichlet, ens, det), nil
+	src := EnsembleSource(SourceSimulation, MethodDirichlet, ens, det)
+	src.Derived = ensembleDerived(dens)
+	return src, nil
 }
 
 // EnsembleSource returns the source name, obtained with method, of the

@@ -8,8 +8,6 @@ import (
 	"path/filepath"
 	"strings"
 
-	"gonum.org/v1/gonum/mat"
-
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -90,6 +88,9 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 		if out.IterationsChosen, err = a.chooseIterations(ctx, p, s, m, opt); err != nil {
 			return nil, err
 		}
+	}
+	for _, q := range a.Output.Derived {
+		p.Derived = append(p.Derived, q)
 	}
 	out.Problem = p
 	ref, err := a.Reference()
@@ -307,12 +308,8 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	}
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.SliceAxis = a.Output.RootSliceAxis
-	for _, q := range a.Output.Derived {
-		var cov mat.Symmetric
-		if c := out.Result.Covariance; c != nil {
-			cov = c
-		}
-		doc.Derived = append(doc.Derived, result.NewDerived(q, out.Result.Estimate, cov))
+	for i, q := range a.Output.Derived {
+		doc.Derived = append(doc.Derived, result.NewDerivedFromSources(q, out.Result, i))
 	}
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside
