@@ -79,7 +79,9 @@ func TestDerivedDecode(t *testing.T) {
 // density is the estimate of each in-range bin divided by its width and
 // the luminosity, with the uncertainty divided alike; the shape sums to
 // one and is marked singular (method.md §22 Derived quantities). With
-// the variances only, no uncertainty is given and the note says why.
+// the variances only (exact per-bin variances on this small problem),
+// every source propagates its own derived covariance, which equals
+// D Cov Dᵀ of the full mode to rounding (method.md §22).
 func TestRunDerived(t *testing.T) {
 	dir := t.TempDir()
 	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(20000, 5))
@@ -89,6 +91,7 @@ func TestRunDerived(t *testing.T) {
     - {name: xs, region: all, kind: density, divide_by_widths: [x], luminosity: true}
     - {name: shape, region: all, kind: shape}
 `
+	fullUnc := map[string][]float64{}
 	for _, cov := range []string{"full", "diag"} {
 		src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
 			"covariance: full", "covariance: "+cov, "folder: result", "folder: result-"+cov).Replace(analysisTemplate)
@@ -141,7 +144,20 @@ func TestRunDerived(t *testing.T) {
 				}
 			}
 		}
-		if math.Abs(sum-1) > 1e-12 || sh.Singular != (cov == "full") || sh.Kind != "shape" {
+		for _, d := range doc.Derived {
+			if cov == "full" {
+				fullUnc[d.Name] = d.Unc
+				continue
+			}
+			// The exact data source propagated without the full
+			// covariance: D J diag(v) Jᵀ Dᵀ = D Cov Dᵀ (method.md §22).
+			for j, u := range fullUnc[d.Name] {
+				if math.Abs(d.Unc[j]-u) > 1e-10*u {
+					t.Errorf("diag: %s uncertainty %d: %v; full mode %v", d.Name, j, d.Unc[j], u)
+				}
+			}
+		}
+		if math.Abs(sum-1) > 1e-12 || !sh.Singular || sh.Kind != "shape" {
 			t.Errorf("%s: shape sums to %v, singular %v", cov, sum, sh.Singular)
 		}
 		table, err := os.ReadFile(filepath.Join(out.Folder, "derived-xs.csv"))
@@ -150,9 +166,6 @@ func TestRunDerived(t *testing.T) {
 		}
 		lines := strings.Split(strings.TrimSpace(string(table)), "\n")
 		header := "index,x_low,x_high,value,uncertainty"
-		if cov == "diag" {
-			header = "index,x_low,x_high,value"
-		}
 		if lines[0] != header || len(lines) != 6 || !strings.HasPrefix(lines[5], "4,2,3,") {
 			t.Errorf("%s: derived-xs.csv:\n%s", cov, table)
 		}
@@ -163,7 +176,7 @@ func TestRunDerived(t *testing.T) {
 				t.Errorf("full: covariance file %q (%v), note %q", sh.CovarianceFile, err, sh.Note)
 			}
 		case "diag":
-			if err == nil || xs.Unc != nil || !strings.Contains(xs.Note, "needs the full covariance") {
+			if err != nil || xs.Unc == nil || !strings.Contains(xs.Note, "source by source") || !strings.Contains(sh.Note, "singular") {
 				t.Errorf("diag: covariance file present or uncertainty %v, note %q", xs.Unc, xs.Note)
 			}
 		}
