@@ -155,8 +155,20 @@ func jacobianDerived(ds []*RowMatrix, jc *Jacobian, v []float64) []*mat.SymDense
 	return out
 }
 
-// derivedEnsembles returns one full ensemble per Jacobian of ds, for the
-// vectors D x of the samples x (addDerived).
+// DerivedEnsembles returns one full ensemble per Jacobian of ds (for
+// example Result.DerivedJacobians), for the vectors D x of the samples
+// x that AddDerived adds: their sample covariance is D Cov Dᵀ of the
+// samples (method.md §22). It returns nil for no Jacobians.
+func DerivedEnsembles(ds []*RowMatrix) []*Ensemble { return derivedEnsembles(ds) }
+
+// AddDerived adds D x to ens[i] for each Jacobian D = ds[i]; ens comes
+// from DerivedEnsembles(ds).
+func AddDerived(ens []*Ensemble, ds []*RowMatrix, x []float64) { addDerived(ens, ds, x) }
+
+// EnsembleCovariances returns the sample covariance of each ensemble,
+// the Source.Derived of the samples (nil for none).
+func EnsembleCovariances(ens []*Ensemble) []*mat.SymDense { return ensembleDerived(ens) }
+
 func derivedEnsembles(ds []*RowMatrix) []*Ensemble {
 	if ds == nil {
 		return nil

@@ -249,6 +249,13 @@ func EnsembleSource(name, method string, ens *Ensemble, det []bool) *Source {
 // Errors: those of s.Resolve; those of problem, Prepare and the method,
 // prefixed with "k: "; ctx.Err().
 func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
+	return UnfoldEachFunc(ctx, func(_ int, est []float64) { ens.Add(est) }, s, m, k0, k1, problem)
+}
+
+// UnfoldEachFunc is UnfoldEach calling add(k, estimate) for each problem
+// k in the order of k, from the calling goroutine, instead of adding to
+// an ensemble; the estimate is valid during the call only.
+func UnfoldEachFunc(ctx context.Context, add func(k int, est []float64), s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
 	rs, err := s.Resolve()
 	if err != nil {
 		return err
@@ -284,7 +291,7 @@ func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k
 			if errs[w] != nil {
 				return fmt.Errorf("%d: %w", b0+w, errs[w])
 			}
-			ens.Add(est[w])
+			add(b0+w, est[w])
 		}
 	}
 	return nil

@@ -182,3 +182,68 @@ func TestRunDerived(t *testing.T) {
 		}
 	}
 }
+
+// TestRunDerivedReplicas checks that bootstrap replicas propagate their
+// own derived covariance under per-bin variances: the same replicas
+// (the same seed) give D Cov Dᵀ of the full mode, with the exact data
+// source, to rounding (method.md §22 Derived quantities, §25 Bootstrap
+// replicas of the simulated events, §18 on the sources adding).
+func TestRunDerivedReplicas(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(20000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(4000, 6)[1]})
+	const derived = `  luminosity: 2
+  derived:
+    - {name: xs, region: all, kind: density, divide_by_widths: [x], luminosity: true}
+    - {name: shape, region: all, kind: shape}
+`
+	unc := map[string][][]float64{}
+	for _, cov := range []string{"full", "diag"} {
+		src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
+			"covariance: full\n", "covariance: "+cov+"\n  replicas: 20\n  seed: 3\n", "folder: result", "folder: result-"+cov).Replace(analysisTemplate)
+		p := filepath.Join(dir, "analysis-"+cov+".yaml")
+		if err := os.WriteFile(p, []byte(src), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		a, err := Load(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		out, err := a.Run(context.Background(), nil, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if out.Result.Source("simulation") == nil || (cov == "diag") != (out.Result.Covariance == nil) {
+			t.Fatalf("%s: no replicas' source, or the covariance %v", cov, out.Result.Covariance != nil)
+		}
+		var doc struct {
+			Derived []struct {
+				Name, Note string
+				Unc        []float64 `json:"uncertainty"`
+			} `json:"derived"`
+		}
+		raw, err := os.ReadFile(filepath.Join(out.Folder, "result.json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(raw, &doc); err != nil {
+			t.Fatal(err)
+		}
+		for i, d := range doc.Derived {
+			if d.Unc == nil {
+				t.Fatalf("%s: %s has no uncertainty: %s", cov, d.Name, d.Note)
+			}
+			unc[cov] = append(unc[cov], d.Unc)
+			if cov == "diag" && !strings.Contains(d.Note, "simulation: from the same 20") {
+				t.Errorf("diag: note %q", d.Note)
+			}
+			if cov == "diag" {
+				for j, u := range unc["full"][i] {
+					if math.Abs(d.Unc[j]-u) > 1e-9*u {
+						t.Errorf("diag: %s uncertainty %d: %v; full mode %v", d.Name, j, d.Unc[j], u)
+					}
+				}
+			}
+		}
+	}
+}

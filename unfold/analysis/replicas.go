@@ -24,7 +24,10 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 
 // Replicas computes the Poisson bootstrap replicas r0 ≤ r < r1 of the
 // simulated events (method.md §25) and returns the ensemble of their
-// estimates, full when s asks for the full covariance: each replica's
+// estimates, full when s asks for the full covariance, and the ensembles
+// of D μ_r for each derived Jacobian D of ds (unfold.DerivedEnsembles;
+// nil for none), whose covariances are the replicas' derived
+// covariances (method.md §22): each replica's
 // response (migrations on the pattern of p, generated counts and, when
 // the fakes are background, the fakes in place of the nominal ones) is
 // unfolded with method m and the nominal data of p (with negative cells
@@ -41,21 +44,22 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 // whose response cannot be unfolded with the data (an *unfold.InputError
 // wrapped with the replica's number: too few simulated events reach a
 // reco bin), *unfold.SettingsError, ctx.Err().
-func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, opt *Options) (*unfold.Ensemble, error) {
+func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, ds []*unfold.RowMatrix, opt *Options) (*unfold.Ensemble, []*unfold.Ensemble, error) {
 	rs, err := s.Resolve()
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	if len(a.Simulation) == 0 {
-		return nil, &Error{File: a.File, Line: a.responseLine, Field: "uncertainty.replicas", Msg: "needs the simulated events: give the simulation"}
+		return nil, nil, &Error{File: a.File, Line: a.responseLine, Field: "uncertainty.replicas", Msg: "needs the simulated events: give the simulation"}
 	}
 	nt := len(p.Generated)
 	ens := unfold.NewEnsemble(nt, rs.Covariance == unfold.Full)
+	dens := unfold.DerivedEnsembles(ds)
 	sims := make([]*response.Simulation, len(a.Simulation))
 	for i := range a.Simulation {
 		sim, src, err := a.simulation(&a.Simulation[i])
 		if err != nil {
-			return nil, err
+			return nil, nil, err
 		}
 		defer src.Close()
 		sims[i] = sim
@@ -74,7 +78,7 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 		b1 := min(r1, b0+block)
 		rp, err := response.FillReplicas(ctx, a.Truth, a.Reco, sims, p.Migrations, rs.Seed, b0, b1, a.fillOptions(opt, fmt.Sprintf("bootstrap replicas %d to %d", b0, b1-1)))
 		if err != nil {
-			return nil, a.eventsErr("simulation", a.Simulation[0].Line, err)
+			return nil, nil, a.eventsErr("simulation", a.Simulation[0].Line, err)
 		}
 		problem := func(r int) (*unfold.Problem, error) {
 			q := *p
@@ -99,11 +103,15 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 			}
 			return &q, nil
 		}
-		if err := unfold.UnfoldEach(ctx, ens, &rs, m, b0, b1, problem); err != nil {
-			return nil, fmt.Errorf("bootstrap replica %w", err)
+		add := func(_ int, est []float64) {
+			ens.Add(est)
+			unfold.AddDerived(dens, ds, est)
+		}
+		if err := unfold.UnfoldEachFunc(ctx, add, &rs, m, b0, b1, problem); err != nil {
+			return nil, nil, fmt.Errorf("bootstrap replica %w", err)
 		}
 	}
-	return ens, nil
+	return ens, dens, nil
 }
 
 // addReplicas adds the simulation source of s.Replicas bootstrap
@@ -111,7 +119,8 @@ func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unf
 // out.Notes.
 func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Problem, s *unfold.Settings, m unfold.Method, opt *Options) error {
 	n := s.Replicas
-	ens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, opt)
+	res := out.Result
+	ens, dens, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, res.DerivedJacobians, opt)
 	var ue *unfold.InputError
 	if errors.As(err, &ue) {
 		return &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
@@ -120,8 +129,9 @@ func (a *Analysis) addReplicas(ctx context.Context, out *Outcome, p *unfold.Prob
 	if err != nil {
 		return err
 	}
-	res := out.Result
-	res.AddSource(*unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined))
+	src := unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined)
+	src.Derived = unfold.EnsembleCovariances(dens)
+	res.AddSource(*src)
 	res.Streams = append(res.Streams, unfold.Stream{Unit: "replica", Derivation: response.ReplicaDerivation})
 	limit := s.MemoryLimit
 	if limit <= 0 {
