@@ -242,6 +242,7 @@ type workspace struct {
 	x      []float64
 	update func(j int, g float64) float64
 	rows   func(r, lo, hi int)
+	cols   func(lo, hi int) // SweepHooks: after the updates of a column block
 	// SweepBlock: the number of interleaved vectors, the update, and
 	// per block the gathered sums and the update's values (2·width each)
 	width       int
@@ -271,7 +272,7 @@ func (p *partition) get(m *Matrix) *workspace {
 }
 
 func (p *partition) put(ws *workspace) {
-	ws.m, ws.dst, ws.x, ws.update, ws.rows, ws.updateBlock = nil, nil, nil, nil, nil, nil
+	ws.m, ws.dst, ws.x, ws.update, ws.rows, ws.updateBlock, ws.cols = nil, nil, nil, nil, nil, nil, nil
 	ws.width = 0
 	p.mu.Lock()
 	p.free = append(p.free, ws)
@@ -321,13 +322,13 @@ func (j job) run() {
 // kernels with several blocks) phase 2 over the reduction tasks. Both
 // phases compute exactly the same operations in the same order whether
 // one goroutine or many run them.
-func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) float64, rows func(r, lo, hi int)) {
+func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) float64, rows func(r, lo, hi int), cols func(lo, hi int)) {
 	p := m.part
 	nb := p.blocks()
 	scatter := kind == kFold || kind == kSweep || kind == kRowSums
 	if nb == 1 {
 		// One block: the destination is the buffer.
-		ws := workspace{p: p, m: m, kind: kind, dst: dst, x: x, update: update}
+		ws := workspace{p: p, m: m, kind: kind, dst: dst, x: x, update: update, cols: cols}
 		ws.block(0)
 		if rows != nil {
 			for r := 0; r+1 < len(p.rowBounds); r++ {
@@ -337,7 +338,7 @@ func (m *Matrix) exec(kind int, dst, x []float64, update func(int, float64) floa
 		return
 	}
 	ws := p.get(m)
-	ws.kind, ws.dst, ws.x, ws.update, ws.rows = kind, dst, x, update, rows
+	ws.kind, ws.dst, ws.x, ws.update, ws.rows, ws.cols = kind, dst, x, update, rows, cols
 	m.execOn(ws, scatter)
 	p.put(ws)
 }
@@ -487,6 +488,9 @@ func (ws *workspace) block(b int) {
 			for k, i := range ri {
 				buf[i-lo] += v[k] * xj
 			}
+		}
+		if ws.cols != nil {
+			ws.cols(c0, c1)
 		}
 	case kSweepBlock:
 		y, update := ws.x, ws.updateBlock
@@ -679,7 +683,7 @@ func (m *Matrix) Fold(dst, x []float64) {
 	if len(dst) != m.rows || len(x) != m.cols {
 		panic("sparse: Fold dimension mismatch")
 	}
-	m.exec(kFold, dst, x, nil, nil)
+	m.exec(kFold, dst, x, nil, nil, nil)
 }
 
 // BackProject computes dst = Aᵀ y, overwriting dst. len(dst) must be the
@@ -689,7 +693,7 @@ func (m *Matrix) BackProject(dst, y []float64) {
 	if len(dst) != m.cols || len(y) != m.rows {
 		panic("sparse: BackProject dimension mismatch")
 	}
-	m.exec(kBackProject, dst, y, nil, nil)
+	m.exec(kBackProject, dst, y, nil, nil, nil)
 }
 
 // Sweep makes one fused pass over the matrix. For every column j it
@@ -708,7 +712,7 @@ func (m *Matrix) Sweep(next, y []float64, update func(j int, g float64) float64)
 	if len(next) != m.rows || len(y) != m.rows {
 		panic("sparse: Sweep dimension mismatch")
 	}
-	m.exec(kSweep, next, y, update, nil)
+	m.exec(kSweep, next, y, update, nil, nil)
 }
 
 // SweepBlock is Sweep on k vectors at once, read from y and written to
@@ -761,7 +765,31 @@ func (m *Matrix) SweepRows(next, y []float64, update func(j int, g float64) floa
 	if len(next) != m.rows || len(y) != m.rows {
 		panic("sparse: SweepRows dimension mismatch")
 	}
-	m.exec(kSweep, next, y, update, rows)
+	m.exec(kSweep, next, y, update, rows, nil)
+}
+
+// ColRanges returns the fixed partition of the columns into the blocks
+// of the kernels: range r covers the columns b[r]..b[r+1]-1 of the
+// returned b (in increasing order, covering all columns). It depends
+// only on the matrix structure. The slice must not be modified.
+func (m *Matrix) ColRanges() []int { return m.part.bounds }
+
+// SweepHooks is SweepRows with a second hook, on finished columns: for
+// every range of ColRanges it calls cols(lo, hi) exactly once, right
+// after update has returned for the columns lo..hi-1, from the goroutine
+// that called update for them, while their per-column state is usually
+// still in cache. It lets the caller fold its per-column work (for
+// example a distance between the old and the new x) into the same pass.
+//
+// cols may be called concurrently for different ranges, and
+// concurrently with update and rows; it may touch only state belonging
+// to the columns [lo, hi). rows may be nil. The other rules of
+// SweepRows apply.
+func (m *Matrix) SweepHooks(next, y []float64, update func(j int, g float64) float64, rows func(r, lo, hi int), cols func(lo, hi int)) {
+	if len(next) != m.rows || len(y) != m.rows {
+		panic("sparse: SweepHooks dimension mismatch")
+	}
+	m.exec(kSweep, next, y, update, rows, cols)
 }
 
 // ColSums writes the sum of each column into dst (length cols),
@@ -770,7 +798,7 @@ func (m *Matrix) ColSums(dst []float64) {
 	if len(dst) != m.cols {
 		panic("sparse: ColSums dimension mismatch")
 	}
-	m.exec(kColSums, dst, nil, nil, nil)
+	m.exec(kColSums, dst, nil, nil, nil, nil)
 }
 
 // RowSums writes the sum of each row into dst (length rows), overwriting
@@ -779,7 +807,7 @@ func (m *Matrix) RowSums(dst []float64) {
 	if len(dst) != m.rows {
 		panic("sparse: RowSums dimension mismatch")
 	}
-	m.exec(kRowSums, dst, nil, nil, nil)
+	m.exec(kRowSums, dst, nil, nil, nil, nil)
 }
 
 // ScaleCols multiplies column j by f[j] in place, and its sums of
@@ -797,5 +825,5 @@ func (m *Matrix) ScaleCols(f []float64) {
 			panic("sparse: ScaleCols with a non-finite factor")
 		}
 	}
-	m.exec(kScale, nil, f, nil, nil)
+	m.exec(kScale, nil, f, nil, nil, nil)
 }

@@ -4,6 +4,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -249,6 +250,42 @@ func TestKernelsMatchDense(t *testing.T) {
 			for r := 0; r+1 < len(rb); r++ {
 				if n := hits[r].Load(); n != 1 {
 					t.Fatalf("SweepRows handed range %d over %d times", r, n)
+				}
+			}
+
+			// SweepHooks: each fixed column range is handed over once, by
+			// then holding every update of its columns, and next gets the
+			// bits of Sweep.
+			cb := m.ColRanges()
+			if cb[0] != 0 || cb[len(cb)-1] != cols {
+				t.Fatalf("ColRanges %v do not cover %d columns", cb, cols)
+			}
+			nextH := nanVec(rows)
+			xh := nanVec(cols)
+			chits := make([]atomic.Int32, len(cb))
+			m.SweepHooks(nextH, y, func(j int, g float64) float64 { xh[j] = 0.5*g + x[j]; return xh[j] }, nil,
+				func(lo, hi int) {
+					r, ok := slices.BinarySearch(cb, lo)
+					if !ok || r+1 >= len(cb) || cb[r+1] != hi {
+						t.Errorf("cols(%d, %d) is no range of ColRanges %v", lo, hi, cb)
+						return
+					}
+					chits[r].Add(1)
+					for j := lo; j < hi; j++ {
+						if math.Float64bits(xh[j]) != math.Float64bits(xs[j]) {
+							t.Errorf("cols(%d, %d): column %d not updated when handed over", lo, hi, j)
+							return
+						}
+					}
+				})
+			for r := 0; r+1 < len(cb); r++ {
+				if n := chits[r].Load(); n != 1 && cb[r] < cb[r+1] {
+					t.Fatalf("SweepHooks handed column range %d over %d times", r, n)
+				}
+			}
+			for i := range next {
+				if math.Float64bits(nextH[i]) != math.Float64bits(next[i]) {
+					t.Fatalf("SweepHooks: next[%d] = %v, Sweep gives %v", i, nextH[i], next[i])
 				}
 			}
 

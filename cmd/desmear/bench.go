@@ -82,7 +82,8 @@ func printBench(w io.Writer, r *bench.Results) error {
 	if r.IterationEstimate == "upper-bound" {
 		bound = " (an upper bound: the noise of this run swamped the difference)"
 	}
-	fmt.Fprintf(tw, "marginal iteration\t%.3f ms\t%.2fx the bandwidth floor, %.2fx the sweep%s\n", r.IterationMS, r.IterationFloorRatio, r.IterationSweepRatio, bound)
+	fmt.Fprintf(tw, "marginal iteration\t%.3f ms\t%.2fx the bandwidth floor, %.2fx the sweep%s; ensembles' form, no log-likelihood\n", r.IterationMS, r.IterationFloorRatio, r.IterationSweepRatio, bound)
+	fmt.Fprintf(tw, "marginal iteration with the log-likelihood\t%.3f ms\t%.2fx the sweep; as a single unfolding records it\n", r.IterationLogLikMS, r.IterationLogLikSweepRatio)
 	fmt.Fprintf(tw, "one more unfolding of a prepared problem\t%.3f ms\t%d iterations; fixed cost %.3f ms\n", r.PreparedMS, r.Iterations, r.UnfoldingFixedMS)
 	fmt.Fprintf(tw, "whole unfolding\t%.3f ms\t%d iterations\n", r.UnfoldingMS, r.Iterations)
 	fmt.Fprintf(tw, "per-bin variances from probes\t%.3f s\t%d probes, whole unfolding\n", r.ProbesS, r.Probes)

@@ -26,7 +26,7 @@ func TestBenchCommandJSON(t *testing.T) {
 		t.Errorf("size = %v, want small", r["size"])
 	}
 	for _, k := range []string{"triad_gbs", "sweep_ms", "iteration_ms", "iteration_floor_ratio", "toys_per_s",
-		"fill_entries_per_s", "parquet_events_per_s", "probes_s", "peak_rss_bytes", "unfolding_ms", "sweep_floor_ratio"} {
+		"fill_entries_per_s", "parquet_events_per_s", "probes_s", "peak_rss_bytes", "unfolding_ms", "sweep_floor_ratio", "iteration_loglik_ms"} {
 		if v, ok := r[k].(float64); !ok || !(v > 0) {
 			t.Errorf("%s = %v, want a positive number", k, r[k])
 		}

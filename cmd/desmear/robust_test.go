@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"crypto/sha256"
+	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
@@ -113,7 +114,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 			}
 			os.WriteFile(p, b, 0o644)
 		}
-		code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+		code, stdout, stderr := runBounded(t, c.name, "unfold", path)
 		checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
 		os.WriteFile(p, files[c.file], 0o644)
 	}
@@ -126,7 +127,7 @@ func TestSavedResponseIntegrity(t *testing.T) {
 	sim := filepath.Join(dir, "sim.csv")
 	b, _ := os.ReadFile(sim)
 	os.WriteFile(sim, append(b, b[strings.IndexByte(string(b), '\n')+1:]...), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "another simulation", "unfold", path)
 	checkRefusal(t, "another simulation", code, stdout, stderr, exitInput, "analysis.yaml:15: simulation[0].file: the saved response "+saved+" was not built from "+sim, filepath.Join(dir, "result"))
 	if !strings.Contains(stderr, "desmear response") {
 		t.Errorf("another simulation: no advice to rebuild: %q", stderr)
@@ -162,7 +163,7 @@ func TestSettingsTakenAsWritten(t *testing.T) {
 		{"unfold", bad("folder: result\n", "folder: result\n---\ntitle: another\n"), "set7.yaml:31: a second YAML document (---) is not allowed"},
 		{"response", bad("file: sim.csv", "file: huge.csv"), `huge.csv:2:` + strconv.Itoa(len(strings.Join(fields[:3], ","))+2) + `: column "pt_r": "1e400" is too large for a 64-bit float`},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), c.cmd, c.file)
+		code, stdout, stderr := runBounded(t, c.file, c.cmd, c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
 	}
 	if _, err := os.Stat(filepath.Join(dir, "response")); err == nil {
@@ -185,7 +186,7 @@ func TestMessagesSayWhatToFix(t *testing.T) {
 		{bad("pass_r && pt_r", "pass_r & pt_r"), "for a logical and use &&"},
 		{bad("weight: w", "weight: w ** 2"), "operator ** is not supported; for powers use pow(x, y)"},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), "response", c.file)
+		code, stdout, stderr := runBounded(t, c.file, "response", c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "response"))
 	}
 }
@@ -204,7 +205,7 @@ func TestDemoRefusesFolderFirst(t *testing.T) {
 		{[]string{"demo", "--out", out}, "demo: " + out + " already exists (replace it with --force)"},
 		{[]string{"demo", "--out", out, "--force"}, "so it is left alone"},
 	} {
-		code, stdout, stderr := runCLI(t, context.Background(), c.args...)
+		code, stdout, stderr := runBounded(t, strings.Join(c.args, " "), c.args...)
 		checkRefusal(t, strings.Join(c.args, " "), code, stdout, stderr, exitUsage, c.want, "")
 		if b, err := os.ReadFile(notes); err != nil || string(b) != "keep" {
 			t.Errorf("%v: the existing folder changed", c.args)
@@ -225,7 +226,7 @@ func TestResponseWithoutData(t *testing.T) {
 	if code, _, stderr := runCLI(t, context.Background(), "response", path, "--out", filepath.Join(dir, "resp")); code != 0 {
 		t.Fatalf("desmear response without data: exit %d, %s", code, stderr)
 	}
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "unfold without data", "unfold", path)
 	checkRefusal(t, "unfold without data", code, stdout, stderr, exitInput, path+": data: missing: the unfolding needs the data", filepath.Join(dir, "result"))
 }
 
@@ -235,7 +236,7 @@ func TestNonFiniteResultIsNumerical(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	src, _ := os.ReadFile(path)
 	os.WriteFile(path, []byte(strings.Replace(string(src), "folder: result", "folder: result\n  luminosity: 1e-320", 1)), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, stdout, stderr := runBounded(t, "tiny luminosity", "unfold", path)
 	checkRefusal(t, "tiny luminosity", code, stdout, stderr, exitNumerical, "unfold: numerical failure: the density of truth bin 0 (", filepath.Join(filepath.Dir(path), "result"))
 }
 
@@ -246,7 +247,7 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 	src, _ := os.ReadFile(path)
 	bad := strings.Replace(strings.Replace(string(src), "iterations: 3", "iterations: 2.5", 1), "covariance: full", "covariance: full\n  probes: 1.5", 1)
 	os.WriteFile(path, []byte(bad), 0o644)
-	code, _, stderr := runCLI(t, context.Background(), "unfold", path)
+	code, _, stderr := runBounded(t, "two problems", "unfold", path)
 	lines := strings.Split(strings.TrimSuffix(stderr, "\n"), "\n")
 	if code != exitInput || len(lines) != 2 {
 		t.Fatalf("exit %d, stderr %q: want exit 3 and two lines", code, stderr)
@@ -259,9 +260,8 @@ func TestEveryErrorLinePrefixed(t *testing.T) {
 }
 
 // Sizes a file can ask for are bounded and checked before the memory is
-// taken: each refusal names the key (or the file) and the limit, and the
-// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
-// upper bound of the peak heap).
+// taken: each refusal names the key (or the file) and the limit, within
+// the memory bound of runBounded.
 func TestBoundedMemory(t *testing.T) {
 	path := writeCLIAnalysis(t)
 	dir := filepath.Dir(path)
@@ -292,14 +292,8 @@ func TestBoundedMemory(t *testing.T) {
 		{bad("reco: reco.yaml", "reco: alias.yaml"), "alias.yaml:5:16: regions[0].axes[1].edges_by_bin[103]: more than 1048576 edges in the scheme (a list reused through a YAML alias counts each time)"},
 		{"/dev/zero", "/dev/zero: larger than 16 MiB, the limit for an analysis file"},
 	} {
-		var before, after runtime.MemStats
-		runtime.ReadMemStats(&before)
-		code, stdout, stderr := runCLI(t, context.Background(), "unfold", c.file)
-		runtime.ReadMemStats(&after)
+		code, stdout, stderr := runBounded(t, c.file, "unfold", c.file)
 		checkRefusal(t, filepath.Base(c.file), code, stdout, stderr, exitInput, c.want, filepath.Join(dir, "result"))
-		if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
-			t.Errorf("%s: %d MB allocated", c.file, a>>20)
-		}
 	}
 }
 
@@ -327,7 +321,7 @@ func TestUnreadableColumnNamed(t *testing.T) {
 	src, _ := os.ReadFile(path)
 	bad := strings.Replace(strings.Replace(string(src), "file: sim.csv", "file: nested.parquet", 1), "weight: w", "weight: list", 1)
 	os.WriteFile(path, []byte(bad), 0o644)
-	code, stdout, stderr := runCLI(t, context.Background(), "response", path)
+	code, stdout, stderr := runBounded(t, "list column", "response", path)
 	checkRefusal(t, "list column", code, stdout, stderr, exitInput, `analysis.yaml:15: simulation[0].weight: in "list": `+filepath.Join(dir, "nested.parquet")+`: column "list" cannot be read: it is a repeated (list) column`, filepath.Join(dir, "response"))
 }
 
@@ -431,7 +425,7 @@ func TestUnexplainedThroughCommand(t *testing.T) {
 		return append([]string{"unfold", "--response", resp, "--generated", gen, "--data", n, "--iterations", "3", "--out", filepath.Join(dir, out)}, more...)
 	}
 	ctx := context.Background()
-	code, stdout, stderr := runCLI(t, ctx, args(data, "refused")...)
+	code, stdout, stderr := runBounded(t, "unexplained data", args(data, "refused")...)
 	// 7 of the 34 counts, 20.6% (by hand).
 	checkRefusal(t, "unexplained data", code, stdout, stderr, exitInput, "2 reco bins hold data that no truth bin reaches and no background explains, 7 in all (20.6% of the data): reco bin 3: 5, reco bin 4: 2", filepath.Join(dir, "refused"))
 	if !strings.Contains(stderr, "--unexplained drop") || !strings.Contains(stderr, "n.csv:5:") {
@@ -494,7 +488,7 @@ func TestNegativeCellsThroughAnalysis(t *testing.T) {
 	v := variants(t, path, "neg")
 	neg := v("weight: w", "weight: w * (1 - 3 * (abs(y_t) < 1 && abs(y_r) > 1.5))")
 	ctx := context.Background()
-	code, stdout, stderr := runCLI(t, ctx, "unfold", neg)
+	code, stdout, stderr := runBounded(t, "negative cells", "unfold", neg)
 	checkRefusal(t, "negative cells", code, stdout, stderr, exitInput, "negative migration cells", filepath.Join(dir, "result"))
 	if !strings.Contains(stderr, "unfolding.negative_cells: clip") {
 		t.Errorf("the refusal does not name the key: %q", stderr)
@@ -553,5 +547,138 @@ func TestDemoFullDisk(t *testing.T) {
 	checkRefusal(t, "demo on a full disk", code, stdout, stderr, exitIO, "no space left on device", out)
 	if entries, _ := os.ReadDir(dir); len(entries) != 0 {
 		t.Errorf("left on the full disk: %v", entries)
+	}
+}
+
+// runBounded runs the command in-process like runCLI and checks that the
+// run allocates less than 200 MB in all (runtime.MemStats.TotalAlloc, an
+// upper bound of its peak heap): the bound the hostile inputs of the
+// tables below must stay within.
+func runBounded(t *testing.T, name string, args ...string) (int, string, string) {
+	t.Helper()
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	code, stdout, stderr := runCLI(t, context.Background(), args...)
+	runtime.ReadMemStats(&after)
+	if a := after.TotalAlloc - before.TotalAlloc; a > 200<<20 {
+		t.Errorf("%s: %d MB allocated", name, a>>20)
+	}
+	return code, stdout, stderr
+}
+
+// Damaged event files through the command (the demo's ROOT simulation,
+// zlib-compressed, and its Parquet data): 64 bytes overwritten in the
+// middle, or a length in the ROOT header made larger than the file, are
+// refused in one line naming the file (exit 3), within the memory bound,
+// with no output left behind; with --force over an earlier output, that
+// output is left byte-identical (common practice: zlib streams carry an
+// Adler-32 sum, Parquet pages a CRC-32; a ROOT header's records lie
+// inside the file).
+func TestDamagedEventFiles(t *testing.T) {
+	base := t.TempDir()
+	demo := filepath.Join(base, "demo")
+	if code, _, stderr := runCLI(t, context.Background(), "demo", "--out", demo, "--events", "20000", "--no-report", "-q"); code != 0 {
+		t.Fatalf("demo: exit %d, %s", code, stderr)
+	}
+	analysisFile := filepath.Join(demo, "analysis.yaml")
+	resp, result := filepath.Join(base, "resp"), filepath.Join(demo, "result")
+	if code, _, stderr := runCLI(t, context.Background(), "response", analysisFile, "--out", resp, "-q"); code != 0 {
+		t.Fatalf("response: exit %d, %s", code, stderr)
+	}
+	middle := func(b []byte) {
+		for i := len(b) / 2; i < len(b)/2+64; i++ {
+			b[i] ^= 0x5a
+		}
+	}
+	freeLength := func(b []byte) { binary.BigEndian.PutUint32(b[20:], 0x7ffffff0) }
+	for _, c := range []struct {
+		name, file string
+		damage     func([]byte)
+		cmd        []string
+		out        string
+		force      bool
+		want       string
+	}{
+		{"64 bytes of the ROOT simulation", "simulation.root", middle, []string{"response", analysisFile, "--out", filepath.Join(base, "new")}, filepath.Join(base, "new"), false, "damaged"},
+		{"64 bytes of the ROOT simulation, --force", "simulation.root", middle, []string{"response", analysisFile, "--out", resp, "--force"}, resp, true, "damaged"},
+		{"the free-segment length of the ROOT simulation", "simulation.root", freeLength, []string{"response", analysisFile, "--out", filepath.Join(base, "new")}, filepath.Join(base, "new"), false, "damaged ROOT file: the free-segment record of 2147483632 bytes"},
+		{"the free-segment length of the ROOT simulation, --force", "simulation.root", freeLength, []string{"unfold", analysisFile, "--no-report", "--force"}, result, true, "damaged ROOT file: the free-segment record of 2147483632 bytes"},
+		{"64 bytes of the Parquet data, --force", "data.parquet", middle, []string{"unfold", analysisFile, "--no-report", "--force"}, result, true, "data.parquet"},
+	} {
+		p := filepath.Join(demo, c.file)
+		orig, err := os.ReadFile(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var before map[string]string
+		if c.force {
+			before = treeSums(t, c.out)
+		}
+		d := append([]byte(nil), orig...)
+		c.damage(d)
+		os.WriteFile(p, d, 0o644)
+		code, stdout, stderr := runBounded(t, c.name, c.cmd...)
+		if c.force {
+			checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, "")
+			if after := treeSums(t, c.out); !stdmaps.Equal(before, after) {
+				t.Errorf("%s: the earlier output %s changed", c.name, c.out)
+			}
+		} else {
+			checkRefusal(t, c.name, code, stdout, stderr, exitInput, c.want, c.out)
+		}
+		if !strings.Contains(stderr, p) {
+			t.Errorf("%s: the message does not name %s: %q", c.name, p, stderr)
+		}
+		os.WriteFile(p, orig, 0o644)
+	}
+	if entries, _ := os.ReadDir(base); len(entries) != 2 {
+		t.Errorf("beside the demo and the response: %v", entries)
+	}
+}
+
+// Plain tables: a negative response cell is refused by default, naming
+// the remedy; clipped, the result equals the same tables with that cell
+// removed by hand (the clip sets it to zero: common practice for
+// negative-weight cells), and the weight removed is the cell's value.
+func TestNegativeCellsThroughTables(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, content string) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	resp := write("r.csv", "reco,truth,value\n0,0,10\n1,0,4\n2,0,-1.5\n0,1,2\n1,1,8\n2,1,3\n")
+	respHand := write("rh.csv", "reco,truth,value\n0,0,10\n1,0,4\n0,1,2\n1,1,8\n2,1,3\n")
+	gen := write("g.csv", "truth,value\n0,20\n1,20\n")
+	data := write("n.csv", "reco,value\n0,12\n1,12\n2,3\n")
+	args := func(a, out string, more ...string) []string {
+		return append([]string{"unfold", "--response", a, "--generated", gen, "--data", data, "--iterations", "3", "--out", filepath.Join(dir, out)}, more...)
+	}
+	ctx := context.Background()
+	code, stdout, stderr := runBounded(t, "negative cell in a table", args(resp, "refused")...)
+	checkRefusal(t, "negative cell in a table", code, stdout, stderr, exitInput, "negative migration cells", filepath.Join(dir, "refused"))
+	if !strings.Contains(stderr, "--negative-cells clip") {
+		t.Errorf("the refusal does not name the remedy: %q", stderr)
+	}
+	code, _, stderr = runCLI(t, ctx, args(resp, "clipped", "--negative-cells", "clip")...)
+	if code != 0 {
+		t.Fatalf("with the remedy: exit %d, %s", code, stderr)
+	}
+	if !strings.Contains(stderr, "clipped 1 negative migration cells to zero") {
+		t.Errorf("stderr %q does not report the clipped cell", stderr)
+	}
+	if code, _, stderr := runCLI(t, ctx, args(respHand, "by-hand")...); code != 0 {
+		t.Fatalf("the table edited by hand: exit %d, %s", code, stderr)
+	}
+	var got, want remediedResult
+	readJSON(t, filepath.Join(dir, "clipped", "result.json"), &got)
+	readJSON(t, filepath.Join(dir, "by-hand", "result.json"), &want)
+	if !slices.Equal(got.Estimate, want.Estimate) || !slices.Equal(got.Uncertainty, want.Uncertainty) {
+		t.Errorf("clipped estimate %v ± %v, by hand %v ± %v", got.Estimate, got.Uncertainty, want.Estimate, want.Uncertainty)
+	}
+	if got.Remedies == nil || len(got.Remedies.ClippedCells) != 1 || got.Remedies.ClippedWeight != -1.5 {
+		t.Errorf("recorded remedies %+v, want one cell of -1.5", got.Remedies)
 	}
 }

@@ -106,7 +106,14 @@ type Results struct {
 	SweepFloorRatio     float64 `json:"sweep_floor_ratio"`
 	IterationMS         float64 `json:"iteration_ms"`
 	IterationFloorRatio float64 `json:"iteration_floor_ratio"`
+	// IterationSweepRatio and IterationLogLikSweepRatio are medians over
+	// the rounds of each round's ratio.
 	IterationSweepRatio float64 `json:"iteration_sweep_ratio"`
+	// IterationLogLikMS is the marginal iteration that also records the
+	// log-likelihood of every step (one logarithm per reco bin), as a
+	// single unfolding does; IterationMS is the ensembles' form without it.
+	IterationLogLikMS         float64 `json:"iteration_loglik_ms"`
+	IterationLogLikSweepRatio float64 `json:"iteration_loglik_sweep_ratio"`
 	// IterationEstimate is "difference" (the median over rounds of the
 	// difference between 2K and K iterations, over K) or "upper-bound"
 	// (the noise swamped the difference: 2K iterations' time over 2K).
@@ -228,6 +235,17 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	if err != nil {
 		return err
 	}
+	// the ensembles' form (toys, replicas, refits): no log-likelihood
+	u1.RecordLogLikelihood(false)
+	u2.RecordLogLikelihood(false)
+	l1, err := bayes.NewUnfolder(pr, &bayes.Settings{Iterations: c.Iterations})
+	if err != nil {
+		return err
+	}
+	l2, err := bayes.NewUnfolder(pr, &bayes.Settings{Iterations: 2 * c.Iterations})
+	if err != nil {
+		return err
+	}
 	dst := make([]float64, nt)
 	x, y, next := make([]float64, nt), make([]float64, nr), make([]float64, nr)
 	for i := range y {
@@ -236,7 +254,7 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	inv := pr.InvEfficiency()
 	upd := func(j int, g float64) float64 { v := x[j] * g * inv[j]; x[j] = v; return v }
 	tr := sparsetest.NewTriad(max(2*a.NNZ(), 1<<22)) // each array holds as many bytes as the matrix (16 B per non-zero)
-	var ts, t1, t2, tw []time.Duration
+	var ts, t1, t2, tl1, tl2, tw []time.Duration
 	var bw []float64
 	for range c.Rounds {
 		if err := ctx.Err(); err != nil {
@@ -247,8 +265,10 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 			x[j] = 1
 		}
 		t0 := time.Now()
-		a.Sweep(next, y, upd)
-		ts = append(ts, time.Since(t0))
+		for range c.Iterations { // as many sweeps as an unfolding's iterations
+			a.Sweep(next, y, upd)
+		}
+		ts = append(ts, time.Since(t0)/time.Duration(c.Iterations))
 		t0 = time.Now()
 		if _, err := u1.Unfold(ctx, dst, nil); err != nil {
 			return err
@@ -260,6 +280,16 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 		}
 		t2 = append(t2, time.Since(t0))
 		t0 = time.Now()
+		if _, err := l1.Unfold(ctx, dst, nil); err != nil {
+			return err
+		}
+		tl1 = append(tl1, time.Since(t0))
+		t0 = time.Now()
+		if _, err := l2.Unfold(ctx, dst, nil); err != nil {
+			return err
+		}
+		tl2 = append(tl2, time.Since(t0))
+		t0 = time.Now()
 		if _, err := unfold.Unfold(ctx, p, nil, &bayes.Settings{Iterations: c.Iterations}); err != nil {
 			return err
 		}
@@ -268,20 +298,43 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	slices.Sort(bw)
 	r.TriadGBs = bw[len(bw)/2] / 1e9
 	k := float64(c.Iterations)
-	sweep, m1, m2 := median(ts), median(t1), median(t2)
+	sweep, m1 := median(ts), median(t1)
 	// The marginal iteration from the differences of the same round (a
 	// loaded host moves both); when the noise swamps it (no positive
 	// median), the whole 2K-iteration unfolding over 2K, an upper bound.
-	diffs := make([]time.Duration, len(t1))
-	for i := range t1 {
-		diffs[i] = t2[i] - t1[i]
+	marginal := func(t1, t2 []time.Duration) (time.Duration, bool) {
+		diffs := make([]time.Duration, len(t1))
+		for i := range t1 {
+			diffs[i] = t2[i] - t1[i]
+		}
+		if d := time.Duration(float64(median(diffs)) / k); d > 0 {
+			return d, true
+		}
+		return time.Duration(float64(median(t2)) / (2 * k)), false
 	}
-	iter := time.Duration(float64(median(diffs)) / k)
+	iter, ok := marginal(t1, t2)
 	r.IterationEstimate = "difference"
-	if iter <= 0 {
-		iter = time.Duration(float64(m2) / (2 * k))
+	if !ok {
 		r.IterationEstimate = "upper-bound"
 	}
+	iterLL, _ := marginal(tl1, tl2)
+	r.IterationLogLikMS = ms(iterLL)
+	// the ratios to the sweep: medians of the ratios inside each round
+	// (a loaded host moves whole rounds), the medians' ratio as fallback
+	perRound := func(t1, t2 []time.Duration, fallback time.Duration) float64 {
+		q := make([]float64, 0, len(t1))
+		for i := range t1 {
+			if d := t2[i] - t1[i]; d > 0 {
+				q = append(q, float64(d)/k/float64(ts[i]))
+			}
+		}
+		if len(q) < (len(t1)+1)/2 {
+			return float64(fallback) / float64(sweep)
+		}
+		slices.Sort(q)
+		return q[len(q)/2]
+	}
+	r.IterationLogLikSweepRatio = perRound(tl1, tl2, iterLL)
 	matrix := float64(16*a.NNZ() + 8*(nt+1))
 	sweepBytes := matrix + 16*float64(nr) + 24*float64(nt)
 	iterBytes := sweepBytes + 24*float64(nr) + 24*float64(nt)
@@ -290,7 +343,7 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 	r.SweepFloorRatio = sweep.Seconds() / floor(sweepBytes)
 	r.IterationMS = ms(iter)
 	r.IterationFloorRatio = iter.Seconds() / floor(iterBytes)
-	r.IterationSweepRatio = float64(iter) / float64(sweep)
+	r.IterationSweepRatio = perRound(t1, t2, iter)
 	r.PreparedMS = ms(m1)
 	r.UnfoldingFixedMS = max(0, ms(m1)-k*r.IterationMS) // 0 when within the noise of the iterations
 	r.UnfoldingMS = ms(median(tw))

@@ -1,11 +1,14 @@
 package events
 
 import (
+	"bytes"
 	"context"
+	"encoding/binary"
 	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -93,6 +96,78 @@ func TestCorruptedROOTBasket(t *testing.T) {
 		}
 		if !strings.Contains(err.Error(), q+": branch ") || !strings.Contains(err.Error(), "is damaged (LZ4 block checksum mismatch)") {
 			t.Errorf("64 bytes damaged at %d: %v", o, err)
+		}
+	}
+}
+
+// TestParquetFooterLength gives the seed file a footer length (the four
+// bytes before the trailing magic, Apache Parquet file format
+// specification, "File Format") larger than the file: it is refused
+// naming the file, without allocating the declared length (parquet-go
+// v0.32.0 allocates it first: up to 4 GB for one mutated byte).
+func TestParquetFooterLength(t *testing.T) {
+	data, err := os.ReadFile("testdata/events.parquet")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, n := range []uint32{uint32(len(data)) - 11, 1 << 30, 0xffffffff} {
+		d := append([]byte(nil), data...)
+		binary.LittleEndian.PutUint32(d[len(d)-8:], n)
+		var m0, m1 runtime.MemStats
+		runtime.ReadMemStats(&m0)
+		_, err := newParquet("x.parquet", bytes.NewReader(d), int64(len(d)))
+		runtime.ReadMemStats(&m1)
+		if err == nil || !strings.Contains(err.Error(), "x.parquet: not a readable Parquet file: the footer is said to be") {
+			t.Errorf("footer of %d bytes: %v", n, err)
+		}
+		if a := m1.TotalAlloc - m0.TotalAlloc; a > 1<<20 {
+			t.Errorf("footer of %d bytes: %d bytes allocated to refuse it", n, a)
+		}
+	}
+}
+
+// TestROOTDeclaredLengths damages the lengths a ROOT file declares (the
+// file header's free-segment length, the uncompressed sizes of the
+// free-segment and streamer records, the top directory's key count; the
+// layout of ROOT's file header, key header and TDirectory record, common
+// practice of the ROOT file format): each is refused naming the file,
+// without allocating the declared length (go-hep v0.36.0 allocates it
+// first: up to 2 GB for one damaged byte).
+func TestROOTDeclaredLengths(t *testing.T) {
+	data, err := os.ReadFile("testdata/events.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	if v := be.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
+	}
+	seekfree, seekinfo := be.Uint32(data[16:]), be.Uint32(data[37:])
+	nbytesname := be.Uint32(data[28:])
+	dir := be.Uint32(data[8:]) + nbytesname // the top directory follows the name record at fBEGIN
+	seekkeys := be.Uint32(data[dir+26:])
+	keylen := be.Uint16(data[seekkeys+14:])
+	for _, c := range []struct {
+		what string
+		at   uint32
+	}{
+		{"free-segment length in the header", 20},
+		{"free-segment record's object size", seekfree + 6},
+		{"streamer record's object size", seekinfo + 6},
+		{"key list's object size", seekkeys + 6},
+		{"number of keys", seekkeys + uint32(keylen)},
+	} {
+		d := append([]byte(nil), data...)
+		be.PutUint32(d[c.at:], 0x7ffffff0)
+		var m0, m1 runtime.MemStats
+		runtime.ReadMemStats(&m0)
+		_, err := newROOT("x.root", memFile{bytes.NewReader(d)}, int64(len(d)), "events")
+		runtime.ReadMemStats(&m1)
+		if err == nil || !strings.Contains(err.Error(), "x.root: damaged ROOT file: ") {
+			t.Errorf("%s damaged: %v", c.what, err)
+		}
+		if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+			t.Errorf("%s damaged: %d bytes allocated to refuse it", c.what, a)
 		}
 	}
 }

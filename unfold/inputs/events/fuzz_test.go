@@ -1,6 +1,7 @@
 package events
 
 import (
+	"bytes"
 	"context"
 	"os"
 	"path/filepath"
@@ -81,31 +82,31 @@ func seed(f *testing.F, path string) {
 }
 
 // FuzzROOT reads arbitrary bytes as a ROOT file with the tree "events"
-// (seed: testdata/events.root, written by the package's own writer):
-// values or an error naming the file, never a panic.
+// (seed: testdata/events.root, written by the package's own writer), from
+// memory through the reader behind OpenROOT: values or an error naming
+// the file, never a panic.
 func FuzzROOT(f *testing.F) {
 	seed(f, "testdata/events.root")
-	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, data []byte) {
-		path := filepath.Join(dir, "f.root")
-		if err := os.WriteFile(path, data, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		fuzzFile(t, path, func(p string) (Source, error) { return OpenROOT(p, "events") })
+		fuzzFile(t, "f.root", func(p string) (Source, error) {
+			return newROOT(p, memFile{bytes.NewReader(data)}, int64(len(data)), "events")
+		})
 	})
 }
 
+// memFile is a ROOT file in memory.
+type memFile struct{ *bytes.Reader }
+
+func (memFile) Close() error { return nil }
+
 // FuzzParquet reads arbitrary bytes as a Parquet file (seed:
-// testdata/events.parquet): values or an error naming the file, never a
-// panic.
+// testdata/events.parquet), from memory through the reader behind
+// OpenParquet: values or an error naming the file, never a panic.
 func FuzzParquet(f *testing.F) {
 	seed(f, "testdata/events.parquet")
-	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, data []byte) {
-		path := filepath.Join(dir, "f.parquet")
-		if err := os.WriteFile(path, data, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		fuzzFile(t, path, func(p string) (Source, error) { return OpenParquet(p) })
+		fuzzFile(t, "f.parquet", func(p string) (Source, error) {
+			return newParquet(p, bytes.NewReader(data), int64(len(data)))
+		})
 	})
 }

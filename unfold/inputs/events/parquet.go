@@ -2,6 +2,7 @@ package events
 
 import (
 	"context"
+	"encoding/binary"
 	"fmt"
 	"io"
 	"maps"
@@ -40,12 +41,26 @@ func OpenParquet(path string) (*Parquet, error) {
 		f.Close()
 		return nil, fmt.Errorf("events: %w", err)
 	}
-	pf, err := parquet.OpenFile(f, st.Size(), parquet.SkipBloomFilters(true), parquet.SkipPageIndex(true))
+	p, err := newParquet(path, f, st.Size())
 	if err != nil {
 		f.Close()
+		return nil, err
+	}
+	p.f = f
+	return p, nil
+}
+
+// newParquet reads the footer of the Parquet file of size bytes in r,
+// named path in messages. The caller closes r.
+func newParquet(path string, r io.ReaderAt, size int64) (*Parquet, error) {
+	if err := checkParquetFooter(r, size); err != nil {
 		return nil, fmt.Errorf("events: %s: not a readable Parquet file: %w", path, err)
 	}
-	p := &Parquet{path: path, f: f, pf: pf, leaf: map[string]pqColumn{}, bad: map[string]string{}, nrows: pf.NumRows()}
+	pf, err := parquet.OpenFile(r, size, parquet.SkipBloomFilters(true), parquet.SkipPageIndex(true))
+	if err != nil {
+		return nil, fmt.Errorf("events: %s: not a readable Parquet file: %w", path, err)
+	}
+	p := &Parquet{path: path, pf: pf, leaf: map[string]pqColumn{}, bad: map[string]string{}, nrows: pf.NumRows()}
 	for _, c := range pf.Root().Columns() {
 		name := c.Name()
 		switch {
@@ -89,7 +104,30 @@ func (p *Parquet) Unreadable() map[string]string { return maps.Clone(p.bad) }
 func (p *Parquet) Len() int64 { return p.nrows }
 
 // Close closes the file.
-func (p *Parquet) Close() error { return p.f.Close() }
+func (p *Parquet) Close() error {
+	if p.f == nil {
+		return nil
+	}
+	return p.f.Close()
+}
+
+// checkParquetFooter refuses a file whose last eight bytes (the footer's
+// length, then the magic "PAR1") declare a footer longer than the file
+// can hold between its leading and trailing magic: parquet-go v0.32.0
+// allocates the declared length (up to 4 GB) before reading it.
+func checkParquetFooter(r io.ReaderAt, size int64) error {
+	if size < 12 {
+		return fmt.Errorf("%d bytes, too short to hold the leading and trailing magic and a footer", size)
+	}
+	var tail [8]byte
+	if _, err := r.ReadAt(tail[:], size-8); err != nil && err != io.EOF {
+		return err
+	}
+	if n := int64(binary.LittleEndian.Uint32(tail[:4])); n > size-12 {
+		return fmt.Errorf("the footer is said to be %d bytes long, but the file has %d bytes", n, size)
+	}
+	return nil
+}
 
 // pqCursor reads the values of one column chunk page by page.
 type pqCursor struct {

@@ -16,6 +16,8 @@ import (
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/root"
 	"go-hep.org/x/hep/groot/rtree"
+
+	"github.com/desmear/desmear/unfold/internal/rootio"
 )
 
 // ROOT is an event sample in a TTree of a ROOT file.
@@ -32,29 +34,43 @@ type ROOT struct {
 
 // OpenROOT opens the TTree at treePath (empty: the only TTree at the top
 // level) of a ROOT file.
-func OpenROOT(path, treePath string) (src *ROOT, err error) {
+func OpenROOT(path, treePath string) (*ROOT, error) {
+	// A file that cannot be opened at all gets the same message as for
+	// the other formats, not the ROOT library's.
+	fd, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	st, err := fd.Stat()
+	if err != nil {
+		fd.Close()
+		return nil, fmt.Errorf("events: %w", err)
+	}
+	r, err := newROOT(path, fd, st.Size(), treePath)
+	if err != nil {
+		fd.Close()
+	}
+	return r, err
+}
+
+// newROOT opens the TTree at treePath of the ROOT file of size bytes in
+// rd, named path in messages. The returned source closes rd; on error,
+// the caller does.
+func newROOT(path string, rd riofs.Reader, size int64, treePath string) (src *ROOT, err error) {
 	var f *riofs.File
 	defer func() {
 		if p := recover(); p != nil {
 			src, err = nil, fmt.Errorf("events: %s: damaged ROOT file: %v", path, p)
 		}
-		if err != nil && f != nil {
-			f.Close()
-		}
 	}()
-	// A file that cannot be opened at all gets the same message as for
-	// the other formats, not the ROOT library's.
-	plain, err := os.Open(path)
-	if err != nil {
-		return nil, fmt.Errorf("events: %w", err)
+	// go-hep allocates what the file declares before reading it: the
+	// layout is checked first.
+	if err := rootio.CheckFile(rd, size); err != nil {
+		return nil, fmt.Errorf("events: %s: %w", path, err)
 	}
-	plain.Close()
-	f, err = groot.Open(path)
+	f, err = riofs.NewReader(rd)
 	if err != nil {
 		return nil, fmt.Errorf("events: %s: cannot open as a ROOT file: %w", path, err)
-	}
-	if err := checkROOTBaskets(path); err != nil {
-		return nil, fmt.Errorf("events: %s: %w", path, err)
 	}
 	if treePath == "" {
 		trees := treeNames(f)

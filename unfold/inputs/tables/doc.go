@@ -28,7 +28,10 @@
 // column: a malformed row (wrong number of fields), an index that is not
 // a non-negative integer, a value that is not a number, NaN, ±Inf or
 // negative (the tables hold counts and sums of squared weights, which
-// cannot be negative), and a row repeated for the same bin or cell.
+// cannot be negative; only a response cell's value may be, from negative
+// event weights, and is left to the negative-cell remedy of the
+// unfolding, which refuses it by default), and a row repeated for the
+// same bin or cell.
 // Repeated rows are refused rather than summed: a plain table is a
 // histogram with one row per filled cell, and a repeated row almost
 // always means two files were concatenated or an index mapping is wrong;

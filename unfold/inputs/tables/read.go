@@ -186,6 +186,7 @@ func ReadResponse(r io.Reader, name string) (*Response, error) {
 	if err != nil {
 		return nil, err
 	}
+	sc.signed = true
 	if err := sc.readAll([]*[]int{&resp.Reco, &resp.Truth}, &resp.Value, &resp.SumW2, &resp.Line); err != nil {
 		return nil, err
 	}
@@ -240,6 +241,9 @@ type scanner struct {
 	pos     []int
 	nfields int
 	hasErr2 bool
+	// signed lets the value column be negative (the response's cells:
+	// negative event weights, left to the negative-cell remedy).
+	signed bool
 
 	// the current row
 	line int
@@ -350,7 +354,7 @@ func (sc *scanner) next() (bool, error) {
 		sc.idx[k] = i
 	}
 	vp := len(sc.index)
-	if sc.val, err = sc.parseCount(rec[sc.pos[vp]], "value"); err != nil {
+	if sc.val, err = sc.parseNumber(rec[sc.pos[vp]], "value", sc.signed); err != nil {
 		return false, err
 	}
 	if sc.hasErr2 {
@@ -408,6 +412,12 @@ func (sc *scanner) parseIndex(s, col string) (int, error) {
 }
 
 func (sc *scanner) parseCount(s, col string) (float64, error) {
+	return sc.parseNumber(s, col, false)
+}
+
+// parseNumber parses a finite number of column col; a negative one only
+// when signed.
+func (sc *scanner) parseNumber(s, col string, signed bool) (float64, error) {
 	s = strings.TrimSpace(s)
 	if s == "" {
 		return 0, errorf(sc.name, sc.line, col, "empty; give a number")
@@ -425,7 +435,7 @@ func (sc *scanner) parseCount(s, col string) (float64, error) {
 		return 0, errorf(sc.name, sc.line, col, "NaN is not allowed; give a finite number")
 	case math.IsInf(v, 0):
 		return 0, errorf(sc.name, sc.line, col, "%s is infinite or too large; give a finite number", s)
-	case v < 0:
+	case v < 0 && !signed:
 		return 0, errorf(sc.name, sc.line, col, "%s is negative; counts, sums of squared weights and variances must be ≥ 0", s)
 	case v == 0:
 		v = 0 // no negative zero

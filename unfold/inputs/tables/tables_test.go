@@ -91,7 +91,8 @@ func TestReadErrors(t *testing.T) {
 		{"NaN value", "reco,truth,value\n0,1,NaN\n", -1, 2, "value", []string{"NaN"}, false},
 		{"Inf value", "reco,truth,value\n0,1,+Inf\n", -1, 2, "value", []string{"infinite"}, false},
 		{"overflowing value", "reco,truth,value\n0,1,1e400\n", -1, 2, "value", []string{"infinite or too large"}, false},
-		{"negative value", "reco,truth,value\n0,1,-2\n", -1, 2, "value", []string{"-2 is negative"}, false},
+		{"negative value", "reco,value\n0,-2\n", Data, 2, "value", []string{"-2 is negative"}, false},
+		{"negative generated", "truth,value\n0,-2\n", Generated, 2, "value", []string{"-2 is negative"}, false},
 		{"negative sumw2", "reco,truth,value,sumw2\n0,1,2,-1\n", -1, 2, "sumw2", []string{"negative"}, true},
 		{"negative index", "reco,truth,value\n-1,1,2\n", -1, 2, "reco", []string{"negative"}, false},
 		{"fractional index", "reco,truth,value\n0,1.5,2\n", -1, 2, "truth", []string{"not a bin index"}, false},
@@ -302,9 +303,25 @@ func TestWriteRoundTrip(t *testing.T) {
 	}
 }
 
+// A response cell may be negative (negative event weights, common
+// practice at next-to-leading order): the reader keeps it for the
+// negative-cell remedy of the unfolding; its sumw2 may not.
+func TestResponseNegativeCell(t *testing.T) {
+	r, err := ReadResponse(strings.NewReader("reco,truth,value,sumw2\n0,0,5,4\n1,0,-2,3\n"), "A.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(r.Value) != 2 || r.Value[1] != -2 {
+		t.Fatalf("values %v, want [5 -2]", r.Value)
+	}
+	if _, err := ReadResponse(strings.NewReader("reco,truth,value,sumw2\n1,0,-2,-3\n"), "A.csv"); err == nil || !strings.Contains(err.Error(), "negative") {
+		t.Fatalf("negative sumw2: got %v, want a refusal", err)
+	}
+}
+
 // FuzzReadResponse checks that no input makes the reader panic, and that
-// every accepted table holds only finite non-negative values and
-// in-range indices.
+// every accepted table holds only finite values (negative ones allowed
+// for the remedy) and in-range indices.
 func FuzzReadResponse(f *testing.F) {
 	f.Add("reco,truth,value\n0,1,2\n")
 	f.Add("reco,truth,value,sumw2\n# c\n3,1,0.5,0.25\n")
@@ -315,7 +332,7 @@ func FuzzReadResponse(f *testing.F) {
 			return
 		}
 		for k := range r.Value {
-			if !(r.Value[k] >= 0) || math.IsInf(r.Value[k], 0) || r.Reco[k] < 0 || r.Truth[k] < 0 || r.Reco[k] > MaxIndex || r.Truth[k] > MaxIndex {
+			if math.IsNaN(r.Value[k]) || math.IsInf(r.Value[k], 0) || r.Reco[k] < 0 || r.Truth[k] < 0 || r.Reco[k] > MaxIndex || r.Truth[k] > MaxIndex {
 				t.Fatalf("accepted entry %d: (%d,%d,%v)", k, r.Reco[k], r.Truth[k], r.Value[k])
 			}
 		}

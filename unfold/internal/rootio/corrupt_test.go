@@ -1,10 +1,13 @@
 package rootio
 
 import (
+	"encoding/binary"
 	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"runtime"
+	"strings"
 	"testing"
 )
 
@@ -38,4 +41,34 @@ func TestCorrupted(t *testing.T) {
 		}
 	}
 	t.Logf("%d of 300 reads failed with an error", fails)
+}
+
+// TestDeclaredLengths damages the uncompressed size declared by the
+// streamer record of a written histogram file (the key header's
+// fObjlen, common practice of the ROOT file format): reading is refused
+// naming the file, without allocating the declared 2 GB (go-hep v0.36.0
+// allocates it before reading).
+func TestDeclaredLengths(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if v := binary.BigEndian.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
+	}
+	seekinfo := binary.BigEndian.Uint32(data[37:])
+	d := append([]byte(nil), data...)
+	binary.BigEndian.PutUint32(d[seekinfo+6:], 0x7ffffff0)
+	q := filepath.Join(t.TempDir(), "x.root")
+	os.WriteFile(q, d, 0o644)
+	var m0, m1 runtime.MemStats
+	runtime.ReadMemStats(&m0)
+	_, err = ReadHist1D(q, "h1")
+	runtime.ReadMemStats(&m1)
+	if err == nil || !strings.Contains(err.Error(), q+": damaged ROOT file: the streamer record at byte") {
+		t.Errorf("damaged streamer size: %v", err)
+	}
+	if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+		t.Errorf("%d bytes allocated to refuse it", a)
+	}
 }

@@ -33,4 +33,14 @@
 // Missing files or keys, objects of another class, damaged files and
 // inconsistent histograms given to WriteFile are errors. Nothing panics on
 // user input.
+//
+// # Checking a file before go-hep reads it
+//
+// [CheckFile] checks the layout of a ROOT file (the records the header
+// points to, every record's size against the file and its compressed
+// blocks) and the checksums of compressed baskets, which go-hep v0.36.0
+// does not verify; go-hep allocates every length a file declares before
+// reading it, so a damaged length would otherwise cost up to 2 GB. The
+// histogram readers call it, and so does the event reader of
+// unfold/inputs/events for trees.
 package rootio

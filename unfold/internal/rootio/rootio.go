@@ -252,8 +252,22 @@ func get(path, key string) (root.Object, func(), error) {
 		return riofs.Dir(f).Get(key)
 	}()
 	if err != nil {
-		f.Close()
-		return nil, nil, fmt.Errorf("rootio: %s: no object %q: %w", path, key, err)
+		defer f.Close()
+		// go-hep's message names the file by the path it was written
+		// under, which may be a temporary name: say what the file holds
+		// instead, unless the key is there and its object is damaged.
+		var have []string
+		keys, lerr := keysOf(f)
+		for _, k := range keys {
+			if k.Path == key {
+				return nil, nil, fmt.Errorf("rootio: %s: %q cannot be read: %w", path, key, err)
+			}
+			have = append(have, k.Path)
+		}
+		if lerr != nil || len(have) == 0 {
+			return nil, nil, fmt.Errorf("rootio: %s: no object %q", path, key)
+		}
+		return nil, nil, fmt.Errorf("rootio: %s: no object %q (the file holds %s)", path, key, strings.Join(have, ", "))
 	}
 	return obj, func() { f.Close() }, nil
 }
@@ -283,13 +297,23 @@ func openFile(path string) (f *riofs.File, err error) {
 	}()
 	// A file that cannot be opened at all: the operating system's
 	// message, as for every other input, not the ROOT library's.
-	plain, err := os.Open(path)
+	fd, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("rootio: %w", err)
 	}
-	plain.Close()
-	f, err = groot.Open(path)
+	st, err := fd.Stat()
+	if err == nil {
+		// go-hep allocates what the file declares before reading it:
+		// the layout is checked first.
+		err = CheckFile(fd, st.Size())
+	}
 	if err != nil {
+		fd.Close()
+		return nil, fmt.Errorf("rootio: %s: %w", path, err)
+	}
+	f, err = riofs.NewReader(fd)
+	if err != nil {
+		fd.Close()
 		return nil, fmt.Errorf("rootio: %s: cannot open as a ROOT file: %w", path, err)
 	}
 	return f, nil
@@ -314,7 +338,19 @@ func Keys(path string) (keys []Key, err error) {
 		return nil, err
 	}
 	defer f.Close()
-	defer recoverDamaged(path, "", &err)
+	if keys, err = keysOf(f); err != nil {
+		return nil, fmt.Errorf("rootio: %s: %w", path, err)
+	}
+	return keys, nil
+}
+
+// keysOf lists the objects of the open ROOT file f, as Keys does.
+func keysOf(f *riofs.File) (keys []Key, err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			keys, err = nil, fmt.Errorf("damaged ROOT file: %v", p)
+		}
+	}()
 	var walk func(d riofs.Directory, prefix string) error
 	walk = func(d riofs.Directory, prefix string) error {
 		for _, k := range d.Keys() {
@@ -336,7 +372,7 @@ func Keys(path string) (keys []Key, err error) {
 		return nil
 	}
 	if err := walk(f, ""); err != nil {
-		return nil, fmt.Errorf("rootio: %s: %w", path, err)
+		return nil, err
 	}
 	return keys, nil
 }

@@ -178,8 +178,8 @@ func BenchmarkFineIterationParts(b *testing.B) {
 		f    func()
 	}{
 		{"ms/10sweeps", func() { sweep(1) }},
-		{"ms/10sweeps-update", func() { p.Migrations.Sweep(it.fnext, it.y, it.updateNoG) }},
-		{"ms/10sweeps-update-hook", func() { p.Migrations.SweepRows(it.fnext, it.y, it.updateNoG, it.rows) }},
+		{"ms/10sweeps-update", func() { p.Migrations.Sweep(it.fnext, it.y, it.updateFunc(false)) }},
+		{"ms/10sweeps-update-hook", func() { p.Migrations.SweepRows(it.fnext, it.y, it.updateFunc(false), it.rows) }},
 		{"ms/10reco-passes", func() { it.recoAll(it.fnext, it.nunext, it.ynext) }},
 		{"ms/10chi2-passes", func() { it.compare() }},
 	}
@@ -204,8 +204,10 @@ func BenchmarkFineIterationParts(b *testing.B) {
 // prepared problem at 500,000 × 1,000,000 (10M non-zeros), interleaved in
 // one loop: a reused Unfolder with 4 and with 8 iterations (the
 // difference over 4 is the marginal iteration, the rest of the 4-iteration
-// call its fixed cost), a whole unfold.Unfold call with 4 iterations, and
-// 4 bare fused sweeps. Reports medians and same-run ratios.
+// call its fixed cost), the same pair without the log-likelihood
+// (RecordLogLikelihood(false), the form of the ensembles), a whole
+// unfold.Unfold call with 4 iterations, and 4 bare fused sweeps. Reports
+// medians and same-run ratios.
 func BenchmarkFinePrepared(b *testing.B) {
 	p := fineProblem(b)
 	ctx := context.Background()
@@ -221,13 +223,33 @@ func BenchmarkFinePrepared(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+	u4n, err := NewUnfolder(pr, &Settings{Iterations: 4})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u8n, err := NewUnfolder(pr, &Settings{Iterations: 8})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u4n.RecordLogLikelihood(false)
+	u8n.RecordLogLikelihood(false)
 	_, nt := p.Migrations.Dims()
 	dst := make([]float64, nt)
 	sweeps := bareSweeps(p.Migrations)
-	var t4, t8, tw, ts []time.Duration
+	var t4, t8, t4n, t8n, tw, ts []time.Duration
 	b.ResetTimer()
 	for range b.N {
 		t0 := time.Now()
+		if _, err := u4n.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t4n = append(t4n, time.Since(t0))
+		t0 = time.Now()
+		if _, err := u8n.Unfold(ctx, dst, nil); err != nil {
+			b.Fatal(err)
+		}
+		t8n = append(t8n, time.Since(t0))
+		t0 = time.Now()
 		if _, err := u4.Unfold(ctx, dst, nil); err != nil {
 			b.Fatal(err)
 		}
@@ -256,6 +278,11 @@ func BenchmarkFinePrepared(b *testing.B) {
 	b.ReportMetric(mw.Seconds()*1e3, "ms/unfold4")
 	b.ReportMetric(float64(mw)/float64(4*iter), "unfold4/4iterations")
 	b.ReportMetric(float64(4*iter)/float64(ms), "iteration/sweep")
+	m4n, m8n := median(t4n), median(t8n)
+	itn := (m8n - m4n) / 4
+	b.ReportMetric(itn.Seconds()*1e3, "ms/iteration-nolog")
+	b.ReportMetric(float64(4*itn)/float64(ms), "iteration-nolog/sweep")
+	b.ReportMetric(float64(m4n)/float64(4*itn), "prepared4-nolog/4iterations")
 }
 
 // peakHeap runs f and returns the peak of the heap in use (objects and
@@ -336,4 +363,86 @@ func benchBlocks(b *testing.B, s *opts, oneByOne *bool) {
 	b.ReportMetric(float64(mb)/float64(mo), "blocks/one-by-one")
 	b.ReportMetric(hb[len(hb)/2]/1e6, "MB-peak-heap/blocks")
 	b.ReportMetric(ho[len(ho)/2]/1e6, "MB-peak-heap/one-by-one")
+}
+
+// BenchmarkFineIterationSweep: the marginal iteration against the bare
+// fused sweep at the fine grid, in the same loop: per round 10 times in
+// turn one bare sweep, one iteration step of the loop of a fixed number
+// of iterations (the sweep with the iteration's update and hooks, the χ²
+// and change, the swaps; not the last iteration) without the
+// log-likelihood (the ensembles' form) and one with it, the problem with
+// a flat background of 2% of the mean count (ν = R μ + b, as in desmear
+// bench), and, as a second yardstick, the fused EM sweep of desmear bench
+// (update x_j ← x_j g_j / eps_j: two more loads and a multiply per column
+// than the bare sweep's). Reports the medians over the rounds and the
+// median over the rounds of each round's ratio.
+func BenchmarkFineIterationSweep(b *testing.B) {
+	p0 := fineProblem(b)
+	p := *p0
+	var mean float64
+	for _, x := range p.Data {
+		mean += x / float64(len(p.Data))
+	}
+	p.Background = make([]float64, len(p.Data))
+	for i := range p.Background {
+		p.Background[i] = 0.02 * mean
+	}
+	m, err := prepare(&p, unfold.InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	it := newIterator(m, nil)
+	it.start(m.n)
+	// an iteration before the last of a fixed number (iterate's loop)
+	it.lazyNu = true
+	step := func(noLL bool) {
+		it.noLL = noLL
+		it.emStepReco(recoInPlace)
+		it.compare()
+		it.mu, it.next = it.next, it.mu
+		it.y, it.fnext = it.fnext, it.y
+	}
+	sweep := bareSweeps(p.Migrations)
+	// the fused EM sweep of desmear bench: x_j ← x_j g_j / eps_j
+	nr, nt := p.Migrations.Dims()
+	x, y, next := make([]float64, nt), make([]float64, nr), make([]float64, nr)
+	for i := range y {
+		y[i] = 1
+	}
+	inv := m.invEps
+	upd := func(j int, g float64) float64 { v := x[j] * g * inv[j]; x[j] = v; return v }
+	var ts, te, tn, tl []time.Duration
+	var rn, rl, re []float64
+	b.ResetTimer()
+	for range b.N {
+		var s, e, n, l time.Duration
+		for range 10 {
+			t0 := time.Now()
+			sweep(1)
+			s += time.Since(t0)
+			for j := range x {
+				x[j] = 1
+			}
+			t0 = time.Now()
+			p.Migrations.Sweep(next, y, upd)
+			e += time.Since(t0)
+			t0 = time.Now()
+			step(true)
+			n += time.Since(t0)
+			t0 = time.Now()
+			step(false)
+			l += time.Since(t0)
+		}
+		ts, te, tn, tl = append(ts, s/10), append(te, e/10), append(tn, n/10), append(tl, l/10)
+		rn, rl, re = append(rn, float64(n)/float64(s)), append(rl, float64(l)/float64(s)), append(re, float64(n)/float64(e))
+	}
+	b.StopTimer()
+	med := func(v []float64) float64 { v = slices.Clone(v); slices.Sort(v); return v[len(v)/2] }
+	b.ReportMetric(median(ts).Seconds()*1e3, "ms/sweep")
+	b.ReportMetric(median(tn).Seconds()*1e3, "ms/iteration")
+	b.ReportMetric(median(tl).Seconds()*1e3, "ms/iteration-loglik")
+	b.ReportMetric(med(rn), "iteration/sweep")
+	b.ReportMetric(med(rl), "iteration-loglik/sweep")
+	b.ReportMetric(median(te).Seconds()*1e3, "ms/em-sweep")
+	b.ReportMetric(med(re), "iteration/em-sweep")
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"runtime"
+	"slices"
 
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
@@ -140,9 +141,31 @@ type iterator struct {
 	ll               []float64 // log-likelihood partial sum per row range
 	red              parallel.Reducer
 	keepG            bool // tangents read g: the sweep stores it
-	update           func(j int, g float64) float64
-	updateNoG        func(j int, g float64) float64
-	rows             func(r, lo, hi int)
+	// noLL skips the log-likelihood (every Step.LogLikelihood is 0): for
+	// runs whose details nobody reads (toys, re-runs, refits), it saves
+	// one logarithm per reco bin and iteration; the estimate is the same.
+	noLL bool
+	// lazyNu leaves ν(k) = R μ(k) + b unwritten during the iteration (no
+	// tangents read it): iterate forms the final one from the final fold,
+	// with the bits the per-range pass would have written.
+	lazyNu bool
+	// updates[keepG][o] is the sweep's update, o = 0 while it.mu is bufA
+	// (the first truth buffer), 1 while it is the other (updateFunc).
+	updates [2][2]func(j int, g float64) float64
+	bufA    []float64
+	rows    func(r, lo, hi int)
+	// rowsInPlace is rows writing y(k+1) over R μ(k+1) in fnext (see
+	// iterate).
+	rowsInPlace func(r, lo, hi int)
+	// The χ² pass fused into the sweep: the partial sums of compare's
+	// chunks (parallel.ChunkLen truth bins each, as parallel.Reducer
+	// cuts them), those inside one column range of the matrix summed by
+	// its column hook, the chunks straddling two ranges (straddle) after
+	// the sweep; fused reports that parts holds μ(k+1) against μ(k).
+	parts    [][4]float64
+	straddle []int
+	cols     func(lo, hi int)
+	fused    bool
 }
 
 func newIterator(m *model, sm *smoother) *iterator {
@@ -163,24 +186,56 @@ func newIterator(m *model, sm *smoother) *iterator {
 	if sm != nil {
 		it.orig = make([]float64, m.nt)
 	}
+	// The updates capture the truth buffers (not the iterator's fields,
+	// which swap): one closure per order of the two buffers, with and
+	// without storing g.
 	invG, invEps, gk := m.invG, m.invEps, it.g
-	it.update = func(j int, ga float64) float64 {
-		ig := invG[j]
-		g := ga * ig // (Rᵀ y)_j from (Aᵀ y)_j
-		gk[j] = g
-		v := it.mu[j] * g * invEps[j]
-		it.next[j] = v
-		return v * ig // scatter A (μ'/G) = R μ'
+	mk := func(mu, next []float64, keepG bool) func(j int, ga float64) float64 {
+		if keepG {
+			return func(j int, ga float64) float64 {
+				ig := invG[j]
+				g := ga * ig // (Rᵀ y)_j from (Aᵀ y)_j
+				gk[j] = g
+				v := mu[j] * g * invEps[j]
+				next[j] = v
+				return v * ig // scatter A (μ'/G) = R μ'
+			}
+		}
+		// the same without storing g, when no tangents read it
+		return func(j int, ga float64) float64 {
+			ig := invG[j]
+			v := mu[j] * (ga * ig) * invEps[j]
+			next[j] = v
+			return v * ig
+		}
 	}
-	// the same without storing g, when no tangents read it
-	it.updateNoG = func(j int, ga float64) float64 {
-		ig := invG[j]
-		v := it.mu[j] * (ga * ig) * invEps[j]
-		it.next[j] = v
-		return v * ig
+	it.bufA = it.mu
+	it.updates = [2][2]func(int, float64) float64{
+		{mk(it.mu, it.next, false), mk(it.next, it.mu, false)},
+		{mk(it.mu, it.next, true), mk(it.next, it.mu, true)},
 	}
 	it.rows = func(r, lo, hi int) {
 		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.ynext, lo, hi)
+	}
+	it.rowsInPlace = func(r, lo, hi int) {
+		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.fnext, lo, hi)
+	}
+	const cl = parallel.ChunkLen
+	it.parts = make([][4]float64, (m.nt+cl-1)/cl)
+	cb := m.a.ColRanges()
+	for c := range it.parts {
+		lo, hi := c*cl, min(m.nt, (c+1)*cl)
+		k, _ := slices.BinarySearch(cb, lo+1) // first bound above lo
+		if k < len(cb) && cb[k] < hi {
+			it.straddle = append(it.straddle, c)
+		}
+	}
+	it.cols = func(lo, hi int) {
+		for c := (lo + cl - 1) / cl; c*cl < hi; c++ {
+			if e := min(m.nt, (c+1)*cl); e <= hi {
+				it.parts[c] = it.chunk(c*cl, e)
+			}
+		}
 	}
 	return it
 }
@@ -231,14 +286,60 @@ func (it *iterator) sumLL() float64 {
 // recoRange sets nu = fold + b (only with a background; otherwise nu
 // aliases fold) and y = n/nu over the rows [lo, hi) and returns the
 // partial log-likelihood Σ (n_i ln ν_i − ν_i) of those rows, summed in
-// row order. It touches nothing outside [lo, hi).
+// row order (0 with it.noLL). It touches nothing outside [lo, hi).
 func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	n, b := it.n, it.m.b
 	f := fold[lo:hi]
 	nn, yy := n[lo:hi:hi], y[lo:hi:hi]
 	nn, yy = nn[:len(f)], yy[:len(f)]
+	if it.noLL {
+		// the same ν and n/ν, without the logarithms
+		switch {
+		case b != nil && it.lazyNu:
+			bb := b[lo:hi]
+			bb = bb[:len(f)]
+			for i, v := range f {
+				v += bb[i]
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		case b != nil:
+			bb, vv := b[lo:hi], nu[lo:hi]
+			bb, vv = bb[:len(f)], vv[:len(f)]
+			for i, v := range f {
+				v += bb[i]
+				vv[i] = v
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		default:
+			for i, v := range f {
+				yy[i] = 0
+				if v > 0 {
+					yy[i] = nn[i] / v
+				}
+			}
+		}
+		return 0
+	}
 	var ll float64
-	if b != nil {
+	if b != nil && it.lazyNu {
+		bb := b[lo:hi]
+		bb = bb[:len(f)]
+		for i, v := range f {
+			v += bb[i]
+			if x := nn[i]; v > 0 {
+				yy[i] = x / v
+				ll += x*fastLog(v) - v
+			} else {
+				yy[i] = 0
+			}
+		}
+	} else if b != nil {
 		bb, vv := b[lo:hi], nu[lo:hi]
 		bb, vv = bb[:len(f)], vv[:len(f)]
 		for i, v := range f {
@@ -264,19 +365,52 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 	return ll
 }
 
+// updateFunc returns the sweep's update from it.mu into it.next, storing
+// g into it.g with keepG.
+func (it *iterator) updateFunc(keepG bool) func(j int, g float64) float64 {
+	k, o := 0, 0
+	if keepG {
+		k = 1
+	}
+	if len(it.mu) > 0 && &it.mu[0] != &it.bufA[0] {
+		o = 1
+	}
+	return it.updates[k][o]
+}
+
+// How emStep treats the reco side (without smoothing; see iterate).
+const (
+	recoBoth    = iota // R μ(k+1) in it.fnext, ν(k+1), y(k+1) in it.nunext, it.ynext
+	recoInPlace        // y(k+1) over R μ(k+1) in it.fnext
+	recoNone           // R μ(k+1) in it.fnext only (no log-likelihood)
+)
+
 // emStep computes μ(k+1) into it.next, g(k) into it.g (when it.keepG or
 // with smoothing), R μ(k+1) into
 // it.fnext, and ν(k+1), y(k+1) into it.nunext, it.ynext; it returns the
 // log-likelihood at μ(k+1). it.mu, it.fold, it.nu and it.y are left as
 // they were.
-func (it *iterator) emStep() float64 {
+func (it *iterator) emStep() float64 { return it.emStepReco(recoBoth) }
+
+// emStepReco is emStep with the reco side of mode (recoBoth with
+// smoothing).
+func (it *iterator) emStepReco(mode int) float64 {
 	m := it.m
 	if it.sm == nil {
-		upd := it.update
-		if !it.keepG {
-			upd = it.updateNoG
+		upd := it.updateFunc(it.keepG)
+		rows := it.rows
+		switch mode {
+		case recoInPlace:
+			rows = it.rowsInPlace
+		case recoNone:
+			rows = nil
+			clear(it.ll)
 		}
-		m.a.SweepRows(it.fnext, it.y, upd, it.rows)
+		m.a.SweepHooks(it.fnext, it.y, upd, rows, it.cols)
+		for _, c := range it.straddle {
+			it.parts[c] = it.chunk(c*parallel.ChunkLen, min(m.nt, (c+1)*parallel.ChunkLen))
+		}
+		it.fused = true
 		return it.sumLL()
 	}
 	m.a.BackProject(it.g, it.y)
@@ -290,23 +424,40 @@ func (it *iterator) emStep() float64 {
 	return it.recoAll(it.fnext, it.nunext, it.ynext)
 }
 
-// compare returns the χ² and the relative change between it.next and
-// it.mu.
-func (it *iterator) compare() (chi2, change float64) {
-	mu, next, eps := it.mu, it.next, it.m.eps
-	s := it.red.Run(len(mu), func(lo, hi int, acc *[4]float64) {
-		var c2, d, t float64
-		for j := lo; j < hi; j++ {
-			x := next[j]
-			dx := x - mu[j]
-			if x > 0 {
-				c2 += eps[j] * dx * dx / x
-			}
-			d += math.Abs(dx)
-			t += x
+// chunk returns the partial sums of compare over the truth bins
+// [lo, hi): the χ² terms, |μ(k+1) − μ(k)| and μ(k+1), each summed in bin
+// order.
+func (it *iterator) chunk(lo, hi int) [4]float64 {
+	mu, next, eps := it.mu[lo:hi], it.next[lo:hi], it.m.eps[lo:hi]
+	next, eps = next[:len(mu)], eps[:len(mu)]
+	var c2, d, t float64
+	for j, x := range next {
+		dx := x - mu[j]
+		if x > 0 {
+			c2 += eps[j] * dx * dx / x
 		}
-		acc[0], acc[1], acc[2] = c2, d, t
-	})
+		d += math.Abs(dx)
+		t += x
+	}
+	return [4]float64{c2, d, t}
+}
+
+// compare returns the χ² and the relative change between it.next and
+// it.mu: the chunks' partial sums added in chunk order, the chunks those
+// of parallel.Reducer, so that the sums fused into the sweep (it.fused)
+// and those of a separate pass have the same bits.
+func (it *iterator) compare() (chi2, change float64) {
+	var s [4]float64
+	if it.fused {
+		it.fused = false
+		for _, p := range it.parts {
+			for k := range s {
+				s[k] += p[k]
+			}
+		}
+	} else {
+		s = it.red.Run(len(it.mu), func(lo, hi int, acc *[4]float64) { *acc = it.chunk(lo, hi) })
+	}
 	chi2 = s[0]
 	if t := s[2]; t-t != 0 {
 		// A non-finite estimate (overflow or 0·∞ from inputs spanning
@@ -337,19 +488,42 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 	if err := ctx.Err(); err != nil {
 		return err
 	}
+	it.lazyNu = false // the start writes ν(0)
 	res.History = append(res.History[:0], Step{LogLikelihood: it.start(n)})
 	res.Iterations, res.Converged = 0, false
 	it.keepG = tan != nil
+	if b := it.m.b; tan == nil && b != nil {
+		it.lazyNu = true
+		defer func() {
+			it.lazyNu = false
+			for i, f := range it.fold {
+				it.nu[i] = f + b[i]
+			}
+		}()
+	}
 	if tan != nil {
 		if err := tan.init(ctx, it); err != nil {
 			return err
 		}
 	}
+	// With a fixed number of iterations and no tangents, nobody reads
+	// R μ(k) or ν(k) before the last iteration: y(k) overwrites R μ(k)
+	// (one reco vector less to write per iteration), and the last
+	// iteration forms only R μ(K) (and ν(K) for the log-likelihood). The
+	// values are the same bits.
+	inPlace := tan == nil && it.sm == nil && rs.fixed
 	for k := 1; k <= rs.maxIter; k++ {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		ll := it.emStep()
+		mode := recoBoth
+		switch {
+		case inPlace && k < rs.maxIter:
+			mode = recoInPlace
+		case inPlace && it.noLL:
+			mode = recoNone
+		}
+		ll := it.emStepReco(mode)
 		if tan != nil {
 			if err := tan.step(ctx, it); err != nil {
 				return err
@@ -357,9 +531,16 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 		}
 		chi2, change := it.compare()
 		it.mu, it.next = it.next, it.mu
-		it.fold, it.fnext = it.fnext, it.fold
-		it.nu, it.nunext = it.nunext, it.nu
-		it.y, it.ynext = it.ynext, it.y
+		if mode == recoInPlace {
+			it.y, it.fnext = it.fnext, it.y
+			if it.m.b == nil {
+				it.nunext = it.fnext // ν aliases the fold
+			}
+		} else {
+			it.fold, it.fnext = it.fnext, it.fold
+			it.nu, it.nunext = it.nunext, it.nu
+			it.y, it.ynext = it.ynext, it.y
+		}
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
 			return &unfold.NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
 		}

@@ -50,6 +50,7 @@ func (s *Settings) NewRefit(p *unfold.Prepared) (func(ctx context.Context, dst [
 	if err != nil {
 		return nil, err
 	}
+	u.RecordLogLikelihood(false) // only the estimate is kept
 	return func(ctx context.Context, dst []float64) error {
 		_, err := u.Unfold(ctx, dst, nil)
 		return err
@@ -110,6 +111,7 @@ func (f *fit) StepEstimates() [][]float64 { return f.kept }
 // Jacobian carries the dense Jacobian along a re-run of the iteration.
 func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
 	jc := newJacobian(f.m, dst)
+	f.it.noLL = true // the re-run's details are not kept
 	if _, err := f.it.run(ctx, f.m.n, fixedIterations(f.details.Iterations), jc); err != nil {
 		return err
 	}
@@ -125,6 +127,7 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 	} else {
 		f.pr.reuse(dst) // the next batch, no larger: the same buffers
 	}
+	f.it.noLL = true // the re-run's details are not kept
 	_, err := f.it.run(ctx, f.m.n, fixedIterations(f.details.Iterations), f.pr)
 	return err
 }
@@ -134,6 +137,7 @@ func (f *fit) Tangents(ctx context.Context, dst *unfold.Probes) error {
 func (f *fit) NewToyRunner() unfold.ToyRunner {
 	r := &toyRunner{mod: *f.m, rs: fixedIterations(f.details.Iterations)}
 	r.it = newIterator(&r.mod, f.sm)
+	r.it.noLL = true // a toy's details are not kept
 	if f.kept != nil {
 		r.rec = &recorder{}
 		return &stepToyRunner{r}

@@ -213,3 +213,73 @@ func TestProbeBlocksMatchOneByOne(t *testing.T) {
 		}
 	}
 }
+
+// Without the log-likelihood the iteration is the same computation less
+// one sum: the estimate, the folded spectrum, the χ² and the change of
+// every step, the number of iterations and the stopping reason must be
+// the bits of a fresh unfold.Unfold call (whose values the oracle tests
+// check against D'Agostini, Nucl. Instrum. Meth. A 362 (1995) 487, eq. 4,
+// through method.md §2), and every log-likelihood 0; switched back on,
+// the details are Unfold's again.
+func TestUnfolderWithoutLogLikelihood(t *testing.T) {
+	ctx := context.Background()
+	cases := []struct {
+		name string
+		bkg  bool
+		s    opts
+	}{
+		{"fixed", false, opts{Iterations: 4}},
+		{"in-model background", true, opts{Iterations: 3}},
+		{"stop rule", true, opts{StopChi2: 1e-4, MaxIterations: 30}},
+		{"smoothing", false, opts{Iterations: 3, Smoothing: &Smoothing{Neighbours: chainScheme(t, 300)}}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			p := randomProblem(t, 13, 300, 700, 7, c.bkg)
+			cs, cm := c.s.split()
+			rs, err := cs.Resolve()
+			if err != nil {
+				t.Fatal(err)
+			}
+			pr, err := unfold.Prepare(p, rs.Background)
+			if err != nil {
+				t.Fatal(err)
+			}
+			u, err := NewUnfolder(pr, cm)
+			if err != nil {
+				t.Fatal(err)
+			}
+			want, err := unfold.Unfold(ctx, p, cs, cm)
+			if err != nil {
+				t.Fatal(err)
+			}
+			wd := DetailsOf(want)
+			dst := make([]float64, pr.TruthBins())
+			folded := make([]float64, pr.RecoBins())
+			u.RecordLogLikelihood(false)
+			d, err := u.Unfold(ctx, dst, folded)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !slices.Equal(dst, want.Estimate) || !slices.Equal(folded, want.Folded) {
+				t.Fatalf("results differ from Unfold (max rel. diff %g)", maxRelDiff(dst, want.Estimate))
+			}
+			if d.Iterations != wd.Iterations || d.StoppedBy != wd.StoppedBy || len(d.History) != len(wd.History) {
+				t.Fatalf("stopping differs: %d %s, want %d %s", d.Iterations, d.StoppedBy, wd.Iterations, wd.StoppedBy)
+			}
+			for k, s := range d.History {
+				w := wd.History[k]
+				if s.LogLikelihood != 0 || s.Chi2 != w.Chi2 || s.Change != w.Change || s.Iteration != w.Iteration {
+					t.Fatalf("step %d: %+v, want %+v without its log-likelihood", k, s, w)
+				}
+			}
+			u.RecordLogLikelihood(true)
+			if d, err = u.Unfold(ctx, dst, folded); err != nil {
+				t.Fatal(err)
+			}
+			if !slices.Equal(d.History, wd.History) {
+				t.Fatalf("log-likelihood on again: details differ: %+v, want %+v", d.History, wd.History)
+			}
+		})
+	}
+}

@@ -1,0 +1,276 @@
+package rootio
+
+import (
+	"bytes"
+	"compress/zlib"
+	"encoding/binary"
+	"fmt"
+	"io"
+
+	"github.com/pierrec/xxHash/xxHash64"
+)
+
+// CheckFile checks the layout of the ROOT file of size bytes in r before
+// go-hep reads it, and the checksums go-hep does not verify. go-hep
+// v0.36.0 allocates every length the file declares before reading (the
+// free-segment and streamer records, the key list, the uncompressed size
+// of every record, up to 2 GB each for one damaged byte), skips the XXH64
+// sum of LZ4 blocks and stops reading a zlib stream before its Adler-32
+// sum. So:
+//
+//   - the header's end, and the records it points to (free segments,
+//     streamer information, the top directory's key list), must lie
+//     inside the file;
+//   - every record, from the first to the end as laid out by ROOT (a key
+//     header, then the payload), must fit in the file, and a compressed
+//     one must consist of whole blocks whose uncompressed sizes add up to
+//     the record's declared size, each no larger than its algorithm can
+//     expand (zlib 1032:1, LZ4 255:1);
+//   - the LZ4 blocks of every basket match their XXH64 sum, and its zlib
+//     blocks their Adler-32 sum (by decompressing them). Other compression
+//     kinds, and baskets stored uncompressed, carry no checksum and cannot
+//     be checked.
+//
+// A file without ROOT's magic is left to go-hep to refuse. The error names
+// the byte offset, and the branch (the basket's key name) for a basket.
+func CheckFile(r io.ReaderAt, size int64) error {
+	var hdr [64]byte
+	n, _ := r.ReadAt(hdr[:], 0)
+	if n < 4 || string(hdr[:4]) != "root" {
+		return nil
+	}
+	if n < 57 {
+		return fmt.Errorf("damaged ROOT file: header cut short (%d bytes)", n)
+	}
+	be := binary.BigEndian
+	i32 := func(o int) int64 { return int64(int32(be.Uint32(hdr[o:]))) }
+	version := i32(4)
+	begin := i32(8)
+	var end, seekfree, nbytesfree, nbytesname, seekinfo, nbytesinfo int64
+	if version < 1000000 {
+		end, seekfree, nbytesfree, nbytesname = i32(12), i32(16), i32(20), i32(28)
+		seekinfo, nbytesinfo = i32(37), i32(41)
+	} else {
+		end, seekfree, nbytesfree, nbytesname = int64(be.Uint64(hdr[12:])), int64(be.Uint64(hdr[20:])), i32(28), i32(36)
+		seekinfo, nbytesinfo = int64(be.Uint64(hdr[45:])), i32(53)
+	}
+	if begin <= 0 || end < begin || end > size {
+		return fmt.Errorf("damaged ROOT file: the header says the records lie between bytes %d and %d, but the file has %d bytes", begin, end, size)
+	}
+	for _, rec := range []struct {
+		what        string
+		seek, bytes int64
+	}{{"free-segment", seekfree, nbytesfree}, {"streamer", seekinfo, nbytesinfo}} {
+		if rec.seek <= 0 {
+			continue
+		}
+		if rec.bytes < 0 || rec.seek > size || rec.bytes > size-rec.seek {
+			return fmt.Errorf("damaged ROOT file: the %s record of %d bytes at byte %d lies outside the file of %d bytes", rec.what, rec.bytes, rec.seek, size)
+		}
+		if _, err := checkRecord(r, rec.what+" record", rec.seek, size); err != nil {
+			return err
+		}
+	}
+	if err := checkKeyList(r, begin+nbytesname, size); err != nil {
+		return err
+	}
+	for pos := begin; pos < end; {
+		var nb [4]byte
+		if n, _ := r.ReadAt(nb[:], pos); n < 4 {
+			return fmt.Errorf("damaged ROOT file: record at byte %d cut short", pos)
+		}
+		if nbytes := int64(int32(be.Uint32(nb[:]))); nbytes < 0 { // a free gap
+			pos -= nbytes
+			continue
+		}
+		nbytes, err := checkRecord(r, "record", pos, end)
+		if err != nil {
+			return err
+		}
+		pos += nbytes
+	}
+	return nil
+}
+
+// checkKeyList checks the key list of the top directory, whose record
+// starts at byte dir: its size and place, its key header, and the number
+// of keys it declares against its length (each key takes at least 29
+// bytes: ROOT's key header with three empty strings).
+func checkKeyList(r io.ReaderAt, dir, size int64) error {
+	var d [42]byte
+	n, _ := r.ReadAt(d[:], dir)
+	if n < 18 {
+		return fmt.Errorf("damaged ROOT file: the top directory at byte %d is cut short", dir)
+	}
+	be := binary.BigEndian
+	nbyteskeys := int64(int32(be.Uint32(d[10:])))
+	seekkeys := int64(int32(be.Uint32(d[26:])))
+	if int16(be.Uint16(d[:])) > 1000 {
+		if n < 42 {
+			return fmt.Errorf("damaged ROOT file: the top directory at byte %d is cut short", dir)
+		}
+		seekkeys = int64(be.Uint64(d[34:]))
+	}
+	if seekkeys <= 0 {
+		return nil
+	}
+	if nbyteskeys < 0 || seekkeys > size || nbyteskeys > size-seekkeys {
+		return fmt.Errorf("damaged ROOT file: the key list of %d bytes at byte %d lies outside the file of %d bytes", nbyteskeys, seekkeys, size)
+	}
+	k, why := readKey(r, seekkeys, size)
+	if why == "" && k.objlen > size-seekkeys-k.keylen {
+		why = fmt.Sprintf("declares %d bytes, more than the file holds", k.objlen)
+	}
+	if why == "" {
+		var nk [4]byte
+		if n, _ := r.ReadAt(nk[:], seekkeys+k.keylen); n == 4 {
+			if nkeys := int64(int32(be.Uint32(nk[:]))); nkeys < 0 || nkeys > k.objlen/29 {
+				why = fmt.Sprintf("declares %d keys in %d bytes", nkeys, k.objlen)
+			}
+		}
+	}
+	if why != "" {
+		return fmt.Errorf("damaged ROOT file: the key list at byte %d %s", seekkeys, why)
+	}
+	return nil
+}
+
+// rootKey is the part of a ROOT key header that the checks use.
+type rootKey struct {
+	nbytes, objlen, keylen int64
+	class, name            string
+}
+
+// readKey decodes the key header at pos of a record that must end by
+// byte end; it returns what is wrong, or "".
+func readKey(r io.ReaderAt, pos, end int64) (rootKey, string) {
+	var b [256 + 64]byte
+	n, _ := r.ReadAt(b[:], pos)
+	if n < 26 {
+		return rootKey{}, "is cut short"
+	}
+	be := binary.BigEndian
+	k := rootKey{
+		nbytes: int64(int32(be.Uint32(b[:]))),
+		objlen: int64(int32(be.Uint32(b[6:]))),
+		keylen: int64(int16(be.Uint16(b[14:]))),
+	}
+	if k.nbytes < 26 || pos+k.nbytes > end {
+		return k, fmt.Sprintf("of %d bytes does not fit", k.nbytes)
+	}
+	if k.keylen < 26 || k.keylen > k.nbytes || k.objlen < 0 {
+		return k, fmt.Sprintf("has a key of %d bytes and an object of %d in %d bytes", k.keylen, k.objlen, k.nbytes)
+	}
+	s := 26
+	if int16(be.Uint16(b[4:])) > 1000 {
+		s = 34
+	}
+	var ok bool
+	if k.class, s, ok = tstring(b[:n], s); ok {
+		k.name, _, _ = tstring(b[:n], s)
+	}
+	return k, ""
+}
+
+// checkRecord checks the record at pos, called what in messages, which
+// must end by byte end: its key header, and for a compressed payload its
+// blocks (with their checksums for a basket). It returns the record's
+// size.
+func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
+	k, why := readKey(r, pos, end)
+	if why != "" {
+		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, why)
+	}
+	if k.objlen == k.nbytes-k.keylen {
+		return k.nbytes, nil
+	}
+	payload := make([]byte, k.nbytes-k.keylen)
+	if _, err := r.ReadAt(payload, pos+k.keylen); err != nil && err != io.EOF {
+		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d: %v", what, pos, err)
+	}
+	basket := k.class == "TBasket"
+	total, why := checkBlocks(payload, basket)
+	if why == "" && total != k.objlen {
+		why = fmt.Sprintf("declares %d bytes but its blocks hold %d", k.objlen, total)
+	}
+	switch {
+	case why == "":
+		return k.nbytes, nil
+	case basket:
+		return k.nbytes, fmt.Errorf("branch %q: the basket at byte %d is damaged (%s)", k.name, pos, why)
+	}
+	return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d (%s %q) is damaged (%s)", what, pos, k.class, k.name, why)
+}
+
+// tstring decodes a ROOT TString at b[s:]: one length byte (255: a
+// 4-byte length follows), then the bytes.
+func tstring(b []byte, s int) (string, int, bool) {
+	if s >= len(b) {
+		return "", s, false
+	}
+	n := int(b[s])
+	s++
+	if n == 255 {
+		if s+4 > len(b) {
+			return "", s, false
+		}
+		n = int(binary.BigEndian.Uint32(b[s:]))
+		s += 4
+	}
+	if n < 0 || s+n > len(b) {
+		return "", s, false
+	}
+	return string(b[s : s+n]), s + n, true
+}
+
+// checkBlocks checks the compressed blocks of a payload, each a 9-byte
+// header (algorithm, method, compressed and uncompressed sizes of 3 bytes
+// little-endian) then the block: they must tile the payload, and no
+// block may expand beyond what its algorithm can (zlib: 1032:1, Adler
+// 1995; LZ4: 255:1, the block format's longest match per byte). With sums,
+// the LZ4 blocks' XXH64 and the zlib blocks' Adler-32 are verified too.
+// It returns the uncompressed size and what is wrong, or "".
+func checkBlocks(p []byte, sums bool) (int64, string) {
+	var total int64
+	for len(p) > 0 {
+		if len(p) < 9 {
+			return total, "a block header cut short"
+		}
+		src := int(p[3]) | int(p[4])<<8 | int(p[5])<<16
+		tgt := int(p[6]) | int(p[7])<<8 | int(p[8])<<16
+		if 9+src > len(p) {
+			return total, "a block longer than the record"
+		}
+		block := p[9 : 9+src]
+		total += int64(tgt)
+		switch string(p[:2]) {
+		case "L4":
+			if sums && (len(block) < 8 || binary.BigEndian.Uint64(block) != xxHash64.Checksum(block[8:], 0)) {
+				return total, "LZ4 block checksum mismatch"
+			}
+			if tgt > 255*src+64 {
+				return total, fmt.Sprintf("an LZ4 block of %d bytes said to expand to %d", src, tgt)
+			}
+		case "ZL":
+			if tgt > 1032*src+64 {
+				return total, fmt.Sprintf("a zlib block of %d bytes said to expand to %d", src, tgt)
+			}
+			if !sums {
+				break
+			}
+			zr, err := zlib.NewReader(bytes.NewReader(block))
+			if err != nil {
+				return total, "zlib block: " + err.Error()
+			}
+			got, err := io.Copy(io.Discard, zr)
+			if err != nil {
+				return total, "zlib block: " + err.Error()
+			}
+			if got != int64(tgt) {
+				return total, fmt.Sprintf("zlib block of %d bytes, want %d", got, tgt)
+			}
+		}
+		p = p[9+src:]
+	}
+	return total, ""
+}
