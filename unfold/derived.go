@@ -58,9 +58,15 @@ type Derived interface {
 // ensemble's co-moments with its scratch.
 const derivedMatrices = 4
 
-// checkDerived returns a *TooLargeError when the dense covariances of the
-// derived quantities would not fit under the memory limit.
-func checkDerived(ds []Derived, nt, nr int, limit int64) error {
+// CheckDerived returns a *TooLargeError when the dense covariances of
+// the derived quantities ds (four Len×Len matrices each) would not fit
+// under limit bytes (0 for DefaultMemoryLimit), for a problem of nt
+// truth and nr reco bins; nil otherwise. Unfold checks it before the
+// unfolding whenever an uncertainty is computed.
+func CheckDerived(ds []Derived, nt, nr int, limit int64) error {
+	if limit == 0 {
+		limit = DefaultMemoryLimit
+	}
 	var b int64
 	for _, d := range ds {
 		m := int64(d.Len())
@@ -75,9 +81,13 @@ func checkDerived(ds []Derived, nt, nr int, limit int64) error {
 			largest = i
 		}
 	}
+	what := fmt.Sprintf("the dense covariances of %d derived quantities", len(ds))
+	if len(ds) == 1 {
+		what = "the dense covariances of the derived quantity"
+	}
 	return &TooLargeError{
-		What: fmt.Sprintf("the dense covariances of %d derived quantities (the largest, number %d, has %d bins: %d matrices of %d × %d each)",
-			len(ds), largest+1, ds[largest].Len(), derivedMatrices, ds[largest].Len(), ds[largest].Len()),
+		What: fmt.Sprintf("%s (the largest, number %d, has %d bins: %d matrices of %d × %d each)",
+			what, largest+1, ds[largest].Len(), derivedMatrices, ds[largest].Len(), ds[largest].Len()),
 		TruthBins: nt, RecoBins: nr, Columns: nr, Bytes: b, Limit: limit,
 		Alternative: "derive fewer bins (keep fewer axes, or project a smaller region), or raise the memory limit",
 	}

@@ -163,7 +163,7 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 		return nil, err
 	}
 	if rs.Covariance != NoCovariance {
-		if err := checkDerived(p.Derived, pr.nt, pr.nr, rs.MemoryLimit); err != nil {
+		if err := CheckDerived(p.Derived, pr.nt, pr.nr, rs.MemoryLimit); err != nil {
 			return nil, err
 		}
 	}

@@ -247,3 +247,34 @@ func TestRunDerivedReplicas(t *testing.T) {
 		}
 	}
 }
+
+// TestRunDerivedTooLarge checks that derived quantities whose dense
+// covariances do not fit under the memory limit are refused at
+// output.derived with their size, the largest named, before the
+// unfolding.
+func TestRunDerivedTooLarge(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(2000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(400, 6)[1]})
+	// 5 bins: 4 matrices of 5 × 5 × 8 bytes = 800 bytes each, above
+	// a limit of 5e-7 GiB (536 bytes).
+	const derived = `  luminosity: 2
+  derived:
+    - {name: big-shape, region: all, kind: shape}
+`
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
+		"  iterations: 4\n", "  iterations: 4\n  memory_limit_gib: 5e-7\n", "covariance: full", "covariance: diag").Replace(analysisTemplate)
+	p := filepath.Join(dir, "analysis.yaml")
+	if err := os.WriteFile(p, []byte(src), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	a, err := Load(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	if err == nil || !strings.Contains(err.Error(), "analysis.yaml:") || !strings.Contains(err.Error(), "output.derived") ||
+		!strings.Contains(err.Error(), `"big-shape"`) || !strings.Contains(err.Error(), "800 B") {
+		t.Fatalf("got %v", err)
+	}
+}

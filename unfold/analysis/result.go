@@ -89,8 +89,8 @@ func (a *Analysis) Run(ctx context.Context, opt *Options, replace bool) (*Outcom
 			return nil, err
 		}
 	}
-	for _, q := range a.Output.Derived {
-		p.Derived = append(p.Derived, q)
+	if err := a.derivedFit(p, s); err != nil {
+		return nil, err
 	}
 	out.Problem = p
 	ref, err := a.Reference()
