@@ -2,6 +2,7 @@ package unfold
 
 import (
 	"fmt"
+	"math"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -131,13 +132,26 @@ func shiftDerived(ds []*RowMatrix, d []float64) []*mat.SymDense {
 // jacobianDerived returns, for each Jacobian D, (D J) diag(v) (D J)ᵀ
 // with J the dense Jacobian of the estimate and v the variances of its
 // columns: the exact first-order derived covariance of the data source.
+// D J (m rows, m ≤ the truth bins) is formed in jc.Work, the method's
+// scratch buffer, which is free once the Jacobian is in jc.Data, scaled
+// by √v, and multiplied with gonum's symmetric rank-k update.
 func jacobianDerived(ds []*RowMatrix, jc *Jacobian, v []float64) []*mat.SymDense {
 	if ds == nil {
 		return nil
 	}
+	sd := make([]float64, len(v))
+	for q, x := range v {
+		sd[q] = math.Sqrt(max(x, 0))
+	}
 	out := make([]*mat.SymDense, len(ds))
 	for i, D := range ds {
-		dj := make([]float64, D.Rows*jc.Cols) // D J, row-major
+		n := D.Rows * jc.Cols
+		dj := jc.Work
+		if len(dj) < n {
+			dj = make([]float64, n)
+		}
+		dj = dj[:n]
+		clear(dj)
 		for t := range D.Rows {
 			row := dj[t*jc.Cols : (t+1)*jc.Cols]
 			for p := D.Ptr[t]; p < D.Ptr[t+1]; p++ {
@@ -147,18 +161,13 @@ func jacobianDerived(ds []*RowMatrix, jc *Jacobian, v []float64) []*mat.SymDense
 					row[q] += w * x
 				}
 			}
+			for q := range row {
+				row[q] *= sd[q]
+			}
 		}
 		c := mat.NewSymDense(D.Rows, nil)
-		for t := range D.Rows {
-			a := dj[t*jc.Cols : (t+1)*jc.Cols]
-			for u := t; u < D.Rows; u++ {
-				b := dj[u*jc.Cols : (u+1)*jc.Cols]
-				var s float64
-				for q, x := range a {
-					s += x * b[q] * v[q]
-				}
-				c.SetSym(t, u, s)
-			}
+		if D.Rows > 0 && jc.Cols > 0 {
+			c.SymOuterK(1, mat.NewDense(D.Rows, jc.Cols, dj))
 		}
 		out[i] = c
 	}

@@ -232,13 +232,14 @@ func TestDerivedToysSameSamples(t *testing.T) {
 }
 
 // TestDerivedSameBitsForAnyCores checks the determinism rule for the
-// derived covariances of probes, toys and response samples: GOMAXPROCS
+// derived covariances of the exact Jacobian, probes, toys and response
+// samples: GOMAXPROCS
 // 1, 2 and 4 give the same bits (common practice: fixed streams per
 // unit, summed in unit order).
 func TestDerivedSameBitsForAnyCores(t *testing.T) {
 	p, ds := derivedProblem(t)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
-	for _, dm := range []unfold.DiagonalMethod{unfold.DiagonalProbes, unfold.DiagonalToys} {
+	for _, dm := range []unfold.DiagonalMethod{unfold.DiagonalExact, unfold.DiagonalProbes, unfold.DiagonalToys} {
 		var ref *unfold.Result
 		for _, procs := range []int{1, 2, 4} {
 			runtime.GOMAXPROCS(procs)
