@@ -233,9 +233,8 @@ func TestDerivedToysSameSamples(t *testing.T) {
 
 // TestDerivedSameBitsForAnyCores checks the determinism rule for the
 // derived covariances of the exact Jacobian, probes, toys and response
-// samples: GOMAXPROCS
-// 1, 2 and 4 give the same bits (common practice: fixed streams per
-// unit, summed in unit order).
+// samples: GOMAXPROCS 1, 2 and 4 give the same bits (common practice:
+// fixed streams per unit, summed in unit order).
 func TestDerivedSameBitsForAnyCores(t *testing.T) {
 	p, ds := derivedProblem(t)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
