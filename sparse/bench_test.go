@@ -1,6 +1,7 @@
 package sparse
 
 import (
+	"fmt"
 	"math/rand/v2"
 	"runtime"
 	"runtime/metrics"
@@ -384,4 +385,62 @@ func BenchmarkSweepBlock(b *testing.B) {
 	b.ReportMetric(mb/ms, "block8/8sweeps")
 	b.ReportMetric(bw/1e9, "triad-GB/s")
 	b.ReportMetric(mb/(bytes/bw), "x-floor-block8")
+}
+
+// BenchmarkSweepPartition: the fused EM sweep of BenchmarkSweep over the
+// fine grid with the fixed partition aimed at targetBlocks blocks and
+// with partitions of 4x and 16x as many (smaller) blocks, in turn in the
+// same loop, 10 sweeps each per round; reports the medians over the
+// rounds and the medians of each round's ratio to the default. More
+// blocks than goroutines let a goroutine whose core is taken by another
+// process hold up less of a phase, at the price of more phase tasks.
+func BenchmarkSweepPartition(b *testing.B) {
+	m := fineMatrix(b)
+	x, eps := make([]float64, m.cols), make([]float64, m.cols)
+	m.ColSums(eps)
+	y, next := make([]float64, m.rows), make([]float64, m.rows)
+	for i := range y {
+		y[i] = 1
+	}
+	update := func(j int, g float64) float64 {
+		v := x[j] * g / eps[j]
+		x[j] = v
+		return v
+	}
+	factors := []int{1, 4, 16}
+	ms := make([]*Matrix, len(factors))
+	for k, f := range factors {
+		c := *m
+		c.part = newPartitionBlocks(m.rows, m.colPtr, m.rowIdx, minBlockNNZ/f, targetBlocks*f)
+		ms[k] = &c
+	}
+	d := make([][]time.Duration, len(ms))
+	r := make([][]float64, len(ms))
+	b.ResetTimer()
+	for range b.N {
+		var t [3]time.Duration
+		for range 10 {
+			for k, c := range ms {
+				for j := range x {
+					x[j] = 1
+				}
+				t0 := time.Now()
+				c.Sweep(next, y, update)
+				t[k] += time.Since(t0)
+			}
+		}
+		for k := range ms {
+			d[k] = append(d[k], t[k]/10)
+			r[k] = append(r[k], float64(t[k])/float64(t[0]))
+		}
+	}
+	b.StopTimer()
+	for k, f := range factors {
+		slices.Sort(d[k])
+		slices.Sort(r[k])
+		b.ReportMetric(d[k][len(d[k])/2].Seconds()*1e3, fmt.Sprintf("ms/sweep-x%d-%dblocks", f, ms[k].part.blocks()))
+		if f > 1 {
+			b.ReportMetric(r[k][len(r[k])/2], fmt.Sprintf("x%d/default", f))
+		}
+	}
 }

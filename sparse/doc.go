@@ -31,6 +31,8 @@
 // that gathers Aᵀ y column by column, lets the caller update the column's
 // unknown and scatters the column into the next fold), SweepRows (Sweep
 // that also hands each fixed range of rows to the caller once final),
+// SweepHooks (SweepRows that also hands each column block over once
+// updated),
 // ColSums, RowSums and ScaleCols write into caller-owned slices and do not
 // allocate after warm-up. Large matrices are processed in parallel over a fixed
 // partition of the columns decided from the matrix structure alone; the

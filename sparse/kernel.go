@@ -69,10 +69,16 @@ func newPartition(rows int, colPtr, rowIdx []int) *partition {
 // newPartitionMin is newPartition with another smallest block size (tests
 // use it to cut small matrices into many blocks).
 func newPartitionMin(rows int, colPtr, rowIdx []int, minBlock int) *partition {
+	return newPartitionBlocks(rows, colPtr, rowIdx, minBlock, targetBlocks)
+}
+
+// newPartitionBlocks is newPartitionMin aiming for another number of
+// blocks (benchmarks compare partitions with it).
+func newPartitionBlocks(rows int, colPtr, rowIdx []int, minBlock, blocks int) *partition {
 	cols := len(colPtr) - 1
 	nnz := colPtr[cols]
 	p := &partition{rows: rows, cols: cols, nnz: nnz, parallel: nnz >= parallelNNZ}
-	target := min(max(nnz/targetBlocks, minBlock), maxBlockNNZ)
+	target := min(max(nnz/blocks, minBlock), maxBlockNNZ)
 	p.split(target, colPtr, rowIdx)
 	if !p.color() {
 		for len(p.lo) > 1 && p.off[len(p.lo)] > bufferPerRows*rows+minBlock {

@@ -446,3 +446,18 @@ func BenchmarkFineIterationSweep(b *testing.B) {
 	b.ReportMetric(median(te).Seconds()*1e3, "ms/em-sweep")
 	b.ReportMetric(med(re), "iteration/em-sweep")
 }
+
+// BenchmarkFineToys: per-bin variances from 20 Poisson toys of 4
+// iterations at the fine grid (one whole Unfold call per round, the
+// nominal unfolding included), for profiles of the toy path.
+func BenchmarkFineToys(b *testing.B) {
+	p := fineProblem(b)
+	ctx := context.Background()
+	s := &unfold.Settings{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: 20, Seed: 1}
+	b.ResetTimer()
+	for range b.N {
+		if _, err := unfold.Unfold(ctx, p, s, &Settings{Iterations: 4}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

@@ -22,12 +22,18 @@
 //     A reco bin with ν_i = 0 contributes nothing.
 //
 // Each iteration is one fused pass over the matrix
-// (sparse.Matrix.SweepRows): the sweep gathers g_j = (Rᵀ y)_j with
+// (sparse.Matrix.SweepHooks): the sweep gathers g_j = (Rᵀ y)_j with
 // y = n/ν, forms μ_j' = μ_j g_j / eps_j and scatters R μ' into the next
 // fold; as each fixed row range of that fold is final, the sweep's rows
 // hook forms the next ν, n/ν and the range's share of the
-// log-likelihood. The log-likelihood is summed within each row range of
-// the matrix (sparse.Matrix.RowRanges) and the ranges in order.
+// log-likelihood, and as each column block is updated, its column hook
+// sums the block's share of χ² and of the change. The log-likelihood is
+// summed within each row range of the matrix (sparse.Matrix.RowRanges)
+// and the ranges in order; χ² and the change within fixed chunks of
+// truth bins and the chunks in order. Runs whose details are not kept
+// (toys, the re-runs of the uncertainties, refits, an Unfolder with
+// RecordLogLikelihood(false)) skip the log-likelihood; the estimates
+// keep their bits.
 //
 // With unfold.Settings.Background = unfold.Subtract the background is removed from the
 // data first, n' = max(n − b, 0), and the iteration runs with b = 0 in ν;
