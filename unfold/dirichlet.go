@@ -135,7 +135,7 @@ func gammaRand(rng *rand.Rand, a float64) float64 {
 // problem, and are added to the ensemble in sample order, so the bits do
 // not depend on the number of cores. det are the nominal determined
 // bins; the source is 0 elsewhere.
-func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det []bool) (*Source, error) {
+func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det []bool, ds []*RowMatrix) (*Source, error) {
 	alpha, alpha0, err := DirichletParams(p, rs.SamplingPrior)
 	if err != nil {
 		return nil, err
@@ -173,6 +173,7 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 	nt := len(p.Generated)
 	full := rs.Covariance == Full
 	ens := NewEnsemble(nt, full)
+	dens := derivedEnsembles(ds)
 	colPtr := p.Migrations.ColPtr()
 	for s0 := 0; s0 < samples; s0 += workers {
 		if err := ctx.Err(); err != nil {
@@ -200,9 +201,12 @@ func responseSource(ctx context.Context, p *Problem, rs *Settings, m Method, det
 				return nil, fmt.Errorf("response sample %d: %w", s0+w, sl.err)
 			}
 			ens.Add(sl.est)
+			addDerived(dens, ds, sl.est)
 		}
 	}
-	return EnsembleSource(SourceSimulation, MethodDirichlet, ens, det), nil
+	src := EnsembleSource(SourceSimulation, MethodDirichlet, ens, det)
+	src.Derived = ensembleDerived(dens)
+	return src, nil
 }
 
 // EnsembleSource returns the source name, obtained with method, of the
@@ -245,6 +249,13 @@ func EnsembleSource(name, method string, ens *Ensemble, det []bool) *Source {
 // Errors: those of s.Resolve; those of problem, Prepare and the method,
 // prefixed with "k: "; ctx.Err().
 func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
+	return UnfoldEachFunc(ctx, func(_ int, est []float64) { ens.Add(est) }, s, m, k0, k1, problem)
+}
+
+// UnfoldEachFunc is UnfoldEach calling add(k, estimate) for each problem
+// k in the order of k, from the calling goroutine, instead of adding to
+// an ensemble; the estimate is valid during the call only.
+func UnfoldEachFunc(ctx context.Context, add func(k int, est []float64), s *Settings, m Method, k0, k1 int, problem func(k int) (*Problem, error)) error {
 	rs, err := s.Resolve()
 	if err != nil {
 		return err
@@ -280,7 +291,7 @@ func UnfoldEach(ctx context.Context, ens *Ensemble, s *Settings, m Method, k0, k
 			if errs[w] != nil {
 				return fmt.Errorf("%d: %w", b0+w, errs[w])
 			}
-			ens.Add(est[w])
+			add(b0+w, est[w])
 		}
 	}
 	return nil

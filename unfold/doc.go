@@ -82,6 +82,16 @@
 // outer product of the shift (method.md §21); CheckSourceCovariances
 // refuses dense source covariances above the memory limit.
 //
+// Quantities derived from the estimate (Problem.Derived: a Derived gives
+// its Jacobian D at the estimate as a RowMatrix, Result.DerivedJacobians)
+// get their covariance D Cov Dᵀ from every source by itself, without the
+// full covariance (Source.Derived, summed by Result.DerivedCovariance;
+// method.md §22): from the dense Jacobian for the exact variances, from
+// the same probes, from ensembles of D μ_k of the same toys, samples and
+// replicas (DerivedEnsembles, AddDerived, UnfoldEachFunc), and from D
+// times a shift; Unfold refuses derived quantities whose dense
+// covariances would not fit under the memory limit.
+//
 // # Conventions
 //
 // Unfold returns errors for everything that depends on the inputs:

@@ -63,6 +63,12 @@ type Result struct {
 	StepEstimates [][]float64
 	StepVariance  [][]float64
 
+	// DerivedJacobians holds D = ∂y/∂μ at Estimate for each derived
+	// quantity of the problem (Problem.Derived), nil without them or
+	// without an uncertainty computation; the sources' Derived
+	// covariances propagate through them.
+	DerivedJacobians []*RowMatrix
+
 	// Details holds what is particular to the method (Fit.Details), for
 	// example the iteration history of the iterative method.
 	Details any
@@ -156,6 +162,11 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 	if err != nil {
 		return nil, err
 	}
+	if rs.Covariance != NoCovariance {
+		if err := CheckDerived(p.Derived, pr.nt, pr.nr, rs.MemoryLimit); err != nil {
+			return nil, err
+		}
+	}
 	fit, err := m.Fit(ctx, pr)
 	if err != nil {
 		return nil, err
@@ -176,11 +187,14 @@ func Unfold(ctx context.Context, p *Problem, s *Settings, m Method) (*Result, er
 		res.Folded[i] += b
 	}
 	res.Seed = rs.Seed
+	if rs.Covariance != NoCovariance {
+		res.DerivedJacobians = derivedJacobians(p.Derived, res.Estimate)
+	}
 	if err := plan.finish(ctx, fit, res); err != nil {
 		return nil, err
 	}
 	if rs.ResponseSamples > 0 {
-		src, err := responseSource(ctx, p, &rs, m, res.Determined)
+		src, err := responseSource(ctx, p, &rs, m, res.Determined, res.DerivedJacobians)
 		if err != nil {
 			return nil, err
 		}

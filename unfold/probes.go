@@ -3,6 +3,8 @@ package unfold
 import (
 	"math"
 	"math/rand/v2"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // Stream offsets of the random generators: probe s uses the PCG stream
@@ -162,6 +164,18 @@ func (pr *Probes) Net(s int) float64 {
 // Tangent returns dμ_s, the truth-sized vector the method fills for
 // probe s.
 func (pr *Probes) Tangent(s int) []float64 { return pr.dmu[s] }
+
+// accumulateDerived adds Σ_s (D dμ_s)(D dμ_s)ᵀ of this batch to sum[i]
+// for each Jacobian D = ds[i], in probe order (method.md §22).
+func (pr *Probes) accumulateDerived(sum []*mat.SymDense, ds []*RowMatrix) {
+	for i, D := range ds {
+		y := mat.NewVecDense(D.Rows, nil)
+		for s := 0; s < pr.count; s++ {
+			D.Apply(y.RawVector().Data, pr.dmu[s])
+			sum[i].SymRankOne(sum[i], 1, y)
+		}
+	}
+}
 
 // accumulate adds Σ_s dμ_s² of this batch to sum, in probe order.
 func (pr *Probes) accumulate(sum []float64) {

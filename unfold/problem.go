@@ -42,6 +42,13 @@ type Problem struct {
 	// Prior p_j is the starting shape; nil means Generated. Only its
 	// shape matters, it is scaled to the data.
 	Prior []float64
+
+	// Derived lists quantities derived from the estimate (projections,
+	// shapes) whose covariance every source of uncertainty propagates
+	// by itself, without the full covariance of the estimate
+	// (Source.Derived, Result.DerivedCovariance; method.md §22); nil
+	// for none.
+	Derived []Derived
 }
 
 // Prepared is a validated Problem in the form every method uses: the

@@ -42,6 +42,13 @@ type Source struct {
 	// (ShiftSource, PairSource); nil for the statistical sources. Up and
 	// Down are the one-sided shifts of an up/down pair (nil otherwise).
 	Shift, Up, Down []float64
+	// Derived holds the source's covariance of each derived quantity of
+	// the problem (Problem.Derived), in order, computed from the source
+	// itself (method.md §22): exactly from the Jacobian or the shift,
+	// or from the same probes or samples as Variance (with its
+	// Precision); nil when the problem has none or the source could not
+	// give them. AddSource fills it for a shift.
+	Derived []*mat.SymDense
 }
 
 // AddSource appends s to r.Sources and sets the totals: r.Uncertainty to
@@ -55,6 +62,9 @@ func (r *Result) AddSource(s Source) {
 	nt := len(r.Estimate)
 	if len(s.Variance) != nt || (s.Covariance != nil && s.Covariance.SymmetricDim() != nt) {
 		panic("unfold: a source of the wrong length")
+	}
+	if s.Derived == nil && s.Shift != nil {
+		s.Derived = shiftDerived(r.DerivedJacobians, s.Shift)
 	}
 	r.Sources = append(r.Sources, s)
 	if r.Uncertainty == nil || len(r.Sources) == 1 {

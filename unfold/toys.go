@@ -87,7 +87,7 @@ func gammaData(m *Prepared, prior SamplingPrior, seed uint64, t int, n, b []floa
 // maxWorkers toys run at once.
 //
 // draw fills the pseudo-data of toy t (toyData or gammaData).
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64), maxWorkers int) ([]float64, [][]float64, error) {
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64), maxWorkers int, ds []*RowMatrix, dens []*Ensemble) ([]float64, [][]float64, error) {
 	workers := max(1, min(runtime.GOMAXPROCS(0), toys, maxWorkers))
 	type slot struct {
 		run   ToyRunner
@@ -147,6 +147,7 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func
 				return nil, nil, sl.err
 			}
 			all.Add(sl.est)
+			addDerived(dens, ds, sl.est)
 			for k, e := range per {
 				e.Add(sl.steps[k])
 			}

@@ -176,6 +176,8 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	}
 	var variance []float64
 	var cov *mat.SymDense
+	var derived []*mat.SymDense
+	ds := res.DerivedJacobians
 	switch {
 	case pl.method == NoCovariance:
 		return nil
@@ -193,6 +195,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		if err := fit.Jacobian(ctx, jc); err != nil {
 			return err
 		}
+		derived = jacobianDerived(ds, jc, pl.columnVariances())
 		if pl.method == Full {
 			c, err := jc.covariance(ctx, pl.columnVariances())
 			if err != nil {
@@ -210,6 +213,10 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 	case pl.diag == DiagonalProbes:
 		sum := make([]float64, m.nt)
 		var pr *Probes
+		derived = make([]*mat.SymDense, len(ds))
+		for i, D := range ds {
+			derived[i] = mat.NewSymDense(D.Rows, nil)
+		}
 		n := len(steps(fit))
 		if n > 0 {
 			res.StepVariance = make([][]float64, n)
@@ -231,9 +238,13 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 				return err
 			}
 			pr.accumulate(sum)
+			pr.accumulateDerived(derived, ds)
 		}
 		for j := range sum {
 			sum[j] /= float64(pl.rs.Probes)
+		}
+		for _, c := range derived {
+			c.ScaleSym(1/float64(pl.rs.Probes), c)
 		}
 		for _, v := range res.StepVariance {
 			for j := range v {
@@ -257,10 +268,12 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 			st = Stream{Unit: "gamma-sample", Offset: gammaStream}
 		}
 		res.Streams = append(res.Streams, st)
-		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers)
+		dens := derivedEnsembles(ds)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers, ds, dens)
 		if err != nil {
 			return err
 		}
+		derived = ensembleDerived(dens)
 		variance, res.StepVariance = v, sv
 		res.Samples = pl.rs.Toys
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Toys-1))
@@ -271,6 +284,6 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		}
 	}
 	res.AddSource(Source{Name: SourceData, Method: res.UncertaintyMethod, Variance: variance, Covariance: cov,
-		Precision: res.UncertaintyPrecision, Samples: res.Samples})
+		Precision: res.UncertaintyPrecision, Samples: res.Samples, Derived: derived})
 	return nil
 }

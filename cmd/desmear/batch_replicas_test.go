@@ -91,6 +91,36 @@ func TestBatchReplicas(t *testing.T) {
 		}
 		sameResults(t, single, out)
 	}
+	// With the per-bin variances only, a derived quantity's covariance
+	// comes from the replicas' ensembles of D μ_r (method.md §22), which
+	// the shard files carry: the merge writes the single run's folder.
+	b, err := os.ReadFile(an)
+	if err != nil {
+		t.Fatal(err)
+	}
+	diag := filepath.Join(filepath.Dir(an), "diag.yaml")
+	b = bytes.Replace(b, []byte("covariance: full"), []byte("covariance: diag"), 1)
+	b = bytes.Replace(b, []byte("\noutput:\n"), []byte("\noutput:\n  derived:\n    - {name: y-proj, region: central, kind: projection, axes: [y]}\n"), 1)
+	b = bytes.Replace(b, []byte("folder: result"), []byte("folder: result-diag"), 1)
+	if err := os.WriteFile(diag, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, so, errs := runCLI(t, ctx, "unfold", diag, "--force", "-q"); code != 0 {
+		t.Fatalf("unfold diag: exit %d\n%s\n%s\n%s", code, so, errs, b)
+	}
+	singleDiag := filepath.Join(filepath.Dir(an), "result-diag")
+	if d, _ := os.ReadFile(filepath.Join(singleDiag, "derived-y-proj.csv")); !bytes.Contains(d, []byte("uncertainty")) {
+		t.Fatalf("the diag run's derived-y-proj.csv has no uncertainty:\n%s", d)
+	}
+	{
+		w, out := filepath.Join(tmp, "work-diag"), filepath.Join(tmp, "result-diag")
+		for _, args := range [][]string{{"batch", "plan", diag, "--replicas", "120", "--shards", "2", "--workdir", w, "--out", out}, {"batch", "run-local", w, "-q"}, {"batch", "merge", w, "-q"}} {
+			if code, so, errs := runCLI(t, ctx, args...); code != 0 {
+				t.Fatalf("%v: exit %d\n%s\n%s", args, code, so, errs)
+			}
+		}
+		sameResults(t, singleDiag, out)
+	}
 	// A variations plan of the same file computes the replicas in its merge.
 	w, out := filepath.Join(tmp, "variations"), filepath.Join(tmp, "result-variations")
 	if code, so, errs := runCLI(t, ctx, "batch", "plan", an, "--variations", "--shards", "2", "--workdir", w, "--out", out); code != 0 {

@@ -46,6 +46,7 @@ type Analysis struct {
 	ResponseFile string
 	responseLine int
 	replicasLine int // of uncertainty.replicas
+	derivedLine  int // of output.derived
 
 	Data        Data
 	Backgrounds []Background
@@ -432,6 +433,7 @@ func Decode(src []byte, path string) (*Analysis, error) {
 		}
 	}
 	c.derived(a, o.Derived)
+	a.derivedLine = c.line("output", "derived")
 	c.stress(a, doc.Validation.Stress)
 	if nodeAt(root, "compare") != nil {
 		a.Compare = c.path("compare", doc.Compare, c.keyLine("compare"), c.line("compare"))

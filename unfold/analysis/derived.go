@@ -5,6 +5,7 @@ import (
 	"slices"
 	"strings"
 
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/derive"
 	"github.com/desmear/desmear/unfold/result"
 )
@@ -71,4 +72,34 @@ func (c *checker) derived(a *Analysis, docs []derivedDoc) {
 		}
 		a.Output.Derived = append(a.Output.Derived, q)
 	}
+}
+
+// derivedFit gives the derived quantities to the problem p, whose
+// sources then propagate their covariances by themselves, after checking
+// that their dense covariances fit under the memory limit of s: a
+// quantity too large is refused at output.derived, with its size.
+func (a *Analysis) derivedFit(p *unfold.Problem, s *unfold.Settings) error {
+	if len(a.Output.Derived) == 0 {
+		return nil
+	}
+	rs, err := s.Resolve()
+	if err != nil {
+		return err
+	}
+	var ds []unfold.Derived
+	largest := a.Output.Derived[0]
+	for _, q := range a.Output.Derived {
+		ds = append(ds, q)
+		if q.Len() > largest.Len() {
+			largest = q
+		}
+	}
+	if rs.Covariance != unfold.NoCovariance {
+		if err := unfold.CheckDerived(ds, a.Truth.Len(), a.Reco.Len(), rs.MemoryLimit); err != nil {
+			return &Error{File: a.File, Line: a.derivedLine, Field: "output.derived", Err: err,
+				Msg: fmt.Sprintf("%v (the largest is %q; unfolding.memory_limit_gib sets the limit)", err, largest.Spec().Name)}
+		}
+	}
+	p.Derived = ds
+	return nil
 }

@@ -79,7 +79,9 @@ func TestDerivedDecode(t *testing.T) {
 // density is the estimate of each in-range bin divided by its width and
 // the luminosity, with the uncertainty divided alike; the shape sums to
 // one and is marked singular (method.md §22 Derived quantities). With
-// the variances only, no uncertainty is given and the note says why.
+// the variances only (exact per-bin variances on this small problem),
+// every source propagates its own derived covariance, which equals
+// D Cov Dᵀ of the full mode to rounding (method.md §22).
 func TestRunDerived(t *testing.T) {
 	dir := t.TempDir()
 	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(20000, 5))
@@ -89,6 +91,7 @@ func TestRunDerived(t *testing.T) {
     - {name: xs, region: all, kind: density, divide_by_widths: [x], luminosity: true}
     - {name: shape, region: all, kind: shape}
 `
+	fullUnc := map[string][]float64{}
 	for _, cov := range []string{"full", "diag"} {
 		src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
 			"covariance: full", "covariance: "+cov, "folder: result", "folder: result-"+cov).Replace(analysisTemplate)
@@ -141,7 +144,20 @@ func TestRunDerived(t *testing.T) {
 				}
 			}
 		}
-		if math.Abs(sum-1) > 1e-12 || sh.Singular != (cov == "full") || sh.Kind != "shape" {
+		for _, d := range doc.Derived {
+			if cov == "full" {
+				fullUnc[d.Name] = d.Unc
+				continue
+			}
+			// The exact data source propagated without the full
+			// covariance: D J diag(v) Jᵀ Dᵀ = D Cov Dᵀ (method.md §22).
+			for j, u := range fullUnc[d.Name] {
+				if math.Abs(d.Unc[j]-u) > 1e-10*u {
+					t.Errorf("diag: %s uncertainty %d: %v; full mode %v", d.Name, j, d.Unc[j], u)
+				}
+			}
+		}
+		if math.Abs(sum-1) > 1e-12 || !sh.Singular || sh.Kind != "shape" {
 			t.Errorf("%s: shape sums to %v, singular %v", cov, sum, sh.Singular)
 		}
 		table, err := os.ReadFile(filepath.Join(out.Folder, "derived-xs.csv"))
@@ -150,9 +166,6 @@ func TestRunDerived(t *testing.T) {
 		}
 		lines := strings.Split(strings.TrimSpace(string(table)), "\n")
 		header := "index,x_low,x_high,value,uncertainty"
-		if cov == "diag" {
-			header = "index,x_low,x_high,value"
-		}
 		if lines[0] != header || len(lines) != 6 || !strings.HasPrefix(lines[5], "4,2,3,") {
 			t.Errorf("%s: derived-xs.csv:\n%s", cov, table)
 		}
@@ -163,9 +176,105 @@ func TestRunDerived(t *testing.T) {
 				t.Errorf("full: covariance file %q (%v), note %q", sh.CovarianceFile, err, sh.Note)
 			}
 		case "diag":
-			if err == nil || xs.Unc != nil || !strings.Contains(xs.Note, "needs the full covariance") {
+			if err != nil || xs.Unc == nil || !strings.Contains(xs.Note, "source by source") || !strings.Contains(sh.Note, "singular") {
 				t.Errorf("diag: covariance file present or uncertainty %v, note %q", xs.Unc, xs.Note)
 			}
 		}
+	}
+}
+
+// TestRunDerivedReplicas checks that bootstrap replicas propagate their
+// own derived covariance under per-bin variances: the same replicas
+// (the same seed) give D Cov Dᵀ of the full mode, with the exact data
+// source, to rounding (method.md §22 Derived quantities, §25 Bootstrap
+// replicas of the simulated events, §18 on the sources adding).
+func TestRunDerivedReplicas(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(20000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(4000, 6)[1]})
+	const derived = `  luminosity: 2
+  derived:
+    - {name: xs, region: all, kind: density, divide_by_widths: [x], luminosity: true}
+    - {name: shape, region: all, kind: shape}
+`
+	unc := map[string][][]float64{}
+	for _, cov := range []string{"full", "diag"} {
+		src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
+			"covariance: full\n", "covariance: "+cov+"\n  replicas: 20\n  seed: 3\n", "folder: result", "folder: result-"+cov).Replace(analysisTemplate)
+		p := filepath.Join(dir, "analysis-"+cov+".yaml")
+		if err := os.WriteFile(p, []byte(src), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		a, err := Load(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		out, err := a.Run(context.Background(), nil, false)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if out.Result.Source("simulation") == nil || (cov == "diag") != (out.Result.Covariance == nil) {
+			t.Fatalf("%s: no replicas' source, or the covariance %v", cov, out.Result.Covariance != nil)
+		}
+		var doc struct {
+			Derived []struct {
+				Name, Note string
+				Unc        []float64 `json:"uncertainty"`
+			} `json:"derived"`
+		}
+		raw, err := os.ReadFile(filepath.Join(out.Folder, "result.json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(raw, &doc); err != nil {
+			t.Fatal(err)
+		}
+		for i, d := range doc.Derived {
+			if d.Unc == nil {
+				t.Fatalf("%s: %s has no uncertainty: %s", cov, d.Name, d.Note)
+			}
+			unc[cov] = append(unc[cov], d.Unc)
+			if cov == "diag" && !strings.Contains(d.Note, "simulation: from the same 20") {
+				t.Errorf("diag: note %q", d.Note)
+			}
+			if cov == "diag" {
+				for j, u := range unc["full"][i] {
+					if math.Abs(d.Unc[j]-u) > 1e-9*u {
+						t.Errorf("diag: %s uncertainty %d: %v; full mode %v", d.Name, j, d.Unc[j], u)
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestRunDerivedTooLarge checks that derived quantities whose dense
+// covariances do not fit under the memory limit are refused at
+// output.derived with their size, the largest named, before the
+// unfolding.
+func TestRunDerivedTooLarge(t *testing.T) {
+	dir := t.TempDir()
+	writeSample(t, filepath.Join(dir, "sim.csv"), simColumns, simEvents(2000, 5))
+	writeSample(t, filepath.Join(dir, "data.csv"), []string{"x"}, [][]float64{simEvents(400, 6)[1]})
+	// 5 bins: 4 matrices of 5 × 5 × 8 bytes = 800 bytes each, above
+	// a limit of 5e-7 GiB (536 bytes).
+	const derived = `  luminosity: 2
+  derived:
+    - {name: big-shape, region: all, kind: shape}
+`
+	src := strings.NewReplacer("SIM", "sim.csv", "DATA", "data.csv", "  luminosity: 2\n", derived,
+		"  iterations: 4\n", "  iterations: 4\n  memory_limit_gib: 5e-7\n", "covariance: full", "covariance: diag").Replace(analysisTemplate)
+	p := filepath.Join(dir, "analysis.yaml")
+	if err := os.WriteFile(p, []byte(src), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	a, err := Load(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = a.Run(context.Background(), nil, false)
+	if err == nil || !strings.Contains(err.Error(), "analysis.yaml:") || !strings.Contains(err.Error(), "output.derived") ||
+		!strings.Contains(err.Error(), `"big-shape"`) || !strings.Contains(err.Error(), "800 B") {
+		t.Fatalf("got %v", err)
 	}
 }

@@ -24,7 +24,10 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 
 // Replicas computes the Poisson bootstrap replicas r0 ≤ r < r1 of the
 // simulated events (method.md §25) and returns the ensemble of their
-// estimates, full when s asks for the full covariance: each replica's
+// estimates, full when s asks for the full covariance, and the ensembles
+// of D μ_r for each derived Jacobian D of ds (unfold.DerivedEnsembles;
+// nil for none), whose covariances are the replicas' derived
+// covariances (method.md §22): each replica's
 // response (migrations on the pattern of p, generated counts and, when
 // the fakes are background, the fakes in place of the nominal ones) is
 // unfolded with method m and the nominal data of p (with negative cells
@@ -41,19 +44,27 @@ func ReplicaBlock(p *unfold.Problem, limit int64) int {
 // whose response cannot be unfolded with the data (an *unfold.InputError
 // wrapped with the replica's number: too few simulated events reach a
 // reco bin), *unfold.SettingsError, ctx.Err().
-func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, opt *Options) (*unfold.Ensemble, error) {
-	es, err := a.replicaEnsembles(ctx, nominal, p, s, m, r0, r1, max(1, r1-r0), opt)
+func (a *Analysis) Replicas(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1 int, ds []*unfold.RowMatrix, opt *Options) (*unfold.Ensemble, []*unfold.Ensemble, error) {
+	es, err := a.replicaEnsembles(ctx, nominal, p, s, m, r0, r1, max(1, r1-r0), ds, opt)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	return es[0], nil
+	return es[0].Estimate, es[0].Derived, nil
 }
 
-// replicaEnsembles is Replicas with an ensemble of its own for every
+// ReplicaEnsembles are the ensembles of a unit of bootstrap replicas:
+// of their estimates, and of D μ_r for each derived Jacobian D (nil for
+// none; method.md §22).
+type ReplicaEnsembles struct {
+	Estimate *unfold.Ensemble
+	Derived  []*unfold.Ensemble
+}
+
+// replicaEnsembles is Replicas with ensembles of their own for every
 // unit consecutive replicas from r0 on (the last one fewer): each is
 // accumulated alone, in replica order, whatever the passes over the
 // events.
-func (a *Analysis) replicaEnsembles(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1, unit int, opt *Options) ([]*unfold.Ensemble, error) {
+func (a *Analysis) replicaEnsembles(ctx context.Context, nominal *response.Built, p *unfold.Problem, s *unfold.Settings, m unfold.Method, r0, r1, unit int, ds []*unfold.RowMatrix, opt *Options) ([]ReplicaEnsembles, error) {
 	rs, err := s.Resolve()
 	if err != nil {
 		return nil, err
@@ -62,9 +73,9 @@ func (a *Analysis) replicaEnsembles(ctx context.Context, nominal *response.Built
 		return nil, &Error{File: a.File, Line: a.responseLine, Field: "uncertainty.replicas", Msg: "needs the simulated events: give the simulation"}
 	}
 	nt := len(p.Generated)
-	ens := make([]*unfold.Ensemble, max(1, (r1-r0+unit-1)/unit))
+	ens := make([]ReplicaEnsembles, max(1, (r1-r0+unit-1)/unit))
 	for u := range ens {
-		ens[u] = unfold.NewEnsemble(nt, rs.Covariance == unfold.Full)
+		ens[u] = ReplicaEnsembles{Estimate: unfold.NewEnsemble(nt, rs.Covariance == unfold.Full), Derived: unfold.DerivedEnsembles(ds)}
 	}
 	sims := make([]*response.Simulation, len(a.Simulation))
 	for i := range a.Simulation {
@@ -117,7 +128,12 @@ func (a *Analysis) replicaEnsembles(ctx context.Context, nominal *response.Built
 		for k0 := b0; k0 < b1; {
 			u := (k0 - r0) / unit
 			k1 := min(b1, r0+(u+1)*unit)
-			if err := unfold.UnfoldEach(ctx, ens[u], &rs, m, k0, k1, problem); err != nil {
+			e := ens[u]
+			add := func(_ int, est []float64) {
+				e.Estimate.Add(est)
+				unfold.AddDerived(e.Derived, ds, est)
+			}
+			if err := unfold.UnfoldEachFunc(ctx, add, &rs, m, k0, k1, problem); err != nil {
 				return nil, fmt.Errorf("bootstrap replica %w", err)
 			}
 			k0 = k1
@@ -148,14 +164,14 @@ func ReplicaRange(replicas, u int) (first, count int) {
 // Replicas computes the ensembles of the bootstrap replica units
 // u0 ≤ u < u1 (of ReplicaUnits) against the nominal problem: what Finish
 // takes, in order. It returns nil without replicas.
-func (n *Nominal) Replicas(ctx context.Context, u0, u1 int) ([]*unfold.Ensemble, error) {
+func (n *Nominal) Replicas(ctx context.Context, u0, u1 int) ([]ReplicaEnsembles, error) {
 	a := n.a
 	if n.s.Replicas == 0 || u0 >= u1 {
 		return nil, nil
 	}
 	r0, _ := ReplicaRange(n.s.Replicas, u0)
 	last, c := ReplicaRange(n.s.Replicas, u1-1)
-	es, err := a.replicaEnsembles(ctx, n.out.Response, n.out.Problem, n.s, n.m, r0, last+c, ReplicaUnit, n.opt)
+	es, err := a.replicaEnsembles(ctx, n.out.Response, n.out.Problem, n.s, n.m, r0, last+c, ReplicaUnit, n.out.Result.DerivedJacobians, n.opt)
 	var ue *unfold.InputError
 	if errors.As(err, &ue) {
 		return nil, &Error{File: a.File, Line: a.replicasLine, Field: "uncertainty.replicas", Err: err,
@@ -170,7 +186,7 @@ func (n *Nominal) Replicas(ctx context.Context, u0, u1 int) ([]*unfold.Ensemble,
 // addReplicas adds the simulation source of s.Replicas bootstrap
 // replicas to out.Result, from the ensembles of their units (merged in
 // order), its stream, and a note on the block size to out.Notes.
-func (a *Analysis) addReplicas(out *Outcome, s *unfold.Settings, units []*unfold.Ensemble) error {
+func (a *Analysis) addReplicas(out *Outcome, s *unfold.Settings, units []ReplicaEnsembles) error {
 	n := s.Replicas
 	nu := (n + ReplicaUnit - 1) / ReplicaUnit
 	if len(units) != nu {
@@ -185,13 +201,19 @@ func (a *Analysis) addReplicas(out *Outcome, s *unfold.Settings, units []*unfold
 	}
 	res := out.Result
 	ens := unfold.NewEnsemble(len(res.Estimate), rs.Covariance == unfold.Full)
+	dens := unfold.DerivedEnsembles(res.DerivedJacobians)
 	for u, e := range units {
-		if _, c := ReplicaRange(n, u); e == nil || e.N != int64(c) || e.Len() != ens.Len() || e.Full != ens.Full || len(e.M2) != len(ens.M2) {
-			return fmt.Errorf("analysis: the ensemble of bootstrap replica unit %d is not that of replicas %d..%d of %s", u, u*ReplicaUnit, u*ReplicaUnit+c-1, a.File)
+		if _, c := ReplicaRange(n, u); e.Estimate == nil || e.Estimate.N != int64(c) || e.Estimate.Len() != ens.Len() || e.Estimate.Full != ens.Full || len(e.Estimate.M2) != len(ens.M2) || len(e.Derived) != len(res.DerivedJacobians) {
+			return fmt.Errorf("analysis: the ensembles of bootstrap replica unit %d are not those of replicas %d..%d of %s", u, u*ReplicaUnit, u*ReplicaUnit+c-1, a.File)
 		}
-		ens.Merge(e)
+		ens.Merge(e.Estimate)
+		for i, d := range e.Derived {
+			dens[i].Merge(d)
+		}
 	}
-	res.AddSource(*unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined))
+	src := unfold.EnsembleSource(unfold.SourceSimulation, unfold.MethodReplicas, ens, res.Determined)
+	src.Derived = unfold.EnsembleCovariances(dens)
+	res.AddSource(*src)
 	res.Streams = append(res.Streams, unfold.Stream{Unit: "replica", Derivation: response.ReplicaDerivation})
 	limit := s.MemoryLimit
 	if limit <= 0 {

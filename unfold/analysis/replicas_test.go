@@ -93,13 +93,13 @@ func TestReplicasRun(t *testing.T) {
 	if ReplicaBlock(p, small.MemoryLimit) != 1 {
 		t.Fatalf("block %d, want 1", ReplicaBlock(p, small.MemoryLimit))
 	}
-	one, err := a.Replicas(ctx, out.Response, p, &small, m, 0, n, nil)
+	one, _, err := a.Replicas(ctx, out.Response, p, &small, m, 0, n, nil, nil)
 	runtime.GOMAXPROCS(prev)
 	if err != nil {
 		t.Fatal(err)
 	}
 	runtime.GOMAXPROCS(2)
-	whole, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, nil)
+	whole, _, err := a.Replicas(ctx, out.Response, p, s, m, 0, n, nil, nil)
 	runtime.GOMAXPROCS(prev)
 	if err != nil {
 		t.Fatal(err)
@@ -115,11 +115,11 @@ func TestReplicasRun(t *testing.T) {
 			}
 		}
 	}
-	lo, err := a.Replicas(ctx, out.Response, p, s, m, 0, 15, nil)
+	lo, _, err := a.Replicas(ctx, out.Response, p, s, m, 0, 15, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	hi, err := a.Replicas(ctx, out.Response, p, s, m, 15, n, nil)
+	hi, _, err := a.Replicas(ctx, out.Response, p, s, m, 15, n, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -44,7 +44,7 @@ func TestReplicaUnits(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		same("unit alone", all[u], one[0])
+		same("unit alone", all[u].Estimate, one[0].Estimate)
 	}
 	n.s.MemoryLimit = 1 // one replica per pass over the events
 	small, err := n.Replicas(ctx, 0, nu)
@@ -52,15 +52,15 @@ func TestReplicaUnits(t *testing.T) {
 		t.Fatal(err)
 	}
 	for u := range nu {
-		same("one replica per pass", all[u], small[u])
+		same("one replica per pass", all[u].Estimate, small[u].Estimate)
 	}
-	merged := unfold.NewEnsemble(all[0].Len(), all[0].Full)
+	merged := unfold.NewEnsemble(all[0].Estimate.Len(), all[0].Estimate.Full)
 	for _, e := range all {
-		merged.Merge(e)
+		merged.Merge(e.Estimate)
 	}
 	mean := make([]float64, merged.Len())
 	for r := range a.Uncertainty.Replicas {
-		e, err := a.Replicas(ctx, n.out.Response, n.out.Problem, n.s, n.m, r, r+1, nil)
+		e, _, err := a.Replicas(ctx, n.out.Response, n.out.Problem, n.s, n.m, r, r+1, nil, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

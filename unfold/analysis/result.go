@@ -8,8 +8,6 @@ import (
 	"path/filepath"
 	"strings"
 
-	"gonum.org/v1/gonum/mat"
-
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/inputs"
 	"github.com/desmear/desmear/unfold/methods/bayes"
@@ -127,6 +125,9 @@ func (a *Analysis) Nominal(ctx context.Context, opt *Options) (*Nominal, error) 
 			return nil, err
 		}
 	}
+	if err := a.derivedFit(p, s); err != nil {
+		return nil, err
+	}
 	out.Problem = p
 	ref, err := a.Reference()
 	if err != nil {
@@ -153,7 +154,7 @@ func (n *Nominal) Inputs() ([]inputs.File, error) { return n.a.inputs(n.out) }
 // may have been computed by other processes and read back. Then it
 // estimates the bias (uncertainty.bias_toys) and writes the result
 // folder atomically: what Run writes.
-func (n *Nominal) Finish(ctx context.Context, replicas []*unfold.Ensemble, varied []*Varied, replace bool) (*Outcome, error) {
+func (n *Nominal) Finish(ctx context.Context, replicas []ReplicaEnsembles, varied []*Varied, replace bool) (*Outcome, error) {
 	a, out, s := n.a, n.out, n.s
 	if err := a.addReplicas(out, s, replicas); err != nil {
 		return nil, err
@@ -362,12 +363,8 @@ func (a *Analysis) write(out *Outcome, s *unfold.Settings, m unfold.Method, ref 
 	}
 	doc.Luminosity, doc.LuminosityUnit = a.Output.Luminosity, a.Output.LuminosityUnit
 	doc.SliceAxis = a.Output.RootSliceAxis
-	for _, q := range a.Output.Derived {
-		var cov mat.Symmetric
-		if c := out.Result.Covariance; c != nil {
-			cov = c
-		}
-		doc.Derived = append(doc.Derived, result.NewDerived(q, out.Result.Estimate, cov))
+	for i, q := range a.Output.Derived {
+		doc.Derived = append(doc.Derived, result.NewDerivedFromSources(q, out.Result, i))
 	}
 	doc.ResponseSummary = &out.Response.Summary
 	doc.DataEvents, doc.DataSelected, doc.DataOutside = out.Data.Events, out.Data.Selected, out.Data.Outside

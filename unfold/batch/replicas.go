@@ -9,17 +9,33 @@ import (
 	"path/filepath"
 
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/analysis"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
-// replicaEnsemble is the ensemble of one replica unit in a shard file,
-// its numbers written to read back bit for bit.
-type replicaEnsemble struct {
-	Unit int   `json:"unit"`
+// ensembleRecord is one ensemble in a shard file, its numbers written to
+// read back bit for bit.
+type ensembleRecord struct {
 	N    int64 `json:"n"`
 	Mean exact `json:"mean"`
 	M2   exact `json:"m2"`
 	Full bool  `json:"full"`
+}
+
+func recordOf(e *unfold.Ensemble) ensembleRecord {
+	return ensembleRecord{N: e.N, Mean: exact(e.Mean), M2: exact(e.M2), Full: e.Full}
+}
+
+func (r ensembleRecord) ensemble() *unfold.Ensemble {
+	return &unfold.Ensemble{N: r.N, Mean: []float64(r.Mean), M2: []float64(r.M2), Full: r.Full}
+}
+
+// replicaEnsemble is the ensembles of one replica unit in a shard file:
+// of the estimates, and of each derived quantity (method.md §22).
+type replicaEnsemble struct {
+	Unit int `json:"unit"`
+	ensembleRecord
+	Derived []ensembleRecord `json:"derived,omitempty"`
 }
 
 // replicaPartial is the file of one shard of a replicas plan.
@@ -73,7 +89,7 @@ func (p *Plan) ReplicasDone(dir string, s int) bool {
 // plan's inputs), written as the shard's file atomically. It does
 // nothing and returns false when the shard's file exists and belongs to
 // the plan; it returns true when it ran the shard.
-func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(ctx context.Context, u0, u1 int) ([]*unfold.Ensemble, error)) (bool, error) {
+func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(ctx context.Context, u0, u1 int) ([]analysis.ReplicaEnsembles, error)) (bool, error) {
 	if s < 0 || s >= len(p.Shards) {
 		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
 	}
@@ -93,7 +109,11 @@ func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(c
 	}
 	pt := &replicaPartial{Format: Format, Plan: p.id, Shard: s}
 	for i, e := range es {
-		pt.Units = append(pt.Units, replicaEnsemble{Unit: sh.FirstUnit + i, N: e.N, Mean: exact(e.Mean), M2: exact(e.M2), Full: e.Full})
+		u := replicaEnsemble{Unit: sh.FirstUnit + i, ensembleRecord: recordOf(e.Estimate)}
+		for _, d := range e.Derived {
+			u.Derived = append(u.Derived, recordOf(d))
+		}
+		pt.Units = append(pt.Units, u)
 	}
 	js, err := json.Marshal(pt)
 	if err != nil {
@@ -115,21 +135,25 @@ func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(c
 // ensembles of all its replica units, in order (what
 // analysis.Nominal.Finish takes). It is an error, listing the shards, if
 // any is missing or does not belong to the plan.
-func MergeReplicas(dir string, p *Plan) ([]*unfold.Ensemble, error) {
+func MergeReplicas(dir string, p *Plan) ([]analysis.ReplicaEnsembles, error) {
 	if p.Kind != Replicas {
 		return nil, fmt.Errorf("batch: the plan is of %s, not of bootstrap replicas", p.Kind)
 	}
 	if err := p.done(dir); err != nil {
 		return nil, err
 	}
-	var out []*unfold.Ensemble
+	var out []analysis.ReplicaEnsembles
 	for s := range p.Shards {
 		pt, err := p.readReplicas(dir, s)
 		if err != nil {
 			return nil, err
 		}
 		for _, e := range pt.Units {
-			out = append(out, &unfold.Ensemble{N: e.N, Mean: []float64(e.Mean), M2: []float64(e.M2), Full: e.Full})
+			u := analysis.ReplicaEnsembles{Estimate: e.ensemble()}
+			for _, d := range e.Derived {
+				u.Derived = append(u.Derived, d.ensemble())
+			}
+			out = append(out, u)
 		}
 	}
 	return out, nil

@@ -8,6 +8,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
 )
 
 // Kind is the kind of a derived quantity.
@@ -314,25 +315,12 @@ func (q *Quantity) checkLen(dst, mu []float64) {
 	}
 }
 
-// Matrix is a sparse matrix in compressed-row form: the entries of row
-// t are Val[Ptr[t]:Ptr[t+1]] in the columns Col[Ptr[t]:Ptr[t+1]],
-// columns increasing.
-type Matrix struct {
-	Rows, Cols int
-	Ptr, Col   []int
-	Val        []float64
-}
+// Matrix is a sparse matrix in compressed-row form (unfold.RowMatrix),
+// so that a Quantity is an unfold.Derived whose covariance every source
+// of uncertainty propagates by itself.
+type Matrix = unfold.RowMatrix
 
-// Dense returns m as a dense matrix.
-func (m *Matrix) Dense() *mat.Dense {
-	d := mat.NewDense(m.Rows, m.Cols, nil)
-	for t := range m.Rows {
-		for p := m.Ptr[t]; p < m.Ptr[t+1]; p++ {
-			d.Set(t, m.Col[p], m.Val[p])
-		}
-	}
-	return d
-}
+var _ unfold.Derived = (*Quantity)(nil)
 
 // Jacobian returns D = ∂y/∂μ at mu (Len rows, one column per global
 // truth bin): W⁻¹ P for a projection or density, W⁻¹ J P for a shape

@@ -34,7 +34,11 @@
 // of the divisors. Covariance computes P Cov Pᵀ in one pass over the
 // region's bins and then applies J and W through their structure, in
 // O(m²) for m derived bins; Jacobian returns D itself as a sparse matrix
-// (compressed rows). See method.md, the section on derived quantities.
+// (compressed rows, unfold.RowMatrix), which makes a Quantity an
+// unfold.Derived: given in unfold.Problem.Derived, every source of
+// uncertainty propagates its covariance by itself, without the full
+// covariance of the estimate. See method.md, the section on derived
+// quantities.
 //
 // The covariance of a shape is singular by construction: 1ᵀ J = 0 in
 // every group, so (1, ..., 1) over a group (weighted by the widths when

@@ -5,10 +5,12 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
 
 	"gonum.org/v1/gonum/mat"
 
 	"github.com/desmear/desmear/binning"
+	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/derive"
 )
 
@@ -76,7 +78,55 @@ func NewDerived(q *derive.Quantity, est []float64, cov mat.Symmetric) Derived {
 		d.Note = "no uncertainty: propagating it needs the full covariance of the estimate, which was not computed"
 		return d
 	}
-	c := q.Covariance(nil, est, cov)
+	d.setCovariance(q, q.Covariance(nil, est, cov))
+	d.Note = "exact linear propagation D Cov Dᵀ of the full covariance of the estimate"
+	if q.Singular() {
+		d.Note = "first-order propagation D Cov Dᵀ of the full covariance of the estimate; singular by construction (each normalisation group sums to one): do not invert it"
+	}
+	return d
+}
+
+// NewDerivedFromSources computes the quantity q of the estimate of res,
+// number i of the problem's derived quantities (unfold.Problem.Derived),
+// with the covariance summed over the sources' own propagations
+// (unfold.Result.DerivedCovariance) when the estimate has no full
+// covariance; without the sources' contributions it is NewDerived with
+// no covariance, its note naming the source that lacks one.
+func NewDerivedFromSources(q *derive.Quantity, res *unfold.Result, i int) Derived {
+	if res.Covariance != nil {
+		return NewDerived(q, res.Estimate, res.Covariance)
+	}
+	c := res.DerivedCovariance(i)
+	d := NewDerived(q, res.Estimate, nil)
+	if c == nil {
+		for _, s := range res.Sources {
+			if i >= len(s.Derived) || s.Derived[i] == nil {
+				d.Note = fmt.Sprintf("no uncertainty: the source %q (%s) gives neither the full covariance of the estimate nor its own propagation to derived quantities", s.Name, s.Method)
+				break
+			}
+		}
+		return d
+	}
+	d.setCovariance(q, c)
+	var how []string
+	for _, s := range res.Sources {
+		w := s.Name + ": exact"
+		if s.Samples > 0 {
+			w = fmt.Sprintf("%s: from the same %d probes or samples as its per-bin variances, relative precision about %.2g on the variances", s.Name, s.Samples, s.Precision)
+		}
+		how = append(how, w)
+	}
+	d.Note = "propagation D Cov Dᵀ source by source, without the full covariance of the estimate (" + strings.Join(how, "; ") + ")"
+	if q.Singular() {
+		d.Note += "; first order, singular by construction (each normalisation group sums to one): do not invert it"
+	}
+	return d
+}
+
+// setCovariance sets the covariance c of the quantity q, its
+// uncertainties and its covariance file.
+func (d *Derived) setCovariance(q *derive.Quantity, c *mat.SymDense) {
+	sp := q.Spec()
 	m := q.Len()
 	d.Uncertainty = make([]float64, m)
 	d.Covariance = make([][]float64, m)
@@ -88,12 +138,7 @@ func NewDerived(q *derive.Quantity, est []float64, cov mat.Symmetric) Derived {
 		}
 	}
 	d.CovarianceFile = DerivedCovarianceFile(sp.Name)
-	d.Note = "exact linear propagation D Cov Dᵀ of the full covariance of the estimate"
-	if q.Singular() {
-		d.SingularCovariance = true
-		d.Note = "first-order propagation D Cov Dᵀ of the full covariance of the estimate; singular by construction (each normalisation group sums to one): do not invert it"
-	}
-	return d
+	d.SingularCovariance = q.Singular()
 }
 
 func sqrtPos(v float64) float64 {
