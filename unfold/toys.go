@@ -7,7 +7,6 @@ import (
 	"runtime"
 
 	"github.com/desmear/desmear/unfold/internal/parallel"
-	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // toyData fills n with pseudo-data for toy t and, when the background
@@ -16,18 +15,17 @@ import (
 // Unweighted data (no DataVariance) are Poisson with mean n_i. Weighted
 // data are a scaled Poisson: n_i·k/n_eff with k ~ Poisson(n_eff),
 // n_eff = n_i²/var_i, which has mean n_i and variance var_i (common
-// practice). The background is Gaussian with the given variance,
-// truncated at zero.
+// practice). The counts are drawn with poissonRand (method.md §26). The
+// background is Gaussian with the given variance, truncated at zero.
 func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
-	src := rand.NewPCG(seed, toyStream+uint64(t))
-	rng := rand.New(src)
+	rng := rand.New(rand.NewPCG(seed, toyStream+uint64(t)))
 	for i, x := range m.n {
 		if x <= 0 {
 			n[i] = 0
 			continue
 		}
 		if !m.weighted {
-			n[i] = distuv.Poisson{Lambda: x, Src: src}.Rand()
+			n[i] = poissonRand(rng, x)
 			continue
 		}
 		v := m.varN[i]
@@ -36,7 +34,7 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 			continue
 		}
 		neff := x * x / v
-		n[i] = distuv.Poisson{Lambda: neff, Src: src}.Rand() * v / x
+		n[i] = poissonRand(rng, neff) * v / x
 	}
 	if b != nil {
 		for i, x := range m.b {
