@@ -1,6 +1,7 @@
 package unfold
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -101,3 +102,28 @@ func TestPoissonRandZeroMean(t *testing.T) {
 		t.Errorf("a zero mean consumed uniforms from the stream")
 	}
 }
+
+// BenchmarkPoissonRand draws counts at a few means with poissonRand and,
+// as the reference in the same run, gonum's distuv.Poisson.Rand.
+func BenchmarkPoissonRand(b *testing.B) {
+	for _, mu := range []float64{3, 30, 300} {
+		b.Run(fmt.Sprintf("mu=%g/ours", mu), func(b *testing.B) {
+			rng := rand.New(rand.NewPCG(1, 2))
+			var s float64
+			for range b.N {
+				s += poissonRand(rng, mu)
+			}
+			sink = s
+		})
+		b.Run(fmt.Sprintf("mu=%g/gonum", mu), func(b *testing.B) {
+			d := distuv.Poisson{Lambda: mu, Src: rand.NewPCG(1, 2)}
+			var s float64
+			for range b.N {
+				s += d.Rand()
+			}
+			sink = s
+		})
+	}
+}
+
+var sink float64
