@@ -13,12 +13,19 @@ const poissonSearchMax = 10
 
 // poissonRand returns a draw from the Poisson distribution of mean mu
 // (mu ≥ 0; 0 for mu ≤ 0 or NaN, without drawing), using the uniforms of
-// rng only: the draws depend on the stream alone, so a toy's pseudo-data
+// src only: the draws depend on the stream alone, so a toy's pseudo-data
 // have the same bits whatever the number of cores (method.md §26 Poisson
-// draws of the toys). It is newPoissonMean(mu).rand(rng, mu).
-func poissonRand(rng *rand.Rand, mu float64) float64 {
+// draws of the toys). It is newPoissonMean(mu).rand(src, mu).
+func poissonRand(src *rand.PCG, mu float64) float64 {
 	c := newPoissonMean(mu)
-	return c.rand(rng, mu)
+	return c.rand(src, mu)
+}
+
+// uniform returns a uniform on [0, 1) from the next output of src, the
+// value math/rand/v2's Rand.Float64 forms from it (the low 53 bits
+// times 2^-53), without the call through the Source interface.
+func uniform(src *rand.PCG) float64 {
+	return float64(src.Uint64()<<11>>11) / (1 << 53)
 }
 
 // poissonMean holds the constants of the draws of one mean that need
@@ -52,14 +59,14 @@ func newPoissonMean(mu float64) poissonMean {
 }
 
 // rand returns a draw of mean mu, the mean c was formed for.
-func (c *poissonMean) rand(rng *rand.Rand, mu float64) float64 {
+func (c *poissonMean) rand(src *rand.PCG, mu float64) float64 {
 	switch {
 	case !(mu > 0):
 		return 0
 	case mu < poissonSearchMax:
-		return c.search(rng, mu)
+		return c.search(src, mu)
 	}
-	return c.ptrs(rng, mu)
+	return c.ptrs(src, mu)
 }
 
 // search inverts the Poisson distribution function of mean mu
@@ -67,10 +74,10 @@ func (c *poissonMean) rand(rng *rand.Rand, mu float64) float64 {
 // u < F(k) for u uniform on [0, 1). The sum of the pmf rounded in
 // floating point may stay below u for u within rounding of 1; such a
 // uniform, far beyond the last k that matters, is drawn again.
-func (c *poissonMean) search(rng *rand.Rand, mu float64) float64 {
+func (c *poissonMean) search(src *rand.PCG, mu float64) float64 {
 	p0 := c.b
 	for {
-		u := rng.Float64()
+		u := uniform(src)
 		p, f := p0, p0
 		for k := 0; k < 100; k++ { // P(X ≥ 100) < 1e-60 for mu < 10
 			if u < f {
@@ -83,17 +90,14 @@ func (c *poissonMean) search(rng *rand.Rand, mu float64) float64 {
 }
 
 // ptrs is Hörmann's PTRS (1993, Algorithm PTRS with the constants of
-// its section 3) for mu ≥ poissonSearchMax.
-func (c *poissonMean) ptrs(rng *rand.Rand, mu float64) float64 {
+// its section 3) for mu ≥ poissonSearchMax; ptrsAccept is its test
+// outside the squeeze (method.md §26).
+func (c *poissonMean) ptrs(src *rand.PCG, mu float64) float64 {
 	b, vr := c.b, c.vr
 	a := -0.059 + 0.02483*b
-	// log(1/alpha) and log(mu), formed at the first try outside the
-	// squeeze (about one draw in four): the squeeze needs no logarithm.
-	var logAlpha, logMu float64
-	logs := false
 	for {
-		u := rng.Float64() - 0.5
-		v := rng.Float64()
+		u := uniform(src) - 0.5
+		v := uniform(src)
 		us := 0.5 - math.Abs(u)
 		if us <= 0 {
 			continue // u = -0.5 gives an infinite k
@@ -105,12 +109,34 @@ func (c *poissonMean) ptrs(rng *rand.Rand, mu float64) float64 {
 		if k < 0 || (us < 0.013 && v > us) {
 			continue
 		}
-		if !logs {
-			logAlpha, logMu, logs = math.Log(1.1239+1.1328/(b-3.4)), math.Log(mu), true
-		}
-		lg, _ := math.Lgamma(k + 1)
-		if math.Log(v)+logAlpha-math.Log(a/(us*us)+b) <= -mu+k*logMu-lg {
+		if ptrsAccept(mu, k, v*(1.1239+1.1328/(b-3.4))/(a/(us*us)+b)) {
 			return k
 		}
 	}
+}
+
+// ptrsAccept is PTRS's test outside the squeeze for the count k ≥ 0 and
+// w = V/(α(a/u_s² + b)): log w ≤ −mu + k·log(mu) − log k!. From k = 9 on,
+// log k! is Stirling's series to 1/(1260 n⁵), n = k+1, and the test
+// reads log(w·sqrt(n)) ≤ k·log(mu/n) + n − mu − ½log 2π − S(n): two
+// logarithms.
+func ptrsAccept(mu, k, w float64) bool {
+	if k < 9 {
+		lg, _ := math.Lgamma(k + 1)
+		return math.Log(w) <= -mu+k*math.Log(mu)-lg
+	}
+	n := k + 1
+	return math.Log(w*math.Sqrt(n)) <= k*math.Log(mu/n)+(n-mu)-halfLog2Pi-stirlingSeries(n)
+}
+
+// halfLog2Pi is log(2π)/2.
+const halfLog2Pi = 0.91893853320467274178
+
+// stirlingSeries returns 1/(12n) − 1/(360n³) + 1/(1260n⁵), the terms of
+// Stirling's series of log Γ(n) after (n − ½)·log n − n + ½·log 2π
+// (Abramowitz and Stegun 6.1.41); the next term is below 1/(1680n⁷).
+func stirlingSeries(n float64) float64 {
+	r := 1 / n
+	r2 := r * r
+	return r * (1.0/12 - r2*(1.0/360-r2*(1.0/1260)))
 }

@@ -21,7 +21,7 @@ import (
 func TestPoissonRandDistribution(t *testing.T) {
 	const n = 200_000
 	for _, mu := range []float64{0.05, 0.7, 3, 9.99, 10, 10.5, 27, 150, 4321, 2.5e6} {
-		rng := rand.New(rand.NewPCG(7, uint64(mu*1000)))
+		rng := rand.NewPCG(7, uint64(mu*1000))
 		counts := map[int]int{}
 		var sum, sum2 float64
 		for range n {
@@ -91,27 +91,37 @@ func TestPoissonRandDistribution(t *testing.T) {
 // TestPoissonRandZeroMean checks the edge of the domain: a mean of zero
 // or below (and NaN) gives 0 without drawing.
 func TestPoissonRandZeroMean(t *testing.T) {
-	rng := rand.New(rand.NewPCG(1, 2))
+	rng := rand.NewPCG(1, 2)
 	for _, mu := range []float64{0, -1, math.NaN()} {
 		if k := poissonRand(rng, mu); k != 0 {
 			t.Errorf("mu %g: got %g, want 0", mu, k)
 		}
 	}
-	want := rand.New(rand.NewPCG(1, 2)).Uint64()
+	want := rand.NewPCG(1, 2).Uint64()
 	if got := rng.Uint64(); got != want {
 		t.Errorf("a zero mean consumed uniforms from the stream")
 	}
 }
 
-// BenchmarkPoissonRand draws counts at a few means with poissonRand and,
-// as the reference in the same run, gonum's distuv.Poisson.Rand.
+// BenchmarkPoissonRand draws counts at a few means with poissonRand,
+// with the constants of the mean formed once (as the toys do), and, as
+// the reference in the same run, with gonum's distuv.Poisson.Rand.
 func BenchmarkPoissonRand(b *testing.B) {
 	for _, mu := range []float64{3, 30, 300} {
 		b.Run(fmt.Sprintf("mu=%g/ours", mu), func(b *testing.B) {
-			rng := rand.New(rand.NewPCG(1, 2))
+			rng := rand.NewPCG(1, 2)
 			var s float64
 			for range b.N {
 				s += poissonRand(rng, mu)
+			}
+			sink = s
+		})
+		b.Run(fmt.Sprintf("mu=%g/ours-formed", mu), func(b *testing.B) {
+			rng := rand.NewPCG(1, 2)
+			c := newPoissonMean(mu)
+			var s float64
+			for range b.N {
+				s += c.rand(rng, mu)
 			}
 			sink = s
 		})
@@ -127,3 +137,58 @@ func BenchmarkPoissonRand(b *testing.B) {
 }
 
 var sink float64
+
+// TestUniformIsRandFloat64: uniform forms from a PCG output the value
+// math/rand/v2's Rand.Float64 forms from the same output (the standard
+// library as the reference), so the background's normal draws and the
+// counts share one stream.
+func TestUniformIsRandFloat64(t *testing.T) {
+	a, b := rand.NewPCG(3, 4), rand.New(rand.NewPCG(3, 4))
+	for i := range 1000 {
+		if x, y := uniform(a), b.Float64(); x != y {
+			t.Fatalf("draw %d: %v, want %v", i, x, y)
+		}
+	}
+}
+
+// TestStirlingSeries: (n − ½)·log n − n + ½·log 2π + stirlingSeries(n)
+// is log Γ(n) (Abramowitz and Stegun 6.1.41; Go's math.Lgamma as the
+// reference) to 1e-13 relative from n = 10 on, where the next term is
+// below 1/(1680·10⁷) = 6e-11 absolute.
+func TestStirlingSeries(t *testing.T) {
+	for _, n := range []float64{10, 11, 17, 50, 333, 1e4, 2.5e6, 1e9} {
+		got := (n-0.5)*math.Log(n) - n + halfLog2Pi + stirlingSeries(n)
+		want, _ := math.Lgamma(n)
+		if d := math.Abs(got - want); d > 1e-13*math.Abs(want)+1e-10 {
+			t.Errorf("log Γ(%g): %.17g, want %.17g (difference %g)", n, got, want, d)
+		}
+	}
+}
+
+// TestPTRSAccept: ptrsAccept decides as the test of Hörmann (1993)
+// written with log k! from math.Lgamma, log w ≤ −mu + k·log mu − log k!,
+// for a million random (mu, k, w) around the counts PTRS draws (half of
+// them small counts at means near 10, close to the edge), except
+// where the two sides agree to 1e-9.
+func TestPTRSAccept(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	for i := range 1_000_000 {
+		mu := 10 * math.Pow(1e5, rng.Float64())
+		k := math.Max(0, math.Floor(mu+5*math.Sqrt(mu)*(2*rng.Float64()-1)))
+		spread := 2.0
+		if i%2 == 1 {
+			// the small counts of the means near 10, closer to the edge
+			mu, k, spread = 10+2*rng.Float64(), math.Floor(12*rng.Float64()), 0.02
+		}
+		lg, _ := math.Lgamma(k + 1)
+		rhs := -mu + k*math.Log(mu) - lg
+		lhs := rhs + spread*(rng.Float64()-0.5)
+		w := math.Exp(lhs)
+		if math.Abs(math.Log(w)-rhs) < 1e-9*math.Max(1, math.Abs(rhs)) {
+			continue
+		}
+		if got, want := ptrsAccept(mu, k, w), math.Log(w) <= rhs; got != want {
+			t.Fatalf("try %d: mu %g, k %g, log w %g against %g: accepted %v, want %v", i, mu, k, math.Log(w), rhs, got, want)
+		}
+	}
+}

@@ -39,14 +39,15 @@ func toyMeans(m *Prepared) []poissonMean {
 // practice). The counts are drawn as method.md §26 says. The background
 // is Gaussian with the given variance, truncated at zero.
 func toyData(m *Prepared, means []poissonMean, seed uint64, t int, n, b []float64) {
-	rng := rand.New(rand.NewPCG(seed, toyStream+uint64(t)))
+	src := rand.NewPCG(seed, toyStream+uint64(t))
+	rng := rand.New(src) // the same stream, for the background
 	for i, x := range m.n {
 		if x <= 0 {
 			n[i] = 0
 			continue
 		}
 		if !m.weighted {
-			n[i] = means[i].rand(rng, x)
+			n[i] = means[i].rand(src, x)
 			continue
 		}
 		v := m.varN[i]
@@ -55,7 +56,7 @@ func toyData(m *Prepared, means []poissonMean, seed uint64, t int, n, b []float6
 			continue
 		}
 		neff := x * x / v
-		n[i] = means[i].rand(rng, neff) * v / x
+		n[i] = means[i].rand(src, neff) * v / x
 	}
 	if b != nil {
 		for i, x := range m.b {
