@@ -42,3 +42,26 @@ func TestSmallProblem(t *testing.T) {
 		t.Error("an unknown size was accepted")
 	}
 }
+
+// BenchmarkFillParquet runs the Parquet filling of the fine binnings
+// with 2^21 events: the decoding alone and the whole filling, in one
+// round per iteration (for profiling the filling path).
+func BenchmarkFillParquet(b *testing.B) {
+	c, err := ConfigOf(Fine)
+	if err != nil {
+		b.Fatal(err)
+	}
+	c.ParquetEvents, c.ParquetRounds = 2<<20, 1
+	for range b.N {
+		var r Results
+		if err := fillParquet(b.Context(), &r, c); err != nil {
+			b.Fatal(err)
+		}
+		b.ReportMetric(r.ParquetEventsPerS/1e6, "Mfill/s")
+		b.ReportMetric(r.ParquetDecodeEventsPerS/1e6, "Mdecode/s")
+		b.ReportMetric(r.ParquetDecodeRatio, "ratio")
+		b.ReportMetric(r.ParquetEventsPerCPUS/1e6, "Mfill/cpu-s")
+		b.ReportMetric(r.ParquetDecodeEventsPerCPUS/1e6, "Mdecode/cpu-s")
+		b.ReportMetric(r.ParquetDecodeCPURatio, "cpu-ratio")
+	}
+}
