@@ -47,7 +47,7 @@ object; the stages are reported on standard error when it is a terminal.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.size, "size", "small", "problem size: small (8,000 truth bins, seconds), medium (100,000) or fine (500,000 truth × 1,000,000 reco bins, 10 M non-zeros; about a minute and 2 GB)")
+	f.StringVar(&o.size, "size", "small", "problem size: small (8,000 truth bins, seconds), medium (100,000) or fine (500,000 truth × 1,000,000 reco bins, 10 M non-zeros; one to two minutes and 2 GB)")
 	f.BoolVar(&o.json, "json", false, "print the results as one JSON object instead of a table")
 	return cmd
 }
