@@ -43,12 +43,14 @@ func NewJacobian(m *Prepared) *Jacobian {
 func (jc *Jacobian) At(r, c int) float64 { return jc.Data[r*jc.Cols+c] }
 
 // denseBytes is the memory estimate of the dense Jacobian (two buffers)
-// plus, when full is set, the covariance and one work matrix of its size
-// (a method carrying the covariance along its recursion holds both).
+// plus, when full is set, the covariance and, with fewer columns than
+// truth bins, the part of a work matrix of its size that the Jacobian's
+// second buffer cannot hold (a method carrying the covariance along its
+// recursion needs one).
 func denseBytes(nt, cols int, full bool) int64 {
 	b := 16 * int64(nt) * int64(cols)
 	if full {
-		b += 16 * int64(nt) * int64(nt)
+		b += 8*int64(nt)*int64(nt) + 8*int64(nt)*int64(max(0, nt-cols))
 	}
 	return b
 }

@@ -24,8 +24,9 @@ type plan struct {
 
 // FullCovarianceBytes returns the memory estimate of the full covariance
 // of p under s (the dense Jacobian, two buffers, and the covariance
-// matrix with one work matrix of its size: 16 bytes per truth bin and
-// Jacobian column plus 16 per pair of truth bins), the figure Unfold compares with the memory limit; 0 when s
+// matrix: 16 bytes per truth bin and Jacobian column plus 8 per pair of
+// truth bins, and 8·n_t·(n_t − columns) more with fewer columns than
+// truth bins, for a work matrix of the covariance's size), the figure Unfold compares with the memory limit; 0 when s
 // does not ask for the full covariance. The background variance adds a
 // column per reco bin when it is propagated (background in the model).
 // It lets a caller state the memory before the computation starts.

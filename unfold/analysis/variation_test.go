@@ -283,10 +283,9 @@ func TestVariationCovariancesTooLarge(t *testing.T) {
 	}
 	a := variationAnalysis(t, 0, v.String())
 	nt := int64(a.Truth.Len())
-	// Room for the nominal Jacobian, covariance and its work matrix
-	// (16·nt·2nr + 16·nt², method.md §8 Linearised uncertainty propagation),
+	// Room for the nominal Jacobian and covariance (16·nt·2nr + 8·nt²),
 	// not for 13 more nt × nt matrices.
-	a.Unfolding.MemoryLimit = 16*nt*2*int64(a.Reco.Len()) + 16*nt*nt
+	a.Unfolding.MemoryLimit = 16*nt*2*int64(a.Reco.Len()) + 8*nt*nt
 	_, err := a.Run(context.Background(), nil, false)
 	var tl *unfold.TooLargeError
 	if !errors.As(err, &tl) || tl.Bytes != 8*nt*nt*13 || !strings.Contains(err.Error(), "12 systematic sources") {

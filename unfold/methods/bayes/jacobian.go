@@ -40,7 +40,9 @@ type jacobian struct {
 
 	// The covariance carried along (dst.ColumnVariances set, no
 	// smoothing): V(k) = J(k) D J(k)ᵀ with D = diag(cv), in v; t is a
-	// second nt×nt buffer; ra, rb, rw are per-reco-bin factors.
+	// second nt×nt buffer, nil when the Jacobian's work buffer w (used
+	// before J(k+1) is written into it) is large enough; ra, rb, rw are
+	// per-reco-bin factors.
 	cv         []float64
 	v, t       []float64
 	ra, rb, rw []float64
@@ -121,7 +123,10 @@ func (jc *jacobian) init(ctx context.Context, it *iterator) error {
 	if cv := jc.dst.ColumnVariances; cv != nil && it.sm == nil {
 		nt := m.nt
 		if len(jc.v) != nt*nt {
-			jc.v, jc.t = make([]float64, nt*nt), make([]float64, nt*nt)
+			jc.v = make([]float64, nt*nt)
+			if jc.cols < nt {
+				jc.t = make([]float64, nt*nt)
+			}
 			jc.ra, jc.rb, jc.rw = make([]float64, m.nr), make([]float64, m.nr), make([]float64, m.nr)
 		}
 		jc.cv = cv
@@ -180,6 +185,11 @@ func (jc *jacobian) carry(ctx context.Context, it *iterator) error {
 		return mu[r] * m.invEps[r]
 	}
 	V, T, J := jc.v, jc.t, jc.j
+	if T == nil {
+		// J(k+1) overwrites w only after the carry: its first n_t²
+		// elements are the work matrix (cols ≥ n_t).
+		T = jc.w[:nt*nt]
+	}
 	procs := runtime.GOMAXPROCS(0)
 	jc.mulM(ctx, T, V, nt, it, nil)       // T = M V
 	parallel.For(nt, procs, func(r int) { // T ← Tᵀ
