@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"github.com/desmear/desmear/unfold"
@@ -92,4 +93,33 @@ func TestFilledProblem(t *testing.T) {
 	if _, err := unfold.Prepare(p, unfold.InModel); err != nil {
 		t.Fatal(err)
 	}
+}
+
+// BenchmarkFineJob: the whole job of desmear bench at the fine grid
+// (fill 50 M events, 4 iterations, 100 probes), run before anything else
+// of the process has allocated; reports the medians of the fill, the
+// unfolding and the whole, and the process's peak resident memory.
+func BenchmarkFineJob(b *testing.B) {
+	c, err := ConfigOf(Fine)
+	if err != nil {
+		b.Fatal(err)
+	}
+	var fill, unf, all []float64
+	var peak, fillPeak int64
+	var nnz int
+	for range b.N {
+		j, err := job(context.Background(), c)
+		if err != nil {
+			b.Fatal(err)
+		}
+		fill, unf, all = append(fill, j.JobFillS), append(unf, j.JobUnfoldS), append(all, j.JobS)
+		peak, fillPeak, nnz = j.JobPeakRSSBytes, j.JobFillPeakRSSBytes, j.JobNonZeros
+	}
+	med := func(x []float64) float64 { slices.Sort(x); return x[len(x)/2] }
+	b.ReportMetric(med(fill), "s/fill")
+	b.ReportMetric(med(unf), "s/unfold")
+	b.ReportMetric(med(all), "s/job")
+	b.ReportMetric(float64(peak)/1e6, "MB-peak-RSS")
+	b.ReportMetric(float64(fillPeak)/1e6, "MB-peak-RSS-fill")
+	b.ReportMetric(float64(nnz), "non-zeros")
 }

@@ -25,6 +25,10 @@ type Job struct {
 	JobUnfoldS      float64 `json:"job_unfold_s"` // the unfolding with the probes, validation and set-up included
 	JobS            float64 `json:"job_s"`        // fill + unfold
 	JobPeakRSSBytes int64   `json:"job_peak_rss_bytes"`
+	// JobFillPeakRSSBytes is the peak resident memory at the end of the
+	// fill (the accumulation's peak).
+	JobFillPeakRSSBytes int64 `json:"job_fill_peak_rss_bytes"`
+	JobNonZeros         int   `json:"job_non_zeros"` // of the filled response
 }
 
 // job runs and times the whole job of c.
@@ -36,6 +40,7 @@ func job(ctx context.Context, c Config) (*Job, error) {
 		return nil, err
 	}
 	j.JobFillS = time.Since(t0).Seconds()
+	j.JobFillPeakRSSBytes, j.JobNonZeros = peakRSS(), p.Migrations.NNZ()
 	t1 := time.Now()
 	s := &unfold.Settings{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: c.Probes, Seed: 1}
 	if _, err := unfold.Unfold(ctx, p, s, &bayes.Settings{Iterations: c.Iterations}); err != nil {
