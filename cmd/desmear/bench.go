@@ -25,7 +25,10 @@ func newBenchCommand(g *globalOptions) *cobra.Command {
 20×20×20 bins for --size small, 50×50×40 for medium, 100×100×50 for fine;
 the reco grid twice as fine along the third axis; about 20 migrations per
 truth bin across all three axes, efficiencies below one, fakes, flow bins)
-and measures in one run: the memory bandwidth of a triad over arrays larger
+and measures in one run: first the whole job (the response filled from
+events generated in memory, then one unfolding with per-bin variances from
+random probes) and the peak resident memory at its end, before anything
+else has allocated; then the memory bandwidth of a triad over arrays larger
 than the matrix, the bare sweep over the matrix, the marginal iteration,
 the fixed cost of one more unfolding of a prepared problem, a whole
 unfolding, per-bin variances from random probes, Poisson toys, response
