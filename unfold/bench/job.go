@@ -90,19 +90,21 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 	workers := runtime.GOMAXPROCS(0)
 	errs := make([]error, workers)
 	entries := make([]int64, workers)
-	count, sumQ := make([][]int64, workers), make([][]int64, workers)
+	// per worker and truth bin: the events and their sum of q, side by
+	// side (one cache line per event)
+	gen := make([][][2]int64, workers)
 	var next int64
 	var mu sync.Mutex
 	var wg sync.WaitGroup
 	for w := range workers {
 		if generated {
-			count[w], sumQ[w] = make([]int64, nt), make([]int64, nt)
+			gen[w] = make([][2]int64, nt)
 		}
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
-			cw, qw := count[w], sumQ[w]
+			gw := gen[w]
 			for {
 				mu.Lock()
 				b := next
@@ -116,8 +118,9 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
 					t, rc, wt := event(rng, c)
 					if generated {
-						cw[t]++
-						qw[t] += int64(math.Round((wt - 0.8) * 255 / 0.4))
+						g := &gw[t]
+						g[0]++
+						g[1] += int64((wt-0.8)*(255/0.4) + 0.5)
 					}
 					if rc >= 0 {
 						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
@@ -151,13 +154,13 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 	if !generated {
 		return a, nil, n, nil
 	}
-	gen := make([]float64, nt)
-	for t := range gen {
+	g := make([]float64, nt)
+	for t := range g {
 		var k, q int64
 		for w := range workers {
-			k, q = k+count[w][t], q+sumQ[w][t]
+			k, q = k+gen[w][t][0], q+gen[w][t][1]
 		}
-		gen[t] = 0.8*float64(k) + 0.4*float64(q)/255
+		g[t] = 0.8*float64(k) + 0.4*float64(q)/255
 	}
-	return a, gen, n, nil
+	return a, g, n, nil
 }
