@@ -23,9 +23,9 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"runtime/debug"
 	"slices"
 	"strings"
-	"sync"
 	"syscall"
 	"time"
 
@@ -145,7 +145,9 @@ type Results struct {
 	ParquetDecodeCPURatio      float64 `json:"parquet_decode_cpu_ratio"`
 	ParquetRounds              int     `json:"parquet_rounds"`
 	PeakRSSBytes               int64   `json:"peak_rss_bytes"`
-	ByteModel                  string  `json:"byte_model"`
+	// Job is the whole job (fill, unfolding, probes), measured first.
+	Job
+	ByteModel string `json:"byte_model"`
 }
 
 // Problem returns the problem of configuration c.
@@ -192,6 +194,14 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 			progress(st)
 		}
 	}
+	// the whole job first: the peak resident memory at its end is its own
+	note(fmt.Sprintf("whole job: fill %d events, %d iterations, %d probes", c.FillEvents, c.Iterations, c.Probes))
+	j, err := job(ctx, c)
+	if err != nil {
+		return nil, err
+	}
+	runtime.GC()
+	debug.FreeOSMemory()
 	note("problem")
 	p, err := Problem(c)
 	if err != nil {
@@ -202,7 +212,7 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 	r := &Results{Size: s, TruthBins: nt, RecoBins: nr, NonZeros: a.NNZ(), Cores: runtime.GOMAXPROCS(0),
 		Rounds: c.Rounds, Iterations: c.Iterations, Probes: c.Probes, Toys: c.Toys,
 		FillEvents: c.FillEvents, ParquetEvents: c.ParquetEvents, ByteModel: ByteModel,
-		Date: time.Now().UTC().Format("2006-01-02")}
+		Date: time.Now().UTC().Format("2006-01-02"), Job: *j}
 	if err := kernels(ctx, r, p, c, note); err != nil {
 		return nil, err
 	}
@@ -420,69 +430,14 @@ func event(rng *rand.Rand, c Config) (truth, reco int, w float64) {
 }
 
 // fill accumulates the migrations of FillEvents events generated in
-// memory, in batches on GOMAXPROCS goroutines, and returns the
-// reconstructed entries per second, the compression to the matrix and
-// the generation of the events included.
+// memory (accumulate) and returns the reconstructed entries per second,
+// the compression to the matrix and the generation of the events
+// included.
 func fill(ctx context.Context, c Config) (float64, error) {
-	nr := c.Reco[0] * c.Reco[1] * c.Reco[2]
-	nt := c.Truth[0] * c.Truth[1] * c.Truth[2]
-	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	start := time.Now()
+	_, _, n, err := accumulate(ctx, c, false)
 	if err != nil {
 		return 0, err
-	}
-	const batch = 1 << 18
-	nb := (c.FillEvents + batch - 1) / batch
-	workers := runtime.GOMAXPROCS(0)
-	errs := make([]error, workers)
-	entries := make([]int64, workers)
-	var next int64
-	var mu sync.Mutex
-	start := time.Now()
-	var wg sync.WaitGroup
-	for w := range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
-			for {
-				mu.Lock()
-				b := next
-				next++
-				mu.Unlock()
-				if b >= int64(nb) || ctx.Err() != nil {
-					return
-				}
-				rng := rand.New(rand.NewPCG(0x5eed, uint64(b)))
-				rows, cols, wts = rows[:0], cols[:0], wts[:0]
-				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
-					t, rc, wt := event(rng, c)
-					if rc >= 0 {
-						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
-					}
-				}
-				entries[w] += int64(len(rows))
-				if err := acc.AddBatch(uint64(b), rows, cols, wts); err != nil {
-					errs[w] = err
-					return
-				}
-			}
-		}()
-	}
-	wg.Wait()
-	if err := ctx.Err(); err != nil {
-		return 0, err
-	}
-	for _, err := range errs {
-		if err != nil {
-			return 0, err
-		}
-	}
-	if _, _, err := acc.Matrix(); err != nil {
-		return 0, err
-	}
-	var n int64
-	for _, e := range entries {
-		n += e
 	}
 	return float64(n) / time.Since(start).Seconds(), nil
 }
