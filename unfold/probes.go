@@ -151,12 +151,18 @@ func Sign(bits []uint64, i int) float64 {
 // Net returns Σ_i dn_i − Σ_i db_i of probe s, the change of the net data
 // Σ (n − b), summed in bin order, data first.
 func (pr *Probes) Net(s int) float64 {
+	// ±σ as σ with its sign bit flipped where the probe's bit is clear:
+	// the bits of Sign(bits, i)·σ, without the multiplication
+	signed := func(bits []uint64, i int, sd float64) float64 {
+		flip := (^bits[i>>6] >> (uint(i) & 63) & 1) << 63
+		return math.Float64frombits(math.Float64bits(sd) ^ flip)
+	}
 	var d float64
 	for i, sd := range pr.sdN {
-		d += Sign(pr.signN[s], i) * sd
+		d += signed(pr.signN[s], i, sd)
 	}
 	for i, sd := range pr.sdB {
-		d -= Sign(pr.signB[s], i) * sd
+		d -= signed(pr.signB[s], i, sd)
 	}
 	return d
 }

@@ -23,9 +23,9 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"runtime/debug"
 	"slices"
 	"strings"
-	"sync"
 	"syscall"
 	"time"
 
@@ -33,6 +33,7 @@ import (
 	"github.com/desmear/desmear/sparse/sparsetest"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/internal/eventfile"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 )
@@ -58,12 +59,13 @@ type Config struct {
 	Probes, Toys  int
 	FillEvents    int // events generated in memory for the response filling
 	ParquetEvents int // events written to and read from a Parquet file
+	ParquetRounds int // interleaved rounds of decoding and filling it (medians)
 }
 
 // ConfigOf returns the configuration of size s, or an error naming the
 // sizes for an unknown one.
 func ConfigOf(s Size) (Config, error) {
-	c := Config{Rounds: 6, Iterations: 4, Probes: 100}
+	c := Config{Rounds: 6, Iterations: 4, Probes: 100, ParquetRounds: 6}
 	switch s {
 	case Small:
 		c.Truth, c.Reco = [3]int{20, 20, 20}, [3]int{20, 20, 40}
@@ -130,8 +132,22 @@ type Results struct {
 	FillEntriesPerS   float64 `json:"fill_entries_per_s"`
 	ParquetEvents     int     `json:"parquet_events"`
 	ParquetEventsPerS float64 `json:"parquet_events_per_s"`
-	PeakRSSBytes      int64   `json:"peak_rss_bytes"`
-	ByteModel         string  `json:"byte_model"`
+	// ParquetDecodeEventsPerS is the reader's own rate for the seven
+	// columns the filling needs (decoding only, one goroutine), and
+	// ParquetDecodeRatio the filling's rate over it; both medians of
+	// ParquetRounds interleaved rounds, as is ParquetEventsPerS.
+	ParquetDecodeEventsPerS float64 `json:"parquet_decode_events_per_s"`
+	ParquetDecodeRatio      float64 `json:"parquet_decode_ratio"`
+	// The same per second of the process's CPU time (user and system,
+	// all goroutines), which other processes on the machine move less.
+	ParquetEventsPerCPUS       float64 `json:"parquet_events_per_cpu_s"`
+	ParquetDecodeEventsPerCPUS float64 `json:"parquet_decode_events_per_cpu_s"`
+	ParquetDecodeCPURatio      float64 `json:"parquet_decode_cpu_ratio"`
+	ParquetRounds              int     `json:"parquet_rounds"`
+	PeakRSSBytes               int64   `json:"peak_rss_bytes"`
+	// Job is the whole job (fill, unfolding, probes), measured first.
+	Job
+	ByteModel string `json:"byte_model"`
 }
 
 // Problem returns the problem of configuration c.
@@ -178,6 +194,14 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 			progress(st)
 		}
 	}
+	// the whole job first: the peak resident memory at its end is its own
+	note(fmt.Sprintf("whole job: fill %d events, %d iterations, %d probes", c.FillEvents, c.Iterations, c.Probes))
+	j, err := job(ctx, c)
+	if err != nil {
+		return nil, err
+	}
+	runtime.GC()
+	debug.FreeOSMemory()
 	note("problem")
 	p, err := Problem(c)
 	if err != nil {
@@ -188,7 +212,7 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 	r := &Results{Size: s, TruthBins: nt, RecoBins: nr, NonZeros: a.NNZ(), Cores: runtime.GOMAXPROCS(0),
 		Rounds: c.Rounds, Iterations: c.Iterations, Probes: c.Probes, Toys: c.Toys,
 		FillEvents: c.FillEvents, ParquetEvents: c.ParquetEvents, ByteModel: ByteModel,
-		Date: time.Now().UTC().Format("2006-01-02")}
+		Date: time.Now().UTC().Format("2006-01-02"), Job: *j}
 	if err := kernels(ctx, r, p, c, note); err != nil {
 		return nil, err
 	}
@@ -200,7 +224,7 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 		return nil, err
 	}
 	note("response filling from Parquet")
-	if r.ParquetEventsPerS, err = fillParquet(ctx, c); err != nil {
+	if err = fillParquet(ctx, r, c); err != nil {
 		return nil, err
 	}
 	r.PeakRSSBytes = peakRSS()
@@ -406,82 +430,30 @@ func event(rng *rand.Rand, c Config) (truth, reco int, w float64) {
 }
 
 // fill accumulates the migrations of FillEvents events generated in
-// memory, in batches on GOMAXPROCS goroutines, and returns the
-// reconstructed entries per second, the compression to the matrix and
-// the generation of the events included.
+// memory (accumulate) and returns the reconstructed entries per second,
+// the compression to the matrix and the generation of the events
+// included.
 func fill(ctx context.Context, c Config) (float64, error) {
-	nr := c.Reco[0] * c.Reco[1] * c.Reco[2]
-	nt := c.Truth[0] * c.Truth[1] * c.Truth[2]
-	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	start := time.Now()
+	_, _, n, err := accumulate(ctx, c, false)
 	if err != nil {
 		return 0, err
-	}
-	const batch = 1 << 18
-	nb := (c.FillEvents + batch - 1) / batch
-	workers := runtime.GOMAXPROCS(0)
-	errs := make([]error, workers)
-	entries := make([]int64, workers)
-	var next int64
-	var mu sync.Mutex
-	start := time.Now()
-	var wg sync.WaitGroup
-	for w := range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
-			for {
-				mu.Lock()
-				b := next
-				next++
-				mu.Unlock()
-				if b >= int64(nb) || ctx.Err() != nil {
-					return
-				}
-				rng := rand.New(rand.NewPCG(0x5eed, uint64(b)))
-				rows, cols, wts = rows[:0], cols[:0], wts[:0]
-				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
-					t, rc, wt := event(rng, c)
-					if rc >= 0 {
-						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
-					}
-				}
-				entries[w] += int64(len(rows))
-				if err := acc.AddBatch(uint64(b), rows, cols, wts); err != nil {
-					errs[w] = err
-					return
-				}
-			}
-		}()
-	}
-	wg.Wait()
-	if err := ctx.Err(); err != nil {
-		return 0, err
-	}
-	for _, err := range errs {
-		if err != nil {
-			return 0, err
-		}
-	}
-	if _, _, err := acc.Matrix(); err != nil {
-		return 0, err
-	}
-	var n int64
-	for _, e := range entries {
-		n += e
 	}
 	return float64(n) / time.Since(start).Seconds(), nil
 }
 
 // fillParquet writes ParquetEvents events with three observables at each
-// level and a weight to a Parquet file in a temporary folder and builds
-// the response from it through an analysis, as `desmear response` does;
-// it returns the events read per second (decoding, the observables, the
-// location and the accumulation; the writing not included).
-func fillParquet(ctx context.Context, c Config) (float64, error) {
+// level and a weight to a Parquet file in a temporary folder, then
+// measures in interleaved rounds the building of the response from it
+// through an analysis, as `desmear response` does (decoding, the
+// observables, the location, the accumulation and the file's SHA-256;
+// the writing not included), and the reader decoding the same seven
+// columns alone. It records the medians of the events per second of both
+// and of their ratio in r.
+func fillParquet(ctx context.Context, r *Results, c Config) error {
 	dir, err := os.MkdirTemp("", "desmear-bench-")
 	if err != nil {
-		return 0, err
+		return err
 	}
 	defer os.RemoveAll(dir)
 	n := c.ParquetEvents
@@ -504,9 +476,88 @@ func fillParquet(ctx context.Context, c Config) (float64, error) {
 	}
 	sim := filepath.Join(dir, "sim.parquet")
 	if err := eventfile.WriteParquet(sim, names, cols); err != nil {
-		return 0, err
+		return err
 	}
 	cols = nil
+	an, err := parquetAnalysis(dir, sim, c)
+	if err != nil {
+		return err
+	}
+	rounds := max(c.ParquetRounds, 1)
+	var fills, decodes, ratios, cpuFills, cpuDecodes, cpuRatios []float64
+	for range rounds {
+		t0, c0 := time.Now(), cpuTime()
+		if err := decodeParquet(ctx, sim, names, n); err != nil {
+			return err
+		}
+		t1, c1 := time.Now(), cpuTime()
+		built, _, err := an.BuildResponse(ctx, nil)
+		if err != nil {
+			return err
+		}
+		if built.Summary.Events != int64(n) {
+			return fmt.Errorf("the response read %d of %d events", built.Summary.Events, n)
+		}
+		t2, c2 := time.Now(), cpuTime()
+		decodes = append(decodes, float64(n)/t1.Sub(t0).Seconds())
+		fills = append(fills, float64(n)/t2.Sub(t1).Seconds())
+		ratios = append(ratios, fills[len(fills)-1]/decodes[len(decodes)-1])
+		cpuDecodes = append(cpuDecodes, float64(n)/(c1-c0).Seconds())
+		cpuFills = append(cpuFills, float64(n)/(c2-c1).Seconds())
+		cpuRatios = append(cpuRatios, cpuFills[len(cpuFills)-1]/cpuDecodes[len(cpuDecodes)-1])
+	}
+	r.ParquetRounds = rounds
+	r.ParquetEventsPerS, r.ParquetDecodeEventsPerS, r.ParquetDecodeRatio = medianFloat(fills), medianFloat(decodes), medianFloat(ratios)
+	r.ParquetEventsPerCPUS, r.ParquetDecodeEventsPerCPUS, r.ParquetDecodeCPURatio = medianFloat(cpuFills), medianFloat(cpuDecodes), medianFloat(cpuRatios)
+	return nil
+}
+
+// cpuTime returns the CPU time (user and system) the process has used.
+func cpuTime() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// decodeParquet reads the named columns of the n events of the Parquet
+// file at path in batches of 4096 events, touching every value.
+func decodeParquet(ctx context.Context, path string, names []string, n int) error {
+	src, err := events.OpenParquet(path)
+	if err != nil {
+		return err
+	}
+	defer src.Close()
+	var got int64
+	var sum float64
+	err = src.Read(ctx, names, 4096, func(b *events.Batch) error {
+		got += int64(b.Len)
+		for _, col := range b.Cols {
+			for _, v := range col {
+				sum += v
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if got != int64(n) || math.IsNaN(sum) {
+		return fmt.Errorf("decoding read %d of %d events", got, n)
+	}
+	return nil
+}
+
+func medianFloat(v []float64) float64 {
+	s := slices.Clone(v)
+	slices.Sort(s)
+	return s[len(s)/2]
+}
+
+// parquetAnalysis returns the analysis filling the response of c's
+// binnings from the sample sim, the weight in column w.
+func parquetAnalysis(dir, sim string, c Config) (*analysis.Analysis, error) {
 	edges := func(n int) string {
 		var b strings.Builder
 		b.WriteString("[")
@@ -531,17 +582,5 @@ func fillParquet(ctx context.Context, c Config) (float64, error) {
 		"observables:\n  truth: {x: xt, y: yt, z: zt}\n  reco: {x: xr, y: yr, z: zr}\n" +
 		"simulation:\n  - file: " + sim + "\n    weight: w\n" +
 		"data:\n  table: n.csv\noutput:\n  folder: out\n"
-	an, err := analysis.Decode([]byte(src), filepath.Join(dir, "analysis.yaml"))
-	if err != nil {
-		return 0, err
-	}
-	start := time.Now()
-	built, _, err := an.BuildResponse(ctx, nil)
-	if err != nil {
-		return 0, err
-	}
-	if built.Summary.Events != int64(n) {
-		return 0, fmt.Errorf("the response read %d of %d events", built.Summary.Events, n)
-	}
-	return float64(n) / time.Since(start).Seconds(), nil
+	return analysis.Decode([]byte(src), filepath.Join(dir, "analysis.yaml"))
 }

@@ -2,6 +2,9 @@ package bench
 
 import (
 	"context"
+	"math"
+	"math/rand/v2"
+	"slices"
 	"testing"
 	"time"
 
@@ -46,6 +49,29 @@ func TestSmallProblem(t *testing.T) {
 	}
 }
 
+// BenchmarkFillParquet runs the Parquet filling of the fine binnings
+// with 2^21 events: the decoding alone and the whole filling, in one
+// round per iteration (for profiling the filling path).
+func BenchmarkFillParquet(b *testing.B) {
+	c, err := ConfigOf(Fine)
+	if err != nil {
+		b.Fatal(err)
+	}
+	c.ParquetEvents, c.ParquetRounds = 2<<20, 1
+	for range b.N {
+		var r Results
+		if err := fillParquet(b.Context(), &r, c); err != nil {
+			b.Fatal(err)
+		}
+		b.ReportMetric(r.ParquetEventsPerS/1e6, "Mfill/s")
+		b.ReportMetric(r.ParquetDecodeEventsPerS/1e6, "Mdecode/s")
+		b.ReportMetric(r.ParquetDecodeRatio, "ratio")
+		b.ReportMetric(r.ParquetEventsPerCPUS/1e6, "Mfill/cpu-s")
+		b.ReportMetric(r.ParquetDecodeEventsPerCPUS/1e6, "Mdecode/cpu-s")
+		b.ReportMetric(r.ParquetDecodeCPURatio, "cpu-ratio")
+	}
+}
+
 // BenchmarkFullCovariance: the full linearised covariance of the
 // iterative method (the Jacobian recursion, then J diag(var) Jᵀ), 4
 // iterations, on the family's problem of 5,000 truth × 10,000 reco bins
@@ -69,4 +95,81 @@ func BenchmarkFullCovariance(b *testing.B) {
 		d = append(d, time.Since(t0))
 	}
 	b.ReportMetric(median(d).Seconds(), "s/op-median")
+}
+
+// The whole job's problem at a reduced small size: the generated weight
+// of every truth bin is the sum of the weights of its events,
+// reconstructed or not, checked against a plain serial loop over the same
+// events (batches of 2^18, PCG stream b of seed 0x5eed); the column sums
+// of the filled migrations are the reconstructed part, so every
+// efficiency lies in [0, 1] (common practice: ε_j = Σ_i A_ij / G_j); the
+// data are the rounded row sums.
+func TestFilledProblem(t *testing.T) {
+	c, err := ConfigOf(Small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c.FillEvents = 1<<18 + 5000 // two batches, the last one partial
+	p, err := filledProblem(context.Background(), c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	nr, nt := p.Migrations.Dims()
+	want, reco := make([]float64, nt), make([]float64, nt)
+	for b := 0; b < 2; b++ {
+		rng := rand.New(rand.NewPCG(0x5eed, uint64(b)))
+		for e := b << 18; e < min(c.FillEvents, (b+1)<<18); e++ {
+			tr, rc, w := event(rng, c)
+			want[tr] += w
+			if rc >= 0 {
+				reco[tr] += w
+			}
+		}
+	}
+	cols := make([]float64, nt)
+	p.Migrations.ColSums(cols)
+	for j := range want {
+		if math.Abs(p.Generated[j]-want[j]) > 1e-9*want[j] || math.Abs(cols[j]-reco[j]) > 1e-9*reco[j] {
+			t.Fatalf("truth bin %d: generated %v, reconstructed %v; want %v, %v", j, p.Generated[j], cols[j], want[j], reco[j])
+		}
+	}
+	rows := make([]float64, nr)
+	p.Migrations.RowSums(rows)
+	for i, v := range rows {
+		if p.Data[i] != math.Round(v) {
+			t.Fatalf("reco bin %d: data %v, want %v", i, p.Data[i], math.Round(v))
+		}
+	}
+	if _, err := unfold.Prepare(p, unfold.InModel); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// BenchmarkFineJob: the whole job of desmear bench at the fine grid
+// (fill 50 M events, 4 iterations, 100 probes), run before anything else
+// of the process has allocated; reports the medians of the fill, the
+// unfolding and the whole, and the process's peak resident memory.
+func BenchmarkFineJob(b *testing.B) {
+	c, err := ConfigOf(Fine)
+	if err != nil {
+		b.Fatal(err)
+	}
+	var fill, unf, all []float64
+	var peak, fillPeak int64
+	var nnz int
+	for range b.N {
+		j, err := job(context.Background(), c)
+		if err != nil {
+			b.Fatal(err)
+		}
+		fill, unf, all = append(fill, j.JobFillS), append(unf, j.JobUnfoldS), append(all, j.JobS)
+		peak, fillPeak, nnz = j.JobPeakRSSBytes, j.JobFillPeakRSSBytes, j.JobNonZeros
+	}
+	med := func(x []float64) float64 { slices.Sort(x); return x[len(x)/2] }
+	b.ReportMetric(med(fill), "s/fill")
+	b.ReportMetric(med(unf), "s/unfold")
+	b.ReportMetric(med(all), "s/job")
+	b.ReportMetric(float64(peak)/1e6, "MB-peak-RSS")
+	b.ReportMetric(float64(fillPeak)/1e6, "MB-peak-RSS-fill")
+	b.ReportMetric(float64(nnz), "non-zeros")
 }

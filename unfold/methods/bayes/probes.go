@@ -45,7 +45,8 @@ type probes struct {
 	update  func(j int, g, x []float64)
 	cur     int // first probe of the block being swept
 	it      *iterator
-	k       int // the iteration the tangents hold
+	k       int       // the iteration the tangents hold
+	c0      []float64 // the probes' starting factors c_s (init)
 }
 
 // perProbe makes every probe of the method's fits sweep on its own (the
@@ -146,8 +147,16 @@ func (pr *probes) width(s int) int { return min(unfold.ProbeBlock, pr.count-s) }
 
 func (pr *probes) init(ctx context.Context, it *iterator) error {
 	m := pr.m
-	parallel.For(pr.count, runtime.GOMAXPROCS(0), func(s int) {
+	workers := runtime.GOMAXPROCS(0)
+	if len(pr.c0) < pr.count {
+		pr.c0 = make([]float64, pr.made)
+	}
+	c0 := pr.c0[:pr.count]
+	// dμ_s = c_s p with c_s = (Σ dn − Σ db)/Σ ε p, probe by probe (each
+	// goroutine writes vectors of its own probes only)
+	parallel.For(pr.count, workers, func(s int) {
 		c := pr.batch.Net(s) / m.sumEP
+		c0[s] = c
 		for j, p := range m.prior {
 			pr.dmu[s][j] = c * p
 		}
@@ -155,15 +164,24 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 			for i, v := range it.rp {
 				pr.tfold[s][i] = c * v
 			}
-			return
-		}
-		b := s / unfold.ProbeBlock
-		k, o := pr.width(b*unfold.ProbeBlock), s%unfold.ProbeBlock
-		tf := pr.tfold[b]
-		for i, v := range it.rp {
-			tf[i*k+o] = c * v
 		}
 	})
+	if pr.blocked {
+		// R dμ_s = c_s R p, block by block and reco bin by reco bin, so
+		// that every cache line of a block's interleaved vectors is
+		// written once, by one goroutine
+		parallel.For(len(pr.tfold), workers, func(b int) {
+			first := b * unfold.ProbeBlock
+			k := pr.width(first)
+			cb, tf := c0[first:first+k], pr.tfold[b]
+			for i, v := range it.rp {
+				row := tf[i*k : i*k+k]
+				for o, c := range cb {
+					row[o] = c * v
+				}
+			}
+		})
+	}
 	if err := ctx.Err(); err != nil {
 		return err
 	}
@@ -291,21 +309,27 @@ func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
 		}
 		first := b * unfold.ProbeBlock
 		k := pr.width(first)
+		sn := pr.signN[first : first+k]
+		var sb [][]uint64
+		if c != nil {
+			sb = pr.signB[first : first+k]
+		}
 		pr.red.Run(len(a), func(lo, hi int, _ *[4]float64) {
-			for o := 0; o < k; o++ {
-				sn := pr.signN[first+o]
-				var sb []uint64
-				if c != nil {
-					sb = pr.signB[first+o]
-				}
-				for i := lo; i < hi; i++ {
-					flip := (^sn[i>>6] >> (uint(i) & 63) & 1) << 63
-					y := math.Float64frombits(math.Float64bits(a[i])^flip) - w[i]*tf[i*k+o]
+			// reco bin by reco bin, the probes of the block inside: the
+			// same arithmetic per element as probe by probe, written in
+			// the order of the interleaved vectors
+			for i := lo; i < hi; i++ {
+				word, bit := i>>6, uint(i)&63
+				ai, wi := math.Float64bits(a[i]), w[i]
+				row := tf[i*k : i*k+k]
+				for o := range row {
+					flip := (^sn[o][word] >> bit & 1) << 63
+					y := math.Float64frombits(ai^flip) - wi*row[o]
 					if sb != nil {
-						flip := (^sb[i>>6] >> (uint(i) & 63) & 1) << 63
+						flip := (^sb[o][word] >> bit & 1) << 63
 						y -= math.Float64frombits(math.Float64bits(c[i]) ^ flip)
 					}
-					tf[i*k+o] = y
+					row[o] = y
 				}
 			}
 		})

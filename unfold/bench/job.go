@@ -1,0 +1,166 @@
+package bench
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"sync"
+	"time"
+
+	"github.com/desmear/desmear/sparse"
+	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/methods/bayes"
+)
+
+// Job is the whole unfolding job of a run, measured first (before any
+// other stage has allocated), so that the process's peak resident memory
+// at its end is the job's: the response filled from FillEvents events
+// generated in memory (as fill does), the data taken as the rounded reco
+// distribution of the simulation, and one unfolding with Iterations
+// iterations and the per-bin variances of Probes probes.
+type Job struct {
+	JobEvents       int     `json:"job_events"`
+	JobFillS        float64 `json:"job_fill_s"`
+	JobUnfoldS      float64 `json:"job_unfold_s"` // the unfolding with the probes, validation and set-up included
+	JobS            float64 `json:"job_s"`        // fill + unfold
+	JobPeakRSSBytes int64   `json:"job_peak_rss_bytes"`
+	// JobFillPeakRSSBytes is the peak resident memory at the end of the
+	// fill (the accumulation's peak).
+	JobFillPeakRSSBytes int64 `json:"job_fill_peak_rss_bytes"`
+	JobNonZeros         int   `json:"job_non_zeros"` // of the filled response
+}
+
+// job runs and times the whole job of c.
+func job(ctx context.Context, c Config) (*Job, error) {
+	j := &Job{JobEvents: c.FillEvents}
+	t0 := time.Now()
+	p, err := filledProblem(ctx, c)
+	if err != nil {
+		return nil, err
+	}
+	j.JobFillS = time.Since(t0).Seconds()
+	j.JobFillPeakRSSBytes, j.JobNonZeros = peakRSS(), p.Migrations.NNZ()
+	t1 := time.Now()
+	s := &unfold.Settings{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalProbes, Probes: c.Probes, Seed: 1}
+	if _, err := unfold.Unfold(ctx, p, s, &bayes.Settings{Iterations: c.Iterations}); err != nil {
+		return nil, err
+	}
+	j.JobUnfoldS = time.Since(t1).Seconds()
+	j.JobS = time.Since(t0).Seconds()
+	j.JobPeakRSSBytes = peakRSS()
+	return j, nil
+}
+
+// filledProblem fills the migrations of FillEvents events of c (fill's
+// events) and takes as generated the events of every truth bin,
+// reconstructed or not; the data are the rounded reco distribution of
+// the simulation.
+func filledProblem(ctx context.Context, c Config) (*unfold.Problem, error) {
+	a, gen, _, err := accumulate(ctx, c, true)
+	if err != nil {
+		return nil, err
+	}
+	nr, _ := a.Dims()
+	data := make([]float64, nr)
+	a.RowSums(data)
+	for i, v := range data {
+		data[i] = math.Round(v)
+	}
+	return &unfold.Problem{Migrations: a, Generated: gen, Data: data}, nil
+}
+
+// accumulate fills the migrations of FillEvents events generated in
+// memory, in batches of 2^18 (PCG stream b of seed 0x5eed for batch b)
+// on GOMAXPROCS goroutines, and returns the matrix, the generated
+// weights of every truth bin when generated is set (nil otherwise) and
+// the number of reconstructed entries. The generated weights are
+// 0.8 + 0.4 q/255 with an integer q (see event), so their sums are kept
+// as integer counts and sums of q, exact whatever the order of the
+// batches.
+func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, []float64, int64, error) {
+	nr := c.Reco[0] * c.Reco[1] * c.Reco[2]
+	nt := c.Truth[0] * c.Truth[1] * c.Truth[2]
+	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	if err != nil {
+		return nil, nil, 0, err
+	}
+	const batch = 1 << 18
+	nb := (c.FillEvents + batch - 1) / batch
+	workers := runtime.GOMAXPROCS(0)
+	errs := make([]error, workers)
+	entries := make([]int64, workers)
+	// per worker and truth bin: the events and their sum of q, side by
+	// side (one cache line per event)
+	gen := make([][][2]int64, workers)
+	var next int64
+	var mu sync.Mutex
+	var wg sync.WaitGroup
+	for w := range workers {
+		if generated {
+			gen[w] = make([][2]int64, nt)
+		}
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
+			gw := gen[w]
+			for {
+				mu.Lock()
+				b := next
+				next++
+				mu.Unlock()
+				if b >= int64(nb) || ctx.Err() != nil {
+					return
+				}
+				rng := rand.New(rand.NewPCG(0x5eed, uint64(b)))
+				rows, cols, wts = rows[:0], cols[:0], wts[:0]
+				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
+					t, rc, wt := event(rng, c)
+					if generated {
+						g := &gw[t]
+						g[0]++
+						g[1] += int64((wt-0.8)*(255/0.4) + 0.5)
+					}
+					if rc >= 0 {
+						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
+					}
+				}
+				entries[w] += int64(len(rows))
+				if err := acc.AddBatch(uint64(b), rows, cols, wts); err != nil {
+					errs[w] = err
+					return
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, nil, 0, err
+	}
+	for _, err := range errs {
+		if err != nil {
+			return nil, nil, 0, err
+		}
+	}
+	a, _, err := acc.Matrix()
+	if err != nil {
+		return nil, nil, 0, err
+	}
+	var n int64
+	for _, e := range entries {
+		n += e
+	}
+	if !generated {
+		return a, nil, n, nil
+	}
+	g := make([]float64, nt)
+	for t := range g {
+		var k, q int64
+		for w := range workers {
+			k, q = k+gen[w][t][0], q+gen[w][t][1]
+		}
+		g[t] = 0.8*float64(k) + 0.4*float64(q)/255
+	}
+	return a, g, n, nil
+}
