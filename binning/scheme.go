@@ -7,7 +7,6 @@ import (
 	"slices"
 	"sort"
 	"strconv"
-	"strings"
 )
 
 // Outside is the global index of a point that lies in no bin: outside
@@ -265,35 +264,63 @@ func (s *Scheme) Global(r int, idx ...int) int {
 // Label returns a short human-readable label of global bin g, for example
 // "central y[0.5,1) pt[30,50)". Flow bins show an infinite edge, and a
 // collapsed nested axis shows "pt(any)". It panics if g is out of range.
-func (s *Scheme) Label(g int) string {
+func (s *Scheme) Label(g int) string { return string(s.appendLabel(nil, g, nil)) }
+
+// EachLabel calls fn with every global bin g in order and its Label,
+// as bytes valid only until fn returns. It formats each distinct edge
+// value once, so a pass over the labels of all bins costs far less than
+// calling Label for each.
+func (s *Scheme) EachLabel(fn func(g int, label []byte)) {
+	memo := map[uint64]string{}
+	var buf []byte
+	for g := 0; g < s.n; g++ {
+		buf = s.appendLabel(buf[:0], g, memo)
+		fn(g, buf)
+	}
+}
+
+// appendLabel appends the label of bin g to dst; memo, when not nil,
+// keeps the formatted edges by their bits (so that -0 and 0 stay apart).
+func (s *Scheme) appendLabel(dst []byte, g int, memo map[uint64]string) []byte {
+	edge := func(v float64) {
+		if memo == nil {
+			dst = append(dst, formatEdge(v)...)
+			return
+		}
+		str, ok := memo[math.Float64bits(v)]
+		if !ok {
+			str = formatEdge(v)
+			memo[math.Float64bits(v)] = str
+		}
+		dst = append(dst, str...)
+	}
 	var st [MaxAxes]int
 	r, _ := s.states(g, &st)
 	reg := s.regions[r]
-	var sb strings.Builder
-	sb.WriteString(reg.name)
+	dst = append(dst, reg.name...)
 	for k, a := range reg.axes {
-		sb.WriteByte(' ')
-		sb.WriteString(a.name)
+		dst = append(dst, ' ')
+		dst = append(dst, a.name...)
 		if st[k] == AnyBin {
-			sb.WriteString("(any)")
+			dst = append(dst, "(any)"...)
 			continue
 		}
 		lo, hi := reg.binEdges(k, &st)
 		if math.IsInf(lo, -1) {
-			sb.WriteString("(-inf,")
+			dst = append(dst, "(-inf,"...)
 		} else {
-			sb.WriteByte('[')
-			sb.WriteString(formatEdge(lo))
-			sb.WriteByte(',')
+			dst = append(dst, '[')
+			edge(lo)
+			dst = append(dst, ',')
 		}
 		if math.IsInf(hi, 1) {
-			sb.WriteString("inf)")
+			dst = append(dst, "inf)"...)
 		} else {
-			sb.WriteString(formatEdge(hi))
-			sb.WriteByte(')')
+			edge(hi)
+			dst = append(dst, ')')
 		}
 	}
-	return sb.String()
+	return dst
 }
 
 func formatEdge(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }

@@ -589,3 +589,53 @@ func TestLookups(t *testing.T) {
 		t.Errorf("central Len %d Flows %d, forward Len %d Flows %d; want 9, 7, 4, 0", regs[0].Len(), regs[0].Flows(), regs[1].Len(), regs[1].Flows())
 	}
 }
+
+// EachLabel gives every bin's Label, in order, on the testdata schemes,
+// random ones (nested axes, flows, several regions) and edges -0 and 0,
+// which compare equal but print apart (strconv 'g' formatting keeps the
+// sign of zero: common practice of IEEE 754 printing).
+func TestEachLabel(t *testing.T) {
+	a, err := NewAxis("x", "", []float64{-1, math.Copysign(0, -1)}, true, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := NewAxis("x", "", []float64{0, 1}, false, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ra, err := NewRegion("neg", a)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rb, err := NewRegion("pos", b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	zeros, err := NewScheme(ra, rb)
+	if err != nil {
+		t.Fatal(err)
+	}
+	schemes := []*Scheme{zeros, readTestdata(t, "scheme2d.yaml"), readTestdata(t, "scheme3d.yaml")}
+	rng := rand.New(rand.NewPCG(31, 32))
+	for range 50 {
+		schemes = append(schemes, randomScheme(rng))
+	}
+	for i, s := range schemes {
+		next := 0
+		s.EachLabel(func(g int, label []byte) {
+			if g != next {
+				t.Fatalf("scheme %d: bin %d after %d", i, g, next-1)
+			}
+			next++
+			if want := s.Label(g); string(label) != want {
+				t.Errorf("scheme %d, bin %d: label %q, want %q", i, g, label, want)
+			}
+		})
+		if next != s.Len() {
+			t.Errorf("scheme %d: %d labels for %d bins", i, next, s.Len())
+		}
+	}
+	if got, want := zeros.Label(0), "neg x[-1,-0)"; got != want {
+		t.Errorf("Label(0) = %q, want %q", got, want)
+	}
+}

@@ -35,9 +35,12 @@
 //
 //   - Full: the method fills the dense Jacobian (Fit.Jacobian; two
 //     buffers of 8·n_t·n_r bytes) and V comes from one general matrix
-//     multiply. It is refused with a *TooLargeError when
-//     16·n_t·n_r + 8·n_t² bytes exceed Settings.MemoryLimit (default
-//     4 GiB); with a propagated background variance n_r counts twice.
+//     multiply, unless the method carried V along its own recursion
+//     (Jacobian.Covariance, asked for by Jacobian.ColumnVariances). It
+//     is refused with a *TooLargeError when 16·n_t·n_r + 8·n_t² bytes
+//     (+ 8·n_t·(n_t − n_r) for a work matrix of V's size when n_t > n_r)
+//     exceed Settings.MemoryLimit (default 4 GiB); with a propagated
+//     background variance n_r counts twice.
 //   - Diagonal: per-bin variances, by DiagonalExact (the diagonal of the
 //     exact V from the dense Jacobian, when it fits), DiagonalProbes (S
 //     random Rademacher probes z_s, (z_s)_i = ±sqrt(var n_i), propagated

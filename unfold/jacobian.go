@@ -21,6 +21,15 @@ type Jacobian struct {
 	// Jacobian is in Data.
 	Work []float64
 
+	// ColumnVariances, when the driver sets them before Fit.Jacobian,
+	// are the variances of the columns, and the driver wants the
+	// covariance J diag(ColumnVariances) Jᵀ. A method that carries the
+	// covariance along its own recursion may then leave it in
+	// Covariance (Rows×Rows, row-major, both triangles); when it leaves
+	// Covariance nil the driver forms the product from Data.
+	ColumnVariances []float64
+	Covariance      []float64
+
 	step func(k int) // set by the driver recording the steps (see Step)
 }
 
@@ -34,11 +43,14 @@ func NewJacobian(m *Prepared) *Jacobian {
 func (jc *Jacobian) At(r, c int) float64 { return jc.Data[r*jc.Cols+c] }
 
 // denseBytes is the memory estimate of the dense Jacobian (two buffers)
-// plus, when full is set, the covariance.
+// plus, when full is set, the covariance and, with fewer columns than
+// truth bins, the part of a work matrix of its size that the Jacobian's
+// second buffer cannot hold (a method carrying the covariance along its
+// recursion needs one).
 func denseBytes(nt, cols int, full bool) int64 {
 	b := 16 * int64(nt) * int64(cols)
 	if full {
-		b += 8 * int64(nt) * int64(nt)
+		b += 8*int64(nt)*int64(nt) + 8*int64(nt)*int64(max(0, nt-cols))
 	}
 	return b
 }

@@ -25,7 +25,8 @@ type plan struct {
 // FullCovarianceBytes returns the memory estimate of the full covariance
 // of p under s (the dense Jacobian, two buffers, and the covariance
 // matrix: 16 bytes per truth bin and Jacobian column plus 8 per pair of
-// truth bins), the figure Unfold compares with the memory limit; 0 when s
+// truth bins, and 8·n_t·(n_t − columns) more with fewer columns than
+// truth bins, for a work matrix of the covariance's size), the figure Unfold compares with the memory limit; 0 when s
 // does not ask for the full covariance. The background variance adds a
 // column per reco bin when it is propagated (background in the model).
 // It lets a caller state the memory before the computation starts.
@@ -192,16 +193,24 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 				}
 			}
 		}
+		if pl.method == Full {
+			jc.ColumnVariances = pl.columnVariances()
+		}
 		if err := fit.Jacobian(ctx, jc); err != nil {
 			return err
 		}
 		derived = jacobianDerived(ds, jc, pl.columnVariances())
 		if pl.method == Full {
-			c, err := jc.covariance(ctx, pl.columnVariances())
-			if err != nil {
-				return err
+			if jc.Covariance != nil {
+				jc.Work = nil
+				cov = mat.NewSymDense(m.nt, jc.Covariance)
+			} else {
+				c, err := jc.covariance(ctx, pl.columnVariances())
+				if err != nil {
+					return err
+				}
+				cov = c
 			}
-			cov = c
 			variance = make([]float64, m.nt)
 			for j := range variance {
 				variance[j] = cov.At(j, j)

@@ -27,6 +27,7 @@ func TestBenchCommandJSON(t *testing.T) {
 	}
 	for _, k := range []string{"triad_gbs", "sweep_ms", "iteration_ms", "iteration_floor_ratio", "toys_per_s",
 		"fill_entries_per_s", "parquet_events_per_s", "probes_s", "peak_rss_bytes", "unfolding_ms", "sweep_floor_ratio", "iteration_loglik_ms",
+		"parquet_decode_events_per_s", "parquet_decode_ratio", "parquet_events_per_cpu_s", "parquet_decode_events_per_cpu_s", "parquet_decode_cpu_ratio",
 		"job_s", "job_fill_s", "job_unfold_s", "job_peak_rss_bytes", "job_events"} {
 		if v, ok := r[k].(float64); !ok || !(v > 0) {
 			t.Errorf("%s = %v, want a positive number", k, r[k])
@@ -46,7 +47,7 @@ func TestBenchCommandTableAndUsage(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d", code)
 	}
-	for _, want := range []string{"triad bandwidth", "marginal iteration", "bandwidth floor", "whole job", "byte model:"} {
+	for _, want := range []string{"triad bandwidth", "marginal iteration", "bandwidth floor", "Parquet decoding", "whole job", "byte model:"} {
 		if !strings.Contains(stdout, want) {
 			t.Errorf("the table lacks %q:\n%s", want, stdout)
 		}

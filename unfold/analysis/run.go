@@ -169,8 +169,15 @@ func (a *Analysis) buildFrom(ctx context.Context, opt *Options, samples []Sample
 		return nil, nil, &Error{File: a.File, Field: "simulation", Msg: "no simulated sample to build the response from"}
 	}
 	size := opt.shardEvents()
-	info := &response.BundleInfo{TruthScheme: response.Fingerprint(a.Truth), RecoScheme: response.Fingerprint(a.Reco),
-		ShardEvents: size}
+	// Fingerprint the schemes (a pass over every bin's label) while the
+	// events are read, as the files are hashed below.
+	info := &response.BundleInfo{ShardEvents: size}
+	fingerprinted := make(chan struct{})
+	go func() {
+		defer close(fingerprinted)
+		info.TruthScheme, info.RecoScheme = response.Fingerprint(a.Truth), response.Fingerprint(a.Reco)
+	}()
+	defer func() { <-fingerprinted }() // info is complete on every return
 	if opt != nil {
 		info.Program = opt.Version
 	}

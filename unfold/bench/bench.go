@@ -33,6 +33,7 @@ import (
 	"github.com/desmear/desmear/sparse/sparsetest"
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
+	"github.com/desmear/desmear/unfold/inputs/events"
 	"github.com/desmear/desmear/unfold/internal/eventfile"
 	"github.com/desmear/desmear/unfold/methods/bayes"
 )
@@ -58,12 +59,13 @@ type Config struct {
 	Probes, Toys  int
 	FillEvents    int // events generated in memory for the response filling
 	ParquetEvents int // events written to and read from a Parquet file
+	ParquetRounds int // interleaved rounds of decoding and filling it (medians)
 }
 
 // ConfigOf returns the configuration of size s, or an error naming the
 // sizes for an unknown one.
 func ConfigOf(s Size) (Config, error) {
-	c := Config{Rounds: 6, Iterations: 4, Probes: 100}
+	c := Config{Rounds: 6, Iterations: 4, Probes: 100, ParquetRounds: 6}
 	switch s {
 	case Small:
 		c.Truth, c.Reco = [3]int{20, 20, 20}, [3]int{20, 20, 40}
@@ -130,7 +132,19 @@ type Results struct {
 	FillEntriesPerS   float64 `json:"fill_entries_per_s"`
 	ParquetEvents     int     `json:"parquet_events"`
 	ParquetEventsPerS float64 `json:"parquet_events_per_s"`
-	PeakRSSBytes      int64   `json:"peak_rss_bytes"`
+	// ParquetDecodeEventsPerS is the reader's own rate for the seven
+	// columns the filling needs (decoding only, one goroutine), and
+	// ParquetDecodeRatio the filling's rate over it; both medians of
+	// ParquetRounds interleaved rounds, as is ParquetEventsPerS.
+	ParquetDecodeEventsPerS float64 `json:"parquet_decode_events_per_s"`
+	ParquetDecodeRatio      float64 `json:"parquet_decode_ratio"`
+	// The same per second of the process's CPU time (user and system,
+	// all goroutines), which other processes on the machine move less.
+	ParquetEventsPerCPUS       float64 `json:"parquet_events_per_cpu_s"`
+	ParquetDecodeEventsPerCPUS float64 `json:"parquet_decode_events_per_cpu_s"`
+	ParquetDecodeCPURatio      float64 `json:"parquet_decode_cpu_ratio"`
+	ParquetRounds              int     `json:"parquet_rounds"`
+	PeakRSSBytes               int64   `json:"peak_rss_bytes"`
 	// Job is the whole job (fill, unfolding, probes), measured first.
 	Job
 	ByteModel string `json:"byte_model"`
@@ -210,7 +224,7 @@ func Run(ctx context.Context, s Size, c Config, progress func(stage string)) (*R
 		return nil, err
 	}
 	note("response filling from Parquet")
-	if r.ParquetEventsPerS, err = fillParquet(ctx, c); err != nil {
+	if err = fillParquet(ctx, r, c); err != nil {
 		return nil, err
 	}
 	r.PeakRSSBytes = peakRSS()
@@ -429,14 +443,17 @@ func fill(ctx context.Context, c Config) (float64, error) {
 }
 
 // fillParquet writes ParquetEvents events with three observables at each
-// level and a weight to a Parquet file in a temporary folder and builds
-// the response from it through an analysis, as `desmear response` does;
-// it returns the events read per second (decoding, the observables, the
-// location and the accumulation; the writing not included).
-func fillParquet(ctx context.Context, c Config) (float64, error) {
+// level and a weight to a Parquet file in a temporary folder, then
+// measures in interleaved rounds the building of the response from it
+// through an analysis, as `desmear response` does (decoding, the
+// observables, the location, the accumulation and the file's SHA-256;
+// the writing not included), and the reader decoding the same seven
+// columns alone. It records the medians of the events per second of both
+// and of their ratio in r.
+func fillParquet(ctx context.Context, r *Results, c Config) error {
 	dir, err := os.MkdirTemp("", "desmear-bench-")
 	if err != nil {
-		return 0, err
+		return err
 	}
 	defer os.RemoveAll(dir)
 	n := c.ParquetEvents
@@ -459,9 +476,88 @@ func fillParquet(ctx context.Context, c Config) (float64, error) {
 	}
 	sim := filepath.Join(dir, "sim.parquet")
 	if err := eventfile.WriteParquet(sim, names, cols); err != nil {
-		return 0, err
+		return err
 	}
 	cols = nil
+	an, err := parquetAnalysis(dir, sim, c)
+	if err != nil {
+		return err
+	}
+	rounds := max(c.ParquetRounds, 1)
+	var fills, decodes, ratios, cpuFills, cpuDecodes, cpuRatios []float64
+	for range rounds {
+		t0, c0 := time.Now(), cpuTime()
+		if err := decodeParquet(ctx, sim, names, n); err != nil {
+			return err
+		}
+		t1, c1 := time.Now(), cpuTime()
+		built, _, err := an.BuildResponse(ctx, nil)
+		if err != nil {
+			return err
+		}
+		if built.Summary.Events != int64(n) {
+			return fmt.Errorf("the response read %d of %d events", built.Summary.Events, n)
+		}
+		t2, c2 := time.Now(), cpuTime()
+		decodes = append(decodes, float64(n)/t1.Sub(t0).Seconds())
+		fills = append(fills, float64(n)/t2.Sub(t1).Seconds())
+		ratios = append(ratios, fills[len(fills)-1]/decodes[len(decodes)-1])
+		cpuDecodes = append(cpuDecodes, float64(n)/(c1-c0).Seconds())
+		cpuFills = append(cpuFills, float64(n)/(c2-c1).Seconds())
+		cpuRatios = append(cpuRatios, cpuFills[len(cpuFills)-1]/cpuDecodes[len(cpuDecodes)-1])
+	}
+	r.ParquetRounds = rounds
+	r.ParquetEventsPerS, r.ParquetDecodeEventsPerS, r.ParquetDecodeRatio = medianFloat(fills), medianFloat(decodes), medianFloat(ratios)
+	r.ParquetEventsPerCPUS, r.ParquetDecodeEventsPerCPUS, r.ParquetDecodeCPURatio = medianFloat(cpuFills), medianFloat(cpuDecodes), medianFloat(cpuRatios)
+	return nil
+}
+
+// cpuTime returns the CPU time (user and system) the process has used.
+func cpuTime() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// decodeParquet reads the named columns of the n events of the Parquet
+// file at path in batches of 4096 events, touching every value.
+func decodeParquet(ctx context.Context, path string, names []string, n int) error {
+	src, err := events.OpenParquet(path)
+	if err != nil {
+		return err
+	}
+	defer src.Close()
+	var got int64
+	var sum float64
+	err = src.Read(ctx, names, 4096, func(b *events.Batch) error {
+		got += int64(b.Len)
+		for _, col := range b.Cols {
+			for _, v := range col {
+				sum += v
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if got != int64(n) || math.IsNaN(sum) {
+		return fmt.Errorf("decoding read %d of %d events", got, n)
+	}
+	return nil
+}
+
+func medianFloat(v []float64) float64 {
+	s := slices.Clone(v)
+	slices.Sort(s)
+	return s[len(s)/2]
+}
+
+// parquetAnalysis returns the analysis filling the response of c's
+// binnings from the sample sim, the weight in column w.
+func parquetAnalysis(dir, sim string, c Config) (*analysis.Analysis, error) {
 	edges := func(n int) string {
 		var b strings.Builder
 		b.WriteString("[")
@@ -486,17 +582,5 @@ func fillParquet(ctx context.Context, c Config) (float64, error) {
 		"observables:\n  truth: {x: xt, y: yt, z: zt}\n  reco: {x: xr, y: yr, z: zr}\n" +
 		"simulation:\n  - file: " + sim + "\n    weight: w\n" +
 		"data:\n  table: n.csv\noutput:\n  folder: out\n"
-	an, err := analysis.Decode([]byte(src), filepath.Join(dir, "analysis.yaml"))
-	if err != nil {
-		return 0, err
-	}
-	start := time.Now()
-	built, _, err := an.BuildResponse(ctx, nil)
-	if err != nil {
-		return 0, err
-	}
-	if built.Summary.Events != int64(n) {
-		return 0, fmt.Errorf("the response read %d of %d events", built.Summary.Events, n)
-	}
-	return float64(n) / time.Since(start).Seconds(), nil
+	return analysis.Decode([]byte(src), filepath.Join(dir, "analysis.yaml"))
 }

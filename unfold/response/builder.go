@@ -313,7 +313,13 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			if withDiag {
 				sc.locateDiag(bt.diag, bt.reco, dg, reco != nil)
 			}
-			// Migration entries of the batch, in event order.
+			// Migration entries of the batch, in event order, in
+			// buffers of the batch's size (they circulate between
+			// batches and the accumulator's queue: growing them by
+			// appends would copy each several times).
+			if cap(bt.erows) < bt.n {
+				bt.erows, bt.ecols, bt.ew = make([]int32, 0, bt.n), make([]int32, 0, bt.n), make([]float64, 0, bt.n)
+			}
 			rows, cols, w := bt.erows[:0], bt.ecols[:0], bt.ew[:0]
 			for k, t := range bt.truth {
 				if r := bt.reco[k]; t >= 0 && r >= 0 {

@@ -1,6 +1,7 @@
 package response
 
 import (
+	"bufio"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -72,9 +73,17 @@ type BundleInfo struct {
 // was built for.
 func Fingerprint(s *binning.Scheme) string {
 	h := sha256.New()
-	for g := 0; g < s.Len(); g++ {
-		fmt.Fprintf(h, "%s|%v\n", s.Label(g), s.Bin(g).Flow)
-	}
+	w := bufio.NewWriterSize(h, 64<<10)
+	s.EachLabel(func(g int, label []byte) {
+		w.Write(label)
+		// The flow bins are the global bins from InRange on.
+		if g >= s.InRange() {
+			w.WriteString("|true\n")
+		} else {
+			w.WriteString("|false\n")
+		}
+	})
+	w.Flush() // a hash's Write never fails
 	return hex.EncodeToString(h.Sum(nil))
 }
 

@@ -14,6 +14,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/desmear/desmear/binning"
 	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
@@ -205,13 +206,19 @@ func TestBundleRefusals(t *testing.T) {
 func TestFingerprint(t *testing.T) {
 	const one = "regions:\n  - name: a\n    axes: [{name: x, edges: [0, 1, 2]%s}]\n"
 	s := mustScheme(t, fmt.Sprintf(one, ""))
-	var text strings.Builder
-	for g := 0; g < s.Len(); g++ {
-		text.WriteString(s.Label(g) + "|" + strconv.FormatBool(s.Bin(g).Flow) + "\n")
-	}
-	sum := sha256.Sum256([]byte(text.String()))
-	if got, want := Fingerprint(s), hex.EncodeToString(sum[:]); got != want {
-		t.Errorf("Fingerprint = %s, want %s", got, want)
+	// Schemes with flow bins in two regions, so that every flow flag
+	// of the lines is checked, besides the one without flows.
+	const two = "regions:\n  - name: a\n    axes: [{name: x, edges: [0, 1, 2], underflow: true, overflow: true}, {name: y, edges: [0, 0.5, 1], overflow: true}]\n" +
+		"  - name: b\n    axes: [{name: x, edges: [2, 3], underflow: true}, {name: y, edges: [0, 2]}]\n"
+	for _, sc := range []*binning.Scheme{s, mustScheme(t, fmt.Sprintf(one, ", overflow: true")), mustScheme(t, two)} {
+		var text strings.Builder
+		for g := 0; g < sc.Len(); g++ {
+			text.WriteString(sc.Label(g) + "|" + strconv.FormatBool(sc.Bin(g).Flow) + "\n")
+		}
+		sum := sha256.Sum256([]byte(text.String()))
+		if got, want := Fingerprint(sc), hex.EncodeToString(sum[:]); got != want {
+			t.Errorf("Fingerprint = %s, want %s (%d bins)", got, want, sc.Len())
+		}
 	}
 	if Fingerprint(s) == Fingerprint(mustScheme(t, fmt.Sprintf(one, ", overflow: true"))) {
 		t.Error("schemes with and without overflow have the same fingerprint")

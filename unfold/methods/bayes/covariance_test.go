@@ -7,6 +7,8 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -256,8 +258,18 @@ func TestMemoryLimit(t *testing.T) {
 	if !errors.As(err, &tl) {
 		t.Fatalf("got %v, want a *TooLargeError", err)
 	}
+	// method.md §8 Linearised uncertainty propagation (Costs): the
+	// Jacobian's two buffers and the covariance (the work matrix of its
+	// size fits in the second buffer: more columns than truth bins).
 	if want := int64(16*60*130 + 8*60*60); tl.Bytes != want || tl.Limit != 1<<16 {
 		t.Errorf("estimate %d limit %d, want %d and %d", tl.Bytes, tl.Limit, want, 1<<16)
+	}
+	// Fewer columns than truth bins: the work matrix needs 8·n_t·(n_t − n_r)
+	// bytes more (method.md §8, Costs).
+	q := randomProblem(t, 4, 60, 40, 9, false)
+	_, err = unfoldWith(context.Background(), q, &opts{Covariance: unfold.Full, MemoryLimit: 1 << 10})
+	if want := int64(16*60*40 + 8*60*60 + 8*60*20); !errors.As(err, &tl) || tl.Bytes != want {
+		t.Errorf("60 truth × 40 reco bins: got %v, want a *unfold.TooLargeError of %d bytes", err, want)
 	}
 	// The exact per-bin variances need the dense Jacobian alone
 	// (16·n_t·n_r bytes), refused under the same limit.
@@ -281,25 +293,63 @@ func TestMemoryLimit(t *testing.T) {
 	}
 }
 
-// The blocked upper-triangle covariance product equals the plain gonum
-// product J diag(var n) Jᵀ (gonum as the reference library), for a size
-// spanning several row blocks.
-func TestBlockedCovarianceProduct(t *testing.T) {
-	p := randomProblem(t, 6, 700, 1500, 9, false)
-	jc, _ := jacobianOf(t, p, &opts{Iterations: 2})
-	jd := mat.NewDense(700, 1500, nil)
-	for r := 0; r < 700; r++ {
-		for q := 0; q < 1500; q++ {
-			jd.Set(r, q, jc.at(r, q)*p.Data[q])
+// The covariance carried along the recursion (method.md §8 Linearised
+// uncertainty propagation) equals the plain gonum product J D Jᵀ of the
+// Jacobian computed alone (gonum as the reference library), with D the
+// column variances: data variances, and background variances in the
+// columns of the background when it is in the model; for sizes spanning
+// several column blocks of the recursion, with more and with fewer
+// columns than truth bins (the work matrix in the Jacobian's second
+// buffer, or of its own), bit for bit the same on 1 and 2 cores.
+func TestCarriedCovariance(t *testing.T) {
+	for _, c := range []struct {
+		nt, nr int
+		bkg    bool
+	}{{700, 1500, false}, {700, 1500, true}, {700, 300, false}, {700, 300, true}} {
+		nt, bkg := c.nt, c.bkg
+		p := randomProblem(t, 6, nt, c.nr, 9, bkg)
+		nr := len(p.Data)
+		v := slices.Clone(p.Data)
+		if bkg {
+			p.BackgroundVariance = make([]float64, nr)
+			for i, b := range p.Background {
+				p.BackgroundVariance[i] = 0.3 * b
+			}
+			v = append(v, p.BackgroundVariance...)
 		}
-	}
-	var want mat.Dense
-	want.Mul(jd, mat.NewDense(700, 1500, append([]float64(nil), jc.j...)).T())
-	res := unfoldOrFail(t, p, &opts{Iterations: 2, Covariance: unfold.Full})
-	for a := 0; a < 700; a++ {
-		for b := 0; b < 700; b++ {
-			if got, w := res.Covariance.At(a, b), want.At(a, b); math.Abs(got-w) > 1e-12*math.Max(1, math.Abs(w)) {
-				t.Fatalf("V[%d][%d] = %v, gonum product %v", a, b, got, w)
+		s := &opts{Iterations: 3}
+		jc, _ := jacobianOf(t, p, s)
+		cols := jc.cols
+		if cols != len(v) {
+			t.Fatalf("background %v: %d columns, want %d", bkg, cols, len(v))
+		}
+		jd := mat.NewDense(nt, cols, nil)
+		for r := 0; r < nt; r++ {
+			for q := 0; q < cols; q++ {
+				jd.Set(r, q, jc.at(r, q)*v[q])
+			}
+		}
+		var want mat.Dense
+		want.Mul(jd, mat.NewDense(nt, cols, slices.Clone(jc.j)).T())
+		s.Covariance = unfold.Full
+		old := runtime.GOMAXPROCS(1)
+		one := unfoldOrFail(t, p, s)
+		runtime.GOMAXPROCS(2)
+		res := unfoldOrFail(t, p, s)
+		runtime.GOMAXPROCS(old)
+		var scale float64
+		for a := 0; a < nt; a++ {
+			scale = math.Max(scale, math.Abs(want.At(a, a)))
+		}
+		for a := 0; a < nt; a++ {
+			for b := 0; b < nt; b++ {
+				got, w := res.Covariance.At(a, b), want.At(a, b)
+				if math.Abs(got-w) > 1e-12*scale {
+					t.Fatalf("%d × %d, background %v: V[%d][%d] = %v, gonum product %v", nt, c.nr, bkg, a, b, got, w)
+				}
+				if o := one.Covariance.At(a, b); math.Float64bits(o) != math.Float64bits(got) {
+					t.Fatalf("%d × %d, background %v: V[%d][%d] = %v on 1 core, %v on 2", nt, c.nr, bkg, a, b, o, got)
+				}
 			}
 		}
 	}

@@ -90,7 +90,14 @@
 //
 //   - the dense Jacobian (Fit.Jacobian, two row-major buffers) is updated
 //     every iteration with the sparse operators Rᵀ diag(n/ν²) R and
-//     Rᵀ diag(1/ν) applied to dense column blocks;
+//     Rᵀ diag(1/ν) applied to dense column blocks; when the full
+//     covariance is asked (and there is no smoothing) V itself is
+//     carried along as well, V(k+1) = X + Xᵀ + N D Nᵀ with
+//     X = M(½ (M V(k))ᵀ + J(k) D Nᵀ) for J(k+1) = M J(k) + N, the same
+//     sparse operators on dense column blocks of V: about 2 nnz(A) n_t
+//     multiply-adds per iteration in place of the n_t² n_r / 2 of the
+//     product J D Jᵀ (method.md §8), and bit for bit the same on any
+//     number of cores;
 //   - the random probes (Fit.Tangents) are Jacobian-vector products
 //     through the same recursion, one fused sweep per probe and
 //     iteration;

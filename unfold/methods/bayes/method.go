@@ -116,6 +116,9 @@ func (f *fit) Jacobian(ctx context.Context, dst *unfold.Jacobian) error {
 		return err
 	}
 	dst.Data, dst.Work = jc.j, jc.w
+	if jc.v != nil {
+		dst.Covariance = jc.v
+	}
 	return nil
 }
 
