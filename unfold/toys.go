@@ -7,27 +7,46 @@ import (
 	"runtime"
 
 	"github.com/desmear/desmear/unfold/internal/parallel"
-	"gonum.org/v1/gonum/stat/distuv"
 )
 
+// toyMeans returns the constants of the Poisson draws of toyData for
+// every reco bin (poissonMeanBytes each), formed once for all the toys
+// of an ensemble; bins that toyData does not draw keep the zero value.
+func toyMeans(m *Prepared) []poissonMean {
+	c := make([]poissonMean, len(m.n))
+	for i, x := range m.n {
+		if x <= 0 {
+			continue
+		}
+		if !m.weighted {
+			c[i] = newPoissonMean(x)
+			continue
+		}
+		if v := m.varN[i]; v > 0 {
+			c[i] = newPoissonMean(x * x / v) // n_eff, as toyData forms it
+		}
+	}
+	return c
+}
+
 // toyData fills n with pseudo-data for toy t and, when the background
-// variance is propagated, b with a fluctuated background.
+// variance is propagated, b with a fluctuated background; means holds
+// the constants of the draws (toyMeans).
 //
 // Unweighted data (no DataVariance) are Poisson with mean n_i. Weighted
 // data are a scaled Poisson: n_i·k/n_eff with k ~ Poisson(n_eff),
 // n_eff = n_i²/var_i, which has mean n_i and variance var_i (common
-// practice). The background is Gaussian with the given variance,
-// truncated at zero.
-func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
-	src := rand.NewPCG(seed, toyStream+uint64(t))
-	rng := rand.New(src)
+// practice). The counts are drawn as method.md §26 says. The background
+// is Gaussian with the given variance, truncated at zero.
+func toyData(m *Prepared, means []poissonMean, seed uint64, t int, n, b []float64) {
+	rng := rand.New(rand.NewPCG(seed, toyStream+uint64(t)))
 	for i, x := range m.n {
 		if x <= 0 {
 			n[i] = 0
 			continue
 		}
 		if !m.weighted {
-			n[i] = distuv.Poisson{Lambda: x, Src: src}.Rand()
+			n[i] = means[i].rand(rng, x)
 			continue
 		}
 		v := m.varN[i]
@@ -36,7 +55,7 @@ func toyData(m *Prepared, seed uint64, t int, n, b []float64) {
 			continue
 		}
 		neff := x * x / v
-		n[i] = distuv.Poisson{Lambda: neff, Src: src}.Rand() * v / x
+		n[i] = means[i].rand(rng, neff) * v / x
 	}
 	if b != nil {
 		for i, x := range m.b {

@@ -88,15 +88,18 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 		}
 		pl.batch = probeBatch(rs.Probes, min(rs.MemoryLimit/2, ProbeBatchBytes)-fixed, per)
 	case DiagonalToys, DiagonalGamma:
-		per := toyBytes(m)
-		if 2*per > rs.MemoryLimit {
+		per, fixed := toyBytes(m), int64(0)
+		if pl.diag == DiagonalToys {
+			fixed = poissonMeanBytes * int64(m.nr) // toyMeans, shared by the toys
+		}
+		if 2*(per+fixed) > rs.MemoryLimit {
 			return nil, &TooLargeError{
-				What: "one Poisson toy or Gamma sample (they run at once within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
-				Bytes: 2 * per, Limit: rs.MemoryLimit,
+				What: "one Poisson toy or Gamma sample and the constants of the draws (they run at once within half the memory limit)", TruthBins: m.nt, RecoBins: m.nr, Columns: cols,
+				Bytes: 2 * (per + fixed), Limit: rs.MemoryLimit,
 				Alternative: "use random probes for the per-bin variances, or raise the memory limit",
 			}
 		}
-		pl.toyWorkers = int(min(int64(runtime.GOMAXPROCS(0)), rs.MemoryLimit/2/per))
+		pl.toyWorkers = int(min(int64(runtime.GOMAXPROCS(0)), (rs.MemoryLimit/2-fixed)/per))
 	}
 	return pl, nil
 }
@@ -267,10 +270,13 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		res.UncertaintyPrecision = math.Sqrt(2 / float64(pl.rs.Probes))
 	case pl.diag == DiagonalToys || pl.diag == DiagonalGamma:
 		seed := pl.rs.Seed
-		draw := func(t int, n, b []float64) { toyData(m, seed, t, n, b) }
+		var draw func(t int, n, b []float64)
 		res.UncertaintyMethod = "poisson-toys"
 		st := Stream{Unit: "poisson-toy", Offset: toyStream}
-		if pl.diag == DiagonalGamma {
+		if pl.diag == DiagonalToys {
+			means := toyMeans(m)
+			draw = func(t int, n, b []float64) { toyData(m, means, seed, t, n, b) }
+		} else {
 			prior := pl.rs.SamplingPrior
 			draw = func(t int, n, b []float64) { gammaData(m, prior, seed, t, n, b) }
 			res.UncertaintyMethod = "gamma-samples"

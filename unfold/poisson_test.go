@@ -1,0 +1,129 @@
+package unfold
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// TestPoissonRandDistribution draws 200,000 counts at means on both
+// sides of the switch between the sequential search and PTRS and checks
+// them against the Poisson pmf: a chi-square goodness of fit over cells
+// of at least 20 expected counts (Pearson 1900; the pmf and distribution
+// function from gonum's distuv.Poisson, the p-value from its
+// distuv.ChiSquared), and the sample mean and variance against mu to five
+// standard errors, sqrt(mu/N) and sqrt((mu + 2mu²)/N) (the fourth central
+// moment of Poisson(mu) is mu + 3mu², common practice); the methods are
+// those of method.md §26 Poisson draws of the toys.
+func TestPoissonRandDistribution(t *testing.T) {
+	const n = 200_000
+	for _, mu := range []float64{0.05, 0.7, 3, 9.99, 10, 10.5, 27, 150, 4321, 2.5e6} {
+		rng := rand.New(rand.NewPCG(7, uint64(mu*1000)))
+		counts := map[int]int{}
+		var sum, sum2 float64
+		for range n {
+			k := poissonRand(rng, mu)
+			if k != math.Trunc(k) || k < 0 {
+				t.Fatalf("mu %g: draw %g is not a count", mu, k)
+			}
+			counts[int(k)]++
+			sum += k
+			sum2 += k * k
+		}
+		mean := sum / n
+		variance := (sum2 - n*mean*mean) / (n - 1)
+		// Five standard errors of the sample mean and variance (common practice).
+		if se := math.Sqrt(mu / n); math.Abs(mean-mu) > 5*se {
+			t.Errorf("mu %g: mean %g, want within %g", mu, mean, 5*se)
+		}
+		if se := math.Sqrt((mu + 2*mu*mu) / n); math.Abs(variance-mu) > 5*se {
+			t.Errorf("mu %g: variance %g, want within %g", mu, variance, 5*se)
+		}
+
+		// Pearson's chi-square against the pmf (gonum's distuv.Poisson).
+		d := distuv.Poisson{Lambda: mu}
+		s := math.Sqrt(mu)
+		lo := max(0, int(mu-10*s-5))
+		hi := int(mu + 10*s + 10)
+		var os, es []float64 // observed and expected counts per cell
+		var obs, exp float64
+		// Everything below lo as the first cell.
+		for k, c := range counts {
+			if k < lo {
+				obs += float64(c)
+			}
+		}
+		if lo > 0 {
+			exp = n * d.CDF(float64(lo-1))
+		}
+		for k := lo; k <= hi; k++ {
+			obs += float64(counts[k])
+			exp += n * d.Prob(float64(k))
+			if exp >= 20 {
+				os, es = append(os, obs), append(es, exp)
+				obs, exp = 0, 0
+			}
+		}
+		for k, c := range counts {
+			if k > hi {
+				obs += float64(c)
+			}
+		}
+		exp += n * d.Survival(float64(hi))
+		// The remainder joins the last cell.
+		os[len(os)-1] += obs
+		es[len(es)-1] += exp
+		var chi2 float64
+		for i := range os {
+			chi2 += (os[i] - es[i]) * (os[i] - es[i]) / es[i]
+		}
+		cells := len(os)
+		p := distuv.ChiSquared{K: float64(cells - 1)}.Survival(chi2)
+		if p < 1e-3 {
+			t.Errorf("mu %g: chi-square %g over %d cells, p-value %g", mu, chi2, cells, p)
+		}
+	}
+}
+
+// TestPoissonRandZeroMean checks the edge of the domain: a mean of zero
+// or below (and NaN) gives 0 without drawing.
+func TestPoissonRandZeroMean(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	for _, mu := range []float64{0, -1, math.NaN()} {
+		if k := poissonRand(rng, mu); k != 0 {
+			t.Errorf("mu %g: got %g, want 0", mu, k)
+		}
+	}
+	want := rand.New(rand.NewPCG(1, 2)).Uint64()
+	if got := rng.Uint64(); got != want {
+		t.Errorf("a zero mean consumed uniforms from the stream")
+	}
+}
+
+// BenchmarkPoissonRand draws counts at a few means with poissonRand and,
+// as the reference in the same run, gonum's distuv.Poisson.Rand.
+func BenchmarkPoissonRand(b *testing.B) {
+	for _, mu := range []float64{3, 30, 300} {
+		b.Run(fmt.Sprintf("mu=%g/ours", mu), func(b *testing.B) {
+			rng := rand.New(rand.NewPCG(1, 2))
+			var s float64
+			for range b.N {
+				s += poissonRand(rng, mu)
+			}
+			sink = s
+		})
+		b.Run(fmt.Sprintf("mu=%g/gonum", mu), func(b *testing.B) {
+			d := distuv.Poisson{Lambda: mu, Src: rand.NewPCG(1, 2)}
+			var s float64
+			for range b.N {
+				s += d.Rand()
+			}
+			sink = s
+		})
+	}
+}
+
+var sink float64
