@@ -2,15 +2,10 @@ package batch
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
-	"io"
-	"os"
-	"path/filepath"
 
 	"github.com/desmear/desmear/unfold"
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 // ensembleRecord is one ensemble in a shard file, its numbers written to
@@ -49,21 +44,13 @@ type replicaPartial struct {
 // readReplicas reads the file of shard s of a replicas plan, as
 // readShard does for toys.
 func (p *Plan) readReplicas(dir string, s int) (*replicaPartial, error) {
-	path := ShardPath(dir, s)
-	b, err := os.ReadFile(path)
+	var pt replicaPartial
+	path, err := p.readShardFile(dir, s, &pt, &pt.Format, &pt.Plan)
 	if err != nil {
 		return nil, err
 	}
-	var pt replicaPartial
-	if err := json.Unmarshal(b, &pt); err != nil {
-		return nil, fmt.Errorf("%s: not a shard file: %v", path, err)
-	}
 	sh := p.Shards[s]
 	switch {
-	case pt.Format != Format:
-		return nil, fmt.Errorf("%s: shard format %d, want %d", path, pt.Format, Format)
-	case pt.Plan != p.id:
-		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(pt.Plan), short(p.id))
 	case pt.Shard != s || len(pt.Units) != sh.Units:
 		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (replica units %d..%d)", path, s, sh.FirstUnit, sh.FirstUnit+sh.Units-1)
 	}
@@ -115,20 +102,7 @@ func RunReplicas(ctx context.Context, dir string, p *Plan, s int, compute func(c
 		}
 		pt.Units = append(pt.Units, u)
 	}
-	js, err := json.Marshal(pt)
-	if err != nil {
-		return false, err
-	}
-	if err := os.MkdirAll(filepath.Join(dir, ShardDir), 0o755); err != nil {
-		return false, err
-	}
-	if err := ctx.Err(); err != nil {
-		return false, err
-	}
-	return true, atomicfile.Write(ShardPath(dir, s), func(w io.Writer) error {
-		_, err := w.Write(js)
-		return err
-	})
+	return true, writeShardFile(ctx, dir, s, pt)
 }
 
 // MergeReplicas reads every shard of the replicas plan and returns the

@@ -76,21 +76,13 @@ func (p *Plan) PartDone(dir string, s int) bool {
 // fs.ErrNotExist, a file of another plan or shard, or a damaged one, with
 // an error saying so.
 func (p *Plan) readShard(dir string, s int) (*partial, error) {
-	path := ShardPath(dir, s)
-	b, err := os.ReadFile(path)
+	var pt partial
+	path, err := p.readShardFile(dir, s, &pt, &pt.Format, &pt.Plan)
 	if err != nil {
 		return nil, err
 	}
-	var pt partial
-	if err := json.Unmarshal(b, &pt); err != nil {
-		return nil, fmt.Errorf("%s: not a shard file: %v", path, err)
-	}
 	first, count := p.ToyRange(s)
 	switch {
-	case pt.Format != Format:
-		return nil, fmt.Errorf("%s: shard format %d, want %d", path, pt.Format, Format)
-	case pt.Plan != p.id:
-		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(pt.Plan), short(p.id))
 	case pt.Shard != s || pt.FirstToy != first || pt.Toys != count || pt.Ensemble == nil || pt.Ensemble.Toys() != count:
 		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (toys %d..%d)", path, s, first, first+count-1)
 	}
@@ -119,20 +111,7 @@ func RunShard(ctx context.Context, dir string, p *Plan, s int, c *validate.Confi
 	if err != nil {
 		return false, err
 	}
-	js, err := json.Marshal(&partial{Format: Format, Plan: p.id, Shard: s, FirstToy: first, Toys: count, Ensemble: e})
-	if err != nil {
-		return false, err
-	}
-	if err := os.MkdirAll(filepath.Join(dir, ShardDir), 0o755); err != nil {
-		return false, err
-	}
-	if err := ctx.Err(); err != nil {
-		return false, err
-	}
-	return true, atomicfile.Write(ShardPath(dir, s), func(w io.Writer) error {
-		_, err := w.Write(js)
-		return err
-	})
+	return true, writeShardFile(ctx, dir, s, &partial{Format: Format, Plan: p.id, Shard: s, FirstToy: first, Toys: count, Ensemble: e})
 }
 
 // Progress is the state of a plan's shards, from their files.
@@ -289,4 +268,44 @@ func Ranges(v []int) string {
 		i = j + 1
 	}
 	return b.String()
+}
+
+// writeShardFile writes v as the JSON file of shard s in dir, atomically
+// (the earlier file or nothing after a failure).
+func writeShardFile(ctx context.Context, dir string, s int, v any) error {
+	js, err := json.Marshal(v)
+	if err != nil {
+		return err
+	}
+	if err := os.MkdirAll(filepath.Join(dir, ShardDir), 0o755); err != nil {
+		return err
+	}
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	return atomicfile.Write(ShardPath(dir, s), func(w io.Writer) error {
+		_, err := w.Write(js)
+		return err
+	})
+}
+
+// readShardFile reads the JSON file of shard s in dir into v and checks
+// the format and plan it records (format and plan point at the fields
+// of v that hold them); a missing file is reported with fs.ErrNotExist.
+func (p *Plan) readShardFile(dir string, s int, v any, format *int, plan *string) (string, error) {
+	path := ShardPath(dir, s)
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return path, err
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		return path, fmt.Errorf("%s: not a shard file: %v", path, err)
+	}
+	switch {
+	case *format != Format:
+		return path, fmt.Errorf("%s: shard format %d, want %d", path, *format, Format)
+	case *plan != p.id:
+		return path, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(*plan), short(p.id))
+	}
+	return path, nil
 }

@@ -5,14 +5,10 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
-	"io"
 	"math"
-	"os"
-	"path/filepath"
 	"strconv"
 
 	"github.com/desmear/desmear/unfold/analysis"
-	"github.com/desmear/desmear/unfold/internal/atomicfile"
 )
 
 // CheckFiles reports whether the input files ins (path and SHA-256, as
@@ -115,21 +111,13 @@ type variedPartial struct {
 // readVaried reads the file of shard s of a variations plan, as
 // readShard does for toys.
 func (p *Plan) readVaried(dir string, s int) (*variedPartial, error) {
-	path := ShardPath(dir, s)
-	b, err := os.ReadFile(path)
+	var pt variedPartial
+	path, err := p.readShardFile(dir, s, &pt, &pt.Format, &pt.Plan)
 	if err != nil {
 		return nil, err
 	}
-	var pt variedPartial
-	if err := json.Unmarshal(b, &pt); err != nil {
-		return nil, fmt.Errorf("%s: not a shard file: %v", path, err)
-	}
 	first, count := p.VariationRange(s)
 	switch {
-	case pt.Format != Format:
-		return nil, fmt.Errorf("%s: shard format %d, want %d", path, pt.Format, Format)
-	case pt.Plan != p.id:
-		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(pt.Plan), short(p.id))
 	case pt.Shard != s || pt.FirstVariation != first || len(pt.Varied) != count:
 		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (variations %d..%d)", path, s, first, first+count-1)
 	}
@@ -179,20 +167,7 @@ func RunVariations(ctx context.Context, dir string, p *Plan, s int, n *analysis.
 		}
 		pt.Varied = append(pt.Varied, f)
 	}
-	js, err := json.Marshal(pt)
-	if err != nil {
-		return false, err
-	}
-	if err := os.MkdirAll(filepath.Join(dir, ShardDir), 0o755); err != nil {
-		return false, err
-	}
-	if err := ctx.Err(); err != nil {
-		return false, err
-	}
-	return true, atomicfile.Write(ShardPath(dir, s), func(w io.Writer) error {
-		_, err := w.Write(js)
-		return err
-	})
+	return true, writeShardFile(ctx, dir, s, pt)
 }
 
 // MergeVariations reads every shard of the variations plan and returns
