@@ -17,7 +17,7 @@ const DefaultChunkEntries = 1 << 19
 
 // DefaultWindow is the default number of batches an Accumulator holds
 // ahead of the next expected sequence number.
-const DefaultWindow = 64
+const DefaultWindow = 16
 
 // MaxReportedCells is the largest number of cells listed individually in
 // a Report; beyond it cells are only counted.
@@ -43,8 +43,65 @@ type AccumulatorOptions struct {
 	// memory of batches that arrive out of order and does not change the
 	// result. Zero means DefaultWindow.
 	Window int
+	// MemoryLimit, when positive, bounds the accumulation's memory
+	// budget (AccumulatorBytes) in bytes: once the distinct cells
+	// gathered so far need more, the accumulation ends with a
+	// *MemoryError. Zero means no limit.
+	MemoryLimit int64
 
 	segmentCells int // store segment size (tests); zero means maxSegment
+}
+
+// AccumulatorBytes returns the memory budget of an accumulation of a
+// matrix of cols columns that holds cells distinct cells, fed from
+// goroutines goroutines in batches of at most batch entries, under opt
+// (nil for the defaults), in bytes:
+//
+//	48·cells          the store: 24 bytes per cell, in arrays at least half full
+//	+ 6·cells         the summed chunks waiting to be merged (a quarter of the store)
+//	+ 56·K·(G+1)      the chunks being filled and sorted (32 bytes per entry) and their sums (24)
+//	+ 16·(W+G)·B      the batches held ahead of the next expected one, and being packed
+//	+ 8·(cols+1)      the column pointers of the matrix
+//
+// with K = ChunkEntries, W = Window, B = batch and G = goroutines. The
+// number of entries (events) does not appear: it moves only the time.
+// The matrix Matrix returns takes 24 bytes per cell (8 with its row
+// index, 8 with its value, 8 with its sum of squared weights) plus the
+// column pointers; Matrix writes it while it hands the store back to the
+// system, segment by segment, so the peak stays within the budget. What
+// the caller holds besides (its own batches, histograms over the bins)
+// is not included. The store's arrays are about two thirds full on
+// average, so the budget is an upper bound by about a third.
+func AccumulatorBytes(cells, cols int, opt *AccumulatorOptions, goroutines, batch int) int64 {
+	k, w := int64(DefaultChunkEntries), int64(DefaultWindow)
+	if opt != nil && opt.ChunkEntries > 0 {
+		k = int64(opt.ChunkEntries)
+	}
+	if opt != nil && opt.Window > 0 {
+		w = int64(opt.Window)
+	}
+	return 54*int64(cells) + 56*k*int64(goroutines+1) + 16*(w+int64(goroutines))*int64(batch) + 8*int64(cols+1)
+}
+
+// budget is AccumulatorBytes for the accumulator's state (under a.mu).
+func (a *Accumulator) budget(cells int) int64 {
+	opt := AccumulatorOptions{ChunkEntries: a.chunkCap, Window: int(a.window)}
+	return AccumulatorBytes(cells, a.cols, &opt, runtime.GOMAXPROCS(0), a.batch)
+}
+
+// MemoryError reports that an accumulation was stopped because the
+// memory budget of the distinct cells gathered so far (AccumulatorBytes)
+// exceeds AccumulatorOptions.MemoryLimit.
+type MemoryError struct {
+	Rows, Cols int   // the matrix's dimensions
+	Cells      int   // distinct cells when the accumulation stopped
+	Bytes      int64 // their budget
+	Limit      int64
+}
+
+func (e *MemoryError) Error() string {
+	return fmt.Sprintf("sparse: the accumulation of a %d×%d matrix reached %d distinct cells, whose memory budget of %.0f MiB (54 bytes per cell and the buffers) is above the memory limit of %.0f MiB; use coarser binnings (fewer cells), or raise the memory limit",
+		e.Rows, e.Cols, e.Cells, float64(e.Bytes)/(1<<20), float64(e.Limit)/(1<<20))
 }
 
 // Cell is one cell of an accumulated matrix.
@@ -103,6 +160,7 @@ type Accumulator struct {
 	chunkCap   int
 	window     uint64
 	maxSeg     int
+	limit      int64 // memory limit, 0 for none
 
 	mu      sync.Mutex
 	cond    sync.Cond
@@ -115,6 +173,7 @@ type Accumulator struct {
 	chunk   *chunkBuf
 	nClosed uint64 // chunks closed so far
 	entries int64
+	batch   int // largest batch so far, in entries
 	freeC   []*chunkBuf
 	freeH   []*heldBatch
 
@@ -163,9 +222,10 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 	}
 	a := &Accumulator{rows: rows, cols: cols, chunkCap: DefaultChunkEntries, window: DefaultWindow, maxSeg: maxSegment}
 	if opt != nil {
-		if opt.ChunkEntries < 0 || opt.Window < 0 {
-			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d)", opt.ChunkEntries, opt.Window)
+		if opt.ChunkEntries < 0 || opt.Window < 0 || opt.MemoryLimit < 0 {
+			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d, MemoryLimit %d)", opt.ChunkEntries, opt.Window, opt.MemoryLimit)
 		}
+		a.limit = opt.MemoryLimit
 		if opt.ChunkEntries > 0 {
 			a.chunkCap = opt.ChunkEntries
 		}
@@ -363,6 +423,7 @@ func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
 		return err
 	}
 	a.held[seq] = h
+	a.batch = max(a.batch, len(h.keys))
 	if seq+1 > a.heldMax {
 		a.heldMax = seq + 1
 	}
@@ -380,10 +441,16 @@ func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
 	}
 	a.cond.Broadcast()
 	a.mu.Unlock()
+	if len(closed) == 0 {
+		return nil
+	}
 	for _, c := range closed {
 		a.sortAndMerge(c, false)
 	}
-	return nil
+	a.mu.Lock()
+	err := a.err
+	a.mu.Unlock()
+	return err
 }
 
 // appendStream appends a batch to the stream (under a.mu), closing every
@@ -489,6 +556,10 @@ func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
 		a.mergeGroup(group)
 		a.mu.Lock()
 		a.merging = false
+		if b := a.budget(a.cells); a.limit > 0 && b > a.limit && a.err == nil {
+			a.err = &MemoryError{Rows: a.rows, Cols: a.cols, Cells: a.cells, Bytes: b, Limit: a.limit}
+			a.cond.Broadcast()
+		}
 		for _, r := range group {
 			a.readyCells -= len(r.cells)
 			if len(a.freeR) < maxGroup {
@@ -982,6 +1053,10 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	a.sortAndMerge(nil, true)
 	a.freeR, a.ready, a.tmp, a.held, a.runs = nil, nil, nil, nil, nil
 	a.pool = backPool{}
+	if a.err != nil {
+		a.segs = nil
+		return nil, nil, a.err
+	}
 	n := a.cells
 	colPtr := make([]int, a.cols+1)
 	rowIdx := make([]int, 0, n)
