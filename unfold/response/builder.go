@@ -181,6 +181,7 @@ type Builder struct {
 	merger      *Merger
 	withDiag    bool
 	samples     int
+	spare       chan *shardState // merged shard states, for the next shards
 	// OnShard, when not nil, receives the partial response of every
 	// shard as it is finished, in shard order, instead of the Builder
 	// merging it (Build then has nothing to return). sample is the
@@ -199,17 +200,18 @@ func NewBuilder(truth, reco Locator) *Builder {
 	if nt >= math.MaxInt32 || nr >= math.MaxInt32 {
 		panic("response: scheme too large")
 	}
-	return &Builder{truth: truth, reco: reco, merger: NewMerger(nt, nr)}
+	return &Builder{truth: truth, reco: reco, merger: NewMerger(nt, nr), spare: make(chan *shardState, 2)}
 }
 
 // shardState is what a shard has gathered so far, on its way from the
-// event loop to the accumulator's goroutine.
+// event loop to the accumulator's goroutine. The sums of each bin sit
+// side by side (one cache line per event and histogram).
 type shardState struct {
-	lo, hi      int64
-	gen, gen2   []float64
-	fake, fake2 []float64
-	diag, rit   []float64
-	sum         Summary
+	lo, hi int64
+	gen    [][2]float64 // per truth bin: weights, squared weights
+	fake   [][2]float64 // per reco bin: weights, squared weights of the fakes
+	diag   [][2]float64 // per truth bin: RecoInTruth, Diagonal; nil without purity
+	sum    Summary
 }
 
 // Add streams the events of sim into the response. It returns the
@@ -251,14 +253,22 @@ func (b *Builder) emptyShard(lo int64) error {
 	return b.finishShard(acc, st)
 }
 
+// newShard returns an empty shard state starting at event lo: one
+// merged before and cleared, or a new one.
 func (b *Builder) newShard(lo int64) *shardState {
-	nt, nr := b.truth.Len(), b.reco.Len()
-	st := &shardState{lo: lo, hi: lo,
-		gen: make([]float64, nt), gen2: make([]float64, nt),
-		fake: make([]float64, nr), fake2: make([]float64, nr)}
-	if b.withDiag {
-		st.diag, st.rit = make([]float64, nt), make([]float64, nt)
+	var st *shardState
+	select {
+	case st = <-b.spare:
+	default:
+		nt, nr := b.truth.Len(), b.reco.Len()
+		st = &shardState{gen: make([][2]float64, nt), fake: make([][2]float64, nr)}
 	}
+	if b.withDiag && st.diag == nil {
+		st.diag = make([][2]float64, b.truth.Len())
+	} else if !b.withDiag {
+		st.diag = nil
+	}
+	st.lo, st.hi, st.sum = lo, lo, Summary{}
 	return st
 }
 
@@ -269,12 +279,44 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	if err != nil {
 		return err
 	}
-	p := &Built{Migrations: m, Generated: st.gen, GeneratedSumW2: st.gen2, Fakes: st.fake, FakesSumW2: st.fake2,
-		Diagonal: st.diag, RecoInTruth: st.rit, Summary: st.sum}
 	if b.OnShard != nil {
-		return b.OnShard(b.samples-1, st.lo, st.hi, p)
+		err = b.OnShard(b.samples-1, st.lo, st.hi, st.built(m))
+	} else {
+		err = b.merger.addShard(m, st)
 	}
-	return b.merger.Add(p)
+	if err != nil {
+		return err
+	}
+	// Handed on: the arrays serve the next shard.
+	clear(st.gen)
+	clear(st.fake)
+	clear(st.diag)
+	select {
+	case b.spare <- st:
+	default:
+	}
+	return nil
+}
+
+// built returns the shard's partial response, with histograms of its
+// own.
+func (st *shardState) built(m *sparse.Matrix) *Built {
+	nt, nr := len(st.gen), len(st.fake)
+	p := &Built{Migrations: m, Generated: make([]float64, nt), GeneratedSumW2: make([]float64, nt),
+		Fakes: make([]float64, nr), FakesSumW2: make([]float64, nr), Summary: st.sum}
+	for j, v := range st.gen {
+		p.Generated[j], p.GeneratedSumW2[j] = v[0], v[1]
+	}
+	for i, v := range st.fake {
+		p.Fakes[i], p.FakesSumW2[i] = v[0], v[1]
+	}
+	if st.diag != nil {
+		p.RecoInTruth, p.Diagonal = make([]float64, nt), make([]float64, nt)
+		for j, v := range st.diag {
+			p.RecoInTruth[j], p.Diagonal[j] = v[0], v[1]
+		}
+	}
+	return p
 }
 
 func (b *Builder) shardEvents() int64 {
@@ -408,8 +450,9 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			}
 			switch {
 			case t >= 0:
-				st.gen[t] += w
-				st.gen2[t] += w * w
+				g := &st.gen[t]
+				g[0] += w
+				g[1] += w * w
 				if r >= 0 {
 					sm.Entries++
 				} else {
@@ -420,16 +463,18 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 					sm.OutsideTruth++
 				}
 				if r >= 0 {
-					st.fake[r] += w
-					st.fake2[r] += w * w
+					f := &st.fake[r]
+					f[0] += w
+					f[1] += w * w
 					sm.Fakes++
 				}
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					st.rit[d] += w
+					p := &st.diag[d]
+					p[0] += w
 					if d == t {
-						st.diag[d] += w
+						p[1] += w
 					}
 				}
 			}

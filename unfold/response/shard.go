@@ -83,15 +83,9 @@ func (g *Merger) Add(p *Built) error {
 	if withDiag && (len(p.Diagonal) != g.nt || len(p.RecoInTruth) != g.nt) {
 		return fmt.Errorf("response: partial purity histograms of the wrong length")
 	}
-	if g.n == 0 {
-		g.withDiag = withDiag
-		if withDiag {
-			g.r.Diagonal, g.r.RecoInTruth = make([]float64, g.nt), make([]float64, g.nt)
-		}
-	} else if withDiag != g.withDiag {
-		return fmt.Errorf("response: partial responses with and without purity histograms")
+	if err := g.start(withDiag); err != nil {
+		return err
 	}
-	g.n++
 	addTo(g.r.Generated, p.Generated)
 	addTo(g.r.GeneratedSumW2, p.GeneratedSumW2)
 	addTo(g.r.Fakes, p.Fakes)
@@ -101,7 +95,54 @@ func (g *Merger) Add(p *Built) error {
 		addTo(g.r.RecoInTruth, p.RecoInTruth)
 	}
 	g.r.Summary.add(&p.Summary)
-	g.pending = append(g.pending, p.Migrations)
+	return g.push(p.Migrations)
+}
+
+// addShard merges a shard built here, its histograms side by side, as Add
+// merges its partial response: the same sums in the same order.
+func (g *Merger) addShard(m *sparse.Matrix, st *shardState) error {
+	if err := g.start(st.diag != nil); err != nil {
+		return err
+	}
+	gen, gen2 := g.r.Generated[:len(st.gen)], g.r.GeneratedSumW2[:len(st.gen)]
+	for j, v := range st.gen {
+		gen[j] += v[0]
+		gen2[j] += v[1]
+	}
+	fake, fake2 := g.r.Fakes[:len(st.fake)], g.r.FakesSumW2[:len(st.fake)]
+	for i, v := range st.fake {
+		fake[i] += v[0]
+		fake2[i] += v[1]
+	}
+	if st.diag != nil {
+		dg, rit := g.r.Diagonal[:len(st.diag)], g.r.RecoInTruth[:len(st.diag)]
+		for j, v := range st.diag {
+			rit[j] += v[0]
+			dg[j] += v[1]
+		}
+	}
+	g.r.Summary.add(&st.sum)
+	return g.push(m)
+}
+
+// start counts one more partial, with purity histograms or without, and
+// refuses a mix.
+func (g *Merger) start(withDiag bool) error {
+	if g.n == 0 {
+		g.withDiag = withDiag
+		if withDiag {
+			g.r.Diagonal, g.r.RecoInTruth = make([]float64, g.nt), make([]float64, g.nt)
+		}
+	} else if withDiag != g.withDiag {
+		return fmt.Errorf("response: partial responses with and without purity histograms")
+	}
+	g.n++
+	return nil
+}
+
+// push queues a partial migration matrix for the merge.
+func (g *Merger) push(m *sparse.Matrix) error {
+	g.pending = append(g.pending, m)
 	if len(g.pending) == mergeGroup {
 		return g.flush()
 	}
