@@ -53,26 +53,27 @@ type AccumulatorOptions struct {
 }
 
 // AccumulatorBytes returns the memory budget of an accumulation of a
-// matrix of cols columns that holds cells distinct cells, fed from
-// goroutines goroutines in batches of at most batch entries, under opt
-// (nil for the defaults), in bytes:
+// matrix of cols columns that holds cells distinct cells after entries
+// entries, fed from goroutines goroutines in batches of at most batch
+// entries, under opt (nil for the defaults), in bytes:
 //
 //	48·cells          the store: 24 bytes per cell, in arrays at least half full
 //	+ 6·cells         the summed chunks waiting to be merged (a quarter of the store)
-//	+ 56·K·(G+1)      the chunks being filled and sorted (32 bytes per entry) and their sums (24)
+//	+ 56·k·(G+1)      the chunks being filled and sorted (32 bytes per entry) and their sums (24)
 //	+ 16·(W+G)·B      the batches held ahead of the next expected one, and being packed
 //	+ 8·(cols+1)      the column pointers of the matrix
 //
-// with K = ChunkEntries, W = Window, B = batch and G = goroutines. The
-// number of entries (events) does not appear: it moves only the time.
-// The matrix Matrix returns takes 24 bytes per cell (8 with its row
-// index, 8 with its value, 8 with its sum of squared weights) plus the
-// column pointers; Matrix writes it while it hands the store back to the
-// system, segment by segment, so the peak stays within the budget. What
-// the caller holds besides (its own batches, histograms over the bins)
-// is not included. The store's arrays are about two thirds full on
-// average, so the budget is an upper bound by about a third.
-func AccumulatorBytes(cells, cols int, opt *AccumulatorOptions, goroutines, batch int) int64 {
+// with k = min(ChunkEntries, entries), W = Window, B = batch and
+// G = goroutines. Beyond the first chunk the number of entries (events)
+// moves only the time. The matrix Matrix returns takes 24 bytes per cell
+// (8 with its row index, 8 with its value, 8 with its sum of squared
+// weights) plus the column pointers; Matrix writes it while it hands the
+// store back to the system, segment by segment, so the peak stays within
+// the budget. What the caller holds besides (its own batches, histograms
+// over the bins) is not included. The store's arrays are about two
+// thirds full on average, so the budget is an upper bound by about a
+// third.
+func AccumulatorBytes(entries int64, cells, cols int, opt *AccumulatorOptions, goroutines, batch int) int64 {
 	k, w := int64(DefaultChunkEntries), int64(DefaultWindow)
 	if opt != nil && opt.ChunkEntries > 0 {
 		k = int64(opt.ChunkEntries)
@@ -80,13 +81,14 @@ func AccumulatorBytes(cells, cols int, opt *AccumulatorOptions, goroutines, batc
 	if opt != nil && opt.Window > 0 {
 		w = int64(opt.Window)
 	}
+	k = min(k, max(entries, 0))
 	return 54*int64(cells) + 56*k*int64(goroutines+1) + 16*(w+int64(goroutines))*int64(batch) + 8*int64(cols+1)
 }
 
 // budget is AccumulatorBytes for the accumulator's state (under a.mu).
 func (a *Accumulator) budget(cells int) int64 {
 	opt := AccumulatorOptions{ChunkEntries: a.chunkCap, Window: int(a.window)}
-	return AccumulatorBytes(cells, a.cols, &opt, runtime.GOMAXPROCS(0), a.batch)
+	return AccumulatorBytes(a.entries, cells, a.cols, &opt, runtime.GOMAXPROCS(0), a.batch)
 }
 
 // MemoryError reports that an accumulation was stopped because the

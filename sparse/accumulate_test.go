@@ -422,9 +422,9 @@ func TestAccumulateErrorReleasesWaiters(t *testing.T) {
 // TestAccumulateMemoryLimit: an accumulation whose budget passes the
 // limit stops with a *MemoryError naming the cells, the budget and the
 // limit; the budget is the formula of AccumulatorBytes's documentation,
-// written out here again (54 bytes per cell, 56 per chunk entry and
-// chunk being filled or sorted, 16 per entry of a held batch, 8 per
-// column pointer).
+// written out here again (54 bytes per cell, 56 per chunk entry, up to
+// the entries added, and chunk being filled or sorted, 16 per entry of a
+// held batch, 8 per column pointer).
 func TestAccumulateMemoryLimit(t *testing.T) {
 	const rows, cols, chunk, window, bs = 300, 200, 64, 4, 50
 	g := runtime.GOMAXPROCS(0)
@@ -432,8 +432,12 @@ func TestAccumulateMemoryLimit(t *testing.T) {
 		return int64(54*cells + 56*chunk*(g+1) + 16*(window+g)*bs + 8*(cols+1))
 	}
 	opt := &AccumulatorOptions{ChunkEntries: chunk, Window: window}
-	if got, want := AccumulatorBytes(700, cols, opt, g, bs), formula(700); got != want {
+	if got, want := AccumulatorBytes(1000, 700, cols, opt, g, bs), formula(700); got != want {
 		t.Fatalf("AccumulatorBytes(700) = %d, want %d", got, want)
+	}
+	// Fewer entries than a chunk: the chunks hold only those.
+	if got, want := AccumulatorBytes(10, 7, cols, opt, g, bs), int64(54*7+56*10*(g+1)+16*(window+g)*bs+8*(cols+1)); got != want {
+		t.Fatalf("AccumulatorBytes(10 entries) = %d, want %d", got, want)
 	}
 	rng := rand.New(rand.NewPCG(9, 10))
 	es := randomEntries(rng, rows, cols, 20000, 0.1)

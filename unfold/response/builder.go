@@ -192,6 +192,11 @@ type Builder struct {
 	// ShardEvents is the number of events of a shard; 0 means
 	// DefaultShardEvents. It is part of the definition of the result.
 	ShardEvents int64
+	// MemoryLimit, when positive, bounds in bytes the memory budget of
+	// each shard's accumulation (sparse.AccumulatorBytes) and of the
+	// merges of the shards (MergeBytes); beyond it the build ends with a
+	// *sparse.MemoryError. It does not change the result.
+	MemoryLimit int64
 }
 
 // NewBuilder returns a Builder for the given truth and reco schemes.
@@ -244,7 +249,7 @@ func (b *Builder) AddRange(ctx context.Context, sim *Simulation, lo, hi int64, o
 
 // emptyShard hands on the partial of a shard without events.
 func (b *Builder) emptyShard(lo int64) error {
-	acc, err := sparse.NewAccumulator(b.reco.Len(), b.truth.Len(), nil)
+	acc, err := sparse.NewAccumulator(b.reco.Len(), b.truth.Len(), b.accOptions())
 	if err != nil {
 		panic(err)
 	}
@@ -319,6 +324,11 @@ func (st *shardState) built(m *sparse.Matrix) *Built {
 	return p
 }
 
+// accOptions returns the options of a shard's accumulator.
+func (b *Builder) accOptions() *sparse.AccumulatorOptions {
+	return &sparse.AccumulatorOptions{MemoryLimit: b.MemoryLimit}
+}
+
 func (b *Builder) shardEvents() int64 {
 	if b.ShardEvents > 0 {
 		return b.ShardEvents
@@ -334,6 +344,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 		return Summary{}, fmt.Errorf("%s: every simulated sample must give reco observables for the truth axes, or none", sim.Name)
 	}
 	b.samples++
+	b.merger.MemoryLimit = b.MemoryLimit
 	var dg *diagMap
 	if withDiag {
 		for _, ax := range sim.RecoInTruth {
@@ -393,7 +404,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 		var acc *sparse.Accumulator
 		for e := range ech {
 			if err == nil && acc == nil {
-				if acc, err = sparse.NewAccumulator(nr, nt, nil); err != nil {
+				if acc, err = sparse.NewAccumulator(nr, nt, b.accOptions()); err != nil {
 					panic(err)
 				}
 			}

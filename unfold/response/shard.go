@@ -52,6 +52,11 @@ const mergeGroup = 16
 // shards in shard order gives the response of the whole simulation, the
 // same bits however the shards were built.
 type Merger struct {
+	// MemoryLimit, when positive, bounds MergeBytes at every merge of
+	// the pending partial matrices: beyond it Add and Built return a
+	// *sparse.MemoryError. It does not change the result.
+	MemoryLimit int64
+
 	nt, nr   int
 	n        int
 	withDiag bool
@@ -155,6 +160,20 @@ func addTo(dst, src []float64) {
 	}
 }
 
+// MergeBytes returns the memory a Merger of nt truth and nr reco bins
+// holds while it merges partial matrices of pending cells in all into
+// its merged matrix of merged cells: both, and the new merged matrix
+// (sized for its inputs), at 24 bytes per cell (row index, value, sum
+// of squared weights), and the merged histograms:
+//
+//	48·(merged + pending) + 8·(4·nt + 2·nr)
+//
+// At most mergeGroup (16) partials are pending, so with shards of at most
+// c cells pending ≤ 16·c.
+func MergeBytes(merged, pending, nt, nr int) int64 {
+	return 48*int64(merged+pending) + 8*int64(4*nt+2*nr)
+}
+
 // flush sums the pending matrices into the merged one.
 func (g *Merger) flush() error {
 	if len(g.pending) == 0 {
@@ -163,6 +182,18 @@ func (g *Merger) flush() error {
 	ms := g.pending
 	if g.m != nil {
 		ms = append([]*sparse.Matrix{g.m}, g.pending...)
+	}
+	if g.MemoryLimit > 0 {
+		var merged, pending int
+		for _, m := range g.pending {
+			pending += m.NNZ()
+		}
+		if g.m != nil {
+			merged = g.m.NNZ()
+		}
+		if b := MergeBytes(merged, pending, g.nt, g.nr); b > g.MemoryLimit {
+			return &sparse.MemoryError{Rows: g.nr, Cols: g.nt, Cells: merged + pending, Bytes: b, Limit: g.MemoryLimit}
+		}
 	}
 	m, err := sparse.Sum(ms...)
 	if err != nil {
