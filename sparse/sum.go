@@ -3,6 +3,7 @@ package sparse
 import (
 	"errors"
 	"fmt"
+	"math/bits"
 )
 
 // Sum returns the cell-by-cell sum of the matrices, which must all have
@@ -43,24 +44,26 @@ func Sum(ms ...*Matrix) (*Matrix, error) {
 		sw2 = make([]float64, 0, nnz)
 	}
 	// Per column, a k-way merge of the matrices' row lists: a binary heap
-	// of the matrices ordered by (next row, argument number), so that
-	// equal rows come out in argument order.
-	pos := make([]int, len(ms))
-	heap := make([]int, 0, len(ms))
-	less := func(a, b int) bool {
-		ra, rb := ms[a].rowIdx[pos[a]], ms[b].rowIdx[pos[b]]
-		return ra < rb || ra == rb && a < b
+	// of packed keys (row, argument number), so that equal rows come out
+	// in argument order; the last list left is copied whole.
+	kb := uint(bits.Len(uint(len(ms))))
+	if bits.Len(uint(rows))+int(kb) > 64 {
+		return nil, fmt.Errorf("sparse: Sum of %d matrices of %d rows is too large", len(ms), rows)
 	}
+	kmask := uint64(1)<<kb - 1
+	pos := make([]int, len(ms))
+	heap := make([]uint64, 0, len(ms))
 	down := func(i int) {
+		n := len(heap)
 		for {
 			l := 2*i + 1
-			if l >= len(heap) {
+			if l >= n {
 				return
 			}
-			if r := l + 1; r < len(heap) && less(heap[r], heap[l]) {
+			if r := l + 1; r < n && heap[r] < heap[l] {
 				l = r
 			}
-			if !less(heap[l], heap[i]) {
+			if heap[l] >= heap[i] {
 				return
 			}
 			heap[i], heap[l] = heap[l], heap[i]
@@ -70,21 +73,22 @@ func Sum(ms ...*Matrix) (*Matrix, error) {
 	for j := 0; j < cols; j++ {
 		heap = heap[:0]
 		for k, m := range ms {
-			pos[k] = m.colPtr[j]
-			if pos[k] < m.colPtr[j+1] {
-				heap = append(heap, k)
+			p := m.colPtr[j]
+			pos[k] = p
+			if p < m.colPtr[j+1] {
+				heap = append(heap, uint64(m.rowIdx[p])<<kb|uint64(k))
 			}
 		}
 		for i := len(heap)/2 - 1; i >= 0; i-- {
 			down(i)
 		}
 		last := -1
-		for len(heap) > 0 {
-			k := heap[0]
+		for len(heap) > 1 {
+			top := heap[0]
+			k := int(top & kmask)
 			m := ms[k]
 			p := pos[k]
-			r := m.rowIdx[p]
-			if r == last {
+			if r := int(top >> kb); r == last {
 				q := len(val) - 1
 				val[q] += m.val[p]
 				if withW2 {
@@ -98,11 +102,33 @@ func Sum(ms ...*Matrix) (*Matrix, error) {
 				}
 				last = r
 			}
-			if pos[k]++; pos[k] == m.colPtr[j+1] {
+			p++
+			pos[k] = p
+			if p < m.colPtr[j+1] {
+				heap[0] = uint64(m.rowIdx[p])<<kb | uint64(k)
+			} else {
 				heap[0] = heap[len(heap)-1]
 				heap = heap[:len(heap)-1]
 			}
 			down(0)
+		}
+		if len(heap) == 1 {
+			k := int(heap[0] & kmask)
+			m := ms[k]
+			p, end := pos[k], m.colPtr[j+1]
+			if m.rowIdx[p] == last {
+				q := len(val) - 1
+				val[q] += m.val[p]
+				if withW2 {
+					sw2[q] += m.sumw2[p]
+				}
+				p++
+			}
+			rowIdx = append(rowIdx, m.rowIdx[p:end]...)
+			val = append(val, m.val[p:end]...)
+			if withW2 {
+				sw2 = append(sw2, m.sumw2[p:end]...)
+			}
 		}
 		colPtr[j+1] = len(val)
 	}
