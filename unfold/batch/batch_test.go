@@ -159,7 +159,7 @@ func TestPlanUnits(t *testing.T) {
 	}
 	var n []int
 	for s := range p.Shards {
-		_, c := p.ToyRange(s)
+		_, c := p.MemberRange(s)
 		n = append(n, c)
 	}
 	if !reflect.DeepEqual(n, []int{100, 150, 150, 120}) {
@@ -186,7 +186,7 @@ func TestVariationPlan(t *testing.T) {
 	}
 	var got [][2]int
 	for s := range p.Shards {
-		first, count := p.VariationRange(s)
+		first, count := p.MemberRange(s)
 		got = append(got, [2]int{first, count})
 	}
 	// 5 units in 3 shards: ⌊s·5/3⌋ boundaries 0, 1, 3, 5 (common practice:
@@ -225,7 +225,7 @@ func TestReplicaPlan(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.ReplicaCount() != 120 {
+	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.Members() != 120 {
 		t.Errorf("units %+v", p.Replicas)
 	}
 	// 3 units in 2 shards: ⌊s·3/2⌋ boundaries 0, 1, 3 (common practice: the
@@ -237,7 +237,7 @@ func TestReplicaPlan(t *testing.T) {
 	if err := p.Write(dir); err != nil {
 		t.Fatal(err)
 	}
-	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.ReplicaCount() != 120 {
+	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.Members() != 120 {
 		t.Errorf("plan read back %+v, %v", q, err)
 	}
 	if _, err := ReplicaPlan(Input{}, "", nil, 120, 4, ""); err == nil {
