@@ -126,13 +126,14 @@ func (j *nominalJob) nominal(ctx context.Context, opt *analysis.Options) (*analy
 	return a, n, nil
 }
 
-// runNominal runs shard s with run on the nominal unfolding.
-func (j *nominalJob) runNominal(ctx context.Context, s int, run func(n *analysis.Nominal) error) error {
+// runNominal runs shard s with run (batch.RunVariations, RunReplicas)
+// on the nominal unfolding.
+func (j *nominalJob) runNominal(ctx context.Context, s int, run func(n *analysis.Nominal) (bool, error)) error {
 	_, n, err := j.nominal(ctx, &analysis.Options{Version: version})
 	if err != nil {
 		return err
 	}
-	if err := run(n); err != nil {
+	if _, err := run(n); err != nil {
 		return analysisErr(fmt.Errorf("shard %d: %w", s, err))
 	}
 	return nil

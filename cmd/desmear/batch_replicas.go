@@ -41,10 +41,7 @@ func loadReplicaJob(ctx context.Context, g *globalOptions, p *batch.Plan) (shard
 
 // run computes the ensembles of the replica units of shard s.
 func (j *replicaJob) run(ctx context.Context, g *globalOptions, dir string, s int) (string, error) {
-	err := j.runNominal(ctx, s, func(n *analysis.Nominal) error {
-		_, err := batch.RunReplicas(ctx, dir, j.p, s, n.Replicas)
-		return err
-	})
+	err := j.runNominal(ctx, s, func(n *analysis.Nominal) (bool, error) { return batch.RunReplicas(ctx, dir, j.p, s, n.Replicas) })
 	return memberRange(j.p, s), err
 }
 

@@ -39,10 +39,7 @@ func loadVariationJob(ctx context.Context, g *globalOptions, p *batch.Plan) (sha
 
 // run unfolds the variations of shard s.
 func (j *variationJob) run(ctx context.Context, g *globalOptions, dir string, s int) (string, error) {
-	err := j.runNominal(ctx, s, func(n *analysis.Nominal) error {
-		_, err := batch.RunVariations(ctx, dir, j.p, s, n)
-		return err
-	})
+	err := j.runNominal(ctx, s, func(n *analysis.Nominal) (bool, error) { return batch.RunVariations(ctx, dir, j.p, s, n) })
 	first, count := j.p.MemberRange(s)
 	return fmt.Sprintf("%s: %s..%s", memberRange(j.p, s), j.p.Variations[first].Name, j.p.Variations[first+count-1].Name), err
 }
