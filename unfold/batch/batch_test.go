@@ -3,10 +3,8 @@ package batch
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"math"
 	"math/rand/v2"
-	"os"
 	"reflect"
 	"strings"
 	"testing"
@@ -87,61 +85,6 @@ func TestMergeEqualsOneRun(t *testing.T) {
 		if !reflect.DeepEqual(e.Scan(), one.Scan()) {
 			t.Errorf("K=%d: the merged scan differs from one run", k)
 		}
-	}
-}
-
-// TestShardFiles: a finished shard is not run again, a missing or foreign
-// shard stops the merge with its number, and an interrupted shard leaves
-// no file.
-func TestShardFiles(t *testing.T) {
-	ctx := context.Background()
-	c := toyConfig(t, 4*validate.BlockToys)
-	dir := t.TempDir()
-	p := plan(t, dir, c, 4)
-	if _, err := RunShard(ctx, dir, p, 0, c); err != nil {
-		t.Fatal(err)
-	}
-	st0, _ := os.Stat(ShardPath(dir, 0))
-	if ran, err := RunShard(ctx, dir, p, 0, c); err != nil || ran {
-		t.Errorf("re-running a finished shard: ran %v, %v", ran, err)
-	}
-	if st1, _ := os.Stat(ShardPath(dir, 0)); !st1.ModTime().Equal(st0.ModTime()) {
-		t.Error("re-running a finished shard rewrote its file")
-	}
-	cctx, cancel := context.WithCancel(ctx)
-	cancel()
-	if _, err := RunShard(cctx, dir, p, 1, c); !errors.Is(err, context.Canceled) {
-		t.Errorf("cancelled shard: %v", err)
-	}
-	if _, err := os.Stat(ShardPath(dir, 1)); !errors.Is(err, os.ErrNotExist) {
-		t.Errorf("a cancelled shard left a file: %v", err)
-	}
-	// shard 2 from another plan (another seed)
-	other := t.TempDir()
-	c2 := toyConfig(t, 4*validate.BlockToys)
-	c2.Seed = 8
-	p2 := plan(t, other, c2, 4)
-	if _, err := RunShard(ctx, other, p2, 2, c2); err != nil {
-		t.Fatal(err)
-	}
-	b, _ := os.ReadFile(ShardPath(other, 2))
-	if err := os.WriteFile(ShardPath(dir, 2), b, 0o644); err != nil {
-		t.Fatal(err)
-	}
-	pr, err := Status(dir, p)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if !reflect.DeepEqual(pr.Done, []int{0}) || !reflect.DeepEqual(pr.Missing, []int{1, 3}) || pr.Bad[2] == nil || !reflect.DeepEqual(pr.Todo(), []int{1, 2, 3}) {
-		t.Errorf("status: done %v missing %v bad %v", pr.Done, pr.Missing, pr.Bad)
-	}
-	_, err = Merge(dir, p)
-	if err == nil || !strings.Contains(err.Error(), "missing: 1,3") || !strings.Contains(err.Error(), "another plan") {
-		t.Errorf("merge with shards missing: %v", err)
-	}
-	// the foreign shard is run again for this plan
-	if ran, err := RunShard(ctx, dir, p, 2, c); err != nil || !ran {
-		t.Errorf("foreign shard: ran %v, %v", ran, err)
 	}
 }
 
