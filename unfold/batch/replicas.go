@@ -49,7 +49,7 @@ func (f *replicaFile) members() int {
 
 func (f *replicaFile) holds(p *Plan, s int, path string) error {
 	sh := p.Shards[s]
-	if f.Shard != s || len(f.Units) != sh.Units {
+	if len(f.Units) != sh.Units {
 		return fmt.Errorf("%s: does not hold shard %d of the plan (replica units %d..%d)", path, s, sh.FirstUnit, sh.FirstUnit+sh.Units-1)
 	}
 	for i, e := range f.Units {

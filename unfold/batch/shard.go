@@ -42,8 +42,9 @@ func (h *shardHead) head() *shardHead { return h }
 // between the kinds of plan whose shards write files.
 type shardFile interface {
 	head() *shardHead
-	// holds reports whether the file, read from path, holds shard s of
-	// the plan p (its head's format and plan checked already).
+	// holds reports whether the file, read from path, holds what shard
+	// s of the plan p holds (its head checked already: format, plan,
+	// shard number).
 	holds(p *Plan, s int, path string) error
 	// members returns the number of members (toys, variations,
 	// replicas) it holds.
@@ -68,7 +69,7 @@ func (f *toysFile) members() int { return f.Toys }
 
 func (f *toysFile) holds(p *Plan, s int, path string) error {
 	first, count := p.MemberRange(s)
-	if f.Shard != s || f.FirstToy != first || f.Toys != count || f.Ensemble == nil || f.Ensemble.Toys() != count {
+	if f.FirstToy != first || f.Toys != count || f.Ensemble == nil || f.Ensemble.Toys() != count {
 		return fmt.Errorf("%s: does not hold shard %d of the plan (toys %d..%d)", path, s, first, first+count-1)
 	}
 	return nil
@@ -119,6 +120,8 @@ func readShard[F any, PF shardFileOf[F]](p *Plan, dir string, s int) (PF, error)
 		return nil, fmt.Errorf("%s: shard format %d, want %d", path, h.Format, Format)
 	case h.Plan != p.id:
 		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(h.Plan), short(p.id))
+	case h.Shard != s:
+		return nil, fmt.Errorf("%s: does not hold shard %d of the plan but shard %d", path, s, h.Shard)
 	}
 	if err := f.holds(p, s, path); err != nil {
 		return nil, err
