@@ -179,7 +179,8 @@ type planKind struct {
 
 // kindOf returns what the kind k states of its own.
 func kindOf(k batch.Kind) *planKind {
-	result := func(k *planKind) *planKind {
+	// the variations and the replicas merge into a result folder
+	toResult := func(k *planKind) *planKind {
 		k.shard, k.folder, k.check, k.marker = "shard", "result folder", result.Check, result.JSONFile
 		return k
 	}
@@ -189,12 +190,12 @@ func kindOf(k batch.Kind) *planKind {
 			describe: func(p *batch.Plan, _ bool) string { return fmt.Sprintf("the response in %d parts", len(p.Shards)) },
 			shard:    "response part", folder: "response bundle", check: response.CheckBundle, marker: response.BundleFiles()[0]}
 	case batch.Variations:
-		return result(&planKind{flag: "--variations", plan: planVariations, load: loadVariationJob, members: "variations",
+		return toResult(&planKind{flag: "--variations", plan: planVariations, load: loadVariationJob, members: "variations",
 			describe: func(p *batch.Plan, _ bool) string {
 				return fmt.Sprintf("%d systematic variations in %d shards", p.Members(), len(p.Shards))
 			}})
 	case batch.Replicas:
-		return result(&planKind{flag: "--replicas", plan: planReplicas, load: loadReplicaJob, members: "replicas",
+		return toResult(&planKind{flag: "--replicas", plan: planReplicas, load: loadReplicaJob, members: "replicas",
 			describe: func(p *batch.Plan, units bool) string {
 				if units {
 					return fmt.Sprintf("%d bootstrap replicas in %d units of up to %d, %d shards", p.Members(), len(p.Replicas), analysis.ReplicaUnit, len(p.Shards))
