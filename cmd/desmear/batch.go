@@ -293,7 +293,7 @@ func checkPlanFile(p *batch.Plan) error {
 	if err != nil {
 		return inputErr(fmt.Errorf("the plan's analysis file: %w", err))
 	}
-	if err := p.CheckInputs(sum, p.Problem); err != nil {
+	if err := p.CheckAnalysis(sum); err != nil {
 		return inputErr(err)
 	}
 	return nil
@@ -302,7 +302,7 @@ func checkPlanFile(p *batch.Plan) error {
 // checkProblem reports whether the problem assembled from the plan's
 // analysis file, of SHA-256 psum (batch.ProblemSum), is the plan's.
 func checkProblem(p *batch.Plan, psum string) error {
-	if err := p.CheckInputs(p.Analysis.SHA256, psum); err != nil {
+	if err := p.CheckProblem(psum); err != nil {
 		return inputErr(err)
 	}
 	return nil

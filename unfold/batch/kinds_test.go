@@ -273,3 +273,33 @@ func TestMaxShards(t *testing.T) {
 		t.Errorf("a response in 1000 parts: %v", err)
 	}
 }
+
+// TestCheckInputs: every kind of plan refuses an analysis file of
+// another SHA-256, and every kind but the response (whose plan names no
+// problem) an assembled problem of another SHA-256 (ProblemSum).
+func TestCheckInputs(t *testing.T) {
+	in := Input{Path: "analysis.yaml", SHA256: "a"}
+	for _, c := range []struct {
+		plan    func() (*Plan, error)
+		problem bool
+	}{
+		{func() (*Plan, error) { return ToyPlan(in, "b", ToySettings{Toys: 100}, 1, "") }, true},
+		{func() (*Plan, error) { return ResponsePlan(in, 1, "") }, false},
+		{func() (*Plan, error) { return VariationPlan(in, "b", nil, variedNames, 1, "") }, true},
+		{func() (*Plan, error) { return ReplicaPlan(in, "b", nil, 100, 1, "") }, true},
+	} {
+		p, err := c.plan()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if p.CheckAnalysis("a") != nil || p.CheckProblem("b") != nil {
+			t.Errorf("%s: the plan's own inputs refused", p.Kind)
+		}
+		if err := p.CheckAnalysis("c"); err == nil || !strings.Contains(err.Error(), "analysis.yaml has changed") {
+			t.Errorf("%s: another analysis file: %v", p.Kind, err)
+		}
+		if err := p.CheckProblem("c"); (err != nil) != c.problem {
+			t.Errorf("%s: another problem: %v", p.Kind, err)
+		}
+	}
+}

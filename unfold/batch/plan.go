@@ -436,18 +436,21 @@ func (p *Plan) checkShards(n int) error {
 	return nil
 }
 
-// CheckInputs reports whether the analysis file and the assembled
-// problem are those the plan was made from (the analysis file only for
-// a response plan: problemSum is not used).
-func (p *Plan) CheckInputs(analysisSum, problemSum string) error {
-	if analysisSum != p.Analysis.SHA256 {
-		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(analysisSum), short(p.Analysis.SHA256))
+// CheckAnalysis reports whether the analysis file, of SHA-256 sum
+// (FileSum), is the one the plan was made from.
+func (p *Plan) CheckAnalysis(sum string) error {
+	if sum != p.Analysis.SHA256 {
+		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(sum), short(p.Analysis.SHA256))
 	}
-	if p.Kind == Response {
-		return nil
-	}
-	if problemSum != p.Problem {
-		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(problemSum), short(p.Problem))
+	return nil
+}
+
+// CheckProblem reports whether the problem assembled from the plan's
+// analysis file, of SHA-256 sum (ProblemSum), is the one the plan was
+// made from. A response plan names no problem.
+func (p *Plan) CheckProblem(sum string) error {
+	if p.Kind != Response && sum != p.Problem {
+		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(sum), short(p.Problem))
 	}
 	return nil
 }
