@@ -387,6 +387,65 @@ func BenchmarkSweepBlock(b *testing.B) {
 	b.ReportMetric(mb/(bytes/bw), "x-floor-block8")
 }
 
+// BenchmarkSweepBlockAssembly times the 8-vector SweepBlock on the fine
+// grid through its assembly loop (the gathers and the scatters of
+// sweep8Cols columns at a time), through the assembly called per column,
+// and through the Go loop (useAVX false), in turn in the same loop, and
+// reports the medians over the rounds and the medians of each round's
+// ratios to the Go loop.
+func BenchmarkSweepBlockAssembly(b *testing.B) {
+	if !useAVX {
+		b.Skip("no assembly loop in this build")
+	}
+	defer func(old bool) { useAVX = old }(useAVX)
+	m := fineMatrix(b)
+	const k = 8
+	x := make([]float64, m.cols)
+	for j := range x {
+		x[j] = 0.5
+	}
+	y, next := make([]float64, k*m.rows), make([]float64, k*m.rows)
+	for i := range y {
+		y[i] = 1
+	}
+	update := func(j int, g, out []float64) {
+		for s := range out {
+			out[s] = g[s] * x[j]
+		}
+	}
+	m.SweepBlock(next, y, k, update)
+	variants := []struct {
+		name           string
+		asm, perColumn bool
+	}{{"cols", true, false}, {"col", true, true}, {"go", false, false}}
+	t := make([][]float64, len(variants))
+	r := make([][]float64, len(variants))
+	b.ResetTimer()
+	for b.Loop() {
+		var d [3]float64
+		for v, c := range variants {
+			useAVX, sweep8PerColumn = c.asm, c.perColumn
+			t0 := time.Now()
+			m.SweepBlock(next, y, k, update)
+			d[v] = time.Since(t0).Seconds()
+			t[v] = append(t[v], d[v])
+		}
+		for v := range variants {
+			r[v] = append(r[v], d[v]/d[2])
+		}
+	}
+	b.StopTimer()
+	useAVX, sweep8PerColumn = true, false
+	for v, c := range variants {
+		slices.Sort(t[v])
+		slices.Sort(r[v])
+		b.ReportMetric(t[v][len(t[v])/2]*1e3, "ms/"+c.name)
+		if v < 2 {
+			b.ReportMetric(r[v][len(r[v])/2], c.name+"/go")
+		}
+	}
+}
+
 // BenchmarkSweepPartition: the fused EM sweep of BenchmarkSweep over the
 // fine grid with the fixed partition aimed at targetBlocks blocks and
 // with partitions of 4x and 16x as many (smaller) blocks, in turn in the

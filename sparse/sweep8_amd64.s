@@ -138,3 +138,189 @@ loop:
 done:
 	VZEROUPPER
 	RET
+
+// func gather8cols(dst []float64, y []float64, colPtr []int, rowIdx []int, val []float64) bool
+TEXT ·gather8cols(SB), NOSPLIT, $0-121
+	MOVQ dst_base+0(FP), DI
+	MOVQ y_base+24(FP), SI
+	MOVQ y_len+32(FP), R10
+	SHRQ $3, R10                // rows of y
+	MOVQ colPtr_base+48(FP), R11
+	MOVQ colPtr_len+56(FP), R12
+	DECQ R12                    // columns
+	MOVQ rowIdx_base+72(FP), R8
+	MOVQ val_base+96(FP), R9
+	XORQ R13, R13               // column
+
+col:
+	CMPQ R13, R12
+	JGE  ok
+	MOVQ (R11)(R13*8), AX   // first non-zero
+	MOVQ 8(R11)(R13*8), CX  // end
+	CMPQ AX, CX
+	JGE  bounded
+	MOVQ (R8)(AX*8), BX
+	CMPQ BX, R10
+	JAE  fail               // first row outside y (unsigned: or negative)
+	MOVQ -8(R8)(CX*8), BX
+	CMPQ BX, R10
+	JAE  fail               // last row outside y
+
+bounded:
+	VXORPD Y0, Y0, Y0
+	VXORPD Y1, Y1, Y1
+	VXORPD Y2, Y2, Y2
+	VXORPD Y3, Y3, Y3
+	VXORPD Y4, Y4, Y4
+	VXORPD Y5, Y5, Y5
+	VXORPD Y6, Y6, Y6
+	VXORPD Y7, Y7, Y7
+	MOVQ   CX, DX
+	SUBQ   AX, DX
+	ANDQ   $-4, DX
+	ADDQ   AX, DX           // end of the whole groups of 4
+	CMPQ   AX, DX
+	JGE    ctail
+
+cloop4:
+	MOVQ         (R8)(AX*8), BX
+	SHLQ         $6, BX
+	VBROADCASTSD (R9)(AX*8), Y8
+	VMULPD       (SI)(BX*1), Y8, Y9
+	VMULPD       32(SI)(BX*1), Y8, Y10
+	VADDPD       Y0, Y9, Y0
+	VADDPD       Y1, Y10, Y1
+
+	MOVQ         8(R8)(AX*8), BX
+	SHLQ         $6, BX
+	VBROADCASTSD 8(R9)(AX*8), Y11
+	VMULPD       (SI)(BX*1), Y11, Y12
+	VMULPD       32(SI)(BX*1), Y11, Y13
+	VADDPD       Y2, Y12, Y2
+	VADDPD       Y3, Y13, Y3
+
+	MOVQ         16(R8)(AX*8), BX
+	SHLQ         $6, BX
+	VBROADCASTSD 16(R9)(AX*8), Y8
+	VMULPD       (SI)(BX*1), Y8, Y9
+	VMULPD       32(SI)(BX*1), Y8, Y10
+	VADDPD       Y4, Y9, Y4
+	VADDPD       Y5, Y10, Y5
+
+	MOVQ         24(R8)(AX*8), BX
+	SHLQ         $6, BX
+	VBROADCASTSD 24(R9)(AX*8), Y11
+	VMULPD       (SI)(BX*1), Y11, Y12
+	VMULPD       32(SI)(BX*1), Y11, Y13
+	VADDPD       Y6, Y12, Y6
+	VADDPD       Y7, Y13, Y7
+
+	ADDQ $4, AX
+	CMPQ AX, DX
+	JLT  cloop4
+
+ctail:
+	CMPQ AX, CX
+	JGE  csum
+
+ctailloop:
+	MOVQ         (R8)(AX*8), BX
+	SHLQ         $6, BX
+	VBROADCASTSD (R9)(AX*8), Y8
+	VMULPD       (SI)(BX*1), Y8, Y9
+	VMULPD       32(SI)(BX*1), Y8, Y10
+	VADDPD       Y0, Y9, Y0
+	VADDPD       Y1, Y10, Y1
+	INCQ         AX
+	CMPQ         AX, CX
+	JLT          ctailloop
+
+csum:
+	VADDPD  Y0, Y2, Y0
+	VADDPD  Y1, Y3, Y1
+	VADDPD  Y4, Y6, Y4
+	VADDPD  Y5, Y7, Y5
+	VADDPD  Y4, Y0, Y0
+	VADDPD  Y5, Y1, Y1
+	VMOVUPD Y0, (DI)
+	VMOVUPD Y1, 32(DI)
+	ADDQ    $64, DI
+	INCQ    R13
+	JMP     col
+
+ok:
+	MOVB $1, ret+120(FP)
+	VZEROUPPER
+	RET
+
+fail:
+	MOVB $0, ret+120(FP)
+	VZEROUPPER
+	RET
+
+// func scatter8cols(d []float64, lo int, colPtr []int, rowIdx []int, val []float64, x []float64) bool
+TEXT ·scatter8cols(SB), NOSPLIT, $0-129
+	MOVQ d_base+0(FP), DI
+	MOVQ d_len+8(FP), R10
+	SHRQ $3, R10
+	SHLQ $6, R10                // bytes of the whole rows of d
+	MOVQ lo+24(FP), DX
+	MOVQ colPtr_base+32(FP), R11
+	MOVQ colPtr_len+40(FP), R12
+	DECQ R12                    // columns
+	MOVQ rowIdx_base+56(FP), R8
+	MOVQ val_base+80(FP), R9
+	MOVQ x_base+104(FP), SI
+	SHLQ $6, DX
+	NEGQ DX                     // byte offset of row i is 64·i - 64·lo
+	XORQ R13, R13               // column
+
+scol:
+	CMPQ R13, R12
+	JGE  sok
+	MOVQ (R11)(R13*8), AX
+	MOVQ 8(R11)(R13*8), CX
+	CMPQ AX, CX
+	JGE  snext
+	MOVQ (R8)(AX*8), BX
+	SHLQ $6, BX
+	ADDQ DX, BX
+	CMPQ BX, R10
+	JAE  sfail                  // first row outside d (unsigned: or before lo)
+	MOVQ -8(R8)(CX*8), BX
+	SHLQ $6, BX
+	ADDQ DX, BX
+	CMPQ BX, R10
+	JAE  sfail                  // last row outside d
+	VMOVUPD (SI), Y0
+	VMOVUPD 32(SI), Y1
+
+sloop:
+	MOVQ         (R8)(AX*8), BX
+	SHLQ         $6, BX
+	ADDQ         DX, BX
+	VBROADCASTSD (R9)(AX*8), Y8
+	VMULPD       Y8, Y0, Y9
+	VMULPD       Y8, Y1, Y10
+	VADDPD       (DI)(BX*1), Y9, Y9
+	VADDPD       32(DI)(BX*1), Y10, Y10
+	VMOVUPD      Y9, (DI)(BX*1)
+	VMOVUPD      Y10, 32(DI)(BX*1)
+	INCQ         AX
+	CMPQ         AX, CX
+	JLT          sloop
+
+snext:
+	ADDQ $64, SI
+	INCQ R13
+	JMP  scol
+
+sok:
+	MOVB $1, ret+128(FP)
+	VZEROUPPER
+	RET
+
+sfail:
+	MOVB $0, ret+128(FP)
+	VZEROUPPER
+	RET
