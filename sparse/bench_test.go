@@ -388,11 +388,11 @@ func BenchmarkSweepBlock(b *testing.B) {
 }
 
 // BenchmarkSweepBlockAssembly times the 8-vector SweepBlock on the fine
-// grid through its assembly loop (the gathers and the scatters of
-// sweep8Cols columns at a time), through the assembly called per column,
-// and through the Go loop (useAVX false), in turn in the same loop, and
-// reports the medians over the rounds and the medians of each round's
-// ratios to the Go loop.
+// grid through its assembly loop and through the Go loop (useAVX false),
+// in turn in the same loop, and reports the medians over the rounds and
+// the median of each round's ratio assembly / Go, of the wall times and
+// of the process's CPU times (steadier when other processes take the
+// cores).
 func BenchmarkSweepBlockAssembly(b *testing.B) {
 	if !useAVX {
 		b.Skip("no assembly loop in this build")
@@ -415,33 +415,39 @@ func BenchmarkSweepBlockAssembly(b *testing.B) {
 	}
 	m.SweepBlock(next, y, k, update)
 	variants := []struct {
-		name           string
-		asm, perColumn bool
-	}{{"cols", true, false}, {"col", true, true}, {"go", false, false}}
+		name string
+		asm  bool
+	}{{"asm", true}, {"go", false}}
 	t := make([][]float64, len(variants))
 	r := make([][]float64, len(variants))
+	rc := make([][]float64, len(variants)) // the same with CPU times
 	b.ResetTimer()
 	for b.Loop() {
-		var d [3]float64
+		var d, dc [2]float64
 		for v, c := range variants {
-			useAVX, sweep8PerColumn = c.asm, c.perColumn
-			t0 := time.Now()
+			useAVX = c.asm
+			t0, c0 := time.Now(), cpuSeconds()
 			m.SweepBlock(next, y, k, update)
-			d[v] = time.Since(t0).Seconds()
+			d[v], dc[v] = time.Since(t0).Seconds(), cpuSeconds()-c0
 			t[v] = append(t[v], d[v])
 		}
 		for v := range variants {
-			r[v] = append(r[v], d[v]/d[2])
+			r[v] = append(r[v], d[v]/d[1])
+			rc[v] = append(rc[v], dc[v]/dc[1])
 		}
 	}
 	b.StopTimer()
-	useAVX, sweep8PerColumn = true, false
+	useAVX = true
 	for v, c := range variants {
 		slices.Sort(t[v])
 		slices.Sort(r[v])
+		slices.Sort(rc[v])
 		b.ReportMetric(t[v][len(t[v])/2]*1e3, "ms/"+c.name)
-		if v < 2 {
+		if v == 0 {
 			b.ReportMetric(r[v][len(r[v])/2], c.name+"/go")
+			if cpuSeconds() > 0 {
+				b.ReportMetric(rc[v][len(rc[v])/2], c.name+"/go-cpu")
+			}
 		}
 	}
 }

@@ -250,8 +250,7 @@ type workspace struct {
 	rows   func(r, lo, hi int)
 	cols   func(lo, hi int) // SweepHooks: after the updates of a column block
 	// SweepBlock: the number of interleaved vectors, the update, and
-	// per block the gathered sums and the update's values (2·width each,
-	// 2·8·sweep8Cols for 8 vectors)
+	// per block the gathered sums and the update's values (2·width each)
 	width       int
 	updateBlock func(j int, g, x []float64)
 	gx          []float64
@@ -501,13 +500,12 @@ func (ws *workspace) block(b int) {
 		}
 	case kSweepBlock:
 		y, update := ws.x, ws.updateBlock
-		if w == 8 {
-			n := 2 * 8 * sweep8Cols
-			ws.sweep8(buf, lo, colPtr, c0, c1, ws.gx[n*b:n*(b+1)])
-			break
-		}
 		gx := ws.gx[2*w*b : 2*w*(b+1)]
 		g, x := gx[:w], gx[w:]
+		if w == 8 {
+			ws.sweep8(buf, lo, colPtr, c0, c1, (*[8]float64)(g), (*[8]float64)(x))
+			break
+		}
 		for jj := 0; jj < c1-c0; jj++ {
 			ri := rowIdx[colPtr[jj]:colPtr[jj+1]]
 			v := val[colPtr[jj]:colPtr[jj+1]]
@@ -744,11 +742,7 @@ func (m *Matrix) SweepBlock(next, y []float64, k int, update func(j int, g, x []
 	p := m.part
 	ws := p.get(m)
 	ws.kind, ws.dst, ws.x, ws.updateBlock, ws.width = kSweepBlock, next, y, update, k
-	n := 2 * k * p.blocks()
-	if k == 8 {
-		n *= sweep8Cols
-	}
-	if len(ws.gx) < n {
+	if n := 2 * k * p.blocks(); len(ws.gx) < n {
 		ws.gx = make([]float64, n)
 	}
 	m.execOn(ws, true)

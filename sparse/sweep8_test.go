@@ -147,9 +147,7 @@ func TestSweep8AssemblyBits(t *testing.T) {
 			wantNext, wantG := sweep8Run(m, false, y, xs, special)
 			for _, procs := range []int{1, 2, 5} {
 				runtime.GOMAXPROCS(procs)
-				sweep8PerColumn = procs == 5
 				next, g := sweep8Run(m, true, y, xs, special)
-				sweep8PerColumn = false
 				for i := range g {
 					// reference: the Go loop sweep8Go (bits, common practice)
 					if math.Float64bits(g[i]) != math.Float64bits(wantG[i]) {
