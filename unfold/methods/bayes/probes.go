@@ -86,6 +86,17 @@ func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
 			it, ig, ie := pr.it, m.invG[j], m.invEps[j]
 			gj, muj := it.g[j], it.mu[j]
 			dmu := pr.dmu[pr.cur : pr.cur+len(x)]
+			if len(x) == 8 {
+				// the same, with fixed-size arrays: fewer bounds checks
+				d, g8, x8 := (*[8][]float64)(dmu), (*[8]float64)(g), (*[8]float64)(x)
+				for s := range 8 {
+					ds := d[s]
+					v := (gj*ds[j] + muj*g8[s]*ig) * ie
+					ds[j] = v
+					x8[s] = v * ig
+				}
+				return
+			}
 			for s, ga := range g {
 				v := (gj*dmu[s][j] + muj*ga*ig) * ie
 				dmu[s][j] = v
