@@ -14,7 +14,7 @@ import (
 // the build tag purego selects everywhere.
 var useAVX = cpu.X86.HasAVX
 
-// gather8 sets dst[s] = Σ_k v[k] y[64·ri[k] bytes + s] for the 8 vectors
+// gather8 sets dst[s] = Σ_k v[k] y_s[ri[k]] for the 8 vectors y_s
 // interleaved at y, each vector in the four chains k mod 4 of sweep8Go
 // (the tail into the first) added as (s0+s1)+(s2+s3), with 256-bit
 // multiplies and adds (no fused multiply-add), so that dst gets the bits of
