@@ -461,3 +461,13 @@ func BenchmarkFineToys(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkFineToyBlocks: per-bin variances from 32 Poisson toys of 4
+// iterations at 500,000 × 1,000,000 (whole Unfold calls, the nominal
+// unfolding included), the toys in blocks (one SweepBlock per block of
+// unfold.ToyBlock toys and iteration) and one toy per core at a time (a
+// Sweep per toy and iteration, the earlier path), interleaved. Reports
+// the medians, their ratio and the peak heap above the problem's.
+func BenchmarkFineToyBlocks(b *testing.B) {
+	benchBlocks(b, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: 32, Seed: 1}, &perToy)
+}

@@ -12,7 +12,7 @@ import (
 	"github.com/desmear/desmear/unfold"
 )
 
-// toyData draws T pseudo-data sets around p's data (Poisson, seeded) and,
+// toyDataSets draws T pseudo-data sets around p's data (Poisson, seeded) and,
 // with varB, T backgrounds around p's background, for the runners of the
 // tests.
 func toyDataSets(p *unfold.Problem, T int, varB bool) (n, b [][]float64) {
@@ -207,9 +207,10 @@ func TestToyBlockOverflow(t *testing.T) {
 // item 5; G. D'Agostini, Nucl. Instrum. Meth. A362 (1995) 487): every
 // toy's iteration gives n_j/eps_j after one step, so over toys
 // n_j ~ Poisson(λ_j) the ensemble has mean λ_j/eps_j and variance
-// λ_j/eps_j² (method.md §9 Probes and toys). The toys are drawn here,
-// with gonum-independent inversion of the Poisson CDF, and unfolded in
-// blocks; the mean is checked within 5 standard errors, the variance
+// λ_j/eps_j² (the Poisson mean and variance λ scaled by 1/eps_j and
+// 1/eps_j², common practice), what the toys of method.md §9 Probes and
+// toys estimate. The toys are drawn here by inversion of the Poisson
+// CDF (sequential search, common practice) and unfolded in blocks; the mean is checked within 5 standard errors, the variance
 // within 5 standard precisions (the variance of a sample variance of
 // Poisson counts, (μ4 − σ⁴(T−3)/(T−1))/T with μ4 = λ + 3λ², common
 // practice). The estimates of every toy are n_j/eps_j to rounding.
