@@ -191,14 +191,14 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func
 // (ToyBlockRunner): per toy of the block its pseudo-data (and its
 // background when the background variance is propagated), the block's
 // two interleaved reco vectors of the iteration and one more for the
-// scatter buffers of the response's sweep, and two truth vectors; and the
-// ensemble of the estimates (four truth vectors).
+// scatter buffers of the response's sweep, and three truth vectors; and
+// the ensemble of the estimates (four truth vectors).
 func toyBlockBytes(m *Prepared) int64 {
 	reco := int64(4)
 	if m.varB != nil {
 		reco++
 	}
-	return 8 * (ToyBlock*(reco*int64(m.nr)+2*int64(m.nt)) + 4*int64(m.nt))
+	return 8 * (ToyBlock*(reco*int64(m.nr)+3*int64(m.nt)) + 4*int64(m.nt))
 }
 
 // toyBlockVariances is toyVariances with the toys in blocks of ToyBlock

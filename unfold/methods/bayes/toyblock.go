@@ -43,17 +43,23 @@ func (f *fit) NewToyBlockRunner() unfold.ToyBlockRunner {
 //     the chunks within one column block of the matrix, after the sweep
 //     for those straddling two, and the chunks in order.
 //
-// Memory: per toy of the block two truth vectors (μ(k), μ(k+1)), and
-// the block's two interleaved reco vectors (n/ν and the sweep's
-// destination); unfold counts them, the toys' data and the sweep's
-// scatter buffers against the memory limit.
+// The truth vectors μ(k), μ(k+1) of the block are interleaved too (bin
+// j of toy s at j·k+s), so that the update reads and writes each
+// column's values of all the toys together; the estimates are copied out
+// toy by toy when reported.
+//
+// Memory: per toy of the block three truth vectors (μ(k), μ(k+1), the
+// estimate returned), and the block's two interleaved reco vectors (n/ν
+// and the sweep's destination); unfold counts them, the toys' data and
+// the sweep's scatter buffers against the memory limit.
 type toyBlock struct {
 	m     *model
 	iters int
 	steps bool // report every step (the fit keeps its iterations)
 
 	n, b     [][]float64 // the block's data and backgrounds (b[s] nil: the model's)
-	mu, next [][]float64 // per toy: μ(k), μ(k+1)
+	mu, next []float64   // interleaved: μ(k), μ(k+1)
+	est      [][]float64 // per toy: the estimate reported
 	y, fnext []float64   // interleaved: n/ν(k), the sweep's destination
 	// parts holds, per chunk c and toy s at c·ToyBlock+s, the χ² terms
 	// and Σ μ(k+1) of the chunk; straddles marks the chunks straddling
@@ -69,9 +75,9 @@ func newToyBlock(m *model, iters int, steps bool) *toyBlock {
 	const B, cl = unfold.ToyBlock, parallel.ChunkLen
 	tb := &toyBlock{m: m, iters: iters, steps: steps,
 		y: make([]float64, B*m.nr), fnext: make([]float64, B*m.nr), scale: make([]float64, B)}
+	tb.mu, tb.next = make([]float64, B*m.nt), make([]float64, B*m.nt)
 	for range B {
-		tb.mu = append(tb.mu, make([]float64, m.nt))
-		tb.next = append(tb.next, make([]float64, m.nt))
+		tb.est = append(tb.est, make([]float64, m.nt))
 	}
 	nc := (m.nt + cl - 1) / cl
 	tb.parts = make([][2]float64, nc*B)
@@ -94,11 +100,12 @@ func newToyBlock(m *model, iters int, steps bool) *toyBlock {
 		if own && j == c*cl {
 			clear(acc) // the chunk's first bin: its sums start
 		}
-		mu, next := tb.mu[:len(x)], tb.next[:len(x)]
-		for s, ga := range g[:len(x)] {
-			old := mu[s][j]
+		k := len(x)
+		mu, next := tb.mu[j*k:j*k+k], tb.next[j*k:j*k+k]
+		for s, ga := range g[:k] {
+			old := mu[s]
 			v := old * (ga * ig) * ie // as the single iteration's update
-			next[s][j] = v
+			next[s] = v
 			x[s] = v * ig // scatter A (μ'/G) = R μ'
 			if own {
 				// the terms of iterator.chunk, in bin order
@@ -137,11 +144,7 @@ func (tb *toyBlock) RunBlock(ctx context.Context, n, b [][]float64, each func(s,
 	}
 	y, fnext := tb.y[:k*m.nr], tb.fnext[:k*m.nr]
 	tb.start(y, k)
-	if each != nil {
-		for s := range k {
-			each(s, 0, tb.mu[s])
-		}
-	}
+	tb.report(0, k, each)
 	for it := 1; it <= tb.iters; it++ {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -150,20 +153,52 @@ func (tb *toyBlock) RunBlock(ctx context.Context, n, b [][]float64, each func(s,
 		if err := tb.check(it, k); err != nil {
 			return nil, err
 		}
-		for s := range k {
-			tb.mu[s], tb.next[s] = tb.next[s], tb.mu[s]
-		}
+		tb.mu, tb.next = tb.next, tb.mu
 		if it < tb.iters {
 			tb.reco(fnext, fnext, k) // n/ν(k) over R μ(k): the next sweep's y
 			y, fnext = fnext, y
 		}
-		if each != nil {
-			for s := range k {
-				each(s, it, tb.mu[s])
+		tb.report(it, k, each)
+	}
+	if each == nil {
+		tb.copyOut(k, -1)
+	}
+	return tb.est[:k], nil
+}
+
+// report hands each the estimate of step it of every toy (nothing when
+// each is nil).
+func (tb *toyBlock) report(it, k int, each func(s, k int, est []float64)) {
+	if each == nil {
+		return
+	}
+	for s := range k {
+		tb.copyOut(k, s)
+		each(s, it, tb.est[s])
+	}
+}
+
+// copyOut copies μ of toy s (of every toy when s < 0) out of the
+// interleaved vector into its estimate.
+func (tb *toyBlock) copyOut(k, s int) {
+	mu := tb.mu[:k*tb.m.nt]
+	if s >= 0 {
+		est := tb.est[s]
+		for j := range est {
+			est[j] = mu[j*k+s]
+		}
+		return
+	}
+	est := tb.est[:k]
+	parallel.For(tb.chunks(tb.m.nt), runtime.GOMAXPROCS(0), func(c int) {
+		lo, hi := c*parallel.ChunkLen, min(tb.m.nt, (c+1)*parallel.ChunkLen)
+		for j := lo; j < hi; j++ {
+			row := mu[j*k : j*k+k]
+			for s, v := range row {
+				est[s][j] = v
 			}
 		}
-	}
-	return tb.mu[:k], nil
+	})
 }
 
 // start sets μ(0) of every toy from the prior, scaled to the toy's data
@@ -179,14 +214,17 @@ func (tb *toyBlock) start(y []float64, k int) {
 		}
 		tb.scale[s] = c
 	}
-	parallel.For(k, runtime.GOMAXPROCS(0), func(s int) {
-		c, mu := tb.scale[s], tb.mu[s]
-		for j, p := range m.prior {
-			mu[j] = c * p
+	rp, sc, mu := m.p.PriorFold(), tb.scale[:k], tb.mu
+	parallel.For(tb.chunks(m.nt), runtime.GOMAXPROCS(0), func(q int) {
+		lo, hi := q*parallel.ChunkLen, min(m.nt, (q+1)*parallel.ChunkLen)
+		for j := lo; j < hi; j++ {
+			row := mu[j*k : j*k+k]
+			for s, c := range sc {
+				row[s] = c * m.prior[j] // μ(0), as iterator.start sets it
+			}
 		}
 	})
-	rp, sc := m.p.PriorFold(), tb.scale[:k]
-	parallel.For(tb.rowChunks(), runtime.GOMAXPROCS(0), func(r int) {
+	parallel.For(tb.chunks(m.nr), runtime.GOMAXPROCS(0), func(r int) {
 		lo, hi := r*parallel.ChunkLen, min(m.nr, (r+1)*parallel.ChunkLen)
 		for i := lo; i < hi; i++ {
 			row := y[i*k : i*k+k]
@@ -198,9 +236,10 @@ func (tb *toyBlock) start(y []float64, k int) {
 	tb.reco(y, y, k)
 }
 
-// rowChunks returns the number of chunks of reco bins of the reco pass.
-func (tb *toyBlock) rowChunks() int {
-	return (tb.m.nr + parallel.ChunkLen - 1) / parallel.ChunkLen
+// chunks returns the number of chunks of n bins of the passes over the
+// block's vectors.
+func (tb *toyBlock) chunks(n int) int {
+	return (n + parallel.ChunkLen - 1) / parallel.ChunkLen
 }
 
 // reco writes y = n/ν with ν = fold + b (0 where ν ≤ 0) for every toy
@@ -208,7 +247,7 @@ func (tb *toyBlock) rowChunks() int {
 // iterator.recoRange without the log-likelihood; y may be fold.
 func (tb *toyBlock) reco(y, fold []float64, k int) {
 	n, b := tb.n[:k], tb.b[:k]
-	parallel.For(tb.rowChunks(), runtime.GOMAXPROCS(0), func(r int) {
+	parallel.For(tb.chunks(tb.m.nr), runtime.GOMAXPROCS(0), func(r int) {
 		lo, hi := r*parallel.ChunkLen, min(tb.m.nr, (r+1)*parallel.ChunkLen)
 		// reco bin by reco bin, the toys of the block inside, so that
 		// the interleaved vectors are read and written in order
@@ -237,13 +276,12 @@ func (tb *toyBlock) check(it, k int) error {
 	for _, c := range tb.straddle {
 		lo, hi := c*cl, min(m.nt, (c+1)*cl)
 		for s := range k {
-			mu, next := tb.mu[s][lo:hi], tb.next[s][lo:hi]
-			next = next[:len(mu)]
 			var c2, t float64
-			for j, x := range next {
-				dx := x - mu[j]
+			for j := lo; j < hi; j++ {
+				x := tb.next[j*k+s]
+				dx := x - tb.mu[j*k+s]
 				if x > 0 {
-					c2 += m.eps[lo+j] * dx * dx / x
+					c2 += m.eps[j] * dx * dx / x
 				}
 				t += x
 			}
