@@ -273,21 +273,25 @@ func (tb *toyBlock) reco(y, fold []float64, k int) {
 func (tb *toyBlock) check(it, k int) error {
 	const B, cl = unfold.ToyBlock, parallel.ChunkLen
 	m := tb.m
-	for _, c := range tb.straddle {
+	mu, next := tb.mu[:k*m.nt], tb.next[:k*m.nt]
+	parallel.For(len(tb.straddle), runtime.GOMAXPROCS(0), func(q int) {
+		c := tb.straddle[q]
 		lo, hi := c*cl, min(m.nt, (c+1)*cl)
-		for s := range k {
-			var c2, t float64
-			for j := lo; j < hi; j++ {
-				x := tb.next[j*k+s]
-				dx := x - tb.mu[j*k+s]
+		// bin by bin, the toys inside: per toy the sums of
+		// iterator.chunk in bin order
+		var acc [B][2]float64
+		for j := lo; j < hi; j++ {
+			e, old, nv := m.eps[j], mu[j*k:j*k+k], next[j*k:j*k+k]
+			for s, x := range nv {
+				dx := x - old[s]
 				if x > 0 {
-					c2 += m.eps[j] * dx * dx / x
+					acc[s][0] += e * dx * dx / x
 				}
-				t += x
+				acc[s][1] += x
 			}
-			tb.parts[c*B+s] = [2]float64{c2, t}
 		}
-	}
+		copy(tb.parts[c*B:c*B+k], acc[:k])
+	})
 	nc := len(tb.straddles)
 	for s := range k {
 		var c2, t float64

@@ -10,6 +10,7 @@ import (
 
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
+	"github.com/desmear/desmear/unfold/internal/parallel"
 )
 
 // toyDataSets draws T pseudo-data sets around p's data (Poisson, seeded) and,
@@ -280,5 +281,33 @@ func TestToyBlockDiagonalClosedForm(t *testing.T) {
 		if d := math.Abs(v*e2 - l); d > 5*sd {
 			t.Errorf("bin %d: variance %v, want λ/eps² = %v", j, v, l/e2)
 		}
+	}
+}
+
+// The overflow check of a block sums the χ² chunks straddling two column
+// blocks after the sweep: a non-finite μ(k+1) of one toy there fails the
+// check (the single iteration's rule, iterator.compare), a finite one
+// does not.
+func TestToyBlockCheckStraddlingChunks(t *testing.T) {
+	p := randomProblem(t, 3, 70000, 140000, 6, false)
+	f := fitOf(t, p, unfold.InModel, &Settings{Iterations: 1})
+	tb := newToyBlock(f.m, 1, false)
+	if len(tb.straddle) == 0 {
+		t.Fatal("no chunk straddles two column blocks")
+	}
+	n, _ := toyDataSets(p, 3, false)
+	if _, err := tb.RunBlock(context.Background(), n, nil, nil); err != nil {
+		t.Fatal(err)
+	}
+	// after the swap: μ(1) in tb.mu; check compares tb.next with tb.mu
+	tb.mu, tb.next = tb.next, tb.mu
+	if err := tb.check(1, 3); err != nil {
+		t.Fatalf("finite values: %v", err)
+	}
+	j := tb.straddle[0]*parallel.ChunkLen + 7
+	tb.next[j*3+2] = math.Inf(1)
+	var ne *unfold.NumericalError
+	if err := tb.check(1, 3); !errors.As(err, &ne) || ne.Iteration != 1 {
+		t.Fatalf("an infinite estimate in a straddling chunk: %v, want a *unfold.NumericalError at iteration 1", err)
 	}
 }
