@@ -102,7 +102,10 @@
 //     through the same recursion, one fused sweep per probe and
 //     iteration;
 //   - the Poisson toys (Fit.NewToyRunner) are unfolded with the same
-//     number of iterations as the data.
+//     number of iterations as the data; without smoothing they go in
+//     blocks of unfold.ToyBlock (Fit.NewToyBlockRunner), one
+//     sparse.SweepBlock per block and iteration, every toy with the bits
+//     it gets alone.
 //
 // # Re-runs
 //

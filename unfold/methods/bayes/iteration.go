@@ -542,7 +542,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 			it.y, it.ynext = it.ynext, it.y
 		}
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
-			return &unfold.NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
+			return nonFinite(k)
 		}
 		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
 		res.Iterations = k
