@@ -307,15 +307,7 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 		// the same ν and n/ν, without the logarithms
 		switch {
 		case b != nil && it.lazyNu:
-			bb := b[lo:hi]
-			bb = bb[:len(f)]
-			for i, v := range f {
-				v += bb[i]
-				yy[i] = 0
-				if v > 0 {
-					yy[i] = nn[i] / v
-				}
-			}
+			ratios(yy, f, b[lo:hi:hi][:len(f)], nn)
 		case b != nil:
 			bb, vv := b[lo:hi], nu[lo:hi]
 			bb, vv = bb[:len(f)], vv[:len(f)]
@@ -328,12 +320,7 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 				}
 			}
 		default:
-			for i, v := range f {
-				yy[i] = 0
-				if v > 0 {
-					yy[i] = nn[i] / v
-				}
-			}
+			ratios(yy, f, nil, nn)
 		}
 		return 0
 	}
@@ -374,6 +361,30 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 		}
 	}
 	return ll
+}
+
+// ratiosGo is ratios in Go: y[i] = n[i]/ν_i where ν_i = f[i] (+ b[i]
+// when b is not nil) is above 0, and 0 elsewhere (the lengths are those
+// of f; y may be f itself).
+func ratiosGo(y, f, b, n []float64) {
+	y, n = y[:len(f)], n[:len(f)]
+	if b != nil {
+		b = b[:len(f)]
+		for i, v := range f {
+			v += b[i]
+			y[i] = 0
+			if v > 0 {
+				y[i] = n[i] / v
+			}
+		}
+		return
+	}
+	for i, v := range f {
+		y[i] = 0
+		if v > 0 {
+			y[i] = n[i] / v
+		}
+	}
 }
 
 // updateFunc returns the sweep's update from it.mu into it.next, storing
