@@ -180,6 +180,7 @@ type Builder struct {
 	truth, reco Locator
 	merger      *Merger
 	withDiag    bool
+	diag        *diagMap // the reco bins in the truth scheme, made by the first sample
 	samples     int
 	// OnShard, when not nil, receives the partial response of every
 	// shard as it is finished, in shard order, instead of the Builder
@@ -299,7 +300,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 				panic("response: RecoInTruth names a reco observable that does not exist")
 			}
 		}
-		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
+		dg = b.diagFor(sim.RecoInTruth)
 	}
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
