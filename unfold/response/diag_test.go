@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"slices"
 	"strings"
 	"testing"
 
@@ -151,7 +150,7 @@ func checkDiagMap(t *testing.T, truth, reco *binning.Scheme) {
 				l, h := max(lo, -3), min(hi, 3)
 				v = append(v, l+(h-l)*rng.Float64())
 			}
-			vals[j] = slices.DeleteFunc(v, func(u float64) bool { return math.IsInf(u, 0) })
+			vals[j] = v // ±Inf included: they belong to the flow bins
 		}
 		for _, x := range vals[0] {
 			for _, y := range vals[1] {

@@ -400,17 +400,19 @@ func (s *scratch) locateDiag(dst, reco []int32, m *diagMap, haveReco bool) {
 		pt = append(pt, 0)
 	}
 	s.diagPoint = pt
-	cells := m.cells
+	cells, splits := m.cells, m.splits
 	for k, r := range reco {
 		if r == codeRejected {
 			dst[k] = codeRejected
 			continue
 		}
 		if r >= 0 {
-			if c := &cells[r]; c.truth >= 0 {
+			if c := cells[r]; c.truth >= 0 {
 				t := c.truth
-				if c.split != 0 && s.obs[m.axes[c.split&15]][k] >= c.edge {
-					t += int32(c.split >> 4)
+				if c.split != 0 {
+					if sp := &splits[c.split-1]; s.obs[sp.obs][k] >= sp.edge {
+						t += sp.step
+					}
 				}
 				dst[k] = t
 				continue

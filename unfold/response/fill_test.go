@@ -457,9 +457,12 @@ func TestRecoInTruthDirectMap(t *testing.T) {
 	}
 	// 6×4 in-range reco bins; x bin [0.25,0.35) and y bin [0.45,0.55)
 	// straddle truth edges: 5×3 = 15 lie inside one truth bin, 3+5 = 8
-	// straddle one truth edge (one comparison), 1 straddles two.
-	if direct != 15 || split != 8 {
-		t.Errorf("%d reco bins mapped directly and %d split, want 15 and 8", direct, split)
+	// straddle one truth edge (one comparison), 1 straddles two. Of the
+	// 24 reco flow bins, those in a switched-on truth flow bin: the x
+	// overflow with the y underflow and the 3 y bins inside one truth bin
+	// (4), the y underflow with the 5 x bins inside one truth bin (5).
+	if direct != 15+9 || split != 8 {
+		t.Errorf("%d reco bins mapped directly and %d split, want 24 and 8", direct, split)
 	}
 }
 
