@@ -204,13 +204,29 @@ func NewBuilder(truth, reco Locator) *Builder {
 }
 
 // shardState is what a shard has gathered so far, on its way from the
-// event loop to the accumulator's goroutine.
+// event loop to the accumulator's goroutine. The sums of one bin that
+// an event adds to are kept side by side (one cache line per event and
+// histogram pair): gen[t] holds G_t and its sum of squared weights,
+// fake[r] the fakes' and diag[t] the Diagonal and RecoInTruth sums.
 type shardState struct {
-	lo, hi      int64
-	gen, gen2   []float64
-	fake, fake2 []float64
-	diag, rit   []float64
-	sum         Summary
+	lo, hi int64
+	gen    [][2]float64
+	fake   [][2]float64
+	diag   [][2]float64
+	sum    Summary
+}
+
+// unzip returns the first and the second of every pair of p, or nil, nil
+// for a nil p.
+func unzip(p [][2]float64) (a, b []float64) {
+	if p == nil {
+		return nil, nil
+	}
+	a, b = make([]float64, len(p)), make([]float64, len(p))
+	for i, v := range p {
+		a[i], b[i] = v[0], v[1]
+	}
+	return a, b
 }
 
 // Add streams the events of sim into the response. It returns the
@@ -254,11 +270,9 @@ func (b *Builder) emptyShard(lo int64) error {
 
 func (b *Builder) newShard(lo int64) *shardState {
 	nt, nr := b.truth.Len(), b.reco.Len()
-	st := &shardState{lo: lo, hi: lo,
-		gen: make([]float64, nt), gen2: make([]float64, nt),
-		fake: make([]float64, nr), fake2: make([]float64, nr)}
+	st := &shardState{lo: lo, hi: lo, gen: make([][2]float64, nt), fake: make([][2]float64, nr)}
 	if b.withDiag {
-		st.diag, st.rit = make([]float64, nt), make([]float64, nt)
+		st.diag = make([][2]float64, nt)
 	}
 	return st
 }
@@ -270,8 +284,10 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	if err != nil {
 		return err
 	}
-	p := &Built{Migrations: m, Generated: st.gen, GeneratedSumW2: st.gen2, Fakes: st.fake, FakesSumW2: st.fake2,
-		Diagonal: st.diag, RecoInTruth: st.rit, Summary: st.sum}
+	p := &Built{Migrations: m, Summary: st.sum}
+	p.Generated, p.GeneratedSumW2 = unzip(st.gen)
+	p.Fakes, p.FakesSumW2 = unzip(st.fake)
+	p.Diagonal, p.RecoInTruth = unzip(st.diag)
 	if b.OnShard != nil {
 		return b.OnShard(b.samples-1, st.lo, st.hi, p)
 	}
@@ -409,8 +425,9 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			}
 			switch {
 			case t >= 0:
-				st.gen[t] += w
-				st.gen2[t] += w * w
+				g := &st.gen[t]
+				g[0] += w
+				g[1] += w * w
 				if r >= 0 {
 					sm.Entries++
 				} else {
@@ -421,16 +438,18 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 					sm.OutsideTruth++
 				}
 				if r >= 0 {
-					st.fake[r] += w
-					st.fake2[r] += w * w
+					f := &st.fake[r]
+					f[0] += w
+					f[1] += w * w
 					sm.Fakes++
 				}
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					st.rit[d] += w
+					p := &st.diag[d]
+					p[1] += w
 					if d == t {
-						st.diag[d] += w
+						p[0] += w
 					}
 				}
 			}
