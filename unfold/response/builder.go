@@ -206,22 +206,18 @@ func NewBuilder(truth, reco Locator) *Builder {
 // shardState is what a shard has gathered so far, on its way from the
 // event loop to the accumulator's goroutine. The sums of one bin that
 // an event adds to are kept side by side (one cache line per event and
-// histogram pair): gen[t] holds G_t and its sum of squared weights,
-// fake[r] the fakes' and diag[t] the Diagonal and RecoInTruth sums.
+// level, and one for both when an event's reco values fall in its truth
+// bin): gen[t] holds G_t, its sum of squared weights, and the Diagonal
+// and RecoInTruth sums of truth bin t; fake[r] the fakes' sums.
 type shardState struct {
 	lo, hi int64
-	gen    [][2]float64
+	gen    [][4]float64
 	fake   [][2]float64
-	diag   [][2]float64
 	sum    Summary
 }
 
-// unzip returns the first and the second of every pair of p, or nil, nil
-// for a nil p.
+// unzip returns the first and the second of every pair of p.
 func unzip(p [][2]float64) (a, b []float64) {
-	if p == nil {
-		return nil, nil
-	}
 	a, b = make([]float64, len(p)), make([]float64, len(p))
 	for i, v := range p {
 		a[i], b[i] = v[0], v[1]
@@ -270,11 +266,7 @@ func (b *Builder) emptyShard(lo int64) error {
 
 func (b *Builder) newShard(lo int64) *shardState {
 	nt, nr := b.truth.Len(), b.reco.Len()
-	st := &shardState{lo: lo, hi: lo, gen: make([][2]float64, nt), fake: make([][2]float64, nr)}
-	if b.withDiag {
-		st.diag = make([][2]float64, nt)
-	}
-	return st
+	return &shardState{lo: lo, hi: lo, gen: make([][4]float64, nt), fake: make([][2]float64, nr)}
 }
 
 // finishShard turns the shard's accumulator and histograms into its
@@ -284,10 +276,18 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	if err != nil {
 		return err
 	}
-	p := &Built{Migrations: m, Summary: st.sum}
-	p.Generated, p.GeneratedSumW2 = unzip(st.gen)
+	nt := len(st.gen)
+	p := &Built{Migrations: m, Summary: st.sum, Generated: make([]float64, nt), GeneratedSumW2: make([]float64, nt)}
+	if b.withDiag {
+		p.Diagonal, p.RecoInTruth = make([]float64, nt), make([]float64, nt)
+	}
+	for t, g := range st.gen {
+		p.Generated[t], p.GeneratedSumW2[t] = g[0], g[1]
+		if b.withDiag {
+			p.Diagonal[t], p.RecoInTruth[t] = g[2], g[3]
+		}
+	}
 	p.Fakes, p.FakesSumW2 = unzip(st.fake)
-	p.Diagonal, p.RecoInTruth = unzip(st.diag)
 	if b.OnShard != nil {
 		return b.OnShard(b.samples-1, st.lo, st.hi, p)
 	}
@@ -446,10 +446,10 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					p := &st.diag[d]
-					p[1] += w
+					p := &st.gen[d]
+					p[3] += w
 					if d == t {
-						p[0] += w
+						p[2] += w
 					}
 				}
 			}
