@@ -8,10 +8,10 @@ import (
 	"testing"
 )
 
-// The arithmetic path of finder for edges of equal widths must give the
-// edge search's bin (search, the reference: the rule "a bin includes its
-// low edge, the last edge belongs to the overflow", common practice) for
-// every value: on every edge and the floats just below and above it,
+// The arithmetic path of finder for edges of equal widths (method.md §28
+// Locating events by arithmetic) must give the edge search's bin (search,
+// the reference: the rule "a bin includes its low edge, the last edge
+// belongs to the overflow", common practice) for every value: on every edge and the floats just below and above it,
 // midpoints, random values, values far outside, ±Inf. Edge lists cover
 // exact and rounded equal widths (lo + i*w, i/n, decimal strings), widths
 // perturbed by up to a third of a bin (still arithmetic) and by more
