@@ -283,15 +283,33 @@ func (s *Scheme) EachLabel(fn func(g int, label []byte)) {
 		}
 	}
 	var buf []byte
-	for g := 0; g < s.n; g++ {
-		var st [MaxAxes]int
-		r, _ := s.states(g, &st)
+	label := func(g, r int, st *[MaxAxes]int) {
 		reg := s.regions[r]
 		buf = append(buf[:0], reg.name...)
 		for k, l := range reg.lv {
-			buf = append(buf, parts[r][k][l.partIndex(k, &st)]...)
+			buf = append(buf, parts[r][k][l.partIndex(k, st)]...)
 		}
 		fn(g, buf)
+	}
+	for g := 0; g < s.n; {
+		var st [MaxAxes]int
+		r, _ := s.states(g, &st)
+		if reg := s.regions[r]; g < s.nIn && reg.rect {
+			// the in-range bins of a product of axes: row-major, the
+			// last axis fastest
+			for _, end := s.Span(r); g < end; g++ {
+				label(g, r, &st)
+				for k := len(reg.lv) - 1; k >= 0; k-- {
+					if st[k]++; st[k] < reg.lv[k].n {
+						break
+					}
+					st[k] = 0
+				}
+			}
+			continue
+		}
+		label(g, r, &st)
+		g++
 	}
 }
 
