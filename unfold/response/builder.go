@@ -180,6 +180,7 @@ type Builder struct {
 	truth, reco Locator
 	merger      *Merger
 	withDiag    bool
+	diag        *diagMap // the reco bins in the truth scheme, made by the first sample
 	samples     int
 	// OnShard, when not nil, receives the partial response of every
 	// shard as it is finished, in shard order, instead of the Builder
@@ -203,13 +204,25 @@ func NewBuilder(truth, reco Locator) *Builder {
 }
 
 // shardState is what a shard has gathered so far, on its way from the
-// event loop to the accumulator's goroutine.
+// event loop to the accumulator's goroutine. The sums of one bin that
+// an event adds to are kept side by side (one cache line per event and
+// level, and one for both when an event's reco values fall in its truth
+// bin): gen[t] holds G_t, its sum of squared weights, and the Diagonal
+// and RecoInTruth sums of truth bin t; fake[r] the fakes' sums.
 type shardState struct {
-	lo, hi      int64
-	gen, gen2   []float64
-	fake, fake2 []float64
-	diag, rit   []float64
-	sum         Summary
+	lo, hi int64
+	gen    [][4]float64
+	fake   [][2]float64
+	sum    Summary
+}
+
+// unzip returns the first and the second of every pair of p.
+func unzip(p [][2]float64) (a, b []float64) {
+	a, b = make([]float64, len(p)), make([]float64, len(p))
+	for i, v := range p {
+		a[i], b[i] = v[0], v[1]
+	}
+	return a, b
 }
 
 // Add streams the events of sim into the response. It returns the
@@ -253,13 +266,7 @@ func (b *Builder) emptyShard(lo int64) error {
 
 func (b *Builder) newShard(lo int64) *shardState {
 	nt, nr := b.truth.Len(), b.reco.Len()
-	st := &shardState{lo: lo, hi: lo,
-		gen: make([]float64, nt), gen2: make([]float64, nt),
-		fake: make([]float64, nr), fake2: make([]float64, nr)}
-	if b.withDiag {
-		st.diag, st.rit = make([]float64, nt), make([]float64, nt)
-	}
-	return st
+	return &shardState{lo: lo, hi: lo, gen: make([][4]float64, nt), fake: make([][2]float64, nr)}
 }
 
 // finishShard turns the shard's accumulator and histograms into its
@@ -269,8 +276,18 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	if err != nil {
 		return err
 	}
-	p := &Built{Migrations: m, Generated: st.gen, GeneratedSumW2: st.gen2, Fakes: st.fake, FakesSumW2: st.fake2,
-		Diagonal: st.diag, RecoInTruth: st.rit, Summary: st.sum}
+	nt := len(st.gen)
+	p := &Built{Migrations: m, Summary: st.sum, Generated: make([]float64, nt), GeneratedSumW2: make([]float64, nt)}
+	if b.withDiag {
+		p.Diagonal, p.RecoInTruth = make([]float64, nt), make([]float64, nt)
+	}
+	for t, g := range st.gen {
+		p.Generated[t], p.GeneratedSumW2[t] = g[0], g[1]
+		if b.withDiag {
+			p.Diagonal[t], p.RecoInTruth[t] = g[2], g[3]
+		}
+	}
+	p.Fakes, p.FakesSumW2 = unzip(st.fake)
 	if b.OnShard != nil {
 		return b.OnShard(b.samples-1, st.lo, st.hi, p)
 	}
@@ -299,7 +316,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 				panic("response: RecoInTruth names a reco observable that does not exist")
 			}
 		}
-		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
+		dg = b.diagFor(sim.RecoInTruth)
 	}
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
@@ -408,8 +425,9 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			}
 			switch {
 			case t >= 0:
-				st.gen[t] += w
-				st.gen2[t] += w * w
+				g := &st.gen[t]
+				g[0] += w
+				g[1] += w * w
 				if r >= 0 {
 					sm.Entries++
 				} else {
@@ -420,16 +438,18 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 					sm.OutsideTruth++
 				}
 				if r >= 0 {
-					st.fake[r] += w
-					st.fake2[r] += w * w
+					f := &st.fake[r]
+					f[0] += w
+					f[1] += w * w
 					sm.Fakes++
 				}
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					st.rit[d] += w
+					p := &st.gen[d]
+					p[3] += w
 					if d == t {
-						st.diag[d] += w
+						p[2] += w
 					}
 				}
 			}
