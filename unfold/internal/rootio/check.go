@@ -177,11 +177,13 @@ func readKey(r io.ReaderAt, pos, end int64) (rootKey, string) {
 // blocks (with their checksums for a basket). It returns the record's
 // size.
 func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
-	k, why := readKey(r, pos, end)
-	if why != "" {
-		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, why)
+	k, bad := readKey(r, pos, end)
+	if bad != "" {
+		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, bad)
 	}
-	if k.objlen == k.nbytes-k.keylen {
+	walk := walkedClasses[k.class] && k.objlen <= maxWalked
+	compressed := k.objlen != k.nbytes-k.keylen
+	if !compressed && !walk {
 		return k.nbytes, nil
 	}
 	payload := make([]byte, k.nbytes-k.keylen)
@@ -189,9 +191,26 @@ func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
 		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d: %v", what, pos, err)
 	}
 	basket := k.class == "TBasket"
-	total, why := checkBlocks(payload, basket)
-	if why == "" && total != k.objlen {
-		why = fmt.Sprintf("declares %d bytes but its blocks hold %d", k.objlen, total)
+	var why string
+	if compressed {
+		var total int64
+		total, why = checkBlocks(payload, basket)
+		if why == "" && total != k.objlen {
+			why = fmt.Sprintf("declares %d bytes but its blocks hold %d", k.objlen, total)
+		}
+		if why == "" && walk {
+			var ok bool
+			if payload, ok, why = inflate(payload, k.objlen); !ok {
+				walk = false
+			}
+		}
+	}
+	if why == "" && walk {
+		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}}
+		w.body(k.class, len(payload))
+		if w.why != "" {
+			return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d (%s %q) is damaged, %s; the file cannot be read: write it again or restore it from a copy", what, pos, k.class, k.name, w.why)
+		}
 	}
 	switch {
 	case why == "":

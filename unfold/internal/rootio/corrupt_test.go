@@ -1,6 +1,7 @@
 package rootio
 
 import (
+	"bytes"
 	"encoding/binary"
 	"fmt"
 	"math/rand/v2"
@@ -67,6 +68,109 @@ func TestDeclaredLengths(t *testing.T) {
 	runtime.ReadMemStats(&m1)
 	if err == nil || !strings.Contains(err.Error(), q+": damaged ROOT file: the streamer record at byte") {
 		t.Errorf("damaged streamer size: %v", err)
+	}
+	if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+		t.Errorf("%d bytes allocated to refuse it", a)
+	}
+}
+
+// withStreamerCount returns a copy of the ROOT file data whose streamer
+// record holds n as the element count of its first TStreamerInfo's
+// TObjArray: the record is decompressed, changed and appended
+// uncompressed at the end of the file, and the header's pointer to it
+// (fSeekInfo, fNbytesInfo), its key's fSeekKey and the end of the
+// records (fEND) moved there (ROOT file
+// format, common practice: a small-file header and key layout).
+func withStreamerCount(t *testing.T, data []byte, n int32) []byte {
+	t.Helper()
+	be := binary.BigEndian
+	if v := be.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
+	}
+	seekinfo := int64(be.Uint32(data[37:]))
+	k, why := readKey(bytes.NewReader(data), seekinfo, int64(len(data)))
+	if why != "" || int16(be.Uint16(data[seekinfo+4:])) > 1000 {
+		t.Fatalf("streamer key: %s", why)
+	}
+	p := data[seekinfo+k.keylen : seekinfo+k.nbytes]
+	if k.objlen != k.nbytes-k.keylen {
+		var ok bool
+		if p, ok, why = inflate(p, k.objlen); !ok || why != "" {
+			t.Fatalf("streamer record not inflated: %s", why)
+		}
+	}
+	p = append([]byte(nil), p...)
+	i := bytes.Index(p, []byte("TObjArray\x00"))
+	if i < 0 {
+		t.Fatal("no TObjArray in the streamer record")
+	}
+	i += len("TObjArray\x00")
+	vers := be.Uint16(p[i+4:]) // after the byte count
+	i += 6
+	if vers > 2 {
+		i += 10 // TObject: version, unique ID, bits
+	}
+	if vers > 1 {
+		i += 1 + int(p[i]) // the name
+	}
+	be.PutUint32(p[i:], uint32(n))
+	key := append([]byte(nil), data[seekinfo:seekinfo+k.keylen]...)
+	at := int64(len(data))
+	be.PutUint32(key[0:], uint32(k.keylen)+uint32(len(p)))
+	be.PutUint32(key[6:], uint32(len(p)))
+	be.PutUint32(key[18:], uint32(at))
+	d := append(append(append([]byte(nil), data...), key...), p...)
+	be.PutUint32(d[37:], uint32(at))
+	be.PutUint32(d[41:], uint32(int64(len(key))+int64(len(p))))
+	be.PutUint32(d[12:], uint32(len(d))) // fEND
+	return d
+}
+
+// TestStreamerCounts damages the element count of a TStreamerInfo in the
+// streamer record of a written histogram file: 50 million elements in a
+// record of a few kilobytes. go-hep v0.36.0 allocates the count before
+// reading the elements (16 bytes each: 800 MB here, 32 GB at most), so
+// CheckFile refuses it, naming the record and the count, without
+// allocating; the same file with its true count reads.
+func TestStreamerCounts(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	// The undamaged record moved to the end reads: the crafting alone
+	// is not what is refused.
+	good := filepath.Join(dir, "good.root")
+	be := binary.BigEndian
+	seekinfo := int64(be.Uint32(data[37:]))
+	k, _ := readKey(bytes.NewReader(data), seekinfo, int64(len(data)))
+	p := data[seekinfo+k.keylen : seekinfo+k.nbytes]
+	if k.objlen != k.nbytes-k.keylen {
+		p, _, _ = inflate(p, k.objlen)
+	}
+	i := bytes.Index(p, []byte("TObjArray\x00")) + len("TObjArray\x00") + 6
+	if be.Uint16(p[i-2:]) > 2 {
+		i += 10
+	}
+	if be.Uint16(p[i-12:]) > 1 {
+		i += 1 + int(p[i])
+	}
+	trueCount := int32(be.Uint32(p[i:]))
+	os.WriteFile(good, withStreamerCount(t, data, trueCount), 0o644)
+	if _, err := ReadHist1D(good, "h1"); err != nil {
+		t.Fatalf("the streamer record moved with its count of %d: %v", trueCount, err)
+	}
+
+	bad := filepath.Join(dir, "bad.root")
+	os.WriteFile(bad, withStreamerCount(t, data, 50_000_000), 0o644)
+	var m0, m1 runtime.MemStats
+	runtime.ReadMemStats(&m0)
+	_, err = ReadHist1D(bad, "h1")
+	runtime.ReadMemStats(&m1)
+	want := bad + `: damaged ROOT file: the streamer record at byte `
+	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), `(TList "StreamerInfo")`) ||
+		!strings.Contains(err.Error(), "a TObjArray declares 50000000 items") || !strings.Contains(err.Error(), "write it again") {
+		t.Errorf("damaged element count: %v", err)
 	}
 	if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
 		t.Errorf("%d bytes allocated to refuse it", a)
