@@ -176,3 +176,55 @@ func TestStreamerCounts(t *testing.T) {
 		t.Errorf("%d bytes allocated to refuse it", a)
 	}
 }
+
+// TestKeyListKeys damages the first key of the top directory's key list
+// of a written histogram file (ROOT file format, common practice: the key
+// list is the number of keys, then a copy of each record's key header):
+// its object size set to 2 GB (go-hep v0.36.0 reads the record with the
+// sizes of this copy and allocates them first), and its class name given
+// a length of 4 GB (go-hep allocates a string's length before reading
+// it). Both are refused naming the key list, without the allocation.
+func TestKeyListKeys(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	if v := be.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
+	}
+	dir := be.Uint32(data[8:]) + be.Uint32(data[28:]) // the top directory follows the name record at fBEGIN
+	if be.Uint16(data[dir:]) > 1000 {
+		t.Fatal("a large-file directory; the offsets below are for small ones")
+	}
+	seekkeys := be.Uint32(data[dir+26:])
+	first := seekkeys + uint32(be.Uint16(data[seekkeys+14:])) + 4 // after the key list's key and the number of keys
+	if be.Uint16(data[first+4:]) > 1000 {
+		t.Fatal("a large-file key; the offsets below are for small ones")
+	}
+	for _, c := range []struct {
+		what, want string
+		change     func(d []byte)
+	}{
+		{"object size", "whose record at byte", func(d []byte) { be.PutUint32(d[first+6:], 0x7ffffff0) }},
+		{"class name length", "has a class, name and title longer than its key", func(d []byte) {
+			d[first+26] = 255
+			be.PutUint32(d[first+27:], 0xf0000000)
+		}},
+	} {
+		d := append([]byte(nil), data...)
+		c.change(d)
+		q := filepath.Join(t.TempDir(), "x.root")
+		os.WriteFile(q, d, 0o644)
+		var m0, m1 runtime.MemStats
+		runtime.ReadMemStats(&m0)
+		_, err := Keys(q)
+		runtime.ReadMemStats(&m1)
+		if err == nil || !strings.Contains(err.Error(), q+": damaged ROOT file: the key list at byte") || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s damaged: %v", c.what, err)
+		}
+		if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+			t.Errorf("%s damaged: %d bytes allocated to refuse it", c.what, a)
+		}
+	}
+}

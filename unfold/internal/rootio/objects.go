@@ -43,6 +43,7 @@ const (
 // TStreamerInfo), trees and histograms.
 var walkedClasses = map[string]bool{
 	"TList": true, "TTree": true,
+	"TH1D": true, "TH1F": true, "TH1I": true, "TH2D": true, "TH2F": true, "TH2I": true,
 }
 
 // inflate returns the uncompressed payload of a record of objlen bytes
@@ -405,6 +406,10 @@ func (w *walker) body(class string, end int) {
 		if !w.done() {
 			w.pos = e
 		}
+	case "TH1D", "TH2D":
+		w.hist(end, class[2] == '2', 8)
+	case "TH1F", "TH1I", "TH2F", "TH2I":
+		w.hist(end, class[2] == '2', 4)
 	default:
 		w.stop = true
 	}
@@ -527,5 +532,96 @@ func (w *walker) leaf(end int) {
 	w.named(e)
 	w.skip(4*3+2, e)
 	w.object(e)
+	w.close(e)
+}
+
+// hist checks a TH1 or TH2 histogram whose cells take size bytes each,
+// as go-hep reads it: the TH1 part (for a TH2 inside the TH2 part),
+// then the cells' counted array.
+func (w *walker) hist(end int, twoD bool, size int64) {
+	_, e := w.header(end)
+	if twoD {
+		vers, e2 := w.header(e)
+		if vers < 3 {
+			w.stop = true
+			return
+		}
+		w.th1(e2)
+		w.skip(4*8, e2) // scale factor, sums of w y, w y², w x y
+		w.close(e2)
+	} else {
+		w.th1(e)
+	}
+	w.counted(e, size, "the cells of a histogram")
+	w.close(e)
+}
+
+// counted checks a TArray: a count, then the values of size bytes each.
+func (w *walker) counted(end int, size int64, what string) {
+	n := w.count(end, size, what)
+	w.skip(n*int(size), end)
+}
+
+// th1 checks the TH1 part of a histogram of version 2 to 8 (ROOT 3 and
+// later): a TNamed, the attributes, the three axes, the contour levels,
+// the sums of squared weights, the option string, the list of functions
+// and the buffer, all counted arrays go-hep allocates first.
+func (w *walker) th1(end int) {
+	vers, e := w.header(end)
+	if w.done() || vers < 2 || vers > 8 {
+		w.stop = true
+		return
+	}
+	w.named(e)
+	w.skipObject(e) // line attributes
+	w.skipObject(e) // fill attributes
+	w.skipObject(e) // marker attributes
+	w.skip(4, e)    // number of cells
+	w.axis(e)
+	w.axis(e)
+	w.axis(e)
+	w.skip(2*2+5*8+3*8, e) // bar offset and width, entries and sums, maximum, minimum, normalisation
+	w.counted(e, 8, "the contour levels of a histogram")
+	w.counted(e, 8, "the sums of squared weights of a histogram")
+	w.str(e)
+	w.list(e)
+	if vers > 3 {
+		n := w.count(e, 8, "the buffer of a histogram")
+		w.skip(1+8*n, e)
+		if vers > 6 {
+			w.skip(4, e)
+		}
+		if vers > 7 {
+			w.skip(4, e)
+		}
+	}
+	w.close(e)
+}
+
+// axis checks a TAxis of version 6 to 10: a TNamed, the axis attributes,
+// the number of bins and range, the counted bin edges, the first and
+// last bins, the time format string and the lists of labels.
+func (w *walker) axis(end int) {
+	vers, e := w.header(end)
+	if w.done() || vers < 6 || vers > 10 {
+		w.stop = true
+		return
+	}
+	w.named(e)
+	w.skipObject(e) // axis attributes
+	w.skip(4+2*8, e)
+	w.counted(e, 8, "the bin edges of an axis")
+	w.skip(2*4, e)
+	if vers >= 9 {
+		w.skip(2, e)
+	}
+	w.skip(1, e)
+	w.str(e)
+	if vers >= 9 {
+		w.object(e)
+	}
+	if vers >= 10 {
+		w.object(e)
+	}
 	w.close(e)
 }

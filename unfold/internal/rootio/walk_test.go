@@ -66,7 +66,7 @@ func TestWalkFollowsWrittenFiles(t *testing.T) {
 		path    string
 		classes []string
 	}{
-		{"testdata/hists.root", []string{"TList"}},
+		{"testdata/hists.root", []string{"TList", "TH1D", "TH2D"}},
 		{"../../inputs/events/testdata/events.root", []string{"TList", "TTree"}},
 	} {
 		data, err := os.ReadFile(c.path)
@@ -221,5 +221,43 @@ func TestTreeCounts(t *testing.T) {
 	be.PutUint32(q[j:], 100_000_000)
 	if why := walk(q); !strings.Contains(why, "a TBranch declares 100000000 baskets") {
 		t.Errorf("100 million baskets: %q", why)
+	}
+}
+
+// TestHistCounts damages the count of the cells of the 1-D and 2-D
+// histograms of a written file (a TArray: the count, then the values;
+// ROOT's TH1D streamer, from memory), set to 500 million in records of a
+// few hundred bytes (go-hep v0.36.0 allocates 4 GB for it before
+// reading): the walk refuses it, naming the array.
+func TestHistCounts(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := walkRecords(t, data)
+	for _, class := range []string{"TH1D", "TH2D"} {
+		if len(got[class]) == 0 {
+			t.Fatalf("no %s record", class)
+		}
+		p := got[class][0].b
+		be := binary.BigEndian
+		// The cells end the record: find the count n followed by n values.
+		at := -1
+		for n := 1; 8*n+4 <= len(p); n++ {
+			if i := len(p) - 8*n - 4; int(be.Uint32(p[i:])) == n {
+				at = i
+				break
+			}
+		}
+		if at < 0 {
+			t.Fatalf("%s: no cell array at the end of the record", class)
+		}
+		q := append([]byte(nil), p...)
+		be.PutUint32(q[at:], 500_000_000)
+		w := walker{b: q, base: got[class][0].base, refs: map[int64]string{}}
+		w.body(class, len(q))
+		if !strings.Contains(w.why, "the cells of a histogram declares 500000000 items of at least 8 bytes") {
+			t.Errorf("%s with 500 million cells: %q", class, w.why)
+		}
 	}
 }
