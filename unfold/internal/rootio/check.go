@@ -70,6 +70,13 @@ func CheckFile(r io.ReaderAt, size int64) error {
 		if _, err := checkRecord(r, rec.what+" record", rec.seek, size); err != nil {
 			return err
 		}
+		// go-hep decodes the streamer information by its key's class,
+		// and one it does not know from the streamer information
+		// itself, which can hang (v0.36.0): ROOT writes a TList (ROOT
+		// file format, common practice).
+		if k, _ := readKey(r, rec.seek, size); rec.what == "streamer" && k.class != "TList" {
+			return fmt.Errorf("damaged ROOT file: the streamer record at byte %d is a %q, not a TList; the file cannot be read: write it again or restore it from a copy", rec.seek, k.class)
+		}
 	}
 	if err := checkKeyList(r, begin+nbytesname, size); err != nil {
 		return err
