@@ -12,8 +12,8 @@ import (
 	"go-hep.org/x/hep/groot/rbytes"
 	"go-hep.org/x/hep/groot/rhist"
 	"go-hep.org/x/hep/groot/riofs"
-	"go-hep.org/x/hep/groot/rtypes"
 	"go-hep.org/x/hep/groot/root"
+	"go-hep.org/x/hep/groot/rtypes"
 	"go-hep.org/x/hep/hbook"
 
 	"github.com/desmear/desmear/binning"
