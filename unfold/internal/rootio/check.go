@@ -67,7 +67,7 @@ func CheckFile(r io.ReaderAt, size int64) error {
 		if rec.bytes < 0 || rec.seek > size || rec.bytes > size-rec.seek {
 			return fmt.Errorf("damaged ROOT file: the %s record of %d bytes at byte %d lies outside the file of %d bytes", rec.what, rec.bytes, rec.seek, size)
 		}
-		if _, err := checkRecord(r, rec.what+" record", rec.seek, size); err != nil {
+		if _, err := checkRecord(r, rec.what+" record", rec.seek, size, ""); err != nil {
 			return err
 		}
 		// go-hep decodes the streamer information by its key's class,
@@ -87,10 +87,13 @@ func CheckFile(r io.ReaderAt, size int64) error {
 			return fmt.Errorf("damaged ROOT file: record at byte %d cut short", pos)
 		}
 		if nbytes := int64(int32(be.Uint32(nb[:]))); nbytes < 0 { // a free gap
+			if -nbytes > end-pos {
+				return fmt.Errorf("damaged ROOT file: a free gap of %d bytes at byte %d runs past the end of the records at byte %d", -nbytes, pos, end)
+			}
 			pos -= nbytes
 			continue
 		}
-		nbytes, err := checkRecord(r, "record", pos, end)
+		nbytes, err := checkRecord(r, "record", pos, end, "")
 		if err != nil {
 			return err
 		}
@@ -135,8 +138,11 @@ func checkKeyList(r io.ReaderAt, dir, size int64) error {
 		}
 		if nkeys := int64(int32(be.Uint32(list))); nkeys < 0 || nkeys > k.objlen/29 {
 			why = fmt.Sprintf("declares %d keys in %d bytes", nkeys, k.objlen)
-		} else {
-			why = checkKeys(r, list[4:], nkeys, size)
+		} else if why, err := checkKeys(r, list[4:], nkeys, size); err != nil || why != "" {
+			if err != nil {
+				return err
+			}
+			return fmt.Errorf("damaged ROOT file: the key list at byte %d %s", seekkeys, why)
 		}
 	}
 	if why != "" {
@@ -147,13 +153,15 @@ func checkKeyList(r io.ReaderAt, dir, size int64) error {
 
 // checkKeys checks the n keys of a key list (each a key header, the copy
 // of its record's own): the strings of each lie inside it, and its sizes
-// are those of the record it points to (go-hep reads a record with the
-// sizes of its key in the list).
-func checkKeys(r io.ReaderAt, list []byte, n, size int64) string {
+// are those of the record it points to, which is checked as a record of
+// the key's class (go-hep reads a record with the sizes and the class of
+// its key in the list). It returns what is wrong with the list, or an
+// error for a damaged record.
+func checkKeys(r io.ReaderAt, list []byte, n, size int64) (string, error) {
 	be := binary.BigEndian
 	for i := range n {
 		if len(list) < 26 {
-			return fmt.Sprintf("is cut short at key %d of %d", i+1, n)
+			return fmt.Sprintf("is cut short at key %d of %d", i+1, n), nil
 		}
 		if int32(be.Uint32(list)) < 0 { // a gap: go-hep reads its length alone
 			list = list[4:]
@@ -167,25 +175,28 @@ func checkKeys(r io.ReaderAt, list []byte, n, size int64) string {
 			why = keyStrings(&k, list[:k.keylen])
 		}
 		if why != "" {
-			return fmt.Sprintf("has a damaged key %d of %d: it %s", i+1, n, why)
+			return fmt.Sprintf("has a damaged key %d of %d: it %s", i+1, n, why), nil
 		}
 		seek := int64(int32(be.Uint32(list[18:])))
 		if int16(be.Uint16(list[4:])) > 1000 {
 			seek = int64(be.Uint64(list[18:]))
 		}
 		if seek < 0 || seek > size {
-			return fmt.Sprintf("has a key %d of %d (%s %q) pointing to byte %d, outside the file", i+1, n, k.class, k.name, seek)
+			return fmt.Sprintf("has a key %d of %d (%s %q) pointing to byte %d, outside the file", i+1, n, k.class, k.name, seek), nil
 		}
 		rec, why := readKey(r, seek, size)
 		if why == "" && (rec.nbytes != k.nbytes || rec.objlen != k.objlen || rec.keylen != k.keylen) {
 			why = fmt.Sprintf("has %d, %d and %d bytes (record, object, key), the key list %d, %d and %d", rec.nbytes, rec.objlen, rec.keylen, k.nbytes, k.objlen, k.keylen)
 		}
 		if why != "" {
-			return fmt.Sprintf("has a key %d of %d (%s %q) whose record at byte %d %s", i+1, n, k.class, k.name, seek, why)
+			return fmt.Sprintf("has a key %d of %d (%s %q) whose record at byte %d %s", i+1, n, k.class, k.name, seek, why), nil
+		}
+		if _, err := checkRecord(r, "record", seek, size, k.class); err != nil {
+			return "", err
 		}
 		list = list[k.keylen:]
 	}
-	return ""
+	return "", nil
 }
 
 // rootKey is the part of a ROOT key header that the checks use.
@@ -253,13 +264,17 @@ func keyStrings(k *rootKey, b []byte) string {
 }
 
 // checkRecord checks the record at pos, called what in messages, which
-// must end by byte end: its key header, and for a compressed payload its
-// blocks (with their checksums for a basket). It returns the record's
-// size.
-func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
+// must end by byte end: its key header, for a compressed payload its
+// blocks (with their checksums for a basket), and the objects of a
+// record of a walked class: class, or the key's own class if "". It
+// returns the record's size.
+func checkRecord(r io.ReaderAt, what string, pos, end int64, class string) (int64, error) {
 	k, bad := readKey(r, pos, end)
 	if bad != "" {
 		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, bad)
+	}
+	if class != "" {
+		k.class = class
 	}
 	walk := walkedClasses[k.class] && k.objlen <= maxWalked
 	compressed := k.objlen != k.nbytes-k.keylen

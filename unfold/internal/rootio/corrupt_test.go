@@ -272,3 +272,21 @@ func TestUnknownClasses(t *testing.T) {
 		t.Errorf("%s %q renamed %s: %v", class, name, renamed, err)
 	}
 }
+
+// TestGapPastEnd gives the first record of a written histogram file the
+// length of a free gap running past the end of the records (ROOT file
+// format, common practice: a record whose fNbytes is negative is a gap
+// of that many bytes, and the records end at fEND): the walk over the
+// records would stop there and check none of them. It is refused.
+func TestGapPastEnd(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	d := append([]byte(nil), data...)
+	be.PutUint32(d[be.Uint32(d[8:]):], uint32(0xcccccccc)) // the record at fBEGIN
+	if err := CheckFile(bytes.NewReader(d), int64(len(d))); err == nil || !strings.Contains(err.Error(), "damaged ROOT file: a free gap of 858993460 bytes at byte 100 runs past the end of the records") {
+		t.Errorf("a gap past the end: %v", err)
+	}
+}
