@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bufio"
 	"context"
 	"errors"
 	"fmt"
@@ -162,19 +161,6 @@ func (j *nominalJob) finish(ctx context.Context, g *globalOptions, done func(con
 		}
 		return analysisErr(err)
 	}
-	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
-	printWarnings(g, out.Warnings)
-	if !g.quiet {
-		for _, n := range out.Notes {
-			fmt.Fprintf(g.stderr, "note: %s\n", n)
-		}
-	}
-	w := bufio.NewWriter(g.stdout)
-	printOutcome(w, a, out)
-	printChecks(w, out.Folder, out.Document, out.Files)
-	if err := w.Flush(); err != nil {
-		return ioErr(err)
-	}
-	printBinNotes(g, out.Document, a.Truth, "uncertainty.method: toys")
-	return nil
+	printRunNotes(g, a, out)
+	return printAnalysisOutcome(g, a, out)
 }

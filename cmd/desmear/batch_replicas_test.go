@@ -5,6 +5,8 @@ import (
 	"context"
 	"os"
 	"path/filepath"
+	"regexp"
+	"strings"
 	"testing"
 )
 
@@ -65,4 +67,46 @@ func replicasThen(t *testing.T, an, single, tmp string) {
 		t.Fatalf("merge: exit %d\n%s\n%s", code, so, errs)
 	}
 	sameFolders(t, single, out)
+}
+
+// TestBatchMergePrintsUnfold: the merge of a plan whose shards unfold
+// the analysis again prints what "desmear unfold ANALYSIS.yaml" prints
+// (as "desmear help cluster" states): the same standard output byte for
+// byte, written into the same result folder, and the same notes on
+// standard error, bar the line timing the single run.
+func TestBatchMergePrintsUnfold(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs the demo")
+	}
+	ctx := context.Background()
+	an := batchDemo(t, withReplicas)
+	code, want, wantErr := runCLI(t, ctx, "unfold", an, "--force")
+	if code != 0 {
+		t.Fatalf("unfold: exit %d\n%s\n%s", code, want, wantErr)
+	}
+	timing := regexp.MustCompile(`(?m)^desmear: analysis .* done in [0-9.]+ s\n`)
+	if !timing.MatchString(wantErr) {
+		t.Fatalf("unfold: no line timing the run in\n%s", wantErr)
+	}
+	wantErr = timing.ReplaceAllString(wantErr, "")
+	// The replicas' note is on standard error, so the notes are compared.
+	if !strings.Contains(wantErr, "note: the bootstrap filled its 120 replicas") {
+		t.Fatalf("unfold: no note of the bootstrap in\n%s", wantErr)
+	}
+	w := filepath.Join(t.TempDir(), "work")
+	for _, args := range [][]string{{"batch", "plan", an, "--replicas", "120", "--shards", "1", "--workdir", w}, {"batch", "run-local", w, "-q"}} {
+		if code, so, errs := runCLI(t, ctx, args...); code != 0 {
+			t.Fatalf("%v: exit %d\n%s\n%s", args, code, so, errs)
+		}
+	}
+	code, got, gotErr := runCLI(t, ctx, "batch", "merge", w, "--force")
+	if code != 0 {
+		t.Fatalf("merge: exit %d\n%s\n%s", code, got, gotErr)
+	}
+	if got != want {
+		t.Errorf("merge prints\n%s\nunfold prints\n%s", got, want)
+	}
+	if gotErr != wantErr {
+		t.Errorf("merge says on standard error\n%s\nunfold says\n%s", gotErr, wantErr)
+	}
 }

@@ -15,15 +15,8 @@ import (
 // planToys writes the plan of the toy ensemble of a validation of the
 // analysis at path.
 func planToys(ctx context.Context, g *globalOptions, o *batchPlanOptions, path string) error {
-	switch {
-	case o.toys < 2:
-		return usagef("--toys %d: give at least 2", o.toys)
-	case o.maxK < 1:
-		return usagef("--max-iterations %d: give at least 1", o.maxK)
-	case !(o.tilt >= 0 && o.tilt < 100):
-		return usagef("--tilt %v: give a size in [0, 100) percent", o.tilt)
-	case !(o.threshold > 0):
-		return usagef("--bias-threshold %v: give a number > 0", o.threshold)
+	if err := o.checkToys(); err != nil {
+		return err
 	}
 	abs, out, err := planFiles(path, o.out, filepath.Join(o.workdir, "validation"))
 	if err != nil {
