@@ -132,3 +132,15 @@ func BenchmarkLocate3DBaseline(b *testing.B) {
 		b.Fatal("no point located")
 	}
 }
+
+// BenchmarkEachLabel formats the labels of every bin of the 100x100x50
+// grid with flows (530,400 bins) per iteration, as a fingerprint of the
+// binning does.
+func BenchmarkEachLabel(b *testing.B) {
+	s := grid3D(b)
+	n := 0
+	for b.Loop() {
+		s.EachLabel(func(g int, label []byte) { n += len(label) })
+	}
+	b.ReportMetric(float64(s.Len())*float64(b.N)/b.Elapsed().Seconds(), "bins/s")
+}

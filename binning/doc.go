@@ -26,7 +26,9 @@
 // Outside. A point belongs to the first region, in order, whose in-range
 // bins contain it; if none does, to the first region with a switched-on
 // flow bin that contains it; otherwise it is Outside. Locating costs
-// O(log n) per axis and does not allocate.
+// O(log n) per axis, a few comparisons on an axis of equal-width bins
+// (located by arithmetic, then checked against the edges), and does not
+// allocate.
 //
 // # The global index (flattening order)
 //

@@ -264,6 +264,9 @@ func (r *Region) find(x []float64, pos []int) int {
 // findFlow returns the position in the flow list of the point, known to
 // be outside the in-range bins, or -1 if its flow bin is switched off.
 func (r *Region) findFlow(x []float64, pos []int) int {
+	if r.rect {
+		return r.findFlowRect(x, pos)
+	}
 	e, qe, sp := 0, 0, 0
 	for k := range r.lv {
 		l := &r.lv[k]
@@ -293,6 +296,30 @@ func (r *Region) findFlow(x []float64, pos []int) int {
 		sp = s
 	}
 	return r.flowPos(e)
+}
+
+// findFlowRect is findFlow for a region without edges-by-bin axes: the
+// position in the flow list of extended cell e is e less the number of
+// in-range cells before it in row-major order, counted axis by axis
+// while the axes before are in range.
+func (r *Region) findFlowRect(x []float64, pos []int) int {
+	e, before, inRange := 0, 0, true
+	for k := range r.lv {
+		l := &r.lv[k]
+		i := l.find.find(x[pos[k]])
+		s, ok := flowState(i, l.n, r.axes[k])
+		if !ok {
+			return -1
+		}
+		e = e*l.m + s
+		// in-range cells whose first k axes precede these states
+		before *= l.n
+		if inRange {
+			before += min(max(s-l.u, 0), l.n)
+			inRange = s-l.u >= 0 && s-l.u < l.n
+		}
+	}
+	return e - before
 }
 
 // flowState converts the result i of search on an axis slice with n bins

@@ -267,21 +267,108 @@ func (s *Scheme) Global(r int, idx ...int) int {
 func (s *Scheme) Label(g int) string { return string(s.appendLabel(nil, g, nil)) }
 
 // EachLabel calls fn with every global bin g in order and its Label,
-// as bytes valid only until fn returns. It formats each distinct edge
-// value once, so a pass over the labels of all bins costs far less than
-// calling Label for each.
+// as bytes valid only until fn returns. It formats the part of each
+// axis state once (one bin of one axis, in one slice for an
+// edges-by-bin axis), so a pass over the labels of all bins costs far
+// less than calling Label for each.
 func (s *Scheme) EachLabel(fn func(g int, label []byte)) {
 	memo := map[uint64]string{}
+	// parts[r][k]: the label parts of axis k of region r, by state
+	// (see labelParts)
+	parts := make([][][][]byte, len(s.regions))
+	for r, reg := range s.regions {
+		parts[r] = make([][][]byte, len(reg.axes))
+		for k := range reg.axes {
+			parts[r][k] = reg.labelParts(k, memo)
+		}
+	}
 	var buf []byte
-	for g := 0; g < s.n; g++ {
-		buf = s.appendLabel(buf[:0], g, memo)
+	label := func(g, r int, st *[MaxAxes]int) {
+		reg := s.regions[r]
+		buf = append(buf[:0], reg.name...)
+		for k, l := range reg.lv {
+			buf = append(buf, parts[r][k][l.partIndex(k, st)]...)
+		}
 		fn(g, buf)
+	}
+	for g := 0; g < s.n; {
+		var st [MaxAxes]int
+		r, _ := s.states(g, &st)
+		if reg := s.regions[r]; g < s.nIn && reg.rect {
+			// the in-range bins of a product of axes: row-major, the
+			// last axis fastest
+			for _, end := s.Span(r); g < end; g++ {
+				label(g, r, &st)
+				for k := len(reg.lv) - 1; k >= 0; k-- {
+					if st[k]++; st[k] < reg.lv[k].n {
+						break
+					}
+					st[k] = 0
+				}
+			}
+			continue
+		}
+		label(g, r, &st)
+		g++
 	}
 }
 
-// appendLabel appends the label of bin g to dst; memo, when not nil,
-// keeps the formatted edges by their bits (so that -0 and 0 stay apart).
+// labelParts returns the label parts of every state of axis k, indexed
+// by partIndex.
+func (r *Region) labelParts(k int, memo map[uint64]string) [][]byte {
+	l := &r.lv[k]
+	var st [MaxAxes]int
+	state := func(i int) []byte {
+		st[k] = i
+		return r.appendAxisLabel(nil, k, &st, memo)
+	}
+	if !l.nested {
+		p := make([][]byte, l.n+2)
+		for i := range p {
+			p[i] = state(i - 2)
+		}
+		return p
+	}
+	// outer in range: the states of its slice; then AnyBin
+	var p [][]byte
+	for o := range r.lv[k-1].n {
+		st[k-1] = o
+		for i := range r.axes[k].Bins(o) + 2 {
+			p = append(p, state(i-2))
+		}
+	}
+	return append(p, state(AnyBin))
+}
+
+// partIndex returns the index of axis k's state in st among the parts of
+// labelParts.
+func (l *level) partIndex(k int, st *[MaxAxes]int) int {
+	if !l.nested {
+		return st[k] + 2
+	}
+	if st[k] == AnyBin {
+		return l.total() + 2*(len(l.cum)-1)
+	}
+	o := st[k-1]
+	return l.cum[o] + 2*o + st[k] + 2
+}
+
+// appendLabel appends the label of bin g to dst.
 func (s *Scheme) appendLabel(dst []byte, g int, memo map[uint64]string) []byte {
+	var st [MaxAxes]int
+	r, _ := s.states(g, &st)
+	reg := s.regions[r]
+	dst = append(dst, reg.name...)
+	for k := range reg.axes {
+		dst = reg.appendAxisLabel(dst, k, &st, memo)
+	}
+	return dst
+}
+
+// appendAxisLabel appends the part of a label for axis k in states st;
+// memo, when not nil, keeps the formatted edges by their bits (so that -0
+// and 0 stay apart).
+func (r *Region) appendAxisLabel(dst []byte, k int, st *[MaxAxes]int, memo map[uint64]string) []byte {
 	edge := func(v float64) {
 		if memo == nil {
 			dst = append(dst, formatEdge(v)...)
@@ -294,31 +381,25 @@ func (s *Scheme) appendLabel(dst []byte, g int, memo map[uint64]string) []byte {
 		}
 		dst = append(dst, str...)
 	}
-	var st [MaxAxes]int
-	r, _ := s.states(g, &st)
-	reg := s.regions[r]
-	dst = append(dst, reg.name...)
-	for k, a := range reg.axes {
-		dst = append(dst, ' ')
-		dst = append(dst, a.name...)
-		if st[k] == AnyBin {
-			dst = append(dst, "(any)"...)
-			continue
-		}
-		lo, hi := reg.binEdges(k, &st)
-		if math.IsInf(lo, -1) {
-			dst = append(dst, "(-inf,"...)
-		} else {
-			dst = append(dst, '[')
-			edge(lo)
-			dst = append(dst, ',')
-		}
-		if math.IsInf(hi, 1) {
-			dst = append(dst, "inf)"...)
-		} else {
-			edge(hi)
-			dst = append(dst, ')')
-		}
+	a := r.axes[k]
+	dst = append(dst, ' ')
+	dst = append(dst, a.name...)
+	if st[k] == AnyBin {
+		return append(dst, "(any)"...)
+	}
+	lo, hi := r.binEdges(k, st)
+	if math.IsInf(lo, -1) {
+		dst = append(dst, "(-inf,"...)
+	} else {
+		dst = append(dst, '[')
+		edge(lo)
+		dst = append(dst, ',')
+	}
+	if math.IsInf(hi, 1) {
+		dst = append(dst, "inf)"...)
+	} else {
+		edge(hi)
+		dst = append(dst, ')')
 	}
 	return dst
 }

@@ -387,6 +387,71 @@ func BenchmarkSweepBlock(b *testing.B) {
 	b.ReportMetric(mb/(bytes/bw), "x-floor-block8")
 }
 
+// BenchmarkSweepBlockAssembly times the 8-vector SweepBlock on the fine
+// grid through its assembly loop and through the Go loop (useAVX false),
+// in turn in the same loop, and reports the medians over the rounds and
+// the median of each round's ratio assembly / Go, of the wall times and
+// of the process's CPU times (steadier when other processes take the
+// cores).
+func BenchmarkSweepBlockAssembly(b *testing.B) {
+	if !useAVX {
+		b.Skip("no assembly loop in this build")
+	}
+	defer func(old bool) { useAVX = old }(useAVX)
+	m := fineMatrix(b)
+	const k = 8
+	x := make([]float64, m.cols)
+	for j := range x {
+		x[j] = 0.5
+	}
+	y, next := make([]float64, k*m.rows), make([]float64, k*m.rows)
+	for i := range y {
+		y[i] = 1
+	}
+	update := func(j int, g, out []float64) {
+		for s := range out {
+			out[s] = g[s] * x[j]
+		}
+	}
+	m.SweepBlock(next, y, k, update)
+	variants := []struct {
+		name string
+		asm  bool
+	}{{"asm", true}, {"go", false}}
+	t := make([][]float64, len(variants))
+	r := make([][]float64, len(variants))
+	rc := make([][]float64, len(variants)) // the same with CPU times
+	b.ResetTimer()
+	for b.Loop() {
+		var d, dc [2]float64
+		for v, c := range variants {
+			useAVX = c.asm
+			t0, c0 := time.Now(), cpuSeconds()
+			m.SweepBlock(next, y, k, update)
+			d[v], dc[v] = time.Since(t0).Seconds(), cpuSeconds()-c0
+			t[v] = append(t[v], d[v])
+		}
+		for v := range variants {
+			r[v] = append(r[v], d[v]/d[1])
+			rc[v] = append(rc[v], dc[v]/dc[1])
+		}
+	}
+	b.StopTimer()
+	useAVX = true
+	for v, c := range variants {
+		slices.Sort(t[v])
+		slices.Sort(r[v])
+		slices.Sort(rc[v])
+		b.ReportMetric(t[v][len(t[v])/2]*1e3, "ms/"+c.name)
+		if v == 0 {
+			b.ReportMetric(r[v][len(r[v])/2], c.name+"/go")
+			if cpuSeconds() > 0 {
+				b.ReportMetric(rc[v][len(rc[v])/2], c.name+"/go-cpu")
+			}
+		}
+	}
+}
+
 // BenchmarkSweepPartition: the fused EM sweep of BenchmarkSweep over the
 // fine grid with the fixed partition aimed at targetBlocks blocks and
 // with partitions of 4x and 16x as many (smaller) blocks, in turn in the

@@ -43,6 +43,14 @@
 // partial sums are reduced in a fixed order, so every kernel returns the
 // same bits whatever GOMAXPROCS is.
 //
+// SweepBlock with 8 vectors runs its gathers and scatters in 256-bit AVX
+// assembly on amd64 (sweep8_amd64.s) where the processor and the
+// operating system support AVX: every vector is one lane, with the
+// multiplies and adds of the Go loop in the same order (no fused
+// multiply-add), so the bits are those of the Go loop, which is kept as
+// the reference and the fallback (other architectures, no AVX, or the
+// build tag purego), as gonum keeps Go fallbacks of its assembly kernels.
+//
 // Partitions of banded matrices (the usual response: migrations stay near
 // the diagonal in every axis) scatter in two phases straight into the
 // destination; other matrices use per-block buffers and a reduction pass.

@@ -605,11 +605,13 @@ func gatherBlock(g []float64, ri []int, v, y []float64) {
 	}
 }
 
-// sweep8 is the SweepBlock loop of block columns c0..c1-1 for 8
+// sweep8Go is the SweepBlock loop of block columns c0..c1-1 for 8
 // vectors, with fixed-size rows: the same sums in the same order as
 // gatherBlock and the generic scatter (per vector, the four chains
-// k mod 4 of gather, the tail into the first), fewer bounds checks.
-func (ws *workspace) sweep8(buf []float64, lo int, colPtr []int, c0, c1 int, g, x *[8]float64) {
+// k mod 4 of gather, the tail into the first), fewer bounds checks. It
+// is the reference of the assembly loop of sweep8 (amd64 with AVX) and
+// the loop everywhere else.
+func (ws *workspace) sweep8Go(buf []float64, lo int, colPtr []int, c0, c1 int, g, x *[8]float64) {
 	rowIdx, val, y, update := ws.m.rowIdx, ws.m.val, ws.x, ws.updateBlock
 	for jj := 0; jj < c1-c0; jj++ {
 		ri := rowIdx[colPtr[jj]:colPtr[jj+1]]

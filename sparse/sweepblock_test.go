@@ -10,9 +10,22 @@ import (
 // SweepBlock is k Sweeps sharing one pass over the matrix: every vector
 // must get the bits of its own Sweep (which TestKernelsMatchDense checks
 // against gonum's dense product), on every partition kind (one block,
-// buffered blocks, two-phase blocks) and any number of cores.
+// buffered blocks, two-phase blocks) and any number of cores, through the
+// Go loops and, where the build has it, the assembly loop for 8 vectors.
 func TestSweepBlockMatchesSweep(t *testing.T) {
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	defer func(old bool) { useAVX = old }(useAVX)
+	paths := []bool{false}
+	if useAVX {
+		paths = append(paths, true)
+	}
+	for _, asm := range paths {
+		useAVX = asm
+		sweepBlockMatchesSweep(t)
+	}
+}
+
+func sweepBlockMatchesSweep(t *testing.T) {
 	rng := rand.New(rand.NewPCG(21, 22))
 	for mi, m := range kernelMatrices(t) {
 		rows, cols := m.Dims()
@@ -49,12 +62,12 @@ func TestSweepBlockMatchesSweep(t *testing.T) {
 				for s := 0; s < k; s++ {
 					for j := 0; j < cols; j++ {
 						if math.Float64bits(gotG[j*k+s]) != math.Float64bits(wantG[s][j]) {
-							t.Fatalf("matrix %d, k %d, GOMAXPROCS %d: gather of vector %d column %d is %v, Sweep gives %v", mi, k, procs, s, j, gotG[j*k+s], wantG[s][j])
+							t.Fatalf("assembly %v, matrix %d, k %d, GOMAXPROCS %d: gather of vector %d column %d is %v, Sweep gives %v", useAVX, mi, k, procs, s, j, gotG[j*k+s], wantG[s][j])
 						}
 					}
 					for i := 0; i < rows; i++ {
 						if math.Float64bits(next[i*k+s]) != math.Float64bits(want[s][i]) {
-							t.Fatalf("matrix %d, k %d, GOMAXPROCS %d: vector %d row %d is %v, Sweep gives %v", mi, k, procs, s, i, next[i*k+s], want[s][i])
+							t.Fatalf("assembly %v, matrix %d, k %d, GOMAXPROCS %d: vector %d row %d is %v, Sweep gives %v", useAVX, mi, k, procs, s, i, next[i*k+s], want[s][i])
 						}
 					}
 				}

@@ -49,7 +49,9 @@
 //     blocks of ProbeBlock; Var μ_j ≈ mean_s (J z_s)_j², relative
 //     precision of a variance at most sqrt(2/S)) or DiagonalToys (Poisson
 //     pseudo-data on which the method re-runs with the same
-//     regularisation, Fit.NewToyRunner; precision sqrt(2/(T−1))).
+//     regularisation, Fit.NewToyRunner, or in blocks of ToyBlock toys
+//     when the fit is a ToyBlocker and a block fits within half the
+//     memory limit; precision sqrt(2/(T−1))).
 //     DiagonalAuto picks exact when the Jacobian fits under the memory
 //     limit and probes otherwise.
 //

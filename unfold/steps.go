@@ -51,3 +51,34 @@ func steps(fit Fit) [][]float64 {
 	}
 	return nil
 }
+
+// ToyBlock is the number of toys a ToyBlockRunner unfolds together, in
+// one pass over the response per iteration for all of them.
+const ToyBlock = 8
+
+// ToyBlocker is implemented by a Fit that can unfold its toys in blocks
+// of up to ToyBlock. The toy ensembles use it instead of NewToyRunner
+// when a block's memory fits within half the memory limit (see
+// Settings.MemoryLimit); every toy gets exactly
+// the bits its ToyRunner would give it alone, so the results do not
+// depend on the blocks.
+type ToyBlocker interface {
+	// NewToyBlockRunner returns a runner of blocks of toys, or nil when
+	// the fit runs its toys one by one (with NewToyRunner). The runner is
+	// used by one goroutine.
+	NewToyBlockRunner() ToyBlockRunner
+}
+
+// ToyBlockRunner re-runs a method on blocks of pseudo-data sets.
+type ToyBlockRunner interface {
+	// RunBlock returns the estimates for the data n[s] of the
+	// len(n) ≤ ToyBlock toys of a block and, when the background
+	// variance is propagated, their backgrounds b[s] (b nil otherwise),
+	// the same bits as ToyRunner.Run on each alone. With each not nil and
+	// a fit keeping its steps (Stepper), it also reports the estimate of
+	// every step of every toy as StepToyRunner.RunSteps does: each(s, k,
+	// est) for k = 0, 1, ... and, within each k, s = 0, 1, ..., from the
+	// calling goroutine. The slices are the runner's own, valid until the
+	// next call (est during the call only).
+	RunBlock(ctx context.Context, n, b [][]float64, each func(s, k int, est []float64)) ([][]float64, error)
+}

@@ -106,8 +106,15 @@ func gammaData(m *Prepared, prior SamplingPrior, seed uint64, t int, n, b []floa
 // update), so the bits do not depend on the scheduling. At most
 // maxWorkers toys run at once.
 //
-// draw fills the pseudo-data of toy t (toyData or gammaData).
-func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64), maxWorkers int, ds []*RowMatrix, dens []*Ensemble) ([]float64, [][]float64, error) {
+// draw fills the pseudo-data of toy t (toyData or gammaData). With
+// blocks, a fit that is a ToyBlocker unfolds its toys in blocks of
+// ToyBlock (toyBlockVariances), with the same bits.
+func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func(t int, n, b []float64), maxWorkers int, blocks bool, ds []*RowMatrix, dens []*Ensemble) ([]float64, [][]float64, error) {
+	if tb, ok := fit.(ToyBlocker); ok && blocks {
+		if r := tb.NewToyBlockRunner(); r != nil {
+			return toyBlockVariances(ctx, m, r, len(steps(fit)), toys, draw, ds, dens)
+		}
+	}
 	workers := max(1, min(runtime.GOMAXPROCS(0), toys, maxWorkers))
 	type slot struct {
 		run   ToyRunner
@@ -171,6 +178,79 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func
 			for k, e := range per {
 				e.Add(sl.steps[k])
 			}
+		}
+	}
+	var sv [][]float64
+	for _, e := range per {
+		sv = append(sv, e.Variances(nil))
+	}
+	return all.Variances(nil), sv, nil
+}
+
+// toyBlockBytes is the memory estimate of a block of toys run together
+// (ToyBlockRunner): per toy of the block its pseudo-data (and its
+// background when the background variance is propagated), the block's
+// two interleaved reco vectors of the iteration and one more for the
+// scatter buffers of the response's sweep, and three truth vectors; and
+// the ensemble of the estimates (four truth vectors).
+func toyBlockBytes(m *Prepared) int64 {
+	reco := int64(4)
+	if m.varB != nil {
+		reco++
+	}
+	return 8 * (ToyBlock*(reco*int64(m.nr)+3*int64(m.nt)) + 4*int64(m.nt))
+}
+
+// toyBlockVariances is toyVariances with the toys in blocks of ToyBlock
+// run by r: the block's pseudo-data are drawn concurrently (each toy from
+// its own stream), then r unfolds them together; the estimates are added
+// in toy order, those of every step (when ns > 0) as r reports them,
+// which is in toy order within each step.
+func toyBlockVariances(ctx context.Context, m *Prepared, r ToyBlockRunner, ns, toys int, draw func(t int, n, b []float64), ds []*RowMatrix, dens []*Ensemble) ([]float64, [][]float64, error) {
+	n := make([][]float64, min(ToyBlock, toys))
+	var b [][]float64
+	for s := range n {
+		n[s] = make([]float64, m.nr)
+		if m.varB != nil {
+			b = append(b, make([]float64, m.nr))
+		}
+	}
+	all := NewEnsemble(m.nt, false)
+	var per []*Ensemble
+	var each func(s, k int, est []float64)
+	if ns > 0 {
+		for range ns {
+			per = append(per, NewEnsemble(m.nt, false))
+		}
+		each = func(_, k int, est []float64) {
+			if k >= 0 && k < ns {
+				per[k].Add(est)
+			}
+		}
+	}
+	for t0 := 0; t0 < toys; t0 += ToyBlock {
+		if err := ctx.Err(); err != nil {
+			return nil, nil, err
+		}
+		k := min(ToyBlock, toys-t0)
+		bk := b
+		if b != nil {
+			bk = b[:k]
+		}
+		parallel.For(k, runtime.GOMAXPROCS(0), func(s int) {
+			var bs []float64
+			if b != nil {
+				bs = b[s]
+			}
+			draw(t0+s, n[s], bs)
+		})
+		est, err := r.RunBlock(ctx, n[:k], bk, each)
+		if err != nil {
+			return nil, nil, err
+		}
+		for _, e := range est {
+			all.Add(e)
+			addDerived(dens, ds, e)
 		}
 	}
 	var sv [][]float64

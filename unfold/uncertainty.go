@@ -20,6 +20,9 @@ type plan struct {
 	// toyWorkers bounds the toys run at once (their memory within half
 	// the limit).
 	toyWorkers int
+	// toyBlocks reports that a block of toys (toyBlockBytes) fits within
+	// half the limit.
+	toyBlocks bool
 }
 
 // FullCovarianceBytes returns the memory estimate of the full covariance
@@ -100,6 +103,7 @@ func planUncertainty(m *Prepared, rs *Settings) (*plan, error) {
 			}
 		}
 		pl.toyWorkers = int(min(int64(runtime.GOMAXPROCS(0)), (rs.MemoryLimit/2-fixed)/per))
+		pl.toyBlocks = toyBlockBytes(m)+fixed <= rs.MemoryLimit/2
 	}
 	return pl, nil
 }
@@ -284,7 +288,7 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 		}
 		res.Streams = append(res.Streams, st)
 		dens := derivedEnsembles(ds)
-		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers, ds, dens)
+		v, sv, err := toyVariances(ctx, m, fit, pl.rs.Toys, draw, pl.toyWorkers, pl.toyBlocks, ds, dens)
 		if err != nil {
 			return err
 		}

@@ -28,6 +28,15 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 	if err != nil {
 		return err
 	}
+	return printAnalysisOutcome(g, a, out)
+}
+
+// printAnalysisOutcome prints what "desmear unfold ANALYSIS.yaml" prints
+// once the result folder of the analysis a is written: where the result
+// is, its table and its checks on stdout, then the notes on the truth
+// bins on stderr. The merge of a plan whose shards unfold the analysis
+// again prints the same.
+func printAnalysisOutcome(g *globalOptions, a *analysis.Analysis, out *analysis.Outcome) error {
 	w := bufio.NewWriter(g.stdout)
 	printOutcome(w, a, out)
 	printChecks(w, out.Folder, out.Document, out.Files)
@@ -36,6 +45,20 @@ func runAnalysisUnfold(ctx context.Context, g *globalOptions, path string, repla
 	}
 	printBinNotes(g, out.Document, a.Truth, "uncertainty.method: toys")
 	return nil
+}
+
+// printRunNotes prints on stderr what the run of the analysis a reports
+// of itself in out: the remedies applied, the warnings on the inputs and
+// (unless quiet) the notes, one line each.
+func printRunNotes(g *globalOptions, a *analysis.Analysis, out *analysis.Outcome) {
+	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
+	printWarnings(g, out.Warnings)
+	if g.quiet {
+		return
+	}
+	for _, n := range out.Notes {
+		fmt.Fprintf(g.stderr, "note: %s\n", n)
+	}
 }
 
 // runAnalysis loads the analysis file at path and runs it (without the
@@ -74,12 +97,8 @@ func runAnalysisWith(ctx context.Context, g *globalOptions, path string, replace
 	if err != nil {
 		return nil, nil, analysisErr(err)
 	}
-	printRemedies(g, out.Remedies, a.Reco.Label, a.Truth.Label)
-	printWarnings(g, out.Warnings)
+	printRunNotes(g, a, out)
 	if !g.quiet {
-		for _, n := range out.Notes {
-			fmt.Fprintf(g.stderr, "note: %s\n", n)
-		}
 		shown := path
 		if opt.Staged != "" {
 			shown = filepath.Join(opt.Final, filepath.Base(path))

@@ -122,125 +122,146 @@ writes in one run.`,
 }
 
 func runBatchPlan(cmd *cobra.Command, g *globalOptions, o *batchPlanOptions, path string) error {
-	kinds := 0
-	for _, set := range []bool{cmd.Flags().Changed("toys"), cmd.Flags().Changed("replicas"), o.variations, o.response} {
-		if set {
-			kinds++
+	chosen := map[batch.Kind]bool{
+		batch.Toys: cmd.Flags().Changed("toys"), batch.Replicas: cmd.Flags().Changed("replicas"),
+		batch.Variations: o.variations, batch.Response: o.response,
+	}
+	var kinds []batch.Kind
+	for _, k := range batch.Kinds() {
+		if chosen[k] {
+			kinds = append(kinds, k)
 		}
 	}
 	switch {
-	case kinds != 1:
+	case len(kinds) != 1:
 		return usagef("batch plan needs one of --toys N, --response, --replicas N or --variations")
 	case o.workdir == "":
 		return usagef("batch plan needs --workdir DIR")
 	case o.shards < 1:
 		return usagef("--shards %d: give at least 1", o.shards)
-	case o.response || o.variations || cmd.Flags().Changed("replicas"):
-		what := "--response"
-		switch {
-		case o.variations:
-			what = "--variations"
-		case cmd.Flags().Changed("replicas"):
-			what = "--replicas"
-		}
+	}
+	k := kindOf(kinds[0])
+	if kinds[0] != batch.Toys {
 		for _, name := range []string{"toy-truth", "max-iterations", "criterion", "bias-threshold", "tilt", "seed"} {
 			if cmd.Flags().Changed(name) {
-				return usagef("--%s is an option of a toy ensemble (--toys N), not of %s", name, what)
+				return usagef("--%s is an option of a toy ensemble (--toys N), not of %s", name, k.flag)
 			}
 		}
-		switch {
-		case o.response:
-			return planResponse(g, o, path)
-		case o.variations:
-			return planVariations(cmd.Context(), g, o, path)
-		case o.replicas < 2:
-			return usagef("--replicas %d: give at least 2", o.replicas)
-		}
-		return planReplicas(cmd.Context(), g, o, path)
-	case o.toys < 2:
-		return usagef("--toys %d: give at least 2", o.toys)
-	case o.maxK < 1:
-		return usagef("--max-iterations %d: give at least 1", o.maxK)
-	case !(o.tilt >= 0 && o.tilt < 100):
-		return usagef("--tilt %v: give a size in [0, 100) percent", o.tilt)
-	case !(o.threshold > 0):
-		return usagef("--bias-threshold %v: give a number > 0", o.threshold)
 	}
+	return k.plan(cmd.Context(), g, o, path)
+}
+
+// planKind is what a kind of plan states of its own; the batch commands
+// do the rest: the plan's checks and line, running shards (one, or all
+// J at a time), the status and the merge's checks of its folder.
+type planKind struct {
+	// flag is the kind's option of "desmear batch plan".
+	flag string
+	// plan writes the plan of the analysis file at path (see writePlan).
+	plan func(ctx context.Context, g *globalOptions, o *batchPlanOptions, path string) error
+	// load checks the inputs of the plan p and loads what its shards
+	// and its merge need.
+	load func(ctx context.Context, g *globalOptions, p *batch.Plan) (shardJob, error)
+	// describe says what the plan holds (with its units as planned,
+	// when units is set).
+	describe func(p *batch.Plan, units bool) string
+	// shard names a shard in the notes of a run ("shard 3").
+	shard string
+	// members names the members of the ensemble in the counts of the
+	// status, and in the notes of a run; none for a response.
+	members string
+	// folder names the folder the merge writes, check checks that it
+	// may write it, and marker is the file that makes it a merged one.
+	folder string
+	check  func(dir string, force bool) error
+	marker string
+}
+
+// kindOf returns what the kind k states of its own.
+func kindOf(k batch.Kind) *planKind {
+	// the variations and the replicas merge into a result folder
+	toResult := func(k *planKind) *planKind {
+		k.shard, k.folder, k.check, k.marker = "shard", "result folder", result.Check, result.JSONFile
+		return k
+	}
+	switch k {
+	case batch.Response:
+		return &planKind{flag: "--response", plan: planResponse, load: loadResponseJob,
+			describe: func(p *batch.Plan, _ bool) string { return fmt.Sprintf("the response in %d parts", len(p.Shards)) },
+			shard:    "response part", folder: "response bundle", check: response.CheckBundle, marker: response.BundleFiles()[0]}
+	case batch.Variations:
+		return toResult(&planKind{flag: "--variations", plan: planVariations, load: loadVariationJob, members: "variations",
+			describe: func(p *batch.Plan, _ bool) string {
+				return fmt.Sprintf("%d systematic variations in %d shards", p.Members(), len(p.Shards))
+			}})
+	case batch.Replicas:
+		return toResult(&planKind{flag: "--replicas", plan: planReplicas, load: loadReplicaJob, members: "replicas",
+			describe: func(p *batch.Plan, units bool) string {
+				if units {
+					return fmt.Sprintf("%d bootstrap replicas in %d units of up to %d, %d shards", p.Members(), len(p.Replicas), analysis.ReplicaUnit, len(p.Shards))
+				}
+				return fmt.Sprintf("%d bootstrap replicas in %d shards", p.Members(), len(p.Shards))
+			}})
+	}
+	return &planKind{flag: "--toys", plan: planToys, load: loadToyJob, members: "toys",
+		describe: func(p *batch.Plan, units bool) string {
+			if units {
+				return fmt.Sprintf("%d toys in %d units of up to %d, %d shards", p.Members(), len(p.Units), validate.BlockToys, len(p.Shards))
+			}
+			return fmt.Sprintf("%s: %d toys in %d shards", p.Kind, p.Members(), len(p.Shards))
+		},
+		shard: "shard", folder: "validation folder", check: validate.CheckFolder, marker: validate.JSONFile}
+}
+
+// planFiles returns the absolute paths of the analysis file at path and
+// of the folder the merge writes: out, or def when out is empty.
+func planFiles(path, out, def string) (string, string, error) {
 	abs, err := filepath.Abs(path)
 	if err != nil {
-		return ioErr(err)
+		return "", "", ioErr(err)
 	}
-	out := o.out
 	if out == "" {
-		out = filepath.Join(o.workdir, "validation")
+		out = def
 	}
 	if out, err = filepath.Abs(out); err != nil {
-		return ioErr(err)
+		return "", "", ioErr(err)
 	}
-	ctx := cmd.Context()
-	v, err := loadValidationAnalysis(ctx, g, abs)
+	return abs, out, nil
+}
+
+// fileInput returns the analysis file at the absolute path abs with its
+// SHA-256.
+func fileInput(abs string) (batch.Input, error) {
+	sum, err := batch.FileSum(abs)
 	if err != nil {
-		return err
+		return batch.Input{}, inputErr(err)
 	}
-	if _, err := v.options(&o.validateOptions); err != nil {
-		return err
-	}
-	asum, err := batch.FileSum(abs)
-	if err != nil {
-		return inputErr(err)
-	}
-	psum, err := batch.ProblemSum(v.prob)
-	if err != nil {
-		return inputErr(err)
-	}
-	ts := batch.ToySettings{Toys: o.toys, MaxIterations: o.maxK, Seed: o.seed, Truth: o.toyTruth, Criterion: o.criterion, BiasThreshold: o.threshold, TiltPercent: o.tilt}
-	p, err := batch.ToyPlan(batch.Input{Path: abs, SHA256: asum}, psum, ts, o.shards, out)
+	return batch.Input{Path: abs, SHA256: sum}, nil
+}
+
+// writePlan writes the plan p made with err into the work folder and
+// says what it holds.
+func writePlan(g *globalOptions, o *batchPlanOptions, p *batch.Plan, err error) error {
 	if err != nil {
 		return usageErr(fmt.Errorf("--shards %d: %w", o.shards, err))
 	}
 	if err := p.Write(o.workdir); err != nil {
 		return ioErr(err)
 	}
-	fmt.Fprintf(g.stdout, "plan: %s (%d toys in %d units of up to %d, %d shards); the merge writes %s\n",
-		filepath.Join(o.workdir, batch.PlanFile), o.toys, len(p.Units), validate.BlockToys, len(p.Shards), out)
+	fmt.Fprintf(g.stdout, "plan: %s (%s); the merge writes %s\n", filepath.Join(o.workdir, batch.PlanFile), kindOf(p.Kind).describe(p, true), p.Out)
 	return nil
 }
 
-// planResponse writes the plan of a response built in parts.
-func planResponse(g *globalOptions, o *batchPlanOptions, path string) error {
-	abs, err := filepath.Abs(path)
-	if err != nil {
-		return ioErr(err)
-	}
-	if _, err := analysis.Load(abs); err != nil {
-		return analysisErr(err)
-	}
-	out := o.out
-	if out == "" {
-		out = filepath.Join(o.workdir, "response")
-	}
-	if out, err = filepath.Abs(out); err != nil {
-		return ioErr(err)
-	}
-	asum, err := batch.FileSum(abs)
-	if err != nil {
-		return inputErr(err)
-	}
-	p, err := batch.ResponsePlan(batch.Input{Path: abs, SHA256: asum}, o.shards, out)
-	if err != nil {
-		return usageErr(fmt.Errorf("--shards %d: %w", o.shards, err))
-	}
-	if err := p.Write(o.workdir); err != nil {
-		return ioErr(err)
-	}
-	fmt.Fprintf(g.stdout, "plan: %s (the response in %d parts); the merge writes %s\n", filepath.Join(o.workdir, batch.PlanFile), len(p.Shards), out)
-	return nil
-}
-
-// shardJob is a plan ready to run its shards.
+// shardJob is a plan with what its shards and its merge need loaded.
 type shardJob interface {
-	shards() int
-	runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error
+	plan() *batch.Plan
+	// run runs shard s, which is not done, and says what it computed
+	// (for the note "shard 3 (WHAT) done").
+	run(ctx context.Context, g *globalOptions, dir string, s int) (string, error)
+	// merge merges the shards of the work folder dir into the plan's
+	// folder, which it may write (force: replace an earlier one), and
+	// prints what it wrote.
+	merge(ctx context.Context, g *globalOptions, dir string, force bool) error
 }
 
 // readPlan reads the plan of dir.
@@ -261,42 +282,36 @@ func loadJob(ctx context.Context, g *globalOptions, dir string) (shardJob, error
 	if err != nil {
 		return nil, err
 	}
-	switch p.Kind {
-	case batch.Response:
-		return loadResponseJob(p)
-	case batch.Variations:
-		return loadVariationJob(p)
-	case batch.Replicas:
-		return loadReplicaJob(p)
-	}
-	return loadToyJob(ctx, g, p)
+	return kindOf(p.Kind).load(ctx, g, p)
 }
 
-// responseJob is a response plan with its analysis loaded.
-type responseJob struct {
-	plan *batch.Plan
-	a    *analysis.Analysis
-}
-
-func loadResponseJob(p *batch.Plan) (*responseJob, error) {
-	asum, err := batch.FileSum(p.Analysis.Path)
+// checkPlanFile reports whether the analysis file of the plan p is
+// still the plan's. The assembled problem is checked once it is
+// assembled (checkProblem).
+func checkPlanFile(p *batch.Plan) error {
+	sum, err := batch.FileSum(p.Analysis.Path)
 	if err != nil {
-		return nil, inputErr(fmt.Errorf("the plan's analysis file: %w", err))
+		return inputErr(fmt.Errorf("the plan's analysis file: %w", err))
 	}
-	if err := p.CheckInputs(asum, ""); err != nil {
-		return nil, inputErr(err)
+	if err := p.CheckAnalysis(sum); err != nil {
+		return inputErr(err)
 	}
-	a, err := analysis.Load(p.Analysis.Path)
-	if err != nil {
-		return nil, analysisErr(err)
-	}
-	return &responseJob{plan: p, a: a}, nil
+	return nil
 }
 
-func (j *responseJob) shards() int { return len(j.plan.Shards) }
+// checkProblem reports whether the problem assembled from the plan's
+// analysis file, of SHA-256 psum (batch.ProblemSum), is the plan's.
+func checkProblem(p *batch.Plan, psum string) error {
+	if err := p.CheckProblem(psum); err != nil {
+		return inputErr(err)
+	}
+	return nil
+}
 
-// runShard builds response part s, unless it is done.
-func (j *responseJob) runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error {
+// runShard runs shard s of the job, unless it is done, and says so on
+// stderr (mu keeps the notes of shards run at once apart).
+func runShard(ctx context.Context, g *globalOptions, j shardJob, dir string, s int, mu *sync.Mutex) error {
+	k := kindOf(j.plan().Kind)
 	say := func(format string, a ...any) {
 		if !g.quiet {
 			mu.Lock()
@@ -304,89 +319,38 @@ func (j *responseJob) runShard(ctx context.Context, g *globalOptions, dir string
 			fmt.Fprintf(g.stderr, format, a...)
 		}
 	}
-	if j.plan.PartDone(dir, s) {
-		say("desmear: response part %d was done already\n", s)
+	if j.plan().ShardDone(dir, s) {
+		say("desmear: %s %d was done already\n", k.shard, s)
 		return nil
 	}
-	part, err := j.a.BuildPart(ctx, s, len(j.plan.Shards), &analysis.Options{Version: version, ShardEvents: shardEvents})
+	what, err := j.run(ctx, g, dir, s)
 	if err != nil {
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
-		return analysisErr(err)
+		return err
 	}
-	if err := os.MkdirAll(filepath.Join(dir, batch.PartDir), 0o755); err != nil {
-		return ioErr(err)
-	}
-	// replace a part of another plan or a damaged one
-	if err := part.Save(batch.PartPath(dir, s), true); err != nil {
-		return refusedFolder(err, batch.PartPath(dir, s), "response part", "part.json")
-	}
-	say("desmear: response part %d (%d shards) done\n", s, len(part.Numbers))
+	say("desmear: %s %d (%s) done\n", k.shard, s, what)
 	return nil
 }
 
-// toyJob is a plan with its validation set up: the inputs checked
-// against the plan, the nominal result and the toys' configuration.
-type toyJob struct {
-	plan  *batch.Plan
-	v     *validation
-	setup *validate.Setup
+// memberRange says which members shard s of the plan p holds: "toys
+// 50..99".
+func memberRange(p *batch.Plan, s int) string {
+	first, count := p.MemberRange(s)
+	return fmt.Sprintf("%s %d..%d", kindOf(p.Kind).members, first, first+count-1)
 }
 
-// loadToyJob sets the validation of the toy plan p up.
-func loadToyJob(ctx context.Context, g *globalOptions, p *batch.Plan) (*toyJob, error) {
-	asum, err := batch.FileSum(p.Analysis.Path)
-	if err != nil {
-		return nil, inputErr(fmt.Errorf("the plan's analysis file: %w", err))
-	}
-	v, err := loadValidationAnalysis(ctx, g, p.Analysis.Path)
-	if err != nil {
-		return nil, err
-	}
-	psum, err := batch.ProblemSum(v.prob)
-	if err != nil {
-		return nil, inputErr(err)
-	}
-	if err := p.CheckInputs(asum, psum); err != nil {
-		return nil, inputErr(err)
-	}
-	t := p.Toys
-	vo := &validateOptions{toys: t.Toys, maxK: t.MaxIterations, criterion: t.Criterion, threshold: t.BiasThreshold, tilt: t.TiltPercent, toyTruth: t.Truth}
-	vo.seed = t.Seed
-	opt, err := v.options(vo)
-	if err != nil {
-		return nil, err
-	}
-	st, err := validate.NewSetup(ctx, v.prob, v.settings, opt)
-	if err != nil {
-		return nil, v.locate(err)
-	}
-	return &toyJob{plan: p, v: v, setup: st}, nil
+// refused is refusedFolder for the folder the merge of the plan p
+// writes.
+func refused(err error, p *batch.Plan) error {
+	k := kindOf(p.Kind)
+	return refusedFolder(err, p.Out, k.folder, k.marker)
 }
 
-func (j *toyJob) shards() int { return len(j.plan.Shards) }
-
-// runShard runs shard s of the job and says so on stderr.
-func (j *toyJob) runShard(ctx context.Context, g *globalOptions, dir string, s int, mu *sync.Mutex) error {
-	ran, err := batch.RunShard(ctx, dir, j.plan, s, &j.setup.Config)
-	if err != nil {
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		return j.v.locate(fmt.Errorf("shard %d: %w", s, err))
-	}
-	if !g.quiet {
-		mu.Lock()
-		defer mu.Unlock()
-		first, count := j.plan.ToyRange(s)
-		if ran {
-			fmt.Fprintf(g.stderr, "desmear: shard %d (toys %d..%d) done\n", s, first, first+count-1)
-		} else {
-			fmt.Fprintf(g.stderr, "desmear: shard %d was done already\n", s)
-		}
-	}
-	return nil
+// mergeErr is the error of a merge of the shards of the work folder dir.
+func mergeErr(err error, dir string) error {
+	return inputErr(fmt.Errorf("%w (\"desmear batch status %s\" lists them)", err, dir))
 }
 
 func newBatchRunCommand(g *globalOptions) *cobra.Command {
@@ -406,10 +370,10 @@ the plan is not run again; a failed or interrupted shard leaves no file.`,
 			if err != nil {
 				return err
 			}
-			if shard < 0 || shard >= j.shards() {
-				return usagef("--shard %d: the plan has shards 0..%d", shard, j.shards()-1)
+			if n := len(j.plan().Shards); shard < 0 || shard >= n {
+				return usagef("--shard %d: the plan has shards 0..%d", shard, n-1)
 			}
-			return j.runShard(cmd.Context(), g, args[0], shard, &sync.Mutex{})
+			return runShard(cmd.Context(), g, j, args[0], shard, &sync.Mutex{})
 		},
 	}
 	cmd.Flags().IntVar(&shard, "shard", 0, "the shard `I` to run (0 to K-1; a Slurm array index)")
@@ -435,16 +399,17 @@ in this process, each as "desmear batch run" would. Then merge.`,
 			}
 			var mu sync.Mutex
 			next := make(chan int)
-			errs := make([]error, j.shards())
+			n := len(j.plan().Shards)
+			errs := make([]error, n)
 			var wg sync.WaitGroup
-			for range min(jobs, j.shards()) {
+			for range min(jobs, n) {
 				wg.Go(func() {
 					for s := range next {
-						errs[s] = j.runShard(ctx, g, dir, s, &mu)
+						errs[s] = runShard(ctx, g, j, dir, s, &mu)
 					}
 				})
 			}
-			for s := range j.shards() {
+			for s := range n {
 				if ctx.Err() != nil {
 					break
 				}
@@ -476,24 +441,13 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 			if err != nil {
 				return ioErr(err)
 			}
+			k := kindOf(p.Kind)
 			w := bufio.NewWriter(g.stdout)
-			marker := validate.JSONFile
-			switch p.Kind {
-			case batch.Response:
-				marker = response.BundleFiles()[0]
-				fmt.Fprintf(w, "plan: %s (the response in %d parts)\n", filepath.Join(args[0], batch.PlanFile), len(p.Shards))
+			fmt.Fprintf(w, "plan: %s (%s)\n", filepath.Join(args[0], batch.PlanFile), k.describe(p, false))
+			if k.members == "" {
 				fmt.Fprintf(w, "done: %d of %d shards\n", len(pr.Done), len(p.Shards))
-			case batch.Variations:
-				marker = result.JSONFile
-				fmt.Fprintf(w, "plan: %s (%d systematic variations in %d shards)\n", filepath.Join(args[0], batch.PlanFile), len(p.Variations), len(p.Shards))
-				fmt.Fprintf(w, "done: %d of %d shards (%d of %d variations)\n", len(pr.Done), len(p.Shards), pr.VariationsDone, len(p.Variations))
-			case batch.Replicas:
-				marker = result.JSONFile
-				fmt.Fprintf(w, "plan: %s (%d bootstrap replicas in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.ReplicaCount(), len(p.Shards))
-				fmt.Fprintf(w, "done: %d of %d shards (%d of %d replicas)\n", len(pr.Done), len(p.Shards), pr.ReplicasDone, p.ReplicaCount())
-			default:
-				fmt.Fprintf(w, "plan: %s (%s: %d toys in %d shards)\n", filepath.Join(args[0], batch.PlanFile), p.Kind, p.Toys.Toys, len(p.Shards))
-				fmt.Fprintf(w, "done: %d of %d shards (%d of %d toys)\n", len(pr.Done), len(p.Shards), pr.ToysDone, p.Toys.Toys)
+			} else {
+				fmt.Fprintf(w, "done: %d of %d shards (%d of %d %s)\n", len(pr.Done), len(p.Shards), pr.MembersDone, p.Members(), k.members)
 			}
 			if len(pr.Missing) > 0 {
 				fmt.Fprintf(w, "missing: %s\n", batch.Ranges(pr.Missing))
@@ -503,7 +457,7 @@ func newBatchStatusCommand(g *globalOptions) *cobra.Command {
 					fmt.Fprintf(w, "not usable: shard %d: %v\n", s, err)
 				}
 			}
-			if _, err := os.Stat(filepath.Join(p.Out, marker)); err == nil {
+			if _, err := os.Stat(filepath.Join(p.Out, k.marker)); err == nil {
 				fmt.Fprintf(w, "merged: %s\n", p.Out)
 			} else if len(pr.Todo()) == 0 {
 				fmt.Fprintf(w, "every shard is done: merge with \"desmear batch merge %s\"\n", args[0])
@@ -535,77 +489,17 @@ shift of every variation from the shard files and writes the result folder
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			ctx, dir := cmd.Context(), args[0]
-			p, err := readPlan(dir)
+			j, err := loadJob(ctx, g, dir)
 			if err != nil {
 				return err
 			}
-			switch p.Kind {
-			case batch.Response:
-				return mergeResponse(g, p, dir, force)
-			case batch.Variations:
-				return mergeVariations(ctx, g, p, dir, force)
-			case batch.Replicas:
-				return mergeReplicas(ctx, g, p, dir, force)
-			}
-			j, err := loadToyJob(ctx, g, p)
-			if err != nil {
+			p := j.plan()
+			if err := refused(kindOf(p.Kind).check(p.Out, force), p); err != nil {
 				return err
 			}
-			out := j.plan.Out
-			if err := refusedFolder(validate.CheckFolder(out, force), out, "validation folder", validate.JSONFile); err != nil {
-				return err
-			}
-			e, err := batch.Merge(dir, j.plan)
-			if err != nil {
-				return inputErr(fmt.Errorf("%w (\"desmear batch status %s\" lists them)", err, dir))
-			}
-			rep, err := j.setup.Report(ctx, e)
-			if err != nil {
-				if ctx.Err() != nil {
-					return ctx.Err()
-				}
-				return j.v.locate(err)
-			}
-			j.v.label(rep)
-			if err := validate.WriteFolder(out, force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
-				if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
-					return refusedFolder(err, out, "validation folder", validate.JSONFile)
-				}
-				return ioErr(fmt.Errorf("writing %s: %w", out, err))
-			}
-			w := bufio.NewWriter(g.stdout)
-			printValidation(w, out, rep)
-			if err := w.Flush(); err != nil {
-				return ioErr(err)
-			}
-			return nil
+			return j.merge(ctx, g, dir, force)
 		},
 	}
 	cmd.Flags().BoolVar(&force, "force", false, "replace the folder the merge writes if it holds an earlier one of its kind (or is empty)")
 	return cmd
-}
-
-// mergeResponse merges the response parts of plan p into its bundle.
-func mergeResponse(g *globalOptions, p *batch.Plan, dir string, force bool) error {
-	marker := response.BundleFiles()[0]
-	if err := refusedFolder(response.CheckBundle(p.Out, force), p.Out, "response bundle", marker); err != nil {
-		return err
-	}
-	if _, err := loadResponseJob(p); err != nil {
-		return err
-	}
-	r, info, err := batch.MergeResponse(dir, p)
-	if err != nil {
-		return inputErr(fmt.Errorf("%w (\"desmear batch status %s\" lists them)", err, dir))
-	}
-	if err := r.Save(p.Out, *info, force); err != nil {
-		return refusedFolder(err, p.Out, "response bundle", marker)
-	}
-	w := bufio.NewWriter(g.stdout)
-	fmt.Fprintf(w, "response: %s (%d shards from %d parts)\n", p.Out, len(info.Shards), len(p.Shards))
-	printResponseCounts(w, r)
-	if err := w.Flush(); err != nil {
-		return ioErr(err)
-	}
-	return nil
 }

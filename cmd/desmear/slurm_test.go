@@ -149,7 +149,7 @@ func TestBatchSlurm(t *testing.T) {
 	}
 	w = vw
 	submit()
-	sameResults(t, filepath.Join(filepath.Dir(an), "result"), merged)
+	sameFolders(t, filepath.Join(filepath.Dir(an), "result"), merged)
 
 	// The bootstrap replicas, one array task per unit of 50, the same.
 	b, _ = os.ReadFile(an)
@@ -166,5 +166,5 @@ func TestBatchSlurm(t *testing.T) {
 	}
 	w = pw
 	submit()
-	sameResults(t, filepath.Join(filepath.Dir(an), "result"), merged)
+	sameFolders(t, filepath.Join(filepath.Dir(an), "result"), merged)
 }

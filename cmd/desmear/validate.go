@@ -129,6 +129,17 @@ func (o *validateOptions) checkValidate(cmd *cobra.Command, args []string) error
 		return usagef("--iterations %d: give at least 1 iteration", o.iterations)
 	case o.truth != "" && o.flags.Changed("toy-truth"):
 		return usagef("give either --truth T.csv or --toy-truth, not both")
+	}
+	return o.checkToys()
+}
+
+// checkToys refuses the options of a toy ensemble that cannot be run:
+// fewer than two toys, no iteration to scan, a tilt outside [0, 100)
+// percent, a bias threshold that is not positive (or NaN). "desmear
+// validate" and the plan of a toy ensemble ("desmear batch plan --toys")
+// both check them here.
+func (o *validateOptions) checkToys() error {
+	switch {
 	case o.toys < 2:
 		return usagef("--toys %d: give at least 2", o.toys)
 	case o.maxK < 1:

@@ -244,3 +244,51 @@ func argmin(v []float64) int {
 	}
 	return best
 }
+
+// TestToyOptionsRefused: "desmear validate" and the plan of a toy
+// ensemble refuse the same impossible toy options with the same message,
+// before any file is read, and accept the edges of what can be run.
+func TestToyOptionsRefused(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	an := filepath.Join(dir, "none.yaml") // never read: the options are refused first
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		// A sample variance needs two toys: C/(N − 1) of method.md §17
+		// Ensembles: running means and covariances that merge.
+		{[]string{"--toys", "1"}, "--toys 1: give at least 2"},
+		// The scan runs 1..K iterations (method.md §3 The iteration).
+		{[]string{"--max-iterations", "0"}, "--max-iterations 0: give at least 1"},
+		// The tilt's weights run from 1 − percent/100 to 1 + percent/100
+		// (the weights of Tilt): 100 percent makes a weight 0.
+		{[]string{"--tilt", "100"}, "--tilt 100: give a size in [0, 100) percent"},
+		{[]string{"--tilt", "-1"}, "--tilt -1: give a size in [0, 100) percent"},
+		{[]string{"--tilt", "NaN"}, "--tilt NaN: give a size in [0, 100) percent"},
+		// |bias|/σ below a threshold that is not positive is never met
+		// (the bias_below criterion of "desmear help validation").
+		{[]string{"--bias-threshold", "0"}, "--bias-threshold 0: give a number > 0"},
+		{[]string{"--bias-threshold", "NaN"}, "--bias-threshold NaN: give a number > 0"},
+	} {
+		vargs := append([]string{"validate", an, "--out", filepath.Join(dir, "v")}, c.args...)
+		vcode, _, verr := runCLI(t, ctx, vargs...)
+		pargs := append([]string{"batch", "plan", an, "--toys", "100", "--shards", "1", "--workdir", filepath.Join(dir, "w")}, c.args...)
+		pcode, _, perr := runCLI(t, ctx, pargs...)
+		if vcode != exitUsage || pcode != exitUsage {
+			t.Errorf("%v: exit %d (validate), %d (batch plan), want %d", c.args, vcode, pcode, exitUsage)
+		}
+		if !strings.Contains(verr, c.want) || verr != perr {
+			t.Errorf("%v: validate says %q, batch plan %q, want both %q", c.args, verr, perr, c.want)
+		}
+	}
+	// The edges that can be run (the same sources as above).
+	for _, o := range []validateOptions{
+		{toys: 2, maxK: 1, tilt: 0, threshold: math.SmallestNonzeroFloat64},
+		{toys: 2, maxK: 1, tilt: math.Nextafter(100, 0), threshold: 0.2},
+	} {
+		if err := o.checkToys(); err != nil {
+			t.Errorf("%+v: %v", o, err)
+		}
+	}
+}

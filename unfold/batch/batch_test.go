@@ -3,10 +3,8 @@ package batch
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"math"
 	"math/rand/v2"
-	"os"
 	"reflect"
 	"strings"
 	"testing"
@@ -90,61 +88,6 @@ func TestMergeEqualsOneRun(t *testing.T) {
 	}
 }
 
-// TestShardFiles: a finished shard is not run again, a missing or foreign
-// shard stops the merge with its number, and an interrupted shard leaves
-// no file.
-func TestShardFiles(t *testing.T) {
-	ctx := context.Background()
-	c := toyConfig(t, 4*validate.BlockToys)
-	dir := t.TempDir()
-	p := plan(t, dir, c, 4)
-	if _, err := RunShard(ctx, dir, p, 0, c); err != nil {
-		t.Fatal(err)
-	}
-	st0, _ := os.Stat(ShardPath(dir, 0))
-	if ran, err := RunShard(ctx, dir, p, 0, c); err != nil || ran {
-		t.Errorf("re-running a finished shard: ran %v, %v", ran, err)
-	}
-	if st1, _ := os.Stat(ShardPath(dir, 0)); !st1.ModTime().Equal(st0.ModTime()) {
-		t.Error("re-running a finished shard rewrote its file")
-	}
-	cctx, cancel := context.WithCancel(ctx)
-	cancel()
-	if _, err := RunShard(cctx, dir, p, 1, c); !errors.Is(err, context.Canceled) {
-		t.Errorf("cancelled shard: %v", err)
-	}
-	if _, err := os.Stat(ShardPath(dir, 1)); !errors.Is(err, os.ErrNotExist) {
-		t.Errorf("a cancelled shard left a file: %v", err)
-	}
-	// shard 2 from another plan (another seed)
-	other := t.TempDir()
-	c2 := toyConfig(t, 4*validate.BlockToys)
-	c2.Seed = 8
-	p2 := plan(t, other, c2, 4)
-	if _, err := RunShard(ctx, other, p2, 2, c2); err != nil {
-		t.Fatal(err)
-	}
-	b, _ := os.ReadFile(ShardPath(other, 2))
-	if err := os.WriteFile(ShardPath(dir, 2), b, 0o644); err != nil {
-		t.Fatal(err)
-	}
-	pr, err := Status(dir, p)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if !reflect.DeepEqual(pr.Done, []int{0}) || !reflect.DeepEqual(pr.Missing, []int{1, 3}) || pr.Bad[2] == nil || !reflect.DeepEqual(pr.Todo(), []int{1, 2, 3}) {
-		t.Errorf("status: done %v missing %v bad %v", pr.Done, pr.Missing, pr.Bad)
-	}
-	_, err = Merge(dir, p)
-	if err == nil || !strings.Contains(err.Error(), "missing: 1,3") || !strings.Contains(err.Error(), "another plan") {
-		t.Errorf("merge with shards missing: %v", err)
-	}
-	// the foreign shard is run again for this plan
-	if ran, err := RunShard(ctx, dir, p, 2, c); err != nil || !ran {
-		t.Errorf("foreign shard: ran %v, %v", ran, err)
-	}
-}
-
 // TestPlanUnits: the units are blocks of validate.BlockToys toys with
 // their stream derivation, shard s holding units floor(s·U/K) to
 // floor((s+1)·U/K) − 1; too many
@@ -159,7 +102,7 @@ func TestPlanUnits(t *testing.T) {
 	}
 	var n []int
 	for s := range p.Shards {
-		_, c := p.ToyRange(s)
+		_, c := p.MemberRange(s)
 		n = append(n, c)
 	}
 	if !reflect.DeepEqual(n, []int{100, 150, 150, 120}) {
@@ -186,7 +129,7 @@ func TestVariationPlan(t *testing.T) {
 	}
 	var got [][2]int
 	for s := range p.Shards {
-		first, count := p.VariationRange(s)
+		first, count := p.MemberRange(s)
 		got = append(got, [2]int{first, count})
 	}
 	// 5 units in 3 shards: ⌊s·5/3⌋ boundaries 0, 1, 3, 5 (common practice:
@@ -225,7 +168,7 @@ func TestReplicaPlan(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.ReplicaCount() != 120 {
+	if !reflect.DeepEqual(p.Replicas, []ReplicaUnit{{0, 0, 50}, {1, 50, 50}, {2, 100, 20}}) || p.Members() != 120 {
 		t.Errorf("units %+v", p.Replicas)
 	}
 	// 3 units in 2 shards: ⌊s·3/2⌋ boundaries 0, 1, 3 (common practice: the
@@ -237,7 +180,7 @@ func TestReplicaPlan(t *testing.T) {
 	if err := p.Write(dir); err != nil {
 		t.Fatal(err)
 	}
-	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.ReplicaCount() != 120 {
+	if q, err := Read(dir); err != nil || q.Kind != Replicas || q.Members() != 120 {
 		t.Errorf("plan read back %+v, %v", q, err)
 	}
 	if _, err := ReplicaPlan(Input{}, "", nil, 120, 4, ""); err == nil {

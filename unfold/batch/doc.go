@@ -30,6 +30,11 @@
 // shard, exactly, and MergeReplicas returns them in unit order, which
 // Finish merges as one run does.
 //
+// The members of a plan (Plan.Members) are its toys, variations or
+// replicas; MaxShards bounds its shards (a shard holds at least one
+// unit), every kind's shards split its units in the same balanced way,
+// and Plan.MemberRange says which members a shard holds.
+//
 // # Shards
 //
 // RunShard runs one shard and writes its partial result (the mergeable
@@ -38,12 +43,17 @@
 // failed or interrupted shard leaves nothing that Merge would take.
 // Running a shard whose file exists and belongs to the plan does
 // nothing. Each file carries the plan's identity (the SHA-256 of
-// plan.json) and its shard number.
+// plan.json) and its shard number. RunVariations and RunReplicas write
+// their shards' files the same way, through one path that checks the
+// head of a file (format, plan, shard) once and leaves to each kind only
+// what its file holds.
 //
 // Merge checks that every shard of the plan is present and belongs to
 // it, and merges their blocks in toy order; the moments are those of one
-// run over every toy, bit for bit (see validate.Merge). Status reports
-// the shards done, missing and foreign from the shard files alone.
+// run over every toy, bit for bit (see validate.Merge). MergeVariations
+// and MergeReplicas check the same and return their shards' contents in
+// order. Status reports the shards done, missing and foreign from the
+// shard files (or the response parts) alone, and ShardDone one shard.
 //
 // # Slurm
 //

@@ -64,6 +64,21 @@ func (k *Kind) UnmarshalText(b []byte) error {
 	return fmt.Errorf("unknown kind of ensemble %q (want toys, response, replicas or variations)", b)
 }
 
+// what names the ensemble of the kind in messages.
+func (k Kind) what() string {
+	switch k {
+	case Toys:
+		return "toys"
+	case Response:
+		return "a response"
+	case Variations:
+		return "systematic variations"
+	case Replicas:
+		return "bootstrap replicas"
+	}
+	return string(k)
+}
+
 // Check reports whether a plan of this kind can be made.
 func (k Kind) Check() error {
 	switch k {
@@ -153,28 +168,62 @@ type Plan struct {
 // plan.json.
 func (p *Plan) ID() string { return p.id }
 
+// MaxShards returns the most shards a plan of kind k of members
+// members (toys, systematic variations or bootstrap replicas) can have:
+// a shard holds at least one unit, of validate.BlockToys toys, of one
+// variation or of analysis.ReplicaUnit replicas. A response plan has no
+// such bound.
+func MaxShards(k Kind, members int) int {
+	switch k {
+	case Toys:
+		return (members + validate.BlockToys - 1) / validate.BlockToys
+	case Variations:
+		return members
+	case Replicas:
+		return (members + analysis.ReplicaUnit - 1) / analysis.ReplicaUnit
+	}
+	return math.MaxInt
+}
+
+// split returns shards shards of nu units (MaxShards of the plan) of as
+// equal a number of units as can be: shard s holds the units
+// ⌊s·nu/shards⌋ to ⌊(s+1)·nu/shards⌋ − 1, or none in a response plan.
+// More shards than units are refused, saying of what (of, "520 toys")
+// and what a unit is (unit, "block of 50 toys").
+func split(nu, shards int, of, unit string) ([]Shard, error) {
+	switch {
+	case shards < 1:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	case shards > nu:
+		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %s: a shard holds at least one %s, so at most %d shards", shards, of, unit, nu)}
+	}
+	sh := make([]Shard, shards)
+	for s := range sh {
+		sh[s].Index = s
+		if nu != math.MaxInt {
+			lo, hi := s*nu/shards, (s+1)*nu/shards
+			sh[s].FirstUnit, sh[s].Units = lo, hi-lo
+		}
+	}
+	return sh, nil
+}
+
 // ToyPlan returns the plan of the toy ensemble of settings ts over
 // shards shards: units of validate.BlockToys toys (the last one fewer),
 // split into shards of as equal a number of units as can be.
 func ToyPlan(analysis Input, problem string, ts ToySettings, shards int, out string) (*Plan, error) {
-	switch {
-	case ts.Toys < 2:
+	if ts.Toys < 2 {
 		return nil, &unfold.SettingsError{Field: "Toys", Reason: "must be at least 2"}
-	case shards < 1:
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
 	}
-	nu := (ts.Toys + validate.BlockToys - 1) / validate.BlockToys
-	if shards > nu {
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d toys: a shard holds at least one block of %d toys, so at most %d shards", shards, ts.Toys, validate.BlockToys, nu)}
+	nu := MaxShards(Toys, ts.Toys)
+	sh, err := split(nu, shards, fmt.Sprintf("%d toys", ts.Toys), fmt.Sprintf("block of %d toys", validate.BlockToys))
+	if err != nil {
+		return nil, err
 	}
-	p := &Plan{Format: Format, Kind: Toys, Analysis: analysis, Problem: problem, Out: out, Toys: &ts}
+	p := &Plan{Format: Format, Kind: Toys, Analysis: analysis, Problem: problem, Out: out, Toys: &ts, Shards: sh}
 	for u := range nu {
 		first := u * validate.BlockToys
 		p.Units = append(p.Units, Unit{Index: u, FirstToy: first, Toys: min(validate.BlockToys, ts.Toys-first), Seed: ts.Seed, StreamBase: validate.ToyStream(0)})
-	}
-	for s := range shards {
-		lo, hi := s*nu/shards, (s+1)*nu/shards
-		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
 	}
 	return p, nil
 }
@@ -183,14 +232,11 @@ func ToyPlan(analysis Input, problem string, ts ToySettings, shards int, out str
 // parts parts: shard I of the plan is response part I of parts. The
 // response's own shards are found by each part from the analysis.
 func ResponsePlan(analysis Input, parts int, out string) (*Plan, error) {
-	if parts < 1 {
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
+	sh, err := split(MaxShards(Response, 0), parts, "", "")
+	if err != nil {
+		return nil, err
 	}
-	p := &Plan{Format: Format, Kind: Response, Analysis: analysis, Out: out}
-	for s := range parts {
-		p.Shards = append(p.Shards, Shard{Index: s})
-	}
-	return p, nil
+	return &Plan{Format: Format, Kind: Response, Analysis: analysis, Out: out, Shards: sh}, nil
 }
 
 // VariationPlan returns the plan of the systematic variations named
@@ -198,22 +244,16 @@ func ResponsePlan(analysis Input, parts int, out string) (*Plan, error) {
 // number of variations as can be; ins are every input of the analysis
 // by content, problem the sum of the nominal problem (ProblemSum).
 func VariationPlan(analysis Input, problem string, ins []Input, names []string, shards int, out string) (*Plan, error) {
-	switch {
-	case len(names) == 0:
+	if len(names) == 0 {
 		return nil, &unfold.SettingsError{Field: "Variations", Reason: "the analysis has no systematic variations to plan (no variations, no background scale uncertainty)"}
-	case shards < 1:
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
-	case shards > len(names):
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d systematic variations: a shard holds at least one variation, so at most %d shards", shards, len(names), len(names))}
 	}
-	p := &Plan{Format: Format, Kind: Variations, Analysis: analysis, Problem: problem, Out: out, Inputs: ins}
+	sh, err := split(MaxShards(Variations, len(names)), shards, fmt.Sprintf("%d systematic variations", len(names)), "variation")
+	if err != nil {
+		return nil, err
+	}
+	p := &Plan{Format: Format, Kind: Variations, Analysis: analysis, Problem: problem, Out: out, Inputs: ins, Shards: sh}
 	for k, n := range names {
 		p.Variations = append(p.Variations, VariationUnit{Index: k, Name: n})
-	}
-	nu := len(names)
-	for s := range shards {
-		lo, hi := s*nu/shards, (s+1)*nu/shards
-		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
 	}
 	return p, nil
 }
@@ -223,43 +263,61 @@ func VariationPlan(analysis Input, problem string, ins []Input, names []string, 
 // of units as can be; ins are every input of the analysis by content,
 // problem the sum of the nominal problem (ProblemSum).
 func ReplicaPlan(analysisFile Input, problem string, ins []Input, replicas, shards int, out string) (*Plan, error) {
-	nu := (replicas + analysis.ReplicaUnit - 1) / analysis.ReplicaUnit
-	switch {
-	case replicas < 2:
+	if replicas < 2 {
 		return nil, &unfold.SettingsError{Field: "Replicas", Reason: "must be at least 2"}
-	case shards < 1:
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: "must be at least 1"}
-	case shards > nu:
-		return nil, &unfold.SettingsError{Field: "Shards", Reason: fmt.Sprintf("%d shards of %d replicas: a shard holds at least one unit of %d replicas, so at most %d shards", shards, replicas, analysis.ReplicaUnit, nu)}
 	}
-	p := &Plan{Format: Format, Kind: Replicas, Analysis: analysisFile, Problem: problem, Out: out, Inputs: ins}
+	nu := MaxShards(Replicas, replicas)
+	sh, err := split(nu, shards, fmt.Sprintf("%d replicas", replicas), fmt.Sprintf("unit of %d replicas", analysis.ReplicaUnit))
+	if err != nil {
+		return nil, err
+	}
+	p := &Plan{Format: Format, Kind: Replicas, Analysis: analysisFile, Problem: problem, Out: out, Inputs: ins, Shards: sh}
 	for u := range nu {
 		first, count := analysis.ReplicaRange(replicas, u)
 		p.Replicas = append(p.Replicas, ReplicaUnit{Index: u, First: first, Replicas: count})
 	}
-	for s := range shards {
-		lo, hi := s*nu/shards, (s+1)*nu/shards
-		p.Shards = append(p.Shards, Shard{Index: s, FirstUnit: lo, Units: hi - lo})
-	}
 	return p, nil
 }
 
-// ReplicaCount returns the number of bootstrap replicas of the plan.
-func (p *Plan) ReplicaCount() int {
-	n := 0
-	for _, u := range p.Replicas {
-		n += u.Replicas
+// Members returns the number of members of the plan's ensemble: its
+// toys, systematic variations or bootstrap replicas; 0 for a response.
+func (p *Plan) Members() int {
+	switch p.Kind {
+	case Toys:
+		return p.Toys.Toys
+	case Variations:
+		return len(p.Variations)
+	case Replicas:
+		n := 0
+		for _, u := range p.Replicas {
+			n += u.Replicas
+		}
+		return n
 	}
-	return n
+	return 0
 }
 
-// ToyRange returns the toys of shard s: first and count.
-func (p *Plan) ToyRange(s int) (first, count int) {
+// MemberRange returns the members of shard s (see Members): the first
+// and their number; the variations of a shard are in the analysis's
+// order (Plan.Variations). It panics for a response plan, whose shards
+// have no members.
+func (p *Plan) MemberRange(s int) (first, count int) {
 	sh := p.Shards[s]
-	for _, u := range p.Units[sh.FirstUnit : sh.FirstUnit+sh.Units] {
-		count += u.Toys
+	switch p.Kind {
+	case Toys:
+		for _, u := range p.Units[sh.FirstUnit : sh.FirstUnit+sh.Units] {
+			count += u.Toys
+		}
+		return p.Units[sh.FirstUnit].FirstToy, count
+	case Variations:
+		return sh.FirstUnit, sh.Units
+	case Replicas:
+		for _, u := range p.Replicas[sh.FirstUnit : sh.FirstUnit+sh.Units] {
+			count += u.Replicas
+		}
+		return p.Replicas[sh.FirstUnit].First, count
 	}
-	return p.Units[sh.FirstUnit].FirstToy, count
+	panic(fmt.Sprintf("batch: the shards of a plan of %s have no members", p.Kind))
 }
 
 // Write writes the plan as plan.json in the work folder dir, creating
@@ -339,10 +397,7 @@ func (p *Plan) check() error {
 		if p.Toys != nil || len(p.Units) > 0 || len(p.Variations) > 0 {
 			return fmt.Errorf("a plan of bootstrap replicas has no toys and no variations")
 		}
-		n := 0
-		for _, u := range p.Replicas {
-			n += u.Replicas
-		}
+		n := p.Members()
 		for i, u := range p.Replicas {
 			if first, count := analysis.ReplicaRange(n, i); u.Index != i || u.First != first || u.Replicas != count {
 				return fmt.Errorf("replica unit %d does not continue the units before it", i)
@@ -381,18 +436,21 @@ func (p *Plan) checkShards(n int) error {
 	return nil
 }
 
-// CheckInputs reports whether the analysis file and the assembled
-// problem are those the plan was made from (the analysis file only for
-// a response plan: problemSum is not used).
-func (p *Plan) CheckInputs(analysisSum, problemSum string) error {
-	if analysisSum != p.Analysis.SHA256 {
-		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(analysisSum), short(p.Analysis.SHA256))
+// CheckAnalysis reports whether the analysis file, of SHA-256 sum
+// (FileSum), is the one the plan was made from.
+func (p *Plan) CheckAnalysis(sum string) error {
+	if sum != p.Analysis.SHA256 {
+		return fmt.Errorf("%s has changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(sum), short(p.Analysis.SHA256))
 	}
-	if p.Kind == Response {
-		return nil
-	}
-	if problemSum != p.Problem {
-		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(problemSum), short(p.Problem))
+	return nil
+}
+
+// CheckProblem reports whether the problem assembled from the plan's
+// analysis file, of SHA-256 sum (ProblemSum), is the one the plan was
+// made from. A response plan names no problem.
+func (p *Plan) CheckProblem(sum string) error {
+	if p.Kind != Response && sum != p.Problem {
+		return fmt.Errorf("the inputs of %s (response, data or backgrounds) have changed since the plan was made (SHA-256 %s, the plan has %s): make a new plan", p.Analysis.Path, short(sum), short(p.Problem))
 	}
 	return nil
 }

@@ -27,15 +27,52 @@ func ShardPath(dir string, s int) string {
 	return filepath.Join(dir, ShardDir, fmt.Sprintf("shard-%05d.json", s))
 }
 
-// partial is the file of one shard: the plan it belongs to, its number
-// and the moments of its toys.
-type partial struct {
-	Format   int                `json:"format"`
-	Plan     string             `json:"plan"`
-	Shard    int                `json:"shard"`
+// shardHead is what the file of every shard of toys, variations or
+// replicas starts with: the format, the plan it belongs to (its ID) and
+// its shard number.
+type shardHead struct {
+	Format int    `json:"format"`
+	Plan   string `json:"plan"`
+	Shard  int    `json:"shard"`
+}
+
+func (h *shardHead) head() *shardHead { return h }
+
+// shardFile is the content of the file of one shard: what differs
+// between the kinds of plan whose shards write files.
+type shardFile interface {
+	head() *shardHead
+	// holds reports whether the file, read from path, holds what shard
+	// s of the plan p holds (its head checked already: format, plan,
+	// shard number).
+	holds(p *Plan, s int, path string) error
+	// members returns the number of members (toys, variations,
+	// replicas) it holds.
+	members() int
+}
+
+// shardFileOf is a pointer to a shard file's content type F.
+type shardFileOf[F any] interface {
+	*F
+	shardFile
+}
+
+// toysFile is the file of one shard of toys: the moments of its toys.
+type toysFile struct {
+	shardHead
 	FirstToy int                `json:"first_toy"`
 	Toys     int                `json:"toys"`
 	Ensemble *validate.Ensemble `json:"ensemble"`
+}
+
+func (f *toysFile) members() int { return f.Toys }
+
+func (f *toysFile) holds(p *Plan, s int, path string) error {
+	first, count := p.MemberRange(s)
+	if f.FirstToy != first || f.Toys != count || f.Ensemble == nil || f.Ensemble.Toys() != count {
+		return fmt.Errorf("%s: does not hold shard %d of the plan (toys %d..%d)", path, s, first, first+count-1)
+	}
+	return nil
 }
 
 // PartPath returns the folder of response part s in the work folder
@@ -65,28 +102,111 @@ func (p *Plan) readPart(dir string, s int) (*response.Part, error) {
 	return pt, nil
 }
 
-// PartDone reports whether response part s of the plan is present and
-// belongs to it (then running it again does nothing).
-func (p *Plan) PartDone(dir string, s int) bool {
-	_, err := p.readPart(dir, s)
-	return err == nil
-}
-
-// readShard reads the file of shard s; a missing file is reported with
-// fs.ErrNotExist, a file of another plan or shard, or a damaged one, with
-// an error saying so.
-func (p *Plan) readShard(dir string, s int) (*partial, error) {
-	var pt partial
-	path, err := p.readShardFile(dir, s, &pt, &pt.Format, &pt.Plan)
+// readShard reads the file of shard s of the plan p into a new F; a
+// missing file is reported with fs.ErrNotExist, a file of another plan
+// or shard, or a damaged one, with an error saying so.
+func readShard[F any, PF shardFileOf[F]](p *Plan, dir string, s int) (PF, error) {
+	f := PF(new(F))
+	path := ShardPath(dir, s)
+	b, err := os.ReadFile(path)
 	if err != nil {
 		return nil, err
 	}
-	first, count := p.ToyRange(s)
-	switch {
-	case pt.Shard != s || pt.FirstToy != first || pt.Toys != count || pt.Ensemble == nil || pt.Ensemble.Toys() != count:
-		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (toys %d..%d)", path, s, first, first+count-1)
+	if err := json.Unmarshal(b, f); err != nil {
+		return nil, fmt.Errorf("%s: not a shard file: %v", path, err)
 	}
-	return &pt, nil
+	switch h := f.head(); {
+	case h.Format != Format:
+		return nil, fmt.Errorf("%s: shard format %d, want %d", path, h.Format, Format)
+	case h.Plan != p.id:
+		return nil, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(h.Plan), short(p.id))
+	case h.Shard != s:
+		return nil, fmt.Errorf("%s: does not hold shard %d of the plan but shard %d", path, s, h.Shard)
+	}
+	if err := f.holds(p, s, path); err != nil {
+		return nil, err
+	}
+	return f, nil
+}
+
+// runShard runs shard s of the plan p, of kind k: compute returns the
+// content of its file (its head is filled in here), written atomically.
+// It does nothing and returns false when the shard's file exists and
+// belongs to the plan; it returns true when it ran the shard.
+func runShard[F any, PF shardFileOf[F]](ctx context.Context, dir string, p *Plan, s int, k Kind, compute func() (PF, error)) (bool, error) {
+	if s < 0 || s >= len(p.Shards) {
+		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
+	}
+	if err := p.is(k); err != nil {
+		return false, err
+	}
+	if _, err := readShard[F, PF](p, dir, s); err == nil {
+		return false, nil
+	}
+	f, err := compute()
+	if err != nil {
+		return false, err
+	}
+	*f.head() = shardHead{Format: Format, Plan: p.id, Shard: s}
+	return true, writeShardFile(ctx, dir, s, f)
+}
+
+// mergeShards reads every shard of the plan p, of kind k, in order and
+// passes each to add. It is an error, listing the shards, if any is
+// missing or does not belong to the plan.
+func mergeShards[F any, PF shardFileOf[F]](dir string, p *Plan, k Kind, add func(PF)) error {
+	if err := p.is(k); err != nil {
+		return err
+	}
+	if err := p.allDone(dir); err != nil {
+		return err
+	}
+	for s := range p.Shards {
+		f, err := readShard[F, PF](p, dir, s)
+		if err != nil {
+			return err
+		}
+		add(f)
+	}
+	return nil
+}
+
+// is reports whether the plan is of kind k.
+func (p *Plan) is(k Kind) error {
+	if p.Kind != k {
+		return fmt.Errorf("batch: the plan is of %s, not of %s", p.Kind, k.what())
+	}
+	return nil
+}
+
+// members returns the members held by f, read with err.
+func members[PF shardFile](f PF, err error) (int, error) {
+	if err != nil {
+		return 0, err
+	}
+	return f.members(), nil
+}
+
+// readMembers reads the file (or the response part) of shard s and
+// returns the number of members it holds (none for a response part).
+func (p *Plan) readMembers(dir string, s int) (int, error) {
+	switch p.Kind {
+	case Response:
+		_, err := p.readPart(dir, s)
+		return 0, err
+	case Variations:
+		return members(readShard[variedFile](p, dir, s))
+	case Replicas:
+		return members(readShard[replicaFile](p, dir, s))
+	}
+	return members(readShard[toysFile](p, dir, s))
+}
+
+// ShardDone reports whether shard s of the plan is present and belongs
+// to it (then running it again does nothing).
+func (p *Plan) ShardDone(dir string, s int) bool {
+	_, err := p.readMembers(dir, s)
+	return err == nil
 }
 
 // RunShard runs shard s of the plan with the toy ensemble c (made from
@@ -94,24 +214,17 @@ func (p *Plan) readShard(dir string, s int) (*partial, error) {
 // does nothing and returns false when the shard's file exists and
 // belongs to the plan; it returns true when it ran the shard.
 func RunShard(ctx context.Context, dir string, p *Plan, s int, c *validate.Config) (bool, error) {
-	if s < 0 || s >= len(p.Shards) {
-		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
-	}
-	if p.Kind != Toys {
-		return false, fmt.Errorf("batch: the plan is of a %s, not of toys", p.Kind)
-	}
-	if _, err := p.readShard(dir, s); err == nil {
-		return false, nil
-	}
-	if c.Toys != p.Toys.Toys || c.Seed != p.Toys.Seed || c.MaxK != p.Toys.MaxIterations {
-		return false, fmt.Errorf("batch: the toy ensemble does not match the plan (toys, seed or iterations differ)")
-	}
-	first, count := p.ToyRange(s)
-	e, err := validate.Run(ctx, c, first, count)
-	if err != nil {
-		return false, err
-	}
-	return true, writeShardFile(ctx, dir, s, &partial{Format: Format, Plan: p.id, Shard: s, FirstToy: first, Toys: count, Ensemble: e})
+	return runShard(ctx, dir, p, s, Toys, func() (*toysFile, error) {
+		if c.Toys != p.Toys.Toys || c.Seed != p.Toys.Seed || c.MaxK != p.Toys.MaxIterations {
+			return nil, fmt.Errorf("batch: the toy ensemble does not match the plan (toys, seed or iterations differ)")
+		}
+		first, count := p.MemberRange(s)
+		e, err := validate.Run(ctx, c, first, count)
+		if err != nil {
+			return nil, err
+		}
+		return &toysFile{FirstToy: first, Toys: count, Ensemble: e}, nil
+	})
 }
 
 // Progress is the state of a plan's shards, from their files.
@@ -122,43 +235,20 @@ type Progress struct {
 	// Bad maps the shards whose file is damaged or belongs to another
 	// plan to the reason.
 	Bad map[int]error
-	// ToysDone is the number of toys of the shards done, VariationsDone
-	// the number of systematic variations, ReplicasDone the number of
-	// bootstrap replicas.
-	ToysDone, VariationsDone, ReplicasDone int
+	// MembersDone is the number of members (Plan.Members: toys,
+	// systematic variations or bootstrap replicas) of the shards done.
+	MembersDone int
 }
 
 // Status reads the shard files of the work folder dir.
 func Status(dir string, p *Plan) (*Progress, error) {
 	pr := &Progress{Bad: map[int]error{}}
 	for s := range p.Shards {
-		var err error
-		toys := 0
-		switch p.Kind {
-		case Response:
-			_, err = p.readPart(dir, s)
-		case Replicas:
-			var pt *replicaPartial
-			if pt, err = p.readReplicas(dir, s); err == nil {
-				for _, e := range pt.Units {
-					pr.ReplicasDone += int(e.N)
-				}
-			}
-		case Variations:
-			var pt *variedPartial
-			if pt, err = p.readVaried(dir, s); err == nil {
-				pr.VariationsDone += len(pt.Varied)
-			}
-		default:
-			var pt *partial
-			if pt, err = p.readShard(dir, s); err == nil {
-				toys = pt.Toys
-			}
-		}
+		n, err := p.readMembers(dir, s)
 		switch {
 		case err == nil:
 			pr.Done = append(pr.Done, s)
-			pr.ToysDone += toys
+			pr.MembersDone += n
 		case errors.Is(err, fs.ErrNotExist):
 			pr.Missing = append(pr.Missing, s)
 		default:
@@ -182,9 +272,9 @@ func (pr *Progress) Todo() []int {
 	return t
 }
 
-// done checks that every shard of the plan is done, listing those that
-// are not.
-func (p *Plan) done(dir string) error {
+// allDone checks that every shard of the plan is done, listing those
+// that are not.
+func (p *Plan) allDone(dir string) error {
 	pr, err := Status(dir, p)
 	if err != nil {
 		return err
@@ -209,10 +299,10 @@ func (p *Plan) done(dir string) error {
 // for bit. It is an error, listing the parts, if any is missing or does
 // not belong to the plan.
 func MergeResponse(dir string, p *Plan) (*response.Built, *response.BundleInfo, error) {
-	if p.Kind != Response {
-		return nil, nil, fmt.Errorf("batch: the plan is of %s, not of a response", p.Kind)
+	if err := p.is(Response); err != nil {
+		return nil, nil, err
 	}
-	if err := p.done(dir); err != nil {
+	if err := p.allDone(dir); err != nil {
 		return nil, nil, err
 	}
 	parts := make([]*response.Part, len(p.Shards))
@@ -232,19 +322,9 @@ func MergeResponse(dir string, p *Plan) (*response.Built, *response.BundleInfo, 
 // error, listing the shards, if any is missing or does not belong to the
 // plan.
 func Merge(dir string, p *Plan) (*validate.Ensemble, error) {
-	if p.Kind != Toys {
-		return nil, fmt.Errorf("batch: the plan is of a %s, not of toys", p.Kind)
-	}
-	if err := p.done(dir); err != nil {
+	var parts []*validate.Ensemble
+	if err := mergeShards(dir, p, Toys, func(f *toysFile) { parts = append(parts, f.Ensemble) }); err != nil {
 		return nil, err
-	}
-	parts := make([]*validate.Ensemble, len(p.Shards))
-	for s := range p.Shards {
-		pt, err := p.readShard(dir, s)
-		if err != nil {
-			return nil, err
-		}
-		parts[s] = pt.Ensemble
 	}
 	return validate.Merge(parts...)
 }
@@ -287,25 +367,4 @@ func writeShardFile(ctx context.Context, dir string, s int, v any) error {
 		_, err := w.Write(js)
 		return err
 	})
-}
-
-// readShardFile reads the JSON file of shard s in dir into v and checks
-// the format and plan it records (format and plan point at the fields
-// of v that hold them); a missing file is reported with fs.ErrNotExist.
-func (p *Plan) readShardFile(dir string, s int, v any, format *int, plan *string) (string, error) {
-	path := ShardPath(dir, s)
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return path, err
-	}
-	if err := json.Unmarshal(b, v); err != nil {
-		return path, fmt.Errorf("%s: not a shard file: %v", path, err)
-	}
-	switch {
-	case *format != Format:
-		return path, fmt.Errorf("%s: shard format %d, want %d", path, *format, Format)
-	case *plan != p.id:
-		return path, fmt.Errorf("%s: belongs to another plan (%s, this plan is %s)", path, short(*plan), short(p.id))
-	}
-	return path, nil
 }

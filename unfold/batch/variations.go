@@ -25,12 +25,6 @@ func (p *Plan) CheckFiles(ins []Input) error {
 	return nil
 }
 
-// VariationRange returns the variations of shard s: first and count.
-func (p *Plan) VariationRange(s int) (first, count int) {
-	sh := p.Shards[s]
-	return sh.FirstUnit, sh.Units
-}
-
 // exact is a vector written in JSON so that it reads back bit for bit:
 // finite numbers in the shortest form that parses back to the same
 // float64, and NaN, +Inf and −Inf as the strings "NaN", "+Inf", "-Inf".
@@ -92,48 +86,33 @@ func (v *exact) UnmarshalJSON(b []byte) error {
 	return nil
 }
 
-// variedFile is the varied estimates of one variation in a shard file:
-// one for a single change, up and down for a pair.
-type variedFile struct {
+// variedEstimates is the varied estimates of one variation in a shard
+// file: one for a single change, up and down for a pair.
+type variedEstimates struct {
 	Name      string  `json:"name"`
 	Estimates []exact `json:"estimates"`
 }
 
-// variedPartial is the file of one shard of a variations plan.
-type variedPartial struct {
-	Format         int          `json:"format"`
-	Plan           string       `json:"plan"`
-	Shard          int          `json:"shard"`
-	FirstVariation int          `json:"first_variation"`
-	Varied         []variedFile `json:"varied"`
+// variedFile is the file of one shard of a variations plan.
+type variedFile struct {
+	shardHead
+	FirstVariation int               `json:"first_variation"`
+	Varied         []variedEstimates `json:"varied"`
 }
 
-// readVaried reads the file of shard s of a variations plan, as
-// readShard does for toys.
-func (p *Plan) readVaried(dir string, s int) (*variedPartial, error) {
-	var pt variedPartial
-	path, err := p.readShardFile(dir, s, &pt, &pt.Format, &pt.Plan)
-	if err != nil {
-		return nil, err
+func (f *variedFile) members() int { return len(f.Varied) }
+
+func (f *variedFile) holds(p *Plan, s int, path string) error {
+	first, count := p.MemberRange(s)
+	if f.FirstVariation != first || len(f.Varied) != count {
+		return fmt.Errorf("%s: does not hold shard %d of the plan (variations %d..%d)", path, s, first, first+count-1)
 	}
-	first, count := p.VariationRange(s)
-	switch {
-	case pt.Shard != s || pt.FirstVariation != first || len(pt.Varied) != count:
-		return nil, fmt.Errorf("%s: does not hold shard %d of the plan (variations %d..%d)", path, s, first, first+count-1)
-	}
-	for i, v := range pt.Varied {
+	for i, v := range f.Varied {
 		if v.Name != p.Variations[first+i].Name || len(v.Estimates) == 0 {
-			return nil, fmt.Errorf("%s: does not hold the variation %q of shard %d", path, p.Variations[first+i].Name, s)
+			return fmt.Errorf("%s: does not hold the variation %q of shard %d", path, p.Variations[first+i].Name, s)
 		}
 	}
-	return &pt, nil
-}
-
-// VariedDone reports whether shard s of the variations plan is present
-// and belongs to it (then running it again does nothing).
-func (p *Plan) VariedDone(dir string, s int) bool {
-	_, err := p.readVaried(dir, s)
-	return err == nil
+	return nil
 }
 
 // RunVariations runs shard s of the variations plan p: it unfolds each
@@ -142,32 +121,25 @@ func (p *Plan) VariedDone(dir string, s int) bool {
 // atomically. It does nothing and returns false when the shard's file
 // exists and belongs to the plan; it returns true when it ran the shard.
 func RunVariations(ctx context.Context, dir string, p *Plan, s int, n *analysis.Nominal) (bool, error) {
-	if s < 0 || s >= len(p.Shards) {
-		return false, fmt.Errorf("batch: shard %d: the plan has shards 0..%d", s, len(p.Shards)-1)
-	}
-	if p.Kind != Variations {
-		return false, fmt.Errorf("batch: the plan is of %s, not of systematic variations", p.Kind)
-	}
-	if _, err := p.readVaried(dir, s); err == nil {
-		return false, nil
-	}
-	first, count := p.VariationRange(s)
-	pt := &variedPartial{Format: Format, Plan: p.id, Shard: s, FirstVariation: first}
-	for k := first; k < first+count; k++ {
-		vd, err := n.Vary(ctx, k)
-		if err != nil {
-			return false, err
+	return runShard(ctx, dir, p, s, Variations, func() (*variedFile, error) {
+		first, count := p.MemberRange(s)
+		f := &variedFile{FirstVariation: first}
+		for k := first; k < first+count; k++ {
+			vd, err := n.Vary(ctx, k)
+			if err != nil {
+				return nil, err
+			}
+			if vd.Name != p.Variations[k].Name {
+				return nil, fmt.Errorf("batch: variation %d of the analysis is %q, of the plan %q: make a new plan", k, vd.Name, p.Variations[k].Name)
+			}
+			v := variedEstimates{Name: vd.Name}
+			for _, e := range vd.Estimates {
+				v.Estimates = append(v.Estimates, exact(e))
+			}
+			f.Varied = append(f.Varied, v)
 		}
-		if vd.Name != p.Variations[k].Name {
-			return false, fmt.Errorf("batch: variation %d of the analysis is %q, of the plan %q: make a new plan", k, vd.Name, p.Variations[k].Name)
-		}
-		f := variedFile{Name: vd.Name}
-		for _, e := range vd.Estimates {
-			f.Estimates = append(f.Estimates, exact(e))
-		}
-		pt.Varied = append(pt.Varied, f)
-	}
-	return true, writeShardFile(ctx, dir, s, pt)
+		return f, nil
+	})
 }
 
 // MergeVariations reads every shard of the variations plan and returns
@@ -175,25 +147,18 @@ func RunVariations(ctx context.Context, dir string, p *Plan, s int, n *analysis.
 // (what analysis.Nominal.Finish takes). It is an error, listing the
 // shards, if any is missing or does not belong to the plan.
 func MergeVariations(dir string, p *Plan) ([]*analysis.Varied, error) {
-	if p.Kind != Variations {
-		return nil, fmt.Errorf("batch: the plan is of %s, not of systematic variations", p.Kind)
-	}
-	if err := p.done(dir); err != nil {
-		return nil, err
-	}
 	var out []*analysis.Varied
-	for s := range p.Shards {
-		pt, err := p.readVaried(dir, s)
-		if err != nil {
-			return nil, err
-		}
-		for _, f := range pt.Varied {
-			vd := &analysis.Varied{Name: f.Name}
-			for _, e := range f.Estimates {
+	err := mergeShards(dir, p, Variations, func(f *variedFile) {
+		for _, v := range f.Varied {
+			vd := &analysis.Varied{Name: v.Name}
+			for _, e := range v.Estimates {
 				vd.Estimates = append(vd.Estimates, []float64(e))
 			}
 			out = append(out, vd)
 		}
+	})
+	if err != nil {
+		return nil, err
 	}
 	return out, nil
 }

@@ -180,6 +180,7 @@ type Builder struct {
 	truth, reco Locator
 	merger      *Merger
 	withDiag    bool
+	diag        *diagMap // the reco bins in the truth scheme, made by the first sample
 	samples     int
 	spare       chan *shardState // merged shard states, for the next shards
 	// OnShard, when not nil, receives the partial response of every
@@ -209,14 +210,18 @@ func NewBuilder(truth, reco Locator) *Builder {
 }
 
 // shardState is what a shard has gathered so far, on its way from the
-// event loop to the accumulator's goroutine. The sums of each bin sit
-// side by side (one cache line per event and histogram).
+// event loop to the accumulator's goroutine. The sums of one bin that
+// an event adds to are kept side by side (one cache line per event and
+// level, and one for both when an event's reco values fall in its truth
+// bin): gen[t] holds G_t, its sum of squared weights, and the Diagonal
+// and RecoInTruth sums of truth bin t (these two only with purity);
+// fake[r] the fakes' sums.
 type shardState struct {
-	lo, hi int64
-	gen    [][2]float64 // per truth bin: weights, squared weights
-	fake   [][2]float64 // per reco bin: weights, squared weights of the fakes
-	diag   [][2]float64 // per truth bin: RecoInTruth, Diagonal; nil without purity
-	sum    Summary
+	lo, hi   int64
+	gen      [][4]float64
+	fake     [][2]float64
+	withDiag bool
+	sum      Summary
 }
 
 // Add streams the events of sim into the response. It returns the
@@ -266,14 +271,9 @@ func (b *Builder) newShard(lo int64) *shardState {
 	case st = <-b.spare:
 	default:
 		nt, nr := b.truth.Len(), b.reco.Len()
-		st = &shardState{gen: make([][2]float64, nt), fake: make([][2]float64, nr)}
+		st = &shardState{gen: make([][4]float64, nt), fake: make([][2]float64, nr)}
 	}
-	if b.withDiag && st.diag == nil {
-		st.diag = make([][2]float64, b.truth.Len())
-	} else if !b.withDiag {
-		st.diag = nil
-	}
-	st.lo, st.hi, st.sum = lo, lo, Summary{}
+	st.lo, st.hi, st.sum, st.withDiag = lo, lo, Summary{}, b.withDiag
 	return st
 }
 
@@ -295,7 +295,6 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	// Handed on: the arrays serve the next shard.
 	clear(st.gen)
 	clear(st.fake)
-	clear(st.diag)
 	select {
 	case b.spare <- st:
 	default:
@@ -315,10 +314,10 @@ func (st *shardState) built(m *sparse.Matrix) *Built {
 	for i, v := range st.fake {
 		p.Fakes[i], p.FakesSumW2[i] = v[0], v[1]
 	}
-	if st.diag != nil {
-		p.RecoInTruth, p.Diagonal = make([]float64, nt), make([]float64, nt)
-		for j, v := range st.diag {
-			p.RecoInTruth[j], p.Diagonal[j] = v[0], v[1]
+	if st.withDiag {
+		p.Diagonal, p.RecoInTruth = make([]float64, nt), make([]float64, nt)
+		for j, v := range st.gen {
+			p.Diagonal[j], p.RecoInTruth[j] = v[2], v[3]
 		}
 	}
 	return p
@@ -352,7 +351,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 				panic("response: RecoInTruth names a reco observable that does not exist")
 			}
 		}
-		dg = newDiagMap(b.truth, b.reco, sim.RecoInTruth)
+		dg = b.diagFor(sim.RecoInTruth)
 	}
 	newWork := func() func(*scratch, *batch) error {
 		weight := instantiate(sim.Weight)
@@ -482,10 +481,10 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 			}
 			if withDiag {
 				if d := bt.diag[k]; d >= 0 {
-					p := &st.diag[d]
-					p[0] += w
+					p := &st.gen[d]
+					p[3] += w
 					if d == t {
-						p[1] += w
+						p[2] += w
 					}
 				}
 			}

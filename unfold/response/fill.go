@@ -385,8 +385,9 @@ func (e *EventError) Unwrap() error { return e.Err }
 // locateDiag fills dst with the truth bin of each event's reco
 // observables, which s.obs still holds from locating the reco level
 // into reco (codeRejected where the reco selection failed). A reco bin
-// that lies entirely inside one truth bin gives that bin directly;
-// other events are located in the truth scheme.
+// that lies inside one truth bin gives that bin directly, one that
+// straddles one truth edge gives it with one comparison; other events
+// are located in the truth scheme.
 func (s *scratch) locateDiag(dst, reco []int32, m *diagMap, haveReco bool) {
 	if !haveReco {
 		for k := range dst {
@@ -399,14 +400,23 @@ func (s *scratch) locateDiag(dst, reco []int32, m *diagMap, haveReco bool) {
 		pt = append(pt, 0)
 	}
 	s.diagPoint = pt
+	cells, splits := m.cells, m.splits
 	for k, r := range reco {
-		switch {
-		case r == codeRejected:
+		if r == codeRejected {
 			dst[k] = codeRejected
 			continue
-		case r >= 0 && m.direct[r] >= 0:
-			dst[k] = m.direct[r]
-			continue
+		}
+		if r >= 0 {
+			if c := cells[r]; c.truth >= 0 {
+				t := c.truth
+				if c.split != 0 {
+					if sp := &splits[c.split-1]; s.obs[sp.obs][k] >= sp.edge {
+						t += sp.step
+					}
+				}
+				dst[k] = t
+				continue
+			}
 		}
 		for a, ax := range m.axes {
 			pt[a] = s.obs[ax][k]

@@ -446,16 +446,23 @@ func TestRecoInTruthDirectMap(t *testing.T) {
 		t.Errorf("diagonal %v\nwant     %v\nreco in truth %v\nwant          %v", r.Diagonal, diag, r.RecoInTruth, rit)
 	}
 	m := newDiagMap(truth, reco, []int{0, 1})
-	direct := 0
-	for _, d := range m.direct {
-		if d >= 0 {
+	direct, split := 0, 0
+	for _, c := range m.cells {
+		switch {
+		case c.truth >= 0 && c.split == 0:
 			direct++
+		case c.truth >= 0:
+			split++
 		}
 	}
 	// 6×4 in-range reco bins; x bin [0.25,0.35) and y bin [0.45,0.55)
-	// straddle truth edges: 5×3 = 15 lie inside one truth bin.
-	if direct != 15 {
-		t.Errorf("%d reco bins mapped directly, want 15", direct)
+	// straddle truth edges: 5×3 = 15 lie inside one truth bin, 3+5 = 8
+	// straddle one truth edge (one comparison), 1 straddles two. Of the
+	// 24 reco flow bins, those in a switched-on truth flow bin: the x
+	// overflow with the y underflow and the 3 y bins inside one truth bin
+	// (4), the y underflow with the 5 x bins inside one truth bin (5).
+	if direct != 15+9 || split != 8 {
+		t.Errorf("%d reco bins mapped directly and %d split, want 24 and 8", direct, split)
 	}
 }
 

@@ -106,7 +106,7 @@ func (g *Merger) Add(p *Built) error {
 // addShard merges a shard built here, its histograms side by side, as Add
 // merges its partial response: the same sums in the same order.
 func (g *Merger) addShard(m *sparse.Matrix, st *shardState) error {
-	if err := g.start(st.diag != nil); err != nil {
+	if err := g.start(st.withDiag); err != nil {
 		return err
 	}
 	gen, gen2 := g.r.Generated[:len(st.gen)], g.r.GeneratedSumW2[:len(st.gen)]
@@ -119,11 +119,11 @@ func (g *Merger) addShard(m *sparse.Matrix, st *shardState) error {
 		fake[i] += v[0]
 		fake2[i] += v[1]
 	}
-	if st.diag != nil {
-		dg, rit := g.r.Diagonal[:len(st.diag)], g.r.RecoInTruth[:len(st.diag)]
-		for j, v := range st.diag {
-			rit[j] += v[0]
-			dg[j] += v[1]
+	if st.withDiag {
+		dg, rit := g.r.Diagonal[:len(st.gen)], g.r.RecoInTruth[:len(st.gen)]
+		for j, v := range st.gen {
+			dg[j] += v[2]
+			rit[j] += v[3]
 		}
 	}
 	g.r.Summary.add(&st.sum)

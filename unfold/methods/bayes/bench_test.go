@@ -461,3 +461,71 @@ func BenchmarkFineToys(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkFineToyBlocks: per-bin variances from 32 Poisson toys of 4
+// iterations at 500,000 × 1,000,000 (whole Unfold calls, the nominal
+// unfolding included), the toys in blocks (one SweepBlock per block of
+// unfold.ToyBlock toys and iteration) and one toy per core at a time (a
+// Sweep per toy and iteration, the earlier path), interleaved. Reports
+// the medians, their ratio and the peak heap above the problem's.
+func BenchmarkFineToyBlocks(b *testing.B) {
+	benchBlocks(b, &opts{Iterations: 4, Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: 32, Seed: 1}, &perToy)
+}
+
+// BenchmarkFineToyBlockRunner: the iteration of 8 toys of 4 iterations
+// at the fine grid without their draws, in one block (RunBlock) and one
+// toy after another (the toy runner of each, both cores on its sweeps),
+// interleaved rounds on the same pseudo-data; reports the medians per
+// toy, their ratio and the ratio of a toy in the block to 4 marginal
+// iterations of the nominal problem measured in the same rounds.
+func BenchmarkFineToyBlockRunner(b *testing.B) {
+	p := fineProblem(b)
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	ctx := context.Background()
+	f0, err := (&Settings{Iterations: 4}).Fit(ctx, pr)
+	if err != nil {
+		b.Fatal(err)
+	}
+	f := f0.(*fit)
+	rng := rand.New(rand.NewPCG(1, 2))
+	n := make([][]float64, unfold.ToyBlock)
+	for s := range n {
+		n[s] = make([]float64, len(p.Data))
+		for i, v := range p.Data {
+			n[s][i] = math.Max(0, math.Round(v+math.Sqrt(v)*rng.NormFloat64()))
+		}
+	}
+	br, one := f.NewToyBlockRunner(), f.NewToyRunner()
+	it := newIterator(f.m, nil)
+	it.noLL = true
+	var tb, to, ti []time.Duration
+	b.ResetTimer()
+	for range b.N {
+		t0 := time.Now()
+		if _, err := br.RunBlock(ctx, n, nil, nil); err != nil {
+			b.Fatal(err)
+		}
+		tb = append(tb, time.Since(t0)/unfold.ToyBlock)
+		t0 = time.Now()
+		for s := range n {
+			if _, err := one.Run(ctx, n[s], nil); err != nil {
+				b.Fatal(err)
+			}
+		}
+		to = append(to, time.Since(t0)/unfold.ToyBlock)
+		t0 = time.Now()
+		if err := it.iterate(ctx, f.m.n, fixedIterations(4), nil, &Details{}); err != nil {
+			b.Fatal(err)
+		}
+		ti = append(ti, time.Since(t0))
+	}
+	b.StopTimer()
+	mb, mo, mi := median(tb), median(to), median(ti)
+	b.ReportMetric(mb.Seconds()*1e3, "ms/toy-in-block")
+	b.ReportMetric(mo.Seconds()*1e3, "ms/toy-alone")
+	b.ReportMetric(float64(mb)/float64(mo), "block/alone")
+	b.ReportMetric(float64(mb)/float64(mi), "toy-in-block/4-iterations")
+}

@@ -27,7 +27,11 @@
 // fold; as each fixed row range of that fold is final, the sweep's rows
 // hook forms the next ν, n/ν and the range's share of the
 // log-likelihood, and as each column block is updated, its column hook
-// sums the block's share of χ² and of the change. The log-likelihood is
+// sums χ² and the change over each chunk of truth bins once the last
+// of the blocks the chunk overlaps is updated (on amd64 with AVX the
+// runs without the log-likelihood form n/ν four reco bins at a time,
+// with the same correctly rounded operations and bits). The
+// log-likelihood is
 // summed within each row range of the matrix (sparse.Matrix.RowRanges)
 // and the ranges in order; χ² and the change within fixed chunks of
 // truth bins and the chunks in order. Runs whose details are not kept
@@ -102,7 +106,10 @@
 //     through the same recursion, one fused sweep per probe and
 //     iteration;
 //   - the Poisson toys (Fit.NewToyRunner) are unfolded with the same
-//     number of iterations as the data.
+//     number of iterations as the data; without smoothing they go in
+//     blocks of unfold.ToyBlock (Fit.NewToyBlockRunner), one
+//     sparse.SweepBlock per block and iteration, every toy with the bits
+//     it gets alone.
 //
 // # Re-runs
 //

@@ -9,8 +9,9 @@ import (
 )
 
 // The χ² and the change between iterations are summed inside the sweep
-// (the column hook of sparse.SweepHooks) for the chunks within one column
-// block and after it for the chunks straddling two. Against an
+// (the column hook of sparse.SweepHooks), each chunk by the hook that
+// finishes the last column block it overlaps, whether it lies within one
+// block or straddles several. Against an
 // independent computation from the kept estimates of every step: χ²(k) =
 // Σ_j eps_j (μ_j(k) − μ_j(k−1))² / μ_j(k) over μ_j(k) > 0 and the change
 // Σ_j |μ_j(k) − μ_j(k−1)| / Σ_j μ_j(k) (method.md §5 Stopping), summed

@@ -4,7 +4,7 @@ import (
 	"context"
 	"math"
 	"runtime"
-	"slices"
+	"sync/atomic"
 
 	"github.com/desmear/desmear/sparse"
 	"github.com/desmear/desmear/unfold"
@@ -159,13 +159,20 @@ type iterator struct {
 	rowsInPlace func(r, lo, hi int)
 	// The χ² pass fused into the sweep: the partial sums of compare's
 	// chunks (parallel.ChunkLen truth bins each, as parallel.Reducer
-	// cuts them), those inside one column range of the matrix summed by
-	// its column hook, the chunks straddling two ranges (straddle) after
-	// the sweep; fused reports that parts holds μ(k+1) against μ(k).
-	parts    [][4]float64
-	straddle []int
-	cols     func(lo, hi int)
-	fused    bool
+	// cuts them), each summed by the column hook that finishes the last
+	// of the matrix's column ranges overlapping it. cover[c] is the
+	// number of column ranges overlapping chunk c and left[c] counts
+	// down the ranges not finished in the current sweep; the hook whose
+	// decrement reaches 0 sums the chunk, after the updates of all its
+	// columns (the atomic decrements order them before it), so chunks
+	// straddling two ranges are summed in the sweep too, on the
+	// goroutines running it. fused reports that parts holds μ(k+1)
+	// against μ(k).
+	parts [][4]float64
+	cover []int32
+	left  []atomic.Int32
+	cols  func(lo, hi int)
+	fused bool
 }
 
 func newIterator(m *model, sm *smoother) *iterator {
@@ -221,19 +228,23 @@ func newIterator(m *model, sm *smoother) *iterator {
 		it.ll[r] = it.recoRange(it.fnext, it.nunext, it.fnext, lo, hi)
 	}
 	const cl = parallel.ChunkLen
-	it.parts = make([][4]float64, (m.nt+cl-1)/cl)
+	nc := (m.nt + cl - 1) / cl
+	it.parts, it.cover, it.left = make([][4]float64, nc), make([]int32, nc), make([]atomic.Int32, nc)
 	cb := m.a.ColRanges()
-	for c := range it.parts {
-		lo, hi := c*cl, min(m.nt, (c+1)*cl)
-		k, _ := slices.BinarySearch(cb, lo+1) // first bound above lo
-		if k < len(cb) && cb[k] < hi {
-			it.straddle = append(it.straddle, c)
+	for r := 0; r+1 < len(cb); r++ {
+		if lo, hi := cb[r], cb[r+1]; lo < hi {
+			for c := lo / cl; c <= (hi-1)/cl; c++ {
+				it.cover[c]++
+			}
 		}
 	}
 	it.cols = func(lo, hi int) {
-		for c := (lo + cl - 1) / cl; c*cl < hi; c++ {
-			if e := min(m.nt, (c+1)*cl); e <= hi {
-				it.parts[c] = it.chunk(c*cl, e)
+		if lo >= hi {
+			return
+		}
+		for c := lo / cl; c <= (hi-1)/cl; c++ {
+			if it.left[c].Add(-1) == 0 {
+				it.parts[c] = it.chunk(c*cl, min(m.nt, (c+1)*cl))
 			}
 		}
 	}
@@ -296,15 +307,7 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 		// the same ν and n/ν, without the logarithms
 		switch {
 		case b != nil && it.lazyNu:
-			bb := b[lo:hi]
-			bb = bb[:len(f)]
-			for i, v := range f {
-				v += bb[i]
-				yy[i] = 0
-				if v > 0 {
-					yy[i] = nn[i] / v
-				}
-			}
+			ratios(yy, f, b[lo:hi:hi][:len(f)], nn)
 		case b != nil:
 			bb, vv := b[lo:hi], nu[lo:hi]
 			bb, vv = bb[:len(f)], vv[:len(f)]
@@ -317,12 +320,7 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 				}
 			}
 		default:
-			for i, v := range f {
-				yy[i] = 0
-				if v > 0 {
-					yy[i] = nn[i] / v
-				}
-			}
+			ratios(yy, f, nil, nn)
 		}
 		return 0
 	}
@@ -363,6 +361,30 @@ func (it *iterator) recoRange(fold, nu, y []float64, lo, hi int) float64 {
 		}
 	}
 	return ll
+}
+
+// ratiosGo is ratios in Go: y[i] = n[i]/ν_i where ν_i = f[i] (+ b[i]
+// when b is not nil) is above 0, and 0 elsewhere (the lengths are those
+// of f; y may be f itself).
+func ratiosGo(y, f, b, n []float64) {
+	y, n = y[:len(f)], n[:len(f)]
+	if b != nil {
+		b = b[:len(f)]
+		for i, v := range f {
+			v += b[i]
+			y[i] = 0
+			if v > 0 {
+				y[i] = n[i] / v
+			}
+		}
+		return
+	}
+	for i, v := range f {
+		y[i] = 0
+		if v > 0 {
+			y[i] = n[i] / v
+		}
+	}
 }
 
 // updateFunc returns the sweep's update from it.mu into it.next, storing
@@ -406,10 +428,10 @@ func (it *iterator) emStepReco(mode int) float64 {
 			rows = nil
 			clear(it.ll)
 		}
-		m.a.SweepHooks(it.fnext, it.y, upd, rows, it.cols)
-		for _, c := range it.straddle {
-			it.parts[c] = it.chunk(c*parallel.ChunkLen, min(m.nt, (c+1)*parallel.ChunkLen))
+		for c, n := range it.cover {
+			it.left[c].Store(n)
 		}
+		m.a.SweepHooks(it.fnext, it.y, upd, rows, it.cols)
 		it.fused = true
 		return it.sumLL()
 	}
@@ -542,7 +564,7 @@ func (it *iterator) iterate(ctx context.Context, n []float64, rs *resolved, tan 
 			it.y, it.ynext = it.ynext, it.y
 		}
 		if math.IsNaN(ll) || math.IsInf(ll, 0) || math.IsNaN(chi2) || math.IsInf(chi2, 0) {
-			return &unfold.NumericalError{Iteration: k, Reason: "a non-finite value appeared (overflow or underflow: the response, generated counts and data span more orders of magnitude than the iteration can hold); rescale them, for example to counts of order 1 or more"}
+			return nonFinite(k)
 		}
 		res.History = append(res.History, Step{Iteration: k, Chi2: chi2, Change: change, LogLikelihood: ll})
 		res.Iterations = k

@@ -86,6 +86,17 @@ func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
 			it, ig, ie := pr.it, m.invG[j], m.invEps[j]
 			gj, muj := it.g[j], it.mu[j]
 			dmu := pr.dmu[pr.cur : pr.cur+len(x)]
+			if len(x) == 8 {
+				// the same, with fixed-size arrays: fewer bounds checks
+				d, g8, x8 := (*[8][]float64)(dmu), (*[8]float64)(g), (*[8]float64)(x)
+				for s := range 8 {
+					ds := d[s]
+					v := (gj*ds[j] + muj*g8[s]*ig) * ie
+					ds[j] = v
+					x8[s] = v * ig
+				}
+				return
+			}
 			for s, ga := range g {
 				v := (gj*dmu[s][j] + muj*ga*ig) * ie
 				dmu[s][j] = v
@@ -317,20 +328,38 @@ func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
 		pr.red.Run(len(a), func(lo, hi int, _ *[4]float64) {
 			// reco bin by reco bin, the probes of the block inside: the
 			// same arithmetic per element as probe by probe, written in
-			// the order of the interleaved vectors
-			for i := lo; i < hi; i++ {
-				word, bit := i>>6, uint(i)&63
-				ai, wi := math.Float64bits(a[i]), w[i]
-				row := tf[i*k : i*k+k]
-				for o := range row {
-					flip := (^sn[o][word] >> bit & 1) << 63
-					y := math.Float64frombits(ai^flip) - wi*row[o]
+			// the order of the interleaved vectors; the probes' sign
+			// words are read once per 64 reco bins
+			var nn, nb [unfold.ProbeBlock]uint64 // the signs, negated
+			for i0 := lo; i0 < hi; {
+				word := i0 >> 6
+				i1 := min((word+1)<<6, hi)
+				for o := range k {
+					nn[o] = ^sn[o][word]
 					if sb != nil {
-						flip := (^sb[o][word] >> bit & 1) << 63
-						y -= math.Float64frombits(math.Float64bits(c[i]) ^ flip)
+						nb[o] = ^sb[o][word]
 					}
-					row[o] = y
 				}
+				if k == 8 && sb == nil {
+					blockY8(tf[8*i0:8*i1], a[i0:i1], w[i0:i1], &nn, uint(i0)&63)
+					i0 = i1
+					continue
+				}
+				for i := i0; i < i1; i++ {
+					bit := uint(i) & 63
+					ai, wi := math.Float64bits(a[i]), w[i]
+					row := tf[i*k : i*k+k]
+					for o := range row {
+						flip := (nn[o] >> bit & 1) << 63
+						y := math.Float64frombits(ai^flip) - wi*row[o]
+						if sb != nil {
+							flip := (nb[o] >> bit & 1) << 63
+							y -= math.Float64frombits(math.Float64bits(c[i]) ^ flip)
+						}
+						row[o] = y
+					}
+				}
+				i0 = i1
 			}
 		})
 		pr.cur = first
@@ -339,4 +368,25 @@ func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
 		pr.tfold[b], pr.spare = next, tf[:cap(tf)]
 	}
 	return nil
+}
+
+// blockY8 is the y pass of stepBlocks for a block of 8 probes without a
+// background variance, over reco bins of one word of signs starting at
+// bit bit0: row i of tf (8 interleaved probes) becomes ±a_i − w_i·tf, with
+// the sign of probe o from bit bit0+i of nn[o] (set: minus).
+func blockY8(tf, a, w []float64, nn *[unfold.ProbeBlock]uint64, bit0 uint) {
+	w = w[:len(a)]
+	for i, av := range a {
+		bit := bit0 + uint(i)
+		ai, wi := math.Float64bits(av), w[i]
+		row := (*[8]float64)(tf[8*i : 8*i+8])
+		row[0] = math.Float64frombits(ai^(nn[0]>>bit&1)<<63) - wi*row[0]
+		row[1] = math.Float64frombits(ai^(nn[1]>>bit&1)<<63) - wi*row[1]
+		row[2] = math.Float64frombits(ai^(nn[2]>>bit&1)<<63) - wi*row[2]
+		row[3] = math.Float64frombits(ai^(nn[3]>>bit&1)<<63) - wi*row[3]
+		row[4] = math.Float64frombits(ai^(nn[4]>>bit&1)<<63) - wi*row[4]
+		row[5] = math.Float64frombits(ai^(nn[5]>>bit&1)<<63) - wi*row[5]
+		row[6] = math.Float64frombits(ai^(nn[6]>>bit&1)<<63) - wi*row[6]
+		row[7] = math.Float64frombits(ai^(nn[7]>>bit&1)<<63) - wi*row[7]
+	}
 }

@@ -187,29 +187,33 @@ func TestUnfolderAllocations(t *testing.T) {
 
 // Probes in blocks are the same computation as probes one by one
 // (SweepBlock sums each vector as Sweep does): the same bits for every
-// probe, with a propagated background variance and a last block of
-// fewer probes. The one-by-one path is checked against the dense
-// Jacobian (method.md §4) by TestProbesAreJacobianVectorProducts.
+// probe, with and without a propagated background variance and with a
+// last block of fewer probes. The one-by-one path is checked against the
+// dense Jacobian (method.md §4) by TestProbesAreJacobianVectorProducts.
 func TestProbeBlocksMatchOneByOne(t *testing.T) {
-	p := randomProblem(t, 14, 400, 900, 8, true)
-	p.BackgroundVariance = p.Background
-	m, err := prepare(p, unfold.InModel)
-	if err != nil {
-		t.Fatal(err)
-	}
-	rs, _ := (&opts{Iterations: 4}).resolve()
-	const n = 2*unfold.ProbeBlock + 3
-	run := func(blocked bool) [][]float64 {
-		pr := newProbes(m, unfold.NewProbes(m.p, 5, n, 21), blocked)
-		if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
+	for _, bkgVar := range []bool{true, false} {
+		p := randomProblem(t, 14, 400, 900, 8, true)
+		if bkgVar {
+			p.BackgroundVariance = p.Background
+		}
+		m, err := prepare(p, unfold.InModel)
+		if err != nil {
 			t.Fatal(err)
 		}
-		return pr.dmu
-	}
-	one, blk := run(false), run(true)
-	for s := range one {
-		if !slices.Equal(one[s], blk[s]) {
-			t.Fatalf("probe %d: blocks give other bits than one by one (max rel. diff %g)", s, maxRelDiff(one[s], blk[s]))
+		rs, _ := (&opts{Iterations: 4}).resolve()
+		const n = 2*unfold.ProbeBlock + 3
+		run := func(blocked bool) [][]float64 {
+			pr := newProbes(m, unfold.NewProbes(m.p, 5, n, 21), blocked)
+			if _, err := newIterator(m, nil).run(context.Background(), m.n, rs, pr); err != nil {
+				t.Fatal(err)
+			}
+			return pr.dmu
+		}
+		one, blk := run(false), run(true)
+		for s := range one {
+			if !slices.Equal(one[s], blk[s]) {
+				t.Fatalf("background variance %v, probe %d: blocks give other bits than one by one (max rel. diff %g)", bkgVar, s, maxRelDiff(one[s], blk[s]))
+			}
 		}
 	}
 }
