@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/bits"
 	"runtime"
+	"runtime/debug"
 	"sync"
 	"sync/atomic"
 )
@@ -16,7 +17,7 @@ const DefaultChunkEntries = 1 << 19
 
 // DefaultWindow is the default number of batches an Accumulator holds
 // ahead of the next expected sequence number.
-const DefaultWindow = 64
+const DefaultWindow = 16
 
 // MaxReportedCells is the largest number of cells listed individually in
 // a Report; beyond it cells are only counted.
@@ -42,8 +43,67 @@ type AccumulatorOptions struct {
 	// memory of batches that arrive out of order and does not change the
 	// result. Zero means DefaultWindow.
 	Window int
+	// MemoryLimit, when positive, bounds the accumulation's memory
+	// budget (AccumulatorBytes) in bytes: once the distinct cells
+	// gathered so far need more, the accumulation ends with a
+	// *MemoryError. Zero means no limit.
+	MemoryLimit int64
 
 	segmentCells int // store segment size (tests); zero means maxSegment
+}
+
+// AccumulatorBytes returns the memory budget of an accumulation of a
+// matrix of cols columns that holds cells distinct cells after entries
+// entries, fed from goroutines goroutines in batches of at most batch
+// entries, under opt (nil for the defaults), in bytes:
+//
+//	48·cells          the store: 24 bytes per cell, in arrays at least half full
+//	+ 6·cells         the summed chunks waiting to be merged (a quarter of the store)
+//	+ 56·k·(G+1)      the chunks being filled and sorted (32 bytes per entry) and their sums (24)
+//	+ 16·(W+G)·B      the batches held ahead of the next expected one, and being packed
+//	+ 8·(cols+1)      the column pointers of the matrix
+//
+// with k = min(ChunkEntries, entries), W = Window, B = batch and
+// G = goroutines. Beyond the first chunk the number of entries (events)
+// moves only the time. The matrix Matrix returns takes 24 bytes per cell
+// (8 with its row index, 8 with its value, 8 with its sum of squared
+// weights) plus the column pointers; Matrix writes it while it hands the
+// store back to the system, segment by segment, so the peak stays within
+// the budget. What the caller holds besides (its own batches, histograms
+// over the bins) is not included. The store's arrays are about two
+// thirds full on average, so the budget is an upper bound by about a
+// third.
+func AccumulatorBytes(entries int64, cells, cols int, opt *AccumulatorOptions, goroutines, batch int) int64 {
+	k, w := int64(DefaultChunkEntries), int64(DefaultWindow)
+	if opt != nil && opt.ChunkEntries > 0 {
+		k = int64(opt.ChunkEntries)
+	}
+	if opt != nil && opt.Window > 0 {
+		w = int64(opt.Window)
+	}
+	k = min(k, max(entries, 0))
+	return 54*int64(cells) + 56*k*int64(goroutines+1) + 16*(w+int64(goroutines))*int64(batch) + 8*int64(cols+1)
+}
+
+// budget is AccumulatorBytes for the accumulator's state (under a.mu).
+func (a *Accumulator) budget(cells int) int64 {
+	opt := AccumulatorOptions{ChunkEntries: a.chunkCap, Window: int(a.window)}
+	return AccumulatorBytes(a.entries, cells, a.cols, &opt, runtime.GOMAXPROCS(0), a.batch)
+}
+
+// MemoryError reports that an accumulation was stopped because the
+// memory budget of the distinct cells gathered so far (AccumulatorBytes)
+// exceeds AccumulatorOptions.MemoryLimit.
+type MemoryError struct {
+	Rows, Cols int   // the matrix's dimensions
+	Cells      int   // distinct cells when the accumulation stopped
+	Bytes      int64 // their budget
+	Limit      int64
+}
+
+func (e *MemoryError) Error() string {
+	return fmt.Sprintf("sparse: the accumulation of a %d×%d matrix reached %d distinct cells, whose memory budget of %.0f MiB (54 bytes per cell and the buffers) is above the memory limit of %.0f MiB; use coarser binnings (fewer cells), or raise the memory limit",
+		e.Rows, e.Cols, e.Cells, float64(e.Bytes)/(1<<20), float64(e.Limit)/(1<<20))
 }
 
 // Cell is one cell of an accumulated matrix.
@@ -102,6 +162,7 @@ type Accumulator struct {
 	chunkCap   int
 	window     uint64
 	maxSeg     int
+	limit      int64 // memory limit, 0 for none
 
 	mu      sync.Mutex
 	cond    sync.Cond
@@ -114,6 +175,7 @@ type Accumulator struct {
 	chunk   *chunkBuf
 	nClosed uint64 // chunks closed so far
 	entries int64
+	batch   int // largest batch so far, in entries
 	freeC   []*chunkBuf
 	freeH   []*heldBatch
 
@@ -125,7 +187,7 @@ type Accumulator struct {
 	nextMerge  uint64
 	merging    bool
 	segs       []*segment   // the distinct cells, split by key range
-	tmp        []*[2][]cell // per merging goroutine, for combining run parts
+	tmp        []*mergeWork // per merging goroutine
 	pool       backPool     // segment arrays given up, for reuse
 	cells      int          // number of distinct cells in segs
 
@@ -162,9 +224,10 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 	}
 	a := &Accumulator{rows: rows, cols: cols, chunkCap: DefaultChunkEntries, window: DefaultWindow, maxSeg: maxSegment}
 	if opt != nil {
-		if opt.ChunkEntries < 0 || opt.Window < 0 {
-			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d)", opt.ChunkEntries, opt.Window)
+		if opt.ChunkEntries < 0 || opt.Window < 0 || opt.MemoryLimit < 0 {
+			return nil, fmt.Errorf("sparse: negative accumulator option (ChunkEntries %d, Window %d, MemoryLimit %d)", opt.ChunkEntries, opt.Window, opt.MemoryLimit)
 		}
+		a.limit = opt.MemoryLimit
 		if opt.ChunkEntries > 0 {
 			a.chunkCap = opt.ChunkEntries
 		}
@@ -175,6 +238,7 @@ func NewAccumulator(rows, cols int, opt *AccumulatorOptions) (*Accumulator, erro
 			a.maxSeg = opt.segmentCells
 		}
 	}
+	a.pool.size = segArray(a.maxSeg)
 	if rows > 0 {
 		a.rowBits = uint(bits.Len(uint(rows - 1)))
 	}
@@ -361,6 +425,7 @@ func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
 		return err
 	}
 	a.held[seq] = h
+	a.batch = max(a.batch, len(h.keys))
 	if seq+1 > a.heldMax {
 		a.heldMax = seq + 1
 	}
@@ -378,10 +443,16 @@ func (a *Accumulator) submit(seq uint64, h *heldBatch) error {
 	}
 	a.cond.Broadcast()
 	a.mu.Unlock()
+	if len(closed) == 0 {
+		return nil
+	}
 	for _, c := range closed {
 		a.sortAndMerge(c, false)
 	}
-	return nil
+	a.mu.Lock()
+	err := a.err
+	a.mu.Unlock()
+	return err
 }
 
 // appendStream appends a batch to the stream (under a.mu), closing every
@@ -487,9 +558,13 @@ func (a *Accumulator) sortAndMerge(c *chunkBuf, force bool) {
 		a.mergeGroup(group)
 		a.mu.Lock()
 		a.merging = false
+		if b := a.budget(a.cells); a.limit > 0 && b > a.limit && a.err == nil {
+			a.err = &MemoryError{Rows: a.rows, Cols: a.cols, Cells: a.cells, Bytes: b, Limit: a.limit}
+			a.cond.Broadcast()
+		}
 		for _, r := range group {
 			a.readyCells -= len(r.cells)
-			if len(a.freeR) < 4 {
+			if len(a.freeR) < maxGroup {
 				a.freeR = append(a.freeR, r.cells[:0])
 			}
 			r.cells = nil
@@ -527,19 +602,37 @@ func (c *chunkBuf) sortRun(keyBits uint, out []cell) []cell {
 	return out
 }
 
-// maxSegment is the largest number of cells a store segment holds
-// before it is split (6 MiB of cells: a segment being merged stays in
+// maxSegment is the number of cells a store segment is cut to when it
+// overflows its array (6 MiB of cells: a segment being merged stays in
 // cache).
 const maxSegment = 1 << 18
+
+// segArray returns the capacity, in cells, of a full-size segment array
+// for segments of at most maxSeg cells after a split: a quarter more, so
+// that a segment absorbs new cells in place for a while before it is cut
+// again.
+func segArray(maxSeg int) int { return maxSeg + max(maxSeg/4, 1) }
 
 // segment is the part of the store with keys below hi (and at or above
 // the previous segment's hi): sorted distinct cells, a window of a backing
 // array with some spare capacity, placed at its start or at its end.
+// Every backing array but that of a store of one small segment has the
+// same capacity (segArray), so that arrays given up by one segment are
+// taken by the next: the store's growth creates no garbage.
 type segment struct {
 	hi    uint64
 	cells []cell
 	back  []cell
-	runs  [][]cell // the parts of the runs being merged
+	runs  [][]cell   // the parts of the runs being merged
+	split []*segment // the pieces replacing the segment after an overflow
+}
+
+// mergeWork is a merging goroutine's scratch: two buffers for combining
+// the run parts of a segment, and one for a segment that overflows its
+// array before it is cut.
+type mergeWork struct {
+	tmp [2][]cell
+	big []cell
 }
 
 // mergeGroup merges consecutive summed runs into the store, one group at
@@ -565,15 +658,15 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 	var next atomic.Int64
 	g := min(runtime.GOMAXPROCS(0), len(a.segs))
 	for len(a.tmp) < g {
-		a.tmp = append(a.tmp, new([2][]cell))
+		a.tmp = append(a.tmp, new(mergeWork))
 	}
-	work := func(tmp *[2][]cell) {
+	work := func(w *mergeWork) {
 		for {
 			i := int(next.Add(1) - 1)
 			if i >= len(a.segs) {
 				return
 			}
-			a.segs[i].merge(tmp, &a.pool)
+			a.segs[i].merge(w, &a.pool, a.maxSeg)
 		}
 	}
 	if g > 1 {
@@ -587,80 +680,94 @@ func (a *Accumulator) mergeGroup(rs []*run) {
 	} else {
 		work(a.tmp[0])
 	}
-	// Split the segments that grew too large.
+	// Put the pieces of the segments that overflowed in their place. A
+	// cut leaves its pieces about half full; when the next segment is
+	// fuller, the last two pieces and that segment share their cells
+	// evenly (three arrays about two thirds full instead of two half full
+	// and one full, as a B*-tree splits).
 	segs := a.segs[:0:0]
 	a.cells = 0
-	for _, sg := range a.segs {
+	for q := 0; q < len(a.segs); q++ {
+		sg := a.segs[q]
 		clear(sg.runs)
 		sg.runs = sg.runs[:0]
-		a.cells += len(sg.cells)
-		if len(sg.cells) <= a.maxSeg {
+		if sg.split == nil {
 			segs = append(segs, sg)
+			a.cells += len(sg.cells)
 			continue
 		}
-		n := len(sg.cells)
-		pieces := (n + a.maxSeg/2 - 1) / (a.maxSeg / 2)
-		for p := 0; p < pieces; p++ {
-			lo, hi := p*n/pieces, (p+1)*n/pieces
-			m := hi - lo
-			ns := &segment{hi: sg.hi, back: a.pool.get(m+m/8, m+m/4)}
-			if p+1 < pieces {
-				ns.hi = sg.cells[hi].key
+		pieces := sg.split
+		sg.split = nil
+		if k := len(pieces); k >= 2 && q+1 < len(a.segs) && a.segs[q+1].split == nil {
+			if nb := a.segs[q+1]; len(nb.cells) > len(pieces[k-1].cells) && cap(nb.back) == a.pool.size {
+				nb.runs = nb.runs[:0]
+				a.rebalance(pieces[k-2], pieces[k-1], nb)
+				pieces = append(pieces, nb)
+				q++
 			}
-			copy(ns.back, sg.cells[lo:hi])
-			ns.cells = ns.back[:m]
-			segs = append(segs, ns)
 		}
-		a.pool.put(sg.back)
-		sg.back, sg.cells = nil, nil
+		for _, p := range pieces {
+			segs = append(segs, p)
+			a.cells += len(p.cells)
+		}
 	}
-	a.pool.limit = a.cells/8 + a.maxSeg
 	a.segs = segs
 }
 
-// backPool keeps the arrays that segments gave up (when they grew or
-// split) for other segments, so that the store's growth creates little
-// garbage: with GOGC=100 garbage lets the heap reach twice the live data.
-// It holds at most limit cells.
-type backPool struct {
-	mu    sync.Mutex
-	free  [][]cell
-	cells int
-	limit int
-}
-
-// get returns an array of at least need cells from the pool, or a new one
-// of size cells.
-func (p *backPool) get(need, cells int) []cell {
-	p.mu.Lock()
-	best := -1
-	for i, b := range p.free {
-		if cap(b) >= need && (best < 0 || cap(b) < cap(p.free[best])) {
-			best = i
+// rebalance shares the cells of three consecutive segments evenly among
+// their arrays (at their starts), through the first merging goroutine's
+// overflow buffer.
+func (a *Accumulator) rebalance(x, y, z *segment) {
+	w := a.tmp[0]
+	n := len(x.cells) + len(y.cells) + len(z.cells)
+	if cap(w.big) < n {
+		w.big = make([]cell, n)
+	}
+	all := append(append(append(w.big[:0], x.cells...), y.cells...), z.cells...)
+	for i, sg := range []*segment{x, y, z} {
+		lo, hi := i*n/3, (i+1)*n/3
+		sg.cells = sg.back[:copy(sg.back[:cap(sg.back)], all[lo:hi])]
+		if i < 2 {
+			sg.hi = all[hi].key
 		}
 	}
-	if best >= 0 {
-		b := p.free[best]
-		p.free[best] = p.free[len(p.free)-1]
-		p.free[len(p.free)-1] = nil
-		p.free = p.free[:len(p.free)-1]
-		p.cells -= cap(b)
+}
+
+// backPool keeps the full-size segment arrays given up when a segment is
+// cut, for its pieces: with GOGC=100 garbage would let the heap reach
+// twice the live data. It holds at most maxPooled arrays.
+type backPool struct {
+	mu   sync.Mutex
+	free [][]cell
+	size int // capacity of every pooled array (segArray)
+}
+
+// maxPooled bounds the arrays a backPool keeps.
+const maxPooled = 8
+
+// get returns a full-size array, from the pool or new.
+func (p *backPool) get() []cell {
+	p.mu.Lock()
+	if k := len(p.free); k > 0 {
+		b := p.free[k-1]
+		p.free[k-1] = nil
+		p.free = p.free[:k-1]
 		p.mu.Unlock()
 		return b[:cap(b)]
 	}
 	p.mu.Unlock()
-	return make([]cell, cells)
+	return make([]cell, p.size)
 }
 
-// put gives an array back, unless the pool is full.
+// put gives back an array; arrays of another size, and arrays beyond
+// maxPooled, are dropped.
 func (p *backPool) put(b []cell) {
-	if cap(b) == 0 {
+	if cap(b) != p.size {
 		return
 	}
 	p.mu.Lock()
-	if p.cells+cap(b) <= p.limit {
+	if len(p.free) < maxPooled {
 		p.free = append(p.free, b)
-		p.cells += cap(b)
 	}
 	p.mu.Unlock()
 }
@@ -681,13 +788,16 @@ func searchCells(cs []cell, bound uint64) int {
 
 // merge merges the segment's run parts into it. Several parts are first
 // combined into one sequence sorted by key in which equal keys keep the
-// run order (pairwise stable merges in tmp, which is cache-sized since a
-// segment is small). The sequence is then merged into the store in place
-// when the backing array has room: a store at its start is merged
+// run order (pairwise stable merges in w.tmp, which is cache-sized since
+// a segment is small). The sequence is then merged into the store in
+// place when the backing array has room: a store at its start is merged
 // backwards, from the last cell, writing from the end of the array; a
 // store at its end is merged forwards, writing from the start. Either way
-// no write overtakes a store cell not yet read.
-func (sg *segment) merge(tmp *[2][]cell, pool *backPool) {
+// no write overtakes a store cell not yet read. A segment that no longer
+// fits in a full-size array is merged into w.big and cut into pieces of
+// at most maxSeg cells, each in a full-size array (its own array is
+// reused for the first), which become sg.split.
+func (sg *segment) merge(w *mergeWork, pool *backPool, maxSeg int) {
 	ns := len(sg.cells)
 	need := ns
 	for _, r := range sg.runs {
@@ -696,26 +806,48 @@ func (sg *segment) merge(tmp *[2][]cell, pool *backPool) {
 	if need == ns {
 		return
 	}
-	seq := combine(sg.runs, tmp)
+	seq := combine(sg.runs, &w.tmp)
 	off := cap(sg.back) - cap(sg.cells)
 	if ns == 0 {
 		off = 0
 	}
 	switch {
-	case cap(sg.back) < need:
-		back := pool.get(need, max(need+need/8, 1<<10))
-		sg.cells = mergeBackward(back, sg.cells, seq)
-		pool.put(sg.back)
-		sg.back = back
-	case off == 0:
+	case need <= cap(sg.back) && off == 0:
 		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, seq)
-	case off+ns == cap(sg.back):
+	case need <= cap(sg.back) && off+ns == cap(sg.back):
 		sg.cells = mergeForward(sg.back[:cap(sg.back)], sg.cells, seq)
-	default:
+	case need <= cap(sg.back):
 		// In the middle (cannot happen with the placements above, but
 		// cheap to handle): move to the start first.
 		sg.cells = sg.back[:copy(sg.back, sg.cells)]
 		sg.cells = mergeBackward(sg.back[:cap(sg.back)], sg.cells, seq)
+	case need <= pool.size:
+		// The only segment of a small store, growing towards full size.
+		back := make([]cell, min(pool.size, max(need+need/2, 2*cap(sg.back), 1<<10)))
+		sg.cells = mergeBackward(back, sg.cells, seq)
+		sg.back = back
+	default:
+		if cap(w.big) < need {
+			w.big = make([]cell, need+need/8)
+		}
+		cells := mergeBackward(w.big[:need], sg.cells, seq)
+		pool.put(sg.back)
+		sg.back, sg.cells = nil, nil
+		n := len(cells)
+		pieces := (n + maxSeg - 1) / maxSeg
+		sg.split = make([]*segment, pieces)
+		for p := range pieces {
+			lo, hi := p*n/pieces, (p+1)*n/pieces
+			ps := &segment{hi: sg.hi, back: pool.get()}
+			if p+1 < pieces {
+				ps.hi = cells[hi].key
+			}
+			ps.cells = ps.back[:copy(ps.back, cells[lo:hi])]
+			sg.split[p] = ps
+		}
+		if cap(w.big) > 4*pool.size {
+			w.big = nil // an unusually large merge: do not keep its buffer
+		}
 	}
 }
 
@@ -853,6 +985,25 @@ func mergeForward(dst, src, seq []cell) []cell {
 	return dst[:w]
 }
 
+// releaseRounds and releaseCells set how often Matrix hands the memory
+// of the store segments already written back to the system: every
+// 1/releaseRounds of the cells, but not more often than every
+// releaseCells cells (48 MiB of cells).
+const (
+	releaseRounds = 8
+	releaseCells  = 1 << 21
+)
+
+// releaseMemory collects the garbage and returns the free memory to the
+// system when bytes of memory were just dropped and that is more than
+// releaseCells cells; below, it does nothing (a small accumulation never
+// forces a collection).
+func releaseMemory(bytes int) {
+	if bytes >= 24*releaseCells {
+		debug.FreeOSMemory()
+	}
+}
+
 // Matrix finishes the accumulation and returns the matrix of the sums of
 // weights (with the sums of squared weights as its SumW2) and a report.
 // Call it once, after every AddBatch call has returned; the accumulator
@@ -899,26 +1050,14 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	entries := a.entries
 	a.mu.Unlock()
 	a.sortAndMerge(last, false)
-	// The chunk and spare run buffers are garbage now; when they are
-	// large, collect them before the last merge and before the matrix
-	// arrays are allocated, which bounds the peak memory.
-	var spare int
-	for _, c := range a.freeC {
-		spare += 8 * (cap(c.k0) + cap(c.k1) + cap(c.w0) + cap(c.w1))
-	}
-	for _, r := range a.freeR {
-		spare += 24 * cap(r)
-	}
+	// The chunk and spare run buffers are garbage from here on.
 	a.freeC, a.freeR, a.freeH, a.ser = nil, nil, nil, heldBatch{}
-	if spare > 64<<20 {
-		runtime.GC()
-	}
-	pending := 24 * a.readyCells
 	a.sortAndMerge(nil, true)
 	a.freeR, a.ready, a.tmp, a.held, a.runs = nil, nil, nil, nil, nil
 	a.pool = backPool{}
-	if pending > 64<<20 {
-		runtime.GC()
+	if a.err != nil {
+		a.segs = nil
+		return nil, nil, a.err
 	}
 	n := a.cells
 	colPtr := make([]int, a.cols+1)
@@ -927,6 +1066,14 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 	sw2 := make([]float64, 0, n)
 	rowMask := uint64(1)<<a.rowBits - 1
 	rep := &Report{Entries: entries, Cells: n}
+	// The matrix arrays are written segment by segment; the segments
+	// written are dropped and, for a large store, their memory is handed
+	// back to the system every release cells (release), so that the
+	// resident memory stays near that of the store alone instead of the
+	// store and the matrix side by side.
+	release := max(n/releaseRounds, releaseCells)
+	releaseMemory(24 * n) // the buffers dropped above
+	since := 0
 	for q, sg := range a.segs {
 		for _, cl := range sg.cells {
 			r, c := int(cl.key&rowMask), int(cl.key>>a.rowBits)
@@ -946,7 +1093,12 @@ func (a *Accumulator) Matrix() (*Matrix, *Report, error) {
 				rep.ZeroCount++
 			}
 		}
+		since += len(sg.cells)
 		a.segs[q] = nil
+		if since >= release {
+			releaseMemory(24 * since)
+			since = 0
+		}
 	}
 	a.segs = nil
 	for c := 0; c < a.cols; c++ {

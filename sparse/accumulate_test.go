@@ -1,9 +1,11 @@
 package sparse
 
 import (
+	"errors"
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"strings"
 	"sync"
 	"testing"
 
@@ -414,5 +416,69 @@ func TestAccumulateErrorReleasesWaiters(t *testing.T) {
 	}
 	if _, _, err := a.Matrix(); err == nil {
 		t.Error("Matrix after a failed batch returned no error")
+	}
+}
+
+// TestAccumulateMemoryLimit: an accumulation whose budget passes the
+// limit stops with a *MemoryError naming the cells, the budget and the
+// limit; the budget is the formula of AccumulatorBytes's documentation,
+// written out here again (54 bytes per cell, 56 per chunk entry, up to
+// the entries added, and chunk being filled or sorted, 16 per entry of a
+// held batch, 8 per column pointer).
+func TestAccumulateMemoryLimit(t *testing.T) {
+	const rows, cols, chunk, window, bs = 300, 200, 64, 4, 50
+	g := runtime.GOMAXPROCS(0)
+	formula := func(cells int) int64 {
+		return int64(54*cells + 56*chunk*(g+1) + 16*(window+g)*bs + 8*(cols+1))
+	}
+	opt := &AccumulatorOptions{ChunkEntries: chunk, Window: window}
+	if got, want := AccumulatorBytes(1000, 700, cols, opt, g, bs), formula(700); got != want {
+		t.Fatalf("AccumulatorBytes(700) = %d, want %d", got, want)
+	}
+	// Fewer entries than a chunk: the chunks hold only those.
+	if got, want := AccumulatorBytes(10, 7, cols, opt, g, bs), int64(54*7+56*10*(g+1)+16*(window+g)*bs+8*(cols+1)); got != want {
+		t.Fatalf("AccumulatorBytes(10 entries) = %d, want %d", got, want)
+	}
+	rng := rand.New(rand.NewPCG(9, 10))
+	es := randomEntries(rng, rows, cols, 20000, 0.1)
+	full, _ := accumulateSerial(t, rows, cols, es, opt)
+	if full.NNZ() < 600 {
+		t.Fatalf("only %d cells; the test needs more than 600", full.NNZ())
+	}
+	// A limit the whole matrix fits under: no error.
+	opt.MemoryLimit = formula(full.NNZ())
+	if m, _ := accumulateBatches(t, rows, cols, es, bs, 3, opt); m.NNZ() != full.NNZ() {
+		t.Fatalf("%d cells under a sufficient limit, want %d", m.NNZ(), full.NNZ())
+	}
+	// A limit of 500 cells: the accumulation stops.
+	opt.MemoryLimit = formula(500)
+	a, err := NewAccumulator(rows, cols, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var addErr error
+	for s := 0; s*bs < len(es) && addErr == nil; s++ {
+		var rs, cs []int32
+		var ws []float64
+		for _, e := range es[s*bs : min((s+1)*bs, len(es))] {
+			rs, cs, ws = append(rs, int32(e.r)), append(cs, int32(e.c)), append(ws, e.w)
+		}
+		addErr = a.AddBatch(uint64(s), rs, cs, ws)
+	}
+	_, _, err = a.Matrix()
+	var me *MemoryError
+	if !errors.As(err, &me) {
+		t.Fatalf("Matrix: %v, want a *MemoryError", err)
+	}
+	if addErr == nil {
+		t.Error("AddBatch went on after the limit was passed")
+	}
+	if me.Cells <= 500 || me.Bytes != formula(me.Cells) || me.Limit != opt.MemoryLimit || me.Rows != rows || me.Cols != cols {
+		t.Errorf("error %+v: want more than 500 cells, the formula's bytes and the limit %d", *me, opt.MemoryLimit)
+	}
+	for _, part := range []string{"300×200", "memory limit", "coarser binnings"} {
+		if !strings.Contains(err.Error(), part) {
+			t.Errorf("message %q does not say %q", err, part)
+		}
 	}
 }

@@ -509,3 +509,41 @@ func BenchmarkSweepPartition(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkSum merges the partial matrices of 10 shards of 2^20 events
+// each (4 batches of eventBatch per shard) on the fine grid, as the
+// response of 10 M events is merged from its shards.
+func BenchmarkSum(b *testing.B) {
+	const shards, perShard, batchEvents = 10, 4, 1 << 18
+	ms := make([]*Matrix, shards)
+	var in int
+	for s := range ms {
+		acc, err := NewAccumulator(1000000, 500000, nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		var rows, cols []int32
+		var w []float64
+		for k := range perShard {
+			rows, cols, w = eventBatch(uint64(s*perShard+k), batchEvents, rows, cols, w)
+			if err := acc.AddBatch(uint64(k), rows, cols, w); err != nil {
+				b.Fatal(err)
+			}
+		}
+		if ms[s], _, err = acc.Matrix(); err != nil {
+			b.Fatal(err)
+		}
+		in += ms[s].NNZ()
+	}
+	var out int
+	b.ResetTimer()
+	for b.Loop() {
+		m, err := Sum(ms...)
+		if err != nil {
+			b.Fatal(err)
+		}
+		out = m.NNZ()
+	}
+	b.ReportMetric(float64(in), "cells-in")
+	b.ReportMetric(float64(out), "cells-out")
+}

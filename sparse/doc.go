@@ -20,7 +20,11 @@
 // into distinct cells, in memory that grows with the number of distinct
 // cells, and returns the Matrix. Its result depends only on the ordered
 // stream of entries (batches concatenated in sequence order), never on
-// the number of goroutines or their scheduling. Sum merges matrices
+// the number of goroutines or their scheduling. Its memory budget,
+// AccumulatorBytes, is 54 bytes per distinct cell plus fixed buffers,
+// whatever the number of entries; with AccumulatorOptions.MemoryLimit
+// an accumulation that outgrows the limit stops with a *MemoryError.
+// Sum merges matrices
 // cell by cell in argument order, so that partial matrices (of event
 // shards) merged in a fixed order give the same bits however they were
 // grouped.

@@ -81,7 +81,9 @@ func filledProblem(ctx context.Context, c Config) (*unfold.Problem, error) {
 func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, []float64, int64, error) {
 	nr := c.Reco[0] * c.Reco[1] * c.Reco[2]
 	nt := c.Truth[0] * c.Truth[1] * c.Truth[2]
-	acc, err := sparse.NewAccumulator(nr, nt, nil)
+	// the fill's memory budget (sparse.AccumulatorBytes) within the
+	// default memory limit, as the unfolding's
+	acc, err := sparse.NewAccumulator(nr, nt, &sparse.AccumulatorOptions{MemoryLimit: unfold.DefaultMemoryLimit})
 	if err != nil {
 		return nil, nil, 0, err
 	}

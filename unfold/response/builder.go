@@ -182,6 +182,7 @@ type Builder struct {
 	withDiag    bool
 	diag        *diagMap // the reco bins in the truth scheme, made by the first sample
 	samples     int
+	spare       chan *shardState // merged shard states, for the next shards
 	// OnShard, when not nil, receives the partial response of every
 	// shard as it is finished, in shard order, instead of the Builder
 	// merging it (Build then has nothing to return). sample is the
@@ -192,6 +193,11 @@ type Builder struct {
 	// ShardEvents is the number of events of a shard; 0 means
 	// DefaultShardEvents. It is part of the definition of the result.
 	ShardEvents int64
+	// MemoryLimit, when positive, bounds in bytes the memory budget of
+	// each shard's accumulation (sparse.AccumulatorBytes) and of the
+	// merges of the shards (MergeBytes); beyond it the build ends with a
+	// *sparse.MemoryError. It does not change the result.
+	MemoryLimit int64
 }
 
 // NewBuilder returns a Builder for the given truth and reco schemes.
@@ -200,7 +206,7 @@ func NewBuilder(truth, reco Locator) *Builder {
 	if nt >= math.MaxInt32 || nr >= math.MaxInt32 {
 		panic("response: scheme too large")
 	}
-	return &Builder{truth: truth, reco: reco, merger: NewMerger(nt, nr)}
+	return &Builder{truth: truth, reco: reco, merger: NewMerger(nt, nr), spare: make(chan *shardState, 2)}
 }
 
 // shardState is what a shard has gathered so far, on its way from the
@@ -208,21 +214,14 @@ func NewBuilder(truth, reco Locator) *Builder {
 // an event adds to are kept side by side (one cache line per event and
 // level, and one for both when an event's reco values fall in its truth
 // bin): gen[t] holds G_t, its sum of squared weights, and the Diagonal
-// and RecoInTruth sums of truth bin t; fake[r] the fakes' sums.
+// and RecoInTruth sums of truth bin t (these two only with purity);
+// fake[r] the fakes' sums.
 type shardState struct {
-	lo, hi int64
-	gen    [][4]float64
-	fake   [][2]float64
-	sum    Summary
-}
-
-// unzip returns the first and the second of every pair of p.
-func unzip(p [][2]float64) (a, b []float64) {
-	a, b = make([]float64, len(p)), make([]float64, len(p))
-	for i, v := range p {
-		a[i], b[i] = v[0], v[1]
-	}
-	return a, b
+	lo, hi   int64
+	gen      [][4]float64
+	fake     [][2]float64
+	withDiag bool
+	sum      Summary
 }
 
 // Add streams the events of sim into the response. It returns the
@@ -255,7 +254,7 @@ func (b *Builder) AddRange(ctx context.Context, sim *Simulation, lo, hi int64, o
 
 // emptyShard hands on the partial of a shard without events.
 func (b *Builder) emptyShard(lo int64) error {
-	acc, err := sparse.NewAccumulator(b.reco.Len(), b.truth.Len(), nil)
+	acc, err := sparse.NewAccumulator(b.reco.Len(), b.truth.Len(), b.accOptions())
 	if err != nil {
 		panic(err)
 	}
@@ -264,9 +263,18 @@ func (b *Builder) emptyShard(lo int64) error {
 	return b.finishShard(acc, st)
 }
 
+// newShard returns an empty shard state starting at event lo: one
+// merged before and cleared, or a new one.
 func (b *Builder) newShard(lo int64) *shardState {
-	nt, nr := b.truth.Len(), b.reco.Len()
-	return &shardState{lo: lo, hi: lo, gen: make([][4]float64, nt), fake: make([][2]float64, nr)}
+	var st *shardState
+	select {
+	case st = <-b.spare:
+	default:
+		nt, nr := b.truth.Len(), b.reco.Len()
+		st = &shardState{gen: make([][4]float64, nt), fake: make([][2]float64, nr)}
+	}
+	st.lo, st.hi, st.sum, st.withDiag = lo, lo, Summary{}, b.withDiag
+	return st
 }
 
 // finishShard turns the shard's accumulator and histograms into its
@@ -276,22 +284,48 @@ func (b *Builder) finishShard(acc *sparse.Accumulator, st *shardState) error {
 	if err != nil {
 		return err
 	}
-	nt := len(st.gen)
-	p := &Built{Migrations: m, Summary: st.sum, Generated: make([]float64, nt), GeneratedSumW2: make([]float64, nt)}
-	if b.withDiag {
-		p.Diagonal, p.RecoInTruth = make([]float64, nt), make([]float64, nt)
+	if b.OnShard != nil {
+		err = b.OnShard(b.samples-1, st.lo, st.hi, st.built(m))
+	} else {
+		err = b.merger.addShard(m, st)
 	}
-	for t, g := range st.gen {
-		p.Generated[t], p.GeneratedSumW2[t] = g[0], g[1]
-		if b.withDiag {
-			p.Diagonal[t], p.RecoInTruth[t] = g[2], g[3]
+	if err != nil {
+		return err
+	}
+	// Handed on: the arrays serve the next shard.
+	clear(st.gen)
+	clear(st.fake)
+	select {
+	case b.spare <- st:
+	default:
+	}
+	return nil
+}
+
+// built returns the shard's partial response, with histograms of its
+// own.
+func (st *shardState) built(m *sparse.Matrix) *Built {
+	nt, nr := len(st.gen), len(st.fake)
+	p := &Built{Migrations: m, Generated: make([]float64, nt), GeneratedSumW2: make([]float64, nt),
+		Fakes: make([]float64, nr), FakesSumW2: make([]float64, nr), Summary: st.sum}
+	for j, v := range st.gen {
+		p.Generated[j], p.GeneratedSumW2[j] = v[0], v[1]
+	}
+	for i, v := range st.fake {
+		p.Fakes[i], p.FakesSumW2[i] = v[0], v[1]
+	}
+	if st.withDiag {
+		p.Diagonal, p.RecoInTruth = make([]float64, nt), make([]float64, nt)
+		for j, v := range st.gen {
+			p.Diagonal[j], p.RecoInTruth[j] = v[2], v[3]
 		}
 	}
-	p.Fakes, p.FakesSumW2 = unzip(st.fake)
-	if b.OnShard != nil {
-		return b.OnShard(b.samples-1, st.lo, st.hi, p)
-	}
-	return b.merger.Add(p)
+	return p
+}
+
+// accOptions returns the options of a shard's accumulator.
+func (b *Builder) accOptions() *sparse.AccumulatorOptions {
+	return &sparse.AccumulatorOptions{MemoryLimit: b.MemoryLimit}
 }
 
 func (b *Builder) shardEvents() int64 {
@@ -309,6 +343,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 		return Summary{}, fmt.Errorf("%s: every simulated sample must give reco observables for the truth axes, or none", sim.Name)
 	}
 	b.samples++
+	b.merger.MemoryLimit = b.MemoryLimit
 	var dg *diagMap
 	if withDiag {
 		for _, ax := range sim.RecoInTruth {
@@ -368,7 +403,7 @@ func (b *Builder) add(ctx context.Context, sim *Simulation, read ReadFunc, opt *
 		var acc *sparse.Accumulator
 		for e := range ech {
 			if err == nil && acc == nil {
-				if acc, err = sparse.NewAccumulator(nr, nt, nil); err != nil {
+				if acc, err = sparse.NewAccumulator(nr, nt, b.accOptions()); err != nil {
 					panic(err)
 				}
 			}

@@ -53,6 +53,21 @@
 // disk (Save, LoadPart); MergeParts checks that parts of one plan cover
 // every shard exactly once and merges them.
 //
+// # Memory
+//
+// The memory of a build is, with B events per batch, W workers, G cores,
+// n_t truth and n_r reco bins, c the distinct cells of a shard and C
+// those of the merged response:
+//
+//	(4·W + 8)·B·(8·columns + 36) + 64·16·B    the batches in flight and their entries
+//	+ sparse.AccumulatorBytes(entries, c, …)   the shard's accumulation (54 bytes per cell and its buffers)
+//	+ 32·(2·n_t + n_r)                         two shard histograms (with purity; 32·(n_t + n_r) without)
+//	+ MergeBytes(C, P, n_t, n_r)               the merge: 48·(C + P) + 8·(4·n_t + 2·n_r), P ≤ 16·c pending
+//
+// The number of events moves only the time. Builder.MemoryLimit refuses,
+// with a *sparse.MemoryError, a shard's accumulation or a merge whose
+// budget exceeds it.
+//
 // # Bootstrap replicas
 //
 // FillReplicas fills, in one pass over the events, a range of Poisson

@@ -52,6 +52,11 @@ const mergeGroup = 16
 // shards in shard order gives the response of the whole simulation, the
 // same bits however the shards were built.
 type Merger struct {
+	// MemoryLimit, when positive, bounds MergeBytes at every merge of
+	// the pending partial matrices: beyond it Add and Built return a
+	// *sparse.MemoryError. It does not change the result.
+	MemoryLimit int64
+
 	nt, nr   int
 	n        int
 	withDiag bool
@@ -83,15 +88,9 @@ func (g *Merger) Add(p *Built) error {
 	if withDiag && (len(p.Diagonal) != g.nt || len(p.RecoInTruth) != g.nt) {
 		return fmt.Errorf("response: partial purity histograms of the wrong length")
 	}
-	if g.n == 0 {
-		g.withDiag = withDiag
-		if withDiag {
-			g.r.Diagonal, g.r.RecoInTruth = make([]float64, g.nt), make([]float64, g.nt)
-		}
-	} else if withDiag != g.withDiag {
-		return fmt.Errorf("response: partial responses with and without purity histograms")
+	if err := g.start(withDiag); err != nil {
+		return err
 	}
-	g.n++
 	addTo(g.r.Generated, p.Generated)
 	addTo(g.r.GeneratedSumW2, p.GeneratedSumW2)
 	addTo(g.r.Fakes, p.Fakes)
@@ -101,7 +100,54 @@ func (g *Merger) Add(p *Built) error {
 		addTo(g.r.RecoInTruth, p.RecoInTruth)
 	}
 	g.r.Summary.add(&p.Summary)
-	g.pending = append(g.pending, p.Migrations)
+	return g.push(p.Migrations)
+}
+
+// addShard merges a shard built here, its histograms side by side, as Add
+// merges its partial response: the same sums in the same order.
+func (g *Merger) addShard(m *sparse.Matrix, st *shardState) error {
+	if err := g.start(st.withDiag); err != nil {
+		return err
+	}
+	gen, gen2 := g.r.Generated[:len(st.gen)], g.r.GeneratedSumW2[:len(st.gen)]
+	for j, v := range st.gen {
+		gen[j] += v[0]
+		gen2[j] += v[1]
+	}
+	fake, fake2 := g.r.Fakes[:len(st.fake)], g.r.FakesSumW2[:len(st.fake)]
+	for i, v := range st.fake {
+		fake[i] += v[0]
+		fake2[i] += v[1]
+	}
+	if st.withDiag {
+		dg, rit := g.r.Diagonal[:len(st.gen)], g.r.RecoInTruth[:len(st.gen)]
+		for j, v := range st.gen {
+			dg[j] += v[2]
+			rit[j] += v[3]
+		}
+	}
+	g.r.Summary.add(&st.sum)
+	return g.push(m)
+}
+
+// start counts one more partial, with purity histograms or without, and
+// refuses a mix.
+func (g *Merger) start(withDiag bool) error {
+	if g.n == 0 {
+		g.withDiag = withDiag
+		if withDiag {
+			g.r.Diagonal, g.r.RecoInTruth = make([]float64, g.nt), make([]float64, g.nt)
+		}
+	} else if withDiag != g.withDiag {
+		return fmt.Errorf("response: partial responses with and without purity histograms")
+	}
+	g.n++
+	return nil
+}
+
+// push queues a partial migration matrix for the merge.
+func (g *Merger) push(m *sparse.Matrix) error {
+	g.pending = append(g.pending, m)
 	if len(g.pending) == mergeGroup {
 		return g.flush()
 	}
@@ -114,6 +160,20 @@ func addTo(dst, src []float64) {
 	}
 }
 
+// MergeBytes returns the memory a Merger of nt truth and nr reco bins
+// holds while it merges partial matrices of pending cells in all into
+// its merged matrix of merged cells: both, and the new merged matrix
+// (sized for its inputs), at 24 bytes per cell (row index, value, sum
+// of squared weights), and the merged histograms:
+//
+//	48·(merged + pending) + 8·(4·nt + 2·nr)
+//
+// At most mergeGroup (16) partials are pending, so with shards of at most
+// c cells pending ≤ 16·c.
+func MergeBytes(merged, pending, nt, nr int) int64 {
+	return 48*int64(merged+pending) + 8*int64(4*nt+2*nr)
+}
+
 // flush sums the pending matrices into the merged one.
 func (g *Merger) flush() error {
 	if len(g.pending) == 0 {
@@ -122,6 +182,18 @@ func (g *Merger) flush() error {
 	ms := g.pending
 	if g.m != nil {
 		ms = append([]*sparse.Matrix{g.m}, g.pending...)
+	}
+	if g.MemoryLimit > 0 {
+		var merged, pending int
+		for _, m := range g.pending {
+			pending += m.NNZ()
+		}
+		if g.m != nil {
+			merged = g.m.NNZ()
+		}
+		if b := MergeBytes(merged, pending, g.nt, g.nr); b > g.MemoryLimit {
+			return &sparse.MemoryError{Rows: g.nr, Cols: g.nt, Cells: merged + pending, Bytes: b, Limit: g.MemoryLimit}
+		}
 	}
 	m, err := sparse.Sum(ms...)
 	if err != nil {

@@ -2,6 +2,7 @@ package response
 
 import (
 	"context"
+	"errors"
 	"math"
 	"slices"
 	"strings"
@@ -256,5 +257,76 @@ func TestShardEdges(t *testing.T) {
 	m.Add(parts[0])
 	if err := m.Add(&Built{Migrations: empty, Generated: []float64{0}, GeneratedSumW2: []float64{0}, Fakes: []float64{0}, FakesSumW2: []float64{0}}); err == nil {
 		t.Error("a partial without purity histograms after one with them accepted")
+	}
+}
+
+// TestBuilderMemoryLimit: a build whose shards' accumulation needs more
+// than MemoryLimit stops with a *sparse.MemoryError naming the limit; a
+// Merger whose merge needs more than its MemoryLimit by MergeBytes (the
+// documented formula, written out here again: 48 bytes per merged and
+// pending cell, 8 per bin of the four truth and two reco histograms)
+// stops the same way; limits that hold them change nothing.
+func TestBuilderMemoryLimit(t *testing.T) {
+	const size = 500
+	truth, reco := grid2D{5, 4}, grid2D{10, 8}
+	nt, nr := truth.Len(), reco.Len()
+	cols := unevenEvents(20*size, 7)
+	var parts []*Built
+	build := func(limit int64) (*Built, error) {
+		b := NewBuilder(truth, reco)
+		b.ShardEvents, b.MemoryLimit = size, limit
+		if _, err := b.Add(context.Background(), randomSimulation(cols, 333), &Options{Workers: 2}); err != nil {
+			return nil, err
+		}
+		return b.Build()
+	}
+	ref, err := build(0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := build(sparse.AccumulatorBytes(size, nt*nr, nt, nil, 8, size) + MergeBytes(nt*nr, 16*nt*nr, nt, nr))
+	if err != nil {
+		t.Fatal(err)
+	}
+	sameBuilt(t, "under a sufficient limit", ref, r)
+	var me *sparse.MemoryError
+	if _, err := build(16 << 10); !errors.As(err, &me) || me.Limit != 16<<10 {
+		t.Fatalf("build under 16 KiB: %v, want a *sparse.MemoryError of the accumulation", err)
+	}
+
+	if got, want := MergeBytes(100, 30, nt, nr), int64(48*130+8*(4*nt+2*nr)); got != want {
+		t.Fatalf("MergeBytes = %d, want %d", got, want)
+	}
+	b := NewBuilder(truth, reco)
+	b.ShardEvents = size
+	b.OnShard = func(_ int, _, _ int64, p *Built) error { parts = append(parts, p); return nil }
+	if _, err := b.Add(context.Background(), randomSimulation(cols, 333), &Options{Workers: 2}); err != nil {
+		t.Fatal(err)
+	}
+	merge := func(limit int64) (*Built, error) {
+		g := NewMerger(nt, nr)
+		g.MemoryLimit = limit
+		for _, p := range parts {
+			if err := g.Add(p); err != nil {
+				return nil, err
+			}
+		}
+		return g.Built()
+	}
+	// 20 shards: the first merge has 16 pending partials, the second the
+	// merged matrix and the 4 others, fewer cells here.
+	var first int
+	for _, p := range parts[:16] {
+		first += p.Migrations.NNZ()
+	}
+	r, err = merge(MergeBytes(0, first, nt, nr))
+	if err != nil {
+		t.Fatalf("merge under the first merge's bytes: %v", err)
+	}
+	sameBuilt(t, "merged under a limit", ref, r)
+	limit := MergeBytes(0, first, nt, nr) - 1
+	_, err = merge(limit)
+	if !errors.As(err, &me) || me.Limit != limit || me.Bytes != limit+1 || me.Cells != first || !strings.Contains(err.Error(), "memory limit") {
+		t.Fatalf("merge under %d bytes: %v, want a *sparse.MemoryError of %d cells above that limit", limit, err, first)
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -169,5 +170,39 @@ func TestROOTDeclaredLengths(t *testing.T) {
 		if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
 			t.Errorf("%s damaged: %d bytes allocated to refuse it", c.what, a)
 		}
+	}
+}
+
+// TestROOTObjectCounts reads the input the fuzz target FuzzROOT found
+// (testdata/fuzz/FuzzROOT/branch-name-4gb, a mutation of
+// testdata/events.root): the name of a branch inside the tree record
+// declares a length of about 2 GB in a record of 1.7 kB, which go-hep
+// v0.36.0 allocated before reading (4 GB in all, and an out-of-memory
+// end of the process where memory is short). It is refused, naming the
+// tree record and the length, without the allocation.
+func TestROOTObjectCounts(t *testing.T) {
+	b, err := os.ReadFile("testdata/fuzz/FuzzROOT/branch-name-4gb")
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The corpus file format of go test: a header line, then the value
+	// as a Go literal.
+	lines := strings.SplitN(string(b), "\n", 2)
+	lit := strings.TrimSpace(lines[1])
+	s, err := strconv.Unquote(strings.TrimSuffix(strings.TrimPrefix(lit, "[]byte("), ")"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := []byte(s)
+	var m0, m1 runtime.MemStats
+	runtime.ReadMemStats(&m0)
+	_, err = newROOT("x.root", memFile{bytes.NewReader(d)}, int64(len(d)), "events")
+	runtime.ReadMemStats(&m1)
+	if err == nil || !strings.Contains(err.Error(), `x.root: damaged ROOT file: the record at byte 585 (TTree "events") is damaged`) ||
+		!strings.Contains(err.Error(), "a string needs 2013493295 bytes") {
+		t.Errorf("damaged branch name: %v", err)
+	}
+	if a := m1.TotalAlloc - m0.TotalAlloc; a > 16<<20 {
+		t.Errorf("%d bytes allocated to refuse it", a)
 	}
 }

@@ -83,6 +83,14 @@ func newROOT(path string, rd riofs.Reader, size int64, treePath string) (src *RO
 			return nil, fmt.Errorf("events: %s: %d trees (%s); say which one to read", path, len(trees), strings.Join(trees, ", "))
 		}
 	}
+	// go-hep decodes an object of a class it does not know from the
+	// file's streamer information, and with damaged information that can
+	// hang (v0.36.0): the class of a top-level object is checked first.
+	for _, k := range f.Keys() {
+		if k.Name() == treePath && !isTreeClass(k.ClassName()) {
+			return nil, fmt.Errorf("events: %s: %q is a %s, not a TTree", path, treePath, k.ClassName())
+		}
+	}
 	obj, err := riofs.Dir(f).Get(treePath)
 	if err != nil {
 		// groot's message names the file by the path it was written

@@ -67,8 +67,15 @@ func CheckFile(r io.ReaderAt, size int64) error {
 		if rec.bytes < 0 || rec.seek > size || rec.bytes > size-rec.seek {
 			return fmt.Errorf("damaged ROOT file: the %s record of %d bytes at byte %d lies outside the file of %d bytes", rec.what, rec.bytes, rec.seek, size)
 		}
-		if _, err := checkRecord(r, rec.what+" record", rec.seek, size); err != nil {
+		if _, err := checkRecord(r, rec.what+" record", rec.seek, size, ""); err != nil {
 			return err
+		}
+		// go-hep decodes the streamer information by its key's class,
+		// and one it does not know from the streamer information
+		// itself, which can hang (v0.36.0): ROOT writes a TList (ROOT
+		// file format, common practice).
+		if k, _ := readKey(r, rec.seek, size); rec.what == "streamer" && k.class != "TList" {
+			return fmt.Errorf("damaged ROOT file: the streamer record at byte %d is a %q, not a TList; the file cannot be read: write it again or restore it from a copy", rec.seek, k.class)
 		}
 	}
 	if err := checkKeyList(r, begin+nbytesname, size); err != nil {
@@ -80,10 +87,13 @@ func CheckFile(r io.ReaderAt, size int64) error {
 			return fmt.Errorf("damaged ROOT file: record at byte %d cut short", pos)
 		}
 		if nbytes := int64(int32(be.Uint32(nb[:]))); nbytes < 0 { // a free gap
+			if -nbytes > end-pos {
+				return fmt.Errorf("damaged ROOT file: a free gap of %d bytes at byte %d runs past the end of the records at byte %d", -nbytes, pos, end)
+			}
 			pos -= nbytes
 			continue
 		}
-		nbytes, err := checkRecord(r, "record", pos, end)
+		nbytes, err := checkRecord(r, "record", pos, end, "")
 		if err != nil {
 			return err
 		}
@@ -121,18 +131,72 @@ func checkKeyList(r io.ReaderAt, dir, size int64) error {
 	if why == "" && k.objlen > size-seekkeys-k.keylen {
 		why = fmt.Sprintf("declares %d bytes, more than the file holds", k.objlen)
 	}
-	if why == "" {
-		var nk [4]byte
-		if n, _ := r.ReadAt(nk[:], seekkeys+k.keylen); n == 4 {
-			if nkeys := int64(int32(be.Uint32(nk[:]))); nkeys < 0 || nkeys > k.objlen/29 {
-				why = fmt.Sprintf("declares %d keys in %d bytes", nkeys, k.objlen)
+	if why == "" && k.objlen >= 4 && k.objlen == k.nbytes-k.keylen {
+		list := make([]byte, k.objlen)
+		if _, err := r.ReadAt(list, seekkeys+k.keylen); err != nil && err != io.EOF {
+			return fmt.Errorf("damaged ROOT file: the key list at byte %d: %v", seekkeys, err)
+		}
+		if nkeys := int64(int32(be.Uint32(list))); nkeys < 0 || nkeys > k.objlen/29 {
+			why = fmt.Sprintf("declares %d keys in %d bytes", nkeys, k.objlen)
+		} else if why, err := checkKeys(r, list[4:], nkeys, size); err != nil || why != "" {
+			if err != nil {
+				return err
 			}
+			return fmt.Errorf("damaged ROOT file: the key list at byte %d %s", seekkeys, why)
 		}
 	}
 	if why != "" {
 		return fmt.Errorf("damaged ROOT file: the key list at byte %d %s", seekkeys, why)
 	}
 	return nil
+}
+
+// checkKeys checks the n keys of a key list (each a key header, the copy
+// of its record's own): the strings of each lie inside it, and its sizes
+// are those of the record it points to, which is checked as a record of
+// the key's class (go-hep reads a record with the sizes and the class of
+// its key in the list). It returns what is wrong with the list, or an
+// error for a damaged record.
+func checkKeys(r io.ReaderAt, list []byte, n, size int64) (string, error) {
+	be := binary.BigEndian
+	for i := range n {
+		if len(list) < 26 {
+			return fmt.Sprintf("is cut short at key %d of %d", i+1, n), nil
+		}
+		if int32(be.Uint32(list)) < 0 { // a gap: go-hep reads its length alone
+			list = list[4:]
+			continue
+		}
+		k, why := parseKey(list, size)
+		if why == "" && k.keylen > int64(len(list)) {
+			why = fmt.Sprintf("has a key of %d bytes where %d remain", k.keylen, len(list))
+		}
+		if why == "" {
+			why = keyStrings(&k, list[:k.keylen])
+		}
+		if why != "" {
+			return fmt.Sprintf("has a damaged key %d of %d: it %s", i+1, n, why), nil
+		}
+		seek := int64(int32(be.Uint32(list[18:])))
+		if int16(be.Uint16(list[4:])) > 1000 {
+			seek = int64(be.Uint64(list[18:]))
+		}
+		if seek < 0 || seek > size {
+			return fmt.Sprintf("has a key %d of %d (%s %q) pointing to byte %d, outside the file", i+1, n, k.class, k.name, seek), nil
+		}
+		rec, why := readKey(r, seek, size)
+		if why == "" && (rec.nbytes != k.nbytes || rec.objlen != k.objlen || rec.keylen != k.keylen) {
+			why = fmt.Sprintf("has %d, %d and %d bytes (record, object, key), the key list %d, %d and %d", rec.nbytes, rec.objlen, rec.keylen, k.nbytes, k.objlen, k.keylen)
+		}
+		if why != "" {
+			return fmt.Sprintf("has a key %d of %d (%s %q) whose record at byte %d %s", i+1, n, k.class, k.name, seek, why), nil
+		}
+		if _, err := checkRecord(r, "record", seek, size, k.class); err != nil {
+			return "", err
+		}
+		list = list[k.keylen:]
+	}
+	return "", nil
 }
 
 // rootKey is the part of a ROOT key header that the checks use.
@@ -142,46 +206,79 @@ type rootKey struct {
 }
 
 // readKey decodes the key header at pos of a record that must end by
-// byte end; it returns what is wrong, or "".
+// byte end; it returns what is wrong, or "". The key's class, name and
+// title must lie inside the key's length (go-hep allocates a string's
+// declared length before reading it).
 func readKey(r io.ReaderAt, pos, end int64) (rootKey, string) {
-	var b [256 + 64]byte
-	n, _ := r.ReadAt(b[:], pos)
-	if n < 26 {
+	var head [26]byte
+	if n, _ := r.ReadAt(head[:], pos); n < 26 {
 		return rootKey{}, "is cut short"
 	}
+	k, why := parseKey(head[:], end-pos)
+	if why != "" {
+		return k, why
+	}
+	b := make([]byte, k.keylen)
+	if n, _ := r.ReadAt(b, pos); int64(n) < k.keylen {
+		return k, "is cut short"
+	}
+	return k, keyStrings(&k, b)
+}
+
+// parseKey decodes the sizes of the key header at the start of b, whose
+// record must fit in room bytes (ROOT file format, common practice:
+// fNbytes, fVersion, fObjlen, fDatime, fKeylen, fCycle, then the
+// positions, 32-bit up to version 1000, and three strings).
+func parseKey(b []byte, room int64) (rootKey, string) {
 	be := binary.BigEndian
 	k := rootKey{
 		nbytes: int64(int32(be.Uint32(b[:]))),
 		objlen: int64(int32(be.Uint32(b[6:]))),
 		keylen: int64(int16(be.Uint16(b[14:]))),
 	}
-	if k.nbytes < 26 || pos+k.nbytes > end {
+	if k.nbytes < 26 || k.nbytes > room {
 		return k, fmt.Sprintf("of %d bytes does not fit", k.nbytes)
 	}
 	if k.keylen < 26 || k.keylen > k.nbytes || k.objlen < 0 {
 		return k, fmt.Sprintf("has a key of %d bytes and an object of %d in %d bytes", k.keylen, k.objlen, k.nbytes)
 	}
-	s := 26
-	if int16(be.Uint16(b[4:])) > 1000 {
-		s = 34
-	}
-	var ok bool
-	if k.class, s, ok = tstring(b[:n], s); ok {
-		k.name, _, _ = tstring(b[:n], s)
-	}
 	return k, ""
 }
 
-// checkRecord checks the record at pos, called what in messages, which
-// must end by byte end: its key header, and for a compressed payload its
-// blocks (with their checksums for a basket). It returns the record's
-// size.
-func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
-	k, why := readKey(r, pos, end)
-	if why != "" {
-		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, why)
+// keyStrings decodes the class and name of the key header b (the whole
+// key, of k.keylen bytes), and checks that they and the title lie inside
+// it.
+func keyStrings(k *rootKey, b []byte) string {
+	s := 26
+	if int16(binary.BigEndian.Uint16(b[4:])) > 1000 {
+		s = 34
 	}
-	if k.objlen == k.nbytes-k.keylen {
+	var ok1, ok2, ok3 bool
+	k.class, s, ok1 = tstring(b, s)
+	k.name, s, ok2 = tstring(b, s)
+	_, _, ok3 = tstring(b, s)
+	if !ok1 || !ok2 || !ok3 {
+		return fmt.Sprintf("has a class, name and title longer than its key of %d bytes", len(b))
+	}
+	return ""
+}
+
+// checkRecord checks the record at pos, called what in messages, which
+// must end by byte end: its key header, for a compressed payload its
+// blocks (with their checksums for a basket), and the objects of a
+// record of a walked class: class, or the key's own class if "". It
+// returns the record's size.
+func checkRecord(r io.ReaderAt, what string, pos, end int64, class string) (int64, error) {
+	k, bad := readKey(r, pos, end)
+	if bad != "" {
+		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, bad)
+	}
+	if class != "" {
+		k.class = class
+	}
+	walk := walkedClasses[k.class] && k.objlen <= maxWalked
+	compressed := k.objlen != k.nbytes-k.keylen
+	if !compressed && !walk {
 		return k.nbytes, nil
 	}
 	payload := make([]byte, k.nbytes-k.keylen)
@@ -189,9 +286,26 @@ func checkRecord(r io.ReaderAt, what string, pos, end int64) (int64, error) {
 		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d: %v", what, pos, err)
 	}
 	basket := k.class == "TBasket"
-	total, why := checkBlocks(payload, basket)
-	if why == "" && total != k.objlen {
-		why = fmt.Sprintf("declares %d bytes but its blocks hold %d", k.objlen, total)
+	var why string
+	if compressed {
+		var total int64
+		total, why = checkBlocks(payload, basket)
+		if why == "" && total != k.objlen {
+			why = fmt.Sprintf("declares %d bytes but its blocks hold %d", k.objlen, total)
+		}
+		if why == "" && walk {
+			var ok bool
+			if payload, ok, why = inflate(payload, k.objlen); !ok {
+				walk = false
+			}
+		}
+	}
+	if why == "" && walk {
+		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}}
+		w.body(k.class, len(payload))
+		if w.why != "" {
+			return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d (%s %q) is damaged, %s; the file cannot be read: write it again or restore it from a copy", what, pos, k.class, k.name, w.why)
+		}
 	}
 	switch {
 	case why == "":

@@ -13,6 +13,7 @@ import (
 	"go-hep.org/x/hep/groot/rhist"
 	"go-hep.org/x/hep/groot/riofs"
 	"go-hep.org/x/hep/groot/root"
+	"go-hep.org/x/hep/groot/rtypes"
 	"go-hep.org/x/hep/hbook"
 
 	"github.com/desmear/desmear/binning"
@@ -246,6 +247,16 @@ func get(path, key string) (root.Object, func(), error) {
 	f, err := openFile(path)
 	if err != nil {
 		return nil, nil, err
+	}
+	// go-hep decodes an object of a class it does not know from the
+	// file's streamer information, and with damaged information that can
+	// hang (v0.36.0 builds the streamers of classes that refer to one
+	// another under a sync.Once each): only classes it knows are read.
+	for _, k := range f.Keys() {
+		if k.Name() == key && !rtypes.Factory.HasKey(k.ClassName()) {
+			f.Close()
+			return nil, nil, fmt.Errorf("rootio: %s: %q is a %s, a class that cannot be read here", path, key, k.ClassName())
+		}
 	}
 	obj, err := func() (obj root.Object, err error) {
 		defer recoverDamaged(path, key, &err)
