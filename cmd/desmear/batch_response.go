@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bufio"
 	"context"
 	"fmt"
 	"os"
@@ -71,14 +70,5 @@ func (j *responseJob) merge(ctx context.Context, g *globalOptions, dir string, f
 	if err != nil {
 		return mergeErr(err, dir)
 	}
-	if err := r.Save(p.Out, *info, force); err != nil {
-		return refused(err, p)
-	}
-	w := bufio.NewWriter(g.stdout)
-	fmt.Fprintf(w, "response: %s (%d shards from %d parts)\n", p.Out, len(info.Shards), len(p.Shards))
-	printResponseCounts(w, r)
-	if err := w.Flush(); err != nil {
-		return ioErr(err)
-	}
-	return nil
+	return saveMerged(g, r, info, p.Out, force, len(p.Shards))
 }

@@ -3,12 +3,10 @@ package main
 import (
 	"bufio"
 	"context"
-	"errors"
 	"fmt"
 	"path/filepath"
 
 	"github.com/desmear/desmear/unfold/batch"
-	"github.com/desmear/desmear/unfold/result"
 	"github.com/desmear/desmear/unfold/validate"
 )
 
@@ -106,11 +104,8 @@ func (j *toyJob) merge(ctx context.Context, g *globalOptions, dir string, force 
 		return j.v.locate(err)
 	}
 	j.v.label(rep)
-	if err := validate.WriteFolder(out, force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
-		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
-			return refused(err, j.p)
-		}
-		return ioErr(fmt.Errorf("writing %s: %w", out, err))
+	if err := writeValidation(out, force, rep); err != nil {
+		return err
 	}
 	w := bufio.NewWriter(g.stdout)
 	printValidation(w, out, rep)

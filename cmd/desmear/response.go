@@ -131,11 +131,19 @@ func runResponseMerge(g *globalOptions, o *responseMergeOptions, names []string)
 	if err != nil {
 		return inputErr(err)
 	}
-	if err := r.Save(o.out, *info, o.force); err != nil {
-		return refusedFolder(err, o.out, "response bundle", response.BundleFiles()[0])
+	return saveMerged(g, r, info, o.out, o.force, len(parts))
+}
+
+// saveMerged saves the response r merged from parts parts (info) as the
+// bundle out, replacing an earlier bundle (or an empty folder) only when
+// force is set, and prints where it is and the response's counts, as
+// "desmear response merge" and the merge of a response plan both do.
+func saveMerged(g *globalOptions, r *response.Built, info *response.BundleInfo, out string, force bool, parts int) error {
+	if err := r.Save(out, *info, force); err != nil {
+		return refusedFolder(err, out, "response bundle", response.BundleFiles()[0])
 	}
 	w := bufio.NewWriter(g.stdout)
-	fmt.Fprintf(w, "response: %s (%d shards from %d parts)\n", o.out, len(info.Shards), len(parts))
+	fmt.Fprintf(w, "response: %s (%d shards from %d parts)\n", out, len(info.Shards), parts)
 	printResponseCounts(w, r)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)

@@ -7,6 +7,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/desmear/desmear/unfold/batch"
 )
 
 // The response built in parts (--shard I/N) and merged is the response of
@@ -97,3 +99,34 @@ func TestResponseShards(t *testing.T) {
 }
 
 func itoa(i int) string { return strconv.Itoa(i) }
+
+// TestResponseMergesPrintAlike: the merge of a response plan and
+// "desmear response merge" of the same parts into the same bundle print
+// the same summary (the merged bundle is the one "desmear response"
+// writes, "desmear help cluster"), naming the bundle and the 7 shards of
+// the 3 parts.
+func TestResponseMergesPrintAlike(t *testing.T) {
+	defer func(n int64) { shardEvents = n }(shardEvents)
+	shardEvents = 3000 // 20000 events: 7 shards
+	ctx := context.Background()
+	path := writeCLIAnalysis(t)
+	w := filepath.Join(filepath.Dir(path), "work")
+	out := filepath.Join(w, "response")
+	for _, args := range [][]string{{"batch", "plan", path, "--response", "--shards", "3", "--workdir", w}, {"batch", "run-local", w, "-q"}} {
+		if code, so, errs := runCLI(t, ctx, args...); code != 0 {
+			t.Fatalf("%v: exit %d\n%s\n%s", args, code, so, errs)
+		}
+	}
+	code, want, errs := runCLI(t, ctx, "batch", "merge", w)
+	if code != 0 || !strings.HasPrefix(want, "response: "+out+" (7 shards from 3 parts)\n") || !strings.Contains(want, "events read:        20000") {
+		t.Fatalf("batch merge: exit %d\n%s\n%s", code, want, errs)
+	}
+	args := []string{"response", "merge"}
+	for s := range 3 {
+		args = append(args, batch.PartPath(w, s))
+	}
+	code, got, errs := runCLI(t, ctx, append(args, "--out", out, "--force")...)
+	if code != 0 || got != want {
+		t.Errorf("response merge: exit %d\n%s\n%s\nwant\n%s", code, got, errs, want)
+	}
+}

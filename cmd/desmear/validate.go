@@ -196,11 +196,8 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 		return v.locate(err)
 	}
 	v.label(rep)
-	if err := validate.WriteFolder(o.out, o.force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
-		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
-			return refusedFolder(err, o.out, "validation folder", validate.JSONFile)
-		}
-		return ioErr(fmt.Errorf("writing %s: %w", o.out, err))
+	if err := writeValidation(o.out, o.force, rep); err != nil {
+		return err
 	}
 	if !g.quiet {
 		fmt.Fprintf(g.stderr, "desmear: validation with %d toys done in %.1f s\n", o.toys, time.Since(start).Seconds())
@@ -209,6 +206,19 @@ func runValidate(ctx context.Context, g *globalOptions, o *validateOptions, args
 	printValidation(w, o.out, rep)
 	if err := w.Flush(); err != nil {
 		return ioErr(err)
+	}
+	return nil
+}
+
+// writeValidation writes the validation folder out of rep, replacing an
+// earlier validation folder (or an empty one) only when force is set, as
+// "desmear validate" and the merge of a toy plan both do.
+func writeValidation(out string, force bool, rep *validate.Report) error {
+	if err := validate.WriteFolder(out, force, validate.Program{Name: "desmear", Version: version}, rep); err != nil {
+		if errors.Is(err, result.ErrExists) || errors.Is(err, result.ErrNotResult) {
+			return refusedFolder(err, out, "validation folder", validate.JSONFile)
+		}
+		return ioErr(fmt.Errorf("writing %s: %w", out, err))
 	}
 	return nil
 }

@@ -292,3 +292,40 @@ func TestToyOptionsRefused(t *testing.T) {
 		}
 	}
 }
+
+// TestWriteValidationRefuses: the validation folder replaces an earlier
+// validation folder only with --force, and never another folder (the
+// folder rule of "desmear help validation"), before anything is written;
+// "desmear validate" and the merge of a toy plan write through
+// writeValidation.
+func TestWriteValidationRefuses(t *testing.T) {
+	dir := t.TempDir()
+	earlier, foreign := filepath.Join(dir, "earlier"), filepath.Join(dir, "foreign")
+	for _, f := range []string{filepath.Join(earlier, validate.JSONFile), filepath.Join(foreign, "notes.txt")} {
+		if err := os.MkdirAll(filepath.Dir(f), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(f, []byte("{}\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	for _, c := range []struct {
+		out   string
+		force bool
+		want  string
+	}{
+		{earlier, false, "validation folder " + earlier + " exists (use --force to replace it, or choose another folder)"},
+		{foreign, true, foreign + " exists and is not an earlier validation folder (it does not hold a " + validate.JSONFile + "); refusing to replace it even with --force"},
+	} {
+		// The report is never read: the folder is refused first.
+		err := writeValidation(c.out, c.force, &validate.Report{})
+		if err == nil || exitCode(context.Background(), err) != exitUsage || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s (force %v): %v, want a usage error %q", c.out, c.force, err, c.want)
+		}
+	}
+	for _, f := range []string{filepath.Join(earlier, validate.JSONFile), filepath.Join(foreign, "notes.txt")} {
+		if b, err := os.ReadFile(f); err != nil || string(b) != "{}\n" {
+			t.Errorf("%s was touched: %q, %v", f, b, err)
+		}
+	}
+}
