@@ -301,7 +301,7 @@ func checkRecord(r io.ReaderAt, what string, pos, end int64, class string) (int6
 		}
 	}
 	if why == "" && walk {
-		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}}
+		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}, objs: map[int64]bool{}}
 		w.body(k.class, len(payload))
 		if w.why != "" {
 			return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d (%s %q) is damaged, %s; the file cannot be read: write it again or restore it from a copy", what, pos, k.class, k.name, w.why)
