@@ -128,15 +128,20 @@ func readExactly(dst []byte, open func() (io.Reader, error)) error {
 // silently where it cannot follow the layout (an unknown class or
 // version), leaving the rest to go-hep.
 type walker struct {
-	b     []byte
-	pos   int
-	base  int64            // the position of b[0] in go-hep's numbering (the key's length)
-	refs  map[int64]string // classes by their tag
-	objs  map[int64]bool   // the tags of the objects read
-	depth int
-	why   string // what is wrong; stops the walk
-	stop  bool   // the layout cannot be followed; stops the walk
+	b    []byte
+	pos  int
+	base int64            // the position of b[0] in go-hep's numbering (the key's length)
+	refs map[int64]string // classes by their tag
+	objs map[int64]bool   // the tags of the objects read
+	// baskets are the baskets the branches walked point to.
+	baskets []basketRef
+	depth   int
+	why     string // what is wrong; stops the walk
+	stop    bool   // the layout cannot be followed; stops the walk
 }
+
+// basketRef is where a branch says one of its baskets is.
+type basketRef struct{ seek, bytes int64 }
 
 func (w *walker) done() bool { return w.why != "" || w.stop }
 
@@ -520,7 +525,9 @@ func (w *walker) branch(end int) {
 	}
 	w.named(e)
 	w.skipObject(e) // fill attributes
-	w.skip(4*4+8, e)
+	w.skip(3*4, e)  // compression, basket size, entry offset length
+	written := int64(int32(w.u32(e)))
+	w.skip(8, e) // entry number
 	if vers >= 13 {
 		w.skipObject(e) // I/O features
 	}
@@ -540,6 +547,18 @@ func (w *walker) branch(end int) {
 	if maxBaskets < 0 || 3+20*maxBaskets > int64(e-w.pos) {
 		w.fail("a TBranch declares %d baskets (4+8+8 bytes each), but %d bytes remain", maxBaskets, e-w.pos)
 		return
+	}
+	// go-hep reads the written baskets at the places and with the sizes
+	// these arrays give, in goroutines of its own where a panic cannot be
+	// recovered: they are kept to be checked against the file's records.
+	if written >= 0 && written <= maxBaskets {
+		bytesAt, seekAt := w.pos+1, w.pos+1+4*int(maxBaskets)+1+8*int(maxBaskets)+1
+		for i := range int(written) {
+			w.baskets = append(w.baskets, basketRef{
+				seek:  int64(binary.BigEndian.Uint64(w.b[seekAt+8*i:])),
+				bytes: int64(int32(binary.BigEndian.Uint32(w.b[bytesAt+4*i:]))),
+			})
+		}
 	}
 	w.pos += 3 + 20*int(maxBaskets)
 	w.str(e)

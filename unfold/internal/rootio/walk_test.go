@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"compress/zlib"
 	"encoding/binary"
+	"fmt"
 	"os"
 	"strings"
 	"testing"
@@ -290,5 +291,50 @@ func TestPointerByteCount(t *testing.T) {
 	v.body("TList", len(p))
 	if !strings.Contains(v.why, "pointer's byte count ends 12 bytes after its fields") {
 		t.Errorf("a pointer's byte count 12 bytes too long: %q", v.why)
+	}
+}
+
+// TestBasketHeaders damages the first basket of a written tree: the end
+// of its data (fLast, after the key's strings, the version, buffer size,
+// entry size and number of entries; ROOT's TBasket streamer, from
+// memory) set negative with the flag saying the data follow the header:
+// go-hep v0.36.0 allocates it as a slice in a goroutine of its own (a
+// panic that ends the process, a FuzzROOT finding). It is refused.
+func TestBasketHeaders(t *testing.T) {
+	data, err := os.ReadFile("../../inputs/events/testdata/events.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	begin, end := int64(be.Uint32(data[8:])), int64(be.Uint32(data[12:]))
+	r := bytes.NewReader(data)
+	var at int64 = -1
+	var k rootKey
+	for pos := begin; pos < end && at < 0; pos += k.nbytes {
+		var why string
+		if k, why = readKey(r, pos, end); why != "" {
+			t.Fatal(why)
+		}
+		if k.class == "TBasket" {
+			at = pos
+		}
+	}
+	if at < 0 || be.Uint16(data[at+4:]) > 1000 {
+		t.Fatal("no small-file TBasket record")
+	}
+	s := 26
+	for range 3 {
+		_, s, _ = tstring(data[at:at+k.keylen], s)
+	}
+	last := at + int64(s) + 2 + 4 + 4 + 4
+	if got := int64(be.Uint32(data[last:])); got <= k.keylen || got > k.objlen+k.keylen {
+		t.Fatalf("fLast read as %d: the offsets are wrong", got)
+	}
+	d := append([]byte(nil), data...)
+	be.PutUint32(d[last:], 0xcccccccc)
+	d[last+4] = 1               // the flag: the data follow the header, fLast bytes of them
+	be.PutUint32(d[last-4:], 0) // no entries: no entry offsets before the data
+	if err := CheckFile(bytes.NewReader(d), int64(len(d))); err == nil || !strings.Contains(err.Error(), fmt.Sprintf("the basket at byte %d is damaged (its header says its data end at byte -858993460", at)) {
+		t.Errorf("fLast negative: %v", err)
 	}
 }
