@@ -31,6 +31,12 @@ import (
 //     kinds, and baskets stored uncompressed, carry no checksum and cannot
 //     be checked.
 //
+//   - every key of the top directory's key list has its strings inside
+//     it and the sizes of the record it points to;
+//   - the objects of the streamer, tree and histogram records declare no
+//     count or length beyond the bytes that remain (see walker), and the
+//     baskets a branch points to are records whose headers fit.
+//
 // A file without ROOT's magic is left to go-hep to refuse. The error names
 // the byte offset, and the branch (the basket's key name) for a basket.
 func CheckFile(r io.ReaderAt, size int64) error {
