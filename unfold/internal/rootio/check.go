@@ -21,23 +21,19 @@ import (
 //   - the header's end, and the records it points to (free segments,
 //     streamer information, the top directory's key list), must lie
 //     inside the file;
-//
 //   - every record, from the first to the end as laid out by ROOT (a key
 //     header, then the payload), must fit in the file, and a compressed
 //     one must consist of whole blocks whose uncompressed sizes add up to
 //     the record's declared size, each no larger than its algorithm can
 //     expand (zlib 1032:1, LZ4 255:1);
-//
 //   - the LZ4 blocks of every basket match their XXH64 sum, and its zlib
 //     blocks their Adler-32 sum (by decompressing them). Other compression
 //     kinds, and baskets stored uncompressed, carry no checksum and cannot
-//     be checked.
-//
+//     be checked;
 //   - every key of the top directory's key list has its strings inside
 //     it and the sizes of the record it points to;
-//
 //   - the objects of the streamer, tree and histogram records declare no
-//     count or length beyond the bytes that remain (see walker), and the
+//     count or length beyond the bytes that remain (objects.go), and the
 //     baskets a branch points to are records whose headers fit.
 //
 // A file without ROOT's magic is left to go-hep to refuse. The error names
