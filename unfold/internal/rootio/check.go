@@ -29,7 +29,12 @@ import (
 //   - the LZ4 blocks of every basket match their XXH64 sum, and its zlib
 //     blocks their Adler-32 sum (by decompressing them). Other compression
 //     kinds, and baskets stored uncompressed, carry no checksum and cannot
-//     be checked.
+//     be checked;
+//   - every key of the top directory's key list has its strings inside
+//     it and the sizes of the record it points to;
+//   - the objects of the streamer, tree and histogram records declare no
+//     count or length beyond the bytes that remain (objects.go), and the
+//     baskets a branch points to are records whose headers fit.
 //
 // A file without ROOT's magic is left to go-hep to refuse. The error names
 // the byte offset, and the branch (the basket's key name) for a basket.
@@ -67,7 +72,7 @@ func CheckFile(r io.ReaderAt, size int64) error {
 		if rec.bytes < 0 || rec.seek > size || rec.bytes > size-rec.seek {
 			return fmt.Errorf("damaged ROOT file: the %s record of %d bytes at byte %d lies outside the file of %d bytes", rec.what, rec.bytes, rec.seek, size)
 		}
-		if _, err := checkRecord(r, rec.what+" record", rec.seek, size, ""); err != nil {
+		if _, err := checkRecord(r, rec.what+" record", rec.seek, size, "", nil); err != nil {
 			return err
 		}
 		// go-hep decodes the streamer information by its key's class,
@@ -81,6 +86,8 @@ func CheckFile(r io.ReaderAt, size int64) error {
 	if err := checkKeyList(r, begin+nbytesname, size); err != nil {
 		return err
 	}
+	records := map[int64]int64{}
+	var baskets []basketRef
 	for pos := begin; pos < end; {
 		var nb [4]byte
 		if n, _ := r.ReadAt(nb[:], pos); n < 4 {
@@ -93,13 +100,117 @@ func CheckFile(r io.ReaderAt, size int64) error {
 			pos -= nbytes
 			continue
 		}
-		nbytes, err := checkRecord(r, "record", pos, end, "")
+		nbytes, err := checkRecord(r, "record", pos, end, "", &baskets)
+		records[pos] = nbytes
 		if err != nil {
 			return err
 		}
 		pos += nbytes
 	}
+	for _, b := range baskets {
+		if err := checkBasket(r, b, records); err != nil {
+			return err
+		}
+	}
 	return nil
+}
+
+// checkBasket checks a basket a branch points to, as go-hep v0.36.0 reads
+// it (with the branch's size and place, then the basket's header after
+// its key: version, buffer size, entry size, number of entries, the end
+// of the data and a flag; ROOT's TBasket streamer, from memory): it must
+// be a record of the file of that size, and the header's counts must fit
+// in it. go-hep reads baskets in goroutines of its own, where a panic
+// ends the process.
+func checkBasket(r io.ReaderAt, b basketRef, records map[int64]int64) error {
+	nbytes, ok := records[b.seek]
+	if !ok || nbytes != b.bytes {
+		return fmt.Errorf("damaged ROOT file: a branch says a basket of %d bytes lies at byte %d, where the file has no such record", b.bytes, b.seek)
+	}
+	k, why := readKey(r, b.seek, b.seek+nbytes)
+	if why == "" && k.class != "TBasket" {
+		why = fmt.Sprintf("is a %s", k.class)
+	}
+	if why == "" {
+		head := make([]byte, k.keylen)
+		r.ReadAt(head, b.seek)
+		why = basketHeader(head, nbytes, func() []byte {
+			all := make([]byte, nbytes)
+			r.ReadAt(all, b.seek)
+			return all
+		})
+	}
+	if why != "" {
+		return fmt.Errorf("branch %q: the basket at byte %d is damaged (its header %s)", k.name, b.seek, why)
+	}
+	return nil
+}
+
+// basketHeader checks the basket header at the end of the key header
+// head, of a basket of nbytes bytes, all of which whole returns; it
+// returns what is wrong, or "".
+func basketHeader(head []byte, nbytes int64, whole func() []byte) string {
+	be := binary.BigEndian
+	s := 26
+	if int16(be.Uint16(head[4:])) > 1000 {
+		s = 34
+	}
+	for range 3 { // class, name, title
+		var ok bool
+		if _, s, ok = tstring(head, s); !ok {
+			return "is cut short"
+		}
+	}
+	w := walker{b: head, pos: s}
+	end := len(head)
+	vers := int16(w.u16(end))
+	w.skip(4, end) // buffer size
+	if nev := int32(w.u32(end)); nev < 0 {
+		w.skipObject(end) // I/O features
+	}
+	nevbuf := int32(w.u32(end))
+	last := int64(int32(w.u32(end)))
+	var flag byte
+	if w.need(1, end, "the flag") {
+		flag = w.b[w.pos]
+		w.pos++
+	}
+	if w.done() {
+		return w.why
+	}
+	gen := flag >= 80
+	if gen {
+		flag -= 80
+	}
+	switch {
+	case gen && flag <= 40:
+		return fmt.Sprintf("has the flag %d", flag+80)
+	case !gen && flag != 0 && flag%10 != 2:
+		if nevbuf > 0 || flag > 40 {
+			w.b = whole() // the counted arrays follow the header
+		}
+		end = len(w.b)
+		if nevbuf > 0 {
+			n := w.count(end, 4, "the entry offsets")
+			w.skip(4*n, end)
+		}
+		if flag > 40 {
+			n := w.count(end, 4, "the displacements")
+			w.skip(4*n, end)
+		}
+		if w.why != "" {
+			return w.why
+		}
+	}
+	if flag == 1 || flag > 10 {
+		if vers <= 1 {
+			return "has a version without a data size"
+		}
+		if last < 0 || last > nbytes {
+			return fmt.Sprintf("says its data end at byte %d of %d", last, nbytes)
+		}
+	}
+	return ""
 }
 
 // checkKeyList checks the key list of the top directory, whose record
@@ -191,7 +302,7 @@ func checkKeys(r io.ReaderAt, list []byte, n, size int64) (string, error) {
 		if why != "" {
 			return fmt.Sprintf("has a key %d of %d (%s %q) whose record at byte %d %s", i+1, n, k.class, k.name, seek, why), nil
 		}
-		if _, err := checkRecord(r, "record", seek, size, k.class); err != nil {
+		if _, err := checkRecord(r, "record", seek, size, k.class, nil); err != nil {
 			return "", err
 		}
 		list = list[k.keylen:]
@@ -268,7 +379,7 @@ func keyStrings(k *rootKey, b []byte) string {
 // blocks (with their checksums for a basket), and the objects of a
 // record of a walked class: class, or the key's own class if "". It
 // returns the record's size.
-func checkRecord(r io.ReaderAt, what string, pos, end int64, class string) (int64, error) {
+func checkRecord(r io.ReaderAt, what string, pos, end int64, class string, baskets *[]basketRef) (int64, error) {
 	k, bad := readKey(r, pos, end)
 	if bad != "" {
 		return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d %s", what, pos, bad)
@@ -301,8 +412,11 @@ func checkRecord(r io.ReaderAt, what string, pos, end int64, class string) (int6
 		}
 	}
 	if why == "" && walk {
-		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}}
+		w := walker{b: payload, base: k.keylen, refs: map[int64]string{}, objs: map[int64]bool{}}
 		w.body(k.class, len(payload))
+		if baskets != nil {
+			*baskets = append(*baskets, w.baskets...)
+		}
 		if w.why != "" {
 			return k.nbytes, fmt.Errorf("damaged ROOT file: the %s at byte %d (%s %q) is damaged, %s; the file cannot be read: write it again or restore it from a copy", what, pos, k.class, k.name, w.why)
 		}

@@ -38,9 +38,20 @@
 //
 // [CheckFile] checks the layout of a ROOT file (the records the header
 // points to, every record's size against the file and its compressed
-// blocks) and the checksums of compressed baskets, which go-hep v0.36.0
-// does not verify; go-hep allocates every length a file declares before
-// reading it, so a damaged length would otherwise cost up to 2 GB. The
+// blocks, every key of the key list against its record) and the checksums
+// of compressed baskets, which go-hep v0.36.0 does not verify; go-hep
+// allocates every length a file declares before reading it, so a damaged
+// length would otherwise cost up to 2 GB. It also walks the objects of
+// the records go-hep decodes when it opens a file and reads a tree or a
+// histogram (the streamer information, trees with their branches and
+// leaves, histograms with their axes), decompressed with their size
+// bounded, as go-hep reads them, and checks every object count, string
+// length and array length against the bytes that remain: go-hep allocates
+// those first too, up to 32 GB for one count, which ends the process. The
+// baskets a branch points to must be records of the file with headers
+// that fit, since go-hep reads them in goroutines of its own. The walk
+// stops silently at a layout it does not know (other classes, versions,
+// records above 256 MB uncompressed, the old ROOT compression). The
 // histogram readers call it, and so does the event reader of
 // unfold/inputs/events for trees.
 package rootio

@@ -103,9 +103,17 @@ func readExactly(dst []byte, open func() (io.Reader, error)) error {
 	if _, err := io.ReadFull(rd, dst); err != nil {
 		return err
 	}
+	// Read on to the end, where zlib and xz verify their checksums.
 	var one [1]byte
-	if n, _ := rd.Read(one[:]); n > 0 {
+	n, err := rd.Read(one[:])
+	for i := 0; n == 0 && err == nil && i < 100; i++ {
+		n, err = rd.Read(one[:])
+	}
+	switch {
+	case n > 0:
 		return fmt.Errorf("more than %d bytes", len(dst))
+	case err != io.EOF:
+		return err
 	}
 	return nil
 }
@@ -120,14 +128,20 @@ func readExactly(dst []byte, open func() (io.Reader, error)) error {
 // silently where it cannot follow the layout (an unknown class or
 // version), leaving the rest to go-hep.
 type walker struct {
-	b     []byte
-	pos   int
-	base  int64            // the position of b[0] in go-hep's numbering (the key's length)
-	refs  map[int64]string // classes by their tag
-	depth int
-	why   string // what is wrong; stops the walk
-	stop  bool   // the layout cannot be followed; stops the walk
+	b    []byte
+	pos  int
+	base int64            // the position of b[0] in go-hep's numbering (the key's length)
+	refs map[int64]string // classes by their tag
+	objs map[int64]bool   // the tags of the objects read
+	// baskets are the baskets the branches walked point to.
+	baskets []basketRef
+	depth   int
+	why     string // what is wrong; stops the walk
+	stop    bool   // the layout cannot be followed; stops the walk
 }
+
+// basketRef is where a branch says one of its baskets is.
+type basketRef struct{ seek, bytes int64 }
 
 func (w *walker) done() bool { return w.why != "" || w.stop }
 
@@ -319,6 +333,7 @@ func (w *walker) object(end int) {
 		w.fail("objects nested more than %d deep", maxDepth)
 		return
 	}
+	beg := w.pos
 	bc := w.u32(end)
 	switch {
 	case w.done() || bc == 0:
@@ -340,10 +355,10 @@ func (w *walker) object(end int) {
 	var class string
 	switch {
 	case tag&classMask == 0:
-		// A reference to an earlier object: go-hep reads nothing more
-		// when it knows the object, and jumps beyond the record when
-		// it does not.
-		if n != 4 {
+		// A reference to an earlier object: go-hep reads on after the
+		// tag when it knows the object, whatever the byte count says,
+		// and jumps beyond the record when it does not.
+		if !w.objs[int64(tag)] {
 			w.stop = true
 		}
 		return
@@ -365,7 +380,13 @@ func (w *walker) object(end int) {
 	}
 	w.body(class, objEnd)
 	if !w.done() {
-		w.pos = objEnd
+		// go-hep reads on where the object's fields end, not where
+		// the pointer's byte count says.
+		if w.pos != objEnd {
+			w.fail("a %s pointer's byte count ends %d bytes after its fields", class, objEnd-w.pos)
+			return
+		}
+		w.objs[w.base+int64(beg)+mapOffset] = true
 	}
 }
 
@@ -395,6 +416,10 @@ func (w *walker) body(class string, end int) {
 		w.str(e)
 		w.str(e)
 		w.close(e)
+	case "TArrayD", "TArrayL64":
+		w.counted(end, 8, "a "+class)
+	case "TArrayI", "TArrayF":
+		w.counted(end, 4, "a "+class)
 	case "TTree":
 		w.tree(end)
 	case "TBranch":
@@ -483,9 +508,10 @@ func (w *walker) tree(end int) {
 	}
 	w.array(e) // branches
 	w.array(e) // leaves
-	if !w.done() {
-		w.pos = e
+	for range 7 {
+		w.object(e) // aliases, index values, index, tree index, friends, user information, branch references
 	}
+	w.close(e)
 }
 
 // branch checks a TBranch of version 10 to 13 as go-hep reads it: a
@@ -499,7 +525,9 @@ func (w *walker) branch(end int) {
 	}
 	w.named(e)
 	w.skipObject(e) // fill attributes
-	w.skip(4*4+8, e)
+	w.skip(3*4, e)  // compression, basket size, entry offset length
+	written := int64(int32(w.u32(e)))
+	w.skip(8, e) // entry number
 	if vers >= 13 {
 		w.skipObject(e) // I/O features
 	}
@@ -519,6 +547,18 @@ func (w *walker) branch(end int) {
 	if maxBaskets < 0 || 3+20*maxBaskets > int64(e-w.pos) {
 		w.fail("a TBranch declares %d baskets (4+8+8 bytes each), but %d bytes remain", maxBaskets, e-w.pos)
 		return
+	}
+	// go-hep reads the written baskets at the places and with the sizes
+	// these arrays give, in goroutines of its own where a panic cannot be
+	// recovered: they are kept to be checked against the file's records.
+	if written >= 0 && written <= maxBaskets {
+		bytesAt, seekAt := w.pos+1, w.pos+1+4*int(maxBaskets)+1+8*int(maxBaskets)+1
+		for i := range int(written) {
+			w.baskets = append(w.baskets, basketRef{
+				seek:  int64(binary.BigEndian.Uint64(w.b[seekAt+8*i:])),
+				bytes: int64(int32(binary.BigEndian.Uint32(w.b[bytesAt+4*i:]))),
+			})
+		}
 	}
 	w.pos += 3 + 20*int(maxBaskets)
 	w.str(e)

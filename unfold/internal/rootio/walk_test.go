@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"compress/zlib"
 	"encoding/binary"
+	"fmt"
 	"os"
 	"strings"
 	"testing"
@@ -46,7 +47,7 @@ func walkRecords(t *testing.T, data []byte) map[string][]*walker {
 					t.Fatalf("record at %d (%s): not inflated: %s", pos, k.class, why)
 				}
 			}
-			w := &walker{b: p, base: k.keylen, refs: map[int64]string{}}
+			w := &walker{b: p, base: k.keylen, refs: map[int64]string{}, objs: map[int64]bool{}}
 			w.body(k.class, len(p))
 			got[k.class] = append(got[k.class], w)
 		}
@@ -196,7 +197,7 @@ func TestTreeCounts(t *testing.T) {
 	}
 	name := named + 6 + 10
 	walk := func(p []byte) string {
-		w := walker{b: p, base: keylen, refs: map[int64]string{}}
+		w := walker{b: p, base: keylen, refs: map[int64]string{}, objs: map[int64]bool{}}
 		w.body("TTree", len(p))
 		return w.why
 	}
@@ -254,10 +255,86 @@ func TestHistCounts(t *testing.T) {
 		}
 		q := append([]byte(nil), p...)
 		be.PutUint32(q[at:], 500_000_000)
-		w := walker{b: q, base: got[class][0].base, refs: map[int64]string{}}
+		w := walker{b: q, base: got[class][0].base, refs: map[int64]string{}, objs: map[int64]bool{}}
 		w.body(class, len(q))
 		if !strings.Contains(w.why, "the cells of a histogram declares 500000000 items of at least 8 bytes") {
 			t.Errorf("%s with 500 million cells: %q", class, w.why)
 		}
+	}
+}
+
+// TestPointerByteCount lengthens by 12 bytes the byte count in front of
+// an element of the streamer information of a written file (an object
+// pointer: its length with kByteCountMask, then the class tag; ROOT
+// reference guide, from memory). go-hep v0.36.0 does not use that count:
+// it reads on where the element's fields end, so a walk that jumped to
+// the end the count says would check other bytes than go-hep reads (a
+// FuzzROOT finding: a TObjArray count of 1.9 billion behind such a
+// pointer). The walk refuses the mismatch.
+func TestPointerByteCount(t *testing.T) {
+	data, err := os.ReadFile("testdata/hists.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := walkRecords(t, data)["TList"][0]
+	p := append([]byte(nil), w.b...)
+	// The first element pointer: after the TObjArray's class name come
+	// its header (6 bytes), TObject (10), name (1 byte, empty), count
+	// and lower bound (8).
+	i := bytes.Index(p, []byte("TObjArray\x00")) + len("TObjArray\x00") + 6 + 10 + 1 + 8
+	bc := binary.BigEndian.Uint32(p[i:])
+	if bc&byteCountMask == 0 || p[i+4] != 0xff {
+		t.Fatalf("no element pointer at byte %d: %x", i, p[i:i+8])
+	}
+	binary.BigEndian.PutUint32(p[i:], bc+12)
+	v := walker{b: p, base: w.base, refs: map[int64]string{}, objs: map[int64]bool{}}
+	v.body("TList", len(p))
+	if !strings.Contains(v.why, "pointer's byte count ends 12 bytes after its fields") {
+		t.Errorf("a pointer's byte count 12 bytes too long: %q", v.why)
+	}
+}
+
+// TestBasketHeaders damages the first basket of a written tree: the end
+// of its data (fLast, after the key's strings, the version, buffer size,
+// entry size and number of entries; ROOT's TBasket streamer, from
+// memory) set negative with the flag saying the data follow the header:
+// go-hep v0.36.0 allocates it as a slice in a goroutine of its own (a
+// panic that ends the process, a FuzzROOT finding). It is refused.
+func TestBasketHeaders(t *testing.T) {
+	data, err := os.ReadFile("../../inputs/events/testdata/events.root")
+	if err != nil {
+		t.Fatal(err)
+	}
+	be := binary.BigEndian
+	begin, end := int64(be.Uint32(data[8:])), int64(be.Uint32(data[12:]))
+	r := bytes.NewReader(data)
+	var at int64 = -1
+	var k rootKey
+	for pos := begin; pos < end && at < 0; pos += k.nbytes {
+		var why string
+		if k, why = readKey(r, pos, end); why != "" {
+			t.Fatal(why)
+		}
+		if k.class == "TBasket" {
+			at = pos
+		}
+	}
+	if at < 0 || be.Uint16(data[at+4:]) > 1000 {
+		t.Fatal("no small-file TBasket record")
+	}
+	s := 26
+	for range 3 {
+		_, s, _ = tstring(data[at:at+k.keylen], s)
+	}
+	last := at + int64(s) + 2 + 4 + 4 + 4
+	if got := int64(be.Uint32(data[last:])); got <= k.keylen || got > k.objlen+k.keylen {
+		t.Fatalf("fLast read as %d: the offsets are wrong", got)
+	}
+	d := append([]byte(nil), data...)
+	be.PutUint32(d[last:], 0xcccccccc)
+	d[last+4] = 1               // the flag: the data follow the header, fLast bytes of them
+	be.PutUint32(d[last-4:], 0) // no entries: no entry offsets before the data
+	if err := CheckFile(bytes.NewReader(d), int64(len(d))); err == nil || !strings.Contains(err.Error(), fmt.Sprintf("the basket at byte %d is damaged (its header says its data end at byte -858993460", at)) {
+		t.Errorf("fLast negative: %v", err)
 	}
 }
