@@ -163,7 +163,35 @@ func (r *Built) Save(dir string, info BundleInfo, replace bool) (err error) {
 
 // Load reads the response bundle at dir.
 func Load(dir string) (*Built, *BundleInfo, error) {
-	b, err := os.ReadFile(filepath.Join(dir, bundleJSON))
+	return load(folder(dir), dir)
+}
+
+// bundleFiles reads the files of a bundle by name: from its folder
+// (folder), or from memory in the fuzz target.
+type bundleFiles interface {
+	readFile(name string) ([]byte, error)
+	open(name string) (io.ReadCloser, error)
+	matrix(name string) (*sparse.Matrix, error)
+}
+
+// folder is the bundle in the folder it names.
+type folder string
+
+func (d folder) readFile(name string) ([]byte, error) {
+	return os.ReadFile(filepath.Join(string(d), name))
+}
+
+func (d folder) open(name string) (io.ReadCloser, error) {
+	return os.Open(filepath.Join(string(d), name))
+}
+
+func (d folder) matrix(name string) (*sparse.Matrix, error) {
+	return sparse.Load(filepath.Join(string(d), name))
+}
+
+// load reads the bundle of files, called dir in messages.
+func load(files bundleFiles, dir string) (*Built, *BundleInfo, error) {
+	b, err := files.readFile(bundleJSON)
 	if err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
 			return nil, nil, fmt.Errorf("%s is not a response bundle (no %s in it)", dir, bundleJSON)
@@ -180,7 +208,7 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	if doc.Format != BundleFormat || doc.Version != BundleVersion && doc.Version != 2 {
 		return nil, nil, fmt.Errorf("%s: format %q version %d, want %q version %d", filepath.Join(dir, bundleJSON), doc.Format, doc.Version, BundleFormat, BundleVersion)
 	}
-	if err := checkManifest(dir, b); err != nil {
+	if err := checkManifest(files, dir, b); err != nil {
 		return nil, nil, err
 	}
 	nt, nr := doc.TruthBins, doc.RecoBins
@@ -192,7 +220,7 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 	}
 	// Non-finite numbers: JSON cannot hold them (the decoder refuses
 	// 1e400) and sparse.Load refuses them in the matrix.
-	m, err := sparse.Load(filepath.Join(dir, bundleMatrix))
+	m, err := files.matrix(bundleMatrix)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -205,11 +233,11 @@ func Load(dir string) (*Built, *BundleInfo, error) {
 }
 
 // checkManifest compares the SHA-256 sums in the manifest of the bundle
-// at dir with its files (js is the content of response.json, already
-// read). Every file of the bundle must be listed.
-func checkManifest(dir string, js []byte) error {
+// of files, called dir in messages, with its files (js is the content of
+// response.json, already read). Every file of the bundle must be listed.
+func checkManifest(files bundleFiles, dir string, js []byte) error {
 	mpath := filepath.Join(dir, bundleManifest)
-	text, err := os.ReadFile(mpath)
+	text, err := files.readFile(bundleManifest)
 	if errors.Is(err, fs.ErrNotExist) {
 		return fmt.Errorf("%s: missing; the bundle's files cannot be checked, build the response again", mpath)
 	}
@@ -225,7 +253,7 @@ func checkManifest(dir string, js []byte) error {
 		want[name] = sum
 	}
 	got := map[string]string{bundleJSON: fmt.Sprintf("%x", sha256.Sum256(js))}
-	f, err := os.Open(filepath.Join(dir, bundleMatrix))
+	f, err := files.open(bundleMatrix)
 	if err != nil {
 		return err
 	}

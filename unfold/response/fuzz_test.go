@@ -1,11 +1,15 @@
 package response
 
 import (
+	"bytes"
 	"crypto/sha256"
 	"fmt"
+	"io"
+	"io/fs"
 	"os"
-	"path/filepath"
 	"testing"
+
+	"github.com/desmear/desmear/sparse"
 )
 
 // FuzzLoad loads a bundle of arbitrary response.json and migrations.dsm
@@ -23,15 +27,10 @@ func FuzzLoad(f *testing.F) {
 		f.Fatal(err)
 	}
 	f.Add(js, dsm)
-	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, js, dsm []byte) {
 		manifest := fmt.Sprintf("%x  %s\n%x  %s\n", sha256.Sum256(js), bundleJSON, sha256.Sum256(dsm), bundleMatrix)
-		for name, b := range map[string][]byte{bundleJSON: js, bundleMatrix: dsm, bundleManifest: []byte(manifest)} {
-			if err := os.WriteFile(filepath.Join(dir, name), b, 0o644); err != nil {
-				t.Fatal(err)
-			}
-		}
-		r, _, err := Load(dir)
+		files := memFiles{bundleJSON: js, bundleMatrix: dsm, bundleManifest: []byte(manifest)}
+		r, _, err := load(files, "bundle")
 		if err != nil {
 			return
 		}
@@ -39,4 +38,28 @@ func FuzzLoad(f *testing.F) {
 			t.Fatalf("a %d×%d matrix for %d reco and %d truth bins", rows, cols, r.RecoBins(), r.TruthBins())
 		}
 	})
+}
+
+// memFiles is a bundle in memory, read by the code behind Load: the same
+// decoding and checks, without files written per execution.
+type memFiles map[string][]byte
+
+func (m memFiles) readFile(name string) ([]byte, error) {
+	if b, ok := m[name]; ok {
+		return b, nil
+	}
+	return nil, &fs.PathError{Op: "open", Path: name, Err: fs.ErrNotExist}
+}
+
+func (m memFiles) open(name string) (io.ReadCloser, error) {
+	b, err := m.readFile(name)
+	return io.NopCloser(bytes.NewReader(b)), err
+}
+
+func (m memFiles) matrix(name string) (*sparse.Matrix, error) {
+	b, err := m.readFile(name)
+	if err != nil {
+		return nil, err
+	}
+	return sparse.Read(bytes.NewReader(b))
 }
