@@ -8,7 +8,7 @@ import (
 	"testing"
 )
 
-// The arithmetic path of finder for edges of equal widths (method.md §28
+// The arithmetic path of finder for edges of equal widths (method.md §27
 // Locating events by arithmetic) must give the edge search's bin (search,
 // the reference: the rule "a bin includes its low edge, the last edge
 // belongs to the overflow", common practice) for every value: on every edge and the floats just below and above it,

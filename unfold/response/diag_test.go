@@ -13,7 +13,7 @@ import (
 // The truth bin that locateDiag gives for the reco observables of an
 // event must be the one that locating them in the truth scheme gives
 // (method.md §2 Response, efficiency, purity and stability; the shortcut:
-// method.md §28 Locating events by arithmetic), for points anywhere
+// method.md §27 Locating events by arithmetic), for points anywhere
 // in each reco bin: random ones, both edges of the bin, the truth edges
 // inside it and their neighbouring floats. The schemes cover products of
 // axes (the per-axis map), edges-by-bin axes (the corners), two reco
