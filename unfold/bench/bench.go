@@ -457,23 +457,7 @@ func fillParquet(ctx context.Context, r *Results, c Config) error {
 	}
 	defer os.RemoveAll(dir)
 	n := c.ParquetEvents
-	names := []string{"xt", "yt", "zt", "xr", "yr", "zr", "w"}
-	cols := make([][]float64, len(names))
-	for k := range cols {
-		cols[k] = make([]float64, n)
-	}
-	rng := rand.New(rand.NewPCG(20, 3))
-	for k := 0; k < n; k++ {
-		for a := 0; a < 3; a++ {
-			t := rng.Float64()
-			if a == 2 {
-				t = math.Min(rng.ExpFloat64()/3, 0.999999)
-			}
-			cols[a][k] = t
-			cols[3+a][k] = t + 0.02*rng.NormFloat64()
-		}
-		cols[6][k] = 0.5 + rng.Float64()
-	}
+	names, cols := eventColumns(n)
 	sim := filepath.Join(dir, "sim.parquet")
 	if err := eventfile.WriteParquet(sim, names, cols); err != nil {
 		return err
@@ -510,6 +494,31 @@ func fillParquet(ctx context.Context, r *Results, c Config) error {
 	r.ParquetEventsPerS, r.ParquetDecodeEventsPerS, r.ParquetDecodeRatio = medianFloat(fills), medianFloat(decodes), medianFloat(ratios)
 	r.ParquetEventsPerCPUS, r.ParquetDecodeEventsPerCPUS, r.ParquetDecodeCPURatio = medianFloat(cpuFills), medianFloat(cpuDecodes), medianFloat(cpuRatios)
 	return nil
+}
+
+// eventColumns returns the seeded events of the filling measurements:
+// three truth observables in [0, 1) (the third falling exponentially),
+// their reco values smeared by a Gaussian of 0.02, and a weight in
+// [0.5, 1.5).
+func eventColumns(n int) ([]string, [][]float64) {
+	names := []string{"xt", "yt", "zt", "xr", "yr", "zr", "w"}
+	cols := make([][]float64, len(names))
+	for k := range cols {
+		cols[k] = make([]float64, n)
+	}
+	rng := rand.New(rand.NewPCG(20, 3))
+	for k := 0; k < n; k++ {
+		for a := 0; a < 3; a++ {
+			t := rng.Float64()
+			if a == 2 {
+				t = math.Min(rng.ExpFloat64()/3, 0.999999)
+			}
+			cols[a][k] = t
+			cols[3+a][k] = t + 0.02*rng.NormFloat64()
+		}
+		cols[6][k] = 0.5 + rng.Float64()
+	}
+	return names, cols
 }
 
 // cpuTime returns the CPU time (user and system) the process has used.
