@@ -19,7 +19,9 @@ import (
 // once: Sum(Sum(a, b), c, d) equals Sum(a, b, c, d), which lets partial
 // results be merged as they arrive. The result carries sums of squared
 // weights when every matrix does, and none otherwise. The result shares
-// no storage with the arguments.
+// no storage with the arguments. Large sums are merged by ranges of
+// columns on up to GOMAXPROCS goroutines; the result does not depend on
+// their number.
 //
 // Sum returns an error if no matrix is given, if the dimensions differ,
 // or if a sum overflows to infinity.
