@@ -107,6 +107,10 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 			defer wg.Done()
 			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
 			gw := gen[w]
+			var cnt *genCounter
+			if generated {
+				cnt = newGenCounter(nt, batch)
+			}
 			for {
 				mu.Lock()
 				b := next
@@ -120,13 +124,14 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
 					t, rc, wt := event(rng, c)
 					if generated {
-						g := &gw[t]
-						g[0]++
-						g[1] += int64((wt-0.8)*(255/0.4) + 0.5)
+						cnt.add(t, uint64((wt-0.8)*(255/0.4)+0.5))
 					}
 					if rc >= 0 {
 						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
 					}
+				}
+				if generated {
+					cnt.flush(gw)
 				}
 				entries[w] += int64(len(rows))
 				if err := acc.AddBatch(uint64(b), rows, cols, wts); err != nil {
@@ -165,4 +170,55 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 		g[t] = 0.8*float64(k) + 0.4*float64(q)/255
 	}
 	return a, g, n, nil
+}
+
+// genSpanBits sets the truth bins of one bucket of a genCounter: 2^12
+// bins, 64 KiB of counts, which stay in the core's cache while the
+// bucket's events are counted.
+const genSpanBits = 12
+
+// genCounter counts a batch's events into the per-truth-bin counts and
+// sums of q of a worker without a cache miss per event: the events,
+// packed as t<<8 | q, are first distributed by truth bucket (a counting
+// sort on t >> genSpanBits), then counted bucket by bucket. The counts are
+// integers, so the order of the additions does not change them.
+type genCounter struct {
+	tq, sorted []uint64
+	heads      []int
+}
+
+func newGenCounter(nt, batch int) *genCounter {
+	return &genCounter{
+		tq:     make([]uint64, 0, batch),
+		sorted: make([]uint64, batch),
+		heads:  make([]int, nt>>genSpanBits+2),
+	}
+}
+
+// add records an event of truth bin t and weight code q (0..255).
+func (g *genCounter) add(t int, q uint64) { g.tq = append(g.tq, uint64(t)<<8|q) }
+
+// flush adds the recorded events to gw (events, sum of q per truth bin)
+// and empties the counter.
+func (g *genCounter) flush(gw [][2]int64) {
+	heads := g.heads
+	clear(heads)
+	for _, v := range g.tq {
+		heads[v>>(8+genSpanBits)+1]++
+	}
+	for b := 1; b < len(heads); b++ {
+		heads[b] += heads[b-1]
+	}
+	sorted := g.sorted[:len(g.tq)]
+	for _, v := range g.tq {
+		b := v >> (8 + genSpanBits)
+		sorted[heads[b]] = v
+		heads[b]++
+	}
+	for _, v := range sorted {
+		c := &gw[v>>8]
+		c[0]++
+		c[1] += int64(v & 0xff)
+	}
+	g.tq = g.tq[:0]
 }
