@@ -5,6 +5,7 @@ import (
 	"crypto/sha256"
 	"encoding/binary"
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 	"time"
@@ -74,4 +75,39 @@ func problemDigest(p *unfold.Problem) [32]byte {
 	var s [32]byte
 	copy(s[:], h.Sum(nil))
 	return s
+}
+
+// The batch generator of the fill draws the events of event, the plain
+// one-event-at-a-time definition of the benchmark's simulation, bit for
+// bit: the same truth bin, reco bin (or none) and weight for every event
+// of a stream, at every size.
+func TestEventGenMatchesEvent(t *testing.T) {
+	for _, s := range Sizes {
+		c, err := ConfigOf(s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		g := newEventGen(c)
+		const n = 50000
+		cnt := newGenCounter(c.Truth[0]*c.Truth[1]*c.Truth[2], n)
+		rows, cols, wts := g.batch(rand.New(rand.NewPCG(0x5eed, 7)), n, nil, nil, nil, cnt)
+		ref := rand.New(rand.NewPCG(0x5eed, 7))
+		k := 0
+		for e := range n {
+			tr, rc, w := event(ref, c)
+			if got := cnt.tq[e]; got != uint64(tr)<<8|uint64(math.Round((w-0.8)*255/0.4)) || wts == nil {
+				t.Fatalf("%s: event %d recorded as %#x, want truth %d, weight %v", s, e, got, tr, w)
+			}
+			if rc < 0 {
+				continue
+			}
+			if k >= len(rows) || int(rows[k]) != rc || int(cols[k]) != tr || math.Float64bits(wts[k]) != math.Float64bits(w) {
+				t.Fatalf("%s: event %d: entry %d differs from (reco %d, truth %d, weight %v)", s, e, k, rc, tr, w)
+			}
+			k++
+		}
+		if k != len(rows) {
+			t.Fatalf("%s: %d entries, want %d", s, len(rows), k)
+		}
+	}
 }
