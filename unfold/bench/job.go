@@ -166,14 +166,15 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 }
 
 // genSpanBits sets the truth bins of one bucket of a genCounter: 2^12
-// bins, 64 KiB of counts, which stay in the core's cache while the
-// bucket's events are counted.
+// bins, 64 KiB of counts, whose pages and lines are near one another
+// while the bucket's events are counted.
 const genSpanBits = 12
 
 // genCounter counts a batch's events into the per-truth-bin counts and
-// sums of q of a worker without a cache miss per event: the events,
-// packed as t<<8 | q, are first distributed by truth bucket (a counting
-// sort on t >> genSpanBits), then counted bucket by bucket. The counts are
+// sums of q of a worker without a random access to the 8 MB of counts
+// per event: the events, packed as t<<8 | q, are first distributed by
+// truth bucket (a counting sort on t >> genSpanBits), then counted bucket
+// by bucket, within 64 KiB at a time. The counts are
 // integers, so the order of the additions does not change them.
 type genCounter struct {
 	tq, sorted []uint64
