@@ -107,6 +107,11 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 			defer wg.Done()
 			rows, cols, wts := make([]int32, 0, batch), make([]int32, 0, batch), make([]float64, 0, batch)
 			gw := gen[w]
+			var cnt *genCounter
+			eg := newEventGen(c)
+			if generated {
+				cnt = newGenCounter(nt, batch)
+			}
 			for {
 				mu.Lock()
 				b := next
@@ -116,17 +121,10 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 					return
 				}
 				rng := rand.New(rand.NewPCG(0x5eed, uint64(b)))
-				rows, cols, wts = rows[:0], cols[:0], wts[:0]
-				for e := int(b) * batch; e < min(c.FillEvents, int(b+1)*batch); e++ {
-					t, rc, wt := event(rng, c)
-					if generated {
-						g := &gw[t]
-						g[0]++
-						g[1] += int64((wt-0.8)*(255/0.4) + 0.5)
-					}
-					if rc >= 0 {
-						rows, cols, wts = append(rows, int32(rc)), append(cols, int32(t)), append(wts, wt)
-					}
+				n := min(c.FillEvents, int(b+1)*batch) - int(b)*batch
+				rows, cols, wts = eg.batch(rng, n, rows[:0], cols[:0], wts[:0], cnt)
+				if generated {
+					cnt.flush(gw)
 				}
 				entries[w] += int64(len(rows))
 				if err := acc.AddBatch(uint64(b), rows, cols, wts); err != nil {
@@ -165,4 +163,118 @@ func accumulate(ctx context.Context, c Config, generated bool) (*sparse.Matrix, 
 		g[t] = 0.8*float64(k) + 0.4*float64(q)/255
 	}
 	return a, g, n, nil
+}
+
+// genSpanBits sets the truth bins of one bucket of a genCounter: 2^12
+// bins, 64 KiB of counts, whose pages and lines are near one another
+// while the bucket's events are counted.
+const genSpanBits = 12
+
+// genCounter counts a batch's events into the per-truth-bin counts and
+// sums of q of a worker without a random access to the 8 MB of counts
+// per event: the events, packed as t<<8 | q, are first distributed by
+// truth bucket (a counting sort on t >> genSpanBits), then counted bucket
+// by bucket, within 64 KiB at a time. The counts are
+// integers, so the order of the additions does not change them.
+type genCounter struct {
+	tq, sorted []uint64
+	heads      []int
+}
+
+func newGenCounter(nt, batch int) *genCounter {
+	return &genCounter{
+		tq:     make([]uint64, 0, batch),
+		sorted: make([]uint64, batch),
+		heads:  make([]int, nt>>genSpanBits+2),
+	}
+}
+
+// flush adds the recorded events to gw (events, sum of q per truth bin)
+// and empties the counter.
+func (g *genCounter) flush(gw [][2]int64) {
+	heads := g.heads
+	clear(heads)
+	for _, v := range g.tq {
+		heads[v>>(8+genSpanBits)+1]++
+	}
+	for b := 1; b < len(heads); b++ {
+		heads[b] += heads[b-1]
+	}
+	sorted := g.sorted[:len(g.tq)]
+	for _, v := range g.tq {
+		b := v >> (8 + genSpanBits)
+		sorted[heads[b]] = v
+		heads[b]++
+	}
+	for _, v := range sorted {
+		c := &gw[v>>8]
+		c[0]++
+		c[1] += int64(v & 0xff)
+	}
+	g.tq = g.tq[:0]
+}
+
+// eventGen draws the events of event for one configuration, with its
+// constants formed once: the same draws and the same arithmetic (the
+// reco cell's offsets and the weights taken from tables of the values
+// event computes), so the same events bit for bit.
+type eventGen struct {
+	tx, ty     uint64
+	nx, nxy    int
+	zmax       int
+	zscale     float64 // Truth[2]/3
+	qx, qxy    int
+	rx, ry, rz []int // ix·Reco[0]/Truth[0] − 1, iy·Reco[1]/Truth[1] − 1, iz·Reco[2]/Truth[2] − 2
+	qw, qy, qz int   // the reco grid's sizes, for the bounds
+	w          [256]float64
+}
+
+func newEventGen(c Config) *eventGen {
+	t, q := c.Truth, c.Reco
+	g := &eventGen{
+		tx: uint64(t[0]), ty: uint64(t[1]), nx: t[0], nxy: t[0] * t[1], zmax: t[2] - 1,
+		zscale: float64(t[2]) / 3, qx: q[0], qxy: q[0] * q[1], qw: q[0], qy: q[1], qz: q[2],
+		rx: make([]int, t[0]), ry: make([]int, t[1]), rz: make([]int, t[2]),
+	}
+	for i := range g.rx {
+		g.rx[i] = i*q[0]/t[0] - 1
+	}
+	for i := range g.ry {
+		g.ry[i] = i*q[1]/t[1] - 1
+	}
+	for i := range g.rz {
+		g.rz[i] = i*q[2]/t[2] - 2
+	}
+	for k := range g.w {
+		g.w[k] = 0.8 + 0.4*float64(k)/255
+	}
+	return g
+}
+
+// batch draws n events from rng, appends the reconstructed ones to rows,
+// cols and wts, and records every event in cnt when it is not nil (its
+// truth bin and weight code q, the weight being 0.8 + 0.4 q/255).
+func (g *eventGen) batch(rng *rand.Rand, n int, rows, cols []int32, wts []float64, cnt *genCounter) ([]int32, []int32, []float64) {
+	rx, ry, rz := g.rx, g.ry, g.rz
+	for range n {
+		u := rng.Uint64()
+		ix, iy := int(u%g.tx), int((u>>16)%g.ty)
+		iz := min(int(g.zscale*rng.ExpFloat64()), g.zmax)
+		truth := ix + g.nx*iy + g.nxy*iz
+		q := (u >> 32) & 0xff
+		if cnt != nil {
+			cnt.tq = append(cnt.tq, uint64(truth)<<8|q)
+		}
+		if (u>>40)%10 == 0 {
+			continue
+		}
+		x := rx[ix] + int((u>>44)%3)
+		y := ry[iy] + int((u>>48)%3)
+		z := rz[iz] + int((u>>52)%5)
+		if uint(x) >= uint(g.qw) || uint(y) >= uint(g.qy) || uint(z) >= uint(g.qz) {
+			continue
+		}
+		rows, cols, wts = append(rows, int32(x+g.qx*y+g.qxy*z)), append(cols, int32(truth)), append(wts, g.w[q])
+	}
+	return rows, cols, wts
 }
