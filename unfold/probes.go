@@ -167,6 +167,11 @@ func (pr *Probes) Net(s int) float64 {
 	return d
 }
 
+// RecordsSteps reports whether the driver records the tangents of every
+// step (Step reads them): a method may then not leave the start's
+// tangents implicit.
+func (pr *Probes) RecordsSteps() bool { return pr.step != nil }
+
 // Tangent returns dμ_s, the truth-sized vector the method fills for
 // probe s.
 func (pr *Probes) Tangent(s int) []float64 { return pr.dmu[s] }
