@@ -45,6 +45,42 @@ const ProbeBlock = 8
 // (12 MB per probe) a batch holds 40 probes.
 const ProbeBatchBytes = 512 << 20
 
+// probeBatches splits probes into the batches of at most batch probes
+// each that the driver runs in turn: as few as fit, the blocks of
+// ProbeBlock spread evenly over them (the first ones taking one more
+// block where they do not divide), the last block, short when probes
+// is no multiple of ProbeBlock, in the last batch. A batch is then no
+// larger than the first (its buffers serve the next), and a short block
+// shares a batch with full ones wherever the blocks come to two or more
+// per batch.
+// Below a block per batch the batches hold batch probes each. The probes
+// do not depend on the batches they run in.
+func probeBatches(probes, batch int) []int {
+	if probes <= 0 {
+		return nil
+	}
+	nb := (probes + batch - 1) / batch
+	if batch < ProbeBlock {
+		sizes := make([]int, nb)
+		for b := range sizes {
+			sizes[b] = min(batch, probes-b*batch)
+		}
+		return sizes
+	}
+	blocks := (probes + ProbeBlock - 1) / ProbeBlock
+	sizes := make([]int, nb)
+	left := probes
+	for b := range sizes {
+		n := blocks / nb
+		if b < blocks%nb {
+			n++
+		}
+		sizes[b] = min(n*ProbeBlock, left)
+		left -= sizes[b]
+	}
+	return sizes
+}
+
 // Probes is a batch of random probes for the per-bin variances: probe s
 // is the perturbation z_s of the data dn_i = ±σ(n_i) and, when the
 // background variance is propagated, of the background db_i = ±σ(b_i),
@@ -166,6 +202,11 @@ func (pr *Probes) Net(s int) float64 {
 	}
 	return d
 }
+
+// RecordsSteps reports whether the driver records the tangents of every
+// step (Step reads them): a method may then not leave the start's
+// tangents implicit.
+func (pr *Probes) RecordsSteps() bool { return pr.step != nil }
 
 // Tangent returns dμ_s, the truth-sized vector the method fills for
 // probe s.

@@ -2,6 +2,7 @@ package unfold
 
 import (
 	"math"
+	"slices"
 	"testing"
 )
 
@@ -49,6 +50,49 @@ func TestProbesNet(t *testing.T) {
 		}
 		if got := pr.Net(s); math.Float64bits(got) != math.Float64bits(want) {
 			t.Errorf("probe %d: Net %v, want %v", s, got, want)
+		}
+	}
+}
+
+// probeBatches: as few batches as fit, ⌈probes/batch⌉ (the closed form
+// of the smallest count of batches of at most batch), none larger than
+// the first, every batch but the last a whole number of blocks, the short
+// block in the last batch beside full ones (where the blocks come to two
+// or more per batch), and the batches covering
+// every probe once; the sizes written out for the fine grid's plan (100
+// probes, 32 per batch) and for batches below a block.
+func TestProbeBatches(t *testing.T) {
+	if got, want := probeBatches(100, 32), []int{32, 24, 24, 20}; !slices.Equal(got, want) {
+		t.Errorf("100 probes, 32 per batch: %v, want %v", got, want)
+	}
+	if got, want := probeBatches(10, 4), []int{4, 4, 2}; !slices.Equal(got, want) {
+		t.Errorf("10 probes, 4 per batch: %v, want %v", got, want)
+	}
+	for probes := 1; probes <= 130; probes++ {
+		for batch := 1; batch <= 70; batch++ {
+			if batch >= ProbeBlock && batch%ProbeBlock != 0 {
+				continue // probeBatch gives whole blocks above one
+			}
+			sizes := probeBatches(probes, batch)
+			if len(sizes) != (probes+batch-1)/batch {
+				t.Fatalf("%d probes, %d per batch: %d batches %v", probes, batch, len(sizes), sizes)
+			}
+			sum := 0
+			for b, n := range sizes {
+				sum += n
+				if n < 1 || n > batch || n > sizes[0] {
+					t.Fatalf("%d probes, %d per batch: batch %d of %d probes %v", probes, batch, b, n, sizes)
+				}
+				if batch >= ProbeBlock && b+1 < len(sizes) && n%ProbeBlock != 0 {
+					t.Fatalf("%d probes, %d per batch: batch %d not whole blocks %v", probes, batch, b, sizes)
+				}
+				if blocks := (probes + ProbeBlock - 1) / ProbeBlock; batch >= ProbeBlock && blocks/len(sizes) >= 2 && n < ProbeBlock {
+					t.Fatalf("%d probes, %d per batch: batch %d of a short block alone %v", probes, batch, b, sizes)
+				}
+			}
+			if sum != probes {
+				t.Fatalf("%d probes, %d per batch: batches %v cover %d", probes, batch, sizes, sum)
+			}
 		}
 	}
 }

@@ -240,8 +240,10 @@ func (pl *plan) finish(ctx context.Context, fit Fit, res *Result) error {
 				res.StepVariance[k] = make([]float64, m.nt)
 			}
 		}
-		for first := 0; first < pl.rs.Probes; first += pl.batch {
-			pr = drawProbes(pr, m, first, min(pl.batch, pl.rs.Probes-first), pl.rs.Seed)
+		first := 0
+		for _, size := range probeBatches(pl.rs.Probes, pl.batch) {
+			pr = drawProbes(pr, m, first, size, pl.rs.Seed)
+			first += size
 			pr.step = nil
 			if n > 0 {
 				pr.step = func(k int) {

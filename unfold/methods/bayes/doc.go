@@ -103,8 +103,9 @@
 //     product J D Jᵀ (method.md §8), and bit for bit the same on any
 //     number of cores;
 //   - the random probes (Fit.Tangents) are Jacobian-vector products
-//     through the same recursion, one fused sweep per probe and
-//     iteration;
+//     through the same recursion, one fused sweep per block of
+//     unfold.ProbeBlock probes and iteration (per probe with smoothing),
+//     every probe with the bits it gets alone;
 //   - the Poisson toys (Fit.NewToyRunner) are unfolded with the same
 //     number of iterations as the data; without smoothing they go in
 //     blocks of unfold.ToyBlock (Fit.NewToyBlockRunner), one

@@ -18,9 +18,13 @@ import (
 // Without smoothing the probes go in blocks of unfold.ProbeBlock: one
 // SweepBlock per block and iteration reads the matrix once for all of
 // them, with the block's reco vectors interleaved (element i of probe
-// s of the block at i·k+s). Each probe gets the bits of a Sweep of its
-// own (SweepBlock sums every vector as Sweep does), so the results do
-// not depend on the blocks. With smoothing (or with perProbe, for the
+// s of the block at i·k+s). A last block of fewer probes in a batch of
+// at least one full block is swept as a full one, its missing probes
+// held at 0. Each probe gets the bits of a Sweep of its own (SweepBlock
+// sums every vector as Sweep does), so the results do not depend on the
+// blocks. The start's tangents dμ_s = c_s p and R dμ_s = c_s R p stay
+// implicit (fresh): the first step forms them where it reads them, with
+// the same products, instead of a pass writing them. With smoothing (or with perProbe, for the
 // benchmarks) every probe makes a Sweep, or a back-projection, the
 // smoothing and a fold, of its own.
 type probes struct {
@@ -44,9 +48,14 @@ type probes struct {
 	spare   []float64 // the sweep's destination of a block (interleaved)
 	update  func(j int, g, x []float64)
 	cur     int // first probe of the block being swept
-	it      *iterator
-	k       int       // the iteration the tangents hold
-	c0      []float64 // the probes' starting factors c_s (init)
+	curK    int // its number of probes (the sweep's vectors may be more: lanes)
+	// fresh reports that the tangents are the start's, implicit: dμ_s =
+	// c_s p and R dμ_s = c_s R p (c_s in c0); dμ_s is written only when
+	// the driver records the steps.
+	fresh bool
+	it    *iterator
+	k     int       // the iteration the tangents hold
+	c0    []float64 // the probes' starting factors c_s (init)
 }
 
 // perProbe makes every probe of the method's fits sweep on its own (the
@@ -72,7 +81,7 @@ func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
 			pr.tfold = append(pr.tfold, make([]float64, m.nr))
 		} else if s%unfold.ProbeBlock == 0 {
 			// every block can take the spare buffer in turn: full capacity
-			pr.tfold = append(pr.tfold, make([]float64, pr.width(s)*m.nr, pr.width(0)*m.nr))
+			pr.tfold = append(pr.tfold, make([]float64, pr.lanes(s)*m.nr, pr.lanes(0)*m.nr))
 		}
 	}
 	pr.a = make([]float64, m.nr)
@@ -81,12 +90,31 @@ func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
 		pr.c = make([]float64, m.nr)
 	}
 	if pr.blocked {
-		pr.spare = make([]float64, pr.width(0)*m.nr)
+		pr.spare = make([]float64, pr.lanes(0)*m.nr)
 		pr.update = func(j int, g, x []float64) {
 			it, ig, ie := pr.it, m.invG[j], m.invEps[j]
 			gj, muj := it.g[j], it.mu[j]
-			dmu := pr.dmu[pr.cur : pr.cur+len(x)]
-			if len(x) == 8 {
+			k := pr.curK
+			dmu := pr.dmu[pr.cur : pr.cur+k]
+			switch {
+			case pr.fresh && k == 8:
+				// dμ_s = c_s p: the product init would have stored
+				d, c8, g8, x8 := (*[8][]float64)(dmu), (*[8]float64)(pr.c0[pr.cur:]), (*[8]float64)(g), (*[8]float64)(x)
+				pj := m.prior[j]
+				for s := range 8 {
+					v := (gj*(c8[s]*pj) + muj*g8[s]*ig) * ie
+					d[s][j] = v
+					x8[s] = v * ig
+				}
+			case pr.fresh:
+				c, pj := pr.c0[pr.cur:pr.cur+k], m.prior[j]
+				for s, ds := range dmu {
+					v := (gj*(c[s]*pj) + muj*g[s]*ig) * ie
+					ds[j] = v
+					x[s] = v * ig
+				}
+				clear(x[k:]) // the lanes without a probe stay 0
+			case k == 8:
 				// the same, with fixed-size arrays: fewer bounds checks
 				d, g8, x8 := (*[8][]float64)(dmu), (*[8]float64)(g), (*[8]float64)(x)
 				for s := range 8 {
@@ -95,12 +123,13 @@ func newProbes(m *model, batch *unfold.Probes, blocked bool) *probes {
 					ds[j] = v
 					x8[s] = v * ig
 				}
-				return
-			}
-			for s, ga := range g {
-				v := (gj*dmu[s][j] + muj*ga*ig) * ie
-				dmu[s][j] = v
-				x[s] = v * ig
+			default:
+				for s, ds := range dmu {
+					v := (gj*ds[j] + muj*g[s]*ig) * ie
+					ds[j] = v
+					x[s] = v * ig
+				}
+				clear(x[k:])
 			}
 		}
 		return pr
@@ -145,7 +174,7 @@ func (pr *probes) reuse(batch *unfold.Probes) {
 	if pr.blocked {
 		pr.tfold = pr.tfold[:(pr.count+unfold.ProbeBlock-1)/unfold.ProbeBlock]
 		for b := range pr.tfold {
-			pr.tfold[b] = pr.tfold[b][:pr.width(b*unfold.ProbeBlock)*pr.m.nr]
+			pr.tfold[b] = pr.tfold[b][:pr.lanes(b*unfold.ProbeBlock)*pr.m.nr]
 		}
 	} else {
 		pr.tfold = pr.tfold[:pr.count]
@@ -156,6 +185,17 @@ func (pr *probes) reuse(batch *unfold.Probes) {
 // width returns the number of probes of the block starting at probe s.
 func (pr *probes) width(s int) int { return min(unfold.ProbeBlock, pr.count-s) }
 
+// lanes returns the number of interleaved vectors of the block starting
+// at probe s: a full block's when the batch has one (a shorter last block
+// takes the 8-vector sweep, its buffers having that capacity anyway),
+// otherwise its probes'.
+func (pr *probes) lanes(s int) int {
+	if pr.count >= unfold.ProbeBlock {
+		return unfold.ProbeBlock
+	}
+	return pr.width(s)
+}
+
 func (pr *probes) init(ctx context.Context, it *iterator) error {
 	m := pr.m
 	workers := runtime.GOMAXPROCS(0)
@@ -164,12 +204,17 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 	}
 	c0 := pr.c0[:pr.count]
 	// dμ_s = c_s p with c_s = (Σ dn − Σ db)/Σ ε p, probe by probe (each
-	// goroutine writes vectors of its own probes only)
+	// goroutine writes vectors of its own probes only); in blocks the
+	// first step forms dμ_s and R dμ_s = c_s R p itself (fresh), and
+	// dμ_s is written here only for the driver recording the steps
+	write := !pr.blocked || pr.batch.RecordsSteps()
 	parallel.For(pr.count, workers, func(s int) {
 		c := pr.batch.Net(s) / m.sumEP
 		c0[s] = c
-		for j, p := range m.prior {
-			pr.dmu[s][j] = c * p
+		if write {
+			for j, p := range m.prior {
+				pr.dmu[s][j] = c * p
+			}
 		}
 		if !pr.blocked {
 			for i, v := range it.rp {
@@ -177,22 +222,7 @@ func (pr *probes) init(ctx context.Context, it *iterator) error {
 			}
 		}
 	})
-	if pr.blocked {
-		// R dμ_s = c_s R p, block by block and reco bin by reco bin, so
-		// that every cache line of a block's interleaved vectors is
-		// written once, by one goroutine
-		parallel.For(len(pr.tfold), workers, func(b int) {
-			first := b * unfold.ProbeBlock
-			k := pr.width(first)
-			cb, tf := c0[first:first+k], pr.tfold[b]
-			for i, v := range it.rp {
-				row := tf[i*k : i*k+k]
-				for o, c := range cb {
-					row[o] = c * v
-				}
-			}
-		})
-	}
+	pr.fresh = pr.blocked
 	if err := ctx.Err(); err != nil {
 		return err
 	}
@@ -224,6 +254,7 @@ func (pr *probes) step(ctx context.Context, it *iterator) error {
 		if err := pr.stepBlocks(ctx, it); err != nil {
 			return err
 		}
+		pr.fresh = false
 		pr.k++
 		pr.batch.Step(pr.k)
 		return nil
@@ -309,17 +340,20 @@ func (pr *probes) one(pw *probeWork, it *iterator, s int) {
 
 // stepBlocks advances the probes by one iteration, block by block: the
 // block's y = dn/ν − n (R dμ + db)/ν² overwrites its R dμ (no longer
-// needed), and one SweepBlock gives the new dμ and R dμ of every probe of
-// the block.
+// needed; fresh: c_s R p, formed here), and one SweepBlock gives the new
+// dμ and R dμ of every probe of the block. Lanes without a probe get
+// y = 0.
 func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
 	a, w, c := pr.a, pr.w, pr.c
+	fresh, rp := pr.fresh, it.rp
 	pr.it = it
 	for b, tf := range pr.tfold {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
 		first := b * unfold.ProbeBlock
-		k := pr.width(first)
+		k, kl := pr.width(first), pr.lanes(first)
+		c0 := pr.c0[first : first+k]
 		sn := pr.signN[first : first+k]
 		var sb [][]uint64
 		if c != nil {
@@ -341,33 +375,64 @@ func (pr *probes) stepBlocks(ctx context.Context, it *iterator) error {
 					}
 				}
 				if k == 8 && sb == nil {
-					blockY8(tf[8*i0:8*i1], a[i0:i1], w[i0:i1], &nn, uint(i0)&63)
+					if fresh {
+						blockY8Start(tf[8*i0:8*i1], a[i0:i1], w[i0:i1], rp[i0:i1], (*[8]float64)(c0), &nn, uint(i0)&63)
+					} else {
+						blockY8(tf[8*i0:8*i1], a[i0:i1], w[i0:i1], &nn, uint(i0)&63)
+					}
 					i0 = i1
 					continue
 				}
 				for i := i0; i < i1; i++ {
 					bit := uint(i) & 63
 					ai, wi := math.Float64bits(a[i]), w[i]
-					row := tf[i*k : i*k+k]
-					for o := range row {
+					row := tf[i*kl : i*kl+kl]
+					for o := range k {
+						var t float64 // R dμ
+						if fresh {
+							t = c0[o] * rp[i]
+						} else {
+							t = row[o]
+						}
 						flip := (nn[o] >> bit & 1) << 63
-						y := math.Float64frombits(ai^flip) - wi*row[o]
+						y := math.Float64frombits(ai^flip) - wi*t
 						if sb != nil {
 							flip := (nb[o] >> bit & 1) << 63
 							y -= math.Float64frombits(math.Float64bits(c[i]) ^ flip)
 						}
 						row[o] = y
 					}
+					clear(row[k:])
 				}
 				i0 = i1
 			}
 		})
-		pr.cur = first
-		next := pr.spare[:k*len(a)]
-		pr.m.a.SweepBlock(next, tf, k, pr.update)
+		pr.cur, pr.curK = first, k
+		next := pr.spare[:kl*len(a)]
+		pr.m.a.SweepBlock(next, tf, kl, pr.update)
 		pr.tfold[b], pr.spare = next, tf[:cap(tf)]
 	}
 	return nil
+}
+
+// blockY8Start is blockY8 at the start, where R dμ_o = c[o]·rp_i: row i
+// of tf becomes ±a_i − w_i·(c[o]·rp_i), the product blockY8 would have
+// read from tf.
+func blockY8Start(tf, a, w, rp []float64, c *[8]float64, nn *[unfold.ProbeBlock]uint64, bit0 uint) {
+	w, rp = w[:len(a)], rp[:len(a)]
+	for i, av := range a {
+		bit := bit0 + uint(i)
+		ai, wi, v := math.Float64bits(av), w[i], rp[i]
+		row := (*[8]float64)(tf[8*i : 8*i+8])
+		row[0] = math.Float64frombits(ai^(nn[0]>>bit&1)<<63) - wi*(c[0]*v)
+		row[1] = math.Float64frombits(ai^(nn[1]>>bit&1)<<63) - wi*(c[1]*v)
+		row[2] = math.Float64frombits(ai^(nn[2]>>bit&1)<<63) - wi*(c[2]*v)
+		row[3] = math.Float64frombits(ai^(nn[3]>>bit&1)<<63) - wi*(c[3]*v)
+		row[4] = math.Float64frombits(ai^(nn[4]>>bit&1)<<63) - wi*(c[4]*v)
+		row[5] = math.Float64frombits(ai^(nn[5]>>bit&1)<<63) - wi*(c[5]*v)
+		row[6] = math.Float64frombits(ai^(nn[6]>>bit&1)<<63) - wi*(c[6]*v)
+		row[7] = math.Float64frombits(ai^(nn[7]>>bit&1)<<63) - wi*(c[7]*v)
+	}
 }
 
 // blockY8 is the y pass of stepBlocks for a block of 8 probes without a
