@@ -40,12 +40,13 @@ func uniform(src *rand.PCG) float64 {
 // try, about 1.1 tries, logarithms and log-gamma only outside the
 // squeeze).
 type poissonMean struct {
-	// b is PTRS's b, or e^-mu for the search; vr is PTRS's v_r.
-	b, vr float64
+	// b is PTRS's b, or e^-mu for the search; vr is PTRS's v_r; lmu is
+	// log mu for PTRS's test outside the squeeze.
+	b, vr, lmu float64
 }
 
 // poissonMeanBytes is the size of a poissonMean, for memory estimates.
-const poissonMeanBytes = 16
+const poissonMeanBytes = 24
 
 func newPoissonMean(mu float64) poissonMean {
 	switch {
@@ -55,7 +56,7 @@ func newPoissonMean(mu float64) poissonMean {
 		return poissonMean{b: math.Exp(-mu)}
 	}
 	b := 0.931 + 2.53*math.Sqrt(mu)
-	return poissonMean{b: b, vr: 0.9277 - 3.6224/(b-2)}
+	return poissonMean{b: b, vr: 0.9277 - 3.6224/(b-2), lmu: math.Log(mu)}
 }
 
 // rand returns a draw of mean mu, the mean c was formed for.
@@ -109,25 +110,40 @@ func (c *poissonMean) ptrs(src *rand.PCG, mu float64) float64 {
 		if k < 0 || (us < 0.013 && v > us) {
 			continue
 		}
-		if ptrsAccept(mu, k, v*(1.1239+1.1328/(b-3.4))/(a/(us*us)+b)) {
+		if ptrsAccept(mu, c.lmu, k, v*(1.1239+1.1328/(b-3.4))/(a/(us*us)+b)) {
 			return k
 		}
 	}
 }
 
 // ptrsAccept is PTRS's test outside the squeeze for the count k ≥ 0 and
-// w = V/(α(a/u_s² + b)): log w ≤ −mu + k·log(mu) − log k!. From k = 9 on,
-// log k! is Stirling's series to 1/(1260 n⁵), n = k+1, and the test
-// reads log(w·sqrt(n)) ≤ k·log(mu/n) + n − mu − ½log 2π − S(n): two
-// logarithms.
-func ptrsAccept(mu, k, w float64) bool {
-	if k < 9 {
-		lg, _ := math.Lgamma(k + 1)
-		return math.Log(w) <= -mu+k*math.Log(mu)-lg
+// w = V/(α(a/u_s² + b)), with lmu = log mu: log w ≤ −mu + k·lmu − log k!.
+// Below logFactorialLen, log k! comes from the table logFactorial and the
+// test takes one logarithm; from there on, log k! is Stirling's series to
+// 1/(1260 n⁵), n = k+1, and the test reads log(w·sqrt(n)) ≤ k·log(mu/n)
+// + n − mu − ½log 2π − S(n): two logarithms.
+func ptrsAccept(mu, lmu, k, w float64) bool {
+	if k < logFactorialLen {
+		return math.Log(w) <= -mu+k*lmu-logFactorial[int(k)]
 	}
 	n := k + 1
 	return math.Log(w*math.Sqrt(n)) <= k*math.Log(mu/n)+(n-mu)-halfLog2Pi-stirlingSeries(n)
 }
+
+// logFactorialLen is the length of logFactorial: the counts of the means
+// the toys meet most (up to a few hundred) lie well below it, and the
+// table (16 KiB) stays in the cache.
+const logFactorialLen = 2048
+
+// logFactorial holds log k! = log Γ(k+1) for k < logFactorialLen, from
+// math.Lgamma.
+var logFactorial = func() *[logFactorialLen]float64 {
+	var t [logFactorialLen]float64
+	for k := range t {
+		t[k], _ = math.Lgamma(float64(k) + 1)
+	}
+	return &t
+}()
 
 // halfLog2Pi is log(2π)/2.
 const halfLog2Pi = 0.91893853320467274178
