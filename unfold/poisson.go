@@ -124,11 +124,49 @@ func (c *poissonMean) ptrs(src *rand.PCG, mu float64) float64 {
 // + n − mu − ½log 2π − S(n): two logarithms.
 func ptrsAccept(mu, lmu, k, w float64) bool {
 	if k < logFactorialLen {
-		return math.Log(w) <= -mu+k*lmu-logFactorial[int(k)]
+		return logAtMost(w, -mu+k*lmu-logFactorial[int(k)])
 	}
 	n := k + 1
 	return math.Log(w*math.Sqrt(n)) <= k*math.Log(mu/n)+(n-mu)-halfLog2Pi-stirlingSeries(n)
 }
+
+// logAtMost reports whether math.Log(w) ≤ r, for w ≥ 0, mostly without
+// the logarithm: w = 2^e·m with m in [1/√2, √2), and log m =
+// 2·(t + t³/3 + t⁵/5 + …) with t = (m−1)/(m+1), |t| ≤ 3−2√2 < 0.1716
+// (the series of artanh; Abramowitz and Stegun 4.1.27). The first two
+// terms leave a remainder of at most 2|t|⁵/(5(1−t²)) < 0.4122·|t|⁵, so
+// log w lies within that, widened by logSlack for the rounding, of
+// e·log 2 + 2(t + t³/3); only when r falls inside that interval is the
+// logarithm taken. The answer is the one math.Log gives (whose error is
+// below one unit in the last place, far inside logSlack).
+func logAtMost(w, r float64) bool {
+	if !(w >= 0x1p-1022) || w > math.MaxFloat64 {
+		return math.Log(w) <= r // 0, subnormal, infinite or NaN: the exact test
+	}
+	bits := math.Float64bits(w)
+	e := int(bits>>52) - 1023
+	m := math.Float64frombits(bits&(1<<52-1) | 1023<<52) // in [1, 2)
+	if m >= math.Sqrt2 {
+		m *= 0.5
+		e++
+	}
+	t := (m - 1) / (m + 1)
+	t2 := t * t
+	mid := float64(e)*math.Ln2 + 2*t*(1+t2*(1.0/3))
+	rem := 0.4122*t2*t2*math.Abs(t) + logSlack*(1+math.Abs(mid))
+	switch {
+	case mid+rem <= r:
+		return true
+	case mid-rem > r:
+		return false
+	}
+	return math.Log(w) <= r
+}
+
+// logSlack bounds, relative to max(1, |log w|), the rounding of the
+// bracket of logAtMost (a few units in the last place; 1e-12 leaves a
+// wide margin).
+const logSlack = 1e-12
 
 // logFactorialLen is the length of logFactorial: the counts of the means
 // the toys meet most (up to a few hundred) lie well below it, and the
