@@ -196,7 +196,8 @@ func TestPTRSAccept(t *testing.T) {
 // TestLogAtMost: logAtMost answers as math.Log(w) <= r (the standard
 // library as the reference) for w over the whole range of normal floats,
 // and at 0, subnormals, +Inf and NaN, with r close to log w (inside and
-// just outside the bracket) and far from it.
+// just outside the bracket) and far from it (the bracket of method.md §26
+// Poisson draws of the toys).
 func TestLogAtMost(t *testing.T) {
 	rng := rand.New(rand.NewPCG(8, 9))
 	for i := range 2_000_000 {
