@@ -131,14 +131,14 @@ func ptrsAccept(mu, lmu, k, w float64) bool {
 }
 
 // logAtMost reports whether math.Log(w) ≤ r, for w ≥ 0, mostly without
-// the logarithm: w = 2^e·m with m in [1/√2, √2), and log m =
-// 2·(t + t³/3 + t⁵/5 + …) with t = (m−1)/(m+1), |t| ≤ 3−2√2 < 0.1716
-// (the series of artanh; Abramowitz and Stegun 4.1.27). The first two
-// terms leave a remainder of at most 2|t|⁵/(5(1−t²)) < 0.4122·|t|⁵, so
-// log w lies within that, widened by logSlack for the rounding, of
-// e·log 2 + 2(t + t³/3); only when r falls inside that interval is the
-// logarithm taken. The answer is the one math.Log gives (whose error is
-// below one unit in the last place, far inside logSlack).
+// the logarithm: w = 2^e·m with m in [1, 2), and log m = 2·(t + t³/3 +
+// t⁵/5 + …) with t = (m−1)/(m+1) in [0, 1/3) (the series of artanh;
+// Abramowitz and Stegun 4.1.27). The first three terms leave a remainder
+// of at most 2t⁷/(7(1−t²)) ≤ (9/28)·t⁷ < 0.3215·t⁷, so log w lies within
+// that, widened by logSlack for the rounding, of e·log 2 + 2(t + t³/3 +
+// t⁵/5); only when r falls inside that interval is the logarithm taken.
+// The answer is the one math.Log gives (whose error is below one unit in
+// the last place, far inside logSlack). No branch depends on m.
 func logAtMost(w, r float64) bool {
 	if !(w >= 0x1p-1022) || w > math.MaxFloat64 {
 		return math.Log(w) <= r // 0, subnormal, infinite or NaN: the exact test
@@ -146,14 +146,10 @@ func logAtMost(w, r float64) bool {
 	bits := math.Float64bits(w)
 	e := int(bits>>52) - 1023
 	m := math.Float64frombits(bits&(1<<52-1) | 1023<<52) // in [1, 2)
-	if m >= math.Sqrt2 {
-		m *= 0.5
-		e++
-	}
 	t := (m - 1) / (m + 1)
 	t2 := t * t
-	mid := float64(e)*math.Ln2 + 2*t*(1+t2*(1.0/3))
-	rem := 0.4122*t2*t2*math.Abs(t) + logSlack*(1+math.Abs(mid))
+	mid := float64(e)*math.Ln2 + 2*t*(1+t2*(1.0/3+t2*(1.0/5)))
+	rem := 0.3215*t*t2*t2*t2 + logSlack*(1+math.Abs(mid))
 	switch {
 	case mid+rem <= r:
 		return true
