@@ -3,6 +3,7 @@ package sparse
 import (
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -127,5 +128,65 @@ func TestSumCancellationAndErrors(t *testing.T) {
 	big, _ := NewMatrix(2, 2, []int{0, 1, 1}, []int{0}, []float64{math.MaxFloat64}, nil)
 	if _, err := Sum(big, big); err == nil {
 		t.Error("an overflowing sum accepted")
+	}
+}
+
+// TestSumColumnRangesSameBits sums matrices large enough for Sum to merge
+// ranges of columns in parallel, with 1, 2, 3 and 8 cores, and compares
+// every cell with a left fold written here over a map of cells (the
+// definition of Sum: the stored values added in argument order, starting
+// from the first), bit for bit; every third column is stored by none.
+func TestSumColumnRangesSameBits(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 5))
+	const rows, cols = 400, 1500
+	ms := make([]*Matrix, 5)
+	type cell struct{ v, w2 float64 }
+	want := map[[2]int]*cell{}
+	for q := range ms {
+		ms[q] = weightedMatrix(t, rng, rows, cols, 0.05+0.1*float64(q))
+		m := ms[q]
+		for j := 0; j < cols; j++ {
+			for p := m.ColPtr()[j]; p < m.ColPtr()[j+1]; p++ {
+				key := [2]int{m.RowIdx()[p], j}
+				if c := want[key]; c != nil {
+					c.v += m.Values()[p]
+					c.w2 += m.SumW2()[p]
+				} else {
+					want[key] = &cell{m.Values()[p], m.SumW2()[p]}
+				}
+			}
+		}
+	}
+	var in int
+	for _, m := range ms {
+		in += m.NNZ()
+	}
+	if in < sumParallelCells {
+		t.Fatalf("%d input cells: too few for the parallel merge (%d)", in, sumParallelCells)
+	}
+	for _, procs := range []int{1, 2, 3, 8} {
+		old := runtime.GOMAXPROCS(procs)
+		got, err := Sum(ms...)
+		runtime.GOMAXPROCS(old)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got.NNZ() != len(want) {
+			t.Fatalf("%d cores: %d cells, want %d", procs, got.NNZ(), len(want))
+		}
+		for j := 0; j < cols; j++ {
+			last := -1
+			for p := got.ColPtr()[j]; p < got.ColPtr()[j+1]; p++ {
+				r := got.RowIdx()[p]
+				c := want[[2]int{r, j}]
+				if c == nil || r <= last {
+					t.Fatalf("%d cores: cell (%d,%d) not expected there", procs, r, j)
+				}
+				last = r
+				if math.Float64bits(got.Values()[p]) != math.Float64bits(c.v) || math.Float64bits(got.SumW2()[p]) != math.Float64bits(c.w2) {
+					t.Fatalf("%d cores: cell (%d,%d) = %v, %v; want %v, %v", procs, r, j, got.Values()[p], got.SumW2()[p], c.v, c.w2)
+				}
+			}
+		}
 	}
 }
