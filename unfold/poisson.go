@@ -40,12 +40,13 @@ func uniform(src *rand.PCG) float64 {
 // try, about 1.1 tries, logarithms and log-gamma only outside the
 // squeeze).
 type poissonMean struct {
-	// b is PTRS's b, or e^-mu for the search; vr is PTRS's v_r.
-	b, vr float64
+	// b is PTRS's b, or e^-mu for the search; vr is PTRS's v_r; lmu is
+	// log mu for PTRS's test outside the squeeze.
+	b, vr, lmu float64
 }
 
 // poissonMeanBytes is the size of a poissonMean, for memory estimates.
-const poissonMeanBytes = 16
+const poissonMeanBytes = 24
 
 func newPoissonMean(mu float64) poissonMean {
 	switch {
@@ -55,7 +56,7 @@ func newPoissonMean(mu float64) poissonMean {
 		return poissonMean{b: math.Exp(-mu)}
 	}
 	b := 0.931 + 2.53*math.Sqrt(mu)
-	return poissonMean{b: b, vr: 0.9277 - 3.6224/(b-2)}
+	return poissonMean{b: b, vr: 0.9277 - 3.6224/(b-2), lmu: math.Log(mu)}
 }
 
 // rand returns a draw of mean mu, the mean c was formed for.
@@ -109,25 +110,74 @@ func (c *poissonMean) ptrs(src *rand.PCG, mu float64) float64 {
 		if k < 0 || (us < 0.013 && v > us) {
 			continue
 		}
-		if ptrsAccept(mu, k, v*(1.1239+1.1328/(b-3.4))/(a/(us*us)+b)) {
+		if ptrsAccept(mu, c.lmu, k, v*(1.1239+1.1328/(b-3.4))/(a/(us*us)+b)) {
 			return k
 		}
 	}
 }
 
 // ptrsAccept is PTRS's test outside the squeeze for the count k ≥ 0 and
-// w = V/(α(a/u_s² + b)): log w ≤ −mu + k·log(mu) − log k!. From k = 9 on,
-// log k! is Stirling's series to 1/(1260 n⁵), n = k+1, and the test
-// reads log(w·sqrt(n)) ≤ k·log(mu/n) + n − mu − ½log 2π − S(n): two
-// logarithms.
-func ptrsAccept(mu, k, w float64) bool {
-	if k < 9 {
-		lg, _ := math.Lgamma(k + 1)
-		return math.Log(w) <= -mu+k*math.Log(mu)-lg
+// w = V/(α(a/u_s² + b)), with lmu = log mu: log w ≤ −mu + k·lmu − log k!.
+// Below logFactorialLen, log k! comes from the table logFactorial and the
+// test takes one logarithm; from there on, log k! is Stirling's series to
+// 1/(1260 n⁵), n = k+1, and the test reads log(w·sqrt(n)) ≤ k·log(mu/n)
+// + n − mu − ½log 2π − S(n): two logarithms.
+func ptrsAccept(mu, lmu, k, w float64) bool {
+	if k < logFactorialLen {
+		return logAtMost(w, -mu+k*lmu-logFactorial[int(k)])
 	}
 	n := k + 1
 	return math.Log(w*math.Sqrt(n)) <= k*math.Log(mu/n)+(n-mu)-halfLog2Pi-stirlingSeries(n)
 }
+
+// logAtMost reports whether math.Log(w) ≤ r, for w ≥ 0, mostly without
+// the logarithm: w = 2^e·m with m in [1, 2), and log m = 2·(t + t³/3 +
+// t⁵/5 + …) with t = (m−1)/(m+1) in [0, 1/3) (the series of artanh;
+// Abramowitz and Stegun 4.1.27). The first three terms leave a remainder
+// of at most 2t⁷/(7(1−t²)) ≤ (9/28)·t⁷ < 0.3215·t⁷, so log w lies within
+// that, widened by logSlack for the rounding, of e·log 2 + 2(t + t³/3 +
+// t⁵/5); only when r falls inside that interval is the logarithm taken.
+// The answer is the one math.Log gives (whose error is below one unit in
+// the last place, far inside logSlack). No branch depends on m.
+func logAtMost(w, r float64) bool {
+	if !(w >= 0x1p-1022) || w > math.MaxFloat64 {
+		return math.Log(w) <= r // 0, subnormal, infinite or NaN: the exact test
+	}
+	bits := math.Float64bits(w)
+	e := int(bits>>52) - 1023
+	m := math.Float64frombits(bits&(1<<52-1) | 1023<<52) // in [1, 2)
+	t := (m - 1) / (m + 1)
+	t2 := t * t
+	mid := float64(e)*math.Ln2 + 2*t*(1+t2*(1.0/3+t2*(1.0/5)))
+	rem := 0.3215*t*t2*t2*t2 + logSlack*(1+math.Abs(mid))
+	switch {
+	case mid+rem <= r:
+		return true
+	case mid-rem > r:
+		return false
+	}
+	return math.Log(w) <= r
+}
+
+// logSlack bounds, relative to max(1, |log w|), the rounding of the
+// bracket of logAtMost (a few units in the last place; 1e-12 leaves a
+// wide margin).
+const logSlack = 1e-12
+
+// logFactorialLen is the length of logFactorial: the counts of the means
+// the toys meet most (up to a few hundred) lie well below it, and the
+// table (16 KiB) stays in the cache.
+const logFactorialLen = 2048
+
+// logFactorial holds log k! = log Γ(k+1) for k < logFactorialLen, from
+// math.Lgamma.
+var logFactorial = func() *[logFactorialLen]float64 {
+	var t [logFactorialLen]float64
+	for k := range t {
+		t[k], _ = math.Lgamma(float64(k) + 1)
+	}
+	return &t
+}()
 
 // halfLog2Pi is log(2π)/2.
 const halfLog2Pi = 0.91893853320467274178

@@ -20,7 +20,7 @@ import (
 // those of method.md §26 Poisson draws of the toys.
 func TestPoissonRandDistribution(t *testing.T) {
 	const n = 200_000
-	for _, mu := range []float64{0.05, 0.7, 3, 9.99, 10, 10.5, 27, 150, 4321, 2.5e6} {
+	for _, mu := range []float64{0.05, 0.7, 3, 9.99, 10, 10.5, 27, 150, 2000, 4321, 2.5e6} {
 		rng := rand.NewPCG(7, uint64(mu*1000))
 		counts := map[int]int{}
 		var sum, sum2 float64
@@ -187,8 +187,43 @@ func TestPTRSAccept(t *testing.T) {
 		if math.Abs(math.Log(w)-rhs) < 1e-9*math.Max(1, math.Abs(rhs)) {
 			continue
 		}
-		if got, want := ptrsAccept(mu, k, w), math.Log(w) <= rhs; got != want {
+		if got, want := ptrsAccept(mu, math.Log(mu), k, w), math.Log(w) <= rhs; got != want {
 			t.Fatalf("try %d: mu %g, k %g, log w %g against %g: accepted %v, want %v", i, mu, k, math.Log(w), rhs, got, want)
+		}
+	}
+}
+
+// TestLogAtMost: logAtMost answers as math.Log(w) <= r (the standard
+// library as the reference) for w over the whole range of normal floats,
+// and at 0, subnormals, +Inf and NaN, with r close to log w (inside and
+// just outside the bracket) and far from it (the bracket of method.md §26
+// Poisson draws of the toys).
+func TestLogAtMost(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 9))
+	for i := range 2_000_000 {
+		w := math.Exp((2*rng.Float64() - 1) * 700)
+		if i%2 == 0 {
+			w = rng.Float64() * 2 // around 1, where log w is small
+		}
+		l := math.Log(w)
+		var r float64
+		switch i % 4 {
+		case 0, 1:
+			r = l + (rng.Float64()-0.5)*1e-3 // near the bracket's width
+		case 2:
+			r = l + (rng.Float64()-0.5)*1e-14*math.Max(1, math.Abs(l)) // inside it
+		default:
+			r = l + (rng.Float64()-0.5)*10
+		}
+		if got, want := logAtMost(w, r), l <= r; got != want {
+			t.Fatalf("w %g, r %.17g (log w %.17g): %v, want %v", w, r, l, got, want)
+		}
+	}
+	for _, w := range []float64{0, 5e-324, 1e-310, math.Inf(1), math.NaN(), 1, math.Sqrt2, 1 / math.Sqrt2} {
+		for _, r := range []float64{-800, -1, 0, 1e-17, 1, 800} {
+			if got, want := logAtMost(w, r), math.Log(w) <= r; got != want {
+				t.Errorf("w %g, r %g: %v, want %v", w, r, got, want)
+			}
 		}
 	}
 }

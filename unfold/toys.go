@@ -190,11 +190,12 @@ func toyVariances(ctx context.Context, m *Prepared, fit Fit, toys int, draw func
 // toyBlockBytes is the memory estimate of a block of toys run together
 // (ToyBlockRunner): per toy of the block its pseudo-data (and its
 // background when the background variance is propagated), the block's
-// two interleaved reco vectors of the iteration and one more for the
-// scatter buffers of the response's sweep, and three truth vectors; and
-// the ensemble of the estimates (four truth vectors).
+// three interleaved reco vectors of the iteration (n/ν, the sweep's
+// destination, the data) and one more for the scatter buffers of the
+// response's sweep, and three truth vectors; and the ensemble of the
+// estimates (four truth vectors).
 func toyBlockBytes(m *Prepared) int64 {
-	reco := int64(4)
+	reco := int64(5)
 	if m.varB != nil {
 		reco++
 	}

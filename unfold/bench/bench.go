@@ -56,7 +56,7 @@ type Config struct {
 	Truth, Reco   [3]int
 	Rounds        int // interleaved rounds of the kernel measurements (medians)
 	Iterations    int // of an unfolding
-	Probes, Toys  int
+	Probes, Toys  int // Toys: a multiple of unfold.ToyBlock (see uncertainties)
 	FillEvents    int // events generated in memory for the response filling
 	ParquetEvents int // events written to and read from a Parquet file
 	ParquetRounds int // interleaved rounds of decoding and filling it (medians)
@@ -69,13 +69,13 @@ func ConfigOf(s Size) (Config, error) {
 	switch s {
 	case Small:
 		c.Truth, c.Reco = [3]int{20, 20, 20}, [3]int{20, 20, 40}
-		c.Toys, c.FillEvents, c.ParquetEvents = 100, 1<<20, 1<<18
+		c.Toys, c.FillEvents, c.ParquetEvents = 12*unfold.ToyBlock, 1<<20, 1<<18
 	case Medium:
 		c.Truth, c.Reco = [3]int{50, 50, 40}, [3]int{50, 50, 80}
-		c.Toys, c.FillEvents, c.ParquetEvents = 50, 8<<20, 2<<20
+		c.Toys, c.FillEvents, c.ParquetEvents = 6*unfold.ToyBlock, 8<<20, 2<<20
 	case Fine:
 		c.Truth, c.Reco = [3]int{100, 100, 50}, [3]int{100, 100, 100}
-		c.Toys, c.FillEvents, c.ParquetEvents = 20, 50_000_000, 10<<20
+		c.Toys, c.FillEvents, c.ParquetEvents = 3*unfold.ToyBlock, 50_000_000, 10<<20
 	default:
 		names := make([]string, len(Sizes))
 		for i, z := range Sizes {
@@ -377,6 +377,13 @@ func kernels(ctx context.Context, r *Results, p *unfold.Problem, c Config, note 
 // uncertainties measures the whole unfolding with per-bin variances from
 // Probes probes and the toys per second of Toys Poisson toys (the time of
 // the call with toys less that of a whole unfolding, per toy).
+//
+// The iterative method unfolds its toys in blocks of unfold.ToyBlock, and
+// a last, partial block runs another loop of the sweep (the kernel for a
+// full block does not apply), at another cost per toy. The sizes' Toys
+// are multiples of ToyBlock so that the bench times full blocks only, as
+// an ensemble of 1,000 toys (125 blocks) runs them: toys_per_s predicts
+// such an ensemble (Toys/toys_per_s its time less one whole unfolding).
 func uncertainties(ctx context.Context, r *Results, p *unfold.Problem, c Config, note func(string)) error {
 	m := &bayes.Settings{Iterations: c.Iterations}
 	note(fmt.Sprintf("%d probes", c.Probes))

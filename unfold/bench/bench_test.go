@@ -2,9 +2,11 @@ package bench
 
 import (
 	"context"
+	"flag"
 	"math"
 	"math/rand/v2"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"testing"
 	"time"
@@ -222,4 +224,87 @@ func BenchmarkFineJob(b *testing.B) {
 	b.ReportMetric(float64(peak)/1e6, "MB-peak-RSS")
 	b.ReportMetric(float64(fillPeak)/1e6, "MB-peak-RSS-fill")
 	b.ReportMetric(float64(nnz), "non-zeros")
+}
+
+var (
+	fineToys   = flag.Int("fine-toys", 1000, "toys of each run of BenchmarkFineToys")
+	fineRounds = flag.Int("fine-toy-rounds", 3, "rounds of BenchmarkFineToys (medians)")
+)
+
+// BenchmarkFineToys measures directly what the issue asks of the toys:
+// -fine-toys (1,000) Poisson toys of 4 iterations at the fine grid, the
+// whole unfold.Unfold call with DiagonalToys on the family's problem, in
+// -fine-toy-rounds (3) rounds. Each round also measures, just before, the
+// marginal iteration (a prepared unfolding of 8 iterations less one of 4,
+// over 4, without the log-likelihood, as the bench's iteration_ms) and a
+// whole unfolding without uncertainty, so that a loaded host moves the
+// figures of a round together. Reports the medians of the call's time
+// (s/toys-call), of a toy's time ((call − whole unfolding) / toys), of the
+// marginal iteration and, per round, of a toy's time over 4 marginal
+// iterations (toy/4iter), the figure to compare across loads. With
+// -cpuprofile it profiles the toys' path (their calls dominate).
+func BenchmarkFineToys(b *testing.B) {
+	c, err := ConfigOf(Fine)
+	if err != nil {
+		b.Fatal(err)
+	}
+	p, err := Problem(c)
+	if err != nil {
+		b.Fatal(err)
+	}
+	ctx := context.Background()
+	pr, err := unfold.Prepare(p, unfold.InModel)
+	if err != nil {
+		b.Fatal(err)
+	}
+	k := c.Iterations
+	u1, err := bayes.NewUnfolder(pr, &bayes.Settings{Iterations: k})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u2, err := bayes.NewUnfolder(pr, &bayes.Settings{Iterations: 2 * k})
+	if err != nil {
+		b.Fatal(err)
+	}
+	u1.RecordLogLikelihood(false)
+	u2.RecordLogLikelihood(false)
+	_, nt := p.Migrations.Dims()
+	dst := make([]float64, nt)
+	m := &bayes.Settings{Iterations: k}
+	s := &unfold.Settings{Covariance: unfold.Diagonal, DiagonalMethod: unfold.DiagonalToys, Toys: *fineToys, Seed: 1}
+	var call, toy, iter, ratio []float64
+	b.ResetTimer()
+	for range b.N {
+		for range *fineRounds {
+			runtime.GC()
+			t0 := time.Now()
+			if _, err := u1.Unfold(ctx, dst, nil); err != nil {
+				b.Fatal(err)
+			}
+			t1 := time.Now()
+			if _, err := u2.Unfold(ctx, dst, nil); err != nil {
+				b.Fatal(err)
+			}
+			it := (time.Since(t1) - t1.Sub(t0)).Seconds() / float64(k)
+			t0 = time.Now()
+			if _, err := unfold.Unfold(ctx, p, nil, m); err != nil {
+				b.Fatal(err)
+			}
+			whole := time.Since(t0).Seconds()
+			t0 = time.Now()
+			if _, err := unfold.Unfold(ctx, p, s, m); err != nil {
+				b.Fatal(err)
+			}
+			tc := time.Since(t0).Seconds()
+			tt := (tc - whole) / float64(*fineToys)
+			call, toy, iter = append(call, tc), append(toy, tt), append(iter, it)
+			ratio = append(ratio, tt/(float64(k)*it))
+		}
+	}
+	med := func(x []float64) float64 { x = slices.Clone(x); slices.Sort(x); return x[len(x)/2] }
+	b.ReportMetric(med(call), "s/toys-call")
+	b.ReportMetric(med(toy)*1e3, "ms/toy")
+	b.ReportMetric(med(iter)*1e3, "ms/iteration")
+	b.ReportMetric(med(ratio), "toy/4iter")
+	b.ReportMetric(float64(*fineToys), "toys")
 }

@@ -49,8 +49,8 @@ func (f *fit) NewToyBlockRunner() unfold.ToyBlockRunner {
 // toy by toy when reported.
 //
 // Memory: per toy of the block three truth vectors (μ(k), μ(k+1), the
-// estimate returned), and the block's two interleaved reco vectors (n/ν
-// and the sweep's destination); unfold counts them, the toys' data and
+// estimate returned), and the block's three interleaved reco vectors (n/ν,
+// the sweep's destination and the data); unfold counts them, the toys' data and
 // the sweep's scatter buffers against the memory limit.
 type toyBlock struct {
 	m     *model
@@ -61,6 +61,7 @@ type toyBlock struct {
 	mu, next []float64   // interleaved: μ(k), μ(k+1)
 	est      [][]float64 // per toy: the estimate reported
 	y, fnext []float64   // interleaved: n/ν(k), the sweep's destination
+	nd       []float64   // interleaved: the block's data
 	// parts holds, per chunk c and toy s at c·ToyBlock+s, the χ² terms
 	// and Σ μ(k+1) of the chunk; straddles marks the chunks straddling
 	// two column blocks, straddle lists them.
@@ -74,7 +75,7 @@ type toyBlock struct {
 func newToyBlock(m *model, iters int, steps bool) *toyBlock {
 	const B, cl = unfold.ToyBlock, parallel.ChunkLen
 	tb := &toyBlock{m: m, iters: iters, steps: steps,
-		y: make([]float64, B*m.nr), fnext: make([]float64, B*m.nr), scale: make([]float64, B)}
+		y: make([]float64, B*m.nr), fnext: make([]float64, B*m.nr), nd: make([]float64, B*m.nr), scale: make([]float64, B)}
 	tb.mu, tb.next = make([]float64, B*m.nt), make([]float64, B*m.nt)
 	for range B {
 		tb.est = append(tb.est, make([]float64, m.nt))
@@ -143,6 +144,7 @@ func (tb *toyBlock) RunBlock(ctx context.Context, n, b [][]float64, each func(s,
 		each = nil
 	}
 	y, fnext := tb.y[:k*m.nr], tb.fnext[:k*m.nr]
+	tb.interleave(k)
 	tb.start(y, k)
 	tb.report(0, k, each)
 	for it := 1; it <= tb.iters; it++ {
@@ -155,7 +157,7 @@ func (tb *toyBlock) RunBlock(ctx context.Context, n, b [][]float64, each func(s,
 		}
 		tb.mu, tb.next = tb.next, tb.mu
 		if it < tb.iters {
-			tb.reco(fnext, fnext, k) // n/ν(k) over R μ(k): the next sweep's y
+			tb.reco(fnext, k) // n/ν(k) over R μ(k): the next sweep's y
 			y, fnext = fnext, y
 		}
 		tb.report(it, k, each)
@@ -233,7 +235,7 @@ func (tb *toyBlock) start(y []float64, k int) {
 			}
 		}
 	})
-	tb.reco(y, y, k)
+	tb.reco(y, k)
 }
 
 // chunks returns the number of chunks of n bins of the passes over the
@@ -242,26 +244,59 @@ func (tb *toyBlock) chunks(n int) int {
 	return (n + parallel.ChunkLen - 1) / parallel.ChunkLen
 }
 
-// reco writes y = n/ν with ν = fold + b (0 where ν ≤ 0) for every toy
-// and reco bin of the interleaved fold, the arithmetic of
-// iterator.recoRange without the log-likelihood; y may be fold.
-func (tb *toyBlock) reco(y, fold []float64, k int) {
-	n, b := tb.n[:k], tb.b[:k]
+// reco replaces the interleaved fold f by n/ν with ν = f + b (0 where
+// ν ≤ 0) for every toy and reco bin, the arithmetic of
+// iterator.recoRange without the log-likelihood: chunk by chunk, the
+// backgrounds are added in place (read once per bin when the toys share
+// the model's) and the division is the ratios loop (AVX where the
+// processor has it, the same bits) over the chunk's interleaved values
+// and the block's interleaved data tb.nd.
+func (tb *toyBlock) reco(f []float64, k int) {
+	b := tb.b[:k]
+	shared := true // every toy has the model's background
+	for _, bs := range b {
+		shared = shared && sameSlice(bs, tb.m.b)
+	}
+	nd := tb.nd[:k*tb.m.nr]
 	parallel.For(tb.chunks(tb.m.nr), runtime.GOMAXPROCS(0), func(r int) {
 		lo, hi := r*parallel.ChunkLen, min(tb.m.nr, (r+1)*parallel.ChunkLen)
-		// reco bin by reco bin, the toys of the block inside, so that
-		// the interleaved vectors are read and written in order
-		for i := lo; i < hi; i++ {
-			f, yy := fold[i*k:i*k+k], y[i*k:i*k+k]
-			for s, v := range f {
-				if bs := b[s]; bs != nil {
-					v += bs[i]
+		switch {
+		case shared && tb.m.b != nil:
+			for i, bi := range tb.m.b[lo:hi] {
+				row := f[(lo+i)*k : (lo+i)*k+k]
+				for s := range row {
+					row[s] += bi
 				}
-				w := 0.0
-				if v > 0 {
-					w = n[s][i] / v
+			}
+		case !shared:
+			for i := lo; i < hi; i++ {
+				row := f[i*k : i*k+k]
+				for s := range row {
+					if bs := b[s]; bs != nil {
+						row[s] += bs[i]
+					}
 				}
-				yy[s] = w
+			}
+		}
+		ratios(f[lo*k:hi*k], f[lo*k:hi*k], nil, nd[lo*k:hi*k])
+	})
+}
+
+// sameSlice reports whether a and b are the same slice (the same first
+// element and length; both nil counts).
+func sameSlice(a, b []float64) bool {
+	return len(a) == len(b) && (len(a) == 0 || &a[0] == &b[0])
+}
+
+// interleave copies the data of the block's toys into tb.nd, bin i of
+// toy s at i·k+s.
+func (tb *toyBlock) interleave(k int) {
+	n, nd := tb.n[:k], tb.nd[:k*tb.m.nr]
+	parallel.For(tb.chunks(tb.m.nr), runtime.GOMAXPROCS(0), func(r int) {
+		lo, hi := r*parallel.ChunkLen, min(tb.m.nr, (r+1)*parallel.ChunkLen)
+		for s, ns := range n {
+			for i, v := range ns[lo:hi] {
+				nd[(lo+i)*k+s] = v
 			}
 		}
 	})
