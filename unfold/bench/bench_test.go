@@ -231,7 +231,7 @@ var (
 	fineRounds = flag.Int("fine-toy-rounds", 3, "rounds of BenchmarkFineToys (medians)")
 )
 
-// BenchmarkFineToys measures directly what the issue asks of the toys:
+// BenchmarkFineToys measures a 1,000-toy ensemble directly:
 // -fine-toys (1,000) Poisson toys of 4 iterations at the fine grid, the
 // whole unfold.Unfold call with DiagonalToys on the family's problem, in
 // -fine-toy-rounds (3) rounds. Each round also measures, just before, the
