@@ -50,21 +50,17 @@ func TestCorrupted(t *testing.T) {
 // naming the file, without allocating the declared 2 GB (go-hep v0.36.0
 // allocates it before reading).
 func TestDeclaredLengths(t *testing.T) {
-	data, err := os.ReadFile("testdata/hists.root")
-	if err != nil {
-		t.Fatal(err)
-	}
-	if v := binary.BigEndian.Uint32(data[4:]); v >= 1000000 {
-		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
-	}
+	data := smallFile(t, "testdata/hists.root")
 	seekinfo := binary.BigEndian.Uint32(data[37:])
 	d := append([]byte(nil), data...)
 	binary.BigEndian.PutUint32(d[seekinfo+6:], 0x7ffffff0)
 	q := filepath.Join(t.TempDir(), "x.root")
-	os.WriteFile(q, d, 0o644)
+	if err := os.WriteFile(q, d, 0o644); err != nil {
+		t.Fatal(err)
+	}
 	var m0, m1 runtime.MemStats
 	runtime.ReadMemStats(&m0)
-	_, err = ReadHist1D(q, "h1")
+	_, err := ReadHist1D(q, "h1")
 	runtime.ReadMemStats(&m1)
 	if err == nil || !strings.Contains(err.Error(), q+": damaged ROOT file: the streamer record at byte") {
 		t.Errorf("damaged streamer size: %v", err)
@@ -84,9 +80,7 @@ func TestDeclaredLengths(t *testing.T) {
 func withStreamerCount(t *testing.T, data []byte, n int32) []byte {
 	t.Helper()
 	be := binary.BigEndian
-	if v := be.Uint32(data[4:]); v >= 1000000 {
-		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
-	}
+	smallLayout(t, data)
 	seekinfo := int64(be.Uint32(data[37:]))
 	k, why := readKey(bytes.NewReader(data), seekinfo, int64(len(data)))
 	if why != "" || int16(be.Uint16(data[seekinfo+4:])) > 1000 {
@@ -185,14 +179,8 @@ func TestStreamerCounts(t *testing.T) {
 // a length of 4 GB (go-hep allocates a string's length before reading
 // it). Both are refused naming the key list, without the allocation.
 func TestKeyListKeys(t *testing.T) {
-	data, err := os.ReadFile("testdata/hists.root")
-	if err != nil {
-		t.Fatal(err)
-	}
+	data := smallFile(t, "testdata/hists.root")
 	be := binary.BigEndian
-	if v := be.Uint32(data[4:]); v >= 1000000 {
-		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
-	}
 	dir := be.Uint32(data[8:]) + be.Uint32(data[28:]) // the top directory follows the name record at fBEGIN
 	if be.Uint16(data[dir:]) > 1000 {
 		t.Fatal("a large-file directory; the offsets below are for small ones")
@@ -239,14 +227,8 @@ func TestKeyListKeys(t *testing.T) {
 // one another): both are refused before go-hep decodes them. Broken, this
 // test does not end before the test timeout.
 func TestUnknownClasses(t *testing.T) {
-	data, err := os.ReadFile("testdata/hists.root")
-	if err != nil {
-		t.Fatal(err)
-	}
+	data := smallFile(t, "testdata/hists.root")
 	be := binary.BigEndian
-	if v := be.Uint32(data[4:]); v >= 1000000 {
-		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
-	}
 	dir := t.TempDir()
 
 	d := append([]byte(nil), data...)
@@ -288,5 +270,26 @@ func TestGapPastEnd(t *testing.T) {
 	be.PutUint32(d[be.Uint32(d[8:]):], uint32(0xcccccccc)) // the record at fBEGIN
 	if err := CheckFile(bytes.NewReader(d), int64(len(d))); err == nil || !strings.Contains(err.Error(), "damaged ROOT file: a free gap of 858993460 bytes at byte 100 runs past the end of the records") {
 		t.Errorf("a gap past the end: %v", err)
+	}
+}
+
+// smallFile reads the seed file at path and checks it has the small-file
+// layout (version below 1000000, 4-byte offsets: common practice, the ROOT
+// file header) that the tests' offsets assume.
+func smallFile(t *testing.T, path string) []byte {
+	t.Helper()
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	smallLayout(t, data)
+	return data
+}
+
+// smallLayout fails the test unless data has the small-file layout.
+func smallLayout(t *testing.T, data []byte) {
+	t.Helper()
+	if v := binary.BigEndian.Uint32(data[4:]); v >= 1000000 {
+		t.Fatalf("the seed file is a large-file layout (version %d); the offsets below are for small files", v)
 	}
 }
